@@ -1,0 +1,5 @@
+"""Allow ``python -m verirun``."""
+
+from verirun.cli import main
+
+raise SystemExit(main())

@@ -1,0 +1,158 @@
+"""Quantities at the edges: parse ``"4.7 kΩ"`` or ``"125 mA"`` into SI base units, format back.
+
+Inside verirun every quantity is a plain float in SI base units (V, A, Ω, Hz) or a plain number
+of degrees of arc or percent. Text with units exists only in files, on the console and on the
+certificate, and crosses into floats here.
+
+The grammar is deliberately small (one SI prefix, one unit symbol from :data:`UNITS`): a general
+unit library costs more start-up time than the whole of ``verirun check``, and the tests check
+this parser against one.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+
+from verirun.errors import UnitError
+
+#: Unit symbols accepted in text, mapped to the dimension they measure.
+UNITS: dict[str, str] = {
+    "V": "V", "v": "V", "volt": "V", "volts": "V",
+    "A": "A", "amp": "A", "amps": "A", "ampere": "A", "amperes": "A",
+    "Ω": "Ω", "ohm": "Ω", "ohms": "Ω", "Ohm": "Ω", "Ohms": "Ω", "\u2126": "Ω",
+    "Hz": "Hz", "hz": "Hz",
+    "s": "s",
+    "deg": "deg", "°": "deg", "degree": "deg", "degrees": "deg",
+    "%": "%",
+    "ppm": "ppm",
+}
+
+#: SI prefixes and their factors. ``u``, ``µ`` (micro sign) and ``μ`` (Greek mu) are all micro.
+PREFIXES: dict[str, float] = {
+    "p": 1e-12, "n": 1e-9, "u": 1e-6, "µ": 1e-6, "μ": 1e-6, "m": 1e-3,
+    "": 1.0, "k": 1e3, "M": 1e6, "G": 1e9,
+}
+
+#: Units that take no prefix.
+_UNPREFIXED = {"deg", "%", "ppm"}
+
+#: Names of dimensions for error messages.
+DIMENSION_NAMES = {"V": "volts", "A": "amperes", "Ω": "ohms", "Hz": "hertz", "s": "seconds",
+                   "deg": "degrees of arc", "%": "percent", "ppm": "parts per million",
+                   "": "a plain number"}
+
+_NUMBER = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
+_QUANTITY = re.compile(rf"^\s*(?P<number>{_NUMBER})\s*(?P<unit>[^\s\d.+-][^\s]*)?\s*$")
+_DECIMAL_COMMA = re.compile(r"^\s*[+-]?\d+,\d+")
+
+
+def _split_unit(symbol: str) -> tuple[float, str]:
+    """Split ``"kΩ"`` into ``(1e3, "Ω")``, preferring a whole unit name over a prefix."""
+    if symbol in UNITS:
+        return 1.0, UNITS[symbol]
+    for prefix, factor in PREFIXES.items():
+        if prefix and symbol.startswith(prefix):
+            rest = symbol[len(prefix):]
+            if rest in UNITS and UNITS[rest] not in _UNPREFIXED:
+                return factor, UNITS[rest]
+    raise UnitError(f"unknown unit {symbol!r} (use V, A, Ω or ohm, Hz, deg, % with an SI prefix"
+                    " such as m, k, M)")
+
+
+def parse_quantity(text: str | float | int, expect: str | None = None) -> tuple[float, str]:
+    """Parse a number with an optional unit into ``(value in base units, dimension)``.
+
+    Parameters
+    ----------
+    text
+        ``"4.7 kΩ"``, ``"125mA"``, ``"2.5 deg"``, ``"10"``; a plain int or float passes through.
+    expect
+        The dimension the value must have (``"V"``, ``"A"``, ``"Ω"``, ``"Hz"``, ``"deg"``,
+        ``"%"``). A bare number is taken to be in it.
+
+    Returns
+    -------
+    tuple
+        The value in SI base units and its dimension (``""`` for a bare number with no
+        ``expect``).
+
+    Raises
+    ------
+    UnitError
+        With the reason in plain words: not a number, decimal comma, unknown unit, wrong unit,
+        not finite.
+    """
+    if isinstance(text, bool):
+        raise UnitError(f"expected a number, got {text!r}")
+    if isinstance(text, (int, float)):
+        value = float(text)
+        dimension = expect or ""
+    else:
+        if not isinstance(text, str):
+            raise UnitError(f"expected a number with an optional unit, got {type(text).__name__}")
+        if _DECIMAL_COMMA.match(text):
+            raise UnitError(f"{text.strip()!r}: use a decimal point, not a comma")
+        match = _QUANTITY.match(text)
+        if match is None:
+            if not text.strip():
+                raise UnitError("empty: type a number")
+            raise UnitError(f"{text.strip()!r} is not a number with an optional unit")
+        value = float(match["number"])
+        symbol = match["unit"]
+        if symbol:
+            factor, dimension = _split_unit(symbol)
+            value *= factor
+        else:
+            dimension = expect or ""
+    if not math.isfinite(value):
+        raise UnitError(f"{text!r} is not a finite number")
+    if expect is not None and dimension != expect:
+        raise UnitError(f"{str(text).strip()!r} is in {DIMENSION_NAMES.get(dimension, dimension)},"
+                        f" expected {DIMENSION_NAMES.get(expect, expect)}")
+    return value, dimension
+
+
+def parse_value(text: str | float | int, expect: str) -> float:
+    """Parse a quantity that must be in dimension ``expect``; return its value in base units."""
+    return parse_quantity(text, expect)[0]
+
+
+_ENGINEERING = [(1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "µ"),
+                (1e-9, "n"), (1e-12, "p")]
+
+
+def format_quantity(value: float | None, unit: str, digits: int = 6) -> str:
+    """Format a base-unit value with an SI prefix: ``format_quantity(0.125, "A") == "125 mA"``.
+
+    ``None`` and infinity format as ``"∞"``; ``digits`` is the number of significant digits kept.
+    """
+    if value is None or math.isinf(value):
+        return "∞" if value is None or value > 0 else "-∞"
+    if unit in _UNPREFIXED or value == 0:
+        return f"{value:.{digits}g} {unit}".strip() if unit != "%" else f"{value:.{digits}g} %"
+    magnitude = abs(value)
+    for factor, prefix in _ENGINEERING:
+        if magnitude >= factor * 0.9999999995:
+            break
+    return f"{value / factor:.{digits}g} {prefix}{unit}"
+
+
+def format_fixed(value: float, unit: str, decimals_base: int) -> str:
+    """Format a value rounded to ``decimals_base`` decimal places *in base units*.
+
+    The prefix is chosen from the magnitude, and the number of decimals adjusted so that the
+    last digit shown stays at the same absolute place (GUM 7.2.6: the result is rounded to the
+    place of the last digit of its uncertainty).
+    """
+    if math.isinf(value):
+        return format_quantity(value, unit)
+    magnitude = abs(value) if value else 10.0 ** (-decimals_base)
+    factor, prefix = 1.0, ""
+    if unit not in _UNPREFIXED:
+        for factor, prefix in _ENGINEERING:
+            if magnitude >= factor * 0.9999999995:
+                break
+    exponent = round(math.log10(factor))
+    decimals = max(decimals_base + exponent, 0)
+    return f"{value / factor:.{decimals}f} {prefix}{unit}"

@@ -1,0 +1,174 @@
+"""Read YAML files strictly and report every problem as ``file:line: field: message``.
+
+PyYAML's node tree keeps the line of every key; we keep a map from each value's path
+(``("ranges", 2, "points")``) to the line where it is written, refuse duplicate keys (which
+plain YAML loading silently overwrites), and turn pydantic validation errors into lines a person
+can act on.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any, TypeVar
+
+import yaml
+
+from verirun.errors import ProcedureError
+
+Path_ = tuple[Any, ...]
+M = TypeVar("M")
+
+
+class LocatedData:
+    """Data loaded from a YAML file, with the line of every value it holds."""
+
+    def __init__(self, data: Any, lines: dict[Path_, int], source: str, text: str):
+        self.data = data
+        self.lines = lines
+        self.source = source
+        self.text = text
+
+    def line_of(self, loc: Path_) -> int:
+        """Line of the deepest value along ``loc`` that exists in the file (1 if none).
+
+        Elements of ``loc`` that are not in the file (a union member's tag, a model name) are
+        skipped, so pydantic's locations find their line.
+        """
+        best = self.lines.get((), 1)
+        path: Path_ = ()
+        for part in loc:
+            candidate = path + (part,)
+            if candidate in self.lines:
+                path = candidate
+                best = self.lines[candidate]
+        return best
+
+    def problem(self, loc: Path_, message: str) -> str:
+        """Format one problem as ``file:line: field: message``."""
+        field = format_loc(loc, self)
+        where = f"{self.source}:{self.line_of(loc)}"
+        return f"{where}: {field}: {message}" if field else f"{where}: {message}"
+
+
+def format_loc(loc: Path_, located: LocatedData | None = None) -> str:
+    """``("ranges", 2, "points")`` -> ``"ranges[2].points"``, keeping only parts in the file."""
+    text = ""
+    path: Path_ = ()
+    for part in loc:
+        candidate = path + (part,)
+        if located is not None and candidate not in located.lines:
+            continue
+        path = candidate
+        if isinstance(part, int):
+            text += f"[{part}]"
+        else:
+            text += f".{part}" if text else str(part)
+    return text
+
+
+def _walk(node: yaml.Node, path: Path_, lines: dict[Path_, int], problems: list[tuple[Path_, int, str]]) -> None:
+    lines.setdefault(path, node.start_mark.line + 1)
+    if isinstance(node, yaml.MappingNode):
+        seen: dict[Any, int] = {}
+        for key_node, value_node in node.value:
+            key = key_node.value if isinstance(key_node, yaml.ScalarNode) else str(key_node.value)
+            line = key_node.start_mark.line + 1
+            if key in seen:
+                problems.append((path + (key,), line,
+                                 f"duplicate key (first given on line {seen[key]})"))
+                continue
+            seen[key] = line
+            lines[path + (key,)] = line
+            _walk(value_node, path + (key,), lines, problems)
+    elif isinstance(node, yaml.SequenceNode):
+        for index, item in enumerate(node.value):
+            lines[path + (index,)] = item.start_mark.line + 1
+            _walk(item, path + (index,), lines, problems)
+
+
+def load_text(text: str, source: str) -> LocatedData:
+    """Parse YAML ``text`` (named ``source`` in messages) into :class:`LocatedData`.
+
+    Raises
+    ------
+    ProcedureError
+        On a YAML syntax error or duplicate keys, with ``file:line`` for each.
+    """
+    try:
+        node = yaml.compose(text, Loader=yaml.SafeLoader)
+        data = yaml.safe_load(text)
+    except yaml.MarkedYAMLError as exc:
+        mark = exc.problem_mark or exc.context_mark
+        line = mark.line + 1 if mark is not None else 1
+        raise ProcedureError(f"{source}:{line}: not valid YAML: {exc.problem or exc}") from None
+    except yaml.YAMLError as exc:
+        raise ProcedureError(f"{source}:1: not valid YAML: {exc}") from None
+    except (ValueError, OverflowError, RecursionError) as exc:  # e.g. a timestamp out of range
+        raise ProcedureError(f"{source}:1: not valid YAML: {exc}") from None
+    lines: dict[Path_, int] = {}
+    problems: list[tuple[Path_, int, str]] = []
+    if node is not None:
+        _walk(node, (), lines, problems)
+    located = LocatedData(data, lines, source, text)
+    if problems:
+        raise ProcedureError([f"{source}:{line}: {format_loc(loc)}: {msg}" for loc, line, msg in problems])
+    return located
+
+
+def load_file(path: str | Path) -> LocatedData:
+    """Read and parse a YAML file; a missing or unreadable file is a :class:`ProcedureError`."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise ProcedureError(f"{path}: no such file") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise ProcedureError(f"{path}: cannot read: {exc}") from None
+    return load_text(text, str(path))
+
+
+def validate(model: type[M], located: LocatedData, *, context: dict | None = None) -> M:
+    """Validate ``located.data`` against a pydantic ``model``; every error becomes one line.
+
+    Raises
+    ------
+    ProcedureError
+        Listing every problem found, each as ``file:line: field: message``.
+    """
+    from pydantic import ValidationError
+
+    if not isinstance(located.data, dict):
+        raise ProcedureError(f"{located.source}:1: expected a mapping of keys at the top of the file")
+    try:
+        return model.model_validate(located.data, context=context)  # type: ignore[attr-defined]
+    except ValidationError as exc:
+        problems = []
+        for err in exc.errors(include_url=False):
+            message = err["msg"]
+            if message.startswith("Value error, "):
+                message = message[len("Value error, "):]
+            if err["type"] == "extra_forbidden":
+                message = "unknown key (check its spelling)"
+            elif err["type"] == "missing":
+                message = "required, but missing"
+            problems.append(located.problem(tuple(err["loc"]), message))
+        raise ProcedureError(_unique(problems)) from None
+
+
+def _unique(items: list[str]) -> list[str]:
+    seen: set[str] = set()
+    return [x for x in items if not (x in seen or seen.add(x))]
+
+
+def check_format(located: LocatedData, supported: int, kind: str) -> None:
+    """Refuse a file whose ``format`` version is missing, not an integer or newer than we read."""
+    data = located.data if isinstance(located.data, dict) else {}
+    version = data.get("format")
+    if version is None:
+        raise ProcedureError(located.problem(("format",), f"required: the {kind} format version"
+                                             f" (this verirun reads format {supported})"))
+    if not isinstance(version, int) or isinstance(version, bool) or version < 1:
+        raise ProcedureError(located.problem(("format",), f"must be a whole number, got {version!r}"))
+    if version > supported:
+        raise ProcedureError(located.problem(("format",), f"this {kind} is format {version}, newer than"
+                                             f" this verirun reads (format {supported}); upgrade verirun"))
