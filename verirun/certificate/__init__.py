@@ -1,0 +1,1 @@
+"""Certificates rendered from run records alone."""

@@ -1,0 +1,83 @@
+"""Render a certificate from a run record: a pure function of the record and the template.
+
+Rendering twice gives the same bytes, so regenerating a certificate from stored data years later
+is the same code path as its first rendering. Nothing here reads a clock: every date comes from
+the record.
+"""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+#: Version of the certificate template; recorded in every certificate it renders.
+TEMPLATE_VERSION = "1"
+
+
+def certificate_number(record: dict) -> str:
+    """The certificate's unique number: lab prefix, calibration date and the run's uid."""
+    prefix = record["lab"].get("certificate_prefix", "CERT")
+    day = record["run"]["started"][:10].replace("-", "")
+    return f"{prefix}-{day}-{record['run']['uid'][:8].upper()}"
+
+
+def safe_file_name(text: str) -> str:
+    """A file name made from user data that cannot leave the folder it is written in."""
+    name = re.sub(r"[^A-Za-z0-9._-]+", "_", text).strip("._") or "certificate"
+    return name[:120]
+
+
+def _environment():
+    from jinja2 import Environment, PackageLoader, StrictUndefined, select_autoescape
+
+    from verirun.units import format_quantity
+
+    env = Environment(loader=PackageLoader("verirun.certificate", "templates"),
+                      autoescape=select_autoescape(["html", "j2"], default=True),
+                      undefined=StrictUndefined, trim_blocks=True, lstrip_blocks=True,
+                      keep_trailing_newline=True)
+    env.filters["q"] = lambda value, unit, digits=6: format_quantity(value, unit, digits)
+    env.filters["signed"] = _signed
+    return env
+
+
+def _signed(value: float | None, unit: str, digits: int = 3) -> str:
+    from verirun.units import format_quantity
+
+    if value is None:
+        return ""
+    if unit in ("deg", "% of length"):
+        return f"{value:+.{digits}g} {'°' if unit == 'deg' else '% of length'}"
+    text = format_quantity(value, unit, digits)
+    return text if text.startswith("-") else "+" + text
+
+
+_ENV = None
+
+
+def render_html(record: dict) -> str:
+    """The certificate of ``record`` as HTML text."""
+    global _ENV
+    if _ENV is None:
+        _ENV = _environment()
+    template = _ENV.get_template("certificate.html.j2")
+    ranges = []
+    by_range: dict[str, list[dict]] = {}
+    for row in sorted(record["points"], key=lambda r: r["index"]):
+        by_range.setdefault(row["range"], []).append(row)
+    for rng in record["ranges"]:
+        ranges.append({**rng, "rows": by_range.get(rng["id"], [])})
+    return template.render(record=record, ranges=ranges, number=certificate_number(record),
+                           template_version=TEMPLATE_VERSION)
+
+
+def write_certificate(record: dict, reports_dir: str | Path) -> Path:
+    """Render ``record`` into ``reports_dir``/<certificate number>.html; return the path."""
+    folder = Path(reports_dir)
+    folder.mkdir(parents=True, exist_ok=True)
+    path = folder / f"{safe_file_name(certificate_number(record))}.html"
+    data = render_html(record).encode("utf-8")
+    tmp = path.with_suffix(".tmp")
+    tmp.write_bytes(data)
+    tmp.replace(path)
+    return path

@@ -1,0 +1,273 @@
+"""The command line: the only place that parses argv and prints.
+
+Every error a user can cause arrives here as a :class:`~verirun.errors.VerirunError` and leaves
+as one clear line and an exit code; anything else is a bug, reported as such without a
+traceback (set ``VERIRUN_DEBUG=1`` to see it).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+from pathlib import Path
+
+from verirun import __version__
+
+EXIT_OK, EXIT_ERROR, EXIT_ABORTED, EXIT_BENCH, EXIT_UNSAFE, EXIT_BUG = 0, 1, 2, 3, 4, 70
+
+
+def _parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="verirun",
+        description="Verify electrical meters against a programmable calibrator, from a"
+                    " declarative procedure to an HTML certificate.")
+    parser.add_argument("--version", action="version", version=f"verirun {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+
+    demo = sub.add_parser("demo", help="run the demo procedure on the simulated bench, with a virtual meter")
+    _output_options(demo)
+
+    run = sub.add_parser("run", help="run a procedure on a bench (real, or simulated with --simulate)")
+    run.add_argument("procedure", type=Path, help="the procedure file (YAML)")
+    run.add_argument("--bench", type=Path, required=True, help="the bench file (YAML)")
+    run.add_argument("--lab", type=Path, help="the lab profile (YAML); default: the demo lab")
+    run.add_argument("--simulate", action="store_true",
+                     help="drive the simulated calibrator instead of the bench's instrument (a dry run)")
+    source = run.add_mutually_exclusive_group()
+    source.add_argument("--readings", type=Path, help="take readings from a CSV file (range, at, reading)")
+    source.add_argument("--virtual-meter", type=Path, help="take readings from a virtual meter file")
+    run.add_argument("--serial", required=True, help="serial number of the item under test")
+    run.add_argument("--asset", help="the customer's asset number of the item")
+    run.add_argument("--condition", default="No damage or defect seen on receipt.",
+                     help="condition of the item as received")
+    run.add_argument("--customer", required=True, help="customer's name")
+    run.add_argument("--customer-address", action="append", default=[], help="a line of the customer's address")
+    run.add_argument("--operator", default=os.environ.get("USER", "operator"), help="who runs the verification")
+    _output_options(run)
+
+    check = sub.add_parser("check", help="validate procedure files and report every problem")
+    check.add_argument("files", type=Path, nargs="+", help="procedure files (YAML)")
+
+    window = sub.add_parser("window", help="compute the allowable window of one accuracy statement")
+    window.add_argument("--scale", choices=["linear", "series-ohms", "shunt-ohms"], default="linear")
+    window.add_argument("--full-scale", help="full-scale value of a linear scale (e.g. 10, 10V, 50mA)")
+    window.add_argument("--centre", help="centre-scale value of an ohms scale (e.g. 12, 1.2kohm)")
+    window.add_argument("--arc", help="arc span of the scale in degrees (e.g. 100)")
+    spec = window.add_mutually_exclusive_group(required=True)
+    spec.add_argument("--percent-fs", type=float, metavar="PCT", help="± percent of full scale")
+    spec.add_argument("--degrees", type=float, metavar="DEG", help="± degrees of arc")
+    spec.add_argument("--percent-length", type=float, metavar="PCT", help="± percent of scale length")
+    spec.add_argument("--percent-reading", type=float, metavar="PCT", help="± percent of reading")
+    window.add_argument("--at", required=True, help="the nominal value (e.g. 5, 5V, 12ohm)")
+    window.add_argument("--json", action="store_true", help="print a JSON object")
+
+    certify = sub.add_parser("certify", help="render certificates again from stored run records")
+    certify.add_argument("runs", type=Path, nargs="+", help="run folders or record.json files")
+    certify.add_argument("--reports", type=Path, default=Path("reports"), help="folder for certificates")
+    return parser
+
+
+def _output_options(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--runs", type=Path, default=Path("runs"), help="folder for run journals and records")
+    parser.add_argument("--reports", type=Path, default=Path("reports"), help="folder for certificates")
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run the command line; return the exit code."""
+    parser = _parser()
+    args = parser.parse_args(argv)
+    if args.command is None:
+        parser.print_help()
+        return EXIT_OK
+    from verirun.errors import RunAborted, SafetyError, VerirunError
+
+    try:
+        return _COMMANDS[args.command](args)
+    except SafetyError as exc:
+        _err(f"DANGER: {exc}")
+        return EXIT_UNSAFE
+    except RunAborted as exc:
+        _err(f"stopped: {exc}")
+        return EXIT_ABORTED
+    except VerirunError as exc:
+        _err(f"error: {exc}")
+        return exc.exit_code
+    except KeyboardInterrupt:
+        _err("stopped: interrupted; the output was put in standby")
+        return EXIT_ABORTED
+    except Exception as exc:  # a bug; never a traceback for the user
+        if os.environ.get("VERIRUN_DEBUG"):
+            raise
+        _err(f"internal error (a bug in verirun, please report it): {type(exc).__name__}: {exc}")
+        return EXIT_BUG
+
+
+def _err(text: str) -> None:
+    print(text, file=sys.stderr)
+
+
+def _cmd_check(args) -> int:
+    from verirun.errors import ProcedureError
+    from verirun.procedure.load import load_procedure
+    from verirun.procedure.plan import plan
+
+    failed = False
+    for path in args.files:
+        try:
+            procedure = load_procedure(path)
+            plan(procedure)
+        except ProcedureError as exc:
+            failed = True
+            for line in exc.problems:
+                print(line)
+            continue
+        print(f"{path}: ok: {procedure.id} revision {procedure.revision},"
+              f" {len(procedure.ranges)} ranges, {sum(len(r.points) for r in procedure.ranges)} points")
+    return EXIT_ERROR if failed else EXIT_OK
+
+
+def _cmd_window(args) -> int:
+    from verirun.errors import UnitError
+    from verirun.metrology import scales, tolerance
+    from verirun.record import json_number
+    from verirun.units import format_quantity, parse_quantity, parse_value
+
+    def quantity(name: str, text, expect=None):
+        try:
+            return parse_quantity(text, expect)
+        except UnitError as exc:
+            raise UnitError(f"--{name}: {exc}") from None
+
+    ohms = args.scale != "linear"
+    at, unit = quantity("at", args.at, "Ω" if ohms else None)
+    if ohms:
+        if args.centre is None:
+            raise UnitError(f"--centre: required for a {args.scale} scale")
+        centre, _ = quantity("centre", args.centre, "Ω")
+        law = scales.make_law(args.scale, centre=centre) if centre > 0 else None
+        if law is None:
+            raise UnitError("--centre: must be more than zero")
+        full_scale = None
+    else:
+        if args.full_scale is None:
+            raise UnitError("--full-scale: required for a linear scale")
+        full_scale, fs_unit = quantity("full-scale", args.full_scale, unit or None)
+        unit = unit or fs_unit
+        if full_scale <= 0:
+            raise UnitError("--full-scale: must be more than zero")
+        law = scales.Linear(high=full_scale)
+    arc = quantity("arc", args.arc, "deg")[0] if args.arc is not None else None
+    if args.percent_fs is not None:
+        statement = tolerance.PercentOfFullScale(percent=args.percent_fs)
+    elif args.degrees is not None:
+        statement = tolerance.DegreesOfArc(degrees=args.degrees)
+    elif args.percent_length is not None:
+        statement = tolerance.PercentOfLength(percent=args.percent_length)
+    else:
+        statement = tolerance.ValueStatement(reading=args.percent_reading)
+    try:
+        win = tolerance.window(statement, at, tolerance.RangeContext(law=law, arc=arc, full_scale=full_scale))
+    except ValueError as exc:
+        raise UnitError(str(exc)) from None
+    if args.json:
+        print(json.dumps({"nominal": win.nominal, "low": json_number(win.low), "high": json_number(win.high),
+                          "unit": unit, "domain": win.domain, "half_width": win.half_width}))
+    else:
+        print(f"at {format_quantity(win.nominal, unit)}: {format_quantity(win.low, unit)} to"
+              f" {format_quantity(win.high, unit)}"
+              + (" (unbounded above)" if not win.bounded else ""))
+    return EXIT_OK
+
+
+def _cmd_certify(args) -> int:
+    from verirun.certificate.render import write_certificate
+    from verirun.errors import RecordError
+    from verirun.record import load_record
+
+    failed = 0
+    for path in args.runs:
+        try:
+            record = load_record(path)
+            out = write_certificate(record, args.reports)
+        except RecordError as exc:
+            failed += 1
+            _err(f"error: {exc}")
+            continue
+        print(f"{path}: certificate {out}")
+    return EXIT_ERROR if failed else EXIT_OK
+
+
+def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, context_item,
+         customer, operator) -> int:
+    from rich.console import Console as RichConsole
+
+    from verirun.bench.config import load_bench
+    from verirun.console import Console, QuietConsole
+    from verirun.engine import RunContext
+    from verirun.lab import load_lab
+    from verirun.procedure.load import load_procedure
+    from verirun.session import execute
+
+    procedure = load_procedure(procedure_path)
+    bench = load_bench(bench_path)
+    lab = load_lab(lab_path)
+    rich = RichConsole(highlight=False)
+    console = Console(rich) if readings.interactive else QuietConsole(echo=rich)
+    context = RunContext(lab=lab.lab.model_dump(mode="json"), customer=customer, item=context_item,
+                         operator=operator, simulated=simulate)
+    if simulate:
+        rich.print("[bold]Dry run on the simulated calibrator[/] (no real instrument is driven).")
+    if not readings.interactive:
+        Console(rich).cautions()
+    finished = execute(procedure=procedure, bench=bench, context=context, readings=readings,
+                       console=console, runs_dir=args.runs, reports_dir=args.reports, simulate=simulate)
+    summary = finished.record["summary"]
+    rich.print(f"\nRun record:  {finished.record_path}")
+    rich.print(f"Certificate: {finished.certificate}")
+    verdict = summary["overall"].upper()
+    colour = "green" if summary["overall"] == "pass" else "red"
+    rich.print(f"Overall: [bold {colour}]{verdict}[/] ({summary['pass']} pass, {summary['fail']} fail,"
+               f" {summary['skipped']} skipped of {summary['points']} points)")
+    return EXIT_OK
+
+
+def _cmd_demo(args) -> int:
+    from verirun.readings import VirtualMeter
+    from verirun.session import demo_files
+
+    with demo_files() as demo:
+        return _run(args, procedure_path=demo["procedure"], bench_path=demo["bench"], lab_path=demo["lab"],
+                    readings=VirtualMeter(demo["meter"]), simulate=True,
+                    context_item={"serial": "QM40-118273", "asset": "AWB-E-0457",
+                                  "condition": "Case scuffed; no damage affecting use. Battery 1.5 V fitted."},
+                    customer={"name": "Ashgrove Water Board", "address": ["Pumping Station 3", "Ashgrove AG2 7LP"]},
+                    operator="demo technician")
+
+
+def _cmd_run(args) -> int:
+    from verirun.console import Console
+    from verirun.readings import ScriptedReadings, VirtualMeter
+    from verirun.session import demo_files
+
+    if args.readings:
+        readings = ScriptedReadings(args.readings)
+    elif args.virtual_meter:
+        readings = VirtualMeter(args.virtual_meter)
+    else:
+        readings = Console()
+    item = {"serial": args.serial, "asset": args.asset, "condition": args.condition}
+    customer = {"name": args.customer, "address": args.customer_address}
+    if args.lab is None:
+        with demo_files() as demo:
+            return _run(args, procedure_path=args.procedure, bench_path=args.bench, lab_path=demo["lab"],
+                        readings=readings, simulate=args.simulate, context_item=item, customer=customer,
+                        operator=args.operator)
+    return _run(args, procedure_path=args.procedure, bench_path=args.bench, lab_path=args.lab,
+                readings=readings, simulate=args.simulate, context_item=item, customer=customer,
+                operator=args.operator)
+
+
+_COMMANDS = {"check": _cmd_check, "window": _cmd_window, "certify": _cmd_certify, "demo": _cmd_demo,
+             "run": _cmd_run}

@@ -1,0 +1,176 @@
+"""What the operator sees and types: the step on screen, cautions, confirmations, readings.
+
+The engine talks to a :class:`Console` through a handful of calls; :class:`QuietConsole` is the
+same surface for tests and batch runs, answering confirmations as it is told.
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+from verirun.errors import UnitError
+from verirun.readings import COMMANDS, Entry, parse_entry
+from verirun.units import format_quantity
+
+if TYPE_CHECKING:
+    from verirun.evaluation import Result
+    from verirun.procedure.plan import TestPoint
+
+CAUTIONS = (
+    "A calibrator can source voltages and currents that kill. Verify the meter under test is"
+    " rated for every range you will apply, use leads and connectors rated for the voltage, and"
+    " keep hands clear of live terminals while the output is on.",
+    "verirun switches the output to standby between points, on every error and on Ctrl-C, but it"
+    " cannot see your bench: if in doubt, switch the calibrator output off at the instrument.",
+    "These cautions do not replace your local electrical-safety rules, the instrument makers'"
+    " instructions or licensed practice; follow those where they ask for more.",
+)
+
+
+def _limits(point: "TestPoint") -> str:
+    win = point.window
+    return f"{format_quantity(win.low, point.unit)} to {format_quantity(win.high, point.unit)}"
+
+
+class Console:
+    """The operator's console, drawn with rich."""
+
+    interactive = True
+
+    def __init__(self, console=None, *, input_func=None):
+        from rich.console import Console as RichConsole
+
+        self.rich = console or RichConsole(highlight=False)
+        self._input = input_func or (lambda prompt: self.rich.input(prompt))
+
+    # --- messages -------------------------------------------------------------------------
+    def say(self, text: str) -> None:
+        """A plain line."""
+        self.rich.print(text)
+
+    def warn(self, text: str) -> None:
+        """A warning line, made to stand out."""
+        self.rich.print(f"[bold yellow]warning:[/] {text}")
+
+    def danger(self, text: str) -> None:
+        """A line about the operator's safety."""
+        self.rich.print(f"[bold white on red] DANGER [/] [bold]{text}[/]")
+
+    def cautions(self) -> None:
+        """The safety cautions shown before any output goes on."""
+        from rich.panel import Panel
+
+        self.rich.print(Panel("\n\n".join(CAUTIONS), title="Safety", border_style="red"))
+
+    def heading(self, text: str) -> None:
+        """A section heading (run start, range change)."""
+        self.rich.rule(f"[bold]{text}")
+
+    # --- questions ------------------------------------------------------------------------
+    def ask(self, prompt: str) -> str:
+        """Ask for a line of text."""
+        return self._input(prompt)
+
+    def confirm(self, question: str, *, word: str = "yes") -> bool:
+        """Ask for an explicit confirmation: only ``word`` typed in full counts as yes."""
+        answer = self.ask(f"{question} Type [bold]{word}[/] to go on, anything else to stop: ")
+        return answer.strip().lower() == word
+
+    def connect(self, point: "TestPoint") -> None:
+        """Show the connection for a new range and wait for the operator (output is in standby)."""
+        rng = point.range
+        self.heading(f"Range {point.range_text()}")
+        self.say("Output is in [bold]standby[/].")
+        if rng.connect:
+            self.say(f"Connect: {rng.connect}")
+        self.ask("Press Enter when the leads and the range selector are set: ")
+
+    def step(self, point: "TestPoint") -> None:
+        """Show the step about to be read."""
+        self.say(f"\n[bold]Step {point.index + 1} of {point.total}[/]  range {point.range.id}"
+                 f"  applied [bold cyan]{point.stimulus_text()}[/]"
+                 + (f"  read on: {point.range.read_on}" if point.range.read_on else ""))
+
+    def result(self, point: "TestPoint", entry: Entry, result: "Result") -> None:
+        """Show the verdict of a reading."""
+        colour = "green" if result.verdict == "pass" else "red"
+        pct = f"{result.percent_of_tolerance:+.0f} % of tolerance" if result.percent_of_tolerance is not None else ""
+        self.say(f"  reading {format_quantity(result.reading, point.unit)}  limits {_limits(point)}"
+                 f"  {pct}  [bold {colour}]{result.verdict.upper()}[/]")
+
+    def take(self, point: "TestPoint") -> Entry:
+        """Ask for the reading until it parses; commands are returned as entries."""
+        while True:
+            typed = self.ask(f"  reading in {point.unit} (or {', '.join(COMMANDS)}): ")
+            try:
+                return parse_entry(typed, point)
+            except UnitError as exc:
+                self.say(f"  [yellow]{exc}[/]; type the reading again")
+
+
+class QuietConsole:
+    """The console surface for tests and scripted runs: records what would be shown.
+
+    Parameters
+    ----------
+    confirm_answers
+        Answers to give to confirmations, in order; when exhausted, confirmations are refused.
+    echo
+        A rich console to print a short line per step to, or ``None`` for silence.
+    """
+
+    interactive = False
+
+    def __init__(self, confirm_answers: list[bool] | None = None, echo=None):
+        self.lines: list[str] = []
+        self._answers = list(confirm_answers or [])
+        self.echo = echo
+
+    def _log(self, text: str) -> None:
+        self.lines.append(text)
+
+    def say(self, text: str) -> None:
+        self._log(text)
+
+    def warn(self, text: str) -> None:
+        self._log("warning: " + text)
+        if self.echo is not None:
+            self.echo.print(f"[bold yellow]warning:[/] {text}")
+
+    def danger(self, text: str) -> None:
+        self._log("DANGER: " + text)
+        if self.echo is not None:
+            self.echo.print(f"[bold white on red] DANGER [/] {text}")
+
+    def cautions(self) -> None:
+        self._log("cautions shown")
+
+    def heading(self, text: str) -> None:
+        self._log(text)
+        if self.echo is not None:
+            self.echo.rule(text)
+
+    def ask(self, prompt: str) -> str:
+        self._log(prompt)
+        return ""
+
+    def confirm(self, question: str, *, word: str = "yes") -> bool:
+        answer = self._answers.pop(0) if self._answers else False
+        self._log(f"{question} -> {answer}")
+        return answer
+
+    def connect(self, point: "TestPoint") -> None:
+        self.heading(f"Range {point.range_text()}")
+        if point.range.connect:
+            self._log(f"Connect: {point.range.connect}")
+
+    def step(self, point: "TestPoint") -> None:
+        self._log(f"Step {point.index + 1} of {point.total} {point.range.id} {point.stimulus_text()}")
+
+    def result(self, point: "TestPoint", entry: Entry, result: "Result") -> None:
+        line = (f"step {point.index + 1:>3}/{point.total}  {point.range.id:<10} {point.stimulus_text():<18}"
+                f" read {entry.typed:<10} limits {_limits(point):<22} {result.verdict.upper()}")
+        self._log(line)
+        if self.echo is not None:
+            colour = "green" if result.verdict == "pass" else "red"
+            self.echo.print(line.replace(result.verdict.upper(), f"[bold {colour}]{result.verdict.upper()}[/]"))

@@ -1,0 +1,227 @@
+"""The run loop: plan -> bench -> readings -> journal, with the output guarded at every step.
+
+The engine orchestrates and computes nothing of its own: windows come with the plan, verdicts
+from :func:`verirun.evaluation.evaluate`, safety decisions from :mod:`verirun.bench.safety`.
+Every entry the operator confirms is journaled (fsynced) before anything else happens.
+"""
+
+from __future__ import annotations
+
+import uuid as uuid_mod
+from dataclasses import dataclass, field
+from typing import Any
+
+from verirun import __version__
+from verirun.bench.config import Bench
+from verirun.bench.safety import HazardLimits, is_hazardous, output_guard
+from verirun.clock import SystemClock, iso
+from verirun.errors import BenchError, RunAborted, VerirunError
+from verirun.evaluation import evaluate
+from verirun.procedure.load import Procedure
+from verirun.procedure.plan import TestPoint, plan
+from verirun.readings import Entry, ReadingSource
+from verirun.record import Journal
+
+
+@dataclass(frozen=True, kw_only=True)
+class RunContext:
+    """Who and what a run is for; written into the start document as given."""
+
+    lab: dict
+    customer: dict
+    item: dict
+    operator: str
+    simulated: bool
+    environment: dict = field(default_factory=dict)
+
+
+@dataclass
+class Outcome:
+    """How a run ended."""
+
+    uid: str
+    status: str  # complete, aborted, failed
+    reason: str | None
+    counts: dict[str, int]
+
+
+def start_document(*, uid: str, time: str, procedure: Procedure, bench: Bench, identity: str,
+                   context: RunContext) -> dict[str, Any]:
+    """The first document of a run's journal: everything needed to replay and certify it."""
+    cal = bench.file.calibrator
+    return {
+        "kind": "start", "uid": uid, "time": time,
+        "software": {"name": "verirun", "version": __version__},
+        "procedure": {"id": procedure.id, "title": procedure.file.procedure.title,
+                      "revision": procedure.revision, "sha256": procedure.sha256,
+                      "source": procedure.source, "text": procedure.text},
+        "bench": {"id": bench.file.bench.id, "location": bench.file.bench.location,
+                  "sha256": bench.sha256, "source": bench.source, "text": bench.text,
+                  "simulated": context.simulated,
+                  "calibrator": {"description": cal.description, "asset": cal.asset,
+                                 "identity": identity, "resource": cal.resource,
+                                 "certificate": cal.certificate,
+                                 "calibration_due": cal.calibration_due.isoformat(),
+                                 "traceability": cal.traceability}},
+        "lab": context.lab, "customer": context.customer, "item": context.item,
+        "operator": context.operator, "environment": context.environment,
+    }
+
+
+class Engine:
+    """Executes the plan of a procedure on a bench.
+
+    Parameters
+    ----------
+    procedure, bench
+        What to verify and with what.
+    calibrator
+        An open calibrator driver.
+    readings
+        Where the readings come from.
+    console
+        What the operator sees (``Console`` or ``QuietConsole``).
+    journal
+        The journal of this run.
+    clock
+        Source of time and of settling waits.
+    """
+
+    def __init__(self, *, procedure: Procedure, bench: Bench, calibrator, readings: ReadingSource,
+                 console, journal: Journal, clock=None):
+        self.procedure = procedure
+        self.bench = bench
+        self.calibrator = calibrator
+        self.readings = readings
+        self.console = console
+        self.journal = journal
+        self.clock = clock or SystemClock()
+        self.limits = HazardLimits(dc_volts=bench.hazardous_dc, ac_rms_volts=bench.hazardous_ac_rms,
+                                   ac_peak_volts=bench.hazardous_ac_peak)
+        self.counts = {"pass": 0, "fail": 0, "skipped": 0}
+
+    def run(self, context: RunContext, *, uid: str | None = None) -> Outcome:
+        """Run every point of the plan; return how the run ended.
+
+        The calibrator is identified first and checked against the bench file; the output is in
+        standby before the first point, between points, and whatever ends the run.
+        """
+        uid = uid or uuid_mod.uuid4().hex
+        points = plan(self.procedure)
+        cal = self.calibrator
+        status, reason = "failed", "the run did not finish"
+        try:
+            with output_guard(cal):
+                identity = self._identify(context.simulated)
+                self.journal.append(start_document(uid=uid, time=iso(self.clock.now()),
+                                                   procedure=self.procedure, bench=self.bench,
+                                                   identity=identity, context=context))
+                self.console.cautions()
+                for point in points:
+                    self._point(point)
+            status, reason = "complete", None
+            return Outcome(uid=uid, status=status, reason=reason, counts=dict(self.counts))
+        except RunAborted as exc:
+            status, reason = "aborted", str(exc)
+            raise
+        except KeyboardInterrupt:
+            status, reason = "aborted", "interrupted (Ctrl-C)"
+            raise
+        except VerirunError as exc:
+            reason = str(exc)
+            raise
+        except Exception as exc:  # a bug: still close the journal with what happened
+            reason = f"internal error: {type(exc).__name__}: {exc}"
+            raise
+        finally:
+            if self.journal_started:
+                self.journal.append({"kind": "stop", "time": iso(self.clock.now()), "status": status,
+                                     "reason": reason, "counts": dict(self.counts)})
+
+    @property
+    def journal_started(self) -> bool:
+        return self.journal._seq > 0
+
+    def _identify(self, simulated: bool) -> str:
+        identity = self.calibrator.identify()
+        expected = self.bench.file.calibrator.identity
+        if not identity.startswith(expected):
+            raise BenchError(f"the instrument is not the calibrator the bench file names: expected"
+                             f" an identity starting {expected!r}", command="*IDN?", answer=identity,
+                             step="identify the calibrator")
+        return identity
+
+    def _step_name(self, point: TestPoint) -> str:
+        return f"step {point.index + 1} of {point.total} ({point.range.id} at {point.stimulus_text()})"
+
+    def _point(self, point: TestPoint) -> None:
+        if point.first_of_range:
+            self.calibrator.standby()
+            self.console.connect(point)
+        self._check_hazard(point)
+        while True:
+            try:
+                with output_guard(self.calibrator):
+                    self.calibrator.source(point.function, point.nominal, point.frequency)
+                    self.calibrator.output_on()
+                    self.clock.sleep(self.bench.settle_s)
+                    self.console.step(point)
+                    entry = self._take(point)
+            except BenchError as exc:
+                raise exc.at_step(self._step_name(point)) from None
+            if entry.kind == "repeat":
+                self.console.say("  applying the stimulus again")
+                continue
+            break
+        if entry.kind == "abort":
+            self.journal.append({"kind": "note", "time": iso(self.clock.now()), "point": point.key,
+                                 "text": "operator aborted the run" + (f": {entry.text}" if entry.text else "")})
+            raise RunAborted(f"aborted by the operator at {self._step_name(point)}; the run can be resumed")
+        if entry.kind == "skip":
+            self.journal.append({"kind": "skip", "time": iso(self.clock.now()), "point": point.key,
+                                 "index": point.index, "reason": entry.text, "typed": entry.typed})
+            self.counts["skipped"] += 1
+            self.console.say(f"  skipped: {entry.text}")
+            return
+        self.journal.append(self._observation(point, entry))
+        result = evaluate(point, entry.value)
+        self.counts[result.verdict] = self.counts.get(result.verdict, 0) + 1
+        self.console.result(point, entry, result)
+
+    def _take(self, point: TestPoint) -> Entry:
+        """The next entry that is not a note; notes are journaled as they come."""
+        while True:
+            entry = self.readings.take(point)
+            if entry.kind != "note":
+                return entry
+            self.journal.append({"kind": "note", "time": iso(self.clock.now()), "point": point.key,
+                                 "text": entry.text})
+            self.console.say("  note recorded")
+
+    def _observation(self, point: TestPoint, entry: Entry) -> dict:
+        return {"kind": "observation", "time": iso(self.clock.now()), "point": point.key,
+                "index": point.index, "range": point.range.id, "function": point.function,
+                "applied": {"value": point.nominal, "frequency": point.frequency},
+                "typed": entry.typed, "reading": entry.value}
+
+    def _check_hazard(self, point: TestPoint) -> None:
+        if not is_hazardous(point.function, point.nominal, self.limits):
+            return
+        text = (f"{self._step_name(point)} applies {point.stimulus_text()}, at or above the"
+                f" hazardous-live threshold of this bench. Keep clear of the terminals.")
+        if self.readings.interactive and self.console.interactive:
+            self.console.danger(text)
+            if not self.console.confirm("Switch the output on at a hazardous voltage?"):
+                raise RunAborted(f"hazardous output not confirmed at {self._step_name(point)};"
+                                 " the run can be resumed")
+            how = "confirmed by the operator"
+        elif self.bench.file.safety.scripted_hazardous == "allow":
+            self.console.danger(text + " Permitted for a scripted run by the bench file.")
+            how = "permitted for a scripted run by the bench file (scripted-hazardous: allow)"
+        else:
+            raise RunAborted(f"{self._step_name(point)} would apply {point.stimulus_text()}, a hazardous"
+                             " voltage, in a scripted run; the bench file does not permit it"
+                             " (safety: scripted-hazardous: allow)")
+        self.journal.append({"kind": "note", "time": iso(self.clock.now()), "point": point.key,
+                             "text": f"hazardous output {point.stimulus_text()} {how}",
+                             "hazardous": True})

@@ -1,0 +1,1 @@
+"""Procedures: validated models of what to verify, loaded from YAML, and the plan of a run."""

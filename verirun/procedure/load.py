@@ -1,0 +1,347 @@
+"""Load a procedure file: YAML -> validated structure -> resolved procedure in SI floats.
+
+Every problem in the file is collected and reported at once as ``file:line: field: message``,
+so a run never dies half-way on a typo.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+from verirun import yamlfile
+from verirun.errors import ProcedureError, UnitError
+from verirun.metrology import scales, tolerance
+from verirun.procedure.model import FUNCTION_UNITS, Accuracy, ProcedureFile, Range
+from verirun.units import parse_value
+
+#: The procedure format version this verirun reads.
+FORMAT = 1
+
+_ARC_FORMS = {"percent_of_full_scale": "percent-of-full-scale", "class_index": "class",
+              "degrees": "degrees", "percent_of_length": "percent-of-length"}
+_VALUE_FORMS = {"percent_of_reading": "percent-of-reading", "percent_of_range": "percent-of-range",
+                "counts": "counts", "absolute": "absolute"}
+
+
+@dataclass(frozen=True, kw_only=True)
+class Band:
+    """An accuracy statement and the frequencies it holds for (``None``: all)."""
+
+    statement: tolerance.Statement
+    low_hz: float | None = None
+    high_hz: float | None = None
+    text: str
+
+    def covers(self, frequency: float | None) -> bool:
+        """True when this band applies at ``frequency``, ends included."""
+        if self.low_hz is None:
+            return True
+        return frequency is not None and self.low_hz <= frequency <= self.high_hz
+
+
+@dataclass(frozen=True, kw_only=True)
+class ResolvedRange:
+    """A range with every quantity in SI floats and its scale law built."""
+
+    id: str
+    function: str
+    unit: str
+    law: scales.ScaleLaw
+    arc: float | None
+    full_scale: float | None
+    resolution: float | None
+    resolution_domain: str | None  # "value" or "deg"
+    bands: tuple[Band, ...]
+    read_on: str | None
+    connect: str | None
+    points: tuple[tuple[float, float | None], ...]  # (nominal, frequency)
+    battery: float | None
+
+    @property
+    def context(self) -> tolerance.RangeContext:
+        """What a tolerance statement needs to know about this range."""
+        count = self.resolution if self.resolution_domain == "value" else None
+        return tolerance.RangeContext(law=self.law, arc=self.arc, full_scale=self.full_scale,
+                                      count=count)
+
+    def band_at(self, frequency: float | None) -> Band:
+        """The accuracy band that applies at ``frequency`` (checked at load time to exist)."""
+        for band in self.bands:
+            if band.covers(frequency):
+                return band
+        raise LookupError(f"no accuracy band of range {self.id} covers {frequency} Hz")
+
+
+@dataclass(frozen=True, kw_only=True)
+class Procedure:
+    """A loaded procedure: its validated file, resolved ranges, source text and hash."""
+
+    file: ProcedureFile
+    ranges: tuple[ResolvedRange, ...]
+    text: str
+    source: str
+
+    @property
+    def sha256(self) -> str:
+        """SHA-256 of the procedure text exactly as run."""
+        return hashlib.sha256(self.text.encode("utf-8")).hexdigest()
+
+    @property
+    def id(self) -> str:
+        return self.file.procedure.id
+
+    @property
+    def revision(self) -> str:
+        return str(self.file.procedure.revision)
+
+
+def load_procedure(path: str | Path) -> Procedure:
+    """Load and fully validate the procedure file at ``path``.
+
+    Raises
+    ------
+    ProcedureError
+        Listing every problem, each as ``file:line: field: message``.
+    """
+    return _resolve(yamlfile.load_file(path))
+
+
+def load_procedure_text(text: str, source: str = "<procedure>") -> Procedure:
+    """Load a procedure from its text (as stored in a run record)."""
+    return _resolve(yamlfile.load_text(text, source))
+
+
+def _resolve(located: yamlfile.LocatedData) -> Procedure:
+    yamlfile.check_format(located, FORMAT, "procedure")
+    model = yamlfile.validate(ProcedureFile, located)
+    problems: list[str] = []
+    ranges = []
+    seen: dict[str, int] = {}
+    for index, rng in enumerate(model.ranges):
+        loc = ("ranges", index)
+        if rng.id in seen:
+            problems.append(located.problem(loc + ("id",), f"duplicate range id {rng.id!r} (also range"
+                                            f" {seen[rng.id] + 1})"))
+        seen.setdefault(rng.id, index)
+        resolved = _RangeResolver(located, loc, rng, problems).resolve()
+        if resolved is not None:
+            ranges.append(resolved)
+    if problems:
+        raise ProcedureError(problems)
+    return Procedure(file=model, ranges=tuple(ranges), text=located.text, source=located.source)
+
+
+class _RangeResolver:
+    """Turn one validated range into SI floats, collecting problems with their locations."""
+
+    def __init__(self, located: yamlfile.LocatedData, loc: tuple, rng: Range, problems: list[str]):
+        self.located, self.loc, self.rng, self.problems = located, loc, rng, problems
+        self.unit = FUNCTION_UNITS[rng.function]
+        self.ok = True
+
+    def fail(self, field: tuple, message: str) -> None:
+        self.problems.append(self.located.problem(self.loc + field, message))
+        self.ok = False
+
+    def quantity(self, field: tuple, text, unit: str, *, positive: bool = False,
+                 allow_zero: bool = True) -> float | None:
+        if text is None:
+            return None
+        try:
+            value = parse_value(text, unit)
+        except UnitError as exc:
+            self.fail(field, str(exc))
+            return None
+        if positive and (value < 0 or (value == 0 and not allow_zero)):
+            self.fail(field, f"must be {'positive' if not allow_zero else 'zero or more'}, got {text!r}")
+            return None
+        return value
+
+    def resolve(self) -> ResolvedRange | None:
+        rng = self.rng
+        ac = rng.function.startswith("ac-")
+        full_scale = self.quantity(("full-scale",), rng.full_scale, self.unit, positive=True,
+                                   allow_zero=False)
+        centre = self.quantity(("centre",), rng.centre, "Ω", positive=True, allow_zero=False)
+        battery = self.quantity(("battery",), rng.battery, "V", positive=True, allow_zero=False)
+        arc = self.quantity(("arc",), rng.arc, "deg", positive=True, allow_zero=False)
+        if arc is not None and arc > 360:
+            self.fail(("arc",), f"an arc of {arc:g} degrees is more than a full turn")
+        law = self._law(full_scale, centre)
+        resolution, resolution_domain = self._resolution()
+        range_freq = self.quantity(("frequency",), rng.frequency, "Hz", positive=True, allow_zero=False)
+        if range_freq is not None and not ac:
+            self.fail(("frequency",), f"a {rng.function} range takes no frequency")
+        bands = self._bands(ac)
+        points = self._points(ac, range_freq, full_scale, bands)
+        if law is not None and bands:
+            self._check_statements(law, arc, full_scale, resolution, resolution_domain, bands)
+        if not self.ok:
+            return None
+        return ResolvedRange(id=rng.id, function=rng.function, unit=self.unit, law=law, arc=arc,
+                             full_scale=full_scale, resolution=resolution,
+                             resolution_domain=resolution_domain, bands=tuple(bands),
+                             read_on=rng.read_on, connect=rng.connect, points=tuple(points),
+                             battery=battery)
+
+    def _law(self, full_scale, centre) -> scales.ScaleLaw | None:
+        rng = self.rng
+        if rng.scale == "linear":
+            if rng.centre is not None:
+                self.fail(("centre",), "a linear scale has no centre-scale value")
+            if full_scale is None:
+                if rng.full_scale is None:
+                    self.fail(("full-scale",), "required for a linear scale")
+                return None
+            return scales.Linear(high=full_scale)
+        if rng.function != "resistance":
+            self.fail(("scale",), f"a {rng.scale} scale is for resistance, not {rng.function}")
+            return None
+        if centre is None:
+            if rng.centre is None:
+                self.fail(("centre",), f"required for a {rng.scale} scale (the centre-scale value)")
+            return None
+        return scales.make_law(rng.scale, centre=centre)
+
+    def _resolution(self) -> tuple[float | None, str | None]:
+        text = self.rng.resolution
+        if text is None:
+            return None, None
+        unit = "deg" if isinstance(text, str) and text.strip().endswith(("deg", "°", "degrees")) else self.unit
+        value = self.quantity(("resolution",), text, unit, positive=True, allow_zero=False)
+        return value, ("deg" if unit == "deg" else "value") if value is not None else None
+
+    def _bands(self, ac: bool) -> list[Band]:
+        accuracy = self.rng.accuracy
+        items = accuracy if isinstance(accuracy, list) else [accuracy]
+        listed = isinstance(accuracy, list)
+        bands = []
+        for i, acc in enumerate(items):
+            field = ("accuracy", i) if listed else ("accuracy",)
+            band = self._band(field, acc, ac, listed)
+            if band is not None:
+                bands.append(band)
+        if listed and len(items) == 0:
+            self.fail(("accuracy",), "give at least one accuracy statement")
+        return bands
+
+    def _band(self, field: tuple, acc: Accuracy, ac: bool, listed: bool) -> Band | None:
+        given = {name: getattr(acc, name) for name in (*_ARC_FORMS, *_VALUE_FORMS)
+                 if getattr(acc, name) is not None}
+        arc_forms = [n for n in given if n in _ARC_FORMS]
+        value_forms = [n for n in given if n in _VALUE_FORMS]
+        if not given:
+            self.fail(field, "give one of " + ", ".join([*_ARC_FORMS.values(), *_VALUE_FORMS.values()]))
+            return None
+        if len(arc_forms) > 1 or (arc_forms and value_forms):
+            names = [_ARC_FORMS.get(n) or _VALUE_FORMS[n] for n in given]
+            self.fail(field, f"{' and '.join(names)} cannot be combined; give one of"
+                      f" {', '.join(_ARC_FORMS.values())}, or a sum of {', '.join(_VALUE_FORMS.values())}")
+            return None
+        for name, value in given.items():
+            if name != "absolute" and (not math.isfinite(value) or value < 0):
+                self.fail(field + ((_ARC_FORMS.get(name) or _VALUE_FORMS[name]),),
+                          f"must be a finite number, zero or more, got {value!r}")
+                return None
+        low = high = None
+        if acc.from_ is not None or acc.to is not None:
+            if not ac:
+                self.fail(field, "frequency bands ('from', 'to') are for AC ranges only")
+                return None
+            low = self.quantity(field + ("from",), acc.from_, "Hz", positive=True)
+            high = self.quantity(field + ("to",), acc.to, "Hz", positive=True)
+            if low is None or high is None:
+                if acc.from_ is None or acc.to is None:
+                    self.fail(field, "a frequency band needs both 'from' and 'to'")
+                return None
+            if high < low:
+                self.fail(field + ("to",), "the band's upper frequency is below its lower one")
+                return None
+        elif listed and len(self.rng.accuracy) > 1:
+            self.fail(field, "with several accuracy statements, each needs its band ('from', 'to')")
+            return None
+        if arc_forms:
+            name = arc_forms[0]
+            value = float(given[name])
+            statement = {"percent_of_full_scale": lambda: tolerance.PercentOfFullScale(percent=value),
+                         "class_index": lambda: tolerance.ClassIndex(index=value),
+                         "degrees": lambda: tolerance.DegreesOfArc(degrees=value),
+                         "percent_of_length": lambda: tolerance.PercentOfLength(percent=value)}[name]()
+        else:
+            absolute = self.quantity(field + ("absolute",), acc.absolute, self.unit, positive=True)
+            if acc.absolute is not None and absolute is None:
+                return None
+            statement = tolerance.ValueStatement(reading=float(acc.percent_of_reading or 0),
+                                                 range=float(acc.percent_of_range or 0),
+                                                 counts=float(acc.counts or 0),
+                                                 absolute=absolute or 0.0)
+        return Band(statement=statement, low_hz=low, high_hz=high, text=describe_accuracy(acc))
+
+    def _points(self, ac: bool, range_freq, full_scale, bands: list[Band]) -> list[tuple[float, float | None]]:
+        points = []
+        for i, item in enumerate(self.rng.points):
+            field = ("points", i)
+            at = item.at if hasattr(item, "at") else item
+            freq_text = getattr(item, "frequency", None)
+            nominal = self.quantity(field + (("at",) if hasattr(item, "at") else ()), at, self.unit)
+            freq = self.quantity(field + ("frequency",), freq_text, "Hz", positive=True, allow_zero=False)
+            if nominal is None or (freq_text is not None and freq is None):
+                continue
+            if freq_text is not None and not ac:
+                self.fail(field + ("frequency",), f"a {self.rng.function} point takes no frequency")
+                continue
+            freq = freq if freq is not None else range_freq
+            if ac and freq is None:
+                self.fail(field, "an AC point needs a frequency (give 'frequency' on the range or the point)")
+                continue
+            if self.rng.function == "resistance" and nominal < 0:
+                self.fail(field, f"a resistance cannot be negative, got {at!r}")
+                continue
+            if full_scale is not None and abs(nominal) > full_scale * (1 + 1e-12):
+                self.fail(field, f"{at!r} is beyond the full-scale value of the range")
+                continue
+            if ac and nominal < 0:
+                self.fail(field, f"an AC value is an rms magnitude and cannot be negative, got {at!r}")
+                continue
+            if bands and not any(b.covers(freq) for b in bands):
+                self.fail(field, f"no accuracy band of the range covers {freq:g} Hz")
+                continue
+            points.append((nominal, freq))
+        return points
+
+    def _check_statements(self, law, arc, full_scale, resolution, resolution_domain, bands) -> None:
+        ctx = tolerance.RangeContext(law=law, arc=arc, full_scale=full_scale,
+                                     count=resolution if resolution_domain == "value" else None)
+        for band in bands:
+            try:
+                band.statement.half_width(full_scale or 1.0, ctx)
+            except ValueError as exc:
+                self.fail(("accuracy",), str(exc))
+
+
+def describe_accuracy(acc: Accuracy) -> str:
+    """The accuracy statement in words, as printed on the certificate."""
+    parts = []
+    if acc.percent_of_full_scale is not None:
+        parts.append(f"{acc.percent_of_full_scale:g} % of full scale")
+    if acc.class_index is not None:
+        parts.append(f"class {acc.class_index:g}")
+    if acc.degrees is not None:
+        parts.append(f"{acc.degrees:g}° of arc")
+    if acc.percent_of_length is not None:
+        parts.append(f"{acc.percent_of_length:g} % of scale length")
+    if acc.percent_of_reading is not None:
+        parts.append(f"{acc.percent_of_reading:g} % of reading")
+    if acc.percent_of_range is not None:
+        parts.append(f"{acc.percent_of_range:g} % of range")
+    if acc.counts is not None:
+        parts.append(f"{acc.counts:g} counts")
+    if acc.absolute is not None:
+        parts.append(f"{acc.absolute}")
+    text = "± (" + " + ".join(parts) + ")" if len(parts) > 1 else "± " + parts[0] if parts else ""
+    if acc.from_ is not None:
+        text += f", {acc.from_} to {acc.to}"
+    return text

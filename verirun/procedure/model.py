@@ -1,0 +1,118 @@
+"""Validated models of a procedure file.
+
+The structure is checked by pydantic (unknown keys refused, every model frozen); quantities are
+kept as written (``"10 V"``) and turned into SI floats by :mod:`verirun.procedure.load`, which
+knows each range's function and so the unit each quantity must carry.
+"""
+
+from __future__ import annotations
+
+from typing import Literal, Union
+
+from pydantic import BaseModel, ConfigDict, Field, StrictFloat, StrictInt, StrictStr, field_validator
+
+Number = Union[StrictInt, StrictFloat]
+QuantityText = Union[StrictStr, StrictInt, StrictFloat]
+
+FUNCTIONS = ("dc-voltage", "dc-current", "ac-voltage", "ac-current", "resistance")
+Function = Literal["dc-voltage", "dc-current", "ac-voltage", "ac-current", "resistance"]
+
+#: The unit each function's values are in.
+FUNCTION_UNITS = {"dc-voltage": "V", "dc-current": "A", "ac-voltage": "V", "ac-current": "A",
+                  "resistance": "Ω"}
+FUNCTION_NAMES = {"dc-voltage": "DC voltage", "dc-current": "DC current", "ac-voltage": "AC voltage",
+                  "ac-current": "AC current", "resistance": "resistance"}
+
+ScaleName = Literal["linear", "series-ohms", "shunt-ohms"]
+
+
+def _hyphens(name: str) -> str:
+    return name.replace("_", "-")
+
+
+class Strict(BaseModel):
+    """Base of every file model: frozen, unknown keys refused, keys written with hyphens."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True, alias_generator=_hyphens,
+                              populate_by_name=False)
+
+
+class Accuracy(Strict):
+    """One accuracy statement. Give exactly one of the arc or full-scale forms, or any sum of the
+    value forms (percent of reading, percent of range, counts, absolute)."""
+
+    percent_of_full_scale: Number | None = None
+    class_index: Number | None = Field(default=None, alias="class")
+    degrees: Number | None = None
+    percent_of_length: Number | None = None
+    percent_of_reading: Number | None = None
+    percent_of_range: Number | None = None
+    counts: Number | None = None
+    absolute: QuantityText | None = None
+    #: For a band of an AC range: lowest and highest frequency it applies to.
+    from_: QuantityText | None = Field(default=None, alias="from")
+    to: QuantityText | None = None
+
+
+class Point(Strict):
+    """A test point written out in full: the nominal value and, for AC, its frequency."""
+
+    at: QuantityText
+    frequency: QuantityText | None = None
+
+
+class Range(Strict):
+    """One range of the meter under test."""
+
+    id: StrictStr
+    function: Function
+    scale: ScaleName = "linear"
+    full_scale: QuantityText | None = None
+    centre: QuantityText | None = None
+    battery: QuantityText | None = None
+    arc: QuantityText | None = None
+    accuracy: Accuracy | list[Accuracy]
+    resolution: QuantityText | None = None
+    frequency: QuantityText | None = None
+    read_on: StrictStr | None = None
+    connect: StrictStr | None = None
+    points: list[QuantityText | Point] = Field(min_length=1)
+
+    @field_validator("id")
+    @classmethod
+    def _id_is_plain(cls, value: str) -> str:
+        if not value or not all(c.isalnum() or c in "-_." for c in value):
+            raise ValueError(f"{value!r}: use letters, digits, '-', '_' or '.' only")
+        return value
+
+
+class Identity(Strict):
+    """What the procedure is: its id, title and revision."""
+
+    id: StrictStr
+    title: StrictStr
+    revision: StrictStr | StrictInt
+
+
+class Meter(Strict):
+    """The kind of meter the procedure verifies."""
+
+    kind: StrictStr
+    maker: StrictStr | None = None
+    model: StrictStr | None = None
+
+
+class Decision(Strict):
+    """The decision rule, stated before the run (ISO/IEC 17025 7.1.3)."""
+
+    rule: Literal["simple"] = "simple"
+
+
+class ProcedureFile(Strict):
+    """A whole procedure file."""
+
+    format: StrictInt
+    procedure: Identity
+    meter: Meter
+    decision: Decision = Decision()
+    ranges: list[Range] = Field(min_length=1)

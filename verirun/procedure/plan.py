@@ -1,0 +1,77 @@
+"""The plan of a run: the ordered test points of a procedure, with every window worked out.
+
+Planning touches no instrument. A dry run iterates the plan; a limit check walks it; the engine
+executes it. Every number a point carries comes from the pure metrology functions.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from verirun.metrology import tolerance
+from verirun.procedure.load import Procedure, ResolvedRange
+from verirun.procedure.model import FUNCTION_NAMES
+from verirun.units import format_quantity
+
+
+@dataclass(frozen=True, kw_only=True)
+class TestPoint:
+    """One step of a run: a stimulus to apply and the window the reading must fall in."""
+
+    __test__ = False  # not a pytest test class
+
+    index: int                 # 0-based position in the plan
+    total: int
+    range: ResolvedRange
+    nominal: float
+    frequency: float | None
+    window: tolerance.Window
+    accuracy_text: str
+    first_of_range: bool
+
+    @property
+    def key(self) -> str:
+        """Stable identity of the point within its procedure: ``range-id@nominal[@frequency]``."""
+        text = f"{self.range.id}@{self.nominal!r}"
+        return text + (f"@{self.frequency!r}Hz" if self.frequency is not None else "")
+
+    @property
+    def function(self) -> str:
+        return self.range.function
+
+    @property
+    def unit(self) -> str:
+        return self.range.unit
+
+    def stimulus_text(self) -> str:
+        """The stimulus in words: ``"5 V DC"``, ``"10 V AC at 50 Hz"``, ``"12 Ω"``."""
+        text = format_quantity(self.nominal, self.unit)
+        if self.function.startswith("dc-"):
+            text += " DC"
+        elif self.function.startswith("ac-"):
+            text += f" AC at {format_quantity(self.frequency, 'Hz')}"
+        return text
+
+    def range_text(self) -> str:
+        """The range in words: ``"dcv-10 (DC voltage, 10 V full scale)"``."""
+        rng = self.range
+        if rng.full_scale is not None and rng.law.name == "linear":
+            detail = f"{format_quantity(rng.full_scale, rng.unit)} full scale"
+        else:
+            detail = f"centre scale {format_quantity(rng.law.centre, 'Ω')}"
+        return f"{rng.id} ({FUNCTION_NAMES[rng.function]}, {detail})"
+
+
+def plan(procedure: Procedure) -> list[TestPoint]:
+    """Every test point of ``procedure`` in order, each with its allowable window."""
+    items = [(rng, nominal, freq) for rng in procedure.ranges for nominal, freq in rng.points]
+    points = []
+    previous = None
+    for index, (rng, nominal, freq) in enumerate(items):
+        band = rng.band_at(freq)
+        win = tolerance.window(band.statement, nominal, rng.context)
+        points.append(TestPoint(index=index, total=len(items), range=rng, nominal=nominal,
+                                frequency=freq, window=win, accuracy_text=band.text,
+                                first_of_range=rng is not previous))
+        previous = rng
+    return points

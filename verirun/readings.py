@@ -1,0 +1,219 @@
+"""Where readings of the meter under test come from: the operator, a file, or a virtual meter.
+
+All three answer one call, ``take(point) -> Entry``. The console asks a person (see
+:mod:`verirun.console`); :class:`ScriptedReadings` replays a CSV file for reproducible dry runs
+and tests; :class:`VirtualMeter` models a meter with small invented errors for the demo.
+"""
+
+from __future__ import annotations
+
+import csv
+import math
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Literal, Protocol
+
+from verirun import yamlfile
+from verirun.errors import ProcedureError, UnitError
+from verirun.metrology import scales
+from verirun.procedure.model import QuantityText, Strict
+from verirun.procedure.plan import TestPoint
+from verirun.units import format_quantity, parse_quantity, parse_value
+
+EntryKind = Literal["reading", "repeat", "skip", "note", "abort"]
+
+#: Words the operator may type at the prompt instead of a reading.
+COMMANDS = {
+    "repeat": "apply the stimulus again and read again",
+    "skip": "skip this point; give the reason after the word (skip lead broken)",
+    "note": "add a note to the record (note pointer sticks at 3 V)",
+    "abort": "stop the run now; the output goes to standby and the run can be resumed",
+}
+
+
+@dataclass(frozen=True, kw_only=True)
+class Entry:
+    """What came back for one point: a reading, or one of the operator's commands."""
+
+    kind: EntryKind
+    typed: str
+    value: float | None = None
+    text: str | None = None
+
+
+class ReadingSource(Protocol):
+    """Anything that can give the reading of the meter under test at a test point."""
+
+    #: True when a person answers (hazardous-live confirmations are asked of them).
+    interactive: bool
+
+    def take(self, point: TestPoint) -> Entry:
+        """The reading (or operator command) for ``point``."""
+
+
+def parse_entry(typed: str, point: TestPoint) -> Entry:
+    """Turn what was typed at ``point`` into an :class:`Entry`.
+
+    A bare number is in the range's unit; a unit may be given (``"4.9 V"``, ``"250 mA"``).
+
+    Raises
+    ------
+    UnitError
+        With the reason: not a number, decimal comma, wrong unit, or beyond the scale's ends.
+    """
+    text = typed.strip()
+    word, _, rest = text.partition(" ")
+    if word.lower() in COMMANDS:
+        kind = word.lower()
+        rest = rest.strip()
+        if kind in ("skip", "note") and not rest:
+            raise UnitError(f"give the {'reason' if kind == 'skip' else 'note'} after '{kind}'")
+        return Entry(kind=kind, typed=typed, text=rest or None)
+    value, _ = parse_quantity(text, point.unit)
+    _check_on_scale(value, point)
+    return Entry(kind="reading", typed=typed, value=value)
+
+
+#: How far past either end of a linear scale, as a fraction of its length, a reading is accepted.
+OVERTRAVEL = 0.05
+
+
+def _check_on_scale(value: float, point: TestPoint) -> None:
+    law = point.range.law
+    if isinstance(law, scales.Linear):
+        # A pointer a little past an end can still be read against the last division; one
+        # further out than OVERTRAVEL of the scale length is on its stop and cannot be.
+        low, high = sorted((law.low, law.high))
+        margin = OVERTRAVEL * (high - low)
+        if not low - margin <= value <= high + margin:
+            raise UnitError(f"{format_quantity(value, point.unit)} is beyond the ends of the scale"
+                            f" ({format_quantity(low, point.unit)} to {format_quantity(high, point.unit)})")
+    elif value < 0:
+        raise UnitError("a resistance reading cannot be below zero")
+
+
+class ScriptedReadings:
+    """Readings replayed from a CSV file with columns ``range``, ``at`` and ``reading``.
+
+    ``at`` is the nominal value of the point (with or without its unit); ``reading`` is exactly
+    what an operator would type, operator commands included. Rows are matched to points by range
+    and nominal, so the file need not follow the procedure's order.
+    """
+
+    interactive = False
+
+    def __init__(self, path: str | Path):
+        self.path = Path(path)
+        self._rows: dict[tuple[str, str], list[tuple[int, str]]] = {}
+        self._raw: list[tuple[int, str, str, str]] = []
+        try:
+            with open(self.path, newline="", encoding="utf-8") as fh:
+                reader = csv.DictReader(fh)
+                missing = {"range", "at", "reading"} - set(reader.fieldnames or [])
+                if missing:
+                    raise ProcedureError(f"{self.path}:1: missing column(s) {', '.join(sorted(missing))}"
+                                         " (need range, at, reading)")
+                for row in reader:
+                    self._raw.append((reader.line_num, row["range"].strip(), row["at"].strip(),
+                                      row["reading"] or ""))
+        except FileNotFoundError:
+            raise ProcedureError(f"{self.path}: no such file") from None
+        except (OSError, UnicodeDecodeError, csv.Error) as exc:
+            raise ProcedureError(f"{self.path}: cannot read: {exc}") from None
+        self._queues: dict[tuple[str, float], list[tuple[int, str]]] = {}
+        self._unit_problems: list[str] = []
+
+    def _queue(self, point: TestPoint) -> list[tuple[int, str]]:
+        key = (point.range.id, point.nominal)
+        if key not in self._queues:
+            rows = []
+            for line, rng, at, reading in self._raw:
+                if rng != point.range.id:
+                    continue
+                try:
+                    nominal = parse_value(at, point.unit)
+                except UnitError as exc:
+                    raise ProcedureError(f"{self.path}:{line}: at: {exc}") from None
+                if math.isclose(nominal, point.nominal, rel_tol=1e-9, abs_tol=1e-15):
+                    rows.append((line, reading))
+            self._queues[key] = rows
+        return self._queues[key]
+
+    def take(self, point: TestPoint) -> Entry:
+        """The next scripted entry for ``point``.
+
+        Raises
+        ------
+        ProcedureError
+            If the file has no (more) rows for the point, or a row does not parse.
+        """
+        queue = self._queue(point)
+        if not queue:
+            raise ProcedureError(f"{self.path}: no reading for range {point.range.id} at"
+                                 f" {format_quantity(point.nominal, point.unit)}")
+        line, typed = queue.pop(0)
+        try:
+            return parse_entry(typed, point)
+        except UnitError as exc:
+            raise ProcedureError(f"{self.path}:{line}: reading: {exc}") from None
+
+
+class MeterRangeModel(Strict):
+    """The invented errors of one range of a virtual meter."""
+
+    gain: float = 1.0
+    offset: QuantityText = 0
+    centre: QuantityText | None = None
+
+
+class VirtualMeterFile(Strict):
+    """A virtual meter file: a model of a meter under test with small invented errors."""
+
+    format: int
+    meter: str
+    ranges: dict[str, MeterRangeModel]
+
+
+class VirtualMeter:
+    """A model of a meter under test: what its pointer would show, read to its resolution.
+
+    A linear range shows ``gain * x + offset``. An ohms range whose real centre-scale value
+    differs from the marked one deflects by the real law and is read on the marked scale.
+    Readings are rounded to the range's resolution (in the value or along the arc), as a
+    careful operator would read them.
+    """
+
+    interactive = False
+
+    def __init__(self, path: str | Path):
+        located = yamlfile.load_file(path)
+        yamlfile.check_format(located, 1, "virtual meter")
+        self.model = yamlfile.validate(VirtualMeterFile, located)
+        self._located = located
+
+    def shown(self, point: TestPoint) -> float:
+        """The value the pointer shows at ``point`` before reading to resolution."""
+        rng = point.range
+        model = self.model.ranges.get(rng.id, MeterRangeModel())
+        law = rng.law
+        if isinstance(law, scales.Linear):
+            offset = parse_value(model.offset, rng.unit)
+            return model.gain * point.nominal + offset
+        real_centre = parse_value(model.centre, "Ω") if model.centre is not None else law.centre
+        real = scales.make_law(law.name, centre=real_centre)
+        return law.value(real.fraction(point.nominal))
+
+    def take(self, point: TestPoint) -> Entry:
+        """The reading at ``point``, formatted as an operator would type it."""
+        value = self.shown(point)
+        rng = point.range
+        if rng.resolution:
+            if rng.resolution_domain == "deg" and rng.arc:
+                step = rng.resolution / rng.arc
+                value = rng.law.value(round(rng.law.fraction(value) / step) * step)
+            else:
+                value = round(value / rng.resolution) * rng.resolution
+        if math.isinf(value):
+            raise ProcedureError(f"virtual meter: the pointer of {rng.id} sits at infinity")
+        typed = format_quantity(value, rng.unit, digits=4)
+        return parse_entry(typed, point)

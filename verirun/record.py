@@ -1,0 +1,188 @@
+"""The journal of a run and the run record it closes into.
+
+The journal is append-only JSON Lines: one document per line (``start``, ``observation``,
+``skip``, ``note``, ``stop``), each line flushed and fsynced before the run goes on, each carrying
+its sequence number and the SHA-256 of the line before it so that an edit, a gap or a reordering
+shows. The run record is the closed journal made whole: the start document's context, every
+point's stimulus, reading, window and verdict (worked out again from the procedure text the
+journal embeds, by the same pure functions the run used), and the end of the run.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Iterable
+
+from verirun.errors import RecordError
+
+#: Version of the run record layout.
+RECORD_FORMAT = 1
+JOURNAL_NAME = "journal.jsonl"
+RECORD_NAME = "record.json"
+GENESIS = "0" * 64
+
+
+def dumps(doc: Any) -> str:
+    """Canonical JSON: sorted keys, no NaN, UTF-8 text kept as is; the same data, the same bytes."""
+    return json.dumps(doc, sort_keys=True, ensure_ascii=False, allow_nan=False, separators=(",", ":"))
+
+
+def line_hash(line: str) -> str:
+    """SHA-256 of one journal line (without its newline)."""
+    return hashlib.sha256(line.encode("utf-8")).hexdigest()
+
+
+class Journal:
+    """An append-only journal file; every :meth:`append` is on disk before it returns.
+
+    Parameters
+    ----------
+    path
+        The journal file. Appending to an existing journal (a resumed run) continues its chain.
+    """
+
+    def __init__(self, path: str | Path):
+        self.path = Path(path)
+        self._seq = 0
+        self._prev = GENESIS
+        if self.path.exists():
+            docs = read_journal(self.path).documents
+            if docs:
+                self._seq = docs[-1]["seq"] + 1
+                self._prev = line_hash(dumps(docs[-1]))
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        self._file = open(self.path, "a", encoding="utf-8", newline="\n")
+
+    def append(self, doc: dict) -> dict:
+        """Write ``doc`` as one line with its sequence number and chain hash; fsync; return it."""
+        full = {**doc, "seq": self._seq, "prev": self._prev}
+        line = dumps(full)
+        self._file.write(line + "\n")
+        self._file.flush()
+        os.fsync(self._file.fileno())
+        self._seq += 1
+        self._prev = line_hash(line)
+        return full
+
+    def close(self) -> None:
+        """Close the file (every line is already on disk)."""
+        if not self._file.closed:
+            self._file.close()
+
+    def __enter__(self) -> "Journal":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+
+@dataclass
+class JournalRead:
+    """The documents of a journal, and whether a torn last line was dropped."""
+
+    documents: list[dict]
+    torn_line: str | None = None
+    problems: list[str] = field(default_factory=list)
+
+
+def read_journal(path: str | Path) -> JournalRead:
+    """Read a journal; a torn (unterminated, unparsable) last line is dropped and reported.
+
+    Raises
+    ------
+    RecordError
+        If the file is missing or a line other than the last is not a JSON document.
+    """
+    path = Path(path)
+    try:
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise RecordError(f"{path}: cannot read the journal: {exc.strerror or exc}") from None
+    text = raw.decode("utf-8", errors="replace")
+    lines = text.split("\n")
+    torn = None
+    if lines and lines[-1] == "":
+        lines.pop()
+    elif lines:
+        # The last line has no newline: the write was cut. Keep it only if it is whole.
+        try:
+            json.loads(lines[-1])
+        except ValueError:
+            torn = lines.pop()
+    docs = []
+    for number, line in enumerate(lines, start=1):
+        try:
+            doc = json.loads(line)
+        except ValueError:
+            raise RecordError(f"{path}:{number}: not a journal document (the file is damaged)") from None
+        if not isinstance(doc, dict) or "kind" not in doc or "seq" not in doc:
+            raise RecordError(f"{path}:{number}: not a journal document (no kind or seq)")
+        docs.append(doc)
+    return JournalRead(documents=docs, torn_line=torn)
+
+
+def verify_chain(documents: Iterable[dict], source: str = "journal") -> list[str]:
+    """Every break of the sequence or hash chain, one line each (empty when the chain is whole)."""
+    problems = []
+    prev = GENESIS
+    for expected_seq, doc in enumerate(documents):
+        if doc.get("seq") != expected_seq:
+            problems.append(f"{source}: document {expected_seq + 1} has sequence number"
+                            f" {doc.get('seq')!r}, expected {expected_seq} (missing or reordered)")
+        if doc.get("prev") != prev:
+            problems.append(f"{source}: document {expected_seq + 1} ({doc.get('kind')}) does not follow"
+                            f" the one before it (edited, missing or reordered)")
+        prev = line_hash(dumps(doc))
+    return problems
+
+
+def json_number(value: float | None) -> float | None:
+    """A float for JSON: infinities (an unbounded limit) become ``None``."""
+    if value is None or (isinstance(value, float) and math.isinf(value)):
+        return None
+    return value
+
+
+def write_record(record: dict, path: str | Path) -> Path:
+    """Write a run record atomically (temporary file, fsync, rename)."""
+    path = Path(path)
+    tmp = path.with_suffix(".tmp")
+    with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
+        fh.write(json.dumps(record, sort_keys=True, ensure_ascii=False, allow_nan=False, indent=1))
+        fh.write("\n")
+        fh.flush()
+        os.fsync(fh.fileno())
+    os.replace(tmp, path)
+    return path
+
+
+def load_record(path: str | Path) -> dict:
+    """Load a run record from its file or from its run folder.
+
+    Raises
+    ------
+    RecordError
+        If it is missing, not JSON, or not a run record this verirun reads.
+    """
+    path = Path(path)
+    if path.is_dir():
+        path = path / RECORD_NAME
+    try:
+        record = json.loads(path.read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        raise RecordError(f"{path}: no run record here (is the run finished? try 'verirun resume')") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise RecordError(f"{path}: cannot read: {exc}") from None
+    except ValueError as exc:
+        raise RecordError(f"{path}: not a run record (not valid JSON: {exc})") from None
+    if not isinstance(record, dict) or "record_format" not in record:
+        raise RecordError(f"{path}: not a run record (no record_format)")
+    if not isinstance(record["record_format"], int) or record["record_format"] > RECORD_FORMAT:
+        raise RecordError(f"{path}: run record format {record['record_format']!r} is newer than this"
+                          f" verirun reads ({RECORD_FORMAT}); upgrade verirun")
+    return record

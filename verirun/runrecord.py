@@ -1,0 +1,119 @@
+"""Close a journal into a run record: the whole run, every point evaluated, in one document.
+
+The points are evaluated again from the procedure text embedded in the journal's start document,
+by the same functions the run used, so a record built today and one rebuilt in ten years from
+the same journal are the same.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from verirun.errors import ProcedureError, RecordError
+from verirun.evaluation import evaluate
+from verirun.procedure.load import load_procedure_text
+from verirun.procedure.plan import plan
+from verirun.procedure.model import FUNCTION_NAMES
+from verirun.record import RECORD_FORMAT, JOURNAL_NAME, json_number, read_journal, verify_chain
+from verirun.units import format_quantity
+
+
+def build_record(documents: list[dict], source: str = "journal") -> dict:
+    """The run record of a journal's ``documents``.
+
+    Raises
+    ------
+    RecordError
+        If the journal does not start with a start document, its chain is broken, or it names
+        points its own procedure does not have.
+    """
+    if not documents or documents[0].get("kind") != "start":
+        raise RecordError(f"{source}: the journal does not begin with a start document")
+    problems = verify_chain(documents, source)
+    if problems:
+        raise RecordError("\n".join(problems))
+    start = documents[0]
+    try:
+        procedure = load_procedure_text(start["procedure"]["text"], start["procedure"]["source"])
+    except ProcedureError as exc:
+        raise RecordError(f"{source}: the procedure stored in the journal does not load: {exc}") from None
+    points = {p.key: p for p in plan(procedure)}
+    entries: dict[str, dict] = {}
+    notes = []
+    stop = None
+    for doc in documents[1:]:
+        kind = doc["kind"]
+        if kind in ("observation", "skip"):
+            if doc["point"] not in points:
+                raise RecordError(f"{source}: document {doc['seq']} names point {doc['point']!r},"
+                                  " which the procedure does not have")
+            entries[doc["point"]] = doc  # a later entry for the same point supersedes
+        elif kind == "note":
+            notes.append({"time": doc["time"], "point": doc.get("point"), "text": doc["text"]})
+        elif kind == "stop":
+            stop = doc
+    rows = []
+    for key, point in points.items():
+        doc = entries.get(key)
+        rows.append(_row(point, doc))
+    counts = {"points": len(rows), "pass": 0, "fail": 0, "skipped": 0, "not-measured": 0}
+    for row in rows:
+        counts[row["verdict"]] = counts.get(row["verdict"], 0) + 1
+    status = stop["status"] if stop else "resumable"
+    if status == "complete" and counts["not-measured"]:
+        status = "incomplete"
+    overall = ("fail" if counts["fail"] else "pass") if counts["pass"] + counts["fail"] else "none"
+    return {
+        "record_format": RECORD_FORMAT,
+        "run": {"uid": start["uid"], "started": start["time"], "ended": stop["time"] if stop else None,
+                "status": status, "reason": stop.get("reason") if stop else None,
+                "operator": start["operator"], "software": start["software"],
+                "journal_sha256_last": documents[-1]["prev"] if documents else None,
+                "documents": len(documents)},
+        "lab": start["lab"], "customer": start["customer"], "item": start["item"],
+        "environment": start.get("environment", {}),
+        "procedure": start["procedure"], "bench": start["bench"],
+        "meter": procedure.file.meter.model_dump(by_alias=True, exclude_none=True),
+        "decision_rule": {"rule": procedure.file.decision.rule,
+                          "statement": "Simple acceptance: a result passes when the reading lies"
+                                       " within the tolerance limits, limits included; the"
+                                       " measurement uncertainty is not taken into account."},
+        "ranges": [_range(rng) for rng in procedure.ranges],
+        "points": rows,
+        "notes": notes,
+        "summary": {**counts, "overall": overall},
+    }
+
+
+def _range(rng) -> dict:
+    return {"id": rng.id, "function": rng.function, "function_name": FUNCTION_NAMES[rng.function],
+            "unit": rng.unit, "scale": rng.law.name,
+            "full_scale": rng.full_scale, "centre": getattr(rng.law, "centre", None), "arc": rng.arc,
+            "accuracy": [b.text for b in rng.bands], "read_on": rng.read_on}
+
+
+def _row(point, doc: dict | None) -> dict:
+    win = point.window
+    row = {"index": point.index, "key": point.key, "range": point.range.id, "unit": point.unit,
+           "nominal": point.nominal, "frequency": point.frequency, "stimulus": point.stimulus_text(),
+           "low": json_number(win.low), "high": json_number(win.high), "domain": win.domain,
+           "half_width": win.half_width, "accuracy": point.accuracy_text,
+           "limits_text": f"{format_quantity(win.low, point.unit)} to {format_quantity(win.high, point.unit)}"}
+    if doc is None:
+        return {**row, "verdict": "not-measured", "reading": None, "typed": None, "time": None}
+    if doc["kind"] == "skip":
+        return {**row, "verdict": "skipped", "reading": None, "typed": None, "time": doc["time"],
+                "skip_reason": doc["reason"]}
+    result = evaluate(point, doc["reading"])
+    return {**row, "verdict": result.verdict, "reading": doc["reading"], "typed": doc["typed"],
+            "time": doc["time"], "error": result.error, "error_unit": result.error_unit,
+            "percent_of_tolerance": result.percent_of_tolerance}
+
+
+def build_record_from_journal(path: str | Path) -> dict:
+    """Read a journal file (or a run folder's journal) and build its run record."""
+    path = Path(path)
+    if path.is_dir():
+        path = path / JOURNAL_NAME
+    read = read_journal(path)
+    return build_record(read.documents, str(path))
