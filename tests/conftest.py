@@ -1,0 +1,31 @@
+"""Shared fixtures: the demo files, a fresh simulated calibrator per test."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parent.parent
+DATA = Path(__file__).resolve().parent / "data"
+DEMO = ROOT / "verirun" / "demo"
+
+
+@pytest.fixture
+def demo_procedure_path() -> Path:
+    return DEMO / "qm40-analog-multimeter.yaml"
+
+
+@pytest.fixture
+def demo_bench_path() -> Path:
+    return DEMO / "bench-sim.yaml"
+
+
+@pytest.fixture
+def demo_lab_path() -> Path:
+    return DEMO / "lab.yaml"
+
+
+@pytest.fixture
+def data_dir() -> Path:
+    return DATA
