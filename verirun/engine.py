@@ -147,7 +147,8 @@ class Engine:
         expected = self.bench.file.calibrator.identity
         if not identity.startswith(expected):
             raise BenchError(f"the instrument is not the calibrator the bench file names: expected"
-                             f" an identity starting {expected!r}", command="*IDN?", answer=identity,
+                             f" an identity starting {expected!r}",
+                             command=self.calibrator.profile.commands.identify, answer=identity,
                              step="identify the calibrator")
         return identity
 

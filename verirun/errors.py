@@ -69,7 +69,7 @@ class BenchError(VerirunError, RuntimeError):
 
     def at_step(self, step: str) -> "BenchError":
         """Return the same error, naming the step of the run it happened in."""
-        return BenchError(self.message, step=step, command=self.command, answer=self.answer)
+        return type(self)(self.message, step=step, command=self.command, answer=self.answer)
 
 
 class SafetyError(BenchError):

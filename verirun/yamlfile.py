@@ -43,9 +43,15 @@ class LocatedData:
                 best = self.lines[candidate]
         return best
 
-    def problem(self, loc: Path_, message: str) -> str:
-        """Format one problem as ``file:line: field: message``."""
-        field = format_loc(loc, self)
+    def problem(self, loc: Path_, message: str, *, missing: bool = False) -> str:
+        """Format one problem as ``file:line: field: message``.
+
+        With ``missing``, the last part of ``loc`` names a key that is not in the file: it is
+        kept in the field so the message says which key to add.
+        """
+        field = format_loc(loc[:-1] if missing else loc, self)
+        if missing and loc and isinstance(loc[-1], str):
+            field = f"{field}.{loc[-1]}" if field else loc[-1]
         where = f"{self.source}:{self.line_of(loc)}"
         return f"{where}: {field}: {message}" if field else f"{where}: {message}"
 
@@ -151,7 +157,8 @@ def validate(model: type[M], located: LocatedData, *, context: dict | None = Non
                 message = "unknown key (check its spelling)"
             elif err["type"] == "missing":
                 message = "required, but missing"
-            problems.append(located.problem(tuple(err["loc"]), message))
+            problems.append(located.problem(tuple(err["loc"]), message,
+                                            missing=err["type"] == "missing"))
         raise ProcedureError(_unique(problems)) from None
 
 

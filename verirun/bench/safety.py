@@ -1,0 +1,127 @@
+"""Keeping the calibrator output safe: a guard around every use of it, and the hazard rule.
+
+A calibrator can source lethal voltage. :func:`output_guard` makes standby structural: whatever
+ends the block, the output is switched to standby and read back, and if that cannot be confirmed
+the operator is told to switch it off by hand.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterator
+from contextlib import contextmanager
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+from verirun.bench.profile import FUNCTIONS
+from verirun.errors import BenchError, SafetyError
+
+if TYPE_CHECKING:
+    from verirun.bench.calibrator import Calibrator
+
+_BY_HAND = "switch the calibrator output off by hand before touching the connections"
+
+
+@contextmanager
+def output_guard(calibrator: "Calibrator") -> Iterator["Calibrator"]:
+    """Leave the output in standby, verified by read-back, however the block ends.
+
+    Parameters
+    ----------
+    calibrator
+        The calibrator whose output the block may switch on.
+
+    Raises
+    ------
+    SafetyError
+        If standby cannot be sent or the read-back fails or still reads "on". When the block
+        itself raised (including ``KeyboardInterrupt``), that exception is the SafetyError's
+        ``__context__``; the standby failure, if any, is its ``__cause__``.
+    """
+    try:
+        yield calibrator
+    except BaseException:
+        _make_safe(calibrator)  # raising here keeps the block's exception as __context__
+        raise
+    _make_safe(calibrator)
+
+
+def _make_safe(calibrator: "Calibrator") -> None:
+    failure: BaseException | None = None
+    still_on = False
+    try:
+        calibrator.standby()
+        still_on = calibrator.output_is_on()
+    # A second Ctrl-C during standby leaves the state as unknown as any other failure does.
+    except (Exception, KeyboardInterrupt) as exc:
+        failure = exc
+    if failure is not None:
+        command = failure.command if isinstance(failure, BenchError) else None
+        answer = failure.answer if isinstance(failure, BenchError) else None
+        raise SafetyError(f"output state unknown: {_BY_HAND} (standby failed: {_reason(failure)})",
+                          command=command, answer=answer) from failure
+    if still_on:
+        raise SafetyError(f"output still reads on after standby: {_BY_HAND}",
+                          command=calibrator.profile.output_state.query)
+
+
+def _reason(exc: BaseException) -> str:
+    if isinstance(exc, BenchError):
+        return exc.message
+    if isinstance(exc, KeyboardInterrupt):
+        return "interrupted"
+    return str(exc) or type(exc).__name__
+
+
+@dataclass(frozen=True)
+class HazardLimits:
+    """Levels above which a voltage is hazardous live to touch.
+
+    The defaults are the hazardous-live levels of IEC 61010-1 for normal conditions.
+
+    Parameters
+    ----------
+    dc_volts
+        DC voltage limit, V.
+    ac_rms_volts
+        AC voltage limit, V rms.
+    ac_peak_volts
+        AC voltage limit, V peak.
+    """
+
+    dc_volts: float = 60.0
+    ac_rms_volts: float = 30.0
+    ac_peak_volts: float = 42.4
+
+    def __post_init__(self) -> None:
+        for name in ("dc_volts", "ac_rms_volts", "ac_peak_volts"):
+            value = getattr(self, name)
+            if isinstance(value, bool) or not isinstance(value, (int, float)) or not (
+                    math.isfinite(value) and value > 0):
+                raise ValueError(f"HazardLimits.{name} must be a positive finite number of volts,"
+                                 f" got {value!r}")
+
+
+def is_hazardous(function: str, value: float, limits: HazardLimits = HazardLimits()) -> bool:
+    """Tell whether sourcing ``value`` on ``function`` makes the terminals hazardous live.
+
+    Only voltage functions can be; a value at or above a limit is hazardous (the operator
+    confirms before the output goes on at the threshold itself, erring on the safe side). An AC value is an rms
+    sine level and is checked both as rms and as its peak, ``rms * sqrt(2)``. A value that is
+    not a finite number is treated as hazardous, since nothing is known about it.
+
+    Raises
+    ------
+    ValueError
+        If ``function`` is not one of the functions verirun knows.
+    """
+    if function not in FUNCTIONS:
+        raise ValueError(f"unknown function {function!r}; the functions are {', '.join(FUNCTIONS)}")
+    if function not in ("dc-voltage", "ac-voltage"):
+        return False
+    size = abs(float(value))
+    if not math.isfinite(size):
+        return True
+    if function == "dc-voltage":
+        return size >= limits.dc_volts
+    return size >= limits.ac_rms_volts or size * math.sqrt(2) >= limits.ac_peak_volts
