@@ -61,6 +61,11 @@ def _parser() -> argparse.ArgumentParser:
     spec.add_argument("--percent-length", type=float, metavar="PCT", help="± percent of scale length")
     spec.add_argument("--percent-reading", type=float, metavar="PCT", help="± percent of reading")
     window.add_argument("--at", required=True, help="the nominal value (e.g. 5, 5V, 12ohm)")
+    window.add_argument("--u-applied", help="standard uncertainty of the applied value (e.g. 0.0004, 40uV)")
+    window.add_argument("--resolution", help="the reading resolution (e.g. 0.05V; 0.5deg along the arc)")
+    window.add_argument("--rule", choices=["simple", "guarded", "non-binary", "risk"], default="simple",
+                        help="decision rule (guarded: w = U; risk: false-accept risk at most 2 %%)")
+    window.add_argument("--reading", help="a reading to decide on (e.g. 5.07, 5.07V)")
     window.add_argument("--json", action="store_true", help="print a JSON object")
 
     certify = sub.add_parser("certify", help="render certificates again from stored run records")
@@ -130,9 +135,9 @@ def _cmd_check(args) -> int:
 
 def _cmd_window(args) -> int:
     from verirun.errors import UnitError
-    from verirun.metrology import scales, tolerance
+    from verirun.metrology import decision, scales, tolerance, uncertainty
     from verirun.record import json_number
-    from verirun.units import format_quantity, parse_quantity, parse_value
+    from verirun.units import format_quantity, parse_quantity
 
     def quantity(name: str, text, expect=None):
         try:
@@ -146,9 +151,9 @@ def _cmd_window(args) -> int:
         if args.centre is None:
             raise UnitError(f"--centre: required for a {args.scale} scale")
         centre, _ = quantity("centre", args.centre, "Ω")
-        law = scales.make_law(args.scale, centre=centre) if centre > 0 else None
-        if law is None:
+        if centre <= 0:
             raise UnitError("--centre: must be more than zero")
+        law = scales.make_law(args.scale, centre=centre)
         full_scale = None
     else:
         if args.full_scale is None:
@@ -169,15 +174,52 @@ def _cmd_window(args) -> int:
         statement = tolerance.ValueStatement(reading=args.percent_reading)
     try:
         win = tolerance.window(statement, at, tolerance.RangeContext(law=law, arc=arc, full_scale=full_scale))
+        terms = []
+        if args.u_applied is not None:
+            u_applied = quantity("u-applied", args.u_applied, unit or None)[0]
+            terms.append(uncertainty.Term(name="applied value", standard_uncertainty=u_applied,
+                                          domain="value", distribution="normal"))
+        if args.resolution is not None:
+            text = args.resolution.strip()
+            in_degrees = text.endswith(("deg", "°"))
+            res = quantity("resolution", text, "deg" if in_degrees else (unit or None))[0]
+            if in_degrees and not arc:
+                raise UnitError("--resolution: a resolution in degrees needs --arc")
+            terms.append(uncertainty.readability_term(division=res, unit="degrees" if in_degrees else "value",
+                                                      arc=arc))
+        budget = uncertainty.budget(terms=terms, nominal=at, law=law, domain=win.domain)
+        rule = decision.rule_from_name(args.rule)
+        reading = quantity("reading", args.reading, unit or None)[0] if args.reading is not None else None
+        judged = decision.judge(rule, window=win, law=law, budget=budget,
+                                reading=reading if reading is not None else at)
     except ValueError as exc:
         raise UnitError(str(exc)) from None
+    accept = judged.acceptance
+    out = {"nominal": win.nominal, "low": json_number(win.low), "high": json_number(win.high),
+           "unit": unit, "domain": win.domain, "half_width": win.half_width,
+           "U": json_number(budget.expanded_value), "U_domain": budget.expanded, "k": budget.k,
+           "tur": json_number(judged.tur), "rule": rule.name,
+           "accept_low": json_number(accept[0]) if accept else None,
+           "accept_high": json_number(accept[1]) if accept else None}
+    if reading is not None:
+        out["reading"] = reading
+        out["verdict"] = judged.verdict
+        if rule.name == "risk" or args.json:
+            out["pc"] = judged.conformance
     if args.json:
-        print(json.dumps({"nominal": win.nominal, "low": json_number(win.low), "high": json_number(win.high),
-                          "unit": unit, "domain": win.domain, "half_width": win.half_width}))
-    else:
-        print(f"at {format_quantity(win.nominal, unit)}: {format_quantity(win.low, unit)} to"
-              f" {format_quantity(win.high, unit)}"
-              + (" (unbounded above)" if not win.bounded else ""))
+        print(json.dumps(out))
+        return EXIT_OK
+    print(f"at {format_quantity(win.nominal, unit)}: {format_quantity(win.low, unit)} to"
+          f" {format_quantity(win.high, unit)}" + (" (unbounded above)" if not win.bounded else ""))
+    if terms:
+        tur_text = f"{judged.tur:.2f}" if judged.tur is not None else "none (unbounded)"
+        print(f"U (k = 2) = {format_quantity(budget.expanded_value, unit, 2)}; TUR {tur_text}")
+    if rule.name != "simple":
+        print("acceptance: " + (f"{format_quantity(accept[0], unit)} to {format_quantity(accept[1], unit)}"
+                                if accept else "none (the uncertainty leaves no acceptance zone)"))
+    if reading is not None:
+        print(f"reading {format_quantity(reading, unit)}: {judged.verdict.upper()}"
+              f" (conformance probability {judged.conformance:.4f})")
     return EXIT_OK
 
 

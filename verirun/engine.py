@@ -107,7 +107,7 @@ class Engine:
         standby before the first point, between points, and whatever ends the run.
         """
         uid = uid or uuid_mod.uuid4().hex
-        points = plan(self.procedure)
+        points = plan(self.procedure, self.bench)
         cal = self.calibrator
         status, reason = "failed", "the run did not finish"
         try:

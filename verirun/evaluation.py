@@ -7,9 +7,10 @@ worked out one way only.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
-from verirun.metrology import tolerance
+from verirun.metrology import decision, tolerance
 from verirun.procedure.plan import TestPoint
 
 
@@ -17,8 +18,12 @@ from verirun.procedure.plan import TestPoint
 class Result:
     """The evaluation of one reading.
 
-    ``error`` is in ``error_unit``: the range's unit for a tolerance stated on the value, degrees
-    of arc for one stated in degrees, percent of scale length for one stated along the scale.
+    ``error`` and ``expanded`` are in ``error_unit``: the range's unit for a tolerance stated on
+    the value, degrees of arc for one stated in degrees, percent of scale length for one stated
+    along the scale. ``expanded_value`` is the expanded uncertainty carried into the range's
+    unit at the nominal; ``acceptance`` the acceptance limits in the range's unit (``None`` when
+    the rule leaves no acceptance zone). ``*_pct`` are percentages of the tolerance half-width,
+    measured from the nominal in the tolerance's own domain.
     """
 
     reading: float
@@ -26,19 +31,45 @@ class Result:
     error_unit: str
     percent_of_tolerance: float | None
     verdict: str
+    expanded: float
+    expanded_value: float
+    k: float
+    tur: float | None
+    conformance: float
+    acceptance: tuple[float, float] | None
+    expanded_pct: float | None
+    accept_low_pct: float | None
+    accept_high_pct: float | None
+
+
+def error_unit(point: TestPoint) -> tuple[str, float]:
+    """The unit errors at ``point`` are reported in, and the factor from the tolerance's domain."""
+    if point.window.domain == "value":
+        return point.unit, 1.0
+    if isinstance(point.range.band_at(point.frequency).statement, tolerance.DegreesOfArc):
+        return "deg", float(point.range.arc)
+    return "% of length", 100.0
 
 
 def evaluate(point: TestPoint, reading: float) -> Result:
-    """Evaluate ``reading`` at ``point`` by simple acceptance (limits included)."""
+    """Evaluate ``reading`` at ``point`` under the procedure's decision rule."""
     win = point.window
-    dev = tolerance.deviation(win, reading, point.range.law)
-    statement = point.range.band_at(point.frequency).statement
-    if win.domain == "value":
-        unit, factor = point.unit, 1.0
-    elif isinstance(statement, tolerance.DegreesOfArc):
-        unit, factor = "deg", float(point.range.arc)
-    else:
-        unit, factor = "% of length", 100.0
-    verdict = "pass" if win.contains(reading) else "fail"
+    law = point.range.law
+    dev = tolerance.deviation(win, reading, law)
+    unit, factor = error_unit(point)
+    judged = decision.judge(point.rule, window=win, law=law, budget=point.budget, reading=reading)
+    half = win.half_width
+    centre = win.nominal if win.domain == "value" else law.fraction(win.nominal)
+    zone = judged.outcome.acceptance
+
+    def pct(x: float) -> float | None:
+        return 100.0 * x / half if half > 0 and math.isfinite(x) else None
+
+    empty = zone.empty
     return Result(reading=reading, error=dev.error * factor, error_unit=unit,
-                  percent_of_tolerance=dev.percent_of_tolerance, verdict=verdict)
+                  percent_of_tolerance=dev.percent_of_tolerance, verdict=judged.verdict,
+                  expanded=point.budget.expanded * factor, expanded_value=point.budget.expanded_value,
+                  k=point.budget.k, tur=judged.tur, conformance=judged.conformance,
+                  acceptance=judged.acceptance, expanded_pct=pct(point.budget.expanded),
+                  accept_low_pct=None if empty else pct(zone.low - centre),
+                  accept_high_pct=None if empty else pct(zone.high - centre))

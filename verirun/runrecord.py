@@ -9,13 +9,15 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from verirun.bench.config import load_bench_text
 from verirun.errors import ProcedureError, RecordError
-from verirun.evaluation import evaluate
+from verirun.evaluation import Result, evaluate
+from verirun.metrology.uncertainty import round_result
 from verirun.procedure.load import load_procedure_text
 from verirun.procedure.plan import plan
 from verirun.procedure.model import FUNCTION_NAMES
 from verirun.record import RECORD_FORMAT, JOURNAL_NAME, json_number, read_journal, verify_chain
-from verirun.units import format_quantity
+from verirun.units import format_fixed, format_quantity
 
 
 def build_record(documents: list[dict], source: str = "journal") -> dict:
@@ -35,9 +37,10 @@ def build_record(documents: list[dict], source: str = "journal") -> dict:
     start = documents[0]
     try:
         procedure = load_procedure_text(start["procedure"]["text"], start["procedure"]["source"])
+        bench = load_bench_text(start["bench"]["text"], start["bench"]["source"])
     except ProcedureError as exc:
-        raise RecordError(f"{source}: the procedure stored in the journal does not load: {exc}") from None
-    points = {p.key: p for p in plan(procedure)}
+        raise RecordError(f"{source}: the procedure or bench stored in the journal does not load: {exc}") from None
+    points = {p.key: p for p in plan(procedure, bench)}
     entries: dict[str, dict] = {}
     notes = []
     stop = None
@@ -74,10 +77,8 @@ def build_record(documents: list[dict], source: str = "journal") -> dict:
         "environment": start.get("environment", {}),
         "procedure": start["procedure"], "bench": start["bench"],
         "meter": procedure.file.meter.model_dump(by_alias=True, exclude_none=True),
-        "decision_rule": {"rule": procedure.file.decision.rule,
-                          "statement": "Simple acceptance: a result passes when the reading lies"
-                                       " within the tolerance limits, limits included; the"
-                                       " measurement uncertainty is not taken into account."},
+        "decision_rule": {"rule": procedure.rule.name, "statement": procedure.rule.describe(),
+                          "parameters": procedure.file.decision.model_dump(by_alias=True, exclude_none=True)},
         "ranges": [_range(rng) for rng in procedure.ranges],
         "points": rows,
         "notes": notes,
@@ -107,7 +108,45 @@ def _row(point, doc: dict | None) -> dict:
     result = evaluate(point, doc["reading"])
     return {**row, "verdict": result.verdict, "reading": doc["reading"], "typed": doc["typed"],
             "time": doc["time"], "error": result.error, "error_unit": result.error_unit,
-            "percent_of_tolerance": result.percent_of_tolerance}
+            "percent_of_tolerance": result.percent_of_tolerance,
+            "U": json_number(result.expanded_value), "U_spec": result.expanded, "k": result.k,
+            "tur": json_number(result.tur), "conformance": result.conformance,
+            "accept_low": json_number(result.acceptance[0]) if result.acceptance else None,
+            "accept_high": json_number(result.acceptance[1]) if result.acceptance else None,
+            "U_pct": result.expanded_pct, "accept_low_pct": result.accept_low_pct,
+            "accept_high_pct": result.accept_high_pct,
+            "budget": [{"name": t.name, "u": t.standard_uncertainty, "domain": t.domain,
+                        "distribution": t.distribution, "contribution": c}
+                       for t, c in zip(point.budget.terms, point.budget.contributions)],
+            "reported": reported(point.unit, result)}
+
+
+def reported(unit: str, result: Result) -> dict:
+    """The reading, error and U as printed: U to two significant digits, the reading and the
+    error rounded to the same decimal place (GUM 7.2.6)."""
+    def spec_text(value: float, decimals: int | None) -> str:
+        if result.error_unit == "deg":
+            return f"{value:+.{max(decimals, 0)}f}°" if decimals is not None else f"{value:+.3g}°"
+        if result.error_unit == "% of length":
+            return f"{value:+.{max(decimals, 0)}f} %" if decimals is not None else f"{value:+.3g} %"
+        text = format_fixed(value, unit, decimals) if decimals is not None else format_quantity(value, unit)
+        return text if text.startswith("-") else "+" + text
+
+    import math
+
+    if math.isfinite(result.expanded_value) and result.expanded_value > 0:
+        value_round = round_result(value=result.reading, uncertainty=result.expanded_value)
+        reading_text = format_fixed(value_round.value, unit, value_round.decimals)
+        u_text = format_fixed(value_round.uncertainty, unit, value_round.decimals)
+    else:
+        reading_text, u_text = format_quantity(result.reading, unit), "—"
+    if result.expanded > 0:
+        err_round = round_result(value=result.error, uncertainty=result.expanded)
+        error_text = spec_text(err_round.value, err_round.decimals)
+        u_spec_text = spec_text(err_round.uncertainty, err_round.decimals).lstrip("+")
+    else:
+        error_text, u_spec_text = spec_text(result.error, None), "—"
+    return {"reading": reading_text, "U": u_text, "error": error_text, "U_spec": u_spec_text}
 
 
 def build_record_from_journal(path: str | Path) -> dict:

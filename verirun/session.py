@@ -14,7 +14,10 @@ from dataclasses import dataclass
 from importlib.resources import as_file, files
 from pathlib import Path
 
+from verirun import preflight
 from verirun.bench.config import Bench
+from verirun.bench.profile import load_profile
+from verirun.procedure.plan import plan
 from verirun.certificate.render import write_certificate
 from verirun.clock import SystemClock
 from verirun.engine import Engine, Outcome, RunContext
@@ -83,6 +86,8 @@ def execute(*, procedure: Procedure, bench: Bench, context: RunContext, readings
     """
     clock = clock or SystemClock()
     uid = uid or uuid_mod.uuid4().hex
+    profile = calibrator.profile if calibrator is not None else load_profile(bench.file.calibrator.profile)
+    preflight.check(plan(procedure, bench), bench, profile, today=clock.now().date())
     run_dir = Path(runs_dir) / run_folder_name(context.item.get("serial", "item"), uid, clock.now())
     run_dir.mkdir(parents=True, exist_ok=False)
     own_calibrator = calibrator is None

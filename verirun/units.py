@@ -129,6 +129,8 @@ def format_quantity(value: float | None, unit: str, digits: int = 6) -> str:
     """
     if value is None or math.isinf(value):
         return "∞" if value is None or value > 0 else "-∞"
+    if not unit:
+        return f"{value:.{digits}g}"
     if unit in _UNPREFIXED or value == 0:
         return f"{value:.{digits}g} {unit}".strip() if unit != "%" else f"{value:.{digits}g} %"
     magnitude = abs(value)

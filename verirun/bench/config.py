@@ -8,12 +8,13 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Literal
 
-from pydantic import StrictStr
+from pydantic import Field, StrictStr
 
 from verirun import yamlfile
 from verirun.errors import ProcedureError, UnitError
-from verirun.procedure.model import QuantityText, Strict
-from verirun.units import parse_value
+from verirun.metrology.uncertainty import CalibratorSpec
+from verirun.procedure.model import FUNCTION_UNITS, QuantityText, Strict
+from verirun.units import parse_quantity, parse_value
 
 #: The bench format version this verirun reads.
 FORMAT = 1
@@ -24,6 +25,24 @@ class BenchInfo(Strict):
 
     id: StrictStr
     location: StrictStr | None = None
+
+
+class AccuracyLine(Strict):
+    """One line of the calibrator's specification: ± (output + of-range + floor) on a range.
+
+    ``output`` and ``of-range`` are in ppm or % (``"10 ppm"``, ``"0.001 %"``); ``floor`` is in
+    the function's unit; ``level`` is the confidence level (``"99 %"``) or ``limits`` for bounds
+    with no stated level. For AC, ``from`` and ``to`` give the frequency band it holds for.
+    """
+
+    function: Literal["dc-voltage", "dc-current", "ac-voltage", "ac-current", "resistance"]
+    range: QuantityText
+    output: QuantityText = 0
+    of_range: QuantityText = 0
+    floor: QuantityText = 0
+    level: QuantityText
+    from_: QuantityText | None = Field(default=None, alias="from")
+    to: QuantityText | None = None
 
 
 class CalibratorInfo(Strict):
@@ -39,6 +58,7 @@ class CalibratorInfo(Strict):
     calibration_due: dt.date
     traceability: StrictStr | None = None
     timeout: QuantityText = "2 s"
+    accuracy: list[AccuracyLine] = []
 
 
 class SafetyInfo(Strict):
@@ -61,6 +81,26 @@ class BenchFile(Strict):
 
 
 @dataclass(frozen=True, kw_only=True)
+class SpecLine:
+    """A resolved line of the calibrator's specification."""
+
+    function: str
+    range: float
+    spec: CalibratorSpec
+    low_hz: float | None
+    high_hz: float | None
+    text: str
+
+    def covers(self, function: str, value: float, frequency: float | None) -> bool:
+        """True when this line holds for ``value`` (and ``frequency``) of ``function``."""
+        if function != self.function or abs(value) > self.range * (1 + 1e-12):
+            return False
+        if self.low_hz is None:
+            return True
+        return frequency is not None and self.low_hz <= frequency <= self.high_hz
+
+
+@dataclass(frozen=True, kw_only=True)
 class Bench:
     """A loaded bench file, with quantities in SI floats."""
 
@@ -72,10 +112,16 @@ class Bench:
     hazardous_dc: float
     hazardous_ac_rms: float
     hazardous_ac_peak: float
+    accuracy: tuple[SpecLine, ...] = ()
 
     @property
     def sha256(self) -> str:
         return hashlib.sha256(self.text.encode("utf-8")).hexdigest()
+
+    def spec_for(self, function: str, value: float, frequency: float | None) -> SpecLine | None:
+        """The specification line for applying ``value``: the smallest range that holds it."""
+        lines = [line for line in self.accuracy if line.covers(function, value, frequency)]
+        return min(lines, key=lambda line: line.range) if lines else None
 
 
 def load_bench(path: str | Path) -> Bench:
@@ -114,9 +160,76 @@ def _resolve(located: yamlfile.LocatedData) -> Bench:
     dc = quantity(("safety", "hazardous-dc"), model.safety.hazardous_dc, "V")
     rms = quantity(("safety", "hazardous-ac-rms"), model.safety.hazardous_ac_rms, "V")
     peak = quantity(("safety", "hazardous-ac-peak"), model.safety.hazardous_ac_peak, "V")
+    accuracy = []
+    for i, line in enumerate(model.calibrator.accuracy):
+        loc = ("calibrator", "accuracy", i)
+        unit = FUNCTION_UNITS[line.function]
+        before = len(problems)
+        rng = quantity(loc + ("range",), line.range, unit)
+        output = _ppm(located, loc + ("output",), line.output, problems)
+        of_range = _ppm(located, loc + ("of-range",), line.of_range, problems)
+        floor = quantity(loc + ("floor",), line.floor, unit)
+        level = _level(located, loc + ("level",), line.level, problems)
+        low = high = None
+        if line.from_ is not None or line.to is not None:
+            if not line.function.startswith("ac-") or line.from_ is None or line.to is None:
+                problems.append(located.problem(loc, "a frequency band needs both 'from' and 'to', on an AC function"))
+            else:
+                low = quantity(loc + ("from",), line.from_, "Hz")
+                high = quantity(loc + ("to",), line.to, "Hz")
+        if rng == 0 and len(problems) == before:
+            problems.append(located.problem(loc + ("range",), "must be more than zero"))
+        if len(problems) == before:
+            spec = CalibratorSpec(output_ppm=output, range_ppm=of_range, floor=floor, level=level)
+            accuracy.append(SpecLine(function=line.function, range=rng, spec=spec, low_hz=low, high_hz=high,
+                                     text=_spec_text(line)))
     if timeout == 0 and not problems:
         problems.append(located.problem(("calibrator", "timeout"), "must be more than zero"))
     if problems:
         raise ProcedureError(problems)
     return Bench(file=model, text=located.text, source=located.source, settle_s=settle,
-                 timeout_s=timeout, hazardous_dc=dc, hazardous_ac_rms=rms, hazardous_ac_peak=peak)
+                 timeout_s=timeout, hazardous_dc=dc, hazardous_ac_rms=rms, hazardous_ac_peak=peak,
+                 accuracy=tuple(accuracy))
+
+
+def _ppm(located, loc, text, problems) -> float:
+    """A relative term in ppm, given as ``"10 ppm"`` or ``"0.001 %"`` (a bare number is ppm)."""
+    try:
+        value, dimension = parse_quantity(text, None)
+    except UnitError as exc:
+        problems.append(located.problem(loc, str(exc)))
+        return 0.0
+    if dimension not in ("", "ppm", "%"):
+        problems.append(located.problem(loc, f"give ppm or % (e.g. 10 ppm), got {text!r}"))
+        return 0.0
+    if value < 0:
+        problems.append(located.problem(loc, f"must be zero or more, got {text!r}"))
+        return 0.0
+    return value * 1e4 if dimension == "%" else value
+
+
+def _level(located, loc, text, problems):
+    """A confidence level (``"99 %"`` -> 0.99) or ``"limits"``."""
+    if text == "limits":
+        return "limits"
+    try:
+        value = parse_value(text, "%")
+    except UnitError as exc:
+        problems.append(located.problem(loc, f"{exc}; give a level such as 95 % or 99 %, or limits"))
+        return "limits"
+    if not 0 < value < 100:
+        problems.append(located.problem(loc, f"a confidence level is between 0 and 100 %, got {text!r}"))
+        return "limits"
+    return value / 100.0
+
+
+def _spec_text(line: AccuracyLine) -> str:
+    labels = []
+    if str(line.output) not in ("0", "0.0"):
+        labels.append(f"{line.output} of output")
+    if str(line.of_range) not in ("0", "0.0"):
+        labels.append(f"{line.of_range} of range")
+    if str(line.floor) not in ("0", "0.0"):
+        labels.append(f"{line.floor}")
+    level = "limits" if line.level == "limits" else f"{line.level} confidence"
+    return f"± ({' + '.join(labels) or '0'}) on the {line.range} range, {level}"

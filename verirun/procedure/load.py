@@ -13,7 +13,7 @@ from pathlib import Path
 
 from verirun import yamlfile
 from verirun.errors import ProcedureError, UnitError
-from verirun.metrology import scales, tolerance
+from verirun.metrology import decision, scales, tolerance, uncertainty
 from verirun.procedure.model import FUNCTION_UNITS, Accuracy, ProcedureFile, Range
 from verirun.units import parse_value
 
@@ -59,6 +59,7 @@ class ResolvedRange:
     connect: str | None
     points: tuple[tuple[float, float | None], ...]  # (nominal, frequency)
     battery: float | None
+    extra_terms: tuple[uncertainty.Term, ...] = ()
 
     @property
     def context(self) -> tolerance.RangeContext:
@@ -81,6 +82,7 @@ class Procedure:
 
     file: ProcedureFile
     ranges: tuple[ResolvedRange, ...]
+    rule: decision.Rule
     text: str
     source: str
 
@@ -129,9 +131,40 @@ def _resolve(located: yamlfile.LocatedData) -> Procedure:
         resolved = _RangeResolver(located, loc, rng, problems).resolve()
         if resolved is not None:
             ranges.append(resolved)
+    rule = _rule(located, model, problems)
     if problems:
         raise ProcedureError(problems)
-    return Procedure(file=model, ranges=tuple(ranges), text=located.text, source=located.source)
+    return Procedure(file=model, ranges=tuple(ranges), rule=rule, text=located.text,
+                     source=located.source)
+
+
+def _rule(located: yamlfile.LocatedData, model: ProcedureFile, problems: list[str]) -> decision.Rule | None:
+    """The decision rule the procedure states, with its parameter checked where it is written."""
+    spec = model.decision
+    params: dict[str, float] = {}
+    if spec.guard_ratio is not None:
+        if spec.rule not in ("guarded", "non-binary"):
+            problems.append(located.problem(("decision", "guard-ratio"),
+                                            f"only the guarded and non-binary rules take a guard ratio,"
+                                            f" not {spec.rule}"))
+            return None
+        params["ratio"] = float(spec.guard_ratio)
+    if spec.risk_target is not None:
+        if spec.rule != "risk":
+            problems.append(located.problem(("decision", "risk-target"),
+                                            f"only the risk rule takes a risk target, not {spec.rule}"))
+            return None
+        try:
+            params["target"] = parse_value(spec.risk_target, "%") / 100.0
+        except UnitError as exc:
+            problems.append(located.problem(("decision", "risk-target"), str(exc)))
+            return None
+    try:
+        return decision.rule_from_name(spec.rule, **params)
+    except ValueError as exc:
+        key = "guard-ratio" if "ratio" in params else "risk-target" if "target" in params else "rule"
+        problems.append(located.problem(("decision", key), str(exc)))
+        return None
 
 
 class _RangeResolver:
@@ -179,9 +212,10 @@ class _RangeResolver:
         points = self._points(ac, range_freq, full_scale, bands)
         if law is not None and bands:
             self._check_statements(law, arc, full_scale, resolution, resolution_domain, bands)
+        extra = self._extra_terms(arc)
         if not self.ok:
             return None
-        return ResolvedRange(id=rng.id, function=rng.function, unit=self.unit, law=law, arc=arc,
+        return ResolvedRange(extra_terms=tuple(extra), id=rng.id, function=rng.function, unit=self.unit, law=law, arc=arc,
                              full_scale=full_scale, resolution=resolution,
                              resolution_domain=resolution_domain, bands=tuple(bands),
                              read_on=rng.read_on, connect=rng.connect, points=tuple(points),
@@ -206,13 +240,62 @@ class _RangeResolver:
             return None
         return scales.make_law(rng.scale, centre=centre)
 
+    def _unit_or_degrees(self, text) -> str:
+        return "deg" if isinstance(text, str) and text.strip().endswith(("deg", "°", "degrees")) else self.unit
+
     def _resolution(self) -> tuple[float | None, str | None]:
-        text = self.rng.resolution
+        """The step the operator reads to: ``resolution``, or ``minor-division`` × ``read-to``."""
+        rng = self.rng
+        if rng.resolution is not None and rng.minor_division is not None:
+            self.fail(("minor-division",), "give either resolution or minor-division (with read-to), not both")
+            return None, None
+        if rng.read_to is not None and rng.minor_division is None:
+            self.fail(("read-to",), "read-to is a fraction of the minor division: give minor-division too")
+            return None, None
+        key, text = ("resolution", rng.resolution) if rng.resolution is not None else ("minor-division", rng.minor_division)
         if text is None:
             return None, None
-        unit = "deg" if isinstance(text, str) and text.strip().endswith(("deg", "°", "degrees")) else self.unit
-        value = self.quantity(("resolution",), text, unit, positive=True, allow_zero=False)
-        return value, ("deg" if unit == "deg" else "value") if value is not None else None
+        unit = self._unit_or_degrees(text)
+        value = self.quantity((key,), text, unit, positive=True, allow_zero=False)
+        if value is None:
+            return None, None
+        if rng.read_to is not None:
+            if not (math.isfinite(rng.read_to) and 0 < rng.read_to <= 1):
+                self.fail(("read-to",), f"must be a fraction of a division, more than 0 and at most 1, got {rng.read_to!r}")
+                return None, None
+            value *= rng.read_to
+        return value, ("deg" if unit == "deg" else "value")
+
+    def _extra_terms(self, arc: float | None) -> list[uncertainty.Term]:
+        """The procedure's extra uncertainty contributions, as standard uncertainties."""
+        terms = []
+        for i, extra in enumerate(self.rng.uncertainty):
+            field = ("uncertainty", i)
+            unit = self._unit_or_degrees(extra.limit)
+            limit = self.quantity(field + ("limit",), extra.limit, unit, positive=True)
+            if limit is None:
+                continue
+            level = None
+            if extra.level is not None:
+                level_pct = self.quantity(field + ("level",), extra.level, "%", positive=True)
+                if level_pct is None:
+                    continue
+                level = level_pct / 100.0
+            try:
+                u = uncertainty.standard_from_limit(limit, distribution=extra.distribution, level=level)
+            except ValueError as exc:
+                self.fail(field + (("level",) if extra.level is not None else ("distribution",)), str(exc))
+                continue
+            if unit == "deg":
+                if not arc:
+                    self.fail(field + ("limit",), "a contribution in degrees needs the arc of the scale")
+                    continue
+                terms.append(uncertainty.Term(name=extra.name, standard_uncertainty=u / arc,
+                                              domain="deflection", distribution=extra.distribution))
+            else:
+                terms.append(uncertainty.Term(name=extra.name, standard_uncertainty=u, domain="value",
+                                              distribution=extra.distribution))
+        return terms
 
     def _bands(self, ac: bool) -> list[Band]:
         accuracy = self.rng.accuracy

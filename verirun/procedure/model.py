@@ -54,6 +54,19 @@ class Accuracy(Strict):
     to: QuantityText | None = None
 
 
+class ExtraTerm(Strict):
+    """An extra contribution to every point's uncertainty budget on a range.
+
+    ``limit`` is the half-width of the contribution, in the range's unit or in degrees of arc;
+    a normal limit needs the confidence ``level`` it is stated at.
+    """
+
+    name: StrictStr
+    limit: QuantityText
+    distribution: Literal["normal", "rectangular", "triangular"] = "rectangular"
+    level: QuantityText | None = None
+
+
 class Point(Strict):
     """A test point written out in full: the nominal value and, for AC, its frequency."""
 
@@ -73,6 +86,9 @@ class Range(Strict):
     arc: QuantityText | None = None
     accuracy: Accuracy | list[Accuracy]
     resolution: QuantityText | None = None
+    minor_division: QuantityText | None = None
+    read_to: Number | None = None
+    uncertainty: list[ExtraTerm] = []
     frequency: QuantityText | None = None
     read_on: StrictStr | None = None
     connect: StrictStr | None = None
@@ -103,9 +119,15 @@ class Meter(Strict):
 
 
 class Decision(Strict):
-    """The decision rule, stated before the run (ISO/IEC 17025 7.1.3)."""
+    """The decision rule, stated before the run (ISO/IEC 17025 7.1.3).
 
-    rule: Literal["simple"] = "simple"
+    ``guard-ratio`` is r in w = r U for the guarded and non-binary rules; ``risk-target`` the
+    largest specific probability of false accept the risk rule allows (``2 %``).
+    """
+
+    rule: Literal["simple", "guarded", "non-binary", "risk"] = "simple"
+    guard_ratio: Number | None = None
+    risk_target: QuantityText | None = None
 
 
 class ProcedureFile(Strict):

@@ -8,8 +8,13 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from verirun.metrology import tolerance
+from typing import TYPE_CHECKING
+
+from verirun.metrology import decision, tolerance, uncertainty
 from verirun.procedure.load import Procedure, ResolvedRange
+
+if TYPE_CHECKING:
+    from verirun.bench.config import Bench, SpecLine
 from verirun.procedure.model import FUNCTION_NAMES
 from verirun.units import format_quantity
 
@@ -28,6 +33,9 @@ class TestPoint:
     window: tolerance.Window
     accuracy_text: str
     first_of_range: bool
+    budget: uncertainty.Budget
+    rule: decision.Rule
+    standard: "SpecLine | None" = None
 
     @property
     def key(self) -> str:
@@ -62,16 +70,45 @@ class TestPoint:
         return f"{rng.id} ({FUNCTION_NAMES[rng.function]}, {detail})"
 
 
-def plan(procedure: Procedure) -> list[TestPoint]:
-    """Every test point of ``procedure`` in order, each with its allowable window."""
+def budget_terms(rng: ResolvedRange, nominal: float, frequency: float | None,
+                 standard: "SpecLine | None") -> list[uncertainty.Term]:
+    """The contributions to the uncertainty of a reading at ``nominal`` on ``rng``.
+
+    The applied value's uncertainty from the calibrator's specification line ``standard``, the
+    readability of the meter under test, and the procedure's extra terms for the range.
+    """
+    terms = []
+    if standard is not None:
+        terms.append(standard.spec.term(output=nominal, range_value=standard.range,
+                                        name="applied value (calibrator)"))
+    if rng.resolution:
+        if rng.resolution_domain == "deg":
+            terms.append(uncertainty.readability_term(division=rng.resolution, unit="degrees",
+                                                      arc=rng.arc, name="readability"))
+        else:
+            terms.append(uncertainty.readability_term(division=rng.resolution, name="readability"))
+    terms.extend(rng.extra_terms)
+    return terms
+
+
+def plan(procedure: Procedure, bench: "Bench | None" = None) -> list[TestPoint]:
+    """Every test point of ``procedure`` in order, each with its window and uncertainty budget.
+
+    Without a ``bench`` the budgets hold only the meter's own terms (readability and the
+    procedure's extra terms): enough to check a procedure, not to sign a certificate.
+    """
     items = [(rng, nominal, freq) for rng in procedure.ranges for nominal, freq in rng.points]
     points = []
     previous = None
     for index, (rng, nominal, freq) in enumerate(items):
         band = rng.band_at(freq)
         win = tolerance.window(band.statement, nominal, rng.context)
+        standard = bench.spec_for(rng.function, nominal, freq) if bench is not None else None
+        budget = uncertainty.budget(terms=budget_terms(rng, nominal, freq, standard), nominal=nominal,
+                                    law=rng.law, domain=win.domain)
         points.append(TestPoint(index=index, total=len(items), range=rng, nominal=nominal,
                                 frequency=freq, window=win, accuracy_text=band.text,
-                                first_of_range=rng is not previous))
+                                first_of_range=rng is not previous, budget=budget,
+                                rule=procedure.rule, standard=standard))
         previous = rng
     return points
