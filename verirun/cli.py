@@ -68,6 +68,27 @@ def _parser() -> argparse.ArgumentParser:
     window.add_argument("--reading", help="a reading to decide on (e.g. 5.07, 5.07V)")
     window.add_argument("--json", action="store_true", help="print a JSON object")
 
+    resume = sub.add_parser("resume", help="continue a stopped or interrupted run where it left off")
+    resume.add_argument("run", type=Path, help="the run folder")
+    resume.add_argument("--procedure", type=Path, help="the procedure file (default: the one the run started from)")
+    resume.add_argument("--bench", type=Path, help="the bench file (default: the one the run started from)")
+    source = resume.add_mutually_exclusive_group()
+    source.add_argument("--readings", type=Path, help="take readings from a CSV file (range, at, reading)")
+    source.add_argument("--virtual-meter", type=Path, help="take readings from a virtual meter file")
+    resume.add_argument("--serial", help="serial number of the item (checked against the run's)")
+    resume.add_argument("--reports", type=Path, default=Path("reports"), help="folder for certificates")
+
+    amend = sub.add_parser("amend", help="correct one reading of a stored run, as a new revision that keeps the old")
+    amend.add_argument("run", type=Path, help="the run folder")
+    amend.add_argument("--point", required=True, help="the step number or point key to correct")
+    amend.add_argument("--reading", required=True, help="the reading as it should have been recorded")
+    amend.add_argument("--reason", required=True, help="why (printed on the certificate)")
+    amend.add_argument("--operator", default=os.environ.get("USER", "operator"), help="who makes the correction")
+    amend.add_argument("--reports", type=Path, default=Path("reports"), help="folder for certificates")
+
+    verify = sub.add_parser("verify", help="check that stored runs are as recorded (journal chain and record)")
+    verify.add_argument("runs", type=Path, nargs="+", help="run folders")
+
     certify = sub.add_parser("certify", help="render certificates again from stored run records")
     certify.add_argument("runs", type=Path, nargs="+", help="run folders or record.json files")
     certify.add_argument("--reports", type=Path, default=Path("reports"), help="folder for certificates")
@@ -95,12 +116,15 @@ def main(argv: list[str] | None = None) -> int:
         return EXIT_UNSAFE
     except RunAborted as exc:
         _err(f"stopped: {exc}")
+        _resume_hint(exc)
         return EXIT_ABORTED
     except VerirunError as exc:
         _err(f"error: {exc}")
+        _resume_hint(exc)
         return exc.exit_code
-    except KeyboardInterrupt:
-        _err("stopped: interrupted; the output was put in standby")
+    except KeyboardInterrupt as exc:
+        _err("stopped: interrupted; the output was put in standby and read back off")
+        _resume_hint(exc)
         return EXIT_ABORTED
     except Exception as exc:  # a bug; never a traceback for the user
         if os.environ.get("VERIRUN_DEBUG"):
@@ -111,6 +135,12 @@ def main(argv: list[str] | None = None) -> int:
 
 def _err(text: str) -> None:
     print(text, file=sys.stderr)
+
+
+def _resume_hint(exc: BaseException) -> None:
+    run_dir = getattr(exc, "run_dir", None)
+    if run_dir is not None and (Path(run_dir) / "journal.jsonl").exists():
+        _err(f"every confirmed reading is kept in {run_dir}; continue with: verirun resume {run_dir}")
 
 
 def _cmd_check(args) -> int:
@@ -223,15 +253,76 @@ def _cmd_window(args) -> int:
     return EXIT_OK
 
 
+def _cmd_amend(args) -> int:
+    from verirun.amend import amend
+    from verirun.certificate.render import write_certificate
+
+    record = amend(args.run, point=args.point, reading=args.reading, reason=args.reason, operator=args.operator)
+    out = write_certificate(record, args.reports)
+    print(f"{args.run}: revision {record['run']['revision']}; certificate {out}")
+    return EXIT_OK
+
+
+def _cmd_verify(args) -> int:
+    from verirun.integrity import problems
+
+    failed = 0
+    for path in args.runs:
+        found = problems(path)
+        if found:
+            failed += 1
+            for line in found:
+                print(line)
+            print(f"{path}: DOES NOT VERIFY ({len(found)} problem{'s' if len(found) > 1 else ''})")
+        else:
+            print(f"{path}: verified")
+    return EXIT_ERROR if failed else EXIT_OK
+
+
+def _cmd_resume(args) -> int:
+    from rich.console import Console as RichConsole
+
+    from verirun.console import Console, QuietConsole
+    from verirun.readings import ScriptedReadings, VirtualMeter
+    from verirun.session import resume
+
+    if args.readings:
+        readings = ScriptedReadings(args.readings)
+    elif args.virtual_meter:
+        readings = VirtualMeter(args.virtual_meter)
+    else:
+        readings = Console()
+    rich = RichConsole(highlight=False)
+    console = Console(rich) if readings.interactive else QuietConsole(echo=rich)
+    finished = resume(run_dir=args.run, procedure_path=args.procedure, bench_path=args.bench,
+                      readings=readings, console=console, reports_dir=args.reports, serial=args.serial)
+    _summary(rich, finished)
+    return EXIT_OK
+
+
+def _summary(rich, finished) -> None:
+    summary = finished.record["summary"]
+    rich.print(f"\nRun record:  {finished.record_path}")
+    if finished.certificate is not None:
+        rich.print(f"Certificate: {finished.certificate}")
+    verdict = summary["overall"].upper()
+    colour = "green" if summary["overall"] == "pass" else "red"
+    rich.print(f"Overall: [bold {colour}]{verdict}[/] ({summary['pass']} pass, {summary['fail']} fail,"
+               f" {summary['skipped']} skipped of {summary['points']} points)")
+
+
 def _cmd_certify(args) -> int:
     from verirun.certificate.render import write_certificate
     from verirun.errors import RecordError
-    from verirun.record import load_record
+    from verirun.integrity import verified_record
 
     failed = 0
     for path in args.runs:
         try:
-            record = load_record(path)
+            record = verified_record(path)
+            if record["run"]["status"] != "complete":
+                raise RecordError(f"{path}: the run is {record['run']['status']}, not complete; resume it"
+                                  " before a certificate can be issued")
             out = write_certificate(record, args.reports)
         except RecordError as exc:
             failed += 1
@@ -265,13 +356,7 @@ def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, cont
         Console(rich).cautions()
     finished = execute(procedure=procedure, bench=bench, context=context, readings=readings,
                        console=console, runs_dir=args.runs, reports_dir=args.reports, simulate=simulate)
-    summary = finished.record["summary"]
-    rich.print(f"\nRun record:  {finished.record_path}")
-    rich.print(f"Certificate: {finished.certificate}")
-    verdict = summary["overall"].upper()
-    colour = "green" if summary["overall"] == "pass" else "red"
-    rich.print(f"Overall: [bold {colour}]{verdict}[/] ({summary['pass']} pass, {summary['fail']} fail,"
-               f" {summary['skipped']} skipped of {summary['points']} points)")
+    _summary(rich, finished)
     return EXIT_OK
 
 
@@ -312,4 +397,4 @@ def _cmd_run(args) -> int:
 
 
 _COMMANDS = {"check": _cmd_check, "window": _cmd_window, "certify": _cmd_certify, "demo": _cmd_demo,
-             "run": _cmd_run}
+             "run": _cmd_run, "resume": _cmd_resume, "verify": _cmd_verify, "amend": _cmd_amend}

@@ -27,9 +27,9 @@ CAUTIONS = (
 )
 
 
-def _limits(point: "TestPoint") -> str:
+def _limits(point: "TestPoint", digits: int = 6) -> str:
     win = point.window
-    return f"{format_quantity(win.low, point.unit)} to {format_quantity(win.high, point.unit)}"
+    return f"{format_quantity(win.low, point.unit, digits)} to {format_quantity(win.high, point.unit, digits)}"
 
 
 class Console:
@@ -168,8 +168,8 @@ class QuietConsole:
         self._log(f"Step {point.index + 1} of {point.total} {point.range.id} {point.stimulus_text()}")
 
     def result(self, point: "TestPoint", entry: Entry, result: "Result") -> None:
-        line = (f"step {point.index + 1:>3}/{point.total}  {point.range.id:<10} {point.stimulus_text():<18}"
-                f" read {entry.typed:<10} limits {_limits(point):<22} {result.verdict.upper()}")
+        line = (f"{point.index + 1:>3}/{point.total} {point.range.id:<9} {point.stimulus_text():<16}"
+                f" read {entry.typed:<9} limits {_limits(point, 4):<20} {result.verdict.upper()}")
         self._log(line)
         if self.echo is not None:
             colour = "green" if result.verdict == "pass" else "red"

@@ -100,25 +100,50 @@ class Engine:
                                    ac_peak_volts=bench.hazardous_ac_peak)
         self.counts = {"pass": 0, "fail": 0, "skipped": 0}
 
-    def run(self, context: RunContext, *, uid: str | None = None) -> Outcome:
-        """Run every point of the plan; return how the run ended.
+    def run(self, context: RunContext, *, uid: str | None = None, resume: dict | None = None,
+            done: frozenset[str] = frozenset()) -> Outcome:
+        """Run every point of the plan not in ``done``; return how the run ended.
 
-        The calibrator is identified first and checked against the bench file; the output is in
-        standby before the first point, between points, and whatever ends the run.
+        The calibrator is identified first and checked against the bench file (and, when
+        resuming, against the identity the run started with); the output is in standby before
+        the first point, between points, and whatever ends the run.
+
+        Parameters
+        ----------
+        context
+            Who and what the run is for.
+        uid
+            The run's identity (new if not given).
+        resume
+            The start document of the journal being resumed; a ``resume`` document is written
+            instead of a new start.
+        done
+            Keys of the points that already have a confirmed entry.
         """
         uid = uid or uuid_mod.uuid4().hex
-        points = plan(self.procedure, self.bench)
+        points = [p for p in plan(self.procedure, self.bench) if p.key not in done]
         cal = self.calibrator
         status, reason = "failed", "the run did not finish"
         try:
             with output_guard(cal):
                 identity = self._identify(context.simulated)
-                self.journal.append(start_document(uid=uid, time=iso(self.clock.now()),
-                                                   procedure=self.procedure, bench=self.bench,
-                                                   identity=identity, context=context))
+                if resume is None:
+                    self.journal.append(start_document(uid=uid, time=iso(self.clock.now()),
+                                                       procedure=self.procedure, bench=self.bench,
+                                                       identity=identity, context=context))
+                else:
+                    started_with = resume["bench"]["calibrator"]["identity"]
+                    if identity != started_with:
+                        raise BenchError("the calibrator is not the one this run started with, so the"
+                                         f" run cannot be resumed on it (started with {started_with!r})",
+                                         command=cal.profile.commands.identify, answer=identity,
+                                         step="identify the calibrator")
+                    self.journal.append({"kind": "resume", "time": iso(self.clock.now()),
+                                         "identity": identity, "pending": len(points),
+                                         "recovered_torn_line": self.journal.recovered is not None})
                 self.console.cautions()
-                for point in points:
-                    self._point(point)
+                for number, point in enumerate(points):
+                    self._point(point, connect=point.first_of_range or number == 0)
             status, reason = "complete", None
             return Outcome(uid=uid, status=status, reason=reason, counts=dict(self.counts))
         except RunAborted as exc:
@@ -155,8 +180,8 @@ class Engine:
     def _step_name(self, point: TestPoint) -> str:
         return f"step {point.index + 1} of {point.total} ({point.range.id} at {point.stimulus_text()})"
 
-    def _point(self, point: TestPoint) -> None:
-        if point.first_of_range:
+    def _point(self, point: TestPoint, *, connect: bool) -> None:
+        if connect:
             self.calibrator.standby()
             self.console.connect(point)
         self._check_hazard(point)

@@ -50,13 +50,33 @@ class Journal:
         self.path = Path(path)
         self._seq = 0
         self._prev = GENESIS
+        #: The torn last line dropped when an interrupted journal was reopened, if any.
+        self.recovered: str | None = None
         if self.path.exists():
-            docs = read_journal(self.path).documents
-            if docs:
-                self._seq = docs[-1]["seq"] + 1
-                self._prev = line_hash(dumps(docs[-1]))
+            read = read_journal(self.path)
+            self._repair(read)
+            if read.documents:
+                self._seq = read.documents[-1]["seq"] + 1
+                self._prev = line_hash(dumps(read.documents[-1]))
         self.path.parent.mkdir(parents=True, exist_ok=True)
         self._file = open(self.path, "a", encoding="utf-8", newline="\n")
+
+    def _repair(self, read: "JournalRead") -> None:
+        """Make the file end at a whole line: cut a torn last line, end a whole one with a newline."""
+        raw = self.path.read_bytes()
+        if not raw or raw.endswith(b"\n"):
+            return
+        if read.torn_line is not None:
+            self.recovered = read.torn_line
+            with open(self.path, "r+b") as fh:
+                fh.truncate(raw.rfind(b"\n") + 1)
+                fh.flush()
+                os.fsync(fh.fileno())
+        else:
+            with open(self.path, "ab") as fh:
+                fh.write(b"\n")
+                fh.flush()
+                os.fsync(fh.fileno())
 
     def append(self, doc: dict) -> dict:
         """Write ``doc`` as one line with its sequence number and chain hash; fsync; return it."""
@@ -135,9 +155,15 @@ def verify_chain(documents: Iterable[dict], source: str = "journal") -> list[str
             problems.append(f"{source}: document {expected_seq + 1} has sequence number"
                             f" {doc.get('seq')!r}, expected {expected_seq} (missing or reordered)")
         if doc.get("prev") != prev:
-            problems.append(f"{source}: document {expected_seq + 1} ({doc.get('kind')}) does not follow"
-                            f" the one before it (edited, missing or reordered)")
+            if expected_seq == 0:
+                problems.append(f"{source}: document 1 ({doc.get('kind')}) does not begin a journal"
+                                " (the start is missing or was edited)")
+            else:
+                problems.append(f"{source}: the chain breaks between document {expected_seq}"
+                                f" ({previous_kind}) and document {expected_seq + 1} ({doc.get('kind')}):"
+                                " one was edited, or a document is missing or out of order")
         prev = line_hash(dumps(doc))
+        previous_kind = doc.get("kind")
     return problems
 
 

@@ -16,7 +16,7 @@ from verirun.metrology.uncertainty import round_result
 from verirun.procedure.load import load_procedure_text
 from verirun.procedure.plan import plan
 from verirun.procedure.model import FUNCTION_NAMES
-from verirun.record import RECORD_FORMAT, JOURNAL_NAME, json_number, read_journal, verify_chain
+from verirun.record import RECORD_FORMAT, JOURNAL_NAME, dumps, json_number, line_hash, read_journal, verify_chain
 from verirun.units import format_fixed, format_quantity
 
 
@@ -44,21 +44,40 @@ def build_record(documents: list[dict], source: str = "journal") -> dict:
     entries: dict[str, dict] = {}
     notes = []
     stop = None
+    revision = 1
+    corrections: dict[str, dict] = {}
     for doc in documents[1:]:
         kind = doc["kind"]
-        if kind in ("observation", "skip"):
+        if kind in ("observation", "skip", "correction"):
             if doc["point"] not in points:
                 raise RecordError(f"{source}: document {doc['seq']} names point {doc['point']!r},"
                                   " which the procedure does not have")
+            if kind == "correction":
+                revision += 1
+                previous = entries.get(doc["point"])
+                corrections[doc["point"]] = {
+                    "revision": revision, "time": doc["time"], "reason": doc["reason"],
+                    "by": doc["operator"], "previous_typed": previous.get("typed") if previous else None}
+                notes.append({"time": doc["time"], "point": doc["point"],
+                              "text": f"revision {revision}: reading of {doc['point']} corrected from"
+                                      f" {corrections[doc['point']]['previous_typed']!r} to {doc['typed']!r}"
+                                      f" by {doc['operator']}: {doc['reason']}"})
             entries[doc["point"]] = doc  # a later entry for the same point supersedes
         elif kind == "note":
             notes.append({"time": doc["time"], "point": doc.get("point"), "text": doc["text"]})
+        elif kind == "resume":
+            notes.append({"time": doc["time"], "point": None,
+                          "text": f"run resumed after an interruption with {doc['pending']} points to go"
+                                  + ("; a cut-off last journal line was dropped" if doc.get("recovered_torn_line") else "")})
         elif kind == "stop":
             stop = doc
     rows = []
     for key, point in points.items():
         doc = entries.get(key)
-        rows.append(_row(point, doc))
+        row = _row(point, doc)
+        if key in corrections:
+            row["correction"] = corrections[key]
+        rows.append(row)
     counts = {"points": len(rows), "pass": 0, "fail": 0, "skipped": 0, "not-measured": 0}
     for row in rows:
         counts[row["verdict"]] = counts.get(row["verdict"], 0) + 1
@@ -71,8 +90,8 @@ def build_record(documents: list[dict], source: str = "journal") -> dict:
         "run": {"uid": start["uid"], "started": start["time"], "ended": stop["time"] if stop else None,
                 "status": status, "reason": stop.get("reason") if stop else None,
                 "operator": start["operator"], "software": start["software"],
-                "journal_sha256_last": documents[-1]["prev"] if documents else None,
-                "documents": len(documents)},
+                "journal_sha256_last": line_hash(dumps(documents[-1])),
+                "documents": len(documents), "revision": revision},
         "lab": start["lab"], "customer": start["customer"], "item": start["item"],
         "environment": start.get("environment", {}),
         "procedure": start["procedure"], "bench": start["bench"],
@@ -102,7 +121,7 @@ def _row(point, doc: dict | None) -> dict:
            "limits_text": f"{format_quantity(win.low, point.unit)} to {format_quantity(win.high, point.unit)}"}
     if doc is None:
         return {**row, "verdict": "not-measured", "reading": None, "typed": None, "time": None}
-    if doc["kind"] == "skip":
+    if doc["kind"] not in ("observation", "correction"):
         return {**row, "verdict": "skipped", "reading": None, "typed": None, "time": doc["time"],
                 "skip_reason": doc["reason"]}
     result = evaluate(point, doc["reading"])

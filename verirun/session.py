@@ -15,15 +15,15 @@ from importlib.resources import as_file, files
 from pathlib import Path
 
 from verirun import preflight
-from verirun.bench.config import Bench
+from verirun.bench.config import Bench, load_bench, load_bench_text
 from verirun.bench.profile import load_profile
 from verirun.procedure.plan import plan
 from verirun.certificate.render import write_certificate
 from verirun.clock import SystemClock
 from verirun.engine import Engine, Outcome, RunContext
-from verirun.errors import BenchError
-from verirun.procedure.load import Procedure
-from verirun.record import JOURNAL_NAME, RECORD_NAME, Journal, read_journal, write_record
+from verirun.errors import BenchError, RecordError
+from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
+from verirun.record import JOURNAL_NAME, RECORD_NAME, Journal, read_journal, verify_chain, write_record
 from verirun.runrecord import build_record
 
 
@@ -69,7 +69,7 @@ def open_calibrator(bench: Bench, *, simulate: bool, workdir: Path):
     if simulate:
         from verirun.bench.sim import SIM_RESOURCE, sim_library
 
-        library, resource = sim_library(workdir), SIM_RESOURCE
+        library, resource = sim_library(workdir / "simulated-calibrator"), SIM_RESOURCE
     else:
         library, resource = cal.visa_library, cal.resource
     return Calibrator.open(library, resource, cal.profile, timeout_ms=int(bench.timeout_s * 1000))
@@ -90,6 +90,19 @@ def execute(*, procedure: Procedure, bench: Bench, context: RunContext, readings
     preflight.check(plan(procedure, bench), bench, profile, today=clock.now().date())
     run_dir = Path(runs_dir) / run_folder_name(context.item.get("serial", "item"), uid, clock.now())
     run_dir.mkdir(parents=True, exist_ok=False)
+    return _drive(run_dir=run_dir, procedure=procedure, bench=bench, context=context, readings=readings,
+                  console=console, reports_dir=reports_dir, simulate=simulate, clock=clock, uid=uid,
+                  calibrator=calibrator)
+
+
+def _drive(*, run_dir: Path, procedure, bench, context, readings, console, reports_dir, simulate,
+           clock, uid, calibrator, resume: dict | None = None, done: frozenset[str] = frozenset()) -> Finished:
+    """Open the bench, run the engine on ``run_dir``'s journal, and close the run however it ends.
+
+    Whatever ends the run, the journal is closed into the run record; the certificate is
+    rendered only for a complete run. An exception is re-raised with ``run_dir`` attached, so
+    the caller can say where the resumable run lies.
+    """
     own_calibrator = calibrator is None
     journal = Journal(run_dir / JOURNAL_NAME)
     outcome = None
@@ -100,16 +113,84 @@ def execute(*, procedure: Procedure, bench: Bench, context: RunContext, readings
             try:
                 engine = Engine(procedure=procedure, bench=bench, calibrator=calibrator,
                                 readings=readings, console=console, journal=journal, clock=clock)
-                outcome = engine.run(context, uid=uid)
+                outcome = engine.run(context, uid=uid, resume=resume, done=done)
             finally:
                 if own_calibrator:
                     calibrator.close()
-    finally:
+    except BaseException as exc:
         journal.close()
+        try:
+            close_run(run_dir)
+        except Exception:  # the journal is the truth; a record that cannot be built now can be later
+            pass
+        exc.run_dir = run_dir  # type: ignore[attr-defined]
+        raise
+    journal.close()
     record = close_run(run_dir)
-    certificate = write_certificate(record, reports_dir) if record else None
+    complete = record is not None and record["run"]["status"] == "complete"
+    certificate = write_certificate(record, reports_dir) if complete else None
     return Finished(outcome=outcome, run_dir=run_dir, record_path=run_dir / RECORD_NAME,
                     certificate=certificate, record=record)
+
+
+def resume(*, run_dir: Path, procedure_path: Path | None, bench_path: Path | None, readings, console,
+           reports_dir: Path, serial: str | None = None, clock=None, calibrator=None) -> Finished:
+    """Continue a stopped or crashed run at its first point without a confirmed entry.
+
+    The procedure and bench files (by default the ones the run started from, else the copies
+    its journal holds) must be the same as when the run started, by SHA-256; the item serial,
+    when given, must match; the calibrator must report the same identity.
+
+    Raises
+    ------
+    RecordError
+        If the run cannot be resumed: unreadable journal, already complete, or a file changed.
+    """
+    clock = clock or SystemClock()
+    run_dir = Path(run_dir)
+    read = read_journal(run_dir / JOURNAL_NAME)
+    docs = read.documents
+    if not docs or docs[0].get("kind") != "start":
+        raise RecordError(f"{run_dir}: the journal has no start document; nothing to resume")
+    problems = verify_chain(docs, str(run_dir / JOURNAL_NAME))
+    if problems:
+        raise RecordError("the journal does not verify, so the run cannot be resumed:\n" + "\n".join(problems))
+    start = docs[0]
+    procedure = _same_file(procedure_path, start["procedure"], "procedure", load_procedure, load_procedure_text)
+    bench = _same_file(bench_path, start["bench"], "bench file", load_bench, load_bench_text)
+    if serial is not None and serial != start["item"].get("serial"):
+        raise RecordError(f"{run_dir}: this run is for item {start['item'].get('serial')!r}, not {serial!r}")
+    done = frozenset(d["point"] for d in docs if d["kind"] in ("observation", "skip"))
+    pending = [p for p in plan(procedure, bench) if p.key not in done]
+    if not pending:
+        raise RecordError(f"{run_dir}: every point of this run already has a confirmed entry; nothing to resume"
+                          " (use 'verirun certify' for its certificate)")
+    simulate = bool(start["bench"].get("simulated"))
+    profile = calibrator.profile if calibrator is not None else load_profile(bench.file.calibrator.profile)
+    preflight.check(pending, bench, profile, today=clock.now().date())
+    context = RunContext(lab=start["lab"], customer=start["customer"], item=start["item"],
+                         operator=start["operator"], simulated=simulate,
+                         environment=start.get("environment", {}))
+    if read.torn_line is not None:
+        console.warn(f"the last line of the journal was cut off by the interruption and is dropped"
+                     f" ({len(read.torn_line)} characters); every whole line before it is kept")
+    return _drive(run_dir=run_dir, procedure=procedure, bench=bench, context=context, readings=readings,
+                  console=console, reports_dir=reports_dir, simulate=simulate, clock=clock,
+                  uid=start["uid"], calibrator=calibrator, resume=start, done=done)
+
+
+def _same_file(path: Path | None, stored: dict, kind: str, load_path, load_text):
+    """Load ``path`` (or the stored source, or the stored text) and check it is the one run."""
+    if path is None and stored.get("source") and Path(stored["source"]).is_file():
+        path = Path(stored["source"])
+    if path is None:
+        return load_text(stored["text"], stored["source"])
+    loaded = load_path(path)
+    if loaded.sha256 != stored["sha256"]:
+        raise RecordError(f"{path}: this {kind} is not the one the run started with (its SHA-256 is"
+                          f" {loaded.sha256[:12]}..., the run's is {stored['sha256'][:12]}...); resume needs"
+                          f" the same {kind}")
+    return loaded
 
 
 def close_run(run_dir: Path) -> dict | None:

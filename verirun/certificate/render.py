@@ -18,7 +18,18 @@ def certificate_number(record: dict) -> str:
     """The certificate's unique number: lab prefix, calibration date and the run's uid."""
     prefix = record["lab"].get("certificate_prefix", "CERT")
     day = record["run"]["started"][:10].replace("-", "")
-    return f"{prefix}-{day}-{record['run']['uid'][:8].upper()}"
+    number = f"{prefix}-{day}-{record['run']['uid'][:8].upper()}"
+    revision = record["run"].get("revision", 1)
+    return number if revision == 1 else f"{number}-R{revision}"
+
+
+def previous_number(record: dict) -> str | None:
+    """The number of the certificate this one replaces (``None`` for a first issue)."""
+    revision = record["run"].get("revision", 1)
+    if revision == 1:
+        return None
+    earlier = {**record, "run": {**record["run"], "revision": revision - 1}}
+    return certificate_number(earlier)
 
 
 def safe_file_name(text: str) -> str:
@@ -68,7 +79,7 @@ def render_html(record: dict) -> str:
     for rng in record["ranges"]:
         ranges.append({**rng, "rows": by_range.get(rng["id"], [])})
     return template.render(record=record, ranges=ranges, number=certificate_number(record),
-                           template_version=TEMPLATE_VERSION)
+                           replaces=previous_number(record), template_version=TEMPLATE_VERSION)
 
 
 def write_certificate(record: dict, reports_dir: str | Path) -> Path:
