@@ -92,10 +92,12 @@ def build_record(documents: list[dict], source: str = "journal") -> dict:
                 "operator": start["operator"], "software": start["software"],
                 "journal_sha256_last": line_hash(dumps(documents[-1])),
                 "documents": len(documents), "revision": revision},
-        "lab": start["lab"], "customer": start["customer"], "item": start["item"],
+        "lab": start["lab"],
+        "customer": {"name": None, "address": [], **start["customer"]},
+        "item": {"serial": None, "asset": None, "condition": None, **start["item"]},
         "environment": start.get("environment", {}),
         "procedure": start["procedure"], "bench": start["bench"],
-        "meter": procedure.file.meter.model_dump(by_alias=True, exclude_none=True),
+        "meter": procedure.file.meter.model_dump(by_alias=True),
         "decision_rule": {"rule": procedure.rule.name, "statement": procedure.rule.describe(),
                           "parameters": procedure.file.decision.model_dump(by_alias=True, exclude_none=True)},
         "ranges": [_range(rng) for rng in procedure.ranges],
@@ -118,12 +120,17 @@ def _row(point, doc: dict | None) -> dict:
            "nominal": point.nominal, "frequency": point.frequency, "stimulus": point.stimulus_text(),
            "low": json_number(win.low), "high": json_number(win.high), "domain": win.domain,
            "half_width": win.half_width, "accuracy": point.accuracy_text,
-           "limits_text": f"{format_quantity(win.low, point.unit)} to {format_quantity(win.high, point.unit)}"}
+           "limits_text": f"{format_quantity(win.low, point.unit)} to {format_quantity(win.high, point.unit)}",
+           # Filled in below for a measured point; present (as None) for every row so that a
+           # certificate template never meets a missing key.
+           "reading": None, "typed": None, "time": None, "error": None, "error_unit": None,
+           "percent_of_tolerance": None, "U": None, "U_spec": None, "k": None, "tur": None,
+           "conformance": None, "accept_low": None, "accept_high": None, "U_pct": None,
+           "accept_low_pct": None, "accept_high_pct": None, "budget": [], "reported": None}
     if doc is None:
-        return {**row, "verdict": "not-measured", "reading": None, "typed": None, "time": None}
+        return {**row, "verdict": "not-measured"}
     if doc["kind"] not in ("observation", "correction"):
-        return {**row, "verdict": "skipped", "reading": None, "typed": None, "time": doc["time"],
-                "skip_reason": doc["reason"]}
+        return {**row, "verdict": "skipped", "time": doc["time"], "skip_reason": doc["reason"]}
     result = evaluate(point, doc["reading"])
     return {**row, "verdict": result.verdict, "reading": doc["reading"], "typed": doc["typed"],
             "time": doc["time"], "error": result.error, "error_unit": result.error_unit,

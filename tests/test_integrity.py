@@ -1,0 +1,154 @@
+"""Record integrity: the chain shows any edit, gap or reordering; corrections are new revisions."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+
+from verirun.certificate.render import safe_file_name, write_certificate
+from verirun.cli import main
+from verirun.integrity import problems
+from verirun.record import Journal, read_journal, verify_chain
+
+
+@pytest.fixture
+def run_dir(tmp_path, data_dir, demo_procedure_path, demo_bench_path):
+    assert main(["run", str(demo_procedure_path), "--bench", str(demo_bench_path), "--simulate",
+                 "--readings", str(data_dir / "qm40-readings.csv"), "--serial", "SN-9",
+                 "--customer", "Test customer", "--runs", str(tmp_path / "runs"),
+                 "--reports", str(tmp_path / "reports")]) == 0
+    (folder,) = (tmp_path / "runs").iterdir()
+    return folder
+
+
+def lines_of(path):
+    return path.read_text(encoding="utf-8").splitlines(keepends=True)
+
+
+class TestVerify:
+    def test_untouched_run_verifies(self, run_dir, capsys):
+        """A run as written verifies, and `verirun verify` says so with exit 0."""
+        assert problems(run_dir) == []
+        assert main(["verify", str(run_dir)]) == 0
+        assert "verified" in capsys.readouterr().out
+
+    def test_edited_observation_is_reported(self, run_dir, capsys):
+        """Changing one reading in the journal breaks the chain at the next document."""
+        journal = run_dir / "journal.jsonl"
+        lines = lines_of(journal)
+        index = next(i for i, line in enumerate(lines) if '"typed":"8.25"' in line)
+        lines[index] = lines[index].replace('"typed":"8.25"', '"typed":"8.15"').replace('"reading":8.25', '"reading":8.15')
+        journal.write_text("".join(lines), encoding="utf-8")
+        found = problems(run_dir)
+        assert any(f"between document {index + 1}" in p for p in found), found
+        assert main(["verify", str(run_dir)]) == 1
+        assert main(["certify", str(run_dir), "--reports", str(run_dir / "out")]) == 1
+        assert not (run_dir / "out").exists()
+
+    def test_missing_document_is_reported(self, run_dir):
+        """Deleting a document shows as a gap in the sequence numbers and the chain."""
+        journal = run_dir / "journal.jsonl"
+        lines = lines_of(journal)
+        del lines[5]
+        journal.write_text("".join(lines), encoding="utf-8")
+        found = problems(run_dir)
+        assert any("sequence number" in p for p in found) and any("chain breaks" in p for p in found)
+
+    def test_reordered_documents_are_reported(self, run_dir):
+        """Swapping two documents is reported."""
+        journal = run_dir / "journal.jsonl"
+        lines = lines_of(journal)
+        lines[3], lines[4] = lines[4], lines[3]
+        journal.write_text("".join(lines), encoding="utf-8")
+        assert any("out of order" in p or "sequence" in p for p in problems(run_dir))
+
+    def test_edited_record_is_reported(self, run_dir):
+        """An edit to record.json that its journal does not support is reported."""
+        path = run_dir / "record.json"
+        record = json.loads(path.read_text())
+        record["points"][3]["verdict"] = "pass"
+        path.write_text(json.dumps(record))
+        assert any("differs from what its journal records" in p for p in problems(run_dir))
+
+    def test_chain_function_on_a_fresh_journal(self, tmp_path):
+        """Documents appended by the journal chain to one another from a zero hash."""
+        with Journal(tmp_path / "j.jsonl") as journal:
+            for n in range(3):
+                journal.append({"kind": "note", "text": str(n)})
+        docs = read_journal(tmp_path / "j.jsonl").documents
+        assert [d["seq"] for d in docs] == [0, 1, 2]
+        assert verify_chain(docs) == []
+
+
+class TestAmend:
+    def test_correction_is_a_new_revision_keeping_the_old(self, run_dir, capsys):
+        """Correcting a reading writes revision 2 beside the kept revision 1; the new certificate
+        says which one it replaces (ISO/IEC 17025:2017 7.5.2 and 7.8.8)."""
+        first = json.loads((run_dir / "record.json").read_text())
+        assert first["run"]["revision"] == 1
+        assert main(["amend", str(run_dir), "--point", "4", "--reading", "8.15", "--reason", "misread the scale",
+                     "--reports", str(run_dir / "certs")]) == 0
+        kept = json.loads((run_dir / "record.r1.json").read_text())
+        assert kept == first
+        second = json.loads((run_dir / "record.json").read_text())
+        assert second["run"]["revision"] == 2
+        row = second["points"][3]
+        assert row["typed"] == "8.15" and row["verdict"] == "pass"  # 8.15 V within 7.8 .. 8.2 V
+        assert row["correction"]["previous_typed"] == "8.25"
+        assert problems(run_dir) == []
+        (cert,) = (run_dir / "certs").glob("*-R2.html")
+        html = cert.read_text()
+        assert "replaces certificate" in html and "misread the scale" in html
+
+    @pytest.mark.parametrize("args, words", [
+        (["--point", "99", "--reading", "1", "--reason", "x"], "no step 99"),
+        (["--point", "4", "--reading", "8,15", "--reason", "x"], "decimal point"),
+        (["--point", "4", "--reading", "skip broken", "--reason", "x"], "not an operator command"),
+        (["--point", "nope@1", "--reading", "1", "--reason", "x"], "no point"),
+    ])
+    def test_bad_corrections_are_refused(self, run_dir, capsys, args, words):
+        """A correction naming no point, or with an unreadable value, is refused with the reason."""
+        assert main(["amend", str(run_dir), *args]) == 1
+        assert words in capsys.readouterr().err
+        assert not (run_dir / "record.r1.json").exists()
+
+
+class TestEscapingAndFileNames:
+    def test_customer_script_is_escaped_on_the_certificate(self, tmp_path, data_dir, demo_procedure_path,
+                                                           demo_bench_path):
+        """Text from the user reaches the certificate escaped: a <script> in a customer name is
+        shown as text, never run."""
+        assert main(["run", str(demo_procedure_path), "--bench", str(demo_bench_path), "--simulate",
+                     "--readings", str(data_dir / "qm40-readings.csv"), "--serial", "<b>SN</b>",
+                     "--customer", "<script>alert('x')</script>", "--runs", str(tmp_path / "runs"),
+                     "--reports", str(tmp_path / "reports")]) == 0
+        (cert,) = (tmp_path / "reports").glob("*.html")
+        html = cert.read_text()
+        assert "<script>" not in html
+        assert "&lt;script&gt;alert(&#39;x&#39;)&lt;/script&gt;" in html
+        assert "&lt;b&gt;SN&lt;/b&gt;" in html
+
+    @pytest.mark.parametrize("name", ["../../etc/passwd", "..", "/abs/path", "a/b\\c", "", "...", "x" * 500])
+    def test_file_names_from_user_data_stay_in_the_folder(self, tmp_path, name):
+        """A file name made from user data has no separators or parent steps and stays short."""
+        safe = safe_file_name(name)
+        assert "/" not in safe and "\\" not in safe and not safe.startswith(".") and 0 < len(safe) <= 120
+        assert (tmp_path / safe).resolve().parent == tmp_path.resolve()
+
+    def test_run_folder_from_a_hostile_serial_stays_in_runs(self, tmp_path, data_dir, demo_procedure_path,
+                                                            demo_bench_path):
+        """A serial number with path separators still makes its run folder inside runs/."""
+        assert main(["run", str(demo_procedure_path), "--bench", str(demo_bench_path), "--simulate",
+                     "--readings", str(data_dir / "qm40-readings.csv"), "--serial", "../../escape",
+                     "--customer", "C", "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "reports")]) == 0
+        (folder,) = (tmp_path / "runs").iterdir()
+        assert folder.parent == tmp_path / "runs" and ".." not in folder.name
+        assert not (tmp_path / "escape").exists()
+
+    def test_certificate_number_with_separators_stays_in_reports(self, tmp_path, run_dir):
+        """A lab prefix with path separators cannot put the certificate outside the reports folder."""
+        record = json.loads((run_dir / "record.json").read_text())
+        record["lab"]["certificate_prefix"] = "../../evil"
+        path = write_certificate(record, tmp_path / "rep")
+        assert path.parent == tmp_path / "rep"

@@ -1,0 +1,180 @@
+"""The operator at the console: re-prompts, commands, hazardous-voltage confirmation."""
+
+from __future__ import annotations
+
+import datetime as dt
+import io
+import json
+import textwrap
+
+import pyvisa
+import pytest
+from rich.console import Console as RichConsole
+
+from verirun.bench.calibrator import Calibrator
+from verirun.bench.config import load_bench, load_bench_text
+from verirun.bench.sim import SIM_RESOURCE, sim_library
+from verirun.clock import VirtualClock
+from verirun.console import Console
+from verirun.engine import RunContext
+from verirun.errors import RunAborted
+from verirun.procedure.load import load_procedure_text
+from verirun.record import read_journal
+from verirun.session import execute
+
+PROCEDURE = textwrap.dedent("""\
+    format: 1
+    procedure: {id: OP-1, title: Operator test, revision: A}
+    meter: {kind: panel meter}
+    ranges:
+      - id: dcv-10
+        function: dc-voltage
+        full-scale: 10 V
+        accuracy: {percent-of-full-scale: 2}
+        resolution: 0.05 V
+        connect: Red to V, black to COM.
+        points: [5 V, 10 V]
+    """)
+
+HAZARD = textwrap.dedent("""\
+    format: 1
+    procedure: {id: OP-2, title: Hazard test, revision: A}
+    meter: {kind: panel meter}
+    ranges:
+      - id: dcv-100
+        function: dc-voltage
+        full-scale: 100 V
+        accuracy: {percent-of-full-scale: 2}
+        resolution: 0.5 V
+        points: [20 V, 80 V]
+    """)
+
+
+class Typist:
+    """Types the given lines at successive prompts, recording every prompt."""
+
+    def __init__(self, lines):
+        self.lines = list(lines)
+        self.prompts = []
+
+    def __call__(self, prompt):
+        self.prompts.append(prompt)
+        if not self.lines:
+            raise AssertionError(f"unexpected prompt {prompt!r}")
+        return self.lines.pop(0)
+
+
+def make_run(tmp_path, procedure_text, lines, demo_bench_path, demo_lab_path, bench_text=None):
+    rm = pyvisa.ResourceManager(sim_library(tmp_path / "sim"))
+    raw = rm.open_resource(SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=300)
+    cal = Calibrator(raw, "scpi-generic")
+    out = io.StringIO()
+    typist = Typist(lines)
+    console = Console(RichConsole(file=out, width=120, highlight=False), input_func=typist)
+    from verirun.lab import load_lab
+
+    context = RunContext(lab=load_lab(demo_lab_path).lab.model_dump(mode="json"), customer={"name": "C", "address": []},
+                         item={"serial": "S"}, operator="op", simulated=True)
+    bench = load_bench_text(bench_text, "bench.yaml") if bench_text else load_bench(demo_bench_path)
+
+    def go():
+        return execute(procedure=load_procedure_text(procedure_text, "proc.yaml"), bench=bench, context=context,
+                       readings=console, console=console, runs_dir=tmp_path / "runs",
+                       reports_dir=tmp_path / "reports", simulate=True,
+                       clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)), calibrator=cal)
+    return go, raw, out, typist
+
+
+class TestReadingPrompt:
+    def test_bad_input_re_prompts_with_the_reason_and_journals_nothing(self, tmp_path, demo_bench_path,
+                                                                       demo_lab_path):
+        """Non-numeric text, a wrong unit, a decimal comma, empty input and a value beyond the
+        scale are each refused with the reason and asked again; only the good reading is journaled."""
+        lines = ["", "abc", "5 mA", "4,9", "12.5", "4.9", "10.1 V"]
+        go, raw, out, typist = make_run(tmp_path, PROCEDURE, ["", *lines], demo_bench_path, demo_lab_path)
+        finished = go()
+        text = out.getvalue()
+        for reason in ("empty", "not a number", "expected volts", "decimal point", "beyond the ends"):
+            assert reason in text
+        docs = read_journal(finished.run_dir / "journal.jsonl").documents
+        assert [d["typed"] for d in docs if d["kind"] == "observation"] == ["4.9", "10.1 V"]
+        assert raw.query("OUTP?") in ("0", "OFF")
+
+    def test_console_shows_step_range_stimulus_and_connection(self, tmp_path, demo_bench_path, demo_lab_path):
+        """Each step shows 'Step n of N', the range, the stimulus and, before the range, what to connect."""
+        go, raw, out, typist = make_run(tmp_path, PROCEDURE, ["", "5", "10"], demo_bench_path, demo_lab_path)
+        go()
+        text = out.getvalue()
+        assert "Step 1 of 2" in text and "Step 2 of 2" in text and "applied 5 V DC" in text
+        assert "Red to V, black to COM." in text and "standby" in text
+
+    def test_repeat_skip_and_note(self, tmp_path, demo_bench_path, demo_lab_path):
+        """'repeat' applies the stimulus again, 'note' journals a note, 'skip' journals the reason,
+        which the certificate then shows."""
+        go, raw, out, typist = make_run(tmp_path, PROCEDURE,
+                                        ["", "repeat", "note pointer sticky", "5.0", "skip lead broken"],
+                                        demo_bench_path, demo_lab_path)
+        finished = go()
+        docs = read_journal(finished.run_dir / "journal.jsonl").documents
+        kinds = [d["kind"] for d in docs]
+        assert kinds.count("observation") == 1 and kinds.count("skip") == 1
+        assert any(d["kind"] == "note" and d["text"] == "pointer sticky" for d in docs)
+        assert any(d["kind"] == "skip" and d["reason"] == "lead broken" for d in docs)
+        record = finished.record
+        assert record["points"][1]["verdict"] == "skipped"
+        html = finished.certificate.read_text()
+        assert "lead broken" in html and "pointer sticky" in html
+
+    def test_abort_leaves_output_off_and_the_run_resumable(self, tmp_path, demo_bench_path, demo_lab_path):
+        """'abort' stops the run with the output read back off, the confirmed reading journaled,
+        and a stop document saying the run was aborted."""
+        go, raw, out, typist = make_run(tmp_path, PROCEDURE, ["", "5.0", "abort"], demo_bench_path, demo_lab_path)
+        with pytest.raises(RunAborted) as info:
+            go()
+        assert raw.query("OUTP?") in ("0", "OFF")
+        run_dir = info.value.run_dir
+        docs = read_journal(run_dir / "journal.jsonl").documents
+        assert [d["kind"] for d in docs].count("observation") == 1
+        assert docs[-1]["kind"] == "stop" and docs[-1]["status"] == "aborted"
+        assert json.loads((run_dir / "record.json").read_text())["run"]["status"] == "aborted"
+
+
+class TestHazardousVoltage:
+    def test_operator_must_confirm_before_hazardous_output(self, tmp_path, demo_bench_path, demo_lab_path):
+        """At or above 60 V DC (IEC 61010-1 6.3.1) the output goes on only after the operator types
+        'yes'; the confirmation is journaled."""
+        go, raw, out, typist = make_run(tmp_path, HAZARD, ["", "20", "yes", "80"], demo_bench_path, demo_lab_path)
+        finished = go()
+        assert "DANGER" in out.getvalue()
+        docs = read_journal(finished.run_dir / "journal.jsonl").documents
+        assert any(d.get("hazardous") and "confirmed by the operator" in d["text"] for d in docs)
+
+    def test_refusing_the_confirmation_stops_with_output_off(self, tmp_path, demo_bench_path, demo_lab_path):
+        """Anything but 'yes' stops the run before the hazardous output goes on."""
+        go, raw, out, typist = make_run(tmp_path, HAZARD, ["", "20", "y"], demo_bench_path, demo_lab_path)
+        with pytest.raises(RunAborted, match="not confirmed"):
+            go()
+        assert raw.query("OUTP?") in ("0", "OFF")
+        assert raw.query("VOLT?") != "80.0"  # the hazardous value was never set
+
+    def test_scripted_run_needs_the_bench_permission(self, tmp_path, demo_bench_path, demo_lab_path, data_dir):
+        """A scripted run refuses hazardous output unless the bench file permits it."""
+        from verirun.console import QuietConsole
+        from verirun.readings import ScriptedReadings
+
+        readings_csv = tmp_path / "r.csv"
+        readings_csv.write_text("range,at,reading\ndcv-100,20 V,20\ndcv-100,80 V,80\n")
+        bench_text = demo_bench_path.read_text().replace("scripted-hazardous: allow", "scripted-hazardous: refuse")
+        rm = pyvisa.ResourceManager(sim_library(tmp_path / "sim"))
+        raw = rm.open_resource(SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=300)
+        from verirun.lab import load_lab
+
+        context = RunContext(lab=load_lab(demo_lab_path).lab.model_dump(mode="json"), customer={"name": "C", "address": []},
+                             item={"serial": "S"}, operator="op", simulated=True)
+        with pytest.raises(RunAborted, match="does not permit"):
+            execute(procedure=load_procedure_text(HAZARD, "p.yaml"), bench=load_bench_text(bench_text, "b.yaml"),
+                    context=context, readings=ScriptedReadings(readings_csv), console=QuietConsole(),
+                    runs_dir=tmp_path / "runs", reports_dir=tmp_path / "rep", simulate=True,
+                    clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)),
+                    calibrator=Calibrator(raw, "scpi-generic"))
+        assert raw.query("OUTP?") in ("0", "OFF")

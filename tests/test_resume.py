@@ -1,0 +1,198 @@
+"""Stopping, crashing and resuming: no confirmed observation is ever lost."""
+
+from __future__ import annotations
+
+import datetime as dt
+import json
+import os
+import shutil
+import signal
+import subprocess
+import sys
+import time
+
+import pytest
+
+from verirun.cli import main
+from verirun.integrity import problems
+from verirun.record import read_journal
+
+ROOT_ARGS = None
+
+
+def run_cli(*args):
+    return main([str(a) for a in args])
+
+
+def demo_run(tmp_path, demo_procedure_path, demo_bench_path, readings, extra=()):
+    return run_cli("run", demo_procedure_path, "--bench", demo_bench_path, "--simulate", "--readings", readings,
+                   "--serial", "SN-7", "--customer", "Test customer", "--runs", tmp_path / "runs",
+                   "--reports", tmp_path / "reports", *extra)
+
+
+def abort_at(data_dir, tmp_path, line_text, replacement):
+    text = (data_dir / "qm40-readings.csv").read_text()
+    assert line_text in text
+    path = tmp_path / "readings-abort.csv"
+    path.write_text(text.replace(line_text, replacement))
+    return path
+
+
+class TestAbortAndResume:
+    def test_abort_then_resume_completes_with_every_observation(self, tmp_path, data_dir, demo_procedure_path,
+                                                                demo_bench_path, capsys):
+        """An operator abort stops the run with its observations kept; resume finishes the rest and
+        the record then verifies and holds all 20 points once each."""
+        readings = abort_at(data_dir, tmp_path, "dcv-50,25 V,25\n", "dcv-50,25 V,abort\n")
+        assert demo_run(tmp_path, demo_procedure_path, demo_bench_path, readings) == 2
+        err = capsys.readouterr().err
+        assert "aborted by the operator at step 7 of 20" in err and "verirun resume" in err
+        (run_dir,) = (tmp_path / "runs").iterdir()
+        before = read_journal(run_dir / "journal.jsonl").documents
+        assert [d["kind"] for d in before].count("observation") == 6
+        assert before[-1]["kind"] == "stop" and before[-1]["status"] == "aborted"
+        assert not list((tmp_path / "reports").glob("*.html"))  # no certificate for an aborted run
+
+        assert run_cli("resume", run_dir, "--readings", data_dir / "qm40-readings.csv",
+                       "--reports", tmp_path / "reports") == 0
+        after = read_journal(run_dir / "journal.jsonl").documents
+        assert after[:len(before)] == before  # nothing rewritten
+        record = json.loads((run_dir / "record.json").read_text())
+        assert record["run"]["status"] == "complete"
+        assert [r["verdict"] != "not-measured" for r in record["points"]] == [True] * 20
+        assert problems(run_dir) == []
+        assert len(list((tmp_path / "reports").glob("*.html"))) == 1
+
+    def test_resume_refuses_a_changed_procedure(self, tmp_path, data_dir, demo_procedure_path, demo_bench_path,
+                                                capsys):
+        """Resume checks the procedure is the one the run started with, by SHA-256."""
+        readings = abort_at(data_dir, tmp_path, "dcv-10,8 V,8.25\n", "dcv-10,8 V,abort\n")
+        demo_run(tmp_path, demo_procedure_path, demo_bench_path, readings)
+        (run_dir,) = (tmp_path / "runs").iterdir()
+        changed = tmp_path / "changed.yaml"
+        changed.write_text(demo_procedure_path.read_text().replace("revision: B", "revision: C"))
+        capsys.readouterr()
+        assert run_cli("resume", run_dir, "--procedure", changed, "--readings", data_dir / "qm40-readings.csv") == 1
+        assert "not the one the run started with" in capsys.readouterr().err
+
+    def test_resume_refuses_another_item(self, tmp_path, data_dir, demo_procedure_path, demo_bench_path, capsys):
+        """Resume refuses when the item serial given is not the run's."""
+        readings = abort_at(data_dir, tmp_path, "dcv-10,8 V,8.25\n", "dcv-10,8 V,abort\n")
+        demo_run(tmp_path, demo_procedure_path, demo_bench_path, readings)
+        (run_dir,) = (tmp_path / "runs").iterdir()
+        capsys.readouterr()
+        assert run_cli("resume", run_dir, "--serial", "OTHER", "--readings", data_dir / "qm40-readings.csv") == 1
+        assert "not 'OTHER'" in capsys.readouterr().err
+
+    def test_nothing_to_resume_on_a_complete_run(self, tmp_path, data_dir, demo_procedure_path, demo_bench_path,
+                                                 capsys):
+        """A complete run is not resumed; the message says so."""
+        demo_run(tmp_path, demo_procedure_path, demo_bench_path, data_dir / "qm40-readings.csv")
+        (run_dir,) = (tmp_path / "runs").iterdir()
+        capsys.readouterr()
+        assert run_cli("resume", run_dir, "--readings", data_dir / "qm40-readings.csv") == 1
+        assert "nothing to resume" in capsys.readouterr().err
+
+    def test_torn_last_line_is_recovered_and_reported(self, tmp_path, data_dir, demo_procedure_path,
+                                                      demo_bench_path, capsys):
+        """A journal whose last line was cut mid-write is resumed: the torn line is dropped and
+        reported, every whole line is kept, and the finished journal verifies."""
+        readings = abort_at(data_dir, tmp_path, "dcv-10,8 V,8.25\n", "dcv-10,8 V,abort\n")
+        demo_run(tmp_path, demo_procedure_path, demo_bench_path, readings)
+        (run_dir,) = (tmp_path / "runs").iterdir()
+        journal = run_dir / "journal.jsonl"
+        whole = read_journal(journal).documents
+        with open(journal, "a", encoding="utf-8") as fh:
+            fh.write('{"kind":"observation","point":"dcv-10@8.0","typed":"8.2')  # power lost mid-line
+        assert read_journal(journal).torn_line is not None
+        assert any("cut off" in p for p in problems(run_dir))
+        capsys.readouterr()
+        assert run_cli("resume", run_dir, "--readings", data_dir / "qm40-readings.csv") == 0
+        assert "cut off" in capsys.readouterr().out
+        docs = read_journal(journal).documents
+        assert docs[:len(whole)] == whole
+        assert problems(run_dir) == []
+        record = json.loads((run_dir / "record.json").read_text())
+        assert any("cut-off last journal line was dropped" in n["text"] for n in record["notes"])
+
+
+def _kill_bench(tmp_path, demo_bench_path):
+    """The demo bench with a settling time, so that a run lasts long enough to be killed mid-way."""
+    bench = tmp_path / "bench-slow.yaml"
+    bench.write_text(demo_bench_path.read_text().replace("settle: 0 s", "settle: 0.04 s"))
+    return bench
+
+
+def _wait_for_observations(tmp_path, count: int, proc, timeout: float = 30.0):
+    """Poll the run's journal until it holds ``count`` observations (or the process ends)."""
+    deadline = time.monotonic() + timeout
+    while time.monotonic() < deadline and proc.poll() is None:
+        found = list((tmp_path / "runs").glob("*/journal.jsonl")) if (tmp_path / "runs").exists() else []
+        text = found[0].read_text(errors="replace") if found else ""
+        if '"kind":"start"' in text and text.count('"kind":"observation"') >= count:
+            return found[0]
+        time.sleep(0.005)
+    return None
+
+
+class TestKilledMidRun:
+    # Kill once the journal holds N observations, then a little later, so the kill lands at
+    # different places: between points, while a point settles, while a line is written.
+    @pytest.mark.parametrize("observed, extra_delay", [
+        (0, 0.0), (1, 0.013), (3, 0.027), (6, 0.0), (9, 0.013), (12, 0.027), (15, 0.0), (18, 0.013),
+    ])
+    def test_sigkill_loses_no_confirmed_observation(self, tmp_path, data_dir, demo_procedure_path,
+                                                    demo_bench_path, observed, extra_delay):
+        """A verirun process killed with SIGKILL at any moment keeps every observation it had
+        journaled; resume finishes the run and the record verifies with all 20 points."""
+        bench = _kill_bench(tmp_path, demo_bench_path)
+        cmd = [sys.executable, "-m", "verirun", "run", str(demo_procedure_path), "--bench", str(bench),
+               "--simulate", "--readings", str(data_dir / "qm40-readings.csv"), "--serial", "KILL",
+               "--customer", "C", "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "reports")]
+        proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        journal = _wait_for_observations(tmp_path, observed, proc)
+        time.sleep(extra_delay)
+        proc.send_signal(signal.SIGKILL)
+        proc.wait(timeout=30)
+        assert journal is not None, "the run ended or stalled before the kill point"
+        run_dir = journal.parent
+        read = read_journal(journal)
+        before = read.documents
+        assert before[0]["kind"] == "start"
+        assert sum(d["kind"] == "observation" for d in before) >= observed
+        assert before[-1]["kind"] != "stop"  # SIGKILL gives no chance to write one
+        assert main(["resume", str(run_dir), "--bench", str(bench), "--readings", str(data_dir / "qm40-readings.csv"),
+                     "--reports", str(tmp_path / "reports")]) == 0
+        after = read_journal(run_dir / "journal.jsonl").documents
+        assert after[:len(before)] == before
+        observed_points = [d["point"] for d in after if d["kind"] == "observation"]
+        assert len(observed_points) == len(set(observed_points)) == 20
+        assert problems(run_dir) == []
+
+
+class TestSigterm:
+    def test_sigterm_puts_output_in_standby_and_stops_resumable(self, tmp_path, data_dir, demo_procedure_path,
+                                                                demo_bench_path):
+        """SIGTERM during a run ends it as an interruption: exit code 2, a stop document saying
+        so, and the run left resumable."""
+        bench = _kill_bench(tmp_path, demo_bench_path)
+        cmd = [sys.executable, "-m", "verirun", "run", str(demo_procedure_path), "--bench", str(bench),
+               "--simulate", "--readings", str(data_dir / "qm40-readings.csv"), "--serial", "TERM",
+               "--customer", "C", "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "reports")]
+        proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
+        deadline = time.monotonic() + 20
+        journal = None
+        while time.monotonic() < deadline:  # wait until the run has begun journaling
+            found = list((tmp_path / "runs").glob("*/journal.jsonl")) if (tmp_path / "runs").exists() else []
+            if found and found[0].read_text().count("observation") >= 2:
+                journal = found[0]
+                break
+            time.sleep(0.02)
+        assert journal is not None, "the run never started"
+        proc.send_signal(signal.SIGTERM)
+        _, err = proc.communicate(timeout=30)
+        assert proc.returncode == 2
+        assert "standby" in err and "verirun resume" in err
+        docs = read_journal(journal).documents
+        assert docs[-1]["kind"] == "stop" and docs[-1]["status"] == "aborted"
+        assert "SIGTERM" in docs[-1]["reason"] or "interrupted" in docs[-1]["reason"]
