@@ -42,6 +42,9 @@ def _parser() -> argparse.ArgumentParser:
     run.add_argument("--asset", help="the customer's asset number of the item")
     run.add_argument("--condition", default="No damage or defect seen on receipt.",
                      help="condition of the item as received")
+    run.add_argument("--received", help="date the item was received (YYYY-MM-DD; default: the run's date)")
+    run.add_argument("--temperature", help="laboratory temperature at the start, in °C (asked at the console if not given)")
+    run.add_argument("--humidity", help="relative humidity at the start, in %% (asked at the console if not given)")
     run.add_argument("--customer", required=True, help="customer's name")
     run.add_argument("--customer-address", action="append", default=[], help="a line of the customer's address")
     run.add_argument("--operator", default=os.environ.get("USER", "operator"), help="who runs the verification")
@@ -90,8 +93,18 @@ def _parser() -> argparse.ArgumentParser:
     verify.add_argument("runs", type=Path, nargs="+", help="run folders")
 
     certify = sub.add_parser("certify", help="render certificates again from stored run records")
-    certify.add_argument("runs", type=Path, nargs="+", help="run folders or record.json files")
+    certify.add_argument("runs", type=Path, nargs="+",
+                         help="run folders, record.json files, or folders of run folders")
     certify.add_argument("--reports", type=Path, default=Path("reports"), help="folder for certificates")
+    certify.add_argument("--pdf", action="store_true", help="write a PDF beside each HTML certificate (needs WeasyPrint)")
+    certify.add_argument("--workers", type=int, help="processes to render with (default: one per core)")
+
+    runs = sub.add_parser("runs", help="list stored runs")
+    runs.add_argument("--runs", type=Path, default=Path("runs"), help="folder of run folders")
+    runs.add_argument("--item", help="only runs of this item serial (exact)")
+    runs.add_argument("--since", help="only runs started on or after this date (YYYY-MM-DD)")
+    runs.add_argument("--until", help="only runs started on or before this date (YYYY-MM-DD)")
+    runs.add_argument("--json", action="store_true", help="print a JSON list")
     return parser
 
 
@@ -312,28 +325,95 @@ def _summary(rich, finished) -> None:
 
 
 def _cmd_certify(args) -> int:
-    from verirun.certificate.render import write_certificate
-    from verirun.errors import RecordError
-    from verirun.integrity import verified_record
+    from rich.console import Console as RichConsole
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
-    failed = 0
-    for path in args.runs:
+    from verirun.certificate.batch import certify_many, find_runs
+
+    runs = find_runs(args.runs)
+    if not runs:
+        _err("error: no stored runs found there")
+        return EXIT_ERROR
+    if args.pdf:
+        from verirun.certificate.render import write_pdf  # noqa: F401  (fail early if missing)
         try:
-            record = verified_record(path)
-            if record["run"]["status"] != "complete":
-                raise RecordError(f"{path}: the run is {record['run']['status']}, not complete; resume it"
-                                  " before a certificate can be issued")
-            out = write_certificate(record, args.reports)
-        except RecordError as exc:
-            failed += 1
-            _err(f"error: {exc}")
-            continue
-        print(f"{path}: certificate {out}")
+            import weasyprint  # noqa: F401
+        except ImportError:
+            _err("error: PDF output needs WeasyPrint: pip install 'verirun[pdf]' (or -e '.[pdf]')")
+            return EXIT_ERROR
+    rich = RichConsole(highlight=False, stderr=True)
+    columns = (TextColumn("certifying"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn())
+    with Progress(*columns, console=rich, transient=True, disable=len(runs) < 2) as progress:
+        task = progress.add_task("certify", total=len(runs))
+        outcomes = certify_many(runs, args.reports, pdf=args.pdf, workers=args.workers,
+                                progress=lambda _: progress.advance(task))
+    failed = [o for o in outcomes if o.error]
+    for outcome in outcomes:
+        if outcome.certificate:
+            extra = f" and {outcome.pdf}" if outcome.pdf else ""
+            print(f"{outcome.run}: certificate {outcome.certificate}{extra}"
+                  + (f" ({outcome.note})" if outcome.note else ""))
+    for outcome in failed:
+        _err(f"error: {outcome.error}")
+    rendered = len(outcomes) - len(failed)
+    print(f"{rendered} certificate{'s' if rendered != 1 else ''} rendered, {len(failed)} failed")
     return EXIT_ERROR if failed else EXIT_OK
 
 
+def _cmd_runs(args) -> int:
+    from verirun.catalogue import list_runs
+
+    rows = list_runs(args.runs, item=args.item, since=_date(args.since, "--since"),
+                     until=_date(args.until, "--until"))
+    if args.json:
+        print(json.dumps(rows, ensure_ascii=False, indent=1))
+        return EXIT_OK
+    from rich.console import Console as RichConsole
+    from rich.table import Table
+
+    table = Table(title=f"Runs in {args.runs}" if rows else None)
+    for name in ("run", "item", "procedure", "date", "verdict", "status"):
+        table.add_column(name)
+    for row in rows:
+        table.add_row(row["run"], row["item"] or "", f"{row['procedure']} rev {row['revision']}", row["date"],
+                      row["verdict"], row["status"])
+    console = RichConsole(highlight=False)
+    if rows:
+        console.print(table)
+    else:
+        console.print(f"no runs in {args.runs}" + (" match" if args.item or args.since or args.until else ""))
+    return EXIT_OK
+
+
+def _date(text: str | None, option: str) -> str | None:
+    import datetime as dt
+
+    from verirun.errors import UnitError
+
+    if text is None:
+        return None
+    try:
+        return dt.date.fromisoformat(text.strip()).isoformat()
+    except ValueError:
+        raise UnitError(f"{option}: {text!r} is not a date; write it as YYYY-MM-DD") from None
+
+
+def _environment(temperature: str | None, humidity: str | None, readings) -> dict:
+    """The conditions at the start: from the options, else asked of the operator at the console."""
+    from verirun.environment import ask_conditions, parse_humidity, parse_temperature
+
+    env = {}
+    if temperature is not None:
+        env["temperature_c"] = parse_temperature(temperature, "--temperature")
+    if humidity is not None:
+        env["humidity_pct"] = parse_humidity(humidity, "--humidity")
+    if readings.interactive and ("temperature_c" not in env or "humidity_pct" not in env):
+        env = {**ask_conditions(readings, have=env), **env}
+    return env
+
+
 def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, context_item,
-         customer, operator) -> int:
+         customer, operator, environment=None) -> int:
     from rich.console import Console as RichConsole
 
     from verirun.bench.config import load_bench
@@ -349,7 +429,7 @@ def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, cont
     rich = RichConsole(highlight=False)
     console = Console(rich) if readings.interactive else QuietConsole(echo=rich)
     context = RunContext(lab=lab.lab.model_dump(mode="json"), customer=customer, item=context_item,
-                         operator=operator, simulated=simulate)
+                         operator=operator, simulated=simulate, environment=environment or {})
     if simulate:
         rich.print("[bold]Dry run on the simulated calibrator[/] (no real instrument is driven).")
     if not readings.interactive:
@@ -367,10 +447,10 @@ def _cmd_demo(args) -> int:
     with demo_files() as demo:
         return _run(args, procedure_path=demo["procedure"], bench_path=demo["bench"], lab_path=demo["lab"],
                     readings=VirtualMeter(demo["meter"]), simulate=True,
-                    context_item={"serial": "QM40-118273", "asset": "AWB-E-0457",
+                    context_item={"serial": "QM40-118273", "asset": "AWB-E-0457", "received": None,
                                   "condition": "Case scuffed; no damage affecting use. Battery 1.5 V fitted."},
                     customer={"name": "Ashgrove Water Board", "address": ["Pumping Station 3", "Ashgrove AG2 7LP"]},
-                    operator="demo technician")
+                    operator="demo technician", environment={"temperature_c": 23.1, "humidity_pct": 41.0})
 
 
 def _cmd_run(args) -> int:
@@ -384,17 +464,19 @@ def _cmd_run(args) -> int:
         readings = VirtualMeter(args.virtual_meter)
     else:
         readings = Console()
-    item = {"serial": args.serial, "asset": args.asset, "condition": args.condition}
+    item = {"serial": args.serial, "asset": args.asset, "condition": args.condition,
+            "received": _date(args.received, "--received")}
+    environment = _environment(args.temperature, args.humidity, readings)
     customer = {"name": args.customer, "address": args.customer_address}
     if args.lab is None:
         with demo_files() as demo:
             return _run(args, procedure_path=args.procedure, bench_path=args.bench, lab_path=demo["lab"],
                         readings=readings, simulate=args.simulate, context_item=item, customer=customer,
-                        operator=args.operator)
+                        operator=args.operator, environment=environment)
     return _run(args, procedure_path=args.procedure, bench_path=args.bench, lab_path=args.lab,
                 readings=readings, simulate=args.simulate, context_item=item, customer=customer,
-                operator=args.operator)
+                operator=args.operator, environment=environment)
 
 
 _COMMANDS = {"check": _cmd_check, "window": _cmd_window, "certify": _cmd_certify, "demo": _cmd_demo,
-             "run": _cmd_run, "resume": _cmd_resume, "verify": _cmd_verify, "amend": _cmd_amend}
+             "run": _cmd_run, "resume": _cmd_resume, "verify": _cmd_verify, "amend": _cmd_amend, "runs": _cmd_runs}

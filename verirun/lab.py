@@ -20,6 +20,17 @@ class Signatory(Strict):
     title: StrictStr
 
 
+class Wording(Strict):
+    """Standard sentences of the lab's certificates; each has a plain default."""
+
+    relate_only: StrictStr = "The results relate only to the item calibrated."
+    reproduction: StrictStr = ("This certificate shall not be reproduced except in full without the"
+                               " written approval of the laboratory.")
+    safety: StrictStr = ("Safety: meters and calibrators used at these levels can present a shock"
+                         " hazard. Follow local electrical-safety codes, the makers' instructions and"
+                         " licensed practice.")
+
+
 class LabInfo(Strict):
     """The laboratory's identity as printed on its certificates."""
 
@@ -30,6 +41,7 @@ class LabInfo(Strict):
     signatory: Signatory
     traceability: StrictStr
     conditions: StrictStr | None = None
+    wording: Wording = Wording()
 
 
 class LabFile(Strict):

@@ -94,7 +94,7 @@ def build_record(documents: list[dict], source: str = "journal") -> dict:
                 "documents": len(documents), "revision": revision},
         "lab": start["lab"],
         "customer": {"name": None, "address": [], **start["customer"]},
-        "item": {"serial": None, "asset": None, "condition": None, **start["item"]},
+        "item": {"serial": None, "asset": None, "condition": None, "received": None, **start["item"]},
         "environment": start.get("environment", {}),
         "procedure": start["procedure"], "bench": start["bench"],
         "meter": procedure.file.meter.model_dump(by_alias=True),

@@ -82,11 +82,33 @@ def render_html(record: dict) -> str:
                            replaces=previous_number(record), template_version=TEMPLATE_VERSION)
 
 
+def certificate_path(record: dict, reports_dir: str | Path) -> Path:
+    """Where the certificate of ``record`` is written: ``reports_dir``/<certificate number>.html."""
+    return Path(reports_dir) / f"{safe_file_name(certificate_number(record))}.html"
+
+
+def write_pdf(html: str, path: str | Path) -> Path:
+    """Write the certificate ``html`` as a PDF (needs the optional WeasyPrint).
+
+    Raises
+    ------
+    VerirunError
+        If WeasyPrint is not installed.
+    """
+    from verirun.errors import VerirunError
+
+    try:
+        import weasyprint
+    except ImportError:
+        raise VerirunError("PDF output needs WeasyPrint: pip install 'verirun[pdf]' (or -e '.[pdf]')") from None
+    weasyprint.HTML(string=html).write_pdf(str(path))
+    return Path(path)
+
+
 def write_certificate(record: dict, reports_dir: str | Path) -> Path:
     """Render ``record`` into ``reports_dir``/<certificate number>.html; return the path."""
-    folder = Path(reports_dir)
-    folder.mkdir(parents=True, exist_ok=True)
-    path = folder / f"{safe_file_name(certificate_number(record))}.html"
+    path = certificate_path(record, reports_dir)
+    path.parent.mkdir(parents=True, exist_ok=True)
     data = render_html(record).encode("utf-8")
     tmp = path.with_suffix(".tmp")
     tmp.write_bytes(data)
