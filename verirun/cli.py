@@ -45,6 +45,9 @@ def _parser() -> argparse.ArgumentParser:
     run.add_argument("--received", help="date the item was received (YYYY-MM-DD; default: the run's date)")
     run.add_argument("--temperature", help="laboratory temperature at the start, in °C (asked at the console if not given)")
     run.add_argument("--humidity", help="relative humidity at the start, in %% (asked at the console if not given)")
+    run.add_argument("--as-left-of", type=Path, metavar="RUN",
+                     help="this run is the as-left pass after an adjustment; RUN is the as-found run")
+    run.add_argument("--adjustment", default="", help="with --as-left-of: what was adjusted")
     run.add_argument("--customer", required=True, help="customer's name")
     run.add_argument("--customer-address", action="append", default=[], help="a line of the customer's address")
     run.add_argument("--operator", default=os.environ.get("USER", "operator"), help="who runs the verification")
@@ -413,7 +416,7 @@ def _environment(temperature: str | None, humidity: str | None, readings) -> dic
 
 
 def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, context_item,
-         customer, operator, environment=None) -> int:
+         customer, operator, environment=None, as_left_of=None, adjustment="") -> int:
     from rich.console import Console as RichConsole
 
     from verirun.bench.config import load_bench
@@ -428,8 +431,14 @@ def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, cont
     lab = load_lab(lab_path)
     rich = RichConsole(highlight=False)
     console = Console(rich) if readings.interactive else QuietConsole(echo=rich)
+    as_found = None
+    if as_left_of is not None:
+        from verirun.session import as_found_of
+
+        as_found = as_found_of(as_left_of, serial=context_item["serial"], procedure=procedure, adjustment=adjustment)
     context = RunContext(lab=lab.lab.model_dump(mode="json"), customer=customer, item=context_item,
-                         operator=operator, simulated=simulate, environment=environment or {})
+                         operator=operator, simulated=simulate, environment=environment or {},
+                         as_found=as_found)
     if simulate:
         rich.print("[bold]Dry run on the simulated calibrator[/] (no real instrument is driven).")
     if not readings.interactive:
@@ -472,10 +481,12 @@ def _cmd_run(args) -> int:
         with demo_files() as demo:
             return _run(args, procedure_path=args.procedure, bench_path=args.bench, lab_path=demo["lab"],
                         readings=readings, simulate=args.simulate, context_item=item, customer=customer,
-                        operator=args.operator, environment=environment)
+                        operator=args.operator, environment=environment, as_left_of=args.as_left_of,
+                        adjustment=args.adjustment)
     return _run(args, procedure_path=args.procedure, bench_path=args.bench, lab_path=args.lab,
                 readings=readings, simulate=args.simulate, context_item=item, customer=customer,
-                operator=args.operator, environment=environment)
+                operator=args.operator, environment=environment, as_left_of=args.as_left_of,
+                adjustment=args.adjustment)
 
 
 _COMMANDS = {"check": _cmd_check, "window": _cmd_window, "certify": _cmd_certify, "demo": _cmd_demo,

@@ -33,6 +33,8 @@ class RunContext:
     operator: str
     simulated: bool
     environment: dict = field(default_factory=dict)
+    #: For an as-left pass after an adjustment: the as-found run's results (see as_found_of).
+    as_found: dict | None = None
 
 
 @dataclass
@@ -65,6 +67,7 @@ def start_document(*, uid: str, time: str, procedure: Procedure, bench: Bench, i
                                  "traceability": cal.traceability}},
         "lab": context.lab, "customer": context.customer, "item": context.item,
         "operator": context.operator, "environment": context.environment,
+        **({"as_found": context.as_found} if context.as_found else {}),
     }
 
 

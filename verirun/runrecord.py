@@ -96,6 +96,7 @@ def build_record(documents: list[dict], source: str = "journal") -> dict:
         "customer": {"name": None, "address": [], **start["customer"]},
         "item": {"serial": None, "asset": None, "condition": None, "received": None, **start["item"]},
         "environment": start.get("environment", {}),
+        **({"as_found": start["as_found"]} if start.get("as_found") else {}),
         "procedure": start["procedure"], "bench": start["bench"],
         "meter": procedure.file.meter.model_dump(by_alias=True),
         "decision_rule": {"rule": procedure.rule.name, "statement": procedure.rule.describe(),

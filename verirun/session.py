@@ -203,6 +203,32 @@ def close_run(run_dir: Path) -> dict | None:
     return record
 
 
+def as_found_of(run: Path, *, serial: str, procedure: Procedure, adjustment: str) -> dict:
+    """The as-found results an as-left run carries, from the verified earlier run ``run``.
+
+    Raises
+    ------
+    RecordError
+        If the earlier run does not verify, is not complete, or is of another item or procedure.
+    """
+    from verirun.certificate.render import certificate_number
+    from verirun.integrity import verified_record
+
+    record = verified_record(run)
+    if record["run"]["status"] != "complete":
+        raise RecordError(f"{run}: the as-found run is {record['run']['status']}, not complete")
+    if record["item"].get("serial") != serial:
+        raise RecordError(f"{run}: the as-found run is of item {record['item'].get('serial')!r}, not {serial!r}")
+    if record["procedure"]["id"] != procedure.id:
+        raise RecordError(f"{run}: the as-found run followed procedure {record['procedure']['id']},"
+                          f" not {procedure.id}")
+    if not adjustment.strip():
+        raise RecordError("say what was adjusted (--adjustment); it is printed on the certificate")
+    return {"run": record["run"]["uid"], "certificate": certificate_number(record),
+            "date": record["run"]["started"][:10], "adjustment": adjustment.strip(),
+            "points": record["points"], "summary": record["summary"]}
+
+
 @contextlib.contextmanager
 def demo_files():
     """Paths of the demo's procedure, bench, lab profile and virtual meter (packaged)."""

@@ -72,14 +72,19 @@ def render_html(record: dict) -> str:
     if _ENV is None:
         _ENV = _environment()
     template = _ENV.get_template("certificate.html.j2")
-    ranges = []
+    as_found = record.get("as_found")
+    return template.render(record=record, ranges=_ranges(record["ranges"], record["points"]),
+                           as_found_ranges=_ranges(record["ranges"], as_found["points"]) if as_found else [],
+                           number=certificate_number(record), replaces=previous_number(record),
+                           template_version=TEMPLATE_VERSION)
+
+
+def _ranges(ranges: list[dict], points: list[dict]) -> list[dict]:
+    """Each range of the record with its rows, in the procedure's order."""
     by_range: dict[str, list[dict]] = {}
-    for row in sorted(record["points"], key=lambda r: r["index"]):
+    for row in sorted(points, key=lambda r: r["index"]):
         by_range.setdefault(row["range"], []).append(row)
-    for rng in record["ranges"]:
-        ranges.append({**rng, "rows": by_range.get(rng["id"], [])})
-    return template.render(record=record, ranges=ranges, number=certificate_number(record),
-                           replaces=previous_number(record), template_version=TEMPLATE_VERSION)
+    return [{**rng, "rows": by_range.get(rng["id"], [])} for rng in ranges]
 
 
 def certificate_path(record: dict, reports_dir: str | Path) -> Path:

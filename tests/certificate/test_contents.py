@@ -1,0 +1,181 @@
+"""The demo certificate holds what ISO/IEC 17025:2017 7.8.2.1, 7.8.4 and 7.8.6 ask of it.
+
+Each test parses the rendered HTML and checks one item, naming its clause.
+"""
+
+from __future__ import annotations
+
+import re
+
+import pytest
+from bs4 import BeautifulSoup
+
+from verirun.cli import main
+
+
+@pytest.fixture(scope="module")
+def cert(tmp_path_factory):
+    """A certificate of the demo procedure run with scripted readings (4 points fail)."""
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[2]
+    tmp = tmp_path_factory.mktemp("contents")
+    data = root / "tests" / "data" / "qm40-readings.csv"
+    readings = tmp / "readings.csv"
+    readings.write_text(data.read_text().replace("dcv-50,25 V,25\n", "dcv-50,25 V,skip pointer stuck at zero\n"))
+    assert main(["run", str(root / "procedures" / "qm40-analog-multimeter.yaml"),
+                 "--bench", str(root / "verirun" / "demo" / "bench-sim.yaml"), "--simulate",
+                 "--readings", str(readings), "--serial", "QM40-000017", "--asset", "AST-5",
+                 "--customer", "Brightwater Pumping Co", "--customer-address", "1 Weir Lane",
+                 "--received", "2026-11-28", "--temperature", "23.4", "--humidity", "44",
+                 "--condition", "Pointer bent; readable.",
+                 "--runs", str(tmp / "runs"), "--reports", str(tmp / "reports")]) == 0
+    (path,) = (tmp / "reports").glob("*.html")
+    html = path.read_text(encoding="utf-8")
+    return BeautifulSoup(html, "html.parser"), html, path
+
+
+def text_of(soup, selector):
+    node = soup.select_one(selector)
+    assert node is not None, selector
+    return " ".join(node.get_text(" ").split())
+
+
+class TestClause7821:
+    def test_a_title(self, cert):
+        """7.8.2.1 a): a title."""
+        soup, _, _ = cert
+        assert soup.find("h1").get_text(strip=True) == "Certificate of Calibration"
+
+    def test_b_c_lab_name_address_and_place(self, cert):
+        """7.8.2.1 b) and c): the lab's name and address, and where the work was done, from the lab profile."""
+        soup, html, _ = cert
+        assert "Tern Hollow Calibration Laboratory" in text_of(soup, "header.cert")
+        assert "Unit 4, Millrace Yard" in text_of(soup, "header.cert")
+        assert "electrical bay, bench 2" in text_of(soup, "#item")
+
+    def test_d_unique_number_on_every_page_and_end_mark(self, cert):
+        """7.8.2.1 d): a unique identification on every page (print footer) and a clear end mark."""
+        soup, html, path = cert
+        number = text_of(soup, "#certificate-number")
+        assert re.fullmatch(r"THCL-\d{8}-[0-9A-F]{8}", number)
+        assert path.stem == number
+        assert f'content: "Certificate {number}"' in html and "counter(pages)" in html
+        assert text_of(soup, ".end-mark") == "END OF CERTIFICATE"
+
+    def test_e_customer(self, cert):
+        """7.8.2.1 e): the customer's name and contact information."""
+        soup, _, _ = cert
+        assert "Brightwater Pumping Co" in text_of(soup, "#item") and "1 Weir Lane" in text_of(soup, "#item")
+
+    def test_f_method_and_n_deviations(self, cert):
+        """7.8.2.1 f) and n): the method (procedure and revision) and deviations from it, a skipped
+        point with its reason."""
+        soup, _, _ = cert
+        assert "TH-VP-040 revision B" in text_of(soup, "#method")
+        deviations = text_of(soup, "#deviations")
+        assert "skipped" in deviations and "pointer stuck at zero" in deviations and "25 V DC" in deviations
+
+    def test_g_item_description_identification_condition(self, cert):
+        """7.8.2.1 g): description, unambiguous identification and condition of the item."""
+        soup, _, _ = cert
+        item = text_of(soup, "#item")
+        assert "analog multimeter" in item and "Quillmark Instruments QM-40" in item
+        assert "QM40-000017" in item and "AST-5" in item and "Pointer bent; readable." in item
+
+    def test_h_i_j_dates(self, cert):
+        """7.8.2.1 h), i), j): dates of receipt, of calibration and of issue."""
+        soup, _, _ = cert
+        assert text_of(soup, "#date-received") == "2026-11-28"
+        assert re.fullmatch(r"\d{4}-\d{2}-\d{2}", text_of(soup, "#date-calibrated"))
+        assert "Date of issue" in text_of(soup, "#authorisation")
+
+    def test_l_results_relate_only_to_the_item(self, cert):
+        """7.8.2.1 l): the statement that the results relate only to the item calibrated."""
+        soup, _, _ = cert
+        assert "relate only to the item calibrated" in text_of(soup, "#relate-only")
+
+    def test_m_results_with_units(self, cert):
+        """7.8.2.1 m): results with their units, per range, as a table."""
+        soup, _, _ = cert
+        tables = soup.select("table.results")
+        assert len(tables) == 6
+        first = tables[0].select("tbody tr")[0].get_text(" ")
+        assert " V" in first and "PASS" in first
+        ohms = soup.select_one('table[data-range="ohm-x100"]').get_text(" ")
+        assert "kΩ" in ohms and "°" in ohms
+
+    def test_o_authorised_by(self, cert):
+        """7.8.2.1 o): who authorised the certificate, from the lab profile."""
+        soup, _, _ = cert
+        assert "M. Okonkwo-Hale, Quality Manager" in text_of(soup, "#authorisation")
+
+
+class TestClause784And786:
+    def test_uncertainty_with_coverage_factor_and_probability(self, cert):
+        """7.8.4.1 a) with 7.8.3.1 c): each result's expanded uncertainty, with its coverage factor
+        and coverage probability stated."""
+        soup, _, _ = cert
+        assert "U (k = 2)" in text_of(soup, "table.results thead")
+        statement = text_of(soup, "#uncertainty-statement")
+        assert "k = 2" in statement and "95 %" in statement
+
+    def test_environmental_conditions(self, cert):
+        """7.8.4.1 b): the conditions under which the calibration was made."""
+        soup, _, _ = cert
+        env = text_of(soup, "#environment")
+        assert "23.4 °C" in env and "44 % relative humidity" in env
+
+    def test_traceability_and_standards(self, cert):
+        """7.8.4.1 c) and 6.5: the standards used, their certificates and due dates, and how the
+        results are metrologically traceable."""
+        soup, _, _ = cert
+        method = text_of(soup, "#method")
+        assert "TH-STD-011" in method and "TH-CC-2026-0117" in method and "due 2099-12-31" in method
+        assert "traceable to national measurement standards" in method
+
+    def test_statement_of_conformity_and_decision_rule(self, cert):
+        """7.8.6.2: the statement of conformity says which results it covers and the decision rule."""
+        soup, _, _ = cert
+        assert "Simple acceptance (ILAC-G8:09/2019 4.2.1" in text_of(soup, "#decision-rule")
+        overall = text_of(soup, "#overall")
+        assert "does NOT conform" in overall and "4 of 20 points" in overall and "1 skipped" in overall
+
+    def test_as_found_and_as_left(self, cert, tmp_path):
+        """7.8.4.1 d): where the item was adjusted, results as found and as left are both given."""
+        from pathlib import Path
+
+        root = Path(__file__).resolve().parents[2]
+        proc, bench = root / "procedures" / "qm40-analog-multimeter.yaml", root / "verirun" / "demo" / "bench-sim.yaml"
+        data = root / "tests" / "data" / "qm40-readings.csv"
+        common = ["--bench", str(bench), "--simulate", "--serial", "QM40-5", "--customer", "C",
+                  "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "rep")]
+        assert main(["run", str(proc), "--readings", str(data), *common]) == 0
+        (found_run,) = (tmp_path / "runs").iterdir()
+        left = tmp_path / "left.csv"
+        left.write_text(data.read_text().replace("dcv-10,8 V,8.25", "dcv-10,8 V,8.0"))
+        assert main(["run", str(proc), "--readings", str(left), *common, "--as-left-of", str(found_run),
+                     "--adjustment", "span trimmer reset"]) == 0
+        newest = max((tmp_path / "rep").glob("*.html"), key=lambda p: p.stat().st_mtime)
+        soup = BeautifulSoup(newest.read_text(), "html.parser")
+        assert len(soup.select('table[data-pass="as-found"]')) == 6
+        assert len(soup.select('table[data-pass="as-left"]')) == 6
+        assert "span trimmer reset" in text_of(soup, "#adjustment")
+        row_found = soup.select_one('table[data-pass="as-found"][data-range="dcv-10"] tr[data-key="dcv-10@8.0"]')
+        row_left = soup.select_one('table[data-pass="as-left"][data-range="dcv-10"] tr[data-key="dcv-10@8.0"]')
+        assert "FAIL" in row_found.get_text() and "PASS" in row_left.get_text()
+
+    def test_as_left_of_another_item_is_refused(self, tmp_path, capsys):
+        """An as-left run must follow an as-found run of the same item."""
+        from pathlib import Path
+
+        root = Path(__file__).resolve().parents[2]
+        proc, bench = root / "procedures" / "qm40-analog-multimeter.yaml", root / "verirun" / "demo" / "bench-sim.yaml"
+        data = root / "tests" / "data" / "qm40-readings.csv"
+        common = ["--bench", str(bench), "--simulate", "--readings", str(data), "--customer", "C",
+                  "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "rep")]
+        assert main(["run", str(proc), "--serial", "ONE", *common]) == 0
+        (found_run,) = (tmp_path / "runs").iterdir()
+        assert main(["run", str(proc), "--serial", "TWO", *common, "--as-left-of", str(found_run),
+                     "--adjustment", "x"]) == 1
+        assert "not 'TWO'" in capsys.readouterr().err
