@@ -127,39 +127,41 @@ class Engine:
         points = [p for p in plan(self.procedure, self.bench) if p.key not in done]
         cal = self.calibrator
         status, reason = "failed", "the run did not finish"
+        self._where = "identify the calibrator"
         try:
             with output_guard(cal):
-                identity = self._identify(context.simulated)
+                identity, problem = self._identify()
                 if resume is None:
+                    # Written even when the identity is refused, so the journal says why it stopped.
                     self.journal.append(start_document(uid=uid, time=iso(self.clock.now()),
                                                        procedure=self.procedure, bench=self.bench,
                                                        identity=identity, context=context))
-                else:
-                    started_with = resume["bench"]["calibrator"]["identity"]
-                    if identity != started_with:
-                        raise BenchError("the calibrator is not the one this run started with, so the"
-                                         f" run cannot be resumed on it (started with {started_with!r})",
-                                         command=cal.profile.commands.identify, answer=identity,
-                                         step="identify the calibrator")
+                if problem is not None:
+                    raise problem
+                if resume is not None:
+                    self._check_same_calibrator(identity, resume)
                     self.journal.append({"kind": "resume", "time": iso(self.clock.now()),
                                          "identity": identity, "pending": len(points),
                                          "recovered_torn_line": self.journal.recovered is not None})
+                self._clear_stale_errors()
                 self.console.cautions()
                 for number, point in enumerate(points):
+                    self._where = self._step_name(point)
                     self._point(point, connect=point.first_of_range or number == 0)
             status, reason = "complete", None
             return Outcome(uid=uid, status=status, reason=reason, counts=dict(self.counts))
         except RunAborted as exc:
             status, reason = "aborted", str(exc)
             raise
-        except KeyboardInterrupt:
-            status, reason = "aborted", "interrupted (Ctrl-C)"
+        except KeyboardInterrupt as exc:
+            status = "aborted"
+            reason = f"{exc or 'interrupted (Ctrl-C)'} at {self._where}"
             raise
         except VerirunError as exc:
             reason = str(exc)
             raise
         except Exception as exc:  # a bug: still close the journal with what happened
-            reason = f"internal error: {type(exc).__name__}: {exc}"
+            reason = f"internal error at {self._where}: {type(exc).__name__}: {exc}"
             raise
         finally:
             if self.journal_started:
@@ -170,52 +172,86 @@ class Engine:
     def journal_started(self) -> bool:
         return self.journal._seq > 0
 
-    def _identify(self, simulated: bool) -> str:
-        identity = self.calibrator.identify()
+    def _identify(self) -> tuple[str | None, BenchError | None]:
+        """The calibrator's identity, and the problem with it (``None`` when it is the right one)."""
+        command = self.calibrator.profile.commands.identify
+        try:
+            identity = self.calibrator.identify()
+        except BenchError as exc:
+            return None, exc.at_step("identify the calibrator")
         expected = self.bench.file.calibrator.identity
         if not identity.startswith(expected):
-            raise BenchError(f"the instrument is not the calibrator the bench file names: expected"
-                             f" an identity starting {expected!r}",
+            return identity, BenchError("the instrument is not the calibrator the bench file names:"
+                                        f" expected an identity starting {expected!r}", command=command,
+                                        answer=identity, step="identify the calibrator")
+        return identity, None
+
+    def _check_same_calibrator(self, identity: str, resume: dict) -> None:
+        started_with = resume["bench"]["calibrator"]["identity"]
+        if identity != started_with:
+            raise BenchError("the calibrator is not the one this run started with, so the run cannot be"
+                             f" resumed on it (started with {started_with!r})",
                              command=self.calibrator.profile.commands.identify, answer=identity,
                              step="identify the calibrator")
-        return identity
+
+    def _clear_stale_errors(self) -> None:
+        """Empty the error queue of what an earlier session left, so it is not blamed on this run;
+        what was there is journaled."""
+        self._where = "clear the calibrator's error queue"
+        try:
+            stale = self.calibrator.errors()
+        except BenchError as exc:
+            raise exc.at_step(self._where) from None
+        if stale:
+            text = "; ".join(f"{code} {message}".strip() for code, message in stale)
+            self.journal.append({"kind": "note", "time": iso(self.clock.now()), "point": None,
+                                 "text": f"errors left in the calibrator's queue before the run, cleared: {text}"})
 
     def _step_name(self, point: TestPoint) -> str:
         return f"step {point.index + 1} of {point.total} ({point.range.id} at {point.stimulus_text()})"
 
     def _point(self, point: TestPoint, *, connect: bool) -> None:
-        if connect:
-            self.calibrator.standby()
-            self.console.connect(point)
-        self._check_hazard(point)
-        while True:
-            try:
+        try:
+            if connect:
+                self.calibrator.standby()
+                self.console.connect(point)
+            self._check_hazard(point)
+            while True:
                 with output_guard(self.calibrator):
                     self.calibrator.source(point.function, point.nominal, point.frequency)
                     self.calibrator.output_on()
                     self.clock.sleep(self.bench.settle_s)
                     self.console.step(point)
                     entry = self._take(point)
-            except BenchError as exc:
-                raise exc.at_step(self._step_name(point)) from None
-            if entry.kind == "repeat":
-                self.console.say("  applying the stimulus again")
-                continue
-            break
+                    # Journaled before anything else happens, standby included: if the output
+                    # cannot be made safe the reading is still kept.
+                    if entry.kind in ("reading", "skip", "abort"):
+                        self._journal_entry(point, entry)
+                if entry.kind == "repeat":
+                    self.console.say("  applying the stimulus again")
+                    continue
+                break
+        except BenchError as exc:
+            raise exc.at_step(self._step_name(point)) from None
         if entry.kind == "abort":
-            self.journal.append({"kind": "note", "time": iso(self.clock.now()), "point": point.key,
-                                 "text": "operator aborted the run" + (f": {entry.text}" if entry.text else "")})
             raise RunAborted(f"aborted by the operator at {self._step_name(point)}; the run can be resumed")
         if entry.kind == "skip":
-            self.journal.append({"kind": "skip", "time": iso(self.clock.now()), "point": point.key,
-                                 "index": point.index, "reason": entry.text, "typed": entry.typed})
             self.counts["skipped"] += 1
             self.console.say(f"  skipped: {entry.text}")
             return
-        self.journal.append(self._observation(point, entry))
         result = evaluate(point, entry.value)
         self.counts[result.verdict] = self.counts.get(result.verdict, 0) + 1
         self.console.result(point, entry, result)
+
+    def _journal_entry(self, point: TestPoint, entry: Entry) -> None:
+        if entry.kind == "reading":
+            self.journal.append(self._observation(point, entry))
+        elif entry.kind == "skip":
+            self.journal.append({"kind": "skip", "time": iso(self.clock.now()), "point": point.key,
+                                 "index": point.index, "reason": entry.text, "typed": entry.typed})
+        else:
+            self.journal.append({"kind": "note", "time": iso(self.clock.now()), "point": point.key,
+                                 "text": "operator aborted the run" + (f": {entry.text}" if entry.text else "")})
 
     def _take(self, point: TestPoint) -> Entry:
         """The next entry that is not a note; notes are journaled as they come."""

@@ -40,6 +40,14 @@ def output_guard(calibrator: "Calibrator") -> Iterator["Calibrator"]:
     """
     try:
         yield calibrator
+    except SafetyError as exc:
+        # An inner guard already found the output state unknown and said where; trying again
+        # here must not replace that message with one that names no step.
+        try:
+            _make_safe(calibrator)
+        except SafetyError:
+            raise exc from exc.__cause__
+        raise
     except BaseException:
         _make_safe(calibrator)  # raising here keeps the block's exception as __context__
         raise

@@ -73,18 +73,33 @@ def render_html(record: dict) -> str:
         _ENV = _environment()
     template = _ENV.get_template("certificate.html.j2")
     as_found = record.get("as_found")
-    return template.render(record=record, ranges=_ranges(record["ranges"], record["points"]),
-                           as_found_ranges=_ranges(record["ranges"], as_found["points"]) if as_found else [],
+    guarded = record["decision_rule"]["rule"] != "simple"
+    return template.render(record=record, ranges=_ranges(record["ranges"], record["points"], guarded),
+                           as_found_ranges=_ranges(record["ranges"], as_found["points"], guarded) if as_found else [],
                            number=certificate_number(record), replaces=previous_number(record),
                            template_version=TEMPLATE_VERSION)
 
 
-def _ranges(ranges: list[dict], points: list[dict]) -> list[dict]:
-    """Each range of the record with its rows, in the procedure's order."""
+def _ranges(ranges: list[dict], points: list[dict], guarded: bool) -> list[dict]:
+    """Each range of the record with its rows and its charts, in the procedure's order.
+
+    Acceptance limits are drawn only under a rule that moves them off the tolerance limits.
+    """
+    from markupsafe import Markup
+
+    from verirun.certificate.charts import arc_chart, error_chart
+
     by_range: dict[str, list[dict]] = {}
     for row in sorted(points, key=lambda r: r["index"]):
         by_range.setdefault(row["range"], []).append(row)
-    return [{**rng, "rows": by_range.get(rng["id"], [])} for rng in ranges]
+    out = []
+    for rng in ranges:
+        rows = by_range.get(rng["id"], [])
+        drawn = rows if guarded else [{k: v for k, v in r.items()
+                                       if k not in ("accept_low_pct", "accept_high_pct")} for r in rows]
+        out.append({**rng, "rows": rows, "error_svg": Markup(error_chart(rng, drawn)),
+                    "arc_svg": Markup(arc_chart(rng, drawn))})
+    return out
 
 
 def certificate_path(record: dict, reports_dir: str | Path) -> Path:
