@@ -35,9 +35,7 @@ def _parser() -> argparse.ArgumentParser:
     run.add_argument("--lab", type=Path, help="the lab profile (YAML); default: the demo lab")
     run.add_argument("--simulate", action="store_true",
                      help="drive the simulated calibrator instead of the bench's instrument (a dry run)")
-    source = run.add_mutually_exclusive_group()
-    source.add_argument("--readings", type=Path, help="take readings from a CSV file (range, at, reading)")
-    source.add_argument("--virtual-meter", type=Path, help="take readings from a virtual meter file")
+    _reading_options(run)
     run.add_argument("--serial", required=True, help="serial number of the item under test")
     run.add_argument("--asset", help="the customer's asset number of the item")
     run.add_argument("--condition", default="No damage or defect seen on receipt.",
@@ -78,9 +76,7 @@ def _parser() -> argparse.ArgumentParser:
     resume.add_argument("run", type=Path, help="the run folder")
     resume.add_argument("--procedure", type=Path, help="the procedure file (default: the one the run started from)")
     resume.add_argument("--bench", type=Path, help="the bench file (default: the one the run started from)")
-    source = resume.add_mutually_exclusive_group()
-    source.add_argument("--readings", type=Path, help="take readings from a CSV file (range, at, reading)")
-    source.add_argument("--virtual-meter", type=Path, help="take readings from a virtual meter file")
+    _reading_options(resume)
     resume.add_argument("--serial", help="serial number of the item (checked against the run's)")
     resume.add_argument("--reports", type=Path, default=Path("reports"), help="folder for certificates")
 
@@ -109,6 +105,36 @@ def _parser() -> argparse.ArgumentParser:
     runs.add_argument("--until", help="only runs started on or before this date (YYYY-MM-DD)")
     runs.add_argument("--json", action="store_true", help="print a JSON list")
     return parser
+
+
+def _reading_options(parser: argparse.ArgumentParser) -> None:
+    source = parser.add_mutually_exclusive_group()
+    source.add_argument("--readings", type=Path, help="take readings from a CSV file (range, at, reading)")
+    source.add_argument("--virtual-meter", type=Path, help="take readings from a virtual meter file")
+
+
+def _reading_source(args):
+    """The operator at the console, or the file the options name."""
+    from verirun.console import Console
+    from verirun.readings import ScriptedReadings, VirtualMeter
+
+    if args.readings:
+        return ScriptedReadings(args.readings)
+    if args.virtual_meter:
+        return VirtualMeter(args.virtual_meter)
+    return Console()
+
+
+def _consoles(readings):
+    """The rich console to print on, and what the engine shows the operator through."""
+    from rich.console import Console as RichConsole
+
+    from verirun.console import QuietConsole
+
+    if readings.interactive:
+        return readings.rich, readings
+    rich = RichConsole(highlight=False)
+    return rich, QuietConsole(echo=rich)
 
 
 def _output_options(parser: argparse.ArgumentParser) -> None:
@@ -296,20 +322,10 @@ def _cmd_verify(args) -> int:
 
 
 def _cmd_resume(args) -> int:
-    from rich.console import Console as RichConsole
-
-    from verirun.console import Console, QuietConsole
-    from verirun.readings import ScriptedReadings, VirtualMeter
     from verirun.session import resume
 
-    if args.readings:
-        readings = ScriptedReadings(args.readings)
-    elif args.virtual_meter:
-        readings = VirtualMeter(args.virtual_meter)
-    else:
-        readings = Console()
-    rich = RichConsole(highlight=False)
-    console = Console(rich) if readings.interactive else QuietConsole(echo=rich)
+    readings = _reading_source(args)
+    rich, console = _consoles(readings)
     finished = resume(run_dir=args.run, procedure_path=args.procedure, bench_path=args.bench,
                       readings=readings, console=console, reports_dir=args.reports, serial=args.serial)
     _summary(rich, finished)
@@ -417,10 +433,8 @@ def _environment(temperature: str | None, humidity: str | None, readings) -> dic
 
 def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, context_item,
          customer, operator, environment=None, as_left_of=None, adjustment="") -> int:
-    from rich.console import Console as RichConsole
-
     from verirun.bench.config import load_bench
-    from verirun.console import Console, QuietConsole
+    from verirun.console import Console
     from verirun.engine import RunContext
     from verirun.lab import load_lab
     from verirun.procedure.load import load_procedure
@@ -429,8 +443,7 @@ def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, cont
     procedure = load_procedure(procedure_path)
     bench = load_bench(bench_path)
     lab = load_lab(lab_path)
-    rich = RichConsole(highlight=False)
-    console = Console(rich) if readings.interactive else QuietConsole(echo=rich)
+    rich, console = _consoles(readings)
     as_found = None
     if as_left_of is not None:
         from verirun.session import as_found_of
@@ -463,16 +476,9 @@ def _cmd_demo(args) -> int:
 
 
 def _cmd_run(args) -> int:
-    from verirun.console import Console
-    from verirun.readings import ScriptedReadings, VirtualMeter
     from verirun.session import demo_files
 
-    if args.readings:
-        readings = ScriptedReadings(args.readings)
-    elif args.virtual_meter:
-        readings = VirtualMeter(args.virtual_meter)
-    else:
-        readings = Console()
+    readings = _reading_source(args)
     item = {"serial": args.serial, "asset": args.asset, "condition": args.condition,
             "received": _date(args.received, "--received")}
     environment = _environment(args.temperature, args.humidity, readings)
