@@ -158,3 +158,13 @@ def format_fixed(value: float, unit: str, decimals_base: int) -> str:
     exponent = round(math.log10(factor))
     decimals = max(decimals_base + exponent, 0)
     return f"{value / factor:.{decimals}f} {prefix}{unit}"
+
+
+def in_band(frequency: float | None, low_hz: float | None, high_hz: float | None) -> bool:
+    """True when ``frequency`` lies in the band ``low_hz`` .. ``high_hz``, ends included.
+
+    A band with no lower end (``None``) holds at every frequency, DC included.
+    """
+    if low_hz is None:
+        return True
+    return frequency is not None and low_hz <= frequency <= high_hz

@@ -14,7 +14,7 @@ from verirun import yamlfile
 from verirun.errors import ProcedureError, UnitError
 from verirun.metrology.uncertainty import CalibratorSpec
 from verirun.procedure.model import FUNCTION_UNITS, QuantityText, Strict
-from verirun.units import parse_quantity, parse_value
+from verirun.units import in_band, parse_quantity, parse_value
 
 #: The bench format version this verirun reads.
 FORMAT = 1
@@ -95,9 +95,7 @@ class SpecLine:
         """True when this line holds for ``value`` (and ``frequency``) of ``function``."""
         if function != self.function or abs(value) > self.range * (1 + 1e-12):
             return False
-        if self.low_hz is None:
-            return True
-        return frequency is not None and self.low_hz <= frequency <= self.high_hz
+        return in_band(frequency, self.low_hz, self.high_hz)
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -15,7 +15,7 @@ from verirun import yamlfile
 from verirun.errors import ProcedureError, UnitError
 from verirun.metrology import decision, scales, tolerance, uncertainty
 from verirun.procedure.model import FUNCTION_UNITS, Accuracy, ProcedureFile, Range
-from verirun.units import parse_value
+from verirun.units import in_band, parse_value
 
 #: The procedure format version this verirun reads.
 FORMAT = 1
@@ -37,9 +37,7 @@ class Band:
 
     def covers(self, frequency: float | None) -> bool:
         """True when this band applies at ``frequency``, ends included."""
-        if self.low_hz is None:
-            return True
-        return frequency is not None and self.low_hz <= frequency <= self.high_hz
+        return in_band(frequency, self.low_hz, self.high_hz)
 
 
 @dataclass(frozen=True, kw_only=True)
