@@ -155,7 +155,7 @@ class Engine:
             raise
         except KeyboardInterrupt as exc:
             status = "aborted"
-            reason = f"{exc or 'interrupted (Ctrl-C)'} at {self._where}"
+            reason = f"{str(exc) or 'interrupted (Ctrl-C)'} at {self._where}"
             raise
         except VerirunError as exc:
             reason = str(exc)

@@ -16,7 +16,7 @@ from typing import Literal, Protocol
 from verirun import yamlfile
 from verirun.errors import ProcedureError, UnitError
 from verirun.metrology import scales
-from verirun.procedure.model import QuantityText, Strict
+from verirun.procedure.model import Number, QuantityText, Strict
 from verirun.procedure.plan import TestPoint
 from verirun.units import format_quantity, parse_quantity, parse_value
 
@@ -161,7 +161,7 @@ class ScriptedReadings:
 class MeterRangeModel(Strict):
     """The invented errors of one range of a virtual meter."""
 
-    gain: float = 1.0
+    gain: Number = 1.0
     offset: QuantityText = 0
     centre: QuantityText | None = None
 
@@ -190,6 +190,17 @@ class VirtualMeter:
         yamlfile.check_format(located, 1, "virtual meter")
         self.model = yamlfile.validate(VirtualMeterFile, located)
         self._located = located
+        problems = []
+        for name, rng in self.model.ranges.items():
+            for key, text, unit in (("offset", rng.offset, None), ("centre", rng.centre, "Ω")):
+                if text is None:
+                    continue
+                try:
+                    parse_quantity(text, unit)
+                except UnitError as exc:
+                    problems.append(located.problem(("ranges", name, key), str(exc)))
+        if problems:
+            raise ProcedureError(problems)
 
     def shown(self, point: TestPoint) -> float:
         """The value the pointer shows at ``point`` before reading to resolution."""

@@ -86,7 +86,10 @@ def parse_quantity(text: str | float | int, expect: str | None = None) -> tuple[
     if isinstance(text, bool):
         raise UnitError(f"expected a number, got {text!r}")
     if isinstance(text, (int, float)):
-        value = float(text)
+        try:
+            value = float(text)
+        except OverflowError:
+            raise UnitError(f"{text!r} is too large a number") from None
         dimension = expect or ""
     else:
         if not isinstance(text, str):

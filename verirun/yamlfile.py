@@ -8,6 +8,7 @@ can act on.
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 from typing import Any, TypeVar
 
@@ -57,7 +58,11 @@ class LocatedData:
 
 
 def format_loc(loc: Path_, located: LocatedData | None = None) -> str:
-    """``("ranges", 2, "points")`` -> ``"ranges[2].points"``, keeping only parts in the file."""
+    """``("ranges", 2, "points")`` -> ``"ranges[2].points"``, keeping only parts in the file.
+
+    A key that is not plain letters, digits, '-', '_' or '.' is shown quoted, so that a key
+    holding a newline or a colon cannot make the message misleading.
+    """
     text = ""
     path: Path_ = ()
     for part in loc:
@@ -68,12 +73,56 @@ def format_loc(loc: Path_, located: LocatedData | None = None) -> str:
         if isinstance(part, int):
             text += f"[{part}]"
         else:
-            text += f".{part}" if text else str(part)
+            name = str(part) if _PLAIN_KEY.fullmatch(str(part)) else repr(str(part))
+            text += f".{name}" if text else name
     return text
 
 
-def _walk(node: yaml.Node, path: Path_, lines: dict[Path_, int], problems: list[tuple[Path_, int, str]]) -> None:
+_PLAIN_KEY = re.compile(r"^[A-Za-z0-9_.-]+$")
+
+#: The most nodes a file may hold (aliases counted each time they are used): a guard against a
+#: few lines of aliases that expand to millions of values.
+MAX_NODES = 200_000
+
+
+class _Loader(yaml.SafeLoader):
+    """The safe loader, with every error building a value reported at that value's line."""
+
+    def construct_object(self, node, deep=False):
+        try:
+            return super().construct_object(node, deep)
+        except yaml.MarkedYAMLError:
+            raise
+        except Exception as exc:  # a tag that does not fit its text, an impossible date ...
+            tag = node.tag.rsplit(":", 1)[-1]
+            value = node.value if isinstance(node, yaml.ScalarNode) else "this value"
+            why = f": {exc}" if isinstance(exc, ValueError) else ""
+            raise yaml.constructor.ConstructorError(
+                None, None, f"{value!r} cannot be read as a {tag}{why}", node.start_mark) from None
+
+
+def _has_surrogate(text: str) -> bool:
+    return any("\ud800" <= c <= "\udfff" for c in text)
+
+
+def _walk(node: yaml.Node, path: Path_, lines: dict[Path_, int], problems: list[tuple[Path_, int, str]],
+          ancestors: set[int], count: list[int]) -> None:
+    count[0] += 1
+    if count[0] > MAX_NODES:
+        if count[0] == MAX_NODES + 1:
+            problems.append((path, node.start_mark.line + 1,
+                             f"the file holds more than {MAX_NODES} values (aliases expanding?)"))
+        return
     lines.setdefault(path, node.start_mark.line + 1)
+    if id(node) in ancestors:
+        problems.append((path, node.start_mark.line + 1, "an alias refers back to its own value"))
+        return
+    if isinstance(node, yaml.ScalarNode):
+        if _has_surrogate(node.value):
+            problems.append((path, node.start_mark.line + 1, "holds a character that is not valid text"
+                             " (a lone surrogate); write the text again"))
+        return
+    ancestors = ancestors | {id(node)}
     if isinstance(node, yaml.MappingNode):
         seen: dict[Any, int] = {}
         for key_node, value_node in node.value:
@@ -85,11 +134,11 @@ def _walk(node: yaml.Node, path: Path_, lines: dict[Path_, int], problems: list[
                 continue
             seen[key] = line
             lines[path + (key,)] = line
-            _walk(value_node, path + (key,), lines, problems)
+            _walk(value_node, path + (key,), lines, problems, ancestors, count)
     elif isinstance(node, yaml.SequenceNode):
         for index, item in enumerate(node.value):
             lines[path + (index,)] = item.start_mark.line + 1
-            _walk(item, path + (index,), lines, problems)
+            _walk(item, path + (index,), lines, problems, ancestors, count)
 
 
 def load_text(text: str, source: str) -> LocatedData:
@@ -98,38 +147,65 @@ def load_text(text: str, source: str) -> LocatedData:
     Raises
     ------
     ProcedureError
-        On a YAML syntax error or duplicate keys, with ``file:line`` for each.
+        On a YAML syntax error, a character YAML refuses, a value that cannot be read as its
+        tag says, an alias that refers to itself, or duplicate keys, with ``file:line`` for each.
     """
     try:
-        node = yaml.compose(text, Loader=yaml.SafeLoader)
-        data = yaml.safe_load(text)
+        node = yaml.compose(text, Loader=_Loader)
+    except yaml.reader.ReaderError as exc:
+        line = text.count("\n", 0, exc.position) + 1
+        char = exc.character if isinstance(exc.character, int) else ord(str(exc.character)[:1] or "\0")
+        raise ProcedureError(f"{source}:{line}: a character YAML does not allow (U+{char:04X}); remove it") from None
     except yaml.MarkedYAMLError as exc:
-        mark = exc.problem_mark or exc.context_mark
-        line = mark.line + 1 if mark is not None else 1
-        raise ProcedureError(f"{source}:{line}: not valid YAML: {exc.problem or exc}") from None
-    except yaml.YAMLError as exc:
-        raise ProcedureError(f"{source}:1: not valid YAML: {exc}") from None
-    except (ValueError, OverflowError, RecursionError) as exc:  # e.g. a timestamp out of range
-        raise ProcedureError(f"{source}:1: not valid YAML: {exc}") from None
+        raise ProcedureError(_marked(exc, source)) from None
+    except (yaml.YAMLError, RecursionError) as exc:
+        raise ProcedureError(f"{source}:1: not valid YAML: {_first_line(exc)}") from None
     lines: dict[Path_, int] = {}
     problems: list[tuple[Path_, int, str]] = []
     if node is not None:
-        _walk(node, (), lines, problems)
-    located = LocatedData(data, lines, source, text)
+        _walk(node, (), lines, problems, set(), [0])
     if problems:
-        raise ProcedureError([f"{source}:{line}: {format_loc(loc)}: {msg}" for loc, line, msg in problems])
-    return located
+        raise ProcedureError([f"{source}:{line}: {format_loc(loc)}: {msg}" if format_loc(loc)
+                              else f"{source}:{line}: {msg}" for loc, line, msg in problems])
+    try:
+        data = yaml.load(text, Loader=_Loader)  # noqa: S506 (a safe loader)
+    except yaml.MarkedYAMLError as exc:
+        raise ProcedureError(_marked(exc, source)) from None
+    except (yaml.YAMLError, RecursionError) as exc:
+        raise ProcedureError(f"{source}:1: not valid YAML: {_first_line(exc)}") from None
+    return LocatedData(data, lines, source, text)
+
+
+def _marked(exc: yaml.MarkedYAMLError, source: str) -> str:
+    mark = exc.problem_mark or exc.context_mark
+    line = mark.line + 1 if mark is not None else 1
+    what = "not valid YAML: " if not isinstance(exc, yaml.constructor.ConstructorError) else ""
+    return f"{source}:{line}: {what}{_first_line(exc.problem or exc)}"
+
+
+def _first_line(exc) -> str:
+    return str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
 
 
 def load_file(path: str | Path) -> LocatedData:
-    """Read and parse a YAML file; a missing or unreadable file is a :class:`ProcedureError`."""
+    """Read and parse a YAML file; a missing, unreadable or non-UTF-8 file is a :class:`ProcedureError`."""
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        raw = path.read_bytes()
     except FileNotFoundError:
-        raise ProcedureError(f"{path}: no such file") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise ProcedureError(f"{path}: cannot read: {exc}") from None
+        raise ProcedureError(f"{path}:1: no such file") from None
+    except IsADirectoryError:
+        raise ProcedureError(f"{path}:1: is a folder, not a file") from None
+    except OSError as exc:
+        raise ProcedureError(f"{path}:1: cannot read: {exc.strerror or exc}") from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        line = raw.count(b"\n", 0, exc.start) + 1
+        raise ProcedureError(f"{path}:{line}: not UTF-8 text (byte 0x{raw[exc.start]:02x}); save the"
+                             " file as UTF-8") from None
+    if text.startswith("\ufeff"):
+        text = text[1:]
     return load_text(text, str(path))
 
 

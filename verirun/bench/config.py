@@ -181,8 +181,11 @@ def _resolve(located: yamlfile.LocatedData) -> Bench:
             spec = CalibratorSpec(output_ppm=output, range_ppm=of_range, floor=floor, level=level)
             accuracy.append(SpecLine(function=line.function, range=rng, spec=spec, low_hz=low, high_hz=high,
                                      text=_spec_text(line)))
-    if timeout == 0 and not problems:
-        problems.append(located.problem(("calibrator", "timeout"), "must be more than zero"))
+    if timeout < 0.001 and not problems:
+        problems.append(located.problem(("calibrator", "timeout"), "must be at least 1 ms"))
+    for key, value in (("hazardous-dc", dc), ("hazardous-ac-rms", rms), ("hazardous-ac-peak", peak)):
+        if value == 0 and not any(f"safety.{key}" in p for p in problems):
+            problems.append(located.problem(("safety", key), "a hazardous-live threshold must be more than zero"))
     if problems:
         raise ProcedureError(problems)
     return Bench(file=model, text=located.text, source=located.source, settle_s=settle,

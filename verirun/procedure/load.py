@@ -66,6 +66,19 @@ class ResolvedRange:
         return tolerance.RangeContext(law=self.law, arc=self.arc, full_scale=self.full_scale,
                                       count=count)
 
+    def meter_terms(self) -> list[uncertainty.Term]:
+        """The meter's own contributions to each reading's uncertainty: its readability (the
+        resolution it is read to) and the procedure's extra terms for the range."""
+        terms = []
+        if self.resolution:
+            if self.resolution_domain == "deg":
+                terms.append(uncertainty.readability_term(division=self.resolution, unit="degrees",
+                                                          arc=self.arc, name="readability"))
+            else:
+                terms.append(uncertainty.readability_term(division=self.resolution, name="readability"))
+        terms.extend(self.extra_terms)
+        return terms
+
     def band_at(self, frequency: float | None) -> Band:
         """The accuracy band that applies at ``frequency`` (checked at load time to exist)."""
         for band in self.bands:
@@ -213,11 +226,26 @@ class _RangeResolver:
         extra = self._extra_terms(arc)
         if not self.ok:
             return None
-        return ResolvedRange(extra_terms=tuple(extra), id=rng.id, function=rng.function, unit=self.unit, law=law, arc=arc,
+        resolved = ResolvedRange(extra_terms=tuple(extra), id=rng.id, function=rng.function, unit=self.unit, law=law, arc=arc,
                              full_scale=full_scale, resolution=resolution,
                              resolution_domain=resolution_domain, bands=tuple(bands),
                              read_on=rng.read_on, connect=rng.connect, points=tuple(points),
                              battery=battery)
+        self._check_arithmetic(resolved)
+        return resolved if self.ok else None
+
+    def _check_arithmetic(self, rng: ResolvedRange) -> None:
+        """Work out each point's window and budget now, so that numbers too extreme to compute
+        are reported at their line instead of stopping a run."""
+        for i, (nominal, freq) in enumerate(rng.points):
+            try:
+                win = tolerance.window(rng.band_at(freq).statement, nominal, rng.context)
+                budget = uncertainty.budget(terms=rng.meter_terms(), nominal=nominal, law=rng.law,
+                                            domain=win.domain)
+                if not all(math.isfinite(x) for x in (win.low, win.half_width, budget.expanded)):
+                    raise ValueError("the numbers are too large to work with")
+            except (ValueError, ArithmeticError) as exc:
+                self.fail(("points", i), f"its window or uncertainty cannot be worked out: {exc}")
 
     def _law(self, full_scale, centre) -> scales.ScaleLaw | None:
         rng = self.rng

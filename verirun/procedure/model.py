@@ -7,11 +7,24 @@ knows each range's function and so the unit each quantity must carry.
 
 from __future__ import annotations
 
-from typing import Literal, Union
+import math
+from typing import Annotated, Literal, Union
 
-from pydantic import BaseModel, ConfigDict, Field, StrictFloat, StrictInt, StrictStr, field_validator
+from pydantic import AfterValidator, BaseModel, ConfigDict, Field, StrictFloat, StrictInt, StrictStr, field_validator
 
-Number = Union[StrictInt, StrictFloat]
+
+def _finite(value: int | float) -> float:
+    try:
+        number = float(value)
+    except OverflowError:
+        raise ValueError("the number is too large") from None
+    if not math.isfinite(number):
+        raise ValueError(f"must be a finite number, got {value!r}")
+    return number
+
+
+#: A plain finite number (an int too large for a float, NaN and infinity are refused).
+Number = Annotated[Union[StrictInt, StrictFloat], AfterValidator(_finite)]
 QuantityText = Union[StrictStr, StrictInt, StrictFloat]
 
 FUNCTIONS = ("dc-voltage", "dc-current", "ac-voltage", "ac-current", "resistance")

@@ -72,23 +72,13 @@ class TestPoint:
 
 def budget_terms(rng: ResolvedRange, nominal: float, frequency: float | None,
                  standard: "SpecLine | None") -> list[uncertainty.Term]:
-    """The contributions to the uncertainty of a reading at ``nominal`` on ``rng``.
-
-    The applied value's uncertainty from the calibrator's specification line ``standard``, the
-    readability of the meter under test, and the procedure's extra terms for the range.
-    """
+    """The contributions to the uncertainty of a reading at ``nominal`` on ``rng``: the applied
+    value's, from the calibrator's specification line ``standard``, then the meter's own."""
     terms = []
     if standard is not None:
         terms.append(standard.spec.term(output=nominal, range_value=standard.range,
                                         name="applied value (calibrator)"))
-    if rng.resolution:
-        if rng.resolution_domain == "deg":
-            terms.append(uncertainty.readability_term(division=rng.resolution, unit="degrees",
-                                                      arc=rng.arc, name="readability"))
-        else:
-            terms.append(uncertainty.readability_term(division=rng.resolution, name="readability"))
-    terms.extend(rng.extra_terms)
-    return terms
+    return terms + rng.meter_terms()
 
 
 def plan(procedure: Procedure, bench: "Bench | None" = None) -> list[TestPoint]:
