@@ -104,8 +104,7 @@ class ScriptedReadings:
 
     def __init__(self, path: str | Path):
         self.path = Path(path)
-        self._rows: dict[tuple[str, str], list[tuple[int, str]]] = {}
-        self._raw: list[tuple[int, str, str, str]] = []
+        self._raw: dict[str, list[tuple[int, str, str]]] = {}  # range -> (line, at, reading)
         try:
             with open(self.path, newline="", encoding="utf-8") as fh:
                 reader = csv.DictReader(fh)
@@ -114,30 +113,36 @@ class ScriptedReadings:
                     raise ProcedureError(f"{self.path}:1: missing column(s) {', '.join(sorted(missing))}"
                                          " (need range, at, reading)")
                 for row in reader:
-                    self._raw.append((reader.line_num, row["range"].strip(), row["at"].strip(),
-                                      row["reading"] or ""))
+                    self._raw.setdefault((row["range"] or "").strip(), []).append(
+                        (reader.line_num, (row["at"] or "").strip(), row["reading"] or ""))
         except FileNotFoundError:
             raise ProcedureError(f"{self.path}: no such file") from None
         except (OSError, UnicodeDecodeError, csv.Error) as exc:
             raise ProcedureError(f"{self.path}: cannot read: {exc}") from None
-        self._queues: dict[tuple[str, float], list[tuple[int, str]]] = {}
-        self._unit_problems: list[str] = []
+        # Per range, the rows' nominal values parsed once (in the range's unit) -> their rows.
+        self._by_nominal: dict[str, dict[float, list[tuple[int, str]]]] = {}
 
-    def _queue(self, point: TestPoint) -> list[tuple[int, str]]:
-        key = (point.range.id, point.nominal)
-        if key not in self._queues:
-            rows = []
-            for line, rng, at, reading in self._raw:
-                if rng != point.range.id:
-                    continue
+    def _rows_of_range(self, point: TestPoint) -> dict[float, list[tuple[int, str]]]:
+        rng = point.range.id
+        if rng not in self._by_nominal:
+            table: dict[float, list[tuple[int, str]]] = {}
+            for line, at, reading in self._raw.get(rng, []):
                 try:
                     nominal = parse_value(at, point.unit)
                 except UnitError as exc:
                     raise ProcedureError(f"{self.path}:{line}: at: {exc}") from None
-                if math.isclose(nominal, point.nominal, rel_tol=1e-9, abs_tol=1e-15):
-                    rows.append((line, reading))
-            self._queues[key] = rows
-        return self._queues[key]
+                table.setdefault(nominal, []).append((line, reading))
+            self._by_nominal[rng] = table
+        return self._by_nominal[rng]
+
+    def _queue(self, point: TestPoint) -> list[tuple[int, str]]:
+        table = self._rows_of_range(point)
+        queue = table.get(point.nominal)
+        if queue is None:  # written differently ("1.2 kohm" for 1200.0000000000002): match closely
+            queue = next((rows for nominal, rows in table.items()
+                          if math.isclose(nominal, point.nominal, rel_tol=1e-9, abs_tol=1e-15)), [])
+            table[point.nominal] = queue
+        return queue
 
     def take(self, point: TestPoint) -> Entry:
         """The next scripted entry for ``point``.

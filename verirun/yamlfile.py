@@ -85,7 +85,7 @@ _PLAIN_KEY = re.compile(r"^[A-Za-z0-9_.-]+$")
 MAX_NODES = 200_000
 
 
-class _Loader(yaml.SafeLoader):
+class _Loader(getattr(yaml, "CSafeLoader", yaml.SafeLoader)):
     """The safe loader, with every error building a value reported at that value's line."""
 
     def construct_object(self, node, deep=False):
@@ -150,29 +150,35 @@ def load_text(text: str, source: str) -> LocatedData:
         On a YAML syntax error, a character YAML refuses, a value that cannot be read as its
         tag says, an alias that refers to itself, or duplicate keys, with ``file:line`` for each.
     """
+    loader = _Loader(text)
     try:
-        node = yaml.compose(text, Loader=_Loader)
-    except yaml.reader.ReaderError as exc:
-        line = text.count("\n", 0, exc.position) + 1
-        char = exc.character if isinstance(exc.character, int) else ord(str(exc.character)[:1] or "\0")
-        raise ProcedureError(f"{source}:{line}: a character YAML does not allow (U+{char:04X}); remove it") from None
-    except yaml.MarkedYAMLError as exc:
-        raise ProcedureError(_marked(exc, source)) from None
-    except (yaml.YAMLError, RecursionError) as exc:
-        raise ProcedureError(f"{source}:1: not valid YAML: {_first_line(exc)}") from None
-    lines: dict[Path_, int] = {}
-    problems: list[tuple[Path_, int, str]] = []
-    if node is not None:
-        _walk(node, (), lines, problems, set(), [0])
-    if problems:
-        raise ProcedureError([f"{source}:{line}: {format_loc(loc)}: {msg}" if format_loc(loc)
-                              else f"{source}:{line}: {msg}" for loc, line, msg in problems])
-    try:
-        data = yaml.load(text, Loader=_Loader)  # noqa: S506 (a safe loader)
-    except yaml.MarkedYAMLError as exc:
-        raise ProcedureError(_marked(exc, source)) from None
-    except (yaml.YAMLError, RecursionError) as exc:
-        raise ProcedureError(f"{source}:1: not valid YAML: {_first_line(exc)}") from None
+        try:
+            node = loader.get_single_node()
+        except yaml.reader.ReaderError as exc:
+            line = text.count("\n", 0, exc.position) + 1
+            char = exc.character if isinstance(exc.character, int) else ord(str(exc.character)[:1] or "\0")
+            raise ProcedureError(f"{source}:{line}: a character YAML does not allow (U+{char:04X});"
+                                 " remove it") from None
+        except yaml.MarkedYAMLError as exc:
+            raise ProcedureError(_marked(exc, source)) from None
+        except (yaml.YAMLError, RecursionError) as exc:
+            raise ProcedureError(f"{source}:1: not valid YAML: {_first_line(exc)}") from None
+        lines: dict[Path_, int] = {}
+        problems: list[tuple[Path_, int, str]] = []
+        if node is not None:
+            _walk(node, (), lines, problems, set(), [0])
+        if problems:
+            raise ProcedureError([f"{source}:{line}: {format_loc(loc)}: {msg}" if format_loc(loc)
+                                  else f"{source}:{line}: {msg}" for loc, line, msg in problems])
+        try:
+            # Built from the node tree already composed and checked: no second parse.
+            data = loader.construct_document(node) if node is not None else None
+        except yaml.MarkedYAMLError as exc:
+            raise ProcedureError(_marked(exc, source)) from None
+        except (yaml.YAMLError, RecursionError) as exc:
+            raise ProcedureError(f"{source}:1: not valid YAML: {_first_line(exc)}") from None
+    finally:
+        loader.dispose()
     return LocatedData(data, lines, source, text)
 
 
