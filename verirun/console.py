@@ -117,17 +117,23 @@ class QuietConsole:
         Answers to give to confirmations, in order; when exhausted, confirmations are refused.
     echo
         A rich console to print a short line per step to, or ``None`` for silence.
+    keep
+        Keep every line that would be shown in :attr:`lines` (for tests). Off, a silent console
+        formats nothing, which keeps long scripted runs cheap.
     """
 
     interactive = False
 
-    def __init__(self, confirm_answers: list[bool] | None = None, echo=None):
+    def __init__(self, confirm_answers: list[bool] | None = None, echo=None, keep: bool = False):
         self.lines: list[str] = []
         self._answers = list(confirm_answers or [])
         self.echo = echo
+        self.keep = keep
+        self._quiet = echo is None and not keep
 
     def _log(self, text: str) -> None:
-        self.lines.append(text)
+        if self.keep:
+            self.lines.append(text)
 
     def say(self, text: str) -> None:
         self._log(text)
@@ -160,14 +166,19 @@ class QuietConsole:
         return answer
 
     def connect(self, point: "TestPoint") -> None:
+        if self._quiet:
+            return
         self.heading(f"Range {point.range_text()}")
         if point.range.connect:
             self._log(f"Connect: {point.range.connect}")
 
     def step(self, point: "TestPoint") -> None:
-        self._log(f"Step {point.index + 1} of {point.total} {point.range.id} {point.stimulus_text()}")
+        if not self._quiet:
+            self._log(f"Step {point.index + 1} of {point.total} {point.range.id} {point.stimulus_text()}")
 
     def result(self, point: "TestPoint", entry: Entry, result: "Result") -> None:
+        if self._quiet:
+            return
         line = (f"{point.index + 1:>3}/{point.total} {point.range.id:<9} {point.stimulus_text():<16}"
                 f" read {entry.typed:<9} limits {_limits(point, 4):<20} {result.verdict.upper()}")
         self._log(line)

@@ -104,7 +104,7 @@ class Engine:
         self.counts = {"pass": 0, "fail": 0, "skipped": 0}
 
     def run(self, context: RunContext, *, uid: str | None = None, resume: dict | None = None,
-            done: frozenset[str] = frozenset()) -> Outcome:
+            done: frozenset[str] = frozenset(), points: list[TestPoint] | None = None) -> Outcome:
         """Run every point of the plan not in ``done``; return how the run ended.
 
         The calibrator is identified first and checked against the bench file (and, when
@@ -122,12 +122,15 @@ class Engine:
             instead of a new start.
         done
             Keys of the points that already have a confirmed entry.
+        points
+            The plan of the procedure on this bench, when the caller has made it already.
         """
         uid = uid or uuid_mod.uuid4().hex
-        points = [p for p in plan(self.procedure, self.bench) if p.key not in done]
+        points = [p for p in (points if points is not None else plan(self.procedure, self.bench))
+                  if p.key not in done]
         cal = self.calibrator
         status, reason = "failed", "the run did not finish"
-        self._where = "identify the calibrator"
+        self._where: "str | TestPoint" = "identify the calibrator"
         try:
             with output_guard(cal):
                 identity, problem = self._identify()
@@ -146,7 +149,7 @@ class Engine:
                 self._clear_stale_errors()
                 self.console.cautions()
                 for number, point in enumerate(points):
-                    self._where = self._step_name(point)
+                    self._where = point  # named in words only if the run stops here
                     self._point(point, connect=point.first_of_range or number == 0)
             status, reason = "complete", None
             return Outcome(uid=uid, status=status, reason=reason, counts=dict(self.counts))
@@ -155,18 +158,22 @@ class Engine:
             raise
         except KeyboardInterrupt as exc:
             status = "aborted"
-            reason = f"{str(exc) or 'interrupted (Ctrl-C)'} at {self._where}"
+            reason = f"{str(exc) or 'interrupted (Ctrl-C)'} at {self._where_text()}"
             raise
         except VerirunError as exc:
             reason = str(exc)
             raise
         except Exception as exc:  # a bug: still close the journal with what happened
-            reason = f"internal error at {self._where}: {type(exc).__name__}: {exc}"
+            reason = f"internal error at {self._where_text()}: {type(exc).__name__}: {exc}"
             raise
         finally:
             if self.journal_started:
                 self.journal.append({"kind": "stop", "time": iso(self.clock.now()), "status": status,
                                      "reason": reason, "counts": dict(self.counts)})
+
+    def _where_text(self) -> str:
+        where = self._where
+        return where if isinstance(where, str) else self._step_name(where)
 
     @property
     def journal_started(self) -> bool:

@@ -87,16 +87,18 @@ def execute(*, procedure: Procedure, bench: Bench, context: RunContext, readings
     clock = clock or SystemClock()
     uid = uid or uuid_mod.uuid4().hex
     profile = calibrator.profile if calibrator is not None else load_profile(bench.file.calibrator.profile)
-    preflight.check(plan(procedure, bench), bench, profile, today=clock.now().date())
+    points = plan(procedure, bench)
+    preflight.check(points, bench, profile, today=clock.now().date())
     run_dir = Path(runs_dir) / run_folder_name(context.item.get("serial", "item"), uid, clock.now())
     run_dir.mkdir(parents=True, exist_ok=False)
     return _drive(run_dir=run_dir, procedure=procedure, bench=bench, context=context, readings=readings,
                   console=console, reports_dir=reports_dir, simulate=simulate, clock=clock, uid=uid,
-                  calibrator=calibrator)
+                  calibrator=calibrator, points=points)
 
 
 def _drive(*, run_dir: Path, procedure, bench, context, readings, console, reports_dir, simulate,
-           clock, uid, calibrator, resume: dict | None = None, done: frozenset[str] = frozenset()) -> Finished:
+           clock, uid, calibrator, points, resume: dict | None = None,
+           done: frozenset[str] = frozenset()) -> Finished:
     """Open the bench, run the engine on ``run_dir``'s journal, and close the run however it ends.
 
     Whatever ends the run, the journal is closed into the run record; the certificate is
@@ -113,7 +115,7 @@ def _drive(*, run_dir: Path, procedure, bench, context, readings, console, repor
             try:
                 engine = Engine(procedure=procedure, bench=bench, calibrator=calibrator,
                                 readings=readings, console=console, journal=journal, clock=clock)
-                outcome = engine.run(context, uid=uid, resume=resume, done=done)
+                outcome = engine.run(context, uid=uid, resume=resume, done=done, points=points)
             finally:
                 if own_calibrator:
                     calibrator.close()
@@ -161,7 +163,8 @@ def resume(*, run_dir: Path, procedure_path: Path | None, bench_path: Path | Non
     if serial is not None and serial != start["item"].get("serial"):
         raise RecordError(f"{run_dir}: this run is for item {start['item'].get('serial')!r}, not {serial!r}")
     done = frozenset(d["point"] for d in docs if d["kind"] in ("observation", "skip"))
-    pending = [p for p in plan(procedure, bench) if p.key not in done]
+    points = plan(procedure, bench)
+    pending = [p for p in points if p.key not in done]
     if not pending:
         raise RecordError(f"{run_dir}: every point of this run already has a confirmed entry; nothing to resume"
                           " (use 'verirun certify' for its certificate)")
@@ -176,7 +179,7 @@ def resume(*, run_dir: Path, procedure_path: Path | None, bench_path: Path | Non
                      f" ({len(read.torn_line)} characters); every whole line before it is kept")
     return _drive(run_dir=run_dir, procedure=procedure, bench=bench, context=context, readings=readings,
                   console=console, reports_dir=reports_dir, simulate=simulate, clock=clock,
-                  uid=start["uid"], calibrator=calibrator, resume=start, done=done)
+                  uid=start["uid"], calibrator=calibrator, points=points, resume=start, done=done)
 
 
 def _same_file(path: Path | None, stored: dict, kind: str, load_path, load_text):

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import datetime as dt
+import functools
 import hashlib
 from dataclasses import dataclass
 from pathlib import Path
@@ -118,8 +119,18 @@ class Bench:
 
     def spec_for(self, function: str, value: float, frequency: float | None) -> SpecLine | None:
         """The specification line for applying ``value``: the smallest range that holds it."""
-        lines = [line for line in self.accuracy if line.covers(function, value, frequency)]
-        return min(lines, key=lambda line: line.range) if lines else None
+        for line in self._lines_by_function.get(function, ()):
+            if line.covers(function, value, frequency):
+                return line
+        return None
+
+    @functools.cached_property
+    def _lines_by_function(self) -> dict[str, list[SpecLine]]:
+        # Each function's lines, smallest range first, so the first that holds a value is its line.
+        table: dict[str, list[SpecLine]] = {}
+        for line in sorted(self.accuracy, key=lambda line: line.range):
+            table.setdefault(line.function, []).append(line)
+        return table
 
 
 def load_bench(path: str | Path) -> Bench:

@@ -6,6 +6,7 @@ so a run never dies half-way on a typo.
 
 from __future__ import annotations
 
+import functools
 import hashlib
 import math
 from dataclasses import dataclass
@@ -59,7 +60,7 @@ class ResolvedRange:
     battery: float | None
     extra_terms: tuple[uncertainty.Term, ...] = ()
 
-    @property
+    @functools.cached_property
     def context(self) -> tolerance.RangeContext:
         """What a tolerance statement needs to know about this range."""
         count = self.resolution if self.resolution_domain == "value" else None
@@ -69,6 +70,11 @@ class ResolvedRange:
     def meter_terms(self) -> list[uncertainty.Term]:
         """The meter's own contributions to each reading's uncertainty: its readability (the
         resolution it is read to) and the procedure's extra terms for the range."""
+        return list(self._meter_terms)
+
+    @functools.cached_property
+    def _meter_terms(self) -> tuple[uncertainty.Term, ...]:
+        # The same for every point of the range: worked out once.
         terms = []
         if self.resolution:
             if self.resolution_domain == "deg":
@@ -77,7 +83,7 @@ class ResolvedRange:
             else:
                 terms.append(uncertainty.readability_term(division=self.resolution, name="readability"))
         terms.extend(self.extra_terms)
-        return terms
+        return tuple(terms)
 
     def band_at(self, frequency: float | None) -> Band:
         """The accuracy band that applies at ``frequency`` (checked at load time to exist)."""
