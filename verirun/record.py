@@ -179,8 +179,9 @@ def write_record(record: dict, path: str | Path) -> Path:
     path = Path(path)
     tmp = path.with_suffix(".tmp")
     with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
-        # Compact: the pretty-printing encoder is several times slower on a long run's record.
-        fh.write(dumps(record))
+        # Compact, and streamed: the pretty-printing encoder is several times slower on a long
+        # run's record, and one string of the whole record would double its memory.
+        json.dump(record, fh, sort_keys=True, ensure_ascii=False, allow_nan=False, separators=(",", ":"))
         fh.write("\n")
         fh.flush()
         os.fsync(fh.fileno())

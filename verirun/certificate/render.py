@@ -68,16 +68,21 @@ _ENV = None
 
 def render_html(record: dict) -> str:
     """The certificate of ``record`` as HTML text."""
+    return "".join(_generate(record))
+
+
+def _generate(record: dict):
+    """The certificate of ``record`` as a stream of text pieces (for writing without holding it)."""
     global _ENV
     if _ENV is None:
         _ENV = _environment()
     template = _ENV.get_template("certificate.html.j2")
     as_found = record.get("as_found")
     guarded = record["decision_rule"]["rule"] != "simple"
-    return template.render(record=record, ranges=_ranges(record["ranges"], record["points"], guarded),
-                           as_found_ranges=_ranges(record["ranges"], as_found["points"], guarded) if as_found else [],
-                           number=certificate_number(record), replaces=previous_number(record),
-                           template_version=TEMPLATE_VERSION)
+    return template.generate(record=record, ranges=_ranges(record["ranges"], record["points"], guarded),
+                             as_found_ranges=_ranges(record["ranges"], as_found["points"], guarded) if as_found else [],
+                             number=certificate_number(record), replaces=previous_number(record),
+                             template_version=TEMPLATE_VERSION)
 
 
 def _ranges(ranges: list[dict], points: list[dict], guarded: bool) -> list[dict]:
@@ -129,8 +134,10 @@ def write_certificate(record: dict, reports_dir: str | Path) -> Path:
     """Render ``record`` into ``reports_dir``/<certificate number>.html; return the path."""
     path = certificate_path(record, reports_dir)
     path.parent.mkdir(parents=True, exist_ok=True)
-    data = render_html(record).encode("utf-8")
     tmp = path.with_suffix(".tmp")
-    tmp.write_bytes(data)
+    # Streamed piece by piece: a long run's certificate is never held whole in memory.
+    with open(tmp, "w", encoding="utf-8", newline="") as fh:
+        for piece in _generate(record):
+            fh.write(piece)
     tmp.replace(path)
     return path
