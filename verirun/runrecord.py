@@ -140,8 +140,11 @@ def _row(point, doc: dict | None) -> dict:
             "tur": json_number(result.tur), "conformance": result.conformance,
             "accept_low": json_number(result.acceptance[0]) if result.acceptance else None,
             "accept_high": json_number(result.acceptance[1]) if result.acceptance else None,
-            "U_pct": result.expanded_pct, "accept_low_pct": result.accept_low_pct,
-            "accept_high_pct": result.accept_high_pct,
+            # Acceptance limits as percent of tolerance only where the rule moves them off the
+            # tolerance limits (they are drawn on the error chart).
+            "U_pct": result.expanded_pct,
+            "accept_low_pct": result.accept_low_pct if point.rule.name != "simple" else None,
+            "accept_high_pct": result.accept_high_pct if point.rule.name != "simple" else None,
             "budget": [{"name": t.name, "u": t.standard_uncertainty, "domain": t.domain,
                         "distribution": t.distribution, "contribution": c}
                        for t, c in zip(point.budget.terms, point.budget.contributions)],

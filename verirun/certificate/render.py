@@ -48,22 +48,7 @@ def _environment():
                       undefined=StrictUndefined, trim_blocks=True, lstrip_blocks=True,
                       keep_trailing_newline=True)
     env.filters["q"] = lambda value, unit, digits=6: format_quantity(value, unit, digits)
-    env.filters["signed"] = _signed
     return env
-
-
-def _signed(value: float | None, unit: str, digits: int = 3) -> str:
-    from verirun.units import format_quantity
-
-    if value is None:
-        return ""
-    if unit in ("deg", "% of length"):
-        return f"{value:+.{digits}g} {'°' if unit == 'deg' else '% of length'}"
-    text = format_quantity(value, unit, digits)
-    return text if text.startswith("-") else "+" + text
-
-
-_ENV = None
 
 
 def render_html(record: dict) -> str:
@@ -78,18 +63,14 @@ def _generate(record: dict):
         _ENV = _environment()
     template = _ENV.get_template("certificate.html.j2")
     as_found = record.get("as_found")
-    guarded = record["decision_rule"]["rule"] != "simple"
-    return template.generate(record=record, ranges=_ranges(record["ranges"], record["points"], guarded),
-                             as_found_ranges=_ranges(record["ranges"], as_found["points"], guarded) if as_found else [],
+    return template.generate(record=record, ranges=_ranges(record["ranges"], record["points"]),
+                             as_found_ranges=_ranges(record["ranges"], as_found["points"]) if as_found else [],
                              number=certificate_number(record), replaces=previous_number(record),
                              template_version=TEMPLATE_VERSION)
 
 
-def _ranges(ranges: list[dict], points: list[dict], guarded: bool) -> list[dict]:
-    """Each range of the record with its rows and its charts, in the procedure's order.
-
-    Acceptance limits are drawn only under a rule that moves them off the tolerance limits.
-    """
+def _ranges(ranges: list[dict], points: list[dict]) -> list[dict]:
+    """Each range of the record with its rows and its charts, in the procedure's order."""
     from markupsafe import Markup
 
     from verirun.certificate.charts import arc_chart, error_chart
@@ -100,10 +81,8 @@ def _ranges(ranges: list[dict], points: list[dict], guarded: bool) -> list[dict]
     out = []
     for rng in ranges:
         rows = by_range.get(rng["id"], [])
-        drawn = rows if guarded else [{k: v for k, v in r.items()
-                                       if k not in ("accept_low_pct", "accept_high_pct")} for r in rows]
-        out.append({**rng, "rows": rows, "error_svg": Markup(error_chart(rng, drawn)),
-                    "arc_svg": Markup(arc_chart(rng, drawn))})
+        out.append({**rng, "rows": rows, "error_svg": Markup(error_chart(rng, rows)),
+                    "arc_svg": Markup(arc_chart(rng, rows))})
     return out
 
 
