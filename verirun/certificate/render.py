@@ -51,6 +51,9 @@ def _environment():
     return env
 
 
+_ENV = None
+
+
 def render_html(record: dict) -> str:
     """The certificate of ``record`` as HTML text."""
     return "".join(_generate(record))
