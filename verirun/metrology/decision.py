@@ -173,7 +173,7 @@ class GuardedAcceptance:
 
 
 @dataclass(frozen=True, kw_only=True)
-class NonBinaryStatement:
+class NonBinaryStatement(GuardedAcceptance):
     """Non-binary statement with a guard band, ILAC-G8:09/2019 4.2.3 (``w = ratio × U``, ratio 1).
 
     - ``"pass"``: within the acceptance limits (tolerance limits moved inward by ``w``);
@@ -184,12 +184,7 @@ class NonBinaryStatement:
     Each boundary belongs to the more favourable zone.
     """
 
-    ratio: float = 1.0
     name = "non-binary"
-
-    def __post_init__(self) -> None:
-        if not (math.isfinite(self.ratio) and self.ratio >= 0):
-            raise ValueError(f"the guard-band ratio must be finite and not negative, got {self.ratio!r}")
 
     def describe(self) -> str:
         """One sentence naming the rule, for the certificate (ISO/IEC 17025 7.8.6.2)."""
@@ -198,11 +193,6 @@ class NonBinaryStatement:
                 " conditional pass within the tolerance limits but outside the acceptance limits;"
                 " conditional fail outside the tolerance limits by no more than w; fail beyond;"
                 " a value on a boundary takes the more favourable statement.")
-
-    def acceptance(self, *, low: float, high: float, expanded: float, k: float = 2.0) -> Acceptance:
-        """The zone where the statement is ``"pass"``."""
-        _check_zone(low, high, expanded, k)
-        return _shrunk(low, high, self.ratio * expanded)
 
     def decide(self, *, low: float, high: float, reading: float, expanded: float,
                k: float = 2.0) -> Outcome:
