@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from pathlib import Path
+from typing import Literal
 
 from pydantic import StrictStr
 
@@ -41,6 +42,8 @@ class LabInfo(Strict):
     signatory: Signatory
     traceability: StrictStr
     conditions: StrictStr | None = None
+    #: The paper the lab prints its certificates on.
+    paper: Literal["A4", "letter"] = "A4"
     wording: Wording = Wording()
 
 

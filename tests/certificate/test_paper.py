@@ -121,3 +121,16 @@ class TestOnPaper:
             text = page.extract_text()
             assert f"Page {n} of {pages}" in text
             assert number in text
+
+
+class TestPaperSize:
+    @pytest.mark.parametrize("paper, size_pt", [("A4", (595.28, 841.89)), ("letter", (612.0, 792.0))])
+    def test_lab_profile_chooses_a4_or_letter(self, demo_run_dir, paper, size_pt):
+        """The lab profile's paper sets the printed page: A4 is 210 × 297 mm (ISO 216), Letter
+        8.5 × 11 in (ANSI/ASME Y14.1), in PostScript points of 1/72 in."""
+        weasyprint = pytest.importorskip("weasyprint")
+        record = load_record(demo_run_dir)
+        record = {**record, "lab": {**record["lab"], "paper": paper}}
+        page = weasyprint.HTML(string=render_html(record)).render().pages[0]
+        width_pt, height_pt = page.width * 0.75, page.height * 0.75  # CSS px (1/96 in) to pt
+        assert (round(width_pt, 1), round(height_pt, 1)) == (round(size_pt[0], 1), round(size_pt[1], 1))
