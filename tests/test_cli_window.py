@@ -67,6 +67,9 @@ class TestWindowCommand:
         (["--full-scale", "10 V", "--percent-fs", "2", "--at", "5 mA"], "expected"),
         (["--full-scale", "10,5", "--percent-fs", "2", "--at", "5"], "decimal point"),
         (["--scale", "series-ohms", "--centre", "10", "--degrees", "3", "--at", "10"], "arc"),
+        (["--full-scale", "10", "--percent-fs", "-2", "--at", "5"], "not negative"),
+        (["--full-scale", "10", "--percent-fs", "nan", "--at", "5"], "finite"),
+        (["--full-scale", "10", "--percent-fs", "2", "--at", "5", "--reading", "1e400"], "finite"),
     ])
     def test_bad_input_is_one_clear_line(self, capsys, args, words):
         """A wrong or missing option gives one clear error line and exit 1, no traceback."""

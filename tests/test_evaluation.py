@@ -260,3 +260,32 @@ class TestWindowCommandWithUncertainty:
         u_f = 0.005 / (2 * math.sqrt(3))
         assert out["U_domain"] == pytest.approx(2 * u_f)
         assert out["U"] == pytest.approx(2 * u_f * 4 * 12)
+
+
+class TestOpenEndedOhmsWindows:
+    @pytest.mark.parametrize("rule", ["guarded", "risk"])
+    def test_a_limit_past_the_infinity_end_is_open(self, capsys, rule):
+        """Series ohms, Rc = 10 Ω, 9° of a 90° arc at 190 Ω: f0 = 0.05 < 0.1, so the window is
+        unbounded above (derived from f = Rc/(Rc+Rx)); the tolerance is one-sided, TUR is not
+        defined, and 490 Ω (f = 0.02, inside) passes under a guard band as under a risk rule."""
+        assert main(["window", "--scale", "series-ohms", "--centre", "10", "--degrees", "9", "--arc", "90",
+                     "--at", "190", "--u-applied", "160", "--rule", rule, "--reading", "490", "--json"]) == 0
+        out = json.loads(capsys.readouterr().out)
+        assert out["high"] is None and out["tur"] is None and out["accept_high"] is None
+        assert out["verdict"] == "pass"
+
+
+class TestHazardThresholds:
+    @pytest.mark.parametrize("key, value", [("hazardous-dc", "1 kV"), ("hazardous-ac-rms", "50 V"),
+                                            ("hazardous-ac-peak", "100 V")])
+    def test_a_bench_cannot_raise_the_thresholds_past_the_standard(self, key, value):
+        """A bench may lower the hazardous-live thresholds but not raise them past 70 V DC,
+        33 V rms, 46.7 V peak (IEC 61010-1, the most lenient edition, from memory)."""
+        text = BENCH + f"safety:\n  {key}: {value}\n"
+        with pytest.raises(ProcedureError, match=f"bench.yaml:\\d+: safety.{key}: .*never raise"):
+            load_bench_text(text, "bench.yaml")
+
+    def test_lower_thresholds_load(self):
+        """Lower thresholds, as a lab's wet-location rules might ask, are accepted."""
+        bench = load_bench_text(BENCH + "safety:\n  hazardous-dc: 35 V\n", "bench.yaml")
+        assert bench.hazardous_dc == 35.0

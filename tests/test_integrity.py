@@ -71,6 +71,14 @@ class TestVerify:
         path.write_text(json.dumps(record))
         assert any("differs from what its journal records" in p for p in problems(run_dir))
 
+    def test_missing_run_folder_is_named(self, tmp_path, capsys):
+        """A run folder that does not exist is named as such by verify and amend."""
+        missing = tmp_path / "no-such-run"
+        assert main(["verify", str(missing)]) == 1
+        assert f"{missing}: no such run folder" in capsys.readouterr().out
+        assert main(["amend", str(missing), "--point", "1", "--reading", "1", "--reason", "x"]) == 1
+        assert f"{missing}: no such run folder" in capsys.readouterr().err
+
     def test_chain_function_on_a_fresh_journal(self, tmp_path):
         """Documents appended by the journal chain to one another from a zero hash."""
         with Journal(tmp_path / "j.jsonl") as journal:

@@ -51,25 +51,32 @@ HAZARD = textwrap.dedent("""\
 
 
 class Typist:
-    """Types the given lines at successive prompts, recording every prompt."""
+    """Types the given lines at successive prompts, recording every prompt.
 
-    def __init__(self, lines):
+    With ``then_close``, the input closes (end of file) once the lines are used up.
+    """
+
+    def __init__(self, lines, then_close=False):
         self.lines = list(lines)
         self.prompts = []
+        self.then_close = then_close
 
     def __call__(self, prompt):
         self.prompts.append(prompt)
         if not self.lines:
+            if self.then_close:
+                raise EOFError
             raise AssertionError(f"unexpected prompt {prompt!r}")
         return self.lines.pop(0)
 
 
-def make_run(tmp_path, procedure_text, lines, demo_bench_path, demo_lab_path, bench_text=None):
+def make_run(tmp_path, procedure_text, lines, demo_bench_path, demo_lab_path, bench_text=None,
+             then_close=False):
     rm = pyvisa.ResourceManager(sim_library(tmp_path / "sim"))
     raw = rm.open_resource(SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=300)
     cal = Calibrator(raw, "scpi-generic")
     out = io.StringIO()
-    typist = Typist(lines)
+    typist = Typist(lines, then_close=then_close)
     console = Console(RichConsole(file=out, width=120, highlight=False), input_func=typist)
     from verirun.lab import load_lab
 
@@ -178,3 +185,55 @@ class TestHazardousVoltage:
                     clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)),
                     calibrator=Calibrator(raw, "scpi-generic"))
         assert raw.query("OUTP?") in ("0", "OFF")
+
+
+class TestHazardOnRepeat:
+    def test_repeat_at_a_hazardous_point_asks_again(self, tmp_path, demo_bench_path, demo_lab_path):
+        """'repeat' at a hazardous point puts the output in standby, so switching it on again
+        needs a second confirmation, journaled like the first."""
+        go, raw, out, typist = make_run(tmp_path, HAZARD, ["", "20", "yes", "repeat", "yes", "80"],
+                                        demo_bench_path, demo_lab_path)
+        finished = go()
+        docs = read_journal(finished.run_dir / "journal.jsonl").documents
+        confirmations = [d for d in docs if d.get("hazardous")]
+        assert len(confirmations) == 2
+        assert out.getvalue().count("DANGER") == 2
+
+    def test_refusing_the_second_confirmation_stops(self, tmp_path, demo_bench_path, demo_lab_path):
+        """Refusing the confirmation after a repeat stops the run with the output off."""
+        go, raw, out, typist = make_run(tmp_path, HAZARD, ["", "20", "yes", "repeat", "no"],
+                                        demo_bench_path, demo_lab_path)
+        with pytest.raises(RunAborted, match="not confirmed"):
+            go()
+        assert raw.query("OUTP?") in ("0", "OFF")
+
+
+class TestClosedInput:
+    def test_end_of_input_stops_resumable_with_output_off(self, tmp_path, demo_bench_path, demo_lab_path):
+        """If the console input closes (end of file) the run stops as an abort: output off,
+        readings kept, resumable; not an internal error."""
+        go, raw, out, typist = make_run(tmp_path, PROCEDURE, ["", "5.0"], demo_bench_path, demo_lab_path,
+                                        then_close=True)
+        with pytest.raises(RunAborted, match="input was closed") as info:
+            go()
+        assert raw.query("OUTP?") in ("0", "OFF")
+        docs = read_journal(info.value.run_dir / "journal.jsonl").documents
+        assert [d["kind"] for d in docs].count("observation") == 1 and docs[-1]["status"] == "aborted"
+
+    def test_cli_with_closed_input_exits_2_not_70(self, tmp_path, demo_procedure_path, demo_bench_path):
+        """`verirun run` at the console with stdin closed exits 2 with the resume hint, after
+        checking its files, and never reports an internal error."""
+        import subprocess
+        import sys
+
+        cmd = [sys.executable, "-m", "verirun", "run", str(demo_procedure_path), "--bench", str(demo_bench_path),
+               "--simulate", "--serial", "EOF", "--customer", "C", "--temperature", "23", "--humidity", "40",
+               "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "rep")]
+        result = subprocess.run(cmd, stdin=subprocess.DEVNULL, capture_output=True, text=True, timeout=60)
+        assert result.returncode == 2, result.stderr
+        assert "internal error" not in result.stderr and "input was closed" in result.stderr
+        assert "verirun resume" in result.stderr
+        missing = [sys.executable, "-m", "verirun", "run", str(tmp_path / "nope.yaml"), "--bench",
+                   str(demo_bench_path), "--serial", "S", "--customer", "C"]
+        result = subprocess.run(missing, stdin=subprocess.DEVNULL, capture_output=True, text=True, timeout=60)
+        assert result.returncode == 1 and "no such file" in result.stderr and "temperature" not in result.stdout

@@ -114,6 +114,23 @@ class TestAbortAndResume:
         assert problems(run_dir) == []
         record = json.loads((run_dir / "record.json").read_text())
         assert any("cut-off last journal line was dropped" in n["text"] for n in record["notes"])
+        resumed = next(d for d in docs if d["kind"] == "resume")
+        assert resumed["recovered_text"] == '{"kind":"observation","point":"dcv-10@8.0","typed":"8.2'
+
+    def test_resume_uses_the_journal_copy_when_the_file_was_revised(self, tmp_path, data_dir,
+                                                                   demo_procedure_path, demo_bench_path):
+        """With no procedure named, resume uses the copy the journal holds, so revising the file
+        the run started from does not strand the run."""
+        procedure = tmp_path / "procedure.yaml"
+        procedure.write_text(demo_procedure_path.read_text())
+        readings = abort_at(data_dir, tmp_path, "dcv-10,8 V,8.25\n", "dcv-10,8 V,abort\n")
+        demo_run(tmp_path, procedure, demo_bench_path, readings)
+        (run_dir,) = (tmp_path / "runs").iterdir()
+        procedure.write_text(procedure.read_text().replace("revision: B", "revision: C"))
+        assert run_cli("resume", run_dir, "--readings", data_dir / "qm40-readings.csv",
+                       "--reports", tmp_path / "reports") == 0
+        record = json.loads((run_dir / "record.json").read_text())
+        assert record["procedure"]["revision"] == "B" and record["run"]["status"] == "complete"
 
 
 def _kill_bench(tmp_path, demo_bench_path):
@@ -171,10 +188,11 @@ class TestKilledMidRun:
 
 
 class TestSigterm:
-    def test_sigterm_puts_output_in_standby_and_stops_resumable(self, tmp_path, data_dir, demo_procedure_path,
-                                                                demo_bench_path):
-        """SIGTERM during a run ends it as an interruption: exit code 2, a stop document saying
-        so, and the run left resumable."""
+    @pytest.mark.parametrize("signum", [signal.SIGTERM, signal.SIGHUP])
+    def test_signal_puts_output_in_standby_and_stops_resumable(self, tmp_path, data_dir, demo_procedure_path,
+                                                               demo_bench_path, signum):
+        """SIGTERM, or SIGHUP when the terminal goes away, ends a run as an interruption: exit
+        code 2, a stop document naming the signal, and the run left resumable."""
         bench = _kill_bench(tmp_path, demo_bench_path)
         cmd = [sys.executable, "-m", "verirun", "run", str(demo_procedure_path), "--bench", str(bench),
                "--simulate", "--readings", str(data_dir / "qm40-readings.csv"), "--serial", "TERM",
@@ -189,10 +207,10 @@ class TestSigterm:
                 break
             time.sleep(0.02)
         assert journal is not None, "the run never started"
-        proc.send_signal(signal.SIGTERM)
+        proc.send_signal(signum)
         _, err = proc.communicate(timeout=30)
         assert proc.returncode == 2
         assert "standby" in err and "verirun resume" in err
         docs = read_journal(journal).documents
         assert docs[-1]["kind"] == "stop" and docs[-1]["status"] == "aborted"
-        assert "SIGTERM" in docs[-1]["reason"] or "interrupted" in docs[-1]["reason"]
+        assert signal.Signals(signum).name in docs[-1]["reason"]

@@ -236,15 +236,15 @@ def _cmd_window(args) -> int:
             raise UnitError("--full-scale: must be more than zero")
         law = scales.Linear(high=full_scale)
     arc = quantity("arc", args.arc, "deg")[0] if args.arc is not None else None
-    if args.percent_fs is not None:
-        statement = tolerance.PercentOfFullScale(percent=args.percent_fs)
-    elif args.degrees is not None:
-        statement = tolerance.DegreesOfArc(degrees=args.degrees)
-    elif args.percent_length is not None:
-        statement = tolerance.PercentOfLength(percent=args.percent_length)
-    else:
-        statement = tolerance.ValueStatement(reading=args.percent_reading)
     try:
+        if args.percent_fs is not None:
+            statement = tolerance.PercentOfFullScale(percent=args.percent_fs)
+        elif args.degrees is not None:
+            statement = tolerance.DegreesOfArc(degrees=args.degrees)
+        elif args.percent_length is not None:
+            statement = tolerance.PercentOfLength(percent=args.percent_length)
+        else:
+            statement = tolerance.ValueStatement(reading=args.percent_reading)
         win = tolerance.window(statement, at, tolerance.RangeContext(law=law, arc=arc, full_scale=full_scale))
         terms = []
         if args.u_applied is not None:
@@ -443,6 +443,8 @@ def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, cont
     procedure = load_procedure(procedure_path)
     bench = load_bench(bench_path)
     lab = load_lab(lab_path)
+    if callable(environment):
+        environment = environment()
     rich, console = _consoles(readings)
     as_found = None
     if as_left_of is not None:
@@ -481,7 +483,8 @@ def _cmd_run(args) -> int:
     readings = _reading_source(args)
     item = {"serial": args.serial, "asset": args.asset, "condition": args.condition,
             "received": _date(args.received, "--received")}
-    environment = _environment(args.temperature, args.humidity, readings)
+    # Asked for only once the files have loaded: a typo in them is reported before any question.
+    environment = lambda: _environment(args.temperature, args.humidity, readings)  # noqa: E731
     customer = {"name": args.customer, "address": args.customer_address}
     if args.lab is None:
         with demo_files() as demo:

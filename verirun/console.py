@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
-from verirun.errors import UnitError
+from verirun.errors import RunAborted, UnitError
 from verirun.readings import COMMANDS, Entry, parse_entry
 from verirun.units import format_quantity
 
@@ -68,8 +68,18 @@ class Console:
 
     # --- questions ------------------------------------------------------------------------
     def ask(self, prompt: str) -> str:
-        """Ask for a line of text."""
-        return self._input(prompt)
+        """Ask for a line of text.
+
+        Raises
+        ------
+        RunAborted
+            If the input is closed (end of file): nobody is there to answer.
+        """
+        try:
+            return self._input(prompt)
+        except EOFError:
+            raise RunAborted("the console input was closed, so nobody can answer; the output was put"
+                             " in standby and the run can be resumed") from None
 
     def confirm(self, question: str, *, word: str = "yes") -> bool:
         """Ask for an explicit confirmation: only ``word`` typed in full counts as yes."""

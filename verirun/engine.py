@@ -145,7 +145,8 @@ class Engine:
                     self._check_same_calibrator(identity, resume)
                     self.journal.append({"kind": "resume", "time": iso(self.clock.now()),
                                          "identity": identity, "pending": len(points),
-                                         "recovered_torn_line": self.journal.recovered is not None})
+                                         "recovered_torn_line": self.journal.recovered is not None,
+                                         "recovered_text": self.journal.recovered})
                 self._clear_stale_errors()
                 self.console.cautions()
                 for number, point in enumerate(points):
@@ -222,8 +223,10 @@ class Engine:
             if connect:
                 self.calibrator.standby()
                 self.console.connect(point)
-            self._check_hazard(point)
             while True:
+                # Asked before every switch-on at a hazardous level, a repeat included: the
+                # output was in standby and hands may have been at the terminals.
+                self._check_hazard(point)
                 with output_guard(self.calibrator):
                     self.calibrator.source(point.function, point.nominal, point.frequency)
                     self.calibrator.output_on()

@@ -15,14 +15,27 @@ from verirun.runrecord import build_record
 
 
 def run_folder(path: str | Path) -> Path:
-    """The run folder of ``path`` (a run folder, its record or its journal)."""
+    """The run folder of ``path`` (a run folder, its record or its journal).
+
+    Raises
+    ------
+    RecordError
+        If there is no such folder or file.
+    """
     path = Path(path)
-    return path if path.is_dir() else path.parent
+    if path.is_dir():
+        return path
+    if path.is_file() and path.name in (RECORD_NAME, JOURNAL_NAME):
+        return path.parent
+    raise RecordError(f"{path}: no such run folder")
 
 
 def problems(path: str | Path) -> list[str]:
     """Every integrity problem of the stored run at ``path`` (empty when it verifies)."""
-    folder = run_folder(path)
+    try:
+        folder = run_folder(path)
+    except RecordError as exc:
+        return [str(exc)]
     journal_path = folder / JOURNAL_NAME
     try:
         read = read_journal(journal_path)

@@ -7,6 +7,7 @@ the same journal are the same.
 
 from __future__ import annotations
 
+import math
 from pathlib import Path
 
 from verirun.bench.config import load_bench_text
@@ -153,29 +154,28 @@ def _row(point, doc: dict | None) -> dict:
 
 def reported(unit: str, result: Result) -> dict:
     """The reading, error and U as printed: U to two significant digits, the reading and the
-    error rounded to the same decimal place (GUM 7.2.6)."""
-    def spec_text(value: float, decimals: int | None) -> str:
+    error rounded to the same decimal place, each pair under one SI prefix (GUM 7.2.6)."""
+    def spec_text(value: float, decimals: int | None, like: float | None) -> str:
         if result.error_unit == "deg":
             return f"{value:+.{max(decimals, 0)}f}°" if decimals is not None else f"{value:+.3g}°"
         if result.error_unit == "% of length":
             return f"{value:+.{max(decimals, 0)}f} %" if decimals is not None else f"{value:+.3g} %"
-        text = format_fixed(value, unit, decimals) if decimals is not None else format_quantity(value, unit)
+        text = (format_fixed(value, unit, decimals, like=like) if decimals is not None
+                else format_quantity(value, unit))
         return text if text.startswith("-") else "+" + text
-
-    import math
 
     if math.isfinite(result.expanded_value) and result.expanded_value > 0:
         value_round = round_result(value=result.reading, uncertainty=result.expanded_value)
-        reading_text = format_fixed(value_round.value, unit, value_round.decimals)
-        u_text = format_fixed(value_round.uncertainty, unit, value_round.decimals)
+        reading_text = format_fixed(value_round.value, unit, value_round.decimals, like=value_round.uncertainty)
+        u_text = format_fixed(value_round.uncertainty, unit, value_round.decimals, like=value_round.value)
     else:
         reading_text, u_text = format_quantity(result.reading, unit), "—"
     if result.expanded > 0:
         err_round = round_result(value=result.error, uncertainty=result.expanded)
-        error_text = spec_text(err_round.value, err_round.decimals)
-        u_spec_text = spec_text(err_round.uncertainty, err_round.decimals).lstrip("+")
+        error_text = spec_text(err_round.value, err_round.decimals, err_round.uncertainty)
+        u_spec_text = spec_text(err_round.uncertainty, err_round.decimals, err_round.uncertainty).lstrip("+")
     else:
-        error_text, u_spec_text = spec_text(result.error, None), "—"
+        error_text, u_spec_text = spec_text(result.error, None, None), "—"
     return {"reading": reading_text, "U": u_text, "error": error_text, "U_spec": u_spec_text}
 
 

@@ -46,19 +46,24 @@ def run_folder_name(serial: str, uid: str, started) -> str:
 
 @contextlib.contextmanager
 def _sigterm_as_interrupt():
-    """Turn SIGTERM into KeyboardInterrupt for the run, so every guard puts the output safe."""
+    """Turn SIGTERM, SIGHUP (the terminal went away) and SIGQUIT into KeyboardInterrupt for the
+    run, so that every guard puts the output in standby before the process ends."""
     def handler(signum, frame):
-        raise KeyboardInterrupt("terminated (SIGTERM)")
+        raise KeyboardInterrupt(f"terminated ({signal.Signals(signum).name})")
 
+    previous = {}
     try:
-        previous = signal.signal(signal.SIGTERM, handler)
-    except ValueError:  # not in the main thread
-        yield
-        return
+        for name in ("SIGTERM", "SIGHUP", "SIGQUIT"):
+            number = getattr(signal, name, None)
+            if number is not None:
+                previous[number] = signal.signal(number, handler)
+    except ValueError:  # not in the main thread: signals cannot be handled here
+        pass
     try:
         yield
     finally:
-        signal.signal(signal.SIGTERM, previous)
+        for number, old in previous.items():
+            signal.signal(number, old)
 
 
 def open_calibrator(bench: Bench, *, simulate: bool, workdir: Path):
@@ -183,9 +188,8 @@ def resume(*, run_dir: Path, procedure_path: Path | None, bench_path: Path | Non
 
 
 def _same_file(path: Path | None, stored: dict, kind: str, load_path, load_text):
-    """Load ``path`` (or the stored source, or the stored text) and check it is the one run."""
-    if path is None and stored.get("source") and Path(stored["source"]).is_file():
-        path = Path(stored["source"])
+    """Load ``path`` and check it is the one the run started with; with no ``path``, the copy
+    the journal holds (the file it came from may have been revised since)."""
     if path is None:
         return load_text(stored["text"], stored["source"])
     loaded = load_path(path)

@@ -140,19 +140,30 @@ def format_quantity(value: float | None, unit: str, digits: int = 6) -> str:
     for factor, prefix in _ENGINEERING:
         if magnitude >= factor * 0.9999999995:
             break
-    return f"{value / factor:.{digits}g} {prefix}{unit}"
+    return f"{_significant(value / factor, digits)} {prefix}{unit}"
 
 
-def format_fixed(value: float, unit: str, decimals_base: int) -> str:
+def _significant(number: float, digits: int) -> str:
+    """``number`` to ``digits`` significant digits, never in exponent form (320, not 3.2e+02)."""
+    text = f"{number:.{digits}g}"
+    if "e" not in text:
+        return text
+    return f"{float(text):.0f}"
+
+
+def format_fixed(value: float, unit: str, decimals_base: int, *, like: float | None = None) -> str:
     """Format a value rounded to ``decimals_base`` decimal places *in base units*.
 
-    The prefix is chosen from the magnitude, and the number of decimals adjusted so that the
-    last digit shown stays at the same absolute place (GUM 7.2.6: the result is rounded to the
-    place of the last digit of its uncertainty).
+    The prefix is chosen from the larger of ``value`` and ``like`` (pass the uncertainty, so a
+    result and its uncertainty share one prefix), and the number of decimals adjusted so that
+    the last digit shown stays at the same absolute place (GUM 7.2.6: the result is rounded to
+    the place of the last digit of its uncertainty).
     """
     if math.isinf(value):
         return format_quantity(value, unit)
-    magnitude = abs(value) if value else 10.0 ** (-decimals_base)
+    magnitude = max(abs(value), abs(like) if like is not None and math.isfinite(like) else 0.0)
+    if magnitude == 0:
+        magnitude = 10.0 ** (-decimals_base)
     factor, prefix = 1.0, ""
     if unit not in _UNPREFIXED:
         for factor, prefix in _ENGINEERING:

@@ -20,6 +20,11 @@ from verirun.units import in_band, parse_quantity, parse_value
 #: The bench format version this verirun reads.
 FORMAT = 1
 
+#: The highest hazardous-live levels a bench may set (IEC 61010-1, normal conditions, the most
+#: lenient of its editions, from memory): a bench can lower the thresholds, never raise them
+#: past these, so the operator's confirmation cannot be switched off by configuration.
+MAX_THRESHOLDS = {"hazardous-dc": 70.0, "hazardous-ac-rms": 33.0, "hazardous-ac-peak": 46.7}
+
 
 class BenchInfo(Strict):
     """Where the work is done."""
@@ -195,8 +200,14 @@ def _resolve(located: yamlfile.LocatedData) -> Bench:
     if timeout < 0.001 and not problems:
         problems.append(located.problem(("calibrator", "timeout"), "must be at least 1 ms"))
     for key, value in (("hazardous-dc", dc), ("hazardous-ac-rms", rms), ("hazardous-ac-peak", peak)):
-        if value == 0 and not any(f"safety.{key}" in p for p in problems):
+        if any(f"safety.{key}" in p for p in problems):
+            continue
+        if value == 0:
             problems.append(located.problem(("safety", key), "a hazardous-live threshold must be more than zero"))
+        elif value > MAX_THRESHOLDS[key]:
+            problems.append(located.problem(("safety", key), f"{value:g} V is above {MAX_THRESHOLDS[key]:g} V,"
+                                            " the highest hazardous-live level of any edition of IEC 61010-1;"
+                                            " a bench may lower the thresholds, never raise them past that"))
     if problems:
         raise ProcedureError(problems)
     return Bench(file=model, text=located.text, source=located.source, settle_s=settle,

@@ -23,7 +23,7 @@ from dataclasses import dataclass
 from statistics import NormalDist
 from typing import Literal
 
-from verirun.metrology.scales import ScaleLaw
+from verirun.metrology.scales import Linear, ScaleLaw
 from verirun.metrology.tolerance import Window
 from verirun.metrology.uncertainty import Budget
 
@@ -346,6 +346,13 @@ def judge(rule: Rule, *, window: Window, law: ScaleLaw, budget: Budget, reading:
     else:
         f0 = law.fraction(window.nominal)
         low, high, y = f0 - window.half_width, f0 + window.half_width, law.fraction(reading)
+        if not isinstance(law, Linear):
+            # An ohms scale ends at 0 Ω and at ∞: a limit at or past an end of the arc is no
+            # limit at all (the pointer cannot go there), so that side of the tolerance is open.
+            if low <= 0.0:
+                low = -math.inf
+            if high >= 1.0:
+                high = math.inf
     outcome = rule.decide(low=low, high=high, reading=y, expanded=budget.expanded, k=budget.k)
     zone = outcome.acceptance
     if zone.empty:
