@@ -46,7 +46,7 @@ def error_unit(point: TestPoint) -> tuple[str, float]:
     """The unit errors at ``point`` are reported in, and the factor from the tolerance's domain."""
     if point.window.domain == "value":
         return point.unit, 1.0
-    if isinstance(point.range.band_at(point.frequency).statement, tolerance.DegreesOfArc):
+    if isinstance(point.statement, tolerance.DegreesOfArc):
         return "deg", float(point.range.arc)
     return "% of length", 100.0
 

@@ -9,6 +9,7 @@ the scale law's derivative ``df/dx`` at the nominal, and back again for reportin
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass, field
 from decimal import ROUND_CEILING, ROUND_HALF_EVEN, Decimal
@@ -30,6 +31,7 @@ def _check_finite(name: str, value: float, *, positive: bool = False) -> None:
         raise ValueError(f"{name} must be {wanted}, got {value!r}")
 
 
+@functools.lru_cache(maxsize=64)
 def coverage_factor(level: float) -> float:
     """Coverage factor of a normal distribution for a two-sided coverage ``level``.
 

@@ -36,6 +36,7 @@ class TestPoint:
     budget: uncertainty.Budget
     rule: decision.Rule
     standard: "SpecLine | None" = None
+    statement: tolerance.Statement | None = None
 
     @property
     def key(self) -> str:
@@ -99,6 +100,6 @@ def plan(procedure: Procedure, bench: "Bench | None" = None) -> list[TestPoint]:
         points.append(TestPoint(index=index, total=len(items), range=rng, nominal=nominal,
                                 frequency=freq, window=win, accuracy_text=band.text,
                                 first_of_range=rng is not previous, budget=budget,
-                                rule=procedure.rule, standard=standard))
+                                rule=procedure.rule, standard=standard, statement=band.statement))
         previous = rng
     return points
