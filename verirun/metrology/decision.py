@@ -103,6 +103,12 @@ class Outcome:
     conformance: float
 
 
+def _binary(zone: "Acceptance", *, low: float, high: float, reading: float, u: float) -> "Outcome":
+    """A pass/fail outcome: pass within ``zone``, limits included; pc reported either way."""
+    pc = conformance_probability(low=low, high=high, reading=reading, u=u)
+    return Outcome(verdict="pass" if zone.contains(reading) else "fail", acceptance=zone, conformance=pc)
+
+
 def _shrunk(low: float, high: float, w: float) -> Acceptance:
     return Acceptance(low=low + w, high=high - w, guard=w)
 
@@ -130,10 +136,8 @@ class SimpleAcceptance:
     def decide(self, *, low: float, high: float, reading: float, expanded: float,
                k: float = 2.0) -> Outcome:
         """``"pass"`` or ``"fail"`` for ``reading``; on a tolerance limit it passes."""
-        zone = self.acceptance(low=low, high=high, expanded=expanded, k=k)
-        pc = conformance_probability(low=low, high=high, reading=reading, u=expanded / k)
-        return Outcome(verdict="pass" if zone.contains(reading) else "fail", acceptance=zone,
-                       conformance=pc)
+        return _binary(self.acceptance(low=low, high=high, expanded=expanded, k=k),
+                       low=low, high=high, reading=reading, u=expanded / k)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -166,10 +170,8 @@ class GuardedAcceptance:
     def decide(self, *, low: float, high: float, reading: float, expanded: float,
                k: float = 2.0) -> Outcome:
         """``"pass"`` or ``"fail"``; a reading on an acceptance limit passes."""
-        zone = self.acceptance(low=low, high=high, expanded=expanded, k=k)
-        pc = conformance_probability(low=low, high=high, reading=reading, u=expanded / k)
-        return Outcome(verdict="pass" if zone.contains(reading) else "fail", acceptance=zone,
-                       conformance=pc)
+        return _binary(self.acceptance(low=low, high=high, expanded=expanded, k=k),
+                       low=low, high=high, reading=reading, u=expanded / k)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -268,10 +270,8 @@ class RiskAcceptance:
     def decide(self, *, low: float, high: float, reading: float, expanded: float,
                k: float = 2.0) -> Outcome:
         """``"pass"`` or ``"fail"``; a reading on an acceptance limit passes."""
-        zone = self.acceptance(low=low, high=high, expanded=expanded, k=k)
-        pc = conformance_probability(low=low, high=high, reading=reading, u=expanded / k)
-        return Outcome(verdict="pass" if zone.contains(reading) else "fail", acceptance=zone,
-                       conformance=pc)
+        return _binary(self.acceptance(low=low, high=high, expanded=expanded, k=k),
+                       low=low, high=high, reading=reading, u=expanded / k)
 
 
 Rule = SimpleAcceptance | GuardedAcceptance | NonBinaryStatement | RiskAcceptance

@@ -437,25 +437,16 @@ class _RangeResolver:
                 self.fail(("accuracy",), str(exc))
 
 
+#: How each term of an accuracy statement is printed on the certificate.
+_WORDS = (("percent_of_full_scale", "{:g} % of full scale"), ("class_index", "class {:g}"),
+          ("degrees", "{:g}° of arc"), ("percent_of_length", "{:g} % of scale length"),
+          ("percent_of_reading", "{:g} % of reading"), ("percent_of_range", "{:g} % of range"),
+          ("counts", "{:g} counts"), ("absolute", "{}"))
+
+
 def describe_accuracy(acc: Accuracy) -> str:
     """The accuracy statement in words, as printed on the certificate."""
-    parts = []
-    if acc.percent_of_full_scale is not None:
-        parts.append(f"{acc.percent_of_full_scale:g} % of full scale")
-    if acc.class_index is not None:
-        parts.append(f"class {acc.class_index:g}")
-    if acc.degrees is not None:
-        parts.append(f"{acc.degrees:g}° of arc")
-    if acc.percent_of_length is not None:
-        parts.append(f"{acc.percent_of_length:g} % of scale length")
-    if acc.percent_of_reading is not None:
-        parts.append(f"{acc.percent_of_reading:g} % of reading")
-    if acc.percent_of_range is not None:
-        parts.append(f"{acc.percent_of_range:g} % of range")
-    if acc.counts is not None:
-        parts.append(f"{acc.counts:g} counts")
-    if acc.absolute is not None:
-        parts.append(f"{acc.absolute}")
+    parts = [words.format(getattr(acc, name)) for name, words in _WORDS if getattr(acc, name) is not None]
     text = "± (" + " + ".join(parts) + ")" if len(parts) > 1 else "± " + parts[0] if parts else ""
     if acc.from_ is not None:
         text += f", {acc.from_} to {acc.to}"
