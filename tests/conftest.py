@@ -29,3 +29,9 @@ def demo_lab_path() -> Path:
 @pytest.fixture
 def data_dir() -> Path:
     return DATA
+
+
+@pytest.fixture(autouse=True)
+def _work_in_tmp(tmp_path, monkeypatch):
+    """Every test runs in its own folder, so a default `runs/` or `reports/` never lands in the repo."""
+    monkeypatch.chdir(tmp_path)

@@ -107,7 +107,8 @@ class TestAbortAndResume:
         assert read_journal(journal).torn_line is not None
         assert any("cut off" in p for p in problems(run_dir))
         capsys.readouterr()
-        assert run_cli("resume", run_dir, "--readings", data_dir / "qm40-readings.csv") == 0
+        assert run_cli("resume", run_dir, "--readings", data_dir / "qm40-readings.csv",
+                       "--reports", tmp_path / "reports") == 0
         assert "cut off" in capsys.readouterr().out
         docs = read_journal(journal).documents
         assert docs[:len(whole)] == whole
