@@ -189,8 +189,8 @@ class QuietConsole:
     def result(self, point: "TestPoint", entry: Entry, result: "Result") -> None:
         if self._quiet:
             return
-        line = (f"{point.index + 1:>3}/{point.total} {point.range.id:<9} {point.stimulus_text():<16}"
-                f" read {entry.typed:<9} limits {_limits(point, 4):<20} {result.verdict.upper()}")
+        line = (f"{point.index + 1:>3}/{point.total} {point.range.id:<9} {point.stimulus_text():<15}"
+                f" read {entry.typed:<9} {_limits(point, 4):<19} {result.verdict.upper()}")
         self._log(line)
         if self.echo is not None:
             colour = "green" if result.verdict == "pass" else "red"
