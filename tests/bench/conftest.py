@@ -1,4 +1,4 @@
-"""Fixtures for bench tests: an expected-protocol resource and a fresh simulated calibrator."""
+"""Fixtures for bench tests: a scripted-exchange resource and a fresh simulated calibrator."""
 
 from __future__ import annotations
 
