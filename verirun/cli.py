@@ -354,12 +354,9 @@ def _cmd_certify(args) -> int:
         _err("error: no stored runs found there")
         return EXIT_ERROR
     if args.pdf:
-        from verirun.certificate.render import write_pdf  # noqa: F401  (fail early if missing)
-        try:
-            import weasyprint  # noqa: F401
-        except ImportError:
-            _err("error: PDF output needs WeasyPrint: pip install 'verirun[pdf]' (or -e '.[pdf]')")
-            return EXIT_ERROR
+        from verirun.certificate.render import pdf_engine
+
+        pdf_engine()  # before the batch, so a missing extra is said once, not once per run
     rich = RichConsole(highlight=False, stderr=True)
     columns = (TextColumn("certifying"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn())
     with Progress(*columns, console=rich, transient=True, disable=len(runs) < 2) as progress:

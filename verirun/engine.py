@@ -178,7 +178,7 @@ class Engine:
 
     @property
     def journal_started(self) -> bool:
-        return self.journal._seq > 0
+        return self.journal.written > 0
 
     def _identify(self) -> tuple[str | None, BenchError | None]:
         """The calibrator's identity, and the problem with it (``None`` when it is the right one)."""

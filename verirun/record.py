@@ -89,6 +89,11 @@ class Journal:
         self._prev = line_hash(line)
         return full
 
+    @property
+    def written(self) -> int:
+        """How many documents the journal holds (those of an earlier session included)."""
+        return self._seq
+
     def close(self) -> None:
         """Close the file (every line is already on disk)."""
         if not self._file.closed:

@@ -17,7 +17,7 @@ from verirun.metrology.uncertainty import round_result
 from verirun.procedure.load import load_procedure_text
 from verirun.procedure.plan import plan
 from verirun.procedure.model import FUNCTION_NAMES
-from verirun.record import RECORD_FORMAT, JOURNAL_NAME, dumps, json_number, line_hash, read_journal, verify_chain
+from verirun.record import RECORD_FORMAT, dumps, json_number, line_hash, verify_chain
 from verirun.units import format_fixed, format_quantity
 
 
@@ -177,12 +177,3 @@ def reported(unit: str, result: Result) -> dict:
     else:
         error_text, u_spec_text = spec_text(result.error, None, None), "—"
     return {"reading": reading_text, "U": u_text, "error": error_text, "U_spec": u_spec_text}
-
-
-def build_record_from_journal(path: str | Path) -> dict:
-    """Read a journal file (or a run folder's journal) and build its run record."""
-    path = Path(path)
-    if path.is_dir():
-        path = path / JOURNAL_NAME
-    read = read_journal(path)
-    return build_record(read.documents, str(path))

@@ -21,7 +21,7 @@ from verirun.procedure.plan import plan
 from verirun.certificate.render import write_certificate
 from verirun.clock import SystemClock
 from verirun.engine import Engine, Outcome, RunContext
-from verirun.errors import BenchError, RecordError
+from verirun.errors import RecordError
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.record import JOURNAL_NAME, RECORD_NAME, Journal, read_journal, verify_chain, write_record
 from verirun.runrecord import build_record
@@ -245,5 +245,3 @@ def demo_files():
             as_file(root / "virtual-meter.yaml") as meter:
         yield {"procedure": procedure, "bench": bench, "lab": lab, "meter": meter}
 
-
-__all__ = ["execute", "close_run", "demo_files", "open_calibrator", "Finished", "BenchError"]

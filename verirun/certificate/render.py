@@ -94,6 +94,23 @@ def certificate_path(record: dict, reports_dir: str | Path) -> Path:
     return Path(reports_dir) / f"{safe_file_name(certificate_number(record))}.html"
 
 
+def pdf_engine():
+    """The optional WeasyPrint module that writes PDFs.
+
+    Raises
+    ------
+    VerirunError
+        If WeasyPrint is not installed, saying how to install it.
+    """
+    from verirun.errors import VerirunError
+
+    try:
+        import weasyprint
+    except ImportError:
+        raise VerirunError("PDF output needs WeasyPrint: pip install 'verirun[pdf]' (or -e '.[pdf]')") from None
+    return weasyprint
+
+
 def write_pdf(html: str, path: str | Path) -> Path:
     """Write the certificate ``html`` as a PDF (needs the optional WeasyPrint).
 
@@ -102,13 +119,7 @@ def write_pdf(html: str, path: str | Path) -> Path:
     VerirunError
         If WeasyPrint is not installed.
     """
-    from verirun.errors import VerirunError
-
-    try:
-        import weasyprint
-    except ImportError:
-        raise VerirunError("PDF output needs WeasyPrint: pip install 'verirun[pdf]' (or -e '.[pdf]')") from None
-    weasyprint.HTML(string=html).write_pdf(str(path))
+    pdf_engine().HTML(string=html).write_pdf(str(path))
     return Path(path)
 
 
