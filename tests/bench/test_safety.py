@@ -160,3 +160,40 @@ class TestIsHazardous:
         """An unknown function name is refused, listing the known ones."""
         with pytest.raises(ValueError, match="unknown function 'volts'.*dc-voltage"):
             is_hazardous("volts", 1.0)
+
+
+class TestSignalDuringStandby:
+    def test_a_signal_arriving_during_standby_waits_until_it_is_read_back(self, monkeypatch):
+        """A kill request that lands while the guard sends standby does not cut it short: the
+        standby and its read-back finish, and the interrupt is delivered after, so the output
+        state is known (no SafetyError)."""
+        import os
+        import signal
+
+        if not hasattr(signal, "pthread_sigmask"):
+            pytest.skip("this platform cannot hold signals back")
+
+        def interrupt(signum, frame):
+            raise KeyboardInterrupt("terminated")
+
+        class Cal:
+            def __init__(self):
+                self.sent = []
+
+            def standby(self):
+                os.kill(os.getpid(), signal.SIGTERM)  # arrives in the middle of making safe
+                self.sent.append("standby")
+
+            def output_is_on(self):
+                self.sent.append("read back")
+                return False
+
+        previous = signal.signal(signal.SIGTERM, interrupt)
+        try:
+            cal = Cal()
+            with pytest.raises(KeyboardInterrupt):
+                with output_guard(cal):
+                    pass
+        finally:
+            signal.signal(signal.SIGTERM, previous)
+        assert cal.sent == ["standby", "read back"]

@@ -8,6 +8,7 @@ the operator is told to switch it off by hand.
 from __future__ import annotations
 
 import math
+import signal
 from collections.abc import Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
@@ -54,13 +55,53 @@ def output_guard(calibrator: "Calibrator") -> Iterator["Calibrator"]:
     _make_safe(calibrator)
 
 
+#: Signals held back while the output is being made safe: Ctrl-C, a kill request, a lost
+#: terminal. They are delivered as soon as standby has been sent and read back.
+_DEFERRED = tuple(getattr(signal, name) for name in ("SIGINT", "SIGTERM", "SIGHUP", "SIGQUIT")
+                  if hasattr(signal, name))
+
+
+@contextmanager
+def _signals_deferred() -> Iterator[None]:
+    """Hold back interrupting signals for the duration of the block (where the OS allows it).
+
+    A signal held back is delivered when the block ends; if the block ends in a SafetyError, the
+    interrupt it would raise is dropped so that the operator still reads why the output state
+    is unknown (the run stops either way).
+    """
+    block = getattr(signal, "pthread_sigmask", None)
+    if block is None:
+        yield
+        return
+    previous = block(signal.SIG_BLOCK, _DEFERRED)
+    try:
+        yield
+    except SafetyError:
+        try:
+            block(signal.SIG_SETMASK, previous)
+        except KeyboardInterrupt:
+            pass
+        raise
+    except BaseException:
+        block(signal.SIG_SETMASK, previous)
+        raise
+    block(signal.SIG_SETMASK, previous)
+
+
 def _make_safe(calibrator: "Calibrator") -> None:
+    # A signal arriving now must not cut the standby or its read-back short: that would leave the
+    # output state unknown when it could have been made known. It is delivered afterwards.
+    with _signals_deferred():
+        _standby_and_check(calibrator)
+
+
+def _standby_and_check(calibrator: "Calibrator") -> None:
     failure: BaseException | None = None
     still_on = False
     try:
         calibrator.standby()
         still_on = calibrator.output_is_on()
-    # A second Ctrl-C during standby leaves the state as unknown as any other failure does.
+    # An interrupt raised from within standby leaves the state as unknown as any other failure.
     except (Exception, KeyboardInterrupt) as exc:
         failure = exc
     if failure is not None:
