@@ -9,7 +9,7 @@ import pytest
 from verirun.certificate.render import safe_file_name, write_certificate
 from verirun.cli import main
 from verirun.integrity import problems
-from verirun.record import Journal, read_journal, verify_chain
+from verirun.record import Journal, read_journal, verify_chain, write_record
 
 
 @pytest.fixture
@@ -78,6 +78,18 @@ class TestVerify:
         assert f"{missing}: no such run folder" in capsys.readouterr().out
         assert main(["amend", str(missing), "--point", "1", "--reading", "1", "--reason", "x"]) == 1
         assert f"{missing}: no such run folder" in capsys.readouterr().err
+
+    def test_record_file_is_the_canonical_json_of_the_record(self, run_dir, tmp_path):
+        """record.json, written a piece at a time, is byte for byte the one-shot canonical
+        encoding of the record by the standard library (json.dumps, sorted keys, compact)."""
+        record = json.loads((run_dir / "record.json").read_text(encoding="utf-8"))
+        record["notes"].append({"text": "é ✓ \u2028 \"quoted\"", "point": None, "time": "x"})
+        record["empty"] = []
+        written = write_record(record, tmp_path / "again.json").read_bytes()
+        expected = json.dumps(record, sort_keys=True, ensure_ascii=False, allow_nan=False,
+                              separators=(",", ":")) + "\n"
+        assert written == expected.encode("utf-8")
+        assert (run_dir / "record.json").read_bytes().endswith(b"}\n")
 
     def test_chain_function_on_a_fresh_journal(self, tmp_path):
         """Documents appended by the journal chain to one another from a zero hash."""

@@ -184,10 +184,21 @@ def write_record(record: dict, path: str | Path) -> Path:
     path = Path(path)
     tmp = path.with_suffix(".tmp")
     with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
-        # Compact, and streamed: the pretty-printing encoder is several times slower on a long
-        # run's record, and one string of the whole record would double its memory.
-        json.dump(record, fh, sort_keys=True, ensure_ascii=False, allow_nan=False, separators=(",", ":"))
-        fh.write("\n")
+        # The canonical compact form, written a top-level entry (and a list item) at a time:
+        # one string of a long run's whole record would double its memory, and ``json.dump``
+        # streams through the pure-Python encoder, several times slower than ``dumps``.
+        fh.write("{")
+        for number, key in enumerate(sorted(record)):
+            fh.write(("," if number else "") + dumps(key) + ":")
+            value = record[key]
+            if isinstance(value, list):
+                fh.write("[")
+                for position, item in enumerate(value):
+                    fh.write(("," if position else "") + dumps(item))
+                fh.write("]")
+            else:
+                fh.write(dumps(value))
+        fh.write("}\n")
         fh.flush()
         os.fsync(fh.fileno())
     os.replace(tmp, path)
