@@ -24,15 +24,18 @@ def problems(points: list[TestPoint], bench: Bench, profile, *, today: dt.date) 
                      f" calibration on {cal.calibration_due.isoformat()}; a run with an overdue"
                      " standard cannot start (recalibrate it, or use another bench)")
     for point in points:
-        where = f"step {point.index + 1} ({point.range.id} at {point.stimulus_text()})"
         try:
             profile.source_commands(point.function, point.nominal, point.frequency)
         except BenchError as exc:
-            found.append(f"{where}: the calibrator cannot source it: {exc.message}")
+            found.append(f"{_where(point)}: the calibrator cannot source it: {exc.message}")
         if point.standard is None:
-            found.append(f"{where}: {bench.source} gives no accuracy line of the calibrator for"
+            found.append(f"{_where(point)}: {bench.source} gives no accuracy line of the calibrator for"
                          f" {point.function} at this value; add one under calibrator.accuracy")
     return found
+
+
+def _where(point: TestPoint) -> str:
+    return f"step {point.index + 1} ({point.range.id} at {point.stimulus_text()})"
 
 
 def check(points: list[TestPoint], bench: Bench, profile, *, today: dt.date) -> None:

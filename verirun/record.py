@@ -27,9 +27,12 @@ RECORD_NAME = "record.json"
 GENESIS = "0" * 64
 
 
+_CANONICAL = json.JSONEncoder(sort_keys=True, ensure_ascii=False, allow_nan=False, separators=(",", ":"))
+
+
 def dumps(doc: Any) -> str:
     """Canonical JSON: sorted keys, no NaN, UTF-8 text kept as is; the same data, the same bytes."""
-    return json.dumps(doc, sort_keys=True, ensure_ascii=False, allow_nan=False, separators=(",", ":"))
+    return _CANONICAL.encode(doc)
 
 
 def line_hash(line: str) -> str:

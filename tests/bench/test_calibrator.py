@@ -181,6 +181,17 @@ class TestErrors:
         driver = cal(expect, [(ERR, OUT_OF_RANGE), (ERR, "-113,\"Undefined header\""), (ERR, "+0,\"No error\"")])
         assert driver.errors() == [(-222, "Data out of range"), (-113, "Undefined header")]
 
+    def test_entries_after_an_empty_queue_are_still_read(self, expect):
+        """An empty queue answered once does not hide a real entry or a malformed reply later:
+        each later answer is parsed unless it is exactly an empty-queue answer already seen."""
+        driver = cal(expect, [(ERR, EMPTY), (ERR, OUT_OF_RANGE), (ERR, EMPTY), (ERR, "+0"), (ERR, "OK")])
+        assert driver.errors() == []
+        assert driver.errors() == [(-222, "Data out of range")]
+        assert driver.errors() == []  # "+0", written differently, is parsed and still empty
+        with pytest.raises(BenchError) as err:
+            driver.errors()
+        assert err.value.answer == "OK"
+
     def test_bounded_when_the_queue_never_empties(self, expect):
         """An instrument that never reports an empty queue is an error after max_reads (20 in scpi-generic), not a hang."""
         driver = cal(expect, [(ERR, SIM_COMMAND_ERROR)] * 20)

@@ -11,12 +11,11 @@ import re
 import sys
 import threading
 from pathlib import Path
-from typing import Any, Callable, TypeVar
+from typing import Any
 
 from verirun.bench.profile import DriverProfile, load_profile
 from verirun.errors import BenchError
 
-T = TypeVar("T")
 
 # SCPI error queue entry: a signed integer code, a comma, then a (usually quoted) description.
 _ERROR_ENTRY = re.compile(r"\s*([+-]?\d+)\s*(?:,\s*(.*?))?\s*$", re.DOTALL)
@@ -43,6 +42,8 @@ class Calibrator:
         self._lock = threading.RLock()
         self._manager: Any = None
         self._closed = False
+        # Exact replies to the error-queue query already parsed as "queue empty".
+        self._empty_replies: set[str] = set()
 
     @classmethod
     def open(cls, visa_library: str, resource_name: str, profile: DriverProfile | str | Path, *,
@@ -186,7 +187,11 @@ class Calibrator:
             if self._closed:
                 return
             self._closed = True
-            self._io(None, self._resource.close)
+            try:
+                self._resource.close()
+            except Exception as exc:
+                self._raise_link_problem(exc, None)
+                raise
 
     def __enter__(self) -> "Calibrator":
         return self
@@ -212,12 +217,16 @@ class Calibrator:
             # Bounded: an instrument that never reports "empty" must not hang the run.
             for _ in range(queue.max_reads):
                 raw = self._query(queue.query).strip()
+                if raw in self._empty_replies:  # the usual answer, already parsed once
+                    return entries
                 match = _ERROR_ENTRY.fullmatch(raw)
                 if match is None:
                     raise BenchError("the calibrator's reply to the error-queue query is not an error"
                                      " entry (code,description)", command=queue.query, answer=raw)
                 code = int(match.group(1))
                 if code == queue.empty_code:
+                    if len(self._empty_replies) < 8:
+                        self._empty_replies.add(raw)
                     return entries
                 entries.append((code, (match.group(2) or "").strip().strip('"'), raw))
         raise BenchError(f"the error queue was still not empty after {queue.max_reads} reads",
@@ -225,19 +234,25 @@ class Calibrator:
 
     def _write(self, command: str) -> None:
         with self._lock:
-            self._io(command, lambda: self._resource.write(command))
+            try:
+                self._resource.write(command)
+            except Exception as exc:
+                self._raise_link_problem(exc, command)
+                raise
 
     def _query(self, command: str) -> str:
         with self._lock:
-            return self._io(command, lambda: self._resource.query(command))
-
-    def _io(self, command: str | None, call: Callable[[], T]) -> T:
-        try:
-            return call()
-        except Exception as exc:
-            problem = _link_problem(exc, getattr(self._resource, "timeout", None))
-            if problem is None:
+            try:
+                return self._resource.query(command)
+            except Exception as exc:
+                self._raise_link_problem(exc, command)
                 raise
+
+    def _raise_link_problem(self, exc: Exception, command: str | None) -> None:
+        """Raise a BenchError in plain words if ``exc`` is a VISA or OS failure of the link;
+        return (so the caller re-raises ``exc`` as it is) if it is anything else."""
+        problem = _link_problem(exc, getattr(self._resource, "timeout", None))
+        if problem is not None:
             raise BenchError(problem, command=command) from exc
 
 
