@@ -88,10 +88,12 @@ class Engine:
         The journal of this run.
     clock
         Source of time and of settling waits.
+    results
+        If given, each reading's evaluation is also put here under its point's key.
     """
 
     def __init__(self, *, procedure: Procedure, bench: Bench, calibrator, readings: ReadingSource,
-                 console, journal: Journal, clock=None):
+                 console, journal: Journal, clock=None, results: dict | None = None):
         self.procedure = procedure
         self.bench = bench
         self.calibrator = calibrator
@@ -102,6 +104,7 @@ class Engine:
         self.limits = HazardLimits(dc_volts=bench.hazardous_dc, ac_rms_volts=bench.hazardous_ac_rms,
                                    ac_peak_volts=bench.hazardous_ac_peak)
         self.counts = {"pass": 0, "fail": 0, "skipped": 0}
+        self.results = results if results is not None else {}
 
     def run(self, context: RunContext, *, uid: str | None = None, resume: dict | None = None,
             done: frozenset[str] = frozenset(), points: list[TestPoint] | None = None) -> Outcome:
@@ -250,6 +253,7 @@ class Engine:
             self.console.say(f"  skipped: {entry.text}")
             return
         result = evaluate(point, entry.value)
+        self.results[point.key] = result
         self.counts[result.verdict] = self.counts.get(result.verdict, 0) + 1
         self.console.result(point, entry, result)
 

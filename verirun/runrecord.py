@@ -8,21 +8,43 @@ the same journal are the same.
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass, field
 from pathlib import Path
 
-from verirun.bench.config import load_bench_text
+from verirun.bench.config import Bench, load_bench_text
 from verirun.errors import ProcedureError, RecordError
 from verirun.evaluation import Result, evaluate
 from verirun.metrology.uncertainty import round_result
-from verirun.procedure.load import load_procedure_text
-from verirun.procedure.plan import plan
+from verirun.procedure.load import Procedure, load_procedure_text
+from verirun.procedure.plan import TestPoint, plan
 from verirun.procedure.model import FUNCTION_NAMES
 from verirun.record import RECORD_FORMAT, dumps, json_number, line_hash, verify_chain
 from verirun.units import format_fixed, format_quantity
 
 
-def build_record(documents: list[dict], source: str = "journal") -> dict:
+@dataclass(frozen=True, kw_only=True)
+class Known:
+    """What a run worked out while it wrote its journal, so that closing the journal need not
+    work it out again: the procedure and bench it ran, their plan, and the evaluation of each
+    reading by point key. The record uses them only where they are the journal's own: the same
+    procedure and bench texts, and an evaluation of the very reading the journal holds."""
+
+    procedure: Procedure
+    bench: Bench
+    points: list[TestPoint]
+    results: dict[str, Result] = field(default_factory=dict)
+
+    def holds(self, start: dict) -> bool:
+        """True when the procedure and bench are those of the journal's start document."""
+        return (self.procedure.text == start["procedure"]["text"]
+                and self.bench.text == start["bench"]["text"])
+
+
+def build_record(documents: list[dict], source: str = "journal", *, known: Known | None = None) -> dict:
     """The run record of a journal's ``documents``.
+
+    ``known`` (from the run that wrote the journal) saves loading, planning and evaluating again;
+    the record is the same with it or without it.
 
     Raises
     ------
@@ -36,12 +58,17 @@ def build_record(documents: list[dict], source: str = "journal") -> dict:
     if problems:
         raise RecordError("\n".join(problems))
     start = documents[0]
-    try:
-        procedure = load_procedure_text(start["procedure"]["text"], start["procedure"]["source"])
-        bench = load_bench_text(start["bench"]["text"], start["bench"]["source"])
-    except ProcedureError as exc:
-        raise RecordError(f"{source}: the procedure or bench stored in the journal does not load: {exc}") from None
-    points = {p.key: p for p in plan(procedure, bench)}
+    if known is not None and known.holds(start):
+        procedure, bench, planned, results = known.procedure, known.bench, known.points, known.results
+    else:
+        try:
+            procedure = load_procedure_text(start["procedure"]["text"], start["procedure"]["source"])
+            bench = load_bench_text(start["bench"]["text"], start["bench"]["source"])
+        except ProcedureError as exc:
+            raise RecordError(f"{source}: the procedure or bench stored in the journal does not load:"
+                              f" {exc}") from None
+        planned, results = plan(procedure, bench), {}
+    points = {p.key: p for p in planned}
     entries: dict[str, dict] = {}
     notes = []
     stop = None
@@ -75,7 +102,7 @@ def build_record(documents: list[dict], source: str = "journal") -> dict:
     rows = []
     for key, point in points.items():
         doc = entries.get(key)
-        row = _row(point, doc)
+        row = _row(point, doc, results.get(key))
         if key in corrections:
             row["correction"] = corrections[key]
         rows.append(row)
@@ -116,7 +143,7 @@ def _range(rng) -> dict:
             "accuracy": [b.text for b in rng.bands], "read_on": rng.read_on}
 
 
-def _row(point, doc: dict | None) -> dict:
+def _row(point, doc: dict | None, known: Result | None = None) -> dict:
     win = point.window
     row = {"index": point.index, "key": point.key, "range": point.range.id, "unit": point.unit,
            "nominal": point.nominal, "frequency": point.frequency, "stimulus": point.stimulus_text(),
@@ -133,7 +160,9 @@ def _row(point, doc: dict | None) -> dict:
         return {**row, "verdict": "not-measured"}
     if doc["kind"] not in ("observation", "correction"):
         return {**row, "verdict": "skipped", "time": doc["time"], "skip_reason": doc["reason"]}
-    result = evaluate(point, doc["reading"])
+    # The run's own evaluation when it is of this very reading (it is the same function of the
+    # same point and value); otherwise, a corrected or resumed reading, evaluated here.
+    result = known if known is not None and known.reading == doc["reading"] else evaluate(point, doc["reading"])
     return {**row, "verdict": result.verdict, "reading": doc["reading"], "typed": doc["typed"],
             "time": doc["time"], "error": result.error, "error_unit": result.error_unit,
             "percent_of_tolerance": result.percent_of_tolerance,

@@ -24,7 +24,7 @@ from verirun.engine import Engine, Outcome, RunContext
 from verirun.errors import RecordError
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.record import JOURNAL_NAME, RECORD_NAME, Journal, read_journal, verify_chain, write_record
-from verirun.runrecord import build_record
+from verirun.runrecord import Known, build_record
 
 
 @dataclass
@@ -66,8 +66,9 @@ def _sigterm_as_interrupt():
             signal.signal(number, old)
 
 
-def open_calibrator(bench: Bench, *, simulate: bool, workdir: Path):
-    """Open the bench's calibrator, or the simulated one (a different VISA backend, same driver)."""
+def open_calibrator(bench: Bench, *, simulate: bool, workdir: Path, profile=None):
+    """Open the bench's calibrator, or the simulated one (a different VISA backend, same driver),
+    with the driver ``profile`` (loaded from the bench file's name when not given)."""
     from verirun.bench.calibrator import Calibrator
 
     cal = bench.file.calibrator
@@ -77,7 +78,8 @@ def open_calibrator(bench: Bench, *, simulate: bool, workdir: Path):
         library, resource = sim_library(workdir / "simulated-calibrator"), SIM_RESOURCE
     else:
         library, resource = cal.visa_library, cal.resource
-    return Calibrator.open(library, resource, cal.profile, timeout_ms=int(bench.timeout_s * 1000))
+    return Calibrator.open(library, resource, profile if profile is not None else cal.profile,
+                           timeout_ms=int(bench.timeout_s * 1000))
 
 
 def execute(*, procedure: Procedure, bench: Bench, context: RunContext, readings, console,
@@ -98,11 +100,11 @@ def execute(*, procedure: Procedure, bench: Bench, context: RunContext, readings
     run_dir.mkdir(parents=True, exist_ok=False)
     return _drive(run_dir=run_dir, procedure=procedure, bench=bench, context=context, readings=readings,
                   console=console, reports_dir=reports_dir, simulate=simulate, clock=clock, uid=uid,
-                  calibrator=calibrator, points=points)
+                  calibrator=calibrator, profile=profile, points=points)
 
 
 def _drive(*, run_dir: Path, procedure, bench, context, readings, console, reports_dir, simulate,
-           clock, uid, calibrator, points, resume: dict | None = None,
+           clock, uid, calibrator, profile, points, resume: dict | None = None,
            done: frozenset[str] = frozenset()) -> Finished:
     """Open the bench, run the engine on ``run_dir``'s journal, and close the run however it ends.
 
@@ -113,13 +115,16 @@ def _drive(*, run_dir: Path, procedure, bench, context, readings, console, repor
     own_calibrator = calibrator is None
     journal = Journal(run_dir / JOURNAL_NAME)
     outcome = None
+    # What the run worked out already, for the record to use instead of working it out again.
+    known = Known(procedure=procedure, bench=bench, points=points, results={})
     try:
         with _sigterm_as_interrupt():
             if own_calibrator:
-                calibrator = open_calibrator(bench, simulate=simulate, workdir=run_dir)
+                calibrator = open_calibrator(bench, simulate=simulate, workdir=run_dir, profile=profile)
             try:
                 engine = Engine(procedure=procedure, bench=bench, calibrator=calibrator,
-                                readings=readings, console=console, journal=journal, clock=clock)
+                                readings=readings, console=console, journal=journal, clock=clock,
+                                results=known.results)
                 outcome = engine.run(context, uid=uid, resume=resume, done=done, points=points)
             finally:
                 if own_calibrator:
@@ -127,13 +132,13 @@ def _drive(*, run_dir: Path, procedure, bench, context, readings, console, repor
     except BaseException as exc:
         journal.close()
         try:
-            close_run(run_dir)
+            close_run(run_dir, known=known)
         except Exception:  # the journal is the truth; a record that cannot be built now can be later
             pass
         exc.run_dir = run_dir  # type: ignore[attr-defined]
         raise
     journal.close()
-    record = close_run(run_dir)
+    record = close_run(run_dir, known=known)
     complete = record is not None and record["run"]["status"] == "complete"
     certificate = write_certificate(record, reports_dir) if complete else None
     return Finished(outcome=outcome, run_dir=run_dir, record_path=run_dir / RECORD_NAME,
@@ -184,7 +189,8 @@ def resume(*, run_dir: Path, procedure_path: Path | None, bench_path: Path | Non
                      f" ({len(read.torn_line)} characters); every whole line before it is kept")
     return _drive(run_dir=run_dir, procedure=procedure, bench=bench, context=context, readings=readings,
                   console=console, reports_dir=reports_dir, simulate=simulate, clock=clock,
-                  uid=start["uid"], calibrator=calibrator, points=points, resume=start, done=done)
+                  uid=start["uid"], calibrator=calibrator, profile=profile, points=points,
+                  resume=start, done=done)
 
 
 def _same_file(path: Path | None, stored: dict, kind: str, load_path, load_text):
@@ -200,12 +206,14 @@ def _same_file(path: Path | None, stored: dict, kind: str, load_path, load_text)
     return loaded
 
 
-def close_run(run_dir: Path) -> dict | None:
-    """Build and write the run record of the journal in ``run_dir`` (``None`` if it is empty)."""
+def close_run(run_dir: Path, *, known: Known | None = None) -> dict | None:
+    """Build and write the run record of the journal in ``run_dir`` (``None`` if it is empty).
+
+    ``known`` is what the run that wrote the journal worked out (see :class:`Known`)."""
     read = read_journal(run_dir / JOURNAL_NAME)
     if not read.documents:
         return None
-    record = build_record(read.documents, str(run_dir / JOURNAL_NAME))
+    record = build_record(read.documents, str(run_dir / JOURNAL_NAME), known=known)
     write_record(record, run_dir / RECORD_NAME)
     return record
 
