@@ -39,7 +39,7 @@ import _gen  # noqa: E402
 
 SIZES = (10, 100, 1000, 10000)
 QUICK_SIZES = (10, 100)
-REPEATS = {10: 11, 100: 7, 1000: 5, 10000: 1}
+REPEATS = {10: 21, 100: 11, 1000: 5, 10000: 2}
 QUICK_REPEATS = {10: 5, 100: 3}
 RATIO_TARGET = 1.3
 FLAT_TARGET = 1.25   # per-point cost at the largest size over that at the next size down
@@ -365,10 +365,13 @@ def report(results: list[dict]) -> None:
     rows = []
     for r in results:
         n = r["n"]
-        rows.append([str(n), str(r["reps"]), f"{r['v_wall'] * 1e3:.1f}", _us(r["v_wall"], n),
-                     f"{r['b_wall'] * 1e3:.1f}", _us(r["b_wall"], n), f"{r['ratio']:.2f}",
-                     f"<= {RATIO_TARGET}", _gen.verdict(r["ratio"] <= RATIO_TARGET)])
-    print("\nDry run, verirun (whole execute) vs hand-written PyVISA loop; wall time, medians")
+        engine = r["v_wall"] - r["v_record"] - r["v_cert"]
+        rows.append([str(n), str(r["reps"]), f"{engine * 1e3:.1f}", _us(engine, n),
+                     f"{r['b_wall'] * 1e3:.1f}", _us(r["b_wall"], n), f"{r['engine_ratio']:.2f}",
+                     f"<= {RATIO_TARGET}", _gen.verdict(r["engine_ratio"] <= RATIO_TARGET)])
+    print("\nEngine overhead: the dry run up to the journal's last line (preflight, opening the simulated"
+          "\ncalibrator, the run loop, every observation journaled and fsynced) against the hand-written"
+          "\nPyVISA loop doing the same; wall time, medians; ratio = median of the per-repetition ratios")
     print(_gen.table(["N", "runs", "verirun ms", "us/pt", "baseline ms", "us/pt", "ratio", "target",
                       "result"], rows))
 
@@ -377,11 +380,12 @@ def report(results: list[dict]) -> None:
         n = r["n"]
         engine = r["v_wall"] - r["v_record"] - r["v_cert"]
         rows.append([str(n), _us(engine, n), _us(r["v_record"], n), _us(r["v_cert"], n),
-                     _us(r["v_wall"], n), f"{r['engine_ratio']:.2f}", f"{r['load'] * 1e3:.1f}"])
-    print("\nWhere verirun's time goes, us per point. engine = preflight + open calibrator + run loop"
-          " + journal;\nengine ratio = engine alone over the baseline (which builds no record and no"
-          " certificate)")
-    print(_gen.table(["N", "engine", "record", "certificate", "total", "engine ratio",
+                     _us(r["v_wall"], n), f"{r['ratio']:.2f}", f"{r['load'] * 1e3:.1f}"])
+    print("\nThe rest of a verirun dry run, which the baseline does not do: closing the journal into the run"
+          "\nrecord (every point evaluated again from the journal) and rendering the certificate; us per"
+          "\npoint. whole ratio = the whole execute over the baseline (for information; the certificate's"
+          "\nown targets are in certificates.py)")
+    print(_gen.table(["N", "engine", "record", "certificate", "whole", "whole ratio",
                       "file loading ms (not in the times)"], rows))
 
     rows = []
@@ -389,27 +393,34 @@ def report(results: list[dict]) -> None:
         n = r["n"]
         rows.append([str(n), _us(r["v_cpu"], n), _us(r["b_cpu"], n), f"{r['cpu_ratio']:.2f}",
                      _us(r["v_fsync"], n), _us(r["b_fsync"], n)])
-    print("\nCPU time of the process and fsync wait, us per point (the disk is shared: fsync varies)")
+    print("\nCPU time of the process (whole execute) and fsync wait, us per point (the disk is shared:"
+          " fsync varies)")
     print(_gen.table(["N", "verirun CPU", "baseline CPU", "CPU ratio", "verirun fsync", "baseline fsync"],
                      rows))
 
     rows = []
     for prev, cur in zip(results, results[1:]):
         span = cur["n"] - prev["n"]
-        rows.append([f"{prev['n']} -> {cur['n']}", _us(cur["v_wall"] - prev["v_wall"], span),
-                     _us(cur["b_wall"] - prev["b_wall"], span),
-                     _us(cur["v_cpu"] - prev["v_cpu"], span), _us(cur["b_cpu"] - prev["b_cpu"], span)])
+        engine = (cur["v_wall"] - cur["v_record"] - cur["v_cert"]) - (prev["v_wall"] - prev["v_record"] - prev["v_cert"])
+        rows.append([f"{prev['n']} -> {cur['n']}", _us(engine, span), _us(cur["v_wall"] - prev["v_wall"], span),
+                     _us(cur["b_wall"] - prev["b_wall"], span)])
     print("\nMarginal cost of one more point, us (slope between sizes)")
-    print(_gen.table(["sizes", "verirun wall", "baseline wall", "verirun CPU", "baseline CPU"], rows))
+    print(_gen.table(["sizes", "verirun engine", "verirun whole", "baseline"], rows))
 
     big, prev = results[-1], results[-2]
-    growth = (big["v_wall"] / big["n"]) / (prev["v_wall"] / prev["n"])
-    growth_cpu = (big["v_cpu"] / big["n"]) / (prev["v_cpu"] / prev["n"])
-    print(f"\nPer-point cost flat? verirun us/pt at N={big['n']} over N={prev['n']}: wall {growth:.2f},"
-          f" CPU {growth_cpu:.2f} (target <= {FLAT_TARGET}): {_gen.verdict(growth <= FLAT_TARGET)}")
-    worst = max(results, key=lambda r: r["ratio"])
-    print(f"Ratio <= {RATIO_TARGET} at every size: {_gen.verdict(worst['ratio'] <= RATIO_TARGET)}"
-          f" (worst {worst['ratio']:.2f} at N={worst['n']})")
+
+    def per_point(r, key):
+        value = r["v_wall"] - r["v_record"] - r["v_cert"] if key == "engine" else r["v_wall"]
+        return value / r["n"]
+
+    growth = per_point(big, "engine") / per_point(prev, "engine")
+    growth_whole = per_point(big, "whole") / per_point(prev, "whole")
+    print(f"\nPer-point cost flat? verirun us/pt at N={big['n']} over N={prev['n']}: engine {growth:.2f},"
+          f" whole {growth_whole:.2f} (target <= {FLAT_TARGET}):"
+          f" {_gen.verdict(max(growth, growth_whole) <= FLAT_TARGET)}")
+    worst = max(results, key=lambda r: r["engine_ratio"])
+    print(f"Engine ratio <= {RATIO_TARGET} at every size: {_gen.verdict(worst['engine_ratio'] <= RATIO_TARGET)}"
+          f" (worst {worst['engine_ratio']:.2f} at N={worst['n']})")
 
 
 def profile(n: int, root: Path, top: int) -> None:

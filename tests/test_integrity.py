@@ -5,6 +5,8 @@ from __future__ import annotations
 import json
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from verirun.certificate.render import safe_file_name, write_certificate
 from verirun.cli import main
@@ -13,7 +15,7 @@ from verirun.bench.config import load_bench
 from verirun.evaluation import evaluate
 from verirun.procedure.load import load_procedure, load_procedure_text
 from verirun.procedure.plan import plan
-from verirun.record import Journal, read_journal, verify_chain, write_record
+from verirun.record import Journal, dumps, read_journal, verify_chain, write_record
 from verirun.runrecord import Known, build_record
 
 
@@ -202,3 +204,19 @@ class TestEscapingAndFileNames:
         record["lab"]["certificate_prefix"] = "../../evil"
         path = write_certificate(record, tmp_path / "rep")
         assert path.parent == tmp_path / "rep"
+
+
+_json_values = st.recursive(
+    st.none() | st.booleans() | st.integers() | st.floats(allow_nan=False, allow_infinity=False)
+    | st.text(),
+    lambda children: st.lists(children, max_size=4) | st.dictionaries(st.text(max_size=6), children, max_size=4),
+    max_leaves=20)
+
+
+@settings(max_examples=300, deadline=None)
+@given(_json_values)
+def test_canonical_lines_are_the_standard_librarys_canonical_json(value):
+    """Journal lines are exactly the standard library's json.dumps with sorted keys, compact
+    separators and UTF-8 text kept as is (the form every chain hash is taken over)."""
+    assert dumps(value) == json.dumps(value, sort_keys=True, ensure_ascii=False, allow_nan=False,
+                                      separators=(",", ":"))

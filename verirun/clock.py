@@ -45,4 +45,6 @@ class VirtualClock:
 
 def iso(moment: dt.datetime) -> str:
     """ISO 8601 text of a time, in UTC, to the second."""
-    return moment.astimezone(dt.timezone.utc).replace(microsecond=0).isoformat().replace("+00:00", "Z")
+    if moment.tzinfo is not dt.timezone.utc:
+        moment = moment.astimezone(dt.timezone.utc)
+    return moment.isoformat(timespec="seconds")[:-6] + "Z"  # "+00:00" written as "Z"

@@ -104,7 +104,8 @@ class Calibrator:
     def identify(self) -> str:
         """Measure the instrument's identity string (maker, model, serial, firmware)."""
         command = self._profile.commands.identify
-        answer = self._query(command).strip()
+        with self._lock:
+            answer = self._query(command).strip()
         if not answer:
             raise BenchError("the calibrator sent an empty identity", command=command, answer=answer)
         return answer
@@ -161,7 +162,8 @@ class Calibrator:
             If the reply is neither an "on" nor an "off" reply of the profile.
         """
         state = self._profile.output_state
-        answer = self._query(state.query).strip()
+        with self._lock:
+            answer = self._query(state.query).strip()
         if answer in state.on_replies:
             return True
         if answer in state.off_replies:
@@ -202,7 +204,7 @@ class Calibrator:
     # --- exchanges -----------------------------------------------------------------------------
 
     def _setting(self, command: str) -> None:
-        with self._lock:
+        with self._lock:  # a setting and its error-queue check, as one
             self._write(command)
             entries = self._drain()
         if entries:
@@ -232,21 +234,21 @@ class Calibrator:
         raise BenchError(f"the error queue was still not empty after {queue.max_reads} reads",
                          command=queue.query, answer="; ".join(raw for _, _, raw in entries[-3:]))
 
+    # _write and _query are called with the lock held.
+
     def _write(self, command: str) -> None:
-        with self._lock:
-            try:
-                self._resource.write(command)
-            except Exception as exc:
-                self._raise_link_problem(exc, command)
-                raise
+        try:
+            self._resource.write(command)
+        except Exception as exc:
+            self._raise_link_problem(exc, command)
+            raise
 
     def _query(self, command: str) -> str:
-        with self._lock:
-            try:
-                return self._resource.query(command)
-            except Exception as exc:
-                self._raise_link_problem(exc, command)
-                raise
+        try:
+            return self._resource.query(command)
+        except Exception as exc:
+            self._raise_link_problem(exc, command)
+            raise
 
     def _raise_link_problem(self, exc: Exception, command: str | None) -> None:
         """Raise a BenchError in plain words if ``exc`` is a VISA or OS failure of the link;

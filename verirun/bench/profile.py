@@ -223,7 +223,10 @@ class DriverProfile(_Frozen):
 
 
 def _checked(what: str, value: Any, setting: Setting, unit: str) -> float:
-    if isinstance(value, bool) or not isinstance(value, numbers.Real):
+    if type(value) is float:  # the usual case, and the cheapest check of all
+        if math.isfinite(value) and setting.min <= value <= setting.max:
+            return value
+    elif isinstance(value, bool) or not isinstance(value, numbers.Real):
         raise BenchError(f"{what} must be a number, got {value!r}; nothing was sent")
     number = float(value)
     if not math.isfinite(number):

@@ -49,6 +49,11 @@ def tur(*, low: float, high: float, expanded: float) -> float | None:
     no span) and ``math.inf`` when ``expanded`` is zero.
     """
     _check_zone(low, high, expanded, 1.0)
+    return _tur(low, high, expanded)
+
+
+def _tur(low: float, high: float, expanded: float) -> float | None:
+    # tur() on numbers already checked.
     if not (math.isfinite(low) and math.isfinite(high)):
         return None
     if expanded == 0.0:
@@ -63,9 +68,14 @@ def conformance_probability(*, low: float, high: float, reading: float, u: float
     and ``u`` its standard uncertainty; an infinite limit contributes 0 or 1. With ``u = 0`` the
     measurand is the reading itself: ``pc`` is 1 inside the limits (included) and 0 outside.
     """
+    _check_zone(low, high, u, 1.0)
+    return _pc(low, high, reading, u)
+
+
+def _pc(low: float, high: float, reading: float, u: float) -> float:
+    # conformance_probability() on limits and an uncertainty already checked.
     if math.isnan(reading):
         raise ValueError("a reading must be a number, got nan")
-    _check_zone(low, high, u, 1.0)
     if u == 0.0 or math.isinf(reading):
         return 1.0 if low <= reading <= high else 0.0
     return _NORMAL.cdf((high - reading) / u) - _NORMAL.cdf((low - reading) / u)
@@ -108,8 +118,9 @@ class Outcome:
 
 
 def _binary(zone: "Acceptance", *, low: float, high: float, reading: float, u: float) -> "Outcome":
-    """A pass/fail outcome: pass within ``zone``, limits included; pc reported either way."""
-    pc = conformance_probability(low=low, high=high, reading=reading, u=u)
+    """A pass/fail outcome: pass within ``zone``, limits included; pc reported either way.
+    The rule has checked the limits and the uncertainty in making ``zone``."""
+    pc = _pc(low, high, reading, u)
     return Outcome(verdict="pass" if zone.contains(reading) else "fail", acceptance=zone, conformance=pc)
 
 
@@ -203,8 +214,8 @@ class NonBinaryStatement(GuardedAcceptance):
     def decide(self, *, low: float, high: float, reading: float, expanded: float,
                k: float = 2.0) -> Outcome:
         """One of the four statements for ``reading``."""
-        zone = self.acceptance(low=low, high=high, expanded=expanded, k=k)
-        pc = conformance_probability(low=low, high=high, reading=reading, u=expanded / k)
+        zone = self.acceptance(low=low, high=high, expanded=expanded, k=k)  # checks the numbers
+        pc = _pc(low, high, reading, expanded / k)
         w = zone.guard
         if zone.contains(reading):
             verdict: Verdict = "pass"
@@ -369,5 +380,5 @@ def judge(rule: Rule, *, window: Window, law: ScaleLaw, budget: Budget, reading:
         a, b = law.value(zone.low), law.value(zone.high)
         acceptance = (min(a, b), max(a, b))
     return Decision(verdict=outcome.verdict, conformance=outcome.conformance,
-                    tur=tur(low=low, high=high, expanded=budget.expanded), domain=window.domain,
+                    tur=_tur(low, high, budget.expanded), domain=window.domain,  # checked by the rule
                     outcome=outcome, acceptance=acceptance)
