@@ -6,6 +6,7 @@ executes it. Every number a point carries comes from the pure metrology function
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 from typing import TYPE_CHECKING
@@ -38,7 +39,7 @@ class TestPoint:
     standard: "SpecLine | None" = None
     statement: tolerance.Statement | None = None
 
-    @property
+    @functools.cached_property  # asked for several times per step; worked out once
     def key(self) -> str:
         """Stable identity of the point within its procedure: ``range-id@nominal[@frequency]``."""
         text = f"{self.range.id}@{self.nominal!r}"
