@@ -116,6 +116,16 @@ class TestBudgetOfAPoint:
         assert point.budget.expanded_value == pytest.approx(point.budget.expanded / slope)
 
 
+def test_planned_points_are_frozen_and_hashable():
+    """A planned test point cannot be changed, and can be hashed (its window and budget too), so
+    a plan can key a table."""
+    planned = points()
+    with pytest.raises(AttributeError):
+        planned[0].nominal = 1.0  # type: ignore[misc]
+    assert len({hash(p) for p in planned}) == len(planned)
+    assert {planned[0]: "first"}[planned[0]] == "first"
+
+
 class TestEvaluateUnderARule:
     def test_guarded_rule_fails_a_reading_inside_tolerance_but_outside_acceptance(self):
         """Guarded acceptance, w = U (ILAC-G8:09/2019 4.2.2): at 10 V ± 0.2 V, a reading of

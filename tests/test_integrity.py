@@ -220,3 +220,20 @@ def test_canonical_lines_are_the_standard_librarys_canonical_json(value):
     separators and UTF-8 text kept as is (the form every chain hash is taken over)."""
     assert dumps(value) == json.dumps(value, sort_keys=True, ensure_ascii=False, allow_nan=False,
                                       separators=(",", ":"))
+
+
+def test_canonical_lines_refuse_what_json_cannot_hold():
+    """NaN, infinities and a document that holds itself are refused (as json.dumps refuses them
+    with allow_nan=False), and refusing one does not spoil the next document."""
+    circular: dict = {}
+    circular["self"] = circular
+    for bad in ({"a": [{"b": float("nan")}]}, {"x": float("inf")}, circular):
+        with pytest.raises(ValueError):
+            dumps(bad)
+    assert dumps({"a": [{"b": 1.0}]}) == '{"a":[{"b":1.0}]}'
+
+
+def test_record_file_of_a_record_with_other_keys(tmp_path):
+    """A record given keys other than text is written as json.dumps writes it."""
+    written = write_record({1: "a", 2: [2.5]}, tmp_path / "r.json").read_text(encoding="utf-8")
+    assert written == json.dumps({1: "a", 2: [2.5]}, sort_keys=True, separators=(",", ":")) + "\n"

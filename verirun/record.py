@@ -37,7 +37,7 @@ def _c_encoder():
     if make is None:
         return None
     try:
-        encoder = make(None, _CANONICAL.default, json.encoder.encode_basestring, None, ":", ",",
+        encoder = make(_SEEN, _CANONICAL.default, json.encoder.encode_basestring, None, ":", ",",
                        True, False, False)
         sample = {"b": [1.5, None, True, "é\n\"", -0.0, 10**20], "a": {"z": 1e-300, "y": ""}}
         if "".join(encoder(sample, 0)) != _CANONICAL.encode(sample):
@@ -47,13 +47,20 @@ def _c_encoder():
     return encoder
 
 
+#: The containers the C encoder is inside of (for its circular-reference check); it empties as
+#: it goes, but not when it stops at an error, so :func:`dumps` empties it then.
+_SEEN: dict = {}
 _C_CANONICAL = _c_encoder()
 
 
 def dumps(doc: Any) -> str:
     """Canonical JSON: sorted keys, no NaN, UTF-8 text kept as is; the same data, the same bytes."""
     if _C_CANONICAL is not None:
-        return "".join(_C_CANONICAL(doc, 0))
+        try:
+            return "".join(_C_CANONICAL(doc, 0))
+        except BaseException:
+            _SEEN.clear()
+            raise
     return _CANONICAL.encode(doc)
 
 
@@ -212,6 +219,12 @@ def write_record(record: dict, path: str | Path) -> Path:
         # The canonical compact form, written a top-level entry (and a list item) at a time:
         # one string of a long run's whole record would double its memory, and ``json.dump``
         # streams through the pure-Python encoder, several times slower than ``dumps``.
+        if not all(isinstance(key, str) for key in record):  # (not a record verirun builds)
+            fh.write(dumps(record) + "\n")
+            fh.flush()
+            os.fsync(fh.fileno())
+            os.replace(tmp, path)
+            return path
         fh.write("{")
         for number, key in enumerate(sorted(record)):
             fh.write(("," if number else "") + dumps(key) + ":")

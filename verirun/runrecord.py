@@ -162,7 +162,10 @@ def _row(point, doc: dict | None, known: Result | None = None) -> dict:
         return {**row, "verdict": "skipped", "time": doc["time"], "skip_reason": doc["reason"]}
     # The run's own evaluation when it is of this very reading (it is the same function of the
     # same point and value); otherwise, a corrected or resumed reading, evaluated here.
-    result = known if known is not None and known.reading == doc["reading"] else evaluate(point, doc["reading"])
+    reading = doc["reading"]
+    same = (known is not None and known.reading == reading
+            and math.copysign(1.0, known.reading) == math.copysign(1.0, reading))  # -0.0 is not 0.0
+    result = known if same else evaluate(point, reading)
     return {**row, "verdict": result.verdict, "reading": doc["reading"], "typed": doc["typed"],
             "time": doc["time"], "error": result.error, "error_unit": result.error_unit,
             "percent_of_tolerance": result.percent_of_tolerance,

@@ -39,6 +39,8 @@ def _check_zone(low: float, high: float, expanded: float, k: float) -> None:
         raise ValueError(f"the expanded uncertainty must be finite and not negative, got {expanded!r}")
     if not (math.isfinite(k) and k > 0):
         raise ValueError(f"the coverage factor k must be positive and finite, got {k!r}")
+    if not math.isfinite(expanded / k):  # the standard uncertainty every rule works with
+        raise ValueError(f"the standard uncertainty U / k must be finite, got {expanded!r} / {k!r}")
 
 
 def tur(*, low: float, high: float, expanded: float) -> float | None:
@@ -68,6 +70,8 @@ def conformance_probability(*, low: float, high: float, reading: float, u: float
     and ``u`` its standard uncertainty; an infinite limit contributes 0 or 1. With ``u = 0`` the
     measurand is the reading itself: ``pc`` is 1 inside the limits (included) and 0 outside.
     """
+    if math.isnan(reading):
+        raise ValueError("a reading must be a number, got nan")
     _check_zone(low, high, u, 1.0)
     return _pc(low, high, reading, u)
 

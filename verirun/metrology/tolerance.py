@@ -170,8 +170,9 @@ Statement = PercentOfFullScale | ClassIndex | DegreesOfArc | PercentOfLength | V
 
 
 # Made for every test point of a plan and never changed after; not frozen because a frozen
-# dataclass takes twice as long to build.
-@dataclass(kw_only=True, slots=True)
+# dataclass takes twice as long to build, but hashable like one, as the frozen test point
+# that holds it is.
+@dataclass(kw_only=True, slots=True, unsafe_hash=True)
 class Window:
     """The allowable window at one nominal value.
 

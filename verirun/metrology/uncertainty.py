@@ -72,8 +72,9 @@ def standard_from_limit(limit: float, *, distribution: Distribution,
 
 
 # Made for every test point of a plan and never changed after; not frozen because a frozen
-# dataclass takes twice as long to build.
-@dataclass(kw_only=True, slots=True)
+# dataclass takes twice as long to build, but hashable like one, as the frozen test point
+# that holds it is.
+@dataclass(kw_only=True, slots=True, unsafe_hash=True)
 class Term:
     """One named contribution to a budget.
 
@@ -214,8 +215,9 @@ def readability_term(*, division: float, fraction: float = 1.0,
 
 
 # Made for every test point of a plan and never changed after; not frozen because a frozen
-# dataclass takes twice as long to build.
-@dataclass(kw_only=True, slots=True)
+# dataclass takes twice as long to build, but hashable like one, as the frozen test point
+# that holds it is.
+@dataclass(kw_only=True, slots=True, unsafe_hash=True)
 class Budget:
     """The combined uncertainty of one point, in the domain its tolerance is stated in.
 
