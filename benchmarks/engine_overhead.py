@@ -39,7 +39,7 @@ import _gen  # noqa: E402
 
 SIZES = (10, 100, 1000, 10000)
 QUICK_SIZES = (10, 100)
-REPEATS = {10: 21, 100: 11, 1000: 5, 10000: 2}
+REPEATS = {10: 21, 100: 11, 1000: 5, 10000: 3}
 QUICK_REPEATS = {10: 5, 100: 3}
 RATIO_TARGET = 1.3
 FLAT_TARGET = 1.25   # per-point cost at the largest size over that at the next size down
