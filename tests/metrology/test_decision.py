@@ -263,8 +263,9 @@ class TestRiskAcceptance:
 @pytest.mark.parametrize("rule", [SimpleAcceptance(), GuardedAcceptance(), NonBinaryStatement(),
                                   RiskAcceptance()], ids=lambda r: r.name)
 def test_every_rule_refuses_a_standard_uncertainty_that_overflows(rule):
-    """U / k is the standard uncertainty every rule works with (GUM 3.3.5: a standard deviation,
-    so a finite number); a U and k whose quotient overflows is refused, not decided."""
+    """U / k is the standard uncertainty every rule works with (GUM 2.3.1, from memory: an
+    uncertainty expressed as a standard deviation, so a finite number); a U and k whose quotient
+    overflows is refused, not decided."""
     with pytest.raises(ValueError, match="U / k must be finite"):
         rule.decide(low=-1.0, high=1.0, reading=0.0, expanded=1e308, k=1e-10)
 
