@@ -219,24 +219,21 @@ def write_record(record: dict, path: str | Path) -> Path:
         # The canonical compact form, written a top-level entry (and a list item) at a time:
         # one string of a long run's whole record would double its memory, and ``json.dump``
         # streams through the pure-Python encoder, several times slower than ``dumps``.
-        if not all(isinstance(key, str) for key in record):  # (not a record verirun builds)
+        if all(isinstance(key, str) for key in record):
+            fh.write("{")
+            for number, key in enumerate(sorted(record)):
+                fh.write(("," if number else "") + dumps(key) + ":")
+                value = record[key]
+                if isinstance(value, list):
+                    fh.write("[")
+                    for position, item in enumerate(value):
+                        fh.write(("," if position else "") + dumps(item))
+                    fh.write("]")
+                else:
+                    fh.write(dumps(value))
+            fh.write("}\n")
+        else:  # keys that are not text (not a record verirun builds): in one piece
             fh.write(dumps(record) + "\n")
-            fh.flush()
-            os.fsync(fh.fileno())
-            os.replace(tmp, path)
-            return path
-        fh.write("{")
-        for number, key in enumerate(sorted(record)):
-            fh.write(("," if number else "") + dumps(key) + ":")
-            value = record[key]
-            if isinstance(value, list):
-                fh.write("[")
-                for position, item in enumerate(value):
-                    fh.write(("," if position else "") + dumps(item))
-                fh.write("]")
-            else:
-                fh.write(dumps(value))
-        fh.write("}\n")
         fh.flush()
         os.fsync(fh.fileno())
     os.replace(tmp, path)

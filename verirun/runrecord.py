@@ -166,7 +166,7 @@ def _row(point, doc: dict | None, known: Result | None = None) -> dict:
     same = (known is not None and known.reading == reading
             and math.copysign(1.0, known.reading) == math.copysign(1.0, reading))  # -0.0 is not 0.0
     result = known if same else evaluate(point, reading)
-    return {**row, "verdict": result.verdict, "reading": doc["reading"], "typed": doc["typed"],
+    return {**row, "verdict": result.verdict, "reading": reading, "typed": doc["typed"],
             "time": doc["time"], "error": result.error, "error_unit": result.error_unit,
             "percent_of_tolerance": result.percent_of_tolerance,
             "U": json_number(result.expanded_value), "U_spec": result.expanded, "k": result.k,

@@ -66,9 +66,9 @@ def _sigterm_as_interrupt():
             signal.signal(number, old)
 
 
-def open_calibrator(bench: Bench, *, simulate: bool, workdir: Path, profile=None):
+def open_calibrator(bench: Bench, *, simulate: bool, workdir: Path, profile):
     """Open the bench's calibrator, or the simulated one (a different VISA backend, same driver),
-    with the driver ``profile`` (loaded from the bench file's name when not given)."""
+    with the loaded driver ``profile`` of the bench file."""
     from verirun.bench.calibrator import Calibrator
 
     cal = bench.file.calibrator
@@ -78,8 +78,7 @@ def open_calibrator(bench: Bench, *, simulate: bool, workdir: Path, profile=None
         library, resource = sim_library(workdir / "simulated-calibrator"), SIM_RESOURCE
     else:
         library, resource = cal.visa_library, cal.resource
-    return Calibrator.open(library, resource, profile if profile is not None else cal.profile,
-                           timeout_ms=int(bench.timeout_s * 1000))
+    return Calibrator.open(library, resource, profile, timeout_ms=int(bench.timeout_s * 1000))
 
 
 def execute(*, procedure: Procedure, bench: Bench, context: RunContext, readings, console,

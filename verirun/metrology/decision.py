@@ -70,9 +70,8 @@ def conformance_probability(*, low: float, high: float, reading: float, u: float
     and ``u`` its standard uncertainty; an infinite limit contributes 0 or 1. With ``u = 0`` the
     measurand is the reading itself: ``pc`` is 1 inside the limits (included) and 0 outside.
     """
-    if math.isnan(reading):
-        raise ValueError("a reading must be a number, got nan")
-    _check_zone(low, high, u, 1.0)
+    if not math.isnan(reading):  # a NaN reading is refused first, by _pc
+        _check_zone(low, high, u, 1.0)
     return _pc(low, high, reading, u)
 
 
