@@ -1,0 +1,64 @@
+"""Runs stored by an earlier version of verirun stay valid.
+
+``tests/data/stored-runs/`` holds run folders written by verirun 0.1.0 (journal format 1, record
+format 1, certificate template 1): one per decision rule, a resumed run, an amended run with its
+earlier revision, and an as-left run after an adjustment. Each holds the certificate(s) that
+version rendered, under ``certificate/``. Whatever changes inside verirun, these runs must still
+verify, their journals must still give the same result at every step, and while the certificate
+template keeps its version, rendering them again gives the bytes stored.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+
+from verirun.certificate.render import TEMPLATE_VERSION, render_html
+from verirun.cli import main
+from verirun.integrity import verified_record
+from verirun.record import read_journal
+from verirun.runrecord import build_record
+
+STORED = Path(__file__).resolve().parent / "data" / "stored-runs"
+RUNS = sorted(path for path in STORED.iterdir() if (path / "journal.jsonl").is_file())
+STORED_TEMPLATE_VERSION = "1"
+
+
+def _steps(record: dict) -> list[tuple]:
+    """What a step measured and how it was judged, as the record gives it."""
+    return [(row["index"], row["range"], row["nominal"], row["typed"], row["reading"], row["verdict"])
+            for row in record["points"]]
+
+
+def test_every_kind_of_stored_run_is_present():
+    """The stored set covers every rule, a resume, an amendment and an as-left run."""
+    assert [path.name for path in RUNS] == [
+        "format1-amended", "format1-asleft", "format1-guarded", "format1-non-binary",
+        "format1-resumed", "format1-risk", "format1-simple"]
+
+
+@pytest.mark.parametrize("run", RUNS, ids=lambda path: path.name)
+class TestStoredRun:
+    def test_verifies(self, run, capsys):
+        """`verirun verify` accepts the stored run as it was written."""
+        assert main(["verify", str(run)]) == 0
+        assert "verified" in capsys.readouterr().out
+
+    def test_journal_gives_the_stored_results(self, run):
+        """Rebuilding the record from the journal gives the stored reading and verdict at every step."""
+        stored = json.loads((run / "record.json").read_text(encoding="utf-8"))
+        rebuilt = build_record(read_journal(run / "journal.jsonl").documents)
+        assert _steps(rebuilt) == _steps(stored)
+        assert rebuilt["summary"] == stored["summary"]
+
+    def test_certifies(self, run, tmp_path):
+        """`verirun certify` renders the stored run; with the same template, to the stored bytes."""
+        assert main(["certify", str(run), "--reports", str(tmp_path)]) == 0
+        (written,) = sorted(tmp_path.glob("*.html"))
+        stored = run / "certificate" / written.name
+        assert stored.is_file(), f"certificate number changed: {written.name}"
+        if TEMPLATE_VERSION == STORED_TEMPLATE_VERSION:
+            assert written.read_bytes() == stored.read_bytes()
+            assert render_html(verified_record(run)).encode("utf-8") == stored.read_bytes()
