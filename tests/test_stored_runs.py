@@ -2,7 +2,7 @@
 
 ``tests/data/stored-runs/`` holds run folders written by verirun 0.1.0 (journal format 1, record
 format 1, certificate template 1): one per decision rule, a resumed run, an amended run with its
-earlier revision, and an as-left run after an adjustment. Each holds the certificate(s) that
+earlier revision, an as-left run after an adjustment, and a run with a skipped point and an operator note. Each holds the certificate(s) that
 version rendered, under ``certificate/``. Whatever changes inside verirun, these runs must still
 verify, their journals must still give the same result at every step, and while the certificate
 template keeps its version, rendering them again gives the bytes stored.
@@ -33,10 +33,10 @@ def _steps(record: dict) -> list[tuple]:
 
 
 def test_every_kind_of_stored_run_is_present():
-    """The stored set covers every rule, a resume, an amendment and an as-left run."""
+    """The stored set covers every rule, a resume, an amendment, an as-left run and a skip with a note."""
     assert [path.name for path in RUNS] == [
         "format1-amended", "format1-asleft", "format1-guarded", "format1-non-binary",
-        "format1-resumed", "format1-risk", "format1-simple"]
+        "format1-resumed", "format1-risk", "format1-simple", "format1-skipped"]
 
 
 @pytest.mark.parametrize("run", RUNS, ids=lambda path: path.name)
