@@ -1,0 +1,81 @@
+"""The journal's document models and the JSON Schema shipped with the package."""
+
+from __future__ import annotations
+
+import json
+from importlib.resources import files
+from pathlib import Path
+
+import jsonschema
+import pytest
+from pydantic import ValidationError
+
+from verirun.documents import journal_schema, validate_document
+
+STORED = Path(__file__).resolve().parent / "data" / "stored-runs"
+LINES = [(f"{path.parent.name}:{number}", json.loads(line))
+         for path in sorted(STORED.glob("*/journal.jsonl"))
+         for number, line in enumerate(path.read_text(encoding="utf-8").splitlines(), start=1)]
+SHIPPED = json.loads((files("verirun") / "schema" / "journal.schema.json").read_text(encoding="utf-8"))
+
+
+def _observation() -> dict:
+    """A fresh copy of a stored observation, for a test to change."""
+    return json.loads(json.dumps(next(doc for _, doc in LINES if doc["kind"] == "observation")))
+
+
+class TestShippedSchema:
+    def test_is_the_schema_of_the_models(self):
+        """The schema file in the package is the one the models give (regenerate it with
+        ``python -m verirun.documents > verirun/schema/journal.schema.json``)."""
+        assert SHIPPED == journal_schema()
+
+    def test_is_a_valid_json_schema(self):
+        """The shipped schema is itself valid JSON Schema (draft 2020-12, which pydantic writes)."""
+        jsonschema.Draft202012Validator.check_schema(SHIPPED)
+
+    @pytest.mark.parametrize("where, doc", LINES, ids=[where for where, _ in LINES])
+    def test_every_stored_document_fits(self, where, doc):
+        """Every line of every stored journal fits the shipped schema and its model."""
+        jsonschema.validate(doc, SHIPPED, cls=jsonschema.Draft202012Validator)
+        assert validate_document(doc).kind == doc["kind"]
+
+    def test_stored_runs_hold_every_kind(self):
+        """The stored journals hold a document of every kind, so each model is tried on real data."""
+        assert {doc["kind"] for _, doc in LINES} == {
+            "start", "resume", "observation", "skip", "note", "correction", "stop"}
+
+
+class TestValidateDocument:
+    def test_refuses_an_unknown_key(self):
+        """A key the model does not describe is refused, naming it."""
+        with pytest.raises(ValidationError, match="surprise"):
+            validate_document({**_observation(), "surprise": 1})
+
+    def test_refuses_an_unknown_kind(self):
+        """A kind that is none of the document kinds is refused."""
+        with pytest.raises(ValidationError, match="does not match any of the expected tags"):
+            validate_document({**_observation(), "kind": "reading"})
+
+    def test_refuses_text_for_a_number(self):
+        """A reading stored as text is refused: nothing is coerced."""
+        with pytest.raises(ValidationError, match="reading"):
+            validate_document({**_observation(), "reading": "2.1"})
+
+    def test_refuses_a_missing_key(self):
+        """A document without one of its fields is refused, naming it."""
+        doc = _observation()
+        del doc["typed"]
+        with pytest.raises(ValidationError, match="typed"):
+            validate_document(doc)
+
+    def test_refuses_a_broken_hash(self):
+        """``prev`` must be a SHA-256 in hex."""
+        with pytest.raises(ValidationError, match="prev"):
+            validate_document({**_observation(), "prev": "xyz"})
+
+    def test_models_cannot_be_changed(self):
+        """A validated document is frozen: its reading cannot be changed in place."""
+        doc = validate_document(_observation())
+        with pytest.raises(ValidationError):
+            doc.reading = 1.0

@@ -1,0 +1,263 @@
+"""Every kind of document a run's journal holds, as one strict model each.
+
+A journal is a sequence of small documents, one per line, each chained to the line before it
+(see :mod:`verirun.record`). This module is the one place that says what each document holds
+and what every field means; :data:`Document` is the union of them all, told apart by ``kind``.
+
+========== ==================================================================================
+kind        written when
+========== ==================================================================================
+start       a run begins: the procedure and bench as run, the lab, customer, item, operator
+resume      a stopped run is continued (by ``verirun resume``)
+observation the operator (or a replay file, or a virtual meter) gave a reading at a step
+skip        a step was skipped, with the operator's reason
+note        a remark at a step or for the run (operator notes, hazardous output confirmed,
+            errors cleared from the calibrator's queue, an abort)
+correction  a reading of a finished run was corrected (``verirun amend``): a new revision
+stop        the run ended: complete, aborted or failed, with the reason
+========== ==================================================================================
+
+Documents are validated when they are read back; the JSON Schema of the union
+(:func:`journal_schema`) ships with the package as ``schema/journal.schema.json``.
+"""
+
+from __future__ import annotations
+
+from typing import Annotated, Any, Literal, Union
+
+from pydantic import BaseModel, ConfigDict, Field, TypeAdapter
+
+#: Version of the journal document layout described here.
+JOURNAL_FORMAT = 1
+
+Sha256 = Annotated[str, Field(pattern=r"^[0-9a-f]{64}$", description="a SHA-256 digest, hex")]
+Time = Annotated[str, Field(pattern=r"^\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d(\.\d+)?Z$",
+                            description="UTC time, ISO 8601 with a Z")]
+Date = Annotated[str, Field(pattern=r"^\d{4}-\d\d-\d\d$", description="a calendar date, ISO 8601")]
+Reading = Annotated[float, Field(allow_inf_nan=False)]
+
+
+class Part(BaseModel):
+    """A part of a document: strict, frozen, no keys but those described."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
+
+
+class Chained(Part):
+    """What every document carries, added by the journal as it writes the line."""
+
+    seq: int = Field(ge=0, description="position in the journal, from 0, no gaps")
+    prev: Sha256 = Field(description="SHA-256 of the line before (64 zeros for the first)")
+    time: Time = Field(description="when the document was written")
+
+
+# --- the start document and its parts ---------------------------------------------------------
+
+class Software(Part):
+    name: str = Field(description="the program that wrote the journal")
+    version: str = Field(description="its version")
+
+
+class ProcedureAsRun(Part):
+    id: str = Field(description="the procedure's identifier")
+    title: str = Field(description="its title")
+    revision: str = Field(description="its revision")
+    sha256: Sha256 = Field(description="SHA-256 of the procedure file's text")
+    source: str = Field(description="where the file was read from")
+    text: str = Field(description="the whole procedure file, as run")
+
+
+class CalibratorAsRun(Part):
+    description: str = Field(description="what the reference standard is")
+    asset: str = Field(description="the lab's asset number of the standard")
+    identity: str | None = Field(description="what the instrument answered to *IDN?"
+                                 " (none when it did not answer)")
+    resource: str = Field(description="its VISA resource string")
+    certificate: str = Field(description="the standard's own calibration certificate")
+    calibration_due: Date = Field(description="when the standard's calibration is due")
+    traceability: str = Field(description="the traceability statement of the standard")
+
+
+class BenchAsRun(Part):
+    id: str = Field(description="the bench's identifier")
+    location: str = Field(description="where the bench is")
+    sha256: Sha256 = Field(description="SHA-256 of the bench file's text")
+    source: str = Field(description="where the file was read from")
+    text: str = Field(description="the whole bench file, as run")
+    simulated: bool = Field(description="true for a dry run on the simulated calibrator")
+    calibrator: CalibratorAsRun
+
+
+class Signatory(Part):
+    name: str = Field(description="who signs the lab's certificates")
+    title: str = Field(description="their title")
+
+
+class Wording(Part):
+    relate_only: str = Field(description="the results relate only to the item calibrated")
+    reproduction: str = Field(description="the certificate may be reproduced only in full")
+    safety: str = Field(description="the lab's safety caution")
+
+
+class LabAsRun(Part):
+    name: str
+    address: list[str]
+    accreditation: str
+    certificate_prefix: str = Field(description="prefix of the lab's certificate numbers")
+    signatory: Signatory
+    traceability: str
+    conditions: str = Field(description="the lab's stated environmental conditions")
+    paper: Literal["A4", "letter"] = Field(description="paper size of printed certificates")
+    wording: Wording
+
+
+class Customer(Part):
+    name: str
+    address: list[str] = Field(description="lines of the customer's address")
+
+
+class Item(Part):
+    serial: str = Field(description="serial number of the meter under test")
+    asset: str | None = Field(description="the customer's asset number, if given")
+    condition: str = Field(description="condition of the item as received")
+    received: Date | None = Field(description="date the item was received")
+
+
+class Environment(Part):
+    temperature_c: float | None = Field(default=None, allow_inf_nan=False,
+                                        description="laboratory temperature at the start, °C")
+    humidity_pct: float | None = Field(default=None, allow_inf_nan=False,
+                                       description="relative humidity at the start, %")
+
+
+class AsFound(Part):
+    """For an as-left run: the as-found run it follows and what was adjusted."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True, strict=False)
+
+    run: str = Field(description="uid of the as-found run")
+    certificate: str = Field(description="the as-found run's certificate number")
+    date: str = Field(description="when the as-found run was made")
+    adjustment: str = Field(description="what was adjusted between the two runs")
+    points: list[dict[str, Any]] = Field(description="the as-found record's result rows")
+    summary: dict[str, Any] = Field(description="the as-found record's summary")
+
+
+class Start(Chained):
+    """A run begins: everything needed to replay and certify it."""
+
+    kind: Literal["start"]
+    uid: str = Field(pattern=r"^[0-9a-f]{32}$", description="the run's identity")
+    software: Software
+    procedure: ProcedureAsRun
+    bench: BenchAsRun
+    lab: LabAsRun
+    customer: Customer
+    item: Item
+    operator: str = Field(description="who ran it")
+    environment: Environment
+    as_found: AsFound | None = Field(default=None, description="set for an as-left run")
+
+
+# --- documents written during the run ---------------------------------------------------------
+
+PointKey = Annotated[str, Field(description="the test point's key: range@nominal[@frequency]")]
+Step = Annotated[int, Field(ge=0, description="the step's index in the plan, from 0")]
+
+
+class Resume(Chained):
+    """A stopped run is continued."""
+
+    kind: Literal["resume"]
+    identity: str = Field(description="the calibrator's identity, as it answered now")
+    pending: int = Field(ge=0, description="how many steps were still to be measured")
+    recovered_torn_line: bool = Field(description="whether a torn last line was cut off")
+    recovered_text: str | None = Field(description="the text of that torn line, kept")
+
+
+class Applied(Part):
+    value: Reading = Field(description="the stimulus the calibrator was set to, SI units")
+    frequency: Reading | None = Field(description="its frequency in Hz (AC), or none")
+
+
+class Observation(Chained):
+    """A reading at a step, as it was typed (or replayed) and as it was understood."""
+
+    kind: Literal["observation"]
+    point: PointKey
+    index: Step
+    range: str = Field(description="the range's id")
+    function: str = Field(description="the measurement function")
+    applied: Applied
+    typed: str = Field(description="exactly what was typed or replayed")
+    reading: Reading = Field(description="the reading, in SI units")
+
+
+class Skip(Chained):
+    """A step skipped by the operator."""
+
+    kind: Literal["skip"]
+    point: PointKey
+    index: Step
+    reason: str | None = Field(description="why it was skipped")
+    typed: str = Field(description="exactly what was typed")
+
+
+class Note(Chained):
+    """A remark at a step (``point``) or for the run as a whole (``point`` none)."""
+
+    kind: Literal["note"]
+    point: PointKey | None
+    text: str = Field(description="the remark")
+    hazardous: bool | None = Field(default=None,
+                                   description="true when it records hazardous output permitted")
+
+
+class Correction(Chained):
+    """A reading of a finished run corrected, making the record's next revision."""
+
+    kind: Literal["correction"]
+    point: PointKey
+    index: Step
+    typed: str = Field(description="the corrected reading as typed")
+    reading: Reading = Field(description="the corrected reading, SI units")
+    reason: str = Field(description="why it was corrected")
+    operator: str = Field(description="who corrected it")
+
+
+class Stop(Chained):
+    """The run ended."""
+
+    kind: Literal["stop"]
+    status: Literal["complete", "aborted", "failed"]
+    reason: str | None = Field(description="why it stopped, naming the step (none when complete)")
+    counts: dict[str, int] = Field(description="results so far by verdict, and skipped steps")
+
+
+Document = Annotated[Union[Start, Resume, Observation, Skip, Note, Correction, Stop],
+                     Field(discriminator="kind")]
+
+_ADAPTER: TypeAdapter = TypeAdapter(Document)
+
+
+def validate_document(data: Any) -> BaseModel:
+    """The document model of ``data`` (a parsed journal line).
+
+    Raises
+    ------
+    pydantic.ValidationError
+        If it is not one of the document kinds, or a field does not fit.
+    """
+    return _ADAPTER.validate_python(data)
+
+
+def journal_schema() -> dict:
+    """The JSON Schema of one journal line."""
+    return _ADAPTER.json_schema()
+
+
+if __name__ == "__main__":  # python -m verirun.documents > verirun/schema/journal.schema.json
+    import json
+    import sys
+
+    sys.stdout.write(json.dumps(journal_schema(), indent=1, sort_keys=True, ensure_ascii=False) + "\n")
