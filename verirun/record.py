@@ -27,41 +27,9 @@ RECORD_NAME = "record.json"
 GENESIS = "0" * 64
 
 
-_CANONICAL = json.JSONEncoder(sort_keys=True, ensure_ascii=False, allow_nan=False, separators=(",", ":"))
-
-
-def _c_encoder():
-    """The standard library's C encoder with the canonical settings, made once (``encode`` makes
-    one on every call); ``None`` where there is none or it does not give the canonical bytes."""
-    make = getattr(json.encoder, "c_make_encoder", None)
-    if make is None:
-        return None
-    try:
-        encoder = make(_SEEN, _CANONICAL.default, json.encoder.encode_basestring, None, ":", ",",
-                       True, False, False)
-        sample = {"b": [1.5, None, True, "é\n\"", -0.0, 10**20], "a": {"z": 1e-300, "y": ""}}
-        if "".join(encoder(sample, 0)) != _CANONICAL.encode(sample):
-            return None
-    except Exception:  # another signature in another Python: use the public path
-        return None
-    return encoder
-
-
-#: The containers the C encoder is inside of (for its circular-reference check); it empties as
-#: it goes, but not when it stops at an error, so :func:`dumps` empties it then.
-_SEEN: dict = {}
-_C_CANONICAL = _c_encoder()
-
-
 def dumps(doc: Any) -> str:
     """Canonical JSON: sorted keys, no NaN, UTF-8 text kept as is; the same data, the same bytes."""
-    if _C_CANONICAL is not None:
-        try:
-            return "".join(_C_CANONICAL(doc, 0))
-        except BaseException:
-            _SEEN.clear()
-            raise
-    return _CANONICAL.encode(doc)
+    return json.dumps(doc, sort_keys=True, ensure_ascii=False, allow_nan=False, separators=(",", ":"))
 
 
 def line_hash(line: str) -> str:
