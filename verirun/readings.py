@@ -10,12 +10,14 @@ from __future__ import annotations
 import csv
 import math
 from dataclasses import dataclass
+from decimal import ROUND_FLOOR, Decimal
 from pathlib import Path
 from typing import Literal, Protocol
 
 from verirun import yamlfile
 from verirun.errors import ProcedureError, UnitError
 from verirun.metrology import scales
+from verirun.procedure.load import ResolvedRange
 from verirun.procedure.model import Number, QuantityText, Strict
 from verirun.procedure.plan import TestPoint
 from verirun.units import format_quantity, parse_quantity, parse_value
@@ -182,12 +184,11 @@ class VirtualMeterFile(Strict):
 
 
 class VirtualMeter:
-    """A model of a meter under test: what its pointer would show, read to its resolution.
+    """A model of a meter under test: what its pointer would show, read off its scale.
 
     A linear range shows ``gain * x + offset``. An ohms range whose real centre-scale value
     differs from the marked one deflects by the real law and is read on the marked scale.
-    Readings are rounded to the range's resolution (in the value or along the arc), as a
-    careful operator would read them.
+    The reading is what a person writes down (see :func:`read_off_scale`).
     """
 
     interactive = False
@@ -210,7 +211,7 @@ class VirtualMeter:
             raise ProcedureError(problems)
 
     def shown(self, point: TestPoint) -> float:
-        """The value the pointer shows at ``point`` before reading to resolution."""
+        """The value the pointer shows at ``point``, before it is read off the scale."""
         rng = point.range
         model = self.model.ranges.get(rng.id, MeterRangeModel())
         law = rng.law
@@ -222,16 +223,64 @@ class VirtualMeter:
         return law.value(real.fraction(point.nominal))
 
     def take(self, point: TestPoint) -> Entry:
-        """The reading at ``point``, formatted as an operator would type it."""
-        value = self.shown(point)
+        """The reading at ``point``, written as an operator would type it."""
         rng = point.range
-        if rng.resolution:
-            if rng.resolution_domain == "deg" and rng.arc:
-                step = rng.resolution / rng.arc
-                value = rng.law.value(round(rng.law.fraction(value) / step) * step)
-            else:
-                value = round(value / rng.resolution) * rng.resolution
-        if math.isinf(value):
+        typed = read_off_scale(self.shown(point), rng)
+        if typed is None:
             raise ProcedureError(f"virtual meter: the pointer of {rng.id} sits at infinity")
-        typed = format_quantity(value, rng.unit, digits=4)
         return parse_entry(typed, point)
+
+
+def read_off_scale(value: float, rng: ResolvedRange) -> str | None:
+    """What a person reading the pointer at ``value`` on ``rng`` writes down, with its unit.
+
+    The pointer is read to the range's readability, in the domain the readability is stated in:
+
+    - in the range's unit (``resolution: 0.25 V``): the nearest multiple of the resolution,
+      written as that multiple (``30.5 V``);
+    - along the arc (``resolution: 0.5 deg``): the nearest mark of that many degrees. The value
+      written is the one that mark says: the shortest decimal whose own position on the scale
+      lies within half a readability step of the mark (the nearest such one when several are
+      equally short), so that a reader of the written value finds the pointer on the same
+      mark. Near the open end of an ohms scale one mark spans hundreds of kilohms and ``500 kΩ``
+      is read; near centre scale it is ``15.6 Ω``.
+
+    Without a readability the value is written to four significant digits. ``None`` when the
+    mark read is at the infinity end of an ohms scale.
+    """
+    if math.isinf(value):
+        return None
+    if rng.resolution and rng.resolution_domain == "deg" and rng.arc:
+        return _read_on_arc(value, rng.law, rng.resolution / rng.arc, rng.unit)
+    if rng.resolution:
+        step = Decimal(f"{rng.resolution:.12g}")
+        return _written(round(value / rng.resolution) * step, rng.unit)
+    return format_quantity(value, rng.unit, digits=4)
+
+
+def _read_on_arc(value: float, law: scales.ScaleLaw, step: float, unit: str) -> str | None:
+    """The shortest value on the mark nearest to ``value``, marks ``step`` of the scale apart."""
+    mark = round(law.fraction(value) / step) * step
+    says = law.value(mark)
+    if math.isinf(says):
+        return None
+
+    def on_mark(candidate: Decimal) -> bool:
+        return abs(law.fraction(float(candidate)) - mark) < step / 2
+
+    if on_mark(Decimal(0)):
+        return _written(Decimal(0), unit)
+    exact = Decimal(repr(says))
+    for digits in range(1, 18):
+        quantum = Decimal(1).scaleb(exact.adjusted() - digits + 1)
+        below = (exact / quantum).to_integral_value(rounding=ROUND_FLOOR) * quantum
+        found = [c for c in (below, below + quantum) if on_mark(c)]
+        if found:
+            return _written(min(found, key=lambda c: abs(law.fraction(float(c)) - mark)), unit)
+    return _written(exact, unit)
+
+
+def _written(number: Decimal, unit: str) -> str:
+    """``number`` (in base units) written with an SI prefix and exactly its own digits."""
+    digits = len(number.normalize().as_tuple().digits) if number else 1
+    return format_quantity(float(number), unit, digits=digits)
