@@ -26,31 +26,32 @@ from verirun.record import load_record, read_journal
 from verirun.session import execute
 
 # Expected verdicts of the scripted readings (tests/data/qm40-readings.csv), each worked by hand:
-# linear ranges: limits = nominal ± percent × full scale / 100 (percent of full scale, limits
-# included under simple acceptance, ILAC-G8:09/2019 4.2.1);
-# series ohms: f0 = Rc/(Rc+Rx), f = f0 ± deg/arc, limits Rx = Rc(1 - f)/f (derived from
-# f = Rc/(Rc+Rx)).
+# linear ranges: limits = nominal ± percent × full scale / 100 (percent of full scale, and a
+# class index on a linear scale, IEC 60051-1 3.5.1 and 5.1, from memory: the fiducial value is
+# the full-scale value); limits included under simple acceptance, ILAC-G8:09/2019 4.2.1;
+# series ohms: deflection θ = arc × Rc/(Rc+Rx), window θ0 ± 3°, limits Rx = Rc (arc - θ)/θ
+# (derived from f = Rc/(Rc+Rx)); here arc = 90° and Rc = 16 Ω (×1) or 16 kΩ (×1k).
 EXPECTED = {
-    "dcv-10@2.0": "pass",      # 2.1 in 1.8..2.2
-    "dcv-10@4.0": "pass",
-    "dcv-10@6.0": "pass",      # 6.2 exactly on the upper limit 6.2: included
-    "dcv-10@8.0": "fail",      # 8.25 above 8.2
-    "dcv-10@10.0": "pass",
-    "dcv-50@10.0": "pass",     # 10.5 in 9..11 (2 % of 50 V = 1 V)
-    "dcv-50@25.0": "pass",
-    "dcv-50@50.0": "pass",     # 50.75 in 49..51
-    "dca-50m@0.01": "pass",    # 10.5 mA in 8.75..11.25 mA (2.5 % of 50 mA = 1.25 mA)
-    "dca-50m@0.025": "pass",   # 26.2 mA below 26.25 mA
-    "dca-50m@0.05": "fail",    # 48.5 mA below 48.75 mA
-    "acv-50@10.0@50.0Hz": "pass",
-    "acv-50@30.0@50.0Hz": "pass",
-    "acv-50@50.0@50.0Hz": "pass",
-    "ohm-x1@3.0": "pass",      # f0 = 12/15 = 0.8; 0.8 ± 0.025 -> 2.5455 .. 3.4839 ohm
-    "ohm-x1@12.0": "pass",     # f0 = 0.5; 0.475..0.525 -> 10.857 .. 13.263 ohm
-    "ohm-x1@48.0": "fail",     # f0 = 0.2; 0.175..0.225 -> 41.333 .. 56.571 ohm; 60 outside
-    "ohm-x100@300.0": "pass",
-    "ohm-x100@1200.0": "fail",  # 1085.7 .. 1326.3 ohm; 1060 outside
-    "ohm-x100@4800.0": "pass",  # 4133.3 .. 5657.1 ohm
+    "dcv-6@1.2": "pass",        # 1.25 in 1.05..1.35 (class 2.5 of 6 V = 0.15 V)
+    "dcv-6@2.4": "pass",
+    "dcv-6@3.6": "pass",        # 3.75 exactly on the upper limit 3.6 + 0.15: included
+    "dcv-6@4.8": "fail",        # 4.6 below 4.8 - 0.15 = 4.65
+    "dcv-6@6.0": "pass",        # 6.1 in 5.85..6.15
+    "dcv-30@6.0": "pass",       # 6.5 in 5.25..6.75 (class 2.5 of 30 V = 0.75 V)
+    "dcv-30@15.0": "pass",
+    "dcv-30@30.0": "pass",      # 30.75 exactly on the upper limit: included
+    "dca-30m@0.006": "pass",    # 6.5 mA in 5.1..6.9 mA (3 % of 30 mA = 0.9 mA)
+    "dca-30m@0.015": "pass",    # 15.8 mA (typed in amperes, 0.0158) below 15.9 mA
+    "dca-30m@0.03": "fail",     # 29 mA below 29.1 mA
+    "acv-30@6.0@50.0Hz": "pass",   # 6 in 4.8..7.2 (4 % of 30 V = 1.2 V)
+    "acv-30@15.0@50.0Hz": "pass",  # 15.5 in 13.8..16.2
+    "acv-30@30.0@50.0Hz": "pass",
+    "ohm-x1@4.0": "pass",       # θ0 = 90 × 16/20 = 72°; 69°..75° -> 4.8696 .. 3.2 Ω; 4.5 in
+    "ohm-x1@16.0": "pass",      # θ0 = 45°; 42°..48° -> 18.286 .. 14 Ω; 15 in
+    "ohm-x1@64.0": "fail",      # θ0 = 90 × 16/80 = 18°; 15°..21° -> 80 .. 52.571 Ω; 85 above 80
+    "ohm-x1k@4000.0": "pass",   # 3.2 .. 4.8696 kΩ; 4 kΩ in
+    "ohm-x1k@16000.0": "fail",  # 14 .. 18.286 kΩ; 18.5 kΩ above
+    "ohm-x1k@500000.0": "pass",  # θ0 = 90 × 16/516 = 2.7907° < 3°: unbounded above; 1 MΩ in
 }
 
 
@@ -121,10 +122,10 @@ class TestDemoEndToEnd:
         assert sent[0] == "*IDN?"
         sources = [c for c in sent if c.split()[0] in ("VOLT", "CURR", "RES")]
         # Values go out in full precision (Python's shortest round-trip repr of the float).
-        assert sources == ["VOLT 2.0", "VOLT 4.0", "VOLT 6.0", "VOLT 8.0", "VOLT 10.0", "VOLT 10.0",
-                           "VOLT 25.0", "VOLT 50.0", "CURR 0.01", "CURR 0.025", "CURR 0.05", "VOLT 10.0",
-                           "VOLT 30.0", "VOLT 50.0", "RES 3.0", "RES 12.0", "RES 48.0", "RES 300.0",
-                           "RES 1200.0", "RES 4800.0"]
+        assert sources == ["VOLT 1.2", "VOLT 2.4", "VOLT 3.6", "VOLT 4.8", "VOLT 6.0", "VOLT 6.0",
+                           "VOLT 15.0", "VOLT 30.0", "CURR 0.006", "CURR 0.015", "CURR 0.03", "VOLT 6.0",
+                           "VOLT 15.0", "VOLT 30.0", "RES 4.0", "RES 16.0", "RES 64.0", "RES 4000.0",
+                           "RES 16000.0", "RES 500000.0"]
         assert sent.count("FREQ 50.0") == 3
         assert sent.count("OUTP ON") == 20
         # Between any two "output on" commands there is a standby.
@@ -159,13 +160,20 @@ class TestDemoEndToEnd:
         assert record["procedure"]["sha256"] == hashlib.sha256(text.encode()).hexdigest()
         assert record["bench"]["calibrator"]["identity"].startswith("Verirun Simulation")
         assert record["run"]["software"]["name"] == "verirun"
-        row = next(r for r in record["points"] if r["key"] == "ohm-x100@1200.0")
-        # 2.5 degrees of a 100 degree arc at centre scale: 1200 * 0.475/0.525 .. 1200 * 0.525/0.475
-        assert row["low"] == pytest.approx(1200 * 0.475 / 0.525)
-        assert row["high"] == pytest.approx(1200 * 0.525 / 0.475)
+        row = next(r for r in record["points"] if r["key"] == "ohm-x1k@16000.0")
+        # 3 degrees of a 90 degree arc at centre scale (f0 = 0.5, df = 3/90 = 1/30):
+        # 16 kΩ × (1 - f)/f at f = 0.5 ± 1/30, i.e. 16 kΩ × 14/16 .. 16 kΩ × 16/14
+        assert row["low"] == pytest.approx(16000 * 14 / 16)
+        assert row["high"] == pytest.approx(16000 * 16 / 14)
         assert row["error_unit"] == "deg"
-        # reading 1060 ohm: f = 1200/2260 = 0.530973; error = (0.530973 - 0.5) * 100 deg
-        assert row["error"] == pytest.approx((1200 / 2260 - 0.5) * 100)
+        # reading 18.5 kΩ: θ = 90 × 16/34.5 = 41.739°; error = θ - 45° = -3.261°
+        assert row["error"] == pytest.approx(90 * 16 / 34.5 - 45)
+        far = next(r for r in record["points"] if r["key"] == "ohm-x1k@500000.0")
+        # θ0 = 90 × 16/516 = 2.7907°: the 3° tolerance reaches the open end, so no upper limit;
+        # the lower limit is at θ0 + 3° = 5.7907°: 16 kΩ × (90 - 5.7907)/5.7907 = 232.67 kΩ
+        assert far["high"] is None  # an unbounded limit is stored as null
+        assert far["low"] == pytest.approx(16000 * (90 - (1440 / 516 + 3)) / (1440 / 516 + 3))
+        assert far["verdict"] == "pass"
 
 
 class TestDemoCommand:

@@ -44,8 +44,8 @@ class TestVerify:
         """Changing one reading in the journal breaks the chain at the next document."""
         journal = run_dir / "journal.jsonl"
         lines = lines_of(journal)
-        index = next(i for i, line in enumerate(lines) if '"typed":"8.25"' in line)
-        lines[index] = lines[index].replace('"typed":"8.25"', '"typed":"8.15"').replace('"reading":8.25', '"reading":8.15')
+        index = next(i for i, line in enumerate(lines) if '"typed":"4.6"' in line)
+        lines[index] = lines[index].replace('"typed":"4.6"', '"typed":"4.7"').replace('"reading":4.6', '"reading":4.7')
         journal.write_text("".join(lines), encoding="utf-8")
         found = problems(run_dir)
         assert any(f"between document {index + 1}" in p for p in found), found
@@ -139,15 +139,15 @@ class TestAmend:
         says which one it replaces (ISO/IEC 17025:2017 7.5.2 and 7.8.8)."""
         first = json.loads((run_dir / "record.json").read_text())
         assert first["run"]["revision"] == 1
-        assert main(["amend", str(run_dir), "--point", "4", "--reading", "8.15", "--reason", "misread the scale",
+        assert main(["amend", str(run_dir), "--point", "4", "--reading", "4.7", "--reason", "misread the scale",
                      "--reports", str(run_dir / "certs")]) == 0
         kept = json.loads((run_dir / "record.r1.json").read_text())
         assert kept == first
         second = json.loads((run_dir / "record.json").read_text())
         assert second["run"]["revision"] == 2
         row = second["points"][3]
-        assert row["typed"] == "8.15" and row["verdict"] == "pass"  # 8.15 V within 7.8 .. 8.2 V
-        assert row["correction"]["previous_typed"] == "8.25"
+        assert row["typed"] == "4.7" and row["verdict"] == "pass"  # 4.7 V within 4.65 .. 4.95 V (4.8 V ± 2.5 % of 6 V)
+        assert row["correction"]["previous_typed"] == "4.6"
         assert problems(run_dir) == []
         (cert,) = (run_dir / "certs").glob("*-R2.html")
         html = cert.read_text()

@@ -43,7 +43,7 @@ class TestAbortAndResume:
                                                                 demo_bench_path, capsys):
         """An operator abort stops the run with its observations kept; resume finishes the rest and
         the record then verifies and holds all 20 points once each."""
-        readings = abort_at(data_dir, tmp_path, "dcv-50,25 V,25\n", "dcv-50,25 V,abort\n")
+        readings = abort_at(data_dir, tmp_path, "dcv-30,15 V,15\n", "dcv-30,15 V,abort\n")
         assert demo_run(tmp_path, demo_procedure_path, demo_bench_path, readings) == 2
         err = capsys.readouterr().err
         assert "aborted by the operator at step 7 of 20" in err and "verirun resume" in err
@@ -66,18 +66,18 @@ class TestAbortAndResume:
     def test_resume_refuses_a_changed_procedure(self, tmp_path, data_dir, demo_procedure_path, demo_bench_path,
                                                 capsys):
         """Resume checks the procedure is the one the run started with, by SHA-256."""
-        readings = abort_at(data_dir, tmp_path, "dcv-10,8 V,8.25\n", "dcv-10,8 V,abort\n")
+        readings = abort_at(data_dir, tmp_path, "dcv-6,4.8 V,4.6\n", "dcv-6,4.8 V,abort\n")
         demo_run(tmp_path, demo_procedure_path, demo_bench_path, readings)
         (run_dir,) = (tmp_path / "runs").iterdir()
         changed = tmp_path / "changed.yaml"
-        changed.write_text(demo_procedure_path.read_text().replace("revision: B", "revision: C"))
+        changed.write_text(demo_procedure_path.read_text().replace("revision: C", "revision: D"))
         capsys.readouterr()
         assert run_cli("resume", run_dir, "--procedure", changed, "--readings", data_dir / "qm40-readings.csv") == 1
         assert "not the one the run started with" in capsys.readouterr().err
 
     def test_resume_refuses_another_item(self, tmp_path, data_dir, demo_procedure_path, demo_bench_path, capsys):
         """Resume refuses when the item serial given is not the run's."""
-        readings = abort_at(data_dir, tmp_path, "dcv-10,8 V,8.25\n", "dcv-10,8 V,abort\n")
+        readings = abort_at(data_dir, tmp_path, "dcv-6,4.8 V,4.6\n", "dcv-6,4.8 V,abort\n")
         demo_run(tmp_path, demo_procedure_path, demo_bench_path, readings)
         (run_dir,) = (tmp_path / "runs").iterdir()
         capsys.readouterr()
@@ -97,13 +97,13 @@ class TestAbortAndResume:
                                                       demo_bench_path, capsys):
         """A journal whose last line was cut mid-write is resumed: the torn line is dropped and
         reported, every whole line is kept, and the finished journal verifies."""
-        readings = abort_at(data_dir, tmp_path, "dcv-10,8 V,8.25\n", "dcv-10,8 V,abort\n")
+        readings = abort_at(data_dir, tmp_path, "dcv-6,4.8 V,4.6\n", "dcv-6,4.8 V,abort\n")
         demo_run(tmp_path, demo_procedure_path, demo_bench_path, readings)
         (run_dir,) = (tmp_path / "runs").iterdir()
         journal = run_dir / "journal.jsonl"
         whole = read_journal(journal).documents
         with open(journal, "a", encoding="utf-8") as fh:
-            fh.write('{"kind":"observation","point":"dcv-10@8.0","typed":"8.2')  # power lost mid-line
+            fh.write('{"kind":"observation","point":"dcv-6@4.8","typed":"4.')  # power lost mid-line
         assert read_journal(journal).torn_line is not None
         assert any("cut off" in p for p in problems(run_dir))
         capsys.readouterr()
@@ -116,7 +116,7 @@ class TestAbortAndResume:
         record = json.loads((run_dir / "record.json").read_text())
         assert any("cut-off last journal line was dropped" in n["text"] for n in record["notes"])
         resumed = next(d for d in docs if d["kind"] == "resume")
-        assert resumed["recovered_text"] == '{"kind":"observation","point":"dcv-10@8.0","typed":"8.2'
+        assert resumed["recovered_text"] == '{"kind":"observation","point":"dcv-6@4.8","typed":"4.'
 
     def test_resume_uses_the_journal_copy_when_the_file_was_revised(self, tmp_path, data_dir,
                                                                    demo_procedure_path, demo_bench_path):
@@ -124,14 +124,14 @@ class TestAbortAndResume:
         the run started from does not strand the run."""
         procedure = tmp_path / "procedure.yaml"
         procedure.write_text(demo_procedure_path.read_text())
-        readings = abort_at(data_dir, tmp_path, "dcv-10,8 V,8.25\n", "dcv-10,8 V,abort\n")
+        readings = abort_at(data_dir, tmp_path, "dcv-6,4.8 V,4.6\n", "dcv-6,4.8 V,abort\n")
         demo_run(tmp_path, procedure, demo_bench_path, readings)
         (run_dir,) = (tmp_path / "runs").iterdir()
-        procedure.write_text(procedure.read_text().replace("revision: B", "revision: C"))
+        procedure.write_text(procedure.read_text().replace("revision: C", "revision: D"))
         assert run_cli("resume", run_dir, "--readings", data_dir / "qm40-readings.csv",
                        "--reports", tmp_path / "reports") == 0
         record = json.loads((run_dir / "record.json").read_text())
-        assert record["procedure"]["revision"] == "B" and record["run"]["status"] == "complete"
+        assert record["procedure"]["revision"] == "C" and record["run"]["status"] == "complete"
 
 
 def _kill_bench(tmp_path, demo_bench_path):

@@ -22,7 +22,7 @@ def cert(tmp_path_factory):
     tmp = tmp_path_factory.mktemp("contents")
     data = root / "tests" / "data" / "qm40-readings.csv"
     readings = tmp / "readings.csv"
-    readings.write_text(data.read_text().replace("dcv-50,25 V,25\n", "dcv-50,25 V,skip pointer stuck at zero\n"))
+    readings.write_text(data.read_text().replace("dcv-30,15 V,15\n", "dcv-30,15 V,skip pointer stuck at zero\n"))
     assert main(["run", str(root / "procedures" / "qm40-analog-multimeter.yaml"),
                  "--bench", str(root / "verirun" / "demo" / "bench-sim.yaml"), "--simulate",
                  "--readings", str(readings), "--serial", "QM40-000017", "--asset", "AST-5",
@@ -72,9 +72,9 @@ class TestClause7821:
         """7.8.2.1 f) and n): the method (procedure and revision) and deviations from it, a skipped
         point with its reason."""
         soup, _, _ = cert
-        assert "TH-VP-040 revision B" in text_of(soup, "#method")
+        assert "TH-VP-040 revision C" in text_of(soup, "#method")
         deviations = text_of(soup, "#deviations")
-        assert "skipped" in deviations and "pointer stuck at zero" in deviations and "25 V DC" in deviations
+        assert "skipped" in deviations and "pointer stuck at zero" in deviations and "15 V DC" in deviations
 
     def test_g_item_description_identification_condition(self, cert):
         """7.8.2.1 g): description, unambiguous identification and condition of the item."""
@@ -102,7 +102,7 @@ class TestClause7821:
         assert len(tables) == 6
         first = tables[0].select("tbody tr")[0].get_text(" ")
         assert " V" in first and "PASS" in first
-        ohms = soup.select_one('table[data-range="ohm-x100"]').get_text(" ")
+        ohms = soup.select_one('table[data-range="ohm-x1k"]').get_text(" ")
         assert "kΩ" in ohms and "°" in ohms
 
     def test_o_authorised_by(self, cert):
@@ -153,7 +153,7 @@ class TestClause784And786:
         assert main(["run", str(proc), "--readings", str(data), *common]) == 0
         (found_run,) = (tmp_path / "runs").iterdir()
         left = tmp_path / "left.csv"
-        left.write_text(data.read_text().replace("dcv-10,8 V,8.25", "dcv-10,8 V,8.0"))
+        left.write_text(data.read_text().replace("dcv-6,4.8 V,4.6", "dcv-6,4.8 V,4.8"))
         assert main(["run", str(proc), "--readings", str(left), *common, "--as-left-of", str(found_run),
                      "--adjustment", "span trimmer reset"]) == 0
         newest = max((tmp_path / "rep").glob("*.html"), key=lambda p: p.stat().st_mtime)
@@ -161,8 +161,8 @@ class TestClause784And786:
         assert len(soup.select('table[data-pass="as-found"]')) == 6
         assert len(soup.select('table[data-pass="as-left"]')) == 6
         assert "span trimmer reset" in text_of(soup, "#adjustment")
-        row_found = soup.select_one('table[data-pass="as-found"][data-range="dcv-10"] tr[data-key="dcv-10@8.0"]')
-        row_left = soup.select_one('table[data-pass="as-left"][data-range="dcv-10"] tr[data-key="dcv-10@8.0"]')
+        row_found = soup.select_one('table[data-pass="as-found"][data-range="dcv-6"] tr[data-key="dcv-6@4.8"]')
+        row_left = soup.select_one('table[data-pass="as-left"][data-range="dcv-6"] tr[data-key="dcv-6@4.8"]')
         assert "FAIL" in row_found.get_text() and "PASS" in row_left.get_text()
 
     def test_as_left_of_another_item_is_refused(self, tmp_path, capsys):

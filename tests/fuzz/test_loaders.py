@@ -580,9 +580,9 @@ class TestMinimalReproductions:
     def test_huge_int_full_scale_is_reported_at_its_line(self, tmp_path):
         """A full-scale written as a 400-digit integer is refused at its own line."""
         text = GOOD_TEXT["procedure"]
-        assert "full-scale: 10 V\n" in text
-        line = text[:text.index("full-scale: 10 V")].count("\n") + 1
-        path = _write(tmp_path, text.replace("full-scale: 10 V", "full-scale: 1" + "0" * 400, 1))
+        assert "full-scale: 6 V\n" in text
+        line = text[:text.index("full-scale: 6 V")].count("\n") + 1
+        path = _write(tmp_path, text.replace("full-scale: 6 V", "full-scale: 1" + "0" * 400, 1))
         _one_problem(path, load_procedure, line)
 
     def test_huge_int_settle_is_reported_at_its_line(self, tmp_path):
@@ -631,8 +631,8 @@ class TestMinimalReproductions:
     def test_check_reports_an_overflowing_tolerance_at_its_line(self, tmp_path):
         """A tolerance so wide its window overflows is a file:line problem of `verirun check`, not an internal error."""
         text = GOOD_TEXT["procedure"]
-        text = text.replace("full-scale: 10 V", "full-scale: 100 MV", 1).replace(
-            "accuracy: {percent-of-full-scale: 2}", "accuracy: {percent-of-full-scale: 1.0e+308}", 1)
+        text = text.replace("full-scale: 6 V", "full-scale: 100 MV", 1).replace(
+            "accuracy: {class: 2.5}", "accuracy: {class: 1.0e+308}", 1)
         path = _write(tmp_path, text)
         code, output = run_check(path)
         assert code == 1 and output.startswith(f"{path}:"), (code, output)
@@ -640,9 +640,9 @@ class TestMinimalReproductions:
     def test_check_reports_a_far_ohms_point_at_its_line(self, tmp_path):
         """A series-ohms point of 1e308 Ω is a file:line problem of `verirun check`, not an internal error."""
         text = GOOD_TEXT["procedure"]
-        assert "points: [3 ohm, 12 ohm, 48 ohm]" in text
-        path = _write(tmp_path, text.replace("points: [3 ohm, 12 ohm, 48 ohm]",
-                                             "points: [1e308 ohm, 12 ohm, 48 ohm]", 1))
+        assert "points: [4 ohm, 16 ohm, 64 ohm]" in text
+        path = _write(tmp_path, text.replace("points: [4 ohm, 16 ohm, 64 ohm]",
+                                             "points: [1e308 ohm, 16 ohm, 64 ohm]", 1))
         code, output = run_check(path)
         assert code == 1 and output.startswith(f"{path}:"), (code, output)
 
@@ -657,9 +657,9 @@ class TestMinimalReproductions:
     def test_virtual_meter_gain_must_be_finite(self, tmp_path):
         """A virtual meter gain of .nan is refused at load with its line."""
         text = GOOD_TEXT["virtual-meter"]
-        assert "gain: 1.006" in text
-        line = text[:text.index("gain: 1.006")].count("\n") + 1
-        path = _write(tmp_path, text.replace("gain: 1.006", "gain: .nan"))
+        assert "gain: 1.012" in text
+        line = text[:text.index("gain: 1.012")].count("\n") + 1
+        path = _write(tmp_path, text.replace("gain: 1.012", "gain: .nan"))
         _one_problem(path, VirtualMeter, line)
 
     def test_impossible_date_is_reported_at_its_line(self, tmp_path):
