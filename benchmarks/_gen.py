@@ -28,22 +28,23 @@ DEMO = ROOT / "verirun" / "demo"
 SIM_YAML = ROOT / "verirun" / "bench" / "sim" / "calibrator.yaml"
 LAB_YAML = DEMO / "lab.yaml"
 
-#: The ranges of the generated procedure. Linear ranges carry a percent-of-full-scale accuracy,
-#: ohms ranges one in degrees of arc on a 100 degree arc. DC voltages stay below the 60 V
-#: hazardous-live threshold so that no point needs a confirmation.
+#: The ranges of the generated procedure (those of the demo meter, plus a 300 mA range). Linear
+#: ranges carry a percent-of-full-scale accuracy, ohms ranges one in degrees of arc on a 90 degree
+#: arc. DC voltages stay below the 60 V hazardous-live threshold so that no point needs a
+#: confirmation.
 RANGES = (
-    {"id": "dcv-10", "function": "dc-voltage", "unit": "V", "full_scale": 10.0, "percent": 2.0,
+    {"id": "dcv-6", "function": "dc-voltage", "unit": "V", "full_scale": 6.0, "percent": 2.5,
      "resolution": "0.05 V"},
-    {"id": "dcv-50", "function": "dc-voltage", "unit": "V", "full_scale": 50.0, "percent": 2.0,
+    {"id": "dcv-30", "function": "dc-voltage", "unit": "V", "full_scale": 30.0, "percent": 2.5,
      "resolution": "0.25 V"},
-    {"id": "dca-50m", "function": "dc-current", "unit": "A", "full_scale": 0.05, "percent": 2.5,
+    {"id": "dca-30m", "function": "dc-current", "unit": "A", "full_scale": 0.03, "percent": 3.0,
      "resolution": "0.00025 A"},
-    {"id": "dca-500m", "function": "dc-current", "unit": "A", "full_scale": 0.5, "percent": 2.5,
+    {"id": "dca-300m", "function": "dc-current", "unit": "A", "full_scale": 0.3, "percent": 3.0,
      "resolution": "0.0025 A"},
-    {"id": "ohm-x1", "function": "resistance", "unit": "ohm", "centre": 12.0, "degrees": 2.5},
-    {"id": "ohm-x100", "function": "resistance", "unit": "ohm", "centre": 1200.0, "degrees": 2.5},
+    {"id": "ohm-x1", "function": "resistance", "unit": "ohm", "centre": 16.0, "degrees": 3.0},
+    {"id": "ohm-x1k", "function": "resistance", "unit": "ohm", "centre": 16000.0, "degrees": 3.0},
 )
-ARC = 100.0
+ARC = 90.0
 
 
 @dataclass(frozen=True)
@@ -160,7 +161,7 @@ def procedure_text(n: int, points: list[GenPoint]) -> str:
                       f"    resolution: {spec['resolution']}"]
         else:
             lines += ["    scale: series-ohms", f"    centre: {_text(spec['centre'])} ohm",
-                      "    battery: 1.5 V", f"    arc: {_text(ARC)} deg",
+                      "    battery: 3 V", f"    arc: {_text(ARC)} deg",
                       f"    accuracy: {{degrees: {_text(spec['degrees'])}}}",
                       "    resolution: 0.5 deg"]
         lines += [f"    read-on: scale of range {spec['id']}",

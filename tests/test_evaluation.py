@@ -29,9 +29,9 @@ BENCH = textwrap.dedent("""\
       certificate: C-1
       calibration-due: 2030-01-01
       accuracy:
-        - {function: dc-voltage, range: 2.2 V, output: 10 ppm, floor: 2 uV, level: 99 %}
-        - {function: dc-voltage, range: 22 V, output: 10 ppm, floor: 5 uV, level: 99 %}
-        - {function: resistance, range: 110 ohm, output: 0.01 %, level: limits}
+        - {function: dc-voltage, range: 1.6 V, output: 10 ppm, floor: 2 uV, level: 99 %}
+        - {function: dc-voltage, range: 16 V, output: 10 ppm, floor: 5 uV, level: 99 %}
+        - {function: resistance, range: 160 ohm, output: 0.01 %, level: limits}
     """)
 
 PROCEDURE = textwrap.dedent("""\
@@ -49,11 +49,11 @@ PROCEDURE = textwrap.dedent("""\
       - id: ohm
         function: resistance
         scale: series-ohms
-        centre: 12 ohm
-        arc: 100 deg
-        accuracy: {degrees: 2.5}
+        centre: 16 ohm
+        arc: 90 deg
+        accuracy: {degrees: 3}
         resolution: 0.5 deg
-        points: [12 ohm]
+        points: [16 ohm]
     """)
 
 
@@ -67,7 +67,7 @@ class TestCalibratorSpecFromBench:
         (normal, two-sided 99 % coverage factor 2.576, GUM G.3 / table G.1)."""
         bench = load_bench_text(BENCH, "bench.yaml")
         line = bench.spec_for("dc-voltage", 10.0, None)
-        assert line.range == 22.0  # the smallest range that holds 10 V
+        assert line.range == 16.0  # the smallest range that holds 10 V
         assert line.spec.limit(output=10.0, range_value=line.range) == pytest.approx(105e-6)
         assert line.spec.standard_uncertainty(output=10.0) == pytest.approx(40.76e-6, rel=1e-3)
 
@@ -108,9 +108,9 @@ class TestBudgetOfAPoint:
         df/dRx = Rc/(Rc+Rx)² (derived from f = Rc/(Rc+Rx)) and combined with the readability in
         degrees; U in ohms is U along the arc divided by the slope."""
         point = points()[1]
-        slope = 12.0 / (24.0 ** 2)
-        u_cal_f = 12.0 * 1e-4 / math.sqrt(3) * slope
-        u_res_f = (0.5 / 100) / (2 * math.sqrt(3))
+        slope = 16.0 / (32.0 ** 2)  # at Rx = Rc = 16 ohm
+        u_cal_f = 16.0 * 1e-4 / math.sqrt(3) * slope
+        u_res_f = (0.5 / 90) / (2 * math.sqrt(3))
         assert point.budget.domain == "deflection"
         assert point.budget.expanded == pytest.approx(2 * math.hypot(u_cal_f, u_res_f))
         assert point.budget.expanded_value == pytest.approx(point.budget.expanded / slope)
@@ -261,15 +261,15 @@ class TestWindowCommandWithUncertainty:
         assert out["accept_low"] == pytest.approx(4.8 + 0.02) and out["accept_high"] == pytest.approx(5.2 - 0.02)
 
     def test_resolution_in_degrees_on_ohms(self, capsys):
-        """A 0.5 degree resolution on a 100 degree arc is u = 0.005/(2 sqrt 3) of scale length
+        """A 0.5 degree resolution on a 90 degree arc is u = (0.5/90)/(2 sqrt 3) of scale length
         (GUM F.2.2.1); U in ohms at centre scale is 2u / |df/dRx| with df/dRx = 1/(4 Rc)
         (derived from f = Rc/(Rc+Rx))."""
-        assert main(["window", "--scale", "series-ohms", "--centre", "12", "--arc", "100", "--degrees", "2.5",
-                     "--at", "12", "--resolution", "0.5deg", "--json"]) == 0
+        assert main(["window", "--scale", "series-ohms", "--centre", "16", "--arc", "90", "--degrees", "3",
+                     "--at", "16", "--resolution", "0.5deg", "--json"]) == 0
         out = json.loads(capsys.readouterr().out)
-        u_f = 0.005 / (2 * math.sqrt(3))
+        u_f = (0.5 / 90) / (2 * math.sqrt(3))
         assert out["U_domain"] == pytest.approx(2 * u_f)
-        assert out["U"] == pytest.approx(2 * u_f * 4 * 12)
+        assert out["U"] == pytest.approx(2 * u_f * 4 * 16)
 
 
 class TestOpenEndedOhmsWindows:

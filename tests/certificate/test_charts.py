@@ -14,12 +14,14 @@ from verirun.certificate.charts import arc_chart, error_chart
 SVG = "{http://www.w3.org/2000/svg}"
 
 # Ranges and rows shaped like the demo run record's ``ranges`` and ``points`` entries.
+# The scales span a 90° arc; the ohms range has a 16 Ω centre and ± 3° of arc (HALF of the length).
+HALF = 3 / 90
 LINEAR_RANGE = {"id": "dcv-10", "function": "dc-voltage", "function_name": "DC voltage", "unit": "V",
-                "scale": "linear", "full_scale": 10.0, "centre": None, "arc": 100.0,
-                "accuracy": ["± 2 % of full scale"], "read_on": "black DC scale, 0-10"}
+                "scale": "linear", "full_scale": 10.0, "centre": None, "arc": 90.0,
+                "accuracy": ["± 2 % of full scale"], "read_on": "DC scale, 0 to 10"}
 SERIES_RANGE = {"id": "ohm-x1", "function": "resistance", "function_name": "resistance", "unit": "Ω",
-                "scale": "series-ohms", "full_scale": None, "centre": 12.0, "arc": 100.0,
-                "accuracy": ["± 2.5° of arc"], "read_on": "green ohms scale, multiply by 1"}
+                "scale": "series-ohms", "full_scale": None, "centre": 16.0, "arc": 90.0,
+                "accuracy": ["± 3° of arc"], "read_on": "ohms scale, multiply by 1"}
 SHUNT_RANGE = {**SERIES_RANGE, "id": "ohm-shunt", "scale": "shunt-ohms"}
 
 
@@ -41,7 +43,7 @@ def arc_row(nominal: float, low: float, high: float | None, reading: float | Non
     """A deflection-domain point (tolerance stated along the arc)."""
     row = {"index": 0, "key": f"pt@{nominal}", "range": "r", "unit": unit, "nominal": nominal,
            "frequency": None, "stimulus": f"{nominal:g} {unit}", "low": low, "high": high,
-           "domain": "deflection", "half_width": 0.025, "accuracy": "± 2.5° of arc",
+           "domain": "deflection", "half_width": HALF, "accuracy": "± 3° of arc",
            "verdict": verdict, "reading": reading}
     if reading is not None:
         row.update(percent_of_tolerance=pct if pct is not None else 0.0, error_unit="deg")
@@ -116,10 +118,11 @@ def pointer_angles(root: ET.Element, key: str) -> tuple[float, float]:
 
 
 class TestErrorChart:
-    @pytest.mark.parametrize("pct", [120.14, -130.0])
+    @pytest.mark.parametrize("pct", [116.16, -130.0])
     def test_out_of_tolerance_point_outside_band(self, pct):
         """A point beyond its tolerance is drawn in the fail colour outside the shaded band."""
-        # 120.14 % is the failing 1.2 kΩ point of the demo run record.
+        # 116.16 % is the failing 16 kΩ point of the demo: 13.7 kΩ read at (16/29.7 - 0.5) × 90°
+        # = +3.485° of a ± 3° tolerance (derived from f = Rc/(Rc+Rx)).
         rows = [value_row(0, 2.0, 2.05, 25.0), value_row(1, 4.0, 4.3, pct, verdict="fail")]
         root = parse(error_chart(LINEAR_RANGE, rows))
         top, bottom = band_extent(root)
@@ -282,20 +285,20 @@ def series_limits(centre: float, nominal: float, half: float) -> tuple[float, fl
 class TestArcChart:
     def test_series_centre_point_at_middle(self):
         """On a series ohms scale the expected pointer at Rx = Rc stands at the arc's middle."""
-        low, high = series_limits(12.0, 12.0, 0.025)
-        root = parse(arc_chart(SERIES_RANGE, [arc_row(12.0, low, high, 11.76, pct=20.2)]))
+        low, high = series_limits(16.0, 16.0, HALF)
+        root = parse(arc_chart(SERIES_RANGE, [arc_row(16.0, low, high, 15.6, pct=19.0)]))
         # derived from f = Rc/(Rc+Rx) = 0.5 at Rx = Rc
-        inner, outer = pointer_angles(root, "pt@12.0")
+        inner, outer = pointer_angles(root, "pt@16.0")
         assert inner == pytest.approx(0.0, abs=0.01) and outer == pytest.approx(0.0, abs=0.01)
 
     def test_scale_symmetric_about_vertical(self):
         """The scale arc spans its arc in degrees, half either side of vertical."""
-        root = parse(arc_chart(SERIES_RANGE, [arc_row(12.0, 10.86, 13.26, None, "not-measured")]))
+        root = parse(arc_chart(SERIES_RANGE, [arc_row(16.0, 14.0, 18.29, None, "not-measured")]))
         (scale,) = find(root, "path", "scale")
         points = path_points(scale.get("d"))
         centre = dial_centre(root)
-        assert angle(centre, *points[0][1]) == pytest.approx(-50.0, abs=0.01)
-        assert angle(centre, *points[-1][1]) == pytest.approx(50.0, abs=0.01)
+        assert angle(centre, *points[0][1]) == pytest.approx(-45.0, abs=0.01)
+        assert angle(centre, *points[-1][1]) == pytest.approx(45.0, abs=0.01)
 
     def test_linear_full_scale_point_at_right_end(self):
         """On a linear scale the full-scale point's pointer stands at the right end of the arc."""
@@ -303,72 +306,72 @@ class TestArcChart:
         root = parse(arc_chart(LINEAR_RANGE, [row]))
         # derived from f = (x - low) / (high - low) = 1 at full scale: angle +arc/2
         inner, outer = pointer_angles(root, "pt@10.0")
-        assert inner == pytest.approx(50.0, abs=0.01) and outer == pytest.approx(50.0, abs=0.01)
+        assert inner == pytest.approx(45.0, abs=0.01) and outer == pytest.approx(45.0, abs=0.01)
 
     def test_sector_half_width_is_tolerance_in_degrees(self):
-        """The allowed sector of a ± 2.5° point reaches 2.5° either side of the expected pointer."""
-        # 2.5° on a 100° arc is 0.025 of the scale length, as in the demo's ohms ranges.
-        low, high = series_limits(12.0, 12.0, 0.025)
-        root = parse(arc_chart(SERIES_RANGE, [arc_row(12.0, low, high, 11.76, pct=20.2)]))
-        start, end = sector_angles(root, "pt@12.0")
-        assert (end - start) / 2 == pytest.approx(2.5, abs=0.01)
+        """The allowed sector of a ± 3° point reaches 3° either side of the expected pointer."""
+        # 3° on a 90° arc is 1/30 of the scale length, as in the demo's ohms ranges.
+        low, high = series_limits(16.0, 16.0, HALF)
+        root = parse(arc_chart(SERIES_RANGE, [arc_row(16.0, low, high, 15.6, pct=19.0)]))
+        start, end = sector_angles(root, "pt@16.0")
+        assert (end - start) / 2 == pytest.approx(3.0, abs=0.01)
         assert (end + start) / 2 == pytest.approx(0.0, abs=0.01)
 
     def test_sector_off_centre(self):
-        """Off centre the sector is still ± 2.5° of arc about the pointer, not ± a value."""
-        low, high = series_limits(12.0, 48.0, 0.025)
-        root = parse(arc_chart(SERIES_RANGE, [arc_row(48.0, low, high, 46.54, pct=19.95)]))
-        # derived from f = Rc/(Rc+Rx) = 0.2 at Rx = 4 Rc: (0.2 - 0.5) * 100° = -30°
-        start, end = sector_angles(root, "pt@48.0")
-        assert start == pytest.approx(-32.5, abs=0.01) and end == pytest.approx(-27.5, abs=0.01)
-        assert pointer_angles(root, "pt@48.0")[1] == pytest.approx(-30.0, abs=0.01)
+        """Off centre the sector is still ± 3° of arc about the pointer, not ± a value."""
+        low, high = series_limits(16.0, 64.0, HALF)
+        root = parse(arc_chart(SERIES_RANGE, [arc_row(64.0, low, high, 62.0, pct=15.4)]))
+        # derived from f = Rc/(Rc+Rx) = 0.2 at Rx = 4 Rc: (0.2 - 0.5) * 90° = -27°
+        start, end = sector_angles(root, "pt@64.0")
+        assert start == pytest.approx(-30.0, abs=0.01) and end == pytest.approx(-24.0, abs=0.01)
+        assert pointer_angles(root, "pt@64.0")[1] == pytest.approx(-27.0, abs=0.01)
 
-    @pytest.mark.parametrize("rng, infinity_end", [(SERIES_RANGE, -50.0), (SHUNT_RANGE, 50.0)])
+    @pytest.mark.parametrize("rng, infinity_end", [(SERIES_RANGE, -45.0), (SHUNT_RANGE, 45.0)])
     def test_infinite_upper_limit_ends_at_infinity(self, rng, infinity_end):
         """An unbounded upper limit ends the sector at the ∞ end of the scale."""
         # Rx = 50 Rc sits 1/51 of the length from ∞ (f = Rc/(Rc+Rx) series, Rx/(Rx+Rc) shunt),
-        # closer than 0.025, so its window is unbounded above; its lower limit is 0.025 inwards.
+        # closer than 1/30, so its window is unbounded above; its lower limit is 1/30 inwards.
         f_inf = 1 / 51 if rng is SERIES_RANGE else 50 / 51
-        inward = f_inf + 0.025 if rng is SERIES_RANGE else f_inf - 0.025
-        low = 12.0 * (1 - inward) / inward if rng is SERIES_RANGE else 12.0 * inward / (1 - inward)
-        root = parse(arc_chart(rng, [arc_row(600.0, low, None, 700.0, pct=-20.0)]))
-        start, end = sector_angles(root, "pt@600.0")
-        limit = (inward - 0.5) * 100.0
+        inward = f_inf + HALF if rng is SERIES_RANGE else f_inf - HALF
+        low = 16.0 * (1 - inward) / inward if rng is SERIES_RANGE else 16.0 * inward / (1 - inward)
+        root = parse(arc_chart(rng, [arc_row(800.0, low, None, 900.0, pct=-20.0)]))
+        start, end = sector_angles(root, "pt@800.0")
+        limit = (inward - 0.5) * 90.0
         assert (start, end) == pytest.approx(sorted([infinity_end, limit]), abs=0.01)
 
     def test_reading_marker_where_reading_fell(self):
         """A failing reading is marked at its own deflection, outside the allowed sector."""
-        low, high = series_limits(1200.0, 1200.0, 0.025)
-        rng = {**SERIES_RANGE, "id": "ohm-x100", "centre": 1200.0}
-        root = parse(arc_chart(rng, [arc_row(1200.0, low, high, 1064.0, "fail", pct=120.14)]))
-        (marker,) = find(group(root, "pt@1200.0"), "circle", "reading", "fail")
+        low, high = series_limits(16000.0, 16000.0, HALF)
+        rng = {**SERIES_RANGE, "id": "ohm-x1k", "centre": 16000.0}
+        root = parse(arc_chart(rng, [arc_row(16000.0, low, high, 13700.0, "fail", pct=116.16)]))
+        (marker,) = find(group(root, "pt@16000.0"), "circle", "reading", "fail")
         at = angle(dial_centre(root), float(marker.get("cx")), float(marker.get("cy")))
-        # derived from f = Rc/(Rc+Rx): (1200/2264 - 0.5) * 100° = +3.0035°, the demo's error
-        assert at == pytest.approx(3.0035, abs=0.01)
-        start, end = sector_angles(root, "pt@1200.0")
+        # derived from f = Rc/(Rc+Rx): (16000/29700 - 0.5) * 90° = +3.4848°, the demo's error
+        assert at == pytest.approx(3.4848, abs=0.01)
+        start, end = sector_angles(root, "pt@16000.0")
         assert not start <= at <= end
 
     def test_point_without_reading_has_no_marker(self):
         """A point that was not read shows its pointer and sector but no reading marker."""
-        rows = [arc_row(12.0, *series_limits(12.0, 12.0, 0.025), 11.76, pct=20.2),
-                arc_row(3.0, *series_limits(12.0, 3.0, 0.025), None, "skipped")]
+        rows = [arc_row(16.0, *series_limits(16.0, 16.0, HALF), 15.6, pct=19.0),
+                arc_row(4.0, *series_limits(16.0, 4.0, HALF), None, "skipped")]
         root = parse(arc_chart(SERIES_RANGE, rows))
-        unread = group(root, "pt@3.0")
+        unread = group(root, "pt@4.0")
         assert not find(unread, "circle", "reading")
         assert find(unread, "path", "sector") and find(unread, "line", "expected")
-        assert find(group(root, "pt@12.0"), "circle", "reading", "pass")
+        assert find(group(root, "pt@16.0"), "circle", "reading", "pass")
 
     def test_ohms_ticks(self):
         """An ohms scale is labelled 0 and ∞ at its ends and round values where the law puts them."""
-        root = parse(arc_chart(SERIES_RANGE, [arc_row(12.0, 10.86, 13.26, None, "not-measured")]))
+        root = parse(arc_chart(SERIES_RANGE, [arc_row(16.0, 14.0, 18.29, None, "not-measured")]))
         labels = find(root, "text", "tick-label")
         by_x = sorted(labels, key=lambda t: float(t.get("x")))
         assert by_x[0].text == "∞" and by_x[-1].text == "0"  # series: full deflection at 0 Ω
         assert {"1", "2", "5", "10", "20", "50", "100"} <= {t.text for t in labels}
         centre = dial_centre(root)
         majors = [angle(centre, float(t.get("x1")), float(t.get("y1"))) for t in find(root, "line", "tick", "major")]
-        # derived from f = Rc/(Rc+Rx): 10 Ω on a 12 Ω centre scale at (12/22 - 0.5) * 100°
-        assert any(a == pytest.approx((12 / 22 - 0.5) * 100, abs=0.01) for a in majors)
+        # derived from f = Rc/(Rc+Rx): 10 Ω on a 16 Ω centre scale at (16/26 - 0.5) * 90°
+        assert any(a == pytest.approx((16 / 26 - 0.5) * 90, abs=0.01) for a in majors)
 
     def test_linear_ticks(self):
         """A linear scale is labelled from 0 at the left to full scale at the right."""
@@ -382,15 +385,15 @@ class TestArcChart:
 
     def test_same_input_same_bytes(self):
         """Rendering the same range twice gives identical text."""
-        rows = [arc_row(12.0, *series_limits(12.0, 12.0, 0.025), 11.76, pct=20.202020202020332),
-                arc_row(600.0, 4.1, None, None, "not-measured")]
+        rows = [arc_row(16.0, *series_limits(16.0, 16.0, HALF), 15.6, pct=18.987341772151893),
+                arc_row(800.0, 4.1, None, None, "not-measured")]
         first = arc_chart(SERIES_RANGE, rows)
         assert arc_chart(copy.deepcopy(SERIES_RANGE), copy.deepcopy(rows)) == first
 
     def test_text_is_escaped(self):
         """A range id or stimulus holding markup comes out as text, never as an element."""
         evil = "<script>go()</script>"  # short enough to be shown whole
-        row = {**arc_row(12.0, 10.86, 13.26, 11.76, pct=20.2), "stimulus": evil}
+        row = {**arc_row(16.0, 14.0, 18.29, 15.6, pct=19.0), "stimulus": evil}
         svg = arc_chart({**SERIES_RANGE, "id": evil}, [row])
         assert "<script" not in svg
         root = parse(svg)
@@ -399,7 +402,7 @@ class TestArcChart:
 
     def test_standalone_svg(self):
         """The arc chart is one standalone SVG element with an accessible name, 180 mm wide."""
-        root = parse(arc_chart(SERIES_RANGE, [arc_row(12.0, 10.86, 13.26, 11.76, pct=20.2)]))
+        root = parse(arc_chart(SERIES_RANGE, [arc_row(16.0, 14.0, 18.29, 15.6, pct=19.0)]))
         assert root.tag == SVG + "svg" and root.get("role") == "img"
         assert "ohm-x1" in root.get("aria-label") and list(root)[0].tag == SVG + "title"
         assert root.get("width") == "180mm"

@@ -7,8 +7,8 @@ device itself, and the journal keeps every observation confirmed before the faul
 with a stop document saying why. When standby itself cannot be sent, the caller is told the
 output state is unknown.
 
-Plan of the demo (0-based index): 0-4 dcv-10, 5-7 dcv-50, 8-10 dca-50m, 11-13 acv-50 (AC, with a
-frequency command), 14-16 ohm-x1, 17-19 ohm-x100.
+Plan of the demo (0-based index): 0-4 dcv-6, 5-7 dcv-30, 8-10 dca-30m, 11-13 acv-30 (AC, with a
+frequency command), 14-16 ohm-x1, 17-19 ohm-x1k.
 """
 
 from __future__ import annotations
@@ -33,7 +33,7 @@ def is_level(command: str) -> bool:
 
 
 def step_name(point) -> str:
-    """How a step is named in messages: ``step 3 of 20 (dcv-10 at 6 V DC)``."""
+    """How a step is named in messages: ``step 3 of 20 (dcv-6 at 3.6 V DC)``."""
     return f"step {point.index + 1} of {point.total} ({point.range.id} at {point.stimulus_text()})"
 
 

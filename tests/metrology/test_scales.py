@@ -148,7 +148,8 @@ class TestMakeLaw:
             make_law("log")
 
 
-# The worked range: a 1.5 V cell, 12 ohm centre scale, 100 degree arc.
+# The worked range of the trade (common practice, no source): a 1.5 V cell, 12 ohm centre
+# scale, 100 degree arc. A check value only; the demo meter is built on numbers of its own.
 EMF, RC, ARC = 1.5, 12.0, 100.0
 
 
