@@ -142,7 +142,7 @@ class ScriptedReadings:
     def _queue(self, point: TestPoint) -> list[tuple[int, str]]:
         table = self._rows_of_range(point)
         queue = table.get(point.nominal)
-        if queue is None:  # written differently ("1.2 kohm" for 1200.0000000000002): match closely
+        if queue is None:  # written differently (the text one ulp from the nominal): match closely
             queue = next((rows for nominal, rows in table.items()
                           if math.isclose(nominal, point.nominal, rel_tol=1e-9, abs_tol=1e-15)), [])
             table[point.nominal] = queue

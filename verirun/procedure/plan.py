@@ -54,7 +54,7 @@ class TestPoint:
         return self.range.unit
 
     def stimulus_text(self) -> str:
-        """The stimulus in words: ``"5 V DC"``, ``"10 V AC at 50 Hz"``, ``"12 Ω"``."""
+        """The stimulus in words: ``"5 V DC"``, ``"10 V AC at 50 Hz"``, ``"16 Ω"``."""
         text = format_quantity(self.nominal, self.unit)
         if self.function.startswith("dc-"):
             text += " DC"
