@@ -242,8 +242,8 @@ def read_off_scale(value: float, rng: ResolvedRange) -> str | None:
       written is the one that mark says: the shortest decimal whose own position on the scale
       lies within half a readability step of the mark (the nearest such one when several are
       equally short), so that a reader of the written value finds the pointer on the same
-      mark. Near the open end of an ohms scale one mark spans hundreds of kilohms and ``500 kΩ``
-      is read; near centre scale it is ``15.6 Ω``.
+      mark. On a 90° scale with a 16 kΩ centre, the 3° mark near the open end spans 427 kΩ to
+      508 kΩ and is read ``500 kΩ``; on one with a 16 Ω centre the 45.5° mark is read ``15.6 Ω``.
 
     Without a readability the value is written to four significant digits. ``None`` when the
     mark read is at the infinity end of an ohms scale.
