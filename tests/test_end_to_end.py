@@ -186,4 +186,7 @@ class TestDemoCommand:
         html = certs[0].read_text(encoding="utf-8")
         assert "verdict-fail" in html and "does NOT conform" in html
         records = list((tmp_path / "runs").glob("*/record.json"))
-        assert json.loads(records[0].read_text())["summary"]["fail"] >= 1
+        record = json.loads(records[0].read_text())
+        assert record["summary"]["fail"] >= 1
+        # ...and an ohms point whose window is open above (its upper limit stored as null).
+        assert any(row["high"] is None and row["unit"] == "Ω" for row in record["points"])
