@@ -27,8 +27,9 @@ from verirun.session import execute
 
 # Expected verdicts of the scripted readings (tests/data/qm40-readings.csv), each worked by hand:
 # linear ranges: limits = nominal ± percent × full scale / 100 (percent of full scale, and a
-# class index on a linear scale, IEC 60051-1 3.5.1 and 5.1, from memory: the fiducial value is
-# the full-scale value); limits included under simple acceptance, ILAC-G8:09/2019 4.2.1;
+# class index on a linear scale whose zero is at one end: IEC 60051-1, from memory, takes the
+# full-scale value as its fiducial value); limits included under simple acceptance,
+# ILAC-G8:09/2019 4.2.1;
 # series ohms: deflection θ = arc × Rc/(Rc+Rx), window θ0 ± 3°, limits Rx = Rc (arc - θ)/θ
 # (derived from f = Rc/(Rc+Rx)); here arc = 90° and Rc = 16 Ω (×1) or 16 kΩ (×1k).
 EXPECTED = {
