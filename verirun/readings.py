@@ -20,9 +20,9 @@ from verirun.metrology import scales
 from verirun.procedure.load import ResolvedRange
 from verirun.procedure.model import Number, QuantityText, Strict
 from verirun.procedure.plan import TestPoint
-from verirun.units import format_quantity, parse_quantity, parse_value
+from verirun.units import format_quantity, parse_quantity, parse_value, prefix_for
 
-EntryKind = Literal["reading", "repeat", "skip", "note", "abort"]
+EntryKind = Literal["reading", "repeat", "skip", "note", "abort", "undo"]
 
 #: Words the operator may type at the prompt instead of a reading.
 COMMANDS = {
@@ -30,6 +30,7 @@ COMMANDS = {
     "skip": "skip this point; give the reason after the word (skip lead broken)",
     "note": "add a note to the record (note pointer sticks at 3 V)",
     "abort": "stop the run now; the output goes to standby and the run can be resumed",
+    "undo": "withdraw the last reading (journaled) and measure that step again",
 }
 
 
@@ -55,10 +56,23 @@ class ReadingSource(Protocol):
         """The reading (or operator command) for ``point``."""
 
 
+def reading_unit(rng) -> tuple[str, float]:
+    """The unit a bare number is read in on ``rng``, and its factor to base units.
+
+    It is the unit of the range's marked value with the prefix that value is written with: mA
+    on a 50 mA range (factor 1e-3), V on a 10 V range, kΩ on an ohms range of centre 1.2 kΩ.
+    The reading prompt shows it, so what the operator types means what the prompt says.
+    """
+    marked = rng.full_scale if rng.full_scale is not None else getattr(rng.law, "centre", None)
+    factor, prefix = prefix_for(marked) if marked else (1.0, "")
+    return prefix + rng.unit, factor
+
+
 def parse_entry(typed: str, point: TestPoint) -> Entry:
     """Turn what was typed at ``point`` into an :class:`Entry`.
 
-    A bare number is in the range's unit; a unit may be given (``"4.9 V"``, ``"250 mA"``).
+    A bare number is in the unit the prompt shows (:func:`reading_unit`); a unit may be given
+    (``"4.9 V"``, ``"250 mA"``), or a prefix alone (``"1.06k"``).
 
     Raises
     ------
@@ -73,7 +87,8 @@ def parse_entry(typed: str, point: TestPoint) -> Entry:
         if kind in ("skip", "note") and not rest:
             raise UnitError(f"give the {'reason' if kind == 'skip' else 'note'} after '{kind}'")
         return Entry(kind=kind, typed=typed, text=rest or None)
-    value, _ = parse_quantity(text, point.unit)
+    _, factor = reading_unit(point.range)
+    value, _ = parse_quantity(text, point.unit, bare_factor=factor)
     _check_on_scale(value, point)
     return Entry(kind="reading", typed=typed, value=value)
 
@@ -90,63 +105,177 @@ def _check_on_scale(value: float, point: TestPoint) -> None:
         low, high = sorted((law.low, law.high))
         margin = OVERTRAVEL * (high - low)
         if not low - margin <= value <= high + margin:
-            raise UnitError(f"{format_quantity(value, point.unit)} is beyond the ends of the scale"
-                            f" ({format_quantity(low, point.unit)} to {format_quantity(high, point.unit)})")
+            unit, factor = reading_unit(point.range)
+            raise UnitError(f"{_in(value, factor, unit)} is beyond the ends of the scale: a reading"
+                            f" from {_in(low - margin, factor, unit)} to {_in(high + margin, factor, unit)}"
+                            " is accepted")
     elif value < 0:
         raise UnitError("a resistance reading cannot be below zero")
+
+
+def _in(value: float, factor: float, unit: str) -> str:
+    return f"{value / factor:.6g} {unit}"
+
+
+#: How many tolerances from the nominal a reading must be before the console asks again.
+GROSS_TOLERANCES = 3.0
+
+
+def tolerances_off(point: TestPoint, value: float) -> float | None:
+    """How many tolerance half-widths ``value`` lies from the nominal (``None``: not defined)."""
+    from verirun.metrology import tolerance
+
+    try:
+        pct = tolerance.deviation(point.window, value, point.range.law).percent_of_tolerance
+    except (ValueError, ZeroDivisionError):
+        return None
+    return None if pct is None or not math.isfinite(pct) else abs(pct) / 100.0
+
+
+@dataclass(frozen=True, slots=True)
+class _Row:
+    line: int
+    range: str
+    at: str
+    reading: str
+
+
+#: The columns of a readings file, in the order they are written.
+COLUMNS = ("range", "at", "reading")
 
 
 class ScriptedReadings:
     """Readings replayed from a CSV file with columns ``range``, ``at`` and ``reading``.
 
-    ``at`` is the nominal value of the point (with or without its unit); ``reading`` is exactly
-    what an operator would type, operator commands included. Rows are matched to points by range
-    and nominal, so the file need not follow the procedure's order.
+    ``at`` is the nominal value of the point (with or without its unit; a bare number is in the
+    unit the reading prompt shows); ``reading`` is exactly what an operator would type,
+    operator commands included. Rows are matched to points by range and nominal, in the
+    file's order where a procedure repeats a point, so the file need not follow the
+    procedure's order. :meth:`check` checks the whole file against the plan before the run
+    starts.
     """
 
     interactive = False
 
     def __init__(self, path: str | Path):
         self.path = Path(path)
-        self._raw: dict[str, list[tuple[int, str, str]]] = {}  # range -> (line, at, reading)
+        self._rows: list[_Row] = []
+        self._problems: list[str] = []  # found in reading the file itself
+        self._last_line = 1
         try:
-            with open(self.path, newline="", encoding="utf-8") as fh:
-                reader = csv.DictReader(fh)
-                missing = {"range", "at", "reading"} - set(reader.fieldnames or [])
+            with open(self.path, newline="", encoding="utf-8-sig") as fh:
+                reader = csv.reader(fh)
+                header = next(reader, None)
+                names = [h.strip().lower() for h in header or []]
+                missing = [c for c in COLUMNS if c not in names]
                 if missing:
-                    raise ProcedureError(f"{self.path}:1: missing column(s) {', '.join(sorted(missing))}"
-                                         " (need range, at, reading)")
-                for row in reader:
-                    self._raw.setdefault((row["range"] or "").strip(), []).append(
-                        (reader.line_num, (row["at"] or "").strip(), row["reading"] or ""))
+                    raise ProcedureError(f"{self.path}:1: missing column(s) {', '.join(missing)}: the first"
+                                         " line must be the header range,at,reading")
+                unknown = [h for h in names if h not in COLUMNS]
+                if unknown:
+                    self._problems.append(f"{self.path}:1: unknown column(s) {', '.join(map(repr, unknown))};"
+                                          " the header is range,at,reading")
+                where = {name: names.index(name) for name in COLUMNS}
+                for fields in reader:
+                    line = reader.line_num
+                    self._last_line = line
+                    if not any(f.strip() for f in fields):
+                        continue
+                    if len(fields) != len(names):
+                        hint = (" (a decimal comma? write a decimal point, 10.4, or quote the field)"
+                                if len(fields) > len(names) else "")
+                        self._problems.append(f"{self.path}:{line}: {len(fields)} fields where the header has"
+                                              f" {len(names)}{hint}; write range,at,reading")
+                        continue
+                    self._rows.append(_Row(line=line, range=fields[where["range"]].strip(),
+                                           at=fields[where["at"]].strip(), reading=fields[where["reading"]]))
         except FileNotFoundError:
             raise ProcedureError(f"{self.path}: no such file") from None
         except (OSError, UnicodeDecodeError, csv.Error) as exc:
             raise ProcedureError(f"{self.path}: cannot read: {exc}") from None
-        # Per range, the rows' nominal values parsed once (in the range's unit) -> their rows.
-        self._by_nominal: dict[str, dict[float, list[tuple[int, str]]]] = {}
+        # Per (range id, nominal of its point) the rows not yet replayed, in file order.
+        self._queues: dict[tuple[str, float], list[_Row]] = {}
+        self._checked = False
 
-    def _rows_of_range(self, point: TestPoint) -> dict[float, list[tuple[int, str]]]:
-        rng = point.range.id
-        if rng not in self._by_nominal:
-            table: dict[float, list[tuple[int, str]]] = {}
-            for line, at, reading in self._raw.get(rng, []):
-                try:
-                    nominal = parse_value(at, point.unit)
-                except UnitError as exc:
-                    raise ProcedureError(f"{self.path}:{line}: at: {exc}") from None
-                table.setdefault(nominal, []).append((line, reading))
-            self._by_nominal[rng] = table
-        return self._by_nominal[rng]
+    def _match(self, points: list[TestPoint], problems: list[str]) -> dict[tuple[str, float], list[_Row]]:
+        """Assign every row to the point it names; a row that names none is a problem."""
+        nominals: dict[str, list[float]] = {}
+        ranges = {}
+        for p in points:
+            ranges.setdefault(p.range.id, p.range)
+            if p.nominal not in nominals.setdefault(p.range.id, []):
+                nominals[p.range.id].append(p.nominal)
+        queues: dict[tuple[str, float], list[_Row]] = {}
+        for row in self._rows:
+            rng = ranges.get(row.range)
+            if rng is None:
+                problems.append(f"{self.path}:{row.line}: range: the procedure has no range {row.range!r}"
+                                f" (its ranges: {', '.join(ranges)})")
+                continue
+            unit, factor = reading_unit(rng)
+            try:
+                at = parse_quantity(row.at, rng.unit, bare_factor=factor)[0]
+            except UnitError as exc:
+                problems.append(f"{self.path}:{row.line}: at: {exc}; write the point's nominal value,"
+                                f" e.g. {format_quantity(nominals[rng.id][0], rng.unit)}")
+                continue
+            nominal = next((n for n in nominals[rng.id]
+                            if n == at or math.isclose(n, at, rel_tol=1e-9, abs_tol=1e-15)), None)
+            if nominal is None:
+                problems.append(f"{self.path}:{row.line}: at: range {rng.id} has no point at"
+                                f" {format_quantity(at, rng.unit)} (its points:"
+                                f" {', '.join(format_quantity(n, rng.unit) for n in nominals[rng.id])})")
+                continue
+            queues.setdefault((rng.id, nominal), []).append(row)
+        return queues
 
-    def _queue(self, point: TestPoint) -> list[tuple[int, str]]:
-        table = self._rows_of_range(point)
-        queue = table.get(point.nominal)
-        if queue is None:  # written differently (the text one ulp from the nominal): match closely
-            queue = next((rows for nominal, rows in table.items()
-                          if math.isclose(nominal, point.nominal, rel_tol=1e-9, abs_tol=1e-15)), [])
-            table[point.nominal] = queue
-        return queue
+    def check(self, points: list[TestPoint], every: list[TestPoint] | None = None) -> list[str]:
+        """Every problem of the file for a run of ``points``, each as ``file:line: ...``.
+
+        Each row is matched to its point and parsed as the run would parse it; a point without
+        a reading, a row naming no point of the procedure and a row left over once its point
+        has its reading are all problems. ``every`` is the whole plan when ``points`` is part of
+        it (a resumed run): rows for its other points are not used and not problems.
+        """
+        problems = list(self._problems)
+        queues = self._match(every if every is not None else points, problems)
+        rows = {key: list(rows) for key, rows in queues.items()}
+        pending = set()
+        for point in points:
+            key = (point.range.id, point.nominal)
+            pending.add(key)
+            if self._replay_check(point, rows.get(key, []), problems) == "abort":
+                break  # the run stops here; later points need no rows
+        for key in pending:
+            for row in rows.get(key, []):
+                first = queues[key][0].line
+                problems.append(f"{self.path}:{row.line}: a row left over: range {key[0]} at {row.at} already"
+                                f" has its reading (line {first}); remove the duplicate")
+        self._queues, self._checked = queues, True
+        prefix = len(str(self.path)) + 1
+        return sorted(problems, key=lambda text: _line_order(text[prefix:]))
+
+    def _replay_check(self, point: TestPoint, queue: list[_Row], problems: list[str]) -> str | None:
+        """Replay ``point``'s rows as the run would; return the kind of its last entry."""
+        while queue:
+            row = queue.pop(0)
+            try:
+                entry = self._entry(row, point)
+            except UnitError as exc:
+                problems.append(f"{self.path}:{row.line}: reading: {exc}")
+                return None
+            if entry.kind in ("reading", "skip", "abort"):
+                return entry.kind
+        problems.append(f"{self.path}:{self._last_line + 1}: no reading for step {point.index + 1}"
+                        f" ({point.range.id} at {format_quantity(point.nominal, point.unit)});"
+                        f" add a row {point.range.id},{format_quantity(point.nominal, point.unit)},READING")
+        return None
+
+    def _entry(self, row: _Row, point: TestPoint) -> Entry:
+        entry = parse_entry(row.reading, point)
+        if entry.kind == "undo":
+            raise UnitError("'undo' is for the console; in a file, write the reading as it should be")
+        return entry
 
     def take(self, point: TestPoint) -> Entry:
         """The next scripted entry for ``point``.
@@ -156,15 +285,24 @@ class ScriptedReadings:
         ProcedureError
             If the file has no (more) rows for the point, or a row does not parse.
         """
-        queue = self._queue(point)
+        key = (point.range.id, point.nominal)
+        if not self._checked and key not in self._queues:
+            # Not checked against a plan: match the rows of this point now.
+            self._queues[key] = self._match([point], []).get(key, [])
+        queue = self._queues.get(key, [])
         if not queue:
             raise ProcedureError(f"{self.path}: no reading for range {point.range.id} at"
                                  f" {format_quantity(point.nominal, point.unit)}")
-        line, typed = queue.pop(0)
+        row = queue.pop(0)
         try:
-            return parse_entry(typed, point)
+            return self._entry(row, point)
         except UnitError as exc:
-            raise ProcedureError(f"{self.path}:{line}: reading: {exc}") from None
+            raise ProcedureError(f"{self.path}:{row.line}: reading: {exc}") from None
+
+
+def _line_order(problem: str) -> int:
+    number = problem.split(":", 1)[0]
+    return int(number) if number.isdigit() else 0
 
 
 class MeterRangeModel(Strict):
@@ -209,6 +347,52 @@ class VirtualMeter:
                     problems.append(located.problem(("ranges", name, key), str(exc)))
         if problems:
             raise ProcedureError(problems)
+
+    def check(self, points: list[TestPoint], every: list[TestPoint] | None = None) -> list[str]:
+        """Every problem of the file for a run of ``points``, each as ``file:line: field: message``.
+
+        Every range of the procedure needs a model (``{gain: 1}`` for a meter without error),
+        every model a range of the procedure; an offset is in its range's unit, a real centre
+        is for an ohms range and gain and offset for a linear one; and every point must give a
+        reading the run would accept.
+        """
+        located, problems = self._located, []
+        ranges: dict[str, object] = {}
+        for p in every if every is not None else points:
+            ranges.setdefault(p.range.id, p.range)
+        for name, model in self.model.ranges.items():
+            loc = ("ranges", name)
+            rng = ranges.get(name)
+            if rng is None:
+                problems.append(located.problem(loc, f"the procedure has no range {name!r}"
+                                                f" (its ranges: {', '.join(ranges)})"))
+                continue
+            linear = isinstance(rng.law, scales.Linear)
+            if linear and model.centre is not None:
+                problems.append(located.problem(loc + ("centre",), f"{name} is a linear range: give gain"
+                                                " and offset, not centre"))
+            if not linear and ("gain" in model.model_fields_set or "offset" in model.model_fields_set):
+                problems.append(located.problem(loc, f"{name} is an ohms range: give its real centre"
+                                                " (centre: 12.3 ohm), not gain or offset"))
+            if linear:
+                try:
+                    parse_value(model.offset, rng.unit)
+                except UnitError as exc:
+                    problems.append(located.problem(loc + ("offset",), f"{exc}; write it in {rng.unit}"))
+        missing = [name for name in ranges if name not in self.model.ranges]
+        for name in missing:
+            problems.append(located.problem(("ranges",), f"no model for range {name!r}; add"
+                                            f" '{name}: {{gain: 1}}' for a meter without error", missing=False))
+        if not problems:
+            for point in points:
+                try:
+                    self.take(point)
+                except (UnitError, ProcedureError) as exc:
+                    problems.append(located.problem(("ranges", point.range.id),
+                                                    f"step {point.index + 1} ({point.range.id} at"
+                                                    f" {point.stimulus_text()}): the meter would read what the"
+                                                    f" run refuses: {exc}"))
+        return problems
 
     def shown(self, point: TestPoint) -> float:
         """The value the pointer shows at ``point``, before it is read off the scale."""

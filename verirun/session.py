@@ -21,7 +21,7 @@ from verirun.procedure.plan import plan
 from verirun.certificate.render import write_certificate
 from verirun.clock import SystemClock
 from verirun.engine import Engine, Outcome, RunContext
-from verirun.errors import RecordError
+from verirun.errors import ProcedureError, RecordError
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.record import JOURNAL_NAME, RECORD_NAME, Journal, read_journal, verify_chain, write_record
 from verirun.runrecord import Known, build_record
@@ -66,6 +66,22 @@ def _sigterm_as_interrupt():
             signal.signal(number, old)
 
 
+def check_readings(readings, points, every=None) -> None:
+    """Check a file of readings whole against the plan before anything is sent.
+
+    Raises
+    ------
+    ProcedureError
+        Listing every problem of the file, each as ``file:line: ...``.
+    """
+    check = getattr(readings, "check", None)
+    if check is None:  # a person at the console: nothing to check beforehand
+        return
+    found = check(points, every)
+    if found:
+        raise ProcedureError(found)
+
+
 def open_calibrator(bench: Bench, *, simulate: bool, workdir: Path, profile):
     """Open the bench's calibrator, or the simulated one (a different VISA backend, same driver),
     with the loaded driver ``profile`` of the bench file."""
@@ -94,6 +110,7 @@ def execute(*, procedure: Procedure, bench: Bench, context: RunContext, readings
     uid = uid or uuid_mod.uuid4().hex
     profile = calibrator.profile if calibrator is not None else load_profile(bench.file.calibrator.profile)
     points = plan(procedure, bench)
+    check_readings(readings, points)
     preflight.check(points, bench, profile, today=clock.now().date())
     run_dir = Path(runs_dir) / run_folder_name(context.item.get("serial", "item"), uid, clock.now())
     run_dir.mkdir(parents=True, exist_ok=False)
@@ -179,6 +196,7 @@ def resume(*, run_dir: Path, procedure_path: Path | None, bench_path: Path | Non
                           " (use 'verirun certify' for its certificate)")
     simulate = bool(start["bench"].get("simulated"))
     profile = calibrator.profile if calibrator is not None else load_profile(bench.file.calibrator.profile)
+    check_readings(readings, pending, points)
     preflight.check(pending, bench, profile, today=clock.now().date())
     context = RunContext(lab=start["lab"], customer=start["customer"], item=start["item"],
                          operator=start["operator"], simulated=simulate,

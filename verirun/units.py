@@ -60,7 +60,8 @@ def _split_unit(symbol: str) -> tuple[float, str]:
                     " such as m, k, M)")
 
 
-def parse_quantity(text: str | float | int, expect: str | None = None) -> tuple[float, str]:
+def parse_quantity(text: str | float | int, expect: str | None = None, *,
+                   bare_factor: float = 1.0) -> tuple[float, str]:
     """Parse a number with an optional unit into ``(value in base units, dimension)``.
 
     Parameters
@@ -69,7 +70,11 @@ def parse_quantity(text: str | float | int, expect: str | None = None) -> tuple[
         ``"4.7 kΩ"``, ``"125mA"``, ``"2.5 deg"``, ``"10"``; a plain int or float passes through.
     expect
         The dimension the value must have (``"V"``, ``"A"``, ``"Ω"``, ``"Hz"``, ``"deg"``,
-        ``"%"``). A bare number is taken to be in it.
+        ``"%"``). A bare number is taken to be in it, and so is a number with a prefix alone
+        (``"1.06k"`` for 1.06 kΩ when ``expect`` is ``"Ω"``).
+    bare_factor
+        What a bare number is multiplied by: ``1e-3`` when it is typed in mA on a range whose
+        prompt shows mA.
 
     Returns
     -------
@@ -90,6 +95,7 @@ def parse_quantity(text: str | float | int, expect: str | None = None) -> tuple[
             value = float(text)
         except OverflowError:
             raise UnitError(f"{text!r} is too large a number") from None
+        value *= bare_factor
         dimension = expect or ""
     else:
         if not isinstance(text, str):
@@ -103,10 +109,14 @@ def parse_quantity(text: str | float | int, expect: str | None = None) -> tuple[
             raise UnitError(f"{text.strip()!r} is not a number with an optional unit")
         value = float(match["number"])
         symbol = match["unit"]
-        if symbol:
+        if symbol and expect and expect not in _UNPREFIXED and symbol in PREFIXES and symbol not in UNITS:
+            value *= PREFIXES[symbol]  # a prefix alone: the expected unit is understood
+            dimension = expect
+        elif symbol:
             factor, dimension = _split_unit(symbol)
             value *= factor
         else:
+            value *= bare_factor
             dimension = expect or ""
     if not math.isfinite(value):
         raise UnitError(f"{text!r} is not a finite number")
@@ -182,3 +192,12 @@ def in_band(frequency: float | None, low_hz: float | None, high_hz: float | None
     if low_hz is None:
         return True
     return frequency is not None and low_hz <= frequency <= high_hz
+
+
+def prefix_for(value: float) -> tuple[float, str]:
+    """The SI prefix a value of this size is shown with: ``prefix_for(0.05) == (1e-3, "m")``."""
+    magnitude = abs(value)
+    for factor, prefix in _ENGINEERING:
+        if magnitude >= factor * 0.9999999995:
+            return factor, prefix
+    return _ENGINEERING[-1]
