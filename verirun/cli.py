@@ -51,8 +51,18 @@ def _parser() -> argparse.ArgumentParser:
     run.add_argument("--operator", default=os.environ.get("USER", "operator"), help="who runs the verification")
     _output_options(run)
 
-    check = sub.add_parser("check", help="validate procedure files and report every problem")
-    check.add_argument("files", type=Path, nargs="+", help="procedure files (YAML)")
+    check = sub.add_parser("check", help="check procedure, bench, driver-profile, lab, virtual-meter and"
+                                         " readings files; every problem of every file in one pass")
+    check.add_argument("files", type=Path, nargs="+",
+                       help="files to check (YAML, recognised by their keys; readings files end in .csv)")
+    check.add_argument("--bench", type=Path, help="also check each procedure on this bench, without opening the"
+                                                  " instrument (coverage, limits, hazards, test currents, TUR)")
+
+    review = sub.add_parser("review", help="print the plan of a procedure on a bench and write it as an HTML"
+                                           " page for sign-off before the first real run")
+    review.add_argument("procedure", type=Path, help="the procedure file (YAML)")
+    review.add_argument("--bench", type=Path, required=True, help="the bench file (YAML)")
+    review.add_argument("--reports", type=Path, default=Path("reports"), help="folder for the review page")
 
     window = sub.add_parser("window", help="compute the allowable window of one accuracy statement")
     window.add_argument("--scale", choices=["linear", "series-ohms", "shunt-ohms"], default="linear")
@@ -186,23 +196,55 @@ def _resume_hint(exc: BaseException) -> None:
 
 
 def _cmd_check(args) -> int:
-    from verirun.errors import ProcedureError
-    from verirun.procedure.load import load_procedure
-    from verirun.procedure.plan import plan
+    from verirun.checkfiles import check
 
-    failed = False
-    for path in args.files:
-        try:
-            procedure = load_procedure(path)
-            plan(procedure)
-        except ProcedureError as exc:
-            failed = True
-            for line in exc.problems:
-                print(line)
-            continue
-        print(f"{path}: ok: {procedure.id} revision {procedure.revision},"
-              f" {len(procedure.ranges)} ranges, {sum(len(r.points) for r in procedure.ranges)} points")
-    return EXIT_ERROR if failed else EXIT_OK
+    report = check(args.files, bench_path=args.bench)
+    for line in report.lines:
+        print(line)
+    return EXIT_ERROR if report.failed else EXIT_OK
+
+
+def _cmd_review(args) -> int:
+    import datetime as dt
+
+    from rich.table import Table
+
+    from verirun.bench.config import load_bench
+    from verirun.bench.profile import load_profile
+    from verirun.certificate.render import safe_file_name
+    from verirun.procedure.load import load_procedure
+    from verirun.review import COLUMNS, render_html, review
+
+    procedure = load_procedure(args.procedure)
+    bench = load_bench(args.bench)
+    found = review(procedure, bench, load_profile(bench.file.calibrator.profile), today=dt.date.today())
+    rich = _rich()
+    table = Table(title=f"{found.procedure} on bench {found.bench}")
+    for _, title in COLUMNS:
+        table.add_column(title, overflow="fold")
+    for row in found.rows:
+        style = "red" if row.tur_low or row.current_over else None
+        table.add_row(*(str(getattr(row, name)) for name, _ in COLUMNS), style=style)
+    rich.print(table)
+    for text in found.problems:
+        rich.print(f"problem: {text}", markup=False)
+    for text in found.warnings:
+        rich.print(f"warning: {text}", markup=False)
+    args.reports.mkdir(parents=True, exist_ok=True)
+    out = args.reports / safe_file_name(f"review-{procedure.id}-{procedure.revision}-{bench.file.bench.id}.html")
+    out.write_text(render_html(found), encoding="utf-8")
+    rich.print(f"Review page: {out}", markup=False)
+    return EXIT_ERROR if found.problems else EXIT_OK
+
+
+def _rich(**options):
+    """A rich console for output; without a terminal nothing is wrapped or cut, for scripts."""
+    from rich.console import Console as RichConsole
+
+    if not sys.stdout.isatty():
+        options.setdefault("width", 100_000)
+        options.setdefault("soft_wrap", True)
+    return RichConsole(highlight=False, **options)
 
 
 def _cmd_window(args) -> int:
@@ -495,5 +537,5 @@ def _cmd_run(args) -> int:
                 adjustment=args.adjustment)
 
 
-_COMMANDS = {"check": _cmd_check, "window": _cmd_window, "certify": _cmd_certify, "demo": _cmd_demo,
+_COMMANDS = {"check": _cmd_check, "review": _cmd_review, "window": _cmd_window, "certify": _cmd_certify, "demo": _cmd_demo,
              "run": _cmd_run, "resume": _cmd_resume, "verify": _cmd_verify, "amend": _cmd_amend, "runs": _cmd_runs}

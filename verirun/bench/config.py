@@ -51,6 +51,17 @@ class AccuracyLine(Strict):
     to: QuantityText | None = None
 
 
+class CurrentLimit(Strict):
+    """The most current the calibrator's resistance output accepts, for values up to ``up-to``.
+
+    A series ohmmeter drives its own test current through the resistance it measures; a
+    calibrator's resistance output is specified only up to a current that depends on the value.
+    """
+
+    up_to: QuantityText
+    max: QuantityText
+
+
 class CalibratorInfo(Strict):
     """The reference standard: identity, its VISA address and its own calibration status."""
 
@@ -65,6 +76,7 @@ class CalibratorInfo(Strict):
     traceability: StrictStr | None = None
     timeout: QuantityText = "2 s"
     accuracy: list[AccuracyLine] = []
+    resistance_current: list[CurrentLimit] = []
 
 
 class SafetyInfo(Strict):
@@ -117,6 +129,15 @@ class Bench:
     hazardous_ac_rms: float
     hazardous_ac_peak: float
     accuracy: tuple[SpecLine, ...] = ()
+    #: (up to this resistance, the most current accepted), lowest resistance first.
+    resistance_current: tuple[tuple[float, float], ...] = ()
+
+    def current_limit(self, resistance: float) -> float | None:
+        """The most current the resistance output accepts at ``resistance`` (``None``: not given)."""
+        for up_to, most in self.resistance_current:
+            if resistance <= up_to * (1 + 1e-12):
+                return most
+        return None
 
     @property
     def sha256(self) -> str:
@@ -197,6 +218,13 @@ def _resolve(located: yamlfile.LocatedData) -> Bench:
             spec = CalibratorSpec(output_ppm=output, range_ppm=of_range, floor=floor, level=level)
             accuracy.append(SpecLine(function=line.function, range=rng, spec=spec, low_hz=low, high_hz=high,
                                      text=_spec_text(line)))
+    limits = []
+    for i, limit in enumerate(model.calibrator.resistance_current):
+        before = len(problems)
+        up_to = quantity(("calibrator", "resistance-current", i, "up-to"), limit.up_to, "Ω")
+        most = quantity(("calibrator", "resistance-current", i, "max"), limit.max, "A")
+        if len(problems) == before:
+            limits.append((up_to, most))
     if timeout < 0.001 and not problems:
         problems.append(located.problem(("calibrator", "timeout"), "must be at least 1 ms"))
     for key, value in (("hazardous-dc", dc), ("hazardous-ac-rms", rms), ("hazardous-ac-peak", peak)):
@@ -212,7 +240,7 @@ def _resolve(located: yamlfile.LocatedData) -> Bench:
         raise ProcedureError(problems)
     return Bench(file=model, text=located.text, source=located.source, settle_s=settle,
                  timeout_s=timeout, hazardous_dc=dc, hazardous_ac_rms=rms, hazardous_ac_peak=peak,
-                 accuracy=tuple(accuracy))
+                 accuracy=tuple(accuracy), resistance_current=tuple(sorted(limits)))
 
 
 def _ppm(located, loc, text, problems) -> float:
