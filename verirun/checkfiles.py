@@ -15,10 +15,11 @@ from pathlib import Path
 from verirun import yamlfile
 from verirun.errors import ProcedureError
 
-#: The top-level keys that tell each kind of YAML file apart, tried in this order.
-_SIGNS = (("procedure", ("procedure", "ranges")), ("bench file", ("bench", "calibrator")),
-          ("driver profile", ("commands", "functions")), ("lab profile", ("lab",)),
-          ("virtual meter", ("meter", "ranges")))
+#: Top-level keys that tell each kind of YAML file apart (any one is enough), tried in order; a
+#: file missing some of its keys is still recognised, so its loader can say which are missing.
+_SIGNS = (("procedure", ("procedure", "decision")), ("bench file", ("bench", "calibrator", "safety")),
+          ("driver profile", ("commands", "functions", "output-state", "error-queue")),
+          ("lab profile", ("lab",)))
 
 
 @dataclass
@@ -46,8 +47,11 @@ def kind_of(path: Path) -> str:
     located = yamlfile.load_file(path)
     data = located.data if isinstance(located.data, dict) else {}
     for kind, keys in _SIGNS:
-        if all(key in data for key in keys):
+        if any(key in data for key in keys):
             return kind
+    if "ranges" in data or "meter" in data:
+        # A procedure lists its ranges; a virtual meter maps range ids to their models.
+        return "virtual meter" if isinstance(data.get("ranges"), dict) else "procedure"
     raise ProcedureError(f"{path}:1: not a file verirun reads: a procedure has 'procedure' and 'ranges',"
                          " a bench file 'bench' and 'calibrator', a driver profile 'commands' and 'functions',"
                          " a lab profile 'lab', a virtual meter 'meter' and 'ranges' (each with 'format');"
