@@ -58,7 +58,9 @@ class LocatedData:
 
 
 def format_loc(loc: Path_, located: LocatedData | None = None) -> str:
-    """``("ranges", 2, "points")`` -> ``"ranges[2].points"``, keeping only parts in the file.
+    """``("ranges", 2, "points")`` -> ``"ranges[3].points"``, keeping only parts in the file.
+
+    Items of a list are counted from 1 (``ranges[1]`` is the first range), as steps are.
 
     A key that is not plain letters, digits, '-', '_' or '.' is shown quoted, so that a key
     holding a newline or a colon cannot make the message misleading.
@@ -71,7 +73,7 @@ def format_loc(loc: Path_, located: LocatedData | None = None) -> str:
             continue
         path = candidate
         if isinstance(part, int):
-            text += f"[{part}]"
+            text += f"[{part + 1}]"  # counted from 1, as people count items of a list
         else:
             name = str(part) if _PLAIN_KEY.fullmatch(str(part)) else repr(str(part))
             text += f".{name}" if text else name

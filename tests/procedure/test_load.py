@@ -22,6 +22,7 @@ GOOD = textwrap.dedent("""\
         full-scale: 10 V
         arc: 90 deg
         accuracy: {percent-of-full-scale: 2}
+        resolution: 0.05 V
         points: [2 V, 10]
       - id: ohm
         function: resistance
@@ -29,10 +30,12 @@ GOOD = textwrap.dedent("""\
         centre: 10 ohm
         arc: 90
         accuracy: {degrees: 3}
+        resolution: 0.5 deg
         points: [10 ohm]
       - id: acv
         function: ac-voltage
         full-scale: 10 V
+        resolution: 0.05 V
         accuracy:
           - {percent-of-reading: 1, from: 40 Hz, to: 1 kHz}
           - {percent-of-reading: 2, from: 1 kHz, to: 20 kHz}
@@ -67,16 +70,25 @@ class TestLoadProcedure:
         assert proc.sha256 == hashlib.sha256(GOOD.encode()).hexdigest()
 
     @pytest.mark.parametrize("old, new, line, field, words", [
-        ("full-scale: 10 V\n", "full-scale: 10 A\n", 7, "ranges[0].full-scale", "expected volts"),
-        ("    points: [2 V, 10]", "    points: [2 V, 10, 12 V]", 10, "ranges[0].points[2]", "beyond the full-scale"),
-        ("centre: 10 ohm", "centre: -10 ohm", 14, "ranges[1].centre", "positive"),
-        ("accuracy: {degrees: 3}", "accuracy: {degrees: 3, percent-of-reading: 1}", 16, "ranges[1].accuracy", "cannot be combined"),
-        ("accuracy: {percent-of-full-scale: 2}", "accuracy: {percent-of-fullscale: 2}", 9, "ranges[0].accuracy.percent-of-fullscale", "unknown key"),
-        ("function: dc-voltage", "function: dc-volts", 6, "ranges[0].function", "dc-voltage"),
-        ("frequency: 10 kHz}]", "frequency: 30 kHz}]", 24, "ranges[2].points[1]", "no accuracy band"),
-        ("    arc: 90\n", "    arc: 400\n", 15, "ranges[1].arc", "full turn"),
-        ("  - id: ohm\n", "  - id: dcv-10\n", 11, "ranges[1].id", "duplicate range id"),
-        ("    scale: series-ohms\n", "", 13, "ranges[1].centre", "linear scale"),
+        ("full-scale: 10 V\n", "full-scale: 10 A\n", 7, "ranges[1].full-scale", "expected volts"),
+        ("    points: [2 V, 10]", "    points: [2 V, 10, 12 V]", 11, "ranges[1].points[3]", "beyond the full-scale"),
+        ("centre: 10 ohm", "centre: -10 ohm", 15, "ranges[2].centre", "positive"),
+        ("accuracy: {degrees: 3}", "accuracy: {degrees: 3, percent-of-reading: 1}", 17, "ranges[2].accuracy", "cannot be combined"),
+        ("accuracy: {percent-of-full-scale: 2}", "accuracy: {percent-of-fullscale: 2}", 9, "ranges[1].accuracy.percent-of-fullscale", "unknown key"),
+        ("function: dc-voltage", "function: dc-volts", 6, "ranges[1].function", "dc-voltage"),
+        ("frequency: 10 kHz}]", "frequency: 30 kHz}]", 27, "ranges[3].points[2]", "no accuracy band"),
+        ("    arc: 90\n", "    arc: 400\n", 16, "ranges[2].arc", "full turn"),
+        ("  - id: ohm\n", "  - id: dcv-10\n", 12, "ranges[2].id", "duplicate range id"),
+        ("    scale: series-ohms\n", "", 12, "ranges[2].scale", "required for a resistance range: write scale: series-ohms"),
+        ("    scale: series-ohms\n", "    scale: linear\n", 15, "ranges[2].centre", "linear scale has no centre"),
+        ("    full-scale: 10 V\n    arc: 90 deg\n", "    arc: 90 deg\n", 5, "ranges[1].full-scale",
+         "required for a linear scale: write full-scale:"),
+        ("    centre: 10 ohm\n", "", 12, "ranges[2].centre", "required for a series-ohms scale: write centre:"),
+        ("    resolution: 0.5 deg\n", "", 12, "ranges[2].resolution", "required, but missing: the step the meter is read to"),
+        ("accuracy: {degrees: 3}", "accuracy: {degrees: 3 V}", 17, "ranges[2].accuracy.degrees",
+         "in degrees of arc (3 or 3 deg)"),
+        ("accuracy: {percent-of-full-scale: 2}", "accuracy: {percent-of-full-scale: 2 deg}", 9,
+         "ranges[1].accuracy.percent-of-full-scale", "in percent (2 or 2 %)"),
     ])
     def test_each_problem_names_file_line_and_field(self, tmp_path, old, new, line, field, words):
         """A mistake is reported as file:line: field: message with the line where it is written."""
@@ -103,7 +115,7 @@ class TestLoadProcedure:
     def test_duplicate_key_is_refused(self, tmp_path):
         """A key given twice is an error (plain YAML would silently keep the last)."""
         path = write(tmp_path, GOOD.replace("arc: 90 deg\n", "arc: 90 deg\n    arc: 100 deg\n", 1))
-        with pytest.raises(ProcedureError, match=rf"{path}:9: ranges\[0\]\.arc: duplicate key"):
+        with pytest.raises(ProcedureError, match=rf"{path}:9: ranges\[1\]\.arc: duplicate key"):
             load_procedure(path)
 
     def test_newer_format_is_refused(self, tmp_path):
@@ -129,7 +141,7 @@ class TestCheckCommand:
         path = write(tmp_path, GOOD.replace("centre: 10 ohm", "centre: 10 V"))
         assert main(["check", str(path)]) == 1
         out = capsys.readouterr().out
-        assert f"{path}:14: ranges[1].centre: " in out
+        assert f"{path}:15: ranges[2].centre: " in out
         assert "Traceback" not in out
 
     def test_good_procedure_exits_0(self, tmp_path, capsys, demo_procedure_path):
@@ -142,3 +154,28 @@ class TestCheckCommand:
         path = write(tmp_path, "- just\n- a list\n")
         assert main(["check", str(path)]) == 1
         assert f"{path}:1:" in capsys.readouterr().out
+
+
+class TestMessagesNameWhatToWrite:
+    def test_accuracy_terms_may_carry_their_units(self, tmp_path):
+        """`degrees: 3 deg` and `percent-of-full-scale: 2 %` mean the same as the bare numbers
+        (the README: quantities carry units)."""
+        text = GOOD.replace("{degrees: 3}", "{degrees: 3 deg}").replace("{percent-of-full-scale: 2}",
+                                                                         "{percent-of-full-scale: 2 %}")
+        with_units = load_procedure(write(tmp_path, text))
+        bare = load_procedure(write(tmp_path, GOOD, "bare.yaml"))
+        assert [r.bands for r in with_units.ranges] == [r.bands for r in bare.ranges]
+
+    def test_voltage_range_without_scale_is_linear(self, tmp_path):
+        """A voltage or current range that does not say its scale is linear (as documented)."""
+        proc = load_procedure(write(tmp_path, GOOD))
+        assert proc.ranges[0].law == scales.Linear(high=10.0)
+
+    def test_structure_and_range_problems_in_one_pass(self, tmp_path):
+        """An unknown key in one range and a wrong unit in another are both reported at once."""
+        text = GOOD.replace("    arc: 90 deg\n", "    arcs: 90 deg\n", 1).replace("centre: 10 ohm", "centre: 10 V")
+        with pytest.raises(ProcedureError) as info:
+            load_procedure(write(tmp_path, text))
+        problems = info.value.problems
+        assert any("ranges[1].arcs: unknown key" in p for p in problems), problems
+        assert any("ranges[2].centre: '10 V' is in volts, expected ohms" in p for p in problems), problems

@@ -16,7 +16,7 @@ from verirun import yamlfile
 from verirun.errors import ProcedureError, UnitError
 from verirun.metrology import decision, scales, tolerance, uncertainty
 from verirun.procedure.model import FUNCTION_UNITS, Accuracy, ProcedureFile, Range
-from verirun.units import in_band, parse_value
+from verirun.units import in_band, parse_quantity, parse_value
 
 #: The procedure format version this verirun reads.
 FORMAT = 1
@@ -25,6 +25,13 @@ _ARC_FORMS = {"percent_of_full_scale": "percent-of-full-scale", "class_index": "
               "degrees": "degrees", "percent_of_length": "percent-of-length"}
 _VALUE_FORMS = {"percent_of_reading": "percent-of-reading", "percent_of_range": "percent-of-range",
                 "counts": "counts", "absolute": "absolute"}
+#: The unit each term may be written with, and how the message shows it.
+_ACCURACY_UNITS = {
+    "percent_of_full_scale": ("%", "in percent (2 or 2 %)"), "class_index": ("", "a class index (1.5)"),
+    "degrees": ("deg", "in degrees of arc (3 or 3 deg)"), "percent_of_length": ("%", "in percent (1 or 1 %)"),
+    "percent_of_reading": ("%", "in percent (0.5 or 0.5 %)"), "percent_of_range": ("%", "in percent (0.1 or 0.1 %)"),
+    "counts": ("", "a whole number of counts (2)"),
+}
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -134,8 +141,17 @@ def load_procedure_text(text: str, source: str = "<procedure>") -> Procedure:
 
 
 def _resolve(located: yamlfile.LocatedData) -> Procedure:
-    yamlfile.check_format(located, FORMAT, "procedure")
-    model = yamlfile.validate(ProcedureFile, located)
+    early: list[str] = []
+    try:
+        yamlfile.check_format(located, FORMAT, "procedure")
+    except ProcedureError as exc:
+        early.extend(exc.problems)
+    try:
+        model = yamlfile.validate(ProcedureFile, located)
+    except ProcedureError as exc:
+        raise ProcedureError(early + exc.problems + _range_problems(located)) from None
+    if early:
+        raise ProcedureError(early)
     problems: list[str] = []
     ranges = []
     seen: dict[str, int] = {}
@@ -153,6 +169,25 @@ def _resolve(located: yamlfile.LocatedData) -> Procedure:
         raise ProcedureError(problems)
     return Procedure(file=model, ranges=tuple(ranges), rule=rule, text=located.text,
                      source=located.source)
+
+
+def _range_problems(located: yamlfile.LocatedData) -> list[str]:
+    """The problems of each range that is valid in itself, in a file whose structure is not:
+    so that one pass over the file reports them all."""
+    from pydantic import ValidationError
+
+    data = located.data if isinstance(located.data, dict) else {}
+    items = data.get("ranges")
+    problems: list[str] = []
+    if not isinstance(items, list):
+        return problems
+    for index, item in enumerate(items):
+        try:
+            rng = Range.model_validate(item)
+        except ValidationError:
+            continue  # its problems are among the structure's
+        _RangeResolver(located, ("ranges", index), rng, problems).resolve()
+    return problems
 
 
 def _rule(located: yamlfile.LocatedData, model: ProcedureFile, problems: list[str]) -> decision.Rule | None:
@@ -192,8 +227,8 @@ class _RangeResolver:
         self.unit = FUNCTION_UNITS[rng.function]
         self.ok = True
 
-    def fail(self, field: tuple, message: str) -> None:
-        self.problems.append(self.located.problem(self.loc + field, message))
+    def fail(self, field: tuple, message: str, *, missing: bool = False) -> None:
+        self.problems.append(self.located.problem(self.loc + field, message, missing=missing))
         self.ok = False
 
     def quantity(self, field: tuple, text, unit: str, *, positive: bool = False,
@@ -255,22 +290,34 @@ class _RangeResolver:
 
     def _law(self, full_scale, centre) -> scales.ScaleLaw | None:
         rng = self.rng
-        if rng.scale == "linear":
+        scale = rng.scale
+        if scale is None:
+            if rng.function == "resistance":
+                self.fail(("scale",), missing=True, message="required for a resistance range: write scale: series-ohms (zero"
+                          " at the right end, infinity at the left: most analog ohmmeters), shunt-ohms"
+                          " (zero at the left end) or linear (a digital meter, with full-scale)")
+                return None
+            scale = "linear"  # voltage and current ranges are linear unless they say otherwise
+        if scale == "linear":
             if rng.centre is not None:
-                self.fail(("centre",), "a linear scale has no centre-scale value")
+                self.fail(("centre",), "a linear scale has no centre-scale value: remove centre, or write"
+                          " scale: series-ohms (or shunt-ohms) for an ohms scale")
             if full_scale is None:
                 if rng.full_scale is None:
-                    self.fail(("full-scale",), "required for a linear scale")
+                    self.fail(("full-scale",), missing=True, message="required for a linear scale: write full-scale: and the value"
+                              f" at the right end of the scale, e.g. full-scale: 10 {self.unit}")
                 return None
             return scales.Linear(high=full_scale)
         if rng.function != "resistance":
-            self.fail(("scale",), f"a {rng.scale} scale is for resistance, not {rng.function}")
+            self.fail(("scale",), f"a {scale} scale is for resistance, not {rng.function}: write"
+                      " scale: linear, or leave scale out")
             return None
         if centre is None:
             if rng.centre is None:
-                self.fail(("centre",), f"required for a {rng.scale} scale (the centre-scale value)")
+                self.fail(("centre",), missing=True, message=f"required for a {scale} scale: write centre: and the value marked"
+                          " at the middle of the scale, e.g. centre: 12 ohm")
             return None
-        return scales.make_law(rng.scale, centre=centre)
+        return scales.make_law(scale, centre=centre)
 
     def _unit_or_degrees(self, text) -> str:
         return "deg" if isinstance(text, str) and text.strip().endswith(("deg", "°", "degrees")) else self.unit
@@ -286,6 +333,13 @@ class _RangeResolver:
             return None, None
         key, text = ("resolution", rng.resolution) if rng.resolution is not None else ("minor-division", rng.minor_division)
         if text is None:
+            # Without it the budget leaves out how well the meter can be read, and the TUR means nothing.
+            example = "0.5 deg along the arc" if rng.function == "resistance" else f"0.05 {self.unit}"
+            self.problems.append(self.located.problem(
+                self.loc + ("resolution",), "required, but missing: the step the meter is read to, e.g."
+                f" resolution: {example}, or minor-division: with read-to: (a fraction of the division)",
+                missing=True))
+            self.ok = False
             return None, None
         unit = self._unit_or_degrees(text)
         value = self.quantity((key,), text, unit, positive=True, allow_zero=False)
@@ -356,11 +410,14 @@ class _RangeResolver:
             self.fail(field, f"{' and '.join(names)} cannot be combined; give one of"
                       f" {', '.join(_ARC_FORMS.values())}, or a sum of {', '.join(_VALUE_FORMS.values())}")
             return None
-        for name, value in given.items():
-            if name != "absolute" and (not math.isfinite(value) or value < 0):
-                self.fail(field + ((_ARC_FORMS.get(name) or _VALUE_FORMS[name]),),
-                          f"must be a finite number, zero or more, got {value!r}")
+        for name in list(given):
+            if name == "absolute":
+                continue
+            key = _ARC_FORMS.get(name) or _VALUE_FORMS[name]
+            value = self._accuracy_number(field + (key,), name, given[name])
+            if value is None:
                 return None
+            given[name] = value
         low = high = None
         if acc.from_ is not None or acc.to is not None:
             if not ac:
@@ -380,7 +437,7 @@ class _RangeResolver:
             return None
         if arc_forms:
             name = arc_forms[0]
-            value = float(given[name])
+            value = given[name]
             statement = {"percent_of_full_scale": lambda: tolerance.PercentOfFullScale(percent=value),
                          "class_index": lambda: tolerance.ClassIndex(index=value),
                          "degrees": lambda: tolerance.DegreesOfArc(degrees=value),
@@ -389,11 +446,23 @@ class _RangeResolver:
             absolute = self.quantity(field + ("absolute",), acc.absolute, self.unit, positive=True)
             if acc.absolute is not None and absolute is None:
                 return None
-            statement = tolerance.ValueStatement(reading=float(acc.percent_of_reading or 0),
-                                                 range=float(acc.percent_of_range or 0),
-                                                 counts=float(acc.counts or 0),
+            statement = tolerance.ValueStatement(reading=given.get("percent_of_reading", 0.0),
+                                                 range=given.get("percent_of_range", 0.0),
+                                                 counts=given.get("counts", 0.0),
                                                  absolute=absolute or 0.0)
-        return Band(statement=statement, low_hz=low, high_hz=high, text=describe_accuracy(acc))
+        return Band(statement=statement, low_hz=low, high_hz=high, text=describe_accuracy(acc, given))
+
+    def _accuracy_number(self, field: tuple, name: str, text) -> float | None:
+        """One term of an accuracy statement: a number, or with its unit (``2 %``, ``3 deg``)."""
+        unit, example = _ACCURACY_UNITS[name]
+        try:
+            value, dimension = parse_quantity(text, None)
+        except UnitError:
+            dimension, value = "?", math.nan
+        if dimension not in ("", unit) or not math.isfinite(value) or value < 0:
+            self.fail(field, f"must be a number, zero or more, {example}; got {text!r}")
+            return None
+        return value
 
     def _points(self, ac: bool, range_freq, full_scale, bands: list[Band]) -> list[tuple[float, float | None]]:
         points = []
@@ -416,7 +485,8 @@ class _RangeResolver:
                 self.fail(field, f"a resistance cannot be negative, got {at!r}")
                 continue
             if full_scale is not None and abs(nominal) > full_scale * (1 + 1e-12):
-                self.fail(field, f"{at!r} is beyond the full-scale value of the range")
+                self.fail(field, f"{at!r} is beyond the full-scale value of the range"
+                          f" (full-scale: {self.rng.full_scale}); a point is at most the full-scale value")
                 continue
             if ac and nominal < 0:
                 self.fail(field, f"an AC value is an rms magnitude and cannot be negative, got {at!r}")
@@ -444,9 +514,12 @@ _WORDS = (("percent_of_full_scale", "{:g} % of full scale"), ("class_index", "cl
           ("counts", "{:g} counts"), ("absolute", "{}"))
 
 
-def describe_accuracy(acc: Accuracy) -> str:
-    """The accuracy statement in words, as printed on the certificate."""
-    parts = [words.format(getattr(acc, name)) for name, words in _WORDS if getattr(acc, name) is not None]
+def describe_accuracy(acc: Accuracy, values: dict | None = None) -> str:
+    """The accuracy statement in words, as printed on the certificate; ``values`` are its terms
+    as numbers (when written with a unit, ``"2 %"``), by field name."""
+    values = values or {}
+    parts = [words.format(values.get(name, getattr(acc, name))) for name, words in _WORDS
+             if getattr(acc, name) is not None]
     text = "± (" + " + ".join(parts) + ")" if len(parts) > 1 else "± " + parts[0] if parts else ""
     if acc.from_ is not None:
         text += f", {acc.from_} to {acc.to}"

@@ -54,13 +54,14 @@ class Accuracy(Strict):
     """One accuracy statement. Give exactly one of the arc or full-scale forms, or any sum of the
     value forms (percent of reading, percent of range, counts, absolute)."""
 
-    percent_of_full_scale: Number | None = None
-    class_index: Number | None = Field(default=None, alias="class")
-    degrees: Number | None = None
-    percent_of_length: Number | None = None
-    percent_of_reading: Number | None = None
-    percent_of_range: Number | None = None
-    counts: Number | None = None
+    # Written as a plain number or with its unit ("2 %", "3 deg"); parsed by the loader.
+    percent_of_full_scale: QuantityText | None = None
+    class_index: QuantityText | None = Field(default=None, alias="class")
+    degrees: QuantityText | None = None
+    percent_of_length: QuantityText | None = None
+    percent_of_reading: QuantityText | None = None
+    percent_of_range: QuantityText | None = None
+    counts: QuantityText | None = None
     absolute: QuantityText | None = None
     #: For a band of an AC range: lowest and highest frequency it applies to.
     from_: QuantityText | None = Field(default=None, alias="from")
@@ -92,7 +93,8 @@ class Range(Strict):
 
     id: StrictStr
     function: Function
-    scale: ScaleName = "linear"
+    #: Linear when not given, except on a resistance range, which must say its scale.
+    scale: ScaleName | None = None
     full_scale: QuantityText | None = None
     centre: QuantityText | None = None
     battery: QuantityText | None = None
