@@ -77,3 +77,14 @@ class TestWindowCommand:
         assert main(["window", *args]) == 1
         err = capsys.readouterr().err
         assert words in err and "Traceback" not in err
+
+
+class TestWindowMessages:
+    @pytest.mark.parametrize("args, words", [
+        (["--percent-fs", "2", "--at", "5"], "--full-scale: required for a linear scale: give the value at the right end"),
+        (["--scale", "series-ohms", "--degrees", "3", "--at", "10"], "--centre: required for a series-ohms scale: give"),
+    ])
+    def test_missing_option_names_itself_and_an_example(self, capsys, args, words):
+        """A missing --full-scale or --centre is named with what to give (exit 1, no traceback)."""
+        assert main(["window", *args]) == 1
+        assert words in capsys.readouterr().err

@@ -263,7 +263,8 @@ def _cmd_window(args) -> int:
     at, unit = quantity("at", args.at, "Ω" if ohms else None)
     if ohms:
         if args.centre is None:
-            raise UnitError(f"--centre: required for a {args.scale} scale")
+            raise UnitError(f"--centre: required for a {args.scale} scale: give the value marked at the"
+                            " middle of the scale, e.g. --centre 12ohm")
         centre, _ = quantity("centre", args.centre, "Ω")
         if centre <= 0:
             raise UnitError("--centre: must be more than zero")
@@ -271,7 +272,8 @@ def _cmd_window(args) -> int:
         full_scale = None
     else:
         if args.full_scale is None:
-            raise UnitError("--full-scale: required for a linear scale")
+            raise UnitError("--full-scale: required for a linear scale: give the value at the right end"
+                            " of the scale, e.g. --full-scale 10V")
         full_scale, fs_unit = quantity("full-scale", args.full_scale, unit or None)
         unit = unit or fs_unit
         if full_scale <= 0:
