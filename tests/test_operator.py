@@ -157,8 +157,8 @@ class TestHazardousVoltage:
         assert any(d.get("hazardous") and "confirmed by the operator" in d["text"] for d in docs)
 
     def test_refusing_the_confirmation_stops_with_output_off(self, tmp_path, demo_bench_path, demo_lab_path):
-        """Anything but 'yes' stops the run before the hazardous output goes on."""
-        go, raw, out, typist = make_run(tmp_path, HAZARD, ["", "20", "y"], demo_bench_path, demo_lab_path)
+        """Anything but yes, y or skip stops the run before the hazardous output goes on."""
+        go, raw, out, typist = make_run(tmp_path, HAZARD, ["", "20", "n"], demo_bench_path, demo_lab_path)
         with pytest.raises(RunAborted, match="not confirmed"):
             go()
         assert raw.query("OUTP?") in ("0", "OFF")

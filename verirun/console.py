@@ -8,8 +8,11 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
+from rich.markup import escape
+
 from verirun.errors import RunAborted, UnitError
-from verirun.readings import COMMANDS, Entry, parse_entry
+from verirun.pointer import pointer, shows_pointer
+from verirun.readings import COMMANDS, GROSS_TOLERANCES, Entry, parse_entry, reading_unit, tolerances_off
 from verirun.units import format_quantity
 
 if TYPE_CHECKING:
@@ -37,11 +40,13 @@ class Console:
 
     interactive = True
 
-    def __init__(self, console=None, *, input_func=None):
+    def __init__(self, console=None, *, input_func=None, show_window: bool = False):
         from rich.console import Console as RichConsole
 
         self.rich = console or RichConsole(highlight=False)
         self._input = input_func or (lambda prompt: self.rich.input(prompt))
+        #: Show the allowed window at each step (off by default: knowing it can bias a reading).
+        self.show_window = show_window
 
     # --- messages -------------------------------------------------------------------------
     def say(self, text: str) -> None:
@@ -82,24 +87,51 @@ class Console:
                              " in standby and the run can be resumed") from None
 
     def confirm(self, question: str, *, word: str = "yes") -> bool:
-        """Ask for an explicit confirmation: only ``word`` typed in full counts as yes."""
+        """Ask for an explicit confirmation: ``word`` (or its first letter) counts as yes."""
         answer = self.ask(f"{question} Type [bold]{word}[/] to go on, anything else to stop: ")
-        return answer.strip().lower() == word
+        return answer.strip().lower() in (word, word[0])
+
+    def confirm_hazard(self, question: str) -> str:
+        """Ask before a hazardous switch-on: ``"yes"``, ``"skip"`` (skip the point) or ``"stop"``."""
+        answer = self.ask(f"{question} Type [bold]yes[/] (or y) to switch on, [bold]skip[/] to skip this"
+                          " point, anything else to stop the run: ").strip().lower()
+        return "yes" if answer in ("yes", "y") else "skip" if answer == "skip" else "stop"
 
     def connect(self, point: "TestPoint") -> None:
-        """Show the connection for a new range and wait for the operator (output is in standby)."""
+        """Show the connection for a new range and wait for the operator (output is in standby).
+
+        Only Enter goes on (or ``abort``): a reading typed here is not taken for one, and is
+        refused so that it is not lost without a word.
+        """
         rng = point.range
         self.heading(f"Range {point.range_text()}")
         self.say("Output is in [bold]standby[/].")
         if rng.connect:
             self.say(f"Connect: {rng.connect}")
-        self.ask("Press Enter when the leads and the range selector are set: ")
+        while True:
+            answer = self.ask("Press Enter when the leads and the range selector are set (or abort): ").strip()
+            if not answer:
+                return
+            if answer.lower() == "abort":
+                raise RunAborted("aborted by the operator before the range was connected; the output is in"
+                                 " standby and the run can be resumed")
+            self.say(f"  [yellow]not taken: the output is in standby and nothing is applied yet, so"
+                     f" {escape(repr(answer))} is no reading[/]; press Enter once the leads are set, then read"
+                     " the step")
 
     def step(self, point: "TestPoint") -> None:
-        """Show the step about to be read."""
+        """Show the step about to be read: the stimulus, the unit and scale to read, and on an
+        ohms or arc-specified scale where the pointer should stand."""
+        unit, _ = reading_unit(point.range)
         self.say(f"\n[bold]Step {point.index + 1} of {point.total}[/]  range {point.range.id}"
-                 f"  applied [bold cyan]{point.stimulus_text()}[/]"
-                 + (f"  read on: {point.range.read_on}" if point.range.read_on else ""))
+                 f"  applied [bold cyan]{point.stimulus_text()}[/]")
+        self.say(f"  read in {unit}" + (f" on: {point.range.read_on}" if point.range.read_on else ""))
+        if shows_pointer(point):
+            where = pointer(point)
+            self.say(f"  pointer expected at {where.text()}"
+                     + (f"; window {where.window_text()}" if self.show_window else ""))
+        if self.show_window:
+            self.say(f"  window {_limits(point)}")
 
     def result(self, point: "TestPoint", entry: Entry, result: "Result") -> None:
         """Show the verdict of a reading."""
@@ -109,13 +141,32 @@ class Console:
                  f"  {pct}  [bold {colour}]{result.verdict.upper()}[/]")
 
     def take(self, point: "TestPoint") -> Entry:
-        """Ask for the reading until it parses; commands are returned as entries."""
+        """Ask for the reading until it parses; commands are returned as entries.
+
+        A reading more than :data:`GROSS_TOLERANCES` tolerances from the nominal is asked about
+        before it is taken: ``yes`` (or the same reading typed again) keeps it; anything else is
+        read as a new entry.
+        """
+        unit, _ = reading_unit(point.range)
+        prompt = f"  reading in {unit} (or {', '.join(COMMANDS)}): "
+        gross: Entry | None = None  # a far-off reading waiting to be confirmed
         while True:
-            typed = self.ask(f"  reading in {point.unit} (or {', '.join(COMMANDS)}): ")
+            typed = self.ask(prompt)
+            if gross is not None and typed.strip().lower() in ("yes", "y"):
+                return gross
             try:
-                return parse_entry(typed, point)
+                entry = parse_entry(typed, point)
             except UnitError as exc:
                 self.say(f"  [yellow]{exc}[/]; type the reading again")
+                gross, prompt = None, f"  reading in {unit} (or {', '.join(COMMANDS)}): "
+                continue
+            off = tolerances_off(point, entry.value) if entry.kind == "reading" else None
+            if off is None or off <= GROSS_TOLERANCES or (gross is not None and entry.value == gross.value):
+                return entry
+            gross = entry
+            prompt = (f"  {escape(repr(typed.strip()))} is {off:.1f} tolerances from the nominal"
+                      f" {format_quantity(point.nominal, point.unit)}: type [bold]yes[/] to keep it,"
+                      " or type the reading again: ")
 
 
 class QuietConsole:
@@ -173,7 +224,12 @@ class QuietConsole:
     def confirm(self, question: str, *, word: str = "yes") -> bool:
         answer = self._answers.pop(0) if self._answers else False
         self._log(f"{question} -> {answer}")
-        return answer
+        return answer is True or answer == "yes"
+
+    def confirm_hazard(self, question: str) -> str:
+        answer = self._answers.pop(0) if self._answers else False
+        self._log(f"{question} -> {answer}")
+        return "yes" if answer is True or answer == "yes" else "skip" if answer == "skip" else "stop"
 
     def connect(self, point: "TestPoint") -> None:
         if self._quiet:

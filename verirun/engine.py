@@ -104,6 +104,8 @@ class Engine:
         self.limits = HazardLimits(dc_volts=bench.hazardous_dc, ac_rms_volts=bench.hazardous_ac_rms,
                                    ac_peak_volts=bench.hazardous_ac_peak)
         self.counts = {"pass": 0, "fail": 0, "skipped": 0}
+        #: The points given an entry in this session, with it, newest last (for undo).
+        self._taken: list[tuple[TestPoint, Entry]] = []
         self.results = results if results is not None else {}
 
     def run(self, context: RunContext, *, uid: str | None = None, resume: dict | None = None,
@@ -229,7 +231,10 @@ class Engine:
             while True:
                 # Asked before every switch-on at a hazardous level, a repeat included: the
                 # output was in standby and hands may have been at the terminals.
-                self._check_hazard(point)
+                if self._check_hazard(point) == "skip":
+                    entry = Entry(kind="skip", typed="skip", text="hazardous output declined by the operator")
+                    self._journal_entry(point, entry)
+                    break
                 with output_guard(self.calibrator):
                     self.calibrator.source(point.function, point.nominal, point.frequency)
                     self.calibrator.output_on()
@@ -243,11 +248,18 @@ class Engine:
                 if entry.kind == "repeat":
                     self.console.say("  applying the stimulus again")
                     continue
+                if entry.kind == "undo":
+                    if self._undo(point):
+                        self.calibrator.standby()
+                        self.console.connect(point)  # back to this step's range
+                    continue
                 break
         except BenchError as exc:
-            raise exc.at_step(self._step_name(point)) from None
+            # A fault while an earlier step was measured again (undo) is named by that step.
+            raise (exc if exc.step else exc.at_step(self._step_name(point))) from None
         if entry.kind == "abort":
             raise RunAborted(f"aborted by the operator at {self._step_name(point)}; the run can be resumed")
+        self._taken.append((point, entry))
         if entry.kind == "skip":
             self.counts["skipped"] += 1
             self.console.say(f"  skipped: {entry.text}")
@@ -256,6 +268,24 @@ class Engine:
         self.results[point.key] = result
         self.counts[result.verdict] = self.counts.get(result.verdict, 0) + 1
         self.console.result(point, entry, result)
+
+    def _undo(self, point: TestPoint) -> bool:
+        """Withdraw the last entry taken in this session (journaled) and measure its step again;
+        return whether the leads must go back to ``point``'s range afterwards."""
+        if not self._taken:
+            self.console.say("  nothing to undo: no reading has been taken yet in this session")
+            return False
+        last, entry = self._taken.pop()
+        self.journal.append({"kind": "withdrawal", "time": iso(self.clock.now()), "point": last.key,
+                             "index": last.index, "typed": entry.typed,
+                             "reason": "withdrawn by the operator (undo)"})
+        verdict = self.results.pop(last.key).verdict if last.key in self.results else "skipped"
+        self.counts[verdict] -= 1
+        self.console.say(f"  the entry of {self._step_name(last)} is withdrawn; measure it again")
+        other_range = last.range is not point.range
+        self.calibrator.standby()
+        self._point(last, connect=other_range)
+        return other_range
 
     def _journal_entry(self, point: TestPoint, entry: Entry) -> None:
         if entry.kind == "reading":
@@ -283,14 +313,19 @@ class Engine:
                 "applied": {"value": point.nominal, "frequency": point.frequency},
                 "typed": entry.typed, "reading": entry.value}
 
-    def _check_hazard(self, point: TestPoint) -> None:
+    def _check_hazard(self, point: TestPoint) -> str | None:
+        """Ask (or check the bench's permission) before a hazardous switch-on; ``"skip"`` when
+        the operator chose to skip the point instead."""
         if not is_hazardous(point.function, point.nominal, self.limits):
-            return
+            return None
         text = (f"{self._step_name(point)} applies {point.stimulus_text()}, at or above the"
                 f" hazardous-live threshold of this bench. Keep clear of the terminals.")
         if self.readings.interactive and self.console.interactive:
             self.console.danger(text)
-            if not self.console.confirm("Switch the output on at a hazardous voltage?"):
+            answer = self.console.confirm_hazard("Switch the output on at a hazardous voltage?")
+            if answer == "skip":
+                return "skip"
+            if answer != "yes":
                 raise RunAborted(f"hazardous output not confirmed at {self._step_name(point)};"
                                  " the run can be resumed")
             how = "confirmed by the operator"

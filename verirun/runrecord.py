@@ -91,6 +91,12 @@ def build_record(documents: list[dict], source: str = "journal", *, known: Known
                                       f" {corrections[doc['point']]['previous_typed']!r} to {doc['typed']!r}"
                                       f" by {doc['operator']}: {doc['reason']}"})
             entries[doc["point"]] = doc  # a later entry for the same point supersedes
+        elif kind == "withdrawal":
+            withdrawn = entries.pop(doc["point"], None)
+            notes.append({"time": doc["time"], "point": doc["point"],
+                          "text": f"entry {doc.get('typed')!r} of step {doc.get('index', 0) + 1} withdrawn by the"
+                                  " operator before the run went on, and measured again"
+                                  if withdrawn is not None else "a withdrawal of an entry the journal does not hold"})
         elif kind == "note":
             notes.append({"time": doc["time"], "point": doc.get("point"), "text": doc["text"]})
         elif kind == "resume":

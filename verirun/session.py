@@ -188,7 +188,7 @@ def resume(*, run_dir: Path, procedure_path: Path | None, bench_path: Path | Non
     bench = _same_file(bench_path, start["bench"], "bench file", load_bench, load_bench_text)
     if serial is not None and serial != start["item"].get("serial"):
         raise RecordError(f"{run_dir}: this run is for item {start['item'].get('serial')!r}, not {serial!r}")
-    done = frozenset(d["point"] for d in docs if d["kind"] in ("observation", "skip"))
+    done = confirmed_points(docs)
     points = plan(procedure, bench)
     pending = [p for p in points if p.key not in done]
     if not pending:
@@ -208,6 +208,17 @@ def resume(*, run_dir: Path, procedure_path: Path | None, bench_path: Path | Non
                   console=console, reports_dir=reports_dir, simulate=simulate, clock=clock,
                   uid=start["uid"], calibrator=calibrator, profile=profile, points=points,
                   resume=start, done=done)
+
+
+def confirmed_points(docs: list[dict]) -> frozenset[str]:
+    """Keys of the points with a confirmed entry: observed or skipped, and not withdrawn since."""
+    done: set[str] = set()
+    for doc in docs:
+        if doc["kind"] in ("observation", "skip"):
+            done.add(doc["point"])
+        elif doc["kind"] == "withdrawal":
+            done.discard(doc["point"])
+    return frozenset(done)
 
 
 def _same_file(path: Path | None, stored: dict, kind: str, load_path, load_text):
