@@ -118,6 +118,8 @@ def _parser() -> argparse.ArgumentParser:
 
 
 def _reading_options(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--show-window", action="store_true",
+                        help="show each point's allowed window at the prompt (off: knowing it can bias a reading)")
     source = parser.add_mutually_exclusive_group()
     source.add_argument("--readings", type=Path, help="take readings from a CSV file (range, at, reading)")
     source.add_argument("--virtual-meter", type=Path, help="take readings from a virtual meter file")
@@ -132,7 +134,7 @@ def _reading_source(args):
         return ScriptedReadings(args.readings)
     if args.virtual_meter:
         return VirtualMeter(args.virtual_meter)
-    return Console()
+    return Console(show_window=args.show_window)
 
 
 def _consoles(readings):

@@ -1,0 +1,356 @@
+"""What the operator types means what the prompt says, and the prompt shows what to read.
+
+In-process tests type at the console through a stand-in input function; the last class runs
+`verirun run` in a pseudo-terminal, as at a bench.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import io
+import os
+import select
+import subprocess
+import sys
+import textwrap
+import time
+from pathlib import Path
+
+import pyvisa
+import pytest
+from rich.console import Console as RichConsole
+
+from verirun.bench.calibrator import Calibrator
+from verirun.bench.config import load_bench
+from verirun.bench.sim import SIM_RESOURCE, sim_library
+from verirun.clock import VirtualClock
+from verirun.console import Console
+from verirun.engine import RunContext
+from verirun.errors import RunAborted
+from verirun.lab import load_lab
+from verirun.procedure.load import load_procedure_text
+from verirun.record import read_journal
+from verirun.session import confirmed_points, execute
+
+DATA = Path(__file__).resolve().parent / "data"
+
+METER = textwrap.dedent("""\
+    format: 1
+    procedure: {id: CI-1, title: Console input test, revision: A}
+    meter: {kind: analog multimeter}
+    ranges:
+      - id: dcv-10
+        function: dc-voltage
+        full-scale: 10 V
+        arc: 100 deg
+        accuracy: {percent-of-full-scale: 2}
+        resolution: 0.05 V
+        read-on: black DC scale, 0-10
+        points: [5 V, 10 V]
+      - id: dca-50m
+        function: dc-current
+        full-scale: 50 mA
+        accuracy: {percent-of-full-scale: 2.5}
+        resolution: 0.25 mA
+        points: [10 mA]
+      - id: ohm-x100
+        function: resistance
+        scale: series-ohms
+        centre: 1.2 kohm
+        battery: 1.5 V
+        arc: 100 deg
+        accuracy: {degrees: 2.5}
+        resolution: 0.5 deg
+        read-on: green ohms scale, multiply by 100
+        points: [1.2 kohm]
+      - id: dcv-100
+        function: dc-voltage
+        full-scale: 100 V
+        accuracy: {percent-of-full-scale: 2}
+        resolution: 0.5 V
+        points: [80 V]
+    """)
+
+
+class Typist:
+    """Types the given lines at successive prompts, recording every prompt."""
+
+    def __init__(self, lines):
+        self.lines = list(lines)
+        self.prompts = []
+
+    def __call__(self, prompt):
+        self.prompts.append(prompt)
+        if not self.lines:
+            raise AssertionError(f"unexpected prompt {prompt!r}")
+        return self.lines.pop(0)
+
+
+def run_typing(tmp_path, lab_path, lines, *, show_window=False):
+    """Run the console test procedure with ``lines`` typed; return what the run left."""
+    rm = pyvisa.ResourceManager(sim_library(tmp_path / "sim"))
+    raw = rm.open_resource(SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=300)
+    out = io.StringIO()
+    typist = Typist(lines)
+    console = Console(RichConsole(file=out, width=200, highlight=False), input_func=typist, show_window=show_window)
+    context = RunContext(lab=load_lab(lab_path).lab.model_dump(mode="json"), customer={"name": "C", "address": []},
+                         item={"serial": "S"}, operator="op", simulated=True)
+    error, finished = None, None
+    try:
+        finished = execute(procedure=load_procedure_text(METER, "ci.yaml"), bench=load_bench(DATA / "bench-test.yaml"),
+                           context=context, readings=console, console=console, runs_dir=tmp_path / "runs",
+                           reports_dir=tmp_path / "reports", simulate=True,
+                           clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)),
+                           calibrator=Calibrator(raw, "scpi-generic"))
+    except RunAborted as exc:
+        error = exc
+    run_dir = finished.run_dir if finished else error.run_dir
+    docs = read_journal(run_dir / "journal.jsonl").documents
+    return docs, out.getvalue(), typist, raw, finished
+
+
+#: Typed at the prompts for a plain run, by step: connect, 5 V, 10 V, connect, 10 mA, connect,
+#: 1.2 kΩ, connect, hazard confirmation, 80 V.
+PLAIN = ["", "5", "10", "", "10", "", "1.2k", "", "yes", "80"]
+
+
+def readings(docs):
+    return [(d["index"] + 1, d["typed"], d["reading"]) for d in docs if d["kind"] == "observation"]
+
+
+class TestBareNumbersAndPrefixes:
+    def test_bare_number_is_in_the_unit_the_prompt_shows(self, tmp_path, demo_lab_path):
+        """On a 50 mA range the prompt says mA and a bare 10 is 10 mA (0.01 A), not 10 A; on an
+        ohms range of centre 1.2 kΩ the prompt says kΩ and `1.2k` is 1200 Ω (SI prefixes,
+        SI Brochure 9th ed. 3)."""
+        docs, out, typist, raw, _ = run_typing(tmp_path, demo_lab_path, PLAIN)
+        assert any("reading in mA" in p for p in typist.prompts)
+        assert any("reading in kΩ" in p for p in typist.prompts)
+        got = readings(docs)
+        assert got[2] == (3, "10", pytest.approx(0.010))
+        assert got[3] == (4, "1.2k", pytest.approx(1200.0))
+
+    def test_over_range_message_gives_the_bounds_accepted(self, tmp_path, demo_lab_path):
+        """The refusal names the bounds the check applies: 5 % past each end of 0-10 V (-0.5 V to
+        10.5 V), and 10.5 itself is accepted (common practice, no source: a pointer just past
+        the end can still be read)."""
+        docs, out, *_ = run_typing(tmp_path, demo_lab_path, ["", "10.6", "5", "10.5", *PLAIN[3:]])
+        assert "a reading from -0.5 V to 10.5 V is accepted" in out
+        assert readings(docs)[1][1] == "10.5"
+
+
+class TestLeadsPrompt:
+    def test_value_typed_at_the_leads_prompt_is_refused_not_swallowed(self, tmp_path, demo_lab_path):
+        """A reading typed while the output is in standby is refused with the reason and the
+        prompt asked again; it is not journaled."""
+        docs, out, typist, *_ = run_typing(tmp_path, demo_lab_path, ["4.9", "", *PLAIN[1:]])
+        assert "not taken: the output is in standby" in out
+        assert [t for _, t, _ in readings(docs)][0] == "5"
+
+    def test_abort_at_the_leads_prompt(self, tmp_path, demo_lab_path):
+        """`abort` at the leads prompt stops the run, resumable, with the output off."""
+        docs, out, typist, raw, _ = run_typing(tmp_path, demo_lab_path, ["abort"])
+        assert docs[-1]["kind"] == "stop" and docs[-1]["status"] == "aborted"
+        assert raw.query("OUTP?") in ("0", "OFF")
+
+
+class TestGrossReading:
+    def test_far_off_reading_is_asked_about_and_kept_on_yes(self, tmp_path, demo_lab_path):
+        """8 V at 5 V on a ± 0.2 V window (2 % of 10 V) is 15 tolerances off: it is asked about
+        (threshold three tolerances, common practice, no source), and kept on yes."""
+        docs, out, typist, *_ = run_typing(tmp_path, demo_lab_path, ["", "8", "yes", *PLAIN[2:]])
+        assert any("is 15.0 tolerances from the nominal 5 V" in p for p in typist.prompts)
+        assert readings(docs)[0][1] == "8"
+
+    def test_far_off_reading_replaced_by_the_next_typed(self, tmp_path, demo_lab_path):
+        """Typing another value instead of yes takes that one; the far-off one is not journaled."""
+        docs, *_ = run_typing(tmp_path, demo_lab_path, ["", "8", "5.1", *PLAIN[2:]])
+        assert readings(docs)[0][1] == "5.1" and len(readings(docs)) == 5
+
+    def test_same_far_off_reading_twice_is_kept(self, tmp_path, demo_lab_path):
+        """Typing the same far-off reading again confirms it."""
+        docs, *_ = run_typing(tmp_path, demo_lab_path, ["", "8", "8", *PLAIN[2:]])
+        assert readings(docs)[0][1] == "8"
+
+    def test_three_tolerances_exactly_is_not_asked(self, tmp_path, demo_lab_path):
+        """5.6 V is exactly three tolerances (3 × 0.2 V) from 5 V: on the limit, not asked."""
+        docs, out, typist, *_ = run_typing(tmp_path, demo_lab_path, ["", "5.6", *PLAIN[2:]])
+        assert not any("tolerances from" in p for p in typist.prompts)
+
+
+class TestUndo:
+    def test_undo_withdraws_the_last_reading_and_measures_it_again(self, tmp_path, demo_lab_path):
+        """`undo` at step 2 journals a withdrawal of step 1's reading, measures step 1 again, then
+        step 2; the record holds the new reading and says what was withdrawn."""
+        docs, out, typist, raw, finished = run_typing(tmp_path, demo_lab_path,
+                                                      ["", "5.5", "undo", "5.05", "10", *PLAIN[3:]])
+        kinds = [d["kind"] for d in docs if d["kind"] in ("observation", "withdrawal")]
+        assert kinds[:4] == ["observation", "withdrawal", "observation", "observation"]
+        withdrawal = next(d for d in docs if d["kind"] == "withdrawal")
+        assert withdrawal["typed"] == "5.5" and withdrawal["index"] == 0
+        assert finished.record["points"][0]["typed"] == "5.05"
+        assert any("'5.5' of step 1 withdrawn" in n["text"] for n in finished.record["notes"])
+
+    def test_undo_on_another_range_asks_for_the_leads_again(self, tmp_path, demo_lab_path):
+        """Undo at the first step of a new range goes back to the earlier range and asks for its
+        leads, then for this range's again."""
+        docs, out, typist, *_ = run_typing(tmp_path, demo_lab_path,
+                                           ["", "5", "10", "", "undo", "", "9.9", "", "10", *PLAIN[5:]])
+        # The journal keeps the withdrawn 10 V; step 2's 9.9 V supersedes it, then step 3's 10 mA.
+        assert [(n, t) for n, t, _ in readings(docs)][:4] == [(1, "5"), (2, "10"), (2, "9.9"), (3, "10")]
+        assert sum("Press Enter" in p for p in typist.prompts) == 6
+
+    def test_nothing_to_undo(self, tmp_path, demo_lab_path):
+        """Undo before any reading says there is nothing to undo and asks again."""
+        docs, out, *_ = run_typing(tmp_path, demo_lab_path, ["", "undo", *PLAIN[1:]])
+        assert "nothing to undo" in out and not any(d["kind"] == "withdrawal" for d in docs)
+
+    def test_a_withdrawn_point_is_pending_on_resume(self):
+        """A point whose entry was withdrawn is measured again when the run is resumed."""
+        docs = [{"kind": "observation", "point": "a"}, {"kind": "observation", "point": "b"},
+                {"kind": "withdrawal", "point": "b"}]
+        assert confirmed_points(docs) == frozenset({"a"})
+
+
+class TestHazardPrompt:
+    def test_y_confirms(self, tmp_path, demo_lab_path):
+        """`y` confirms the hazardous switch-on, journaled as confirmed."""
+        lines = PLAIN[:8] + ["y", "80"]
+        docs, *_ = run_typing(tmp_path, demo_lab_path, lines)
+        assert any(d.get("hazardous") and "confirmed by the operator" in d["text"] for d in docs)
+
+    def test_skip_skips_the_point_and_the_run_goes_on(self, tmp_path, demo_lab_path):
+        """`skip` skips the hazardous point (journaled with the reason) without sourcing it."""
+        docs, out, typist, raw, finished = run_typing(tmp_path, demo_lab_path, PLAIN[:8] + ["skip"])
+        skips = [d for d in docs if d["kind"] == "skip"]
+        assert len(skips) == 1 and "hazardous output declined" in skips[0]["reason"]
+        assert finished.record["run"]["status"] == "complete"
+        assert raw.query("VOLT?") != "80.0" and raw.query("OUTP?") in ("0", "OFF")
+
+
+class TestWhatToRead:
+    def test_unit_and_scale_at_every_step(self, tmp_path, demo_lab_path):
+        """Every step says the unit to read in and, where the range names it, the scale."""
+        docs, out, *_ = run_typing(tmp_path, demo_lab_path, PLAIN)
+        assert "read in V on: black DC scale, 0-10" in out and "read in mA" in out
+
+    def test_ohms_point_shows_the_pointer_position(self, tmp_path, demo_lab_path):
+        """At the centre value of a series-ohms scale the pointer stands at mid-scale: 50° of a
+        100° arc (f = Rc / (Rc + Rx) = 1/2), on the 1.2 kΩ mark; the window is not shown."""
+        docs, out, *_ = run_typing(tmp_path, demo_lab_path, PLAIN)
+        assert "pointer expected at 50.0° from the left end, on the 1.2 kΩ mark" in out
+        assert "window 47.5° to 52.5°" not in out
+
+    def test_window_shown_with_the_option(self, tmp_path, demo_lab_path):
+        """With show_window, the allowed window along the arc (± 2.5°) and in the value are shown."""
+        docs, out, *_ = run_typing(tmp_path, demo_lab_path, PLAIN, show_window=True)
+        assert "window 47.5° to 52.5° from the left end" in out
+        assert "window 4.8 V to 5.2 V" in out
+
+
+class Terminal:
+    """A process on a pseudo-terminal: read its output until a text shows, type a line."""
+
+    def __init__(self, args, cwd):
+        import pty
+
+        self.master, slave = pty.openpty()
+        env = {**os.environ, "COLUMNS": "100", "LINES": "40", "TERM": "xterm"}
+        self.proc = subprocess.Popen(args, stdin=slave, stdout=slave, stderr=slave, cwd=cwd, env=env,
+                                     close_fds=True)
+        os.close(slave)
+        self.seen = ""
+
+    def expect(self, text, timeout=30.0):
+        end = time.monotonic() + timeout
+        while text not in self.seen:
+            left = end - time.monotonic()
+            if left <= 0:
+                raise AssertionError(f"{text!r} did not show; the terminal showed:\n{self.seen[-2000:]}")
+            ready, _, _ = select.select([self.master], [], [], left)
+            if ready:
+                try:
+                    chunk = os.read(self.master, 65536)
+                except OSError:
+                    chunk = b""
+                if not chunk:
+                    raise AssertionError(f"{text!r} did not show before the end:\n{self.seen[-2000:]}")
+                self.seen += chunk.decode("utf-8", "replace")
+        index = self.seen.index(text) + len(text)
+        shown, self.seen = self.seen[:index], self.seen[index:]
+        return shown
+
+    def type(self, line):
+        os.write(self.master, (line + "\r").encode())
+
+    def close(self):
+        try:
+            self.proc.wait(timeout=30)
+        finally:
+            os.close(self.master)
+        return self.proc.returncode
+
+
+@pytest.mark.skipif(sys.platform == "win32", reason="needs a POSIX pseudo-terminal")
+class TestAtTheTerminal:
+    def test_a_run_typed_at_a_terminal(self, tmp_path):
+        """In a pseudo-terminal: a value at the leads prompt refused, a decimal comma refused, a
+        gross reading asked about, undo, a bare number in mA, `y` at the hazard prompt, the
+        pointer position shown; the run completes and the journal holds what was meant."""
+        term = Terminal([sys.executable, "-m", "verirun", "run", str(DATA / "bench-meter.yaml"), "--bench",
+                         str(DATA / "bench-test.yaml"), "--simulate", "--serial", "PTY-1", "--customer", "C",
+                         "--temperature", "23", "--humidity", "40", "--runs", "runs", "--reports", "rep"],
+                        cwd=tmp_path)
+        try:
+            term.expect("Press Enter")
+            term.type("5")
+            term.expect("not taken")
+            term.expect("Press Enter")
+            term.type("")
+            term.expect("reading in V")
+            term.type("2,05")
+            term.expect("decimal point")
+            term.expect("reading in V")
+            term.type("2.05")
+            term.expect("reading in V")
+            term.type("8")
+            term.expect("tolerances from the nominal 5 V")
+            term.type("5")
+            term.expect("reading in V")   # step 3, 10 V
+            term.type("undo")
+            term.expect("withdrawn")
+            term.expect("reading in V")   # step 2 again
+            term.type("5.05")
+            term.expect("reading in V")   # step 3
+            term.type("9.9")
+            term.expect("Press Enter")    # dcv-100
+            term.type("")
+            term.expect("(or y)")
+            term.type("y")
+            term.expect("reading in V")
+            term.type("80.5")
+            term.expect("Press Enter")    # dca-50m
+            term.type("")
+            term.expect("reading in mA")
+            term.type("10.25")
+            term.expect("reading in mA")
+            term.type("49.5 mA")
+            term.expect("Press Enter")    # ohm-x1
+            term.type("")
+            term.expect("pointer expected at 80.0° from the left end, on the 3 Ω mark")
+            term.expect("reading in Ω")
+            term.type("3.1")
+            term.expect("reading in Ω")
+            term.type("12")
+            term.expect("reading in Ω")
+            term.type("47")
+            term.expect("Overall")
+        finally:
+            code = term.close()
+        assert code == 0
+        run_dir = next((tmp_path / "runs").iterdir())
+        docs = read_journal(run_dir / "journal.jsonl").documents
+        got = readings(docs)
+        assert [t for _, t, _ in got] == ["2.05", "5", "5.05", "9.9", "80.5", "10.25", "49.5 mA", "3.1", "12", "47"]
+        assert got[5][2] == pytest.approx(0.01025)
+        assert sum(d["kind"] == "withdrawal" for d in docs) == 1
