@@ -251,11 +251,16 @@ class TestWhatToRead:
 class Terminal:
     """A process on a pseudo-terminal: read its output until a text shows, type a line."""
 
-    def __init__(self, args, cwd):
+    def __init__(self, args, cwd, columns=100):
+        import fcntl
         import pty
+        import struct
+        import termios
 
         self.master, slave = pty.openpty()
-        env = {**os.environ, "COLUMNS": "100", "LINES": "40", "TERM": "xterm"}
+        fcntl.ioctl(slave, termios.TIOCSWINSZ, struct.pack("HHHH", 40, columns, 0, 0))
+        env = {k: v for k, v in os.environ.items() if k not in ("COLUMNS", "LINES")}
+        env["TERM"] = "xterm"
         self.proc = subprocess.Popen(args, stdin=slave, stdout=slave, stderr=slave, cwd=cwd, env=env,
                                      close_fds=True)
         os.close(slave)

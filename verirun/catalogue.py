@@ -25,10 +25,17 @@ def summary(folder: Path) -> dict | None:
                 journal_docs = read_journal(journal_path).documents
                 if len(journal_docs) != record["run"].get("documents"):
                     status = "resumable"
+            from verirun.certificate.render import certificate_number
+
             return {"run": folder.name, "path": str(folder), "item": record["item"].get("serial"),
                     "procedure": record["procedure"]["id"], "revision": record["procedure"]["revision"],
                     "date": record["run"]["started"][:10], "verdict": record["summary"]["overall"],
-                    "status": "aborted" if status in ("failed",) else status}
+                    "status": "aborted" if status in ("failed",) else status,
+                    "uid": record["run"]["uid"], "record_revision": record["run"].get("revision", 1),
+                    "certificate": certificate_number(record) if status == "complete" else None,
+                    "customer": (record.get("customer") or {}).get("name"),
+                    "simulated": bool(record["bench"].get("simulated")),
+                    "as_found_run": (record.get("as_found") or {}).get("run"), "as_left_run": None}
         if journal_path.exists():
             docs = read_journal(journal_path).documents
             if not docs or docs[0].get("kind") != "start":
@@ -36,29 +43,44 @@ def summary(folder: Path) -> dict | None:
             start = docs[0]
             return {"run": folder.name, "path": str(folder), "item": start["item"].get("serial"),
                     "procedure": start["procedure"]["id"], "revision": start["procedure"]["revision"],
-                    "date": start["time"][:10], "verdict": "none", "status": "resumable"}
-    except (OSError, ValueError, KeyError, TypeError):
+                    "date": start["time"][:10], "verdict": "none", "status": "resumable",
+                    "uid": start["uid"], "record_revision": 1, "certificate": None,
+                    "customer": (start.get("customer") or {}).get("name"),
+                    "simulated": bool(start["bench"].get("simulated")),
+                    "as_found_run": (start.get("as_found") or {}).get("run"), "as_left_run": None}
+    except (OSError, ValueError, KeyError, TypeError, AttributeError):
         return {"run": folder.name, "path": str(folder), "item": None, "procedure": "?", "revision": "?",
-                "date": "?", "verdict": "?", "status": "unreadable"}
+                "date": "?", "verdict": "?", "status": "unreadable", "uid": None, "record_revision": None,
+                "certificate": None, "customer": None, "simulated": None, "as_found_run": None,
+                "as_left_run": None}
     return None
 
 
 def list_runs(root: str | Path, *, item: str | None = None, since: str | None = None,
               until: str | None = None) -> list[dict]:
-    """Summaries of the runs under ``root``, oldest first, filtered by item serial and dates."""
+    """Summaries of the runs under ``root``, oldest first, filtered by item serial (any case)
+    and dates; an as-found run names the as-left run that followed it, and the other way round."""
     root = Path(root)
     if not root.is_dir():
         return []
-    rows = []
+    rows, every = [], []
+    wanted = item.strip().casefold() if item is not None else None
     for folder in sorted(p for p in root.iterdir() if p.is_dir()):
         row = summary(folder)
         if row is None:
             continue
-        if item is not None and row["item"] != item:
+        every.append(row)
+        if wanted is not None and (row["item"] or "").strip().casefold() != wanted:
             continue
         if since is not None and row["date"] < since:
             continue
         if until is not None and row["date"] > until:
             continue
         rows.append(row)
+    folder_of = {row["uid"]: row["run"] for row in every if row["uid"]}
+    left_of = {row["as_found_run"]: row["run"] for row in every if row["as_found_run"]}
+    for row in rows:
+        if row["as_found_run"]:
+            row["as_found_run"] = folder_of.get(row["as_found_run"], row["as_found_run"])
+        row["as_left_run"] = left_of.get(row["uid"])
     return sorted(rows, key=lambda r: (r["date"], r["run"]))

@@ -88,7 +88,9 @@ def _parser() -> argparse.ArgumentParser:
     resume.add_argument("--bench", type=Path, help="the bench file (default: the one the run started from)")
     _reading_options(resume)
     resume.add_argument("--serial", help="serial number of the item (checked against the run's)")
-    resume.add_argument("--reports", type=Path, default=Path("reports"), help="folder for certificates")
+    resume.add_argument("--reports", type=Path, help="folder for certificates (default: the one the run started with)")
+    resume.add_argument("--temperature", help="laboratory temperature now, in °C (asked at the console if not given)")
+    resume.add_argument("--humidity", help="relative humidity now, in %% (asked at the console if not given)")
 
     amend = sub.add_parser("amend", help="correct one reading of a stored run, as a new revision that keeps the old")
     amend.add_argument("run", type=Path, help="the run folder")
@@ -139,13 +141,11 @@ def _reading_source(args):
 
 def _consoles(readings):
     """The rich console to print on, and what the engine shows the operator through."""
-    from rich.console import Console as RichConsole
-
     from verirun.console import QuietConsole
 
     if readings.interactive:
         return readings.rich, readings
-    rich = RichConsole(highlight=False)
+    rich = _rich()
     return rich, QuietConsole(echo=rich)
 
 
@@ -220,7 +220,7 @@ def _cmd_review(args) -> int:
     procedure = load_procedure(args.procedure)
     bench = load_bench(args.bench)
     found = review(procedure, bench, load_profile(bench.file.calibrator.profile), today=dt.date.today())
-    rich = _rich()
+    rich = _rich(wide=True)
     table = Table(title=f"{found.procedure} on bench {found.bench}")
     for _, title in COLUMNS:
         table.add_column(title, overflow="fold")
@@ -239,14 +239,14 @@ def _cmd_review(args) -> int:
     return EXIT_ERROR if found.problems else EXIT_OK
 
 
-def _rich(**options):
-    """A rich console for output; without a terminal nothing is wrapped or cut, for scripts."""
+def _rich(*, wide: bool = False):
+    """A rich console for output. Without a terminal nothing is wrapped or cut, for scripts: lines
+    are printed whole and, with ``wide``, tables as wide as their contents."""
     from rich.console import Console as RichConsole
 
-    if not sys.stdout.isatty():
-        options.setdefault("width", 100_000)
-        options.setdefault("soft_wrap", True)
-    return RichConsole(highlight=False, **options)
+    if sys.stdout.isatty():
+        return RichConsole(highlight=False)
+    return RichConsole(highlight=False, soft_wrap=True, **({"width": 10_000} if wide else {}))
 
 
 def _cmd_window(args) -> int:
@@ -368,12 +368,23 @@ def _cmd_verify(args) -> int:
 
 
 def _cmd_resume(args) -> int:
-    from verirun.session import resume
+    from verirun.session import resumable, resume
 
     readings = _reading_source(args)
     rich, console = _consoles(readings)
+    held = resumable(args.run)
+    rich.print(held.text(), markup=False)
+    reports = args.reports or held.reports or Path("reports")
+    rich.print(f"Certificate folder: {reports}", markup=False)
+    environment = None
+    if args.temperature is not None or args.humidity is not None or readings.interactive:
+        # The conditions now, not as they were when the run stopped.
+        environment = _environment(args.temperature, args.humidity, readings)
+        if not readings.interactive:
+            environment = {**held.environment, **environment}
     finished = resume(run_dir=args.run, procedure_path=args.procedure, bench_path=args.bench,
-                      readings=readings, console=console, reports_dir=args.reports, serial=args.serial)
+                      readings=readings, console=console, reports_dir=reports, serial=args.serial,
+                      environment=environment)
     _summary(rich, finished)
     return EXIT_OK
 
@@ -430,20 +441,42 @@ def _cmd_runs(args) -> int:
     if args.json:
         print(json.dumps(rows, ensure_ascii=False, indent=1))
         return EXIT_OK
-    from rich.console import Console as RichConsole
     from rich.table import Table
 
     table = Table(title=f"Runs in {args.runs}" if rows else None)
-    for name in ("run", "item", "procedure", "date", "verdict", "status"):
-        table.add_column(name)
+    # The run folder is what other commands take: never cut, however narrow the terminal.
+    table.add_column("run", no_wrap=True, min_width=max((len(r["run"]) for r in rows), default=3))
+    for name in ("item", "procedure", "date", "verdict", "status", "certificate", "customer", "bench",
+                 "rev", "as-found / as-left"):
+        table.add_column(name, overflow="fold")
     for row in rows:
+        link = (f"as-left of {row['as_found_run']}" if row.get("as_found_run")
+                else f"as-found; as-left {row['as_left_run']}" if row.get("as_left_run") else "")
+        bench = "" if row.get("simulated") is None else "simulated" if row["simulated"] else "real"
         table.add_row(row["run"], row["item"] or "", f"{row['procedure']} rev {row['revision']}", row["date"],
-                      row["verdict"], row["status"])
-    console = RichConsole(highlight=False)
-    if rows:
+                      row["verdict"], row["status"], row.get("certificate") or "", row.get("customer") or "",
+                      bench, str(row.get("record_revision") or ""), link)
+    console = _rich(wide=True)
+    # Width the table needs with no cell folded: each column's widest cell, a space either side
+    # and a border between.
+    needed = sum(max([len(c.header), *(len(str(v)) for v in c.cells)]) + 3 for c in table.columns) + 1
+    if rows and needed <= console.width:
         console.print(table)
+    elif rows:
+        # Narrower than the table: one block per run, the run folder on a line of its own
+        # (the terminal may fold a long one, but nothing is cut off).
+        for row in rows:
+            bench = "" if row.get("simulated") is None else "simulated" if row["simulated"] else "real"
+            link = (f"as-left of {row['as_found_run']}" if row.get("as_found_run")
+                    else f"as-found; as-left {row['as_left_run']}" if row.get("as_left_run") else "")
+            fields = [row["item"] or "", f"{row['procedure']} rev {row['revision']}", row["date"], row["verdict"],
+                      row["status"], row.get("certificate") or "", row.get("customer") or "", bench,
+                      f"revision {row.get('record_revision') or ''}", link]
+            console.print(row["run"], markup=False, soft_wrap=True)
+            console.print("  " + " · ".join(f for f in fields if f), markup=False, soft_wrap=True)
     else:
-        console.print(f"no runs in {args.runs}" + (" match" if args.item or args.since or args.until else ""))
+        console.print(f"no runs in {args.runs}" + (" match" if args.item or args.since or args.until else ""),
+                      markup=False)
     return EXIT_OK
 
 

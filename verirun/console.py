@@ -65,7 +65,8 @@ class Console:
         """The safety cautions shown before any output goes on."""
         from rich.panel import Panel
 
-        self.rich.print(Panel("\n\n".join(CAUTIONS), title="Safety", border_style="red"))
+        # Wrapped inside its box even where other output is not (soft_wrap would cut it off).
+        self.rich.print(Panel("\n\n".join(CAUTIONS), title="Safety", border_style="red"), soft_wrap=False)
 
     def heading(self, text: str) -> None:
         """A section heading (run start, range change)."""

@@ -35,6 +35,9 @@ class RunContext:
     environment: dict = field(default_factory=dict)
     #: For an as-left pass after an adjustment: the as-found run's results (see as_found_of).
     as_found: dict | None = None
+    #: The folder the run's certificate goes to (written in the start document, so that a
+    #: resumed run's certificate goes there too).
+    reports: str | None = None
 
 
 @dataclass
@@ -68,6 +71,7 @@ def start_document(*, uid: str, time: str, procedure: Procedure, bench: Bench, i
         "lab": context.lab, "customer": context.customer, "item": context.item,
         "operator": context.operator, "environment": context.environment,
         **({"as_found": context.as_found} if context.as_found else {}),
+        **({"reports": context.reports} if context.reports else {}),
     }
 
 
@@ -150,6 +154,7 @@ class Engine:
                     self._check_same_calibrator(identity, resume)
                     self.journal.append({"kind": "resume", "time": iso(self.clock.now()),
                                          "identity": identity, "pending": len(points),
+                                         "environment": context.environment,
                                          "recovered_torn_line": self.journal.recovered is not None,
                                          "recovered_text": self.journal.recovered})
                 self._clear_stale_errors()

@@ -102,7 +102,8 @@ def build_record(documents: list[dict], source: str = "journal", *, known: Known
         elif kind == "resume":
             notes.append({"time": doc["time"], "point": None,
                           "text": f"run resumed after an interruption with {doc['pending']} points to go"
-                                  + ("; a cut-off last journal line was dropped" if doc.get("recovered_torn_line") else "")})
+                                  + ("; a cut-off last journal line was dropped" if doc.get("recovered_torn_line") else "")
+                                  + _conditions(doc.get("environment"))})
         elif kind == "stop":
             stop = doc
     rows = []
@@ -215,3 +216,15 @@ def reported(unit: str, result: Result) -> dict:
     else:
         error_text, u_spec_text = spec_text(result.error, None, None), "—"
     return {"reading": reading_text, "U": u_text, "error": error_text, "U_spec": u_spec_text}
+
+
+def _conditions(environment: dict | None) -> str:
+    """The conditions a resumed run was continued in, in words (empty when not known)."""
+    if not environment:
+        return ""
+    parts = []
+    if environment.get("temperature_c") is not None:
+        parts.append(f"{environment['temperature_c']:g} °C")
+    if environment.get("humidity_pct") is not None:
+        parts.append(f"{environment['humidity_pct']:g} % relative humidity")
+    return f"; conditions then {', '.join(parts)}" if parts else ""

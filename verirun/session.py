@@ -7,6 +7,7 @@ nothing itself (the console does).
 from __future__ import annotations
 
 import contextlib
+import dataclasses
 import re
 import signal
 import uuid as uuid_mod
@@ -21,7 +22,7 @@ from verirun.procedure.plan import plan
 from verirun.certificate.render import write_certificate
 from verirun.clock import SystemClock
 from verirun.engine import Engine, Outcome, RunContext
-from verirun.errors import ProcedureError, RecordError
+from verirun.errors import ProcedureError, RecordError, VerirunError
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.record import JOURNAL_NAME, RECORD_NAME, Journal, read_journal, verify_chain, write_record
 from verirun.runrecord import Known, build_record
@@ -108,6 +109,8 @@ def execute(*, procedure: Procedure, bench: Bench, context: RunContext, readings
     """
     clock = clock or SystemClock()
     uid = uid or uuid_mod.uuid4().hex
+    if context.reports is None:
+        context = dataclasses.replace(context, reports=str(Path(reports_dir).resolve()))
     profile = calibrator.profile if calibrator is not None else load_profile(bench.file.calibrator.profile)
     points = plan(procedure, bench)
     check_readings(readings, points)
@@ -161,8 +164,59 @@ def _drive(*, run_dir: Path, procedure, bench, context, readings, console, repor
                     certificate=certificate, record=record)
 
 
+@dataclass(frozen=True, kw_only=True)
+class Resumable:
+    """What a stopped run holds, told to the operator before it is resumed."""
+
+    run_dir: Path
+    uid: str
+    serial: str | None
+    procedure: str
+    kept: int
+    points: int
+    simulated: bool
+    reports: Path | None
+    environment: dict
+
+    def text(self) -> str:
+        """The run in words: ``"Continuing run ... (uid ...): ... 6 of 20 readings kept, a dry run"``."""
+        how = "a dry run on the simulated calibrator" if self.simulated else "a run on the real calibrator"
+        return (f"Continuing run {self.run_dir} (uid {self.uid}) of item {self.serial}, procedure"
+                f" {self.procedure}: {self.kept} of {self.points} points have a confirmed entry and are kept,"
+                f" {self.points - self.kept} to go; {how}")
+
+
+def resumable(run_dir: Path) -> Resumable:
+    """What the stopped run in ``run_dir`` holds (read from its journal; nothing is changed).
+
+    Raises
+    ------
+    RecordError
+        If the folder holds no journal that starts a run.
+    """
+    run_dir = Path(run_dir)
+    docs = read_journal(run_dir / JOURNAL_NAME).documents
+    if not docs or docs[0].get("kind") != "start":
+        raise RecordError(f"{run_dir}: the journal has no start document; nothing to resume")
+    start = docs[0]
+    try:
+        points = len(plan(load_procedure_text(start["procedure"]["text"], start["procedure"]["source"])))
+    except VerirunError:
+        points = 0
+    environment = start.get("environment", {})
+    for doc in docs:
+        if doc["kind"] == "resume" and doc.get("environment"):
+            environment = doc["environment"]
+    return Resumable(run_dir=run_dir, uid=start["uid"], serial=start["item"].get("serial"),
+                     procedure=f"{start['procedure']['id']} revision {start['procedure']['revision']}",
+                     kept=len(confirmed_points(docs)), points=points,
+                     simulated=bool(start["bench"].get("simulated")),
+                     reports=Path(start["reports"]) if start.get("reports") else None, environment=environment)
+
+
 def resume(*, run_dir: Path, procedure_path: Path | None, bench_path: Path | None, readings, console,
-           reports_dir: Path, serial: str | None = None, clock=None, calibrator=None) -> Finished:
+           reports_dir: Path | None = None, serial: str | None = None, clock=None, calibrator=None,
+           environment: dict | None = None) -> Finished:
     """Continue a stopped or crashed run at its first point without a confirmed entry.
 
     The procedure and bench files (by default the ones the run started from, else the copies
@@ -198,9 +252,12 @@ def resume(*, run_dir: Path, procedure_path: Path | None, bench_path: Path | Non
     profile = calibrator.profile if calibrator is not None else load_profile(bench.file.calibrator.profile)
     check_readings(readings, pending, points)
     preflight.check(pending, bench, profile, today=clock.now().date())
+    if reports_dir is None:  # where the run started putting its certificate
+        reports_dir = Path(start.get("reports") or "reports")
     context = RunContext(lab=start["lab"], customer=start["customer"], item=start["item"],
                          operator=start["operator"], simulated=simulate,
-                         environment=start.get("environment", {}))
+                         environment=environment if environment is not None else start.get("environment", {}),
+                         reports=start.get("reports"))
     if read.torn_line is not None:
         console.warn(f"the last line of the journal was cut off by the interruption and is dropped"
                      f" ({len(read.torn_line)} characters); every whole line before it is kept")
