@@ -173,3 +173,20 @@ class TestCheckCommand:
         with pytest.raises(Exception) as info:
             load_bench_text(text, "b.yaml")
         assert "calibrator.resistance-current" in str(info.value) and "expected amperes" in str(info.value)
+
+
+class TestHostileText:
+    def test_markup_in_a_procedure_is_printed_literally_in_the_review_table(self, tmp_path, capsys):
+        """A procedure id and read-on text holding rich markup are printed as written, not
+        interpreted, in the terminal table and on the page."""
+        text = (DATA / "bench-meter.yaml").read_text(encoding="utf-8").replace(
+            "read-on: green ohms scale, multiply by 1", "read-on: \"[red]x[/red] [link=http://x]y\"").replace(
+            "id: TB-VP-001", "id: \"[bold]TB[/bold]\"")
+        path = tmp_path / "p.yaml"
+        path.write_text(text, encoding="utf-8")
+        assert cli.main(["review", str(path), "--bench", str(DATA / "bench-test.yaml"),
+                         "--reports", str(tmp_path / "rep")]) == 0
+        out = capsys.readouterr().out
+        page = next((tmp_path / "rep").glob("*.html")).read_text(encoding="utf-8")
+        assert "[red]x[/red] [link=http://x]y" in page
+        assert "[bold]TB[/bold] revision A" in out

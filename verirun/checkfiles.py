@@ -82,7 +82,7 @@ def check(paths: list[Path], *, bench_path: Path | None = None, today: dt.date |
         except ProcedureError as exc:
             report.problems(exc.problems)
             bench = None
-    procedures = []
+    procedures, given = [], any(kind == "procedure" for kind in kinds.values())
     for path, kind in kinds.items():
         try:
             if kind == "procedure":
@@ -107,7 +107,7 @@ def check(paths: list[Path], *, bench_path: Path | None = None, today: dt.date |
             report.problems(exc.problems)
     for path, kind in kinds.items():
         if kind in ("readings", "virtual meter"):
-            _check_source(path, kind, procedures, bench, report)
+            _check_source(path, kind, procedures, bench, report, given=given)
     if bench is not None:
         from verirun.review import review
 
@@ -121,7 +121,7 @@ def check(paths: list[Path], *, bench_path: Path | None = None, today: dt.date |
     return report
 
 
-def _check_source(path: Path, kind: str, procedures, bench, report: Report) -> None:
+def _check_source(path: Path, kind: str, procedures, bench, report: Report, *, given: bool) -> None:
     """A readings or virtual-meter file, checked against each procedure given with it."""
     from verirun.procedure.plan import plan
     from verirun.readings import ScriptedReadings, VirtualMeter
@@ -132,7 +132,9 @@ def _check_source(path: Path, kind: str, procedures, bench, report: Report) -> N
         report.problems(exc.problems)
         return
     if not procedures:
-        report.problems([f"{path}:1: a {kind} file is checked against its procedure: give the procedure"
+        report.problems([f"{path}:1: not checked against a procedure: the procedure given has problems"
+                         " (above); check again once it loads" if given else
+                         f"{path}:1: a {kind} file is checked against its procedure: give the procedure"
                          " file too (verirun check PROCEDURE FILE)"])
         return
     for procedure in procedures:

@@ -210,6 +210,7 @@ def _cmd_review(args) -> int:
     import datetime as dt
 
     from rich.table import Table
+    from rich.text import Text
 
     from verirun.bench.config import load_bench
     from verirun.bench.profile import load_profile
@@ -221,12 +222,13 @@ def _cmd_review(args) -> int:
     bench = load_bench(args.bench)
     found = review(procedure, bench, load_profile(bench.file.calibrator.profile), today=dt.date.today())
     rich = _rich(wide=True)
-    table = Table(title=f"{found.procedure} on bench {found.bench}")
+    table = Table(title=Text(f"{found.procedure} on bench {found.bench}"))
     for _, title in COLUMNS:
         table.add_column(title, overflow="fold")
     for row in found.rows:
         style = "red" if row.tur_low or row.current_over else None
-        table.add_row(*(str(getattr(row, name)) for name, _ in COLUMNS), style=style)
+        # Cells as plain text: a procedure's words are never read as markup.
+        table.add_row(*(Text(str(getattr(row, name))) for name, _ in COLUMNS), style=style)
     rich.print(table)
     for text in found.problems:
         rich.print(f"problem: {text}", markup=False)
@@ -442,8 +444,9 @@ def _cmd_runs(args) -> int:
         print(json.dumps(rows, ensure_ascii=False, indent=1))
         return EXIT_OK
     from rich.table import Table
+    from rich.text import Text
 
-    table = Table(title=f"Runs in {args.runs}" if rows else None)
+    table = Table(title=Text(f"Runs in {args.runs}") if rows else None)
     # The run folder is what other commands take: never cut, however narrow the terminal.
     table.add_column("run", no_wrap=True, min_width=max((len(r["run"]) for r in rows), default=3))
     for name in ("item", "procedure", "date", "verdict", "status", "certificate", "customer", "bench",
@@ -453,13 +456,14 @@ def _cmd_runs(args) -> int:
         link = (f"as-left of {row['as_found_run']}" if row.get("as_found_run")
                 else f"as-found; as-left {row['as_left_run']}" if row.get("as_left_run") else "")
         bench = "" if row.get("simulated") is None else "simulated" if row["simulated"] else "real"
-        table.add_row(row["run"], row["item"] or "", f"{row['procedure']} rev {row['revision']}", row["date"],
-                      row["verdict"], row["status"], row.get("certificate") or "", row.get("customer") or "",
-                      bench, str(row.get("record_revision") or ""), link)
+        cells = (row["run"], row["item"] or "", f"{row['procedure']} rev {row['revision']}", row["date"],
+                 row["verdict"], row["status"], row.get("certificate") or "", row.get("customer") or "",
+                 bench, str(row.get("record_revision") or ""), link)
+        table.add_row(*(Text(cell) for cell in cells))  # stored text is never read as markup
     console = _rich(wide=True)
     # Width the table needs with no cell folded: each column's widest cell, a space either side
     # and a border between.
-    needed = sum(max([len(c.header), *(len(str(v)) for v in c.cells)]) + 3 for c in table.columns) + 1
+    needed = sum(max([len(c.header), *(len(v) for v in c.cells)]) + 3 for c in table.columns) + 1
     if rows and needed <= console.width:
         console.print(table)
     elif rows:

@@ -126,7 +126,7 @@ class Console:
         unit, _ = reading_unit(point.range)
         self.say(f"\n[bold]Step {point.index + 1} of {point.total}[/]  range {point.range.id}"
                  f"  applied [bold cyan]{point.stimulus_text()}[/]")
-        self.say(f"  read in {unit}" + (f" on: {point.range.read_on}" if point.range.read_on else ""))
+        self.say(f"  read in {unit}" + (f" on: {escape(point.range.read_on)}" if point.range.read_on else ""))
         if shows_pointer(point):
             where = pointer(point)
             self.say(f"  pointer expected at {where.text()}"

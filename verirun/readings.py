@@ -249,7 +249,7 @@ class ScriptedReadings:
         for key in pending:
             for row in rows.get(key, []):
                 first = queues[key][0].line
-                problems.append(f"{self.path}:{row.line}: a row left over: range {key[0]} at {row.at} already"
+                problems.append(f"{self.path}:{row.line}: a row left over: range {key[0]} at {row.at!r} already"
                                 f" has its reading (line {first}); remove the duplicate")
         self._queues, self._checked = queues, True
         prefix = len(str(self.path)) + 1

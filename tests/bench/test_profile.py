@@ -148,7 +148,7 @@ class TestMalformed:
     def test_unquoted_on_is_explained(self, tmp_path):
         """An unquoted ON, which YAML reads as true, is reported with the advice to quote it."""
         found = problems(tmp_path, GOOD.replace('on-replies: ["1"]', "on-replies: [ON]"))
-        assert len(found) == 1 and found[0].startswith("FILE:15: output-state.on-replies[0]: ")
+        assert len(found) == 1 and found[0].startswith("FILE:15: output-state.on-replies[1]: ")
         assert "put the text in quotes" in found[0]
 
     def test_non_finite_and_boolean_limits(self, tmp_path):

@@ -134,3 +134,22 @@ class TestVirtualMeterFile:
         assert f"{name}:5: ranges.dcv-100.offset: '0.2 A' is in amperes, expected volts; write it in V" in problems
         assert any(p.startswith(f"{name}:7: ranges.ohm-xl: the procedure has no range 'ohm-xl'") for p in problems)
         assert any("no model for range 'ohm-x1'" in p for p in problems)
+
+
+class TestRepeatedPoints:
+    def test_a_point_repeated_in_the_procedure_takes_its_rows_in_file_order(self, tmp_path):
+        """Up-scale then down-scale at 5 V: two rows for dcv-10 at 5 V are taken in file order, one
+        per step; a third is left over."""
+        text = (DATA / "bench-meter.yaml").read_text(encoding="utf-8").replace(
+            "points: [2 V, 5 V, 10 V]", "points: [2 V, 5 V, 10 V, 5 V]")
+        from verirun.procedure.load import load_procedure_text
+
+        points = plan(load_procedure_text(text, "p.yaml"))
+        good = GOOD.replace("dcv-10,10 V,9.9\n", "dcv-10,10 V,9.9\ndcv-10,5 V,5.1\n")
+        readings = csv_with(tmp_path, good)
+        assert readings.check(points) == []
+        taken = [readings.take(p).typed for p in points[:4]]
+        assert taken == ["2.05", "5", "9.9", "5.1"]
+        extra = csv_with(tmp_path, good + "dcv-10,5 V,5.2\n")
+        problems = extra.check(points)
+        assert len(problems) == 1 and ":12: a row left over" in problems[0]
