@@ -109,3 +109,36 @@ class TestResume:
         assert not Path("reports").exists()
         record = json.loads((run / "record.json").read_text(encoding="utf-8"))
         assert any("conditions then 24.5 °C, 45 % relative humidity" in n["text"] for n in record["notes"])
+
+
+@pytest.mark.skipif(sys.platform == "win32", reason="needs a POSIX pseudo-terminal")
+class TestResumeAtTheTerminal:
+    def test_resume_at_the_console_asks_the_conditions_again(self, tmp_path):
+        """Resumed at a terminal, the run says what it continues and asks the temperature and
+        humidity now before the leads of the next range; the resume is journaled with them."""
+        from test_console_input import Terminal
+
+        stopped = READINGS.replace("dcv-100,80 V,80.5", "dcv-100,80 V,abort")
+        assert scripted_run(tmp_path, stopped) == cli.EXIT_ABORTED
+        (run,) = (tmp_path / "runs").iterdir()
+        term = Terminal([sys.executable, "-m", "verirun", "resume", str(run)], cwd=tmp_path)
+        try:
+            shown = term.expect("Laboratory temperature now")
+            term.type("24.5")
+            term.expect("humidity now")
+            term.type("45")
+            term.expect("Press Enter")
+            term.type("")
+            term.expect("(or y)")
+            term.type("skip")
+            for answer in ("", "10.25", "49.5 mA", "", "3.1", "12", "47"):
+                term.expect("Press Enter" if answer == "" else "reading in")
+                term.type(answer)
+            term.expect("Overall")
+        finally:
+            code = term.close()
+        assert code == 0
+        assert "Continuing run" in shown and "3 of 9 points" in shown and "dry run" in shown
+        docs = [json.loads(line) for line in (run / "journal.jsonl").read_text(encoding="utf-8").splitlines()]
+        (resumed,) = [d for d in docs if d["kind"] == "resume"]
+        assert resumed["environment"] == {"temperature_c": 24.5, "humidity_pct": 45.0}
