@@ -55,7 +55,7 @@ class GenPoint:
     function: str
     nominal: float
     nominal_text: str      # bare number in SI base units, as written in both files
-    reading_text: str      # bare number in SI base units, as the CSV holds it
+    reading_text: str      # bare number in SI base units (the CSV adds the unit)
     first_of_range: bool
     full_scale: float | None
     percent: float | None
@@ -192,8 +192,11 @@ def generate(n: int, folder: str | Path | None = None) -> Generated:
     with open(readings, "w", newline="", encoding="utf-8") as fh:
         writer = csv.writer(fh, lineterminator="\n")
         writer.writerow(["range", "at", "reading"])
+        units = {spec["id"]: spec["unit"] for spec in RANGES}
         for p in points:
-            writer.writerow([p.range_id, p.nominal_text, p.reading_text])
+            # With the unit: a bare number would be read in the unit the prompt shows (mA, kΩ).
+            unit = units[p.range_id]
+            writer.writerow([p.range_id, f"{p.nominal_text} {unit}", f"{p.reading_text} {unit}"])
     bench = folder / "bench-sim.yaml"
     bench.write_text(bench_text(), encoding="utf-8")
     lab = folder / "lab.yaml"

@@ -160,7 +160,8 @@ def baseline_run(gen: _gen.Generated, workdir: Path, *, wrap=None) -> tuple[floa
     readings = {}
     with open(gen.readings, newline="", encoding="utf-8") as fh:
         for row in csv.DictReader(fh):
-            readings[(row["range"], float(row["at"]))] = row["reading"]
+            # Each value is written "number unit" in SI base units: the number is the first word.
+            readings[(row["range"], float(row["at"].split()[0]))] = row["reading"]
 
     def setting(command):
         cal.write(command)
@@ -189,7 +190,7 @@ def baseline_run(gen: _gen.Generated, workdir: Path, *, wrap=None) -> tuple[floa
                 setting(f"{'VOLT' if p.function == 'dc-voltage' else 'CURR'} {p.nominal!r}")
             setting("OUTP ON")
             typed = readings[(p.range_id, p.nominal)]
-            reading = float(typed)
+            reading = float(typed.split()[0])
             if p.full_scale is not None:
                 half = p.percent / 100.0 * p.full_scale
                 low, high = p.nominal - half, p.nominal + half

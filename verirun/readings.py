@@ -196,6 +196,7 @@ class ScriptedReadings:
         # Per (range id, nominal of its point) the rows not yet replayed, in file order.
         self._queues: dict[tuple[str, float], list[_Row]] = {}
         self._checked = False
+        self._parsed: dict[int, Entry] = {}  # line -> its entry, parsed when the file was checked
 
     def _match(self, points: list[TestPoint], problems: list[str]) -> dict[tuple[str, float], list[_Row]]:
         """Assign every row to the point it names; a row that names none is a problem."""
@@ -264,6 +265,7 @@ class ScriptedReadings:
             except UnitError as exc:
                 problems.append(f"{self.path}:{row.line}: reading: {exc}")
                 return None
+            self._parsed[row.line] = entry  # the run takes it as parsed here
             if entry.kind in ("reading", "skip", "abort"):
                 return entry.kind
         problems.append(f"{self.path}:{self._last_line + 1}: no reading for step {point.index + 1}"
@@ -294,6 +296,9 @@ class ScriptedReadings:
             raise ProcedureError(f"{self.path}: no reading for range {point.range.id} at"
                                  f" {format_quantity(point.nominal, point.unit)}")
         row = queue.pop(0)
+        parsed = self._parsed.pop(row.line, None)
+        if parsed is not None:
+            return parsed
         try:
             return self._entry(row, point)
         except UnitError as exc:
