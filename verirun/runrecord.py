@@ -103,7 +103,8 @@ def build_record(documents: list[dict], source: str = "journal", *, known: Known
             notes.append({"time": doc["time"], "point": None,
                           "text": f"run resumed after an interruption with {doc['pending']} points to go"
                                   + ("; a cut-off last journal line was dropped" if doc.get("recovered_torn_line") else "")
-                                  + _conditions(doc.get("environment"))})
+                                  + (_conditions(doc.get("environment"))
+                                     if doc.get("environment") != start.get("environment") else "")})
         elif kind == "stop":
             stop = doc
     rows = []
