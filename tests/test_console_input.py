@@ -94,7 +94,8 @@ def run_typing(tmp_path, lab_path, lines, *, show_window=False):
     typist = Typist(lines)
     console = Console(RichConsole(file=out, width=200, highlight=False), input_func=typist, show_window=show_window)
     context = RunContext(lab=load_lab(lab_path).lab.model_dump(mode="json"), customer={"name": "C", "address": []},
-                         item={"serial": "S"}, operator="op", simulated=True)
+                         item={"serial": "S", "asset": None, "condition": "as new", "received": None},
+                         operator="op", simulated=True)
     error, finished = None, None
     try:
         finished = execute(procedure=load_procedure_text(METER, "ci.yaml"), bench=load_bench(DATA / "bench-test.yaml"),
@@ -107,6 +108,21 @@ def run_typing(tmp_path, lab_path, lines, *, show_window=False):
     run_dir = finished.run_dir if finished else error.run_dir
     docs = read_journal(run_dir / "journal.jsonl").documents
     return docs, out.getvalue(), typist, raw, finished
+
+
+def fits_the_journal_schema(docs):
+    """Every document fits the shipped JSON Schema of a journal line and its model."""
+    import json
+
+    import jsonschema
+
+    from verirun.documents import validate_document
+
+    schema = json.loads((Path(__file__).resolve().parent.parent / "verirun" / "schema"
+                         / "journal.schema.json").read_text(encoding="utf-8"))
+    for doc in docs:
+        jsonschema.validate(doc, schema, cls=jsonschema.Draft202012Validator)
+        validate_document(doc)
 
 
 #: Typed at the prompts for a plain run, by step: connect, 5 V, 10 V, connect, 10 mA, connect,
@@ -190,6 +206,7 @@ class TestUndo:
         assert withdrawal["typed"] == "5.5" and withdrawal["index"] == 0
         assert finished.record["points"][0]["typed"] == "5.05"
         assert any("'5.5' of step 1 withdrawn" in n["text"] for n in finished.record["notes"])
+        fits_the_journal_schema(docs)
 
     def test_undo_on_another_range_asks_for_the_leads_again(self, tmp_path, demo_lab_path):
         """Undo at the first step of a new range goes back to the earlier range and asks for its
@@ -224,6 +241,7 @@ class TestHazardPrompt:
         docs, out, typist, raw, finished = run_typing(tmp_path, demo_lab_path, PLAIN[:8] + ["skip"])
         skips = [d for d in docs if d["kind"] == "skip"]
         assert len(skips) == 1 and "hazardous output declined" in skips[0]["reason"]
+        fits_the_journal_schema(docs)
         assert finished.record["run"]["status"] == "complete"
         assert raw.query("VOLT?") != "80.0" and raw.query("OUTP?") in ("0", "OFF")
 

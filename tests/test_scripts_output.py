@@ -142,3 +142,7 @@ class TestResumeAtTheTerminal:
         docs = [json.loads(line) for line in (run / "journal.jsonl").read_text(encoding="utf-8").splitlines()]
         (resumed,) = [d for d in docs if d["kind"] == "resume"]
         assert resumed["environment"] == {"temperature_c": 24.5, "humidity_pct": 45.0}
+        assert docs[0]["reports"] == str(tmp_path / "rep1")
+        from test_console_input import fits_the_journal_schema
+
+        fits_the_journal_schema(docs)

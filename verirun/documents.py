@@ -13,6 +13,8 @@ observation the operator (or a replay file, or a virtual meter) gave a reading a
 skip        a step was skipped, with the operator's reason
 note        a remark at a step or for the run (operator notes, hazardous output confirmed,
             errors cleared from the calibrator's queue, an abort)
+withdrawal  the operator withdrew the last entry (``undo``) before the run went on; the
+            step is measured again
 correction  a reading of a finished run was corrected (``verirun amend``): a new revision
 stop        the run ended: complete, aborted or failed, with the reason
 ========== ==================================================================================
@@ -157,6 +159,7 @@ class Start(Chained):
     operator: str = Field(description="who ran it")
     environment: Environment
     as_found: AsFound | None = Field(default=None, description="set for an as-left run")
+    reports: str | None = Field(default=None, description="the folder the run's certificate goes to")
 
 
 # --- documents written during the run ---------------------------------------------------------
@@ -173,6 +176,7 @@ class Resume(Chained):
     pending: int = Field(ge=0, description="how many steps were still to be measured")
     recovered_torn_line: bool = Field(description="whether a torn last line was cut off")
     recovered_text: str | None = Field(description="the text of that torn line, kept")
+    environment: Environment | None = Field(default=None, description="the conditions when it was continued")
 
 
 class Applied(Part):
@@ -213,6 +217,17 @@ class Note(Chained):
                                    description="true when it records hazardous output permitted")
 
 
+class Withdrawal(Chained):
+    """The operator withdrew the last entry (``undo``) before the run went on; a later entry for
+    the step replaces it, and until there is one the step counts as not measured."""
+
+    kind: Literal["withdrawal"]
+    point: PointKey
+    index: Step
+    typed: str = Field(description="what was typed for the entry withdrawn")
+    reason: str = Field(description="why it was withdrawn")
+
+
 class Correction(Chained):
     """A reading of a finished run corrected, making the record's next revision."""
 
@@ -234,7 +249,7 @@ class Stop(Chained):
     counts: dict[str, int] = Field(description="results so far by verdict, and skipped steps")
 
 
-Document = Annotated[Union[Start, Resume, Observation, Skip, Note, Correction, Stop],
+Document = Annotated[Union[Start, Resume, Observation, Skip, Note, Withdrawal, Correction, Stop],
                      Field(discriminator="kind")]
 
 _ADAPTER: TypeAdapter = TypeAdapter(Document)
