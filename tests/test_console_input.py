@@ -182,6 +182,10 @@ class TestGrossReading:
         """Typing another value instead of yes takes that one; the far-off one is not journaled."""
         docs, *_ = run_typing(tmp_path, demo_lab_path, ["", "8", "5.1", *PLAIN[2:]])
         assert readings(docs)[0][1] == "5.1" and len(readings(docs)) == 5
+        # What was typed is kept: the far-off reading is journaled as a note before the reading.
+        notes = [d for d in docs if d["kind"] == "note" and "asked about" in d["text"]]
+        assert len(notes) == 1 and "'8'" in notes[0]["text"] and "'5.1'" in notes[0]["text"]
+        assert docs.index(notes[0]) < next(i for i, d in enumerate(docs) if d["kind"] == "observation")
 
     def test_same_far_off_reading_twice_is_kept(self, tmp_path, demo_lab_path):
         """Typing the same far-off reading again confirms it."""

@@ -151,19 +151,28 @@ class Console:
         unit, _ = reading_unit(point.range)
         prompt = f"  reading in {unit} (or {', '.join(COMMANDS)}): "
         gross: Entry | None = None  # a far-off reading waiting to be confirmed
+        replaced: list[str] = []    # far-off readings not kept: journaled with the one that is
         while True:
             typed = self.ask(prompt)
             if gross is not None and typed.strip().lower() in ("yes", "y"):
+                gross.replaced = tuple(replaced)
                 return gross
             try:
                 entry = parse_entry(typed, point)
             except UnitError as exc:
                 self.say(f"  [yellow]{exc}[/]; type the reading again")
+                if gross is not None:
+                    replaced.append(gross.typed)
                 gross, prompt = None, f"  reading in {unit} (or {', '.join(COMMANDS)}): "
                 continue
             off = tolerances_off(point, entry.value) if entry.kind == "reading" else None
             if off is None or off <= GROSS_TOLERANCES or (gross is not None and entry.value == gross.value):
+                if gross is not None and entry.value != gross.value:
+                    replaced.append(gross.typed)
+                entry.replaced = tuple(replaced)
                 return entry
+            if gross is not None:
+                replaced.append(gross.typed)
             gross = entry
             prompt = (f"  {escape(repr(typed.strip()))} is {off:.1f} tolerances from the nominal"
                       f" {format_quantity(point.nominal, point.unit)}: type [bold]yes[/] to keep it,"

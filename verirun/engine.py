@@ -248,6 +248,10 @@ class Engine:
                     entry = self._take(point)
                     # Journaled before anything else happens, standby included: if the output
                     # cannot be made safe the reading is still kept.
+                    for typed in entry.replaced:
+                        self.journal.append({"kind": "note", "time": iso(self.clock.now()), "point": point.key,
+                                             "text": f"reading {typed!r} asked about as far from the nominal"
+                                                     f" and not kept; the operator typed {entry.typed!r}"})
                     if entry.kind in ("reading", "skip", "abort"):
                         self._journal_entry(point, entry)
                 if entry.kind == "repeat":

@@ -44,6 +44,8 @@ class Entry:
     typed: str
     value: float | None = None
     text: str | None = None
+    #: Readings typed before this one at the same prompt, asked about as far off and replaced.
+    replaced: tuple[str, ...] = ()
 
 
 class ReadingSource(Protocol):
