@@ -149,7 +149,7 @@ class Console:
         read as a new entry.
         """
         unit, _ = reading_unit(point.range)
-        prompt = f"  reading in {unit} (or {', '.join(COMMANDS)}): "
+        prompt = ask_reading = f"  reading in {unit} (or {', '.join(COMMANDS)}): "
         gross: Entry | None = None  # a far-off reading waiting to be confirmed
         replaced: list[str] = []    # far-off readings not kept: journaled with the one that is
         while True:
@@ -163,7 +163,7 @@ class Console:
                 self.say(f"  [yellow]{exc}[/]; type the reading again")
                 if gross is not None:
                     replaced.append(gross.typed)
-                gross, prompt = None, f"  reading in {unit} (or {', '.join(COMMANDS)}): "
+                gross, prompt = None, ask_reading
                 continue
             off = tolerances_off(point, entry.value) if entry.kind == "reading" else None
             if off is None or off <= GROSS_TOLERANCES or (gross is not None and entry.value == gross.value):
