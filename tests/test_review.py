@@ -190,3 +190,20 @@ class TestHostileText:
         page = next((tmp_path / "rep").glob("*.html")).read_text(encoding="utf-8")
         assert "[red]x[/red] [link=http://x]y" in page
         assert "[bold]TB[/bold] revision A" in out
+
+
+class TestBenchOnePass:
+    def test_structure_and_accuracy_line_problems_at_once(self, capsys):
+        """A bench file with an unknown key and an accuracy line in the wrong unit gets both
+        problems from one `verirun check`."""
+        import tempfile
+
+        text = (DATA / "bench-test.yaml").read_text(encoding="utf-8").replace(
+            "settle: 0 s", "settle: 0 s\nsettel: 1 s").replace("range: 22 mA,", "range: 22 mV,")
+        with tempfile.TemporaryDirectory() as folder:
+            path = Path(folder) / "bench.yaml"
+            path.write_text(text, encoding="utf-8")
+            assert cli.main(["check", str(path)]) == cli.EXIT_ERROR
+        out = capsys.readouterr().out
+        assert "settel: unknown key" in out
+        assert "calibrator.accuracy[5].range: '22 mV' is in volts, expected amperes" in out

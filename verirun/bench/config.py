@@ -176,48 +176,30 @@ def load_bench_text(text: str, source: str = "<bench>") -> Bench:
 
 
 def _resolve(located: yamlfile.LocatedData) -> Bench:
-    yamlfile.check_format(located, FORMAT, "bench file")
-    model = yamlfile.validate(BenchFile, located)
-    problems = []
+    early: list[str] = []
+    try:
+        yamlfile.check_format(located, FORMAT, "bench file")
+    except ProcedureError as exc:
+        early.extend(exc.problems)
+    try:
+        model = yamlfile.validate(BenchFile, located)
+    except ProcedureError as exc:
+        # The accuracy lines that are valid in themselves are checked too: every problem at once.
+        raise ProcedureError(early + exc.problems + _line_problems(located)) from None
+    if early:
+        raise ProcedureError(early)
+    problems: list[str] = []
 
     def quantity(loc: tuple, text, unit: str) -> float:
-        try:
-            value = parse_value(text, unit)
-        except UnitError as exc:
-            problems.append(located.problem(loc, str(exc)))
-            return 0.0
-        if value < 0:
-            problems.append(located.problem(loc, f"must be zero or more, got {text!r}"))
-        return value
+        return _quantity(located, problems, loc, text, unit)
 
     settle = quantity(("settle",), model.settle, "s")
     timeout = quantity(("calibrator", "timeout"), model.calibrator.timeout, "s")
     dc = quantity(("safety", "hazardous-dc"), model.safety.hazardous_dc, "V")
     rms = quantity(("safety", "hazardous-ac-rms"), model.safety.hazardous_ac_rms, "V")
     peak = quantity(("safety", "hazardous-ac-peak"), model.safety.hazardous_ac_peak, "V")
-    accuracy = []
-    for i, line in enumerate(model.calibrator.accuracy):
-        loc = ("calibrator", "accuracy", i)
-        unit = FUNCTION_UNITS[line.function]
-        before = len(problems)
-        rng = quantity(loc + ("range",), line.range, unit)
-        output = _ppm(located, loc + ("output",), line.output, problems)
-        of_range = _ppm(located, loc + ("of-range",), line.of_range, problems)
-        floor = quantity(loc + ("floor",), line.floor, unit)
-        level = _level(located, loc + ("level",), line.level, problems)
-        low = high = None
-        if line.from_ is not None or line.to is not None:
-            if not line.function.startswith("ac-") or line.from_ is None or line.to is None:
-                problems.append(located.problem(loc, "a frequency band needs both 'from' and 'to', on an AC function"))
-            else:
-                low = quantity(loc + ("from",), line.from_, "Hz")
-                high = quantity(loc + ("to",), line.to, "Hz")
-        if rng == 0 and len(problems) == before:
-            problems.append(located.problem(loc + ("range",), "must be more than zero"))
-        if len(problems) == before:
-            spec = CalibratorSpec(output_ppm=output, range_ppm=of_range, floor=floor, level=level)
-            accuracy.append(SpecLine(function=line.function, range=rng, spec=spec, low_hz=low, high_hz=high,
-                                     text=_spec_text(line)))
+    accuracy = [spec for i, line in enumerate(model.calibrator.accuracy)
+                if (spec := _spec_line(located, ("calibrator", "accuracy", i), line, problems)) is not None]
     limits = []
     for i, limit in enumerate(model.calibrator.resistance_current):
         before = len(problems)
@@ -241,6 +223,59 @@ def _resolve(located: yamlfile.LocatedData) -> Bench:
     return Bench(file=model, text=located.text, source=located.source, settle_s=settle,
                  timeout_s=timeout, hazardous_dc=dc, hazardous_ac_rms=rms, hazardous_ac_peak=peak,
                  accuracy=tuple(accuracy), resistance_current=tuple(sorted(limits)))
+
+
+def _quantity(located, problems: list[str], loc: tuple, text, unit: str) -> float:
+    """A quantity of the bench file in ``unit``, zero or more (a problem is noted, 0.0 returned)."""
+    try:
+        value = parse_value(text, unit)
+    except UnitError as exc:
+        problems.append(located.problem(loc, str(exc)))
+        return 0.0
+    if value < 0:
+        problems.append(located.problem(loc, f"must be zero or more, got {text!r}"))
+    return value
+
+
+def _spec_line(located, loc: tuple, line: AccuracyLine, problems: list[str]) -> SpecLine | None:
+    """One accuracy line resolved, or ``None`` with its problems noted."""
+    unit = FUNCTION_UNITS[line.function]
+    before = len(problems)
+    rng = _quantity(located, problems, loc + ("range",), line.range, unit)
+    output = _ppm(located, loc + ("output",), line.output, problems)
+    of_range = _ppm(located, loc + ("of-range",), line.of_range, problems)
+    floor = _quantity(located, problems, loc + ("floor",), line.floor, unit)
+    level = _level(located, loc + ("level",), line.level, problems)
+    low = high = None
+    if line.from_ is not None or line.to is not None:
+        if not line.function.startswith("ac-") or line.from_ is None or line.to is None:
+            problems.append(located.problem(loc, "a frequency band needs both 'from' and 'to', on an AC function"))
+        else:
+            low = _quantity(located, problems, loc + ("from",), line.from_, "Hz")
+            high = _quantity(located, problems, loc + ("to",), line.to, "Hz")
+    if rng == 0 and len(problems) == before:
+        problems.append(located.problem(loc + ("range",), "must be more than zero"))
+    if len(problems) != before:
+        return None
+    spec = CalibratorSpec(output_ppm=output, range_ppm=of_range, floor=floor, level=level)
+    return SpecLine(function=line.function, range=rng, spec=spec, low_hz=low, high_hz=high, text=_spec_text(line))
+
+
+def _line_problems(located) -> list[str]:
+    """The problems of each accuracy line valid in itself, in a file whose structure is not."""
+    from pydantic import ValidationError
+
+    data = located.data if isinstance(located.data, dict) else {}
+    calibrator = data.get("calibrator")
+    lines = calibrator.get("accuracy") if isinstance(calibrator, dict) else None
+    problems: list[str] = []
+    for i, item in enumerate(lines if isinstance(lines, list) else []):
+        try:
+            line = AccuracyLine.model_validate(item)
+        except ValidationError:
+            continue  # its problems are among the structure's
+        _spec_line(located, ("calibrator", "accuracy", i), line, problems)
+    return problems
 
 
 def _ppm(located, loc, text, problems) -> float:
