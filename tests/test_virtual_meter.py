@@ -7,6 +7,7 @@ and the value at ``θ`` is ``Rx = Rc (arc - θ) / θ`` (both derived from f = Rc
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import textwrap
 from decimal import ROUND_FLOOR, Decimal
@@ -56,14 +57,12 @@ PROCEDURE = textwrap.dedent("""\
         accuracy: {percent-of-full-scale: 2}
         resolution: 1 deg
         points: [5 V]
-      - id: v-none
-        function: dc-voltage
-        full-scale: 10 V
-        accuracy: {percent-of-full-scale: 2}
-        points: [5 V]
     """)
 
 RANGES = {r.id: r for r in load_procedure_text(PROCEDURE, "proc.yaml").ranges}
+# A procedure must state each range's readability; a range without one is made here directly,
+# for the writing of a value when none is known.
+RANGES["v-none"] = dataclasses.replace(RANGES["v-deg"], id="v-none", resolution=None, resolution_domain=None)
 
 
 def at_degrees(theta: float, centre: float, arc: float = 90.0) -> float:
