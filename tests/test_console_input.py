@@ -30,7 +30,7 @@ from verirun.errors import RunAborted
 from verirun.lab import load_lab
 from verirun.procedure.load import load_procedure_text
 from verirun.record import read_journal
-from verirun.session import confirmed_points, execute
+from verirun.session import confirmed_steps, execute
 
 DATA = Path(__file__).resolve().parent / "data"
 
@@ -227,10 +227,11 @@ class TestUndo:
         assert "nothing to undo" in out and not any(d["kind"] == "withdrawal" for d in docs)
 
     def test_a_withdrawn_point_is_pending_on_resume(self):
-        """A point whose entry was withdrawn is measured again when the run is resumed."""
-        docs = [{"kind": "observation", "point": "a"}, {"kind": "observation", "point": "b"},
-                {"kind": "withdrawal", "point": "b"}]
-        assert confirmed_points(docs) == frozenset({"a"})
+        """A step whose entry was withdrawn is measured again when the run is resumed; a step is
+        told by its index, so a repeat of the same value is a step of its own."""
+        docs = [{"kind": "observation", "point": "a", "index": 0}, {"kind": "observation", "point": "b", "index": 1},
+                {"kind": "observation", "point": "b", "index": 2}, {"kind": "withdrawal", "point": "b", "index": 2}]
+        assert confirmed_steps(docs) == frozenset({0, 1})
 
 
 class TestHazardPrompt:

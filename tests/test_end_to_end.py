@@ -33,26 +33,26 @@ from verirun.session import execute
 # series ohms: deflection θ = arc × Rc/(Rc+Rx), window θ0 ± 3°, limits Rx = Rc (arc - θ)/θ
 # (derived from f = Rc/(Rc+Rx)); here arc = 90° and Rc = 16 Ω (×1) or 16 kΩ (×1k).
 EXPECTED = {
-    "dcv-6@1.2": "pass",        # 1.25 in 1.05..1.35 (class 2.5 of 6 V = 0.15 V)
-    "dcv-6@2.4": "pass",
-    "dcv-6@3.6": "pass",        # 3.75 exactly on the upper limit 3.6 + 0.15: included
-    "dcv-6@4.8": "fail",        # 4.6 below 4.8 - 0.15 = 4.65
-    "dcv-6@6.0": "pass",        # 6.1 in 5.85..6.15
-    "dcv-30@6.0": "pass",       # 6.5 in 5.25..6.75 (class 2.5 of 30 V = 0.75 V)
-    "dcv-30@15.0": "pass",
-    "dcv-30@30.0": "pass",      # 30.75 exactly on the upper limit: included
-    "dca-30m@0.006": "pass",    # 6.5 mA in 5.1..6.9 mA (3 % of 30 mA = 0.9 mA)
-    "dca-30m@0.015": "pass",    # 15.8 mA (typed in amperes, 0.0158) below 15.9 mA
-    "dca-30m@0.03": "fail",     # 29 mA below 29.1 mA
-    "acv-30@6.0@50.0Hz": "pass",   # 6 in 4.8..7.2 (4 % of 30 V = 1.2 V)
-    "acv-30@15.0@50.0Hz": "pass",  # 15.5 in 13.8..16.2
-    "acv-30@30.0@50.0Hz": "pass",
-    "ohm-x1@4.0": "pass",       # θ0 = 90 × 16/20 = 72°; 69°..75° -> 4.8696 .. 3.2 Ω; 4.5 in
-    "ohm-x1@16.0": "pass",      # θ0 = 45°; 42°..48° -> 18.286 .. 14 Ω; 15 in
-    "ohm-x1@64.0": "fail",      # θ0 = 90 × 16/80 = 18°; 15°..21° -> 80 .. 52.571 Ω; 85 above 80
-    "ohm-x1k@4000.0": "pass",   # 3.2 .. 4.8696 kΩ; 4 kΩ in
-    "ohm-x1k@16000.0": "fail",  # 14 .. 18.286 kΩ; 18.5 kΩ above
-    "ohm-x1k@500000.0": "pass",  # θ0 = 90 × 16/516 = 2.7907° < 3°: unbounded above; 1 MΩ in
+    "dcv-6@1.2V": "pass",        # 1.25 in 1.05..1.35 (class 2.5 of 6 V = 0.15 V)
+    "dcv-6@2.4V": "pass",
+    "dcv-6@3.6V": "pass",        # 3.75 exactly on the upper limit 3.6 + 0.15: included
+    "dcv-6@4.8V": "fail",        # 4.6 below 4.8 - 0.15 = 4.65
+    "dcv-6@6V": "pass",        # 6.1 in 5.85..6.15
+    "dcv-30@6V": "pass",       # 6.5 in 5.25..6.75 (class 2.5 of 30 V = 0.75 V)
+    "dcv-30@15V": "pass",
+    "dcv-30@30V": "pass",      # 30.75 exactly on the upper limit: included
+    "dca-30m@6mA": "pass",    # 6.5 mA in 5.1..6.9 mA (3 % of 30 mA = 0.9 mA)
+    "dca-30m@15mA": "pass",    # 15.8 mA (typed in amperes, 0.0158) below 15.9 mA
+    "dca-30m@30mA": "fail",     # 29 mA below 29.1 mA
+    "acv-30@6V@50Hz": "pass",   # 6 in 4.8..7.2 (4 % of 30 V = 1.2 V)
+    "acv-30@15V@50Hz": "pass",  # 15.5 in 13.8..16.2
+    "acv-30@30V@50Hz": "pass",
+    "ohm-x1@4ohm": "pass",       # θ0 = 90 × 16/20 = 72°; 69°..75° -> 4.8696 .. 3.2 Ω; 4.5 in
+    "ohm-x1@16ohm": "pass",      # θ0 = 45°; 42°..48° -> 18.286 .. 14 Ω; 15 in
+    "ohm-x1@64ohm": "fail",      # θ0 = 90 × 16/80 = 18°; 15°..21° -> 80 .. 52.571 Ω; 85 above 80
+    "ohm-x1k@4kohm": "pass",   # 3.2 .. 4.8696 kΩ; 4 kΩ in
+    "ohm-x1k@16kohm": "fail",  # 14 .. 18.286 kΩ; 18.5 kΩ above
+    "ohm-x1k@500kohm": "pass",  # θ0 = 90 × 16/516 = 2.7907° < 3°: unbounded above; 1 MΩ in
 }
 
 
@@ -161,7 +161,7 @@ class TestDemoEndToEnd:
         assert record["procedure"]["sha256"] == hashlib.sha256(text.encode()).hexdigest()
         assert record["bench"]["calibrator"]["identity"].startswith("Verirun Simulation")
         assert record["run"]["software"]["name"] == "verirun"
-        row = next(r for r in record["points"] if r["key"] == "ohm-x1k@16000.0")
+        row = next(r for r in record["points"] if r["key"] == "ohm-x1k@16kohm")
         # 3 degrees of a 90 degree arc at centre scale (f0 = 0.5, df = 3/90 = 1/30):
         # 16 kΩ × (1 - f)/f at f = 0.5 ± 1/30, i.e. 16 kΩ × 14/16 .. 16 kΩ × 16/14
         assert row["low"] == pytest.approx(16000 * 14 / 16)
@@ -169,7 +169,7 @@ class TestDemoEndToEnd:
         assert row["error_unit"] == "deg"
         # reading 18.5 kΩ: θ = 90 × 16/34.5 = 41.739°; error = θ - 45° = -3.261°
         assert row["error"] == pytest.approx(90 * 16 / 34.5 - 45)
-        far = next(r for r in record["points"] if r["key"] == "ohm-x1k@500000.0")
+        far = next(r for r in record["points"] if r["key"] == "ohm-x1k@500kohm")
         # θ0 = 90 × 16/516 = 2.7907°: the 3° tolerance reaches the open end, so no upper limit;
         # the lower limit is at θ0 + 3° = 5.7907°: 16 kΩ × (90 - 5.7907)/5.7907 = 232.67 kΩ
         assert far["high"] is None  # an unbounded limit is stored as null

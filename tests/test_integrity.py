@@ -127,7 +127,7 @@ class TestVerify:
         """Documents appended by the journal chain to one another from a zero hash."""
         with Journal(tmp_path / "j.jsonl") as journal:
             for n in range(3):
-                journal.append({"kind": "note", "text": str(n)})
+                journal.append({"kind": "note", "time": "2026-12-01T09:00:00Z", "point": None, "text": str(n)})
         docs = read_journal(tmp_path / "j.jsonl").documents
         assert [d["seq"] for d in docs] == [0, 1, 2]
         assert verify_chain(docs) == []

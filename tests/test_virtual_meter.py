@@ -179,8 +179,8 @@ class TestTheDemoMeter:
         meter = VirtualMeter(demo_procedure_path.parent / "virtual-meter.yaml")
         points = plan(load_procedure(demo_procedure_path))
         verdicts = {p.key: evaluate(p, meter.take(p).value).verdict for p in points}
-        assert [k for k, v in verdicts.items() if v != "pass"] == ["ohm-x1k@16000.0"]
-        far = next(p for p in points if p.key == "ohm-x1k@500000.0")
+        assert [k for k, v in verdicts.items() if v != "pass"] == ["ohm-x1k@16kohm"]
+        far = next(p for p in points if p.key == "ohm-x1k@500kohm")
         assert math.isinf(far.window.high) and verdicts[far.key] == "pass"
         assert far.window.low == pytest.approx(at_degrees(1440 / 516 + 3, 16000.0))  # 232.67 kΩ
 
@@ -189,6 +189,6 @@ class TestTheDemoMeter:
         path = tmp_path / "meter.yaml"
         path.write_text("format: 1\nmeter: m\nranges:\n  ohm-x1: {centre: 0.01 ohm}\n", encoding="utf-8")
         meter = VirtualMeter(path)
-        point = next(p for p in plan(load_procedure(demo_procedure_path)) if p.key == "ohm-x1@64.0")
+        point = next(p for p in plan(load_procedure(demo_procedure_path)) if p.key == "ohm-x1@64ohm")
         with pytest.raises(ProcedureError, match="sits at infinity"):
             meter.take(point)

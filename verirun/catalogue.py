@@ -2,24 +2,24 @@
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
-from verirun.record import JOURNAL_NAME, RECORD_NAME, read_journal
+from verirun.errors import RecordError
+from verirun.record import JOURNAL_NAME, RECORD_NAME, load_record, read_journal
 
 
 def summary(folder: Path) -> dict | None:
     """One run's summary: item, procedure, date, overall verdict and status (``None``: not a run).
 
     Status is ``complete``; ``aborted`` (stopped on purpose or by a fault, resumable); or
-    ``resumable`` (interrupted with no stop written: a crash or power loss).
+    ``resumable`` (interrupted with no stop written: a crash or power loss). A folder whose files
+    cannot be read as a run's gives ``status`` ``unreadable`` and the ``problem``.
     """
     record_path, journal_path = folder / RECORD_NAME, folder / JOURNAL_NAME
     try:
         if record_path.exists():
-            record = json.loads(record_path.read_text(encoding="utf-8"))
+            record = load_record(record_path)
             status = record["run"]["status"]
-            journal_docs = None
             if journal_path.exists():
                 # A record left behind by a crash is older than its journal.
                 journal_docs = read_journal(journal_path).documents
@@ -27,39 +27,67 @@ def summary(folder: Path) -> dict | None:
                     status = "resumable"
             from verirun.certificate.render import certificate_number
 
-            return {"run": folder.name, "path": str(folder), "item": record["item"].get("serial"),
-                    "procedure": record["procedure"]["id"], "revision": record["procedure"]["revision"],
-                    "date": record["run"]["started"][:10], "verdict": record["summary"]["overall"],
-                    "status": "aborted" if status in ("failed",) else status,
-                    "uid": record["run"]["uid"], "record_revision": record["run"].get("revision", 1),
-                    "certificate": certificate_number(record) if status == "complete" else None,
-                    "customer": (record.get("customer") or {}).get("name"),
-                    "simulated": bool(record["bench"].get("simulated")),
-                    "as_found_run": (record.get("as_found") or {}).get("run"), "as_left_run": None}
-        if journal_path.exists():
+            row = {"run": folder.name, "path": str(folder), "item": record["item"].get("serial"),
+                   "procedure": record["procedure"]["id"], "revision": record["procedure"]["revision"],
+                   "date": record["run"]["started"][:10], "verdict": record["summary"]["overall"],
+                   "status": "aborted" if status in ("failed",) else status,
+                   "uid": record["run"]["uid"], "record_revision": record["run"].get("revision", 1),
+                   "certificate": certificate_number(record) if status == "complete" else None,
+                   "customer": (record.get("customer") or {}).get("name"),
+                   "simulated": bool(record["bench"].get("simulated")),
+                   "as_found_run": (record.get("as_found") or {}).get("run"), "as_left_run": None}
+        elif journal_path.exists():
             docs = read_journal(journal_path).documents
             if not docs or docs[0].get("kind") != "start":
                 return None
             start = docs[0]
-            return {"run": folder.name, "path": str(folder), "item": start["item"].get("serial"),
-                    "procedure": start["procedure"]["id"], "revision": start["procedure"]["revision"],
-                    "date": start["time"][:10], "verdict": "none", "status": "resumable",
-                    "uid": start["uid"], "record_revision": 1, "certificate": None,
-                    "customer": (start.get("customer") or {}).get("name"),
-                    "simulated": bool(start["bench"].get("simulated")),
-                    "as_found_run": (start.get("as_found") or {}).get("run"), "as_left_run": None}
-    except (OSError, ValueError, KeyError, TypeError, AttributeError):
-        return {"run": folder.name, "path": str(folder), "item": None, "procedure": "?", "revision": "?",
-                "date": "?", "verdict": "?", "status": "unreadable", "uid": None, "record_revision": None,
-                "certificate": None, "customer": None, "simulated": None, "as_found_run": None,
-                "as_left_run": None}
-    return None
+            row = {"run": folder.name, "path": str(folder), "item": start["item"].get("serial"),
+                   "procedure": start["procedure"]["id"], "revision": start["procedure"]["revision"],
+                   "date": start["time"][:10], "verdict": "none", "status": "resumable",
+                   "uid": start["uid"], "record_revision": 1, "certificate": None,
+                   "customer": (start.get("customer") or {}).get("name"),
+                   "simulated": bool(start["bench"].get("simulated")),
+                   "as_found_run": (start.get("as_found") or {}).get("run"), "as_left_run": None}
+        else:
+            return None
+        _check_row(row)
+        return row
+    except RecordError as exc:
+        problem = str(exc)
+    except (OSError, ValueError, KeyError, TypeError, AttributeError, IndexError, RecursionError) as exc:
+        problem = f"{folder}: not a run verirun wrote ({type(exc).__name__}: {exc})"
+    return {"run": folder.name, "path": str(folder), "item": None, "procedure": "?", "revision": "?",
+            "date": "?", "verdict": "?", "status": "unreadable", "uid": None, "record_revision": None,
+            "certificate": None, "customer": None, "simulated": None, "as_found_run": None,
+            "as_left_run": None, "problem": problem}
+
+
+#: The fields of a summary that may be nothing; every other one but these two is text.
+_MAY_BE_NONE = {"item", "certificate", "customer", "as_found_run", "as_left_run"}
+
+
+def _check_row(row: dict) -> None:
+    """Every field of a summary has its type: a crafted file cannot put a number, a list or a
+    mapping where the listing prints text."""
+    for name, value in row.items():
+        if name == "record_revision":
+            ok = isinstance(value, int) and not isinstance(value, bool)
+        elif name == "simulated":
+            ok = isinstance(value, bool)
+        elif name == "revision" and isinstance(value, int) and not isinstance(value, bool):
+            row[name], ok = str(value), True
+        else:
+            ok = isinstance(value, str) or (value is None and name in _MAY_BE_NONE)
+        if not ok:
+            raise TypeError(f"{name} is {type(value).__name__}, not what a run's summary holds")
 
 
 def list_runs(root: str | Path, *, item: str | None = None, since: str | None = None,
               until: str | None = None) -> list[dict]:
     """Summaries of the runs under ``root``, oldest first, filtered by item serial (any case)
-    and dates; an as-found run names the as-left run that followed it, and the other way round."""
+    and dates; an as-found run names the as-left run that followed it, and the other way round.
+    A folder that cannot be read as a run is listed with status ``unreadable`` and its problem
+    (it matches no item or date filter)."""
     root = Path(root)
     if not root.is_dir():
         return []
@@ -68,6 +96,9 @@ def list_runs(root: str | Path, *, item: str | None = None, since: str | None = 
     for folder in sorted(p for p in root.iterdir() if p.is_dir()):
         row = summary(folder)
         if row is None:
+            continue
+        if row["status"] == "unreadable":
+            rows.append(row)
             continue
         every.append(row)
         if wanted is not None and (row["item"] or "").strip().casefold() != wanted:

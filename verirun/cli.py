@@ -15,7 +15,7 @@ from pathlib import Path
 
 from verirun import __version__
 
-EXIT_OK, EXIT_ERROR, EXIT_ABORTED, EXIT_BENCH, EXIT_UNSAFE, EXIT_BUG = 0, 1, 2, 3, 4, 70
+EXIT_OK, EXIT_ERROR, EXIT_ABORTED, EXIT_BENCH, EXIT_UNSAFE, EXIT_BUSY, EXIT_BUG = 0, 1, 2, 3, 4, 5, 70
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -102,6 +102,8 @@ def _parser() -> argparse.ArgumentParser:
 
     verify = sub.add_parser("verify", help="check that stored runs are as recorded (journal chain and record)")
     verify.add_argument("runs", type=Path, nargs="+", help="run folders")
+    verify.add_argument("--reports", type=Path, default=Path("reports"),
+                        help="folder of certificates, checked against the runs' journals (if it exists)")
 
     certify = sub.add_parser("certify", help="render certificates again from stored run records")
     certify.add_argument("runs", type=Path, nargs="+",
@@ -180,6 +182,12 @@ def main(argv: list[str] | None = None) -> int:
         _err("stopped: interrupted; the output was put in standby and read back off")
         _resume_hint(exc)
         return EXIT_ABORTED
+    except OSError as exc:  # a file verirun could not write or read: a fault of the bench
+        from verirun.storage import what_to_do
+
+        _err(f"error: {what_to_do(exc, getattr(exc, 'filename', None) or '')}")
+        _resume_hint(exc)
+        return EXIT_BENCH
     except Exception as exc:  # a bug; never a traceback for the user
         if os.environ.get("VERIRUN_DEBUG"):
             raise
@@ -192,9 +200,20 @@ def _err(text: str) -> None:
 
 
 def _resume_hint(exc: BaseException) -> None:
+    """Say how to go on, only where that can work: the run's journal holds its start."""
+    from verirun.record import read_journal
+
     run_dir = getattr(exc, "run_dir", None)
-    if run_dir is not None and (Path(run_dir) / "journal.jsonl").exists():
-        _err(f"every confirmed reading is kept in {run_dir}; continue with: verirun resume {run_dir}")
+    if run_dir is None:
+        return
+    try:
+        docs = read_journal(Path(run_dir) / "journal.jsonl").documents
+    except Exception:  # unreadable: resume would say why; no promise is made here
+        return
+    if not docs or docs[0].get("kind") != "start":
+        return
+    fix = "once that is fixed, " if type(exc).__name__ == "StorageError" or isinstance(exc, OSError) else ""
+    _err(f"every confirmed reading is kept in {run_dir}; {fix}continue with: verirun resume {run_dir}")
 
 
 def _cmd_check(args) -> int:
@@ -358,7 +377,7 @@ def _cmd_verify(args) -> int:
 
     failed = 0
     for path in args.runs:
-        found = problems(path)
+        found = problems(path, reports=args.reports)
         if found:
             failed += 1
             for line in found:
@@ -440,6 +459,10 @@ def _cmd_runs(args) -> int:
 
     rows = list_runs(args.runs, item=args.item, since=_date(args.since, "--since"),
                      until=_date(args.until, "--until"))
+    for row in rows:
+        if row["status"] == "unreadable":
+            _err(f"skipped {row['path']}: {row['problem']}")
+    rows = [row for row in rows if row["status"] != "unreadable"]
     if args.json:
         print(json.dumps(rows, ensure_ascii=False, indent=1))
         return EXIT_OK

@@ -19,18 +19,26 @@ correction  a reading of a finished run was corrected (``verirun amend``): a new
 stop        the run ended: complete, aborted or failed, with the reason
 ========== ==================================================================================
 
-Documents are validated when they are read back; the JSON Schema of the union
-(:func:`journal_schema`) ships with the package as ``schema/journal.schema.json``.
+Documents are validated when they are read back (:func:`document_problem`, after the strict
+parse of :func:`parse_json`), so a damaged or crafted journal is reported by file and line
+before anything reads it; the JSON Schema of the union (:func:`journal_schema`) ships with the
+package as ``schema/journal.schema.json``.
+
+Journal formats: 2 (``journal_format`` in the start document) labels points by their values as
+the procedure writes them (``dca-50u@10uA``) and identifies them by step; 1 (no
+``journal_format``) labelled them by the float's repr (``dca-50u@9.999999999999999e-06``).
+Both are read as they are.
 """
 
 from __future__ import annotations
 
+import json
 from typing import Annotated, Any, Literal, Union
 
-from pydantic import BaseModel, ConfigDict, Field, TypeAdapter
+from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, ValidationError
 
-#: Version of the journal document layout described here.
-JOURNAL_FORMAT = 1
+#: Version of the journal document layout described here (see the module's docstring).
+JOURNAL_FORMAT = 2
 
 Sha256 = Annotated[str, Field(pattern=r"^[0-9a-f]{64}$", description="a SHA-256 digest, hex")]
 Time = Annotated[str, Field(pattern=r"^\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d(\.\d+)?Z$",
@@ -115,14 +123,14 @@ class LabAsRun(Part):
 
 class Customer(Part):
     name: str
-    address: list[str] = Field(description="lines of the customer's address")
+    address: list[str] = Field(default=[], description="lines of the customer's address")
 
 
 class Item(Part):
     serial: str = Field(description="serial number of the meter under test")
-    asset: str | None = Field(description="the customer's asset number, if given")
-    condition: str = Field(description="condition of the item as received")
-    received: Date | None = Field(description="date the item was received")
+    asset: str | None = Field(default=None, description="the customer's asset number, if given")
+    condition: str | None = Field(default=None, description="condition of the item as received")
+    received: Date | None = Field(default=None, description="date the item was received")
 
 
 class Environment(Part):
@@ -160,23 +168,41 @@ class Start(Chained):
     environment: Environment
     as_found: AsFound | None = Field(default=None, description="set for an as-left run")
     reports: str | None = Field(default=None, description="the folder the run's certificate goes to")
+    journal_format: int | None = Field(default=None, ge=2, description="the journal's format (none: 1)")
 
 
 # --- documents written during the run ---------------------------------------------------------
 
-PointKey = Annotated[str, Field(description="the test point's key: range@nominal[@frequency]")]
+PointKey = Annotated[str, Field(description="the test point's label: range@nominal[@frequency], as"
+                                             " the procedure writes them (format 1: their float repr)")]
 Step = Annotated[int, Field(ge=0, description="the step's index in the plan, from 0")]
 
 
+class Renewal(Part):
+    """The standard's calibration renewed between a stop and the resume (its bench file then
+    differs from the run's only in these)."""
+
+    certificate: str = Field(description="the standard's new calibration certificate")
+    calibration_due: Date = Field(description="when the renewed calibration is due")
+    traceability: str | None = Field(description="the traceability statement of the standard")
+    bench_sha256: Sha256 = Field(description="SHA-256 of the bench file resumed with")
+    bench_source: str = Field(description="where that file was read from")
+    bench_text: str = Field(description="the whole bench file resumed with")
+
+
 class Resume(Chained):
-    """A stopped run is continued."""
+    """A stopped run is continued; with ``pending`` 0 and no ``identity``, a run whose every step
+    had an entry is closed without the bench."""
 
     kind: Literal["resume"]
-    identity: str = Field(description="the calibrator's identity, as it answered now")
+    identity: str | None = Field(description="the calibrator's identity, as it answered now (none"
+                                 " when the run was closed without the bench)")
     pending: int = Field(ge=0, description="how many steps were still to be measured")
     recovered_torn_line: bool = Field(description="whether a torn last line was cut off")
     recovered_text: str | None = Field(description="the text of that torn line, kept")
     environment: Environment | None = Field(default=None, description="the conditions when it was continued")
+    standard_renewed: Renewal | None = Field(default=None, description="set when the standard's"
+                                             " calibration was renewed before the resume")
 
 
 class Applied(Part):
@@ -215,6 +241,9 @@ class Note(Chained):
     text: str = Field(description="the remark")
     hazardous: bool | None = Field(default=None,
                                    description="true when it records hazardous output permitted")
+    clock_went_back: Time | None = Field(default=None, description="set when the computer's clock"
+                                         " went back: the time it then gave (the note is dated at"
+                                         " the latest time journaled before)")
 
 
 class Withdrawal(Chained):
@@ -264,6 +293,59 @@ def validate_document(data: Any) -> BaseModel:
         If it is not one of the document kinds, or a field does not fit.
     """
     return _ADAPTER.validate_python(data)
+
+
+def document_problem(data: Any) -> str | None:
+    """What is wrong with one parsed journal line, in one line (``None`` when it is a document
+    of one of the kinds described here)."""
+    if not isinstance(data, dict):
+        return "not a journal document (not a JSON object)"
+    kind = data.get("kind")
+    if kind not in _KINDS:
+        return f"unknown document kind {kind!r}"
+    try:
+        validate_document(data)
+    except ValidationError as exc:
+        error = exc.errors()[0]
+        where = ".".join(str(part) for part in error["loc"][1:]) or kind
+        return f"{kind}: field {where}: {error['msg']}" + (f" (got {_shown(error['input'])})"
+                                                            if error["type"] != "missing" else "")
+    return None
+
+
+_KINDS = ("start", "resume", "observation", "skip", "note", "withdrawal", "correction", "stop")
+
+
+def _shown(value: Any) -> str:
+    text = repr(value)
+    return text if len(text) <= 40 else text[:37] + "..."
+
+
+def _no_duplicates(pairs: list[tuple[str, Any]]) -> dict:
+    seen: dict = {}
+    for key, value in pairs:
+        if key in seen:
+            raise ValueError(f"the key {key!r} appears twice")
+        seen[key] = value
+    return seen
+
+
+def _no_constant(name: str):
+    raise ValueError(f"{name} is not a number verirun writes")
+
+
+def parse_json(text: str) -> Any:
+    """Parse stored JSON strictly: no NaN or infinity, no key twice, no runaway nesting.
+
+    Raises
+    ------
+    ValueError
+        Saying what is wrong.
+    """
+    try:
+        return json.loads(text, object_pairs_hook=_no_duplicates, parse_constant=_no_constant)
+    except RecursionError:  # the parser recurses once per level of nesting
+        raise ValueError("nested too deep to be a document verirun writes") from None
 
 
 def journal_schema() -> dict:

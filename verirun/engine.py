@@ -15,11 +15,12 @@ from verirun import __version__
 from verirun.bench.config import Bench
 from verirun.bench.safety import HazardLimits, is_hazardous, output_guard
 from verirun.clock import SystemClock, iso
-from verirun.errors import BenchError, RunAborted, VerirunError
+from verirun.errors import BenchError, RunAborted, StorageError, VerirunError
 from verirun.evaluation import evaluate
 from verirun.procedure.load import Procedure
 from verirun.procedure.plan import TestPoint, plan
 from verirun.readings import Entry, ReadingSource
+from verirun.documents import JOURNAL_FORMAT
 from verirun.record import Journal
 
 
@@ -55,7 +56,7 @@ def start_document(*, uid: str, time: str, procedure: Procedure, bench: Bench, i
     """The first document of a run's journal: everything needed to replay and certify it."""
     cal = bench.file.calibrator
     return {
-        "kind": "start", "uid": uid, "time": time,
+        "kind": "start", "uid": uid, "time": time, "journal_format": JOURNAL_FORMAT,
         "software": {"name": "verirun", "version": __version__},
         "procedure": {"id": procedure.id, "title": procedure.file.procedure.title,
                       "revision": procedure.revision, "sha256": procedure.sha256,
@@ -93,7 +94,7 @@ class Engine:
     clock
         Source of time and of settling waits.
     results
-        If given, each reading's evaluation is also put here under its point's key.
+        If given, each reading's evaluation is also put here under its point's index.
     """
 
     def __init__(self, *, procedure: Procedure, bench: Bench, calibrator, readings: ReadingSource,
@@ -111,9 +112,14 @@ class Engine:
         #: The points given an entry in this session, with it, newest last (for undo).
         self._taken: list[tuple[TestPoint, Entry]] = []
         self.results = results if results is not None else {}
+        self.journal_format = JOURNAL_FORMAT
+        #: The latest time journaled: no document is dated before it (see _now).
+        self._latest: str | None = None
+        self._behind = False
 
     def run(self, context: RunContext, *, uid: str | None = None, resume: dict | None = None,
-            done: frozenset[str] = frozenset(), points: list[TestPoint] | None = None) -> Outcome:
+            done: frozenset[int] = frozenset(), points: list[TestPoint] | None = None,
+            not_before: str | None = None, renewed: dict | None = None) -> Outcome:
         """Run every point of the plan not in ``done``; return how the run ended.
 
         The calibrator is identified first and checked against the bench file (and, when
@@ -130,13 +136,21 @@ class Engine:
             The start document of the journal being resumed; a ``resume`` document is written
             instead of a new start.
         done
-            Keys of the points that already have a confirmed entry.
+            Indexes (0-based steps) of the points that already have a confirmed entry.
         points
             The plan of the procedure on this bench, when the caller has made it already.
+        not_before
+            The time of the journal's last document (when resuming): none is dated earlier.
+        renewed
+            When resuming with a bench file whose standard has a new calibration: what changed,
+            journaled in the resume document.
         """
         uid = uid or uuid_mod.uuid4().hex
+        self._latest = not_before
+        #: How points are labelled in this journal (a resumed run keeps the format it began in).
+        self.journal_format = resume.get("journal_format", 1) if resume is not None else JOURNAL_FORMAT
         points = [p for p in (points if points is not None else plan(self.procedure, self.bench))
-                  if p.key not in done]
+                  if p.index not in done]
         cal = self.calibrator
         status, reason = "failed", "the run did not finish"
         self._where: "str | TestPoint" = "identify the calibrator"
@@ -145,18 +159,19 @@ class Engine:
                 identity, problem = self._identify()
                 if resume is None:
                     # Written even when the identity is refused, so the journal says why it stopped.
-                    self.journal.append(start_document(uid=uid, time=iso(self.clock.now()),
+                    self.journal.append(start_document(uid=uid, time=self._now(),
                                                        procedure=self.procedure, bench=self.bench,
                                                        identity=identity, context=context))
                 if problem is not None:
                     raise problem
                 if resume is not None:
                     self._check_same_calibrator(identity, resume)
-                    self.journal.append({"kind": "resume", "time": iso(self.clock.now()),
+                    self.journal.append({"kind": "resume", "time": self._now(),
                                          "identity": identity, "pending": len(points),
                                          "environment": context.environment,
                                          "recovered_torn_line": self.journal.recovered is not None,
-                                         "recovered_text": self.journal.recovered})
+                                         "recovered_text": self.journal.recovered,
+                                         **({"standard_renewed": renewed} if renewed else {})})
                 self._clear_stale_errors()
                 self.console.cautions()
                 for number, point in enumerate(points):
@@ -179,8 +194,45 @@ class Engine:
             raise
         finally:
             if self.journal_started:
-                self.journal.append({"kind": "stop", "time": iso(self.clock.now()), "status": status,
-                                     "reason": reason, "counts": dict(self.counts)})
+                try:
+                    self.journal.append({"kind": "stop", "time": self._now(), "status": status,
+                                         "reason": reason, "counts": dict(self.counts)})
+                except StorageError:
+                    # The disk that refused the run refuses its stop too; without one the run is
+                    # resumable, and the error that stopped it is what the operator must see.
+                    if status == "complete":
+                        raise
+
+    def _now(self) -> str:
+        """The time for the next document, never before the latest one journaled: a clock set
+        back (by hand, or a time server's correction) is journaled once per jump, and the
+        documents keep the later time, so a record's dates never run backwards."""
+        text = iso(self.clock.now())
+        latest = self._latest
+        if latest is not None and text < latest:
+            if not self._behind:  # journaled once, until the clock has caught up again
+                self._behind = True
+                self.journal.append({"kind": "note", "time": latest, "point": None, "clock_went_back": text,
+                                     "text": f"the computer's clock went back, to {text}, after {latest} had"
+                                             " been journaled; the times that follow are kept from going"
+                                             " backwards"})
+            return latest
+        self._latest, self._behind = text, False
+        return text
+
+    def _check_standard_in_date(self, point: TestPoint) -> None:
+        """Refuse to switch the output on with a standard whose calibration fell due since the
+        run began (a run across midnight): the run stops resumable, the output in standby."""
+        due = self.bench.file.calibrator.calibration_due
+        today = self._now()[:10]
+        if today > due.isoformat():
+            raise BenchError(f"the standard {self.bench.file.calibrator.asset} fell due for calibration on"
+                             f" {due.isoformat()} and today is {today}; the run cannot go on with an overdue"
+                             " standard. Name a standard in date in the bench file (calibration-due), then"
+                             " resume the run with --bench", step=self._step_name(point))
+
+    def _label(self, point: TestPoint) -> str:
+        return point.key_in(self.journal_format)
 
     def _where_text(self) -> str:
         where = self._where
@@ -222,7 +274,7 @@ class Engine:
             raise exc.at_step(self._where) from None
         if stale:
             text = "; ".join(f"{code} {message}".strip() for code, message in stale)
-            self.journal.append({"kind": "note", "time": iso(self.clock.now()), "point": None,
+            self.journal.append({"kind": "note", "time": self._now(), "point": None,
                                  "text": f"errors left in the calibrator's queue before the run, cleared: {text}"})
 
     def _step_name(self, point: TestPoint) -> str:
@@ -234,6 +286,7 @@ class Engine:
                 self.calibrator.standby()
                 self.console.connect(point)
             while True:
+                self._check_standard_in_date(point)
                 # Asked before every switch-on at a hazardous level, a repeat included: the
                 # output was in standby and hands may have been at the terminals.
                 if self._check_hazard(point) == "skip":
@@ -274,7 +327,7 @@ class Engine:
             self.console.say(f"  skipped: {entry.text}")
             return
         result = evaluate(point, entry.value)
-        self.results[point.key] = result
+        self.results[point.index] = result
         self.counts[result.verdict] = self.counts.get(result.verdict, 0) + 1
         self.console.result(point, entry, result)
 
@@ -300,10 +353,10 @@ class Engine:
         if entry.kind == "reading":
             self.journal.append(self._observation(point, entry))
         elif entry.kind == "skip":
-            self.journal.append({"kind": "skip", "time": iso(self.clock.now()), "point": point.key,
+            self.journal.append({"kind": "skip", "time": self._now(), "point": self._label(point),
                                  "index": point.index, "reason": entry.text, "typed": entry.typed})
         else:
-            self.journal.append({"kind": "note", "time": iso(self.clock.now()), "point": point.key,
+            self.journal.append({"kind": "note", "time": self._now(), "point": self._label(point),
                                  "text": "operator aborted the run" + (f": {entry.text}" if entry.text else "")})
 
     def _take(self, point: TestPoint) -> Entry:
@@ -312,12 +365,12 @@ class Engine:
             entry = self.readings.take(point)
             if entry.kind != "note":
                 return entry
-            self.journal.append({"kind": "note", "time": iso(self.clock.now()), "point": point.key,
+            self.journal.append({"kind": "note", "time": self._now(), "point": self._label(point),
                                  "text": entry.text})
             self.console.say("  note recorded")
 
     def _observation(self, point: TestPoint, entry: Entry) -> dict:
-        return {"kind": "observation", "time": iso(self.clock.now()), "point": point.key,
+        return {"kind": "observation", "time": self._now(), "point": self._label(point),
                 "index": point.index, "range": point.range.id, "function": point.function,
                 "applied": {"value": point.nominal, "frequency": point.frequency},
                 "typed": entry.typed, "reading": entry.value}
@@ -345,6 +398,6 @@ class Engine:
             raise RunAborted(f"{self._step_name(point)} would apply {point.stimulus_text()}, a hazardous"
                              " voltage, in a scripted run; the bench file does not permit it"
                              " (safety: scripted-hazardous: allow)")
-        self.journal.append({"kind": "note", "time": iso(self.clock.now()), "point": point.key,
+        self.journal.append({"kind": "note", "time": self._now(), "point": self._label(point),
                              "text": f"hazardous output {point.stimulus_text()} {how}",
                              "hazardous": True})

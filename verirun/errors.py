@@ -86,3 +86,16 @@ class RunAborted(VerirunError):
     """The operator stopped the run; it can be resumed."""
 
     exit_code = 2
+
+
+class StorageError(VerirunError):
+    """A file of a run or report folder could not be written (a full disk, a read-only folder, a
+    path that is a file): a fault of the bench, resumable once it is fixed."""
+
+    exit_code = 3
+
+
+class BusyError(VerirunError):
+    """Another verirun process holds the run folder or the calibrator."""
+
+    exit_code = 5

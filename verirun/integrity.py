@@ -7,10 +7,12 @@ journal closes into (so an edit to either shows).
 
 from __future__ import annotations
 
+import glob
+import re
 from pathlib import Path
 
 from verirun.errors import RecordError
-from verirun.record import JOURNAL_NAME, RECORD_NAME, load_record, read_journal, verify_chain
+from verirun.record import JOURNAL_NAME, RECORD_NAME, dumps, line_hash, load_record, read_journal, verify_chain
 from verirun.runrecord import build_record
 
 
@@ -30,8 +32,62 @@ def run_folder(path: str | Path) -> Path:
     raise RecordError(f"{path}: no such run folder")
 
 
-def problems(path: str | Path) -> list[str]:
-    """Every integrity problem of the stored run at ``path`` (empty when it verifies)."""
+_JOURNAL_META = re.compile(rb'<meta name="verirun-journal" content="(\d+) ([0-9a-f]{64})">')
+
+
+def reaches(documents: list[dict], count, head) -> bool:
+    """True when ``documents`` reach the point a record or certificate was made from: they hold
+    at least ``count`` documents and the ``count``-th hashes to ``head``."""
+    if isinstance(count, bool) or not isinstance(count, int) or not 1 <= count <= len(documents):
+        return False
+    return line_hash(dumps(documents[count - 1])) == head
+
+
+def reach_problems(folder: Path, documents: list[dict], reports: Path | None = None) -> list[str]:
+    """Each record, earlier revision or certificate of the run in ``folder`` that was made from
+    more of the journal than ``documents`` now holds (the journal was cut short or replaced)."""
+    found = []
+    made = sorted(folder.glob("record.r*.json"))
+    if (folder / RECORD_NAME).exists():
+        made.append(folder / RECORD_NAME)
+    for path in made:
+        try:
+            run = load_record(path).get("run")
+            count, head = run.get("documents"), run.get("journal_sha256_last")
+        except (RecordError, AttributeError) as exc:
+            found.append(str(exc) if isinstance(exc, RecordError) else f"{path}: not a run record")
+            continue
+        if not reaches(documents, count, head):
+            found.append(f"{path}: was closed from {count!r} journal documents, but the journal no longer"
+                         f" reaches that point (it holds {len(documents)}): it was cut short or replaced")
+    if reports is not None and documents and documents[0].get("kind") == "start":
+        for cert in _certificates_of(documents[0], reports):
+            match = _JOURNAL_META.search(cert.read_bytes())
+            if match and not reaches(documents, int(match.group(1)), match.group(2).decode()):
+                found.append(f"{cert}: this certificate was issued from {int(match.group(1))} journal"
+                             f" documents, but the run's journal no longer reaches that point (it holds"
+                             f" {len(documents)}): it was cut short or replaced")
+    return found
+
+
+def _certificates_of(start: dict, reports: Path) -> list[Path]:
+    """The certificates in ``reports`` numbered for the run that ``start`` begins."""
+    from verirun.certificate.render import certificate_number, safe_file_name
+
+    try:
+        stem = safe_file_name(certificate_number({"lab": start["lab"], "run": {
+            "started": start["time"], "uid": start["uid"], "revision": 1}}))
+    except (KeyError, TypeError, AttributeError):
+        return []
+    if not Path(reports).is_dir():
+        return []
+    return sorted(p for p in Path(reports).glob(f"{glob.escape(stem)}*.html")
+                  if p.is_file() and not p.is_symlink())
+
+
+def problems(path: str | Path, reports: str | Path | None = None) -> list[str]:
+    """Every integrity problem of the stored run at ``path`` (empty when it verifies); with
+    ``reports``, its certificates there are checked against its journal as well."""
     try:
         folder = run_folder(path)
     except RecordError as exc:
@@ -48,12 +104,19 @@ def problems(path: str | Path) -> list[str]:
     found.extend(verify_chain(read.documents, str(journal_path)))
     if found:
         return found
+    found.extend(reach_problems(folder, read.documents, Path(reports) if reports is not None else None))
+    if found:
+        return found
     try:
         rebuilt = build_record(read.documents, str(journal_path))
         stored = load_record(folder / RECORD_NAME)
     except RecordError as exc:
         return [str(exc)]
-    if stored != rebuilt:
+    if stored != rebuilt and stored.get("run", {}).get("documents", 0) < len(read.documents):
+        found.append(f"{folder / RECORD_NAME}: is older than its journal (closed from"
+                     f" {stored['run']['documents']} of its {len(read.documents)} documents): the run was"
+                     f" interrupted before its record was written again; 'verirun resume {folder}' writes it")
+    elif stored != rebuilt:
         keys = sorted(k for k in set(stored) | set(rebuilt) if stored.get(k) != rebuilt.get(k))
         found.append(f"{folder / RECORD_NAME}: the record differs from what its journal records"
                      f" (in {', '.join(keys)}): it was edited, or written by another version")

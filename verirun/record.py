@@ -10,6 +10,7 @@ journal embeds, by the same pure functions the run used), and the end of the run
 
 from __future__ import annotations
 
+import errno
 import hashlib
 import json
 import math
@@ -18,10 +19,12 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Iterable
 
+from verirun import storage
+from verirun.documents import document_problem, parse_json
 from verirun.errors import RecordError
 
 #: Version of the run record layout.
-RECORD_FORMAT = 1
+RECORD_FORMAT = 2
 JOURNAL_NAME = "journal.jsonl"
 RECORD_NAME = "record.json"
 GENESIS = "0" * 64
@@ -52,14 +55,18 @@ class Journal:
         self._prev = GENESIS
         #: The torn last line dropped when an interrupted journal was reopened, if any.
         self.recovered: str | None = None
+        if self.path.is_symlink():  # never written through: see verirun.storage
+            raise storage.storage_error(OSError(errno.ELOOP, "is a symbolic link", str(self.path)), self.path)
         if self.path.exists():
             read = read_journal(self.path)
             self._repair(read)
             if read.documents:
                 self._seq = read.documents[-1]["seq"] + 1
                 self._prev = line_hash(dumps(read.documents[-1]))
-        self.path.parent.mkdir(parents=True, exist_ok=True)
-        self._file = open(self.path, "a", encoding="utf-8", newline="\n")
+        storage.make_folder(self.path.parent)
+        # Unbuffered, appending, not through a symlink: a failed write leaves nothing queued to
+        # be written later, and what did reach the file is cut off again (see _write_line).
+        self._fd = storage.open_append(self.path)
 
     def _repair(self, read: "JournalRead") -> None:
         """Make the file end at a whole line: cut a torn last line, end a whole one with a newline."""
@@ -82,12 +89,27 @@ class Journal:
         """Write ``doc`` as one line with its sequence number and chain hash; fsync; return it."""
         full = {**doc, "seq": self._seq, "prev": self._prev}
         line = dumps(full)
-        self._file.write(line + "\n")
-        self._file.flush()
-        os.fsync(self._file.fileno())
+        self._write_line(line)
         self._seq += 1
         self._prev = line_hash(line)
         return full
+
+    def _write_line(self, line: str) -> None:
+        """Write one line and fsync it, or leave the file as it was and raise StorageError: a
+        full disk or a failing device never leaves a part of a line behind."""
+        if self._fd is None:
+            raise RecordError(f"{self.path}: the journal is closed")
+        end = os.lseek(self._fd, 0, os.SEEK_END)
+        try:
+            storage.write_all(self._fd, (line + "\n").encode("utf-8"))
+            os.fsync(self._fd)
+        except OSError as exc:
+            try:
+                os.ftruncate(self._fd, end)
+                os.fsync(self._fd)
+            except OSError:  # a torn last line is dropped when the journal is next opened
+                pass
+            raise storage.storage_error(exc, self.path) from None
 
     @property
     def written(self) -> int:
@@ -96,8 +118,9 @@ class Journal:
 
     def close(self) -> None:
         """Close the file (every line is already on disk)."""
-        if not self._file.closed:
-            self._file.close()
+        if self._fd is not None:
+            fd, self._fd = self._fd, None
+            os.close(fd)
 
     def __enter__(self) -> "Journal":
         return self
@@ -142,11 +165,12 @@ def read_journal(path: str | Path) -> JournalRead:
     docs = []
     for number, line in enumerate(lines, start=1):
         try:
-            doc = json.loads(line)
-        except ValueError:
-            raise RecordError(f"{path}:{number}: not a journal document (the file is damaged)") from None
-        if not isinstance(doc, dict) or "kind" not in doc or "seq" not in doc:
-            raise RecordError(f"{path}:{number}: not a journal document (no kind or seq)")
+            doc = parse_json(line)
+        except ValueError as exc:
+            raise RecordError(f"{path}:{number}: not a journal document ({exc})") from None
+        problem = document_problem(doc)
+        if problem is not None:
+            raise RecordError(f"{path}:{number}: not a journal document verirun writes: {problem}")
         docs.append(doc)
     return JournalRead(documents=docs, torn_line=torn)
 
@@ -180,32 +204,35 @@ def json_number(value: float | None) -> float | None:
 
 
 def write_record(record: dict, path: str | Path) -> Path:
-    """Write a run record atomically (temporary file, fsync, rename)."""
-    path = Path(path)
-    tmp = path.with_suffix(".tmp")
-    with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
-        # The canonical compact form, written a top-level entry (and a list item) at a time:
-        # one string of a long run's whole record would double its memory, and ``json.dump``
-        # streams through the pure-Python encoder, several times slower than ``dumps``.
-        if all(isinstance(key, str) for key in record):
-            fh.write("{")
-            for number, key in enumerate(sorted(record)):
-                fh.write(("," if number else "") + dumps(key) + ":")
-                value = record[key]
-                if isinstance(value, list):
-                    fh.write("[")
-                    for position, item in enumerate(value):
-                        fh.write(("," if position else "") + dumps(item))
-                    fh.write("]")
-                else:
-                    fh.write(dumps(value))
-            fh.write("}\n")
-        else:  # keys that are not text (not a record verirun builds): in one piece
-            fh.write(dumps(record) + "\n")
-        fh.flush()
-        os.fsync(fh.fileno())
-    os.replace(tmp, path)
-    return path
+    """Write a run record atomically (temporary file, fsync, rename; see :mod:`verirun.storage`).
+
+    Raises
+    ------
+    StorageError
+        If it cannot be written; the previous record, if any, is kept and no temporary is left.
+    """
+    return storage.write_atomic(path, _record_pieces(record))
+
+
+def _record_pieces(record: dict):
+    """The canonical compact form of ``record``, a top-level entry (and a list item) at a time:
+    one string of a long run's whole record would double its memory, and ``json.dump`` streams
+    through the pure-Python encoder, several times slower than ``dumps``."""
+    if not all(isinstance(key, str) for key in record):  # not a record verirun builds: in one piece
+        yield dumps(record) + "\n"
+        return
+    yield "{"
+    for number, key in enumerate(sorted(record)):
+        yield ("," if number else "") + dumps(key) + ":"
+        value = record[key]
+        if isinstance(value, list):
+            yield "["
+            for position, item in enumerate(value):
+                yield ("," if position else "") + dumps(item)
+            yield "]"
+        else:
+            yield dumps(value)
+    yield "}\n"
 
 
 def load_record(path: str | Path) -> dict:
@@ -220,7 +247,7 @@ def load_record(path: str | Path) -> dict:
     if path.is_dir():
         path = path / RECORD_NAME
     try:
-        record = json.loads(path.read_text(encoding="utf-8"))
+        record = parse_json(path.read_text(encoding="utf-8"))
     except FileNotFoundError:
         raise RecordError(f"{path}: no run record here (is the run finished? try 'verirun resume')") from None
     except (OSError, UnicodeDecodeError) as exc:
@@ -229,7 +256,8 @@ def load_record(path: str | Path) -> dict:
         raise RecordError(f"{path}: not a run record (not valid JSON: {exc})") from None
     if not isinstance(record, dict) or "record_format" not in record:
         raise RecordError(f"{path}: not a run record (no record_format)")
-    if not isinstance(record["record_format"], int) or record["record_format"] > RECORD_FORMAT:
+    if (not isinstance(record["record_format"], int) or isinstance(record["record_format"], bool)
+            or record["record_format"] > RECORD_FORMAT):
         raise RecordError(f"{path}: run record format {record['record_format']!r} is newer than this"
                           f" verirun reads ({RECORD_FORMAT}); upgrade verirun")
     return record

@@ -26,13 +26,13 @@ from verirun.units import format_fixed, format_quantity
 class Known:
     """What a run worked out while it wrote its journal, so that closing the journal need not
     work it out again: the procedure and bench it ran, their plan, and the evaluation of each
-    reading by point key. The record uses them only where they are the journal's own: the same
+    reading by step index. The record uses them only where they are the journal's own: the same
     procedure and bench texts, and an evaluation of the very reading the journal holds."""
 
     procedure: Procedure
     bench: Bench
     points: list[TestPoint]
-    results: dict[str, Result] = field(default_factory=dict)
+    results: dict[int, Result] = field(default_factory=dict)
 
     def holds(self, start: dict) -> bool:
         """True when the procedure and bench are those of the journal's start document."""
@@ -41,6 +41,23 @@ class Known:
 
 
 def build_record(documents: list[dict], source: str = "journal", *, known: Known | None = None) -> dict:
+    """The run record of a journal's ``documents`` (see :func:`_build`).
+
+    Raises
+    ------
+    RecordError
+        If the journal is not one verirun writes, saying where.
+    """
+    try:
+        return _build(documents, source, known=known)
+    except RecordError:
+        raise
+    except (KeyError, TypeError, ValueError, AttributeError, IndexError, ArithmeticError) as exc:
+        # The documents passed the checks of each one alone, yet do not fit together.
+        raise RecordError(f"{source}: not a journal verirun writes ({type(exc).__name__}: {exc})") from None
+
+
+def _build(documents: list[dict], source: str = "journal", *, known: Known | None = None) -> dict:
     """The run record of a journal's ``documents``.
 
     ``known`` (from the run that wrote the journal) saves loading, planning and evaluating again;
@@ -68,51 +85,13 @@ def build_record(documents: list[dict], source: str = "journal", *, known: Known
             raise RecordError(f"{source}: the procedure or bench stored in the journal does not load:"
                               f" {exc}") from None
         planned, results = plan(procedure, bench), {}
-    points = {p.key: p for p in planned}
-    entries: dict[str, dict] = {}
-    notes = []
-    stop = None
-    revision = 1
-    corrections: dict[str, dict] = {}
-    for doc in documents[1:]:
-        kind = doc["kind"]
-        if kind in ("observation", "skip", "correction"):
-            if doc["point"] not in points:
-                raise RecordError(f"{source}: document {doc['seq']} names point {doc['point']!r},"
-                                  " which the procedure does not have")
-            if kind == "correction":
-                revision += 1
-                previous = entries.get(doc["point"])
-                corrections[doc["point"]] = {
-                    "revision": revision, "time": doc["time"], "reason": doc["reason"],
-                    "by": doc["operator"], "previous_typed": previous.get("typed") if previous else None}
-                notes.append({"time": doc["time"], "point": doc["point"],
-                              "text": f"revision {revision}: reading of {doc['point']} corrected from"
-                                      f" {corrections[doc['point']]['previous_typed']!r} to {doc['typed']!r}"
-                                      f" by {doc['operator']}: {doc['reason']}"})
-            entries[doc["point"]] = doc  # a later entry for the same point supersedes
-        elif kind == "withdrawal":
-            withdrawn = entries.pop(doc["point"], None)
-            notes.append({"time": doc["time"], "point": doc["point"],
-                          "text": f"entry {doc.get('typed')!r} of step {doc.get('index', 0) + 1} withdrawn by the"
-                                  " operator before the run went on, and measured again"
-                                  if withdrawn is not None else "a withdrawal of an entry the journal does not hold"})
-        elif kind == "note":
-            notes.append({"time": doc["time"], "point": doc.get("point"), "text": doc["text"]})
-        elif kind == "resume":
-            notes.append({"time": doc["time"], "point": None,
-                          "text": f"run resumed after an interruption with {doc['pending']} points to go"
-                                  + ("; a cut-off last journal line was dropped" if doc.get("recovered_torn_line") else "")
-                                  + (_conditions(doc.get("environment"))
-                                     if doc.get("environment") != start.get("environment") else "")})
-        elif kind == "stop":
-            stop = doc
+    journal_format = start.get("journal_format", 1)
+    entries, corrections, notes, stop, revision = _entries(documents, planned, journal_format, source)
     rows = []
-    for key, point in points.items():
-        doc = entries.get(key)
-        row = _row(point, doc, results.get(key))
-        if key in corrections:
-            row["correction"] = corrections[key]
+    for point in planned:
+        row = _row(point, entries.get(point.index), results.get(point.index), journal_format)
+        if point.index in corrections:
+            row["correction"] = corrections[point.index]
         rows.append(row)
     counts = {"points": len(rows), "pass": 0, "fail": 0, "skipped": 0, "not-measured": 0}
     for row in rows:
@@ -122,7 +101,7 @@ def build_record(documents: list[dict], source: str = "journal", *, known: Known
         status = "incomplete"
     overall = ("fail" if counts["fail"] else "pass") if counts["pass"] + counts["fail"] else "none"
     return {
-        "record_format": RECORD_FORMAT,
+        "record_format": 1 if journal_format < 2 else RECORD_FORMAT,
         "run": {"uid": start["uid"], "started": start["time"], "ended": stop["time"] if stop else None,
                 "status": status, "reason": stop.get("reason") if stop else None,
                 "operator": start["operator"], "software": start["software"],
@@ -151,9 +130,106 @@ def _range(rng) -> dict:
             "accuracy": [b.text for b in rng.bands], "read_on": rng.read_on}
 
 
-def _row(point, doc: dict | None, known: Result | None = None) -> dict:
+def _entries(documents: list[dict], planned: list[TestPoint], journal_format: int, source: str):
+    """Each step's confirmed entry, the corrections, notes, last stop and revision of a journal.
+
+    A journal is a start, then sessions: entries and notes up to a stop; after a stop that is
+    not complete, only a resume begins the next session; after a complete stop, only
+    corrections (each a new revision). One entry per step: a second is an edit, not a reading.
+
+    Raises
+    ------
+    RecordError
+        Naming the document that breaks these rules.
+    """
+    entries: dict[int, dict] = {}
+    corrections: dict[int, dict] = {}
+    notes: list[dict] = []
+    stop = None
+    revision = 1
+    for doc in documents[1:]:
+        kind = doc["kind"]
+        where = f"{source}:{doc['seq'] + 1}: {kind}"
+        if stop is not None and stop["status"] == "complete" and kind != "correction":
+            raise RecordError(f"{where}: written after the run was closed complete (only a"
+                              " correction may follow); the journal was edited")
+        if stop is not None and stop["status"] != "complete" and kind != "resume":
+            raise RecordError(f"{where}: written after a stop without a resume between; the journal"
+                              " was edited")
+        if kind == "correction" and stop is None:
+            raise RecordError(f"{where}: a correction of a run that is not closed; the journal was edited")
+        if kind in ("observation", "skip", "correction"):
+            point = _step_of(doc, planned, journal_format, where)
+            if kind != "correction" and point.index in entries:
+                raise RecordError(f"{where}: a second entry for step {point.step} ({point.key_in(journal_format)});"
+                                  " a step has one confirmed entry, so the journal was edited")
+            if kind == "correction":
+                revision += 1
+                previous = entries.get(point.index)
+                label = doc["point"]
+                corrections[point.index] = {
+                    "revision": revision, "time": doc["time"], "reason": doc["reason"],
+                    "by": doc["operator"], "previous_typed": previous.get("typed") if previous else None}
+                notes.append({"time": doc["time"], "point": label,
+                              "text": f"revision {revision}: reading of {_step_label(point, label, journal_format)}"
+                                      f" corrected from {corrections[point.index]['previous_typed']!r} to"
+                                      f" {doc['typed']!r} by {doc['operator']}: {doc['reason']}"})
+            entries[point.index] = doc  # a correction supersedes the entry it corrects
+        elif kind == "withdrawal":
+            point = _step_of(doc, planned, journal_format, where)
+            withdrawn = entries.pop(point.index, None)
+            notes.append({"time": doc["time"], "point": doc["point"],
+                          "text": f"entry {doc.get('typed')!r} of step {point.step} withdrawn by the"
+                                  " operator before the run went on, and measured again"
+                                  if withdrawn is not None else "a withdrawal of an entry the journal does not hold"})
+        elif kind == "note":
+            notes.append({"time": doc["time"], "point": doc.get("point"), "text": doc["text"]})
+        elif kind == "resume":
+            stop = None
+            if doc["pending"] == 0 and doc.get("identity") is None:
+                text = ("run closed after an interruption: every step already had a confirmed entry,"
+                        " so nothing was measured again")
+            else:
+                text = f"run resumed after an interruption with {doc['pending']} points to go"
+            renewed = doc.get("standard_renewed")
+            if isinstance(renewed, dict):
+                text += (f"; the standard's calibration was renewed before it resumed: certificate"
+                         f" {renewed.get('certificate')}, due {renewed.get('calibration_due')}")
+            notes.append({"time": doc["time"], "point": None,
+                          "text": text + ("; a cut-off last journal line was dropped"
+                                          if doc.get("recovered_torn_line") else "")
+                                  + (_conditions(doc.get("environment"))
+                                     if doc.get("environment") != documents[0].get("environment") else "")})
+        elif kind == "stop":
+            stop = doc
+        else:
+            raise RecordError(f"{where}: a second start document; the journal was edited")
+    return entries, corrections, notes, stop, revision
+
+
+def _step_label(point: TestPoint, label: str, journal_format: int) -> str:
+    # Records of the first format named the point by its label alone; kept so they rebuild the same.
+    return label if journal_format < 2 else f"step {point.step} ({label})"
+
+
+def _step_of(doc: dict, planned: list[TestPoint], journal_format: int, where: str) -> TestPoint:
+    """The step a journal entry is for: its ``index``, which must carry the step's label."""
+    index = doc.get("index")
+    if index is None and journal_format < 2:  # the first format's entries may lack it
+        index = next((p.index for p in planned if p.legacy_key == doc["point"]), None)
+    if index is None or not 0 <= index < len(planned):
+        raise RecordError(f"{where}: names step {'?' if index is None else index + 1} ({doc['point']!r}),"
+                          f" which the procedure does not have (it has steps 1 to {len(planned)})")
+    point = planned[index]
+    if doc["point"] != point.key_in(journal_format):
+        raise RecordError(f"{where}: names point {doc['point']!r} at step {point.step}, which is"
+                          f" {point.key_in(journal_format)!r} in the procedure")
+    return point
+
+
+def _row(point, doc: dict | None, known: Result | None = None, journal_format: int = 2) -> dict:
     win = point.window
-    row = {"index": point.index, "key": point.key, "range": point.range.id, "unit": point.unit,
+    row = {"index": point.index, "key": point.key_in(journal_format), "range": point.range.id, "unit": point.unit,
            "nominal": point.nominal, "frequency": point.frequency, "stimulus": point.stimulus_text(),
            "low": json_number(win.low), "high": json_number(win.high), "domain": win.domain,
            "half_width": win.half_width, "accuracy": point.accuracy_text,

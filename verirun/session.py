@@ -9,13 +9,14 @@ from __future__ import annotations
 import contextlib
 import dataclasses
 import re
+import shutil
 import signal
 import uuid as uuid_mod
 from dataclasses import dataclass
 from importlib.resources import as_file, files
 from pathlib import Path
 
-from verirun import preflight
+from verirun import preflight, storage
 from verirun.bench.config import Bench, load_bench, load_bench_text
 from verirun.bench.profile import load_profile
 from verirun.procedure.plan import plan
@@ -24,7 +25,8 @@ from verirun.clock import SystemClock
 from verirun.engine import Engine, Outcome, RunContext
 from verirun.errors import ProcedureError, RecordError, VerirunError
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
-from verirun.record import JOURNAL_NAME, RECORD_NAME, Journal, read_journal, verify_chain, write_record
+from verirun.locks import calibrator_lock, run_lock
+from verirun.record import JOURNAL_NAME, RECORD_NAME, Journal, load_record, read_journal, write_record
 from verirun.runrecord import Known, build_record
 
 
@@ -88,14 +90,22 @@ def open_calibrator(bench: Bench, *, simulate: bool, workdir: Path, profile):
     with the loaded driver ``profile`` of the bench file."""
     from verirun.bench.calibrator import Calibrator
 
+    library, resource = _calibrator_address(bench, simulate=simulate, workdir=workdir)
+    return Calibrator.open(library, resource, profile, timeout_ms=int(bench.timeout_s * 1000))
+
+
+def _calibrator_address(bench: Bench, *, simulate: bool, workdir: Path) -> tuple[str, str]:
+    """The VISA library and resource of the run's calibrator."""
     cal = bench.file.calibrator
     if simulate:
         from verirun.bench.sim import SIM_RESOURCE, sim_library
 
-        library, resource = sim_library(workdir / "simulated-calibrator"), SIM_RESOURCE
-    else:
-        library, resource = cal.visa_library, cal.resource
-    return Calibrator.open(library, resource, profile, timeout_ms=int(bench.timeout_s * 1000))
+        folder = workdir / "simulated-calibrator"
+        for path in (folder / "calibrator.yaml", folder):  # written below: never through a link
+            if path.is_symlink():
+                path.unlink()
+        return sim_library(folder), SIM_RESOURCE
+    return cal.visa_library, cal.resource
 
 
 def execute(*, procedure: Procedure, bench: Bench, context: RunContext, readings, console,
@@ -105,7 +115,8 @@ def execute(*, procedure: Procedure, bench: Bench, context: RunContext, readings
 
     The journal is written in a new folder under ``runs_dir``; when the run ends (however it
     ends) the journal is closed into ``record.json`` there, and a complete run's certificate is
-    rendered into ``reports_dir``. Exceptions propagate after the record is written.
+    rendered into ``reports_dir``. Exceptions propagate after the record is written. A run that
+    stops before its start document is journaled leaves no folder behind.
     """
     clock = clock or SystemClock()
     uid = uid or uuid_mod.uuid4().hex
@@ -115,21 +126,39 @@ def execute(*, procedure: Procedure, bench: Bench, context: RunContext, readings
     points = plan(procedure, bench)
     check_readings(readings, points)
     preflight.check(points, bench, profile, today=clock.now().date())
+    storage.make_folder(runs_dir)
     run_dir = Path(runs_dir) / run_folder_name(context.item.get("serial", "item"), uid, clock.now())
-    run_dir.mkdir(parents=True, exist_ok=False)
-    return _drive(run_dir=run_dir, procedure=procedure, bench=bench, context=context, readings=readings,
-                  console=console, reports_dir=reports_dir, simulate=simulate, clock=clock, uid=uid,
-                  calibrator=calibrator, profile=profile, points=points)
+    storage.make_folder(run_dir, exist_ok=False)
+    try:
+        with run_lock(run_dir):
+            return _drive(run_dir=run_dir, procedure=procedure, bench=bench, context=context,
+                          readings=readings, console=console, reports_dir=reports_dir, simulate=simulate,
+                          clock=clock, uid=uid, calibrator=calibrator, profile=profile, points=points)
+    except BaseException as exc:
+        if not _has_start(run_dir):
+            # Nothing was journaled: the folder holds no run, and no resume could continue it.
+            shutil.rmtree(run_dir, ignore_errors=True)
+            exc.run_dir = None  # type: ignore[attr-defined]
+        raise
+
+
+def _has_start(run_dir: Path) -> bool:
+    try:
+        docs = read_journal(run_dir / JOURNAL_NAME).documents
+    except RecordError:
+        return (run_dir / JOURNAL_NAME).exists() and (run_dir / JOURNAL_NAME).stat().st_size > 0
+    return bool(docs) and docs[0].get("kind") == "start"
 
 
 def _drive(*, run_dir: Path, procedure, bench, context, readings, console, reports_dir, simulate,
            clock, uid, calibrator, profile, points, resume: dict | None = None,
-           done: frozenset[str] = frozenset()) -> Finished:
+           done: frozenset[int] = frozenset(), not_before: str | None = None,
+           renewed: dict | None = None) -> Finished:
     """Open the bench, run the engine on ``run_dir``'s journal, and close the run however it ends.
 
     Whatever ends the run, the journal is closed into the run record; the certificate is
     rendered only for a complete run. An exception is re-raised with ``run_dir`` attached, so
-    the caller can say where the resumable run lies.
+    the caller can say where the resumable run lies. The caller holds the run folder's lock.
     """
     own_calibrator = calibrator is None
     journal = Journal(run_dir / JOURNAL_NAME)
@@ -138,16 +167,17 @@ def _drive(*, run_dir: Path, procedure, bench, context, readings, console, repor
     known = Known(procedure=procedure, bench=bench, points=points, results={})
     try:
         with _sigterm_as_interrupt():
-            if own_calibrator:
-                calibrator = open_calibrator(bench, simulate=simulate, workdir=run_dir, profile=profile)
-            try:
+            with contextlib.ExitStack() as held:
+                if own_calibrator:
+                    if not simulate:  # one verirun per instrument (a simulated one is the run's own)
+                        held.enter_context(calibrator_lock(bench.file.calibrator.resource))
+                    calibrator = open_calibrator(bench, simulate=simulate, workdir=run_dir, profile=profile)
+                    held.callback(calibrator.close)
                 engine = Engine(procedure=procedure, bench=bench, calibrator=calibrator,
                                 readings=readings, console=console, journal=journal, clock=clock,
                                 results=known.results)
-                outcome = engine.run(context, uid=uid, resume=resume, done=done, points=points)
-            finally:
-                if own_calibrator:
-                    calibrator.close()
+                outcome = engine.run(context, uid=uid, resume=resume, done=done, points=points,
+                                     not_before=not_before, renewed=renewed)
     except BaseException as exc:
         journal.close()
         try:
@@ -157,9 +187,18 @@ def _drive(*, run_dir: Path, procedure, bench, context, readings, console, repor
         exc.run_dir = run_dir  # type: ignore[attr-defined]
         raise
     journal.close()
-    record = close_run(run_dir, known=known)
-    complete = record is not None and record["run"]["status"] == "complete"
-    certificate = write_certificate(record, reports_dir) if complete else None
+    return _finish(run_dir, reports_dir, known=known, outcome=outcome)
+
+
+def _finish(run_dir: Path, reports_dir: Path, *, known: Known | None, outcome=None) -> Finished:
+    """Close the journal into the record and render a complete run's certificate."""
+    try:
+        record = close_run(run_dir, known=known)
+        complete = record is not None and record["run"]["status"] == "complete"
+        certificate = write_certificate(record, reports_dir) if complete else None
+    except BaseException as exc:
+        exc.run_dir = run_dir  # type: ignore[attr-defined]
+        raise
     return Finished(outcome=outcome, run_dir=run_dir, record_path=run_dir / RECORD_NAME,
                     certificate=certificate, record=record)
 
@@ -209,7 +248,7 @@ def resumable(run_dir: Path) -> Resumable:
             environment = doc["environment"]
     return Resumable(run_dir=run_dir, uid=start["uid"], serial=start["item"].get("serial"),
                      procedure=f"{start['procedure']['id']} revision {start['procedure']['revision']}",
-                     kept=len(confirmed_points(docs)), points=points,
+                     kept=len(confirmed_steps(docs)), points=points,
                      simulated=bool(start["bench"].get("simulated")),
                      reports=Path(start["reports"]) if start.get("reports") else None, environment=environment)
 
@@ -217,65 +256,162 @@ def resumable(run_dir: Path) -> Resumable:
 def resume(*, run_dir: Path, procedure_path: Path | None, bench_path: Path | None, readings, console,
            reports_dir: Path | None = None, serial: str | None = None, clock=None, calibrator=None,
            environment: dict | None = None) -> Finished:
-    """Continue a stopped or crashed run at its first point without a confirmed entry.
+    """Continue a stopped or crashed run at its first step without a confirmed entry.
 
     The procedure and bench files (by default the ones the run started from, else the copies
     its journal holds) must be the same as when the run started, by SHA-256; the item serial,
-    when given, must match; the calibrator must report the same identity.
+    when given, must match; the calibrator must report the same identity. A run whose every
+    step has a confirmed entry is closed without the bench (nothing is measured again), and a
+    closed run whose record or certificate is missing or stale has them written again.
 
     Raises
     ------
     RecordError
-        If the run cannot be resumed: unreadable journal, already complete, or a file changed.
+        If the run cannot be resumed: unreadable journal, already closed, or a file changed.
+    BusyError
+        If another process holds the run folder.
     """
     clock = clock or SystemClock()
     run_dir = Path(run_dir)
-    read = read_journal(run_dir / JOURNAL_NAME)
+    if not (run_dir / JOURNAL_NAME).is_file():
+        raise RecordError(f"{run_dir}: no run journal here; nothing to resume")
+    with run_lock(run_dir):
+        return _resume_locked(run_dir=run_dir, procedure_path=procedure_path, bench_path=bench_path,
+                              readings=readings, console=console, reports_dir=reports_dir, serial=serial,
+                              clock=clock, calibrator=calibrator, environment=environment)
+
+
+def _resume_locked(*, run_dir, procedure_path, bench_path, readings, console, reports_dir, serial, clock,
+                   calibrator, environment) -> Finished:
+    from verirun.integrity import reach_problems
+
+    journal_path = run_dir / JOURNAL_NAME
+    read = read_journal(journal_path)
     docs = read.documents
     if not docs or docs[0].get("kind") != "start":
         raise RecordError(f"{run_dir}: the journal has no start document; nothing to resume")
-    problems = verify_chain(docs, str(run_dir / JOURNAL_NAME))
-    if problems:
-        raise RecordError("the journal does not verify, so the run cannot be resumed:\n" + "\n".join(problems))
+    try:
+        record = build_record(docs, str(journal_path))
+    except RecordError as exc:
+        raise RecordError(f"the journal does not verify, so the run cannot be resumed:\n{exc}") from None
+    cut = reach_problems(run_dir, docs)
+    if cut:
+        raise RecordError("the run cannot be resumed: its journal no longer reaches what was recorded"
+                          " from it:\n" + "\n".join(cut))
     start = docs[0]
     procedure = _same_file(procedure_path, start["procedure"], "procedure", load_procedure, load_procedure_text)
-    bench = _same_file(bench_path, start["bench"], "bench file", load_bench, load_bench_text)
+    bench, renewed = _resume_bench(bench_path, start["bench"])
     if serial is not None and serial != start["item"].get("serial"):
         raise RecordError(f"{run_dir}: this run is for item {start['item'].get('serial')!r}, not {serial!r}")
-    done = confirmed_points(docs)
     points = plan(procedure, bench)
-    pending = [p for p in points if p.key not in done]
+    if reports_dir is None:  # where the run started putting its certificate
+        reports_dir = Path(start.get("reports") or "reports")
+    if record["run"]["status"] in ("complete", "incomplete"):
+        return _finish_closed(run_dir, reports_dir, record, console)
+    done = frozenset(row["index"] for row in record["points"] if row["verdict"] != "not-measured")
+    pending = [p for p in points if p.index not in done]
+    if read.torn_line is not None:
+        console.warn(f"the last line of the journal was cut off by the interruption and is dropped"
+                     f" ({len(read.torn_line)} characters); every whole line before it is kept")
     if not pending:
-        raise RecordError(f"{run_dir}: every point of this run already has a confirmed entry; nothing to resume"
-                          " (use 'verirun certify' for its certificate)")
+        return _close_without_bench(run_dir, reports_dir, clock=clock, console=console,
+                                    known=Known(procedure=procedure, bench=bench, points=points))
     simulate = bool(start["bench"].get("simulated"))
     profile = calibrator.profile if calibrator is not None else load_profile(bench.file.calibrator.profile)
     check_readings(readings, pending, points)
     preflight.check(pending, bench, profile, today=clock.now().date())
-    if reports_dir is None:  # where the run started putting its certificate
-        reports_dir = Path(start.get("reports") or "reports")
     context = RunContext(lab=start["lab"], customer=start["customer"], item=start["item"],
                          operator=start["operator"], simulated=simulate,
                          environment=environment if environment is not None else start.get("environment", {}),
                          reports=start.get("reports"))
-    if read.torn_line is not None:
-        console.warn(f"the last line of the journal was cut off by the interruption and is dropped"
-                     f" ({len(read.torn_line)} characters); every whole line before it is kept")
     return _drive(run_dir=run_dir, procedure=procedure, bench=bench, context=context, readings=readings,
                   console=console, reports_dir=reports_dir, simulate=simulate, clock=clock,
                   uid=start["uid"], calibrator=calibrator, profile=profile, points=points,
-                  resume=start, done=done)
+                  resume=start, done=done, not_before=latest_time(docs), renewed=renewed)
 
 
-def confirmed_points(docs: list[dict]) -> frozenset[str]:
-    """Keys of the points with a confirmed entry: observed or skipped, and not withdrawn since."""
-    done: set[str] = set()
+def confirmed_steps(docs: list[dict]) -> frozenset[int]:
+    """Indexes of the steps with a confirmed entry: observed or skipped, and not withdrawn since."""
+    done: set[int] = set()
     for doc in docs:
         if doc["kind"] in ("observation", "skip"):
-            done.add(doc["point"])
+            done.add(doc["index"])
         elif doc["kind"] == "withdrawal":
-            done.discard(doc["point"])
+            done.discard(doc["index"])
     return frozenset(done)
+
+
+def latest_time(documents: list[dict]) -> str | None:
+    """The latest time among ``documents`` (ISO 8601 UTC text sorts as time does)."""
+    times = [doc["time"] for doc in documents if isinstance(doc.get("time"), str)]
+    return max(times) if times else None
+
+
+def _close_without_bench(run_dir: Path, reports_dir: Path, *, clock, console, known: Known) -> Finished:
+    """Close a run whose every step has a confirmed entry but whose journal has no complete
+    stop (it was killed after its last reading): a resume with nothing to measure, and the stop."""
+    from verirun.clock import iso
+
+    journal = Journal(run_dir / JOURNAL_NAME)
+    try:
+        now = max(iso(clock.now()), latest_time(read_journal(run_dir / JOURNAL_NAME).documents) or "")
+        journal.append({"kind": "resume", "time": now, "identity": None, "pending": 0,
+                        "recovered_torn_line": journal.recovered is not None,
+                        "recovered_text": journal.recovered})
+        journal.append({"kind": "stop", "time": now, "status": "complete", "reason": None,
+                        "counts": {}})
+    except BaseException as exc:
+        exc.run_dir = run_dir  # type: ignore[attr-defined]
+        raise
+    finally:
+        journal.close()
+    console.say("every step already had a confirmed entry: the run is closed without the bench")
+    return _finish(run_dir, reports_dir, known=known)
+
+
+def _finish_closed(run_dir: Path, reports_dir: Path, record: dict, console) -> Finished:
+    """A closed run: write its record and certificate again if either is missing or stale."""
+    from verirun.certificate.render import certificate_path
+
+    try:
+        stored = load_record(run_dir / RECORD_NAME)
+    except RecordError:
+        stored = None
+    complete = record["run"]["status"] == "complete"
+    if stored == record and not (complete and not certificate_path(record, reports_dir).exists()):
+        raise RecordError(f"{run_dir}: the run is closed ({record['run']['status']}) and its record is"
+                          " written; nothing to resume (use 'verirun certify' for its certificate)")
+    if stored != record:
+        console.say("the run was closed but its record was not written: written now from the journal")
+    return _finish(run_dir, reports_dir, known=None)
+
+
+#: What a bench file may change between the start of a run and its resumption: the standard's
+#: calibration (a new certificate and due date), nothing that enters a result.
+_RENEWABLE = ("calibration_due", "certificate", "traceability")
+
+
+def _resume_bench(path: Path | None, stored: dict) -> tuple[Bench, dict | None]:
+    """The bench to resume on: the run's own, or ``path`` when it is the same file, or the same
+    but for the standard's renewed calibration (then also what was renewed, for the journal)."""
+    if path is None:
+        return load_bench_text(stored["text"], stored["source"]), None
+    loaded = load_bench(path)
+    if loaded.sha256 == stored["sha256"]:
+        return loaded, None
+    before = load_bench_text(stored["text"], stored["source"])
+    if _without_renewal(before) != _without_renewal(loaded):
+        _same_file(path, stored, "bench file", load_bench, load_bench_text)  # raises, saying why
+    cal = loaded.file.calibrator
+    return loaded, {"certificate": cal.certificate, "calibration_due": cal.calibration_due.isoformat(),
+                    "traceability": cal.traceability, "bench_sha256": loaded.sha256,
+                    "bench_source": loaded.source, "bench_text": loaded.text}
+
+
+def _without_renewal(bench: Bench) -> dict:
+    data = bench.file.model_dump()
+    data["calibrator"] = {k: v for k, v in data["calibrator"].items() if k not in _RENEWABLE}
+    return data
 
 
 def _same_file(path: Path | None, stored: dict, kind: str, load_path, load_text):

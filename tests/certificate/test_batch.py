@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import json
 
 from verirun.certificate.batch import certify_many, find_runs
@@ -32,16 +34,36 @@ class TestCertifyFolder:
         assert all(first[name] == data for name, data in second.items())
 
     def test_rendering_over_a_certificate_of_another_template_version_is_reported(self, demo_run_dir, tmp_path):
-        """Re-rendering over a certificate made with another template version says so."""
+        """Re-rendering over a certificate made with another template version says so, and keeps
+        the earlier one beside it: an issued certificate is never overwritten."""
+        from verirun.certificate.render import TEMPLATE_VERSION
+
         reports = tmp_path / "rep"
         (outcome,) = certify_many([demo_run_dir], reports)
         path = reports / outcome.certificate.split("/")[-1]
-        html = path.read_text().replace('name="verirun-template" content="1"', 'name="verirun-template" content="0"')
+        html = path.read_text().replace(f'name="verirun-template" content="{TEMPLATE_VERSION}"',
+                                        'name="verirun-template" content="0"')
         path.write_text(html)
         (again,) = certify_many([demo_run_dir], reports)
-        assert again.note == "re-rendered with certificate template 1 (was 0)"
+        assert again.note == (f"re-rendered with certificate template {TEMPLATE_VERSION} (was 0; the earlier"
+                              " one is kept beside it)")
+        assert path.with_name(f"{path.stem}.t0.html").read_text() == html
         (third,) = certify_many([demo_run_dir], reports)
         assert third.note is None  # same version, same bytes: nothing to report
+
+    def test_a_different_certificate_of_the_same_number_and_version_is_not_overwritten(self, demo_run_dir,
+                                                                                       tmp_path):
+        """A certificate already issued under a number is never replaced by different bytes
+        rendered with the same template: certify refuses and the issued file stays as it was."""
+        reports = tmp_path / "rep"
+        (outcome,) = certify_many([demo_run_dir], reports)
+        path = Path(outcome.certificate)
+        issued = path.read_bytes().replace(b"FAIL", b"PASS")  # as if issued from another record
+        path.write_bytes(issued)
+        (again,) = certify_many([demo_run_dir], reports)
+        assert again.error and "not overwritten" in again.error
+        assert path.read_bytes() == issued
+        assert not list(reports.glob("*.tmp"))
 
     def test_pool_and_single_process_give_the_same_bytes(self, demo_run_dir, tmp_path):
         """Rendering on two processes gives the same certificates as rendering in one."""

@@ -161,8 +161,8 @@ class TestClause784And786:
         assert len(soup.select('table[data-pass="as-found"]')) == 6
         assert len(soup.select('table[data-pass="as-left"]')) == 6
         assert "span trimmer reset" in text_of(soup, "#adjustment")
-        row_found = soup.select_one('table[data-pass="as-found"][data-range="dcv-6"] tr[data-key="dcv-6@4.8"]')
-        row_left = soup.select_one('table[data-pass="as-left"][data-range="dcv-6"] tr[data-key="dcv-6@4.8"]')
+        row_found = soup.select_one('table[data-pass="as-found"][data-range="dcv-6"] tr[data-key="dcv-6@4.8V"]')
+        row_left = soup.select_one('table[data-pass="as-left"][data-range="dcv-6"] tr[data-key="dcv-6@4.8V"]')
         assert "FAIL" in row_found.get_text() and "PASS" in row_left.get_text()
 
     def test_as_left_of_another_item_is_refused(self, tmp_path, capsys):

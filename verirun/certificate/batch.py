@@ -52,7 +52,8 @@ def find_runs(paths: list[Path]) -> list[Path]:
 
 def certify_one(run: Path, reports_dir: Path, pdf: bool = False) -> Outcome:
     """Verify and render one run; any failure comes back as the outcome's ``error``."""
-    from verirun.certificate.render import TEMPLATE_VERSION, certificate_path, render_html, write_pdf
+    from verirun import storage
+    from verirun.certificate.render import TEMPLATE_VERSION, certificate_path, keep_issued, render_html, write_pdf
     from verirun.errors import VerirunError
     from verirun.integrity import verified_record
 
@@ -65,11 +66,14 @@ def certify_one(run: Path, reports_dir: Path, pdf: bool = False) -> Outcome:
                                                " resume it before a certificate can be issued")
         html = render_html(record).encode("utf-8")
         path = certificate_path(record, reports_dir)
-        note = _compare(path, html, TEMPLATE_VERSION)
-        path.parent.mkdir(parents=True, exist_ok=True)
-        tmp = path.with_suffix(".tmp")
-        tmp.write_bytes(html)
-        tmp.replace(path)
+        storage.make_folder(path.parent)
+        was = _version_of(path)
+        note = None
+        if keep_issued(path, html) != "same":
+            storage.write_atomic(path, [html])
+            if was is not None:
+                note = (f"re-rendered with certificate template {TEMPLATE_VERSION} (was {was}; the earlier"
+                        " one is kept beside it)")
         pdf_path = write_pdf(html.decode("utf-8"), path.with_suffix(".pdf")) if pdf else None
         return Outcome(run=str(run), certificate=str(path), pdf=str(pdf_path) if pdf_path else None, note=note)
     except VerirunError as exc:
@@ -78,17 +82,13 @@ def certify_one(run: Path, reports_dir: Path, pdf: bool = False) -> Outcome:
         return Outcome(run=str(run), error=f"{run}: {type(exc).__name__}: {exc}")
 
 
-def _compare(path: Path, html: bytes, version: str) -> str | None:
-    if not path.exists():
+def _version_of(path: Path) -> str | None:
+    """The template version of the certificate at ``path`` (``None`` if there is none)."""
+    try:
+        match = _VERSION_META.search(path.read_bytes())
+    except OSError:
         return None
-    old = path.read_bytes()
-    if old == html:
-        return None
-    match = _VERSION_META.search(old)
-    was = match.group(1).decode() if match else "unknown"
-    if was != version:
-        return f"re-rendered with certificate template {version} (was {was})"
-    return f"changed although rendered with the same template version {version}"
+    return match.group(1).decode("ascii", "replace") if match else "unknown"
 
 
 def _star(args):

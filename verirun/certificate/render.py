@@ -11,7 +11,7 @@ import re
 from pathlib import Path
 
 #: Version of the certificate template; recorded in every certificate it renders.
-TEMPLATE_VERSION = "1"
+TEMPLATE_VERSION = "2"
 
 
 def certificate_number(record: dict) -> str:
@@ -124,13 +124,61 @@ def write_pdf(html: str, path: str | Path) -> Path:
 
 
 def write_certificate(record: dict, reports_dir: str | Path) -> Path:
-    """Render ``record`` into ``reports_dir``/<certificate number>.html; return the path."""
+    """Render ``record`` into ``reports_dir``/<certificate number>.html; return the path.
+
+    A certificate once written is a document of record: it is never replaced by a different
+    one of the same number (see :func:`keep_issued`).
+
+    Raises
+    ------
+    RecordError
+        If a different certificate of that number is there already.
+    StorageError
+        If it cannot be written (nothing is left half-written).
+    """
+    from verirun import storage
+
     path = certificate_path(record, reports_dir)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_suffix(".tmp")
-    # Streamed piece by piece: a long run's certificate is never held whole in memory.
-    with open(tmp, "w", encoding="utf-8", newline="") as fh:
-        for piece in _generate(record):
-            fh.write(piece)
-    tmp.replace(path)
+    storage.make_folder(path.parent)
+    html = render_html(record).encode("utf-8")
+    if keep_issued(path, html) == "same":
+        return path
+    storage.write_atomic(path, [html])
     return path
+
+
+_VERSION_META = re.compile(rb'<meta name="verirun-template" content="([^"]*)">')
+
+
+def keep_issued(path: Path, html: bytes) -> str:
+    """Whether ``html`` may be written at ``path``: ``"new"`` (nothing there), ``"same"`` (the same
+    bytes are there), or ``"moved"``: the certificate there was rendered with another template
+    version, and is kept beside it as ``<name>.t<version>.html`` first.
+
+    Raises
+    ------
+    RecordError
+        If a different certificate rendered with this template version is there: the record
+        changed under an issued number (a journal cut short and resumed, or an edit).
+    """
+    from verirun import storage
+    from verirun.errors import RecordError
+
+    try:
+        old = path.read_bytes()
+    except FileNotFoundError:
+        return "new"
+    except OSError as exc:
+        raise storage.storage_error(exc, path) from None
+    if old == html:
+        return "same"
+    match = _VERSION_META.search(old)
+    was = match.group(1).decode("ascii", "replace") if match else "unknown"
+    if was == TEMPLATE_VERSION:
+        raise RecordError(f"{path}: a different certificate with this number was issued already; it is"
+                          " not overwritten (the run's record is not the one it was issued from: check"
+                          " the run with 'verirun verify')")
+    kept = path.with_name(f"{path.stem}.t{safe_file_name(was)}{path.suffix}")
+    if not kept.exists():
+        storage.write_new(kept, old)
+    return "moved"

@@ -38,12 +38,33 @@ class TestPoint:
     rule: decision.Rule
     standard: "SpecLine | None" = None
     statement: tolerance.Statement | None = None
+    #: The nominal (and, for AC, the frequency) as the procedure writes it, without spaces:
+    #: ``"10uA"``, ``"10V@50Hz"``.
+    written: str | None = None
+
+    @property
+    def step(self) -> int:
+        """The point's identity in its run: its step number, 1-based, as the operator sees it."""
+        return self.index + 1
 
     @functools.cached_property  # asked for several times per step; worked out once
     def key(self) -> str:
-        """Stable identity of the point within its procedure: ``range-id@nominal[@frequency]``."""
+        """The point's label, ``range-id@nominal[@frequency]`` as the procedure writes them
+        (``dca-50u@10uA``). Procedures may repeat a value (up-scale then down-scale), so a label
+        can name more than one step; the step number is the identity."""
+        if self.written is None:
+            return self.legacy_key
+        return f"{self.range.id}@{self.written}"
+
+    @functools.cached_property
+    def legacy_key(self) -> str:
+        """The label of records of the first format: the nominal's float repr (``dcv-10@2.0``)."""
         text = f"{self.range.id}@{self.nominal!r}"
         return text + (f"@{self.frequency!r}Hz" if self.frequency is not None else "")
+
+    def key_in(self, journal_format: int) -> str:
+        """The label this point has in a journal of ``journal_format``."""
+        return self.legacy_key if journal_format < 2 else self.key
 
     @property
     def function(self) -> str:
@@ -89,7 +110,10 @@ def plan(procedure: Procedure, bench: "Bench | None" = None) -> list[TestPoint]:
     Without a ``bench`` the budgets hold only the meter's own terms (readability and the
     procedure's extra terms): enough to check a procedure, not to sign a certificate.
     """
+    written = _written_points(procedure)
     items = [(rng, nominal, freq) for rng in procedure.ranges for nominal, freq in rng.points]
+    if len(written) != len(items):  # a procedure not made by the loader: labels from the numbers
+        written = [None] * len(items)
     points = []
     previous = None
     for index, (rng, nominal, freq) in enumerate(items):
@@ -101,6 +125,35 @@ def plan(procedure: Procedure, bench: "Bench | None" = None) -> list[TestPoint]:
         points.append(TestPoint(index=index, total=len(items), range=rng, nominal=nominal,
                                 frequency=freq, window=win, accuracy_text=band.text,
                                 first_of_range=rng is not previous, budget=budget,
-                                rule=procedure.rule, standard=standard, statement=band.statement))
+                                rule=procedure.rule, standard=standard, statement=band.statement,
+                                written=written[index]))
         previous = rng
     return points
+
+
+def _written_points(procedure: Procedure) -> list[str | None]:
+    """Each point's nominal (and frequency) as its procedure file writes it, in plan order."""
+    out: list[str | None] = []
+    file_ranges = getattr(getattr(procedure, "file", None), "ranges", None) or []
+    for model, rng in zip(file_ranges, procedure.ranges):
+        if model.id != rng.id or len(model.points) != len(rng.points):
+            return []
+        for item, (_, freq) in zip(model.points, rng.points):
+            at = item.at if hasattr(item, "at") else item
+            text = _compact(at, rng.unit)
+            if freq is not None:
+                freq_text = getattr(item, "frequency", None)
+                freq_text = freq_text if freq_text is not None else model.frequency
+                text += "@" + (_compact(freq_text, "Hz") if freq_text is not None else f"{freq!r}Hz")
+            out.append(text)
+    return out
+
+
+def _compact(text, unit: str) -> str:
+    """A quantity as written, without spaces; a bare number gets the unit it is in."""
+    compact = "".join(str(text).split())
+    try:
+        float(compact)
+    except ValueError:
+        return compact
+    return compact + unit

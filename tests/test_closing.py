@@ -1,0 +1,194 @@
+"""No run is lost at its end: a run whose every reading is confirmed can always be closed, and a
+closed run is never resumed, cut short, or certified twice under one number with other results."""
+
+from __future__ import annotations
+
+import shutil
+
+import pytest
+
+from runkit import (READINGS, cli, documents, only_run, readings_file, record, run_args,
+                    run_until_death)
+from verirun.integrity import problems
+
+
+def leftovers(tmp_path):
+    return sorted(str(p) for p in tmp_path.rglob("*.tmp"))
+
+
+class TestKilledAtTheEnd:
+    """A real verirun process ended dead (as SIGKILL ends it: no handler, no finally) at each
+    moment of the end of a run; `verirun resume` then closes the run without measuring anything
+    again, and the record verifies with every step."""
+
+    @pytest.mark.parametrize("moment", ["after-last-observation", "before-stop", "while-closing"])
+    def test_resume_closes_a_run_killed_at_its_end(self, tmp_path, moment, capsys):
+        proc = run_until_death(run_args(tmp_path), moment, last_index=4)
+        assert proc.returncode == 137, proc.stderr
+        run_dir = only_run(tmp_path / "runs")
+        before = documents(run_dir)
+        assert sum(d["kind"] == "observation" for d in before) == 5
+        # No readings are given: if resume measured anything it would stop at the prompt.
+        assert cli("resume", run_dir, "--readings", readings_file(tmp_path, []),
+                   "--reports", tmp_path / "reports") == 0
+        after = documents(run_dir)
+        assert after[:len(before)] == before
+        assert sum(d["kind"] == "observation" for d in after) == 5
+        rec = record(run_dir)
+        assert rec["run"]["status"] == "complete" and rec["summary"]["not-measured"] == 0
+        assert rec["summary"]["fail"] == 1  # 10.3 V outside 9.8..10.2 V (2 % of 10 V)
+        assert len(list((tmp_path / "reports").glob("*.html"))) == 1
+        assert problems(run_dir, reports=tmp_path / "reports") == []
+        assert not [p for p in leftovers(tmp_path) if "simulated" not in p]
+
+    def test_resume_closes_a_run_killed_right_after_an_amendment(self, tmp_path):
+        """Killed after the correction is journaled, before the new revision's record is
+        written: resume writes revision 2 and its certificate; revision 1 is kept."""
+        assert cli(*run_args(tmp_path)) == 0
+        run_dir = only_run(tmp_path / "runs")
+        proc = run_until_death(["amend", run_dir, "--point", "3", "--reading", "10.15", "--reason", "mistyped",
+                                "--reports", tmp_path / "reports"], "after-correction")
+        assert proc.returncode == 137, proc.stderr
+        assert record(run_dir)["run"]["revision"] == 1  # the record lags the journal
+        assert any("is older than its journal" in p and "verirun resume" in p for p in problems(run_dir))
+        assert cli("resume", run_dir, "--readings", readings_file(tmp_path, []),
+                   "--reports", tmp_path / "reports") == 0
+        rec = record(run_dir)
+        assert rec["run"]["revision"] == 2 and rec["summary"]["fail"] == 0
+        assert (run_dir / "record.r1.json").exists()
+        assert any(p.name.endswith("-R2.html") for p in (tmp_path / "reports").glob("*.html"))
+        assert problems(run_dir, reports=tmp_path / "reports") == []
+
+    def test_resume_closes_a_run_stopped_by_a_signal_after_its_last_reading(self, tmp_path):
+        """SIGTERM (here its KeyboardInterrupt) just after the last reading is journaled stops the
+        run as aborted with every step measured; resume closes it with nothing measured again."""
+        import datetime as dt
+
+        from verirun.bench.config import load_bench
+        from verirun.clock import VirtualClock
+        from verirun.console import QuietConsole
+        from verirun.engine import RunContext
+        from verirun.lab import load_lab
+        from verirun.procedure.load import load_procedure
+        from verirun.readings import ScriptedReadings
+        from verirun.session import execute
+
+        from runkit import BENCH, PROCEDURE, STEPS
+
+        class TerminatedAfterLast(QuietConsole):
+            def result(self, point, entry, result):
+                if point.index == point.total - 1:
+                    raise KeyboardInterrupt("terminated (SIGTERM)")
+                return super().result(point, entry, result)
+
+        context = RunContext(lab=load_lab(STEPS / "lab.yaml").lab.model_dump(mode="json"),
+                             customer={"name": "C", "address": []}, item={"serial": "TERM-1"},
+                             operator="tester", simulated=True)
+        with pytest.raises(KeyboardInterrupt) as caught:
+            execute(procedure=load_procedure(PROCEDURE), bench=load_bench(BENCH), context=context,
+                    readings=ScriptedReadings(READINGS), console=TerminatedAfterLast(), runs_dir=tmp_path / "runs",
+                    reports_dir=tmp_path / "reports", simulate=True,
+                    clock=VirtualClock(dt.datetime(2026, 12, 1, 9, tzinfo=dt.timezone.utc)))
+        run_dir = caught.value.run_dir
+        assert documents(run_dir)[-1]["status"] == "aborted" and record(run_dir)["run"]["status"] == "aborted"
+        assert cli("resume", run_dir, "--readings", readings_file(tmp_path, []),
+                   "--reports", tmp_path / "reports") == 0
+        assert record(run_dir)["run"]["status"] == "complete"
+        assert sum(d["kind"] == "observation" for d in documents(run_dir)) == 5
+        assert problems(run_dir, reports=tmp_path / "reports") == []
+
+    def test_a_closed_run_is_not_resumed(self, tmp_path, capsys):
+        """Once closed and written, resume refuses the run and changes nothing."""
+        assert cli(*run_args(tmp_path)) == 0
+        run_dir = only_run(tmp_path / "runs")
+        before = (run_dir / "journal.jsonl").read_bytes()
+        capsys.readouterr()
+        assert cli("resume", run_dir, "--readings", READINGS, "--reports", tmp_path / "reports") == 1
+        assert "nothing to resume" in capsys.readouterr().err
+        assert (run_dir / "journal.jsonl").read_bytes() == before
+
+
+class TestCutShort:
+    def _failed_run(self, tmp_path):
+        assert cli(*run_args(tmp_path)) == 0
+        run_dir = only_run(tmp_path / "runs")
+        assert record(run_dir)["summary"]["overall"] == "fail"
+        return run_dir
+
+    def _cut(self, run_dir):
+        """Drop the last observations and the stop: the journal then ends mid-run and its chain
+        still verifies."""
+        path = run_dir / "journal.jsonl"
+        lines = path.read_text(encoding="utf-8").splitlines(keepends=True)
+        kept = [line for line in lines if '"kind":"stop"' not in line]
+        last_obs = max(i for i, line in enumerate(kept) if '"kind":"observation"' in line)
+        path.write_text("".join(kept[:last_obs - 2]), encoding="utf-8")
+
+    def test_a_cut_journal_is_reported_and_not_resumed(self, tmp_path, capsys):
+        """With the FAIL's observation cut away, verify says the record and the certificate
+        were made from more of the journal than it holds, and resume refuses to take other
+        readings in its place."""
+        run_dir = self._failed_run(tmp_path)
+        self._cut(run_dir)
+        found = problems(run_dir, reports=tmp_path / "reports")
+        assert any("record.json: was closed from" in p for p in found)
+        assert any(".html: this certificate was issued from" in p for p in found)
+        capsys.readouterr()
+        assert cli("resume", run_dir, "--readings", READINGS, "--reports", tmp_path / "reports") == 1
+        assert "no longer reaches" in capsys.readouterr().err
+
+    def test_the_issued_certificate_is_never_replaced_by_other_results(self, tmp_path, capsys):
+        """Even with the record removed as well, a resume with passing readings cannot overwrite
+        the issued (failing) certificate of the same number."""
+        run_dir = self._failed_run(tmp_path)
+        (cert,) = (tmp_path / "reports").glob("*.html")
+        issued = cert.read_bytes()
+        self._cut(run_dir)
+        (run_dir / "record.json").unlink()
+        passing = readings_file(tmp_path, [("dcv-10", "10 V", "10.0"), ("dca-50u", "10 uA", "10 uA"),
+                                           ("dca-50u", "50 uA", "49.5 uA")])
+        capsys.readouterr()
+        assert cli("resume", run_dir, "--readings", passing, "--reports", tmp_path / "reports") == 1
+        assert "not overwritten" in capsys.readouterr().err
+        assert cert.read_bytes() == issued
+        assert any("this certificate was issued from" in p for p in problems(run_dir, reports=tmp_path / "reports"))
+
+    def test_a_document_after_the_stop_does_not_verify(self, tmp_path):
+        """An observation appended after the stop (with the chain rebuilt) is a verification
+        failure, and the earlier reading is not replaced."""
+        from test_steps import _rechained
+
+        run_dir = self._failed_run(tmp_path)
+        docs = documents(run_dir)
+        obs = [d for d in docs if d["kind"] == "observation"][-1]
+        (run_dir / "journal.jsonl").write_text(_rechained(docs + [{**obs, "typed": "50 uA", "reading": 5e-05}]),
+                                               encoding="utf-8")
+        (run_dir / "record.json").unlink()
+        assert any("written after the run was closed complete" in p for p in problems(run_dir))
+
+
+class TestStoppedBeforeTheStart:
+    def test_no_folder_and_no_resume_hint_when_nothing_was_journaled(self, tmp_path, capsys):
+        """A run that stops before its start document (the calibrator cannot be opened) leaves no
+        run folder and does not offer a resume that could not work."""
+        bench = tmp_path / "bench.yaml"
+        from runkit import BENCH
+
+        bench.write_text(BENCH.read_text().replace("resource: GPIB0::4::INSTR", "resource: GPIB0::4::INSTR\n"
+                                                   "  visa-library: /nonexistent/device.yaml@sim"))
+        args = run_args(tmp_path, bench=bench)
+        args.remove("--simulate")
+        code = cli(*args)
+        err = capsys.readouterr().err
+        assert code == 3, err
+        assert "resume" not in err
+        assert not (tmp_path / "runs").exists() or not list((tmp_path / "runs").iterdir())
+
+
+def test_close_keeps_working_from_a_copy(tmp_path):
+    """A closed run's folder copied elsewhere still verifies (nothing in it depends on its path)."""
+    assert cli(*run_args(tmp_path)) == 0
+    run_dir = only_run(tmp_path / "runs")
+    copy = tmp_path / "copy"
+    shutil.copytree(run_dir, copy)
+    assert problems(copy) == []

@@ -1,0 +1,99 @@
+"""One writer per run, one verirun per calibrator: tried with two real verirun processes."""
+
+from __future__ import annotations
+
+import os
+import shutil
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+from runkit import BENCH, READINGS, cli, documents, only_run, readings_file, record, run_args
+from verirun.integrity import problems
+
+
+def verirun(args: list, env: dict, **kw) -> subprocess.Popen:
+    return subprocess.Popen([sys.executable, "-m", "verirun", *[str(a) for a in args]], env=env,
+                            stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, **kw)
+
+
+def wait_for(predicate, proc: subprocess.Popen, timeout: float = 30.0) -> bool:
+    deadline = time.monotonic() + timeout
+    while time.monotonic() < deadline:
+        if predicate():
+            return True
+        if proc.poll() is not None:
+            return False
+        time.sleep(0.01)
+    return False
+
+
+def aborted_run(tmp_path: Path) -> Path:
+    readings = readings_file(tmp_path, [("dcv-10", "2 V", "2.05"), ("dcv-10", "6 V", "abort")], "abort.csv")
+    assert cli(*run_args(tmp_path, readings=readings)) == 2
+    return only_run(tmp_path / "runs")
+
+
+class TestOneWriterPerRun:
+    def test_a_second_resume_is_refused_while_the_first_runs(self, tmp_path):
+        """While one `verirun resume` waits at the operator's prompt, a second on the same run is
+        refused at once (exit 5) naming the run and the first one's pid; it writes nothing, and
+        once the first has ended the run resumes and verifies."""
+        run_dir = aborted_run(tmp_path)
+        env = {**os.environ}
+        first = verirun(["resume", run_dir, "--reports", tmp_path / "reports"], env)
+        try:
+            assert wait_for(lambda: any(d["kind"] == "resume" for d in documents(run_dir)), first), \
+                first.communicate(timeout=10)
+            held = (run_dir / "journal.jsonl").read_bytes()
+            second = subprocess.run([sys.executable, "-m", "verirun", "resume", str(run_dir), "--readings",
+                                     str(READINGS), "--reports", str(tmp_path / "reports")],
+                                    env=env, capture_output=True, text=True, timeout=60)
+            assert second.returncode == 5, second.stderr
+            assert f"run {run_dir} is in use by another verirun process (pid {first.pid})" in second.stderr
+            assert "verirun resume" not in second.stderr  # not told to do what was just refused
+            assert (run_dir / "journal.jsonl").read_bytes() == held
+        finally:
+            out, err = first.communicate("abort\n", timeout=60)
+        assert first.returncode == 2, err
+        assert cli("resume", run_dir, "--readings", READINGS, "--reports", tmp_path / "reports") == 0
+        assert record(run_dir)["run"]["status"] == "complete" and problems(run_dir) == []
+        kinds = [d["kind"] for d in documents(run_dir)]
+        assert kinds.count("resume") == 2 and kinds.count("stop") == 3
+
+
+class TestOneVerirunPerCalibrator:
+    def test_a_second_run_on_the_same_calibrator_is_refused(self, tmp_path):
+        """Two runs of different items on one bench: while the first holds the calibrator (its
+        VISA resource), the second is refused before it opens the resource, names it and the
+        holder's pid, and leaves no run folder behind."""
+        device = tmp_path / "device" / "calibrator.yaml"
+        device.parent.mkdir()
+        shutil.copy(Path(__import__("verirun.bench.sim", fromlist=["x"]).__file__).parent / "calibrator.yaml",
+                    device)
+        bench = tmp_path / "bench.yaml"
+        bench.write_text(BENCH.read_text().replace("resource: GPIB0::4::INSTR", "resource: GPIB0::4::INSTR\n"
+                                                   f"  visa-library: {device}@sim"))
+        env = {**os.environ}
+        args = run_args(tmp_path, bench=bench, serial="FIRST")
+        args.remove("--simulate")
+        args[args.index("--readings"):args.index("--readings") + 2] = []
+        first = verirun(args, env)
+        try:
+            assert wait_for(lambda: (tmp_path / "runs").is_dir() and any(
+                (p / "journal.jsonl").exists() and documents(p) for p in (tmp_path / "runs").iterdir()), first), \
+                first.communicate(timeout=10)
+            second_runs = tmp_path / "second-runs"
+            args2 = run_args(tmp_path, bench=bench, serial="SECOND", runs=second_runs)
+            args2.remove("--simulate")
+            second = subprocess.run([sys.executable, "-m", "verirun", *map(str, args2)], env=env,
+                                    capture_output=True, text=True, timeout=60)
+            assert second.returncode == 5, second.stderr
+            assert (f"the calibrator at 'GPIB0::4::INSTR' is in use by another verirun process"
+                    f" (pid {first.pid})") in second.stderr
+            assert "verirun resume" not in second.stderr
+            assert not second_runs.exists() or not list(second_runs.iterdir())
+        finally:
+            first.communicate("abort\n", timeout=60)
+        assert first.returncode == 2
