@@ -42,7 +42,8 @@ class TestOneWriterPerRun:
         once the first has ended the run resumes and verifies."""
         run_dir = aborted_run(tmp_path)
         env = {**os.environ}
-        first = verirun(["resume", run_dir, "--reports", tmp_path / "reports"], env)
+        first = verirun(["resume", run_dir, "--reports", tmp_path / "reports", "--temperature", "23",
+                         "--humidity", "45"], env)
         try:
             assert wait_for(lambda: any(d["kind"] == "resume" for d in documents(run_dir)), first), \
                 first.communicate(timeout=10)
