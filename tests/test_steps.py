@@ -154,3 +154,43 @@ class TestStoredRunsOfTheFirstFormat:
         labels = [d["point"] for d in documents(run_dir) if d["kind"] == "observation"]
         assert labels[-2:] == ["dca-50u@9.999999999999999e-06", "dca-50u@4.9999999999999996e-05"]
         assert record(run_dir)["run"]["status"] == "complete" and problems(run_dir) == []
+
+
+class TestUndoOnARepeatedValue:
+    def test_undo_withdraws_the_step_not_every_step_of_that_value(self, tmp_path):
+        """`2 V` then `2000 mV`: undo (typed at the next range's first reading) withdraws step 2
+        alone; measured again it is kept beside step 1's reading, which stays."""
+        import datetime as dt
+        import io
+
+        import pyvisa
+        from rich.console import Console as RichConsole
+
+        from runkit import BENCH, STEPS
+        from verirun.bench.calibrator import Calibrator
+        from verirun.bench.config import load_bench
+        from verirun.bench.sim import SIM_RESOURCE, sim_library
+        from verirun.clock import VirtualClock
+        from verirun.console import Console
+        from verirun.engine import RunContext
+        from verirun.lab import load_lab
+        from verirun.session import execute
+
+        typed = iter(["", "2.05", "2.5", "", "undo", "", "2.1", "", "10", "49.5"])
+        rm = pyvisa.ResourceManager(sim_library(tmp_path / "sim"))
+        raw = rm.open_resource(SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=300)
+        console = Console(RichConsole(file=io.StringIO(), width=200), input_func=lambda prompt: next(typed))
+        context = RunContext(lab=load_lab(STEPS / "lab.yaml").lab.model_dump(mode="json"),
+                             customer={"name": "C", "address": []}, item={"serial": "U-1"}, operator="op",
+                             simulated=True)
+        finished = execute(procedure=load_procedure(procedure_with(tmp_path, "2 V, 2000 mV")),
+                           bench=load_bench(BENCH), context=context, readings=console, console=console,
+                           runs_dir=tmp_path / "runs", reports_dir=tmp_path / "reports", simulate=True,
+                           clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)),
+                           calibrator=Calibrator(raw, "scpi-generic"))
+        rows = finished.record["points"]
+        assert [(r["index"], r["typed"], r["verdict"]) for r in rows[:2]] == [(0, "2.05", "pass"), (1, "2.1", "pass")]
+        assert finished.record["summary"]["not-measured"] == 0
+        withdrawn = [d for d in documents(finished.run_dir) if d["kind"] == "withdrawal"]
+        assert [(d["index"], d["typed"]) for d in withdrawn] == [(1, "2.5")]
+        assert problems(finished.run_dir) == []

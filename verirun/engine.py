@@ -302,7 +302,7 @@ class Engine:
                     # Journaled before anything else happens, standby included: if the output
                     # cannot be made safe the reading is still kept.
                     for typed in entry.replaced:
-                        self.journal.append({"kind": "note", "time": iso(self.clock.now()), "point": point.key,
+                        self.journal.append({"kind": "note", "time": self._now(), "point": self._label(point),
                                              "text": f"reading {typed!r} asked about as far from the nominal"
                                                      f" and not kept; the operator typed {entry.typed!r}"})
                     if entry.kind in ("reading", "skip", "abort"):
@@ -338,10 +338,10 @@ class Engine:
             self.console.say("  nothing to undo: no reading has been taken yet in this session")
             return False
         last, entry = self._taken.pop()
-        self.journal.append({"kind": "withdrawal", "time": iso(self.clock.now()), "point": last.key,
+        self.journal.append({"kind": "withdrawal", "time": self._now(), "point": self._label(last),
                              "index": last.index, "typed": entry.typed,
                              "reason": "withdrawn by the operator (undo)"})
-        verdict = self.results.pop(last.key).verdict if last.key in self.results else "skipped"
+        verdict = self.results.pop(last.index).verdict if last.index in self.results else "skipped"
         self.counts[verdict] -= 1
         self.console.say(f"  the entry of {self._step_name(last)} is withdrawn; measure it again")
         other_range = last.range is not point.range
