@@ -94,7 +94,7 @@ def _parser() -> argparse.ArgumentParser:
 
     amend = sub.add_parser("amend", help="correct one reading of a stored run, as a new revision that keeps the old")
     amend.add_argument("run", type=Path, help="the run folder")
-    amend.add_argument("--point", required=True, help="the step number or point key to correct")
+    amend.add_argument("--point", required=True, help="the step to correct: its number (7, step 7) or its label (dca-50u@10uA)")
     amend.add_argument("--reading", required=True, help="the reading as it should have been recorded")
     amend.add_argument("--reason", required=True, help="why (printed on the certificate)")
     amend.add_argument("--operator", default=os.environ.get("USER", "operator"), help="who makes the correction")
