@@ -354,7 +354,6 @@ def journal_schema() -> dict:
 
 
 if __name__ == "__main__":  # python -m verirun.documents > verirun/schema/journal.schema.json
-    import json
     import sys
 
     sys.stdout.write(json.dumps(journal_schema(), indent=1, sort_keys=True, ensure_ascii=False) + "\n")

@@ -49,7 +49,7 @@ def storage_error(exc: OSError, path: Path | str) -> StorageError:
 
 
 def make_folder(path: Path | str, *, exist_ok: bool = True) -> Path:
-    """Make ``path`` (and its parents).
+    """Make ``path`` (and its parents); an existing folder, or a link to one, is kept.
 
     Raises
     ------
@@ -64,9 +64,7 @@ def make_folder(path: Path | str, *, exist_ok: bool = True) -> Path:
             raise storage_error(exc, path) from None
     except OSError as exc:
         raise storage_error(exc, path) from None
-    if path.is_symlink():
-        raise StorageError(f"{path}: is a symbolic link, which verirun does not write through;"
-                           " remove the link")
+    # A folder may be a link (runs kept on another disk); the files written in it never are.
     return path
 
 
