@@ -239,3 +239,15 @@ class TestSymlinksAreNotFollowed:
         assert cli("resume", run_dir, "--readings", READINGS, "--reports", tmp_path / "reports") == 3
         assert outside.read_text() == "keep me"
         assert record(run_dir)["run"]["status"] == "complete"
+
+
+def test_runs_and_reports_folders_may_be_links(tmp_path):
+    """A runs or reports folder kept on another disk through a link is used; only the files
+    written inside are never links."""
+    (tmp_path / "elsewhere" / "runs").mkdir(parents=True)
+    (tmp_path / "elsewhere" / "reports").mkdir()
+    (tmp_path / "runs").symlink_to(tmp_path / "elsewhere" / "runs")
+    (tmp_path / "reports").symlink_to(tmp_path / "elsewhere" / "reports")
+    assert cli(*run_args(tmp_path)) == 0
+    assert len(list((tmp_path / "elsewhere" / "reports").glob("*.html"))) == 1
+    assert problems(only_run(tmp_path / "elsewhere" / "runs")) == []
