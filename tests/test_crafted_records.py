@@ -117,6 +117,18 @@ class TestListingSkipsABadFolder:
         assert sorted(row["item"] for row in json.loads(out)) == ["GOOD-1", "GOOD-2"]
         assert f"skipped {broken}" in err
 
+    def test_a_folder_where_no_run_began_is_named(self, tmp_path, capsys):
+        """A folder left by an earlier version with an empty journal (the run stopped before its
+        start) is named as such, with what to do."""
+        assert cli(*run_args(tmp_path, serial="GOOD-1")) == 0
+        empty = tmp_path / "runs" / "20260101-000000-EMPTY-00000000"
+        empty.mkdir()
+        (empty / "journal.jsonl").write_text("")
+        capsys.readouterr()
+        assert cli("runs", "--runs", tmp_path / "runs") == 0
+        assert "no run was journaled here" in capsys.readouterr().err
+        assert cli("resume", empty, "--readings", READINGS) == 1
+
 
 def _context() -> RunContext:
     lab = load_lab(STEPS / "lab.yaml").lab.model_dump(mode="json")

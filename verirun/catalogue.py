@@ -39,7 +39,8 @@ def summary(folder: Path) -> dict | None:
         elif journal_path.exists():
             docs = read_journal(journal_path).documents
             if not docs or docs[0].get("kind") != "start":
-                return None
+                raise RecordError(f"{folder}: no run was journaled here (it stopped before it started);"
+                                  " there is nothing to resume, and the folder can be removed")
             start = docs[0]
             row = {"run": folder.name, "path": str(folder), "item": start["item"].get("serial"),
                    "procedure": start["procedure"]["id"], "revision": start["procedure"]["revision"],

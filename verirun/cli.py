@@ -253,9 +253,11 @@ def _cmd_review(args) -> int:
         rich.print(f"problem: {text}", markup=False)
     for text in found.warnings:
         rich.print(f"warning: {text}", markup=False)
-    args.reports.mkdir(parents=True, exist_ok=True)
+    from verirun import storage
+
+    storage.make_folder(args.reports)
     out = args.reports / safe_file_name(f"review-{procedure.id}-{procedure.revision}-{bench.file.bench.id}.html")
-    out.write_text(render_html(found), encoding="utf-8")
+    storage.write_atomic(out, [render_html(found)])  # whole, and never through a link
     rich.print(f"Review page: {out}", markup=False)
     return EXIT_ERROR if found.problems else EXIT_OK
 

@@ -119,8 +119,10 @@ def write_pdf(html: str, path: str | Path) -> Path:
     VerirunError
         If WeasyPrint is not installed.
     """
-    pdf_engine().HTML(string=html).write_pdf(str(path))
-    return Path(path)
+    from verirun import storage
+
+    # Rendered in memory, then written whole and never through a link, as every report file.
+    return storage.write_atomic(path, [pdf_engine().HTML(string=html).write_pdf()])
 
 
 def write_certificate(record: dict, reports_dir: str | Path) -> Path:
