@@ -7,6 +7,8 @@ the record.
 
 from __future__ import annotations
 
+import errno
+import os
 import re
 from pathlib import Path
 
@@ -142,7 +144,12 @@ def write_certificate(record: dict, reports_dir: str | Path) -> Path:
 
     path = certificate_path(record, reports_dir)
     storage.make_folder(path.parent)
-    html = render_html(record).encode("utf-8")
+    if path.is_symlink():
+        raise storage.storage_error(OSError(errno.ELOOP, "is a symbolic link", str(path)), path)
+    if not os.path.lexists(path):
+        # Streamed piece by piece: a long run's certificate is never held whole in memory.
+        return storage.write_atomic(path, _generate(record))
+    html = render_html(record).encode("utf-8")  # one is there: compared whole
     if keep_issued(path, html) == "same":
         return path
     storage.write_atomic(path, [html])
