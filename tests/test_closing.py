@@ -41,6 +41,21 @@ class TestKilledAtTheEnd:
         assert problems(run_dir, reports=tmp_path / "reports") == []
         assert not [p for p in leftovers(tmp_path) if "simulated" not in p]
 
+    def test_closing_at_the_console_asks_nothing(self, tmp_path):
+        """At the console (no readings file), a run with nothing left to measure is closed
+        without asking the conditions or anything else: here the input is closed, so any
+        question would stop the run instead."""
+        import subprocess
+        import sys
+
+        assert run_until_death(run_args(tmp_path), "before-stop").returncode == 137
+        run_dir = only_run(tmp_path / "runs")
+        done = subprocess.run([sys.executable, "-m", "verirun", "resume", str(run_dir), "--reports",
+                               str(tmp_path / "reports")], stdin=subprocess.DEVNULL, capture_output=True,
+                              text=True, timeout=120)
+        assert done.returncode == 0, done.stderr
+        assert record(run_dir)["run"]["status"] == "complete"
+
     def test_resume_closes_a_run_killed_right_after_an_amendment(self, tmp_path):
         """Killed after the correction is journaled, before the new revision's record is
         written: resume writes revision 2 and its certificate; revision 1 is kept."""

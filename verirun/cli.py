@@ -400,7 +400,8 @@ def _cmd_resume(args) -> int:
     reports = args.reports or held.reports or Path("reports")
     rich.print(f"Certificate folder: {reports}", markup=False)
     environment = None
-    if args.temperature is not None or args.humidity is not None or readings.interactive:
+    to_measure = held.kept < held.points  # else the run is only closed: nothing to ask
+    if args.temperature is not None or args.humidity is not None or (readings.interactive and to_measure):
         # The conditions now, not as they were when the run stopped.
         environment = _environment(args.temperature, args.humidity, readings)
         if not readings.interactive:
