@@ -64,9 +64,12 @@ class Journal:
                 self._seq = read.documents[-1]["seq"] + 1
                 self._prev = line_hash(dumps(read.documents[-1]))
         storage.make_folder(self.path.parent)
+        new = not self.path.exists()
         # Unbuffered, appending, not through a symlink: a failed write leaves nothing queued to
         # be written later, and what did reach the file is cut off again (see _write_line).
         self._fd = storage.open_append(self.path)
+        if new:  # the new file's name on disk too, or a power cut could take the whole journal
+            storage.sync_folder(self.path.parent)
 
     def _repair(self, read: "JournalRead") -> None:
         """Make the file end at a whole line: cut a torn last line, end a whole one with a newline."""

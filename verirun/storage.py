@@ -76,6 +76,20 @@ def open_append(path: Path | str) -> int:
         raise storage_error(exc, path) from None
 
 
+def sync_folder(path: Path | str) -> None:
+    """fsync the folder ``path``, so a file made or renamed in it survives a power cut."""
+    try:
+        fd = os.open(path, os.O_RDONLY | getattr(os, "O_DIRECTORY", 0) | _CLOEXEC)
+    except OSError:  # a platform without folder descriptors: the file's own fsync is all there is
+        return
+    try:
+        os.fsync(fd)
+    except OSError:
+        pass
+    finally:
+        os.close(fd)
+
+
 def write_all(fd: int, data: bytes) -> None:
     """Write every byte of ``data`` to ``fd`` (``os.write`` may write fewer)."""
     view = memoryview(data)
@@ -116,6 +130,7 @@ def write_atomic(path: Path | str, pieces: Iterable[str | bytes]) -> Path:
         if path.is_symlink():
             raise OSError(errno.ELOOP, "is a symbolic link", str(path))
         os.replace(tmp, path)
+        sync_folder(path.parent)
     except BaseException as exc:
         try:
             os.unlink(tmp)
