@@ -135,13 +135,16 @@ class TestEvaluateUnderARule:
         u = point.budget.expanded
         assert 10.19 > 10.2 - u  # U is about 29 mV
         assert result.verdict == "fail"
-        assert result.acceptance == (pytest.approx(9.8 + u), pytest.approx(10.2 - u))
+        # the acceptance limits are worked from U as reported, 0.029 V (GUM 7.2.6: two digits)
+        assert f"{u:.2g}" == "0.029"
+        assert result.acceptance == (9.829, 10.171)
         assert evaluate(point, 10.1).verdict == "pass"
 
     def test_tur_is_span_over_two_u(self):
         """TUR = (TU - TL) / 2U (ANSI/NCSL Z540.3 definition)."""
         point = points()[0]
-        assert evaluate(point, 10.0).tur == pytest.approx(0.4 / (2 * point.budget.expanded))
+        # with U as reported, 0.029 V (GUM 7.2.6), as the certificate prints it
+        assert evaluate(point, 10.0).tur == pytest.approx(0.4 / (2 * 0.029))
 
     def test_non_binary_rule_gives_conditional_outcomes(self):
         """Non-binary statement (ILAC-G8:09/2019 4.2.3): between the acceptance and tolerance
@@ -160,8 +163,8 @@ class TestEvaluateUnderARule:
 
         pts = points(PROCEDURE.replace("rule: guarded", "rule: risk"))
         point = pts[0]
-        u = point.budget.combined
-        y = 10.2 - 1.5 * u
+        u = 0.029 / 2  # U as reported (GUM 7.2.6: two significant digits) over k = 2
+        y = 10.178
         result = evaluate(point, y)
         assert result.conformance == pytest.approx(norm.cdf((10.2 - y) / u) - norm.cdf((9.8 - y) / u))
         assert result.verdict == "fail"  # 1 - pc ≈ 6.7 % > 2 %

@@ -7,6 +7,12 @@ and a :class:`~verirun.metrology.uncertainty.Budget` into the domain the toleran
 (degrees of arc on an ohms scale are compared as fractions of scale length, never as ohms) and
 maps the acceptance limits back to the value domain only for reporting.
 
+Every comparison is exact: :func:`judge` gives the rules the tolerance limits and the reading
+as the numbers written (:mod:`verirun.metrology.exact`), in rational arithmetic, and the
+expanded uncertainty as it is reported (two significant digits, :func:`round_uncertainty
+<verirun.metrology.uncertainty.round_uncertainty>`), so a guard band ``w = r U`` is exact too.
+A rule called directly reads its float arguments as written, too.
+
 On the limits, every rule resolves a tie toward the more favourable verdict: a reading exactly on
 a tolerance limit passes under simple acceptance, one exactly on an acceptance limit passes under
 the guarded, non-binary and risk rules, one exactly on a tolerance limit is a conditional pass and
@@ -20,27 +26,42 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from decimal import ROUND_CEILING, ROUND_FLOOR, Decimal
+from fractions import Fraction
 from statistics import NormalDist
 from typing import Literal
 
-from verirun.metrology.scales import Linear, ScaleLaw
+from verirun.metrology.exact import Exact, as_written
+from verirun.metrology.scales import ScaleLaw
 from verirun.metrology.tolerance import Window
-from verirun.metrology.uncertainty import Budget
+from verirun.metrology.uncertainty import Budget, round_uncertainty
 
 Verdict = Literal["pass", "conditional-pass", "conditional-fail", "fail"]
 
 _NORMAL = NormalDist()
 
 
-def _check_zone(low: float, high: float, expanded: float, k: float) -> None:
-    if math.isnan(low) or math.isnan(high) or low > high:
+def _check_zone(low: Exact, high: Exact, expanded: Exact, k: float) -> None:
+    if _nan(low) or _nan(high) or low > high:
         raise ValueError(f"tolerance limits must satisfy low <= high, got {low!r}..{high!r}")
     if not (math.isfinite(expanded) and expanded >= 0):
         raise ValueError(f"the expanded uncertainty must be finite and not negative, got {expanded!r}")
     if not (math.isfinite(k) and k > 0):
         raise ValueError(f"the coverage factor k must be positive and finite, got {k!r}")
-    if not math.isfinite(expanded / k):  # the standard uncertainty every rule works with
+    if not math.isfinite(float(expanded) / k):  # the standard uncertainty every rule works with
         raise ValueError(f"the standard uncertainty U / k must be finite, got {expanded!r} / {k!r}")
+
+
+def _nan(x: Exact) -> bool:
+    return isinstance(x, float) and math.isnan(x)
+
+
+def _exact_args(low, high, expanded) -> tuple[Exact, Exact, Exact]:
+    if any(_nan(x) for x in (low, high)):
+        raise ValueError(f"tolerance limits must satisfy low <= high, got {low!r}..{high!r}")
+    if _nan(expanded) or (isinstance(expanded, float) and math.isinf(expanded)):
+        raise ValueError(f"the expanded uncertainty must be finite and not negative, got {expanded!r}")
+    return as_written(low), as_written(high), as_written(expanded)
 
 
 def tur(*, low: float, high: float, expanded: float) -> float | None:
@@ -54,13 +75,13 @@ def tur(*, low: float, high: float, expanded: float) -> float | None:
     return _tur(low, high, expanded)
 
 
-def _tur(low: float, high: float, expanded: float) -> float | None:
+def _tur(low: Exact, high: Exact, expanded: Exact) -> float | None:
     # tur() on numbers already checked.
     if not (math.isfinite(low) and math.isfinite(high)):
         return None
-    if expanded == 0.0:
+    if expanded == 0:
         return math.inf
-    return (high - low) / (2.0 * expanded)
+    return float((high - low) / (2 * expanded))
 
 
 def conformance_probability(*, low: float, high: float, reading: float, u: float) -> float:
@@ -75,43 +96,41 @@ def conformance_probability(*, low: float, high: float, reading: float, u: float
     return _pc(low, high, reading, u)
 
 
-def _pc(low: float, high: float, reading: float, u: float) -> float:
+def _pc(low: Exact, high: Exact, reading: Exact, u: Exact) -> float:
     # conformance_probability() on limits and an uncertainty already checked.
-    if math.isnan(reading):
+    if _nan(reading):
         raise ValueError("a reading must be a number, got nan")
-    if u == 0.0 or math.isinf(reading):
+    if u == 0 or math.isinf(reading):
         return 1.0 if low <= reading <= high else 0.0
-    return _NORMAL.cdf((high - reading) / u) - _NORMAL.cdf((low - reading) / u)
+    y, su = float(reading), float(u)
+    return _NORMAL.cdf((float(high) - y) / su) - _NORMAL.cdf((float(low) - y) / su)
 
 
-# Made afresh for every reading and never changed after; not frozen because a frozen
-# dataclass takes twice as long to build.
-@dataclass(kw_only=True, slots=True)
+@dataclass(frozen=True, kw_only=True, slots=True)
 class Acceptance:
     """The acceptance zone ``low`` .. ``high`` (limits included) a rule gives.
 
     ``guard`` is how far each acceptance limit lies inside its tolerance limit (``w``). When the
     guard band swallows the whole tolerance zone the zone is empty (``low > high``) and no
-    reading can pass.
+    reading can pass. The limits are exact (:class:`~fractions.Fraction`, or an infinite
+    float for an open side).
     """
 
-    low: float
-    high: float
-    guard: float
+    low: Exact
+    high: Exact
+    guard: Exact
 
     @property
     def empty(self) -> bool:
         """True when no reading can be accepted."""
         return self.low > self.high
 
-    def contains(self, reading: float) -> bool:
-        """True when ``reading`` lies in the zone, limits included."""
-        return self.low <= reading <= self.high
+    def contains(self, reading: Exact) -> bool:
+        """True when ``reading`` lies in the zone, limits included, in exact arithmetic."""
+        return self.low <= as_written(reading) <= self.high
 
 
-# Made afresh for every reading and never changed after; not frozen because a frozen
-# dataclass takes twice as long to build.
-@dataclass(kw_only=True, slots=True)
+@dataclass(frozen=True, kw_only=True, slots=True)
 class Outcome:
     """A rule's statement about one reading: the verdict, the zone used, and ``pc``."""
 
@@ -120,14 +139,16 @@ class Outcome:
     conformance: float
 
 
-def _binary(zone: "Acceptance", *, low: float, high: float, reading: float, u: float) -> "Outcome":
+def _binary(zone: "Acceptance", *, low, high, reading, expanded, k: float) -> "Outcome":
     """A pass/fail outcome: pass within ``zone``, limits included; pc reported either way.
     The rule has checked the limits and the uncertainty in making ``zone``."""
-    pc = _pc(low, high, reading, u)
-    return Outcome(verdict="pass" if zone.contains(reading) else "fail", acceptance=zone, conformance=pc)
+    low, high, expanded = _exact_args(low, high, expanded)
+    y = as_written(reading)
+    pc = _pc(low, high, y, expanded / Fraction(k))
+    return Outcome(verdict="pass" if zone.contains(y) else "fail", acceptance=zone, conformance=pc)
 
 
-def _shrunk(low: float, high: float, w: float) -> Acceptance:
+def _shrunk(low: Exact, high: Exact, w: Exact) -> Acceptance:
     return Acceptance(low=low + w, high=high - w, guard=w)
 
 
@@ -146,16 +167,17 @@ class SimpleAcceptance:
                 " value lies within the tolerance limits, limits included, and fails otherwise;"
                 " the measurement uncertainty does not move the acceptance limits.")
 
-    def acceptance(self, *, low: float, high: float, expanded: float, k: float = 2.0) -> Acceptance:
+    def acceptance(self, *, low: Exact, high: Exact, expanded: Exact, k: float = 2.0) -> Acceptance:
         """The acceptance zone: the tolerance zone itself."""
+        low, high, expanded = _exact_args(low, high, expanded)
         _check_zone(low, high, expanded, k)
-        return _shrunk(low, high, 0.0)
+        return _shrunk(low, high, Fraction(0))
 
-    def decide(self, *, low: float, high: float, reading: float, expanded: float,
+    def decide(self, *, low: Exact, high: Exact, reading: Exact, expanded: Exact,
                k: float = 2.0) -> Outcome:
         """``"pass"`` or ``"fail"`` for ``reading``; on a tolerance limit it passes."""
         return _binary(self.acceptance(low=low, high=high, expanded=expanded, k=k),
-                       low=low, high=high, reading=reading, u=expanded / k)
+                       low=low, high=high, reading=reading, expanded=expanded, k=k)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -180,16 +202,17 @@ class GuardedAcceptance:
                 " inward by w, limits included, and fails otherwise; U is the expanded uncertainty"
                 " of measurement.")
 
-    def acceptance(self, *, low: float, high: float, expanded: float, k: float = 2.0) -> Acceptance:
-        """The tolerance zone shrunk by ``w = ratio × U`` on each side."""
+    def acceptance(self, *, low: Exact, high: Exact, expanded: Exact, k: float = 2.0) -> Acceptance:
+        """The tolerance zone shrunk by ``w = ratio × U`` on each side (the ratio as written)."""
+        low, high, expanded = _exact_args(low, high, expanded)
         _check_zone(low, high, expanded, k)
-        return _shrunk(low, high, self.ratio * expanded)
+        return _shrunk(low, high, as_written(self.ratio) * expanded)
 
-    def decide(self, *, low: float, high: float, reading: float, expanded: float,
+    def decide(self, *, low: Exact, high: Exact, reading: Exact, expanded: Exact,
                k: float = 2.0) -> Outcome:
         """``"pass"`` or ``"fail"``; a reading on an acceptance limit passes."""
         return _binary(self.acceptance(low=low, high=high, expanded=expanded, k=k),
-                       low=low, high=high, reading=reading, u=expanded / k)
+                       low=low, high=high, reading=reading, expanded=expanded, k=k)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -214,11 +237,13 @@ class NonBinaryStatement(GuardedAcceptance):
                 " conditional fail outside the tolerance limits by no more than w; fail beyond;"
                 " a value on a boundary takes the more favourable statement.")
 
-    def decide(self, *, low: float, high: float, reading: float, expanded: float,
+    def decide(self, *, low: Exact, high: Exact, reading: Exact, expanded: Exact,
                k: float = 2.0) -> Outcome:
         """One of the four statements for ``reading``."""
         zone = self.acceptance(low=low, high=high, expanded=expanded, k=k)  # checks the numbers
-        pc = _pc(low, high, reading, expanded / k)
+        low, high, expanded = _exact_args(low, high, expanded)
+        reading = as_written(reading)
+        pc = _pc(low, high, reading, expanded / Fraction(k))
         w = zone.guard
         if zone.contains(reading):
             verdict: Verdict = "pass"
@@ -258,16 +283,26 @@ class RiskAcceptance:
                 f" a result passes when the probability that the measured quantity lies outside the"
                 f" tolerance limits, 1 − pc, is at most {100 * self.target:g} %, and fails otherwise.")
 
-    def acceptance(self, *, low: float, high: float, expanded: float, k: float = 2.0) -> Acceptance:
-        """The readings at which the specific false-accept risk is at most ``target``."""
+    def acceptance(self, *, low: Exact, high: Exact, expanded: Exact, k: float = 2.0) -> Acceptance:
+        """The readings at which the specific false-accept risk is at most ``target``.
+
+        The limits found in floating point are rounded inward to a decimal two digits finer than
+        the last digit of ``U`` reported to two significant digits, so that they can be printed
+        exactly and a reading written on one is decided exactly; rounding inward keeps the
+        risk at an acceptance limit within the target.
+        """
+        low, high, expanded = _exact_args(low, high, expanded)
         _check_zone(low, high, expanded, k)
-        u = expanded / k
-        if u == 0.0 or (math.isinf(low) and math.isinf(high)):
-            return _shrunk(low, high, 0.0)
+        if expanded == 0 or (math.isinf(low) and math.isinf(high)):
+            return _shrunk(low, high, Fraction(0))
+        u = float(expanded) / k
+        place = Decimal(1).scaleb(round_uncertainty(float(expanded)).as_tuple().exponent - 2)
         if math.isinf(low) or math.isinf(high):
-            return _shrunk(low, high, u * _NORMAL.inv_cdf(1.0 - self.target))
-        half = (high - low) / 2.0
-        mid = low + half
+            w = _round_to(u * _NORMAL.inv_cdf(1.0 - self.target), place, ROUND_CEILING)
+            return _shrunk(low, high, w)
+        fl, fh = float(low), float(high)
+        half = (fh - fl) / 2.0
+        mid = fl + half
 
         def conforms(d: float) -> bool:  # 1 - pc <= target at distance d from the middle
             return _NORMAL.cdf((half - d) / u) - _NORMAL.cdf((-half - d) / u) >= 1.0 - self.target
@@ -283,13 +318,22 @@ class RiskAcceptance:
                 inside = d
             else:
                 outside = d
-        return Acceptance(low=mid - inside, high=mid + inside, guard=half - inside)
+        a_low = _round_to(mid - inside, place, ROUND_CEILING)
+        a_high = _round_to(mid + inside, place, ROUND_FLOOR)
+        if a_low > a_high:
+            return Acceptance(low=math.inf, high=-math.inf, guard=math.inf)
+        return Acceptance(low=a_low, high=a_high, guard=min(a_low - low, high - a_high))
 
-    def decide(self, *, low: float, high: float, reading: float, expanded: float,
+    def decide(self, *, low: Exact, high: Exact, reading: Exact, expanded: Exact,
                k: float = 2.0) -> Outcome:
         """``"pass"`` or ``"fail"``; a reading on an acceptance limit passes."""
         return _binary(self.acceptance(low=low, high=high, expanded=expanded, k=k),
-                       low=low, high=high, reading=reading, u=expanded / k)
+                       low=low, high=high, reading=reading, expanded=expanded, k=k)
+
+
+def _round_to(x: float, place: Decimal, how: str) -> Fraction:
+    """``x`` rounded to the decimal ``place`` in the direction ``how``, as an exact fraction."""
+    return Fraction(Decimal(repr(x)).quantize(place, rounding=how))
 
 
 Rule = SimpleAcceptance | GuardedAcceptance | NonBinaryStatement | RiskAcceptance
@@ -318,15 +362,20 @@ def rule_from_name(name: str, **params: float) -> Rule:
                          f" got {', '.join(sorted(params))}") from None
 
 
-# Made afresh for every reading and never changed after; not frozen because a frozen
-# dataclass takes twice as long to build.
-@dataclass(kw_only=True, slots=True)
+@dataclass(frozen=True, kw_only=True, slots=True)
 class Decision:
     """A rule applied to one test point.
 
-    ``outcome`` is in the domain the tolerance is stated in (``domain``), as are ``tur`` and
-    ``outcome.acceptance``. ``acceptance`` is the same zone in the value domain (sorted, for
-    reporting), or ``None`` when the zone is empty.
+    ``outcome`` is in the domain the tolerance is stated in (``domain``), as are ``tur``,
+    ``expanded`` and ``outcome.acceptance``. ``expanded`` is the expanded uncertainty as
+    reported (two significant digits in the reporting unit, GUM 7.2.6), exact, carried into the
+    domain: the guard bands and the TUR are worked from it. ``acceptance`` is the acceptance
+    zone in the value domain (sorted, for reporting), or ``None`` when the zone is empty;
+    ``exact_acceptance`` the same limits exact. ``outer`` is, under the non-binary rule, the
+    limits ``w`` outside the tolerance limits in the value domain (beyond them a result fails
+    outright), else ``None``. ``within_tolerance`` says whether the reading lies within the
+    tolerance limits, limits included (a rejection of a reading within them is by the guard
+    band alone).
     """
 
     verdict: Verdict
@@ -335,10 +384,37 @@ class Decision:
     domain: str
     outcome: Outcome
     acceptance: tuple[float, float] | None
+    exact_acceptance: tuple[Exact, Exact] | None = None
+    outer: tuple[Exact, Exact] | None = None
+    expanded: Exact = Fraction(0)
+    within_tolerance: bool = True
+
+
+def reported_expanded(window: Window, budget: Budget) -> Fraction:
+    """The expanded uncertainty of ``budget`` as reported, exact, in the domain of ``window``.
+
+    U is rounded to two significant digits (GUM 7.2.6, :func:`round_uncertainty
+    <verirun.metrology.uncertainty.round_uncertainty>`) in the unit it is reported in: the
+    quantity's unit, degrees of arc or percent of scale length.
+    """
+    if budget.expanded == 0.0:
+        return Fraction(0)
+    per_unit = window.per_unit
+    return Fraction(round_uncertainty(float(budget.expanded * per_unit))) / per_unit
+
+
+def _to_value(law: ScaleLaw, window: Window, a: Exact, b: Exact) -> tuple[Exact, Exact]:
+    if window.domain == "value":
+        return a, b
+    x, y = law.exact_value(a), law.exact_value(b)
+    return min(x, y), max(x, y)
 
 
 def judge(rule: Rule, *, window: Window, law: ScaleLaw, budget: Budget, reading: float) -> Decision:
     """Apply ``rule`` to ``reading`` against ``window`` with the uncertainty of ``budget``.
+
+    The decision is taken in exact arithmetic of the numbers as written: the reading (to 15
+    significant digits), the window's exact zone, and U as reported.
 
     Parameters
     ----------
@@ -361,27 +437,21 @@ def judge(rule: Rule, *, window: Window, law: ScaleLaw, budget: Budget, reading:
     if budget.domain != window.domain:
         raise ValueError(f"the budget is in the {budget.domain} domain but the tolerance is stated in"
                          f" the {window.domain} domain; combine the budget in the tolerance's domain")
-    if window.domain == "value":
-        low, high, y = window.low, window.high, reading
-    else:
-        f0 = law.fraction(window.nominal)
-        low, high, y = f0 - window.half_width, f0 + window.half_width, law.fraction(reading)
-        if not isinstance(law, Linear):
-            # An ohms scale ends at 0 Ω and at ∞: a limit at or past an end of the arc is no
-            # limit at all (the pointer cannot go there), so that side of the tolerance is open.
-            if low <= 0.0:
-                low = -math.inf
-            if high >= 1.0:
-                high = math.inf
-    outcome = rule.decide(low=low, high=high, reading=y, expanded=budget.expanded, k=budget.k)
+    y = as_written(reading)
+    if window.domain != "value":
+        y = law.exact_fraction(y)
+    low, high = window.zone
+    expanded = reported_expanded(window, budget)
+    outcome = rule.decide(low=low, high=high, reading=y, expanded=expanded, k=budget.k)
     zone = outcome.acceptance
-    if zone.empty:
-        acceptance = None
-    elif window.domain == "value":
-        acceptance = (zone.low, zone.high)
-    else:
-        a, b = law.value(zone.low), law.value(zone.high)
-        acceptance = (min(a, b), max(a, b))
-    return Decision(verdict=outcome.verdict, conformance=outcome.conformance,
-                    tur=_tur(low, high, budget.expanded), domain=window.domain,  # checked by the rule
-                    outcome=outcome, acceptance=acceptance)
+    exact_acceptance = None if zone.empty else _to_value(law, window, zone.low, zone.high)
+    outer = None
+    if rule.name == "non-binary":
+        outer = _to_value(law, window, low - zone.guard, high + zone.guard)
+    tur = _tur(*window.reachable, expanded) if window.bounded and math.isfinite(window.low) else None
+    return Decision(verdict=outcome.verdict, conformance=outcome.conformance, tur=tur,
+                    domain=window.domain, outcome=outcome,
+                    acceptance=None if exact_acceptance is None else
+                    (float(exact_acceptance[0]), float(exact_acceptance[1])),
+                    exact_acceptance=exact_acceptance, outer=outer, expanded=expanded,
+                    within_tolerance=low <= y <= high)

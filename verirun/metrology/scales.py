@@ -20,6 +20,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+from verirun.metrology.exact import Exact, as_written
+
 
 @dataclass(frozen=True, kw_only=True)
 class Linear:
@@ -45,6 +47,20 @@ class Linear:
     def slope(self, value: float) -> float:
         """``df/dx`` at ``value``: fraction of scale length per unit of the quantity."""
         return 1.0 / (self.high - self.low)
+
+    def exact_fraction(self, value: Exact) -> Exact:
+        """:meth:`fraction` in exact arithmetic of the numbers as written."""
+        if isinstance(value, float):  # an infinity
+            return value if self.high > self.low else -value
+        low = as_written(self.low)
+        return (value - low) / (as_written(self.high) - low)
+
+    def exact_value(self, fraction: Exact) -> Exact:
+        """:meth:`value` in exact arithmetic."""
+        if isinstance(fraction, float):
+            return fraction if self.high > self.low else -fraction
+        low = as_written(self.low)
+        return low + fraction * (as_written(self.high) - low)
 
     @property
     def fiducial(self) -> float:
@@ -82,6 +98,21 @@ class SeriesOhms:
         """``df/dRx = -Rc / (Rc + Rx)^2`` (negative: more resistance, less deflection)."""
         return -self.centre / (self.centre + value) ** 2
 
+    def exact_fraction(self, value: Exact) -> Exact:
+        """:meth:`fraction` in exact rational arithmetic of the numbers as written."""
+        if isinstance(value, float):  # infinity: no deflection
+            return 0
+        centre = as_written(self.centre)
+        return centre / (centre + value)
+
+    def exact_value(self, fraction: Exact) -> Exact:
+        """:meth:`value` in exact rational arithmetic; ``inf`` at or below 0, ``0`` at or above 1."""
+        if fraction <= 0:
+            return math.inf
+        if fraction >= 1:
+            return 0
+        return as_written(self.centre) * (1 - fraction) / fraction
+
     @property
     def fiducial(self) -> None:
         """An ohms scale has no fiducial value in ohms; its errors are stated along the arc."""
@@ -117,6 +148,20 @@ class ShuntOhms:
     def slope(self, value: float) -> float:
         """``df/dRx = Rc / (Rc + Rx)^2``."""
         return self.centre / (self.centre + value) ** 2
+
+    def exact_fraction(self, value: Exact) -> Exact:
+        """:meth:`fraction` in exact rational arithmetic of the numbers as written."""
+        if isinstance(value, float):  # infinity: full deflection
+            return 1
+        return value / (value + as_written(self.centre))
+
+    def exact_value(self, fraction: Exact) -> Exact:
+        """:meth:`value` in exact rational arithmetic; ``0`` at or below 0, ``inf`` at or above 1."""
+        if fraction <= 0:
+            return 0
+        if fraction >= 1:
+            return math.inf
+        return as_written(self.centre) * fraction / (1 - fraction)
 
     @property
     def fiducial(self) -> None:

@@ -18,9 +18,11 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from fractions import Fraction
 from typing import Literal
 
-from verirun.metrology.scales import Linear, ScaleLaw
+from verirun.metrology.exact import Exact, as_written
+from verirun.metrology.scales import Linear, ScaleLaw, ShuntOhms
 
 Domain = Literal["value", "deflection"]
 
@@ -66,8 +68,31 @@ class RangeContext:
                 raise ValueError(f"RangeContext.{name} must be positive, got {amount!r}")
 
 
+class _Statement:
+    """What every accuracy statement shares: its half-width as a float, from the exact one."""
+
+    __slots__ = ()
+
+    def half_width(self, nominal: float, ctx: "RangeContext") -> tuple[Domain, float]:
+        """The half-width at ``nominal`` and the domain it is in (see :meth:`exact_half_width`)."""
+        domain, half = self.exact_half_width(nominal, ctx)
+        try:
+            return domain, float(half)
+        except OverflowError:
+            raise ValueError("the numbers are too large to work with") from None
+
+    def exact_half_width(self, nominal: float, ctx: "RangeContext") -> tuple[Domain, Fraction]:
+        """The half-width at ``nominal``, in exact arithmetic of the numbers as written: in the
+        quantity's base unit for ``"value"``, a fraction of scale length for ``"deflection"``."""
+        raise NotImplementedError
+
+
+def _fiducial(ctx: "RangeContext") -> float | None:
+    return ctx.full_scale if ctx.full_scale is not None else ctx.law.fiducial
+
+
 @dataclass(frozen=True, kw_only=True)
-class PercentOfFullScale:
+class PercentOfFullScale(_Statement):
     """± ``percent`` % of the fiducial value (the span of a linear scale)."""
 
     percent: float
@@ -76,16 +101,16 @@ class PercentOfFullScale:
     def __post_init__(self) -> None:
         _check_amount(self, "percent")
 
-    def half_width(self, nominal: float, ctx: RangeContext) -> tuple[Domain, float]:
-        fiducial = ctx.full_scale if ctx.full_scale is not None else ctx.law.fiducial
+    def exact_half_width(self, nominal: float, ctx: RangeContext) -> tuple[Domain, Fraction]:
+        fiducial = _fiducial(ctx)
         if fiducial is None:
             raise ValueError("percent of full scale needs a linear scale; state an ohms scale's"
                              " accuracy in degrees of arc or percent of scale length")
-        return "value", self.percent / 100.0 * abs(fiducial)
+        return "value", as_written(self.percent) / 100 * abs(as_written(fiducial))
 
 
 @dataclass(frozen=True, kw_only=True)
-class ClassIndex:
+class ClassIndex(_Statement):
     """Accuracy class (IEC 60051-1): ± ``index`` % of the fiducial value.
 
     On a linear scale the fiducial value is the full-scale (span) value; on an ohms scale it is
@@ -98,15 +123,14 @@ class ClassIndex:
     def __post_init__(self) -> None:
         _check_amount(self, "index")
 
-    def half_width(self, nominal: float, ctx: RangeContext) -> tuple[Domain, float]:
+    def exact_half_width(self, nominal: float, ctx: RangeContext) -> tuple[Domain, Fraction]:
         if isinstance(ctx.law, Linear):
-            fiducial = ctx.full_scale if ctx.full_scale is not None else ctx.law.fiducial
-            return "value", self.index / 100.0 * abs(fiducial)
-        return "deflection", self.index / 100.0
+            return "value", as_written(self.index) / 100 * abs(as_written(_fiducial(ctx)))
+        return "deflection", as_written(self.index) / 100
 
 
 @dataclass(frozen=True, kw_only=True)
-class DegreesOfArc:
+class DegreesOfArc(_Statement):
     """± ``degrees`` of arc along the scale."""
 
     degrees: float
@@ -115,14 +139,14 @@ class DegreesOfArc:
     def __post_init__(self) -> None:
         _check_amount(self, "degrees")
 
-    def half_width(self, nominal: float, ctx: RangeContext) -> tuple[Domain, float]:
+    def exact_half_width(self, nominal: float, ctx: RangeContext) -> tuple[Domain, Fraction]:
         if not ctx.arc:
             raise ValueError("a tolerance in degrees needs the arc span of the scale")
-        return "deflection", self.degrees / ctx.arc
+        return "deflection", as_written(self.degrees) / as_written(ctx.arc)
 
 
 @dataclass(frozen=True, kw_only=True)
-class PercentOfLength:
+class PercentOfLength(_Statement):
     """± ``percent`` % of the scale length."""
 
     percent: float
@@ -131,12 +155,12 @@ class PercentOfLength:
     def __post_init__(self) -> None:
         _check_amount(self, "percent")
 
-    def half_width(self, nominal: float, ctx: RangeContext) -> tuple[Domain, float]:
-        return "deflection", self.percent / 100.0
+    def exact_half_width(self, nominal: float, ctx: RangeContext) -> tuple[Domain, Fraction]:
+        return "deflection", as_written(self.percent) / 100
 
 
 @dataclass(frozen=True, kw_only=True)
-class ValueStatement:
+class ValueStatement(_Statement):
     """± (``reading`` % of reading + ``range`` % of range + ``counts`` counts + ``absolute``).
 
     Any term may be zero; percent of reading, percent of reading plus percent of range, percent of
@@ -152,34 +176,43 @@ class ValueStatement:
     def __post_init__(self) -> None:
         _check_amount(self, "reading", "range", "counts", "absolute")
 
-    def half_width(self, nominal: float, ctx: RangeContext) -> tuple[Domain, float]:
-        width = abs(nominal) * self.reading / 100.0 + self.absolute
+    def exact_half_width(self, nominal: float, ctx: RangeContext) -> tuple[Domain, Fraction]:
+        width = abs(as_written(nominal)) * as_written(self.reading) / 100 + as_written(self.absolute)
         if self.range:
-            fiducial = ctx.full_scale if ctx.full_scale is not None else ctx.law.fiducial
+            fiducial = _fiducial(ctx)
             if fiducial is None:
                 raise ValueError("percent of range needs the range's full-scale value")
-            width += abs(fiducial) * self.range / 100.0
+            width += abs(as_written(fiducial)) * as_written(self.range) / 100
         if self.counts:
             if ctx.count is None:
                 raise ValueError("a tolerance in counts needs the value of one count (resolution)")
-            width += self.counts * ctx.count
+            width += as_written(self.counts) * as_written(ctx.count)
         return "value", width
 
 
 Statement = PercentOfFullScale | ClassIndex | DegreesOfArc | PercentOfLength | ValueStatement
 
 
-# Made for every test point of a plan and never changed after; not frozen because a frozen
-# dataclass takes twice as long to build, but hashable like one, as the frozen test point
-# that holds it is.
-@dataclass(kw_only=True, slots=True, unsafe_hash=True)
+@dataclass(frozen=True, kw_only=True, slots=True)
 class Window:
     """The allowable window at one nominal value.
 
-    ``high`` is ``math.inf`` when the window is unbounded above (an arc tolerance reaching the
-    infinity end of a series ohms scale). ``domain`` and ``half_width`` say where the tolerance
-    was stated: ``half_width`` is in the quantity's base unit for ``"value"``, and a fraction of
-    scale length for ``"deflection"``.
+    ``low`` and ``high`` are the limits in the quantity's base unit; ``high`` is ``math.inf``
+    when the window is unbounded above (an arc tolerance reaching the infinity end of a series
+    ohms scale). ``domain`` and ``half_width`` say where the tolerance was stated: ``half_width``
+    is in the quantity's base unit for ``"value"``, and a fraction of scale length for
+    ``"deflection"``.
+
+    ``zone`` is the tolerance zone where decisions are taken: the limits in the tolerance's own
+    domain in exact arithmetic of the numbers as written (see :mod:`verirun.metrology.exact`).
+    On an ohms scale a side whose limit lies at or past an end of the arc is open (``±inf``):
+    the pointer cannot go there. ``exact_low`` and ``exact_high`` are the same limits in the
+    value domain, exact. ``per_unit`` is how many reporting units make one unit of the domain:
+    1 for the value, the arc for degrees, 100 for percent of scale length; ``unit`` names the
+    reporting unit (``""`` for the quantity's own, ``"deg"``, ``"% of length"``). ``stops`` is
+    true on an ohms scale, whose arc ends at two stops (0 and infinity); ``admits_rest`` true
+    when the zone holds the pointer's rest position there, so that a meter whose circuit is open
+    (the pointer never moves) would pass.
     """
 
     nominal: float
@@ -187,37 +220,78 @@ class Window:
     high: float
     domain: Domain
     half_width: float
+    zone: tuple[Exact, Exact] = (-math.inf, math.inf)
+    exact_low: Exact = -math.inf
+    exact_high: Exact = math.inf
+    per_unit: Fraction = Fraction(1)
+    unit: str = ""
+    stops: bool = False
+    admits_rest: bool = False
 
     def contains(self, reading: float) -> bool:
-        """True when ``reading`` lies inside the window, limits included."""
-        return self.low <= reading <= self.high
+        """True when ``reading`` lies inside the window, limits included, in exact arithmetic
+        of the numbers as written."""
+        return self.exact_low <= as_written(reading) <= self.exact_high
 
     @property
     def bounded(self) -> bool:
         """False when the upper limit is unbounded."""
         return math.isfinite(self.high)
 
+    @property
+    def reachable(self) -> tuple[Exact, Exact]:
+        """The tolerance zone cut to the ends of the arc on a scale whose arc ends at stops (an
+        ohms scale, 0 .. 1 of its length); elsewhere the zone itself."""
+        low, high = self.zone
+        if self.stops and self.domain == "deflection":
+            low, high = max(low, 0), min(high, 1)
+        return low, high
+
+
+def _report_unit(statement: "Statement") -> tuple[Fraction, str]:
+    if isinstance(statement, DegreesOfArc):
+        return Fraction(1), "deg"
+    return Fraction(100), "% of length"
+
 
 def window(statement: Statement, nominal: float, ctx: RangeContext) -> Window:
     """The allowable window of ``statement`` at ``nominal`` on the range described by ``ctx``."""
-    domain, half = statement.half_width(nominal, ctx)
-    if half < 0 or not math.isfinite(half):
-        raise ValueError(f"tolerance half-width must be finite and not negative, got {half}")
+    domain, half = statement.exact_half_width(nominal, ctx)
+    if half < 0:
+        raise ValueError(f"tolerance half-width must be finite and not negative, got {float(half)}")
+    n = as_written(nominal)
+    ohms = not isinstance(ctx.law, Linear)
     if domain == "value":
-        low, high = nominal - half, nominal + half
-        if not isinstance(ctx.law, Linear):
-            low = max(low, 0.0)  # a resistance cannot read below zero
-        return Window(nominal=nominal, low=low, high=high, domain=domain, half_width=half)
-    f0 = ctx.law.fraction(nominal)
-    a, b = ctx.law.value(f0 - half), ctx.law.value(f0 + half)
-    # value(fraction(x)) can miss x by an ulp; a window always holds its own nominal.
-    low, high = min(a, b, nominal), max(a, b, nominal)
-    return Window(nominal=nominal, low=low, high=high, domain=domain, half_width=half)
+        low, high = n - half, n + half
+        if ohms:
+            low = max(low, Fraction(0))  # a resistance cannot read below zero
+        zone = (low, high)
+        per_unit, unit = Fraction(1), ""
+    else:
+        f0 = ctx.law.exact_fraction(n)
+        zone = (f0 - half, f0 + half)
+        if ohms:
+            # An ohms scale ends at 0 and at infinity: a limit at or past an end of the arc is
+            # no limit at all (the pointer cannot go there), so that side of the zone is open.
+            zone = (zone[0] if zone[0] > 0 else -math.inf, zone[1] if zone[1] < 1 else math.inf)
+        a, b = ctx.law.exact_value(f0 - half), ctx.law.exact_value(f0 + half)
+        low, high = min(a, b, n), max(a, b, n)
+        per_unit, unit = _report_unit(statement)
+        if unit == "deg":
+            per_unit = as_written(ctx.arc)
+    rest = ohms and (zone[0] <= 0 if domain == "value" and isinstance(ctx.law, ShuntOhms)
+                     else domain == "deflection" and zone[0] == -math.inf)
+    try:
+        float_low, float_high, float_half = float(low), float(high), float(half)
+    except OverflowError:
+        raise ValueError("the numbers are too large to work with") from None
+    # The float limits hold the float nominal even where it is not a decimal of 15 digits.
+    return Window(nominal=nominal, low=min(float_low, nominal), high=max(float_high, nominal),
+                  domain=domain, half_width=float_half, zone=zone, exact_low=low, exact_high=high,
+                  per_unit=per_unit, unit=unit, stops=ohms, admits_rest=rest)
 
 
-# Made afresh for every reading and never changed after; not frozen because a frozen
-# dataclass takes twice as long to build.
-@dataclass(kw_only=True, slots=True)
+@dataclass(frozen=True, kw_only=True, slots=True)
 class Deviation:
     """How far a reading lies from its nominal, in the domain the tolerance is stated in.
 
@@ -233,9 +307,13 @@ class Deviation:
 
 def deviation(win: Window, reading: float, law: ScaleLaw) -> Deviation:
     """The error of ``reading`` against ``win``, in the statement's own domain."""
+    y, n = as_written(reading), as_written(win.nominal)
     if win.domain == "value":
-        error = reading - win.nominal
+        exact = y - n
     else:
-        error = law.fraction(reading) - law.fraction(win.nominal)
-    pct = 100.0 * error / win.half_width if win.half_width > 0 else None
+        exact = law.exact_fraction(y) - law.exact_fraction(n)
+    if isinstance(exact, float):  # a reading at infinity
+        return Deviation(error=exact, percent_of_tolerance=None)
+    error = float(exact)
+    pct = float(100 * exact / Fraction(win.half_width)) if win.half_width > 0 else None
     return Deviation(error=error, percent_of_tolerance=pct)

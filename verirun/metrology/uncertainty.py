@@ -71,10 +71,7 @@ def standard_from_limit(limit: float, *, distribution: Distribution,
     raise ValueError(f"unknown distribution {distribution!r} (use normal, rectangular or triangular)")
 
 
-# Made for every test point of a plan and never changed after; not frozen because a frozen
-# dataclass takes twice as long to build, but hashable like one, as the frozen test point
-# that holds it is.
-@dataclass(kw_only=True, slots=True, unsafe_hash=True)
+@dataclass(frozen=True, kw_only=True, slots=True)
 class Term:
     """One named contribution to a budget.
 
@@ -214,10 +211,7 @@ def readability_term(*, division: float, fraction: float = 1.0,
                 standard_uncertainty=resolution_uncertainty(resolution))
 
 
-# Made for every test point of a plan and never changed after; not frozen because a frozen
-# dataclass takes twice as long to build, but hashable like one, as the frozen test point
-# that holds it is.
-@dataclass(kw_only=True, slots=True, unsafe_hash=True)
+@dataclass(frozen=True, kw_only=True, slots=True)
 class Budget:
     """The combined uncertainty of one point, in the domain its tolerance is stated in.
 
@@ -305,34 +299,56 @@ class Rounded:
     uncertainty_text: str
 
 
+def round_uncertainty(uncertainty: float, *, digits: int = 2,
+                      mode: Literal["nearest", "up"] = "nearest") -> Decimal:
+    """An uncertainty rounded for reporting: ``digits`` significant digits, in decimal.
+
+    GUM 7.2.6: quote an uncertainty to at most two significant digits. The number is rounded as
+    written in decimal (the shortest repr of the float), ties to the even digit
+    (``mode="nearest"``) or upward (``"up"``, which GUM 7.2.6 allows); a carry into a new digit
+    keeps ``digits`` significant digits (0.995 gives 1.0, 9.95 gives 10, 99.5 gives 100) and
+    significant trailing zeros are kept (0.01049 gives 0.010). This is the one rounding of U:
+    the console, ``verirun window``, the record and the certificate all print it, and guard
+    bands are worked from it.
+
+    Raises
+    ------
+    ValueError
+        If ``uncertainty`` is not positive and finite, or ``digits < 1``.
+    """
+    _check_finite("an uncertainty to round", uncertainty, positive=True)
+    if digits < 1:
+        raise ValueError(f"significant digits must be at least 1, got {digits!r}")
+    if mode not in ("nearest", "up"):
+        raise ValueError(f"unknown rounding mode {mode!r} (use nearest or up)")
+    how = ROUND_CEILING if mode == "up" else ROUND_HALF_EVEN
+    u = Decimal(repr(float(uncertainty)))
+    decimals = digits - 1 - u.adjusted()
+    u_r = u.quantize(Decimal(1).scaleb(-decimals), rounding=how)
+    if u_r.adjusted() > u.adjusted():  # carried into a new digit (0.0996 → 0.100): drop one
+        decimals -= 1
+        u_r = u_r.quantize(Decimal(1).scaleb(-decimals), rounding=how)
+    return u_r
+
+
 def round_result(*, value: float, uncertainty: float, digits: int = 2,
                  mode: Literal["nearest", "up"] = "nearest") -> Rounded:
     """Round an uncertainty to ``digits`` significant digits and the value to the same place.
 
     GUM 7.2.6: quote an uncertainty to at most two significant digits and round the estimate
-    consistently with it. ``mode="up"`` rounds the uncertainty upward, which GUM 7.2.6 allows;
-    ``"nearest"`` sends ties to the even digit. Numbers are rounded as written in decimal (the
-    shortest repr of the float), so 0.0125 rounds as 0.0125, not as its binary neighbour.
+    consistently with it. The uncertainty is rounded by :func:`round_uncertainty`; the value to
+    the same decimal place, ties to even, as written in decimal (the shortest repr of the
+    float), so 0.0125 rounds as 0.0125, not as its binary neighbour.
 
     Raises
     ------
     ValueError
         If ``uncertainty`` is not positive and finite, ``value`` is not finite, or ``digits < 1``.
     """
-    _check_finite("an uncertainty to round", uncertainty, positive=True)
     if not math.isfinite(value):
         raise ValueError(f"a value to round must be finite, got {value!r}")
-    if digits < 1:
-        raise ValueError(f"significant digits must be at least 1, got {digits!r}")
-    if mode not in ("nearest", "up"):
-        raise ValueError(f"unknown rounding mode {mode!r} (use nearest or up)")
-    how = ROUND_CEILING if mode == "up" else ROUND_HALF_EVEN
-    u = Decimal(repr(uncertainty))
-    decimals = digits - 1 - u.adjusted()
-    u_r = u.quantize(Decimal(1).scaleb(-decimals), rounding=how)
-    if u_r.adjusted() > u.adjusted():  # carried into a new digit (0.0996 → 0.100): drop one
-        decimals -= 1
-        u_r = u_r.quantize(Decimal(1).scaleb(-decimals), rounding=how)
+    u_r = round_uncertainty(uncertainty, digits=digits, mode=mode)
+    decimals = -u_r.as_tuple().exponent
     v_r = Decimal(repr(value)).quantize(Decimal(1).scaleb(-decimals), rounding=ROUND_HALF_EVEN)
     return Rounded(value=float(v_r), uncertainty=float(u_r), decimals=decimals,
                    value_text=_plain(v_r), uncertainty_text=_plain(u_r))
