@@ -414,14 +414,21 @@ def _cmd_resume(args) -> int:
 
 
 def _summary(rich, finished) -> None:
+    from verirun.runrecord import record_judged
+
     summary = finished.record["summary"]
     rich.print(f"\nRun record:  {finished.record_path}")
     if finished.certificate is not None:
         rich.print(f"Certificate: {finished.certificate}")
-    verdict = summary["overall"].upper()
-    colour = "green" if summary["overall"] == "pass" else "red"
-    rich.print(f"Overall: [bold {colour}]{verdict}[/] ({summary['pass']} pass, {summary['fail']} fail,"
-               f" {summary['skipped']} skipped of {summary['points']} points)")
+    from verirun.console import verdict_markup
+    from verirun.metrology.summary import summarise
+
+    record = finished.record
+    counted = summarise(record_judged(record), record["decision_rule"]["rule"])
+    rich.print(f"Overall: {verdict_markup(counted.overall)} ({counted.counts_text()},"
+               f" {counted.skipped} skipped of {counted.points} points)")
+    if counted.guard_band_rejections:
+        rich.print(f"Rejected by the guard band alone (within tolerance): {', '.join(counted.guard_band_rejections)}")
 
 
 def _cmd_certify(args) -> int:

@@ -11,6 +11,7 @@ from typing import TYPE_CHECKING
 from rich.markup import escape
 
 from verirun.errors import RunAborted, UnitError
+from verirun.metrology.summary import label
 from verirun.pointer import pointer, shows_pointer
 from verirun.readings import COMMANDS, GROSS_TOLERANCES, Entry, parse_entry, reading_unit, tolerances_off
 from verirun.units import format_quantity
@@ -28,6 +29,16 @@ CAUTIONS = (
     "These cautions do not replace your local electrical-safety rules, the instrument makers'"
     " instructions or licensed practice; follow those where they ask for more.",
 )
+
+
+#: The colour of each statement on the console: conditional results stand apart from both ends.
+VERDICT_COLOURS = {"pass": "green", "conditional-pass": "yellow", "conditional-fail": "dark_orange",
+                   "fail": "red", "skipped": "dim", "not-measured": "dim", "none": "dim"}
+
+
+def verdict_markup(verdict: str) -> str:
+    """``verdict`` as bold coloured console markup: ``[bold yellow]CONDITIONAL PASS[/]``."""
+    return f"[bold {VERDICT_COLOURS[verdict]}]{label(verdict)}[/]"
 
 
 def _limits(point: "TestPoint", digits: int = 6) -> str:

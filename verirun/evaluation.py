@@ -9,14 +9,17 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from decimal import ROUND_HALF_EVEN, Decimal
+from fractions import Fraction
 
 from verirun.metrology import decision, tolerance
+from verirun.metrology.exact import as_written
+from verirun.metrology.uncertainty import round_uncertainty
+from verirun.units import format_limit, format_typed, row_exponent, typed_decimal, unit_text
 from verirun.procedure.plan import TestPoint
 
 
-# Made afresh for every reading and never changed after; not frozen because a frozen
-# dataclass takes twice as long to build.
-@dataclass(kw_only=True, slots=True)
+@dataclass(frozen=True, kw_only=True, slots=True)
 class Result:
     """The evaluation of one reading.
 
@@ -26,6 +29,15 @@ class Result:
     unit at the nominal; ``acceptance`` the acceptance limits in the range's unit (``None`` when
     the rule leaves no acceptance zone). ``*_pct`` are percentages of the tolerance half-width,
     measured from the nominal in the tolerance's own domain.
+
+    ``expanded`` is U as reported (two significant digits, GUM 7.2.6), the number the guard
+    bands are worked from. ``interval`` is the coverage interval of the reading in the range's
+    unit: ``reading ± U`` for a tolerance stated on the value, and for one stated along an ohms
+    scale the interval ``f(reading) ± U`` mapped through the scale law (asymmetric in ohms, and
+    open, ``inf``, where it reaches the end of the arc). ``exact_acceptance`` and ``outer`` are
+    the exact acceptance limits and, under the non-binary rule, the limits ``w`` outside the
+    tolerance (see :class:`~verirun.metrology.decision.Decision`); ``within_tolerance`` whether
+    the reading lies within the tolerance limits.
     """
 
     reading: float
@@ -42,15 +54,31 @@ class Result:
     expanded_pct: float | None
     accept_low_pct: float | None
     accept_high_pct: float | None
+    interval: tuple[float, float] | None = None
+    exact_acceptance: tuple | None = None
+    outer: tuple | None = None
+    within_tolerance: bool = True
 
 
 def error_unit(point: TestPoint) -> tuple[str, float]:
     """The unit errors at ``point`` are reported in, and the factor from the tolerance's domain."""
     if point.window.domain == "value":
         return point.unit, 1.0
-    if isinstance(point.statement, tolerance.DegreesOfArc):
-        return "deg", float(point.range.arc)
-    return "% of length", 100.0
+    return point.window.unit, float(point.window.per_unit)
+
+
+def coverage_interval(point: TestPoint, reading: float, expanded) -> tuple[float, float] | None:
+    """The interval ``reading ± U`` in the range's unit, ``U`` exact in the tolerance's domain;
+    along an ohms scale it is mapped through the scale law (see :class:`Result`)."""
+    if expanded == 0:
+        return None
+    law = point.range.law
+    y = as_written(reading)
+    if point.window.domain == "value":
+        return float(y - expanded), float(y + expanded)
+    f = law.exact_fraction(y)
+    a, b = law.exact_value(f - expanded), law.exact_value(f + expanded)
+    return float(min(a, b)), float(max(a, b))
 
 
 def evaluate(point: TestPoint, reading: float) -> Result:
@@ -61,17 +89,120 @@ def evaluate(point: TestPoint, reading: float) -> Result:
     unit, factor = error_unit(point)
     judged = decision.judge(point.rule, window=win, law=law, budget=point.budget, reading=reading)
     half = win.half_width
-    centre = win.nominal if win.domain == "value" else law.fraction(win.nominal)
+    n = as_written(win.nominal)
+    centre = n if win.domain == "value" else law.exact_fraction(n)
     zone = judged.outcome.acceptance
 
     def pct(x: float) -> float | None:
         return 100.0 * x / half if half > 0 and math.isfinite(x) else None
 
     empty = zone.empty
+    expanded = judged.expanded  # U as reported, exact, in the tolerance's domain
+    expanded_value = float(expanded) if win.domain == "value" else point.budget.expanded_value
     return Result(reading=reading, error=dev.error * factor, error_unit=unit,
                   percent_of_tolerance=dev.percent_of_tolerance, verdict=judged.verdict,
-                  expanded=point.budget.expanded * factor, expanded_value=point.budget.expanded_value,
+                  expanded=float(expanded * win.per_unit), expanded_value=expanded_value,
                   k=point.budget.k, tur=judged.tur, conformance=judged.conformance,
-                  acceptance=judged.acceptance, expanded_pct=pct(point.budget.expanded),
-                  accept_low_pct=None if empty else pct(zone.low - centre),
-                  accept_high_pct=None if empty else pct(zone.high - centre))
+                  acceptance=judged.acceptance, expanded_pct=pct(float(expanded)),
+                  accept_low_pct=None if empty else pct(float(zone.low - centre)),
+                  accept_high_pct=None if empty else pct(float(zone.high - centre)),
+                  interval=coverage_interval(point, reading, expanded),
+                  exact_acceptance=judged.exact_acceptance, outer=judged.outer,
+                  within_tolerance=judged.within_tolerance)
+
+
+def _decimal_text(value: Decimal, unit: str, *, signed: bool) -> str:
+    text = f"{value:f}"
+    if value == 0:
+        text = text.lstrip("-")  # never "+0" or "-0"
+    elif signed and not text.startswith("-"):
+        text = "+" + text
+    return f"{text} {unit}" if unit else text
+
+
+def _in_domain_unit(value: Decimal, unit: str, *, signed: bool) -> str:
+    """An error or U along the scale: ``+0.8°``, ``0.42 % of length``."""
+    text = _decimal_text(value, "", signed=signed)
+    return f"{text}°" if unit == "deg" else f"{text} {unit}"
+
+
+def shown(point: TestPoint, result: Result | None = None, typed: str | None = None) -> dict:
+    """Every number of one row as printed, under one SI prefix: the one formatter of verirun.
+
+    The console's result line, ``verirun window``, the run record and the certificate print
+    these texts. The reading is shown as ``typed`` (its digits kept); each limit with enough
+    digits that the reading shown, compared with the limit shown, gives the verdict shown; U to
+    two significant digits (GUM 7.2.6) and the error rounded to the same decimal place; zero
+    never signed. Keys: ``unit`` (the row's prefixed unit), ``low``, ``high`` (tolerance
+    limits), and for a reading ``reading``, ``accept_low``, ``accept_high`` (acceptance limits,
+    ``None`` when the rule leaves none), ``outer_low``, ``outer_high`` (non-binary: ``w``
+    outside the tolerance), ``error``, ``U_spec`` (U in the error's unit), ``U`` (U in the
+    range's unit where the tolerance is stated on the value, else ``None``), ``interval`` (the
+    coverage interval in the range's unit, as the scale law maps it).
+    """
+    win = point.window
+    unit = point.unit
+    reading = None
+    places = 0
+    if typed is not None and result is not None:
+        number, exponent = typed_decimal(typed, unit)
+        reading = as_written(result.reading)
+        places = max(-number.as_tuple().exponent, 0)
+    else:
+        exponent = row_exponent(unit, point.nominal, win.high if math.isfinite(win.high) else None)
+
+    def limit(value, side: str) -> str:
+        return format_limit(value, unit, exponent, reading=reading, side=side, places=places)
+
+    out = {"unit": unit_text(unit, exponent), "low": limit(win.exact_low, "low"),
+           "high": limit(win.exact_high, "high")}
+    if result is None:
+        return out
+    out["reading"] = format_typed(typed, unit, exponent)
+    accept = result.exact_acceptance
+    out["accept_low"] = limit(accept[0], "low") if accept else None
+    out["accept_high"] = limit(accept[1], "high") if accept else None
+    outer = result.outer
+    out["outer_low"] = limit(outer[0], "low") if outer else None
+    out["outer_high"] = limit(outer[1], "high") if outer else None
+    exact_error = _exact_error(point, reading)
+    if result.expanded > 0:
+        u = round_uncertainty(result.expanded)
+        place = Decimal(1).scaleb(u.as_tuple().exponent)
+        error = Decimal(exact_error.numerator) / Decimal(exact_error.denominator)
+        error = error.quantize(place, rounding=ROUND_HALF_EVEN)
+        if win.domain == "value":
+            scale = Decimal(1).scaleb(-exponent)
+            out["error"] = _decimal_text(error * scale, unit_text(unit, exponent), signed=True)
+            out["U_spec"] = _decimal_text(u * scale, unit_text(unit, exponent), signed=False)
+            out["U"] = out["U_spec"]
+        else:
+            out["error"] = _in_domain_unit(error, win.unit, signed=True)
+            out["U_spec"] = _in_domain_unit(u, win.unit, signed=False)
+            out["U"] = None
+        low, high = result.interval
+        out["interval"] = (f"{format_limit(Fraction(low), unit, exponent, places=places)} to"
+                           f" {format_limit(high if math.isinf(high) else Fraction(high), unit, exponent, places=places)}")
+    else:
+        out["error"] = (_decimal_text(_exact_decimal(exact_error * Fraction(10) ** -exponent),
+                                      unit_text(unit, exponent), signed=True)
+                        if win.domain == "value" else
+                        _in_domain_unit(Decimal(repr(round(float(exact_error), 6))), win.unit, signed=True))
+        out["U_spec"] = out["U"] = "—"
+        out["interval"] = None
+    return out
+
+
+def _exact_error(point: TestPoint, reading: Fraction) -> Fraction:
+    """The error of ``reading`` in the error's unit, exact."""
+    win = point.window
+    n = as_written(win.nominal)
+    if win.domain == "value":
+        return reading - n
+    law = point.range.law
+    return (law.exact_fraction(reading) - law.exact_fraction(n)) * win.per_unit
+
+
+def _exact_decimal(q: Fraction) -> Decimal:
+    d = Decimal(q.numerator) / Decimal(q.denominator)
+    return d.normalize() if d != 0 else Decimal(0)

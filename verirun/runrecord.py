@@ -13,13 +13,13 @@ from pathlib import Path
 
 from verirun.bench.config import Bench, load_bench_text
 from verirun.errors import ProcedureError, RecordError
-from verirun.evaluation import Result, evaluate
-from verirun.metrology.uncertainty import round_result
+from verirun.evaluation import Result, evaluate, shown
+from verirun.metrology.exact import as_written
+from verirun.metrology.summary import Judged, Summary, summarise
 from verirun.procedure.load import Procedure, load_procedure_text
 from verirun.procedure.plan import TestPoint, plan
 from verirun.procedure.model import FUNCTION_NAMES
 from verirun.record import RECORD_FORMAT, dumps, json_number, line_hash, verify_chain
-from verirun.units import format_fixed, format_quantity
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -93,13 +93,10 @@ def _build(documents: list[dict], source: str = "journal", *, known: Known | Non
         if point.index in corrections:
             row["correction"] = corrections[point.index]
         rows.append(row)
-    counts = {"points": len(rows), "pass": 0, "fail": 0, "skipped": 0, "not-measured": 0}
-    for row in rows:
-        counts[row["verdict"]] = counts.get(row["verdict"], 0) + 1
+    summary = summarise(record_judged({"points": rows}), procedure.rule.name)
     status = stop["status"] if stop else "resumable"
-    if status == "complete" and counts["not-measured"]:
+    if status == "complete" and summary.not_measured:
         status = "incomplete"
-    overall = ("fail" if counts["fail"] else "pass") if counts["pass"] + counts["fail"] else "none"
     return {
         "record_format": 1 if journal_format < 2 else RECORD_FORMAT,
         "run": {"uid": start["uid"], "started": start["time"], "ended": stop["time"] if stop else None,
@@ -119,8 +116,34 @@ def _build(documents: list[dict], source: str = "journal", *, known: Known | Non
         "ranges": [_range(rng) for rng in procedure.ranges],
         "points": rows,
         "notes": notes,
-        "summary": {**counts, "overall": overall},
+        "summary": summary_document(summary),
     }
+
+
+def record_judged(record: dict) -> list[Judged]:
+    """The points of ``record`` as :func:`~verirun.metrology.summary.summarise` takes them.
+
+    A row of a record written before rows said whether the reading lies within tolerance is
+    compared with its limits here, exactly, as the numbers are written."""
+    out = []
+    for row in record["points"]:
+        within = row.get("within_tolerance")
+        if within is None and row.get("reading") is not None:
+            high = row.get("high")
+            within = as_written(row["low"]) <= as_written(row["reading"]) <= (
+                math.inf if high is None else as_written(high))
+        out.append(Judged(key=row["key"], verdict=row["verdict"], within_tolerance=within))
+    return out
+
+
+def summary_document(summary: Summary) -> dict:
+    """The record's summary: every count, the overall outcome, the rejections by cause and the
+    statement of conformity in words, all from :func:`~verirun.metrology.summary.summarise`."""
+    return {**summary.counts(), "overall": summary.overall,
+            "rejections": [{"key": r.key, "verdict": r.verdict, "cause": r.cause}
+                           for r in summary.rejections],
+            "guard_band_rejections": list(summary.guard_band_rejections),
+            "statement": summary.statement()}
 
 
 def _range(rng) -> dict:
@@ -233,7 +256,7 @@ def _row(point, doc: dict | None, known: Result | None = None, journal_format: i
            "nominal": point.nominal, "frequency": point.frequency, "stimulus": point.stimulus_text(),
            "low": json_number(win.low), "high": json_number(win.high), "domain": win.domain,
            "half_width": win.half_width, "accuracy": point.accuracy_text,
-           "limits_text": f"{format_quantity(win.low, point.unit)} to {format_quantity(win.high, point.unit)}",
+           "limits_text": "{low} to {high}".format(**shown(point)),
            # Filled in below for a measured point; present (as None) for every row so that a
            # certificate template never meets a missing key.
            "reading": None, "typed": None, "time": None, "error": None, "error_unit": None,
@@ -250,7 +273,8 @@ def _row(point, doc: dict | None, known: Result | None = None, journal_format: i
     same = (known is not None and known.reading == reading
             and math.copysign(1.0, known.reading) == math.copysign(1.0, reading))  # -0.0 is not 0.0
     result = known if same else evaluate(point, reading)
-    return {**row, "verdict": result.verdict, "reading": reading, "typed": doc["typed"],
+    return {**row, "verdict": result.verdict, "within_tolerance": result.within_tolerance,
+            "reading": reading, "typed": doc["typed"],
             "time": doc["time"], "error": result.error, "error_unit": result.error_unit,
             "percent_of_tolerance": result.percent_of_tolerance,
             "U": json_number(result.expanded_value), "U_spec": result.expanded, "k": result.k,
@@ -265,34 +289,13 @@ def _row(point, doc: dict | None, known: Result | None = None, journal_format: i
             "budget": [{"name": t.name, "u": t.standard_uncertainty, "domain": t.domain,
                         "distribution": t.distribution, "contribution": c}
                        for t, c in zip(point.budget.terms, point.budget.contributions)],
-            "reported": reported(point.unit, result)}
+            "reported": reported(point, result, doc["typed"])}
 
 
-def reported(unit: str, result: Result) -> dict:
-    """The reading, error and U as printed: U to two significant digits, the reading and the
-    error rounded to the same decimal place, each pair under one SI prefix (GUM 7.2.6)."""
-    def spec_text(value: float, decimals: int | None, like: float | None) -> str:
-        if result.error_unit == "deg":
-            return f"{value:+.{max(decimals, 0)}f}°" if decimals is not None else f"{value:+.3g}°"
-        if result.error_unit == "% of length":
-            return f"{value:+.{max(decimals, 0)}f} %" if decimals is not None else f"{value:+.3g} %"
-        text = (format_fixed(value, unit, decimals, like=like) if decimals is not None
-                else format_quantity(value, unit))
-        return text if text.startswith("-") else "+" + text
-
-    if math.isfinite(result.expanded_value) and result.expanded_value > 0:
-        value_round = round_result(value=result.reading, uncertainty=result.expanded_value)
-        reading_text = format_fixed(value_round.value, unit, value_round.decimals, like=value_round.uncertainty)
-        u_text = format_fixed(value_round.uncertainty, unit, value_round.decimals, like=value_round.value)
-    else:
-        reading_text, u_text = format_quantity(result.reading, unit), "—"
-    if result.expanded > 0:
-        err_round = round_result(value=result.error, uncertainty=result.expanded)
-        error_text = spec_text(err_round.value, err_round.decimals, err_round.uncertainty)
-        u_spec_text = spec_text(err_round.uncertainty, err_round.decimals, err_round.uncertainty).lstrip("+")
-    else:
-        error_text, u_spec_text = spec_text(result.error, None, None), "—"
-    return {"reading": reading_text, "U": u_text, "error": error_text, "U_spec": u_spec_text}
+def reported(point: TestPoint, result: Result, typed: str) -> dict:
+    """The row's numbers as printed (see :func:`verirun.evaluation.shown`): the reading as
+    typed, the limits, the error and U (GUM 7.2.6), under one SI prefix."""
+    return shown(point, result, typed)
 
 
 def _conditions(environment: dict | None) -> str:

@@ -13,6 +13,8 @@ from __future__ import annotations
 
 import math
 import re
+from decimal import ROUND_HALF_EVEN, Decimal
+from fractions import Fraction
 
 from verirun.errors import UnitError
 
@@ -201,3 +203,139 @@ def prefix_for(value: float) -> tuple[float, str]:
         if magnitude >= factor * 0.9999999995:
             return factor, prefix
     return _ENGINEERING[-1]
+
+
+# --- Numbers as written, on one row of output ------------------------------------------------
+#
+# A row (a console result line, a certificate row, the window command's output) shows a reading,
+# its limits and its uncertainty under one SI prefix. The reading is shown with the digits the
+# operator typed; each limit with enough digits that the reading shown, compared with the limit
+# shown, gives the verdict shown; U as rounded by the one rounding function (GUM 7.2.6).
+
+_PREFIX_EXPONENTS = {"p": -12, "n": -9, "u": -6, "µ": -6, "μ": -6, "m": -3, "": 0, "k": 3,
+                     "M": 6, "G": 9}
+_PREFIX_NAMES = {-12: "p", -9: "n", -6: "µ", -3: "m", 0: "", 3: "k", 6: "M", 9: "G"}
+_LEADING_NUMBER = re.compile(r"^\s*([+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?)\s*(\S*)\s*$")
+
+
+def typed_decimal(text: str, expect: str) -> tuple[Decimal, int]:
+    """The number an operator typed, exactly as typed, and the power of ten of its prefix.
+
+    ``typed_decimal("2.900 kΩ", "Ω") == (Decimal("2.900"), 3)``: trailing zeros are kept, as the
+    operator wrote them. The text is checked by :func:`parse_quantity` first.
+
+    Raises
+    ------
+    UnitError
+        If ``text`` is not a quantity in ``expect``.
+    """
+    parse_quantity(text, expect)  # the reasons for refusing, in one place
+    match = _LEADING_NUMBER.match(text)
+    if match is None:
+        raise UnitError(f"{text.strip()!r} is not a number with an optional unit")
+    number, symbol = Decimal(match[1]), match[2]
+    exponent = 0
+    if symbol and symbol not in UNITS:
+        for prefix, power in _PREFIX_EXPONENTS.items():
+            if prefix and symbol.startswith(prefix) and symbol[len(prefix):] in UNITS:
+                exponent = power
+                break
+    return number, exponent
+
+
+def row_exponent(unit: str, *values: float | None) -> int:
+    """The power of ten of the SI prefix a row is shown under: the engineering prefix of the
+    largest finite magnitude among ``values`` (0 when there is none, or for a unit that takes
+    no prefix)."""
+    if unit in _UNPREFIXED or not unit:
+        return 0
+    finite = [abs(v) for v in values if v is not None and math.isfinite(v) and v != 0]
+    if not finite:
+        return 0
+    magnitude = max(finite)
+    for factor, prefix in _ENGINEERING:
+        if magnitude >= factor * 0.9999999995:
+            return _PREFIX_EXPONENTS[prefix]
+    return -12
+
+
+def unit_text(unit: str, exponent: int) -> str:
+    """``"mV"`` for ``("V", -3)``; ``"% of length"`` and ``"deg"`` as they are."""
+    return f"{_PREFIX_NAMES[exponent]}{unit}"
+
+
+def _scaled(value: Decimal | Fraction, exponent: int) -> Decimal | Fraction:
+    if isinstance(value, Decimal):
+        return value.scaleb(-exponent)
+    return value / Fraction(10) ** exponent
+
+
+def _plain_decimal(d: Decimal) -> str:
+    text = f"{d:f}"
+    return text[1:] if text.startswith("-") and d == 0 else text  # never "-0"
+
+
+def format_typed(text: str, unit: str, exponent: int) -> str:
+    """The reading ``text`` as typed, under the row's prefix ``10**exponent``: its digits kept,
+    a leading ``+`` dropped (``"2.9"`` on an ohms row is ``"2.9 Ω"``, never ``"2.900 Ω"``)."""
+    number, power = typed_decimal(text, unit)
+    shown = number.scaleb(power - exponent)
+    return f"{_plain_decimal(shown)} {unit_text(unit, exponent)}"
+
+
+def _decimal_of(q: Fraction, places: int) -> Decimal:
+    d = Decimal(q.numerator) / Decimal(q.denominator) if q.denominator != 1 else Decimal(q.numerator)
+    return d.quantize(Decimal(1).scaleb(-places), rounding=ROUND_HALF_EVEN)
+
+
+def _terminating_places(q: Fraction) -> int | None:
+    """The decimal places of ``q`` when its decimal expansion ends within 20 places."""
+    den = q.denominator
+    twos = fives = 0
+    while den % 2 == 0:
+        den //= 2
+        twos += 1
+    while den % 5 == 0:
+        den //= 5
+        fives += 1
+    places = max(twos, fives)
+    return places if den == 1 and places <= 20 else None
+
+
+def format_limit(limit, unit: str, exponent: int, *, reading: Fraction | None = None,
+                 side: str = "low", places: int = 0, digits: int = 5) -> str:
+    """A limit in base units, exact (a :class:`~fractions.Fraction`, or ``±inf``), under the
+    row's prefix, with enough digits for the printed comparison to tell the truth.
+
+    The limit is shown exactly when its decimal ends within ``places + 4`` places (at least
+    ``places``, the decimals the reading is shown with); otherwise to ``digits`` significant
+    digits and at least ``places`` places. Then, with a ``reading``, digits are added until the
+    reading shown compared with the limit shown (``reading >= limit`` for a lower limit,
+    ``reading <= limit`` for an upper, limits included) gives the same answer as the exact
+    comparison.
+    """
+    if isinstance(limit, float):
+        if math.isinf(limit):
+            return "∞" if limit > 0 else "-∞"
+        limit = Fraction(limit)
+    q = _scaled(limit, exponent)
+    exact = _terminating_places(q)
+    if q == 0:
+        wanted = places
+    else:
+        magnitude = Decimal(q.numerator) / Decimal(q.denominator)
+        wanted = max(places, digits - 1 - magnitude.adjusted())
+    if exact is not None and exact <= max(places, 0) + 4:
+        wanted = max(exact, places)
+    wanted = max(wanted, 0)
+    truth = None
+    r = None
+    if reading is not None:
+        r = _scaled(reading, exponent)
+        truth = r >= q if side == "low" else r <= q
+    while True:
+        shown = _decimal_of(q, wanted)
+        if truth is None or (r >= Fraction(shown) if side == "low" else r <= Fraction(shown)) == truth:
+            break
+        wanted += 1
+    return f"{_plain_decimal(shown)} {unit_text(unit, exponent)}"

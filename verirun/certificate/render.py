@@ -49,7 +49,10 @@ def _environment():
                       autoescape=select_autoescape(["html", "j2"], default=True),
                       undefined=StrictUndefined, trim_blocks=True, lstrip_blocks=True,
                       keep_trailing_newline=True)
+    from verirun.metrology.summary import label
+
     env.filters["q"] = lambda value, unit, digits=6: format_quantity(value, unit, digits)
+    env.filters["verdict"] = label
     return env
 
 
@@ -69,9 +72,40 @@ def _generate(record: dict):
     template = _ENV.get_template("certificate.html.j2")
     as_found = record.get("as_found")
     return template.generate(record=record, ranges=_ranges(record["ranges"], record["points"]),
+                             summary=conformity(record),
                              as_found_ranges=_ranges(record["ranges"], as_found["points"]) if as_found else [],
                              number=certificate_number(record), replaces=previous_number(record),
                              template_version=TEMPLATE_VERSION)
+
+
+def conformity(record: dict):
+    """The statement of conformity of ``record``, worked out by the one summary function from
+    its points and its decision rule (so a record of an earlier format gets today's words)."""
+    from verirun.metrology.summary import summarise
+    from verirun.runrecord import record_judged
+
+    return summarise(record_judged(record), record["decision_rule"]["rule"])
+
+
+def printed(row: dict) -> dict:
+    """The texts a certificate row prints: the record's own (``reported``, ``limits_text``), or
+    for a record written before rows carried them, the same numbers formatted here."""
+    from verirun.units import format_quantity
+
+    texts = dict(row.get("reported") or {})
+    if "low" not in texts:
+        unit = row["unit"]
+        texts["low"] = format_quantity(row["low"], unit, 5)
+        texts["high"] = format_quantity(row["high"], unit, 5) if row["high"] is not None else "∞"
+        if row.get("reading") is not None:
+            accept = (row.get("accept_low"), row.get("accept_high"))
+            texts["accept_low"] = None if accept[0] is None else format_quantity(accept[0], unit, 5)
+            texts["accept_high"] = (None if accept[0] is None else
+                                    "∞" if accept[1] is None else format_quantity(accept[1], unit, 5))
+        texts.setdefault("outer_low", None)
+        texts.setdefault("outer_high", None)
+        texts.setdefault("interval", None)
+    return texts
 
 
 def _ranges(ranges: list[dict], points: list[dict]) -> list[dict]:
@@ -82,7 +116,7 @@ def _ranges(ranges: list[dict], points: list[dict]) -> list[dict]:
 
     by_range: dict[str, list[dict]] = {}
     for row in sorted(points, key=lambda r: r["index"]):
-        by_range.setdefault(row["range"], []).append(row)
+        by_range.setdefault(row["range"], []).append({**row, "printed": printed(row)})
     out = []
     for rng in ranges:
         rows = by_range.get(rng["id"], [])
