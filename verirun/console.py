@@ -41,9 +41,21 @@ def verdict_markup(verdict: str) -> str:
     return f"[bold {VERDICT_COLOURS[verdict]}]{label(verdict)}[/]"
 
 
-def _limits(point: "TestPoint", digits: int = 6) -> str:
-    win = point.window
-    return f"{format_quantity(win.low, point.unit, digits)} to {format_quantity(win.high, point.unit, digits)}"
+def result_text(point: "TestPoint", entry: Entry, result: "Result") -> tuple[str, str]:
+    """The numbers of a result line, as :func:`verirun.evaluation.shown` prints them, and the
+    verdict's label: ``("reading 0.8 V  limits 0.6 V to 0.8 V", "PASS")``. The limits that
+    decide the verdict are all there: the acceptance limits under a guarded rule, and under the
+    non-binary rule the limits ``w`` outside the tolerance too."""
+    from verirun.evaluation import shown
+
+    texts = shown(point, result, entry.typed)
+    line = f"reading {texts['reading']}  limits {texts['low']} to {texts['high']}"
+    if point.rule.name != "simple":
+        line += ("  acceptance " + (f"{texts['accept_low']} to {texts['accept_high']}"
+                                    if texts["accept_low"] is not None else "none"))
+    if texts["outer_low"] is not None:
+        line += f"  conditional fail to {texts['outer_low']} / {texts['outer_high']}"
+    return line, label(result.verdict)
 
 
 class Console:
@@ -147,10 +159,9 @@ class Console:
 
     def result(self, point: "TestPoint", entry: Entry, result: "Result") -> None:
         """Show the verdict of a reading."""
-        colour = "green" if result.verdict == "pass" else "red"
+        line, _ = result_text(point, entry, result)
         pct = f"{result.percent_of_tolerance:+.0f} % of tolerance" if result.percent_of_tolerance is not None else ""
-        self.say(f"  reading {format_quantity(result.reading, point.unit)}  limits {_limits(point)}"
-                 f"  {pct}  [bold {colour}]{result.verdict.upper()}[/]")
+        self.say(f"  {escape(line)}  {pct}  {verdict_markup(result.verdict)}")
 
     def take(self, point: "TestPoint") -> Entry:
         """Ask for the reading until it parses; commands are returned as entries.
@@ -266,9 +277,8 @@ class QuietConsole:
     def result(self, point: "TestPoint", entry: Entry, result: "Result") -> None:
         if self._quiet:
             return
-        line = (f"{point.index + 1:>3}/{point.total} {point.range.id:<9} {point.stimulus_text():<15}"
-                f" read {entry.typed:<9} {_limits(point, 4):<19} {result.verdict.upper()}")
-        self._log(line)
+        numbers, word = result_text(point, entry, result)
+        line = f"{point.index + 1:>3}/{point.total} {point.range.id:<9} {point.stimulus_text():<15} {numbers}"
+        self._log(f"{line} {word}")
         if self.echo is not None:
-            colour = "green" if result.verdict == "pass" else "red"
-            self.echo.print(line.replace(result.verdict.upper(), f"[bold {colour}]{result.verdict.upper()}[/]"))
+            self.echo.print(f"{escape(line)} {verdict_markup(result.verdict)}")

@@ -132,11 +132,27 @@ class TestErrorChart:
         (good,) = find(root, "circle", "point", "pass")
         assert marker.get("fill") != good.get("fill")
 
-    def test_fail_colour_beyond_tolerance_without_verdict(self):
-        """An error over 100 % of tolerance is drawn as a failure whatever the verdict says."""
-        root = parse(error_chart(LINEAR_RANGE, [value_row(0, 2.0, 2.3, 150.0 * 0.9)]))
-        assert find(root, "circle", "point", "fail")
+    def test_marker_is_the_rows_own_statement(self):
+        """The chart draws the statement the row carries and never decides one of its own, so a
+        marker cannot contradict the verdict column (ISO/IEC 17025:2017 7.8.6)."""
+        rows = [value_row(0, 2.0, 2.3, 150.0, verdict="fail"),
+                value_row(1, 4.0, 4.19, 95.0, verdict="fail")]  # rejected by a guard band
+        root = parse(error_chart(LINEAR_RANGE, rows))
+        assert len(find(root, "circle", "point", "fail")) == 2
         assert not find(root, "circle", "point", "pass")
+
+    @pytest.mark.parametrize("verdict", ["conditional-pass", "conditional-fail"])
+    def test_conditional_markers_stand_apart(self, verdict):
+        """A conditional statement (ILAC-G8:09/2019 4.2.3) is drawn hollow in a colour of its
+        own, unlike both pass and fail."""
+        rows = [value_row(0, 2.0, 2.05, 25.0), value_row(1, 4.0, 4.19, 95.0, verdict=verdict),
+                value_row(2, 6.0, 6.1, 50.0, verdict="fail")]
+        root = parse(error_chart(LINEAR_RANGE, rows))
+        (marker,) = find(root, "circle", "point", verdict)
+        (good,) = find(root, "circle", "point", "pass")
+        (bad,) = find(root, "circle", "point", "fail")
+        assert marker.get("fill") == "#ffffff"
+        assert marker.get("stroke") not in (good.get("fill"), bad.get("fill"))
 
     def test_in_tolerance_point_inside_band(self):
         """A point within its tolerance is drawn inside the band, at its percent of tolerance."""

@@ -32,11 +32,11 @@ CHAR_WIDTH = 6.2  # mean advance of one character at FONT, for laying out labels
 
 INK, MUTED, GREY = "#1b1f24", "#5b6570", "#8c959f"
 PASS, FAIL, ACCEPT = "#1a7f37", "#b42318", "#9a6700"
+COND_PASS, COND_FAIL = "#7a5c00", "#c4500a"
+
+#: The colour of each statement's marker; conditional statements are drawn hollow as well.
+COLOURS = {"pass": PASS, "conditional-pass": COND_PASS, "conditional-fail": COND_FAIL, "fail": FAIL}
 BAND_FILL, GRID = "#e6f4ea", "#d8dee4"
-
-# A tolerance is "exceeded" only by more than rounding noise: a reading exactly on a limit passes.
-_EXCEEDED = 100.0 + 1e-9
-
 
 def _num(value: float) -> str:
     """A coordinate as text: rounded to 0.01, no trailing zeros, never ``-0``."""
@@ -61,9 +61,18 @@ def _svg(kind: str, height: float, label: str, body: list[str]) -> str:
     return head + "".join(body) + "</svg>"
 
 
-def _state(row: dict, pct: float) -> str:
-    """``fail`` when the verdict is fail or the error exceeds its tolerance, else ``pass``."""
-    return "fail" if row.get("verdict") == "fail" or abs(pct) > _EXCEEDED else "pass"
+def _state(row: dict) -> str:
+    """The row's own statement: the chart never works one out for itself."""
+    verdict = row.get("verdict")
+    return verdict if verdict in COLOURS else "fail"
+
+
+def _paint(state: str) -> str:
+    """Fill and stroke of a marker: solid for pass and fail, hollow for a conditional statement."""
+    colour = COLOURS[state]
+    if state.startswith("conditional"):
+        return f'fill="#ffffff" stroke="{colour}" stroke-width="2"'
+    return f'fill="{colour}"'
 
 
 # ---------------------------------------------------------------------------------------------
@@ -209,10 +218,10 @@ def _clipped_marker(frame: _Frame, x: float, pct: float, state: str, tip: str) -
     up = pct > 0
     edge = frame.y(frame.limit if up else -frame.limit)
     base = edge + (10.0 if up else -10.0)
-    colour = FAIL if state == "fail" else PASS
+    colour = COLOURS[state]
     points = f"{_num(x)},{_num(edge)} {_num(x - 6)},{_num(base)} {_num(x + 6)},{_num(base)}"
     value = ("+∞" if up else "-∞") if math.isinf(pct) else f"{pct:+.0f}"
-    return [f'<polygon class="point {state} clipped" points="{points}" fill="{colour}">'
+    return [f'<polygon class="point {state} clipped" points="{points}" {_paint(state)}>'
             f'<title>{tip}</title></polygon>',
             f'<text class="clipped-value" x="{_num(x + 9)}" y="{_num((edge + base) / 2 + 4)}"'
             f' fill="{colour}">{value} %</text>']
@@ -221,8 +230,8 @@ def _clipped_marker(frame: _Frame, x: float, pct: float, state: str, tip: str) -
 def _measured(frame: _Frame, index: int, row: dict) -> list[str]:
     """Marker, and uncertainty bar if any, of one measured point."""
     pct = _percent(row)
-    state = _state(row, pct)
-    colour = FAIL if state == "fail" else PASS
+    state = _state(row)
+    colour = COLOURS[state]
     x = frame.x(index)
     shown = "∞" if math.isinf(pct) else f"{pct:+.1f}"
     tip = _esc(f"{row.get('stimulus', '')}: {shown} % of tolerance, {row.get('verdict', '')}")
@@ -232,7 +241,7 @@ def _measured(frame: _Frame, index: int, row: dict) -> list[str]:
     if abs(pct) > frame.limit:
         return parts + _clipped_marker(frame, x, pct, state, tip)
     return parts + [f'<circle class="point {state}" cx="{_num(x)}" cy="{_num(frame.y(pct))}" r="4.5"'
-                    f' fill="{colour}"><title>{tip}</title></circle>']
+                    f' {_paint(state)}><title>{tip}</title></circle>']
 
 
 def _not_measured(frame: _Frame, index: int, row: dict) -> str:
@@ -510,12 +519,12 @@ def _arc_point(dial: _Dial, law, row: dict) -> str:
 
 def _reading_marker(dial: _Dial, law, row: dict) -> str:
     fraction, held = _fraction(law, row["reading"])
-    pct = row.get("percent_of_tolerance")
-    state = _state(row, 0.0 if pct is None else float(pct))
+    state = _state(row)
     x, y = dial.at(_MARKER_RADIUS, dial.angle(fraction))
     kind = f"reading {state} clipped" if held else f"reading {state}"
+    edge = "" if state.startswith("conditional") else ' stroke="#ffffff" stroke-width="1"'
     return (f'<circle class="{kind}" cx="{_num(x)}" cy="{_num(y)}" r="4.5"'
-            f' fill="{FAIL if state == "fail" else PASS}" stroke="#ffffff" stroke-width="1"/>')
+            f' {_paint(state)}{edge}/>')
 
 
 def _dial(arc: float) -> tuple[_Dial, float]:
