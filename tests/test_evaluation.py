@@ -266,13 +266,21 @@ class TestWindowCommandWithUncertainty:
     def test_resolution_in_degrees_on_ohms(self, capsys):
         """A 0.5 degree resolution on a 90 degree arc is u = (0.5/90)/(2 sqrt 3) of scale length
         (GUM F.2.2.1); U in ohms at centre scale is 2u / |df/dRx| with df/dRx = 1/(4 Rc)
-        (derived from f = Rc/(Rc+Rx))."""
+        (derived from f = Rc/(Rc+Rx)). U is reported along the arc, in degrees, to two
+        significant digits (GUM 7.2.6); the interval in ohms is the scale law's image of
+        f0 ± U, not symmetric about 16 Ω."""
         assert main(["window", "--scale", "series-ohms", "--centre", "16", "--arc", "90", "--degrees", "3",
                      "--at", "16", "--resolution", "0.5deg", "--json"]) == 0
         out = json.loads(capsys.readouterr().out)
         u_f = (0.5 / 90) / (2 * math.sqrt(3))
         assert out["U_domain"] == pytest.approx(2 * u_f)
-        assert out["U"] == pytest.approx(2 * u_f * 4 * 16)
+        assert (out["U"], out["U_unit"]) == (0.29, "deg")  # 2 × 90 u_f = 0.2887°
+        assert out["U_linear_value"] == pytest.approx(2 * u_f * 4 * 16)
+        f = lambda r: 16 / (16 + r)  # noqa: E731
+        value = lambda x: 16 * (1 - x) / x  # noqa: E731
+        assert out["interval_low"] == pytest.approx(value(f(16) + 0.29 / 90))
+        assert out["interval_high"] == pytest.approx(value(f(16) - 0.29 / 90))
+        assert 16 - out["interval_low"] < out["interval_high"] - 16
 
 
 class TestOpenEndedOhmsWindows:

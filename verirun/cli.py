@@ -80,6 +80,9 @@ def _parser() -> argparse.ArgumentParser:
     window.add_argument("--rule", choices=["simple", "guarded", "non-binary", "risk"], default="simple",
                         help="decision rule (guarded: w = U; risk: false-accept risk at most 2 %%)")
     window.add_argument("--reading", help="a reading to decide on (e.g. 5.07, 5.07V)")
+    window.add_argument("--monte-carlo", action="store_true",
+                        help="validate the uncertainty by Monte Carlo (JCGM 101) and print both results")
+    window.add_argument("--seed", type=int, default=1, help="seed of the Monte Carlo trials (default 1)")
     window.add_argument("--json", action="store_true", help="print a JSON object")
 
     resume = sub.add_parser("resume", help="continue a stopped or interrupted run where it left off")
@@ -274,9 +277,9 @@ def _rich(*, wide: bool = False):
 
 def _cmd_window(args) -> int:
     from verirun.errors import UnitError
+    from verirun.evaluation import Site, evaluate, shown
     from verirun.metrology import decision, scales, tolerance, uncertainty
-    from verirun.record import json_number
-    from verirun.units import format_quantity, parse_quantity
+    from verirun.units import parse_quantity
 
     def quantity(name: str, text, expect=None):
         try:
@@ -321,47 +324,151 @@ def _cmd_window(args) -> int:
             terms.append(uncertainty.Term(name="applied value", standard_uncertainty=u_applied,
                                           domain="value", distribution="normal"))
         if args.resolution is not None:
-            text = args.resolution.strip()
-            in_degrees = text.endswith(("deg", "°"))
-            res = quantity("resolution", text, "deg" if in_degrees else (unit or None))[0]
-            if in_degrees and not arc:
-                raise UnitError("--resolution: a resolution in degrees needs --arc")
-            terms.append(uncertainty.readability_term(division=res, unit="degrees" if in_degrees else "value",
-                                                      arc=arc))
+            terms.append(_window_resolution(args.resolution, unit, arc, ohms, quantity))
         budget = uncertainty.budget(terms=terms, nominal=at, law=law, domain=win.domain)
         rule = decision.rule_from_name(args.rule)
-        reading = quantity("reading", args.reading, unit or None)[0] if args.reading is not None else None
-        judged = decision.judge(rule, window=win, law=law, budget=budget,
-                                reading=reading if reading is not None else at)
+        typed = args.reading
+        reading = quantity("reading", typed, unit or None)[0] if typed is not None else None
+        site = Site(window=win, law=law, unit=unit, budget=budget, rule=rule)
+        result = evaluate(site, reading if reading is not None else at)
+        validation = (budget.validate(law, per_unit=float(win.per_unit), seed=args.seed)
+                      if args.monte_carlo and budget.combined > 0 else None)
     except ValueError as exc:
         raise UnitError(str(exc)) from None
-    accept = judged.acceptance
+    if args.monte_carlo and validation is None:
+        raise UnitError("--monte-carlo: give --u-applied or --resolution: there is no uncertainty to validate")
+    texts = shown(site, result, typed) if typed is not None else {**shown(site), **_no_reading_texts(site, result)}
+    out = _window_document(win, unit, budget, rule, result, texts, reading, validation)
+    if args.json:
+        print(json.dumps(out, ensure_ascii=False))
+        return EXIT_OK
+    for line in _window_lines(win, rule, result, texts, reading, terms, validation):
+        print(line)
+    return EXIT_OK
+
+
+def _window_resolution(text: str, unit: str, arc, ohms: bool, quantity):
+    """The readability term of ``--resolution``: in the range's unit on a linear scale; along
+    the arc (degrees, or % of scale length) on an ohms scale, whose divisions are not evenly
+    spaced in ohms."""
+    from verirun.errors import UnitError
+    from verirun.metrology import uncertainty
+
+    text = text.strip()
+    if text.endswith(("deg", "°")):
+        if not arc:
+            raise UnitError("--resolution: a resolution in degrees needs --arc")
+        return uncertainty.readability_term(division=quantity("resolution", text, "deg")[0],
+                                            unit="degrees", arc=arc)
+    if text.endswith("%"):
+        return uncertainty.readability_term(division=quantity("resolution", text, "%")[0] / 100.0,
+                                            unit="length")
+    if ohms:
+        raise UnitError("--resolution: on an ohms scale give the resolution along the arc, in degrees"
+                        " (0.5deg) or percent of scale length (0.5%): its divisions are not evenly"
+                        " spaced in ohms")
+    return uncertainty.readability_term(division=quantity("resolution", text, unit or None)[0])
+
+
+def _no_reading_texts(site, result) -> dict:
+    """The acceptance limits and U of ``verirun window`` without a reading, as shown."""
+    from verirun.evaluation import shown
+
+    typed = repr(site.window.nominal)
+    texts = shown(site, result, typed)
+    return {key: texts[key] for key in ("accept_low", "accept_high", "outer_low", "outer_high",
+                                        "U_spec", "U", "interval")}
+
+
+def _window_document(win, unit, budget, rule, result, texts, reading, validation) -> dict:
+    """The JSON object of ``verirun window``: every number, and each as the certificate prints it."""
+    from verirun.record import json_number
+
+    accept = result.acceptance
     out = {"nominal": win.nominal, "low": json_number(win.low), "high": json_number(win.high),
-           "unit": unit, "domain": win.domain, "half_width": win.half_width,
-           "U": json_number(budget.expanded_value), "U_domain": budget.expanded, "k": budget.k,
-           "tur": json_number(judged.tur), "rule": rule.name,
+           "unit": unit,
+           "domain": win.domain, "half_width": win.half_width,
+           "U": result.expanded if result.expanded > 0 else 0.0,
+           "U_unit": result.error_unit, "U_domain": budget.expanded, "k": budget.k,
+           "U_linear_value": json_number(budget.expanded_value),
+           "tur": json_number(result.tur), "rule": rule.name,
            "accept_low": json_number(accept[0]) if accept else None,
-           "accept_high": json_number(accept[1]) if accept else None}
+           "accept_high": json_number(accept[1]) if accept else None,
+           "interval_low": json_number(result.interval[0]) if result.interval else None,
+           "interval_high": json_number(result.interval[1]) if result.interval else None,
+           "text": {key: value for key, value in texts.items()}}
     if reading is not None:
         out["reading"] = reading
-        out["verdict"] = judged.verdict
-        if rule.name == "risk" or args.json:
-            out["pc"] = judged.conformance
-    if args.json:
-        print(json.dumps(out))
-        return EXIT_OK
-    print(f"at {format_quantity(win.nominal, unit)}: {format_quantity(win.low, unit)} to"
-          f" {format_quantity(win.high, unit)}" + (" (unbounded above)" if not win.bounded else ""))
+        out["verdict"] = result.verdict
+        out["pc"] = result.conformance
+    if validation is not None:
+        out["monte_carlo"] = _validation_document(validation)
+    return out
+
+
+def _validation_document(v) -> dict:
+    def comparison(c):
+        return None if c is None else {
+            "gum_low": c.gum_low, "gum_high": c.gum_high, "mc_low": _finite_or_none(c.mc_low),
+            "mc_high": _finite_or_none(c.mc_high), "d_low": _finite_or_none(c.d_low),
+            "d_high": _finite_or_none(c.d_high), "tolerance": c.tolerance, "validated": c.validated}
+
+    return {"seed": v.seed, "trials": v.trials, "batches": v.batches, "converged": v.converged,
+            "probability": v.probability, "ndig": v.ndig, "u": v.mc_u,
+            "along": comparison(v.along), "in_value": comparison(v.in_value)}
+
+
+def _finite_or_none(x: float) -> float | None:
+    import math
+
+    return x if math.isfinite(x) else None
+
+
+def _window_lines(win, rule, result, texts, reading, terms, validation) -> list[str]:
+    """The words of ``verirun window``."""
+    from verirun.metrology.summary import label
+
+    lines = [f"at {texts['nominal']}: {texts['low']} to {texts['high']}"
+             + (" (unbounded above)" if not win.bounded else "")]
     if terms:
-        tur_text = f"{judged.tur:.2f}" if judged.tur is not None else "none (unbounded)"
-        print(f"U (k = 2) = {format_quantity(budget.expanded_value, unit, 2)}; TUR {tur_text}")
+        tur_text = f"{result.tur:.2f}" if result.tur is not None else "none (unbounded)"
+        lines.append(f"U (k = {result.k:g}) = {texts['U_spec']}; TUR {tur_text}")
+        if win.domain == "deflection" and texts["interval"]:
+            lines.append(f"interval in {texts['unit']} ({'reading' if reading is not None else 'nominal'}"
+                         f" ± U along the arc, through the scale law): {texts['interval']}")
     if rule.name != "simple":
-        print("acceptance: " + (f"{format_quantity(accept[0], unit)} to {format_quantity(accept[1], unit)}"
-                                if accept else "none (the uncertainty leaves no acceptance zone)"))
+        lines.append("acceptance: " + (f"{texts['accept_low']} to {texts['accept_high']}"
+                                       if texts["accept_low"] is not None
+                                       else "none (the uncertainty leaves no acceptance zone)"))
+    if texts.get("outer_low") is not None:
+        lines.append(f"conditional fail down to {texts['outer_low']} and up to {texts['outer_high']}")
     if reading is not None:
-        print(f"reading {format_quantity(reading, unit)}: {judged.verdict.upper()}"
-              f" (conformance probability {judged.conformance:.4f})")
-    return EXIT_OK
+        lines.append(f"reading {texts['reading']}: {label(result.verdict)}"
+                     f" (conformance probability {result.conformance:.4f})")
+    if validation is not None:
+        lines += _validation_lines(validation, win, texts)
+    return lines
+
+
+def _validation_lines(v, win, texts) -> list[str]:
+    def interval(c, unit: str) -> str:
+        def num(x: float) -> str:
+            return "∞" if x == float("inf") else f"{x:.6g}"
+        return (f"GUM {num(c.gum_low)} to {num(c.gum_high)} {unit}; Monte Carlo {num(c.mc_low)} to"
+                f" {num(c.mc_high)} {unit}; d_low {num(c.d_low)}, d_high {num(c.d_high)},"
+                f" tolerance {c.tolerance:.2g}: {'VALIDATED' if c.validated else 'NOT VALIDATED'}")
+
+    unit = "°" if win.unit == "deg" else (win.unit or texts["unit"])
+    lines = [f"Monte Carlo (JCGM 101:2008 7.9, 8.2): {v.trials} trials in {v.batches} batches"
+             f"{'' if v.converged else ' (did not reach its tolerance)'}, seed {v.seed},"
+             f" coverage probability {100 * v.probability:.2f} %",
+             f"  in the tolerance's domain: {interval(v.along, unit)}"]
+    if v.in_value is not None:
+        base = texts["unit"][-1:] if texts["unit"].endswith("Ω") else texts["unit"]
+        lines.append(f"  linear U carried into {base} at the nominal: {interval(v.in_value, base)}")
+        lines.append("  the linear result in the range's unit is " + ("validated" if v.in_value.validated else
+                     "NOT validated: use the interval along the arc mapped through the scale law"))
+    return lines
 
 
 def _cmd_amend(args) -> int:

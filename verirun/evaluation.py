@@ -60,6 +60,26 @@ class Result:
     within_tolerance: bool = True
 
 
+@dataclass(frozen=True, kw_only=True, slots=True)
+class Site:
+    """What evaluating a reading needs to know of the point it was taken at: a test point of a
+    plan, or the numbers ``verirun window`` is given."""
+
+    window: tolerance.Window
+    law: object
+    unit: str
+    budget: object
+    rule: decision.Rule
+
+    @classmethod
+    def of(cls, point: "TestPoint | Site") -> "Site":
+        """The site of a test point (a site is its own)."""
+        if isinstance(point, Site):
+            return point
+        return cls(window=point.window, law=point.range.law, unit=point.unit, budget=point.budget,
+                   rule=point.rule)
+
+
 def error_unit(point: TestPoint) -> tuple[str, float]:
     """The unit errors at ``point`` are reported in, and the factor from the tolerance's domain."""
     if point.window.domain == "value":
@@ -67,27 +87,28 @@ def error_unit(point: TestPoint) -> tuple[str, float]:
     return point.window.unit, float(point.window.per_unit)
 
 
-def coverage_interval(point: TestPoint, reading: float, expanded) -> tuple[float, float] | None:
+def coverage_interval(site: Site, reading: float, expanded) -> tuple[float, float] | None:
     """The interval ``reading ± U`` in the range's unit, ``U`` exact in the tolerance's domain;
     along an ohms scale it is mapped through the scale law (see :class:`Result`)."""
     if expanded == 0:
         return None
-    law = point.range.law
+    law = site.law
     y = as_written(reading)
-    if point.window.domain == "value":
+    if site.window.domain == "value":
         return float(y - expanded), float(y + expanded)
     f = law.exact_fraction(y)
     a, b = law.exact_value(f - expanded), law.exact_value(f + expanded)
     return float(min(a, b)), float(max(a, b))
 
 
-def evaluate(point: TestPoint, reading: float) -> Result:
+def evaluate(point: "TestPoint | Site", reading: float) -> Result:
     """Evaluate ``reading`` at ``point`` under the procedure's decision rule."""
-    win = point.window
-    law = point.range.law
+    site = Site.of(point)
+    win = site.window
+    law = site.law
     dev = tolerance.deviation(win, reading, law)
-    unit, factor = error_unit(point)
-    judged = decision.judge(point.rule, window=win, law=law, budget=point.budget, reading=reading)
+    unit, factor = error_unit(site)
+    judged = decision.judge(site.rule, window=win, law=law, budget=site.budget, reading=reading)
     half = win.half_width
     n = as_written(win.nominal)
     centre = n if win.domain == "value" else law.exact_fraction(n)
@@ -98,20 +119,21 @@ def evaluate(point: TestPoint, reading: float) -> Result:
 
     empty = zone.empty
     expanded = judged.expanded  # U as reported, exact, in the tolerance's domain
-    expanded_value = float(expanded) if win.domain == "value" else point.budget.expanded_value
+    expanded_value = float(expanded) if win.domain == "value" else site.budget.expanded_value
     return Result(reading=reading, error=dev.error * factor, error_unit=unit,
                   percent_of_tolerance=dev.percent_of_tolerance, verdict=judged.verdict,
                   expanded=float(expanded * win.per_unit), expanded_value=expanded_value,
-                  k=point.budget.k, tur=judged.tur, conformance=judged.conformance,
+                  k=site.budget.k, tur=judged.tur, conformance=judged.conformance,
                   acceptance=judged.acceptance, expanded_pct=pct(float(expanded)),
                   accept_low_pct=None if empty else pct(float(zone.low - centre)),
                   accept_high_pct=None if empty else pct(float(zone.high - centre)),
-                  interval=coverage_interval(point, reading, expanded),
+                  interval=coverage_interval(site, reading, expanded),
                   exact_acceptance=judged.exact_acceptance, outer=judged.outer,
                   within_tolerance=judged.within_tolerance)
 
 
 def _decimal_text(value: Decimal, unit: str, *, signed: bool) -> str:
+    """``value`` as fixed-point text with ``unit``; signed when asked, but zero never is."""
     text = f"{value:f}"
     if value == 0:
         text = text.lstrip("-")  # never "+0" or "-0"
@@ -126,7 +148,7 @@ def _in_domain_unit(value: Decimal, unit: str, *, signed: bool) -> str:
     return f"{text}°" if unit == "deg" else f"{text} {unit}"
 
 
-def shown(point: TestPoint, result: Result | None = None, typed: str | None = None) -> dict:
+def shown(point: "TestPoint | Site", result: Result | None = None, typed: str | None = None) -> dict:
     """Every number of one row as printed, under one SI prefix: the one formatter of verirun.
 
     The console's result line, ``verirun window``, the run record and the certificate print
@@ -140,8 +162,9 @@ def shown(point: TestPoint, result: Result | None = None, typed: str | None = No
     range's unit where the tolerance is stated on the value, else ``None``), ``interval`` (the
     coverage interval in the range's unit, as the scale law maps it).
     """
-    win = point.window
-    unit = point.unit
+    site = Site.of(point)
+    win = site.window
+    unit = site.unit
     reading = None
     places = 0
     if typed is not None and result is not None:
@@ -149,12 +172,14 @@ def shown(point: TestPoint, result: Result | None = None, typed: str | None = No
         reading = as_written(result.reading)
         places = max(-number.as_tuple().exponent, 0)
     else:
-        exponent = row_exponent(unit, point.nominal, win.high if math.isfinite(win.high) else None)
+        exponent = row_exponent(unit, win.nominal, win.high if math.isfinite(win.high) else None)
 
     def limit(value, side: str) -> str:
         return format_limit(value, unit, exponent, reading=reading, side=side, places=places)
 
-    out = {"unit": unit_text(unit, exponent), "low": limit(win.exact_low, "low"),
+    out = {"unit": unit_text(unit, exponent),
+           "nominal": format_limit(as_written(win.nominal), unit, exponent, places=0),
+           "low": limit(win.exact_low, "low"),
            "high": limit(win.exact_high, "high")}
     if result is None:
         return out
@@ -165,7 +190,7 @@ def shown(point: TestPoint, result: Result | None = None, typed: str | None = No
     outer = result.outer
     out["outer_low"] = limit(outer[0], "low") if outer else None
     out["outer_high"] = limit(outer[1], "high") if outer else None
-    exact_error = _exact_error(point, reading)
+    exact_error = _exact_error(site, reading)
     if result.expanded > 0:
         u = round_uncertainty(result.expanded)
         place = Decimal(1).scaleb(u.as_tuple().exponent)
@@ -193,13 +218,13 @@ def shown(point: TestPoint, result: Result | None = None, typed: str | None = No
     return out
 
 
-def _exact_error(point: TestPoint, reading: Fraction) -> Fraction:
+def _exact_error(site: Site, reading: Fraction) -> Fraction:
     """The error of ``reading`` in the error's unit, exact."""
-    win = point.window
+    win = site.window
     n = as_written(win.nominal)
     if win.domain == "value":
         return reading - n
-    law = point.range.law
+    law = site.law
     return (law.exact_fraction(reading) - law.exact_fraction(n)) * win.per_unit
 
 

@@ -280,7 +280,7 @@ def format_typed(text: str, unit: str, exponent: int) -> str:
     a leading ``+`` dropped (``"2.9"`` on an ohms row is ``"2.9 Ω"``, never ``"2.900 Ω"``)."""
     number, power = typed_decimal(text, unit)
     shown = number.scaleb(power - exponent)
-    return f"{_plain_decimal(shown)} {unit_text(unit, exponent)}"
+    return f"{_plain_decimal(shown)} {unit_text(unit, exponent)}".rstrip()
 
 
 def _decimal_of(q: Fraction, places: int) -> Decimal:
@@ -338,4 +338,4 @@ def format_limit(limit, unit: str, exponent: int, *, reading: Fraction | None = 
         if truth is None or (r >= Fraction(shown) if side == "low" else r <= Fraction(shown)) == truth:
             break
         wanted += 1
-    return f"{_plain_decimal(shown)} {unit_text(unit, exponent)}"
+    return f"{_plain_decimal(shown)} {unit_text(unit, exponent)}".rstrip()

@@ -232,6 +232,13 @@ class Budget:
     expanded_value: float
     slope: float = field(repr=False)
 
+    def validate(self, law: ScaleLaw, *, per_unit: float = 1.0, seed: int = 1, ndig: int = 2):
+        """Validate this budget's GUM result by Monte Carlo (JCGM 101:2008 7.9 and 8.2); see
+        :func:`verirun.metrology.montecarlo.validate`."""
+        from verirun.metrology.montecarlo import validate
+
+        return validate(self, law, per_unit=per_unit, seed=seed, ndig=ndig)
+
 
 def _to_domain(term: Term, domain: Domain, slope: float) -> float:
     u = abs(term.sensitivity) * term.standard_uncertainty
