@@ -58,6 +58,15 @@ def kind_of(path: Path) -> str:
                          " a readings file ends in .csv")
 
 
+def rest_warnings(points) -> list[str]:
+    """A warning for each point whose tolerance holds the pointer's rest position on an ohms
+    scale: a meter whose circuit is open (the pointer never moves) would pass there."""
+    return [f"range {point.range.id}, step {point.index + 1} at {point.stimulus_text()}: the tolerance"
+            f" ({point.accuracy_text}) holds the pointer's rest position, so a meter whose circuit is"
+            " open would pass; choose a point further up the arc"
+            for point in points if point.window.admits_rest]
+
+
 def check(paths: list[Path], *, bench_path: Path | None = None, today: dt.date | None = None) -> Report:
     """Check every file of ``paths`` (and, with ``bench_path``, each procedure's preflight on it)."""
     from verirun.bench.config import load_bench
@@ -87,8 +96,9 @@ def check(paths: list[Path], *, bench_path: Path | None = None, today: dt.date |
         try:
             if kind == "procedure":
                 procedure = load_procedure(path)
-                plan(procedure)
+                points = plan(procedure)
                 procedures.append(procedure)
+                report.lines.extend(f"{path}: warning: {text}" for text in rest_warnings(points))
                 report.lines.append(f"{path}: ok: procedure {procedure.id} revision {procedure.revision},"
                                     f" {len(procedure.ranges)} ranges, {sum(len(r.points) for r in procedure.ranges)}"
                                     " points")

@@ -429,7 +429,8 @@ def read_off_scale(value: float, rng: ResolvedRange) -> str | None:
 
     - in the range's unit (``resolution: 0.25 V``): the nearest multiple of the resolution,
       written as that multiple (``30.5 V``);
-    - along the arc (``resolution: 0.5 deg``): the nearest mark of that many degrees. The value
+    - along the arc (``resolution: 0.5 deg``, or ``0.5 %`` of scale length): the nearest mark
+      of that many degrees (or that part of the length). The value
       written is the one that mark says: the shortest decimal whose own position on the scale
       lies within half a readability step of the mark (the nearest such one when several are
       equally short), so that a reader of the written value finds the pointer on the same
@@ -441,8 +442,9 @@ def read_off_scale(value: float, rng: ResolvedRange) -> str | None:
     """
     if math.isinf(value):
         return None
-    if rng.resolution and rng.resolution_domain == "deg" and rng.arc:
-        return _read_on_arc(value, rng.law, rng.resolution / rng.arc, rng.unit)
+    along = {"deg": rng.arc, "length": 100.0}.get(rng.resolution_domain or "")
+    if rng.resolution and along:
+        return _read_on_arc(value, rng.law, rng.resolution / along, rng.unit)
     if rng.resolution:
         step = Decimal(f"{rng.resolution:.12g}")
         return _written(round(value / rng.resolution) * step, rng.unit)

@@ -307,9 +307,9 @@ def format_limit(limit, unit: str, exponent: int, *, reading: Fraction | None = 
     """A limit in base units, exact (a :class:`~fractions.Fraction`, or ``±inf``), under the
     row's prefix, with enough digits for the printed comparison to tell the truth.
 
-    The limit is shown exactly when its decimal ends within ``places + 4`` places (at least
-    ``places``, the decimals the reading is shown with); otherwise to ``digits`` significant
-    digits and at least ``places`` places. Then, with a ``reading``, digits are added until the
+    The limit is shown exactly, with its own digits, when its decimal ends within
+    ``places + 4`` places (``places``: the decimals the reading is shown with); otherwise to
+    ``digits`` significant digits and at least ``places`` places. Then, with a ``reading``, digits are added until the
     reading shown compared with the limit shown (``reading >= limit`` for a lower limit,
     ``reading <= limit`` for an upper, limits included) gives the same answer as the exact
     comparison.
@@ -326,7 +326,7 @@ def format_limit(limit, unit: str, exponent: int, *, reading: Fraction | None = 
         magnitude = Decimal(q.numerator) / Decimal(q.denominator)
         wanted = max(places, digits - 1 - magnitude.adjusted())
     if exact is not None and exact <= max(places, 0) + 4:
-        wanted = max(exact, places)
+        wanted = exact  # an exact limit is shown exactly, with its own digits
     wanted = max(wanted, 0)
     truth = None
     r = None

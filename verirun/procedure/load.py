@@ -59,7 +59,7 @@ class ResolvedRange:
     arc: float | None
     full_scale: float | None
     resolution: float | None
-    resolution_domain: str | None  # "value" or "deg"
+    resolution_domain: str | None  # "value", "deg" or "length" (percent of scale length)
     bands: tuple[Band, ...]
     read_on: str | None
     connect: str | None
@@ -87,6 +87,9 @@ class ResolvedRange:
             if self.resolution_domain == "deg":
                 terms.append(uncertainty.readability_term(division=self.resolution, unit="degrees",
                                                           arc=self.arc, name="readability"))
+            elif self.resolution_domain == "length":
+                terms.append(uncertainty.readability_term(division=self.resolution / 100.0,
+                                                          unit="length", name="readability"))
             else:
                 terms.append(uncertainty.readability_term(division=self.resolution, name="readability"))
         terms.extend(self.extra_terms)
@@ -255,13 +258,14 @@ class _RangeResolver:
         arc = self.quantity(("arc",), rng.arc, "deg", positive=True, allow_zero=False)
         if arc is not None and arc > 360:
             self.fail(("arc",), f"an arc of {arc:g} degrees is more than a full turn")
-        law = self._law(full_scale, centre)
+        lower = self._lower_end(full_scale)
+        law = self._law(full_scale, centre, lower)
         resolution, resolution_domain = self._resolution()
         range_freq = self.quantity(("frequency",), rng.frequency, "Hz", positive=True, allow_zero=False)
         if range_freq is not None and not ac:
             self.fail(("frequency",), f"a {rng.function} range takes no frequency")
         bands = self._bands(ac)
-        points = self._points(ac, range_freq, full_scale, bands)
+        points = self._points(ac, range_freq, full_scale, bands, law)
         if law is not None and bands:
             self._check_statements(law, arc, full_scale, resolution, resolution_domain, bands)
         extra = self._extra_terms(arc)
@@ -288,7 +292,34 @@ class _RangeResolver:
             except (ValueError, ArithmeticError) as exc:
                 self.fail(("points", i), f"its window or uncertainty cannot be worked out: {exc}")
 
-    def _law(self, full_scale, centre) -> scales.ScaleLaw | None:
+    def _lower_end(self, full_scale) -> float | None:
+        """The value at the left stop of a linear scale (``lower-end``; see the model)."""
+        rng = self.rng
+        if rng.lower_end is None:
+            if full_scale is None or not rng.function.startswith("dc-"):
+                return 0.0
+            negative = False
+            for item in rng.points:
+                at = item.at if hasattr(item, "at") else item
+                try:
+                    negative = negative or parse_value(at, self.unit) < 0
+                except UnitError:
+                    pass  # reported with the point
+            return -full_scale if negative else 0.0
+        if (rng.scale or "linear") != "linear":
+            self.fail(("lower-end",), f"a {rng.scale} scale ends at 0 Ω; lower-end is for linear scales")
+            return None
+        if not rng.function.startswith("dc-"):
+            self.fail(("lower-end",), f"a {rng.function} range reads magnitudes from zero; lower-end is"
+                      " for DC ranges")
+            return None
+        lower = self.quantity(("lower-end",), rng.lower_end, self.unit)
+        if lower is not None and full_scale is not None and lower >= full_scale:
+            self.fail(("lower-end",), f"must be below the full-scale value, got {rng.lower_end!r}")
+            return None
+        return lower
+
+    def _law(self, full_scale, centre, lower=0.0) -> scales.ScaleLaw | None:
         rng = self.rng
         scale = rng.scale
         if scale is None:
@@ -302,12 +333,12 @@ class _RangeResolver:
             if rng.centre is not None:
                 self.fail(("centre",), "a linear scale has no centre-scale value: remove centre, or write"
                           " scale: series-ohms (or shunt-ohms) for an ohms scale")
-            if full_scale is None:
+            if full_scale is None or lower is None:
                 if rng.full_scale is None:
                     self.fail(("full-scale",), missing=True, message="required for a linear scale: write full-scale: and the value"
                               f" at the right end of the scale, e.g. full-scale: 10 {self.unit}")
                 return None
-            return scales.Linear(high=full_scale)
+            return scales.Linear(low=lower, high=full_scale)
         if rng.function != "resistance":
             self.fail(("scale",), f"a {scale} scale is for resistance, not {rng.function}: write"
                       " scale: linear, or leave scale out")
@@ -321,6 +352,13 @@ class _RangeResolver:
 
     def _unit_or_degrees(self, text) -> str:
         return "deg" if isinstance(text, str) and text.strip().endswith(("deg", "°", "degrees")) else self.unit
+
+    def _along_the_arc(self, text) -> str | None:
+        """``"deg"`` or ``"%"`` when ``text`` is a step along the arc, else ``None``."""
+        if isinstance(text, str) and text.strip().endswith("%"):
+            return "%"
+        unit = self._unit_or_degrees(text)
+        return "deg" if unit == "deg" else None
 
     def _resolution(self) -> tuple[float | None, str | None]:
         """The step the operator reads to: ``resolution``, or ``minor-division`` × ``read-to``."""
@@ -341,7 +379,13 @@ class _RangeResolver:
                 missing=True))
             self.ok = False
             return None, None
-        unit = self._unit_or_degrees(text)
+        along = self._along_the_arc(text)
+        if rng.scale in ("series-ohms", "shunt-ohms") and along is None:
+            self.fail((key,), f"on a {rng.scale} scale give the {key} along the arc, in degrees (0.5 deg)"
+                      " or percent of scale length (0.5 %): its divisions are not evenly spaced in"
+                      f" ohms, so {text!r} cannot stand for every point")
+            return None, None
+        unit = along or self.unit
         value = self.quantity((key,), text, unit, positive=True, allow_zero=False)
         if value is None:
             return None, None
@@ -350,7 +394,7 @@ class _RangeResolver:
                 self.fail(("read-to",), f"must be a fraction of a division, more than 0 and at most 1, got {rng.read_to!r}")
                 return None, None
             value *= rng.read_to
-        return value, ("deg" if unit == "deg" else "value")
+        return value, {"deg": "deg", "%": "length"}.get(unit, "value")
 
     def _extra_terms(self, arc: float | None) -> list[uncertainty.Term]:
         """The procedure's extra uncertainty contributions, as standard uncertainties."""
@@ -464,7 +508,8 @@ class _RangeResolver:
             return None
         return value
 
-    def _points(self, ac: bool, range_freq, full_scale, bands: list[Band]) -> list[tuple[float, float | None]]:
+    def _points(self, ac: bool, range_freq, full_scale, bands: list[Band],
+                law=None) -> list[tuple[float, float | None]]:
         points = []
         for i, item in enumerate(self.rng.points):
             field = ("points", i)
@@ -487,6 +532,10 @@ class _RangeResolver:
             if full_scale is not None and abs(nominal) > full_scale * (1 + 1e-12):
                 self.fail(field, f"{at!r} is beyond the full-scale value of the range"
                           f" (full-scale: {self.rng.full_scale}); a point is at most the full-scale value")
+                continue
+            if isinstance(law, scales.Linear) and nominal < law.low:
+                self.fail(field, f"{at!r} is below the lower end of the scale ({law.low:g} {self.unit});"
+                          " give lower-end for a zero-centre scale or a meter of either polarity")
                 continue
             if ac and nominal < 0:
                 self.fail(field, f"an AC value is an rms magnitude and cannot be negative, got {at!r}")

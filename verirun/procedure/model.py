@@ -96,6 +96,9 @@ class Range(Strict):
     #: Linear when not given, except on a resistance range, which must say its scale.
     scale: ScaleName | None = None
     full_scale: QuantityText | None = None
+    #: The value at the left stop of a linear scale: 0 by default; minus the full-scale value
+    #: for a DC range with a negative point (a zero-centre meter, a DMM of either polarity).
+    lower_end: QuantityText | None = None
     centre: QuantityText | None = None
     battery: QuantityText | None = None
     arc: QuantityText | None = None

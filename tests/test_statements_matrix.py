@@ -1,0 +1,245 @@
+"""A matrix of runs under every decision rule: the certificate's statements, counts and printed
+numbers agree with the record, and ``verirun window --json`` prints the same numbers.
+
+Readings are placed on and just beyond each rule's boundaries. The checks are made here from the
+printed text alone: the reading shown compared with the limits shown must give the verdict shown
+(ILAC-G8:09/2019 4.2.1 to 4.2.3 define the zones; a value on a boundary takes the more favourable
+one, our documented choice, common practice, no source); the counts of the four statements and
+the guard-band rejections are counted here from the rows (ISO/IEC 17025:2017 7.8.6.2).
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import re
+from decimal import Decimal
+from fractions import Fraction
+from pathlib import Path
+
+import pytest
+from bs4 import BeautifulSoup
+
+from verirun.cli import main
+from verirun.evaluation import evaluate
+from verirun.metrology.exact import as_written
+from verirun.procedure.load import load_procedure_text
+from verirun.procedure.plan import plan
+from verirun.bench.config import load_bench
+
+DATA = Path(__file__).resolve().parent / "data"
+RULES = ["simple", "guarded", "non-binary", "risk"]
+LABELS = {"PASS": "pass", "CONDITIONAL PASS": "conditional-pass",
+          "CONDITIONAL FAIL": "conditional-fail", "FAIL": "fail"}
+
+
+def _text(q: Fraction, digits: int = 6) -> str:
+    """A decimal an operator could type for ``q``: exact when short, else 6 significant digits."""
+    d = Decimal(q.numerator) / Decimal(q.denominator)
+    if Fraction(d) == q and len(d.normalize().as_tuple().digits) <= 12:
+        return f"{d.normalize():f}"
+    return f"{d:.{digits}g}" if "e" not in f"{d:.{digits}g}" else f"{float(d):.{digits}f}"
+
+
+def _readings_for(points, rule: str, offset: int) -> list[tuple[str, str, str]]:
+    """One reading per point, cycling through the boundaries of the rule's zones."""
+    rows = []
+    for point in points:
+        base = evaluate(point, point.nominal)
+        win = point.window
+        candidates = [win.exact_low, win.exact_high]
+        if base.exact_acceptance:
+            candidates += list(base.exact_acceptance)
+        if base.outer:
+            candidates += list(base.outer)
+        candidates = [c for c in candidates if isinstance(c, Fraction) and c > 0 or
+                      (isinstance(c, Fraction) and point.range.law.name == "linear")]
+        choice = candidates[(point.index + offset) % len(candidates)]
+        kind = (point.index + offset) // len(candidates) % 3
+        q = Fraction(_text(choice))
+        step = Fraction(1, 10**4) * max(abs(q), Fraction(1, 1000))
+        q = q if kind == 0 else q + step if kind == 1 else q - step
+        if point.range.law.name != "linear" and q <= 0:
+            q = Fraction(_text(choice))
+        rows.append((point.range.id, repr(point.nominal), _text(q)))
+    return rows
+
+
+@pytest.fixture(scope="module")
+def matrix(tmp_path_factory):
+    """Four runs of the matrix procedure, one per rule, each with its record and certificate."""
+    base = (DATA / "matrix-procedure.yaml").read_text()
+    bench = load_bench(DATA / "matrix-bench.yaml")
+    out = {}
+    for i, rule in enumerate(RULES):
+        tmp = tmp_path_factory.mktemp(f"matrix-{rule}")
+        text = base.replace("decision: {rule: simple}", f"decision: {{rule: {rule}}}")
+        proc = tmp / "procedure.yaml"
+        proc.write_text(text)
+        points = plan(load_procedure_text(text, str(proc)), bench)
+        readings = tmp / "readings.csv"
+        with open(readings, "w", newline="") as fh:
+            writer = csv.writer(fh)
+            writer.writerow(["range", "at", "reading"])
+            writer.writerows(_readings_for(points, rule, i * 3))
+        assert main(["run", str(proc), "--bench", str(DATA / "matrix-bench.yaml"), "--simulate",
+                     "--readings", str(readings), "--serial", f"M-{rule}", "--customer", "C",
+                     "--runs", str(tmp / "runs"), "--reports", str(tmp / "reports")]) == 0
+        (run,) = (tmp / "runs").iterdir()
+        record = json.loads((run / "record.json").read_text())
+        (cert,) = (tmp / "reports").glob("*.html")
+        out[rule] = (record, BeautifulSoup(cert.read_text(encoding="utf-8"), "html.parser"), points)
+    return out
+
+
+_NUMBER = re.compile(r"^(-?\d+(?:\.\d+)?|-?∞) ?(.*)$")
+
+
+def _number(text: str) -> tuple[Fraction | float, str]:
+    """A printed quantity: its number, exactly as printed, and its unit text."""
+    match = _NUMBER.match(text.strip())
+    assert match, text
+    number = match[1]
+    value = float("inf") if number == "∞" else float("-inf") if number == "-∞" else Fraction(number)
+    return value, match[2]
+
+
+def _printed_verdict(rule: str, cells: dict) -> str:
+    """The verdict the printed numbers give, worked out from the printed text alone."""
+    r, unit = _number(cells["reading"])
+    low, u1 = _number(cells["low"])
+    high_text = cells["high"].replace(" (unbounded)", "")
+    high, u2 = _number(high_text)
+    units = {unit, u1} | ({u2} if high != float("inf") else set())
+    assert len(units) == 1, cells  # one SI prefix within a row
+    within = low <= r <= high
+    if rule == "simple":
+        return "pass" if within else "fail"
+    accept = cells["acceptance"]
+    accepted = False
+    if accept != "none":
+        a, b = (part.strip() for part in accept.split(" to "))
+        (a_low, ua), (a_high, ub) = _number(a), _number(b)
+        assert {ua} | ({ub} if a_high != float("inf") else set()) == units, cells
+        accepted = a_low <= r <= a_high
+    if rule != "non-binary":
+        return "pass" if accepted else "fail"
+    if accepted:
+        return "pass"
+    if within:
+        return "conditional-pass"
+    o_low, o_high = (_number(part.strip())[0] for part in cells["outer"].split(" to "))
+    return "conditional-fail" if o_low <= r <= o_high else "fail"
+
+
+def _rows(soup: BeautifulSoup, rule: str) -> list[dict]:
+    table_rows = []
+    for table in soup.select("table.results"):
+        heads = [th.get_text(" ", strip=True) for th in table.select("thead th")]
+        for tr in table.select("tbody tr"):
+            cells = [td.get_text(" ", strip=True) for td in tr.find_all("td")]
+            named = dict(zip(heads, cells))
+            row = {"key": tr["data-key"], "reading": named["Reading"], "low": named["Lower limit"],
+                   "high": named["Upper limit"], "verdict": LABELS[named["Verdict"].split(" (")[0]],
+                   "U": named["U (k = 2)"], "error": named["Error"], "tur": named["TUR"]}
+            if rule != "simple":
+                row["acceptance"] = named["Acceptance limits"]
+            if rule == "non-binary":
+                row["outer"] = named["Conditional-fail limits"]
+            table_rows.append(row)
+    return table_rows
+
+
+@pytest.mark.parametrize("rule", RULES)
+class TestCertificateMatrix:
+    def test_printed_numbers_give_the_printed_verdict(self, matrix, rule):
+        """In every row the reading shown against the limits shown gives the verdict shown."""
+        _, soup, _ = matrix[rule]
+        rows = _rows(soup, rule)
+        assert len(rows) == 20
+        for row in rows:
+            assert _printed_verdict(rule, row) == row["verdict"], row
+
+    def test_certificate_verdicts_are_the_records(self, matrix, rule):
+        """Each row's printed statement is the record's, and the readings are shown as typed."""
+        record, soup, _ = matrix[rule]
+        by_key = {row["key"]: row for row in record["points"]}
+        for row in _rows(soup, rule):
+            stored = by_key[row["key"]]
+            assert row["verdict"] == stored["verdict"]
+            typed = Fraction(stored["typed"].split()[0])
+            shown, _ = _number(row["reading"])
+            assert shown * 1 == typed or Decimal(row["reading"].split()[0]) == Decimal(stored["typed"]), row
+            assert "+0 " not in row["error"] and "-0 " not in row["error"]
+
+    def test_statement_counts_are_the_rows(self, matrix, rule):
+        """The statement of conformity counts all four statements as the rows give them and
+        names how many rejections lie within tolerance (the guard band's) (ISO/IEC 17025:2017
+        7.8.6.2, ILAC-G8:09/2019 4.2.2 and 4.2.3)."""
+        record, soup, _ = matrix[rule]
+        counts = {v: 0 for v in LABELS.values()}
+        guard = outside = 0
+        for row in record["points"]:
+            counts[row["verdict"]] += 1
+            if row["verdict"] in ("fail", "conditional-fail"):
+                inside = as_written(row["low"]) <= as_written(row["reading"]) <= (
+                    float("inf") if row["high"] is None else as_written(row["high"]))
+                guard += inside
+                outside += not inside
+        overall = soup.select_one("#overall").get_text(" ", strip=True)
+        expected = (f"{counts['pass']} pass, {counts['conditional-pass']} conditional pass,"
+                    f" {counts['conditional-fail']} conditional fail, {counts['fail']} fail")
+        assert expected in overall
+        for key, count in counts.items():
+            assert record["summary"][key] == count
+        if guard:
+            assert f"{guard} {'lies' if guard == 1 else 'lie'} within" in overall
+        if outside:
+            assert f"{outside} {'lies' if outside == 1 else 'lie'} outside" in overall
+        assert "no results were measured" not in overall.lower()
+        if counts["conditional-pass"]:
+            assert "A conditional pass means" in overall
+        if counts["conditional-fail"]:
+            assert "A conditional fail means" in overall
+        if rule == "non-binary":
+            assert counts["conditional-pass"] + counts["conditional-fail"] > 0  # the matrix reaches them
+
+    def test_window_json_agrees_with_the_certificate(self, matrix, rule, capsys):
+        """``verirun window --json`` with the point's own terms prints every number as the
+        certificate does: limits, acceptance, U, the reading, the error, the interval, TUR."""
+        record, soup, points = matrix[rule]
+        printed = {row["key"]: row for row in _rows(soup, rule)}
+        by_key = {row["key"]: row for row in record["points"]}
+        args_of = {"dcv-20": ["--full-scale", "20V", "--percent-fs", "1", "--resolution", "0.05V"],
+                   "ohm-s": ["--scale", "series-ohms", "--centre", "10", "--arc", "90", "--degrees", "2",
+                             "--resolution", "0.5deg"],
+                   "ohm-p": ["--scale", "shunt-ohms", "--centre", "50", "--arc", "90",
+                             "--percent-length", "2", "--resolution", "0.5%"]}
+        for point in points:
+            if point.range.id not in args_of:
+                continue
+            row = by_key[point.key]
+            (calibrator,) = [t for t in row["budget"] if t["name"].startswith("applied value")]
+            assert main(["window", *args_of[point.range.id], "--at", repr(point.nominal),
+                         "--u-applied", repr(calibrator["u"]), "--rule", rule,
+                         "--reading", row["typed"], "--json"]) == 0
+            out = json.loads(capsys.readouterr().out)
+            texts, cells = out["text"], printed[point.key]
+            assert texts["reading"] == cells["reading"]
+            assert texts["low"] == cells["low"]
+            assert (texts["high"] if point.window.bounded else "∞ (unbounded)") == cells["high"]
+            assert texts["error"] == cells["error"]
+            assert cells["U"].startswith(texts["U_spec"])
+            if point.window.domain == "deflection":  # U along the arc, the interval in ohms beneath
+                assert cells["U"] == f"{texts['U_spec']} interval {texts['interval']}"
+            else:
+                assert cells["U"] == texts["U_spec"]
+            if rule != "simple":
+                accept = (f"{texts['accept_low']} to {texts['accept_high']}" if texts["accept_low"]
+                          else "none")
+                assert accept == cells["acceptance"]
+            if rule == "non-binary":
+                assert f"{texts['outer_low']} to {texts['outer_high']}" == cells["outer"]
+            assert out["verdict"] == row["verdict"]
+            tur = cells["tur"].replace("*", "").strip()
+            assert (tur == "—") if out["tur"] is None else tur == f"{out['tur']:.1f}"
