@@ -243,3 +243,58 @@ class TestCertificateMatrix:
             assert out["verdict"] == row["verdict"]
             tur = cells["tur"].replace("*", "").strip()
             assert (tur == "—") if out["tur"] is None else tur == f"{out['tur']:.1f}"
+
+
+# --- The same check on generated single points, every rule, many readings ---------------------
+
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+from verirun.evaluation import Site, shown  # noqa: E402
+from verirun.metrology import decision, scales, tolerance, uncertainty  # noqa: E402
+
+
+def _site(kind: str, nominal: str, spec: str, u: float, rule: str) -> Site:
+    if kind == "linear":
+        law = scales.Linear(high=20.0)
+        ctx = tolerance.RangeContext(law=law, full_scale=20.0, count=0.001)
+        statement = tolerance.ValueStatement(reading=float(spec), counts=2.0)
+        unit, domain, at = "V", "value", float(nominal)
+    else:
+        law = scales.SeriesOhms(centre=10.0) if kind == "series" else scales.ShuntOhms(centre=10.0)
+        ctx = tolerance.RangeContext(law=law, arc=90.0)
+        statement = tolerance.DegreesOfArc(degrees=float(spec))
+        unit, domain, at = "Ω", "deflection", abs(float(nominal)) + 0.1
+    win = tolerance.window(statement, at, ctx)
+    term = uncertainty.Term(name="u", standard_uncertainty=u if domain == "value" else u / 90.0,
+                            domain=domain, distribution="normal")
+    bud = uncertainty.budget(terms=[term], nominal=at, law=law, domain=domain)
+    return Site(window=win, law=law, unit=unit, budget=bud, rule=decision.rule_from_name(rule))
+
+
+@settings(max_examples=400, deadline=None)
+@given(kind=st.sampled_from(["linear", "series", "shunt"]), rule=st.sampled_from(RULES),
+       nominal=st.decimals(min_value=-19, max_value=19, places=3, allow_nan=False, allow_infinity=False),
+       spec=st.sampled_from(["0.05", "0.5", "1", "2.5"]), u=st.floats(1e-4, 0.5),
+       where=st.integers(0, 5), nudge=st.sampled_from([-1, 0, 1]), places=st.integers(0, 6))
+def test_printed_numbers_never_contradict_the_verdict(kind, rule, nominal, spec, u, where, nudge, places):
+    """For generated points, rules and readings on, just inside and just beyond every boundary,
+    the reading shown compared with the limits shown gives the verdict shown, under one prefix."""
+    site = _site(kind, str(nominal), spec, u, rule)
+    base = evaluate(site, site.window.nominal)
+    bounds = [site.window.exact_low, site.window.exact_high]
+    bounds += list(base.exact_acceptance or ()) + list(base.outer or ())
+    bounds = [b for b in bounds if isinstance(b, Fraction)]
+    target = bounds[where % len(bounds)]
+    d = Decimal(target.numerator) / Decimal(target.denominator)
+    typed = f"{d.quantize(Decimal(1).scaleb(-places)) + nudge * Decimal(1).scaleb(-places):f}"
+    if kind != "linear" and Decimal(typed) <= 0:
+        return
+    result = evaluate(site, float(typed))
+    texts = shown(site, result, typed)
+    cells = {"reading": texts["reading"], "low": texts["low"], "high": texts["high"],
+             "acceptance": (f"{texts['accept_low']} to {texts['accept_high']}"
+                            if texts["accept_low"] is not None else "none"),
+             "outer": f"{texts['outer_low']} to {texts['outer_high']}" if texts["outer_low"] else ""}
+    assert _printed_verdict(rule, cells) == result.verdict, (cells, result.verdict)
+    assert texts["reading"].split()[0] == typed.lstrip("+") or Decimal(texts["reading"].split()[0]) == Decimal(typed)
