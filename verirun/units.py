@@ -267,7 +267,9 @@ def unit_text(unit: str, exponent: int) -> str:
 def _scaled(value: Decimal | Fraction, exponent: int) -> Decimal | Fraction:
     if isinstance(value, Decimal):
         return value.scaleb(-exponent)
-    return value / Fraction(10) ** exponent
+    if exponent == 0:
+        return value
+    return value / 10 ** exponent if exponent > 0 else value * 10 ** -exponent
 
 
 def _plain_decimal(d: Decimal) -> str:
