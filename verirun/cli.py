@@ -396,7 +396,7 @@ def _window_document(win, unit, budget, rule, result, texts, reading, validation
            "accept_high": json_number(accept[1]) if accept else None,
            "interval_low": json_number(result.interval[0]) if result.interval else None,
            "interval_high": json_number(result.interval[1]) if result.interval else None,
-           "text": {key: value for key, value in texts.items()}}
+           "text": dict(texts)}
     if reading is not None:
         out["reading"] = reading
         out["verdict"] = result.verdict

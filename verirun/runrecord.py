@@ -273,7 +273,9 @@ def _row(point, doc: dict | None, known: Result | None = None, journal_format: i
     same = (known is not None and known.reading == reading
             and math.copysign(1.0, known.reading) == math.copysign(1.0, reading))  # -0.0 is not 0.0
     result = known if same else evaluate(point, reading)
+    interval = result.interval
     return {**row, "verdict": result.verdict, "within_tolerance": result.within_tolerance,
+            "interval": [json_number(interval[0]), json_number(interval[1])] if interval else None,
             "reading": reading, "typed": doc["typed"],
             "time": doc["time"], "error": result.error, "error_unit": result.error_unit,
             "percent_of_tolerance": result.percent_of_tolerance,
