@@ -51,7 +51,8 @@ class TestStoredRun:
         stored = json.loads((run / "record.json").read_text(encoding="utf-8"))
         rebuilt = build_record(read_journal(run / "journal.jsonl").documents)
         assert _steps(rebuilt) == _steps(stored)
-        assert rebuilt["summary"] == stored["summary"]
+        # every count the stored summary holds is the same; later formats add counts of their own
+        assert {key: rebuilt["summary"][key] for key in stored["summary"]} == stored["summary"]
 
     def test_certifies(self, run, tmp_path):
         """`verirun certify` renders the stored run; with the same template, to the stored bytes."""

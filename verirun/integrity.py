@@ -2,7 +2,9 @@
 
 A certificate is issued only from a verified record: the journal's documents must follow one
 another by sequence number and SHA-256 chain, and the run record must be exactly the record the
-journal closes into (so an edit to either shows).
+journal closes into (so an edit to either shows). A record of an earlier record format holds
+the figures its own version worked out; for it, everything the journal fixes, every verdict and
+the summary's counts must agree.
 """
 
 from __future__ import annotations
@@ -12,8 +14,24 @@ import re
 from pathlib import Path
 
 from verirun.errors import RecordError
-from verirun.record import JOURNAL_NAME, RECORD_NAME, dumps, line_hash, load_record, read_journal, verify_chain
+from verirun.record import JOURNAL_NAME, RECORD_FORMAT, RECORD_NAME, dumps, line_hash, load_record, read_journal, verify_chain
 from verirun.runrecord import build_record
+
+#: The figures of a row that verirun works out from the procedure and the reading (limits, U,
+#: error, TUR, the texts as printed). A record of an earlier format holds them as the version
+#: that wrote it worked them out; what its journal records, and every verdict, must still agree.
+DERIVED = frozenset({"low", "high", "half_width", "limits_text", "error", "error_unit",
+                     "percent_of_tolerance", "U", "U_spec", "k", "tur", "conformance", "accept_low",
+                     "accept_high", "U_pct", "accept_low_pct", "accept_high_pct", "budget", "reported",
+                     "within_tolerance", "interval"})
+
+
+def _facts(record: dict, summary_keys) -> dict:
+    """What the journal of ``record`` fixes whichever version wrote it: everything but the
+    derived figures of its rows, and the summary's counts (those of ``summary_keys``)."""
+    return {**{k: v for k, v in record.items() if k not in ("record_format", "points", "summary")},
+            "points": [{k: v for k, v in row.items() if k not in DERIVED} for row in record["points"]],
+            "summary": {k: record["summary"].get(k) for k in summary_keys}}
 
 
 def run_folder(path: str | Path) -> Path:
@@ -112,6 +130,10 @@ def problems(path: str | Path, reports: str | Path | None = None) -> list[str]:
         stored = load_record(folder / RECORD_NAME)
     except RecordError as exc:
         return [str(exc)]
+    if stored.get("record_format") != RECORD_FORMAT:
+        # An earlier format: its figures are its version's; its results must be the journal's.
+        counts = [k for k in stored.get("summary", {}) if k in rebuilt["summary"]]
+        stored, rebuilt = _facts(stored, counts), _facts(rebuilt, counts)
     if stored != rebuilt and stored.get("run", {}).get("documents", 0) < len(read.documents):
         found.append(f"{folder / RECORD_NAME}: is older than its journal (closed from"
                      f" {stored['run']['documents']} of its {len(read.documents)} documents): the run was"

@@ -23,8 +23,10 @@ from verirun import storage
 from verirun.documents import document_problem, parse_json
 from verirun.errors import RecordError
 
-#: Version of the run record layout.
-RECORD_FORMAT = 2
+#: Version of the run record layout. 3: rows say whether the reading lies within tolerance and
+#: carry its coverage interval and every number as printed; U is the reported U (GUM 7.2.6);
+#: the summary counts all four statements and names the rejections by cause.
+RECORD_FORMAT = 3
 JOURNAL_NAME = "journal.jsonl"
 RECORD_NAME = "record.json"
 GENESIS = "0" * 64

@@ -6,6 +6,7 @@ from pathlib import Path
 
 import json
 
+from verirun.certificate.render import TEMPLATE_VERSION
 from verirun.certificate.batch import certify_many, find_runs
 from verirun.cli import main
 
