@@ -337,7 +337,7 @@ def _cmd_window(args) -> int:
         raise UnitError(str(exc)) from None
     if args.monte_carlo and validation is None:
         raise UnitError("--monte-carlo: give --u-applied or --resolution: there is no uncertainty to validate")
-    texts = shown(site, result, typed) if typed is not None else {**shown(site), **_no_reading_texts(site, result)}
+    texts = shown(site, result, typed)
     out = _window_document(win, unit, budget, rule, result, texts, reading, validation)
     if args.json:
         print(json.dumps(out, ensure_ascii=False))
@@ -368,16 +368,6 @@ def _window_resolution(text: str, unit: str, arc, ohms: bool, quantity):
                         " (0.5deg) or percent of scale length (0.5%): its divisions are not evenly"
                         " spaced in ohms")
     return uncertainty.readability_term(division=quantity("resolution", text, unit or None)[0])
-
-
-def _no_reading_texts(site, result) -> dict:
-    """The acceptance limits and U of ``verirun window`` without a reading, as shown."""
-    from verirun.evaluation import shown
-
-    typed = repr(site.window.nominal)
-    texts = shown(site, result, typed)
-    return {key: texts[key] for key in ("accept_low", "accept_high", "outer_low", "outer_high",
-                                        "U_spec", "U", "interval")}
 
 
 def _window_document(win, unit, budget, rule, result, texts, reading, validation) -> dict:
@@ -454,8 +444,11 @@ def _validation_lines(v, win, texts) -> list[str]:
     def interval(c, unit: str) -> str:
         def num(x: float) -> str:
             return "∞" if x == float("inf") else f"{x:.6g}"
-        return (f"GUM {num(c.gum_low)} to {num(c.gum_high)} {unit}; Monte Carlo {num(c.mc_low)} to"
-                f" {num(c.mc_high)} {unit}; d_low {num(c.d_low)}, d_high {num(c.d_high)},"
+
+        def q(x: float) -> str:
+            return f"{num(x)}{unit}" if unit == "°" else f"{num(x)} {unit}"
+        return (f"GUM {q(c.gum_low)} to {q(c.gum_high)}; Monte Carlo {q(c.mc_low)} to"
+                f" {q(c.mc_high)}; d_low {num(c.d_low)}, d_high {num(c.d_high)},"
                 f" tolerance {c.tolerance:.2g}: {'VALIDATED' if c.validated else 'NOT VALIDATED'}")
 
     unit = "°" if win.unit == "deg" else (win.unit or texts["unit"])

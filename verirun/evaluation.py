@@ -152,7 +152,8 @@ def shown(point: "TestPoint | Site", result: Result | None = None, typed: str | 
     """Every number of one row as printed, under one SI prefix: the one formatter of verirun.
 
     The console's result line, ``verirun window``, the run record and the certificate print
-    these texts. The reading is shown as ``typed`` (its digits kept); each limit with enough
+    these texts. Without ``typed`` (``verirun window`` with no reading) the result's figures
+    are shown under the prefix of the limits and ``reading`` is ``None``. The reading is shown as ``typed`` (its digits kept); each limit with enough
     digits that the reading shown, compared with the limit shown, gives the verdict shown; U to
     two significant digits (GUM 7.2.6) and the error rounded to the same decimal place; zero
     never signed. Keys: ``unit`` (the row's prefixed unit), ``low``, ``high`` (tolerance
@@ -171,7 +172,7 @@ def shown(point: "TestPoint | Site", result: Result | None = None, typed: str | 
         number, exponent = typed_decimal(typed, unit)
         reading = as_written(result.reading)
         places = max(-number.as_tuple().exponent, 0)
-    else:
+    else:  # the limits alone, or a result judged at the nominal with no reading typed
         exponent = row_exponent(unit, win.nominal, win.high if math.isfinite(win.high) else None)
 
     def limit(value, side: str) -> str:
@@ -183,14 +184,14 @@ def shown(point: "TestPoint | Site", result: Result | None = None, typed: str | 
            "high": limit(win.exact_high, "high")}
     if result is None:
         return out
-    out["reading"] = format_typed(typed, unit, exponent)
+    out["reading"] = format_typed(typed, unit, exponent) if typed is not None else None
     accept = result.exact_acceptance
     out["accept_low"] = limit(accept[0], "low") if accept else None
     out["accept_high"] = limit(accept[1], "high") if accept else None
     outer = result.outer
     out["outer_low"] = limit(outer[0], "low") if outer else None
     out["outer_high"] = limit(outer[1], "high") if outer else None
-    exact_error = _exact_error(site, reading)
+    exact_error = _exact_error(site, as_written(result.reading))
     if result.expanded > 0:
         u = round_uncertainty(result.expanded)
         place = Decimal(1).scaleb(u.as_tuple().exponent)
@@ -206,8 +207,8 @@ def shown(point: "TestPoint | Site", result: Result | None = None, typed: str | 
             out["U_spec"] = _in_domain_unit(u, win.unit, signed=False)
             out["U"] = None
         low, high = result.interval
-        out["interval"] = (f"{format_limit(Fraction(low), unit, exponent, places=places)} to"
-                           f" {format_limit(high if math.isinf(high) else Fraction(high), unit, exponent, places=places)}")
+        out["interval"] = (f"{format_limit(as_written(low), unit, exponent, places=places)} to"
+                           f" {format_limit(as_written(high), unit, exponent, places=places)}")
     else:
         out["error"] = (_decimal_text(_exact_decimal(exact_error * Fraction(10) ** -exponent),
                                       unit_text(unit, exponent), signed=True)
