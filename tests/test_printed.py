@@ -144,6 +144,6 @@ class TestConsoleLines:
         console.result(Point, Entry(kind="reading", typed=reading, value=float(reading)), result)
         (line,) = console.lines
         assert line.endswith(verdict.replace("-", " ").upper())
-        assert "acceptance 10.1 V to 10.1 V" not in line and "conditional fail to" in line
+        assert "acceptance 10.1 V to 10.1 V" not in line and "fail beyond" in line
         markup = verdict_markup(verdict)
         assert "green" not in markup and "red" not in markup

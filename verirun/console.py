@@ -45,7 +45,7 @@ def result_text(point: "TestPoint", entry: Entry, result: "Result") -> tuple[str
     """The numbers of a result line, as :func:`verirun.evaluation.shown` prints them, and the
     verdict's label: ``("reading 0.8 V  limits 0.6 V to 0.8 V", "PASS")``. The limits that
     decide the verdict are all there: the acceptance limits under a guarded rule, and under the
-    non-binary rule the limits ``w`` outside the tolerance too."""
+    non-binary rule the limits ``w`` outside the tolerance (beyond them a result fails)."""
     from verirun.evaluation import shown
 
     texts = shown(point, result, entry.typed)
@@ -54,7 +54,7 @@ def result_text(point: "TestPoint", entry: Entry, result: "Result") -> tuple[str
         line += ("  acceptance " + (f"{texts['accept_low']} to {texts['accept_high']}"
                                     if texts["accept_low"] is not None else "none"))
     if texts["outer_low"] is not None:
-        line += f"  conditional fail to {texts['outer_low']} / {texts['outer_high']}"
+        line += f"  fail beyond {texts['outer_low']} and {texts['outer_high']}"
     return line, label(result.verdict)
 
 
