@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 from decimal import Decimal
 from fractions import Fraction
+from pathlib import Path
 
 import pytest
 
@@ -147,3 +148,23 @@ class TestConsoleLines:
         assert "acceptance 10.1 V to 10.1 V" not in line and "fail beyond" in line
         markup = verdict_markup(verdict)
         assert "green" not in markup and "red" not in markup
+
+
+class TestReadingsAsWritten:
+    @pytest.mark.parametrize(("typed", "words"), [
+        ("1.00000000000000000001", "significant digits"),  # more than a float carries exactly
+        ("1e-400", "too small"),
+    ])
+    def test_a_reading_the_decision_cannot_hold_exactly_is_refused(self, typed, words):
+        """A reading with more digits than a double holds (IEEE 754 DBL_DIG = 15, from memory)
+        would be decided on other digits than those printed: it is refused with the reason."""
+        from verirun.errors import UnitError
+        from verirun.procedure.load import load_procedure_text
+        from verirun.procedure.plan import plan
+        from verirun.readings import parse_entry
+
+        text = (Path(__file__).resolve().parent / "data" / "matrix-procedure.yaml").read_text()
+        point = plan(load_procedure_text(text, "m.yaml"))[0]
+        with pytest.raises(UnitError, match=words):
+            parse_entry(typed, point)
+        assert parse_entry("2.00000000000000", point).value == 2.0  # 15 digits are fine

@@ -20,7 +20,7 @@ from verirun.metrology import scales
 from verirun.procedure.load import ResolvedRange
 from verirun.procedure.model import Number, QuantityText, Strict
 from verirun.procedure.plan import TestPoint
-from verirun.units import format_quantity, parse_quantity, parse_value, prefix_for
+from verirun.units import format_quantity, parse_quantity, parse_value, prefix_for, typed_decimal
 
 EntryKind = Literal["reading", "repeat", "skip", "note", "abort", "undo"]
 
@@ -91,8 +91,23 @@ def parse_entry(typed: str, point: TestPoint) -> Entry:
         return Entry(kind=kind, typed=typed, text=rest or None)
     _, factor = reading_unit(point.range)
     value, _ = parse_quantity(text, point.unit, bare_factor=factor)
+    _check_as_written(text, value, point.unit, factor)
     _check_on_scale(value, point)
     return Entry(kind="reading", typed=typed, value=value)
+
+
+#: The most significant digits a reading may have: as many as a float carries exactly, so that
+#: the reading decided on is the reading as typed (see :mod:`verirun.metrology.exact`).
+MAX_DIGITS = 15
+
+
+def _check_as_written(text: str, value: float, unit: str, bare_factor: float) -> None:
+    number, _ = typed_decimal(text, unit, bare_factor=bare_factor)
+    digits = len(number.normalize().as_tuple().digits) if number else 0
+    if digits > MAX_DIGITS:
+        raise UnitError(f"{text.strip()!r} has {digits} significant digits; give at most {MAX_DIGITS}")
+    if number and value == 0.0:
+        raise UnitError(f"{text.strip()!r} is too small a number to work with")
 
 
 #: How far past either end of a linear scale, as a fraction of its length, a reading is accepted.

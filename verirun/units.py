@@ -215,32 +215,34 @@ def prefix_for(value: float) -> tuple[float, str]:
 _PREFIX_EXPONENTS = {"p": -12, "n": -9, "u": -6, "µ": -6, "μ": -6, "m": -3, "": 0, "k": 3,
                      "M": 6, "G": 9}
 _PREFIX_NAMES = {-12: "p", -9: "n", -6: "µ", -3: "m", 0: "", 3: "k", 6: "M", 9: "G"}
-_LEADING_NUMBER = re.compile(r"^\s*([+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?)\s*(\S*)\s*$")
 
 
-def typed_decimal(text: str, expect: str) -> tuple[Decimal, int]:
+def typed_decimal(text: str, expect: str, *, bare_factor: float = 1.0) -> tuple[Decimal, int]:
     """The number an operator typed, exactly as typed, and the power of ten of its prefix.
 
     ``typed_decimal("2.900 kΩ", "Ω") == (Decimal("2.900"), 3)``: trailing zeros are kept, as the
-    operator wrote them. The text is checked by :func:`parse_quantity` first.
+    operator wrote them. A prefix alone (``"1.06k"``) counts as that prefix; a bare number is in
+    the unit whose factor is ``bare_factor`` (as :func:`parse_quantity` reads it). The text is
+    checked by :func:`parse_quantity` first.
 
     Raises
     ------
     UnitError
         If ``text`` is not a quantity in ``expect``.
     """
-    parse_quantity(text, expect)  # the reasons for refusing, in one place
-    match = _LEADING_NUMBER.match(text)
-    if match is None:
-        raise UnitError(f"{text.strip()!r} is not a number with an optional unit")
-    number, symbol = Decimal(match[1]), match[2]
-    exponent = 0
-    if symbol and symbol not in UNITS:
-        for prefix, power in _PREFIX_EXPONENTS.items():
-            if prefix and symbol.startswith(prefix) and symbol[len(prefix):] in UNITS:
-                exponent = power
-                break
-    return number, exponent
+    parse_quantity(text, expect, bare_factor=bare_factor)  # the reasons for refusing, in one place
+    match = _QUANTITY.match(text)
+    number, symbol = Decimal(match["number"]), match["unit"] or ""
+    if not symbol:
+        return number, round(math.log10(bare_factor))
+    if symbol in UNITS:
+        return number, 0
+    if symbol in _PREFIX_EXPONENTS:
+        return number, _PREFIX_EXPONENTS[symbol]
+    for prefix, power in _PREFIX_EXPONENTS.items():
+        if prefix and symbol.startswith(prefix) and symbol[len(prefix):] in UNITS:
+            return number, power
+    return number, 0
 
 
 def row_exponent(unit: str, *values: float | None) -> int:
