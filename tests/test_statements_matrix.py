@@ -298,3 +298,17 @@ def test_printed_numbers_never_contradict_the_verdict(kind, rule, nominal, spec,
              "outer": f"{texts['outer_low']} to {texts['outer_high']}" if texts["outer_low"] else ""}
     assert _printed_verdict(rule, cells) == result.verdict, (cells, result.verdict)
     assert texts["reading"].split()[0] == typed.lstrip("+") or Decimal(texts["reading"].split()[0]) == Decimal(typed)
+
+
+def test_conditional_results_look_different_on_the_certificate(matrix):
+    """Under the non-binary rule each conditional row's verdict cell and chart marker carry a
+    class and style of their own (ILAC-G8:09/2019 4.2.3: four distinct statements)."""
+    record, soup, _ = matrix["non-binary"]
+    for row in record["points"]:
+        tr = soup.select_one(f'tr[data-key="{row["key"]}"]')
+        assert f"verdict-{row['verdict']}" in tr.select_one("td.verdict")["class"]
+    for verdict in ("conditional-pass", "conditional-fail"):
+        markers = soup.select(f"svg circle.{verdict}, svg polygon.{verdict}")
+        assert markers and all(m.get("fill") == "#ffffff" for m in markers)
+    css = soup.select_one("style").get_text()
+    assert ".verdict-conditional-pass" in css and ".verdict-conditional-fail" in css
