@@ -88,23 +88,33 @@ def conformity(record: dict):
 
 
 def printed(row: dict) -> dict:
-    """The texts a certificate row prints: the record's own (``reported``, ``limits_text``), or
-    for a record written before rows carried them, the same numbers formatted here."""
-    from verirun.units import format_quantity
+    """The texts a certificate row prints: the record's own (``reported``), or for a record
+    written before rows carried them, the same formatter applied to the row's numbers as
+    written: the reading as typed, each limit with the digits the printed comparison needs."""
+    from verirun.metrology.exact import as_written
+    from verirun.units import format_limit, row_exponent, typed_decimal
 
     texts = dict(row.get("reported") or {})
-    if "low" not in texts:
-        unit = row["unit"]
-        texts["low"] = format_quantity(row["low"], unit, 5)
-        texts["high"] = format_quantity(row["high"], unit, 5) if row["high"] is not None else "∞"
-        if row.get("reading") is not None:
-            accept = (row.get("accept_low"), row.get("accept_high"))
-            texts["accept_low"] = None if accept[0] is None else format_quantity(accept[0], unit, 5)
-            texts["accept_high"] = (None if accept[0] is None else
-                                    "∞" if accept[1] is None else format_quantity(accept[1], unit, 5))
-        texts.setdefault("outer_low", None)
-        texts.setdefault("outer_high", None)
-        texts.setdefault("interval", None)
+    if "low" in texts:
+        return texts
+    unit = row["unit"]
+    reading = places = None
+    if row.get("reading") is not None and row.get("typed"):
+        number, exponent = typed_decimal(row["typed"], unit)
+        reading, places = as_written(row["reading"]), max(-number.as_tuple().exponent, 0)
+    else:
+        exponent = row_exponent(unit, row["nominal"], row["high"])
+
+    def limit(value, side: str) -> str | None:
+        if value is None:
+            return "∞" if side == "high" else None
+        return format_limit(as_written(value), unit, exponent, reading=reading, side=side,
+                            places=places or 0)
+
+    texts.update(low=limit(row["low"], "low"), high=limit(row["high"], "high"),
+                 accept_low=None, accept_high=None, outer_low=None, outer_high=None, interval=None)
+    if reading is not None and row.get("accept_low") is not None:
+        texts.update(accept_low=limit(row["accept_low"], "low"), accept_high=limit(row["accept_high"], "high"))
     return texts
 
 
