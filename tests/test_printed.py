@@ -135,7 +135,7 @@ class TestConsoleLines:
         class Point:  # what the console line needs of a test point
             index, total, unit, rule = 0, 1, "V", site.rule
             window, budget = site.window, site.budget
-            range = type("R", (), {"id": "dcv-20", "law": law})()
+            range = type("R", (), {"id": "dcv-20", "law": law, "full_scale": 20.0, "unit": "V"})()
 
             @staticmethod
             def stimulus_text():
@@ -168,3 +168,19 @@ class TestReadingsAsWritten:
         with pytest.raises(UnitError, match=words):
             parse_entry(typed, point)
         assert parse_entry("2.00000000000000", point).value == 2.0  # 15 digits are fine
+
+
+def test_a_bare_number_is_shown_in_the_prompts_unit():
+    """On a 50 mA range a bare 14.75 is read in mA, as the prompt says, and shown as
+    "14.75 mA" with its limits under the same prefix (common practice, no source)."""
+    from verirun.procedure.load import load_procedure_text
+    from verirun.procedure.plan import plan
+    from verirun.readings import parse_entry
+
+    text = (Path(__file__).resolve().parent / "data" / "matrix-procedure.yaml").read_text()
+    text = text.replace("ranges:\n", "ranges:\n  - id: dca-50m\n    function: dc-current\n    full-scale: 50 mA\n"
+                        "    accuracy: {percent-of-full-scale: 2}\n    resolution: 0.25 mA\n    points: [15 mA]\n", 1)
+    point = plan(load_procedure_text(text, "m.yaml"))[0]
+    entry = parse_entry("14.75", point)
+    texts = shown(point, evaluate(point, entry.value), entry.typed)
+    assert (texts["reading"], texts["low"], texts["high"]) == ("14.75 mA", "14 mA", "16 mA")

@@ -88,9 +88,10 @@ class TestReview:
         low = [r for r in found.rows if r.tur_low]
         # At 50 mA on the 220 mA line: ± (120 ppm × 50 mA + 20 ppm × 220 mA + 1 µA) = 11.4 µA at
         # 99 % (k = 2.576), u = 4.426 µA; readability 1 µA / √12 = 0.289 µA (GUM F.2.2.1);
-        # U = 2 √(4.426² + 0.289²) = 8.87 µA (GUM 5.1.2); TUR = 50 µA / (2 × 8.87 µA) = 2.82,
+        # U = 2 √(4.426² + 0.289²) = 8.87 µA (GUM 5.1.2), reported as 8.9 µA (GUM 7.2.6: two
+        # significant digits; TUR is worked from U as printed); TUR = 50 µA / (2 × 8.9 µA) = 2.81,
         # worked by hand. At 10 mA the same sum gives TUR 18.8, not flagged.
-        assert [(r.step, r.tur) for r in low] == [(6, "2.82")]
+        assert [(r.step, r.tur) for r in low] == [(6, "2.81")]
         assert any("TUR below 4 : 1" in w for w in found.warnings)
 
     def test_html_page_is_deterministic_escaped_and_complete(self, tmp_path):

@@ -116,6 +116,7 @@ BIPOLAR = textwrap.dedent("""\
         function: dc-voltage
         full-scale: 20 V
         accuracy: {percent-of-full-scale: 1}
+        resolution: 0.1 V
         points: [10 V]
     """)
 

@@ -41,6 +41,14 @@ def verdict_markup(verdict: str) -> str:
     return f"[bold {VERDICT_COLOURS[verdict]}]{label(verdict)}[/]"
 
 
+def _limits(point: "TestPoint") -> str:
+    """The tolerance limits of ``point`` as the shared formatter prints them."""
+    from verirun.evaluation import shown
+
+    texts = shown(point)
+    return f"{texts['low']} to {texts['high']}"
+
+
 def result_text(point: "TestPoint", entry: Entry, result: "Result") -> tuple[str, str]:
     """The numbers of a result line, as :func:`verirun.evaluation.shown` prints them, and the
     verdict's label: ``("reading 0.8 V  limits 0.6 V to 0.8 V", "PASS")``. The limits that

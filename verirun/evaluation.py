@@ -70,14 +70,17 @@ class Site:
     unit: str
     budget: object
     rule: decision.Rule
+    bare_factor: float = 1.0  # the unit a bare number is typed in, as a factor to base units
 
     @classmethod
     def of(cls, point: "TestPoint | Site") -> "Site":
         """The site of a test point (a site is its own)."""
         if isinstance(point, Site):
             return point
+        from verirun.readings import reading_unit
+
         return cls(window=point.window, law=point.range.law, unit=point.unit, budget=point.budget,
-                   rule=point.rule)
+                   rule=point.rule, bare_factor=reading_unit(point.range)[1])
 
 
 def error_unit(point: TestPoint) -> tuple[str, float]:
@@ -169,7 +172,7 @@ def shown(point: "TestPoint | Site", result: Result | None = None, typed: str | 
     reading = None
     places = 0
     if typed is not None and result is not None:
-        number, exponent = typed_decimal(typed, unit)
+        number, exponent = typed_decimal(typed, unit, bare_factor=site.bare_factor)
         reading = as_written(result.reading)
         places = max(-number.as_tuple().exponent, 0)
     else:  # the limits alone, or a result judged at the nominal with no reading typed
@@ -184,7 +187,8 @@ def shown(point: "TestPoint | Site", result: Result | None = None, typed: str | 
            "high": limit(win.exact_high, "high")}
     if result is None:
         return out
-    out["reading"] = format_typed(typed, unit, exponent) if typed is not None else None
+    out["reading"] = (format_typed(typed, unit, exponent, bare_factor=site.bare_factor)
+                      if typed is not None else None)
     accept = result.exact_acceptance
     out["accept_low"] = limit(accept[0], "low") if accept else None
     out["accept_high"] = limit(accept[1], "high") if accept else None

@@ -279,10 +279,11 @@ def _plain_decimal(d: Decimal) -> str:
     return text[1:] if text.startswith("-") and d == 0 else text  # never "-0"
 
 
-def format_typed(text: str, unit: str, exponent: int) -> str:
+def format_typed(text: str, unit: str, exponent: int, *, bare_factor: float = 1.0) -> str:
     """The reading ``text`` as typed, under the row's prefix ``10**exponent``: its digits kept,
-    a leading ``+`` dropped (``"2.9"`` on an ohms row is ``"2.9 Ω"``, never ``"2.900 Ω"``)."""
-    number, power = typed_decimal(text, unit)
+    a leading ``+`` dropped (``"2.9"`` on an ohms row is ``"2.9 Ω"``, never ``"2.900 Ω"``); a
+    bare number is in the unit of ``bare_factor``."""
+    number, power = typed_decimal(text, unit, bare_factor=bare_factor)
     shown = number.scaleb(power - exponent)
     return f"{_plain_decimal(shown)} {unit_text(unit, exponent)}".rstrip()
 
