@@ -10,7 +10,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from verirun.errors import UnitError
-from verirun.units import format_fixed, format_quantity, parse_quantity, parse_value
+from verirun.units import format_quantity, parse_quantity, parse_value
 
 UREG = pint.UnitRegistry()
 PINT_NAMES = {"V": "volt", "A": "ampere", "Ω": "ohm", "Hz": "hertz"}
@@ -69,17 +69,6 @@ class TestFormatQuantity:
         """An unbounded limit is shown as infinity."""
         assert format_quantity(math.inf, "Ω") == "∞"
         assert format_quantity(None, "Ω") == "∞"
-
-    def test_fixed_place(self):
-        """A value rounded to a place in base units keeps that place under any prefix (GUM 7.2.6)."""
-        assert format_fixed(10.05762, "Ω", 3) == "10.058 Ω"
-        assert format_fixed(0.0012, "V", 5) == "1.20 mV"
-
-    def test_result_and_uncertainty_share_a_prefix(self):
-        """0.4 mV with U = 2.0 mV: the result is shown to U's place under U's prefix, not as
-        '400 µV', which would claim a finer place (GUM 7.2.6)."""
-        assert format_fixed(0.0004, "V", 4, like=0.0020) == "0.4 mV"
-        assert format_fixed(0.0020, "V", 4, like=0.0004) == "2.0 mV"
 
     def test_no_exponent_form(self):
         """Few significant digits never turn into exponent form."""

@@ -163,29 +163,6 @@ def _significant(number: float, digits: int) -> str:
     return f"{float(text):.0f}"
 
 
-def format_fixed(value: float, unit: str, decimals_base: int, *, like: float | None = None) -> str:
-    """Format a value rounded to ``decimals_base`` decimal places *in base units*.
-
-    The prefix is chosen from the larger of ``value`` and ``like`` (pass the uncertainty, so a
-    result and its uncertainty share one prefix), and the number of decimals adjusted so that
-    the last digit shown stays at the same absolute place (GUM 7.2.6: the result is rounded to
-    the place of the last digit of its uncertainty).
-    """
-    if math.isinf(value):
-        return format_quantity(value, unit)
-    magnitude = max(abs(value), abs(like) if like is not None and math.isfinite(like) else 0.0)
-    if magnitude == 0:
-        magnitude = 10.0 ** (-decimals_base)
-    factor, prefix = 1.0, ""
-    if unit not in _UNPREFIXED:
-        for factor, prefix in _ENGINEERING:
-            if magnitude >= factor * 0.9999999995:
-                break
-    exponent = round(math.log10(factor))
-    decimals = max(decimals_base + exponent, 0)
-    return f"{value / factor:.{decimals}f} {prefix}{unit}"
-
-
 def in_band(frequency: float | None, low_hz: float | None, high_hz: float | None) -> bool:
     """True when ``frequency`` lies in the band ``low_hz`` .. ``high_hz``, ends included.
 
