@@ -23,7 +23,7 @@ import math
 from dataclasses import dataclass
 
 from verirun.metrology.scales import make_law
-from verirun.units import format_quantity
+from verirun.units import format_quantity, prefix_for
 
 WIDTH = 720.0
 UNITS_PER_MM = 4.0
@@ -366,18 +366,6 @@ def _fraction(law, value: float | None) -> tuple[float, bool]:
     return held, held != fraction
 
 
-_PREFIXES = ((1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "µ"), (1e-9, "n"))
-
-
-def _prefix(value: float) -> tuple[float, str]:
-    """The SI prefix under which ``value`` shows between 1 and 1000."""
-    magnitude = abs(value)
-    for factor, prefix in _PREFIXES:
-        if magnitude >= factor * 0.9999999995:
-            return factor, prefix
-    return _PREFIXES[-1]
-
-
 def _ohms_label(value: float) -> str:
     if math.isinf(value):
         return "∞"
@@ -418,7 +406,7 @@ def _linear_candidates(law) -> tuple[list[tuple[int, float, str]], str]:
     span = law.high - law.low
     step = _nice_step(abs(span) / 6.0)
     minor = step / (4.0 if round(step / 10.0 ** math.floor(math.log10(step))) == 2 else 5.0)
-    factor, prefix = _prefix(max(abs(law.low), abs(law.high)))
+    factor, prefix = prefix_for(max(abs(law.low), abs(law.high)))
     found = [(0, 0.0, f"{law.low / factor:.4g}"), (0, 1.0, f"{law.high / factor:.4g}")]
     per_major = round(step / minor)
     for i in range(1, int(abs(span) / minor + 1e-6) + 1):
