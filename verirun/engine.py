@@ -17,6 +17,7 @@ from verirun.bench.safety import HazardLimits, is_hazardous, output_guard
 from verirun.clock import SystemClock, iso
 from verirun.errors import BenchError, RunAborted, VerirunError
 from verirun.evaluation import evaluate
+from verirun.interrupts import deferred_signals
 from verirun.procedure.load import Procedure
 from verirun.procedure.plan import TestPoint, plan
 from verirun.readings import Entry, ReadingSource
@@ -179,8 +180,9 @@ class Engine:
             raise
         finally:
             if self.journal_started:
-                self.journal.append({"kind": "stop", "time": iso(self.clock.now()), "status": status,
-                                     "reason": reason, "counts": dict(self.counts)})
+                with deferred_signals():
+                    self.journal.append({"kind": "stop", "time": iso(self.clock.now()), "status": status,
+                                         "reason": reason, "counts": dict(self.counts)})
 
     def _where_text(self) -> str:
         where = self._where

@@ -19,6 +19,7 @@ from pathlib import Path
 from typing import Any, Iterable
 
 from verirun.errors import RecordError
+from verirun.interrupts import deferred_signals
 
 #: Version of the run record layout.
 RECORD_FORMAT = 1
@@ -79,14 +80,18 @@ class Journal:
                 os.fsync(fh.fileno())
 
     def append(self, doc: dict) -> dict:
-        """Write ``doc`` as one line with its sequence number and chain hash; fsync; return it."""
+        """Write ``doc`` as one line with its sequence number and chain hash; fsync; return it.
+
+        A critical section (:mod:`verirun.interrupts`): a signal arriving meanwhile acts only once
+        the line is on disk and the chain has moved past it, so no two lines share a number."""
         full = {**doc, "seq": self._seq, "prev": self._prev}
         line = dumps(full)
-        self._file.write(line + "\n")
-        self._file.flush()
-        os.fsync(self._file.fileno())
-        self._seq += 1
-        self._prev = line_hash(line)
+        with deferred_signals():
+            self._file.write(line + "\n")
+            self._file.flush()
+            os.fsync(self._file.fileno())
+            self._seq += 1
+            self._prev = line_hash(line)
         return full
 
     @property

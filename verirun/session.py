@@ -23,6 +23,7 @@ from verirun.certificate.render import write_certificate
 from verirun.clock import SystemClock
 from verirun.engine import Engine, Outcome, RunContext
 from verirun.errors import ProcedureError, RecordError, VerirunError
+from verirun.interrupts import deferred_signals
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.record import JOURNAL_NAME, RECORD_NAME, Journal, read_journal, verify_chain, write_record
 from verirun.runrecord import Known, build_record
@@ -136,8 +137,11 @@ def _drive(*, run_dir: Path, procedure, bench, context, readings, console, repor
     outcome = None
     # What the run worked out already, for the record to use instead of working it out again.
     known = Known(procedure=procedure, bench=bench, points=points, results={})
-    try:
-        with _sigterm_as_interrupt():
+    # The signal handlers stay until the record is written, and closing is a critical section:
+    # a kill request while the run closes acts once the record is on disk.
+    record, closed = None, False
+    with _sigterm_as_interrupt():
+        try:
             if own_calibrator:
                 calibrator = open_calibrator(bench, simulate=simulate, workdir=run_dir, profile=profile)
             try:
@@ -148,16 +152,19 @@ def _drive(*, run_dir: Path, procedure, bench, context, readings, console, repor
             finally:
                 if own_calibrator:
                     calibrator.close()
-    except BaseException as exc:
-        journal.close()
-        try:
-            close_run(run_dir, known=known)
-        except Exception:  # the journal is the truth; a record that cannot be built now can be later
-            pass
-        exc.run_dir = run_dir  # type: ignore[attr-defined]
-        raise
-    journal.close()
-    record = close_run(run_dir, known=known)
+            with deferred_signals():
+                journal.close()
+                record, closed = close_run(run_dir, known=known), True
+        except BaseException as exc:
+            exc.run_dir = run_dir  # type: ignore[attr-defined]
+            if not closed:
+                with deferred_signals():  # a signal now is dropped: the run is ending already
+                    journal.close()
+                    try:
+                        close_run(run_dir, known=known)
+                    except Exception:  # the journal is the truth; a record that cannot be built now can be later
+                        pass
+            raise
     complete = record is not None and record["run"]["status"] == "complete"
     certificate = write_certificate(record, reports_dir) if complete else None
     return Finished(outcome=outcome, run_dir=run_dir, record_path=run_dir / RECORD_NAME,
