@@ -30,6 +30,7 @@ from verirun.bench.sim import SIM_RESOURCE, sim_library
 from verirun.clock import VirtualClock
 from verirun.console import QuietConsole
 from verirun.engine import RunContext
+from verirun.lab import load_lab
 from verirun.errors import SafetyError
 from verirun.integrity import verified_record
 from verirun.interrupts import deferred_signals
@@ -40,6 +41,7 @@ from verirun.session import _sigterm_as_interrupt, execute
 
 EDGE = Path(__file__).resolve().parent / "data" / "edge"
 PROCEDURE, BENCH, READINGS = EDGE / "dcv-small.yaml", EDGE / "bench.yaml", EDGE / "readings.csv"
+LAB = EDGE / "lab.yaml"
 #: The standby and its read-back in the scpi-generic profile: off, the error check, the state query.
 MAKE_SAFE = ["OUTP OFF", "SYST:ERR?", "OUTP?"]
 
@@ -268,7 +270,7 @@ class TestSignalAtJournalFsync:
 
 
 def _context() -> RunContext:
-    return RunContext(lab={"name": "Edge test lab"}, customer={"name": "C", "address": []},
+    return RunContext(lab=load_lab(LAB).lab.model_dump(mode="json"), customer={"name": "C", "address": []},
                       item={"serial": "EDGE-1", "asset": None, "condition": "as new"},
                       operator="tester", simulated=True)
 

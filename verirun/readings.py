@@ -34,6 +34,14 @@ COMMANDS = {
 }
 
 
+#: The longest line accepted at the reading prompt (a note included), in characters.
+MAX_ENTRY_LENGTH = 1000
+
+
+class OperatorSilent(Exception):
+    """Nothing was typed at a prompt within its time limit (``args[0]``, in seconds)."""
+
+
 # Made afresh for every reading and never changed after; not frozen because a frozen
 # dataclass takes twice as long to build.
 @dataclass(kw_only=True, slots=True)
@@ -55,7 +63,11 @@ class ReadingSource(Protocol):
     interactive: bool
 
     def take(self, point: TestPoint) -> Entry:
-        """The reading (or operator command) for ``point``."""
+        """The reading (or operator command) for ``point``.
+
+        An interactive source also takes ``within=`` seconds, and raises
+        :class:`OperatorSilent` when nothing was typed in that time.
+        """
 
 
 def reading_unit(rng) -> tuple[str, float]:
@@ -81,6 +93,8 @@ def parse_entry(typed: str, point: TestPoint) -> Entry:
     UnitError
         With the reason: not a number, decimal comma, wrong unit, or beyond the scale's ends.
     """
+    if len(typed) > MAX_ENTRY_LENGTH:
+        raise UnitError(f"too long: at most {MAX_ENTRY_LENGTH} characters")
     text = typed.strip()
     word, _, rest = text.partition(" ")
     if word.lower() in COMMANDS:
