@@ -264,3 +264,49 @@ class TestIdleStandbyInTheBenchFile:
             load_bench_text(text, "b.yaml")
         assert any(line.startswith("b.yaml:") and "safety.idle-standby" in line and message in line
                    for line in info.value.problems)
+
+
+MARKUP_PROCEDURE = PROCEDURE.read_text().replace(
+    "connect: Red lead to V, black lead to COM.", "connect: '[/] Red lead to [bold]V[/bold], [meter damaged] black to COM.'")
+
+
+class TestTextShownAsWritten:
+    def test_markup_in_procedure_and_operator_text_is_shown_literally(self, tmp_path):
+        """Brackets in a procedure's connect text, in a refused reading, in a note and in a skip
+        reason are shown as written: no crash, nothing swallowed, and the run completes."""
+        error, docs, shown, typist, sim = interactive_run(
+            tmp_path, ["", "[/]", "note [meter damaged]", "2.05", "skip [/] lead broken [red]", "9.9", "", "yes", "80"],
+            procedure=load_procedure_text(MARKUP_PROCEDURE, "markup.yaml"))
+        assert error is None, error
+        assert "Connect: [/] Red lead to [bold]V[/bold], [meter damaged] black to COM." in shown
+        assert "'[/]' is not a number with an optional unit" in shown
+        assert "skipped: [/] lead broken [red]" in shown
+        assert any(d["kind"] == "note" and d["text"] == "[meter damaged]" for d in docs)
+        assert sim.output() in ("0", "OFF")
+
+    def test_quiet_console_echo_prints_literally(self):
+        """The scripted runs' echo shows warnings and dangers with brackets as written."""
+        out = io.StringIO()
+        console = QuietConsole(echo=RichConsole(file=out, width=200, highlight=False))
+        console.warn("[/] journal [meter damaged]")
+        console.danger("[bold]80 V[/]")
+        console.heading("Range [/]")
+        assert "[/] journal [meter damaged]" in out.getvalue() and "[bold]80 V[/]" in out.getvalue()
+        assert "Range [/]" in out.getvalue()
+
+    def test_command_line_summary_and_listing(self, tmp_path, capsys, monkeypatch):
+        """A serial and a runs folder that look like markup are printed as written by 'run'
+        and 'runs' (exit 0, no internal error)."""
+        from verirun.cli import main
+
+        monkeypatch.setenv("COLUMNS", "400")  # table cells on one line each
+        runs = tmp_path / "[runs]"
+        procedure = tmp_path / "p.yaml"
+        procedure.write_text(PROCEDURE.read_text().split("  - id: dcv-100")[0])
+        code = main(["run", str(procedure), "--bench", str(BENCH), "--readings", str(READINGS), "--simulate",
+                     "--serial", "[/]SN-1[bold]", "--customer", "[red]C", "--lab", str(LAB),
+                     "--runs", str(runs), "--reports", str(tmp_path / "reports")])
+        assert code == 0, capsys.readouterr().err
+        assert f"Run record:  {runs}" in capsys.readouterr().out.replace("\n", "")
+        assert main(["runs", "--runs", str(runs)]) == 0
+        assert "[/]SN-1[bold]" in capsys.readouterr().out.replace("\n", "")

@@ -392,14 +392,17 @@ def _cmd_resume(args) -> int:
 
 
 def _summary(rich, finished) -> None:
+    from rich.text import Text
+
     summary = finished.record["summary"]
-    rich.print(f"\nRun record:  {finished.record_path}")
+    # Paths are printed as they are (a folder may be named "[x]"), never read as markup.
+    rich.print(Text(f"\nRun record:  {finished.record_path}"))
     if finished.certificate is not None:
-        rich.print(f"Certificate: {finished.certificate}")
+        rich.print(Text(f"Certificate: {finished.certificate}"))
     verdict = summary["overall"].upper()
     colour = "green" if summary["overall"] == "pass" else "red"
-    rich.print(f"Overall: [bold {colour}]{verdict}[/] ({summary['pass']} pass, {summary['fail']} fail,"
-               f" {summary['skipped']} skipped of {summary['points']} points)")
+    rich.print(Text.assemble("Overall: ", (verdict, f"bold {colour}"), f" ({summary['pass']} pass,"
+                             f" {summary['fail']} fail, {summary['skipped']} skipped of {summary['points']} points)"))
 
 
 def _cmd_certify(args) -> int:
