@@ -161,6 +161,10 @@ def main(argv: list[str] | None = None) -> int:
     if args.command is None:
         parser.print_help()
         return EXIT_OK
+    problem = _unsafe_option(args)
+    if problem is not None:
+        _err(f"error: {problem}")
+        return EXIT_ERROR
     from verirun.errors import RunAborted, SafetyError, VerirunError
 
     try:
@@ -185,6 +189,17 @@ def main(argv: list[str] | None = None) -> int:
             raise
         _err(f"internal error (a bug in verirun, please report it): {type(exc).__name__}: {exc}")
         return EXIT_BUG
+
+
+def _unsafe_option(args) -> str | None:
+    """The first option whose text holds a control or bidirectional-control character, in words."""
+    from verirun.text import refusal
+
+    for dest, value in vars(args).items():
+        for text in value if isinstance(value, list) else [value]:
+            if isinstance(text, str) and (why := refusal(text)) is not None:
+                return f"--{dest.replace('_', '-')}: {why}"
+    return None
 
 
 def _err(text: str) -> None:

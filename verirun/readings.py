@@ -20,6 +20,7 @@ from verirun.metrology import scales
 from verirun.procedure.load import ResolvedRange
 from verirun.procedure.model import Number, QuantityText, Strict
 from verirun.procedure.plan import TestPoint
+from verirun.text import refusal
 from verirun.units import format_quantity, parse_quantity, parse_value, prefix_for
 
 EntryKind = Literal["reading", "repeat", "skip", "note", "abort", "undo"]
@@ -95,6 +96,8 @@ def parse_entry(typed: str, point: TestPoint) -> Entry:
     """
     if len(typed) > MAX_ENTRY_LENGTH:
         raise UnitError(f"too long: at most {MAX_ENTRY_LENGTH} characters")
+    if (why := refusal(typed)) is not None:
+        raise UnitError(f"the line {why}")
     text = typed.strip()
     word, _, rest = text.partition(" ")
     if word.lower() in COMMANDS:

@@ -10,6 +10,8 @@ from __future__ import annotations
 import re
 from pathlib import Path
 
+from verirun.text import shown
+
 #: Version of the certificate template; recorded in every certificate it renders.
 TEMPLATE_VERSION = "1"
 
@@ -66,10 +68,12 @@ def _generate(record: dict):
         _ENV = _environment()
     template = _ENV.get_template("certificate.html.j2")
     as_found = record.get("as_found")
-    return template.generate(record=record, ranges=_ranges(record["ranges"], record["points"]),
+    # No control or bidirectional-control character reaches a certificate: they are refused
+    # where text comes in, and replaced here should stored data hold some.
+    return map(shown, template.generate(record=record, ranges=_ranges(record["ranges"], record["points"]),
                              as_found_ranges=_ranges(record["ranges"], as_found["points"]) if as_found else [],
                              number=certificate_number(record), replaces=previous_number(record),
-                             template_version=TEMPLATE_VERSION)
+                             template_version=TEMPLATE_VERSION))
 
 
 def _ranges(ranges: list[dict], points: list[dict]) -> list[dict]:
