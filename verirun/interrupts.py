@@ -64,16 +64,9 @@ class deferred_signals:  # noqa: N801 - used as a function: ``with deferred_sign
     only where the clause raises again.
     Outside the main thread (where Python cannot set handlers and no handler would run) the
     block runs as it is.
-
-    The class attribute :attr:`hook`, when set, is called once the handlers are in place at
-    the start of every outermost section: tests send their signals from it, at exactly that
-    moment.
     """
 
     __slots__ = ("_active",)
-
-    #: For tests: called at the start of every outermost section, once the handlers are set.
-    hook = None
 
     def __init__(self) -> None:
         self._active = False
@@ -93,8 +86,6 @@ class deferred_signals:  # noqa: N801 - used as a function: ``with deferred_sign
                 self._active = False
                 raise
         _Held.depth += 1
-        if _Held.depth == 1 and deferred_signals.hook is not None:
-            deferred_signals.hook()
         return self
 
     def __exit__(self, kind, exc, traceback) -> bool:
