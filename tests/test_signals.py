@@ -444,3 +444,27 @@ class TestRealSignalsInAProcess:
         assert len(observed) == len(set(observed))
         assert (run_dir / "record.json").exists() and not list(run_dir.glob("*.tmp"))
         assert "verirun resume" in proc.stderr or where == "close"
+
+    @pytest.mark.parametrize("signum", [signal.SIGINT, signal.SIGTERM])
+    def test_a_signal_while_the_operator_is_at_the_prompt(self, tmp_path, signum):
+        """Ctrl-C or SIGTERM while a reading prompt waits (the console's reader thread alive):
+        the run stops at once with exit 2, the output in standby, and the resume hint."""
+        import os
+        import time
+
+        proc = subprocess.Popen(
+            [sys.executable, "-m", "verirun", "run", str(PROCEDURE), "--bench", str(BENCH), "--simulate",
+             "--serial", "PROMPT", "--customer", "C", "--temperature", "23", "--humidity", "40",
+             "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "reports")],
+            stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+        proc.stdin.write(b"\n")  # the leads are connected
+        proc.stdin.flush()
+        seen, deadline = b"", time.monotonic() + 30
+        while b"reading in V" not in seen and time.monotonic() < deadline:
+            seen += os.read(proc.stdout.fileno(), 4096)
+        proc.send_signal(signum)
+        _, err = proc.communicate(timeout=30)
+        assert proc.returncode == 2, err.decode()
+        assert "standby" in err.decode() and "verirun resume" in err.decode()
+        docs = read_journal(next((tmp_path / "runs").glob("*/journal.jsonl"))).documents
+        assert verify_chain(docs) == [] and docs[-1]["kind"] == "stop"
