@@ -18,6 +18,7 @@ from verirun.bench.config import load_bench, load_bench_text
 from verirun.bench.sim import SIM_RESOURCE, sim_library
 from verirun.clock import VirtualClock
 from verirun.console import Console, LineReader, QuietConsole
+from verirun.documents import validate_document
 from verirun.engine import RunContext
 from verirun.lab import load_lab
 from verirun.errors import RunAborted, UnitError
@@ -206,6 +207,9 @@ class TestSilenceWithTheOutputOn:
                              "stimulus applied again at the operator's request after the standby"]
         assert [d["typed"] for d in docs if d["kind"] == "observation"] == ["2.05", "5", "9.9", "80"]
         assert verify_chain(docs) == []
+        for doc in docs:  # the notes are journal documents of the published kind
+            if doc["kind"] == "note":
+                validate_document(doc)
 
     def test_at_a_hazardous_level_the_confirmation_is_asked_again(self, tmp_path):
         """After a silence standby at a hazardous point, switching on again needs the hazard

@@ -246,3 +246,25 @@ class TestCommandTextsAndReplies:
         """The packaged profile's replies are SCPI booleans meaning what they are listed as."""
         state = load_profile("scpi-generic").output_state
         assert set(state.on_replies) == {"1", "ON"} and set(state.off_replies) == {"0", "OFF"}
+
+
+def test_a_run_with_a_newline_in_a_command_is_refused_before_it_starts(tmp_path, capsys):
+    """A bench whose profile has a line break inside the standby command does not start: exit 1,
+    the profile's file, line and field named, no run folder made."""
+    from pathlib import Path
+
+    from verirun.cli import main
+
+    edge = Path(__file__).resolve().parent.parent / "data" / "edge"
+    profile = tmp_path / "split.yaml"
+    profile.write_text((Path(__file__).resolve().parent.parent.parent / "verirun" / "bench" / "profiles"
+                        / "scpi-generic.yaml").read_text().replace('output-off: "OUTP OFF"',
+                                                                   'output-off: "OUTP OFF\\nOUTP ON"'))
+    bench = tmp_path / "bench.yaml"
+    bench.write_text((edge / "bench.yaml").read_text().replace("profile: scpi-generic", f"profile: {profile}"))
+    code = main(["run", str(edge / "dcv-small.yaml"), "--bench", str(bench), "--readings", str(edge / "readings.csv"),
+                 "--simulate", "--serial", "S", "--customer", "C", "--runs", str(tmp_path / "runs")])
+    err = capsys.readouterr().err
+    assert code == 1, err
+    assert f"{profile}:" in err and "commands.output-off: command text holds a control character (U+000A)" in err
+    assert not (tmp_path / "runs").exists()
