@@ -203,13 +203,20 @@ def _unsafe_option(args) -> str | None:
 
 
 def _err(text: str) -> None:
-    print(text, file=sys.stderr)
+    from verirun.interrupts import deferred_signals
+
+    # Mostly said while a run is stopping: a second Ctrl-C now must not become a traceback.
+    with deferred_signals():
+        print(text, file=sys.stderr)
 
 
 def _resume_hint(exc: BaseException) -> None:
+    from verirun.interrupts import deferred_signals
+
     run_dir = getattr(exc, "run_dir", None)
-    if run_dir is not None and (Path(run_dir) / "journal.jsonl").exists():
-        _err(f"every confirmed reading is kept in {run_dir}; continue with: verirun resume {run_dir}")
+    with deferred_signals():  # said while the run stops, like _err
+        if run_dir is not None and (Path(run_dir) / "journal.jsonl").exists():
+            _err(f"every confirmed reading is kept in {run_dir}; continue with: verirun resume {run_dir}")
 
 
 def _cmd_check(args) -> int:

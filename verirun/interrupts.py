@@ -34,10 +34,7 @@ class _Held:
 
 
 def _note(signum, frame) -> None:
-    if _Held.depth:
-        _Held.noted.append(signum)
-    else:  # between two handlers being set or restored: no section runs, so act now
-        _act(signum, _Held.previous.get(signum), raising=True)
+    _Held.noted.append(signum)
 
 
 def _act(number: int, handler, *, raising: bool) -> None:
@@ -61,9 +58,8 @@ class deferred_signals:  # noqa: N801 - used as a function: ``with deferred_sign
     noted signal whose action would be to raise is dropped: that exception already stops what
     was running and says why, and a second one would hide it. A signal whose handler was the
     operating system's default still ends the process. Use a section inside an ``except`` clause
-    only where the clause raises again.
-    Outside the main thread (where Python cannot set handlers and no handler would run) the
-    block runs as it is.
+    only where the clause raises again. Outside the main thread (where Python cannot set
+    handlers and no handler would run) the block runs as it is.
     """
 
     __slots__ = ("_active",)
@@ -74,30 +70,34 @@ class deferred_signals:  # noqa: N801 - used as a function: ``with deferred_sign
     def __enter__(self) -> "deferred_signals":
         if threading.current_thread() is not threading.main_thread():
             return self
-        self._active = True
         if _Held.depth == 0:
-            _Held.noted = []
-            _Held.previous = {}
+            _Held.noted, _Held.previous = [], {}
+        # Counted before the handlers are set and uncounted only after they are restored, so
+        # that a signal taken by the noting handler at any moment is noted, never lost.
+        _Held.depth += 1
+        if _Held.depth == 1:
             try:
                 for number in DEFERRED:
-                    _Held.previous[number] = signal.signal(number, _note)
-            except BaseException:  # a signal that came before the section began: act as usual
+                    _Held.previous[number] = signal.getsignal(number)
+                    signal.signal(number, _note)
+            except BaseException:  # a signal taken before its handler was set: act as usual
                 _restore()
-                self._active = False
+                _Held.depth = 0
                 raise
-        _Held.depth += 1
+        self._active = True
         return self
 
     def __exit__(self, kind, exc, traceback) -> bool:
         if not self._active:
             return False
         self._active = False
-        _Held.depth -= 1
-        if _Held.depth:
+        if _Held.depth > 1:
+            _Held.depth -= 1
             return False
         previous = dict(_Held.previous)
-        noted, _Held.noted = _Held.noted, []
         _restore()
+        noted, _Held.noted = _Held.noted, []
+        _Held.depth = 0
         in_flight = exc is not None or sys.exc_info()[1] is not None
         for number in noted:
             _act(number, previous.get(number), raising=not in_flight)
@@ -105,7 +105,16 @@ class deferred_signals:  # noqa: N801 - used as a function: ``with deferred_sign
 
 
 def _restore() -> None:
-    """Put back the handlers the section replaced (a signal meanwhile is acted on at once)."""
+    """Put back every handler the section replaced, all of them even if a signal taken
+    meanwhile raises (it is raised once they are back)."""
+    raised = None
     for number, handler in list(_Held.previous.items()):
-        signal.signal(number, signal.SIG_DFL if handler is None else handler)
+        while True:
+            try:
+                signal.signal(number, signal.SIG_DFL if handler is None else handler)
+                break
+            except BaseException as exc:  # from a handler just put back; finish first
+                raised = raised or exc
     _Held.previous = {}
+    if raised is not None:
+        raise raised
