@@ -184,6 +184,47 @@ class TestDeferredSignals:
                     with deferred_signals():
                         worker.send()
 
+    def test_a_signal_taken_the_moment_its_handler_is_set_is_noted(self, monkeypatch):
+        """A signal dispatched right after the noting handler is set (before the section has
+        recorded the handler it replaced) is noted and acted on at the end, with the handler
+        it had before."""
+        import verirun.interrupts as interrupts
+
+        real = signal.signal
+
+        def set_then_take(number, handler):
+            previous = real(number, handler)
+            if number == signal.SIGTERM and handler is interrupts._note:
+                handler(number, None)  # as the interpreter would, at the next instruction
+            return previous
+
+        monkeypatch.setattr(interrupts.signal, "signal", set_then_take)
+        with _sigterm_as_interrupt():
+            with pytest.raises(KeyboardInterrupt, match="SIGTERM"):
+                with deferred_signals():
+                    pass
+
+    def test_every_handler_is_restored_even_if_one_raises_as_it_comes_back(self, monkeypatch):
+        """If a signal taken while the handlers are put back raises, the other handlers are
+        still put back, and its interrupt then propagates."""
+        import verirun.interrupts as interrupts
+
+        before = {number: signal.getsignal(number) for number in interrupts.DEFERRED}
+        real, raised = signal.signal, []
+
+        def restore_then_raise(number, handler):
+            previous = real(number, handler)
+            if handler is not interrupts._note and not raised:
+                raised.append(number)
+                raise KeyboardInterrupt("taken as its handler came back")
+            return previous
+
+        with pytest.raises(KeyboardInterrupt, match="came back"):
+            with deferred_signals():
+                monkeypatch.setattr(interrupts.signal, "signal", restore_then_raise)
+        monkeypatch.undo()
+        assert {number: signal.getsignal(number) for number in before} == before
+
     def test_outside_the_main_thread_the_block_just_runs(self):
         """In another thread (where no handler can be set) the section runs its block as is."""
         ran = []
