@@ -78,8 +78,7 @@ class deferred_signals:  # noqa: N801 - used as a function: ``with deferred_sign
         if _Held.depth == 1:
             try:
                 for number in DEFERRED:
-                    _Held.previous[number] = signal.getsignal(number)
-                    signal.signal(number, _note)
+                    _Held.previous[number] = signal.signal(number, _note)
             except BaseException:  # a signal taken before its handler was set: act as usual
                 _restore()
                 _Held.depth = 0
