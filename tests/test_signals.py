@@ -224,6 +224,8 @@ class TestDeferredSignals:
                 monkeypatch.setattr(interrupts.signal, "signal", restore_then_raise)
         monkeypatch.undo()
         assert {number: signal.getsignal(number) for number in before} == before
+        with deferred_signals():  # and the next section sets its handlers again
+            assert signal.getsignal(signal.SIGTERM) is interrupts._note
 
     def test_outside_the_main_thread_the_block_just_runs(self):
         """In another thread (where no handler can be set) the section runs its block as is."""
@@ -509,3 +511,41 @@ class TestRealSignalsInAProcess:
         assert "standby" in err.decode() and "verirun resume" in err.decode()
         docs = read_journal(next((tmp_path / "runs").glob("*/journal.jsonl"))).documents
         assert verify_chain(docs) == [] and docs[-1]["kind"] == "stop"
+
+
+class TestSignalAfterSilence:
+    def test_a_signal_during_the_silence_standby_stops_the_run(self, tmp_path, worker, device):
+        """A kill request taken while the output goes to standby because the operator was
+        silent is not lost: the standby finishes (device off, last commands the read-back)
+        and the run stops instead of asking to apply the stimulus again."""
+        from rich.console import Console as RichConsole
+
+        from verirun.console import Console
+        from verirun.readings import OperatorSilent
+
+        used, probe = device
+        spy = Spy(used, worker)
+        answers = iter(["", "silent"])
+
+        def typist(prompt):
+            answer = next(answers, None)
+            if answer == "silent":
+                spy.fire_at = _signals(2)  # taken during the standby that follows
+                raise OperatorSilent(300.0)
+            if answer is None:
+                raise AssertionError(f"asked {prompt!r} after the signal")
+            return answer
+
+        import io
+
+        console = Console(RichConsole(file=io.StringIO(), width=200), input_func=typist)
+        with _sigterm_as_interrupt():
+            with pytest.raises(KeyboardInterrupt) as info:
+                execute(procedure=load_procedure(PROCEDURE), bench=load_bench(BENCH), context=_context(),
+                        readings=console, console=console, runs_dir=tmp_path / "runs",
+                        reports_dir=tmp_path / "reports", simulate=True,
+                        clock=VirtualClock(dt.datetime(2026, 12, 1, 9, tzinfo=dt.timezone.utc)),
+                        uid="d" * 32, calibrator=Calibrator(spy, "scpi-generic"))
+        assert spy.sent[-3:] == MAKE_SAFE and probe.query("OUTP?") in ("0", "OFF")
+        docs = read_journal(info.value.run_dir / "journal.jsonl").documents
+        assert verify_chain(docs) == [] and docs[-1]["kind"] == "stop" and docs[-1]["status"] == "aborted"

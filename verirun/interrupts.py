@@ -80,8 +80,10 @@ class deferred_signals:  # noqa: N801 - used as a function: ``with deferred_sign
                 for number in DEFERRED:
                     _Held.previous[number] = signal.signal(number, _note)
             except BaseException:  # a signal taken before its handler was set: act as usual
-                _restore()
-                _Held.depth = 0
+                try:
+                    _restore()
+                finally:
+                    _Held.depth = 0
                 raise
         self._active = True
         return self
@@ -94,9 +96,11 @@ class deferred_signals:  # noqa: N801 - used as a function: ``with deferred_sign
             _Held.depth -= 1
             return False
         previous = dict(_Held.previous)
-        _restore()
-        noted, _Held.noted = _Held.noted, []
-        _Held.depth = 0
+        try:
+            _restore()
+        finally:  # even when a signal taken as its handler came back raises: that one acts
+            noted, _Held.noted = _Held.noted, []
+            _Held.depth = 0
         in_flight = exc is not None or sys.exc_info()[1] is not None
         for number in noted:
             _act(number, previous.get(number), raising=not in_flight)
