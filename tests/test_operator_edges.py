@@ -307,7 +307,7 @@ class TestTextShownAsWritten:
         runs = tmp_path / "[runs]"
         procedure = tmp_path / "p.yaml"
         procedure.write_text(PROCEDURE.read_text().split("  - id: dcv-100")[0])
-        code = main(["run", str(procedure), "--bench", str(BENCH), "--readings", str(READINGS), "--simulate",
+        code = main(["run", str(procedure), "--bench", str(BENCH), "--readings", str(EDGE / "readings-dcv10.csv"), "--simulate",
                      "--serial", "[/]SN-1[bold]", "--customer", "[red]C", "--lab", str(LAB),
                      "--runs", str(runs), "--reports", str(tmp_path / "reports")])
         assert code == 0, capsys.readouterr().err

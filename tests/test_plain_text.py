@@ -30,7 +30,7 @@ FORBIDDEN = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\u202a-\u202e\u2066-
 def short_run_args(tmp_path, *extra):
     procedure = tmp_path / "p.yaml"
     procedure.write_text(PROCEDURE.read_text().split("  - id: dcv-100")[0])
-    return ["run", str(procedure), "--bench", str(BENCH), "--readings", str(READINGS), "--simulate",
+    return ["run", str(procedure), "--bench", str(BENCH), "--readings", str(EDGE / "readings-dcv10.csv"), "--simulate",
             "--lab", str(LAB), "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "reports"), *extra]
 
 
