@@ -10,7 +10,7 @@ from pathlib import Path
 import pytest
 
 from verirun.cli import main
-from verirun.console import QuietConsole, verdict_markup
+from verirun.console import QuietConsole, verdict_text
 from verirun.evaluation import Site, evaluate, shown
 from verirun.metrology import decision, scales, tolerance, uncertainty
 from verirun.metrology.uncertainty import round_uncertainty
@@ -146,7 +146,7 @@ class TestConsoleLines:
         (line,) = console.lines
         assert line.endswith(verdict.replace("-", " ").upper())
         assert "acceptance 10.1 V to 10.1 V" not in line and "fail beyond" in line
-        markup = verdict_markup(verdict)
+        markup = str(verdict_text(verdict).style)
         assert "green" not in markup and "red" not in markup
 
 

@@ -166,6 +166,10 @@ def main(argv: list[str] | None = None) -> int:
     if args.command is None:
         parser.print_help()
         return EXIT_OK
+    problem = _unsafe_option(args)
+    if problem is not None:
+        _err(f"error: {problem}")
+        return EXIT_ERROR
     from verirun.errors import RunAborted, SafetyError, VerirunError
 
     try:
@@ -198,12 +202,27 @@ def main(argv: list[str] | None = None) -> int:
         return EXIT_BUG
 
 
+def _unsafe_option(args) -> str | None:
+    """The first option whose text holds a control or bidirectional-control character, in words."""
+    from verirun.text import refusal
+
+    for dest, value in vars(args).items():
+        for text in value if isinstance(value, list) else [value]:
+            if isinstance(text, str) and (why := refusal(text)) is not None:
+                return f"--{dest.replace('_', '-')}: {why}"
+    return None
+
+
 def _err(text: str) -> None:
-    print(text, file=sys.stderr)
+    from verirun.interrupts import deferred_signals
+
+    # Mostly said while a run is stopping: a second Ctrl-C now must not become a traceback.
+    with deferred_signals():
+        print(text, file=sys.stderr)
 
 
 def _resume_hint(exc: BaseException) -> None:
-    """Say how to go on, only where that can work: the run's journal holds its start."""
+    from verirun.interrupts import deferred_signals
     from verirun.record import read_journal
 
     run_dir = getattr(exc, "run_dir", None)
@@ -216,7 +235,8 @@ def _resume_hint(exc: BaseException) -> None:
     if not docs or docs[0].get("kind") != "start":
         return
     fix = "once that is fixed, " if type(exc).__name__ == "StorageError" or isinstance(exc, OSError) else ""
-    _err(f"every confirmed reading is kept in {run_dir}; {fix}continue with: verirun resume {run_dir}")
+    with deferred_signals():  # said while the run stops, like _err
+        _err(f"every confirmed reading is kept in {run_dir}; {fix}continue with: verirun resume {run_dir}")
 
 
 def _cmd_check(args) -> int:
@@ -514,21 +534,24 @@ def _cmd_resume(args) -> int:
 
 
 def _summary(rich, finished) -> None:
+    from rich.text import Text
+
     from verirun.runrecord import record_judged
 
-    summary = finished.record["summary"]
-    rich.print(f"\nRun record:  {finished.record_path}")
+    # Paths are printed as they are (a folder may be named "[x]"), never read as markup.
+    rich.print(Text(f"\nRun record:  {finished.record_path}"))
     if finished.certificate is not None:
-        rich.print(f"Certificate: {finished.certificate}")
-    from verirun.console import verdict_markup
+        rich.print(Text(f"Certificate: {finished.certificate}"))
+    from verirun.console import verdict_text
     from verirun.metrology.summary import summarise
 
     record = finished.record
     counted = summarise(record_judged(record), record["decision_rule"]["rule"])
-    rich.print(f"Overall: {verdict_markup(counted.overall)} ({counted.counts_text()},"
-               f" {counted.skipped} skipped of {counted.points} points)")
+    rich.print(Text.assemble("Overall: ", verdict_text(counted.overall), f" ({counted.counts_text()},"
+                             f" {counted.skipped} skipped of {counted.points} points)"))
     if counted.guard_band_rejections:
-        rich.print(f"Rejected by the guard band alone (within tolerance): {', '.join(counted.guard_band_rejections)}")
+        rich.print(Text(f"Rejected by the guard band alone (within tolerance):"
+                        f" {', '.join(counted.guard_band_rejections)}"))
 
 
 def _cmd_certify(args) -> int:

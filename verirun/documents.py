@@ -85,12 +85,13 @@ class CalibratorAsRun(Part):
     resource: str = Field(description="its VISA resource string")
     certificate: str = Field(description="the standard's own calibration certificate")
     calibration_due: Date = Field(description="when the standard's calibration is due")
-    traceability: str = Field(description="the traceability statement of the standard")
+    traceability: str | None = Field(description="the traceability statement of the standard"
+                                     " (none if the bench file gives none)")
 
 
 class BenchAsRun(Part):
     id: str = Field(description="the bench's identifier")
-    location: str = Field(description="where the bench is")
+    location: str | None = Field(description="where the bench is (none if the bench file names no place)")
     sha256: Sha256 = Field(description="SHA-256 of the bench file's text")
     source: str = Field(description="where the file was read from")
     text: str = Field(description="the whole bench file, as run")

@@ -17,9 +17,10 @@ from verirun.bench.safety import HazardLimits, is_hazardous, output_guard
 from verirun.clock import SystemClock, iso
 from verirun.errors import BenchError, RunAborted, StorageError, VerirunError
 from verirun.evaluation import evaluate
+from verirun.interrupts import deferred_signals
 from verirun.procedure.load import Procedure
 from verirun.procedure.plan import TestPoint, plan
-from verirun.readings import Entry, ReadingSource
+from verirun.readings import Entry, OperatorSilent, ReadingSource
 from verirun.documents import JOURNAL_FORMAT
 from verirun.record import Journal
 
@@ -195,8 +196,9 @@ class Engine:
         finally:
             if self.journal_started:
                 try:
-                    self.journal.append({"kind": "stop", "time": self._now(), "status": status,
-                                         "reason": reason, "counts": dict(self.counts)})
+                    with deferred_signals():
+                        self.journal.append({"kind": "stop", "time": self._now(), "status": status,
+                                             "reason": reason, "counts": dict(self.counts)})
                 except StorageError:
                     # The disk that refused the run refuses its stop too; without one the run is
                     # resumable, and the error that stopped it is what the operator must see.
@@ -298,15 +300,23 @@ class Engine:
                     self.calibrator.output_on()
                     self.clock.sleep(self.bench.settle_s)
                     self.console.step(point)
-                    entry = self._take(point)
+                    # Silence is an answer, not an exception through the guard: the standby
+                    # then runs as after any answer, and a signal meanwhile still stops the run.
+                    try:
+                        entry = self._take(point)
+                    except OperatorSilent:
+                        entry = None
                     # Journaled before anything else happens, standby included: if the output
                     # cannot be made safe the reading is still kept.
-                    for typed in entry.replaced:
+                    for typed in entry.replaced if entry is not None else ():
                         self.journal.append({"kind": "note", "time": self._now(), "point": self._label(point),
                                              "text": f"reading {typed!r} asked about as far from the nominal"
                                                      f" and not kept; the operator typed {entry.typed!r}"})
-                    if entry.kind in ("reading", "skip", "abort"):
+                    if entry is not None and entry.kind in ("reading", "skip", "abort"):
                         self._journal_entry(point, entry)
+                if entry is None:
+                    self._after_silence(point)  # the guard has put the output in standby
+                    continue
                 if entry.kind == "repeat":
                     self.console.say("  applying the stimulus again")
                     continue
@@ -359,10 +369,32 @@ class Engine:
             self.journal.append({"kind": "note", "time": self._now(), "point": self._label(point),
                                  "text": "operator aborted the run" + (f": {entry.text}" if entry.text else "")})
 
+    def _after_silence(self, point: TestPoint) -> None:
+        """The operator said nothing for the bench's limit and the output went to standby: say
+        so, journal it, and apply the stimulus again only when the operator asks."""
+        limit = f"{self.bench.idle_standby_s:g} s"
+        self.journal.append({"kind": "note", "time": iso(self.clock.now()), "point": point.key,
+                             "text": f"output put in standby: no input from the operator for {limit}"})
+        self.console.say("")
+        self.console.warn(f"nothing was typed for {limit}, so the output was put in standby (read back off)"
+                          f" at {self._step_name(point)}")
+        answer = self.console.ask(f"Press Enter to apply {point.stimulus_text()} again, or type abort to stop: ")
+        if answer.strip().lower() == "abort":
+            raise RunAborted(f"aborted by the operator at {self._step_name(point)} after the output went"
+                             " to standby; the run can be resumed")
+        self.journal.append({"kind": "note", "time": iso(self.clock.now()), "point": point.key,
+                             "text": "stimulus applied again at the operator's request after the standby"})
+
     def _take(self, point: TestPoint) -> Entry:
-        """The next entry that is not a note; notes are journaled as they come."""
+        """The next entry that is not a note; notes are journaled as they come.
+
+        An interactive source is given the bench's silence limit; past it, it raises
+        :class:`OperatorSilent`."""
         while True:
-            entry = self.readings.take(point)
+            if self.readings.interactive:
+                entry = self.readings.take(point, within=self.bench.idle_standby_s)
+            else:
+                entry = self.readings.take(point)
             if entry.kind != "note":
                 return entry
             self.journal.append({"kind": "note", "time": self._now(), "point": self._label(point),

@@ -42,5 +42,5 @@ def ask_conditions(console, *, have: dict) -> dict:
             try:
                 env[key] = parse(console.ask(question))
             except UnitError as exc:
-                console.say(f"  [yellow]{exc}[/]; type it again")
+                console.say(f"  {exc}; type it again")
     return env

@@ -20,6 +20,7 @@ from verirun.metrology import scales
 from verirun.procedure.load import ResolvedRange
 from verirun.procedure.model import Number, QuantityText, Strict
 from verirun.procedure.plan import TestPoint
+from verirun.text import refusal
 from verirun.units import format_quantity, parse_quantity, parse_value, prefix_for, typed_decimal
 
 EntryKind = Literal["reading", "repeat", "skip", "note", "abort", "undo"]
@@ -32,6 +33,14 @@ COMMANDS = {
     "abort": "stop the run now; the output goes to standby and the run can be resumed",
     "undo": "withdraw the last reading (journaled) and measure that step again",
 }
+
+
+#: The longest line accepted at the reading prompt (a note included), in characters.
+MAX_ENTRY_LENGTH = 1000
+
+
+class OperatorSilent(Exception):
+    """Nothing was typed at a prompt within its time limit (``args[0]``, in seconds)."""
 
 
 # Made afresh for every reading and never changed after; not frozen because a frozen
@@ -55,7 +64,11 @@ class ReadingSource(Protocol):
     interactive: bool
 
     def take(self, point: TestPoint) -> Entry:
-        """The reading (or operator command) for ``point``."""
+        """The reading (or operator command) for ``point``.
+
+        An interactive source also takes ``within=`` seconds, and raises
+        :class:`OperatorSilent` when nothing was typed in that time.
+        """
 
 
 def reading_unit(rng) -> tuple[str, float]:
@@ -81,6 +94,10 @@ def parse_entry(typed: str, point: TestPoint) -> Entry:
     UnitError
         With the reason: not a number, decimal comma, wrong unit, or beyond the scale's ends.
     """
+    if len(typed) > MAX_ENTRY_LENGTH:
+        raise UnitError(f"too long: at most {MAX_ENTRY_LENGTH} characters")
+    if (why := refusal(typed)) is not None:
+        raise UnitError(f"the line {why}")
     text = typed.strip()
     word, _, rest = text.partition(" ")
     if word.lower() in COMMANDS:

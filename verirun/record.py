@@ -22,6 +22,7 @@ from typing import Any, Iterable
 from verirun import storage
 from verirun.documents import document_problem, parse_json
 from verirun.errors import RecordError
+from verirun.interrupts import deferred_signals
 
 #: Version of the run record layout. 3: rows say whether the reading lies within tolerance and
 #: carry its coverage interval and every number as printed; U is the reported U (GUM 7.2.6);
@@ -91,12 +92,16 @@ class Journal:
                 os.fsync(fh.fileno())
 
     def append(self, doc: dict) -> dict:
-        """Write ``doc`` as one line with its sequence number and chain hash; fsync; return it."""
+        """Write ``doc`` as one line with its sequence number and chain hash; fsync; return it.
+
+        A critical section (:mod:`verirun.interrupts`): a signal arriving meanwhile acts only once
+        the line is on disk and the chain has moved past it, so no two lines share a number."""
         full = {**doc, "seq": self._seq, "prev": self._prev}
         line = dumps(full)
-        self._write_line(line)
-        self._seq += 1
-        self._prev = line_hash(line)
+        with deferred_signals():
+            self._write_line(line)
+            self._seq += 1
+            self._prev = line_hash(line)
         return full
 
     def _write_line(self, line: str) -> None:

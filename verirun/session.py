@@ -24,6 +24,7 @@ from verirun.certificate.render import write_certificate
 from verirun.clock import SystemClock
 from verirun.engine import Engine, Outcome, RunContext
 from verirun.errors import ProcedureError, RecordError, VerirunError
+from verirun.interrupts import deferred_signals
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.locks import calibrator_lock, run_lock
 from verirun.record import JOURNAL_NAME, RECORD_NAME, Journal, load_record, read_journal, write_record
@@ -165,8 +166,10 @@ def _drive(*, run_dir: Path, procedure, bench, context, readings, console, repor
     outcome = None
     # What the run worked out already, for the record to use instead of working it out again.
     known = Known(procedure=procedure, bench=bench, points=points, results={})
-    try:
-        with _sigterm_as_interrupt():
+    # The signal handlers stay until the record is written (see _finish), and closing is a
+    # critical section: a kill request while the run closes acts once the record is on disk.
+    with _sigterm_as_interrupt():
+        try:
             with contextlib.ExitStack() as held:
                 if own_calibrator:
                     if not simulate:  # one verirun per instrument (a simulated one is the run's own)
@@ -178,24 +181,30 @@ def _drive(*, run_dir: Path, procedure, bench, context, readings, console, repor
                                 results=known.results)
                 outcome = engine.run(context, uid=uid, resume=resume, done=done, points=points,
                                      not_before=not_before, renewed=renewed)
-    except BaseException as exc:
+        except BaseException as exc:
+            exc.run_dir = run_dir  # type: ignore[attr-defined]
+            with deferred_signals():  # a signal now is dropped: the run is ending already
+                journal.close()
+                try:
+                    close_run(run_dir, known=known)
+                except Exception:  # the journal is the truth; a record that cannot be built now can be later
+                    pass
+            raise
         journal.close()
-        try:
-            close_run(run_dir, known=known)
-        except Exception:  # the journal is the truth; a record that cannot be built now can be later
-            pass
-        exc.run_dir = run_dir  # type: ignore[attr-defined]
-        raise
-    journal.close()
-    return _finish(run_dir, reports_dir, known=known, outcome=outcome)
+        return _finish(run_dir, reports_dir, known=known, outcome=outcome)
 
 
 def _finish(run_dir: Path, reports_dir: Path, *, known: Known | None, outcome=None) -> Finished:
-    """Close the journal into the record and render a complete run's certificate."""
+    """Close the journal into the record and render a complete run's certificate.
+
+    Closing holds the signal handlers and is a critical section: a signal arriving while the
+    record is written acts once it is on disk (a resume then renders a missing certificate)."""
     try:
-        record = close_run(run_dir, known=known)
-        complete = record is not None and record["run"]["status"] == "complete"
-        certificate = write_certificate(record, reports_dir) if complete else None
+        with _sigterm_as_interrupt():
+            with deferred_signals():
+                record = close_run(run_dir, known=known)
+            complete = record is not None and record["run"]["status"] == "complete"
+            certificate = write_certificate(record, reports_dir) if complete else None
     except BaseException as exc:
         exc.run_dir = run_dir  # type: ignore[attr-defined]
         raise

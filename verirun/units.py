@@ -44,9 +44,27 @@ DIMENSION_NAMES = {"V": "volts", "A": "amperes", "Ω": "ohms", "Hz": "hertz", "s
                    "deg": "degrees of arc", "%": "percent", "ppm": "parts per million",
                    "": "a plain number"}
 
-_NUMBER = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
-_QUANTITY = re.compile(rf"^\s*(?P<number>{_NUMBER})\s*(?P<unit>[^\s\d.+-][^\s]*)?\s*$")
-_DECIMAL_COMMA = re.compile(r"^\s*[+-]?\d+,\d+")
+#: A number at the start of a text. Matched at one place only and with no quantifier inside
+#: another, so the match takes time in proportion to the text (a pattern spanning spaces,
+#: number and unit at once backtracked over every split of a long run of spaces).
+_NUMBER = re.compile(r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?")
+_DECIMAL_COMMA = re.compile(r"[+-]?\d+,\d")
+
+#: The longest text read as a quantity, in characters; "-1.23456789012e-12 kohm" is 23.
+MAX_QUANTITY_LENGTH = 100
+
+
+def split_quantity(text: str) -> tuple[str, str] | None:
+    """Split ``" 4.7 kΩ "`` into ``("4.7", "kΩ")`` (the unit ``""`` if none); ``None`` when
+    the text is not a number followed by at most one word. Linear in the length of ``text``."""
+    body = text.strip()
+    match = _NUMBER.match(body)
+    if match is None:
+        return None
+    unit = body[match.end():].lstrip()
+    if unit and (unit[0] in ".+-" or unit[0].isdecimal() or any(ch.isspace() for ch in unit)):
+        return None
+    return match.group(), unit
 
 
 def _split_unit(symbol: str) -> tuple[float, str]:
@@ -102,15 +120,18 @@ def parse_quantity(text: str | float | int, expect: str | None = None, *,
     else:
         if not isinstance(text, str):
             raise UnitError(f"expected a number with an optional unit, got {type(text).__name__}")
-        if _DECIMAL_COMMA.match(text):
+        if len(text) > MAX_QUANTITY_LENGTH:
+            raise UnitError(f"too long for a number with a unit ({len(text)} characters, at most"
+                            f" {MAX_QUANTITY_LENGTH})")
+        if _DECIMAL_COMMA.match(text.strip()):
             raise UnitError(f"{text.strip()!r}: use a decimal point, not a comma")
-        match = _QUANTITY.match(text)
-        if match is None:
+        parts = split_quantity(text)
+        if parts is None:
             if not text.strip():
                 raise UnitError("empty: type a number")
             raise UnitError(f"{text.strip()!r} is not a number with an optional unit")
-        value = float(match["number"])
-        symbol = match["unit"]
+        value = float(parts[0])
+        symbol = parts[1]
         if symbol and expect and expect not in _UNPREFIXED and symbol in PREFIXES and symbol not in UNITS:
             value *= PREFIXES[symbol]  # a prefix alone: the expected unit is understood
             dimension = expect
@@ -208,8 +229,8 @@ def typed_decimal(text: str, expect: str, *, bare_factor: float = 1.0) -> tuple[
         If ``text`` is not a quantity in ``expect``.
     """
     parse_quantity(text, expect, bare_factor=bare_factor)  # the reasons for refusing, in one place
-    match = _QUANTITY.match(text)
-    number, symbol = Decimal(match["number"]), match["unit"] or ""
+    number_text, symbol = split_quantity(text)
+    number = Decimal(number_text)
     if not symbol:
         return number, round(math.log10(bare_factor))
     if symbol in UNITS:

@@ -15,6 +15,7 @@ from typing import Any, TypeVar
 import yaml
 
 from verirun.errors import ProcedureError
+from verirun.text import LAYOUT, refusal
 
 Path_ = tuple[Any, ...]
 M = TypeVar("M")
@@ -123,6 +124,8 @@ def _walk(node: yaml.Node, path: Path_, lines: dict[Path_, int], problems: list[
         if _has_surrogate(node.value):
             problems.append((path, node.start_mark.line + 1, "holds a character that is not valid text"
                              " (a lone surrogate); write the text again"))
+        elif (why := refusal(node.value, allow=LAYOUT)) is not None:
+            problems.append((path, node.start_mark.line + 1, why))
         return
     ancestors = ancestors | {id(node)}
     if isinstance(node, yaml.MappingNode):
@@ -136,6 +139,8 @@ def _walk(node: yaml.Node, path: Path_, lines: dict[Path_, int], problems: list[
                 continue
             seen[key] = line
             lines[path + (key,)] = line
+            if isinstance(key, str) and not _has_surrogate(key) and (why := refusal(key)) is not None:
+                problems.append((path + (key,), line, f"the key {why}"))
             _walk(value_node, path + (key,), lines, problems, ancestors, count)
     elif isinstance(node, yaml.SequenceNode):
         for index, item in enumerate(node.value):

@@ -195,3 +195,76 @@ class TestSourceCommands:
         assert profile.source_commands("dc-voltage", 10.0)[-1] == "VOLT 10.0"
         with pytest.raises(BenchError, match="above the calibrator limit 10.0 V"):
             profile.source_commands("dc-voltage", math.nextafter(10.0, math.inf))
+
+
+class TestCommandTextsAndReplies:
+    @pytest.mark.parametrize("command, code", [
+        ('"OUTP OFF\\nOUTP ON"', "U+000A"),  # a line break: two commands on a link that splits at newlines
+        ('"OUTP OFF\\rOUTP ON"', "U+000D"),
+        ('"OUTP OFF\\x00"', "U+0000"),
+        ('"OUTP\\tOFF"', "U+0009"),
+        ('"OUTP OFF\\u202e"', "U+202E"),
+    ])
+    def test_control_characters_in_a_command_are_refused(self, tmp_path, command, code):
+        """A fixed command holding a control character is refused at its line and field."""
+        found = problems(tmp_path, GOOD.replace('output-off: "OUTP OFF"', f"output-off: {command}"))
+        assert len(found) == 1 and found[0].startswith("FILE:12: commands.output-off: ")
+        assert code in found[0]
+
+    def test_control_character_in_a_template_is_refused(self, tmp_path):
+        """A level template with a line break inside is refused."""
+        found = problems(tmp_path, GOOD.replace('"VOLT {value}", min: -10.0', '"VOLT {value}\\nOUTP ON", min: -10.0'))
+        assert len(found) == 1 and found[0].startswith("FILE:22: functions.dc-voltage.level.command: ")
+        assert "U+000A" in found[0]
+
+    def test_control_character_in_a_reply_is_refused(self, tmp_path):
+        """A reply with a control character could never match the stripped answer: refused."""
+        found = problems(tmp_path, GOOD.replace('off-replies: ["0"]', 'off-replies: ["0\\u0007"]'))
+        assert len(found) == 1 and "output-state.off-replies[" in found[0] and "U+0007" in found[0]
+
+    @pytest.mark.parametrize("on, off", [('["1", "ON"]', '["0", "on"]'), ('["On"]', '["0", "oN"]')])
+    def test_replies_overlapping_in_another_case_are_refused(self, tmp_path, on, off):
+        """On and off replies that differ only in case are listed as both."""
+        text = GOOD.replace('on-replies: ["1"]', f"on-replies: {on}").replace('off-replies: ["0"]', f"off-replies: {off}")
+        found = problems(tmp_path, text)
+        assert len(found) == 1 and "listed as meaning both on and off" in found[0]
+
+    @pytest.mark.parametrize("on, off, reply", [
+        ('["1"]', '["0", "ON"]', "'ON'"),  # SCPI-99 vol. 1, 7.3: ON means on
+        ('["1"]', '["0", "+1"]', "'+1'"),  # a non-zero number means on
+        ('["1", "OFF"]', '["0"]', "'OFF'"),
+        ('["1", "0.0"]', '["0"]', "'0.0'"),
+    ])
+    def test_replies_meaning_the_opposite_as_scpi_booleans_are_refused(self, tmp_path, on, off, reply):
+        """An off reply that SCPI boolean data reads as on (ON, a non-zero number), or an on reply
+        it reads as off, is refused (SCPI-99 vol. 1, 7.3 Boolean program data)."""
+        text = GOOD.replace('on-replies: ["1"]', f"on-replies: {on}").replace('off-replies: ["0"]', f"off-replies: {off}")
+        found = problems(tmp_path, text)
+        assert len(found) == 1 and found[0].startswith("FILE:13: output-state: ") and reply in found[0]
+
+    def test_packaged_profile_replies_are_consistent(self):
+        """The packaged profile's replies are SCPI booleans meaning what they are listed as."""
+        state = load_profile("scpi-generic").output_state
+        assert set(state.on_replies) == {"1", "ON"} and set(state.off_replies) == {"0", "OFF"}
+
+
+def test_a_run_with_a_newline_in_a_command_is_refused_before_it_starts(tmp_path, capsys):
+    """A bench whose profile has a line break inside the standby command does not start: exit 1,
+    the profile's file, line and field named, no run folder made."""
+    from pathlib import Path
+
+    from verirun.cli import main
+
+    edge = Path(__file__).resolve().parent.parent / "data" / "edge"
+    profile = tmp_path / "split.yaml"
+    profile.write_text((Path(__file__).resolve().parent.parent.parent / "verirun" / "bench" / "profiles"
+                        / "scpi-generic.yaml").read_text().replace('output-off: "OUTP OFF"',
+                                                                   'output-off: "OUTP OFF\\nOUTP ON"'))
+    bench = tmp_path / "bench.yaml"
+    bench.write_text((edge / "bench.yaml").read_text().replace("profile: scpi-generic", f"profile: {profile}"))
+    code = main(["run", str(edge / "dcv-small.yaml"), "--bench", str(bench), "--readings", str(edge / "readings.csv"),
+                 "--simulate", "--serial", "S", "--customer", "C", "--runs", str(tmp_path / "runs")])
+    err = capsys.readouterr().err
+    assert code == 1, err
+    assert f"{profile}:" in err and "commands.output-off: command text holds a control character (U+000A)" in err
+    assert not (tmp_path / "runs").exists()

@@ -25,6 +25,13 @@ FORMAT = 1
 #: past these, so the operator's confirmation cannot be switched off by configuration.
 MAX_THRESHOLDS = {"hazardous-dc": 70.0, "hazardous-ac-rms": 33.0, "hazardous-ac-peak": 46.7}
 
+#: The longest settling wait and instrument timeout a bench may set, in seconds: an hour, and
+#: ten minutes (a longer wait is a mistake, and an enormous one cannot be slept at all).
+MAX_SETTLE_S, MAX_TIMEOUT_S = 3600.0, 600.0
+#: How long the operator may be silent at a reading prompt, with the output on, before it goes
+#: to standby (``safety: idle-standby``): between a second and an hour.
+MIN_IDLE_S, MAX_IDLE_S = 1.0, 3600.0
+
 
 class BenchInfo(Strict):
     """Where the work is done."""
@@ -86,6 +93,7 @@ class SafetyInfo(Strict):
     hazardous_ac_rms: QuantityText = "30 V"
     hazardous_ac_peak: QuantityText = "42.4 V"
     scripted_hazardous: Literal["refuse", "allow"] = "refuse"
+    idle_standby: QuantityText = "300 s"
 
 
 class BenchFile(Strict):
@@ -131,6 +139,8 @@ class Bench:
     accuracy: tuple[SpecLine, ...] = ()
     #: (up to this resistance, the most current accepted), lowest resistance first.
     resistance_current: tuple[tuple[float, float], ...] = ()
+    #: Seconds the operator may stay silent at a reading prompt before the output goes to standby.
+    idle_standby_s: float = 300.0
 
     def current_limit(self, resistance: float) -> float | None:
         """The most current the resistance output accepts at ``resistance`` (``None``: not given)."""
@@ -209,6 +219,15 @@ def _resolve(located: yamlfile.LocatedData) -> Bench:
             limits.append((up_to, most))
     if timeout < 0.001 and not problems:
         problems.append(located.problem(("calibrator", "timeout"), "must be at least 1 ms"))
+    idle = quantity(("safety", "idle-standby"), model.safety.idle_standby, "s")
+    for loc, value, low, high in ((("settle",), settle, 0.0, MAX_SETTLE_S),
+                                  (("calibrator", "timeout"), timeout, 0.0, MAX_TIMEOUT_S),
+                                  (("safety", "idle-standby"), idle, MIN_IDLE_S, MAX_IDLE_S)):
+        if not low <= value <= high and not any(".".join(loc) in p for p in problems):
+            problems.append(located.problem(loc, f"{value:g} s is outside {low:g} s to {high:g} s"))
+    if not model.calibrator.identity.strip():
+        problems.append(located.problem(("calibrator", "identity"), "is empty, which any instrument would"
+                                        " match; give the start of the calibrator's *IDN? answer"))
     for key, value in (("hazardous-dc", dc), ("hazardous-ac-rms", rms), ("hazardous-ac-peak", peak)):
         if any(f"safety.{key}" in p for p in problems):
             continue
@@ -222,7 +241,7 @@ def _resolve(located: yamlfile.LocatedData) -> Bench:
         raise ProcedureError(problems)
     return Bench(file=model, text=located.text, source=located.source, settle_s=settle,
                  timeout_s=timeout, hazardous_dc=dc, hazardous_ac_rms=rms, hazardous_ac_peak=peak,
-                 accuracy=tuple(accuracy), resistance_current=tuple(sorted(limits)))
+                 accuracy=tuple(accuracy), resistance_current=tuple(sorted(limits)), idle_standby_s=idle)
 
 
 def _quantity(located, problems: list[str], loc: tuple, text, unit: str) -> float:

@@ -19,6 +19,7 @@ from pydantic import AfterValidator, BaseModel, BeforeValidator, ConfigDict, Fie
 
 from verirun import yamlfile
 from verirun.errors import BenchError, ProcedureError
+from verirun.text import refusal
 
 #: Profile format this verirun reads; a newer file is refused rather than half-understood.
 PROFILE_FORMAT = 1
@@ -37,6 +38,12 @@ def _text(value: Any) -> Any:
         raise ValueError(f"expected command text, got {value!r}")
     if not value.strip():
         raise ValueError("must not be empty")
+    # Sent as one message: a line break inside would reach the instrument as two commands.
+    if (why := refusal(value)) is not None:
+        raise ValueError(f"command text {why}")
+    if value != value.strip():
+        raise ValueError(f"{value!r} starts or ends with spaces, which the link or the instrument may"
+                         " drop; write the text without them")
     return value
 
 
@@ -140,10 +147,32 @@ class OutputState(_Frozen):
         # Checked here, not with min_length, so a bad item is not also reported as a missing one.
         if not (self.on_replies and self.off_replies):
             raise ValueError("list at least one reply meaning on and one meaning off")
-        both = sorted(set(self.on_replies) & set(self.off_replies))
+        # Compared without regard to case: an instrument that answers "on" where "ON" was
+        # expected must not be read as off.
+        on = {reply.casefold() for reply in self.on_replies}
+        both = sorted(reply for reply in self.off_replies if reply.casefold() in on)
         if both:
             raise ValueError(f"replies {both} are listed as meaning both on and off")
+        wrong = [(reply, "off", "on") for reply in self.off_replies if _scpi_boolean(reply) is True]
+        wrong += [(reply, "on", "off") for reply in self.on_replies if _scpi_boolean(reply) is False]
+        if wrong:
+            reply, listed, means = wrong[0]
+            raise ValueError(f"reply {reply!r} is listed as meaning {listed}, but as SCPI boolean data"
+                             f" (ON, OFF or a number) it means {means}")
         return self
+
+
+def _scpi_boolean(reply: str) -> bool | None:
+    """What ``reply`` means as SCPI boolean data (SCPI-99 vol. 1, 7.3: ON and OFF, or a number,
+    non-zero meaning on), or ``None`` if it is not boolean data."""
+    word = reply.strip().upper()
+    if word in ("ON", "OFF"):
+        return word == "ON"
+    try:
+        number = float(word)
+    except ValueError:
+        return None
+    return None if math.isnan(number) else round(number) != 0
 
 
 class ErrorQueue(_Frozen):

@@ -8,12 +8,12 @@ the operator is told to switch it off by hand.
 from __future__ import annotations
 
 import math
-import signal
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 from verirun.bench.profile import FUNCTIONS
 from verirun.errors import BenchError, SafetyError
+from verirun.interrupts import deferred_signals
 
 if TYPE_CHECKING:
     from verirun.bench.calibrator import Calibrator
@@ -61,43 +61,16 @@ class output_guard:  # noqa: N801 - used as a function: ``with output_guard(cal)
         return False
 
 
-#: Signals held back while the output is being made safe: Ctrl-C, a kill request, a lost
-#: terminal. They are delivered as soon as standby has been sent and read back.
-_DEFERRED = tuple(getattr(signal, name) for name in ("SIGINT", "SIGTERM", "SIGHUP", "SIGQUIT")
-                  if hasattr(signal, name))
-
-try:
-    # The C function itself: signal.pthread_sigmask wraps it only to turn the numbers it
-    # returns into enum members, which costs more than the call and is not needed here.
-    from _signal import pthread_sigmask as _sigmask
-except ImportError:  # another Python, or a platform that cannot hold signals back
-    _sigmask = getattr(signal, "pthread_sigmask", None)
-
-
 def _make_safe(calibrator: "Calibrator") -> None:
-    """Standby and read-back with interrupting signals held back (where the OS allows it).
+    """Standby and read-back as one critical section (see :mod:`verirun.interrupts`).
 
     A signal arriving now must not cut the standby or its read-back short: that would leave the
-    output state unknown when it could have been made known. A signal held back is delivered
-    when this ends; if it ends in a SafetyError, the interrupt it would raise is dropped so that
-    the operator still reads why the output state is unknown (the run stops either way).
+    output state unknown when it could have been made known. A signal noted meanwhile acts when
+    the read-back is done; if that ends in a SafetyError, the interrupt it would raise is dropped
+    so that the operator still reads why the output state is unknown (the run stops either way).
     """
-    if _sigmask is None:
+    with deferred_signals():
         _standby_and_check(calibrator)
-        return
-    previous = _sigmask(signal.SIG_BLOCK, _DEFERRED)
-    try:
-        _standby_and_check(calibrator)
-    except SafetyError:
-        try:
-            _sigmask(signal.SIG_SETMASK, previous)
-        except KeyboardInterrupt:
-            pass
-        raise
-    except BaseException:
-        _sigmask(signal.SIG_SETMASK, previous)
-        raise
-    _sigmask(signal.SIG_SETMASK, previous)
 
 
 def _standby_and_check(calibrator: "Calibrator") -> None:

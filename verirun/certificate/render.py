@@ -12,6 +12,8 @@ import os
 import re
 from pathlib import Path
 
+from verirun.text import shown
+
 #: Version of the certificate template; recorded in every certificate it renders.
 TEMPLATE_VERSION = "2"
 
@@ -71,11 +73,14 @@ def _generate(record: dict):
         _ENV = _environment()
     template = _ENV.get_template("certificate.html.j2")
     as_found = record.get("as_found")
-    return template.generate(record=record, ranges=_ranges(record["ranges"], record["points"]),
-                             summary=conformity(record),
-                             as_found_ranges=_ranges(record["ranges"], as_found["points"]) if as_found else [],
-                             number=certificate_number(record), replaces=previous_number(record),
-                             template_version=TEMPLATE_VERSION)
+    # No control or bidirectional-control character reaches a certificate: they are refused
+    # where text comes in, and replaced here should stored data hold some.
+    return map(shown, template.generate(
+        record=record, ranges=_ranges(record["ranges"], record["points"]),
+        summary=conformity(record),
+        as_found_ranges=_ranges(record["ranges"], as_found["points"]) if as_found else [],
+        number=certificate_number(record), replaces=previous_number(record),
+        template_version=TEMPLATE_VERSION))
 
 
 def conformity(record: dict):

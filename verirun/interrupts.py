@@ -1,0 +1,123 @@
+"""Critical sections that a Ctrl-C or a kill request cannot cut in half.
+
+Some short stretches of work must finish once begun: switching the output to standby and reading
+it back, appending one line to the journal and fsyncing it, writing the run record. While one runs
+inside :class:`deferred_signals`, the interrupting signals (Ctrl-C, a kill request, a lost
+terminal) are only noted; when the outermost section ends, the previous handlers are back and the
+first signal noted is acted on as it would have been (usually by raising ``KeyboardInterrupt``).
+
+Python runs every signal handler in the main thread, whichever thread of the process the
+operating system delivered the signal to, so this holds however many threads the process has
+(a numerical library's worker, a console reader). Holding signals back at the operating-system
+level does not: it holds them only for the thread that asks, and the process's other threads
+still take them.
+"""
+
+from __future__ import annotations
+
+import os
+import signal
+import sys
+import threading
+
+#: The signals a critical section defers: Ctrl-C, a kill request, a lost terminal, a quit key.
+DEFERRED = tuple(getattr(signal, name) for name in ("SIGINT", "SIGTERM", "SIGHUP", "SIGQUIT")
+                 if hasattr(signal, name))
+
+
+class _Held:
+    """The one state of the process's critical sections (only the main thread touches it)."""
+
+    depth = 0
+    noted: list[int] = []
+    previous: dict[int, object] = {}
+
+
+def _note(signum, frame) -> None:
+    _Held.noted.append(signum)
+
+
+def _act(number: int, handler, *, raising: bool) -> None:
+    """Do what ``handler`` (the one the signal had before the section) would have done."""
+    if handler == signal.SIG_DFL or handler is None:
+        # The default action (usually the end of the process), with the default handler back;
+        # ``None`` is a handler set outside Python, and the default is the nearest to it.
+        signal.signal(number, signal.SIG_DFL)
+        os.kill(os.getpid(), number)
+    elif callable(handler) and raising:
+        handler(number, None)
+
+
+class deferred_signals:  # noqa: N801 - used as a function: ``with deferred_signals():``
+    """Run the block with interrupting signals noted, and act on them once it has ended.
+
+    Nestable: only the outermost section installs and restores handlers, and acts. Of several
+    signals noted in one section the first is acted on; if its handler returns instead of
+    raising, the next is, and so on. When the block itself raised, or the section runs while an
+    exception is on its way out (in an ``except`` or ``finally`` clause, or a guard's exit), a
+    noted signal whose action would be to raise is dropped: that exception already stops what
+    was running and says why, and a second one would hide it. A signal whose handler was the
+    operating system's default still ends the process. Use a section inside an ``except`` clause
+    only where the clause raises again. Outside the main thread (where Python cannot set
+    handlers and no handler would run) the block runs as it is.
+    """
+
+    __slots__ = ("_active",)
+
+    def __init__(self) -> None:
+        self._active = False
+
+    def __enter__(self) -> "deferred_signals":
+        if threading.current_thread() is not threading.main_thread():
+            return self
+        if _Held.depth == 0:
+            _Held.noted, _Held.previous = [], {}
+        # Counted before the handlers are set and uncounted only after they are restored, so
+        # that a signal taken by the noting handler at any moment is noted, never lost.
+        _Held.depth += 1
+        if _Held.depth == 1:
+            try:
+                for number in DEFERRED:
+                    _Held.previous[number] = signal.signal(number, _note)
+            except BaseException:  # a signal taken before its handler was set: act as usual
+                try:
+                    _restore()
+                finally:
+                    _Held.depth = 0
+                raise
+        self._active = True
+        return self
+
+    def __exit__(self, kind, exc, traceback) -> bool:
+        if not self._active:
+            return False
+        self._active = False
+        if _Held.depth > 1:
+            _Held.depth -= 1
+            return False
+        previous = dict(_Held.previous)
+        try:
+            _restore()
+        finally:  # even when a signal taken as its handler came back raises: that one acts
+            noted, _Held.noted = _Held.noted, []
+            _Held.depth = 0
+        in_flight = exc is not None or sys.exc_info()[1] is not None
+        for number in noted:
+            _act(number, previous.get(number), raising=not in_flight)
+        return False
+
+
+def _restore() -> None:
+    """Put back every handler the section replaced, all of them even if a signal taken
+    meanwhile raises (it is raised once they are back)."""
+    raised = None
+    for number, handler in list(_Held.previous.items()):
+        while True:
+            try:
+                signal.signal(number, signal.SIG_DFL if handler is None else handler)
+                break
+            except BaseException as exc:  # from a handler just put back; finish first
+                raised = raised or exc
+    _Held.previous = {}
+    if raised is not None:
+        raise raised
