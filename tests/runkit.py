@@ -69,6 +69,8 @@ _DIE_AT = textwrap.dedent("""
     append, write_atomic = record.Journal.append, storage.write_atomic
 
     def dying_append(self, doc):
+        if moment == "before-start" and doc["kind"] == "start":
+            os._exit(137)
         if moment == "before-stop" and doc["kind"] == "stop":
             os._exit(137)
         full = append(self, doc)

@@ -200,6 +200,61 @@ class TestStoppedBeforeTheStart:
         assert not (tmp_path / "runs").exists() or not list((tmp_path / "runs").iterdir())
 
 
+class TestKilledBeforeItStarted:
+    """A process killed after it made the run's folder and before the start document reached
+    the journal leaves a folder in which nothing was measured. It is named for what it is by
+    verify and resume (no "does not begin with a start document"), and the next run in that
+    runs folder removes it once it is a minute old, unless a process holds its lock."""
+
+    def killed(self, tmp_path):
+        proc = run_until_death(run_args(tmp_path), "before-start")
+        assert proc.returncode == 137, proc.stderr
+        return only_run(tmp_path / "runs")
+
+    def test_verify_and_resume_say_it_never_started(self, tmp_path, capsys):
+        run_dir = self.killed(tmp_path)
+        capsys.readouterr()
+        assert cli("verify", run_dir) == 1
+        out = capsys.readouterr().out
+        assert "never started" in out and "nothing was measured" in out and "start document" not in out
+        assert cli("resume", run_dir, "--readings", readings_file(tmp_path, [])) == 1
+        err = capsys.readouterr().err
+        assert "never started" in err and "Traceback" not in err
+
+    def age(self, folder, seconds=120):
+        import os
+        import time
+
+        then = time.time() - seconds
+        os.utime(folder, (then, then))
+
+    def test_the_next_run_removes_it_once_it_is_a_minute_old(self, tmp_path):
+        stale = self.killed(tmp_path)
+        self.age(stale)
+        assert cli(*run_args(tmp_path)) == 0
+        assert not stale.exists()
+        assert len(list((tmp_path / "runs").iterdir())) == 1
+
+    def test_a_recent_one_a_locked_one_and_other_folders_stay(self, tmp_path):
+        from verirun.locks import run_lock
+
+        recent = self.killed(tmp_path)
+        locked = tmp_path / "runs" / "20261201-090000-LOCKED-0123abcd"
+        locked.mkdir()
+        self.age(locked)
+        other = tmp_path / "runs" / "20261201-090000-NOTES-0123abcd"
+        other.mkdir()
+        (other / "notes.txt").write_text("the technician's own file")
+        self.age(other)
+        unnamed = tmp_path / "runs" / "scratch"
+        unnamed.mkdir()
+        self.age(unnamed)
+        with run_lock(locked):
+            assert cli(*run_args(tmp_path)) == 0
+        assert recent.exists() and locked.exists() and other.exists() and unnamed.exists()
+        assert (other / "notes.txt").exists()
+
+
 def test_close_keeps_working_from_a_copy(tmp_path):
     """A closed run's folder copied elsewhere still verifies (nothing in it depends on its path)."""
     assert cli(*run_args(tmp_path)) == 0

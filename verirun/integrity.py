@@ -106,10 +106,16 @@ def _certificates_of(start: dict, reports: Path) -> list[Path]:
 def problems(path: str | Path, reports: str | Path | None = None) -> list[str]:
     """Every integrity problem of the stored run at ``path`` (empty when it verifies); with
     ``reports``, its certificates there are checked against its journal as well."""
+    from verirun.session import never_started, never_started_text
+
     try:
         folder = run_folder(path)
     except RecordError as exc:
+        if never_started(Path(path)):
+            return [never_started_text(Path(path))]
         return [str(exc)]
+    if never_started(folder):
+        return [never_started_text(folder)]
     journal_path = folder / JOURNAL_NAME
     try:
         read = read_journal(journal_path)

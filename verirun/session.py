@@ -11,6 +11,7 @@ import dataclasses
 import re
 import shutil
 import signal
+import time
 import uuid as uuid_mod
 from dataclasses import dataclass
 from importlib.resources import as_file, files
@@ -26,7 +27,7 @@ from verirun.engine import Engine, Outcome, RunContext
 from verirun.errors import ProcedureError, RecordError, VerirunError
 from verirun.interrupts import deferred_signals
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
-from verirun.locks import calibrator_lock, run_lock
+from verirun.locks import RUN_LOCK_NAME, calibrator_lock, run_lock
 from verirun.record import JOURNAL_NAME, RECORD_NAME, Journal, load_record, read_journal, write_record
 from verirun.runrecord import Known, build_record
 
@@ -46,6 +47,58 @@ def run_folder_name(serial: str, uid: str, started) -> str:
     """The run's folder name: item serial, date and the start of its uid, made file-safe."""
     slug = re.sub(r"[^A-Za-z0-9_-]+", "-", serial).strip("-")[:40] or "item"
     return f"{started:%Y%m%d-%H%M%S}-{slug}-{uid[:8]}"
+
+
+_RUN_FOLDER = re.compile(r"\d{8}-\d{6}-[A-Za-z0-9_-]{1,40}-[0-9a-f]{8}")
+#: What a run folder holds before its start document is journaled.
+_BEFORE_START = {JOURNAL_NAME, RUN_LOCK_NAME, "simulated-calibrator"}
+#: How old a folder that never started must be before a new run removes it: a process that is
+#: only now making its own takes that folder's lock within milliseconds.
+_STALE_S = 60.0
+
+
+def never_started_text(folder: Path) -> str:
+    """What to tell the operator of a folder that :func:`never_started`."""
+    return (f"{folder}: this run never started (the process ended before its start was journaled):"
+            " nothing was measured and there is nothing to resume or verify; the next run in"
+            f" {folder.parent} removes the folder, or remove it by hand")
+
+
+def never_started(folder: Path) -> bool:
+    """Whether ``folder`` was made for a run by a process that ended (killed, or signalled
+    before verirun could act) before the run's start document was journaled.
+
+    Such a folder has a run folder's name, holds nothing but what a run makes before its start
+    (the lock, the simulated calibrator's file) and a journal that is missing or holds no whole
+    line: nothing was measured in it, and no resume can continue it."""
+    folder = Path(folder)
+    if not _RUN_FOLDER.fullmatch(folder.name) or folder.is_symlink() or not folder.is_dir():
+        return False
+    try:
+        if not {entry.name for entry in folder.iterdir()} <= _BEFORE_START:
+            return False
+        journal = folder / JOURNAL_NAME
+        return not journal.exists() or b"\n" not in journal.read_bytes()
+    except OSError:
+        return False
+
+
+def _remove_never_started(runs_dir: Path, now: float) -> None:
+    """Remove the folders under ``runs_dir`` that never started (see :func:`never_started`),
+    older than a minute and whose lock no process holds."""
+    try:
+        folders = [p for p in Path(runs_dir).iterdir() if never_started(p)]
+    except OSError:
+        return
+    for folder in folders:
+        try:
+            if now - folder.stat().st_mtime < _STALE_S:
+                continue
+            with run_lock(folder):
+                if never_started(folder):
+                    shutil.rmtree(folder)
+        except (VerirunError, OSError):  # in use, or not ours to remove: it stays as it is
+            continue
 
 
 @contextlib.contextmanager
@@ -128,6 +181,8 @@ def execute(*, procedure: Procedure, bench: Bench, context: RunContext, readings
     check_readings(readings, points)
     preflight.check(points, bench, profile, today=clock.now().date())
     storage.make_folder(runs_dir)
+    # Folders left by runs killed before they started are removed: nothing was measured there.
+    _remove_never_started(Path(runs_dir), time.time())
     run_dir = Path(runs_dir) / run_folder_name(context.item.get("serial", "item"), uid, clock.now())
     storage.make_folder(run_dir, exist_ok=False)
     try:
@@ -243,6 +298,8 @@ def resumable(run_dir: Path) -> Resumable:
         If the folder holds no journal that starts a run.
     """
     run_dir = Path(run_dir)
+    if never_started(run_dir):
+        raise RecordError(never_started_text(run_dir))
     docs = read_journal(run_dir / JOURNAL_NAME).documents
     if not docs or docs[0].get("kind") != "start":
         raise RecordError(f"{run_dir}: the journal has no start document; nothing to resume")
