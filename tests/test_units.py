@@ -73,3 +73,22 @@ class TestFormatQuantity:
     def test_no_exponent_form(self):
         """Few significant digits never turn into exponent form."""
         assert format_quantity(320.0, "Ω", 2) == "320 Ω"
+
+
+class TestFunctionsTable:
+    def test_the_literal_names_are_the_table(self):
+        """The names a model accepts are exactly the functions of the one table."""
+        from typing import get_args
+
+        from verirun.functions import FUNCTIONS, FunctionName
+
+        assert set(get_args(FunctionName)) == set(FUNCTIONS)
+
+    def test_units_and_alternation(self):
+        """Volt and ampere for the voltage and current functions, ohm for resistance (SI
+        Brochure, 9th ed., tables 2 and 4); AC functions are the alternating ones."""
+        from verirun.functions import FUNCTIONS
+
+        assert {n: (f.unit, f.alternating) for n, f in FUNCTIONS.items()} == {
+            "dc-voltage": ("V", False), "dc-current": ("A", False), "ac-voltage": ("V", True),
+            "ac-current": ("A", True), "resistance": ("Ω", False)}

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from pathlib import Path
 
 from verirun.bench.config import Bench, load_bench_text
 from verirun.errors import ProcedureError, RecordError
@@ -18,7 +17,7 @@ from verirun.metrology.exact import as_written
 from verirun.metrology.summary import Judged, Summary, summarise
 from verirun.procedure.load import Procedure, load_procedure_text
 from verirun.procedure.plan import TestPoint, plan
-from verirun.procedure.model import FUNCTION_NAMES
+from verirun.functions import words_for
 from verirun.record import RECORD_FORMAT, dumps, json_number, line_hash, verify_chain
 
 
@@ -147,7 +146,7 @@ def summary_document(summary: Summary) -> dict:
 
 
 def _range(rng) -> dict:
-    return {"id": rng.id, "function": rng.function, "function_name": FUNCTION_NAMES[rng.function],
+    return {"id": rng.id, "function": rng.function, "function_name": words_for(rng.function),
             "unit": rng.unit, "scale": rng.law.name,
             "full_scale": rng.full_scale, "centre": getattr(rng.law, "centre", None), "arc": rng.arc,
             "accuracy": [b.text for b in rng.bands], "read_on": rng.read_on}

@@ -14,7 +14,8 @@ from pydantic import Field, StrictStr
 from verirun import yamlfile
 from verirun.errors import ProcedureError, UnitError
 from verirun.metrology.uncertainty import CalibratorSpec
-from verirun.procedure.model import FUNCTION_UNITS, QuantityText, Strict
+from verirun.functions import FunctionName, is_alternating, unit_of
+from verirun.procedure.model import QuantityText, Strict
 from verirun.units import in_band, parse_quantity, parse_value
 
 #: The bench format version this verirun reads.
@@ -48,7 +49,7 @@ class AccuracyLine(Strict):
     with no stated level. For AC, ``from`` and ``to`` give the frequency band it holds for.
     """
 
-    function: Literal["dc-voltage", "dc-current", "ac-voltage", "ac-current", "resistance"]
+    function: FunctionName
     range: QuantityText
     output: QuantityText = 0
     of_range: QuantityText = 0
@@ -258,7 +259,7 @@ def _quantity(located, problems: list[str], loc: tuple, text, unit: str) -> floa
 
 def _spec_line(located, loc: tuple, line: AccuracyLine, problems: list[str]) -> SpecLine | None:
     """One accuracy line resolved, or ``None`` with its problems noted."""
-    unit = FUNCTION_UNITS[line.function]
+    unit = unit_of(line.function)
     before = len(problems)
     rng = _quantity(located, problems, loc + ("range",), line.range, unit)
     output = _ppm(located, loc + ("output",), line.output, problems)
@@ -267,7 +268,7 @@ def _spec_line(located, loc: tuple, line: AccuracyLine, problems: list[str]) -> 
     level = _level(located, loc + ("level",), line.level, problems)
     low = high = None
     if line.from_ is not None or line.to is not None:
-        if not line.function.startswith("ac-") or line.from_ is None or line.to is None:
+        if not is_alternating(line.function) or line.from_ is None or line.to is None:
             problems.append(located.problem(loc, "a frequency band needs both 'from' and 'to', on an AC function"))
         else:
             low = _quantity(located, problems, loc + ("from",), line.from_, "Hz")

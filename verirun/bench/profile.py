@@ -18,15 +18,15 @@ from typing import Annotated, Any
 from pydantic import AfterValidator, BaseModel, BeforeValidator, ConfigDict, Field, model_validator
 
 from verirun import yamlfile
+from verirun.functions import NAMES, unit_of
 from verirun.errors import BenchError, ProcedureError
 from verirun.text import refusal
 
 #: Profile format this verirun reads; a newer file is refused rather than half-understood.
 PROFILE_FORMAT = 1
 
-#: The functions a calibrator can source, and the unit each value is given in (SI base units).
-UNITS = {"dc-voltage": "V", "dc-current": "A", "ac-voltage": "V", "ac-current": "A", "resistance": "Ω"}
-FUNCTIONS = tuple(UNITS)
+#: The functions a calibrator can source (see :mod:`verirun.functions`).
+FUNCTIONS = NAMES
 
 
 def _text(value: Any) -> Any:
@@ -207,7 +207,7 @@ class DriverProfile(_Frozen):
         BenchError
             If ``name`` is not a function verirun knows, or this calibrator does not source it.
         """
-        if name not in UNITS:
+        if name not in FUNCTIONS:
             raise BenchError(f"unknown function {name!r}; the functions are {', '.join(FUNCTIONS)}")
         found = getattr(self.functions, name.replace("-", "_"))
         if found is None:
@@ -235,7 +235,7 @@ class DriverProfile(_Frozen):
             Naming the value and the limit it breaks.
         """
         settings = self.function(function)
-        unit = UNITS[function]
+        unit = unit_of(function)
         level = _checked(f"{function} value", value, settings.level, unit)
         commands = list(settings.select)
         if isinstance(settings, AcFunction):

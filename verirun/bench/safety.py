@@ -11,7 +11,7 @@ import math
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
-from verirun.bench.profile import FUNCTIONS
+from verirun.functions import FUNCTIONS, NAMES
 from verirun.errors import BenchError, SafetyError
 from verirun.interrupts import deferred_signals
 
@@ -143,12 +143,12 @@ def is_hazardous(function: str, value: float, limits: HazardLimits = HazardLimit
         If ``function`` is not one of the functions verirun knows.
     """
     if function not in FUNCTIONS:
-        raise ValueError(f"unknown function {function!r}; the functions are {', '.join(FUNCTIONS)}")
-    if function not in ("dc-voltage", "ac-voltage"):
+        raise ValueError(f"unknown function {function!r}; the functions are {', '.join(NAMES)}")
+    if not FUNCTIONS[function].is_voltage:
         return False
     size = abs(float(value))
     if not math.isfinite(size):
         return True
-    if function == "dc-voltage":
+    if not FUNCTIONS[function].alternating:
         return size >= limits.dc_volts
     return size >= limits.ac_rms_volts or size * math.sqrt(2) >= limits.ac_peak_volts

@@ -15,7 +15,8 @@ from pathlib import Path
 from verirun import yamlfile
 from verirun.errors import ProcedureError, UnitError
 from verirun.metrology import decision, scales, tolerance, uncertainty
-from verirun.procedure.model import FUNCTION_UNITS, Accuracy, ProcedureFile, Range
+from verirun.functions import is_alternating, unit_of
+from verirun.procedure.model import Accuracy, ProcedureFile, Range
 from verirun.units import in_band, parse_quantity, parse_value
 
 #: The procedure format version this verirun reads.
@@ -227,7 +228,7 @@ class _RangeResolver:
 
     def __init__(self, located: yamlfile.LocatedData, loc: tuple, rng: Range, problems: list[str]):
         self.located, self.loc, self.rng, self.problems = located, loc, rng, problems
-        self.unit = FUNCTION_UNITS[rng.function]
+        self.unit = unit_of(rng.function)
         self.ok = True
 
     def fail(self, field: tuple, message: str, *, missing: bool = False) -> None:
@@ -250,7 +251,7 @@ class _RangeResolver:
 
     def resolve(self) -> ResolvedRange | None:
         rng = self.rng
-        ac = rng.function.startswith("ac-")
+        ac = is_alternating(rng.function)
         full_scale = self.quantity(("full-scale",), rng.full_scale, self.unit, positive=True,
                                    allow_zero=False)
         centre = self.quantity(("centre",), rng.centre, "Ω", positive=True, allow_zero=False)

@@ -12,6 +12,8 @@ from typing import Annotated, Literal, Union
 
 from pydantic import AfterValidator, BaseModel, ConfigDict, Field, StrictFloat, StrictInt, StrictStr, field_validator
 
+from verirun.functions import FunctionName
+
 
 def _finite(value: int | float) -> float:
     try:
@@ -27,14 +29,7 @@ def _finite(value: int | float) -> float:
 Number = Annotated[Union[StrictInt, StrictFloat], AfterValidator(_finite)]
 QuantityText = Union[StrictStr, StrictInt, StrictFloat]
 
-FUNCTIONS = ("dc-voltage", "dc-current", "ac-voltage", "ac-current", "resistance")
-Function = Literal["dc-voltage", "dc-current", "ac-voltage", "ac-current", "resistance"]
-
-#: The unit each function's values are in.
-FUNCTION_UNITS = {"dc-voltage": "V", "dc-current": "A", "ac-voltage": "V", "ac-current": "A",
-                  "resistance": "Ω"}
-FUNCTION_NAMES = {"dc-voltage": "DC voltage", "dc-current": "DC current", "ac-voltage": "AC voltage",
-                  "ac-current": "AC current", "resistance": "resistance"}
+Function = FunctionName
 
 ScaleName = Literal["linear", "series-ohms", "shunt-ohms"]
 

@@ -16,7 +16,7 @@ from verirun.procedure.load import Procedure, ResolvedRange
 
 if TYPE_CHECKING:
     from verirun.bench.config import Bench, SpecLine
-from verirun.procedure.model import FUNCTION_NAMES
+from verirun.functions import is_alternating, words_for
 from verirun.units import format_quantity
 
 
@@ -79,7 +79,7 @@ class TestPoint:
         text = format_quantity(self.nominal, self.unit)
         if self.function.startswith("dc-"):
             text += " DC"
-        elif self.function.startswith("ac-"):
+        elif is_alternating(self.function):
             text += f" AC at {format_quantity(self.frequency, 'Hz')}"
         return text
 
@@ -90,7 +90,7 @@ class TestPoint:
             detail = f"{format_quantity(rng.full_scale, rng.unit)} full scale"
         else:
             detail = f"centre scale {format_quantity(rng.law.centre, 'Ω')}"
-        return f"{rng.id} ({FUNCTION_NAMES[rng.function]}, {detail})"
+        return f"{rng.id} ({words_for(rng.function)}, {detail})"
 
 
 def budget_terms(rng: ResolvedRange, nominal: float, frequency: float | None,
