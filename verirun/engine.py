@@ -23,6 +23,10 @@ from verirun.readings import Entry, ReadingSource
 from verirun.record import Journal
 
 
+#: The journal layout a run writes (1: notes unmarked; 2: operator notes marked "by": "operator").
+JOURNAL_FORMAT = 2
+
+
 @dataclass(frozen=True, kw_only=True)
 class RunContext:
     """Who and what a run is for; written into the start document as given."""
@@ -56,6 +60,8 @@ def start_document(*, uid: str, time: str, procedure: Procedure, bench: Bench, i
     cal = bench.file.calibrator
     return {
         "kind": "start", "uid": uid, "time": time,
+        # Format 2: operator notes are marked as such, apart from the run's internal log.
+        "journal_format": JOURNAL_FORMAT,
         "software": {"name": "verirun", "version": __version__},
         "procedure": {"id": procedure.id, "title": procedure.file.procedure.title,
                       "revision": procedure.revision, "sha256": procedure.sha256,
@@ -313,7 +319,7 @@ class Engine:
             if entry.kind != "note":
                 return entry
             self.journal.append({"kind": "note", "time": iso(self.clock.now()), "point": point.key,
-                                 "text": entry.text})
+                                 "text": entry.text, "by": "operator"})
             self.console.say("  note recorded")
 
     def _observation(self, point: TestPoint, entry: Entry) -> dict:

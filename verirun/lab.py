@@ -15,10 +15,17 @@ FORMAT = 1
 
 
 class Signatory(Strict):
-    """The person who authorises certificates."""
+    """The person who authorises certificates (profiles written before ``people`` existed)."""
 
     name: StrictStr
     title: StrictStr
+
+
+class Person(Strict):
+    """One member of staff the lab has authorised to issue certificates, and in which role."""
+
+    name: StrictStr
+    role: StrictStr
 
 
 class Wording(Strict):
@@ -39,12 +46,19 @@ class LabInfo(Strict):
     address: list[StrictStr]
     accreditation: StrictStr | None = None
     certificate_prefix: StrictStr
-    signatory: Signatory
+    #: Older profiles name one signatory; a profile now lists everyone who may issue.
+    signatory: Signatory | None = None
+    #: Who may review and issue certificates, each with the role they sign in.
+    people_who_issue: list[Person] = []
     traceability: StrictStr
     conditions: StrictStr | None = None
     #: The paper the lab prints its certificates on.
     paper: Literal["A4", "letter"] = "A4"
     wording: Wording = Wording()
+    #: The spelling of the lab's certificates: "british" (authorised, centre) or "american".
+    spelling: Literal["british", "american"] = "british"
+    #: Remarks printed on every certificate, in the lab's own words.
+    remarks: list[StrictStr] = []
 
 
 class LabFile(Strict):
@@ -59,3 +73,12 @@ def load_lab(path: str | Path) -> LabFile:
     located = yamlfile.load_file(path)
     yamlfile.check_format(located, FORMAT, "lab profile")
     return yamlfile.validate(LabFile, located)
+
+
+def people_who_issue(lab: dict) -> list[dict]:
+    """Who may issue, from the lab as a run record holds it: its list of people, or the single
+    signatory of an older profile."""
+    people = lab.get("people_who_issue") or []
+    if not people and lab.get("signatory"):
+        people = [{"name": lab["signatory"]["name"], "role": lab["signatory"]["title"]}]
+    return people

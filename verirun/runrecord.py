@@ -74,8 +74,12 @@ def build_record(documents: list[dict], source: str = "journal", *, known: Known
     stop = None
     revision = 1
     corrections: dict[str, dict] = {}
+    after = _AfterTheRun(start, source)
     for doc in documents[1:]:
         kind = doc["kind"]
+        if kind in _AfterTheRun.KINDS:
+            revision = after.take(doc, revision, notes)
+            continue
         if kind in ("observation", "skip", "correction"):
             if doc["point"] not in points:
                 raise RecordError(f"{source}: document {doc['seq']} names point {doc['point']!r},"
@@ -98,13 +102,15 @@ def build_record(documents: list[dict], source: str = "journal", *, known: Known
                                   " operator before the run went on, and measured again"
                                   if withdrawn is not None else "a withdrawal of an entry the journal does not hold"})
         elif kind == "note":
-            notes.append({"time": doc["time"], "point": doc.get("point"), "text": doc["text"]})
+            after.note(notes, {"time": doc["time"], "point": doc.get("point"), "text": doc["text"]},
+                       internal=doc.get("by") != "operator")
         elif kind == "resume":
-            notes.append({"time": doc["time"], "point": None,
-                          "text": f"run resumed after an interruption with {doc['pending']} points to go"
-                                  + ("; a cut-off last journal line was dropped" if doc.get("recovered_torn_line") else "")
-                                  + (_conditions(doc.get("environment"))
-                                     if doc.get("environment") != start.get("environment") else "")})
+            after.note(notes, {"time": doc["time"], "point": None,
+                               "text": f"run resumed after an interruption with {doc['pending']} points to go"
+                                       + ("; a cut-off last journal line was dropped" if doc.get("recovered_torn_line") else "")
+                                       + (_conditions(doc.get("environment"))
+                                          if doc.get("environment") != start.get("environment") else "")},
+                       internal=True)
         elif kind == "stop":
             stop = doc
     rows = []
@@ -132,7 +138,7 @@ def build_record(documents: list[dict], source: str = "journal", *, known: Known
         "customer": {"name": None, "address": [], **start["customer"]},
         "item": {"serial": None, "asset": None, "condition": None, "received": None, **start["item"]},
         "environment": start.get("environment", {}),
-        **({"as_found": start["as_found"]} if start.get("as_found") else {}),
+        **({"as_found": after.as_found} if after.as_found else {}),
         "procedure": start["procedure"], "bench": start["bench"],
         "meter": procedure.file.meter.model_dump(by_alias=True),
         "decision_rule": {"rule": procedure.rule.name, "statement": procedure.rule.describe(),
@@ -141,7 +147,62 @@ def build_record(documents: list[dict], source: str = "journal", *, known: Known
         "points": rows,
         "notes": notes,
         "summary": {**counts, "overall": overall},
+        **after.extra(),
     }
+
+
+class _AfterTheRun:
+    """What a journal says after (and about) its run, beyond the readings: who issued which
+    revision (``issue``), an as-found run revised under an as-left run (``as-found``), and which
+    notes are the lab's internal log rather than the customer's (journals of format 2 on)."""
+
+    KINDS = ("issue", "as-found")
+
+    def __init__(self, start: dict, source: str):
+        self.source = source
+        self.simulated = bool(start["bench"].get("simulated"))
+        self.as_found = start.get("as_found")
+        #: Journals of format 2 on keep the internal run log apart from the customer's notes.
+        self.split = start.get("journal_format", 1) >= 2
+        self.issues: list[dict] = []
+        self.revisions: list[dict] = []
+        self.log: list[dict] = []
+
+    def note(self, notes: list, note: dict, *, internal: bool) -> None:
+        (self.log if self.split and internal else notes).append(note)
+
+    def take(self, doc: dict, revision: int, notes: list) -> int:
+        """Take one ``issue`` or ``as-found`` document; return the revision after it."""
+        where = f"{self.source}: document {doc['seq']} ({doc['kind']})"
+        if doc["kind"] == "issue":
+            if self.simulated:
+                raise RecordError(f"{where}: issues a dry run on the simulated calibrator, which is not a calibration")
+            if doc.get("revision") != revision:
+                raise RecordError(f"{where}: issues revision {doc.get('revision')!r}, but the run is at revision {revision}")
+            if any(issue["revision"] == revision for issue in self.issues):
+                raise RecordError(f"{where}: revision {revision} was issued already")
+            self.issues.append({key: doc.get(key) for key in ("revision", "time", "by", "role", "certificate")})
+            return revision
+        revision += 1
+        self.as_found = doc["as_found"]
+        self.revisions.append({"revision": revision, "time": doc["time"], "by": doc["operator"],
+                               "reason": doc["reason"], "what": "as-found results"})
+        notes.append({"time": doc["time"], "point": None,
+                      "text": f"revision {revision}: the as-found results replaced by those of certificate"
+                              f" {doc['as_found'].get('certificate')} by {doc['operator']}: {doc['reason']}"})
+        return revision
+
+    def extra(self) -> dict:
+        """The record's entries for these documents (none for a journal that has none of them,
+        so a record of an earlier format is built as it was)."""
+        out: dict = {}
+        if self.issues:
+            out["issues"] = self.issues
+        if self.revisions:
+            out["as_found_revisions"] = self.revisions
+        if self.split:
+            out["run_log"] = self.log
+        return out
 
 
 def _range(rng) -> dict:

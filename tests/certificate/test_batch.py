@@ -36,10 +36,13 @@ class TestCertifyFolder:
         reports = tmp_path / "rep"
         (outcome,) = certify_many([demo_run_dir], reports)
         path = reports / outcome.certificate.split("/")[-1]
-        html = path.read_text().replace('name="verirun-template" content="1"', 'name="verirun-template" content="0"')
+        from verirun.certificate.render import TEMPLATE_VERSION
+
+        html = path.read_text().replace(f'name="verirun-template" content="{TEMPLATE_VERSION}"',
+                                        'name="verirun-template" content="0"')
         path.write_text(html)
         (again,) = certify_many([demo_run_dir], reports)
-        assert again.note == "re-rendered with certificate template 1 (was 0)"
+        assert again.note == f"re-rendered with certificate template {TEMPLATE_VERSION} (was 0)"
         (third,) = certify_many([demo_run_dir], reports)
         assert third.note is None  # same version, same bytes: nothing to report
 

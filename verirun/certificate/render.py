@@ -11,12 +11,20 @@ import re
 from pathlib import Path
 
 #: Version of the certificate template; recorded in every certificate it renders.
-TEMPLATE_VERSION = "1"
+TEMPLATE_VERSION = "2"
+
+#: The prefix of a dry run's number, in place of the lab's: a dry run is not in its sequence.
+DRY_RUN_PREFIX = "DRYRUN"
+
+
+def is_dry_run(record: dict) -> bool:
+    """True for a run on the simulated calibrator: a dry run, never a calibration."""
+    return bool(record["bench"].get("simulated"))
 
 
 def certificate_number(record: dict) -> str:
     """The certificate's unique number: lab prefix, calibration date and the run's uid."""
-    prefix = record["lab"].get("certificate_prefix", "CERT")
+    prefix = DRY_RUN_PREFIX if is_dry_run(record) else record["lab"].get("certificate_prefix", "CERT")
     day = record["run"]["started"][:10].replace("-", "")
     number = f"{prefix}-{day}-{record['run']['uid'][:8].upper()}"
     revision = record["run"].get("revision", 1)
@@ -48,19 +56,32 @@ def _environment():
                       undefined=StrictUndefined, trim_blocks=True, lstrip_blocks=True,
                       keep_trailing_newline=True)
     env.filters["q"] = lambda value, unit, digits=6: format_quantity(value, unit, digits)
+    env.filters["css_string"] = css_string
     return env
 
 
 _ENV = None
 
 
-def render_html(record: dict) -> str:
-    """The certificate of ``record`` as HTML text."""
-    return "".join(_generate(record))
+def css_string(text: str):
+    """``text`` as a quoted CSS string that no text can break out of (quotes, backslashes,
+    line breaks and ``<`` written as CSS escapes)."""
+    from markupsafe import Markup
+
+    escaped = "".join(f"\\{ord(c):x} " if c in '"\\<>&\n\r\f' or ord(c) < 32 else c for c in str(text))
+    return Markup(f'"{escaped}"')
 
 
-def _generate(record: dict):
+def render_html(record: dict, *, replaced_by: dict | None = None) -> str:
+    """The certificate of ``record`` as HTML text; ``replaced_by`` (see
+    :func:`verirun.issue.earlier_revisions`) marks an earlier revision as replaced."""
+    return "".join(_generate(record, replaced_by=replaced_by))
+
+
+def _generate(record: dict, *, replaced_by: dict | None = None):
     """The certificate of ``record`` as a stream of text pieces (for writing without holding it)."""
+    from verirun.certificate.reading import reading_context
+
     global _ENV
     if _ENV is None:
         _ENV = _environment()
@@ -69,7 +90,8 @@ def _generate(record: dict):
     return template.generate(record=record, ranges=_ranges(record["ranges"], record["points"]),
                              as_found_ranges=_ranges(record["ranges"], as_found["points"]) if as_found else [],
                              number=certificate_number(record), replaces=previous_number(record),
-                             template_version=TEMPLATE_VERSION)
+                             template_version=TEMPLATE_VERSION,
+                             **reading_context(record, replaced_by=replaced_by))
 
 
 def _ranges(ranges: list[dict], points: list[dict]) -> list[dict]:
@@ -123,14 +145,14 @@ def write_pdf(html: str, path: str | Path) -> Path:
     return Path(path)
 
 
-def write_certificate(record: dict, reports_dir: str | Path) -> Path:
+def write_certificate(record: dict, reports_dir: str | Path, *, replaced_by: dict | None = None) -> Path:
     """Render ``record`` into ``reports_dir``/<certificate number>.html; return the path."""
     path = certificate_path(record, reports_dir)
     path.parent.mkdir(parents=True, exist_ok=True)
     tmp = path.with_suffix(".tmp")
     # Streamed piece by piece: a long run's certificate is never held whole in memory.
     with open(tmp, "w", encoding="utf-8", newline="") as fh:
-        for piece in _generate(record):
+        for piece in _generate(record, replaced_by=replaced_by):
             fh.write(piece)
     tmp.replace(path)
     return path
