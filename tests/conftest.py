@@ -35,3 +35,13 @@ def data_dir() -> Path:
 def _work_in_tmp(tmp_path, monkeypatch):
     """Every test runs in its own folder, so a default `runs/` or `reports/` never lands in the repo."""
     monkeypatch.chdir(tmp_path)
+
+
+
+@pytest.fixture
+def at_the_bench():
+    """See :func:`at_the_bench.calibrator_at_the_bench`."""
+    from at_the_bench import calibrator_at_the_bench
+
+    with calibrator_at_the_bench():
+        yield

@@ -1,0 +1,124 @@
+"""Issue a certificate: a person the lab has authorised reviews a finished run and signs it.
+
+Until then the run's certificate is a draft. Issuing appends an ``issue`` document to the run's
+journal (chained like every other): who issued it, in which role from the lab profile, when, and
+which revision and certificate number. The record is closed again and the certificate is
+rendered as issued. A revision is issued once; a correction is an amendment, a new revision
+issued in its turn. A dry run on the simulated calibrator is never issued.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from verirun.clock import SystemClock, iso
+from verirun.errors import RecordError
+from verirun.integrity import run_folder, verified_record
+from verirun.lab import people_who_issue
+from verirun.record import JOURNAL_NAME, Journal, read_journal
+
+
+def issue(path: str | Path, *, by: str, lab: dict | None = None, clock=None) -> dict:
+    """Issue the current revision of the run at ``path`` in the name of ``by``; return its record.
+
+    Parameters
+    ----------
+    path
+        The run folder (or its record or journal).
+    by
+        The name of the person issuing, exactly as the lab profile lists it.
+    lab
+        The lab profile (as the record holds one) whose people may issue; by default the lab
+        the run was made under. It must be the same lab (name and certificate prefix).
+
+    Raises
+    ------
+    RecordError
+        If the run does not verify or is not complete, is a dry run, was issued already in this
+        revision, or ``by`` is not a person the lab profile lists. Nothing is written then.
+    """
+    from verirun.certificate.render import certificate_number, is_dry_run
+    from verirun.session import close_run
+
+    clock = clock or SystemClock()
+    folder = run_folder(path)
+    record = verified_record(folder)
+    number = certificate_number(record)
+    if is_dry_run(record):
+        raise RecordError(f"{folder}: this is a dry run on the simulated calibrator, not a calibration;"
+                          f" its certificate {number} can never be issued")
+    if record["run"]["status"] != "complete":
+        raise RecordError(f"{folder}: the run is {record['run']['status']}, not complete; resume it before"
+                          " its certificate can be issued")
+    revision = record["run"]["revision"]
+    done = next((i for i in record.get("issues", []) if i["revision"] == revision), None)
+    if done is not None:
+        raise RecordError(f"{folder}: certificate {number} was issued already, on {done['time'][:10]} by"
+                          f" {done['by']}; it is not issued twice. To correct it, amend the run"
+                          " ('verirun amend'): the new revision is then issued in its turn")
+    if lab is None:
+        lab = record["lab"]
+    elif (lab.get("name"), lab.get("certificate_prefix")) != (record["lab"].get("name"),
+                                                              record["lab"].get("certificate_prefix")):
+        raise RecordError(f"the lab profile is of {lab.get('name')!r}, but the run was made for"
+                          f" {record['lab'].get('name')!r}; give that lab's profile")
+    person = find_person(lab, by)
+    with Journal(folder / JOURNAL_NAME) as journal:
+        journal.append({"kind": "issue", "time": iso(clock.now()), "by": person["name"],
+                        "role": person["role"], "revision": revision, "certificate": number})
+    return close_run(folder)
+
+
+def find_person(lab: dict, name: str) -> dict:
+    """The person of the lab profile named ``name`` (spaces at the ends and repeated inside
+    ignored; otherwise exactly as listed).
+
+    Raises
+    ------
+    RecordError
+        If the lab profile lists nobody of that name, naming those it lists.
+    """
+    wanted = " ".join(name.split())
+    people = people_who_issue(lab)
+    for person in people:
+        if " ".join(person["name"].split()) == wanted:
+            return person
+    listed = ", ".join(f"{p['name']} ({p['role']})" for p in people) or "nobody"
+    raise RecordError(f"{wanted!r} is not among the people the lab profile authorises to issue"
+                      f" certificates ({listed}); nothing was issued")
+
+
+def earlier_revisions(path: str | Path) -> list[tuple[dict, dict]]:
+    """Each earlier revision of a stored run and what replaced it, oldest first.
+
+    The record of revision N is the record of the journal up to the document that began
+    revision N + 1 (a correction, or an as-found revision), so it is verified as the journal
+    is; what replaced it is that document's time and reason and the next revision's number.
+    """
+    from verirun.certificate.render import certificate_number
+    from verirun.runrecord import build_record
+
+    folder = run_folder(path)
+    verified_record(folder)
+    docs = read_journal(folder / JOURNAL_NAME).documents
+    out = []
+    for position, doc in enumerate(docs):
+        if doc["kind"] in ("correction", "as-found"):
+            earlier = build_record(docs[:position], str(folder / JOURNAL_NAME))
+            later = build_record(docs[:position + 1], str(folder / JOURNAL_NAME))
+            out.append((earlier, {"number": certificate_number(later), "time": doc["time"],
+                                  "reason": doc["reason"]}))
+    return out
+
+
+def state_of(record: dict) -> str:
+    """``"dry run"``, ``"draft"`` or ``"issued <date> by <name>"`` for the current revision."""
+    from verirun.certificate.render import is_dry_run
+
+    if is_dry_run(record):
+        return "dry run (never issued)"
+    revision = record["run"]["revision"]
+    done = next((i for i in record.get("issues", []) if i["revision"] == revision), None)
+    if done is None:
+        return f"draft of revision {revision}, not issued"
+    return f"revision {revision} issued {done['time'][:10]} by {done['by']}, {done['role']}"
