@@ -9,6 +9,8 @@ issued in its turn. A dry run on the simulated calibrator is never issued.
 
 from __future__ import annotations
 
+import contextlib
+import os
 from pathlib import Path
 
 from verirun.clock import SystemClock, iso
@@ -16,6 +18,9 @@ from verirun.errors import RecordError
 from verirun.integrity import run_folder, verified_record
 from verirun.lab import people_who_issue
 from verirun.record import JOURNAL_NAME, Journal, read_journal
+
+#: The file whose lock is held while a run is issued.
+LOCK_NAME = "issue.lock"
 
 
 def issue(path: str | Path, *, by: str, lab: dict | None = None, clock=None) -> dict:
@@ -37,11 +42,44 @@ def issue(path: str | Path, *, by: str, lab: dict | None = None, clock=None) -> 
         If the run does not verify or is not complete, is a dry run, was issued already in this
         revision, or ``by`` is not a person the lab profile lists. Nothing is written then.
     """
+    clock = clock or SystemClock()
+    folder = run_folder(path)
+    _issue(folder, by=by, lab=lab, clock=None)  # refused here, nothing is written (not even the lock)
+    with issuing(folder):
+        return _issue(folder, by=by, lab=lab, clock=clock)
+
+
+@contextlib.contextmanager
+def issuing(folder: Path):
+    """Hold the run's issue lock: two people issuing one run at once get one issue, and a
+    clear refusal, never two issue documents for one revision.
+
+    Raises
+    ------
+    RecordError
+        If another process holds it, or the run folder cannot be written.
+    """
+    import fcntl
+
+    try:
+        fd = os.open(folder / LOCK_NAME, os.O_RDWR | os.O_CREAT, 0o644)
+    except OSError as exc:
+        raise RecordError(f"{folder}: cannot write in the run folder: {exc.strerror or exc}; nothing was issued") from None
+    try:
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            raise RecordError(f"{folder}: someone else is issuing this run right now; nothing was issued") from None
+        yield
+    finally:
+        os.close(fd)  # closing releases the lock
+
+
+def _issue(folder: Path, *, by: str, lab: dict | None, clock) -> dict:
+    """Refuse, or (given a ``clock``) journal the issue and close the record again."""
     from verirun.certificate.render import certificate_number, is_dry_run
     from verirun.session import close_run
 
-    clock = clock or SystemClock()
-    folder = run_folder(path)
     record = verified_record(folder)
     number = certificate_number(record)
     if is_dry_run(record):
@@ -63,10 +101,16 @@ def issue(path: str | Path, *, by: str, lab: dict | None = None, clock=None) -> 
         raise RecordError(f"the lab profile is of {lab.get('name')!r}, but the run was made for"
                           f" {record['lab'].get('name')!r}; give that lab's profile")
     person = find_person(lab, by)
-    with Journal(folder / JOURNAL_NAME) as journal:
-        journal.append({"kind": "issue", "time": iso(clock.now()), "by": person["name"],
-                        "role": person["role"], "revision": revision, "certificate": number})
-    return close_run(folder)
+    if clock is None:  # the check before the lock is taken
+        return record
+    try:
+        with Journal(folder / JOURNAL_NAME) as journal:
+            journal.append({"kind": "issue", "time": iso(clock.now()), "by": person["name"],
+                            "role": person["role"], "revision": revision, "certificate": number})
+        return close_run(folder)
+    except OSError as exc:  # a full disk, a folder made read-only: said, not a traceback
+        raise RecordError(f"{folder}: cannot write the run's journal or record: {exc.strerror or exc};"
+                          " check the disk, then issue again ('verirun verify' shows whether it was issued)") from None
 
 
 def find_person(lab: dict, name: str) -> dict:
@@ -116,7 +160,7 @@ def state_of(record: dict) -> str:
     from verirun.certificate.render import is_dry_run
 
     if is_dry_run(record):
-        return "dry run (never issued)"
+        return "a dry run, never issued"
     revision = record["run"]["revision"]
     done = next((i for i in record.get("issues", []) if i["revision"] == revision), None)
     if done is None:

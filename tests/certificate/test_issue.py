@@ -251,3 +251,57 @@ def test_the_issue_document_is_in_the_record_and_journal_chain(at_the_bench, tmp
     issued = json.loads((run / "record.json").read_text())["issues"]
     assert issued[0]["by"] == "A. Thorneycroft"
     assert dt.date.fromisoformat(issued[0]["time"][:10]) >= dt.date.fromisoformat(load_record(run)["run"]["started"][:10])
+
+
+def test_two_people_issuing_at_once_get_one_issue(at_the_bench, tmp_path, capsys):
+    """While one process holds the issue lock, another's issue is refused and writes nothing."""
+    from verirun.issue import issuing
+
+    run = bench_run(tmp_path)
+    assert main(["issue", str(run), "--by", "P. Nobody"]) == 1  # refused before any lock file
+    assert not (run / "issue.lock").exists()
+    with issuing(run):
+        before = files_of(run)
+        assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 1
+        assert "someone else is issuing this run right now" in capsys.readouterr().err
+        assert files_of(run) == before
+    assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 0
+
+
+def test_a_hostile_lab_prefix_cannot_break_out_of_the_page_mark(tmp_path):
+    """Quotes, a closing style tag or a line break in the text of a page mark stay inside its
+    CSS string."""
+    from verirun.certificate.render import css_string
+
+    quoted = str(css_string('A"}</style><script>x</script>\n\\'))
+    assert quoted.startswith('"') and quoted.endswith('"')
+    inner = quoted[1:-1]
+    assert '"' not in inner and "<" not in inner and "\n" not in inner and "\\5c " in inner
+
+
+def test_an_older_profile_s_signatory_may_issue():
+    """A lab as recorded from a profile with one signatory (no list) lets that person issue."""
+    from verirun.issue import find_person
+
+    lab = {"signatory": {"name": "M. Okonkwo-Hale", "title": "Quality Manager"}}
+    assert find_person(lab, "M. Okonkwo-Hale") == {"name": "M. Okonkwo-Hale", "role": "Quality Manager"}
+    with pytest.raises(Exception, match="nobody|M. Okonkwo-Hale"):
+        find_person(lab, "someone else")
+
+
+def test_a_full_disk_while_issuing_is_said_not_a_traceback(at_the_bench, tmp_path, capsys, monkeypatch):
+    """If the journal cannot be written (ENOSPC), issue exits 1 with the reason, not as a bug."""
+    import errno
+    import os as os_module
+
+    from verirun import record as record_module
+
+    run = bench_run(tmp_path)
+
+    def full(fd):
+        raise OSError(errno.ENOSPC, "No space left on device")
+
+    monkeypatch.setattr(record_module.os, "fsync", full)
+    assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 1
+    assert "No space left on device" in capsys.readouterr().err
+    monkeypatch.setattr(record_module.os, "fsync", os_module.fsync)
