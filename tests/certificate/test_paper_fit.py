@@ -66,11 +66,32 @@ def cell_problems(document) -> tuple[list, int]:
     return problems, seen
 
 
+@pytest.fixture(scope="module")
+def non_binary_as_left(tmp_path_factory) -> Path:
+    """An as-left dry run under the non-binary rule: both passes' verdicts (CONDITIONAL PASS
+    among them) side by side, the widest table there is."""
+    from verirun.cli import main
+
+    data = Path(__file__).resolve().parents[1] / "data"
+    tmp = tmp_path_factory.mktemp("wide")
+    procedure = tmp / "non-binary.yaml"
+    procedure.write_text((data / "qm40-procedure.yaml").read_text().replace("  rule: simple", "  rule: non-binary"))
+    common = ["run", str(procedure), "--bench", str(data / "bench-test.yaml"), "--simulate",
+              "--readings", str(data / "qm40-readings.csv"), "--serial", "S", "--customer", "C",
+              "--runs", str(tmp / "runs"), "--reports", str(tmp / "rep")]
+    assert main(common) == 0
+    (found,) = (tmp / "runs").iterdir()
+    assert main([*common, "--as-left-of", str(found), "--adjustment", "zero set"]) == 0
+    (left,) = set((tmp / "runs").iterdir()) - {found}
+    return left
+
+
 @pytest.mark.parametrize("paper", ["A4", "letter"])
-@pytest.mark.parametrize("run", RUNS)
-def test_no_number_or_header_wraps_and_nothing_runs_off(run, paper):
+@pytest.mark.parametrize("run", [*RUNS, "non-binary-as-left"])
+def test_no_number_or_header_wraps_and_nothing_runs_off(run, paper, request):
     """Every number and header of every results table is on one line, inside the page."""
-    problems, seen = cell_problems(layout(load_record(STORED / run), paper))
+    folder = request.getfixturevalue("non_binary_as_left") if run == "non-binary-as-left" else STORED / run
+    problems, seen = cell_problems(layout(load_record(folder), paper))
     assert seen > 100 and problems == []
 
 
