@@ -38,7 +38,7 @@ class TestCheckReceived:
             check_received("2026-12-03", today=dt.date(2026, 12, 2))
 
     def test_no_date_stays_none(self):
-        """Not given: none recorded (the run's date is printed, as the help says)."""
+        """Not given: none recorded (the certificate says it was not recorded)."""
         assert check_received(None) is None
 
 
@@ -107,3 +107,20 @@ class TestRunAtARealBench:
         record = load_record(run)
         assert record["item"]["condition"] == "as new" and record["item"]["received"] == "2025-01-10"
         assert record["lab"]["name"] == "Kestrel Fen Metrology" and not record["bench"]["simulated"]
+
+
+def test_input_closed_at_the_condition_question_exits_2_and_writes_no_run(tmp_path):
+    """At the console with stdin closed, the question about the condition on receipt ends the
+    command with exit 2 and no traceback, before any run folder is made."""
+    import subprocess
+    import sys
+
+    cmd = [sys.executable, "-m", "verirun", *run_args(tmp_path, "--simulate", "--temperature", "23",
+                                                      "--humidity", "40")]
+    cmd.remove("--readings")
+    cmd.remove(str(DATA / "qm40-readings.csv"))
+    result = subprocess.run(cmd, stdin=subprocess.DEVNULL, capture_output=True, text=True, timeout=60)
+    assert result.returncode == 2, result.stderr
+    assert "internal error" not in result.stderr and "Traceback" not in result.stderr
+    assert "Condition of the item on receipt" in result.stdout
+    assert not (tmp_path / "runs").exists()

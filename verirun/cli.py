@@ -42,7 +42,7 @@ def _parser() -> argparse.ArgumentParser:
     run.add_argument("--condition", help="condition of the item on receipt, in your words (asked at the console"
                                          " if not given; needed at a real bench)")
     run.add_argument("--received", help="date the item was received (YYYY-MM-DD, not after the calibration;"
-                                        " default: the run's date)")
+                                        " not recorded if not given)")
     run.add_argument("--temperature", help="laboratory temperature at the start, in °C (asked at the console if not given)")
     run.add_argument("--humidity", help="relative humidity at the start, in %% (asked at the console if not given)")
     run.add_argument("--as-left-of", type=Path, metavar="RUN",
@@ -474,7 +474,7 @@ def _cmd_certify(args) -> int:
     for outcome in outcomes:
         if outcome.certificate:
             extra = f" and {outcome.pdf}" if outcome.pdf else ""
-            print(f"{outcome.run}: certificate {outcome.certificate}{extra}"
+            print(f"{outcome.run}: certificate {outcome.certificate}{extra} ({outcome.state})"
                   + (f" ({outcome.note})" if outcome.note else ""))
     for outcome in failed:
         _err(f"error: {outcome.error}")
@@ -530,6 +530,13 @@ def _cmd_runs(args) -> int:
         console.print(f"no runs in {args.runs}" + (" match" if args.item or args.since or args.until else ""),
                       markup=False)
     return EXIT_OK
+
+
+def _today() -> str:
+    """Today's date in UTC (the demo's item is received on the day of its run)."""
+    import datetime as dt
+
+    return dt.datetime.now(dt.timezone.utc).date().isoformat()
 
 
 def _date(text: str | None, option: str) -> str | None:
@@ -611,7 +618,7 @@ def _cmd_demo(args) -> int:
     with demo_files() as demo:
         return _run(args, procedure_path=demo["procedure"], bench_path=demo["bench"], lab_path=demo["lab"],
                     readings=VirtualMeter(demo["meter"]), simulate=True,
-                    context_item={"serial": "QM40-118273", "asset": "AWB-E-0457", "received": None,
+                    context_item={"serial": "QM40-118273", "asset": "AWB-E-0457", "received": _today(),
                                   "condition": "Case scuffed; no damage affecting use. Battery 1.5 V fitted."},
                     customer={"name": "Ashgrove Water Board", "address": ["Pumping Station 3", "Ashgrove AG2 7LP"]},
                     operator="demo technician", environment={"temperature_c": 23.1, "humidity_pct": 41.0})

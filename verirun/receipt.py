@@ -9,8 +9,8 @@ from verirun.errors import UnitError
 
 
 def check_received(received: str | None, *, today: dt.date | None = None) -> str | None:
-    """``received`` (an ISO date, or ``None``) if it is not after ``today``, the date of a run
-    starting now (UTC).
+    """``received`` (an ISO date, or ``None``: not recorded, and said so on the certificate) if it
+    is not after ``today``, the date of a run starting now (UTC).
 
     Raises
     ------

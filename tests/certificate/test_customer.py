@@ -57,6 +57,8 @@ def test_facts_not_recorded_are_deviations_not_defaults(tmp_path):
     assert "The laboratory temperature was not recorded at the start of the run." in deviations
     assert "The relative humidity was not recorded at the start of the run." in deviations
     assert "The condition of the item on receipt was not recorded." in deviations
+    assert text(soup, "#date-received") == "not recorded"
+    assert "The date the item was received was not recorded." in deviations
 
 
 def test_the_labs_spelling_and_remarks(tmp_path):

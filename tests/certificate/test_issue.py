@@ -305,3 +305,15 @@ def test_a_full_disk_while_issuing_is_said_not_a_traceback(at_the_bench, tmp_pat
     assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 1
     assert "No space left on device" in capsys.readouterr().err
     monkeypatch.setattr(record_module.os, "fsync", os_module.fsync)
+
+
+def test_certify_renders_the_issued_state_again(at_the_bench, tmp_path, capsys):
+    """`verirun certify` of an issued run renders it issued, the same bytes as at issue, and says so."""
+    run = bench_run(tmp_path)
+    assert main(["issue", str(run), "--by", "A. Thorneycroft", "--reports", str(tmp_path / "rep")]) == 0
+    path = certificate_path(load_record(run), tmp_path / "rep")
+    issued = path.read_bytes()
+    capsys.readouterr()
+    assert main(["certify", str(run), "--reports", str(tmp_path / "again")]) == 0
+    assert "(revision 1 issued" in capsys.readouterr().out
+    assert (tmp_path / "again" / path.name).read_bytes() == issued

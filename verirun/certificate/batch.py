@@ -31,6 +31,8 @@ class Outcome:
     pdf: str | None = None
     error: str | None = None
     note: str | None = None
+    #: A dry run, a draft, or issued by whom (see :func:`verirun.issue.state_of`).
+    state: str | None = None
 
 
 def find_runs(paths: list[Path]) -> list[Path]:
@@ -55,6 +57,7 @@ def certify_one(run: Path, reports_dir: Path, pdf: bool = False) -> Outcome:
     from verirun.certificate.render import TEMPLATE_VERSION, certificate_path, render_html, write_pdf
     from verirun.errors import VerirunError
     from verirun.integrity import verified_record
+    from verirun.issue import state_of
 
     try:
         if not Path(run).exists():
@@ -71,7 +74,8 @@ def certify_one(run: Path, reports_dir: Path, pdf: bool = False) -> Outcome:
         tmp.write_bytes(html)
         tmp.replace(path)
         pdf_path = write_pdf(html.decode("utf-8"), path.with_suffix(".pdf")) if pdf else None
-        return Outcome(run=str(run), certificate=str(path), pdf=str(pdf_path) if pdf_path else None, note=note)
+        return Outcome(run=str(run), certificate=str(path), pdf=str(pdf_path) if pdf_path else None, note=note,
+                       state=state_of(record))
     except VerirunError as exc:
         return Outcome(run=str(run), error=str(exc))
     except Exception as exc:  # one bad record never stops the batch
