@@ -34,6 +34,8 @@ class Wording(Strict):
     relate_only: StrictStr = "The results relate only to the item calibrated."
     reproduction: StrictStr = ("This certificate shall not be reproduced except in full without the"
                                " written approval of the laboratory.")
+    #: The bench's safety caution: for the people at the bench, not printed on certificates
+    #: (kept so that profiles which set it still load).
     safety: StrictStr = ("Safety: meters and calibrators used at these levels can present a shock"
                          " hazard. Follow local electrical-safety codes, the makers' instructions and"
                          " licensed practice.")

@@ -72,6 +72,32 @@ def test_the_labs_spelling_and_remarks(tmp_path):
     assert "Readings were taken on the mirror scale to avoid parallax." in text(soup, "#remarks")
 
 
+def test_verirun_s_own_sentences_follow_the_lab_s_spelling(tmp_path):
+    """The decision rule's statement (verirun's words) is spelt the lab's way: a non-binary
+    rule's "more favourable statement" becomes "more favorable statement"."""
+    lab = tmp_path / "lab.yaml"
+    lab.write_text((DATA / "lab-test.yaml").read_text() + "  spelling: american\n")
+    procedure = tmp_path / "p.yaml"
+    procedure.write_text((DATA / "qm40-procedure.yaml").read_text().replace("  rule: simple", "  rule: non-binary"))
+    assert main(["run", str(procedure), "--bench", str(DATA / "bench-test.yaml"), "--simulate",
+                 "--lab", str(lab), "--readings", str(DATA / "qm40-readings.csv"), "--serial", "S",
+                 "--customer", "C", "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "rep")]) == 0
+    (run,) = (tmp_path / "runs").iterdir()
+    record = load_record(run)
+    assert "favourable" in record["decision_rule"]["statement"]  # as the record keeps it
+    soup = BeautifulSoup(certificate_path(record, tmp_path / "rep").read_text(encoding="utf-8"), "html.parser")
+    assert "more favorable statement" in text(soup, "#decision-rule")
+    assert "favour" not in soup.get_text(" ")
+
+
+def test_spelt_keeps_capitals_and_whole_words():
+    """Only whole words change, and a capital stays a capital."""
+    from verirun.certificate.reading import spelt
+
+    assert spelt("Centre and centred; centrefold", "american") == "Center and centered; centrefold"
+    assert spelt("Centre", "british") == "Centre"
+
+
 def test_british_spelling_by_default(tmp_path):
     """Without a choice, the certificate keeps one (British) spelling throughout."""
     record, soup = dry_run(tmp_path)

@@ -19,6 +19,26 @@ SPELLING = {
                  "authorised": "authorized", "Authorised": "Authorized", "centre": "center"},
 }
 
+#: verirun's own sentences (decision rules, say) are written in British spelling; these are the
+#: words in them that American spelling writes otherwise.
+_AMERICAN = {"favourable": "favorable", "favour": "favor", "centre": "center", "centred": "centered",
+             "authorised": "authorized", "authorisation": "authorization", "behaviour": "behavior",
+             "colour": "color", "metre": "meter", "analyse": "analyze"}
+_BRITISH_WORD = re.compile(r"\b(" + "|".join(sorted(_AMERICAN, key=len, reverse=True)) + r")\b", re.IGNORECASE)
+
+
+def spelt(text: str, variant: str) -> str:
+    """One of verirun's own sentences in the lab's spelling (``"british"`` or ``"american"``)."""
+    if variant != "american":
+        return text
+
+    def american(match: re.Match) -> str:
+        word = _AMERICAN[match.group(0).lower()]
+        return word.capitalize() if match.group(0)[0].isupper() else word
+
+    return _BRITISH_WORD.sub(american, text)
+
+
 #: How notes of the internal run log begin, in records of journal format 1 (whose notes are
 #: not marked): the run's own lines, never an operator's note.
 _LOG_NOTES = ("hazardous output ", "operator aborted the run", "run resumed after an interruption",
@@ -46,6 +66,7 @@ def reading_context(record: dict, *, replaced_by: dict | None = None) -> dict:
         "state": state, "issue": issue, "replaced_by": replaced_by,
         "page_mark": page_mark, "watermark": watermark,
         "words": SPELLING[record["lab"].get("spelling", "british")],
+        "spelling": record["lab"].get("spelling", "british"),
         "point_notes": by_point,
         "general_notes": [n for n in kept if not n.get("point") or n["point"] not in known],
         "changes": changes,

@@ -49,6 +49,7 @@ def safe_file_name(text: str) -> str:
 def _environment():
     from jinja2 import Environment, PackageLoader, StrictUndefined, select_autoescape
 
+    from verirun.certificate.reading import spelt
     from verirun.units import format_quantity
 
     env = Environment(loader=PackageLoader("verirun.certificate", "templates"),
@@ -57,6 +58,7 @@ def _environment():
                       keep_trailing_newline=True)
     env.filters["q"] = lambda value, unit, digits=6: format_quantity(value, unit, digits)
     env.filters["css_string"] = css_string
+    env.filters["spelt"] = spelt
     return env
 
 
