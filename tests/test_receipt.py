@@ -21,7 +21,7 @@ DATA = Path(__file__).resolve().parent / "data"
 
 def run_args(tmp: Path, *extra: str) -> list[str]:
     return ["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(DATA / "bench-test.yaml"),
-            "--readings", str(DATA / "qm40-readings.csv"), "--serial", "S", "--customer", "C",
+            "--readings", str(DATA / "qm40-procedure-readings.csv"), "--serial", "S", "--customer", "C",
             "--runs", str(tmp / "runs"), "--reports", str(tmp / "rep"), *extra]
 
 
@@ -118,7 +118,7 @@ def test_input_closed_at_the_condition_question_exits_2_and_writes_no_run(tmp_pa
     cmd = [sys.executable, "-m", "verirun", *run_args(tmp_path, "--simulate", "--temperature", "23",
                                                       "--humidity", "40")]
     cmd.remove("--readings")
-    cmd.remove(str(DATA / "qm40-readings.csv"))
+    cmd.remove(str(DATA / "qm40-procedure-readings.csv"))
     result = subprocess.run(cmd, stdin=subprocess.DEVNULL, capture_output=True, text=True, timeout=60)
     assert result.returncode == 2, result.stderr
     assert "internal error" not in result.stderr and "Traceback" not in result.stderr

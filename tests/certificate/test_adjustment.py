@@ -21,11 +21,11 @@ from test_issue import DATA, bench_run, text
 def test_as_found_adjust_as_left_combined_amend_issue(at_the_bench, tmp_path, capsys):
     reports = tmp_path / "rep"
     found_readings = tmp_path / "found.csv"
-    found_readings.write_text((DATA / "qm40-readings.csv").read_text()
+    found_readings.write_text((DATA / "qm40-procedure-readings.csv").read_text()
                               .replace("dcv-50,25 V,25\n", "dcv-50,25 V,skip pointer stuck at zero\n"))
     found = bench_run(tmp_path, readings=found_readings)
     left_readings = tmp_path / "left.csv"
-    left_readings.write_text((DATA / "qm40-readings.csv").read_text().replace("dcv-10,8 V,8.25", "dcv-10,8 V,8.0"))
+    left_readings.write_text((DATA / "qm40-procedure-readings.csv").read_text().replace("dcv-10,8 V,8.25", "dcv-10,8 V,8.0"))
     left = bench_run(tmp_path, "--as-left-of", str(found), "--adjustment", "span trimmer reset",
                      readings=left_readings)
     record = load_record(left)
@@ -70,7 +70,7 @@ def test_a_dry_run_as_left_of_a_calibration_is_refused(at_the_bench, tmp_path, c
     the as-found run was."""
     found = bench_run(tmp_path)
     assert main(["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(DATA / "bench-test.yaml"),
-                 "--simulate", "--readings", str(DATA / "qm40-readings.csv"), "--serial", "QM40-77",
+                 "--simulate", "--readings", str(DATA / "qm40-procedure-readings.csv"), "--serial", "QM40-77",
                  "--customer", "Fenmouth Drainage Board", "--as-left-of", str(found), "--adjustment", "x",
                  "--runs", str(tmp_path / "runs")]) == 1
     assert "the as-left run must be made the same way" in capsys.readouterr().err

@@ -79,9 +79,9 @@ class TestClause7821:
         """7.8.2.1 f) and n): the method (procedure and revision) and deviations from it, a skipped
         point with its reason."""
         soup, _, _ = cert
-        assert "TH-VP-040 revision C" in text_of(soup, "#method")
+        assert "TH-VP-040 revision B" in text_of(soup, "#method")
         deviations = text_of(soup, "#deviations")
-        assert "skipped" in deviations and "pointer stuck at zero" in deviations and "15 V DC" in deviations
+        assert "skipped" in deviations and "pointer stuck at zero" in deviations and "25 V DC" in deviations
 
     def test_g_item_description_identification_condition(self, cert):
         """7.8.2.1 g): description, unambiguous identification and condition of the item."""
@@ -111,7 +111,7 @@ class TestClause7821:
         assert len(tables) == 6
         first = tables[0].select("tbody tr")[0].get_text(" ")
         assert " V" in first and "PASS" in first
-        ohms = soup.select_one('table[data-range="ohm-x1k"]').get_text(" ")
+        ohms = soup.select_one('table[data-range="ohm-x100"]').get_text(" ")
         assert "kΩ" in ohms and "°" in ohms
 
     def test_o_authorised_by(self, cert):

@@ -18,7 +18,7 @@ def dry_run(tmp, *extra, readings=None, lab=None):
     permitted for a scripted run by the bench file and journaled)."""
     assert main(["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(DATA / "bench-test.yaml"),
                  "--simulate", "--lab", str(lab or DATA / "lab-test.yaml"),
-                 "--readings", str(readings or DATA / "qm40-readings.csv"), "--serial", "S", "--customer", "C",
+                 "--readings", str(readings or DATA / "qm40-procedure-readings.csv"), "--serial", "S", "--customer", "C",
                  "--runs", str(tmp / "runs"), "--reports", str(tmp / "rep"), *extra]) == 0
     (run,) = (tmp / "runs").iterdir()
     record = load_record(run)
@@ -38,7 +38,7 @@ def test_the_internal_log_stays_in_the_record(tmp_path):
 def test_an_operator_note_sits_beside_its_point(tmp_path):
     """A note typed at a point is printed in the row under that point, not in a list at the end."""
     readings = tmp_path / "r.csv"
-    readings.write_text((DATA / "qm40-readings.csv").read_text().replace(
+    readings.write_text((DATA / "qm40-procedure-readings.csv").read_text().replace(
         "dcv-10,6 V,6.2\n", "dcv-10,6 V,note pointer sticks near 6 V; tapped free\ndcv-10,6 V,6.2\n"))
     record, soup = dry_run(tmp_path, readings=readings)
     row = soup.select_one('tr[data-key="dcv-10@6.0"]')
@@ -80,7 +80,7 @@ def test_verirun_s_own_sentences_follow_the_lab_s_spelling(tmp_path):
     procedure = tmp_path / "p.yaml"
     procedure.write_text((DATA / "qm40-procedure.yaml").read_text().replace("  rule: simple", "  rule: non-binary"))
     assert main(["run", str(procedure), "--bench", str(DATA / "bench-test.yaml"), "--simulate",
-                 "--lab", str(lab), "--readings", str(DATA / "qm40-readings.csv"), "--serial", "S",
+                 "--lab", str(lab), "--readings", str(DATA / "qm40-procedure-readings.csv"), "--serial", "S",
                  "--customer", "C", "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "rep")]) == 0
     (run,) = (tmp_path / "runs").iterdir()
     record = load_record(run)

@@ -29,7 +29,7 @@ def bench_run(tmp: Path, *extra: str, readings: Path | None = None, simulate: bo
     before = set((tmp / "runs").iterdir()) if (tmp / "runs").exists() else set()
     assert main(["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(DATA / "bench-test.yaml"),
                  "--lab", str(DATA / "lab-test.yaml"), *(["--simulate"] if simulate else []),
-                 "--readings", str(readings or DATA / "qm40-readings.csv"), "--serial", "QM40-77",
+                 "--readings", str(readings or DATA / "qm40-procedure-readings.csv"), "--serial", "QM40-77",
                  "--customer", "Fenmouth Drainage Board", "--condition", "Case cracked at the hinge; works.",
                  "--received", "2025-06-30", "--temperature", "23.0", "--humidity", "45",
                  "--runs", str(tmp / "runs"), "--reports", str(tmp / "rep"), *extra]) == 0
@@ -131,7 +131,7 @@ class TestDraftIssueAmendReissue:
     def test_an_unfinished_run_is_not_issued(self, at_the_bench, tmp_path, capsys):
         """A run stopped before its last point is refused (resume it first); nothing is written."""
         readings = tmp_path / "short.csv"
-        readings.write_text("\n".join((DATA / "qm40-readings.csv").read_text().splitlines()[:4]) + "\n")
+        readings.write_text("\n".join((DATA / "qm40-procedure-readings.csv").read_text().splitlines()[:4]) + "\n")
         assert main(["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(DATA / "bench-test.yaml"),
                      "--lab", str(DATA / "lab-test.yaml"), "--readings", str(readings), "--serial", "S",
                      "--customer", "C", "--condition", "as new", "--runs", str(tmp_path / "runs")]) != 0
@@ -186,7 +186,7 @@ class TestDryRun:
         bench.write_text((DATA / "bench-test.yaml").read_text().replace(
             "  profile: scpi-generic\n", f"  profile: scpi-generic\n  visa-library: {sim_library(tmp_path / 'dev')}\n"))
         assert main(["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(bench),
-                     "--lab", str(DATA / "lab-test.yaml"), "--readings", str(DATA / "qm40-readings.csv"),
+                     "--lab", str(DATA / "lab-test.yaml"), "--readings", str(DATA / "qm40-procedure-readings.csv"),
                      "--serial", "S", "--customer", "C", "--condition", "as new",
                      "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "rep")]) == 0
         (run,) = (tmp_path / "runs").iterdir()
