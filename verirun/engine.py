@@ -15,16 +15,13 @@ from verirun import __version__
 from verirun.bench.config import Bench
 from verirun.bench.safety import HazardLimits, is_hazardous, output_guard
 from verirun.clock import SystemClock, iso
+from verirun.documents import JOURNAL_FORMAT
 from verirun.errors import BenchError, RunAborted, VerirunError
 from verirun.evaluation import evaluate
 from verirun.procedure.load import Procedure
 from verirun.procedure.plan import TestPoint, plan
 from verirun.readings import Entry, ReadingSource
 from verirun.record import Journal
-
-
-#: The journal layout a run writes (1: notes unmarked; 2: operator notes marked "by": "operator").
-JOURNAL_FORMAT = 2
 
 
 @dataclass(frozen=True, kw_only=True)

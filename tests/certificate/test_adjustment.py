@@ -64,6 +64,29 @@ def test_as_found_adjust_as_left_combined_amend_issue(at_the_bench, tmp_path, ca
     issued = BeautifulSoup(certificate_path(load_record(left), reports).read_text(encoding="utf-8"), "html.parser")
     assert text(issued, "#issued-by") == "A. Thorneycroft, Quality Manager"
 
+    # Every document these journals hold (issue, correction, as-found revision) fits the
+    # journal's shipped JSON Schema and its model.
+    fits_the_schema(found, left)
+
+
+def fits_the_schema(*runs):
+    import json
+    from importlib.resources import files
+
+    import jsonschema
+
+    from verirun.documents import validate_document
+    from verirun.record import read_journal
+
+    schema = json.loads((files("verirun") / "schema" / "journal.schema.json").read_text(encoding="utf-8"))
+    kinds = set()
+    for run in runs:
+        for doc in read_journal(run / "journal.jsonl").documents:
+            jsonschema.validate(doc, schema, cls=jsonschema.Draft202012Validator)
+            assert validate_document(doc).kind == doc["kind"]
+            kinds.add(doc["kind"])
+    assert {"start", "observation", "skip", "note", "correction", "as-found", "issue", "stop"} <= kinds
+
 
 def test_a_dry_run_as_left_of_a_calibration_is_refused(at_the_bench, tmp_path, capsys):
     """A certificate never mixes a dry run with a calibration: the as-left run is made the way
