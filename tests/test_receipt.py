@@ -124,3 +124,27 @@ def test_input_closed_at_the_condition_question_exits_2_and_writes_no_run(tmp_pa
     assert "internal error" not in result.stderr and "Traceback" not in result.stderr
     assert "Condition of the item on receipt" in result.stdout
     assert not (tmp_path / "runs").exists()
+
+
+def test_a_lab_prefix_that_could_be_a_dry_runs_is_refused(tmp_path):
+    """A lab profile whose certificate prefix begins DRYRUN is refused with file, line and field:
+    a calibration's number must never look like a dry run's."""
+    from verirun.errors import ProcedureError
+    from verirun.lab import load_lab
+
+    lab = tmp_path / "lab.yaml"
+    lab.write_text((DATA / "lab-test.yaml").read_text().replace("certificate-prefix: KFM", "certificate-prefix: dryrun-7"))
+    with pytest.raises(ProcedureError, match=r"lab.yaml:9: .*certificate-prefix.*DRYRUN begins"):
+        load_lab(lab)
+
+
+def test_a_person_listed_twice_is_refused(tmp_path):
+    """Each person who may issue is listed once, so their role is never in doubt."""
+    from verirun.errors import ProcedureError
+    from verirun.lab import load_lab
+
+    lab = tmp_path / "lab.yaml"
+    lab.write_text((DATA / "lab-test.yaml").read_text().replace(
+        "    - {name: J. Ilesanmi,", "    - {name: A.  Thorneycroft, role: Technical Manager}\n    - {name: J. Ilesanmi,"))
+    with pytest.raises(ProcedureError, match="A. Thorneycroft listed more than once"):
+        load_lab(lab)

@@ -5,7 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Literal
 
-from pydantic import StrictStr
+from pydantic import StrictStr, field_validator
 
 from verirun import yamlfile
 from verirun.procedure.model import Strict
@@ -57,6 +57,27 @@ class LabInfo(Strict):
     #: The paper the lab prints its certificates on.
     paper: Literal["A4", "letter"] = "A4"
     wording: Wording = Wording()
+
+    @field_validator("certificate_prefix")
+    @classmethod
+    def _not_a_dry_run_prefix(cls, value: str) -> str:
+        if value.strip().upper().startswith("DRYRUN"):
+            raise ValueError("DRYRUN begins the numbers of dry runs on the simulated calibrator;"
+                             " the lab's own numbers need another prefix")
+        return value
+
+    @field_validator("people_who_issue")
+    @classmethod
+    def _each_person_once(cls, value: list[Person]) -> list[Person]:
+        names = [" ".join(p.name.split()) for p in value]
+        twice = sorted({n for n in names if names.count(n) > 1})
+        if twice:
+            raise ValueError(f"{', '.join(twice)} listed more than once; list each person once, with"
+                             " the role they issue in")
+        if any(not n for n in names):
+            raise ValueError("a person with no name")
+        return value
+
     #: The spelling of the lab's certificates: "british" (authorised, centre) or "american".
     spelling: Literal["british", "american"] = "british"
     #: Remarks printed on every certificate, in the lab's own words.
