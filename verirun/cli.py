@@ -505,7 +505,7 @@ def _cmd_runs(args) -> int:
                 else f"as-found; as-left {row['as_left_run']}" if row.get("as_left_run") else "")
         bench = "" if row.get("simulated") is None else "simulated" if row["simulated"] else "real"
         cells = (row["run"], row["item"] or "", f"{row['procedure']} rev {row['revision']}", row["date"],
-                 row["verdict"], row["status"], row.get("certificate") or "", row.get("customer") or "",
+                 row["verdict"], row["status"], _certificate_cell(row), row.get("customer") or "",
                  bench, str(row.get("record_revision") or ""), link)
         table.add_row(*(Text(cell) for cell in cells))  # stored text is never read as markup
     console = _rich(wide=True)
@@ -522,7 +522,7 @@ def _cmd_runs(args) -> int:
             link = (f"as-left of {row['as_found_run']}" if row.get("as_found_run")
                     else f"as-found; as-left {row['as_left_run']}" if row.get("as_left_run") else "")
             fields = [row["item"] or "", f"{row['procedure']} rev {row['revision']}", row["date"], row["verdict"],
-                      row["status"], row.get("certificate") or "", row.get("customer") or "", bench,
+                      row["status"], _certificate_cell(row), row.get("customer") or "", bench,
                       f"revision {row.get('record_revision') or ''}", link]
             console.print(row["run"], markup=False, soft_wrap=True)
             console.print("  " + " · ".join(f for f in fields if f), markup=False, soft_wrap=True)
@@ -537,6 +537,12 @@ def _today() -> str:
     import datetime as dt
 
     return dt.datetime.now(dt.timezone.utc).date().isoformat()
+
+
+def _certificate_cell(row: dict) -> str:
+    """A run's certificate number with its state: ``KFM-... (draft)``, ``(issued)``, ``(dry run)``."""
+    number, state = row.get("certificate") or "", row.get("certificate_state")
+    return f"{number} ({state})" if number and state else number
 
 
 def _date(text: str | None, option: str) -> str | None:

@@ -317,3 +317,15 @@ def test_certify_renders_the_issued_state_again(at_the_bench, tmp_path, capsys):
     assert main(["certify", str(run), "--reports", str(tmp_path / "again")]) == 0
     assert "(revision 1 issued" in capsys.readouterr().out
     assert (tmp_path / "again" / path.name).read_bytes() == issued
+
+
+def test_runs_lists_each_certificate_state(at_the_bench, tmp_path, capsys):
+    """`verirun runs --json` says of each run whether its certificate is a draft, issued, or a dry run."""
+    draft = bench_run(tmp_path)
+    issued = bench_run(tmp_path)
+    dry = bench_run(tmp_path, simulate=True)
+    assert main(["issue", str(issued), "--by", "A. Thorneycroft"]) == 0
+    capsys.readouterr()
+    assert main(["runs", "--runs", str(tmp_path / "runs"), "--json"]) == 0
+    states = {row["run"]: row["certificate_state"] for row in json.loads(capsys.readouterr().out)}
+    assert states == {draft.name: "draft", issued.name: "issued", dry.name: "dry run"}
