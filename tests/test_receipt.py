@@ -20,7 +20,7 @@ DATA = Path(__file__).resolve().parent / "data"
 
 
 def run_args(tmp: Path, *extra: str) -> list[str]:
-    return ["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(DATA / "bench-test.yaml"),
+    return ["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(DATA / "bench-kestrel.yaml"),
             "--readings", str(DATA / "qm40-procedure-readings.csv"), "--serial", "S", "--customer", "C",
             "--runs", str(tmp / "runs"), "--reports", str(tmp / "rep"), *extra]
 

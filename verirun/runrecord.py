@@ -97,20 +97,24 @@ def build_record(documents: list[dict], source: str = "journal", *, known: Known
             entries[doc["point"]] = doc  # a later entry for the same point supersedes
         elif kind == "withdrawal":
             withdrawn = entries.pop(doc["point"], None)
-            notes.append({"time": doc["time"], "point": doc["point"],
+            after.note(notes, {"time": doc["time"], "point": doc["point"],
                           "text": f"entry {doc.get('typed')!r} of step {doc.get('index', 0) + 1} withdrawn by the"
                                   " operator before the run went on, and measured again"
-                                  if withdrawn is not None else "a withdrawal of an entry the journal does not hold"})
+                                  if withdrawn is not None else "a withdrawal of an entry the journal does not hold"}, internal=True)
         elif kind == "note":
             after.note(notes, {"time": doc["time"], "point": doc.get("point"), "text": doc["text"]},
                        internal=doc.get("by") != "operator")
         elif kind == "resume":
+            anew = (_conditions(doc.get("environment"))
+                    if doc.get("environment") != start.get("environment") else "")
             after.note(notes, {"time": doc["time"], "point": None,
                                "text": f"run resumed after an interruption with {doc['pending']} points to go"
                                        + ("; a cut-off last journal line was dropped" if doc.get("recovered_torn_line") else "")
-                                       + (_conditions(doc.get("environment"))
-                                          if doc.get("environment") != start.get("environment") else "")},
+                                       + anew},
                        internal=True)
+            if anew and after.split:  # the conditions of the measurements are the customer's to read
+                notes.append({"time": doc["time"], "point": None,
+                              "text": f"the measurements continued after a pause{anew}"})
         elif kind == "stop":
             stop = doc
     rows = []

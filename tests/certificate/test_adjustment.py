@@ -92,7 +92,7 @@ def test_a_dry_run_as_left_of_a_calibration_is_refused(at_the_bench, tmp_path, c
     """A certificate never mixes a dry run with a calibration: the as-left run is made the way
     the as-found run was."""
     found = bench_run(tmp_path)
-    assert main(["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(DATA / "bench-test.yaml"),
+    assert main(["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(DATA / "bench-kestrel.yaml"),
                  "--simulate", "--readings", str(DATA / "qm40-procedure-readings.csv"), "--serial", "QM40-77",
                  "--customer", "Fenmouth Drainage Board", "--as-left-of", str(found), "--adjustment", "x",
                  "--runs", str(tmp_path / "runs")]) == 1

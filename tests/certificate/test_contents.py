@@ -28,7 +28,7 @@ def cert(tmp_path_factory):
     readings.write_text((data / "qm40-procedure-readings.csv").read_text()
                         .replace("dcv-50,25 V,25\n", "dcv-50,25 V,skip pointer stuck at zero\n"))
     with calibrator_at_the_bench():
-        assert main(["run", str(data / "qm40-procedure.yaml"), "--bench", str(data / "bench-test.yaml"),
+        assert main(["run", str(data / "qm40-procedure.yaml"), "--bench", str(data / "bench-kestrel.yaml"),
                      "--lab", str(data / "lab-test.yaml"),
                      "--readings", str(readings), "--serial", "QM40-000017", "--asset", "AST-5",
                      "--customer", "Brightwater Pumping Co", "--customer-address", "1 Weir Lane",

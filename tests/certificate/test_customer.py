@@ -16,7 +16,7 @@ from test_issue import DATA, text
 def dry_run(tmp, *extra, readings=None, lab=None):
     """A scripted dry run of the test procedure (its 50 V AC point is a hazardous output,
     permitted for a scripted run by the bench file and journaled)."""
-    assert main(["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(DATA / "bench-test.yaml"),
+    assert main(["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(DATA / "bench-kestrel.yaml"),
                  "--simulate", "--lab", str(lab or DATA / "lab-test.yaml"),
                  "--readings", str(readings or DATA / "qm40-procedure-readings.csv"), "--serial", "S", "--customer", "C",
                  "--runs", str(tmp / "runs"), "--reports", str(tmp / "rep"), *extra]) == 0
@@ -79,7 +79,7 @@ def test_verirun_s_own_sentences_follow_the_lab_s_spelling(tmp_path):
     lab.write_text((DATA / "lab-test.yaml").read_text() + "  spelling: american\n")
     procedure = tmp_path / "p.yaml"
     procedure.write_text((DATA / "qm40-procedure.yaml").read_text().replace("  rule: simple", "  rule: non-binary"))
-    assert main(["run", str(procedure), "--bench", str(DATA / "bench-test.yaml"), "--simulate",
+    assert main(["run", str(procedure), "--bench", str(DATA / "bench-kestrel.yaml"), "--simulate",
                  "--lab", str(lab), "--readings", str(DATA / "qm40-procedure-readings.csv"), "--serial", "S",
                  "--customer", "C", "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "rep")]) == 0
     (run,) = (tmp_path / "runs").iterdir()

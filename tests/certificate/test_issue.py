@@ -27,7 +27,7 @@ DATA = Path(__file__).resolve().parents[1] / "data"
 def bench_run(tmp: Path, *extra: str, readings: Path | None = None, simulate: bool = False) -> Path:
     """One run of the test procedure at the test bench (or as a dry run); its run folder."""
     before = set((tmp / "runs").iterdir()) if (tmp / "runs").exists() else set()
-    assert main(["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(DATA / "bench-test.yaml"),
+    assert main(["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(DATA / "bench-kestrel.yaml"),
                  "--lab", str(DATA / "lab-test.yaml"), *(["--simulate"] if simulate else []),
                  "--readings", str(readings or DATA / "qm40-procedure-readings.csv"), "--serial", "QM40-77",
                  "--customer", "Fenmouth Drainage Board", "--condition", "Case cracked at the hinge; works.",
@@ -131,8 +131,8 @@ class TestDraftIssueAmendReissue:
     def test_an_unfinished_run_is_not_issued(self, at_the_bench, tmp_path, capsys):
         """A run stopped before its last point is refused (resume it first); nothing is written."""
         readings = tmp_path / "short.csv"
-        readings.write_text("\n".join((DATA / "qm40-procedure-readings.csv").read_text().splitlines()[:4]) + "\n")
-        assert main(["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(DATA / "bench-test.yaml"),
+        readings.write_text((DATA / "qm40-procedure-readings.csv").read_text().replace("dcv-10,8 V,8.25", "dcv-10,8 V,abort"))
+        assert main(["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(DATA / "bench-kestrel.yaml"),
                      "--lab", str(DATA / "lab-test.yaml"), "--readings", str(readings), "--serial", "S",
                      "--customer", "C", "--condition", "as new", "--runs", str(tmp_path / "runs")]) != 0
         (run,) = (tmp_path / "runs").iterdir()
@@ -183,7 +183,7 @@ class TestDryRun:
         from verirun.bench.sim import sim_library
 
         bench = tmp_path / "bench.yaml"
-        bench.write_text((DATA / "bench-test.yaml").read_text().replace(
+        bench.write_text((DATA / "bench-kestrel.yaml").read_text().replace(
             "  profile: scpi-generic\n", f"  profile: scpi-generic\n  visa-library: {sim_library(tmp_path / 'dev')}\n"))
         assert main(["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(bench),
                      "--lab", str(DATA / "lab-test.yaml"), "--readings", str(DATA / "qm40-procedure-readings.csv"),

@@ -76,7 +76,7 @@ def non_binary_as_left(tmp_path_factory) -> Path:
     tmp = tmp_path_factory.mktemp("wide")
     procedure = tmp / "non-binary.yaml"
     procedure.write_text((data / "qm40-procedure.yaml").read_text().replace("  rule: simple", "  rule: non-binary"))
-    common = ["run", str(procedure), "--bench", str(data / "bench-test.yaml"), "--simulate",
+    common = ["run", str(procedure), "--bench", str(data / "bench-kestrel.yaml"), "--simulate",
               "--readings", str(data / "qm40-procedure-readings.csv"), "--serial", "S", "--customer", "C",
               "--runs", str(tmp / "runs"), "--reports", str(tmp / "rep")]
     assert main(common) == 0
