@@ -106,7 +106,8 @@ def _parser() -> argparse.ArgumentParser:
     issue.add_argument("run", type=Path, help="the run folder")
     issue.add_argument("--by", required=True, help="who issues it, by name as the lab profile lists them")
     issue.add_argument("--lab", type=Path, help="the lab profile whose people may issue (default: the lab the run was made under)")
-    issue.add_argument("--reports", type=Path, default=Path("reports"), help="folder for certificates")
+    issue.add_argument("--reports", type=Path, help="folder for certificates (default: the one the run started with,"
+                                                   " where its draft is)")
     issue.add_argument("--pdf", action="store_true", help="write a PDF beside the HTML certificate (needs WeasyPrint)")
 
     verify = sub.add_parser("verify", help="check that stored runs are as recorded (journal chain and record)")
@@ -381,7 +382,7 @@ def _cmd_issue(args) -> int:
 
         lab = load_lab(args.lab).lab.model_dump(mode="json")
     record = issue(args.run, by=args.by, lab=lab)
-    out = write_certificate(record, args.reports)
+    out = write_certificate(record, args.reports or _reports_of(args.run))
     print(f"{args.run}: {state_of(record)}; certificate {out}")
     if args.pdf:
         print(f"  and {write_pdf(out.read_text(encoding='utf-8'), out.with_suffix('.pdf'))}")
@@ -424,6 +425,15 @@ def _cmd_resume(args) -> int:
                       environment=environment)
     _summary(rich, finished)
     return EXIT_OK
+
+
+def _reports_of(run: Path) -> Path:
+    """The certificate folder the run at ``run`` started with (``reports`` for older runs)."""
+    from verirun.integrity import run_folder
+    from verirun.record import JOURNAL_NAME, read_journal
+
+    docs = read_journal(run_folder(run) / JOURNAL_NAME).documents
+    return Path((docs[0].get("reports") if docs else None) or "reports")
 
 
 def _state(path) -> str:

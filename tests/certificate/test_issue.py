@@ -329,3 +329,13 @@ def test_runs_lists_each_certificate_state(at_the_bench, tmp_path, capsys):
     assert main(["runs", "--runs", str(tmp_path / "runs"), "--json"]) == 0
     states = {row["run"]: row["certificate_state"] for row in json.loads(capsys.readouterr().out)}
     assert states == {draft.name: "draft", issued.name: "issued", dry.name: "dry run"}
+
+
+def test_the_issued_certificate_replaces_the_draft_where_it_is(at_the_bench, tmp_path):
+    """Without --reports, issue writes into the folder the run put its draft in."""
+    run = bench_run(tmp_path)
+    draft = certificate_path(load_record(run), tmp_path / "rep")
+    assert BeautifulSoup(draft.read_text(encoding="utf-8"), "html.parser").body["data-state"] == "draft"
+    assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 0
+    assert BeautifulSoup(draft.read_text(encoding="utf-8"), "html.parser").body["data-state"] == "issued"
+    assert not Path("reports").exists()
