@@ -339,3 +339,18 @@ def test_the_issued_certificate_replaces_the_draft_where_it_is(at_the_bench, tmp
     assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 0
     assert BeautifulSoup(draft.read_text(encoding="utf-8"), "html.parser").body["data-state"] == "issued"
     assert not Path("reports").exists()
+
+
+def test_a_name_with_markup_is_printed_as_text(at_the_bench, tmp_path):
+    """A person's name and role with markup in the lab profile appear on the certificate as the
+    text they are, never as markup."""
+    lab = tmp_path / "lab.yaml"
+    lab.write_text((DATA / "lab-test.yaml").read_text().replace(
+        "    - {name: J. Ilesanmi, role: Deputy Technical Manager}",
+        "    - {name: '<b>Eve</b>', role: '\"/><script>alert(1)</script>'}"))
+    run = bench_run(tmp_path)
+    assert main(["issue", str(run), "--by", "<b>Eve</b>", "--lab", str(lab), "--reports", str(tmp_path / "rep")]) == 0
+    html = certificate_path(load_record(run), tmp_path / "rep").read_text(encoding="utf-8")
+    soup = BeautifulSoup(html, "html.parser")
+    assert text(soup, "#issued-by") == '<b>Eve</b>, "/><script>alert(1)</script>'
+    assert soup.select_one("#issued-by b") is None and soup.find("script") is None
