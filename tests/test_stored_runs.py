@@ -15,7 +15,7 @@ from pathlib import Path
 
 import pytest
 
-from verirun.certificate.render import DRY_RUN_PREFIX, TEMPLATE_VERSION, render_html
+from verirun.certificate.render import DRY_RUN_PREFIX, TEMPLATE_VERSION, certificate_path, render_html
 from verirun.cli import main
 from verirun.integrity import verified_record
 from verirun.record import read_journal
@@ -57,7 +57,10 @@ class TestStoredRun:
         """`verirun certify` renders the stored run; with the same template, to the stored bytes;
         with another, to the same verdict at every step."""
         assert main(["certify", str(run), "--reports", str(tmp_path)]) == 0
-        (written,) = sorted(tmp_path.glob("*.html"))
+        written = certificate_path(verified_record(run), tmp_path)
+        # Besides the current revision, an amended run's earlier one, marked as replaced.
+        assert written.is_file()
+        assert len(list(tmp_path.glob("*.html"))) == (2 if run.name == "format1-amended" else 1)
         # Every stored run is a dry run on the simulated calibrator: since template 2 its number
         # carries the dry-run prefix in place of the lab's, and is otherwise the same.
         stored = run / "certificate" / written.name.replace(f"{DRY_RUN_PREFIX}-", "THCL-", 1)

@@ -100,7 +100,7 @@ def _parser() -> argparse.ArgumentParser:
     amend.add_argument("--reading", required=True, help="the reading as it should have been recorded")
     amend.add_argument("--reason", required=True, help="why (printed on the certificate)")
     amend.add_argument("--operator", default=os.environ.get("USER", "operator"), help="who makes the correction")
-    amend.add_argument("--reports", type=Path, default=Path("reports"), help="folder for certificates")
+    amend.add_argument("--reports", type=Path, help="folder for certificates (default: the one the run started with)")
 
     issue = sub.add_parser("issue", help="issue a run's certificate after review: records who authorised it, when and in which role")
     issue.add_argument("run", type=Path, help="the run folder")
@@ -360,13 +360,14 @@ def _cmd_amend(args) -> int:
     from verirun.issue import earlier_revisions, state_of
 
     record = amend(args.run, point=args.point, reading=args.reading, reason=args.reason, operator=args.operator)
-    out = write_certificate(record, args.reports)
+    reports = args.reports or _reports_of(args.run)
+    out = write_certificate(record, reports)
     earlier, replaced = earlier_revisions(args.run)[-1]
-    kept = write_certificate(earlier, args.reports, replaced_by=replaced)
+    kept = write_certificate(earlier, reports, replaced_by=replaced)
     print(f"{args.run}: revision {record['run']['revision']} ({state_of(record)}); certificate {out}")
     print(f"  the certificate it replaces stays readable, marked as replaced: {kept}")
     for folder, left in revise_as_left(args.run, reason=args.reason, operator=args.operator):
-        combined = write_certificate(left, args.reports)
+        combined = write_certificate(left, args.reports or _reports_of(folder))
         print(f"{folder}: the as-left run's combined certificate takes the corrected as-found results:"
               f" revision {left['run']['revision']} ({state_of(left)}); certificate {combined}")
     return EXIT_OK
@@ -486,6 +487,8 @@ def _cmd_certify(args) -> int:
             extra = f" and {outcome.pdf}" if outcome.pdf else ""
             print(f"{outcome.run}: certificate {outcome.certificate}{extra} ({outcome.state})"
                   + (f" ({outcome.note})" if outcome.note else ""))
+            for earlier in outcome.replaced:
+                print(f"  and {earlier}, the revision it replaces, marked as replaced")
     for outcome in failed:
         _err(f"error: {outcome.error}")
     rendered = len(outcomes) - len(failed)

@@ -143,8 +143,10 @@ def earlier_revisions(path: str | Path) -> list[tuple[dict, dict]]:
     from verirun.runrecord import build_record
 
     folder = run_folder(path)
-    verified_record(folder)
     docs = read_journal(folder / JOURNAL_NAME).documents
+    if not any(doc["kind"] in ("correction", "as-found") for doc in docs):
+        return []  # one revision: nothing replaced (and nothing to verify here)
+    verified_record(folder)
     out = []
     for position, doc in enumerate(docs):
         if doc["kind"] in ("correction", "as-found"):

@@ -354,3 +354,25 @@ def test_a_name_with_markup_is_printed_as_text(at_the_bench, tmp_path):
     soup = BeautifulSoup(html, "html.parser")
     assert text(soup, "#issued-by") == '<b>Eve</b>, "/><script>alert(1)</script>'
     assert soup.select_one("#issued-by b") is None and soup.find("script") is None
+
+
+def test_certify_renders_a_replaced_revision_marked_as_replaced(at_the_bench, tmp_path, capsys):
+    """From the stored run alone, certify renders the current revision and, marked as replaced
+    and as it was issued, the revision it replaces."""
+    run = bench_run(tmp_path)
+    assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 0
+    assert main(["amend", str(run), "--point", "4", "--reading", "8.0", "--reason", "typed wrong",
+                 "--operator", "T. Quayle"]) == 0
+    capsys.readouterr()
+    again = tmp_path / "again"
+    assert main(["certify", str(run), "--reports", str(again)]) == 0
+    assert "marked as replaced" in capsys.readouterr().out
+    record = load_record(run)
+    current = certificate_path(record, again)
+    old = again / current.name.replace("-R2.html", ".html")
+    assert sorted(again.glob("*.html")) == sorted([current, old])
+    soup = BeautifulSoup(old.read_text(encoding="utf-8"), "html.parser")
+    assert current.stem in text(soup, "#replaced-by") and "typed wrong" in text(soup, "#replaced-by")
+    assert text(soup, "#issued-by") == "A. Thorneycroft, Quality Manager"
+    # The same bytes as amend wrote into the run's own folder.
+    assert old.read_bytes() == (tmp_path / "rep" / old.name).read_bytes()

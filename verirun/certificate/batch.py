@@ -33,6 +33,8 @@ class Outcome:
     note: str | None = None
     #: A dry run, a draft, or issued by whom (see :func:`verirun.issue.state_of`).
     state: str | None = None
+    #: The certificates of earlier revisions, rendered again marked as replaced.
+    replaced: tuple[str, ...] = ()
 
 
 def find_runs(paths: list[Path]) -> list[Path]:
@@ -57,7 +59,7 @@ def certify_one(run: Path, reports_dir: Path, pdf: bool = False) -> Outcome:
     from verirun.certificate.render import TEMPLATE_VERSION, certificate_path, render_html, write_pdf
     from verirun.errors import VerirunError
     from verirun.integrity import verified_record
-    from verirun.issue import state_of
+    from verirun.issue import earlier_revisions, state_of
 
     try:
         if not Path(run).exists():
@@ -74,8 +76,14 @@ def certify_one(run: Path, reports_dir: Path, pdf: bool = False) -> Outcome:
         tmp.write_bytes(html)
         tmp.replace(path)
         pdf_path = write_pdf(html.decode("utf-8"), path.with_suffix(".pdf")) if pdf else None
+        replaced = []
+        for earlier, replaced_by in earlier_revisions(run):  # each stays readable, marked replaced
+            old = certificate_path(earlier, reports_dir)
+            old.with_suffix(".tmp").write_text(render_html(earlier, replaced_by=replaced_by), encoding="utf-8")
+            old.with_suffix(".tmp").replace(old)
+            replaced.append(str(old))
         return Outcome(run=str(run), certificate=str(path), pdf=str(pdf_path) if pdf_path else None, note=note,
-                       state=state_of(record))
+                       state=state_of(record), replaced=tuple(replaced))
     except VerirunError as exc:
         return Outcome(run=str(run), error=str(exc))
     except Exception as exc:  # one bad record never stops the batch
