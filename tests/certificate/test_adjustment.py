@@ -55,7 +55,7 @@ def test_as_found_adjust_as_left_combined_amend_issue(at_the_bench, tmp_path, ca
     soup = BeautifulSoup(certificate_path(revised, reports).read_text(encoding="utf-8"), "html.parser")
     assert text(soup, 'tr[data-key="dcv-50@25.0"] td[data-pass="as-found"]').startswith("24.9")
     changes = text(soup, "#revision-changes")
-    assert f"replaces certificate {before}" in changes and "misread scale" in changes
+    assert f"replaces the draft {before}, which was not issued" in changes and "misread scale" in changes
     assert "skipped as found" not in text(soup, "#deviations")
     assert main(["verify", str(left), str(found)]) == 0
 

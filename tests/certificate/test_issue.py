@@ -376,3 +376,13 @@ def test_certify_renders_a_replaced_revision_marked_as_replaced(at_the_bench, tm
     assert text(soup, "#issued-by") == "A. Thorneycroft, Quality Manager"
     # The same bytes as amend wrote into the run's own folder.
     assert old.read_bytes() == (tmp_path / "rep" / old.name).read_bytes()
+
+
+def test_amending_a_draft_says_the_draft_was_not_issued(at_the_bench, tmp_path):
+    """A correction before anyone issued the run replaces a draft, and says so."""
+    run = bench_run(tmp_path)
+    number = certificate_path(load_record(run), tmp_path / "rep").stem
+    assert main(["amend", str(run), "--point", "4", "--reading", "8.0", "--reason", "typed wrong",
+                 "--operator", "T. Quayle"]) == 0
+    soup = BeautifulSoup(certificate_path(load_record(run), tmp_path / "rep").read_text(encoding="utf-8"), "html.parser")
+    assert f"replaces the draft {number}, which was not issued" in text(soup, "#revision-changes")

@@ -64,6 +64,7 @@ def reading_context(record: dict, *, replaced_by: dict | None = None) -> dict:
     page_mark, watermark = _marks(state, replaced_by)
     return {
         "state": state, "issue": issue, "replaced_by": replaced_by,
+        "replaces_issued": any(i["revision"] == run.get("revision", 1) - 1 for i in record.get("issues", [])),
         "page_mark": page_mark, "watermark": watermark,
         "words": SPELLING[record["lab"].get("spelling", "british")],
         "spelling": record["lab"].get("spelling", "british"),
