@@ -348,7 +348,8 @@ def document_problem(data: Any) -> str | None:
     return None
 
 
-_KINDS = ("start", "resume", "observation", "skip", "note", "withdrawal", "correction", "stop")
+_KINDS = ("start", "resume", "observation", "skip", "note", "withdrawal", "correction", "stop", "issue",
+          "as-found")
 
 
 def _shown(value: Any) -> str:
