@@ -9,18 +9,15 @@ issued in its turn. A dry run on the simulated calibrator is never issued.
 
 from __future__ import annotations
 
-import contextlib
-import os
 from pathlib import Path
 
 from verirun.clock import SystemClock, iso
 from verirun.errors import RecordError
 from verirun.integrity import run_folder, verified_record
 from verirun.lab import people_who_issue
+from verirun.locks import run_lock
 from verirun.record import JOURNAL_NAME, Journal, read_journal
 
-#: The file whose lock is held while a run is issued.
-LOCK_NAME = "issue.lock"
 
 
 def issue(path: str | Path, *, by: str, lab: dict | None = None, clock=None) -> dict:
@@ -44,35 +41,11 @@ def issue(path: str | Path, *, by: str, lab: dict | None = None, clock=None) -> 
     """
     clock = clock or SystemClock()
     folder = run_folder(path)
-    _issue(folder, by=by, lab=lab, clock=None)  # refused here, nothing is written (not even the lock)
-    with issuing(folder):
+    _issue(folder, by=by, lab=lab, clock=None)  # refused here, nothing is written
+    # The run's one writer: two people issuing at once get one issue (the other is told the
+    # run is busy, and then that it was issued already), and nobody amends it meanwhile.
+    with run_lock(folder):
         return _issue(folder, by=by, lab=lab, clock=clock)
-
-
-@contextlib.contextmanager
-def issuing(folder: Path):
-    """Hold the run's issue lock: two people issuing one run at once get one issue, and a
-    clear refusal, never two issue documents for one revision.
-
-    Raises
-    ------
-    RecordError
-        If another process holds it, or the run folder cannot be written.
-    """
-    import fcntl
-
-    try:
-        fd = os.open(folder / LOCK_NAME, os.O_RDWR | os.O_CREAT, 0o644)
-    except OSError as exc:
-        raise RecordError(f"{folder}: cannot write in the run folder: {exc.strerror or exc}; nothing was issued") from None
-    try:
-        try:
-            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
-        except BlockingIOError:
-            raise RecordError(f"{folder}: someone else is issuing this run right now; nothing was issued") from None
-        yield
-    finally:
-        os.close(fd)  # closing releases the lock
 
 
 def _issue(folder: Path, *, by: str, lab: dict | None, clock) -> dict:
@@ -103,14 +76,11 @@ def _issue(folder: Path, *, by: str, lab: dict | None, clock) -> dict:
     person = find_person(lab, by)
     if clock is None:  # the check before the lock is taken
         return record
-    try:
-        with Journal(folder / JOURNAL_NAME) as journal:
-            journal.append({"kind": "issue", "time": iso(clock.now()), "by": person["name"],
-                            "role": person["role"], "revision": revision, "certificate": number})
-        return close_run(folder)
-    except OSError as exc:  # a full disk, a folder made read-only: said, not a traceback
-        raise RecordError(f"{folder}: cannot write the run's journal or record: {exc.strerror or exc};"
-                          " check the disk, then issue again ('verirun verify' shows whether it was issued)") from None
+    # A full disk or a folder made read-only is a StorageError, said with what to free or fix.
+    with Journal(folder / JOURNAL_NAME) as journal:
+        journal.append({"kind": "issue", "time": iso(clock.now()), "by": person["name"],
+                        "role": person["role"], "revision": revision, "certificate": number})
+    return close_run(folder)
 
 
 def find_person(lab: dict, name: str) -> dict:

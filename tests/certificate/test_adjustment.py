@@ -34,12 +34,13 @@ def test_as_found_adjust_as_left_combined_amend_issue(at_the_bench, tmp_path, ca
     # One table per range; each point's as-found and as-left result in one row, both verdicts.
     tables = soup.select('table[data-pass="as-found-and-as-left"]')
     assert [t["data-range"] for t in tables] == [r["id"] for r in record["ranges"]]
-    row = soup.select_one('tr[data-key="dcv-10@8.0"]')
+    row = soup.select_one('tr[data-key="dcv-10@8V"]')
     assert row.select_one('td[data-verdict="as-found"]').get_text() == "FAIL"
     assert row.select_one('td[data-verdict="as-left"]').get_text() == "PASS"
     # The statement of conformity covers what was found and what was left.
     overall = text(soup, "#overall")
-    assert "as found, before the adjustment: the item did NOT conform" in overall
+    assert "As found, before the adjustment: Statement of conformity" in overall
+    assert "does NOT conform" in overall.split("As left, after the adjustment:")[0]
     assert "As left, after the adjustment:" in overall
     # Deviations of both runs: the point skipped as found is listed.
     assert "skipped as found: pointer stuck at zero" in text(soup, "#deviations")
@@ -53,7 +54,7 @@ def test_as_found_adjust_as_left_combined_amend_issue(at_the_bench, tmp_path, ca
     assert revised["run"]["revision"] == 2
     assert revised["as_found"]["certificate"].endswith("-R2")
     soup = BeautifulSoup(certificate_path(revised, reports).read_text(encoding="utf-8"), "html.parser")
-    assert text(soup, 'tr[data-key="dcv-50@25.0"] td[data-pass="as-found"]').startswith("24.9")
+    assert text(soup, 'tr[data-key="dcv-50@25V"] td[data-pass="as-found"]').startswith("24.9")
     changes = text(soup, "#revision-changes")
     assert f"replaces the draft {before}, which was not issued" in changes and "misread scale" in changes
     assert "skipped as found" not in text(soup, "#deviations")

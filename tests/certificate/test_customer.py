@@ -41,9 +41,9 @@ def test_an_operator_note_sits_beside_its_point(tmp_path):
     readings.write_text((DATA / "qm40-procedure-readings.csv").read_text().replace(
         "dcv-10,6 V,6.2\n", "dcv-10,6 V,note pointer sticks near 6 V; tapped free\ndcv-10,6 V,6.2\n"))
     record, soup = dry_run(tmp_path, readings=readings)
-    row = soup.select_one('tr[data-key="dcv-10@6.0"]')
+    row = soup.select_one('tr[data-key="dcv-10@6V"]')
     note = row.find_next_sibling("tr")
-    assert note["data-note-for"] == "dcv-10@6.0"
+    assert note["data-note-for"] == "dcv-10@6V"
     assert text(note, "td") == "Note: pointer sticks near 6 V; tapped free"
     assert soup.select_one("#notes") is None  # no other notes for the customer
 

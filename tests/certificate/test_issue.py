@@ -117,7 +117,7 @@ class TestDraftIssueAmendReissue:
         assert r2 in text(old, "#replaced-by") and reason in text(old, "#replaced-by")
         assert text(old, "#page-mark") == f"REPLACED BY CERTIFICATE {r2}: NOT CURRENT"
         assert text(old, "#issued-by") == "A. Thorneycroft, Quality Manager"  # as it was issued
-        assert "8.25" in text(old, 'tr[data-key="dcv-10@8.0"]')  # the reading as it was
+        assert "8.25" in text(old, 'tr[data-key="dcv-10@8V"]')  # the reading as it was
 
         # Re-issue: the new revision gets its own issue, by another listed person.
         assert main(["issue", str(run), "--by", "J. Ilesanmi", "--reports", str(reports)]) == 0
@@ -254,16 +254,17 @@ def test_the_issue_document_is_in_the_record_and_journal_chain(at_the_bench, tmp
 
 
 def test_two_people_issuing_at_once_get_one_issue(at_the_bench, tmp_path, capsys):
-    """While one process holds the issue lock, another's issue is refused and writes nothing."""
-    from verirun.issue import issuing
+    """While one process holds the run's writer lock, another's issue is refused as busy and
+    writes nothing."""
+    from verirun.locks import run_lock
 
     run = bench_run(tmp_path)
-    assert main(["issue", str(run), "--by", "P. Nobody"]) == 1  # refused before any lock file
-    assert not (run / "issue.lock").exists()
-    with issuing(run):
-        before = files_of(run)
-        assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 1
-        assert "someone else is issuing this run right now" in capsys.readouterr().err
+    before = files_of(run)
+    assert main(["issue", str(run), "--by", "P. Nobody"]) == 1  # refused before the lock is taken
+    assert files_of(run) == before
+    with run_lock(run):
+        assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 5
+        assert "in use by another verirun process" in capsys.readouterr().err
         assert files_of(run) == before
     assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 0
 
@@ -290,7 +291,8 @@ def test_an_older_profile_s_signatory_may_issue():
 
 
 def test_a_full_disk_while_issuing_is_said_not_a_traceback(at_the_bench, tmp_path, capsys, monkeypatch):
-    """If the journal cannot be written (ENOSPC), issue exits 1 with the reason, not as a bug."""
+    """If the journal cannot be written (ENOSPC), issue exits 3 (a file that could not be
+    written) with the reason, not as a bug."""
     import errno
     import os as os_module
 
@@ -302,8 +304,8 @@ def test_a_full_disk_while_issuing_is_said_not_a_traceback(at_the_bench, tmp_pat
         raise OSError(errno.ENOSPC, "No space left on device")
 
     monkeypatch.setattr(record_module.os, "fsync", full)
-    assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 1
-    assert "No space left on device" in capsys.readouterr().err
+    assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 3
+    assert "journal.jsonl: no space left on the device" in capsys.readouterr().err
     monkeypatch.setattr(record_module.os, "fsync", os_module.fsync)
 
 
