@@ -288,9 +288,11 @@ def _entries(documents: list[dict], planned: list[TestPoint], journal_format: in
                                "text": text + ("; a cut-off last journal line was dropped"
                                                if doc.get("recovered_torn_line") else "") + anew},
                        internal=True)
-            if anew and after.split:  # the conditions of the measurements are the customer's to read
+            standard = (f" with the standard's calibration renewed: certificate {renewed.get('certificate')},"
+                        f" due {renewed.get('calibration_due')}" if isinstance(renewed, dict) else "")
+            if (anew or standard) and after.split:  # the measurements' conditions are the customer's to read
                 notes.append({"time": doc["time"], "point": None,
-                              "text": f"the measurements continued after a pause{anew}"})
+                              "text": f"the measurements continued after a pause{standard}{anew}"})
         elif kind == "stop":
             stop = doc
         else:
