@@ -16,7 +16,7 @@ from verirun.errors import RecordError
 from verirun.integrity import run_folder, verified_record
 from verirun.lab import people_who_issue
 from verirun.locks import run_lock
-from verirun.record import JOURNAL_NAME, Journal, read_journal
+from verirun.record import JOURNAL_NAME, Journal, load_record, read_journal
 
 
 
@@ -138,7 +138,12 @@ def earlier_states(path: str | Path, record: dict, *, replaced_by: dict | None =
     folder = run_folder(path)
     docs = read_journal(folder / JOURNAL_NAME).documents
     revision = record["run"].get("revision", 1)
-    out = [render_html(record).encode("utf-8")] if replaced_by is not None else []
+    out = []
+    if replaced_by is not None:
+        out.append(render_html(record).encode("utf-8"))
+        kept = folder / f"record.r{revision}.json"  # as stored: a record of an earlier format has its own figures
+        if kept.exists():
+            out.append(render_html(load_record(kept)).encode("utf-8"))
     for position, doc in enumerate(docs):
         if doc["kind"] == "issue" and doc.get("revision") == revision:
             draft = build_record(docs[:position], str(folder / JOURNAL_NAME))
