@@ -38,3 +38,12 @@ def _work_in_tmp(tmp_path, monkeypatch):
     monkeypatch.chdir(tmp_path)
     (tmp_path / ".runtime").mkdir()
     monkeypatch.setenv("XDG_RUNTIME_DIR", str(tmp_path / ".runtime"))
+
+
+@pytest.fixture
+def at_the_bench():
+    """See :func:`at_the_bench.calibrator_at_the_bench`."""
+    from at_the_bench import calibrator_at_the_bench
+
+    with calibrator_at_the_bench():
+        yield

@@ -4,6 +4,7 @@ closed run is never resumed, cut short, or certified twice under one number with
 from __future__ import annotations
 
 import shutil
+from pathlib import Path
 
 import pytest
 
@@ -189,10 +190,13 @@ class TestStoppedBeforeTheStart:
         bench = tmp_path / "bench.yaml"
         from runkit import BENCH
 
+        # Not the simulator's library (a bench reached through it is a dry run): a real bench's,
+        # which is not there.
         bench.write_text(BENCH.read_text().replace("resource: GPIB0::4::INSTR", "resource: GPIB0::4::INSTR\n"
-                                                   "  visa-library: /nonexistent/device.yaml@sim"))
+                                                   "  visa-library: /nonexistent/libvisa.so"))
         args = run_args(tmp_path, bench=bench)
         args.remove("--simulate")
+        args += ["--lab", Path(__file__).parent / "data" / "lab-test.yaml", "--condition", "as new"]
         code = cli(*args)
         err = capsys.readouterr().err
         assert code == 3, err

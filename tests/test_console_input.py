@@ -209,7 +209,9 @@ class TestUndo:
         withdrawal = next(d for d in docs if d["kind"] == "withdrawal")
         assert withdrawal["typed"] == "5.5" and withdrawal["index"] == 0
         assert finished.record["points"][0]["typed"] == "5.05"
-        assert any("'5.5' of step 1 withdrawn" in n["text"] for n in finished.record["notes"])
+        # The withdrawal is the run's internal log, not a note for the customer.
+        assert any("'5.5' of step 1 withdrawn" in n["text"] for n in finished.record["run_log"])
+        assert not any("withdrawn" in n["text"] for n in finished.record["notes"])
         fits_the_journal_schema(docs)
 
     def test_undo_on_another_range_asks_for_the_leads_again(self, tmp_path, demo_lab_path):
@@ -330,6 +332,9 @@ class TestAtTheTerminal:
                          "--temperature", "23", "--humidity", "40", "--runs", "runs", "--reports", "rep"],
                         cwd=tmp_path)
         try:
+            # Not given on the command line: the condition on receipt is asked, in words.
+            term.expect("Condition of the item on receipt")
+            term.type("Dial glass cracked; reads.")
             term.expect("Press Enter")
             term.type("5")
             term.expect("not taken")

@@ -165,7 +165,9 @@ class TestDates:
         assert len(jumps) == 1 and jumps[0]["clock_went_back"].startswith("2026-11-30T19:")
         rec = finished.record
         assert rec["run"]["ended"][:10] >= rec["run"]["started"][:10] == "2026-12-01"
-        assert any("clock went back" in n["text"] for n in rec["notes"])
+        # the jump is the run's internal log, not a note for the customer
+        assert any("clock went back" in n["text"] for n in rec["run_log"])
+        assert not any("clock went back" in n["text"] for n in rec["notes"])
         assert problems(finished.run_dir) == []
 
     def test_a_standard_falling_due_at_midnight_stops_the_run_resumable(self, tmp_path):

@@ -13,8 +13,22 @@ from runkit import BENCH, READINGS, cli, documents, only_run, readings_file, rec
 from verirun.integrity import problems
 
 
-def verirun(args: list, env: dict, **kw) -> subprocess.Popen:
-    return subprocess.Popen([sys.executable, "-m", "verirun", *[str(a) for a in args]], env=env,
+#: A verirun process at a real bench whose calibrator is reached through the simulated device
+#: (see :func:`at_the_bench.calibrator_at_the_bench`).
+_AT_THE_BENCH = f"""
+import sys
+sys.path.insert(0, {str(Path(__file__).parent)!r})
+from at_the_bench import calibrator_at_the_bench
+from verirun.cli import main
+with calibrator_at_the_bench():
+    code = main(sys.argv[1:])
+sys.exit(code)
+"""
+
+
+def verirun(args: list, env: dict, *, at_the_bench: bool = False, **kw) -> subprocess.Popen:
+    command = ["-c", _AT_THE_BENCH] if at_the_bench else ["-m", "verirun"]
+    return subprocess.Popen([sys.executable, *command, *[str(a) for a in args]], env=env,
                             stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, **kw)
 
 
@@ -69,26 +83,23 @@ class TestOneVerirunPerCalibrator:
         """Two runs of different items on one bench: while the first holds the calibrator (its
         VISA resource), the second is refused before it opens the resource, names it and the
         holder's pid, and leaves no run folder behind."""
-        device = tmp_path / "device" / "calibrator.yaml"
-        device.parent.mkdir()
-        shutil.copy(Path(__import__("verirun.bench.sim", fromlist=["x"]).__file__).parent / "calibrator.yaml",
-                    device)
-        bench = tmp_path / "bench.yaml"
-        bench.write_text(BENCH.read_text().replace("resource: GPIB0::4::INSTR", "resource: GPIB0::4::INSTR\n"
-                                                   f"  visa-library: {device}@sim"))
+        # A real bench (a bench reached through the simulator's library is a dry run, which
+        # locks no instrument): each process reaches the calibrator through the simulated device.
+        bench = BENCH
         env = {**os.environ}
-        args = run_args(tmp_path, bench=bench, serial="FIRST")
+        at_bench = ["--lab", Path(__file__).parent / "data" / "lab-test.yaml", "--condition", "as new"]
+        args = [*run_args(tmp_path, bench=bench, serial="FIRST"), *at_bench]
         args.remove("--simulate")
         args[args.index("--readings"):args.index("--readings") + 2] = []
-        first = verirun(args, env)
+        first = verirun(args, env, at_the_bench=True)
         try:
             assert wait_for(lambda: (tmp_path / "runs").is_dir() and any(
                 (p / "journal.jsonl").exists() and documents(p) for p in (tmp_path / "runs").iterdir()), first), \
                 first.communicate(timeout=10)
             second_runs = tmp_path / "second-runs"
-            args2 = run_args(tmp_path, bench=bench, serial="SECOND", runs=second_runs)
+            args2 = [*run_args(tmp_path, bench=bench, serial="SECOND", runs=second_runs), *at_bench]
             args2.remove("--simulate")
-            second = subprocess.run([sys.executable, "-m", "verirun", *map(str, args2)], env=env,
+            second = subprocess.run([sys.executable, "-c", _AT_THE_BENCH, *map(str, args2)], env=env,
                                     capture_output=True, text=True, timeout=60)
             assert second.returncode == 5, second.stderr
             assert (f"the calibrator at 'GPIB0::4::INSTR' is in use by another verirun process"

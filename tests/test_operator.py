@@ -228,6 +228,7 @@ class TestClosedInput:
 
         cmd = [sys.executable, "-m", "verirun", "run", str(demo_procedure_path), "--bench", str(demo_bench_path),
                "--simulate", "--serial", "EOF", "--customer", "C", "--temperature", "23", "--humidity", "40",
+               "--condition", "as new",
                "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "rep")]
         result = subprocess.run(cmd, stdin=subprocess.DEVNULL, capture_output=True, text=True, timeout=60)
         assert result.returncode == 2, result.stderr

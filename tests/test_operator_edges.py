@@ -237,7 +237,7 @@ class TestSilenceWithTheOutputOn:
         procedure.write_text(PROCEDURE.read_text().split("  - id: dcv-100")[0])
         proc = subprocess.Popen(
             [sys.executable, "-m", "verirun", "run", str(procedure), "--bench", str(bench), "--simulate",
-             "--serial", "SIL", "--customer", "C", "--temperature", "23", "--humidity", "45",
+             "--serial", "SIL", "--customer", "C", "--condition", "as new", "--temperature", "23", "--humidity", "45",
              "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "reports")],
             stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
         proc.stdin.write(b"\n")  # the leads are connected
@@ -245,7 +245,10 @@ class TestSilenceWithTheOutputOn:
         seen = b""
         deadline = time.monotonic() + 30
         while b"Press Enter to apply" not in seen and time.monotonic() < deadline:
-            seen += os.read(proc.stdout.fileno(), 4096)
+            import select
+
+            if select.select([proc.stdout], [], [], 1.0)[0]:  # never waits past the deadline
+                seen += os.read(proc.stdout.fileno(), 4096)
         out, err = proc.communicate(b"\n2.05\n5\n9.9\n", timeout=30)
         assert proc.returncode == 0, err.decode()
         journal = next((tmp_path / "runs").glob("*/journal.jsonl"))

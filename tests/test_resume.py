@@ -114,7 +114,9 @@ class TestAbortAndResume:
         assert docs[:len(whole)] == whole
         assert problems(run_dir) == []
         record = json.loads((run_dir / "record.json").read_text())
-        assert any("cut-off last journal line was dropped" in n["text"] for n in record["notes"])
+        # In the run's internal log, not among the notes the customer reads.
+        assert any("cut-off last journal line was dropped" in n["text"] for n in record["run_log"])
+        assert not any("cut-off" in n["text"] for n in record["notes"])
         resumed = next(d for d in docs if d["kind"] == "resume")
         assert resumed["recovered_text"] == '{"kind":"observation","point":"dcv-6@4.8","typed":"4.'
 

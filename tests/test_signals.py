@@ -508,14 +508,17 @@ class TestRealSignalsInAProcess:
 
         proc = subprocess.Popen(
             [sys.executable, "-m", "verirun", "run", str(PROCEDURE), "--bench", str(BENCH), "--simulate",
-             "--serial", "PROMPT", "--customer", "C", "--temperature", "23", "--humidity", "40",
+             "--serial", "PROMPT", "--customer", "C", "--condition", "as new", "--temperature", "23", "--humidity", "40",
              "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "reports")],
             stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
         proc.stdin.write(b"\n")  # the leads are connected
         proc.stdin.flush()
         seen, deadline = b"", time.monotonic() + 30
         while b"reading in V" not in seen and time.monotonic() < deadline:
-            seen += os.read(proc.stdout.fileno(), 4096)
+            import select
+
+            if select.select([proc.stdout], [], [], 1.0)[0]:  # never waits past the deadline
+                seen += os.read(proc.stdout.fileno(), 4096)
         proc.send_signal(signum)
         _, err = proc.communicate(timeout=30)
         assert proc.returncode == 2, err.decode()

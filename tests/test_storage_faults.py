@@ -234,7 +234,7 @@ class TestSymlinksAreNotFollowed:
         from verirun.certificate.render import certificate_path
 
         start = documents(run_dir)[0]
-        target = certificate_path({"lab": start["lab"], "run": {"started": start["time"], "uid": start["uid"]}},
+        target = certificate_path({"lab": start["lab"], "bench": start["bench"], "run": {"started": start["time"], "uid": start["uid"]}},
                                   tmp_path / "reports")
         target.parent.mkdir(exist_ok=True)
         outside = tmp_path / "elsewhere.html"

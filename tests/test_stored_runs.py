@@ -15,7 +15,7 @@ from pathlib import Path
 
 import pytest
 
-from verirun.certificate.render import TEMPLATE_VERSION, render_html
+from verirun.certificate.render import DRY_RUN_PREFIX, TEMPLATE_VERSION, certificate_path, render_html
 from verirun.cli import main
 from verirun.integrity import verified_record
 from verirun.record import read_journal
@@ -55,11 +55,38 @@ class TestStoredRun:
         assert {key: rebuilt["summary"][key] for key in stored["summary"]} == stored["summary"]
 
     def test_certifies(self, run, tmp_path):
-        """`verirun certify` renders the stored run; with the same template, to the stored bytes."""
+        """`verirun certify` renders the stored run; with the same template, to the stored bytes;
+        with another, to the same verdict at every step."""
         assert main(["certify", str(run), "--reports", str(tmp_path)]) == 0
-        (written,) = sorted(tmp_path.glob("*.html"))
-        stored = run / "certificate" / written.name
+        written = certificate_path(verified_record(run), tmp_path)
+        # Besides the current revision, an amended run's earlier one, marked as replaced.
+        assert written.is_file()
+        assert len(list(tmp_path.glob("*.html"))) == (2 if run.name == "format1-amended" else 1)
+        # Every stored run is a dry run on the simulated calibrator: since template 2 its number
+        # carries the dry-run prefix in place of the lab's, and is otherwise the same.
+        stored = run / "certificate" / written.name.replace(f"{DRY_RUN_PREFIX}-", "THCL-", 1)
+        assert written.name.startswith(f"{DRY_RUN_PREFIX}-")
         assert stored.is_file(), f"certificate number changed: {written.name}"
         if TEMPLATE_VERSION == STORED_TEMPLATE_VERSION:
             assert written.read_bytes() == stored.read_bytes()
             assert render_html(verified_record(run)).encode("utf-8") == stored.read_bytes()
+        else:
+            verdicts = _verdicts(written.read_text(encoding="utf-8"))
+            assert len(verdicts) >= 20 and verdicts == _verdicts(stored.read_text(encoding="utf-8"))
+
+
+def _verdicts(html: str) -> dict:
+    """Each step's verdict(s) as a certificate prints them, by pass and point key: from the
+    separate as-found and as-left tables of template 1, or the side-by-side table of template 2."""
+    from bs4 import BeautifulSoup
+
+    out = {}
+    for table in BeautifulSoup(html, "html.parser").select("table.results"):
+        for row in table.select("tr[data-key]"):
+            if table["data-pass"] == "as-found-and-as-left":
+                for name in ("as-found", "as-left"):
+                    out[(name, row["data-key"])] = row.select_one(f'td[data-verdict="{name}"]').get_text().split()[0]
+            else:
+                name = "single" if table["data-pass"] == "single" else table["data-pass"]
+                out[(name, row["data-key"])] = row.select("td")[-1].get_text().split()[0]
+    return out

@@ -35,7 +35,8 @@ def summary(folder: Path) -> dict | None:
                    "certificate": certificate_number(record) if status == "complete" else None,
                    "customer": (record.get("customer") or {}).get("name"),
                    "simulated": bool(record["bench"].get("simulated")),
-                   "as_found_run": (record.get("as_found") or {}).get("run"), "as_left_run": None}
+                   "as_found_run": (record.get("as_found") or {}).get("run"), "as_left_run": None,
+                   "certificate_state": _certificate_state(record)}
         elif journal_path.exists():
             docs = read_journal(journal_path).documents
             if not docs or docs[0].get("kind") != "start":
@@ -48,7 +49,8 @@ def summary(folder: Path) -> dict | None:
                    "uid": start["uid"], "record_revision": 1, "certificate": None,
                    "customer": (start.get("customer") or {}).get("name"),
                    "simulated": bool(start["bench"].get("simulated")),
-                   "as_found_run": (start.get("as_found") or {}).get("run"), "as_left_run": None}
+                   "as_found_run": (start.get("as_found") or {}).get("run"), "as_left_run": None,
+                   "certificate_state": "none"}
         else:
             return None
         _check_row(row)
@@ -60,7 +62,7 @@ def summary(folder: Path) -> dict | None:
     return {"run": folder.name, "path": str(folder), "item": None, "procedure": "?", "revision": "?",
             "date": "?", "verdict": "?", "status": "unreadable", "uid": None, "record_revision": None,
             "certificate": None, "customer": None, "simulated": None, "as_found_run": None,
-            "as_left_run": None, "problem": problem}
+            "as_left_run": None, "certificate_state": None, "problem": problem}
 
 
 #: The fields of a summary that may be nothing; every other one but these two is text.
@@ -81,6 +83,16 @@ def _check_row(row: dict) -> None:
             ok = isinstance(value, str) or (value is None and name in _MAY_BE_NONE)
         if not ok:
             raise TypeError(f"{name} is {type(value).__name__}, not what a run's summary holds")
+
+
+def _certificate_state(record: dict) -> str:
+    """``dry run``, ``draft`` or ``issued`` (``issued rN`` after an amendment) for a run's record."""
+    if record["bench"].get("simulated"):
+        return "dry run"
+    revision = record["run"].get("revision", 1)
+    if any(i.get("revision") == revision for i in record.get("issues", [])):
+        return "issued" if revision == 1 else f"issued r{revision}"
+    return "draft" if record["run"]["status"] == "complete" else "none"
 
 
 def list_runs(root: str | Path, *, item: str | None = None, since: str | None = None,

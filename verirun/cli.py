@@ -32,15 +32,17 @@ def _parser() -> argparse.ArgumentParser:
     run = sub.add_parser("run", help="run a procedure on a bench (real, or simulated with --simulate)")
     run.add_argument("procedure", type=Path, help="the procedure file (YAML)")
     run.add_argument("--bench", type=Path, required=True, help="the bench file (YAML)")
-    run.add_argument("--lab", type=Path, help="the lab profile (YAML); default: the demo lab")
+    run.add_argument("--lab", type=Path, help="the lab profile (YAML); needed at a real bench (the demo lab serves"
+                                              " only dry runs on the simulated calibrator)")
     run.add_argument("--simulate", action="store_true",
                      help="drive the simulated calibrator instead of the bench's instrument (a dry run)")
     _reading_options(run)
     run.add_argument("--serial", required=True, help="serial number of the item under test")
     run.add_argument("--asset", help="the customer's asset number of the item")
-    run.add_argument("--condition", default="No damage or defect seen on receipt.",
-                     help="condition of the item as received")
-    run.add_argument("--received", help="date the item was received (YYYY-MM-DD; default: the run's date)")
+    run.add_argument("--condition", help="condition of the item on receipt, in your words (asked at the console"
+                                         " if not given; needed at a real bench)")
+    run.add_argument("--received", help="date the item was received (YYYY-MM-DD, not after the calibration;"
+                                        " not recorded if not given)")
     run.add_argument("--temperature", help="laboratory temperature at the start, in °C (asked at the console if not given)")
     run.add_argument("--humidity", help="relative humidity at the start, in %% (asked at the console if not given)")
     run.add_argument("--as-left-of", type=Path, metavar="RUN",
@@ -101,7 +103,15 @@ def _parser() -> argparse.ArgumentParser:
     amend.add_argument("--reading", required=True, help="the reading as it should have been recorded")
     amend.add_argument("--reason", required=True, help="why (printed on the certificate)")
     amend.add_argument("--operator", default=os.environ.get("USER", "operator"), help="who makes the correction")
-    amend.add_argument("--reports", type=Path, default=Path("reports"), help="folder for certificates")
+    amend.add_argument("--reports", type=Path, help="folder for certificates (default: the one the run started with)")
+
+    issue = sub.add_parser("issue", help="issue a run's certificate after review: records who authorised it, when and in which role")
+    issue.add_argument("run", type=Path, help="the run folder")
+    issue.add_argument("--by", required=True, help="who issues it, by name as the lab profile lists them")
+    issue.add_argument("--lab", type=Path, help="the lab profile whose people may issue (default: the lab the run was made under)")
+    issue.add_argument("--reports", type=Path, help="folder for certificates (default: the one the run started with,"
+                                                   " where its draft is)")
+    issue.add_argument("--pdf", action="store_true", help="write a PDF beside the HTML certificate (needs WeasyPrint)")
 
     verify = sub.add_parser("verify", help="check that stored runs are as recorded (journal chain and record)")
     verify.add_argument("runs", type=Path, nargs="+", help="run folders")
@@ -485,12 +495,40 @@ def _validation_lines(v, win, texts) -> list[str]:
 
 
 def _cmd_amend(args) -> int:
+    from verirun.adjustment import revise_as_left
     from verirun.amend import amend
     from verirun.certificate.render import write_certificate
+    from verirun.issue import earlier_revisions, earlier_states, state_of
 
     record = amend(args.run, point=args.point, reading=args.reading, reason=args.reason, operator=args.operator)
-    out = write_certificate(record, args.reports)
-    print(f"{args.run}: revision {record['run']['revision']}; certificate {out}")
+    reports = args.reports or _reports_of(args.run)
+    out = write_certificate(record, reports)
+    earlier, replaced = earlier_revisions(args.run)[-1]
+    kept = write_certificate(earlier, reports, replaced_by=replaced,
+                             earlier=earlier_states(args.run, earlier, replaced_by=replaced))
+    print(f"{args.run}: revision {record['run']['revision']} ({state_of(record)}); certificate {out}")
+    print(f"  the certificate it replaces stays readable, marked as replaced: {kept}")
+    for folder, left in revise_as_left(args.run, reason=args.reason, operator=args.operator):
+        combined = write_certificate(left, args.reports or _reports_of(folder))
+        print(f"{folder}: the as-left run's combined certificate takes the corrected as-found results:"
+              f" revision {left['run']['revision']} ({state_of(left)}); certificate {combined}")
+    return EXIT_OK
+
+
+def _cmd_issue(args) -> int:
+    from verirun.certificate.render import write_certificate, write_pdf
+    from verirun.issue import earlier_states, issue, state_of
+
+    lab = None
+    if args.lab is not None:
+        from verirun.lab import load_lab
+
+        lab = load_lab(args.lab).lab.model_dump(mode="json")
+    record = issue(args.run, by=args.by, lab=lab)
+    out = write_certificate(record, args.reports or _reports_of(args.run), earlier=earlier_states(args.run, record))
+    print(f"{args.run}: {state_of(record)}; certificate {out}")
+    if args.pdf:
+        print(f"  and {write_pdf(out.read_text(encoding='utf-8'), out.with_suffix('.pdf'))}")
     return EXIT_OK
 
 
@@ -506,7 +544,7 @@ def _cmd_verify(args) -> int:
                 print(line)
             print(f"{path}: DOES NOT VERIFY ({len(found)} problem{'s' if len(found) > 1 else ''})")
         else:
-            print(f"{path}: verified")
+            print(f"{path}: verified; {_state(path)}")
     return EXIT_ERROR if failed else EXIT_OK
 
 
@@ -533,15 +571,34 @@ def _cmd_resume(args) -> int:
     return EXIT_OK
 
 
+def _reports_of(run: Path) -> Path:
+    """The certificate folder the run at ``run`` started with (``reports`` for older runs)."""
+    from verirun.integrity import run_folder
+    from verirun.record import JOURNAL_NAME, read_journal
+
+    docs = read_journal(run_folder(run) / JOURNAL_NAME).documents
+    return Path((docs[0].get("reports") if docs else None) or "reports")
+
+
+def _state(path) -> str:
+    from verirun.issue import state_of
+    from verirun.record import load_record
+
+    return state_of(load_record(path))
+
+
 def _summary(rich, finished) -> None:
     from rich.text import Text
 
+    from verirun.issue import state_of
     from verirun.runrecord import record_judged
 
     # Paths are printed as they are (a folder may be named "[x]"), never read as markup.
     rich.print(Text(f"\nRun record:  {finished.record_path}"))
     if finished.certificate is not None:
-        rich.print(Text(f"Certificate: {finished.certificate}"))
+        rich.print(Text(f"Certificate: {finished.certificate} ({state_of(finished.record)})"))
+        if not finished.record["bench"].get("simulated"):
+            rich.print(Text(f"Review the draft, then issue it: verirun issue {finished.run_dir} --by NAME"))
     from verirun.console import verdict_text
     from verirun.metrology.summary import summarise
 
@@ -578,8 +635,10 @@ def _cmd_certify(args) -> int:
     for outcome in outcomes:
         if outcome.certificate:
             extra = f" and {outcome.pdf}" if outcome.pdf else ""
-            print(f"{outcome.run}: certificate {outcome.certificate}{extra}"
+            print(f"{outcome.run}: certificate {outcome.certificate}{extra} ({outcome.state})"
                   + (f" ({outcome.note})" if outcome.note else ""))
+            for earlier in outcome.replaced:
+                print(f"  and {earlier}, the revision it replaces, marked as replaced")
     for outcome in failed:
         _err(f"error: {outcome.error}")
     rendered = len(outcomes) - len(failed)
@@ -613,7 +672,7 @@ def _cmd_runs(args) -> int:
                 else f"as-found; as-left {row['as_left_run']}" if row.get("as_left_run") else "")
         bench = "" if row.get("simulated") is None else "simulated" if row["simulated"] else "real"
         cells = (row["run"], row["item"] or "", f"{row['procedure']} rev {row['revision']}", row["date"],
-                 row["verdict"], row["status"], row.get("certificate") or "", row.get("customer") or "",
+                 row["verdict"], row["status"], _certificate_cell(row), row.get("customer") or "",
                  bench, str(row.get("record_revision") or ""), link)
         table.add_row(*(Text(cell) for cell in cells))  # stored text is never read as markup
     console = _rich(wide=True)
@@ -630,7 +689,7 @@ def _cmd_runs(args) -> int:
             link = (f"as-left of {row['as_found_run']}" if row.get("as_found_run")
                     else f"as-found; as-left {row['as_left_run']}" if row.get("as_left_run") else "")
             fields = [row["item"] or "", f"{row['procedure']} rev {row['revision']}", row["date"], row["verdict"],
-                      row["status"], row.get("certificate") or "", row.get("customer") or "", bench,
+                      row["status"], _certificate_cell(row), row.get("customer") or "", bench,
                       f"revision {row.get('record_revision') or ''}", link]
             console.print(row["run"], markup=False, soft_wrap=True)
             console.print("  " + " · ".join(f for f in fields if f), markup=False, soft_wrap=True)
@@ -638,6 +697,19 @@ def _cmd_runs(args) -> int:
         console.print(f"no runs in {args.runs}" + (" match" if args.item or args.since or args.until else ""),
                       markup=False)
     return EXIT_OK
+
+
+def _today() -> str:
+    """Today's date in UTC (the demo's item is received on the day of its run)."""
+    import datetime as dt
+
+    return dt.datetime.now(dt.timezone.utc).date().isoformat()
+
+
+def _certificate_cell(row: dict) -> str:
+    """A run's certificate number with its state: ``KFM-... (draft)``, ``(issued)``, ``(dry run)``."""
+    number, state = row.get("certificate") or "", row.get("certificate_state")
+    return f"{number} ({state})" if number and state else number
 
 
 def _date(text: str | None, option: str) -> str | None:
@@ -668,7 +740,8 @@ def _environment(temperature: str | None, humidity: str | None, readings) -> dic
 
 
 def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, context_item,
-         customer, operator, environment=None, as_left_of=None, adjustment="") -> int:
+         customer, operator, environment=None, as_left_of=None, adjustment="", condition=None,
+         demo_lab=False) -> int:
     from verirun.bench.config import load_bench
     from verirun.console import Console
     from verirun.engine import RunContext
@@ -676,9 +749,19 @@ def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, cont
     from verirun.procedure.load import load_procedure
     from verirun.session import execute
 
+    from verirun.bench.sim import is_simulator
+    from verirun.errors import VerirunError
+
     procedure = load_procedure(procedure_path)
     bench = load_bench(bench_path)
     lab = load_lab(lab_path)
+    # A bench whose VISA library is the simulator is a dry run, however it was started.
+    simulate = simulate or is_simulator(bench.file.calibrator.visa_library)
+    if demo_lab and not simulate:
+        raise VerirunError("a run at a real bench needs the lab's profile (--lab FILE): the demo lab serves"
+                         " only the demo and dry runs on the simulated calibrator (--simulate)")
+    if callable(condition):
+        context_item = {**context_item, "condition": condition(simulate)}
     if callable(environment):
         environment = environment()
     rich, console = _consoles(readings)
@@ -686,7 +769,8 @@ def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, cont
     if as_left_of is not None:
         from verirun.session import as_found_of
 
-        as_found = as_found_of(as_left_of, serial=context_item["serial"], procedure=procedure, adjustment=adjustment)
+        as_found = as_found_of(as_left_of, serial=context_item["serial"], procedure=procedure, adjustment=adjustment,
+                               customer=customer, others=[args.runs], simulated=simulate)
     context = RunContext(lab=lab.lab.model_dump(mode="json"), customer=customer, item=context_item,
                          operator=operator, simulated=simulate, environment=environment or {},
                          as_found=as_found)
@@ -707,18 +791,22 @@ def _cmd_demo(args) -> int:
     with demo_files() as demo:
         return _run(args, procedure_path=demo["procedure"], bench_path=demo["bench"], lab_path=demo["lab"],
                     readings=VirtualMeter(demo["meter"]), simulate=True,
-                    context_item={"serial": "QM40-118273", "asset": "AWB-E-0457", "received": None,
+                    context_item={"serial": "QM40-118273", "asset": "AWB-E-0457", "received": _today(),
                                   "condition": "Case scuffed; no damage affecting use. Battery 1.5 V fitted."},
                     customer={"name": "Ashgrove Water Board", "address": ["Pumping Station 3", "Ashgrove AG2 7LP"]},
                     operator="demo technician", environment={"temperature_c": 23.1, "humidity_pct": 41.0})
 
 
 def _cmd_run(args) -> int:
+    from verirun.receipt import ask_condition, check_received
     from verirun.session import demo_files
 
     readings = _reading_source(args)
-    item = {"serial": args.serial, "asset": args.asset, "condition": args.condition,
-            "received": _date(args.received, "--received")}
+    item = {"serial": args.serial, "asset": args.asset, "condition": None,
+            "received": check_received(_date(args.received, "--received"))}
+    # Asked for (when not given) once the files have loaded and it is known whether the run is
+    # at a real bench, which needs it.
+    condition = lambda simulated: ask_condition(args.condition, readings, needed=not simulated)  # noqa: E731
     # Asked for only once the files have loaded: a typo in them is reported before any question.
     environment = lambda: _environment(args.temperature, args.humidity, readings)  # noqa: E731
     customer = {"name": args.customer, "address": args.customer_address}
@@ -727,12 +815,12 @@ def _cmd_run(args) -> int:
             return _run(args, procedure_path=args.procedure, bench_path=args.bench, lab_path=demo["lab"],
                         readings=readings, simulate=args.simulate, context_item=item, customer=customer,
                         operator=args.operator, environment=environment, as_left_of=args.as_left_of,
-                        adjustment=args.adjustment)
+                        adjustment=args.adjustment, condition=condition, demo_lab=True)
     return _run(args, procedure_path=args.procedure, bench_path=args.bench, lab_path=args.lab,
                 readings=readings, simulate=args.simulate, context_item=item, customer=customer,
                 operator=args.operator, environment=environment, as_left_of=args.as_left_of,
-                adjustment=args.adjustment)
+                adjustment=args.adjustment, condition=condition)
 
 
-_COMMANDS = {"check": _cmd_check, "review": _cmd_review, "window": _cmd_window, "certify": _cmd_certify, "demo": _cmd_demo,
+_COMMANDS = {"issue": _cmd_issue, "check": _cmd_check, "review": _cmd_review, "window": _cmd_window, "certify": _cmd_certify, "demo": _cmd_demo,
              "run": _cmd_run, "resume": _cmd_resume, "verify": _cmd_verify, "amend": _cmd_amend, "runs": _cmd_runs}

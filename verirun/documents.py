@@ -17,6 +17,8 @@ withdrawal  the operator withdrew the last entry (``undo``) before the run went 
             step is measured again
 correction  a reading of a finished run was corrected (``verirun amend``): a new revision
 stop        the run ended: complete, aborted or failed, with the reason
+issue       a person the lab profile lists issued a revision's certificate (``verirun issue``)
+as-found    the as-found run of an as-left run was amended: its results, a new revision
 ========== ==================================================================================
 
 Documents are validated when they are read back (:func:`document_problem`, after the strict
@@ -24,10 +26,11 @@ parse of :func:`parse_json`), so a damaged or crafted journal is reported by fil
 before anything reads it; the JSON Schema of the union (:func:`journal_schema`) ships with the
 package as ``schema/journal.schema.json``.
 
-Journal formats: 2 (``journal_format`` in the start document) labels points by their values as
-the procedure writes them (``dca-50u@10uA``) and identifies them by step; 1 (no
-``journal_format``) labelled them by the float's repr (``dca-50u@9.999999999999999e-06``).
-Both are read as they are.
+Journal formats: 3 marks an operator's note ``by: operator``, so the run's internal log (every
+other note) is kept apart from what the customer reads; 2 (``journal_format`` in the start
+document) labels points by their values as the procedure writes them (``dca-50u@10uA``) and
+identifies them by step; 1 (no ``journal_format``) labelled them by the float's repr
+(``dca-50u@9.999999999999999e-06``). All are read as they are.
 """
 
 from __future__ import annotations
@@ -38,7 +41,7 @@ from typing import Annotated, Any, Literal, Union
 from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, ValidationError
 
 #: Version of the journal document layout described here (see the module's docstring).
-JOURNAL_FORMAT = 2
+JOURNAL_FORMAT = 3
 
 Sha256 = Annotated[str, Field(pattern=r"^[0-9a-f]{64}$", description="a SHA-256 digest, hex")]
 Time = Annotated[str, Field(pattern=r"^\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d(\.\d+)?Z$",
@@ -110,16 +113,24 @@ class Wording(Part):
     safety: str = Field(description="the lab's safety caution")
 
 
+class Person(Part):
+    name: str = Field(description="a person the lab authorises to issue certificates")
+    role: str = Field(description="the role they issue in")
+
+
 class LabAsRun(Part):
     name: str
     address: list[str]
-    accreditation: str
+    accreditation: str | None
     certificate_prefix: str = Field(description="prefix of the lab's certificate numbers")
-    signatory: Signatory
+    signatory: Signatory | None = Field(default=None, description="an older profile's one signatory")
+    people_who_issue: list[Person] = Field(default=[], description="who may issue certificates")
     traceability: str
-    conditions: str = Field(description="the lab's stated environmental conditions")
+    conditions: str | None = Field(description="the lab's stated environmental conditions")
     paper: Literal["A4", "letter"] = Field(description="paper size of printed certificates")
     wording: Wording
+    spelling: Literal["british", "american"] = Field(default="british", description="the certificates' spelling")
+    remarks: list[str] = Field(default=[], description="remarks printed on every certificate")
 
 
 class Customer(Part):
@@ -130,7 +141,8 @@ class Customer(Part):
 class Item(Part):
     serial: str = Field(description="serial number of the meter under test")
     asset: str | None = Field(default=None, description="the customer's asset number, if given")
-    condition: str | None = Field(default=None, description="condition of the item as received")
+    condition: str | None = Field(default=None,
+                                  description="condition of the item as received (none: not recorded)")
     received: Date | None = Field(default=None, description="date the item was received")
 
 
@@ -158,6 +170,8 @@ class Start(Chained):
     """A run begins: everything needed to replay and certify it."""
 
     kind: Literal["start"]
+    journal_format: int | None = Field(default=None, ge=2,
+                                       description="the journal's format (absent in format 1)")
     uid: str = Field(pattern=r"^[0-9a-f]{32}$", description="the run's identity")
     software: Software
     procedure: ProcedureAsRun
@@ -169,7 +183,6 @@ class Start(Chained):
     environment: Environment
     as_found: AsFound | None = Field(default=None, description="set for an as-left run")
     reports: str | None = Field(default=None, description="the folder the run's certificate goes to")
-    journal_format: int | None = Field(default=None, ge=2, description="the journal's format (none: 1)")
 
 
 # --- documents written during the run ---------------------------------------------------------
@@ -245,6 +258,8 @@ class Note(Chained):
     clock_went_back: Time | None = Field(default=None, description="set when the computer's clock"
                                          " went back: the time it then gave (the note is dated at"
                                          " the latest time journaled before)")
+    by: Literal["operator"] | None = Field(default=None, description="set on an operator's note"
+                                           " (journal format 3): the rest is the run's internal log")
 
 
 class Withdrawal(Chained):
@@ -279,7 +294,27 @@ class Stop(Chained):
     counts: dict[str, int] = Field(description="results so far by verdict, and skipped steps")
 
 
-Document = Annotated[Union[Start, Resume, Observation, Skip, Note, Withdrawal, Correction, Stop],
+class Issue(Chained):
+    """A revision's certificate issued, after review, by a person the lab profile lists."""
+
+    kind: Literal["issue"]
+    by: str = Field(description="who issued it, as the lab profile names them")
+    role: str = Field(description="the role they issued it in, from the lab profile")
+    revision: int = Field(ge=1, description="the revision of the record issued")
+    certificate: str = Field(description="the number of the certificate issued")
+
+
+class AsFoundRevised(Chained):
+    """The as-found run of this (as-left) run was amended: its new results, a new revision."""
+
+    kind: Literal["as-found"]
+    as_found: AsFound
+    reason: str = Field(description="why the as-found run was amended")
+    operator: str = Field(description="who amended it")
+
+
+Document = Annotated[Union[Start, Resume, Observation, Skip, Note, Withdrawal, Correction, Stop, Issue,
+                           AsFoundRevised],
                      Field(discriminator="kind")]
 
 _ADAPTER: TypeAdapter = TypeAdapter(Document)
@@ -314,7 +349,8 @@ def document_problem(data: Any) -> str | None:
     return None
 
 
-_KINDS = ("start", "resume", "observation", "skip", "note", "withdrawal", "correction", "stop")
+_KINDS = ("start", "resume", "observation", "skip", "note", "withdrawal", "correction", "stop", "issue",
+          "as-found")
 
 
 def _shown(value: Any) -> str:

@@ -398,7 +398,7 @@ class Engine:
             if entry.kind != "note":
                 return entry
             self.journal.append({"kind": "note", "time": self._now(), "point": self._label(point),
-                                 "text": entry.text})
+                                 "text": entry.text, "by": "operator"})
             self.console.say("  note recorded")
 
     def _observation(self, point: TestPoint, entry: Entry) -> dict:

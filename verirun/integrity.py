@@ -93,7 +93,7 @@ def _certificates_of(start: dict, reports: Path) -> list[Path]:
     from verirun.certificate.render import certificate_number, safe_file_name
 
     try:
-        stem = safe_file_name(certificate_number({"lab": start["lab"], "run": {
+        stem = safe_file_name(certificate_number({"lab": start["lab"], "bench": start["bench"], "run": {
             "started": start["time"], "uid": start["uid"], "revision": 1}}))
     except (KeyError, TypeError, AttributeError):
         return []

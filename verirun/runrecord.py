@@ -85,7 +85,8 @@ def _build(documents: list[dict], source: str = "journal", *, known: Known | Non
                               f" {exc}") from None
         planned, results = plan(procedure, bench), {}
     journal_format = start.get("journal_format", 1)
-    entries, corrections, notes, stop, revision = _entries(documents, planned, journal_format, source)
+    after = _AfterTheRun(start, source)
+    entries, corrections, notes, stop, revision = _entries(documents, planned, journal_format, source, after)
     rows = []
     for point in planned:
         row = _row(point, entries.get(point.index), results.get(point.index), journal_format)
@@ -107,7 +108,7 @@ def _build(documents: list[dict], source: str = "journal", *, known: Known | Non
         "customer": {"name": None, "address": [], **start["customer"]},
         "item": {"serial": None, "asset": None, "condition": None, "received": None, **start["item"]},
         "environment": start.get("environment", {}),
-        **({"as_found": start["as_found"]} if start.get("as_found") else {}),
+        **({"as_found": after.as_found} if after.as_found else {}),
         "procedure": start["procedure"], "bench": start["bench"],
         "meter": procedure.file.meter.model_dump(by_alias=True),
         "decision_rule": {"rule": procedure.rule.name, "statement": procedure.rule.describe(),
@@ -116,6 +117,7 @@ def _build(documents: list[dict], source: str = "journal", *, known: Known | Non
         "points": rows,
         "notes": notes,
         "summary": summary_document(summary),
+        **after.extra(),
     }
 
 
@@ -145,6 +147,60 @@ def summary_document(summary: Summary) -> dict:
             "statement": summary.statement()}
 
 
+class _AfterTheRun:
+    """What a journal says after (and about) its run, beyond the readings: who issued which
+    revision (``issue``), an as-found run revised under an as-left run (``as-found``), and which
+    notes are the lab's internal log rather than the customer's (journals of format 3 on)."""
+
+    KINDS = ("issue", "as-found")
+
+    def __init__(self, start: dict, source: str):
+        self.source = source
+        self.simulated = bool(start["bench"].get("simulated"))
+        self.as_found = start.get("as_found")
+        #: Journals of format 3 on keep the internal run log apart from the customer's notes.
+        self.split = start.get("journal_format", 1) >= 3
+        self.issues: list[dict] = []
+        self.revisions: list[dict] = []
+        self.log: list[dict] = []
+
+    def note(self, notes: list, note: dict, *, internal: bool) -> None:
+        (self.log if self.split and internal else notes).append(note)
+
+    def take(self, doc: dict, revision: int, notes: list) -> int:
+        """Take one ``issue`` or ``as-found`` document; return the revision after it."""
+        where = f"{self.source}:{doc['seq'] + 1}: {doc['kind']}"
+        if doc["kind"] == "issue":
+            if self.simulated:
+                raise RecordError(f"{where}: issues a dry run on the simulated calibrator, which is not a calibration")
+            if doc.get("revision") != revision:
+                raise RecordError(f"{where}: issues revision {doc.get('revision')!r}, but the run is at revision {revision}")
+            if any(issue["revision"] == revision for issue in self.issues):
+                raise RecordError(f"{where}: revision {revision} was issued already")
+            self.issues.append({key: doc.get(key) for key in ("revision", "time", "by", "role", "certificate")})
+            return revision
+        revision += 1
+        self.as_found = doc["as_found"]
+        self.revisions.append({"revision": revision, "time": doc["time"], "by": doc["operator"],
+                               "reason": doc["reason"], "what": "as-found results"})
+        notes.append({"time": doc["time"], "point": None,
+                      "text": f"revision {revision}: the as-found results replaced by those of certificate"
+                              f" {doc['as_found'].get('certificate')} by {doc['operator']}: {doc['reason']}"})
+        return revision
+
+    def extra(self) -> dict:
+        """The record's entries for these documents (none for a journal that has none of them,
+        so a record of an earlier format is built as it was)."""
+        out: dict = {}
+        if self.issues:
+            out["issues"] = self.issues
+        if self.revisions:
+            out["as_found_revisions"] = self.revisions
+        if self.split:
+            out["run_log"] = self.log
+        return out
+
+
 def _range(rng) -> dict:
     return {"id": rng.id, "function": rng.function, "function_name": words_for(rng.function),
             "unit": rng.unit, "scale": rng.law.name,
@@ -152,12 +208,14 @@ def _range(rng) -> dict:
             "accuracy": [b.text for b in rng.bands], "read_on": rng.read_on}
 
 
-def _entries(documents: list[dict], planned: list[TestPoint], journal_format: int, source: str):
+def _entries(documents: list[dict], planned: list[TestPoint], journal_format: int, source: str,
+             after: _AfterTheRun):
     """Each step's confirmed entry, the corrections, notes, last stop and revision of a journal.
 
     A journal is a start, then sessions: entries and notes up to a stop; after a stop that is
     not complete, only a resume begins the next session; after a complete stop, only
-    corrections (each a new revision). One entry per step: a second is an edit, not a reading.
+    corrections (each a new revision), issues and revised as-found results, which ``after``
+    takes. One entry per step: a second is an edit, not a reading.
 
     Raises
     ------
@@ -172,14 +230,18 @@ def _entries(documents: list[dict], planned: list[TestPoint], journal_format: in
     for doc in documents[1:]:
         kind = doc["kind"]
         where = f"{source}:{doc['seq'] + 1}: {kind}"
-        if stop is not None and stop["status"] == "complete" and kind != "correction":
+        if stop is not None and stop["status"] == "complete" and kind not in ("correction", *_AfterTheRun.KINDS):
             raise RecordError(f"{where}: written after the run was closed complete (only a"
-                              " correction may follow); the journal was edited")
+                              " correction, an issue or revised as-found results may follow);"
+                              " the journal was edited")
         if stop is not None and stop["status"] != "complete" and kind != "resume":
             raise RecordError(f"{where}: written after a stop without a resume between; the journal"
                               " was edited")
-        if kind == "correction" and stop is None:
-            raise RecordError(f"{where}: a correction of a run that is not closed; the journal was edited")
+        if kind in ("correction", *_AfterTheRun.KINDS) and (stop is None or stop["status"] != "complete"):
+            raise RecordError(f"{where}: written for a run that is not closed complete; the journal was edited")
+        if kind in _AfterTheRun.KINDS:
+            revision = after.take(doc, revision, notes)
+            continue
         if kind in ("observation", "skip", "correction"):
             point = _step_of(doc, planned, journal_format, where)
             if kind != "correction" and point.index in entries:
@@ -200,12 +262,14 @@ def _entries(documents: list[dict], planned: list[TestPoint], journal_format: in
         elif kind == "withdrawal":
             point = _step_of(doc, planned, journal_format, where)
             withdrawn = entries.pop(point.index, None)
-            notes.append({"time": doc["time"], "point": doc["point"],
-                          "text": f"entry {doc.get('typed')!r} of step {point.step} withdrawn by the"
-                                  " operator before the run went on, and measured again"
-                                  if withdrawn is not None else "a withdrawal of an entry the journal does not hold"})
+            after.note(notes, {"time": doc["time"], "point": doc["point"],
+                               "text": f"entry {doc.get('typed')!r} of step {point.step} withdrawn by the"
+                                       " operator before the run went on, and measured again"
+                                       if withdrawn is not None else "a withdrawal of an entry the journal does not hold"},
+                       internal=True)
         elif kind == "note":
-            notes.append({"time": doc["time"], "point": doc.get("point"), "text": doc["text"]})
+            after.note(notes, {"time": doc["time"], "point": doc.get("point"), "text": doc["text"]},
+                       internal=doc.get("by") != "operator")
         elif kind == "resume":
             stop = None
             if doc["pending"] == 0 and doc.get("identity") is None:
@@ -217,11 +281,17 @@ def _entries(documents: list[dict], planned: list[TestPoint], journal_format: in
             if isinstance(renewed, dict):
                 text += (f"; the standard's calibration was renewed before it resumed: certificate"
                          f" {renewed.get('certificate')}, due {renewed.get('calibration_due')}")
-            notes.append({"time": doc["time"], "point": None,
-                          "text": text + ("; a cut-off last journal line was dropped"
-                                          if doc.get("recovered_torn_line") else "")
-                                  + (_conditions(doc.get("environment"))
-                                     if doc.get("environment") != documents[0].get("environment") else "")})
+            anew = (_conditions(doc.get("environment"))
+                    if doc.get("environment") != documents[0].get("environment") else "")
+            after.note(notes, {"time": doc["time"], "point": None,
+                               "text": text + ("; a cut-off last journal line was dropped"
+                                               if doc.get("recovered_torn_line") else "") + anew},
+                       internal=True)
+            standard = (f" with the standard's calibration renewed: certificate {renewed.get('certificate')},"
+                        f" due {renewed.get('calibration_due')}" if isinstance(renewed, dict) else "")
+            if (anew or standard) and after.split:  # the measurements' conditions are the customer's to read
+                notes.append({"time": doc["time"], "point": None,
+                              "text": f"the measurements continued after a pause{standard}{anew}"})
         elif kind == "stop":
             stop = doc
         else:

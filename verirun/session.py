@@ -505,7 +505,8 @@ def close_run(run_dir: Path, *, known: Known | None = None) -> dict | None:
     return record
 
 
-def as_found_of(run: Path, *, serial: str, procedure: Procedure, adjustment: str) -> dict:
+def as_found_of(run: Path, *, serial: str, procedure: Procedure, adjustment: str,
+                customer: dict | None = None, others: list[Path] = (), simulated: bool | None = None) -> dict:
     """The as-found results an as-left run carries, from the verified earlier run ``run``.
 
     Raises
@@ -526,6 +527,10 @@ def as_found_of(run: Path, *, serial: str, procedure: Procedure, adjustment: str
                           f" not {procedure.id}")
     if not adjustment.strip():
         raise RecordError("say what was adjusted (--adjustment); it is printed on the certificate")
+    if customer is not None:
+        from verirun.adjustment import check_as_found
+
+        check_as_found(record, run=Path(run), customer=customer, others=list(others), simulated=simulated)
     return {"run": record["run"]["uid"], "certificate": certificate_number(record),
             "date": record["run"]["started"][:10], "adjustment": adjustment.strip(),
             "points": record["points"], "summary": record["summary"]}

@@ -1,6 +1,7 @@
-"""The demo certificate holds what ISO/IEC 17025:2017 7.8.2.1, 7.8.4 and 7.8.6 ask of it.
+"""An issued certificate holds what ISO/IEC 17025:2017 7.8.2.1, 7.8.4 and 7.8.6 ask of it.
 
-Each test parses the rendered HTML and checks one item, naming its clause.
+Each test parses the rendered HTML and checks one item, naming its clause. The certificate is
+of a run at the (test) bench, issued by a person the (test) lab profile lists.
 """
 
 from __future__ import annotations
@@ -15,21 +16,27 @@ from verirun.cli import main
 
 @pytest.fixture(scope="module")
 def cert(tmp_path_factory):
-    """A certificate of the demo procedure run with scripted readings (4 points fail)."""
+    """The issued certificate of the test procedure run at the test bench with scripted
+    readings (4 points fail, one skipped)."""
     from pathlib import Path
 
-    root = Path(__file__).resolve().parents[2]
+    from at_the_bench import calibrator_at_the_bench
+
+    data = Path(__file__).resolve().parents[1] / "data"
     tmp = tmp_path_factory.mktemp("contents")
-    data = root / "tests" / "data" / "qm40-readings.csv"
     readings = tmp / "readings.csv"
-    readings.write_text(data.read_text().replace("dcv-30,15 V,15\n", "dcv-30,15 V,skip pointer stuck at zero\n"))
-    assert main(["run", str(root / "procedures" / "qm40-analog-multimeter.yaml"),
-                 "--bench", str(root / "verirun" / "demo" / "bench-sim.yaml"), "--simulate",
-                 "--readings", str(readings), "--serial", "QM40-000017", "--asset", "AST-5",
-                 "--customer", "Brightwater Pumping Co", "--customer-address", "1 Weir Lane",
-                 "--received", "2026-11-28", "--temperature", "23.4", "--humidity", "44",
-                 "--condition", "Pointer bent; readable.",
-                 "--runs", str(tmp / "runs"), "--reports", str(tmp / "reports")]) == 0
+    readings.write_text((data / "qm40-procedure-readings.csv").read_text()
+                        .replace("dcv-50,25 V,25\n", "dcv-50,25 V,skip pointer stuck at zero\n"))
+    with calibrator_at_the_bench():
+        assert main(["run", str(data / "qm40-procedure.yaml"), "--bench", str(data / "bench-kestrel.yaml"),
+                     "--lab", str(data / "lab-test.yaml"),
+                     "--readings", str(readings), "--serial", "QM40-000017", "--asset", "AST-5",
+                     "--customer", "Brightwater Pumping Co", "--customer-address", "1 Weir Lane",
+                     "--received", "2026-11-28", "--temperature", "23.4", "--humidity", "44",
+                     "--condition", "Pointer bent; readable.",
+                     "--runs", str(tmp / "runs"), "--reports", str(tmp / "reports")]) == 0
+    (run,) = (tmp / "runs").iterdir()
+    assert main(["issue", str(run), "--by", "A. Thorneycroft", "--reports", str(tmp / "reports")]) == 0
     (path,) = (tmp / "reports").glob("*.html")
     html = path.read_text(encoding="utf-8")
     return BeautifulSoup(html, "html.parser"), html, path
@@ -50,15 +57,15 @@ class TestClause7821:
     def test_b_c_lab_name_address_and_place(self, cert):
         """7.8.2.1 b) and c): the lab's name and address, and where the work was done, from the lab profile."""
         soup, html, _ = cert
-        assert "Tern Hollow Calibration Laboratory" in text_of(soup, "header.cert")
-        assert "Unit 4, Millrace Yard" in text_of(soup, "header.cert")
-        assert "electrical bay, bench 2" in text_of(soup, "#item")
+        assert "Kestrel Fen Metrology" in text_of(soup, "header.cert")
+        assert "12 Sluice Row" in text_of(soup, "header.cert")
+        assert "DC and low-frequency bench" in text_of(soup, "#item")
 
     def test_d_unique_number_on_every_page_and_end_mark(self, cert):
         """7.8.2.1 d): a unique identification on every page (print footer) and a clear end mark."""
         soup, html, path = cert
         number = text_of(soup, "#certificate-number")
-        assert re.fullmatch(r"THCL-\d{8}-[0-9A-F]{8}", number)
+        assert re.fullmatch(r"KFM-\d{8}-[0-9A-F]{8}", number)
         assert path.stem == number
         assert f'content: "Certificate {number}"' in html and "counter(pages)" in html
         assert text_of(soup, ".end-mark") == "END OF CERTIFICATE"
@@ -72,9 +79,9 @@ class TestClause7821:
         """7.8.2.1 f) and n): the method (procedure and revision) and deviations from it, a skipped
         point with its reason."""
         soup, _, _ = cert
-        assert "TH-VP-040 revision C" in text_of(soup, "#method")
+        assert "TH-VP-040 revision B" in text_of(soup, "#method")
         deviations = text_of(soup, "#deviations")
-        assert "skipped" in deviations and "pointer stuck at zero" in deviations and "15 V DC" in deviations
+        assert "skipped" in deviations and "pointer stuck at zero" in deviations and "25 V DC" in deviations
 
     def test_g_item_description_identification_condition(self, cert):
         """7.8.2.1 g): description, unambiguous identification and condition of the item."""
@@ -87,8 +94,10 @@ class TestClause7821:
         """7.8.2.1 h), i), j): dates of receipt, of calibration and of issue."""
         soup, _, _ = cert
         assert text_of(soup, "#date-received") == "2026-11-28"
-        assert re.fullmatch(r"\d{4}-\d{2}-\d{2}", text_of(soup, "#date-calibrated"))
+        calibrated = text_of(soup, "#date-calibrated")
+        assert re.fullmatch(r"\d{4}-\d{2}-\d{2}", calibrated)
         assert "Date of issue" in text_of(soup, "#authorisation")
+        assert text_of(soup, "#date-issued") >= calibrated
 
     def test_l_results_relate_only_to_the_item(self, cert):
         """7.8.2.1 l): the statement that the results relate only to the item calibrated."""
@@ -102,13 +111,13 @@ class TestClause7821:
         assert len(tables) == 6
         first = tables[0].select("tbody tr")[0].get_text(" ")
         assert " V" in first and "PASS" in first
-        ohms = soup.select_one('table[data-range="ohm-x1k"]').get_text(" ")
+        ohms = soup.select_one('table[data-range="ohm-x100"]').get_text(" ")
         assert "kΩ" in ohms and "°" in ohms
 
     def test_o_authorised_by(self, cert):
-        """7.8.2.1 o): who authorised the certificate, from the lab profile."""
+        """7.8.2.1 o): who authorised the certificate, in the role the lab profile gives them."""
         soup, _, _ = cert
-        assert "M. Okonkwo-Hale, Quality Manager" in text_of(soup, "#authorisation")
+        assert text_of(soup, "#issued-by") == "A. Thorneycroft, Quality Manager"
 
 
 class TestClause784And786:
@@ -156,14 +165,25 @@ class TestClause784And786:
         left.write_text(data.read_text().replace("dcv-6,4.8 V,4.6", "dcv-6,4.8 V,4.8"))
         assert main(["run", str(proc), "--readings", str(left), *common, "--as-left-of", str(found_run),
                      "--adjustment", "span trimmer reset"]) == 0
-        newest = max((tmp_path / "rep").glob("*.html"), key=lambda p: p.stat().st_mtime)
-        soup = BeautifulSoup(newest.read_text(), "html.parser")
-        assert len(soup.select('table[data-pass="as-found"]')) == 6
-        assert len(soup.select('table[data-pass="as-left"]')) == 6
+        (left_run,) = [run for run in (tmp_path / "runs").iterdir() if run != found_run]
+        from verirun.certificate.render import certificate_path
+        from verirun.record import load_record
+
+        soup = BeautifulSoup(certificate_path(load_record(left_run), tmp_path / "rep").read_text(), "html.parser")
+        # One table per range, each point's as-found and as-left results in one row.
+        tables = soup.select('table[data-pass="as-found-and-as-left"]')
+        assert len(tables) == 6 and not soup.select('table[data-pass="as-found"]')
         assert "span trimmer reset" in text_of(soup, "#adjustment")
-        row_found = soup.select_one('table[data-pass="as-found"][data-range="dcv-6"] tr[data-key="dcv-6@4.8V"]')
-        row_left = soup.select_one('table[data-pass="as-left"][data-range="dcv-6"] tr[data-key="dcv-6@4.8V"]')
-        assert "FAIL" in row_found.get_text() and "PASS" in row_left.get_text()
+        row = soup.select_one('table[data-range="dcv-6"] tr[data-key="dcv-6@4.8V"]')
+        assert row.select_one('td[data-verdict="as-found"]').get_text() == "FAIL"
+        assert row.select_one('td[data-verdict="as-left"]').get_text() == "PASS"
+        assert row.select_one('td[data-pass="as-found"]').get_text().startswith("4.6")
+        assert row.select_one('td[data-pass="as-left"]').get_text().startswith("4.8")
+        # The statement of conformity covers both: what was found, and what was left.
+        found, left = text_of(soup, "#overall").split("As left, after the adjustment:")
+        assert "As found, before the adjustment: Statement of conformity" in found
+        assert "does NOT conform" in found and "4 of 20 points are not accepted" in found
+        assert "3 of 20 points are not accepted" in left
 
     def test_as_left_of_another_item_is_refused(self, tmp_path, capsys):
         """An as-left run must follow an as-found run of the same item."""
@@ -179,3 +199,24 @@ class TestClause784And786:
         assert main(["run", str(proc), "--serial", "TWO", *common, "--as-left-of", str(found_run),
                      "--adjustment", "x"]) == 1
         assert "not 'TWO'" in capsys.readouterr().err
+
+    def test_as_left_for_another_customer_or_a_second_as_left_is_refused(self, tmp_path, capsys):
+        """An as-left run is of the same item for the same customer, and one follows each
+        as-found run; a refused run writes no run folder."""
+        from pathlib import Path
+
+        root = Path(__file__).resolve().parents[2]
+        proc, bench = root / "procedures" / "qm40-analog-multimeter.yaml", root / "verirun" / "demo" / "bench-sim.yaml"
+        data = root / "tests" / "data" / "qm40-readings.csv"
+        common = ["--bench", str(bench), "--simulate", "--readings", str(data), "--serial", "S1",
+                  "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "rep")]
+        assert main(["run", str(proc), "--customer", "C", *common]) == 0
+        (found_run,) = (tmp_path / "runs").iterdir()
+        left = ["--as-left-of", str(found_run), "--adjustment", "zero set"]
+        assert main(["run", str(proc), "--customer", "D", *common, *left]) == 1
+        assert "for customer 'C', not 'D'" in capsys.readouterr().err
+        assert len(list((tmp_path / "runs").iterdir())) == 1
+        assert main(["run", str(proc), "--customer", "C", *common, *left]) == 0
+        assert main(["run", str(proc), "--customer", "C", *common, *left]) == 1
+        assert "has an as-left run already" in capsys.readouterr().err
+        assert len(list((tmp_path / "runs").iterdir())) == 2

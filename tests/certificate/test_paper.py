@@ -116,7 +116,9 @@ class TestOnPaper:
         pdf = write_pdf(html, tmp_path / "p100.pdf")
         reader = PdfReader(io.BytesIO(pdf.read_bytes()))
         assert len(reader.pages) == pages
-        number = record["lab"]["certificate_prefix"]
+        from verirun.certificate.render import certificate_number
+
+        number = certificate_number(record)
         for n, page in enumerate(reader.pages, start=1):
             text = page.extract_text()
             assert f"Page {n} of {pages}" in text

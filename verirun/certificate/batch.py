@@ -31,6 +31,10 @@ class Outcome:
     pdf: str | None = None
     error: str | None = None
     note: str | None = None
+    #: A dry run, a draft, or issued by whom (see :func:`verirun.issue.state_of`).
+    state: str | None = None
+    #: The certificates of earlier revisions, rendered again marked as replaced.
+    replaced: tuple[str, ...] = ()
 
 
 def find_runs(paths: list[Path]) -> list[Path]:
@@ -56,6 +60,7 @@ def certify_one(run: Path, reports_dir: Path, pdf: bool = False) -> Outcome:
     from verirun.certificate.render import TEMPLATE_VERSION, certificate_path, keep_issued, render_html, write_pdf
     from verirun.errors import VerirunError
     from verirun.integrity import verified_record
+    from verirun.issue import earlier_revisions, earlier_states, state_of
 
     try:
         if not Path(run).exists():
@@ -69,13 +74,22 @@ def certify_one(run: Path, reports_dir: Path, pdf: bool = False) -> Outcome:
         storage.make_folder(path.parent)
         was = _version_of(path)
         note = None
-        if keep_issued(path, html) != "same":
+        kept = keep_issued(path, html, earlier=earlier_states(run, record))
+        if kept != "same":
             storage.write_atomic(path, [html])
-            if was is not None:
+            if kept == "moved":
                 note = (f"re-rendered with certificate template {TEMPLATE_VERSION} (was {was}; the earlier"
                         " one is kept beside it)")
         pdf_path = write_pdf(html.decode("utf-8"), path.with_suffix(".pdf")) if pdf else None
-        return Outcome(run=str(run), certificate=str(path), pdf=str(pdf_path) if pdf_path else None, note=note)
+        replaced = []
+        for earlier, replaced_by in earlier_revisions(run):  # each stays readable, marked replaced
+            old = certificate_path(earlier, reports_dir)
+            marked = render_html(earlier, replaced_by=replaced_by).encode("utf-8")
+            if keep_issued(old, marked, earlier=earlier_states(run, earlier, replaced_by=replaced_by)) != "same":
+                storage.write_atomic(old, [marked])
+            replaced.append(str(old))
+        return Outcome(run=str(run), certificate=str(path), pdf=str(pdf_path) if pdf_path else None, note=note,
+                       state=state_of(record), replaced=tuple(replaced))
     except VerirunError as exc:
         return Outcome(run=str(run), error=str(exc))
     except Exception as exc:  # one bad record never stops the batch

@@ -15,12 +15,20 @@ from pathlib import Path
 from verirun.text import shown
 
 #: Version of the certificate template; recorded in every certificate it renders.
-TEMPLATE_VERSION = "2"
+TEMPLATE_VERSION = "3"
+
+#: The prefix of a dry run's number, in place of the lab's: a dry run is not in its sequence.
+DRY_RUN_PREFIX = "DRYRUN"
+
+
+def is_dry_run(record: dict) -> bool:
+    """True for a run on the simulated calibrator: a dry run, never a calibration."""
+    return bool(record["bench"].get("simulated"))
 
 
 def certificate_number(record: dict) -> str:
     """The certificate's unique number: lab prefix, calibration date and the run's uid."""
-    prefix = record["lab"].get("certificate_prefix", "CERT")
+    prefix = DRY_RUN_PREFIX if is_dry_run(record) else record["lab"].get("certificate_prefix", "CERT")
     day = record["run"]["started"][:10].replace("-", "")
     number = f"{prefix}-{day}-{record['run']['uid'][:8].upper()}"
     revision = record["run"].get("revision", 1)
@@ -45,6 +53,7 @@ def safe_file_name(text: str) -> str:
 def _environment():
     from jinja2 import Environment, PackageLoader, StrictUndefined, select_autoescape
 
+    from verirun.certificate.reading import spelt
     from verirun.units import format_quantity
 
     env = Environment(loader=PackageLoader("verirun.certificate", "templates"),
@@ -55,19 +64,33 @@ def _environment():
 
     env.filters["q"] = lambda value, unit, digits=6: format_quantity(value, unit, digits)
     env.filters["verdict"] = label
+    env.filters["css_string"] = css_string
+    env.filters["spelt"] = spelt
     return env
 
 
 _ENV = None
 
 
-def render_html(record: dict) -> str:
-    """The certificate of ``record`` as HTML text."""
-    return "".join(_generate(record))
+def css_string(text: str):
+    """``text`` as a quoted CSS string that no text can break out of (quotes, backslashes,
+    line breaks and ``<`` written as CSS escapes)."""
+    from markupsafe import Markup
+
+    escaped = "".join(f"\\{ord(c):x} " if c in '"\\<>&\n\r\f' or ord(c) < 32 else c for c in str(text))
+    return Markup(f'"{escaped}"')
 
 
-def _generate(record: dict):
+def render_html(record: dict, *, replaced_by: dict | None = None) -> str:
+    """The certificate of ``record`` as HTML text; ``replaced_by`` (see
+    :func:`verirun.issue.earlier_revisions`) marks an earlier revision as replaced."""
+    return "".join(_generate(record, replaced_by=replaced_by))
+
+
+def _generate(record: dict, *, replaced_by: dict | None = None):
     """The certificate of ``record`` as a stream of text pieces (for writing without holding it)."""
+    from verirun.certificate.reading import reading_context
+
     global _ENV
     if _ENV is None:
         _ENV = _environment()
@@ -78,9 +101,11 @@ def _generate(record: dict):
     return map(shown, template.generate(
         record=record, ranges=_ranges(record["ranges"], record["points"]),
         summary=conformity(record),
+        found_summary=conformity({**record, "points": as_found["points"]}) if as_found else None,
         as_found_ranges=_ranges(record["ranges"], as_found["points"]) if as_found else [],
         number=certificate_number(record), replaces=previous_number(record),
-        template_version=TEMPLATE_VERSION))
+        template_version=TEMPLATE_VERSION,
+        **reading_context(record, replaced_by=replaced_by)))
 
 
 def conformity(record: dict):
@@ -176,11 +201,15 @@ def write_pdf(html: str, path: str | Path) -> Path:
     return storage.write_atomic(path, [pdf_engine().HTML(string=html).write_pdf()])
 
 
-def write_certificate(record: dict, reports_dir: str | Path) -> Path:
+def write_certificate(record: dict, reports_dir: str | Path, *, replaced_by: dict | None = None,
+                      earlier: tuple[bytes, ...] = ()) -> Path:
     """Render ``record`` into ``reports_dir``/<certificate number>.html; return the path.
 
-    A certificate once written is a document of record: it is never replaced by a different
-    one of the same number (see :func:`keep_issued`).
+    ``replaced_by`` (see :func:`verirun.issue.earlier_revisions`) marks an earlier revision as
+    replaced. A certificate once written is a document of record: it is never replaced by a
+    different one of the same number (see :func:`keep_issued`), save one of ``earlier`` (see
+    :func:`verirun.issue.earlier_states`): the same record's certificate before it moved on, a
+    draft now issued or a revision now marked replaced.
 
     Raises
     ------
@@ -197,9 +226,9 @@ def write_certificate(record: dict, reports_dir: str | Path) -> Path:
         raise storage.storage_error(OSError(errno.ELOOP, "is a symbolic link", str(path)), path)
     if not os.path.lexists(path):
         # Streamed piece by piece: a long run's certificate is never held whole in memory.
-        return storage.write_atomic(path, _generate(record))
-    html = render_html(record).encode("utf-8")  # one is there: compared whole
-    if keep_issued(path, html) == "same":
+        return storage.write_atomic(path, _generate(record, replaced_by=replaced_by))
+    html = render_html(record, replaced_by=replaced_by).encode("utf-8")  # one is there: compared whole
+    if keep_issued(path, html, earlier=earlier) == "same":
         return path
     storage.write_atomic(path, [html])
     return path
@@ -208,10 +237,12 @@ def write_certificate(record: dict, reports_dir: str | Path) -> Path:
 _VERSION_META = re.compile(rb'<meta name="verirun-template" content="([^"]*)">')
 
 
-def keep_issued(path: Path, html: bytes) -> str:
+def keep_issued(path: Path, html: bytes, *, earlier: tuple[bytes, ...] = ()) -> str:
     """Whether ``html`` may be written at ``path``: ``"new"`` (nothing there), ``"same"`` (the same
-    bytes are there), or ``"moved"``: the certificate there was rendered with another template
-    version, and is kept beside it as ``<name>.t<version>.html`` first.
+    bytes are there), ``"moved"``: the certificate there was rendered with another template
+    version, and is kept beside it as ``<name>.t<version>.html`` first, or ``"replaced"``: the
+    certificate there is one of ``earlier`` (see :func:`verirun.issue.earlier_states`), the same
+    record's certificate before it was issued or marked replaced.
 
     Raises
     ------
@@ -230,6 +261,8 @@ def keep_issued(path: Path, html: bytes) -> str:
         raise storage.storage_error(exc, path) from None
     if old == html:
         return "same"
+    if old in earlier:
+        return "replaced"
     match = _VERSION_META.search(old)
     was = match.group(1).decode("ascii", "replace") if match else "unknown"
     if was == TEMPLATE_VERSION:

@@ -39,3 +39,9 @@ def sim_library(workdir: str | Path | None = None) -> str:
         shutil.copyfileobj(source, copy)
     # The simulator needs a string path; a Path object is not accepted.
     return f"{target}@sim"
+
+
+def is_simulator(visa_library: str) -> bool:
+    """True when a VISA library string opens this simulator (pyvisa-sim's ``...@sim``): a bench
+    reached through it is a dry run, never a calibration."""
+    return visa_library.strip().endswith("@sim")
