@@ -67,6 +67,7 @@ def amend(path: str | Path, *, point: str, reading: str, reason: str, operator: 
         journal.append({"kind": "correction", "time": iso(clock.now()), "point": target.key,
                         "index": target.index, "typed": entry.typed, "reading": entry.value,
                         "reason": reason.strip(), "operator": operator})
+    from verirun.register.closing import after_close
     from verirun.session import close_run
 
-    return close_run(folder)
+    return after_close(folder, close_run(folder))[0]

@@ -72,6 +72,7 @@ def build_record(documents: list[dict], source: str = "journal", *, known: Known
     entries: dict[str, dict] = {}
     notes = []
     stop = None
+    number = None
     revision = 1
     corrections: dict[str, dict] = {}
     for doc in documents[1:]:
@@ -107,6 +108,8 @@ def build_record(documents: list[dict], source: str = "journal", *, known: Known
                                      if doc.get("environment") != start.get("environment") else "")})
         elif kind == "stop":
             stop = doc
+        elif kind == "certificate-number":  # given by the lab register when the run closed
+            number = doc["number"]
     rows = []
     for key, point in points.items():
         doc = entries.get(key)
@@ -127,7 +130,8 @@ def build_record(documents: list[dict], source: str = "journal", *, known: Known
                 "status": status, "reason": stop.get("reason") if stop else None,
                 "operator": start["operator"], "software": start["software"],
                 "journal_sha256_last": line_hash(dumps(documents[-1])),
-                "documents": len(documents), "revision": revision},
+                "documents": len(documents), "revision": revision,
+                **({"certificate_number": number} if number is not None else {})},
         "lab": start["lab"],
         "customer": {"name": None, "address": [], **start["customer"]},
         "item": {"serial": None, "asset": None, "condition": None, "received": None, **start["item"]},

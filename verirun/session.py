@@ -25,6 +25,7 @@ from verirun.engine import Engine, Outcome, RunContext
 from verirun.errors import ProcedureError, RecordError, VerirunError
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.record import JOURNAL_NAME, RECORD_NAME, Journal, read_journal, verify_chain, write_record
+from verirun.register.closing import after_close
 from verirun.runrecord import Known, build_record
 
 
@@ -151,14 +152,14 @@ def _drive(*, run_dir: Path, procedure, bench, context, readings, console, repor
     except BaseException as exc:
         journal.close()
         try:
-            close_run(run_dir, known=known)
+            after_close(run_dir, close_run(run_dir, known=known), known=known, warn=console.warn)
         except Exception:  # the journal is the truth; a record that cannot be built now can be later
             pass
         exc.run_dir = run_dir  # type: ignore[attr-defined]
         raise
     journal.close()
-    record = close_run(run_dir, known=known)
-    complete = record is not None and record["run"]["status"] == "complete"
+    record, issuable = after_close(run_dir, close_run(run_dir, known=known), known=known, warn=console.warn)
+    complete = record is not None and record["run"]["status"] == "complete" and issuable
     certificate = write_certificate(record, reports_dir) if complete else None
     return Finished(outcome=outcome, run_dir=run_dir, record_path=run_dir / RECORD_NAME,
                     certificate=certificate, record=record)

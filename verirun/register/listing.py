@@ -1,0 +1,125 @@
+"""Read the register: runs (the latest closing of each), and what is coming due."""
+
+from __future__ import annotations
+
+import datetime as dt
+
+import sqlalchemy as sa
+
+from verirun.register.schema import items, runs, standards
+
+
+def latest_closings(*where):
+    """The latest closing (the most journal documents) of each run matching ``where``."""
+    return (sa.select(runs.c.uid, sa.func.max(runs.c.documents).label("documents"))
+            .where(*where).group_by(runs.c.uid).subquery("latest"))
+
+
+def _day_after(day: str) -> str:
+    return (dt.date.fromisoformat(day) + dt.timedelta(days=1)).isoformat()
+
+
+def list_runs(register, *, item: str | None = None, since: str | None = None,
+              until: str | None = None) -> list[dict]:
+    """Runs in the register, oldest first, in the rows ``verirun runs`` prints (from a folder
+    scan the same keys), with the bench, certificate number and uid besides."""
+    where = []
+    if item is not None:
+        where.append(runs.c.item_serial == item)
+    if since is not None:
+        where.append(runs.c.started >= since)
+    if until is not None:
+        where.append(runs.c.started < _day_after(until))
+    latest = latest_closings(*where)
+    query = (sa.select(runs.c.folder, runs.c.item_serial, runs.c.procedure_id, runs.c.procedure_revision,
+                       runs.c.started, runs.c.overall, runs.c.status, runs.c.bench_id, runs.c.certificate,
+                       runs.c.uid, runs.c.revision)
+             .join(latest, sa.and_(runs.c.uid == latest.c.uid, runs.c.documents == latest.c.documents))
+             .order_by(runs.c.started, runs.c.folder))
+    with register.reading() as connection:
+        rows = connection.execute(query).all()
+    return [{"run": r[0], "path": None, "item": r[1], "procedure": r[2], "revision": r[3],
+             "date": r[4][:10], "verdict": r[5], "status": "aborted" if r[6] == "failed" else r[6],
+             "bench": r[7], "certificate": r[8], "uid": r[9], "record_revision": r[10]}
+            for r in rows]
+
+
+def parse_within(text: str) -> int:
+    """A span such as ``30d``, ``6w``, ``3m`` (30-day months) or ``1y`` (365 days), in days.
+
+    Raises
+    ------
+    UnitError
+        If it is not such a span.
+    """
+    from verirun.errors import UnitError
+
+    text = text.strip().lower()
+    factors = {"d": 1, "w": 7, "m": 30, "y": 365}
+    if len(text) >= 2 and text[-1] in factors and text[:-1].isdigit():
+        return int(text[:-1]) * factors[text[-1]]
+    if text.isdigit():
+        return int(text)
+    raise UnitError(f"{text!r} is not a span; write it as 30d, 6w, 12m or 1y")
+
+
+def coming_due(register, *, within_days: int, today: dt.date) -> list[dict]:
+    """Standards and items due on or before ``today`` + ``within_days`` (overdue ones included),
+    soonest first. An item is due its calibration interval after its last complete run that was
+    not a dry run; items with no interval in the register are not listed."""
+    horizon = today + dt.timedelta(days=within_days)
+    out = []
+    latest_std = (sa.select(standards.c.asset, sa.func.max(standards.c.revision).label("revision"))
+                  .group_by(standards.c.asset).subquery())
+    latest_item = (sa.select(items.c.serial, items.c.model, sa.func.max(items.c.revision).label("revision"))
+                   .group_by(items.c.serial, items.c.model).subquery())
+    last_run = (sa.select(runs.c.item_serial, runs.c.item_model, sa.func.max(runs.c.started).label("last"))
+                .where(runs.c.status == "complete", runs.c.simulated.is_(False))
+                .group_by(runs.c.item_serial, runs.c.item_model).subquery())
+    with register.reading() as connection:
+        for row in connection.execute(
+                sa.select(standards.c.asset, standards.c.description, standards.c.certificate,
+                          standards.c.calibration_due)
+                .join(latest_std, sa.and_(standards.c.asset == latest_std.c.asset,
+                                          standards.c.revision == latest_std.c.revision))
+                .where(standards.c.calibration_due <= horizon)):
+            out.append({"kind": "standard", "id": row.asset, "what": row.description or "",
+                        "reference": row.certificate, "due": row.calibration_due.isoformat(),
+                        "days": (row.calibration_due - today).days})
+        for row in connection.execute(
+                sa.select(items.c.serial, items.c.model, items.c.customer, items.c.interval_days, last_run.c.last)
+                .join(latest_item, sa.and_(items.c.serial == latest_item.c.serial,
+                                           items.c.model == latest_item.c.model,
+                                           items.c.revision == latest_item.c.revision))
+                .outerjoin(last_run, sa.and_(last_run.c.item_serial == items.c.serial,
+                                             last_run.c.item_model == items.c.model))
+                .where(items.c.interval_days.is_not(None))):
+            if row.last is None:
+                due, reference = today, "never calibrated here"
+            else:
+                due = dt.date.fromisoformat(row.last[:10]) + dt.timedelta(days=row.interval_days)
+                reference = f"last calibrated {row.last[:10]}, every {row.interval_days} days"
+            if due <= horizon:
+                out.append({"kind": "item", "id": row.serial, "what": f"{row.model} ({row.customer or ''})",
+                            "reference": reference, "due": due.isoformat(), "days": (due - today).days})
+    return sorted(out, key=lambda r: (r["due"], r["kind"], r["id"]))
+
+
+def enter_item(register, *, serial: str, model: str, interval_days: int | None, customer: str | None,
+               asset: str | None, by: str) -> dict:
+    """Enter the next revision of an item (its interval, customer or asset changed): the
+    fields not given are those of its latest revision."""
+    from verirun.register.store import now_text
+
+    with register.engine.begin() as connection:
+        latest = connection.execute(sa.select(items).where(items.c.serial == serial, items.c.model == model)
+                                    .order_by(items.c.revision.desc()).limit(1)).mappings().first()
+        base = dict(latest) if latest else {"maker": None, "kind": None, "customer": None, "asset": None,
+                                             "interval_days": None, "revision": 0}
+        row = {"serial": serial, "model": model, "revision": base["revision"] + 1, "maker": base["maker"],
+               "kind": base["kind"], "customer": customer if customer is not None else base["customer"],
+               "asset": asset if asset is not None else base["asset"],
+               "interval_days": interval_days if interval_days is not None else base["interval_days"],
+               "entered": now_text(), "entered_by": by}
+        connection.execute(items.insert().values(**row))
+    return row
