@@ -131,7 +131,8 @@ class _Typed:
 
 
 def close_run(runs_dir: Path, *, serial: str = "PV3-0001", readings=("2.00", "5.00", "8.00"),
-              when: dt.datetime | None = None, bench: str = "bench.yaml", simulated: bool = False):
+              when: dt.datetime | None = None, bench: str = "bench.yaml", simulated: bool = False,
+              as_left_of: Path | None = None):
     """Run the test procedure on the simulated calibrator and close it; return what it left.
 
     ``simulated=False`` records it as a calibration (the record says so; the calibrator driven
@@ -145,12 +146,17 @@ def close_run(runs_dir: Path, *, serial: str = "PV3-0001", readings=("2.00", "5.
     from verirun.register.standards import load_bench
     from verirun.session import execute
 
+    from verirun.session import as_found_of
+
     when = when or dt.datetime(2026, 3, 1, 9, 0, tzinfo=dt.timezone.utc)
     lab = load_lab(DATA / "lab.yaml")
+    procedure = load_procedure(DATA / "procedure.yaml")
+    as_found = None if as_left_of is None else as_found_of(as_left_of, serial=serial, procedure=procedure,
+                                                            adjustment="span trimmed")
     context = RunContext(lab=lab.lab.model_dump(mode="json"), customer={"name": "Test Customer"},
                          item={"serial": serial, "asset": None}, operator="tester", simulated=simulated,
-                         environment={"temperature_c": 23.0, "humidity_pct": 40.0})
-    return execute(procedure=load_procedure(DATA / "procedure.yaml"), bench=load_bench(DATA / bench),
+                         environment={"temperature_c": 23.0, "humidity_pct": 40.0}, as_found=as_found)
+    return execute(procedure=procedure, bench=load_bench(DATA / bench),
                    context=context, readings=_Typed(list(readings)), console=QuietConsole(),
                    runs_dir=runs_dir, reports_dir=runs_dir.parent / "reports", simulate=True,
                    clock=VirtualClock(when))
