@@ -413,9 +413,16 @@ def _cmd_certify(args) -> int:
 
     from verirun.certificate.batch import certify_many, find_runs
 
+    from verirun.register.closing import withheld
+
     runs = find_runs(args.runs)
     if not runs:
         _err("error: no stored runs found there")
+        return EXIT_ERROR
+    waiting = [reason for reason in map(withheld, runs) if reason]
+    if waiting:
+        for reason in waiting:
+            _err(f"error: {reason}")
         return EXIT_ERROR
     if args.pdf:
         from verirun.certificate.render import pdf_engine

@@ -120,6 +120,7 @@ class TestOutbox:
         finished = closed_run(tmp_path / "runs")
         assert (finished.run_dir / OUTBOX_NAME).exists()
         assert finished.certificate is None and "certificate_number" not in finished.record["run"]
+        assert main(["certify", str(finished.run_dir), "--reports", str(tmp_path / "reports")]) == 1
         monkeypatch.setenv("VERIRUN_REGISTER", register_url)
         closed_run(tmp_path / "runs", serial="B-2")  # another bench's run closes meanwhile
         assert main(["register", "sync", "--runs", str(tmp_path / "runs")]) == 0

@@ -129,3 +129,21 @@ def sync(register, runs_dir: Path) -> list[tuple[Path, str | None, str | None]]:
 
         results.append((folder, certificate_number(record), "\n".join(problems) or None))
     return results
+
+
+def withheld(folder: Path) -> str | None:
+    """Why the certificate of the run in ``folder`` must wait (``None``: it need not): a run
+    closed complete while the register was out of reach has no certificate number yet."""
+    folder = Path(folder)
+    if not (folder / OUTBOX_NAME).exists():
+        return None
+    from verirun.record import load_record
+
+    try:
+        record = load_record(folder)
+    except RecordError:
+        return None  # certify reports what is wrong with it
+    if not needs_number(record):
+        return None
+    return (f"{folder}: this run waits for its certificate number from the register (it closed while the"
+            " register was out of reach); send it with 'verirun register sync', then certify it")
