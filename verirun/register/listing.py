@@ -19,10 +19,21 @@ def _day_after(day: str) -> str:
     return (dt.date.fromisoformat(day) + dt.timedelta(days=1)).isoformat()
 
 
+#: The columns ``verirun runs`` shows, in the order of the listing index (which holds them all,
+#: so that listing reads the index alone).
+LISTED = ("started", "folder", "documents", "uid", "item_serial", "procedure_id", "procedure_revision",
+          "overall", "status", "bench_id", "certificate", "revision")
+
+
 def list_runs(register, *, item: str | None = None, since: str | None = None,
               until: str | None = None) -> list[dict]:
     """Runs in the register, oldest first, in the rows ``verirun runs`` prints (from a folder
-    scan the same keys), with the bench, certificate number and uid besides."""
+    scan the same keys), with the bench, certificate number and uid besides.
+
+    A run closed more than once (resumed, or corrected) is shown by its latest closing: its
+    closings come one after another in this order, the latest last, so each replaces the one
+    before it as the rows are read (cheaper than asking the database for the latest of each).
+    """
     where = []
     if item is not None:
         where.append(runs.c.item_serial == item)
@@ -30,18 +41,21 @@ def list_runs(register, *, item: str | None = None, since: str | None = None,
         where.append(runs.c.started >= since)
     if until is not None:
         where.append(runs.c.started < _day_after(until))
-    latest = latest_closings(*where)
-    query = (sa.select(runs.c.folder, runs.c.item_serial, runs.c.procedure_id, runs.c.procedure_revision,
-                       runs.c.started, runs.c.overall, runs.c.status, runs.c.bench_id, runs.c.certificate,
-                       runs.c.uid, runs.c.revision)
-             .join(latest, sa.and_(runs.c.uid == latest.c.uid, runs.c.documents == latest.c.documents))
-             .order_by(runs.c.started, runs.c.folder))
+    query = (sa.select(*(runs.c[name] for name in LISTED)).where(*where)
+             .order_by(runs.c.started, runs.c.folder, runs.c.documents))
     with register.reading() as connection:
         rows = connection.execute(query).all()
-    return [{"run": r[0], "path": None, "item": r[1], "procedure": r[2], "revision": r[3],
-             "date": r[4][:10], "verdict": r[5], "status": "aborted" if r[6] == "failed" else r[6],
-             "bench": r[7], "certificate": r[8], "uid": r[9], "record_revision": r[10]}
-            for r in rows]
+    latest = []
+    for row in rows:  # row[3] is the uid
+        if latest and latest[-1][3] == row[3]:
+            latest[-1] = row
+        else:
+            latest.append(row)
+    return [{"run": folder, "path": None, "item": serial, "procedure": procedure, "revision": revision,
+             "date": started[:10], "verdict": overall, "status": "aborted" if status == "failed" else status,
+             "bench": bench, "certificate": certificate, "uid": uid, "record_revision": record_revision}
+            for started, folder, _, uid, serial, procedure, revision, overall, status, bench, certificate,
+            record_revision in latest]
 
 
 def parse_within(text: str) -> int:

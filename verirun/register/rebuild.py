@@ -15,6 +15,11 @@ from verirun.errors import ProcedureError, RecordError
 from verirun.record import JOURNAL_NAME, RECORD_NAME, load_record, read_journal, verify_chain
 
 
+#: Records stored per transaction by a rebuild: one commit (and its fsync) per record would
+#: be most of a rebuild's time (benchmarks/register.py).
+BATCH = 200
+
+
 class _Plans:
     """Procedures and benches loaded and planned once per (procedure, bench) text: the runs of
     one procedure on one bench share them, so a rebuild does not load and plan them per run."""
@@ -117,18 +122,21 @@ def run_folders(root: Path) -> list[Path]:
 def rebuild(register, root: Path, *, progress=None) -> Rebuilt:
     """Index every run folder under ``root`` into ``register``."""
     from verirun.register.closing import OUTBOX_NAME
-    from verirun.register.store import store_record
+    from verirun.register.store import store_records
 
-    plans, out = _Plans(), Rebuilt()
+    plans, out, pending = _Plans(), Rebuilt(), []
     for folder in run_folders(root):
         out.folders += 1
         good, problems = verified_records(folder, plans)
-        for record in good:
-            out.stored += store_record(register, record, folder.name)
+        pending.extend((record, folder.name) for record in good)
+        if len(pending) >= BATCH:
+            out.stored += store_records(register, pending)
+            pending = []
         if problems:
             out.failed[str(folder)] = problems
         if (folder / OUTBOX_NAME).exists():
             out.unnumbered.append(str(folder))
         if progress is not None:
             progress()
+    out.stored += store_records(register, pending)
     return out

@@ -122,29 +122,40 @@ def store_record(register: Register, record: dict, folder: str, *, by: str = "ve
     RegisterUnreachable
         If the database cannot be reached or written.
     """
+    return store_records(register, [(record, folder)], by=by) == 1
+
+
+def store_records(register: Register, closed: list[tuple[dict, str]], *, by: str = "verirun") -> int:
+    """Store several closed records (each with its run folder's name) in one transaction; return
+    how many were not there before."""
     from verirun.record import dumps
 
-    body = dumps(record)
+    # Statements made once and given their values as parameters, so each is compiled once.
+    add_run = (_insert(register, runs).on_conflict_do_nothing(index_elements=["uid", "documents"])
+               .returning(runs.c.id))
+    add_item = _insert(register, items).on_conflict_do_nothing(index_elements=["serial", "model", "revision"])
+    stored = 0
     try:
         with register.engine.begin() as connection:
-            inserted = connection.execute(
-                _insert(register, runs).values(**run_row(record, folder))
-                .on_conflict_do_nothing(index_elements=["uid", "documents"]).returning(runs.c.id)).scalar()
-            if inserted is None:
-                return False
-            connection.execute(points.insert(), point_rows(inserted, record)) if record["points"] else None
-            connection.execute(records.insert().values(
-                run_id=inserted, body=body, sha256=hashlib.sha256(body.encode("utf-8")).hexdigest()))
-            meter = record["meter"]
-            connection.execute(
-                _insert(register, items).values(
-                    serial=record["item"].get("serial") or "", model=meter.get("model") or "", revision=1,
-                    maker=meter.get("maker"), kind=meter.get("kind"), customer=record["customer"].get("name"),
-                    asset=record["item"].get("asset"), interval_days=None, entered=now_text(), entered_by=by)
-                .on_conflict_do_nothing(index_elements=["serial", "model", "revision"]))
-            return True
+            for record, folder in closed:
+                inserted = connection.execute(add_run, run_row(record, folder)).scalar()
+                if inserted is None:
+                    continue
+                stored += 1
+                if record["points"]:
+                    connection.execute(points.insert(), point_rows(inserted, record))
+                body = dumps(record)
+                connection.execute(records.insert(), {"run_id": inserted, "body": body,
+                                                      "sha256": hashlib.sha256(body.encode("utf-8")).hexdigest()})
+                meter = record["meter"]
+                connection.execute(add_item, {
+                    "serial": record["item"].get("serial") or "", "model": meter.get("model") or "",
+                    "revision": 1, "maker": meter.get("maker"), "kind": meter.get("kind"),
+                    "customer": record["customer"].get("name"), "asset": record["item"].get("asset"),
+                    "interval_days": None, "entered": now_text(), "entered_by": by})
     except (sa.exc.OperationalError, sa.exc.InterfaceError) as exc:
         raise RegisterUnreachable(f"register {register.name}: {_reason(exc)}") from None
+    return stored
 
 
 def stored_record(register: Register, uid: str, revision: int | None = None) -> dict | None:

@@ -82,7 +82,9 @@ def upgrade() -> None:
         sa.UniqueConstraint("uid", "documents", name="runs_uid_documents"),
     )
     op.create_index("runs_item", "runs", ["item_serial", "started"])
-    op.create_index("runs_started", "runs", ["started"])
+    op.create_index("runs_listing", "runs", ["started", "folder", "documents", "uid", "item_serial", "procedure_id",
+                                             "procedure_revision", "overall", "status", "bench_id", "certificate",
+                                             "revision"])
     op.create_table(
         "points",
         sa.Column("id", sa.Integer, primary_key=True),
