@@ -131,13 +131,10 @@ def fill_register(register, seed: Path, n: int) -> None:
 
 
 def best(call, repeats: int = 5) -> float:
-    call()
-    samples = []
-    for _ in range(repeats):
-        t = time.perf_counter()
-        call()
-        samples.append(time.perf_counter() - t)
-    return _gen.median(samples)
+    """The median time of ``repeats`` calls after one to warm up."""
+    from certificates import timed
+
+    return timed(call, repeats)
 
 
 def main(argv: list[str]) -> int:

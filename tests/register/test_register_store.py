@@ -139,6 +139,25 @@ class TestOutbox:
         assert main(["certify", str(finished.run_dir), "--reports", str(tmp_path / "reports")]) == 0
         assert (tmp_path / "reports" / "RTL-2026-00002.html").exists()
 
+    def test_a_signal_while_sending_leaves_the_run_in_the_outbox(self, register, tmp_path, closed_run, monkeypatch):
+        """Ctrl-C (or SIGTERM) landing while the register is written: the run is kept in the
+        outbox, and a later sync numbers and stores it."""
+        from verirun.register import store
+
+        real = store.store_records
+
+        def interrupted(*args, **kwargs):
+            raise KeyboardInterrupt("terminated (SIGTERM)")
+
+        monkeypatch.setattr(store, "store_records", interrupted)
+        with pytest.raises(KeyboardInterrupt):
+            closed_run(tmp_path / "runs")
+        folder = next((tmp_path / "runs").iterdir())
+        assert (folder / OUTBOX_NAME).exists() and _count(register, runs) == 0
+        monkeypatch.setattr(store, "store_records", real)
+        assert main(["register", "sync", "--runs", str(tmp_path / "runs")]) == 0
+        assert _count(register, runs) == 1 and not (folder / OUTBOX_NAME).exists()
+
     def test_a_tampered_run_in_the_outbox_is_not_sent(self, register, register_url, tmp_path, closed_run,
                                                       monkeypatch, capsys):
         """Sync verifies first: an edited record stays in the outbox, reported, exit 1."""

@@ -53,6 +53,9 @@ def after_close(run_dir: Path, record: dict | None, *, known=None, warn=None) ->
                  " and sent by 'verirun register sync'"
                  + ("; its certificate waits for the number the register gives it" if waiting else ""))
         return record, not needs_number(record)
+    except BaseException:  # a signal or a bug part-way: the run still waits to be sent
+        keep(Path(run_dir), record, "interrupted while sending it to the register")
+        raise
 
 
 def file_run(register, run_dir: Path, record: dict, *, known=None) -> dict:

@@ -132,11 +132,31 @@ class History:
         return "\n".join(lines)
 
 
+#: What makes a run a calibration (see the module's description).
+CALIBRATION = (runs.c.status == "complete", runs.c.simulated.is_(False), runs.c.as_found_uid.is_(None))
+
+
 def _calibrations(*where):
     """Runs that count as calibrations, by their latest closing."""
-    latest = latest_closings(*where, runs.c.status == "complete", runs.c.simulated.is_(False),
-                             runs.c.as_found_uid.is_(None))
-    return latest
+    return latest_closings(*where, *CALIBRATION)
+
+
+def model_verdicts(connection, model: str) -> list[str]:
+    """The overall verdict of every calibration of every item of ``model`` (latest closings).
+
+    Read in (uid, journal length) order from the index that holds these columns, keeping the
+    last closing of each run as the rows come: for a model with tens of thousands of runs this
+    is several times faster than asking the database for each run's latest closing."""
+    rows = connection.execute(sa.select(runs.c.uid, runs.c.overall).where(runs.c.item_model == model, *CALIBRATION)
+                              .order_by(runs.c.uid, runs.c.documents)).all()
+    verdicts, last_uid = [], None
+    for uid, overall in rows:
+        if uid == last_uid:
+            verdicts[-1] = overall
+        else:
+            verdicts.append(overall)
+        last_uid = uid
+    return verdicts
 
 
 def item_history(register, *, serial: str, model: str | None = None, today: dt.date) -> History:
@@ -166,10 +186,7 @@ def item_history(register, *, serial: str, model: str | None = None, today: dt.d
         if len(models) > 1:
             raise RegisterError(f"item {serial!r} is of several models ({', '.join(models)}); name one with --model")
         model = models[0]
-        verdicts = connection.execute(
-            sa.select(runs.c.overall).join(latest_all := _calibrations(runs.c.item_model == model),
-                                           sa.and_(runs.c.uid == latest_all.c.uid,
-                                                   runs.c.documents == latest_all.c.documents))).scalars().all()
+        verdicts = model_verdicts(connection, model)
     table["date"] = table["started"].str.slice(0, 10)
     measured = table[table["error_fraction"].notna()].copy()
     first = dt.date.fromisoformat(measured["date"].min()) if not measured.empty else today

@@ -82,6 +82,8 @@ runs = sa.Table(
     # a correction closes again as the next revision; sending the same closing twice is a no-op.
     sa.UniqueConstraint("uid", "documents", name="runs_uid_documents"),
     sa.Index("runs_item", "item_serial", "started"),
+    # The calibrations of a model, in the order a history reads them, from the index alone.
+    sa.Index("runs_model", "item_model", "status", "simulated", "as_found_uid", "uid", "documents", "overall"),
     # Every column ``verirun runs`` shows, in its order: the listing reads this index alone.
     sa.Index("runs_listing", "started", "folder", "documents", "uid", "item_serial", "procedure_id",
              "procedure_revision", "overall", "status", "bench_id", "certificate", "revision"),

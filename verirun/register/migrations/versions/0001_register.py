@@ -82,6 +82,8 @@ def upgrade() -> None:
         sa.UniqueConstraint("uid", "documents", name="runs_uid_documents"),
     )
     op.create_index("runs_item", "runs", ["item_serial", "started"])
+    op.create_index("runs_model", "runs", ["item_model", "status", "simulated", "as_found_uid", "uid", "documents",
+                                           "overall"])
     op.create_index("runs_listing", "runs", ["started", "folder", "documents", "uid", "item_serial", "procedure_id",
                                              "procedure_revision", "overall", "status", "bench_id", "certificate",
                                              "revision"])
