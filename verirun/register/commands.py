@@ -16,7 +16,7 @@ _HELP = ("the lab register: a file path (SQLite, made on first use) or a databas
          " postgresql://user@host/lab; default: $VERIRUN_REGISTER, else none")
 
 
-def add_register_option(parser: argparse.ArgumentParser, *, required: bool = False) -> None:
+def add_register_option(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--register", metavar="PATH|URL", help=_HELP)
 
 
@@ -76,27 +76,24 @@ def cmd_register(args) -> int:
 
 
 def _migrate(args) -> int:
+    import sqlalchemy as sa
+
     from verirun.register.config import named
-    from verirun.register.db import RegisterError, Register, migrate, url_of, shown
+    from verirun.register.db import Register, RegisterError, head_revision, migrate, open_register, shown, url_of
 
     name = named()
     if name is None:
         raise RegisterError("name the lab register with --register PATH|URL or VERIRUN_REGISTER")
     url = url_of(name)
     if url.get_backend_name() == "sqlite":
-        from verirun.register.db import open_register
-
         register = open_register(name)  # an embedded register migrates itself as it opens
-        before, after = None, None
-        from verirun.register.db import head_revision
-
         print(f"{register.name}: schema at revision {head_revision()}")
         return 0
-    import sqlalchemy as sa
-
     register = Register(engine=sa.create_engine(url, connect_args={"connect_timeout": 5}), name=shown(url))
-    before, after = migrate(register)
-    register.engine.dispose()
+    try:
+        before, after = migrate(register)
+    finally:
+        register.engine.dispose()
     print(f"{register.name}: schema at revision {after}"
           + (f" (was {before or 'empty'})" if before != after else " (already)"))
     return 0
@@ -113,7 +110,7 @@ def _rebuild(args) -> int:
         print(f"{folder}: DOES NOT VERIFY ({len(problems)} problem{'s' if len(problems) > 1 else ''})")
     print(f"{out.folders} run folders read, {out.stored} records stored, {len(out.failed)} do not verify")
     if out.unnumbered:
-        print(f"{len(out.unnumbered)} wait in an outbox for the register: run 'verirun register sync'")
+        print(f"{len(out.unnumbered)} wait in an outbox for the register and were left to 'verirun register sync'")
     return 1 if out.failed else 0
 
 

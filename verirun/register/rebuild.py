@@ -127,6 +127,9 @@ def rebuild(register, root: Path, *, progress=None) -> Rebuilt:
     plans, out, pending = _Plans(), Rebuilt(), []
     for folder in run_folders(root):
         out.folders += 1
+        if (folder / OUTBOX_NAME).exists():  # 'register sync' numbers and sends it
+            out.unnumbered.append(str(folder))
+            continue
         good, problems = verified_records(folder, plans)
         pending.extend((record, folder.name) for record in good)
         if len(pending) >= BATCH:
@@ -134,8 +137,6 @@ def rebuild(register, root: Path, *, progress=None) -> Rebuilt:
             pending = []
         if problems:
             out.failed[str(folder)] = problems
-        if (folder / OUTBOX_NAME).exists():
-            out.unnumbered.append(str(folder))
         if progress is not None:
             progress()
     out.stored += store_records(register, pending)
