@@ -66,11 +66,11 @@ class TestItemHistory:
     def test_only_as_found_calibrations_count_and_a_correction_by_its_latest_revision(
             self, register, tmp_path, closed_run):
         """A dry run and the as-left pass after an adjustment are left out; an amended reading
-        counts as corrected. The 2 V point reads 2.00, 2.02 (corrected from 2.09), 2.04 V
+        counts as corrected. The 2 V point reads 2.00, 2.02 (corrected from 2.25, a fail), 2.04 V
         over three years: +0, +10, +20 % of the ±0.2 V tolerance, +10 % a year."""
         runs_dir = tmp_path / "runs"
         _calibrate(closed_run, runs_dir, "H-1", 2021, ("2.00", "5.00", "8.00"))
-        second = _calibrate(closed_run, runs_dir, "H-1", 2022, ("2.09", "5.00", "8.00"))
+        second = _calibrate(closed_run, runs_dir, "H-1", 2022, ("2.25", "5.00", "8.00"))
         assert main(["amend", str(second.run_dir), "--point", "1", "--reading", "2.02", "--reason", "misread",
                      "--reports", str(tmp_path / "reports")]) == 0
         found = _calibrate(closed_run, runs_dir, "H-1", 2023, ("2.04", "5.00", "8.30"))
@@ -82,7 +82,7 @@ class TestItemHistory:
         assert two == pytest.approx([0.0, 0.1, 0.2])
         assert history.drifts["dcv-10@2.0"].slope == pytest.approx(0.1 * YEAR_DAYS / 365, rel=2e-3)
         assert history.last_in_tolerance is False  # the 2023 as-found run failed at 8 V
-        assert (history.model_calibrations, history.model_in_tolerance) == (3, 2)
+        assert (history.model_calibrations, history.model_in_tolerance) == (3, 2)  # 2022 by its correction
         assert "shorten the interval" in history.staircase()
 
     def test_exports_and_an_html_page_that_escapes_the_serial(self, register, tmp_path, closed_run, capsys):

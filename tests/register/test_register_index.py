@@ -44,6 +44,21 @@ class TestRebuild:
         assert main(["register", "rebuild", str(folder), "--register", name]) == 1
         assert "0 records stored" in capsys.readouterr().out
 
+    def test_rebuild_leaves_a_run_waiting_in_its_outbox_to_sync(self, register, tmp_path, closed_run, capsys,
+                                                                  monkeypatch):
+        """A run closed with the register down is not indexed by its number-less record: rebuild
+        says it waits, and sync numbers and stores it."""
+        monkeypatch.setenv("VERIRUN_REGISTER", str(tmp_path / "gone" / "register.db"))
+        closed_run(tmp_path / "runs")
+        monkeypatch.undo()
+        monkeypatch.setenv("VERIRUN_REGISTER", str(register.engine.url.database) if register.dialect == "sqlite"
+                           else register.engine.url.render_as_string(False))
+        assert main(["register", "rebuild", str(tmp_path / "runs")]) == 0
+        assert "1 wait in an outbox" in capsys.readouterr().out
+        assert _runs_json(capsys) == []
+        assert main(["register", "sync", "--runs", str(tmp_path / "runs")]) == 0
+        assert [r["certificate"] for r in _runs_json(capsys)] == ["RTL-2026-00001"]
+
     def test_runs_from_the_register_are_the_runs_of_the_folder_scan(
             self, register, tmp_path, closed_run, capsys, monkeypatch):
         """The same rows, filters included, whether read from the register or the folders."""

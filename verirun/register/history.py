@@ -141,22 +141,18 @@ def _calibrations(*where):
     return latest_closings(*where, *CALIBRATION)
 
 
-def model_verdicts(connection, model: str) -> list[str]:
-    """The overall verdict of every calibration of every item of ``model`` (latest closings).
+def model_counts(connection, model: str) -> tuple[int, int]:
+    """How many calibrations of items of ``model`` there are, and how many were found in
+    tolerance, each run counted by its latest closing.
 
-    Read in (uid, journal length) order from the index that holds these columns, keeping the
-    last closing of each run as the rows come: for a model with tens of thousands of runs this
-    is several times faster than asking the database for each run's latest closing."""
-    rows = connection.execute(sa.select(runs.c.uid, runs.c.overall).where(runs.c.item_model == model, *CALIBRATION)
-                              .order_by(runs.c.uid, runs.c.documents)).all()
-    verdicts, last_uid = [], None
-    for uid, overall in rows:
-        if uid == last_uid:
-            verdicts[-1] = overall
-        else:
-            verdicts.append(overall)
-        last_uid = uid
-    return verdicts
+    One aggregate over the index that holds these columns: per run, its latest closing's
+    journal length and its latest passing closing's; the run passed when the two are one."""
+    per_run = (sa.select(sa.func.max(runs.c.documents).label("latest"),
+                         sa.func.max(sa.case((runs.c.overall == "pass", runs.c.documents))).label("passed"))
+               .where(runs.c.item_model == model, *CALIBRATION).group_by(runs.c.uid).subquery())
+    total, passed = connection.execute(
+        sa.select(sa.func.count(), sa.func.sum(sa.case((per_run.c.passed == per_run.c.latest, 1), else_=0)))).one()
+    return int(total), int(passed or 0)
 
 
 def item_history(register, *, serial: str, model: str | None = None, today: dt.date) -> History:
@@ -186,7 +182,7 @@ def item_history(register, *, serial: str, model: str | None = None, today: dt.d
         if len(models) > 1:
             raise RegisterError(f"item {serial!r} is of several models ({', '.join(models)}); name one with --model")
         model = models[0]
-        verdicts = model_verdicts(connection, model)
+        calibrations, in_tolerance = model_counts(connection, model)
     table["date"] = table["started"].str.slice(0, 10)
     measured = table[table["error_fraction"].notna()].copy()
     first = dt.date.fromisoformat(measured["date"].min()) if not measured.empty else today
@@ -199,8 +195,7 @@ def item_history(register, *, serial: str, model: str | None = None, today: dt.d
     columns = ["date", "uid", "certificate", "step", "key", "range_id", "nominal", "unit", "error", "error_unit",
                "error_fraction", "expanded_fraction", "verdict"]
     return History(serial=serial, model=model, today=today, table=table[columns].reset_index(drop=True),
-                   drifts=drifts, model_calibrations=len(verdicts),
-                   model_in_tolerance=sum(v == "pass" for v in verdicts),
+                   drifts=drifts, model_calibrations=calibrations, model_in_tolerance=in_tolerance,
                    last_in_tolerance=bool((last["verdict"] != "fail").all()))
 
 
