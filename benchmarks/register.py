@@ -54,8 +54,9 @@ def one_run(root: Path) -> Path:
 
     gen = _gen.generate(5, root / "gen")
     lab = load_lab(_gen.LAB_YAML)
-    context = RunContext(lab=lab.lab.model_dump(mode="json"), customer={"name": "Bench Customer"},
-                         item={"serial": "S-0", "asset": None}, operator="bench", simulated=False,
+    context = RunContext(lab=lab.lab.model_dump(mode="json"), customer={"name": "Bench Customer", "address": []},
+                         item={"serial": "S-0", "asset": None, "condition": "As received.", "received": None},
+                         operator="bench", simulated=False,
                          environment={"temperature_c": 23.0, "humidity_pct": 40.0})
     finished = execute(procedure=load_procedure(gen.procedure), bench=load_bench(gen.bench), context=context,
                        readings=ScriptedReadings(gen.readings), console=QuietConsole(), runs_dir=root / "seed",

@@ -17,6 +17,8 @@ withdrawal  the operator withdrew the last entry (``undo``) before the run went 
             step is measured again
 correction  a reading of a finished run was corrected (``verirun amend``): a new revision
 stop        the run ended: complete, aborted or failed, with the reason
+certificate-number
+            the lab register gave the complete run its certificate number
 ========== ==================================================================================
 
 Documents are validated when they are read back; the JSON Schema of the union
@@ -249,7 +251,16 @@ class Stop(Chained):
     counts: dict[str, int] = Field(description="results so far by verdict, and skipped steps")
 
 
-Document = Annotated[Union[Start, Resume, Observation, Skip, Note, Withdrawal, Correction, Stop],
+class CertificateNumber(Chained):
+    """The certificate number the lab register gave the complete run (once; written after its
+    stop document, when the run is sent to the register)."""
+
+    kind: Literal["certificate-number"]
+    number: str = Field(description="the certificate number, in the lab's sequence")
+    register_url: str = Field(description="the register that gave it (its URL without a password)")
+
+
+Document = Annotated[Union[Start, Resume, Observation, Skip, Note, Withdrawal, Correction, Stop, CertificateNumber],
                      Field(discriminator="kind")]
 
 _ADAPTER: TypeAdapter = TypeAdapter(Document)

@@ -158,8 +158,9 @@ def close_run(runs_dir: Path, *, serial: str = "PV3-0001", readings=("2.00", "5.
     procedure = load_procedure(DATA / "procedure.yaml")
     as_found = None if as_left_of is None else as_found_of(as_left_of, serial=serial, procedure=procedure,
                                                             adjustment="span trimmed")
-    context = RunContext(lab=lab.lab.model_dump(mode="json"), customer={"name": "Test Customer"},
-                         item={"serial": serial, "asset": None}, operator="tester", simulated=simulated,
+    context = RunContext(lab=lab.lab.model_dump(mode="json"), customer={"name": "Test Customer", "address": []},
+                         item={"serial": serial, "asset": None, "condition": "No damage seen.", "received": None},
+                         operator="tester", simulated=simulated,
                          environment={"temperature_c": 23.0, "humidity_pct": 40.0}, as_found=as_found)
     return execute(procedure=procedure, bench=load_bench(DATA / bench),
                    context=context, readings=_Typed(list(readings)), console=QuietConsole(),

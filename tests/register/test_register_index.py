@@ -15,7 +15,8 @@ from verirun.errors import ProcedureError
 from verirun.register.schema import runs
 
 DATA = Path(__file__).resolve().parent.parent / "data" / "register"
-KEYS = ("run", "item", "procedure", "revision", "date", "verdict", "status")
+KEYS = ("run", "item", "procedure", "revision", "date", "verdict", "status", "uid", "record_revision",
+        "certificate", "customer", "simulated", "as_found_run", "as_left_run")
 
 
 def _runs_json(capsys, *argv) -> list[dict]:
@@ -63,9 +64,11 @@ class TestRebuild:
             self, register, tmp_path, closed_run, capsys, monkeypatch):
         """The same rows, filters included, whether read from the register or the folders."""
         folder = tmp_path / "runs"
-        for n, day in enumerate((1, 5, 9)):
-            closed_run(folder, serial=f"L-{n % 2}", when=dt.datetime(2026, 4, day, tzinfo=dt.timezone.utc))
-        for argv in ((), ("--item", "L-0"), ("--since", "2026-04-05"), ("--until", "2026-04-05")):
+        made = [closed_run(folder, serial=f"L-{n % 2}", when=dt.datetime(2026, 4, day, tzinfo=dt.timezone.utc))
+                for n, day in enumerate((1, 5, 9))]
+        closed_run(folder, serial="L-0", readings=("2.00", "5.00", "8.01"), as_left_of=made[0].run_dir,
+                   when=dt.datetime(2026, 4, 2, tzinfo=dt.timezone.utc))
+        for argv in ((), ("--item", " l-0"), ("--since", "2026-04-05"), ("--until", "2026-04-05")):
             from_register = _runs_json(capsys, *argv)
             monkeypatch.delenv("VERIRUN_REGISTER")
             scanned = _runs_json(capsys, "--runs", str(folder), *argv)
@@ -73,7 +76,10 @@ class TestRebuild:
                                if register.dialect == "sqlite" else register.engine.url.render_as_string(False))
             assert [{k: r[k] for k in KEYS} for r in from_register] == [{k: r[k] for k in KEYS} for r in scanned]
             assert from_register  # every filter above matches something
-        assert [r["date"] for r in _runs_json(capsys, "--until", "2026-04-05")] == ["2026-04-01", "2026-04-05"]
+        assert [r["date"] for r in _runs_json(capsys, "--until", "2026-04-05")] == \
+            ["2026-04-01", "2026-04-02", "2026-04-05"]
+        first, left = _runs_json(capsys, "--item", "L-0")[:2]
+        assert (first["as_left_run"], left["as_found_run"]) == (left["run"], first["run"])
 
 
 class TestStandards:

@@ -59,6 +59,11 @@ class TestClosing:
             ["RTL-2026-00001", "RTL-2026-00002", "RTL-2027-00001"]
         assert first.certificate.name == "RTL-2026-00001.html"
         assert main(["verify", str(first.run_dir)]) == 0
+        from verirun.documents import validate_document
+        from verirun.record import read_journal
+
+        docs = read_journal(first.run_dir / "journal.jsonl").documents
+        assert docs[-2]["kind"] == "stop" and validate_document(docs[-1]).number == "RTL-2026-00001"
         with register.reading() as connection:
             body = connection.execute(sa.select(records.c.body).join(runs).where(
                 runs.c.uid == first.record["run"]["uid"])).scalar()

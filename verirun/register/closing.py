@@ -74,7 +74,7 @@ def file_run(register, run_dir: Path, record: dict, *, known=None) -> dict:
         number = allocate_number(register, record)
         with Journal(run_dir / JOURNAL_NAME) as journal:
             journal.append({"kind": NUMBER_KIND, "time": iso(SystemClock().now()), "number": number,
-                            "register": register.name})
+                            "register_url": register.name})
         from verirun.session import close_run
 
         record = close_run(run_dir, known=known)

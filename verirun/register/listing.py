@@ -22,21 +22,24 @@ def _day_after(day: str) -> str:
 #: The columns ``verirun runs`` shows, in the order of the listing index (which holds them all,
 #: so that listing reads the index alone).
 LISTED = ("started", "folder", "documents", "uid", "item_serial", "procedure_id", "procedure_revision",
-          "overall", "status", "bench_id", "certificate", "revision")
+          "overall", "status", "bench_id", "certificate", "revision", "customer", "simulated", "as_found_uid")
 
 
 def list_runs(register, *, item: str | None = None, since: str | None = None,
               until: str | None = None) -> list[dict]:
-    """Runs in the register, oldest first, in the rows ``verirun runs`` prints (from a folder
-    scan the same keys), with the bench, certificate number and uid besides.
+    """Runs in the register, oldest first, in the rows a folder scan gives ``verirun runs``
+    (the same keys, and ``bench``), filtered by item serial (any case) and dates.
 
     A run closed more than once (resumed, or corrected) is shown by its latest closing: its
     closings come one after another in this order, the latest last, so each replaces the one
     before it as the rows are read (cheaper than asking the database for the latest of each).
+    An as-found run names the as-left run that followed it, and the other way round.
     """
+    from verirun.register.store import item_key
+
     where = []
     if item is not None:
-        where.append(runs.c.item_serial == item)
+        where.append(runs.c.item_key == item_key(item))
     if since is not None:
         where.append(runs.c.started >= since)
     if until is not None:
@@ -45,17 +48,28 @@ def list_runs(register, *, item: str | None = None, since: str | None = None,
              .order_by(runs.c.started, runs.c.folder, runs.c.documents))
     with register.reading() as connection:
         rows = connection.execute(query).all()
-    latest = []
-    for row in rows:  # row[3] is the uid
-        if latest and latest[-1][3] == row[3]:
-            latest[-1] = row
-        else:
-            latest.append(row)
+        latest = []
+        for row in rows:  # row[3] is the uid
+            if latest and latest[-1][3] == row[3]:
+                latest[-1] = row
+            else:
+                latest.append(row)
+        left_of = dict(connection.execute(sa.select(runs.c.as_found_uid, runs.c.folder)
+                                          .where(runs.c.as_found_uid.is_not(None))).all())
+        found = sorted({row[14] for row in latest if row[14]})
+        folder_of = {}
+        for first in range(0, len(found), 500):
+            folder_of.update(connection.execute(sa.select(runs.c.uid, runs.c.folder)
+                                                .where(runs.c.uid.in_(found[first:first + 500]))).all())
     return [{"run": folder, "path": None, "item": serial, "procedure": procedure, "revision": revision,
              "date": started[:10], "verdict": overall, "status": "aborted" if status == "failed" else status,
-             "bench": bench, "certificate": certificate, "uid": uid, "record_revision": record_revision}
+             "uid": uid, "record_revision": record_revision,
+             "certificate": certificate if status == "complete" else None, "customer": customer,
+             "simulated": bool(simulated),
+             "as_found_run": folder_of.get(as_found, as_found) if as_found else None,
+             "as_left_run": left_of.get(uid), "bench": bench}
             for started, folder, _, uid, serial, procedure, revision, overall, status, bench, certificate,
-            record_revision in latest]
+            record_revision, customer, simulated, as_found in latest]
 
 
 def parse_within(text: str) -> int:

@@ -55,6 +55,7 @@ runs = sa.Table(
     sa.Column("journal_sha256_last", sa.String(64), nullable=False),
     sa.Column("folder", sa.String(400), nullable=False),
     sa.Column("item_serial", sa.String(200)),
+    sa.Column("item_key", sa.String(200)),  # the serial as found in any case (stripped, casefolded)
     sa.Column("item_model", sa.String(200)),
     sa.Column("item_asset", sa.String(200)),
     sa.Column("customer", sa.String(400)),
@@ -86,7 +87,10 @@ runs = sa.Table(
     sa.Index("runs_model", "item_model", "status", "simulated", "as_found_uid", "uid", "documents", "overall"),
     # Every column ``verirun runs`` shows, in its order: the listing reads this index alone.
     sa.Index("runs_listing", "started", "folder", "documents", "uid", "item_serial", "procedure_id",
-             "procedure_revision", "overall", "status", "bench_id", "certificate", "revision"),
+             "procedure_revision", "overall", "status", "bench_id", "certificate", "revision", "customer",
+             "simulated", "as_found_uid"),
+    sa.Index("runs_item_key", "item_key", "started"),
+    sa.Index("runs_as_found", "as_found_uid"),
 )
 
 points = sa.Table(

@@ -77,6 +77,11 @@ def allocate_number(register: Register, record: dict) -> str:
         raise RegisterUnreachable(f"register {register.name}: {_reason(exc)}") from None
 
 
+def item_key(serial: str | None) -> str | None:
+    """An item serial as ``verirun runs --item`` matches it: in any case, without outer spaces."""
+    return None if serial is None else serial.strip().casefold()
+
+
 def run_row(record: dict, folder: str) -> dict:
     """The ``runs`` row of a closed record."""
     from verirun.certificate.render import certificate_number
@@ -86,7 +91,8 @@ def run_row(record: dict, folder: str) -> dict:
     return {
         "uid": run["uid"], "revision": run["revision"], "documents": run["documents"],
         "journal_sha256_last": run["journal_sha256_last"], "folder": folder,
-        "item_serial": record["item"].get("serial"), "item_model": record["meter"].get("model") or "",
+        "item_serial": record["item"].get("serial"), "item_key": item_key(record["item"].get("serial")),
+        "item_model": record["meter"].get("model") or "",
         "item_asset": record["item"].get("asset"), "customer": record["customer"].get("name"),
         "procedure_id": record["procedure"]["id"], "procedure_revision": str(record["procedure"]["revision"]),
         "bench_id": record["bench"].get("id"), "standard_asset": calibrator.get("asset"),

@@ -56,6 +56,7 @@ def upgrade() -> None:
         sa.Column("journal_sha256_last", sa.String(64), nullable=False),
         sa.Column("folder", sa.String(400), nullable=False),
         sa.Column("item_serial", sa.String(200)),
+        sa.Column("item_key", sa.String(200)),
         sa.Column("item_model", sa.String(200)),
         sa.Column("item_asset", sa.String(200)),
         sa.Column("customer", sa.String(400)),
@@ -86,7 +87,9 @@ def upgrade() -> None:
                                            "overall"])
     op.create_index("runs_listing", "runs", ["started", "folder", "documents", "uid", "item_serial", "procedure_id",
                                              "procedure_revision", "overall", "status", "bench_id", "certificate",
-                                             "revision"])
+                                             "revision", "customer", "simulated", "as_found_uid"])
+    op.create_index("runs_item_key", "runs", ["item_key", "started"])
+    op.create_index("runs_as_found", "runs", ["as_found_uid"])
     op.create_table(
         "points",
         sa.Column("id", sa.Integer, primary_key=True),
