@@ -355,6 +355,10 @@ def _cmd_amend(args) -> int:
     record = amend(args.run, point=args.point, reading=args.reading, reason=args.reason, operator=args.operator)
     out = write_certificate(record, args.reports)
     print(f"{args.run}: revision {record['run']['revision']}; certificate {out}")
+    from verirun.register.closing import waiting
+
+    if waiting(args.run):
+        _err("the register could not take this revision; it waits in the run's outbox for 'verirun register sync'")
     return EXIT_OK
 
 

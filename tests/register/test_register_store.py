@@ -163,6 +163,20 @@ class TestOutbox:
         assert main(["register", "sync", "--runs", str(tmp_path / "runs")]) == 0
         assert _count(register, runs) == 1 and not (folder / OUTBOX_NAME).exists()
 
+    def test_a_correction_made_while_the_register_is_down_is_issued_and_synced(
+            self, register, register_url, tmp_path, closed_run, monkeypatch, capsys):
+        """A numbered run corrected with the register down keeps its number (the certificate
+        -R2 is issued at once); the operator is told, and sync stores revision 2."""
+        finished = closed_run(tmp_path / "runs")
+        self._down(register_url, tmp_path, monkeypatch)
+        assert main(["amend", str(finished.run_dir), "--point", "2", "--reading", "5.01", "--reason", "typo",
+                     "--reports", str(tmp_path / "reports")]) == 0
+        assert "waits in the run's outbox" in capsys.readouterr().err
+        assert (tmp_path / "reports" / "RTL-2026-00001-R2.html").exists()
+        monkeypatch.setenv("VERIRUN_REGISTER", register_url)
+        assert main(["register", "sync", "--runs", str(tmp_path / "runs")]) == 0
+        assert _count(register, runs, runs.c.revision == 2) == 1 and _count(register, numbers) == 1
+
     def test_a_tampered_run_in_the_outbox_is_not_sent(self, register, register_url, tmp_path, closed_run,
                                                       monkeypatch, capsys):
         """Sync verifies first: an edited record stays in the outbox, reported, exit 1."""

@@ -118,7 +118,8 @@ class History:
         calibrations = int(self.table["uid"].nunique())
         lines = [f"item {self.serial} ({self.model}): {calibrations} calibration{'s' if calibrations != 1 else ''}"]
         for key, drift in sorted(self.drifts.items()):
-            last = self.table[self.table["key"] == key].iloc[-1]
+            rows = self.table[(self.table["key"] == key) & self.table["error_fraction"].notna()]
+            last = rows.iloc[-1]
             slope = ("no drift fitted (one calibration)" if drift.slope is None else
                      f"drift {drift.slope * 100:+.1f} % of tolerance per year"
                      + (f" (u = {drift.slope_u * 100:.1f} %)" if drift.slope_u is not None else " (no u: 2 points)"))
