@@ -195,7 +195,9 @@ import sys, datetime as dt
 from pathlib import Path
 sys.path.insert(0, sys.argv[1])
 from conftest import close_run
+import time
 runs_dir, count = Path(sys.argv[2]), int(sys.argv[3])
+time.sleep(max(0.0, float(sys.argv[5]) - time.time()))  # every bench starts closing at the same moment
 for n in range(count):
     close_run(runs_dir, serial=f"{sys.argv[4]}-{n}")
 print("done")
@@ -207,9 +209,14 @@ class TestConcurrency:
             self, register, register_url, tmp_path):
         """Four processes close five runs each at the same time: twenty runs stored, numbered
         1 to 20 with no gap and no number shared."""
-        env = {**__import__("os").environ, "VERIRUN_REGISTER": register_url}
+        import os
+        import time
+
+        env = {**os.environ, "VERIRUN_REGISTER": register_url}
+        start_at = str(time.time() + 4.0)  # after every process has imported what it needs
         procs = [subprocess.Popen([sys.executable, "-c", _CLOSER, str(HERE), str(tmp_path / f"bench{b}"), "5",
-                                   f"C{b}"], env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+                                   f"C{b}", start_at], env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                                  text=True)
                  for b in range(4)]
         outs = [p.communicate(timeout=240) for p in procs]
         assert all(p.returncode == 0 for p in procs), [err[-2000:] for _, err in outs]
