@@ -55,9 +55,8 @@ def pg_server():
             pytest.fail("CI must run the PostgreSQL tests, but no PostgreSQL server binaries were found"
                         " (.ci/run installs the distribution's postgresql package)")
         pytest.skip("no PostgreSQL server binaries (pg_ctl, initdb) on this machine")
-    if os.geteuid() == 0:
-        subprocess.run(["id", "postgres"], check=False, capture_output=True).returncode == 0 or \
-            subprocess.run(["useradd", "--system", "--no-create-home", "postgres"], check=True)
+    if os.geteuid() == 0 and subprocess.run(["id", "postgres"], capture_output=True).returncode != 0:
+        subprocess.run(["useradd", "--system", "--no-create-home", "postgres"], check=True)
     root = Path(tempfile.mkdtemp(prefix="verirun-pg-"))
     data, sockets = root / "data", root / "sock"
     sockets.mkdir()

@@ -41,3 +41,27 @@ class TestMigrate:
         assert "(already)" in capsys.readouterr().out
         assert main(["runs", "--register", url]) == 0
         assert "no runs in register" in capsys.readouterr().out
+
+
+class TestCommandLine:
+    def test_a_run_at_the_command_line_uses_the_named_register(self, tmp_path, capsys, monkeypatch):
+        """`run --register FILE` takes its standard by asset and its certificate number from an
+        embedded register made on first use, and `runs --register FILE` lists it."""
+        from pathlib import Path
+
+        data = Path(__file__).resolve().parent.parent / "data" / "register"
+        monkeypatch.delenv("VERIRUN_REGISTER", raising=False)
+        name = str(tmp_path / "lab-register.db")
+        assert main(["register", "standard", "--from-bench", str(data / "bench.yaml"), "--register", name]) == 0
+        assert main(["run", str(data / "procedure.yaml"), "--bench", str(data / "bench-by-asset.yaml"),
+                     "--simulate", "--readings", str(data / "readings.csv"), "--serial", "CLI-1",
+                     "--customer", "Test Customer", "--lab", str(data / "lab.yaml"), "--temperature", "23",
+                     "--humidity", "40", "--register", name]) == 0
+        reports = list((tmp_path / "reports").iterdir())
+        assert len(reports) == 1 and reports[0].name.startswith("RTL-") and reports[0].name.endswith("-00001.html")
+        capsys.readouterr()
+        assert main(["runs", "--json", "--register", name]) == 0
+        import json
+
+        (row,) = json.loads(capsys.readouterr().out)
+        assert (row["item"], row["certificate"]) == ("CLI-1", reports[0].stem)
