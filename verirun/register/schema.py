@@ -90,7 +90,7 @@ runs = sa.Table(
              "procedure_revision", "overall", "status", "bench_id", "certificate", "revision", "customer",
              "simulated", "as_found_uid"),
     sa.Index("runs_item_key", "item_key", "started"),
-    sa.Index("runs_as_found", "as_found_uid"),
+    sa.Index("runs_as_found", "as_found_uid", "folder"),
 )
 
 points = sa.Table(

@@ -89,7 +89,7 @@ def upgrade() -> None:
                                              "procedure_revision", "overall", "status", "bench_id", "certificate",
                                              "revision", "customer", "simulated", "as_found_uid"])
     op.create_index("runs_item_key", "runs", ["item_key", "started"])
-    op.create_index("runs_as_found", "runs", ["as_found_uid"])
+    op.create_index("runs_as_found", "runs", ["as_found_uid", "folder"])
     op.create_table(
         "points",
         sa.Column("id", sa.Integer, primary_key=True),
