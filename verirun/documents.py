@@ -17,6 +17,8 @@ withdrawal  the operator withdrew the last entry (``undo``) before the run went 
             step is measured again
 correction  a reading of a finished run was corrected (``verirun amend``): a new revision
 stop        the run ended: complete, aborted or failed, with the reason
+certificate-number
+            the lab register gave the complete run its certificate number
 ========== ==================================================================================
 
 Documents are validated when they are read back (:func:`document_problem`, after the strict
@@ -33,7 +35,7 @@ Both are read as they are.
 from __future__ import annotations
 
 import json
-from typing import Annotated, Any, Literal, Union
+from typing import Annotated, Any, Literal, Union, get_args
 
 from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, ValidationError
 
@@ -278,7 +280,16 @@ class Stop(Chained):
     counts: dict[str, int] = Field(description="results so far by verdict, and skipped steps")
 
 
-Document = Annotated[Union[Start, Resume, Observation, Skip, Note, Withdrawal, Correction, Stop],
+class CertificateNumber(Chained):
+    """The certificate number the lab register gave the complete run (once; written after its
+    stop document, when the run is sent to the register)."""
+
+    kind: Literal["certificate-number"]
+    number: str = Field(description="the certificate number, in the lab's sequence")
+    register_url: str = Field(description="the register that gave it (its URL without a password)")
+
+
+Document = Annotated[Union[Start, Resume, Observation, Skip, Note, Withdrawal, Correction, Stop, CertificateNumber],
                      Field(discriminator="kind")]
 
 _ADAPTER: TypeAdapter = TypeAdapter(Document)
@@ -313,7 +324,8 @@ def document_problem(data: Any) -> str | None:
     return None
 
 
-_KINDS = ("start", "resume", "observation", "skip", "note", "withdrawal", "correction", "stop")
+#: Every document kind, from the models (so a new kind cannot be left out here).
+_KINDS = tuple(get_args(model.model_fields["kind"].annotation)[0] for model in get_args(get_args(Document)[0]))
 
 
 def _shown(value: Any) -> str:

@@ -27,6 +27,7 @@ from verirun.errors import ProcedureError, RecordError, VerirunError
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.locks import calibrator_lock, run_lock
 from verirun.record import JOURNAL_NAME, RECORD_NAME, Journal, load_record, read_journal, write_record
+from verirun.register.closing import after_close
 from verirun.runrecord import Known, build_record
 
 
@@ -181,20 +182,22 @@ def _drive(*, run_dir: Path, procedure, bench, context, readings, console, repor
     except BaseException as exc:
         journal.close()
         try:
-            close_run(run_dir, known=known)
+            after_close(run_dir, close_run(run_dir, known=known), known=known, warn=console.warn)
         except Exception:  # the journal is the truth; a record that cannot be built now can be later
             pass
         exc.run_dir = run_dir  # type: ignore[attr-defined]
         raise
     journal.close()
-    return _finish(run_dir, reports_dir, known=known, outcome=outcome)
+    return _finish(run_dir, reports_dir, known=known, outcome=outcome, console=console)
 
 
-def _finish(run_dir: Path, reports_dir: Path, *, known: Known | None, outcome=None) -> Finished:
-    """Close the journal into the record and render a complete run's certificate."""
+def _finish(run_dir: Path, reports_dir: Path, *, known: Known | None, outcome=None, console=None) -> Finished:
+    """Close the journal into the record, number and store it in the lab register (if one is
+    named), and render a complete run's certificate (once it may be issued)."""
     try:
-        record = close_run(run_dir, known=known)
-        complete = record is not None and record["run"]["status"] == "complete"
+        record, issuable = after_close(run_dir, close_run(run_dir, known=known), known=known,
+                                       warn=console.warn if console is not None else None)
+        complete = record is not None and record["run"]["status"] == "complete" and issuable
         certificate = write_certificate(record, reports_dir) if complete else None
     except BaseException as exc:
         exc.run_dir = run_dir  # type: ignore[attr-defined]
@@ -366,7 +369,7 @@ def _close_without_bench(run_dir: Path, reports_dir: Path, *, clock, console, kn
     finally:
         journal.close()
     console.say("every step already had a confirmed entry: the run is closed without the bench")
-    return _finish(run_dir, reports_dir, known=known)
+    return _finish(run_dir, reports_dir, known=known, console=console)
 
 
 def _finish_closed(run_dir: Path, reports_dir: Path, record: dict, console) -> Finished:
@@ -383,7 +386,7 @@ def _finish_closed(run_dir: Path, reports_dir: Path, record: dict, console) -> F
                           " written; nothing to resume (use 'verirun certify' for its certificate)")
     if stored != record:
         console.say("the run was closed but its record was not written: written now from the journal")
-    return _finish(run_dir, reports_dir, known=None)
+    return _finish(run_dir, reports_dir, known=None, console=console)
 
 
 #: What a bench file may change between the start of a run and its resumption: the standard's

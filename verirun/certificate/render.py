@@ -17,10 +17,13 @@ TEMPLATE_VERSION = "2"
 
 
 def certificate_number(record: dict) -> str:
-    """The certificate's unique number: lab prefix, calibration date and the run's uid."""
-    prefix = record["lab"].get("certificate_prefix", "CERT")
-    day = record["run"]["started"][:10].replace("-", "")
-    number = f"{prefix}-{day}-{record['run']['uid'][:8].upper()}"
+    """The certificate's unique number: the one the lab register gave the run, else lab prefix,
+    calibration date and the run's uid; a later revision adds ``-R<n>``."""
+    number = record["run"].get("certificate_number")
+    if number is None:
+        prefix = record["lab"].get("certificate_prefix", "CERT")
+        day = record["run"]["started"][:10].replace("-", "")
+        number = f"{prefix}-{day}-{record['run']['uid'][:8].upper()}"
     revision = record["run"].get("revision", 1)
     return number if revision == 1 else f"{number}-R{revision}"
 

@@ -1,0 +1,67 @@
+"""Naming and opening a register, and migrating a server's schema on purpose."""
+
+from __future__ import annotations
+
+import uuid
+
+import pytest
+
+from verirun.cli import main
+from verirun.register.db import RegisterError, url_of
+
+
+class TestNames:
+    def test_a_path_is_sqlite_and_a_postgresql_url_uses_psycopg(self, tmp_path):
+        """A plain path is an embedded SQLite file; postgresql:// is driven by psycopg 3."""
+        assert url_of(str(tmp_path / "r.db")).drivername == "sqlite"
+        assert url_of("postgresql://lab@db/register").drivername == "postgresql+psycopg"
+
+    def test_another_database_is_refused_and_no_password_is_shown(self):
+        """verirun keeps its register on SQLite or PostgreSQL only; a refusal hides the password."""
+        with pytest.raises(RegisterError, match="SQLite or PostgreSQL") as caught:
+            url_of("mysql://lab:secret@db/register")
+        assert "secret" not in str(caught.value)
+
+
+class TestMigrate:
+    def test_an_empty_server_database_is_refused_until_migrated(self, pg_server, capsys):
+        """A bench never migrates a shared server behind the lab's back: it says how, and after
+        'register migrate' (run twice: the second does nothing) the register is used."""
+        import psycopg
+
+        name = "m_" + uuid.uuid4().hex[:12]
+        with psycopg.connect(pg_server + "/postgres", autocommit=True) as connection:
+            connection.execute(f"CREATE DATABASE {name}")
+        url = f"{pg_server}/{name}"
+        assert main(["runs", "--register", url]) == 1
+        assert "verirun register migrate" in capsys.readouterr().err
+        assert main(["register", "migrate", "--register", url]) == 0
+        assert "(was empty)" in capsys.readouterr().out
+        assert main(["register", "migrate", "--register", url]) == 0
+        assert "(already)" in capsys.readouterr().out
+        assert main(["runs", "--register", url]) == 0
+        assert "no runs in register" in capsys.readouterr().out
+
+
+class TestCommandLine:
+    def test_a_run_at_the_command_line_uses_the_named_register(self, tmp_path, capsys, monkeypatch):
+        """`run --register FILE` takes its standard by asset and its certificate number from an
+        embedded register made on first use, and `runs --register FILE` lists it."""
+        from pathlib import Path
+
+        data = Path(__file__).resolve().parent.parent / "data" / "register"
+        monkeypatch.delenv("VERIRUN_REGISTER", raising=False)
+        name = str(tmp_path / "lab-register.db")
+        assert main(["register", "standard", "--from-bench", str(data / "bench.yaml"), "--register", name]) == 0
+        assert main(["run", str(data / "procedure.yaml"), "--bench", str(data / "bench-by-asset.yaml"),
+                     "--simulate", "--readings", str(data / "readings.csv"), "--serial", "CLI-1",
+                     "--customer", "Test Customer", "--lab", str(data / "lab.yaml"), "--temperature", "23",
+                     "--humidity", "40", "--register", name]) == 0
+        reports = list((tmp_path / "reports").iterdir())
+        assert len(reports) == 1 and reports[0].name.startswith("RTL-") and reports[0].name.endswith("-00001.html")
+        capsys.readouterr()
+        assert main(["runs", "--json", "--register", name]) == 0
+        import json
+
+        (row,) = json.loads(capsys.readouterr().out)
+        assert (row["item"], row["certificate"]) == ("CLI-1", reports[0].stem)
