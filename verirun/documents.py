@@ -87,12 +87,13 @@ class CalibratorAsRun(Part):
     resource: str = Field(description="its VISA resource string")
     certificate: str = Field(description="the standard's own calibration certificate")
     calibration_due: Date = Field(description="when the standard's calibration is due")
-    traceability: str = Field(description="the traceability statement of the standard")
+    traceability: str | None = Field(description="the traceability statement of the standard"
+                                     " (null when the bench file does not give one)")
 
 
 class BenchAsRun(Part):
     id: str = Field(description="the bench's identifier")
-    location: str = Field(description="where the bench is")
+    location: str | None = Field(description="where the bench is (null when the bench file does not say)")
     sha256: Sha256 = Field(description="SHA-256 of the bench file's text")
     source: str = Field(description="where the file was read from")
     text: str = Field(description="the whole bench file, as run")
@@ -114,11 +115,12 @@ class Wording(Part):
 class LabAsRun(Part):
     name: str
     address: list[str]
-    accreditation: str
+    accreditation: str | None = Field(description="the lab's accreditation (null when its profile gives none)")
     certificate_prefix: str = Field(description="prefix of the lab's certificate numbers")
     signatory: Signatory
     traceability: str
-    conditions: str = Field(description="the lab's stated environmental conditions")
+    conditions: str | None = Field(description="the lab's stated environmental conditions (null when its"
+                                          " profile states none)")
     paper: Literal["A4", "letter"] = Field(description="paper size of printed certificates")
     wording: Wording
 
