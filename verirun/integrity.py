@@ -34,6 +34,15 @@ def _facts(record: dict, summary_keys) -> dict:
             "summary": {k: record["summary"].get(k) for k in summary_keys}}
 
 
+def comparable(stored: dict, rebuilt: dict) -> tuple[dict, dict]:
+    """``stored`` and ``rebuilt`` as they must agree: whole, or for a record of an earlier format
+    (its figures are its version's), what its journal fixes and its summary's counts."""
+    if stored.get("record_format") == RECORD_FORMAT:
+        return stored, rebuilt
+    counts = [k for k in stored.get("summary", {}) if k in rebuilt["summary"]]
+    return _facts(stored, counts), _facts(rebuilt, counts)
+
+
 def run_folder(path: str | Path) -> Path:
     """The run folder of ``path`` (a run folder, its record or its journal).
 
@@ -130,10 +139,7 @@ def problems(path: str | Path, reports: str | Path | None = None) -> list[str]:
         stored = load_record(folder / RECORD_NAME)
     except RecordError as exc:
         return [str(exc)]
-    if stored.get("record_format") != RECORD_FORMAT:
-        # An earlier format: its figures are its version's; its results must be the journal's.
-        counts = [k for k in stored.get("summary", {}) if k in rebuilt["summary"]]
-        stored, rebuilt = _facts(stored, counts), _facts(rebuilt, counts)
+    stored, rebuilt = comparable(stored, rebuilt)
     if stored != rebuilt and stored.get("run", {}).get("documents", 0) < len(read.documents):
         found.append(f"{folder / RECORD_NAME}: is older than its journal (closed from"
                      f" {stored['run']['documents']} of its {len(read.documents)} documents): the run was"

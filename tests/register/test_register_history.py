@@ -78,9 +78,9 @@ class TestItemHistory:
         _calibrate(closed_run, runs_dir, "H-1", 2024, ("1.50", "5.00", "8.00"), simulated=True)
         history = item_history(register, serial="H-1", today=dt.date(2024, 6, 1))
         assert history.table["uid"].nunique() == 3
-        two = history.table[history.table["key"] == "dcv-10@2.0"]["error_fraction"].tolist()
+        two = history.table[history.table["key"] == "dcv-10@2V"]["error_fraction"].tolist()
         assert two == pytest.approx([0.0, 0.1, 0.2])
-        assert history.drifts["dcv-10@2.0"].slope == pytest.approx(0.1 * YEAR_DAYS / 365, rel=2e-3)
+        assert history.drifts["dcv-10@2V"].slope == pytest.approx(0.1 * YEAR_DAYS / 365, rel=2e-3)
         assert history.last_in_tolerance is False  # the 2023 as-found run failed at 8 V
         assert (history.model_calibrations, history.model_in_tolerance) == (3, 2)  # 2022 by its correction
         assert "shorten the interval" in history.staircase()
@@ -106,7 +106,7 @@ class TestItemHistory:
         assert main(["history", serial, "--json"]) == 0
         data = json.loads(capsys.readouterr().out)
         assert data["calibrations"] == 3 and len(data["results"]) == 9
-        assert data["drift"]["dcv-10@2.0"]["slope_u_per_year"] is not None
+        assert data["drift"]["dcv-10@2V"]["slope_u_per_year"] is not None
 
     def test_an_item_with_no_calibration_is_a_clear_error(self, register, capsys):
         """No traceback: one line saying what is missing."""

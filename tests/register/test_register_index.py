@@ -141,3 +141,32 @@ class TestDue:
         assert main(["due", "--within", "2w", "--json"]) == 0
         assert [r["id"] for r in json.loads(capsys.readouterr().out)] == ["RT-STD-001"]
         assert main(["due", "--within", "soon"]) == 1
+
+
+class TestStoredRunsOfEarlierFormats:
+    def test_rebuild_takes_every_stored_run_with_the_summary_counts_of_its_record(self, register, tmp_path):
+        """The stored runs kept for format tests (written by earlier versions of verirun) all
+        verify and are stored; each row's counts are the four verdicts, skipped and not measured
+        as the record that version wrote says them (its ``summary``), conditional ones included."""
+        import shutil
+
+        from verirun.register.rebuild import rebuild
+
+        stored = DATA.parent / "stored-runs"
+        root = tmp_path / "stored"
+        for folder in sorted(p for p in stored.iterdir() if p.is_dir()):
+            shutil.copytree(folder, root / folder.name)
+        out = rebuild(register, root)
+        assert out.failed == {}
+        names = sorted(p.name for p in root.iterdir())
+        with register.reading() as connection:
+            rows = {row["folder"]: row for row in connection.execute(
+                sa.select(runs).order_by(runs.c.documents)).mappings()}  # the latest closing of each
+        assert sorted(rows) == names
+        for name, row in rows.items():
+            summary = json.loads((root / name / "record.json").read_text())["summary"]
+            assert (row["passed"], row["conditional_pass"], row["conditional_fail"], row["failed"],
+                    row["skipped"], row["not_measured"], row["overall"]) == (
+                summary["pass"], summary.get("conditional-pass", 0), summary.get("conditional-fail", 0),
+                summary["fail"], summary["skipped"], summary["not-measured"], summary["overall"]), name
+        assert rows["format1-non-binary"]["conditional_pass"] == 3  # its record.json, as stored

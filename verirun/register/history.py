@@ -149,11 +149,16 @@ def model_counts(connection, model: str) -> tuple[int, int]:
     One aggregate over the index that holds these columns: per run, its latest closing's
     journal length and its latest passing closing's; the run passed when the two are one."""
     per_run = (sa.select(sa.func.max(runs.c.documents).label("latest"),
-                         sa.func.max(sa.case((runs.c.overall == "pass", runs.c.documents))).label("passed"))
+                         sa.func.max(sa.case((runs.c.overall.in_(("pass", "conditional-pass")), runs.c.documents)))
+                         .label("passed"))
                .where(runs.c.item_model == model, *CALIBRATION).group_by(runs.c.uid).subquery())
     total, passed = connection.execute(
         sa.select(sa.func.count(), sa.func.sum(sa.case((per_run.c.passed == per_run.c.latest, 1), else_=0)))).one()
     return int(total), int(passed or 0)
+
+
+#: The verdicts of a reading within its tolerance limits (a conditional fail lies outside them).
+IN_TOLERANCE = ("pass", "conditional-pass", "skipped", "not-measured")
 
 
 def item_history(register, *, serial: str, model: str | None = None, today: dt.date) -> History:
@@ -185,6 +190,10 @@ def item_history(register, *, serial: str, model: str | None = None, today: dt.d
         model = models[0]
         calibrations, in_tolerance = model_counts(connection, model)
     table["date"] = table["started"].str.slice(0, 10)
+    # A step is a test point's identity: a label that several steps of a run share (a value read
+    # up-scale and down-scale) is told apart by its step, so their errors are not fitted as one.
+    shared = table.groupby(["uid", "key"])["step"].transform("count") > 1
+    table.loc[shared, "key"] = table.loc[shared, "key"] + " (step " + table.loc[shared, "step"].astype(str) + ")"
     measured = table[table["error_fraction"].notna()].copy()
     first = dt.date.fromisoformat(measured["date"].min()) if not measured.empty else today
     drifts = {}
@@ -197,7 +206,7 @@ def item_history(register, *, serial: str, model: str | None = None, today: dt.d
                "error_fraction", "expanded_fraction", "verdict"]
     return History(serial=serial, model=model, today=today, table=table[columns].reset_index(drop=True),
                    drifts=drifts, model_calibrations=calibrations, model_in_tolerance=in_tolerance,
-                   last_in_tolerance=bool((last["verdict"] != "fail").all()))
+                   last_in_tolerance=bool(last["verdict"].isin(IN_TOLERANCE).all()))
 
 
 def write_csv(history: History, path: Path) -> Path:

@@ -2,7 +2,8 @@
 
 A folder's records are checked as ``verirun verify`` checks them, against its journal: the
 current ``record.json`` must be the record the whole journal closes into, and each earlier
-revision kept beside it (``record.rN.json``) the record of the journal as it stood then. Only
+revision kept beside it (``record.rN.json``) the record of the journal as it stood then (a
+record of an earlier format in what its journal fixes and its counts, as verify allows). Only
 records that verify are stored; storing is idempotent, so rebuilding twice stores nothing twice.
 """
 
@@ -50,6 +51,7 @@ class _Plans:
 def verified_records(folder: Path, plans: _Plans | None = None, *, current: bool = True) -> tuple[list[dict], list[str]]:
     """The records of ``folder`` that verify against its journal (earlier revisions first), and
     a line for every problem found."""
+    from verirun.integrity import comparable
     from verirun.runrecord import build_record
 
     plans = plans or _Plans()
@@ -76,8 +78,12 @@ def verified_records(folder: Path, plans: _Plans | None = None, *, current: bool
         except (RecordError, KeyError, TypeError, ValueError) as exc:
             problems.append(f"{path}: {exc}")
             continue
-        if stored != rebuilt:
-            keys = sorted(k for k in set(stored) | set(rebuilt) if stored.get(k) != rebuilt.get(k))
+        if not isinstance(stored, dict) or not isinstance(stored.get("summary"), dict):
+            problems.append(f"{path}: not a run record")
+            continue
+        mine, journal_s = comparable(stored, rebuilt)
+        if mine != journal_s:
+            keys = sorted(k for k in set(mine) | set(journal_s) if mine.get(k) != journal_s.get(k))
             problems.append(f"{path}: the record differs from what its journal records (in {', '.join(keys)})")
         else:
             good.append(stored)

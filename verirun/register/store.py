@@ -86,7 +86,13 @@ def run_row(record: dict, folder: str) -> dict:
     """The ``runs`` row of a closed record."""
     from verirun.certificate.render import certificate_number
 
-    run, summary = record["run"], record["summary"]
+    from verirun.metrology.summary import summarise
+    from verirun.runrecord import record_judged
+
+    run = record["run"]
+    # The counts of the one summary function, worked out again from the rows (a record of an
+    # earlier format may store fewer counts, or none of the conditional verdicts).
+    summary = summarise(record_judged(record), record["decision_rule"]["rule"])
     calibrator = record["bench"].get("calibrator") or {}
     return {
         "uid": run["uid"], "revision": run["revision"], "documents": run["documents"],
@@ -97,9 +103,10 @@ def run_row(record: dict, folder: str) -> dict:
         "procedure_id": record["procedure"]["id"], "procedure_revision": str(record["procedure"]["revision"]),
         "bench_id": record["bench"].get("id"), "standard_asset": calibrator.get("asset"),
         "operator": run.get("operator"), "started": run["started"], "ended": run.get("ended"),
-        "rule": record["decision_rule"]["rule"], "points": summary["points"], "passed": summary["pass"],
-        "failed": summary["fail"], "skipped": summary["skipped"], "not_measured": summary["not-measured"],
-        "overall": summary["overall"], "status": run["status"],
+        "rule": record["decision_rule"]["rule"], "points": summary.points, "passed": summary.passed,
+        "conditional_pass": summary.conditional_pass, "conditional_fail": summary.conditional_fail,
+        "failed": summary.failed, "skipped": summary.skipped, "not_measured": summary.not_measured,
+        "overall": summary.overall, "status": run["status"],
         "simulated": bool(record["bench"].get("simulated")),
         "certificate": certificate_number(record), "certificate_revision": run["revision"],
         "as_found_uid": (record.get("as_found") or {}).get("run"), "stored": now_text(),

@@ -70,6 +70,8 @@ def upgrade() -> None:
         sa.Column("rule", sa.String(40)),
         sa.Column("points", sa.Integer, nullable=False),
         sa.Column("passed", sa.Integer, nullable=False),
+        sa.Column("conditional_pass", sa.Integer, nullable=False),
+        sa.Column("conditional_fail", sa.Integer, nullable=False),
         sa.Column("failed", sa.Integer, nullable=False),
         sa.Column("skipped", sa.Integer, nullable=False),
         sa.Column("not_measured", sa.Integer, nullable=False),
