@@ -190,6 +190,59 @@ class TestOutbox:
         assert (finished.run_dir / OUTBOX_NAME).exists() and _count(register, runs) == 0
 
 
+    def test_sync_leaves_a_run_another_process_is_writing_and_sends_it_after(
+            self, register, register_url, tmp_path, closed_run, monkeypatch, capsys):
+        """A run whose writer lock another process holds (an amend, a resume, a second sync) is
+        not touched: reported busy, exit 5, its journal as it was; sent once the lock is free."""
+        from verirun.locks import run_lock
+
+        self._down(register_url, tmp_path, monkeypatch)
+        finished = closed_run(tmp_path / "runs")
+        monkeypatch.setenv("VERIRUN_REGISTER", register_url)
+        journal = finished.run_dir / "journal.jsonl"
+        before = journal.read_bytes()
+        with run_lock(finished.run_dir):
+            assert main(["register", "sync", "--runs", str(tmp_path / "runs")]) == 5
+            assert "in use by another verirun process" in capsys.readouterr().out
+            assert journal.read_bytes() == before and _count(register, numbers) == 0
+        assert main(["register", "sync", "--runs", str(tmp_path / "runs")]) == 0
+        assert journal.read_text().count('"kind":"certificate-number"') == 1
+        assert _count(register, numbers) == 1
+
+    def test_two_syncs_at_once_append_each_number_once(self, register, register_url, tmp_path, closed_run,
+                                                       monkeypatch):
+        """Two processes sync the same six waiting runs at the same moment: each run's journal
+        gets one certificate-number document, the numbers are 1 to 6, and every run verifies."""
+        import os
+        import time
+
+        self._down(register_url, tmp_path, monkeypatch)
+        made = [closed_run(tmp_path / "runs", serial=f"S-{n}") for n in range(6)]
+        monkeypatch.setenv("VERIRUN_REGISTER", register_url)
+        env = {**os.environ, "VERIRUN_REGISTER": register_url}
+        start_at = str(time.time() + 4.0)  # after both processes have imported what they need
+        procs = [subprocess.Popen([sys.executable, "-c", _SYNCER, str(tmp_path / "runs"), start_at], env=env,
+                                  stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True) for _ in range(2)]
+        outs = [p.communicate(timeout=240) for p in procs]
+        assert sorted(p.returncode for p in procs) in ([0, 0], [0, 5], [5, 5]), outs
+        assert main(["register", "sync", "--runs", str(tmp_path / "runs")]) == 0  # anything left busy
+        for finished in made:
+            text = (finished.run_dir / "journal.jsonl").read_text()
+            assert text.count('"kind":"certificate-number"') == 1, finished.run_dir
+            assert not (finished.run_dir / OUTBOX_NAME).exists()
+            assert main(["verify", str(finished.run_dir)]) == 0
+        with register.reading() as connection:
+            assert sorted(connection.execute(sa.select(numbers.c.number)).scalars()) == list(range(1, 7))
+
+
+_SYNCER = r"""
+import sys, time
+from verirun.cli import main
+time.sleep(max(0.0, float(sys.argv[2]) - time.time()))  # both start sending at the same moment
+sys.exit(main(["register", "sync", "--runs", sys.argv[1]]))
+"""
+
+
 _CLOSER = r"""
 import sys, datetime as dt
 from pathlib import Path

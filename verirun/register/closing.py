@@ -11,7 +11,6 @@ sync`` sends it later. Nothing is lost (the run folder holds everything) and not
 from __future__ import annotations
 
 import json
-import os
 from pathlib import Path
 
 from verirun.errors import RecordError
@@ -84,15 +83,15 @@ def file_run(register, run_dir: Path, record: dict, *, known=None) -> dict:
 
 
 def keep(run_dir: Path, record: dict, reason: str) -> Path:
-    """Write (atomically) the outbox file of a run whose closing the register did not take."""
+    """Write the outbox file of a run whose closing the register did not take (whole: temporary,
+    fsync, rename, never through a symbolic link)."""
+    from verirun import storage
     from verirun.clock import SystemClock, iso
 
     path = run_dir / OUTBOX_NAME
-    tmp = path.with_suffix(".tmp")
-    tmp.write_text(json.dumps({"uid": record["run"]["uid"], "revision": record["run"]["revision"],
-                               "documents": record["run"]["documents"], "reason": reason,
-                               "kept": iso(SystemClock().now())}, ensure_ascii=False) + "\n", encoding="utf-8")
-    os.replace(tmp, path)
+    storage.write_atomic(path, [json.dumps({"uid": record["run"]["uid"], "revision": record["run"]["revision"],
+                                            "documents": record["run"]["documents"], "reason": reason,
+                                            "kept": iso(SystemClock().now())}, ensure_ascii=False) + "\n"])
     return path
 
 
@@ -106,32 +105,49 @@ def waiting(runs_dir: Path) -> list[Path]:
     return sorted(p.parent for p in runs_dir.glob(f"*/{OUTBOX_NAME}"))
 
 
-def sync(register, runs_dir: Path) -> list[tuple[Path, str | None, str | None]]:
+def sync(register, runs_dir: Path, *, busy: list | None = None) -> list[tuple[Path, str | None, str | None]]:
     """Send every run waiting in an outbox under ``runs_dir``: (folder, certificate number, problem).
 
-    Each run is verified first (a run that does not verify stays in the outbox, reported), then
-    numbered if it still needs its number, and stored with every earlier revision it keeps.
+    Each run is sent holding its folder's writer lock (as a run, resume or amend writing it
+    would), so two syncs at once, or a sync and an amend, never both append its number: a run
+    whose lock another process holds is left to it (its folder is added to ``busy``), and a run
+    whose outbox is gone once the lock is held was sent meanwhile. Each run is verified first (a
+    run that does not verify stays in the outbox, reported), then numbered if it still needs its
+    number, and stored with every earlier revision it keeps.
     """
-    from verirun.register.rebuild import index_folder
+    from verirun.errors import BusyError
+    from verirun.locks import run_lock
     from verirun.register.db import RegisterUnreachable
 
     results = []
     for folder in waiting(runs_dir):
         try:
-            from verirun.integrity import verified_record
-
-            record = verified_record(folder)
-            problems = index_folder(register, folder, current=False)  # earlier revisions first
-            record = file_run(register, folder, record)
+            with run_lock(folder):
+                if not (folder / OUTBOX_NAME).exists():
+                    continue  # sent by another process while this one waited for the folder
+                results.append(_send(register, folder))
+        except BusyError as exc:
+            if busy is not None:
+                busy.append(folder)
+            results.append((folder, None, str(exc)))
         except RegisterUnreachable:
             raise
-        except RecordError as exc:
-            results.append((folder, None, str(exc)))
-            continue
-        from verirun.certificate.render import certificate_number
-
-        results.append((folder, certificate_number(record), "\n".join(problems) or None))
     return results
+
+
+def _send(register, folder: Path) -> tuple[Path, str | None, str | None]:
+    """Send one run waiting in its outbox (the caller holds the folder's lock)."""
+    from verirun.certificate.render import certificate_number
+    from verirun.integrity import verified_record
+    from verirun.register.rebuild import index_folder
+
+    try:
+        record = verified_record(folder)
+        problems = index_folder(register, folder, current=False)  # earlier revisions first
+        record = file_run(register, folder, record)
+    except RecordError as exc:
+        return folder, None, str(exc)
+    return folder, certificate_number(record), "\n".join(problems) or None
 
 
 def withheld(folder: Path) -> str | None:

@@ -118,17 +118,22 @@ def _sync(args) -> int:
     from verirun.register.closing import sync
 
     register = _open()
-    results = sync(register, args.runs)
+    busy: list = []
+    results = sync(register, args.runs, busy=busy)
     failed = 0
     for folder, number, problem in results:
-        if number is None:
+        if folder in busy:
+            print(f"{folder}: not sent now: {problem}")
+        elif number is None:
             failed += 1
             print(f"{folder}: not sent: {problem}")
         else:
             print(f"{folder}: in the register, certificate {number}"
                   + (f" (some earlier revisions do not verify: {problem})" if problem else ""))
-    print(f"{len(results) - failed} sent, {failed} kept in the outbox" if results else "nothing waits to be sent")
-    return 1 if failed else 0
+    sent = len(results) - failed - len(busy)
+    print(f"{sent} sent, {failed} kept in the outbox" + (f", {len(busy)} in use by another process" if busy else "")
+          if results else "nothing waits to be sent")
+    return 1 if failed else 5 if busy else 0  # 5: busy, as for any run another process holds
 
 
 def _date(text: str | None, option: str) -> dt.date | None:
