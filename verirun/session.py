@@ -17,7 +17,7 @@ from importlib.resources import as_file, files
 from pathlib import Path
 
 from verirun import preflight, storage
-from verirun.bench.config import Bench, load_bench, load_bench_text
+from verirun.bench.config import Bench, load_bench_text
 from verirun.bench.profile import load_profile
 from verirun.procedure.plan import plan
 from verirun.certificate.render import write_certificate
@@ -397,14 +397,18 @@ _RENEWABLE = ("calibration_due", "certificate", "traceability")
 def _resume_bench(path: Path | None, stored: dict) -> tuple[Bench, dict | None]:
     """The bench to resume on: the run's own, or ``path`` when it is the same file, or the same
     but for the standard's renewed calibration (then also what was renewed, for the journal)."""
+    from verirun.register.standards import load_bench as load_with_standard
+
     if path is None:
         return load_bench_text(stored["text"], stored["source"]), None
-    loaded = load_bench(path)
+    # A calibrator named by asset takes its standard from the register, as when the run started;
+    # the hash compared is then of the bench text with the standard written in, as journaled.
+    loaded = load_with_standard(path)
     if loaded.sha256 == stored["sha256"]:
         return loaded, None
     before = load_bench_text(stored["text"], stored["source"])
     if _without_renewal(before) != _without_renewal(loaded):
-        _same_file(path, stored, "bench file", load_bench, load_bench_text)  # raises, saying why
+        _same_file(path, stored, "bench file", load_with_standard, load_bench_text)  # raises, saying why
     cal = loaded.file.calibrator
     return loaded, {"certificate": cal.certificate, "calibration_due": cal.calibration_due.isoformat(),
                     "traceability": cal.traceability, "bench_sha256": loaded.sha256,

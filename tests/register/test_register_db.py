@@ -65,3 +65,39 @@ class TestCommandLine:
 
         (row,) = json.loads(capsys.readouterr().out)
         assert (row["item"], row["certificate"]) == ("CLI-1", reports[0].stem)
+
+    @pytest.mark.parametrize("renewed", [False, True])
+    def test_a_run_on_a_bench_naming_its_standard_by_asset_resumes_with_that_bench(
+            self, tmp_path, capsys, monkeypatch, renewed):
+        """A run stopped part-way on a bench file that names its calibrator by asset resumes with
+        `--bench` that same file: the standard is taken from the register again, so the bench is
+        the one the run started with (or, after the standard's recalibration was entered, the same
+        but for its renewed calibration, noted), and the run completes with its register number."""
+        import json
+        from pathlib import Path
+
+        data = Path(__file__).resolve().parent.parent / "data" / "register"
+        monkeypatch.delenv("VERIRUN_REGISTER", raising=False)
+        name = str(tmp_path / "lab-register.db")
+        assert main(["register", "standard", "--from-bench", str(data / "bench.yaml"), "--register", name]) == 0
+        stopped = tmp_path / "stopped.csv"
+        stopped.write_text("range,at,reading\ndcv-10,2 V,2.01 V\ndcv-10,5 V,abort\n", encoding="utf-8")
+        rest = tmp_path / "rest.csv"
+        rest.write_text("range,at,reading\ndcv-10,5 V,5.02 V\ndcv-10,8 V,7.98 V\n", encoding="utf-8")
+        common = ["--lab", str(data / "lab.yaml")]
+        assert main(["run", str(data / "procedure.yaml"), "--bench", str(data / "bench-by-asset.yaml"),
+                     "--simulate", "--readings", str(stopped), "--serial", "RES-1", "--customer", "C",
+                     "--temperature", "23", "--humidity", "40", "--register", name, *common]) == 2
+        (run_dir,) = (tmp_path / "runs").iterdir()
+        if renewed:
+            assert main(["register", "standard", "--from-bench", str(data / "bench.yaml"), "--certificate",
+                         "RT-CC-0002", "--due", "2100-06-30", "--register", name]) == 0
+        capsys.readouterr()
+        assert main(["resume", str(run_dir), "--bench", str(data / "bench-by-asset.yaml"),
+                     "--readings", str(rest), "--register", name]) == 0, capsys.readouterr().err
+        record = json.loads((run_dir / "record.json").read_text())
+        assert record["run"]["status"] == "complete"
+        assert record["run"]["certificate_number"].endswith("-00001")
+        assert any("certificate RT-CC-0002, due 2100-06-30" in note["text"] for note in record["notes"]) == renewed
+        # Without the register the asset cannot be resolved: a clear error, not a traceback.
+        assert main(["resume", str(run_dir), "--bench", str(data / "bench-by-asset.yaml")]) == 1
