@@ -280,3 +280,20 @@ class TestConcurrency:
         assert len(stored) == 20 and len(set(stored)) == 20
         folders = [p for b in range(4) for p in (tmp_path / f"bench{b}").iterdir()]
         assert all(not (p / OUTBOX_NAME).exists() for p in folders) and len(folders) == 20
+
+
+class TestCertificatesOfANumberedRun:
+    def test_verify_with_reports_finds_the_certificate_by_the_register_number(self, register, tmp_path,
+                                                                             closed_run):
+        """The certificate of a run numbered by the register is named by that number; verify
+        --reports finds it by that name, so one issued from more of the journal than it now
+        holds is refused as for a run numbered by its uid."""
+        from verirun.integrity import certificates_of, reach_problems
+        from verirun.record import read_journal
+
+        finished = closed_run(tmp_path / "runs")
+        docs = read_journal(finished.run_dir / "journal.jsonl").documents
+        assert certificates_of(docs, finished.certificate.parent) == [finished.certificate]
+        # The journal as it stood before its stop: the certificate was issued from more of it.
+        found = reach_problems(finished.run_dir, docs[:-2], finished.certificate.parent)
+        assert any(str(finished.certificate) in line for line in found)
