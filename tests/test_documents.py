@@ -79,3 +79,38 @@ class TestValidateDocument:
         doc = validate_document(_observation())
         with pytest.raises(ValidationError):
             doc.reading = 1.0
+
+
+class TestOptionalInputs:
+    def test_a_start_of_a_bench_and_lab_that_leave_optional_fields_out_is_valid(self):
+        """A bench file may leave out its location and the standard's traceability, and a lab
+        profile its accreditation and conditions (their models make them optional); the start
+        document of such a run is one verirun writes, so it must read back."""
+        start = json.loads(json.dumps(next(doc for _, doc in LINES if doc["kind"] == "start")))
+        start["bench"]["location"] = None
+        start["bench"]["calibrator"]["traceability"] = None
+        start["lab"]["accreditation"] = None
+        start["lab"]["conditions"] = None
+        jsonschema.validate(start, SHIPPED, cls=jsonschema.Draft202012Validator)
+        assert validate_document(start).bench.location is None
+
+
+class TestCertificateNumber:
+    def _number(self) -> dict:
+        after = next(doc for _, doc in LINES if doc["kind"] == "stop")
+        return {"kind": "certificate-number", "seq": after["seq"] + 1, "prev": "0" * 64,
+                "time": after["time"], "number": "LAB-2026-00001", "register_url": "/srv/lab/register.db"}
+
+    def test_is_a_document_of_the_schema_and_frozen(self):
+        doc = self._number()
+        jsonschema.validate(doc, SHIPPED, cls=jsonschema.Draft202012Validator)
+        model = validate_document(doc)
+        assert model.number == "LAB-2026-00001"
+        with pytest.raises(ValidationError):
+            model.number = "LAB-2026-00002"
+
+    @pytest.mark.parametrize("change", [{"number": 1}, {"surprise": True}, {"register_url": None}])
+    def test_refuses_what_does_not_fit(self, change):
+        """A number stored as an int, an unknown key or a missing register is refused: strict."""
+        with pytest.raises(ValidationError):
+            validate_document({**self._number(), **change})

@@ -116,5 +116,6 @@ def _amend_locked(folder: Path, *, point: str, reading: str, reason: str, operat
         journal.append({"kind": "correction", "time": now, "point": target.key_in(journal_format),
                         "index": target.index, "typed": entry.typed, "reading": entry.value,
                         "reason": reason.strip(), "operator": operator})
+    from verirun.register.closing import after_close
 
-    return close_run(folder)
+    return after_close(folder, close_run(folder))[0]

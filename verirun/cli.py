@@ -131,6 +131,9 @@ def _parser() -> argparse.ArgumentParser:
     runs.add_argument("--since", help="only runs started on or after this date (YYYY-MM-DD)")
     runs.add_argument("--until", help="only runs started on or before this date (YYYY-MM-DD)")
     runs.add_argument("--json", action="store_true", help="print a JSON list")
+    from verirun.register.commands import add_parsers
+
+    add_parsers(sub)
     return parser
 
 
@@ -181,7 +184,9 @@ def main(argv: list[str] | None = None) -> int:
         _err(f"error: {problem}")
         return EXIT_ERROR
     from verirun.errors import RunAborted, SafetyError, VerirunError
+    from verirun.register import config
 
+    config.use(getattr(args, "register", None))
     try:
         return _COMMANDS[args.command](args)
     except SafetyError as exc:
@@ -501,6 +506,8 @@ def _cmd_amend(args) -> int:
     from verirun.issue import earlier_revisions, earlier_states, state_of
 
     record = amend(args.run, point=args.point, reading=args.reading, reason=args.reason, operator=args.operator)
+    from verirun.register.closing import waiting
+
     reports = args.reports or _reports_of(args.run)
     out = write_certificate(record, reports)
     earlier, replaced = earlier_revisions(args.run)[-1]
@@ -512,12 +519,15 @@ def _cmd_amend(args) -> int:
         combined = write_certificate(left, args.reports or _reports_of(folder))
         print(f"{folder}: the as-left run's combined certificate takes the corrected as-found results:"
               f" revision {left['run']['revision']} ({state_of(left)}); certificate {combined}")
+    if waiting(args.run):
+        _err("the register could not take this revision; it waits in the run's outbox for 'verirun register sync'")
     return EXIT_OK
 
 
 def _cmd_issue(args) -> int:
     from verirun.certificate.render import write_certificate, write_pdf
     from verirun.issue import earlier_states, issue, state_of
+    from verirun.register.closing import after_close, waiting
 
     lab = None
     if args.lab is not None:
@@ -525,10 +535,13 @@ def _cmd_issue(args) -> int:
 
         lab = load_lab(args.lab).lab.model_dump(mode="json")
     record = issue(args.run, by=args.by, lab=lab)
+    record, _ = after_close(Path(args.run), record, warn=_err)  # the issued record to the register too
     out = write_certificate(record, args.reports or _reports_of(args.run), earlier=earlier_states(args.run, record))
     print(f"{args.run}: {state_of(record)}; certificate {out}")
     if args.pdf:
         print(f"  and {write_pdf(out.read_text(encoding='utf-8'), out.with_suffix('.pdf'))}")
+    if waiting(args.run):
+        _err("the register could not take the issued record; it waits in the run's outbox for 'verirun register sync'")
     return EXIT_OK
 
 
@@ -617,9 +630,16 @@ def _cmd_certify(args) -> int:
 
     from verirun.certificate.batch import certify_many, find_runs
 
+    from verirun.register.closing import withheld
+
     runs = find_runs(args.runs)
     if not runs:
         _err("error: no stored runs found there")
+        return EXIT_ERROR
+    waiting = [reason for reason in map(withheld, runs) if reason]
+    if waiting:
+        for reason in waiting:
+            _err(f"error: {reason}")
         return EXIT_ERROR
     if args.pdf:
         from verirun.certificate.render import pdf_engine
@@ -648,20 +668,22 @@ def _cmd_certify(args) -> int:
 
 def _cmd_runs(args) -> int:
     from verirun.catalogue import list_runs
+    from verirun.register.commands import runs_source
 
-    rows = list_runs(args.runs, item=args.item, since=_date(args.since, "--since"),
-                     until=_date(args.until, "--until"))
+    source, where = runs_source(args.runs)  # the register, when one is named
+    rows = (source or list_runs)(args.runs, item=args.item, since=_date(args.since, "--since"),
+                                 until=_date(args.until, "--until"))
     for row in rows:
-        if row["status"] == "unreadable":
+        if row.get("status") == "unreadable":
             _err(f"skipped {row['path']}: {row['problem']}")
-    rows = [row for row in rows if row["status"] != "unreadable"]
+    rows = [row for row in rows if row.get("status") != "unreadable"]
     if args.json:
         print(json.dumps(rows, ensure_ascii=False, indent=1))
         return EXIT_OK
     from rich.table import Table
     from rich.text import Text
 
-    table = Table(title=Text(f"Runs in {args.runs}") if rows else None)
+    table = Table(title=Text(f"Runs in {where}") if rows else None)
     # The run folder is what other commands take: never cut, however narrow the terminal.
     table.add_column("run", no_wrap=True, min_width=max((len(r["run"]) for r in rows), default=3))
     for name in ("item", "procedure", "date", "verdict", "status", "certificate", "customer", "bench",
@@ -694,7 +716,7 @@ def _cmd_runs(args) -> int:
             console.print(row["run"], markup=False, soft_wrap=True)
             console.print("  " + " · ".join(f for f in fields if f), markup=False, soft_wrap=True)
     else:
-        console.print(f"no runs in {args.runs}" + (" match" if args.item or args.since or args.until else ""),
+        console.print(f"no runs in {where}" + (" match" if args.item or args.since or args.until else ""),
                       markup=False)
     return EXIT_OK
 
@@ -742,9 +764,9 @@ def _environment(temperature: str | None, humidity: str | None, readings) -> dic
 def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, context_item,
          customer, operator, environment=None, as_left_of=None, adjustment="", condition=None,
          demo_lab=False) -> int:
-    from verirun.bench.config import load_bench
     from verirun.console import Console
     from verirun.engine import RunContext
+    from verirun.register.standards import load_bench
     from verirun.lab import load_lab
     from verirun.procedure.load import load_procedure
     from verirun.session import execute
@@ -824,3 +846,7 @@ def _cmd_run(args) -> int:
 
 _COMMANDS = {"issue": _cmd_issue, "check": _cmd_check, "review": _cmd_review, "window": _cmd_window, "certify": _cmd_certify, "demo": _cmd_demo,
              "run": _cmd_run, "resume": _cmd_resume, "verify": _cmd_verify, "amend": _cmd_amend, "runs": _cmd_runs}
+
+from verirun.register.commands import COMMANDS as _REGISTER_COMMANDS  # noqa: E402  (the register's own)
+
+_COMMANDS.update(_REGISTER_COMMANDS)

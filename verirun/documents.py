@@ -19,6 +19,8 @@ correction  a reading of a finished run was corrected (``verirun amend``): a new
 stop        the run ended: complete, aborted or failed, with the reason
 issue       a person the lab profile lists issued a revision's certificate (``verirun issue``)
 as-found    the as-found run of an as-left run was amended: its results, a new revision
+certificate-number
+            the lab register gave the complete run its certificate number
 ========== ==================================================================================
 
 Documents are validated when they are read back (:func:`document_problem`, after the strict
@@ -36,7 +38,7 @@ identifies them by step; 1 (no ``journal_format``) labelled them by the float's 
 from __future__ import annotations
 
 import json
-from typing import Annotated, Any, Literal, Union
+from typing import Annotated, Any, Literal, Union, get_args
 
 from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, ValidationError
 
@@ -121,12 +123,13 @@ class Person(Part):
 class LabAsRun(Part):
     name: str
     address: list[str]
-    accreditation: str | None
+    accreditation: str | None = Field(description="the lab's accreditation (null when its profile gives none)")
     certificate_prefix: str = Field(description="prefix of the lab's certificate numbers")
     signatory: Signatory | None = Field(default=None, description="an older profile's one signatory")
     people_who_issue: list[Person] = Field(default=[], description="who may issue certificates")
     traceability: str
-    conditions: str | None = Field(description="the lab's stated environmental conditions")
+    conditions: str | None = Field(description="the lab's stated environmental conditions (null when its"
+                                          " profile states none)")
     paper: Literal["A4", "letter"] = Field(description="paper size of printed certificates")
     wording: Wording
     spelling: Literal["british", "american"] = Field(default="british", description="the certificates' spelling")
@@ -313,8 +316,17 @@ class AsFoundRevised(Chained):
     operator: str = Field(description="who amended it")
 
 
+class CertificateNumber(Chained):
+    """The certificate number the lab register gave the complete run (once; written after its
+    stop document, when the run is sent to the register, and before any issue)."""
+
+    kind: Literal["certificate-number"]
+    number: str = Field(description="the certificate number, in the lab's sequence")
+    register_url: str = Field(description="the register that gave it (its URL without a password)")
+
+
 Document = Annotated[Union[Start, Resume, Observation, Skip, Note, Withdrawal, Correction, Stop, Issue,
-                           AsFoundRevised],
+                           AsFoundRevised, CertificateNumber],
                      Field(discriminator="kind")]
 
 _ADAPTER: TypeAdapter = TypeAdapter(Document)
@@ -349,8 +361,8 @@ def document_problem(data: Any) -> str | None:
     return None
 
 
-_KINDS = ("start", "resume", "observation", "skip", "note", "withdrawal", "correction", "stop", "issue",
-          "as-found")
+#: Every document kind, from the models (so a new kind cannot be left out here).
+_KINDS = tuple(get_args(model.model_fields["kind"].annotation)[0] for model in get_args(get_args(Document)[0]))
 
 
 def _shown(value: Any) -> str:

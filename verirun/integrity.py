@@ -34,6 +34,15 @@ def _facts(record: dict, summary_keys) -> dict:
             "summary": {k: record["summary"].get(k) for k in summary_keys}}
 
 
+def comparable(stored: dict, rebuilt: dict) -> tuple[dict, dict]:
+    """``stored`` and ``rebuilt`` as they must agree: whole, or for a record of an earlier format
+    (its figures are its version's), what its journal fixes and its summary's counts."""
+    if stored.get("record_format") == RECORD_FORMAT:
+        return stored, rebuilt
+    counts = [k for k in stored.get("summary", {}) if k in rebuilt["summary"]]
+    return _facts(stored, counts), _facts(rebuilt, counts)
+
+
 def run_folder(path: str | Path) -> Path:
     """The run folder of ``path`` (a run folder, its record or its journal).
 
@@ -65,6 +74,7 @@ def reach_problems(folder: Path, documents: list[dict], reports: Path | None = N
     """Each record, earlier revision or certificate of the run in ``folder`` that was made from
     more of the journal than ``documents`` now holds (the journal was cut short or replaced)."""
     found = []
+    numbers = []  # the register's numbers the records carry (the journal may have lost its own)
     made = sorted(folder.glob("record.r*.json"))
     if (folder / RECORD_NAME).exists():
         made.append(folder / RECORD_NAME)
@@ -72,6 +82,7 @@ def reach_problems(folder: Path, documents: list[dict], reports: Path | None = N
         try:
             run = load_record(path).get("run")
             count, head = run.get("documents"), run.get("journal_sha256_last")
+            numbers.append(run.get("certificate_number"))
         except (RecordError, AttributeError) as exc:
             found.append(str(exc) if isinstance(exc, RecordError) else f"{path}: not a run record")
             continue
@@ -79,7 +90,7 @@ def reach_problems(folder: Path, documents: list[dict], reports: Path | None = N
             found.append(f"{path}: was closed from {count!r} journal documents, but the journal no longer"
                          f" reaches that point (it holds {len(documents)}): it was cut short or replaced")
     if reports is not None and documents and documents[0].get("kind") == "start":
-        for cert in _certificates_of(documents[0], reports):
+        for cert in certificates_of(documents, reports, also=numbers):
             match = _JOURNAL_META.search(cert.read_bytes())
             if match and not reaches(documents, int(match.group(1)), match.group(2).decode()):
                 found.append(f"{cert}: this certificate was issued from {int(match.group(1))} journal"
@@ -88,19 +99,28 @@ def reach_problems(folder: Path, documents: list[dict], reports: Path | None = N
     return found
 
 
-def _certificates_of(start: dict, reports: Path) -> list[Path]:
-    """The certificates in ``reports`` numbered for the run that ``start`` begins."""
+def certificates_of(documents: list[dict], reports: Path, also=()) -> list[Path]:
+    """The certificates in ``reports`` numbered for the run whose journal is ``documents``: by
+    its uid, by the number the lab register gave it (its certificate-number document), and by
+    the numbers in ``also`` (those its records carry)."""
     from verirun.certificate.render import certificate_number, safe_file_name
 
-    try:
-        stem = safe_file_name(certificate_number({"lab": start["lab"], "bench": start["bench"], "run": {
-            "started": start["time"], "uid": start["uid"], "revision": 1}}))
-    except (KeyError, TypeError, AttributeError):
+    start = documents[0]
+    given = [doc.get("number") for doc in documents if doc.get("kind") == "certificate-number"]
+    stems = set()
+    for number in [None, *given, *also]:
+        if number is not None and not isinstance(number, str):
+            continue
+        try:
+            stems.add(safe_file_name(certificate_number({"lab": start["lab"], "bench": start["bench"], "run": {
+                "started": start["time"], "uid": start["uid"], "revision": 1,
+                **({"certificate_number": number} if number else {})}})))
+        except (KeyError, TypeError, AttributeError):
+            continue
+    if not stems or not Path(reports).is_dir():
         return []
-    if not Path(reports).is_dir():
-        return []
-    return sorted(p for p in Path(reports).glob(f"{glob.escape(stem)}*.html")
-                  if p.is_file() and not p.is_symlink())
+    return sorted({p for stem in stems for p in Path(reports).glob(f"{glob.escape(stem)}*.html")
+                   if p.is_file() and not p.is_symlink()})
 
 
 def problems(path: str | Path, reports: str | Path | None = None) -> list[str]:
@@ -136,10 +156,7 @@ def problems(path: str | Path, reports: str | Path | None = None) -> list[str]:
         stored = load_record(folder / RECORD_NAME)
     except RecordError as exc:
         return [str(exc)]
-    if stored.get("record_format") != RECORD_FORMAT:
-        # An earlier format: its figures are its version's; its results must be the journal's.
-        counts = [k for k in stored.get("summary", {}) if k in rebuilt["summary"]]
-        stored, rebuilt = _facts(stored, counts), _facts(rebuilt, counts)
+    stored, rebuilt = comparable(stored, rebuilt)
     if stored != rebuilt and stored.get("run", {}).get("documents", 0) < len(read.documents):
         found.append(f"{folder / RECORD_NAME}: is older than its journal (closed from"
                      f" {stored['run']['documents']} of its {len(read.documents)} documents): the run was"

@@ -61,6 +61,13 @@ def _issue(folder: Path, *, by: str, lab: dict | None, clock) -> dict:
     if record["run"]["status"] != "complete":
         raise RecordError(f"{folder}: the run is {record['run']['status']}, not complete; resume it before"
                           " its certificate can be issued")
+    from verirun.register.closing import needs_number
+    from verirun.register.config import named
+
+    if named() is not None and needs_number(record):
+        raise RecordError(f"{folder}: the run waits for its certificate number from the lab register (it"
+                          " could not be reached when the run closed); send it with 'verirun register"
+                          " sync', then issue it: an issued certificate keeps its number")
     revision = record["run"]["revision"]
     done = next((i for i in record.get("issues", []) if i["revision"] == revision), None)
     if done is not None:

@@ -86,7 +86,8 @@ def _build(documents: list[dict], source: str = "journal", *, known: Known | Non
         planned, results = plan(procedure, bench), {}
     journal_format = start.get("journal_format", 1)
     after = _AfterTheRun(start, source)
-    entries, corrections, notes, stop, revision = _entries(documents, planned, journal_format, source, after)
+    entries, corrections, notes, stop, revision, number = _entries(documents, planned, journal_format, source,
+                                                                   after)
     rows = []
     for point in planned:
         row = _row(point, entries.get(point.index), results.get(point.index), journal_format)
@@ -103,7 +104,8 @@ def _build(documents: list[dict], source: str = "journal", *, known: Known | Non
                 "status": status, "reason": stop.get("reason") if stop else None,
                 "operator": start["operator"], "software": start["software"],
                 "journal_sha256_last": line_hash(dumps(documents[-1])),
-                "documents": len(documents), "revision": revision},
+                "documents": len(documents), "revision": revision,
+                **({"certificate_number": number} if number is not None else {})},
         "lab": start["lab"],
         "customer": {"name": None, "address": [], **start["customer"]},
         "item": {"serial": None, "asset": None, "condition": None, "received": None, **start["item"]},
@@ -152,7 +154,7 @@ class _AfterTheRun:
     revision (``issue``), an as-found run revised under an as-left run (``as-found``), and which
     notes are the lab's internal log rather than the customer's (journals of format 3 on)."""
 
-    KINDS = ("issue", "as-found")
+    KINDS = ("issue", "as-found")  # the certificate number is taken by _entries itself
 
     def __init__(self, start: dict, source: str):
         self.source = source
@@ -210,12 +212,14 @@ def _range(rng) -> dict:
 
 def _entries(documents: list[dict], planned: list[TestPoint], journal_format: int, source: str,
              after: _AfterTheRun):
-    """Each step's confirmed entry, the corrections, notes, last stop and revision of a journal.
+    """Each step's confirmed entry, the corrections, notes, last stop, revision and certificate
+    number (the lab register's, or None) of a journal.
 
     A journal is a start, then sessions: entries and notes up to a stop; after a stop that is
     not complete, only a resume begins the next session; after a complete stop, only
     corrections (each a new revision), issues and revised as-found results, which ``after``
-    takes. One entry per step: a second is an edit, not a reading.
+    takes, and at most one certificate-number document, before any issue (an issued
+    certificate's number never changes). One entry per step: a second is an edit, not a reading.
 
     Raises
     ------
@@ -227,13 +231,26 @@ def _entries(documents: list[dict], planned: list[TestPoint], journal_format: in
     notes: list[dict] = []
     stop = None
     revision = 1
+    number = None
     for doc in documents[1:]:
         kind = doc["kind"]
         where = f"{source}:{doc['seq'] + 1}: {kind}"
+        if kind == "certificate-number":  # given by the lab register after the run closed complete
+            if stop is None or stop["status"] != "complete":
+                raise RecordError(f"{where}: a certificate number for a run that is not closed complete;"
+                                  " the journal was edited")
+            if number is not None:
+                raise RecordError(f"{where}: a second certificate number (the run already has"
+                                  f" {number}); the journal was edited")
+            if after.issues:
+                raise RecordError(f"{where}: a certificate number given after the certificate was issued"
+                                  " (an issued certificate keeps its number); the journal was edited")
+            number = doc["number"]
+            continue
         if stop is not None and stop["status"] == "complete" and kind not in ("correction", *_AfterTheRun.KINDS):
             raise RecordError(f"{where}: written after the run was closed complete (only a"
-                              " correction, an issue or revised as-found results may follow);"
-                              " the journal was edited")
+                              " correction, an issue, revised as-found results or the certificate"
+                              " number may follow); the journal was edited")
         if stop is not None and stop["status"] != "complete" and kind != "resume":
             raise RecordError(f"{where}: written after a stop without a resume between; the journal"
                               " was edited")
@@ -296,7 +313,7 @@ def _entries(documents: list[dict], planned: list[TestPoint], journal_format: in
             stop = doc
         else:
             raise RecordError(f"{where}: a second start document; the journal was edited")
-    return entries, corrections, notes, stop, revision
+    return entries, corrections, notes, stop, revision, number
 
 
 def _step_label(point: TestPoint, label: str, journal_format: int) -> str:

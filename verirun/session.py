@@ -18,7 +18,7 @@ from importlib.resources import as_file, files
 from pathlib import Path
 
 from verirun import preflight, storage
-from verirun.bench.config import Bench, load_bench, load_bench_text
+from verirun.bench.config import Bench, load_bench_text
 from verirun.bench.profile import load_profile
 from verirun.procedure.plan import plan
 from verirun.certificate.render import write_certificate
@@ -29,6 +29,7 @@ from verirun.interrupts import deferred_signals
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.locks import RUN_LOCK_NAME, calibrator_lock, run_lock
 from verirun.record import JOURNAL_NAME, RECORD_NAME, Journal, load_record, read_journal, write_record
+from verirun.register.closing import after_close
 from verirun.runrecord import Known, build_record
 
 
@@ -241,16 +242,17 @@ def _drive(*, run_dir: Path, procedure, bench, context, readings, console, repor
             with deferred_signals():  # a signal now is dropped: the run is ending already
                 journal.close()
                 try:
-                    close_run(run_dir, known=known)
+                    after_close(run_dir, close_run(run_dir, known=known), known=known, warn=console.warn)
                 except Exception:  # the journal is the truth; a record that cannot be built now can be later
                     pass
             raise
         journal.close()
-        return _finish(run_dir, reports_dir, known=known, outcome=outcome)
+        return _finish(run_dir, reports_dir, known=known, outcome=outcome, console=console)
 
 
-def _finish(run_dir: Path, reports_dir: Path, *, known: Known | None, outcome=None) -> Finished:
-    """Close the journal into the record and render a complete run's certificate.
+def _finish(run_dir: Path, reports_dir: Path, *, known: Known | None, outcome=None, console=None) -> Finished:
+    """Close the journal into the record, number and store it in the lab register (if one is
+    named), and render a complete run's certificate (once it may be issued).
 
     Closing holds the signal handlers and is a critical section: a signal arriving while the
     record is written acts once it is on disk (a resume then renders a missing certificate)."""
@@ -258,7 +260,9 @@ def _finish(run_dir: Path, reports_dir: Path, *, known: Known | None, outcome=No
         with _sigterm_as_interrupt():
             with deferred_signals():
                 record = close_run(run_dir, known=known)
-            complete = record is not None and record["run"]["status"] == "complete"
+            record, issuable = after_close(run_dir, record, known=known,
+                                           warn=console.warn if console is not None else None)
+            complete = record is not None and record["run"]["status"] == "complete" and issuable
             certificate = write_certificate(record, reports_dir) if complete else None
     except BaseException as exc:
         exc.run_dir = run_dir  # type: ignore[attr-defined]
@@ -432,7 +436,7 @@ def _close_without_bench(run_dir: Path, reports_dir: Path, *, clock, console, kn
     finally:
         journal.close()
     console.say("every step already had a confirmed entry: the run is closed without the bench")
-    return _finish(run_dir, reports_dir, known=known)
+    return _finish(run_dir, reports_dir, known=known, console=console)
 
 
 def _finish_closed(run_dir: Path, reports_dir: Path, record: dict, console) -> Finished:
@@ -449,7 +453,7 @@ def _finish_closed(run_dir: Path, reports_dir: Path, record: dict, console) -> F
                           " written; nothing to resume (use 'verirun certify' for its certificate)")
     if stored != record:
         console.say("the run was closed but its record was not written: written now from the journal")
-    return _finish(run_dir, reports_dir, known=None)
+    return _finish(run_dir, reports_dir, known=None, console=console)
 
 
 #: What a bench file may change between the start of a run and its resumption: the standard's
@@ -460,14 +464,18 @@ _RENEWABLE = ("calibration_due", "certificate", "traceability")
 def _resume_bench(path: Path | None, stored: dict) -> tuple[Bench, dict | None]:
     """The bench to resume on: the run's own, or ``path`` when it is the same file, or the same
     but for the standard's renewed calibration (then also what was renewed, for the journal)."""
+    from verirun.register.standards import load_bench as load_with_standard
+
     if path is None:
         return load_bench_text(stored["text"], stored["source"]), None
-    loaded = load_bench(path)
+    # A calibrator named by asset takes its standard from the register, as when the run started;
+    # the hash compared is then of the bench text with the standard written in, as journaled.
+    loaded = load_with_standard(path)
     if loaded.sha256 == stored["sha256"]:
         return loaded, None
     before = load_bench_text(stored["text"], stored["source"])
     if _without_renewal(before) != _without_renewal(loaded):
-        _same_file(path, stored, "bench file", load_bench, load_bench_text)  # raises, saying why
+        _same_file(path, stored, "bench file", load_with_standard, load_bench_text)  # raises, saying why
     cal = loaded.file.calibrator
     return loaded, {"certificate": cal.certificate, "calibration_due": cal.calibration_due.isoformat(),
                     "traceability": cal.traceability, "bench_sha256": loaded.sha256,

@@ -27,10 +27,14 @@ def is_dry_run(record: dict) -> bool:
 
 
 def certificate_number(record: dict) -> str:
-    """The certificate's unique number: lab prefix, calibration date and the run's uid."""
-    prefix = DRY_RUN_PREFIX if is_dry_run(record) else record["lab"].get("certificate_prefix", "CERT")
-    day = record["run"]["started"][:10].replace("-", "")
-    number = f"{prefix}-{day}-{record['run']['uid'][:8].upper()}"
+    """The certificate's unique number: the one the lab register gave the run, else lab prefix
+    (a dry run's own prefix, outside the lab's sequence), calibration date and the run's uid; a
+    later revision adds ``-R<n>``."""
+    number = record["run"].get("certificate_number")
+    if number is None:
+        prefix = DRY_RUN_PREFIX if is_dry_run(record) else record["lab"].get("certificate_prefix", "CERT")
+        day = record["run"]["started"][:10].replace("-", "")
+        number = f"{prefix}-{day}-{record['run']['uid'][:8].upper()}"
     revision = record["run"].get("revision", 1)
     return number if revision == 1 else f"{number}-R{revision}"
 
