@@ -80,8 +80,8 @@ def render_sizes(sizes, root: Path) -> list[list[str]]:
 
 def make_folder(count: int, root: Path) -> list[Path]:
     """``count`` copies of one 30-point run, each with its own uid and serial; returns the folders."""
-    from verirun.record import JOURNAL_NAME, RECORD_NAME, dumps, line_hash, load_record, read_journal
-    from verirun.runrecord import build_record
+    from verirun.record.journal import JOURNAL_NAME, RECORD_NAME, dumps, line_hash, load_record, read_journal
+    from verirun.record.build import build_record
 
     dry = DryRun(_gen.generate(30, root / "source"))
     _, finished, _ = dry.run(root / "source" / "run")
@@ -134,7 +134,7 @@ def certify_command(runs: list[Path], reports: Path, workers: int | None) -> flo
 
 def _prototype_one(job):
     from verirun.certificate.render import write_certificate
-    from verirun.record import load_record
+    from verirun.record.journal import load_record
 
     run, reports = job
     return str(write_certificate(load_record(run), reports))
@@ -182,18 +182,18 @@ def folder_runs(runs: list[Path], sizes, single_sizes, root: Path) -> tuple[list
 def split_one(run: Path, root: Path) -> list[list[str]]:
     """Where the time of one certificate of the folder goes (in-process, median of 15)."""
     from verirun.certificate.render import render_html
-    from verirun.record import JOURNAL_NAME, RECORD_NAME, load_record, read_journal
+    from verirun.record.journal import JOURNAL_NAME, RECORD_NAME, load_record, read_journal
 
     parts = []
     record = load_record(run / RECORD_NAME)
     try:
-        from verirun import integrity
+        from verirun.record import verify as integrity
 
         parts.append(("verify: rebuild the record from the journal and compare",
                       timed(lambda: integrity.problems(run), 15)))
     except ImportError:
         pass
-    from verirun.runrecord import build_record
+    from verirun.record.build import build_record
 
     docs = read_journal(run / JOURNAL_NAME).documents
     parts.append(("  of which build_record (parse procedure + bench text, plan, evaluate)",

@@ -72,7 +72,7 @@ def patched(target, name, meter: CpuMeter):
 def one_run(run: DryRun, workdir: Path) -> dict:
     import os
 
-    import verirun.session as session
+    import verirun.conduct as session
     from verirun.bench.calibrator import Calibrator
 
     instrument, disk, closing = CpuMeter(), CpuMeter(), CpuMeter()

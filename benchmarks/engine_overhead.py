@@ -75,7 +75,7 @@ class Phases:
 
     @contextlib.contextmanager
     def installed(self):
-        import verirun.session as session
+        import verirun.conduct as session
 
         close_run, write_certificate = session.close_run, session.write_certificate
 
@@ -127,7 +127,7 @@ class DryRun:
         from verirun.clock import VirtualClock
         from verirun.console import QuietConsole
         from verirun.readings import ScriptedReadings
-        from verirun.session import execute
+        from verirun.conduct import execute
 
         context = self.context
         if serial is not None:

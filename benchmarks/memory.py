@@ -42,7 +42,7 @@ def child_idle() -> dict:
     import pyvisa  # noqa: F401
 
     import verirun.certificate.render  # noqa: F401
-    import verirun.session  # noqa: F401
+    import verirun.conduct  # noqa: F401
     return {"peak_mb": _peak_mb()}
 
 

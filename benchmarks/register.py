@@ -50,7 +50,7 @@ def one_run(root: Path) -> Path:
     from verirun.lab import load_lab
     from verirun.procedure.load import load_procedure
     from verirun.readings import ScriptedReadings
-    from verirun.session import execute
+    from verirun.conduct import execute
 
     gen = _gen.generate(5, root / "gen")
     lab = load_lab(_gen.LAB_YAML)
@@ -67,10 +67,10 @@ def one_run(root: Path) -> Path:
 
 def make_folders(seed: Path, root: Path, n: int) -> Path:
     """``n`` run folders: the seed's journal with a new uid, item and start time, re-chained."""
-    from verirun.record import GENESIS, JOURNAL_NAME, RECORD_NAME, dumps, line_hash, read_journal, write_record
+    from verirun.record.journal import GENESIS, JOURNAL_NAME, RECORD_NAME, dumps, line_hash, read_journal, write_record
     from verirun.register.rebuild import _Plans
-    from verirun.runrecord import build_record
-    from verirun.session import run_folder_name
+    from verirun.record.build import build_record
+    from verirun.conduct import run_folder_name
 
     docs = read_journal(seed / JOURNAL_NAME).documents
     plans, rng = _Plans(), random.Random(7)
@@ -103,7 +103,7 @@ def fill_register(register, seed: Path, n: int) -> None:
     """``n`` runs written straight into the tables from the seed's record (each stored whole)."""
     import hashlib
 
-    from verirun.record import dumps, load_record
+    from verirun.record.journal import dumps, load_record
     from verirun.register.schema import items, points, records, runs
     from verirun.register.store import point_rows, run_row
 
@@ -167,8 +167,8 @@ def main(argv: list[str]) -> int:
     quick = "--quick" in argv
     registered, folders_n = (10_000, 1_000) if quick else (100_000, 10_000)
     scale = registered / folders_n
-    from verirun.catalogue import list_runs as scan_runs
-    from verirun.integrity import problems
+    from verirun.record.listing import list_runs as scan_runs
+    from verirun.record.verify import problems
     from verirun.register.db import open_register
     from verirun.register.history import item_history
     from verirun.register.rebuild import rebuild

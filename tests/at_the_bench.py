@@ -11,7 +11,7 @@ import pytest
 def calibrator_at_the_bench():
     """While open, a run at a real bench (no --simulate) reaches its calibrator through the
     simulated device: verirun treats it as a calibration, the test needs no hardware."""
-    from verirun import session
+    from verirun import conduct as session
     from verirun.bench.calibrator import Calibrator
     from verirun.bench.sim import SIM_RESOURCE, sim_library
 

@@ -11,7 +11,7 @@ import textwrap
 from pathlib import Path
 
 from verirun.cli import main
-from verirun.record import read_journal
+from verirun.record.journal import read_journal
 
 STEPS = Path(__file__).resolve().parent / "data" / "steps"
 STORED = STEPS / "stored"
@@ -64,7 +64,7 @@ def record(run_dir: Path) -> dict:
 #: names. Each moment is a call into verirun's own functions, so the death lands exactly there.
 _DIE_AT = textwrap.dedent("""
     import os, sys
-    import verirun.record as record, verirun.storage as storage
+    import verirun.record.journal as record, verirun.storage as storage
     moment = os.environ["VERIRUN_TEST_DIE"]
     append, write_atomic = record.Journal.append, storage.write_atomic
 

@@ -10,7 +10,7 @@ import pytest
 
 from runkit import (READINGS, cli, documents, only_run, readings_file, record, run_args,
                     run_until_death)
-from verirun.integrity import problems
+from verirun.record.verify import problems
 
 
 def leftovers(tmp_path):
@@ -87,7 +87,7 @@ class TestKilledAtTheEnd:
         from verirun.lab import load_lab
         from verirun.procedure.load import load_procedure
         from verirun.readings import ScriptedReadings
-        from verirun.session import execute
+        from verirun.conduct import execute
 
         from runkit import BENCH, PROCEDURE, STEPS
 

@@ -29,8 +29,8 @@ from verirun.engine import RunContext
 from verirun.errors import RunAborted
 from verirun.lab import load_lab
 from verirun.procedure.load import load_procedure_text
-from verirun.record import read_journal
-from verirun.session import confirmed_steps, execute
+from verirun.record.journal import read_journal
+from verirun.conduct import confirmed_steps, execute
 
 DATA = Path(__file__).resolve().parent / "data"
 
@@ -116,7 +116,7 @@ def fits_the_journal_schema(docs):
 
     import jsonschema
 
-    from verirun.documents import validate_document
+    from verirun.record.documents import validate_document
 
     schema = json.loads((Path(__file__).resolve().parent.parent / "verirun" / "schema"
                          / "journal.schema.json").read_text(encoding="utf-8"))

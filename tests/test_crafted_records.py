@@ -16,11 +16,11 @@ from verirun.clock import VirtualClock
 from verirun.console import QuietConsole
 from verirun.engine import RunContext
 from verirun.errors import BenchError
-from verirun.integrity import problems
+from verirun.record.verify import problems
 from verirun.lab import load_lab
 from verirun.procedure.load import load_procedure
 from verirun.readings import ScriptedReadings
-from verirun.session import execute, resume
+from verirun.conduct import execute, resume
 
 
 def journal_line(run_dir, number: int) -> str:

@@ -10,7 +10,7 @@ import jsonschema
 import pytest
 from pydantic import ValidationError
 
-from verirun.documents import journal_schema, validate_document
+from verirun.record.documents import journal_schema, validate_document
 
 STORED = Path(__file__).resolve().parent / "data" / "stored-runs"
 LINES = [(f"{path.parent.name}:{number}", json.loads(line))
@@ -27,7 +27,7 @@ def _observation() -> dict:
 class TestShippedSchema:
     def test_is_the_schema_of_the_models(self):
         """The schema file in the package is the one the models give (regenerate it with
-        ``python -m verirun.documents > verirun/schema/journal.schema.json``)."""
+        ``python -m verirun.record.documents > verirun/schema/journal.schema.json``)."""
         assert SHIPPED == journal_schema()
 
     def test_is_a_valid_json_schema(self):

@@ -22,8 +22,8 @@ from verirun.engine import RunContext
 from verirun.lab import load_lab
 from verirun.procedure.load import load_procedure
 from verirun.readings import ScriptedReadings
-from verirun.record import load_record, read_journal
-from verirun.session import execute
+from verirun.record.journal import load_record, read_journal
+from verirun.conduct import execute
 
 # Expected verdicts of the scripted readings (tests/data/qm40-readings.csv), each worked by hand:
 # linear ranges: limits = nominal ± percent × full scale / 100 (percent of full scale, and a

@@ -10,7 +10,7 @@ import textwrap
 import pytest
 
 from verirun import preflight
-from verirun.bench.config import load_bench, load_bench_text
+from verirun.bench.config import load_bench_text
 from verirun.bench.profile import load_profile
 from verirun.cli import main
 from verirun.errors import ProcedureError

@@ -10,13 +10,13 @@ from hypothesis import strategies as st
 
 from verirun.certificate.render import safe_file_name, write_certificate
 from verirun.cli import main
-from verirun.integrity import problems
+from verirun.record.verify import problems
 from verirun.bench.config import load_bench
 from verirun.evaluation import evaluate
 from verirun.procedure.load import load_procedure, load_procedure_text
 from verirun.procedure.plan import plan
-from verirun.record import Journal, dumps, read_journal, verify_chain, write_record
-from verirun.runrecord import Known, build_record
+from verirun.record.journal import Journal, dumps, read_journal, verify_chain, write_record
+from verirun.record.build import Known, build_record
 
 
 @pytest.fixture

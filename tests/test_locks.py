@@ -3,14 +3,13 @@
 from __future__ import annotations
 
 import os
-import shutil
 import subprocess
 import sys
 import time
 from pathlib import Path
 
 from runkit import BENCH, READINGS, cli, documents, only_run, readings_file, record, run_args
-from verirun.integrity import problems
+from verirun.record.verify import problems
 
 
 #: A verirun process at a real bench whose calibrator is reached through the simulated device

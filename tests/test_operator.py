@@ -19,8 +19,8 @@ from verirun.console import Console
 from verirun.engine import RunContext
 from verirun.errors import RunAborted
 from verirun.procedure.load import load_procedure_text
-from verirun.record import read_journal
-from verirun.session import execute
+from verirun.record.journal import read_journal
+from verirun.conduct import execute
 
 PROCEDURE = textwrap.dedent("""\
     format: 1

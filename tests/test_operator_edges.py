@@ -18,14 +18,14 @@ from verirun.bench.config import load_bench, load_bench_text
 from verirun.bench.sim import SIM_RESOURCE, sim_library
 from verirun.clock import VirtualClock
 from verirun.console import Console, LineReader, QuietConsole
-from verirun.documents import validate_document
+from verirun.record.documents import validate_document
 from verirun.engine import RunContext
 from verirun.lab import load_lab
 from verirun.errors import RunAborted, UnitError
 from verirun.procedure.load import load_procedure, load_procedure_text
 from verirun.readings import MAX_ENTRY_LENGTH, OperatorSilent
-from verirun.record import read_journal, verify_chain
-from verirun.session import execute
+from verirun.record.journal import read_journal, verify_chain
+from verirun.conduct import execute
 from verirun.units import MAX_QUANTITY_LENGTH, parse_quantity, split_quantity
 
 EDGE = Path(__file__).resolve().parent / "data" / "edge"

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import json
-from decimal import Decimal
 from fractions import Fraction
 from pathlib import Path
 

@@ -109,7 +109,7 @@ class TestRunAtARealBench:
 
     def test_with_them_the_run_is_made(self, at_the_bench, tmp_path):
         """With the lab, the condition and a receipt date, the run is made as given."""
-        from verirun.record import load_record
+        from verirun.record.journal import load_record
 
         assert main(run_args(tmp_path, "--lab", str(DATA / "lab-test.yaml"), "--condition", "as new",
                              "--received", "2025-01-10")) == 0

@@ -6,7 +6,7 @@ import json
 import shutil
 from pathlib import Path
 
-from verirun.integrity import problems
+from verirun.record.verify import problems
 
 STORED = Path(__file__).resolve().parent / "data" / "stored-runs" / "format1-guarded"
 

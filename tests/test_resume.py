@@ -2,10 +2,7 @@
 
 from __future__ import annotations
 
-import datetime as dt
 import json
-import os
-import shutil
 import signal
 import subprocess
 import sys
@@ -14,8 +11,8 @@ import time
 import pytest
 
 from verirun.cli import main
-from verirun.integrity import problems
-from verirun.record import read_journal
+from verirun.record.verify import problems
+from verirun.record.journal import read_journal
 
 ROOT_ARGS = None
 

@@ -128,7 +128,7 @@ class TestCheckCommand:
     def test_every_kind_of_file_recognised(self, tmp_path, demo_procedure_path, demo_bench_path,
                                            demo_lab_path, capsys):
         """Procedure, bench, driver profile, lab, virtual meter and readings each say what they are."""
-        from verirun.session import demo_files
+        from verirun.conduct import demo_files
 
         with demo_files() as demo:
             meter = demo["meter"]

@@ -12,7 +12,6 @@ from pathlib import Path
 
 import pytest
 
-from verirun.bench.config import load_bench
 from verirun.cli import main
 from verirun.errors import ProcedureError, RecordError, UnitError
 from verirun.evaluation import evaluate
@@ -180,7 +179,7 @@ class TestNegativeReadings:
         record = json.loads((run / "record.json").read_text())
         assert record["points"][0]["reading"] == pytest.approx(-10.02)
         assert record["points"][0]["verdict"] == "fail"  # beyond -10 ∓ 12 mV
-        from verirun.amend import amend
+        from verirun.record.amend import amend
         with pytest.raises(RecordError, match="beyond the ends"):
             amend(run, point="3", reading="-10", reason="sign", operator="t")
 

@@ -22,8 +22,8 @@ from pathlib import Path
 
 import pytest
 
-from verirun import record as record_mod
-from verirun import session as session_mod
+from verirun.record import journal as record_mod
+from verirun import conduct as session_mod
 from verirun.bench.calibrator import Calibrator
 from verirun.bench.config import load_bench
 from verirun.bench.safety import output_guard
@@ -33,12 +33,12 @@ from verirun.console import QuietConsole
 from verirun.engine import RunContext
 from verirun.lab import load_lab
 from verirun.errors import SafetyError
-from verirun.integrity import verified_record
+from verirun.record.verify import verified_record
 from verirun.interrupts import deferred_signals
 from verirun.procedure.load import load_procedure
 from verirun.readings import ScriptedReadings
-from verirun.record import Journal, read_journal, verify_chain
-from verirun.session import _sigterm_as_interrupt, execute
+from verirun.record.journal import Journal, read_journal, verify_chain
+from verirun.conduct import _sigterm_as_interrupt, execute
 
 EDGE = Path(__file__).resolve().parent / "data" / "edge"
 PROCEDURE, BENCH, READINGS = EDGE / "dcv-small.yaml", EDGE / "bench.yaml", EDGE / "readings.csv"
@@ -418,7 +418,9 @@ class TestSignalsInARun:
 CHILD = textwrap.dedent('''
     import json, os, signal, sys, threading
     from pathlib import Path
-    from verirun import cli, record, session
+    from verirun import cli
+    from verirun.record import journal as record
+    from verirun import conduct as session
     from verirun.bench.calibrator import Calibrator
 
     where, count, out = sys.argv[1], int(sys.argv[2]), Path(sys.argv[3])

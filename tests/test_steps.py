@@ -10,7 +10,7 @@ import pytest
 from bs4 import BeautifulSoup
 
 from runkit import STORED, cli, documents, only_run, procedure_with, readings_file, record, run_args
-from verirun.integrity import problems
+from verirun.record.verify import problems
 from verirun.procedure.load import load_procedure
 from verirun.procedure.plan import plan
 
@@ -82,7 +82,7 @@ class TestRepeatedPoints:
 
 def _rechained(docs: list[dict]) -> str:
     """The documents as a journal with a whole chain (a forger can rebuild an unkeyed chain)."""
-    from verirun.record import GENESIS, dumps, line_hash
+    from verirun.record.journal import GENESIS, dumps, line_hash
 
     prev, lines = GENESIS, []
     for seq, doc in enumerate(docs):
@@ -174,7 +174,7 @@ class TestUndoOnARepeatedValue:
         from verirun.console import Console
         from verirun.engine import RunContext
         from verirun.lab import load_lab
-        from verirun.session import execute
+        from verirun.conduct import execute
 
         typed = iter(["", "2.05", "2.5", "", "undo", "", "2.1", "", "10", "49.5"])
         rm = pyvisa.ResourceManager(sim_library(tmp_path / "sim"))

@@ -12,8 +12,8 @@ from pathlib import Path
 import pytest
 
 from runkit import READINGS, cli, documents, only_run, procedure_with, readings_file, record, run_args
-from verirun.integrity import problems
-from verirun.record import read_journal, verify_chain
+from verirun.record.verify import problems
+from verirun.record.journal import read_journal, verify_chain
 
 
 def output_state(run_dir: Path) -> str:

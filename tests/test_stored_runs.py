@@ -17,9 +17,9 @@ import pytest
 
 from verirun.certificate.render import DRY_RUN_PREFIX, TEMPLATE_VERSION, certificate_path, render_html
 from verirun.cli import main
-from verirun.integrity import verified_record
-from verirun.record import read_journal
-from verirun.runrecord import build_record
+from verirun.record.verify import verified_record
+from verirun.record.journal import read_journal
+from verirun.record.build import build_record
 
 STORED = Path(__file__).resolve().parent / "data" / "stored-runs"
 RUNS = sorted(path for path in STORED.iterdir() if (path / "journal.jsonl").is_file())

@@ -13,7 +13,7 @@ from pathlib import Path
 
 from verirun.clock import SystemClock, iso
 from verirun.errors import RecordError
-from verirun.record import JOURNAL_NAME, Journal
+from verirun.record.journal import JOURNAL_NAME, Journal
 
 
 def check_as_found(record: dict, *, run: Path, customer: dict, others: list[Path],
@@ -65,8 +65,8 @@ def revise_as_left(found_run: Path, *, reason: str, operator: str, clock=None,
     """After the as-found run at ``found_run`` was amended, give its as-left run (if any) the
     new as-found results; return each as-left folder with its new record."""
     from verirun.certificate.render import certificate_number
-    from verirun.integrity import verified_record
-    from verirun.session import close_run
+    from verirun.record.verify import verified_record
+    from verirun.conduct import close_run
 
     clock = clock or SystemClock()
     found = verified_record(found_run)

@@ -238,7 +238,7 @@ def _err(text: str) -> None:
 
 def _resume_hint(exc: BaseException) -> None:
     from verirun.interrupts import deferred_signals
-    from verirun.record import read_journal
+    from verirun.record.journal import read_journal
 
     run_dir = getattr(exc, "run_dir", None)
     if run_dir is None:
@@ -407,7 +407,7 @@ def _window_resolution(text: str, unit: str, arc, ohms: bool, quantity):
 
 def _window_document(win, unit, budget, rule, result, texts, reading, validation) -> dict:
     """The JSON object of ``verirun window``: every number, and each as the certificate prints it."""
-    from verirun.record import json_number
+    from verirun.record.journal import json_number
 
     accept = result.acceptance
     out = {"nominal": win.nominal, "low": json_number(win.low), "high": json_number(win.high),
@@ -501,7 +501,7 @@ def _validation_lines(v, win, texts) -> list[str]:
 
 def _cmd_amend(args) -> int:
     from verirun.adjustment import revise_as_left
-    from verirun.amend import amend
+    from verirun.record.amend import amend
     from verirun.certificate.render import write_certificate
     from verirun.issue import earlier_revisions, earlier_states, state_of
 
@@ -546,7 +546,7 @@ def _cmd_issue(args) -> int:
 
 
 def _cmd_verify(args) -> int:
-    from verirun.integrity import problems
+    from verirun.record.verify import problems
 
     failed = 0
     for path in args.runs:
@@ -562,7 +562,7 @@ def _cmd_verify(args) -> int:
 
 
 def _cmd_resume(args) -> int:
-    from verirun.session import resumable, resume
+    from verirun.conduct import resumable, resume
 
     readings = _reading_source(args)
     rich, console = _consoles(readings)
@@ -586,8 +586,8 @@ def _cmd_resume(args) -> int:
 
 def _reports_of(run: Path) -> Path:
     """The certificate folder the run at ``run`` started with (``reports`` for older runs)."""
-    from verirun.integrity import run_folder
-    from verirun.record import JOURNAL_NAME, read_journal
+    from verirun.record.verify import run_folder
+    from verirun.record.journal import JOURNAL_NAME, read_journal
 
     docs = read_journal(run_folder(run) / JOURNAL_NAME).documents
     return Path((docs[0].get("reports") if docs else None) or "reports")
@@ -595,7 +595,7 @@ def _reports_of(run: Path) -> Path:
 
 def _state(path) -> str:
     from verirun.issue import state_of
-    from verirun.record import load_record
+    from verirun.record.journal import load_record
 
     return state_of(load_record(path))
 
@@ -604,7 +604,7 @@ def _summary(rich, finished) -> None:
     from rich.text import Text
 
     from verirun.issue import state_of
-    from verirun.runrecord import record_judged
+    from verirun.record.build import record_judged
 
     # Paths are printed as they are (a folder may be named "[x]"), never read as markup.
     rich.print(Text(f"\nRun record:  {finished.record_path}"))
@@ -667,7 +667,7 @@ def _cmd_certify(args) -> int:
 
 
 def _cmd_runs(args) -> int:
-    from verirun.catalogue import list_runs
+    from verirun.record.listing import list_runs
     from verirun.register.commands import runs_source
 
     source, where = runs_source(args.runs)  # the register, when one is named
@@ -749,7 +749,7 @@ def _date(text: str | None, option: str) -> str | None:
 
 def _environment(temperature: str | None, humidity: str | None, readings) -> dict:
     """The conditions at the start: from the options, else asked of the operator at the console."""
-    from verirun.environment import ask_conditions, parse_humidity, parse_temperature
+    from verirun.conditions import ask_conditions, parse_humidity, parse_temperature
 
     env = {}
     if temperature is not None:
@@ -769,7 +769,7 @@ def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, cont
     from verirun.register.standards import load_bench
     from verirun.lab import load_lab
     from verirun.procedure.load import load_procedure
-    from verirun.session import execute
+    from verirun.conduct import execute
 
     from verirun.bench.sim import is_simulator
     from verirun.errors import VerirunError
@@ -789,7 +789,7 @@ def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, cont
     rich, console = _consoles(readings)
     as_found = None
     if as_left_of is not None:
-        from verirun.session import as_found_of
+        from verirun.conduct import as_found_of
 
         as_found = as_found_of(as_left_of, serial=context_item["serial"], procedure=procedure, adjustment=adjustment,
                                customer=customer, others=[args.runs], simulated=simulate)
@@ -808,7 +808,7 @@ def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, cont
 
 def _cmd_demo(args) -> int:
     from verirun.readings import VirtualMeter
-    from verirun.session import demo_files
+    from verirun.conduct import demo_files
 
     with demo_files() as demo:
         return _run(args, procedure_path=demo["procedure"], bench_path=demo["bench"], lab_path=demo["lab"],
@@ -821,7 +821,7 @@ def _cmd_demo(args) -> int:
 
 def _cmd_run(args) -> int:
     from verirun.receipt import ask_condition, check_received
-    from verirun.session import demo_files
+    from verirun.conduct import demo_files
 
     readings = _reading_source(args)
     item = {"serial": args.serial, "asset": args.asset, "condition": None,

@@ -21,8 +21,8 @@ from verirun.interrupts import deferred_signals
 from verirun.procedure.load import Procedure
 from verirun.procedure.plan import TestPoint, plan
 from verirun.readings import Entry, OperatorSilent, ReadingSource
-from verirun.documents import JOURNAL_FORMAT
-from verirun.record import Journal
+from verirun.record.documents import JOURNAL_FORMAT
+from verirun.record.journal import Journal
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -13,10 +13,10 @@ from pathlib import Path
 
 from verirun.clock import SystemClock, iso
 from verirun.errors import RecordError
-from verirun.integrity import run_folder, verified_record
+from verirun.record.verify import run_folder, verified_record
 from verirun.lab import people_who_issue
 from verirun.locks import run_lock
-from verirun.record import JOURNAL_NAME, Journal, load_record, read_journal
+from verirun.record.journal import JOURNAL_NAME, Journal, load_record, read_journal
 
 
 
@@ -51,7 +51,7 @@ def issue(path: str | Path, *, by: str, lab: dict | None = None, clock=None) -> 
 def _issue(folder: Path, *, by: str, lab: dict | None, clock) -> dict:
     """Refuse, or (given a ``clock``) journal the issue and close the record again."""
     from verirun.certificate.render import certificate_number, is_dry_run
-    from verirun.session import close_run
+    from verirun.conduct import close_run
 
     record = verified_record(folder)
     number = certificate_number(record)
@@ -117,7 +117,7 @@ def earlier_revisions(path: str | Path) -> list[tuple[dict, dict]]:
     is; what replaced it is that document's time and reason and the next revision's number.
     """
     from verirun.certificate.render import certificate_number
-    from verirun.runrecord import build_record
+    from verirun.record.build import build_record
 
     folder = run_folder(path)
     docs = read_journal(folder / JOURNAL_NAME).documents
@@ -140,7 +140,7 @@ def earlier_states(path: str | Path, record: dict, *, replaced_by: dict | None =
     revision, and, when ``replaced_by`` marks it replaced, the certificate as it was before.
     Any other certificate of that number is never overwritten."""
     from verirun.certificate.render import render_html
-    from verirun.runrecord import build_record
+    from verirun.record.build import build_record
 
     folder = run_folder(path)
     docs = read_journal(folder / JOURNAL_NAME).documents

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from verirun.record import GENESIS, dumps, line_hash, read_journal, write_record
-from verirun.runrecord import build_record
+from verirun.record.journal import GENESIS, dumps, line_hash, read_journal, write_record
+from verirun.record.build import build_record
 
 
 def clone_run(source: Path, target: Path, *, uid: str, serial: str) -> Path:

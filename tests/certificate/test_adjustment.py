@@ -13,7 +13,7 @@ from bs4 import BeautifulSoup
 
 from verirun.certificate.render import certificate_path
 from verirun.cli import main
-from verirun.record import load_record
+from verirun.record.journal import load_record
 
 from test_issue import DATA, bench_run, text
 
@@ -76,8 +76,8 @@ def fits_the_schema(*runs):
 
     import jsonschema
 
-    from verirun.documents import validate_document
-    from verirun.record import read_journal
+    from verirun.record.documents import validate_document
+    from verirun.record.journal import read_journal
 
     schema = json.loads((files("verirun") / "schema" / "journal.schema.json").read_text(encoding="utf-8"))
     kinds = set()

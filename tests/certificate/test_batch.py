@@ -37,7 +37,6 @@ class TestCertifyFolder:
     def test_rendering_over_a_certificate_of_another_template_version_is_reported(self, demo_run_dir, tmp_path):
         """Re-rendering over a certificate made with another template version says so, and keeps
         the earlier one beside it: an issued certificate is never overwritten."""
-        from verirun.certificate.render import TEMPLATE_VERSION
 
         reports = tmp_path / "rep"
         (outcome,) = certify_many([demo_run_dir], reports)

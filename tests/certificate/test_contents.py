@@ -167,7 +167,7 @@ class TestClause784And786:
                      "--adjustment", "span trimmer reset"]) == 0
         (left_run,) = [run for run in (tmp_path / "runs").iterdir() if run != found_run]
         from verirun.certificate.render import certificate_path
-        from verirun.record import load_record
+        from verirun.record.journal import load_record
 
         soup = BeautifulSoup(certificate_path(load_record(left_run), tmp_path / "rep").read_text(), "html.parser")
         # One table per range, each point's as-found and as-left results in one row.

@@ -8,7 +8,7 @@ from bs4 import BeautifulSoup
 
 from verirun.certificate.render import certificate_path
 from verirun.cli import main
-from verirun.record import load_record
+from verirun.record.journal import load_record
 
 from test_issue import DATA, text
 

@@ -19,7 +19,7 @@ from bs4 import BeautifulSoup
 
 from verirun.certificate.render import certificate_path
 from verirun.cli import main
-from verirun.record import load_record, read_journal
+from verirun.record.journal import load_record, read_journal
 
 DATA = Path(__file__).resolve().parents[1] / "data"
 
@@ -196,7 +196,7 @@ class TestDryRun:
     def test_a_forged_issue_of_a_dry_run_does_not_verify(self, tmp_path, capsys):
         """An issue document appended to a dry run's journal (chained, so the chain holds) is
         found by verify, and certify refuses the run."""
-        from verirun.record import Journal
+        from verirun.record.journal import Journal
 
         run = bench_run(tmp_path, simulate=True)
         with Journal(run / "journal.jsonl") as journal:
@@ -242,7 +242,7 @@ class TestTheDraftOnPaper:
 
 def test_the_issue_document_is_in_the_record_and_journal_chain(at_the_bench, tmp_path):
     """The record lists each issue; the journal's chain runs through the issue document."""
-    from verirun.record import verify_chain
+    from verirun.record.journal import verify_chain
 
     run = bench_run(tmp_path)
     assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 0
@@ -296,7 +296,7 @@ def test_a_full_disk_while_issuing_is_said_not_a_traceback(at_the_bench, tmp_pat
     import errno
     import os as os_module
 
-    from verirun import record as record_module
+    from verirun.record import journal as record_module
 
     run = bench_run(tmp_path)
 

@@ -11,9 +11,8 @@ from pathlib import Path
 import pytest
 
 from verirun.certificate.render import render_html, write_pdf
-from verirun.record import load_record
+from verirun.record.journal import load_record
 
-from stored_runs import clone_run
 
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",

@@ -12,7 +12,7 @@ from pathlib import Path
 import pytest
 
 from verirun.certificate.render import render_html, write_pdf
-from verirun.record import load_record
+from verirun.record.journal import load_record
 
 STORED = Path(__file__).resolve().parents[1] / "data" / "stored-runs"
 #: The simple, guarded and non-binary rules (the widest tables: acceptance limits, long verdicts)

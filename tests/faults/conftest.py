@@ -28,7 +28,7 @@ from verirun.lab import load_lab
 from verirun.procedure.load import load_procedure
 from verirun.procedure.plan import plan
 from verirun.readings import ScriptedReadings
-from verirun.session import demo_files, execute
+from verirun.conduct import demo_files, execute
 
 #: The query that takes one entry off the error queue (the scpi-generic profile's).
 ERROR_QUERY = "SYST:ERR?"

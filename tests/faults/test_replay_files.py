@@ -21,7 +21,7 @@ from verirun.errors import ProcedureError
 from verirun.procedure.load import load_procedure
 from verirun.procedure.plan import plan
 from verirun.readings import ScriptedReadings, VirtualMeter
-from verirun.session import execute
+from verirun.conduct import execute
 
 DATA = Path(__file__).resolve().parent.parent / "data"
 GOOD = (DATA / "bench-meter-readings.csv").read_text(encoding="utf-8")

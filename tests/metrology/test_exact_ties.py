@@ -114,7 +114,6 @@ class TestLinearTies:
         assert decision.reported_expanded(win, bud) == U, u_text
         for end, sign in ((low, -1), (high, +1)):
             beyond = lambda x: x + sign * step(x)  # noqa: E731 - one step outward
-            inward = lambda x: x - sign * step(x)  # noqa: E731
             # simple acceptance: the tolerance limit belongs to the tolerance zone
             assert verdict(RULES["simple"], win, law, bud, text(end)) == "pass"
             assert verdict(RULES["simple"], win, law, bud, text(beyond(end))) == "fail"

@@ -148,9 +148,9 @@ def close_run(runs_dir: Path, *, serial: str = "PV3-0001", readings=("2.00", "5.
     from verirun.lab import load_lab
     from verirun.procedure.load import load_procedure
     from verirun.register.standards import load_bench
-    from verirun.session import execute
+    from verirun.conduct import execute
 
-    from verirun.session import as_found_of
+    from verirun.conduct import as_found_of
 
     when = when or dt.datetime(2026, 3, 1, 9, 0, tzinfo=dt.timezone.utc)
     lab = load_lab(DATA / "lab.yaml")

@@ -59,8 +59,8 @@ class TestClosing:
             ["RTL-2026-00001", "RTL-2026-00002", "RTL-2027-00001"]
         assert first.certificate.name == "RTL-2026-00001.html"
         assert main(["verify", str(first.run_dir)]) == 0
-        from verirun.documents import validate_document
-        from verirun.record import read_journal
+        from verirun.record.documents import validate_document
+        from verirun.record.journal import read_journal
 
         docs = read_journal(first.run_dir / "journal.jsonl").documents
         assert docs[-2]["kind"] == "stop" and validate_document(docs[-1]).number == "RTL-2026-00001"
@@ -309,8 +309,8 @@ class TestCertificatesOfANumberedRun:
         """The certificate of a run numbered by the register is named by that number; verify
         --reports finds it by that name, so one issued from more of the journal than it now
         holds is refused as for a run numbered by its uid."""
-        from verirun.integrity import certificates_of, reach_problems
-        from verirun.record import read_journal
+        from verirun.record.verify import certificates_of, reach_problems
+        from verirun.record.journal import read_journal
 
         finished = closed_run(tmp_path / "runs")
         docs = read_journal(finished.run_dir / "journal.jsonl").documents

@@ -14,7 +14,7 @@ from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
 
-from verirun.record import JOURNAL_NAME, RECORD_NAME
+from verirun.record.journal import JOURNAL_NAME, RECORD_NAME
 
 _VERSION_META = re.compile(rb'<meta name="verirun-template" content="([^"]*)">')
 
@@ -59,7 +59,7 @@ def certify_one(run: Path, reports_dir: Path, pdf: bool = False) -> Outcome:
     from verirun import storage
     from verirun.certificate.render import TEMPLATE_VERSION, certificate_path, keep_issued, render_html, write_pdf
     from verirun.errors import VerirunError
-    from verirun.integrity import verified_record
+    from verirun.record.verify import verified_record
     from verirun.issue import earlier_revisions, earlier_states, state_of
 
     try:

@@ -116,7 +116,7 @@ def conformity(record: dict):
     """The statement of conformity of ``record``, worked out by the one summary function from
     its points and its decision rule (so a record of an earlier format gets today's words)."""
     from verirun.metrology.summary import summarise
-    from verirun.runrecord import record_judged
+    from verirun.record.build import record_judged
 
     return summarise(record_judged(record), record["decision_rule"]["rule"])
 

@@ -14,7 +14,7 @@ import json
 from pathlib import Path
 
 from verirun.errors import RecordError
-from verirun.record import JOURNAL_NAME, Journal
+from verirun.record.journal import JOURNAL_NAME, Journal
 
 #: The file in a run folder that says its latest closing is not yet in the register.
 OUTBOX_NAME = "register-outbox.json"
@@ -76,7 +76,7 @@ def file_run(register, run_dir: Path, record: dict, *, known=None) -> dict:
         with Journal(run_dir / JOURNAL_NAME) as journal:
             journal.append({"kind": NUMBER_KIND, "time": iso(SystemClock().now()), "number": number,
                             "register_url": register.name})
-        from verirun.session import close_run
+        from verirun.conduct import close_run
 
         record = close_run(run_dir, known=known)
     store_record(register, record, run_dir.name)
@@ -140,7 +140,7 @@ def sync(register, runs_dir: Path, *, busy: list | None = None) -> list[tuple[Pa
 def _send(register, folder: Path) -> tuple[Path, str | None, str | None]:
     """Send one run waiting in its outbox (the caller holds the folder's lock)."""
     from verirun.certificate.render import certificate_number
-    from verirun.integrity import verified_record
+    from verirun.record.verify import verified_record
     from verirun.register.rebuild import index_folder
 
     try:
@@ -158,7 +158,7 @@ def withheld(folder: Path) -> str | None:
     folder = Path(folder)
     if not (folder / OUTBOX_NAME).exists():
         return None
-    from verirun.record import load_record
+    from verirun.record.journal import load_record
 
     try:
         record = load_record(folder)

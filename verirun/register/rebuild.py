@@ -13,7 +13,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from verirun.errors import ProcedureError, RecordError
-from verirun.record import JOURNAL_NAME, RECORD_NAME, load_record, read_journal, verify_chain
+from verirun.record.journal import JOURNAL_NAME, RECORD_NAME, load_record, read_journal, verify_chain
 
 
 #: Records stored per transaction by a rebuild: one commit (and its fsync) per record would
@@ -32,7 +32,7 @@ class _Plans:
         from verirun.bench.config import load_bench_text
         from verirun.procedure.load import load_procedure_text
         from verirun.procedure.plan import plan
-        from verirun.runrecord import Known
+        from verirun.record.build import Known
 
         try:
             key = (start["procedure"]["sha256"], start["bench"]["sha256"])
@@ -51,8 +51,8 @@ class _Plans:
 def verified_records(folder: Path, plans: _Plans | None = None, *, current: bool = True) -> tuple[list[dict], list[str]]:
     """The records of ``folder`` that verify against its journal (earlier revisions first), and
     a line for every problem found."""
-    from verirun.integrity import comparable
-    from verirun.runrecord import build_record
+    from verirun.record.verify import comparable
+    from verirun.record.build import build_record
 
     plans = plans or _Plans()
     journal = folder / JOURNAL_NAME

@@ -87,7 +87,7 @@ def run_row(record: dict, folder: str) -> dict:
     from verirun.certificate.render import certificate_number
 
     from verirun.metrology.summary import summarise
-    from verirun.runrecord import record_judged
+    from verirun.record.build import record_judged
 
     run = record["run"]
     # The counts of the one summary function, worked out again from the rows (a record of an
@@ -141,7 +141,7 @@ def store_record(register: Register, record: dict, folder: str, *, by: str = "ve
 def store_records(register: Register, closed: list[tuple[dict, str]], *, by: str = "verirun") -> int:
     """Store several closed records (each with its run folder's name) in one transaction; return
     how many were not there before."""
-    from verirun.record import dumps
+    from verirun.record.journal import dumps
 
     # Statements made once and given their values as parameters, so each is compiled once.
     add_run = (_insert(register, runs).on_conflict_do_nothing(index_elements=["uid", "documents"])

@@ -1,7 +1,7 @@
 """Every kind of document a run's journal holds, as one strict model each.
 
 A journal is a sequence of small documents, one per line, each chained to the line before it
-(see :mod:`verirun.record`). This module is the one place that says what each document holds
+(see :mod:`verirun.record.journal`). This module is the one place that says what each document holds
 and what every field means; :data:`Document` is the union of them all, told apart by ``kind``.
 
 ========== ==================================================================================
@@ -402,7 +402,7 @@ def journal_schema() -> dict:
     return _ADAPTER.json_schema()
 
 
-if __name__ == "__main__":  # python -m verirun.documents > verirun/schema/journal.schema.json
+if __name__ == "__main__":  # python -m verirun.record.documents > verirun/schema/journal.schema.json
     import sys
 
     sys.stdout.write(json.dumps(journal_schema(), indent=1, sort_keys=True, ensure_ascii=False) + "\n")

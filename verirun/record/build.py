@@ -18,7 +18,7 @@ from verirun.metrology.summary import Judged, Summary, summarise
 from verirun.procedure.load import Procedure, load_procedure_text
 from verirun.procedure.plan import TestPoint, plan
 from verirun.functions import words_for
-from verirun.record import RECORD_FORMAT, dumps, json_number, line_hash, verify_chain
+from verirun.record.journal import RECORD_FORMAT, dumps, json_number, line_hash, verify_chain
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -5,7 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from verirun.errors import RecordError
-from verirun.record import JOURNAL_NAME, RECORD_NAME, load_record, read_journal
+from verirun.record.journal import JOURNAL_NAME, RECORD_NAME, load_record, read_journal
 
 
 def summary(folder: Path) -> dict | None:

@@ -28,9 +28,9 @@ from verirun.errors import ProcedureError, RecordError, VerirunError
 from verirun.interrupts import deferred_signals
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.locks import RUN_LOCK_NAME, calibrator_lock, run_lock
-from verirun.record import JOURNAL_NAME, RECORD_NAME, Journal, load_record, read_journal, write_record
+from verirun.record.journal import JOURNAL_NAME, RECORD_NAME, Journal, load_record, read_journal, write_record
 from verirun.register.closing import after_close
-from verirun.runrecord import Known, build_record
+from verirun.record.build import Known, build_record
 
 
 @dataclass
@@ -353,7 +353,7 @@ def resume(*, run_dir: Path, procedure_path: Path | None, bench_path: Path | Non
 
 def _resume_locked(*, run_dir, procedure_path, bench_path, readings, console, reports_dir, serial, clock,
                    calibrator, environment) -> Finished:
-    from verirun.integrity import reach_problems
+    from verirun.record.verify import reach_problems
 
     journal_path = run_dir / JOURNAL_NAME
     read = read_journal(journal_path)
@@ -523,7 +523,7 @@ def as_found_of(run: Path, *, serial: str, procedure: Procedure, adjustment: str
         If the earlier run does not verify, is not complete, or is of another item or procedure.
     """
     from verirun.certificate.render import certificate_number
-    from verirun.integrity import verified_record
+    from verirun.record.verify import verified_record
 
     record = verified_record(run)
     if record["run"]["status"] != "complete":

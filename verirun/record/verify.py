@@ -14,8 +14,8 @@ import re
 from pathlib import Path
 
 from verirun.errors import RecordError
-from verirun.record import JOURNAL_NAME, RECORD_FORMAT, RECORD_NAME, dumps, line_hash, load_record, read_journal, verify_chain
-from verirun.runrecord import build_record
+from verirun.record.journal import JOURNAL_NAME, RECORD_FORMAT, RECORD_NAME, dumps, line_hash, load_record, read_journal, verify_chain
+from verirun.record.build import build_record
 
 #: The figures of a row that verirun works out from the procedure and the reading (limits, U,
 #: error, TUR, the texts as printed). A record of an earlier format holds them as the version
@@ -126,7 +126,7 @@ def certificates_of(documents: list[dict], reports: Path, also=()) -> list[Path]
 def problems(path: str | Path, reports: str | Path | None = None) -> list[str]:
     """Every integrity problem of the stored run at ``path`` (empty when it verifies); with
     ``reports``, its certificates there are checked against its journal as well."""
-    from verirun.session import never_started, never_started_text
+    from verirun.conduct import never_started, never_started_text
 
     try:
         folder = run_folder(path)

@@ -16,14 +16,14 @@ from verirun import storage
 from verirun.bench.config import load_bench_text
 from verirun.clock import SystemClock, iso
 from verirun.errors import RecordError, UnitError
-from verirun.integrity import run_folder, verified_record
+from verirun.record.verify import run_folder, verified_record
 from verirun.procedure.load import load_procedure_text
 from verirun.procedure.plan import TestPoint, plan
 from verirun.locks import run_lock
 from verirun.readings import parse_entry
-from verirun.session import close_run, latest_time
+from verirun.conduct import close_run, latest_time
 from verirun.units import parse_value
-from verirun.record import JOURNAL_NAME, RECORD_NAME, Journal, read_journal
+from verirun.record.journal import JOURNAL_NAME, RECORD_NAME, Journal, read_journal
 
 
 def find_point(points: list[TestPoint], which: str) -> TestPoint:

@@ -1,11 +1,10 @@
 """The journal of a run and the run record it closes into.
 
-The journal is append-only JSON Lines: one document per line (``start``, ``observation``,
-``skip``, ``note``, ``stop``), each line flushed and fsynced before the run goes on, each carrying
-its sequence number and the SHA-256 of the line before it so that an edit, a gap or a reordering
-shows. The run record is the closed journal made whole: the start document's context, every
-point's stimulus, reading, window and verdict (worked out again from the procedure text the
-journal embeds, by the same pure functions the run used), and the end of the run.
+The journal is append-only JSON Lines: one document per line, of the kinds
+:mod:`verirun.record.documents` defines (and validates each against as it is read back), each line
+written whole and fsynced before the run goes on, each carrying its sequence number and the
+SHA-256 of the line before it so that an edit, a gap or a reordering shows. The run record
+(built by :mod:`verirun.record.build`) is written and read here too.
 """
 
 from __future__ import annotations
@@ -20,7 +19,7 @@ from pathlib import Path
 from typing import Any, Iterable
 
 from verirun import storage
-from verirun.documents import document_problem, parse_json
+from verirun.record.documents import document_problem, parse_json
 from verirun.errors import RecordError
 from verirun.interrupts import deferred_signals
 
@@ -188,7 +187,7 @@ def read_journal(path: str | Path) -> JournalRead:
 def verify_chain(documents: Iterable[dict], source: str = "journal") -> list[str]:
     """Every break of the sequence or hash chain, one line each (empty when the chain is whole)."""
     problems = []
-    prev = GENESIS
+    prev, previous_kind = GENESIS, None
     for expected_seq, doc in enumerate(documents):
         if doc.get("seq") != expected_seq:
             problems.append(f"{source}: document {expected_seq + 1} has sequence number"
