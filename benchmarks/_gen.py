@@ -33,14 +33,38 @@ LAB_YAML = DEMO / "lab.yaml"
 #: arc. DC voltages stay below the 60 V hazardous-live threshold so that no point needs a
 #: confirmation.
 RANGES = (
-    {"id": "dcv-6", "function": "dc-voltage", "unit": "V", "full_scale": 6.0, "percent": 2.5,
-     "resolution": "0.05 V"},
-    {"id": "dcv-30", "function": "dc-voltage", "unit": "V", "full_scale": 30.0, "percent": 2.5,
-     "resolution": "0.25 V"},
-    {"id": "dca-30m", "function": "dc-current", "unit": "A", "full_scale": 0.03, "percent": 3.0,
-     "resolution": "0.00025 A"},
-    {"id": "dca-300m", "function": "dc-current", "unit": "A", "full_scale": 0.3, "percent": 3.0,
-     "resolution": "0.0025 A"},
+    {
+        "id": "dcv-6",
+        "function": "dc-voltage",
+        "unit": "V",
+        "full_scale": 6.0,
+        "percent": 2.5,
+        "resolution": "0.05 V",
+    },
+    {
+        "id": "dcv-30",
+        "function": "dc-voltage",
+        "unit": "V",
+        "full_scale": 30.0,
+        "percent": 2.5,
+        "resolution": "0.25 V",
+    },
+    {
+        "id": "dca-30m",
+        "function": "dc-current",
+        "unit": "A",
+        "full_scale": 0.03,
+        "percent": 3.0,
+        "resolution": "0.00025 A",
+    },
+    {
+        "id": "dca-300m",
+        "function": "dc-current",
+        "unit": "A",
+        "full_scale": 0.3,
+        "percent": 3.0,
+        "resolution": "0.0025 A",
+    },
     {"id": "ohm-x1", "function": "resistance", "unit": "ohm", "centre": 16.0, "degrees": 3.0},
     {"id": "ohm-x1k", "function": "resistance", "unit": "ohm", "centre": 16000.0, "degrees": 3.0},
 )
@@ -54,14 +78,14 @@ class GenPoint:
     range_id: str
     function: str
     nominal: float
-    nominal_text: str      # bare number in SI base units, as written in both files
-    reading_text: str      # bare number in SI base units (the CSV adds the unit)
+    nominal_text: str  # bare number in SI base units, as written in both files
+    reading_text: str  # bare number in SI base units (the CSV adds the unit)
     first_of_range: bool
     full_scale: float | None
     percent: float | None
     centre: float | None
     degrees: float | None
-    expected: str          # "pass" or "fail", by construction
+    expected: str  # "pass" or "fail", by construction
 
 
 @dataclass(frozen=True)
@@ -111,9 +135,21 @@ def make_points(n: int) -> list[GenPoint]:
                 nominal = float(nominal_text)
                 half = spec["percent"] / 100.0 * fs
                 reading = nominal + frac * half
-                points.append(GenPoint(spec["id"], spec["function"], nominal, nominal_text,
-                                       _text(reading), j == 0, fs, spec["percent"], None, None,
-                                       "fail" if abs(frac) > 1 else "pass"))
+                points.append(
+                    GenPoint(
+                        spec["id"],
+                        spec["function"],
+                        nominal,
+                        nominal_text,
+                        _text(reading),
+                        j == 0,
+                        fs,
+                        spec["percent"],
+                        None,
+                        None,
+                        "fail" if abs(frac) > 1 else "pass",
+                    )
+                )
             else:
                 rc = spec["centre"]
                 # Geometric spread from centre/8 to centre*8: deflections 0.11 to 0.89.
@@ -122,9 +158,21 @@ def make_points(n: int) -> list[GenPoint]:
                 half = spec["degrees"] / ARC
                 f = rc / (rc + nominal) + frac * half
                 reading = rc * (1.0 - f) / f
-                points.append(GenPoint(spec["id"], spec["function"], nominal, nominal_text,
-                                       _text(reading), j == 0, None, None, rc, spec["degrees"],
-                                       "fail" if abs(frac) > 1 else "pass"))
+                points.append(
+                    GenPoint(
+                        spec["id"],
+                        spec["function"],
+                        nominal,
+                        nominal_text,
+                        _text(reading),
+                        j == 0,
+                        None,
+                        None,
+                        rc,
+                        spec["degrees"],
+                        "fail" if abs(frac) > 1 else "pass",
+                    )
+                )
             index += 1
     keys = {(p.range_id, p.nominal) for p in points}
     if len(keys) != len(points):
@@ -155,18 +203,27 @@ def procedure_text(n: int, points: list[GenPoint]) -> str:
         unit = spec["unit"]
         lines += [f"  - id: {spec['id']}", f"    function: {spec['function']}"]
         if "full_scale" in spec:
-            lines += ["    scale: linear", f"    full-scale: {_text(spec['full_scale'])} {unit}",
-                      f"    arc: {_text(ARC)} deg",
-                      f"    accuracy: {{percent-of-full-scale: {_text(spec['percent'])}}}",
-                      f"    resolution: {spec['resolution']}"]
+            lines += [
+                "    scale: linear",
+                f"    full-scale: {_text(spec['full_scale'])} {unit}",
+                f"    arc: {_text(ARC)} deg",
+                f"    accuracy: {{percent-of-full-scale: {_text(spec['percent'])}}}",
+                f"    resolution: {spec['resolution']}",
+            ]
         else:
-            lines += ["    scale: series-ohms", f"    centre: {_text(spec['centre'])} ohm",
-                      "    battery: 3 V", f"    arc: {_text(ARC)} deg",
-                      f"    accuracy: {{degrees: {_text(spec['degrees'])}}}",
-                      "    resolution: 0.5 deg"]
-        lines += [f"    read-on: scale of range {spec['id']}",
-                  f"    connect: Selector to {spec['id']}.",
-                  "    points:"]
+            lines += [
+                "    scale: series-ohms",
+                f"    centre: {_text(spec['centre'])} ohm",
+                "    battery: 3 V",
+                f"    arc: {_text(ARC)} deg",
+                f"    accuracy: {{degrees: {_text(spec['degrees'])}}}",
+                "    resolution: 0.5 deg",
+            ]
+        lines += [
+            f"    read-on: scale of range {spec['id']}",
+            f"    connect: Selector to {spec['id']}.",
+            "    points:",
+        ]
         lines += [f"      - {p.nominal_text} {unit}" for p in mine]
     return "\n".join(lines) + "\n"
 
@@ -183,7 +240,9 @@ def bench_text() -> str:
 def generate(n: int, folder: str | Path | None = None) -> Generated:
     """Write the procedure, readings and bench of ``n`` points into ``folder`` (a new temp folder
     when not given)."""
-    folder = Path(folder) if folder is not None else Path(tempfile.mkdtemp(prefix=f"verirun-gen{n}-"))
+    folder = (
+        Path(folder) if folder is not None else Path(tempfile.mkdtemp(prefix=f"verirun-gen{n}-"))
+    )
     folder.mkdir(parents=True, exist_ok=True)
     points = make_points(n)
     procedure = folder / f"procedure-{n}.yaml"
@@ -201,8 +260,14 @@ def generate(n: int, folder: str | Path | None = None) -> Generated:
     bench.write_text(bench_text(), encoding="utf-8")
     lab = folder / "lab.yaml"
     shutil.copyfile(LAB_YAML, lab)
-    return Generated(folder=folder, procedure=procedure, readings=readings, bench=bench, lab=lab,
-                     points=tuple(points))
+    return Generated(
+        folder=folder,
+        procedure=procedure,
+        readings=readings,
+        bench=bench,
+        lab=lab,
+        points=tuple(points),
+    )
 
 
 def fresh_sim_yaml(folder: str | Path) -> str:
@@ -225,10 +290,16 @@ def table(headers: list[str], rows: list[list[str]]) -> str:
     """A plain text table, columns padded to their widest cell."""
     cells = [headers] + rows
     widths = [max(len(str(row[i])) for row in cells) for i in range(len(headers))]
-    out = ["  ".join(str(c).ljust(w) for c, w in zip(headers, widths)),
-           "  ".join("-" * w for w in widths)]
-    out += ["  ".join(str(c).rjust(w) if i else str(c).ljust(w) for i, (c, w) in enumerate(zip(row, widths)))
-            for row in rows]
+    out = [
+        "  ".join(str(c).ljust(w) for c, w in zip(headers, widths)),
+        "  ".join("-" * w for w in widths),
+    ]
+    out += [
+        "  ".join(
+            str(c).rjust(w) if i else str(c).ljust(w) for i, (c, w) in enumerate(zip(row, widths))
+        )
+        for row in rows
+    ]
     return "\n".join(out)
 
 
@@ -240,7 +311,9 @@ if __name__ == "__main__":
     size = int(sys.argv[1]) if len(sys.argv) > 1 else 100
     gen = generate(size)
     print(f"wrote {gen.procedure}, {gen.readings}, {gen.bench}")
-    print(f"{sum(p.expected == 'fail' for p in gen.points)} of {size} readings are out of tolerance")
+    print(
+        f"{sum(p.expected == 'fail' for p in gen.points)} of {size} readings are out of tolerance"
+    )
     verirun = Path(sys.executable).with_name("verirun")
     command = [str(verirun)] if verirun.exists() else [sys.executable, "-m", "verirun"]
     sys.exit(subprocess.call(command + ["check", str(gen.procedure)]))

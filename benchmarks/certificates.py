@@ -34,11 +34,11 @@ RENDER_SIZES = (10, 100, 1000)
 QUICK_RENDER_SIZES = (10, 100)
 FOLDER_SIZES = (100, 300, 1000)
 QUICK_FOLDER_SIZES = (10, 100)
-SINGLE_SIZES = (100, 300)          # one-process runs (slow: the largest is left out)
+SINGLE_SIZES = (100, 300)  # one-process runs (slow: the largest is left out)
 QUICK_SINGLE_SIZES = (10, 100)
-RENDER_TARGET = 1.0                # s, a 1,000-point certificate
-FOLDER_TARGET = 30.0               # s, 1,000 runs on 2 cores
-FLAT_TARGET = 1.25                 # per-certificate time, largest folder over smallest
+RENDER_TARGET = 1.0  # s, a 1,000-point certificate
+FOLDER_TARGET = 30.0  # s, 1,000 runs on 2 cores
+FLAT_TARGET = 1.25  # per-certificate time, largest folder over smallest
 
 
 def verirun_command() -> list[str]:
@@ -58,6 +58,7 @@ def timed(call, repeats: int) -> float:
 
 # --- 1. render time by size ---------------------------------------------------------------------
 
+
 def render_sizes(sizes, root: Path) -> list[list[str]]:
     from verirun.certificate.render import render_html
 
@@ -71,17 +72,34 @@ def render_sizes(sizes, root: Path) -> list[list[str]]:
         size = len(render_html(record).encode("utf-8"))
         target = f"<= {RENDER_TARGET} s" if n == 1000 else ""
         result = _gen.verdict(seconds <= RENDER_TARGET) if n == 1000 else ""
-        rows.append([str(n), f"{seconds * 1e3:.1f}", f"{seconds / n * 1e6:.0f}", f"{size / 1024:.0f}",
-                     target, f"{seconds / RENDER_TARGET:.2f}" if n == 1000 else "", result])
+        rows.append(
+            [
+                str(n),
+                f"{seconds * 1e3:.1f}",
+                f"{seconds / n * 1e6:.0f}",
+                f"{size / 1024:.0f}",
+                target,
+                f"{seconds / RENDER_TARGET:.2f}" if n == 1000 else "",
+                result,
+            ]
+        )
     return rows
 
 
 # --- 2. a folder of stored runs -----------------------------------------------------------------
 
+
 def make_folder(count: int, root: Path) -> list[Path]:
     """``count`` copies of one 30-point run, each with its own uid and serial; returns the folders."""
-    from verirun.record.journal import JOURNAL_NAME, RECORD_NAME, dumps, line_hash, load_record, read_journal
     from verirun.record.build import build_record
+    from verirun.record.journal import (
+        JOURNAL_NAME,
+        RECORD_NAME,
+        dumps,
+        line_hash,
+        load_record,
+        read_journal,
+    )
 
     dry = DryRun(_gen.generate(30, root / "source"))
     _, finished, _ = dry.run(root / "source" / "run")
@@ -91,7 +109,7 @@ def make_folder(count: int, root: Path) -> list[Path]:
     folder = root / "stored"
     runs = []
     for i in range(count):
-        uid = f"{i:08x}{base_uid[8:]}"   # the certificate number holds the first 8 characters
+        uid = f"{i:08x}{base_uid[8:]}"  # the certificate number holds the first 8 characters
         serial = f"BENCH-{i:05d}"
         lines, prev = [], "0" * 64
         for seq, doc in enumerate(docs):
@@ -108,8 +126,9 @@ def make_folder(count: int, root: Path) -> list[Path]:
         run = folder / f"run-{i:05d}"
         run.mkdir(parents=True)
         (run / JOURNAL_NAME).write_text("\n".join(lines) + "\n", encoding="utf-8")
-        (run / RECORD_NAME).write_text(json.dumps(copy, sort_keys=True, ensure_ascii=False, indent=1) + "\n",
-                                       encoding="utf-8")
+        (run / RECORD_NAME).write_text(
+            json.dumps(copy, sort_keys=True, ensure_ascii=False, indent=1) + "\n", encoding="utf-8"
+        )
         runs.append(run)
     for run in (runs[0], runs[len(runs) // 2], runs[-1]):  # the copies must verify
         rebuilt = build_record(read_journal(run / JOURNAL_NAME).documents, str(run / JOURNAL_NAME))
@@ -127,8 +146,10 @@ def certify_command(runs: list[Path], reports: Path, workers: int | None) -> flo
     seconds = time.perf_counter() - t
     made = len(list(reports.glob("*.html")))
     if done.returncode != 0 or made != len(runs):
-        raise SystemExit(f"verirun certify failed ({done.returncode}, {made} of {len(runs)} certificates):"
-                         f" {done.stderr[-800:]}")
+        raise SystemExit(
+            f"verirun certify failed ({done.returncode}, {made} of {len(runs)} certificates):"
+            f" {done.stderr[-800:]}"
+        )
     return seconds
 
 
@@ -146,8 +167,13 @@ def prototype_pool(runs: list[Path], reports: Path, workers: int = 2) -> float:
 
     t = time.perf_counter()
     with ProcessPoolExecutor(max_workers=workers) as pool:
-        list(pool.map(_prototype_one, [(run, reports) for run in runs],
-                      chunksize=max(1, len(runs) // (workers * 8))))
+        list(
+            pool.map(
+                _prototype_one,
+                [(run, reports) for run in runs],
+                chunksize=max(1, len(runs) // (workers * 8)),
+            )
+        )
     return time.perf_counter() - t
 
 
@@ -173,8 +199,11 @@ def folder_runs(runs: list[Path], sizes, single_sizes, root: Path) -> tuple[list
         default = timings[("default", n)]
         row = [str(n), f"{default:.2f}", f"{default / n * 1e3:.1f}"]
         other = timings.get(("single", n)) or timings.get(("prototype", n))
-        row += [f"{other:.2f}" if other else "-", f"{other / n * 1e3:.1f}" if other else "-",
-                f"{other / default:.2f}" if other else "-"]
+        row += [
+            f"{other:.2f}" if other else "-",
+            f"{other / n * 1e3:.1f}" if other else "-",
+            f"{other / default:.2f}" if other else "-",
+        ]
         rows.append(row)
     return rows, {"timings": timings, "workers_option": workers_option}
 
@@ -189,15 +218,23 @@ def split_one(run: Path, root: Path) -> list[list[str]]:
     try:
         from verirun.record import verify as integrity
 
-        parts.append(("verify: rebuild the record from the journal and compare",
-                      timed(lambda: integrity.problems(run), 15)))
+        parts.append(
+            (
+                "verify: rebuild the record from the journal and compare",
+                timed(lambda: integrity.problems(run), 15),
+            )
+        )
     except ImportError:
         pass
     from verirun.record.build import build_record
 
     docs = read_journal(run / JOURNAL_NAME).documents
-    parts.append(("  of which build_record (parse procedure + bench text, plan, evaluate)",
-                  timed(lambda: build_record(docs, "journal"), 15)))
+    parts.append(
+        (
+            "  of which build_record (parse procedure + bench text, plan, evaluate)",
+            timed(lambda: build_record(docs, "journal"), 15),
+        )
+    )
     parts.append(("load record.json", timed(lambda: load_record(run / RECORD_NAME), 15)))
     parts.append(("render_html", timed(lambda: render_html(record), 15)))
     out = root / "split"
@@ -205,8 +242,12 @@ def split_one(run: Path, root: Path) -> list[list[str]]:
     try:
         from verirun.certificate.batch import certify_one
 
-        parts.append(("certify_one (all of it, as each worker does)",
-                      timed(lambda: certify_one(run, out), 15)))
+        parts.append(
+            (
+                "certify_one (all of it, as each worker does)",
+                timed(lambda: certify_one(run, out), 15),
+            )
+        )
     except ImportError:
         pass
     return [[name, f"{seconds * 1e3:.1f}"] for name, seconds in parts]
@@ -216,24 +257,39 @@ def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="sizes 10 and 100 only")
     args = parser.parse_args(argv)
-    render, sizes, single = ((QUICK_RENDER_SIZES, QUICK_FOLDER_SIZES, QUICK_SINGLE_SIZES) if args.quick
-                             else (RENDER_SIZES, FOLDER_SIZES, SINGLE_SIZES))
+    render, sizes, single = (
+        (QUICK_RENDER_SIZES, QUICK_FOLDER_SIZES, QUICK_SINGLE_SIZES)
+        if args.quick
+        else (RENDER_SIZES, FOLDER_SIZES, SINGLE_SIZES)
+    )
     root = Path(tempfile.mkdtemp(prefix="verirun-bench-cert-"))
     started = time.perf_counter()
     try:
         print("render_html(record) alone, median (records made by one dry run each)")
-        print(_gen.table(["points", "ms", "us/point", "KiB", "target", "ratio", "result"],
-                         render_sizes(render, root)))
+        print(
+            _gen.table(
+                ["points", "ms", "us/point", "KiB", "target", "ratio", "result"],
+                render_sizes(render, root),
+            )
+        )
 
         t = time.perf_counter()
         runs = make_folder(max(sizes), root)
-        print(f"\nMade {len(runs)} stored 30-point runs in {time.perf_counter() - t:.1f} s"
-              f" (copies verified against their journals); {os.cpu_count()} cores")
+        print(
+            f"\nMade {len(runs)} stored 30-point runs in {time.perf_counter() - t:.1f} s"
+            f" (copies verified against their journals); {os.cpu_count()} cores"
+        )
         rows, info = folder_runs(runs, sizes, single, root)
         other = "--workers 1" if info["workers_option"] else "PROTOTYPE 2-process pool"
-        print(f"\nverirun certify <folder>/* as a command, wall time (one run each);"
-              f" default processes vs {other}")
-        print(_gen.table(["runs", "default s", "ms/cert", f"{other} s", "ms/cert", "ratio to default"], rows))
+        print(
+            f"\nverirun certify <folder>/* as a command, wall time (one run each);"
+            f" default processes vs {other}"
+        )
+        print(
+            _gen.table(
+                ["runs", "default s", "ms/cert", f"{other} s", "ms/cert", "ratio to default"], rows
+            )
+        )
 
         timings = info["timings"]
         largest, smallest = max(sizes), min(sizes)
@@ -241,17 +297,39 @@ def main(argv=None) -> int:
         per_big = total / largest
         per_small = timings[("default", smallest)] / smallest
         growth = per_big / per_small
-        summary = [[f"{largest} runs, default processes", f"{total:.1f} s", f"<= {FOLDER_TARGET:.0f} s",
-                    f"{total / FOLDER_TARGET:.2f}", _gen.verdict(total <= FOLDER_TARGET)],
-                   [f"per-certificate time, {largest} over {smallest} runs", f"{growth:.2f}",
-                    f"<= {FLAT_TARGET}", f"{growth / FLAT_TARGET:.2f}", _gen.verdict(growth <= FLAT_TARGET)]]
+        summary = [
+            [
+                f"{largest} runs, default processes",
+                f"{total:.1f} s",
+                f"<= {FOLDER_TARGET:.0f} s",
+                f"{total / FOLDER_TARGET:.2f}",
+                _gen.verdict(total <= FOLDER_TARGET),
+            ],
+            [
+                f"per-certificate time, {largest} over {smallest} runs",
+                f"{growth:.2f}",
+                f"<= {FLAT_TARGET}",
+                f"{growth / FLAT_TARGET:.2f}",
+                _gen.verdict(growth <= FLAT_TARGET),
+            ],
+        ]
         single_sizes = [n for n in sizes if ("single", n) in timings]
         if single_sizes:
             n = max(single_sizes)
             gain = timings[("single", n)] / timings[("default", n)]
-            summary.append([f"gain of the pool over one process at {n} runs", f"{gain:.2f}x", "(info)", "", ""])
+            summary.append(
+                [f"gain of the pool over one process at {n} runs", f"{gain:.2f}x", "(info)", "", ""]
+            )
             estimate = timings[("single", n)] / n * largest
-            summary.append([f"{largest} runs in one process (from {n})", f"~{estimate:.0f} s", "(info)", "", ""])
+            summary.append(
+                [
+                    f"{largest} runs in one process (from {n})",
+                    f"~{estimate:.0f} s",
+                    "(info)",
+                    "",
+                    "",
+                ]
+            )
         print()
         print(_gen.table(["figure", "measured", "target", "ratio", "result"], summary))
 

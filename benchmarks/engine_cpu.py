@@ -56,6 +56,7 @@ class CpuMeter:
             finally:
                 self.seconds += time.process_time() - start
                 self._depth -= 1
+
         return timed
 
 
@@ -88,9 +89,14 @@ def one_run(run: DryRun, workdir: Path) -> dict:
         _, finished, _ = run.run(workdir)
         total = time.process_time() - start
     points = finished.record["summary"]["points"]
-    return {"points": points, "total": total, "instrument": instrument.seconds, "disk": disk.seconds,
-            "closing": closing.seconds,
-            "own": total - instrument.seconds - disk.seconds - closing.seconds}
+    return {
+        "points": points,
+        "total": total,
+        "instrument": instrument.seconds,
+        "disk": disk.seconds,
+        "closing": closing.seconds,
+        "own": total - instrument.seconds - disk.seconds - closing.seconds,
+    }
 
 
 def measure(sizes, repeats: int, root: Path) -> list[dict]:
@@ -105,8 +111,15 @@ def measure(sizes, repeats: int, root: Path) -> list[dict]:
             samples.append(one_run(run, workdir))
             shutil.rmtree(workdir, ignore_errors=True)
         assert all(s["points"] == n for s in samples), "a run did not measure every point"
-        results.append({"n": n, **{key: _gen.median([s[key] for s in samples]) for key in
-                                   ("total", "instrument", "disk", "closing", "own")}})
+        results.append(
+            {
+                "n": n,
+                **{
+                    key: _gen.median([s[key] for s in samples])
+                    for key in ("total", "instrument", "disk", "closing", "own")
+                },
+            }
+        )
     return results
 
 
@@ -114,24 +127,41 @@ def report(results: list[dict]) -> bool:
     def ms(seconds, n):
         return f"{seconds / n * 1e3:.3f}"
 
-    rows = [[f"{r['n']:,}", ms(r["own"], r["n"]), ms(r["instrument"], r["n"]), ms(r["disk"], r["n"]),
-             ms(r["closing"], r["n"]), ms(r["total"], r["n"])] for r in results]
-    print("CPU ms per point (medians): verirun's own | instrument (VISA + simulator) | fsync |"
-          " record and certificate | whole call")
+    rows = [
+        [
+            f"{r['n']:,}",
+            ms(r["own"], r["n"]),
+            ms(r["instrument"], r["n"]),
+            ms(r["disk"], r["n"]),
+            ms(r["closing"], r["n"]),
+            ms(r["total"], r["n"]),
+        ]
+        for r in results
+    ]
+    print(
+        "CPU ms per point (medians): verirun's own | instrument (VISA + simulator) | fsync |"
+        " record and certificate | whole call"
+    )
     print(_gen.table(["N", "own", "instrument", "fsync", "closing", "whole"], rows))
     worst = max(r["own"] / r["n"] for r in results) * 1e3
     flat = (results[-1]["own"] / results[-1]["n"]) / (results[0]["own"] / results[0]["n"])
     ok_target, ok_flat = worst <= TARGET_MS, flat <= FLAT
-    print(f"\nverirun's own CPU per point, worst size: {worst:.3f} ms (target <= {TARGET_MS} ms)"
-          f" {_gen.verdict(ok_target)}")
-    print(f"per point, {results[-1]['n']:,} / {results[0]['n']:,} points: {flat:.2f} (target <= {FLAT},"
-          f" flat) {_gen.verdict(ok_flat)}")
+    print(
+        f"\nverirun's own CPU per point, worst size: {worst:.3f} ms (target <= {TARGET_MS} ms)"
+        f" {_gen.verdict(ok_target)}"
+    )
+    print(
+        f"per point, {results[-1]['n']:,} / {results[0]['n']:,} points: {flat:.2f} (target <= {FLAT},"
+        f" flat) {_gen.verdict(ok_flat)}"
+    )
     return ok_target and ok_flat
 
 
 def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--quick", action="store_true", help="sizes 10 and 100 only, fewer repetitions")
+    parser.add_argument(
+        "--quick", action="store_true", help="sizes 10 and 100 only, fewer repetitions"
+    )
     args = parser.parse_args(argv)
     sizes, repeats = (SIZES[:2], 3) if args.quick else (SIZES, 5)
     root = Path(tempfile.mkdtemp(prefix="verirun-bench-cpu-"))

@@ -42,12 +42,13 @@ QUICK_SIZES = (10, 100)
 REPEATS = {10: 21, 100: 11, 1000: 5, 10000: 3}
 QUICK_REPEATS = {10: 5, 100: 3}
 RATIO_TARGET = 1.3
-FLAT_TARGET = 1.25   # per-point cost at the largest size over that at the next size down
+FLAT_TARGET = 1.25  # per-point cost at the largest size over that at the next size down
 SIM_RESOURCE = "GPIB0::4::INSTR"
 START = dt.datetime(2026, 12, 1, 9, 0, tzinfo=dt.timezone.utc)
 
 
 # --- verirun side -------------------------------------------------------------------------------
+
 
 class ProgressConsole:
     """A QuietConsole that also prints a progress line every ``every`` steps (to stderr)."""
@@ -59,8 +60,11 @@ class ProgressConsole:
             def step(self, point):
                 super().step(point)
                 if (point.index + 1) % every == 0:
-                    print(f"    verirun: step {point.index + 1} of {point.total}", file=sys.stderr,
-                          flush=True)
+                    print(
+                        f"    verirun: step {point.index + 1} of {point.total}",
+                        file=sys.stderr,
+                        flush=True,
+                    )
 
         return _Progress()
 
@@ -115,19 +119,22 @@ class DryRun:
         self.bench = load_bench(gen.bench)
         lab = load_lab(gen.lab)
         self.load_s = time.perf_counter() - t
-        self.context = RunContext(lab=lab.lab.model_dump(mode="json"),
-                                  customer={"name": "Benchmark customer", "address": ["1 Test Street"]},
-                                  item={"serial": "BENCH-1", "asset": "A-1", "condition": "as new"},
-                                  operator="benchmark", simulated=True)
+        self.context = RunContext(
+            lab=lab.lab.model_dump(mode="json"),
+            customer={"name": "Benchmark customer", "address": ["1 Test Street"]},
+            item={"serial": "BENCH-1", "asset": "A-1", "condition": "as new"},
+            operator="benchmark",
+            simulated=True,
+        )
 
     def run(self, workdir: Path, *, calibrator=None, console=None, serial: str | None = None):
         """One dry run; returns (seconds, Finished, Phases)."""
         import dataclasses
 
         from verirun.clock import VirtualClock
+        from verirun.conduct import execute
         from verirun.console import QuietConsole
         from verirun.readings import ScriptedReadings
-        from verirun.conduct import execute
 
         context = self.context
         if serial is not None:
@@ -136,16 +143,25 @@ class DryRun:
         with phases.installed():
             t = time.perf_counter()
             readings = ScriptedReadings(self.gen.readings)
-            finished = execute(procedure=self.procedure, bench=self.bench, context=context,
-                               readings=readings, console=console or QuietConsole(),
-                               runs_dir=workdir / "runs", reports_dir=workdir / "reports",
-                               simulate=True, clock=VirtualClock(START), uid=uuid.uuid4().hex,
-                               calibrator=calibrator)
+            finished = execute(
+                procedure=self.procedure,
+                bench=self.bench,
+                context=context,
+                readings=readings,
+                console=console or QuietConsole(),
+                runs_dir=workdir / "runs",
+                reports_dir=workdir / "reports",
+                simulate=True,
+                clock=VirtualClock(START),
+                uid=uuid.uuid4().hex,
+                calibrator=calibrator,
+            )
             seconds = time.perf_counter() - t
         return seconds, finished, phases
 
 
 # --- the hand-written baseline --------------------------------------------------------------------
+
 
 def baseline_run(gen: _gen.Generated, workdir: Path, *, wrap=None) -> tuple[float, list[str]]:
     """The technician's script: returns (seconds, verdicts in run order)."""
@@ -153,7 +169,9 @@ def baseline_run(gen: _gen.Generated, workdir: Path, *, wrap=None) -> tuple[floa
 
     t = time.perf_counter()
     rm = pyvisa.ResourceManager(_gen.fresh_sim_yaml(workdir / "sim"))
-    cal = rm.open_resource(SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=2000)
+    cal = rm.open_resource(
+        SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=2000
+    )
     if wrap is not None:
         cal = wrap(cal)
 
@@ -203,12 +221,22 @@ def baseline_run(gen: _gen.Generated, workdir: Path, *, wrap=None) -> tuple[floa
 
                 a, b = ohms(f0 - df), ohms(f0 + df)
                 low, high = min(a, b, p.nominal), max(a, b, p.nominal)
-            log.write(json.dumps({"kind": "observation",
-                                  "time": dt.datetime.now(dt.timezone.utc).isoformat(timespec="seconds"),
-                                  "point": f"{p.range_id}@{p.nominal!r}", "index": index,
-                                  "range": p.range_id, "function": p.function,
-                                  "applied": {"value": p.nominal, "frequency": None},
-                                  "typed": typed, "reading": reading}) + "\n")
+            log.write(
+                json.dumps(
+                    {
+                        "kind": "observation",
+                        "time": dt.datetime.now(dt.timezone.utc).isoformat(timespec="seconds"),
+                        "point": f"{p.range_id}@{p.nominal!r}",
+                        "index": index,
+                        "range": p.range_id,
+                        "function": p.function,
+                        "applied": {"value": p.nominal, "frequency": None},
+                        "typed": typed,
+                        "reading": reading,
+                    }
+                )
+                + "\n"
+            )
             log.flush()
             os.fsync(log.fileno())
             standby()
@@ -219,6 +247,7 @@ def baseline_run(gen: _gen.Generated, workdir: Path, *, wrap=None) -> tuple[floa
 
 
 # --- checks that the two do the same work ---------------------------------------------------------
+
 
 class Recorder:
     """Wraps a VISA resource and records every exchange as ("w" | "q", command)."""
@@ -252,9 +281,13 @@ def check_equivalence(n: int, root: Path) -> str:
     gen = _gen.generate(n, root / f"check-{n}")
     dry = DryRun(gen)
     rm = pyvisa.ResourceManager(_gen.fresh_sim_yaml(root / f"check-{n}" / "sim-verirun"))
-    raw = rm.open_resource(SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=2000)
+    raw = rm.open_resource(
+        SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=2000
+    )
     ours = Recorder(raw)
-    _, finished, _ = dry.run(root / f"check-{n}" / "verirun", calibrator=Calibrator(ours, "scpi-generic"))
+    _, finished, _ = dry.run(
+        root / f"check-{n}" / "verirun", calibrator=Calibrator(ours, "scpi-generic")
+    )
     raw.close()
     theirs: list[Recorder] = []
 
@@ -268,17 +301,22 @@ def check_equivalence(n: int, root: Path) -> str:
             if a != b:
                 raise AssertionError(f"command {i} differs: verirun {a}, baseline {b}")
         raise AssertionError(f"command counts differ: {len(ours.sent)} vs {len(theirs[0].sent)}")
-    theirs_verdicts = [row["verdict"] for row in sorted(finished.record["points"], key=lambda r: r["index"])]
+    theirs_verdicts = [
+        row["verdict"] for row in sorted(finished.record["points"], key=lambda r: r["index"])
+    ]
     expected = [p.expected for p in gen.points]
     if not (theirs_verdicts == verdicts == expected):
         raise AssertionError("verdicts differ between verirun, the baseline and the generator")
     writes = sum(kind == "w" for kind, _ in ours.sent)
-    return (f"N={n}: identical command sequences ({len(ours.sent)} exchanges: {writes} writes,"
-            f" {len(ours.sent) - writes} queries; {len(ours.sent) / n:.1f} per point),"
-            f" identical verdicts ({verdicts.count('fail')} fail)")
+    return (
+        f"N={n}: identical command sequences ({len(ours.sent)} exchanges: {writes} writes,"
+        f" {len(ours.sent) - writes} queries; {len(ours.sent) / n:.1f} per point),"
+        f" identical verdicts ({verdicts.count('fail')} fail)"
+    )
 
 
 # --- measurement ----------------------------------------------------------------------------------
+
 
 class FsyncMeter:
     """Adds up the time spent waiting in ``os.fsync`` (the shared disk's latency varies a lot
@@ -325,15 +363,28 @@ def measure(sizes, repeats, root: Path) -> list[dict]:
     for n in sizes:
         gen = _gen.generate(n, root / f"n{n}")
         dry = DryRun(gen)
-        samples = {key: [] for key in ("v_wall", "v_cpu", "v_fsync", "v_record", "v_cert",
-                                       "b_wall", "b_cpu", "b_fsync")}
+        samples = {
+            key: []
+            for key in (
+                "v_wall",
+                "v_cpu",
+                "v_fsync",
+                "v_record",
+                "v_cert",
+                "b_wall",
+                "b_cpu",
+                "b_fsync",
+            )
+        }
         reps = repeats[n]
         for rep in range(reps):
             if n >= 1000:
                 print(f"  N={n}: repetition {rep + 1} of {reps}", file=sys.stderr, flush=True)
             work = root / f"n{n}" / f"rep{rep}"
             console = ProgressConsole(1000) if n >= 10000 else None
-            (seconds, _, phases), cpu, fsync = _timed(lambda: dry.run(work / "verirun", console=console))
+            (seconds, _, phases), cpu, fsync = _timed(
+                lambda: dry.run(work / "verirun", console=console)
+            )
             samples["v_wall"].append(seconds)
             samples["v_cpu"].append(cpu)
             samples["v_fsync"].append(fsync)
@@ -347,14 +398,32 @@ def measure(sizes, repeats, root: Path) -> list[dict]:
         m = {key: _gen.median(values) for key, values in samples.items()}
         # Ratios per repetition (the two sides of one repetition ran back to back), then the median.
         ratio = _gen.median([v / b for v, b in zip(samples["v_wall"], samples["b_wall"])])
-        engine_ratio = _gen.median([(v - r - c) / b for v, r, c, b in
-                                    zip(samples["v_wall"], samples["v_record"], samples["v_cert"],
-                                        samples["b_wall"])])
+        engine_ratio = _gen.median(
+            [
+                (v - r - c) / b
+                for v, r, c, b in zip(
+                    samples["v_wall"], samples["v_record"], samples["v_cert"], samples["b_wall"]
+                )
+            ]
+        )
         cpu_ratio = _gen.median([v / b for v, b in zip(samples["v_cpu"], samples["b_cpu"])])
-        results.append({"n": n, "reps": reps, **m, "ratio": ratio, "engine_ratio": engine_ratio,
-                        "cpu_ratio": cpu_ratio, "load": dry.load_s})
-        print(f"  N={n}: verirun {m['v_wall'] / n * 1e6:.0f} us/point, baseline"
-              f" {m['b_wall'] / n * 1e6:.0f} us/point", file=sys.stderr, flush=True)
+        results.append(
+            {
+                "n": n,
+                "reps": reps,
+                **m,
+                "ratio": ratio,
+                "engine_ratio": engine_ratio,
+                "cpu_ratio": cpu_ratio,
+                "load": dry.load_s,
+            }
+        )
+        print(
+            f"  N={n}: verirun {m['v_wall'] / n * 1e6:.0f} us/point, baseline"
+            f" {m['b_wall'] / n * 1e6:.0f} us/point",
+            file=sys.stderr,
+            flush=True,
+        )
     return results
 
 
@@ -367,44 +436,115 @@ def report(results: list[dict]) -> None:
     for r in results:
         n = r["n"]
         engine = r["v_wall"] - r["v_record"] - r["v_cert"]
-        rows.append([str(n), str(r["reps"]), f"{engine * 1e3:.1f}", _us(engine, n),
-                     f"{r['b_wall'] * 1e3:.1f}", _us(r["b_wall"], n), f"{r['engine_ratio']:.2f}",
-                     f"<= {RATIO_TARGET}", _gen.verdict(r["engine_ratio"] <= RATIO_TARGET)])
-    print("\nEngine overhead: the dry run up to the journal's last line (preflight, opening the simulated"
-          "\ncalibrator, the run loop, every observation journaled and fsynced) against the hand-written"
-          "\nPyVISA loop doing the same; wall time, medians; ratio = median of the per-repetition ratios")
-    print(_gen.table(["N", "runs", "verirun ms", "us/pt", "baseline ms", "us/pt", "ratio", "target",
-                      "result"], rows))
+        rows.append(
+            [
+                str(n),
+                str(r["reps"]),
+                f"{engine * 1e3:.1f}",
+                _us(engine, n),
+                f"{r['b_wall'] * 1e3:.1f}",
+                _us(r["b_wall"], n),
+                f"{r['engine_ratio']:.2f}",
+                f"<= {RATIO_TARGET}",
+                _gen.verdict(r["engine_ratio"] <= RATIO_TARGET),
+            ]
+        )
+    print(
+        "\nEngine overhead: the dry run up to the journal's last line (preflight, opening the simulated"
+        "\ncalibrator, the run loop, every observation journaled and fsynced) against the hand-written"
+        "\nPyVISA loop doing the same; wall time, medians; ratio = median of the per-repetition ratios"
+    )
+    print(
+        _gen.table(
+            [
+                "N",
+                "runs",
+                "verirun ms",
+                "us/pt",
+                "baseline ms",
+                "us/pt",
+                "ratio",
+                "target",
+                "result",
+            ],
+            rows,
+        )
+    )
 
     rows = []
     for r in results:
         n = r["n"]
         engine = r["v_wall"] - r["v_record"] - r["v_cert"]
-        rows.append([str(n), _us(engine, n), _us(r["v_record"], n), _us(r["v_cert"], n),
-                     _us(r["v_wall"], n), f"{r['ratio']:.2f}", f"{r['load'] * 1e3:.1f}"])
-    print("\nThe rest of a verirun dry run, which the baseline does not do: closing the journal into the run"
-          "\nrecord (every point evaluated again from the journal) and rendering the certificate; us per"
-          "\npoint. whole ratio = the whole execute over the baseline (for information; the certificate's"
-          "\nown targets are in certificates.py)")
-    print(_gen.table(["N", "engine", "record", "certificate", "whole", "whole ratio",
-                      "file loading ms (not in the times)"], rows))
+        rows.append(
+            [
+                str(n),
+                _us(engine, n),
+                _us(r["v_record"], n),
+                _us(r["v_cert"], n),
+                _us(r["v_wall"], n),
+                f"{r['ratio']:.2f}",
+                f"{r['load'] * 1e3:.1f}",
+            ]
+        )
+    print(
+        "\nThe rest of a verirun dry run, which the baseline does not do: closing the journal into the run"
+        "\nrecord (every point evaluated again from the journal) and rendering the certificate; us per"
+        "\npoint. whole ratio = the whole execute over the baseline (for information; the certificate's"
+        "\nown targets are in certificates.py)"
+    )
+    print(
+        _gen.table(
+            [
+                "N",
+                "engine",
+                "record",
+                "certificate",
+                "whole",
+                "whole ratio",
+                "file loading ms (not in the times)",
+            ],
+            rows,
+        )
+    )
 
     rows = []
     for r in results:
         n = r["n"]
-        rows.append([str(n), _us(r["v_cpu"], n), _us(r["b_cpu"], n), f"{r['cpu_ratio']:.2f}",
-                     _us(r["v_fsync"], n), _us(r["b_fsync"], n)])
-    print("\nCPU time of the process (whole execute) and fsync wait, us per point (the disk is shared:"
-          " fsync varies)")
-    print(_gen.table(["N", "verirun CPU", "baseline CPU", "CPU ratio", "verirun fsync", "baseline fsync"],
-                     rows))
+        rows.append(
+            [
+                str(n),
+                _us(r["v_cpu"], n),
+                _us(r["b_cpu"], n),
+                f"{r['cpu_ratio']:.2f}",
+                _us(r["v_fsync"], n),
+                _us(r["b_fsync"], n),
+            ]
+        )
+    print(
+        "\nCPU time of the process (whole execute) and fsync wait, us per point (the disk is shared:"
+        " fsync varies)"
+    )
+    print(
+        _gen.table(
+            ["N", "verirun CPU", "baseline CPU", "CPU ratio", "verirun fsync", "baseline fsync"],
+            rows,
+        )
+    )
 
     rows = []
     for prev, cur in zip(results, results[1:]):
         span = cur["n"] - prev["n"]
-        engine = (cur["v_wall"] - cur["v_record"] - cur["v_cert"]) - (prev["v_wall"] - prev["v_record"] - prev["v_cert"])
-        rows.append([f"{prev['n']} -> {cur['n']}", _us(engine, span), _us(cur["v_wall"] - prev["v_wall"], span),
-                     _us(cur["b_wall"] - prev["b_wall"], span)])
+        engine = (cur["v_wall"] - cur["v_record"] - cur["v_cert"]) - (
+            prev["v_wall"] - prev["v_record"] - prev["v_cert"]
+        )
+        rows.append(
+            [
+                f"{prev['n']} -> {cur['n']}",
+                _us(engine, span),
+                _us(cur["v_wall"] - prev["v_wall"], span),
+                _us(cur["b_wall"] - prev["b_wall"], span),
+            ]
+        )
     print("\nMarginal cost of one more point, us (slope between sizes)")
     print(_gen.table(["sizes", "verirun engine", "verirun whole", "baseline"], rows))
 
@@ -416,12 +556,16 @@ def report(results: list[dict]) -> None:
 
     growth = per_point(big, "engine") / per_point(prev, "engine")
     growth_whole = per_point(big, "whole") / per_point(prev, "whole")
-    print(f"\nPer-point cost flat? verirun us/pt at N={big['n']} over N={prev['n']}: engine {growth:.2f},"
-          f" whole {growth_whole:.2f} (target <= {FLAT_TARGET}):"
-          f" {_gen.verdict(max(growth, growth_whole) <= FLAT_TARGET)}")
+    print(
+        f"\nPer-point cost flat? verirun us/pt at N={big['n']} over N={prev['n']}: engine {growth:.2f},"
+        f" whole {growth_whole:.2f} (target <= {FLAT_TARGET}):"
+        f" {_gen.verdict(max(growth, growth_whole) <= FLAT_TARGET)}"
+    )
     worst = max(results, key=lambda r: r["engine_ratio"])
-    print(f"Engine ratio <= {RATIO_TARGET} at every size: {_gen.verdict(worst['engine_ratio'] <= RATIO_TARGET)}"
-          f" (worst {worst['engine_ratio']:.2f} at N={worst['n']})")
+    print(
+        f"Engine ratio <= {RATIO_TARGET} at every size: {_gen.verdict(worst['engine_ratio'] <= RATIO_TARGET)}"
+        f" (worst {worst['engine_ratio']:.2f} at N={worst['n']})"
+    )
 
 
 def profile(n: int, root: Path, top: int) -> None:
@@ -444,9 +588,15 @@ def profile(n: int, root: Path, top: int) -> None:
 
 def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--quick", action="store_true", help="sizes 10 and 100 only, fewer repetitions")
-    parser.add_argument("--profile", type=int, metavar="N",
-                        help="instead of the comparison, cProfile one N-point dry run")
+    parser.add_argument(
+        "--quick", action="store_true", help="sizes 10 and 100 only, fewer repetitions"
+    )
+    parser.add_argument(
+        "--profile",
+        type=int,
+        metavar="N",
+        help="instead of the comparison, cProfile one N-point dry run",
+    )
     parser.add_argument("--top", type=int, default=25, help="entries of the profile to print")
     args = parser.parse_args(argv)
     root = Path(tempfile.mkdtemp(prefix="verirun-bench-engine-"))

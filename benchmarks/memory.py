@@ -37,12 +37,14 @@ def _peak_mb(who=resource.RUSAGE_SELF) -> float:
 
 # --- what each child does -----------------------------------------------------------------------
 
+
 def child_idle() -> dict:
     """The interpreter with verirun's run modules and pyvisa imported, nothing run."""
     import pyvisa  # noqa: F401
 
     import verirun.certificate.render  # noqa: F401
     import verirun.conduct  # noqa: F401
+
     return {"peak_mb": _peak_mb()}
 
 
@@ -53,8 +55,11 @@ def child_dryrun(folder: Path, n: int) -> dict:
     dry = DryRun(gen)
     t = time.perf_counter()
     _, finished, _ = dry.run(folder / f"run-{n}")
-    return {"peak_mb": _peak_mb(), "seconds": time.perf_counter() - t,
-            "points": finished.record["summary"]["points"]}
+    return {
+        "peak_mb": _peak_mb(),
+        "seconds": time.perf_counter() - t,
+        "points": finished.record["summary"]["points"],
+    }
 
 
 def child_certify(runs_file: Path, reports: Path) -> dict:
@@ -65,15 +70,25 @@ def child_certify(runs_file: Path, reports: Path) -> dict:
     code = main(["certify", *runs, "--reports", str(reports)])
     seconds = time.perf_counter() - t
     made = len(list(reports.glob("*.html")))
-    return {"peak_mb": _peak_mb(), "workers_peak_mb": _peak_mb(resource.RUSAGE_CHILDREN),
-            "seconds": seconds, "code": code, "certificates": made}
+    return {
+        "peak_mb": _peak_mb(),
+        "workers_peak_mb": _peak_mb(resource.RUSAGE_CHILDREN),
+        "seconds": seconds,
+        "code": code,
+        "certificates": made,
+    }
 
 
 # --- the parent ---------------------------------------------------------------------------------
 
+
 def in_child(*args: str) -> dict:
-    done = subprocess.run([sys.executable, __file__, "--child", *args], stdout=subprocess.PIPE,
-                          stderr=subprocess.PIPE, text=True)
+    done = subprocess.run(
+        [sys.executable, __file__, "--child", *args],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+    )
     if done.returncode != 0:
         raise SystemExit(f"child {args} failed: {done.stderr[-1500:]}")
     return json.loads(done.stdout.strip().splitlines()[-1])
@@ -97,9 +112,11 @@ def main(argv=None) -> int:
     args = parser.parse_args(argv)
     if args.child:
         kind, rest = args.child[0], args.child[1:]
-        result = {"idle": lambda: child_idle(),
-                  "dryrun": lambda: child_dryrun(Path(rest[0]), int(rest[1])),
-                  "certify": lambda: child_certify(Path(rest[0]), Path(rest[1]))}[kind]()
+        result = {
+            "idle": lambda: child_idle(),
+            "dryrun": lambda: child_dryrun(Path(rest[0]), int(rest[1])),
+            "certify": lambda: child_certify(Path(rest[0]), Path(rest[1])),
+        }[kind]()
         print(json.dumps(result))
         return 0
 
@@ -123,20 +140,39 @@ def main(argv=None) -> int:
         workers = worker_count(count)
         if workers > 1:
             total = cert["peak_mb"] + workers * cert["workers_peak_mb"]
-            how = (f"{cert['peak_mb']:.0f} MB main + {workers} x {cert['workers_peak_mb']:.0f} MB workers")
+            how = f"{cert['peak_mb']:.0f} MB main + {workers} x {cert['workers_peak_mb']:.0f} MB workers"
         else:
             total, how = cert["peak_mb"], "one process"
 
-        print(f"Peak RSS, each in its own process (an idle interpreter with verirun and pyvisa"
-              f" imported: {idle['peak_mb']:.0f} MB)")
-        print(_gen.table(
-            ["measurement", "peak MB", "how", "time s", "target MB", "ratio", "result"],
-            [[f"dry run, {points} points", f"{dry['peak_mb']:.0f}", "one process", f"{dry['seconds']:.1f}",
-              f"<= {DRY_RUN_TARGET_MB}", f"{dry['peak_mb'] / DRY_RUN_TARGET_MB:.2f}",
-              _gen.verdict(dry["peak_mb"] <= DRY_RUN_TARGET_MB)],
-             [f"verirun certify, {count} runs", f"{total:.0f}", how, f"{cert['seconds']:.1f}",
-              f"<= {CERTIFY_TARGET_MB}", f"{total / CERTIFY_TARGET_MB:.2f}",
-              _gen.verdict(total <= CERTIFY_TARGET_MB)]]))
+        print(
+            f"Peak RSS, each in its own process (an idle interpreter with verirun and pyvisa"
+            f" imported: {idle['peak_mb']:.0f} MB)"
+        )
+        print(
+            _gen.table(
+                ["measurement", "peak MB", "how", "time s", "target MB", "ratio", "result"],
+                [
+                    [
+                        f"dry run, {points} points",
+                        f"{dry['peak_mb']:.0f}",
+                        "one process",
+                        f"{dry['seconds']:.1f}",
+                        f"<= {DRY_RUN_TARGET_MB}",
+                        f"{dry['peak_mb'] / DRY_RUN_TARGET_MB:.2f}",
+                        _gen.verdict(dry["peak_mb"] <= DRY_RUN_TARGET_MB),
+                    ],
+                    [
+                        f"verirun certify, {count} runs",
+                        f"{total:.0f}",
+                        how,
+                        f"{cert['seconds']:.1f}",
+                        f"<= {CERTIFY_TARGET_MB}",
+                        f"{total / CERTIFY_TARGET_MB:.2f}",
+                        _gen.verdict(total <= CERTIFY_TARGET_MB),
+                    ],
+                ],
+            )
+        )
         return 0
     finally:
         shutil.rmtree(root, ignore_errors=True)

@@ -45,32 +45,51 @@ def one_run(root: Path) -> Path:
     """A real 5-point run on the simulated calibrator, recorded as a calibration."""
     from verirun.bench.config import load_bench
     from verirun.clock import VirtualClock
+    from verirun.conduct import execute
     from verirun.console import QuietConsole
     from verirun.engine import RunContext
     from verirun.lab import load_lab
     from verirun.procedure.load import load_procedure
     from verirun.readings import ScriptedReadings
-    from verirun.conduct import execute
 
     gen = _gen.generate(5, root / "gen")
     lab = load_lab(_gen.LAB_YAML)
-    context = RunContext(lab=lab.lab.model_dump(mode="json"), customer={"name": "Bench Customer", "address": []},
-                         item={"serial": "S-0", "asset": None, "condition": "As received.", "received": None},
-                         operator="bench", simulated=False,
-                         environment={"temperature_c": 23.0, "humidity_pct": 40.0})
-    finished = execute(procedure=load_procedure(gen.procedure), bench=load_bench(gen.bench), context=context,
-                       readings=ScriptedReadings(gen.readings), console=QuietConsole(), runs_dir=root / "seed",
-                       reports_dir=root / "reports", simulate=True,
-                       clock=VirtualClock(dt.datetime(2020, 1, 1, tzinfo=dt.timezone.utc)))
+    context = RunContext(
+        lab=lab.lab.model_dump(mode="json"),
+        customer={"name": "Bench Customer", "address": []},
+        item={"serial": "S-0", "asset": None, "condition": "As received.", "received": None},
+        operator="bench",
+        simulated=False,
+        environment={"temperature_c": 23.0, "humidity_pct": 40.0},
+    )
+    finished = execute(
+        procedure=load_procedure(gen.procedure),
+        bench=load_bench(gen.bench),
+        context=context,
+        readings=ScriptedReadings(gen.readings),
+        console=QuietConsole(),
+        runs_dir=root / "seed",
+        reports_dir=root / "reports",
+        simulate=True,
+        clock=VirtualClock(dt.datetime(2020, 1, 1, tzinfo=dt.timezone.utc)),
+    )
     return finished.run_dir
 
 
 def make_folders(seed: Path, root: Path, n: int) -> Path:
     """``n`` run folders: the seed's journal with a new uid, item and start time, re-chained."""
-    from verirun.record.journal import GENESIS, JOURNAL_NAME, RECORD_NAME, dumps, line_hash, read_journal, write_record
-    from verirun.register.rebuild import _Plans
-    from verirun.record.build import build_record
     from verirun.conduct import run_folder_name
+    from verirun.record.build import build_record
+    from verirun.record.journal import (
+        GENESIS,
+        JOURNAL_NAME,
+        RECORD_NAME,
+        dumps,
+        line_hash,
+        read_journal,
+        write_record,
+    )
+    from verirun.register.rebuild import _Plans
 
     docs = read_journal(seed / JOURNAL_NAME).documents
     plans, rng = _Plans(), random.Random(7)
@@ -117,16 +136,29 @@ def fill_register(register, seed: Path, n: int) -> None:
             uid = uuid.UUID(int=rng.getrandbits(128)).hex
             stamp = (start + dt.timedelta(minutes=53 * i)).strftime("%Y-%m-%dT%H:%M:%SZ")
             serial = f"S-{i % max(n // ITEMS_PER_10, 1)}"
-            copy = {**record, "run": {**record["run"], "uid": uid, "started": stamp, "ended": stamp},
-                    "item": {**record["item"], "serial": serial}}
+            copy = {
+                **record,
+                "run": {**record["run"], "uid": uid, "started": stamp, "ended": stamp},
+                "item": {**record["item"], "serial": serial},
+            }
             row = run_row(copy, f"{stamp[:10]}-{serial}-{uid[:8]}")
             run_rows.append({**row, "id": i + 1})
             point_list.extend(point_rows(i + 1, copy))
             body = dumps(copy)
-            bodies.append({"run_id": i + 1, "body": body, "sha256": hashlib.sha256(body.encode()).hexdigest()})
+            bodies.append(
+                {"run_id": i + 1, "body": body, "sha256": hashlib.sha256(body.encode()).hexdigest()}
+            )
             if i < n // ITEMS_PER_10:
-                item_rows.append({"serial": serial, "model": row["item_model"], "revision": 1, "entered": stamp,
-                                  "entered_by": "bench", "interval_days": 365})
+                item_rows.append(
+                    {
+                        "serial": serial,
+                        "model": row["item_model"],
+                        "revision": 1,
+                        "entered": stamp,
+                        "entered_by": "bench",
+                        "interval_days": 365,
+                    }
+                )
         with register.engine.begin() as connection:
             connection.execute(runs.insert(), run_rows)
             connection.execute(points.insert(), point_list)
@@ -182,24 +214,35 @@ def main(argv: list[str]) -> int:
         t = time.perf_counter()
         big = open_register(str(root / "big.db"))
         fill_register(big, seed, registered)
-        print(f"wrote {registered:,} registered runs in {time.perf_counter() - t:.1f} s"
-              f" ({(root / 'big.db').stat().st_size / 2**20:,.0f} MiB)")
+        print(
+            f"wrote {registered:,} registered runs in {time.perf_counter() - t:.1f} s"
+            f" ({(root / 'big.db').stat().st_size / 2**20:,.0f} MiB)"
+        )
 
         big.engine.dispose()
         listed = in_child(root / "big.db", "list_runs(register)")
         one_item = in_child(root / "big.db", "list_runs(register, item='S-3')")
-        history = in_child(root / "big.db", "item_history(register, serial='S-3', today=dt.date(2030, 1, 1))")
+        history = in_child(
+            root / "big.db", "item_history(register, serial='S-3', today=dt.date(2030, 1, 1))"
+        )
         scan = best(lambda: scan_runs(folders), 1) * scale
         scan_item = best(lambda: scan_runs(folders, item="S-3"), 1) * scale
-        calibrations = item_history(open_register(str(root / "big.db")), serial="S-3",
-                                    today=dt.date(2030, 1, 1)).table["uid"].nunique()
+        calibrations = (
+            item_history(
+                open_register(str(root / "big.db")), serial="S-3", today=dt.date(2030, 1, 1)
+            )
+            .table["uid"]
+            .nunique()
+        )
 
         def scan_history():  # what a history from the folders would read: every record
             import json
+
             for folder in sorted(folders.iterdir()):
                 record = json.loads((folder / "record.json").read_text(encoding="utf-8"))
                 if record["item"]["serial"] == "S-3":
                     pass
+
         history_scan = best(scan_history, 1) * scale
 
         fresh = open_register(str(root / "fresh.db"))
@@ -214,18 +257,45 @@ def main(argv: list[str]) -> int:
 
         n, f = f"{registered:,}", f"{folders_n:,}"
         rows = [
-            [f"runs, all {n} rows", f"{listed:.3f}", f"{scan:.1f} (scaled from {f})", f"{scan / listed:,.0f}x",
-             f"<= {LIST_TARGET}", _gen.verdict(listed <= LIST_TARGET)],
-            [f"runs --item (of {n})", f"{one_item:.4f}", f"{scan_item:.1f} (scaled from {f})",
-             f"{scan_item / one_item:,.0f}x", f"<= {LIST_TARGET}", _gen.verdict(one_item <= LIST_TARGET)],
-            [f"history of one item ({calibrations} calibrations among {n})", f"{history:.4f}",
-             f"{history_scan:.1f} (scaled from {f})", f"{history_scan / history:,.0f}x", f"<= {HISTORY_TARGET}",
-             _gen.verdict(history <= HISTORY_TARGET)],
-            [f"rebuild from {f} folders (verify each, store)", f"{rebuilt:.1f}", f"{verify:.1f} (verify {f})",
-             f"{verify / rebuilt:.2f}x", f"<= {REBUILD_TARGET}" if not quick else "(info)",
-             _gen.verdict(rebuilt <= REBUILD_TARGET * folders_n / 10_000)],
+            [
+                f"runs, all {n} rows",
+                f"{listed:.3f}",
+                f"{scan:.1f} (scaled from {f})",
+                f"{scan / listed:,.0f}x",
+                f"<= {LIST_TARGET}",
+                _gen.verdict(listed <= LIST_TARGET),
+            ],
+            [
+                f"runs --item (of {n})",
+                f"{one_item:.4f}",
+                f"{scan_item:.1f} (scaled from {f})",
+                f"{scan_item / one_item:,.0f}x",
+                f"<= {LIST_TARGET}",
+                _gen.verdict(one_item <= LIST_TARGET),
+            ],
+            [
+                f"history of one item ({calibrations} calibrations among {n})",
+                f"{history:.4f}",
+                f"{history_scan:.1f} (scaled from {f})",
+                f"{history_scan / history:,.0f}x",
+                f"<= {HISTORY_TARGET}",
+                _gen.verdict(history <= HISTORY_TARGET),
+            ],
+            [
+                f"rebuild from {f} folders (verify each, store)",
+                f"{rebuilt:.1f}",
+                f"{verify:.1f} (verify {f})",
+                f"{verify / rebuilt:.2f}x",
+                f"<= {REBUILD_TARGET}" if not quick else "(info)",
+                _gen.verdict(rebuilt <= REBUILD_TARGET * folders_n / 10_000),
+            ],
         ]
-        print(_gen.table(["figure", "register, s", "folder scan, s", "scan / register", "target, s", ""], rows))
+        print(
+            _gen.table(
+                ["figure", "register, s", "folder scan, s", "scan / register", "target, s", ""],
+                rows,
+            )
+        )
     finally:
         from verirun.register.db import forget_open
 

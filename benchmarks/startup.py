@@ -22,8 +22,8 @@ from pathlib import Path
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 import _gen  # noqa: E402
 
-HELP_TARGET = 0.3       # seconds, wall
-CHECK_FACTOR = 2.0      # check <= this times the bare import
+HELP_TARGET = 0.3  # seconds, wall
+CHECK_FACTOR = 2.0  # check <= this times the bare import
 
 
 def verirun_command() -> list[str]:
@@ -37,7 +37,9 @@ def wall(command: list[str]) -> float:
     done = subprocess.run(command, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
     seconds = time.perf_counter() - t
     if done.returncode != 0:
-        raise SystemExit(f"{' '.join(command)} failed ({done.returncode}): {done.stderr.decode()[-500:]}")
+        raise SystemExit(
+            f"{' '.join(command)} failed ({done.returncode}): {done.stderr.decode()[-500:]}"
+        )
     return seconds
 
 
@@ -52,7 +54,9 @@ def import_times(command: list[str], top: int) -> list[tuple[int, int, str]]:
     for line in done.stderr.splitlines():
         if not line.startswith("import time:") or "cumulative" in line:
             continue
-        self_us, cumulative, name = (part.strip() for part in line[len("import time:"):].split("|"))
+        self_us, cumulative, name = (
+            part.strip() for part in line[len("import time:") :].split("|")
+        )
         rows.append((int(cumulative), int(self_us), name.strip()))
     rows.sort(reverse=True)
     return rows[:top]
@@ -84,26 +88,56 @@ def main(argv=None) -> int:
         help_s, check_s = med["verirun --help"], med["verirun check (100 points)"]
 
         print(f"Cold start, wall time, median of {runs} runs (after one warm-up run each)")
-        print(_gen.table(["command", "median s", "min s", "max s"],
-                         [[name, f"{med[name]:.3f}", f"{min(times[name]):.3f}", f"{max(times[name]):.3f}"]
-                          for name in commands]))
+        print(
+            _gen.table(
+                ["command", "median s", "min s", "max s"],
+                [
+                    [name, f"{med[name]:.3f}", f"{min(times[name]):.3f}", f"{max(times[name]):.3f}"]
+                    for name in commands
+                ],
+            )
+        )
         print()
-        print(_gen.table(
-            ["figure", "measured", "target", "ratio to target", "result"],
-            [["verirun --help", f"{help_s:.3f} s", f"<= {HELP_TARGET} s", f"{help_s / HELP_TARGET:.2f}",
-              _gen.verdict(help_s <= HELP_TARGET)],
-             ["verirun check / import pyvisa", f"{check_s / bare:.2f}x ({check_s:.3f} s / {bare:.3f} s)",
-              f"<= {CHECK_FACTOR}x", f"{check_s / bare / CHECK_FACTOR:.2f}",
-              _gen.verdict(check_s <= CHECK_FACTOR * bare)]]))
+        print(
+            _gen.table(
+                ["figure", "measured", "target", "ratio to target", "result"],
+                [
+                    [
+                        "verirun --help",
+                        f"{help_s:.3f} s",
+                        f"<= {HELP_TARGET} s",
+                        f"{help_s / HELP_TARGET:.2f}",
+                        _gen.verdict(help_s <= HELP_TARGET),
+                    ],
+                    [
+                        "verirun check / import pyvisa",
+                        f"{check_s / bare:.2f}x ({check_s:.3f} s / {bare:.3f} s)",
+                        f"<= {CHECK_FACTOR}x",
+                        f"{check_s / bare / CHECK_FACTOR:.2f}",
+                        _gen.verdict(check_s <= CHECK_FACTOR * bare),
+                    ],
+                ],
+            )
+        )
 
-        print("\nTop 10 imports of 'verirun check' by cumulative time (python -X importtime, one run)")
+        print(
+            "\nTop 10 imports of 'verirun check' by cumulative time (python -X importtime, one run)"
+        )
         rows = import_times(verirun + ["check", str(gen.procedure)], 10)
-        print(_gen.table(["module", "cumulative ms", "self ms"],
-                         [[name, f"{cum / 1000:.1f}", f"{own / 1000:.1f}"] for cum, own, name in rows]))
+        print(
+            _gen.table(
+                ["module", "cumulative ms", "self ms"],
+                [[name, f"{cum / 1000:.1f}", f"{own / 1000:.1f}"] for cum, own, name in rows],
+            )
+        )
         print("\nTop 10 imports of 'verirun --help' by cumulative time")
         rows = import_times(verirun + ["--help"], 10)
-        print(_gen.table(["module", "cumulative ms", "self ms"],
-                         [[name, f"{cum / 1000:.1f}", f"{own / 1000:.1f}"] for cum, own, name in rows]))
+        print(
+            _gen.table(
+                ["module", "cumulative ms", "self ms"],
+                [[name, f"{cum / 1000:.1f}", f"{own / 1000:.1f}"] for cum, own, name in rows],
+            )
+        )
         return 0
     finally:
         shutil.rmtree(folder, ignore_errors=True)

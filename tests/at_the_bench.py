@@ -20,10 +20,13 @@ def calibrator_at_the_bench():
     def open_calibrator(bench, *, simulate, workdir, profile):
         if simulate:  # a dry run in the same test: as ever
             return dry_run(bench, simulate=True, workdir=workdir, profile=profile)
-        return Calibrator.open(sim_library(workdir / "test-bench"), SIM_RESOURCE, profile,
-                               timeout_ms=int(bench.timeout_s * 1000))
+        return Calibrator.open(
+            sim_library(workdir / "test-bench"),
+            SIM_RESOURCE,
+            profile,
+            timeout_ms=int(bench.timeout_s * 1000),
+        )
 
     with pytest.MonkeyPatch.context() as patch:
         patch.setattr(session, "open_calibrator", open_calibrator)
         yield
-

@@ -29,21 +29,52 @@ def procedure_with(tmp_path: Path, dcv_points: str, name: str = "procedure.yaml"
     text = PROCEDURE.read_text(encoding="utf-8")
     assert "points: [2 V, 6 V, 10 V]" in text
     path = tmp_path / name
-    path.write_text(text.replace("points: [2 V, 6 V, 10 V]", f"points: [{dcv_points}]"), encoding="utf-8")
+    path.write_text(
+        text.replace("points: [2 V, 6 V, 10 V]", f"points: [{dcv_points}]"), encoding="utf-8"
+    )
     return path
 
 
-def readings_file(tmp_path: Path, rows: list[tuple[str, str, str]], name: str = "readings.csv") -> Path:
+def readings_file(
+    tmp_path: Path, rows: list[tuple[str, str, str]], name: str = "readings.csv"
+) -> Path:
     path = tmp_path / name
-    path.write_text("range,at,reading\n" + "".join(f"{r},{a},{v}\n" for r, a, v in rows), encoding="utf-8")
+    path.write_text(
+        "range,at,reading\n" + "".join(f"{r},{a},{v}\n" for r, a, v in rows), encoding="utf-8"
+    )
     return path
 
 
-def run_args(tmp_path: Path, procedure: Path = PROCEDURE, readings: Path = READINGS, serial: str = "PM7-1",
-             bench: Path = BENCH, runs: Path | None = None, reports: Path | None = None) -> list:
-    return ["run", procedure, "--bench", bench, "--simulate", "--readings", readings, "--serial", serial,
-            "--customer", "Test customer", "--temperature", "23", "--humidity", "45",
-            "--runs", runs or tmp_path / "runs", "--reports", reports or tmp_path / "reports"]
+def run_args(
+    tmp_path: Path,
+    procedure: Path = PROCEDURE,
+    readings: Path = READINGS,
+    serial: str = "PM7-1",
+    bench: Path = BENCH,
+    runs: Path | None = None,
+    reports: Path | None = None,
+) -> list:
+    return [
+        "run",
+        procedure,
+        "--bench",
+        bench,
+        "--simulate",
+        "--readings",
+        readings,
+        "--serial",
+        serial,
+        "--customer",
+        "Test customer",
+        "--temperature",
+        "23",
+        "--humidity",
+        "45",
+        "--runs",
+        runs or tmp_path / "runs",
+        "--reports",
+        reports or tmp_path / "reports",
+    ]
 
 
 def only_run(runs: Path) -> Path:
@@ -101,5 +132,11 @@ def run_until_death(args: list, moment: str, *, last_index: int = -1, cwd: Path 
     import os
 
     env = {**os.environ, "VERIRUN_TEST_DIE": moment, "VERIRUN_TEST_LAST": str(last_index)}
-    return subprocess.run([sys.executable, "-c", _DIE_AT, *[str(a) for a in args]], env=env, cwd=cwd,
-                          capture_output=True, text=True, timeout=120)
+    return subprocess.run(
+        [sys.executable, "-c", _DIE_AT, *[str(a) for a in args]],
+        env=env,
+        cwd=cwd,
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )

@@ -7,9 +7,17 @@ import shutil
 from pathlib import Path
 
 import pytest
+from runkit import (
+    READINGS,
+    cli,
+    documents,
+    only_run,
+    readings_file,
+    record,
+    run_args,
+    run_until_death,
+)
 
-from runkit import (READINGS, cli, documents, only_run, readings_file, record, run_args,
-                    run_until_death)
 from verirun.record.verify import problems
 
 
@@ -30,10 +38,19 @@ class TestKilledAtTheEnd:
         before = documents(run_dir)
         assert sum(d["kind"] == "observation" for d in before) == 5
         # No readings are given: if resume measured anything it would stop at the prompt.
-        assert cli("resume", run_dir, "--readings", readings_file(tmp_path, []),
-                   "--reports", tmp_path / "reports") == 0
+        assert (
+            cli(
+                "resume",
+                run_dir,
+                "--readings",
+                readings_file(tmp_path, []),
+                "--reports",
+                tmp_path / "reports",
+            )
+            == 0
+        )
         after = documents(run_dir)
-        assert after[:len(before)] == before
+        assert after[: len(before)] == before
         assert sum(d["kind"] == "observation" for d in after) == 5
         rec = record(run_dir)
         assert rec["run"]["status"] == "complete" and rec["summary"]["not-measured"] == 0
@@ -51,9 +68,21 @@ class TestKilledAtTheEnd:
 
         assert run_until_death(run_args(tmp_path), "before-stop").returncode == 137
         run_dir = only_run(tmp_path / "runs")
-        done = subprocess.run([sys.executable, "-m", "verirun", "resume", str(run_dir), "--reports",
-                               str(tmp_path / "reports")], stdin=subprocess.DEVNULL, capture_output=True,
-                              text=True, timeout=120)
+        done = subprocess.run(
+            [
+                sys.executable,
+                "-m",
+                "verirun",
+                "resume",
+                str(run_dir),
+                "--reports",
+                str(tmp_path / "reports"),
+            ],
+            stdin=subprocess.DEVNULL,
+            capture_output=True,
+            text=True,
+            timeout=120,
+        )
         assert done.returncode == 0, done.stderr
         assert record(run_dir)["run"]["status"] == "complete"
 
@@ -62,13 +91,37 @@ class TestKilledAtTheEnd:
         written: resume writes revision 2 and its certificate; revision 1 is kept."""
         assert cli(*run_args(tmp_path)) == 0
         run_dir = only_run(tmp_path / "runs")
-        proc = run_until_death(["amend", run_dir, "--point", "3", "--reading", "10.15", "--reason", "mistyped",
-                                "--reports", tmp_path / "reports"], "after-correction")
+        proc = run_until_death(
+            [
+                "amend",
+                run_dir,
+                "--point",
+                "3",
+                "--reading",
+                "10.15",
+                "--reason",
+                "mistyped",
+                "--reports",
+                tmp_path / "reports",
+            ],
+            "after-correction",
+        )
         assert proc.returncode == 137, proc.stderr
         assert record(run_dir)["run"]["revision"] == 1  # the record lags the journal
-        assert any("is older than its journal" in p and "verirun resume" in p for p in problems(run_dir))
-        assert cli("resume", run_dir, "--readings", readings_file(tmp_path, []),
-                   "--reports", tmp_path / "reports") == 0
+        assert any(
+            "is older than its journal" in p and "verirun resume" in p for p in problems(run_dir)
+        )
+        assert (
+            cli(
+                "resume",
+                run_dir,
+                "--readings",
+                readings_file(tmp_path, []),
+                "--reports",
+                tmp_path / "reports",
+            )
+            == 0
+        )
         rec = record(run_dir)
         assert rec["run"]["revision"] == 2 and rec["summary"]["fail"] == 0
         assert (run_dir / "record.r1.json").exists()
@@ -80,16 +133,16 @@ class TestKilledAtTheEnd:
         run as aborted with every step measured; resume closes it with nothing measured again."""
         import datetime as dt
 
+        from runkit import BENCH, PROCEDURE, STEPS
+
         from verirun.bench.config import load_bench
         from verirun.clock import VirtualClock
+        from verirun.conduct import execute
         from verirun.console import QuietConsole
         from verirun.engine import RunContext
         from verirun.lab import load_lab
         from verirun.procedure.load import load_procedure
         from verirun.readings import ScriptedReadings
-        from verirun.conduct import execute
-
-        from runkit import BENCH, PROCEDURE, STEPS
 
         class TerminatedAfterLast(QuietConsole):
             def result(self, point, entry, result):
@@ -97,18 +150,41 @@ class TestKilledAtTheEnd:
                     raise KeyboardInterrupt("terminated (SIGTERM)")
                 return super().result(point, entry, result)
 
-        context = RunContext(lab=load_lab(STEPS / "lab.yaml").lab.model_dump(mode="json"),
-                             customer={"name": "C", "address": []}, item={"serial": "TERM-1"},
-                             operator="tester", simulated=True)
+        context = RunContext(
+            lab=load_lab(STEPS / "lab.yaml").lab.model_dump(mode="json"),
+            customer={"name": "C", "address": []},
+            item={"serial": "TERM-1"},
+            operator="tester",
+            simulated=True,
+        )
         with pytest.raises(KeyboardInterrupt) as caught:
-            execute(procedure=load_procedure(PROCEDURE), bench=load_bench(BENCH), context=context,
-                    readings=ScriptedReadings(READINGS), console=TerminatedAfterLast(), runs_dir=tmp_path / "runs",
-                    reports_dir=tmp_path / "reports", simulate=True,
-                    clock=VirtualClock(dt.datetime(2026, 12, 1, 9, tzinfo=dt.timezone.utc)))
+            execute(
+                procedure=load_procedure(PROCEDURE),
+                bench=load_bench(BENCH),
+                context=context,
+                readings=ScriptedReadings(READINGS),
+                console=TerminatedAfterLast(),
+                runs_dir=tmp_path / "runs",
+                reports_dir=tmp_path / "reports",
+                simulate=True,
+                clock=VirtualClock(dt.datetime(2026, 12, 1, 9, tzinfo=dt.timezone.utc)),
+            )
         run_dir = caught.value.run_dir
-        assert documents(run_dir)[-1]["status"] == "aborted" and record(run_dir)["run"]["status"] == "aborted"
-        assert cli("resume", run_dir, "--readings", readings_file(tmp_path, []),
-                   "--reports", tmp_path / "reports") == 0
+        assert (
+            documents(run_dir)[-1]["status"] == "aborted"
+            and record(run_dir)["run"]["status"] == "aborted"
+        )
+        assert (
+            cli(
+                "resume",
+                run_dir,
+                "--readings",
+                readings_file(tmp_path, []),
+                "--reports",
+                tmp_path / "reports",
+            )
+            == 0
+        )
         assert record(run_dir)["run"]["status"] == "complete"
         assert sum(d["kind"] == "observation" for d in documents(run_dir)) == 5
         assert problems(run_dir, reports=tmp_path / "reports") == []
@@ -119,7 +195,9 @@ class TestKilledAtTheEnd:
         run_dir = only_run(tmp_path / "runs")
         before = (run_dir / "journal.jsonl").read_bytes()
         capsys.readouterr()
-        assert cli("resume", run_dir, "--readings", READINGS, "--reports", tmp_path / "reports") == 1
+        assert (
+            cli("resume", run_dir, "--readings", READINGS, "--reports", tmp_path / "reports") == 1
+        )
         assert "nothing to resume" in capsys.readouterr().err
         assert (run_dir / "journal.jsonl").read_bytes() == before
 
@@ -138,7 +216,7 @@ class TestCutShort:
         lines = path.read_text(encoding="utf-8").splitlines(keepends=True)
         kept = [line for line in lines if '"kind":"stop"' not in line]
         last_obs = max(i for i, line in enumerate(kept) if '"kind":"observation"' in line)
-        path.write_text("".join(kept[:last_obs - 2]), encoding="utf-8")
+        path.write_text("".join(kept[: last_obs - 2]), encoding="utf-8")
 
     def test_a_cut_journal_is_reported_and_not_resumed(self, tmp_path, capsys):
         """With the FAIL's observation cut away, verify says the record and the certificate
@@ -150,7 +228,9 @@ class TestCutShort:
         assert any("record.json: was closed from" in p for p in found)
         assert any(".html: this certificate was issued from" in p for p in found)
         capsys.readouterr()
-        assert cli("resume", run_dir, "--readings", READINGS, "--reports", tmp_path / "reports") == 1
+        assert (
+            cli("resume", run_dir, "--readings", READINGS, "--reports", tmp_path / "reports") == 1
+        )
         assert "no longer reaches" in capsys.readouterr().err
 
     def test_the_issued_certificate_is_never_replaced_by_other_results(self, tmp_path, capsys):
@@ -161,13 +241,22 @@ class TestCutShort:
         issued = cert.read_bytes()
         self._cut(run_dir)
         (run_dir / "record.json").unlink()
-        passing = readings_file(tmp_path, [("dcv-10", "10 V", "10.0"), ("dca-50u", "10 uA", "10 uA"),
-                                           ("dca-50u", "50 uA", "49.5 uA")])
+        passing = readings_file(
+            tmp_path,
+            [
+                ("dcv-10", "10 V", "10.0"),
+                ("dca-50u", "10 uA", "10 uA"),
+                ("dca-50u", "50 uA", "49.5 uA"),
+            ],
+        )
         capsys.readouterr()
         assert cli("resume", run_dir, "--readings", passing, "--reports", tmp_path / "reports") == 1
         assert "not overwritten" in capsys.readouterr().err
         assert cert.read_bytes() == issued
-        assert any("this certificate was issued from" in p for p in problems(run_dir, reports=tmp_path / "reports"))
+        assert any(
+            "this certificate was issued from" in p
+            for p in problems(run_dir, reports=tmp_path / "reports")
+        )
 
     def test_a_document_after_the_stop_does_not_verify(self, tmp_path):
         """An observation appended after the stop (with the chain rebuilt) is a verification
@@ -177,8 +266,9 @@ class TestCutShort:
         run_dir = self._failed_run(tmp_path)
         docs = documents(run_dir)
         obs = [d for d in docs if d["kind"] == "observation"][-1]
-        (run_dir / "journal.jsonl").write_text(_rechained(docs + [{**obs, "typed": "50 uA", "reading": 5e-05}]),
-                                               encoding="utf-8")
+        (run_dir / "journal.jsonl").write_text(
+            _rechained(docs + [{**obs, "typed": "50 uA", "reading": 5e-05}]), encoding="utf-8"
+        )
         (run_dir / "record.json").unlink()
         assert any("written after the run was closed complete" in p for p in problems(run_dir))
 
@@ -192,8 +282,12 @@ class TestStoppedBeforeTheStart:
 
         # Not the simulator's library (a bench reached through it is a dry run): a real bench's,
         # which is not there.
-        bench.write_text(BENCH.read_text().replace("resource: GPIB0::4::INSTR", "resource: GPIB0::4::INSTR\n"
-                                                   "  visa-library: /nonexistent/libvisa.so"))
+        bench.write_text(
+            BENCH.read_text().replace(
+                "resource: GPIB0::4::INSTR",
+                "resource: GPIB0::4::INSTR\n  visa-library: /nonexistent/libvisa.so",
+            )
+        )
         args = run_args(tmp_path, bench=bench)
         args.remove("--simulate")
         args += ["--lab", Path(__file__).parent / "data" / "lab-test.yaml", "--condition", "as new"]
@@ -220,7 +314,9 @@ class TestKilledBeforeItStarted:
         capsys.readouterr()
         assert cli("verify", run_dir) == 1
         out = capsys.readouterr().out
-        assert "never started" in out and "nothing was measured" in out and "start document" not in out
+        assert (
+            "never started" in out and "nothing was measured" in out and "start document" not in out
+        )
         assert cli("resume", run_dir, "--readings", readings_file(tmp_path, [])) == 1
         err = capsys.readouterr().err
         assert "never started" in err and "Traceback" not in err

@@ -16,21 +16,21 @@ import textwrap
 import time
 from pathlib import Path
 
-import pyvisa
 import pytest
+import pyvisa
 from rich.console import Console as RichConsole
 
 from verirun.bench.calibrator import Calibrator
 from verirun.bench.config import load_bench
 from verirun.bench.sim import SIM_RESOURCE, sim_library
 from verirun.clock import VirtualClock
+from verirun.conduct import confirmed_steps, execute
 from verirun.console import Console
 from verirun.engine import RunContext
 from verirun.errors import RunAborted
 from verirun.lab import load_lab
 from verirun.procedure.load import load_procedure_text
 from verirun.record.journal import read_journal
-from verirun.conduct import confirmed_steps, execute
 
 DATA = Path(__file__).resolve().parent / "data"
 
@@ -92,17 +92,32 @@ def run_typing(tmp_path, lab_path, lines, *, show_window=False):
     raw = rm.open_resource(SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=300)
     out = io.StringIO()
     typist = Typist(lines)
-    console = Console(RichConsole(file=out, width=200, highlight=False), input_func=typist, show_window=show_window)
-    context = RunContext(lab=load_lab(lab_path).lab.model_dump(mode="json"), customer={"name": "C", "address": []},
-                         item={"serial": "S", "asset": None, "condition": "as new", "received": None},
-                         operator="op", simulated=True)
+    console = Console(
+        RichConsole(file=out, width=200, highlight=False),
+        input_func=typist,
+        show_window=show_window,
+    )
+    context = RunContext(
+        lab=load_lab(lab_path).lab.model_dump(mode="json"),
+        customer={"name": "C", "address": []},
+        item={"serial": "S", "asset": None, "condition": "as new", "received": None},
+        operator="op",
+        simulated=True,
+    )
     error, finished = None, None
     try:
-        finished = execute(procedure=load_procedure_text(METER, "ci.yaml"), bench=load_bench(DATA / "bench-test.yaml"),
-                           context=context, readings=console, console=console, runs_dir=tmp_path / "runs",
-                           reports_dir=tmp_path / "reports", simulate=True,
-                           clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)),
-                           calibrator=Calibrator(raw, "scpi-generic"))
+        finished = execute(
+            procedure=load_procedure_text(METER, "ci.yaml"),
+            bench=load_bench(DATA / "bench-test.yaml"),
+            context=context,
+            readings=console,
+            console=console,
+            runs_dir=tmp_path / "runs",
+            reports_dir=tmp_path / "reports",
+            simulate=True,
+            clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)),
+            calibrator=Calibrator(raw, "scpi-generic"),
+        )
     except RunAborted as exc:
         error = exc
     run_dir = finished.run_dir if finished else error.run_dir
@@ -118,8 +133,11 @@ def fits_the_journal_schema(docs):
 
     from verirun.record.documents import validate_document
 
-    schema = json.loads((Path(__file__).resolve().parent.parent / "verirun" / "schema"
-                         / "journal.schema.json").read_text(encoding="utf-8"))
+    schema = json.loads(
+        (
+            Path(__file__).resolve().parent.parent / "verirun" / "schema" / "journal.schema.json"
+        ).read_text(encoding="utf-8")
+    )
     for doc in docs:
         jsonschema.validate(doc, schema, cls=jsonschema.Draft202012Validator)
         validate_document(doc)
@@ -156,7 +174,9 @@ class TestBareNumbersAndPrefixes:
 
 
 class TestLeadsPrompt:
-    def test_value_typed_at_the_leads_prompt_is_refused_not_swallowed(self, tmp_path, demo_lab_path):
+    def test_value_typed_at_the_leads_prompt_is_refused_not_swallowed(
+        self, tmp_path, demo_lab_path
+    ):
         """A reading typed while the output is in standby is refused with the reason and the
         prompt asked again; it is not journaled."""
         docs, out, typist, *_ = run_typing(tmp_path, demo_lab_path, ["4.9", "", *PLAIN[1:]])
@@ -185,7 +205,9 @@ class TestGrossReading:
         # What was typed is kept: the far-off reading is journaled as a note before the reading.
         notes = [d for d in docs if d["kind"] == "note" and "asked about" in d["text"]]
         assert len(notes) == 1 and "'8'" in notes[0]["text"] and "'5.1'" in notes[0]["text"]
-        assert docs.index(notes[0]) < next(i for i, d in enumerate(docs) if d["kind"] == "observation")
+        assert docs.index(notes[0]) < next(
+            i for i, d in enumerate(docs) if d["kind"] == "observation"
+        )
 
     def test_same_far_off_reading_twice_is_kept(self, tmp_path, demo_lab_path):
         """Typing the same far-off reading again confirms it."""
@@ -202,8 +224,9 @@ class TestUndo:
     def test_undo_withdraws_the_last_reading_and_measures_it_again(self, tmp_path, demo_lab_path):
         """`undo` at step 2 journals a withdrawal of step 1's reading, measures step 1 again, then
         step 2; the record holds the new reading and says what was withdrawn."""
-        docs, out, typist, raw, finished = run_typing(tmp_path, demo_lab_path,
-                                                      ["", "5.5", "undo", "5.05", "10", *PLAIN[3:]])
+        docs, out, typist, raw, finished = run_typing(
+            tmp_path, demo_lab_path, ["", "5.5", "undo", "5.05", "10", *PLAIN[3:]]
+        )
         kinds = [d["kind"] for d in docs if d["kind"] in ("observation", "withdrawal")]
         assert kinds[:4] == ["observation", "withdrawal", "observation", "observation"]
         withdrawal = next(d for d in docs if d["kind"] == "withdrawal")
@@ -217,10 +240,16 @@ class TestUndo:
     def test_undo_on_another_range_asks_for_the_leads_again(self, tmp_path, demo_lab_path):
         """Undo at the first step of a new range goes back to the earlier range and asks for its
         leads, then for this range's again."""
-        docs, out, typist, *_ = run_typing(tmp_path, demo_lab_path,
-                                           ["", "5", "10", "", "undo", "", "9.9", "", "10", *PLAIN[5:]])
+        docs, out, typist, *_ = run_typing(
+            tmp_path, demo_lab_path, ["", "5", "10", "", "undo", "", "9.9", "", "10", *PLAIN[5:]]
+        )
         # The journal keeps the withdrawn 10 V; step 2's 9.9 V supersedes it, then step 3's 10 mA.
-        assert [(n, t) for n, t, _ in readings(docs)][:4] == [(1, "5"), (2, "10"), (2, "9.9"), (3, "10")]
+        assert [(n, t) for n, t, _ in readings(docs)][:4] == [
+            (1, "5"),
+            (2, "10"),
+            (2, "9.9"),
+            (3, "10"),
+        ]
         assert sum("Press Enter" in p for p in typist.prompts) == 6
 
     def test_nothing_to_undo(self, tmp_path, demo_lab_path):
@@ -231,8 +260,12 @@ class TestUndo:
     def test_a_withdrawn_point_is_pending_on_resume(self):
         """A step whose entry was withdrawn is measured again when the run is resumed; a step is
         told by its index, so a repeat of the same value is a step of its own."""
-        docs = [{"kind": "observation", "point": "a", "index": 0}, {"kind": "observation", "point": "b", "index": 1},
-                {"kind": "observation", "point": "b", "index": 2}, {"kind": "withdrawal", "point": "b", "index": 2}]
+        docs = [
+            {"kind": "observation", "point": "a", "index": 0},
+            {"kind": "observation", "point": "b", "index": 1},
+            {"kind": "observation", "point": "b", "index": 2},
+            {"kind": "withdrawal", "point": "b", "index": 2},
+        ]
         assert confirmed_steps(docs) == frozenset({0, 1})
 
 
@@ -286,8 +319,9 @@ class Terminal:
         fcntl.ioctl(slave, termios.TIOCSWINSZ, struct.pack("HHHH", 40, columns, 0, 0))
         env = {k: v for k, v in os.environ.items() if k not in ("COLUMNS", "LINES")}
         env["TERM"] = "xterm"
-        self.proc = subprocess.Popen(args, stdin=slave, stdout=slave, stderr=slave, cwd=cwd, env=env,
-                                     close_fds=True)
+        self.proc = subprocess.Popen(
+            args, stdin=slave, stdout=slave, stderr=slave, cwd=cwd, env=env, close_fds=True
+        )
         os.close(slave)
         self.seen = ""
 
@@ -296,7 +330,9 @@ class Terminal:
         while text not in self.seen:
             left = end - time.monotonic()
             if left <= 0:
-                raise AssertionError(f"{text!r} did not show; the terminal showed:\n{self.seen[-2000:]}")
+                raise AssertionError(
+                    f"{text!r} did not show; the terminal showed:\n{self.seen[-2000:]}"
+                )
             ready, _, _ = select.select([self.master], [], [], left)
             if ready:
                 try:
@@ -304,7 +340,9 @@ class Terminal:
                 except OSError:
                     chunk = b""
                 if not chunk:
-                    raise AssertionError(f"{text!r} did not show before the end:\n{self.seen[-2000:]}")
+                    raise AssertionError(
+                        f"{text!r} did not show before the end:\n{self.seen[-2000:]}"
+                    )
                 self.seen += chunk.decode("utf-8", "replace")
         index = self.seen.index(text) + len(text)
         shown, self.seen = self.seen[:index], self.seen[index:]
@@ -327,10 +365,31 @@ class TestAtTheTerminal:
         """In a pseudo-terminal: a value at the leads prompt refused, a decimal comma refused, a
         gross reading asked about, undo, a bare number in mA, `y` at the hazard prompt, the
         pointer position shown; the run completes and the journal holds what was meant."""
-        term = Terminal([sys.executable, "-m", "verirun", "run", str(DATA / "bench-meter.yaml"), "--bench",
-                         str(DATA / "bench-test.yaml"), "--simulate", "--serial", "PTY-1", "--customer", "C",
-                         "--temperature", "23", "--humidity", "40", "--runs", "runs", "--reports", "rep"],
-                        cwd=tmp_path)
+        term = Terminal(
+            [
+                sys.executable,
+                "-m",
+                "verirun",
+                "run",
+                str(DATA / "bench-meter.yaml"),
+                "--bench",
+                str(DATA / "bench-test.yaml"),
+                "--simulate",
+                "--serial",
+                "PTY-1",
+                "--customer",
+                "C",
+                "--temperature",
+                "23",
+                "--humidity",
+                "40",
+                "--runs",
+                "runs",
+                "--reports",
+                "rep",
+            ],
+            cwd=tmp_path,
+        )
         try:
             # Not given on the command line: the condition on receipt is asked, in words.
             term.expect("Condition of the item on receipt")
@@ -349,26 +408,26 @@ class TestAtTheTerminal:
             term.type("8")
             term.expect("tolerances from the nominal 5 V")
             term.type("5")
-            term.expect("reading in V")   # step 3, 10 V
+            term.expect("reading in V")  # step 3, 10 V
             term.type("undo")
             term.expect("withdrawn")
-            term.expect("reading in V")   # step 2 again
+            term.expect("reading in V")  # step 2 again
             term.type("5.05")
-            term.expect("reading in V")   # step 3
+            term.expect("reading in V")  # step 3
             term.type("9.9")
-            term.expect("Press Enter")    # dcv-100
+            term.expect("Press Enter")  # dcv-100
             term.type("")
             term.expect("(or y)")
             term.type("y")
             term.expect("reading in V")
             term.type("80.5")
-            term.expect("Press Enter")    # dca-50m
+            term.expect("Press Enter")  # dca-50m
             term.type("")
             term.expect("reading in mA")
             term.type("10.25")
             term.expect("reading in mA")
             term.type("49.5 mA")
-            term.expect("Press Enter")    # ohm-x1
+            term.expect("Press Enter")  # ohm-x1
             term.type("")
             term.expect("pointer expected at 80.0° from the left end, on the 3 Ω mark")
             term.expect("reading in Ω")
@@ -384,6 +443,17 @@ class TestAtTheTerminal:
         run_dir = next((tmp_path / "runs").iterdir())
         docs = read_journal(run_dir / "journal.jsonl").documents
         got = readings(docs)
-        assert [t for _, t, _ in got] == ["2.05", "5", "5.05", "9.9", "80.5", "10.25", "49.5 mA", "3.1", "12", "47"]
+        assert [t for _, t, _ in got] == [
+            "2.05",
+            "5",
+            "5.05",
+            "9.9",
+            "80.5",
+            "10.25",
+            "49.5 mA",
+            "3.1",
+            "12",
+            "47",
+        ]
         assert got[5][2] == pytest.approx(0.01025)
         assert sum(d["kind"] == "withdrawal" for d in docs) == 1

@@ -8,19 +8,30 @@ import datetime as dt
 import json
 
 import pytest
-
-from runkit import BENCH, PROCEDURE, READINGS, STEPS, cli, documents, only_run, readings_file, record, run_args
+from runkit import (
+    BENCH,
+    PROCEDURE,
+    READINGS,
+    STEPS,
+    cli,
+    documents,
+    only_run,
+    readings_file,
+    record,
+    run_args,
+)
 from test_steps import _rechained
+
 from verirun.bench.config import load_bench
 from verirun.clock import VirtualClock
+from verirun.conduct import execute, resume
 from verirun.console import QuietConsole
 from verirun.engine import RunContext
 from verirun.errors import BenchError
-from verirun.record.verify import problems
 from verirun.lab import load_lab
 from verirun.procedure.load import load_procedure
 from verirun.readings import ScriptedReadings
-from verirun.conduct import execute, resume
+from verirun.record.verify import problems
 
 
 def journal_line(run_dir, number: int) -> str:
@@ -36,15 +47,35 @@ def replace_line(run_dir, number: int, text: str) -> None:
 
 # Each crafted second line (the first observation) and what the report must say about it.
 CRAFTED = {
-    "NaN reading": (lambda line: line.replace('"reading":2.05', '"reading":NaN'), "NaN is not a number"),
-    "text for a number": (lambda line: line.replace('"reading":2.05', '"reading":"2.05"'), "field reading: Input should be a valid number"),
-    "missing key": (lambda line: line.replace(',"typed":"2.05"', ''), "field typed: Field required"),
-    "duplicate key": (lambda line: line.replace('"reading":2.05', '"reading":2.05,"reading":2.5'), "appears twice"),
-    "deep nesting": (lambda line: line.replace('"typed":"2.05"', '"typed":' + "[" * 100000 + "]" * 100000),
-                     "nested too deep"),
+    "NaN reading": (
+        lambda line: line.replace('"reading":2.05', '"reading":NaN'),
+        "NaN is not a number",
+    ),
+    "text for a number": (
+        lambda line: line.replace('"reading":2.05', '"reading":"2.05"'),
+        "field reading: Input should be a valid number",
+    ),
+    "missing key": (
+        lambda line: line.replace(',"typed":"2.05"', ""),
+        "field typed: Field required",
+    ),
+    "duplicate key": (
+        lambda line: line.replace('"reading":2.05', '"reading":2.05,"reading":2.5'),
+        "appears twice",
+    ),
+    "deep nesting": (
+        lambda line: line.replace('"typed":"2.05"', '"typed":' + "[" * 100000 + "]" * 100000),
+        "nested too deep",
+    ),
     "an array": (lambda line: "[1, 2, 3]", "not a JSON object"),
-    "unknown kind": (lambda line: line.replace('"kind":"observation"', '"kind":"verdict"'), "unknown document kind"),
-    "a boolean seq": (lambda line: line.replace('"seq":', '"seq":true,"x":'), "field seq: Input should be a valid integer"),
+    "unknown kind": (
+        lambda line: line.replace('"kind":"observation"', '"kind":"verdict"'),
+        "unknown document kind",
+    ),
+    "a boolean seq": (
+        lambda line: line.replace('"seq":', '"seq":true,"x":'),
+        "field seq: Input should be a valid integer",
+    ),
 }
 
 
@@ -64,8 +95,10 @@ class TestCraftedJournals:
         assert expected in capsys.readouterr().err
         assert cli("certify", run_dir, "--reports", tmp_path / "again") == 1
 
-    @pytest.mark.parametrize("field, value", [("item", "[]"), ("operator", "7"), ("bench", '{"text": 1}'),
-                                              ("procedure", "null")])
+    @pytest.mark.parametrize(
+        "field, value",
+        [("item", "[]"), ("operator", "7"), ("bench", '{"text": 1}'), ("procedure", "null")],
+    )
     def test_a_crafted_start_is_reported(self, tmp_path, field, value, capsys):
         """A start document with a field of the wrong shape (its chain rebuilt to match)."""
         assert cli(*run_args(tmp_path)) == 0
@@ -90,9 +123,17 @@ class TestCraftedJournals:
 
 
 class TestCraftedRecords:
-    @pytest.mark.parametrize("text", ['{"record_format": 2, "run": NaN}', '{"record_format": "2"}',
-                                      '{"record_format": 2, "record_format": 1}', "[" * 50000,
-                                      '{"record_format": true}', "\udcff"])
+    @pytest.mark.parametrize(
+        "text",
+        [
+            '{"record_format": 2, "run": NaN}',
+            '{"record_format": "2"}',
+            '{"record_format": 2, "record_format": 1}',
+            "[" * 50000,
+            '{"record_format": true}',
+            "\udcff",
+        ],
+    )
     def test_verify_reports_a_crafted_record(self, tmp_path, text, capsys):
         assert cli(*run_args(tmp_path)) == 0
         run_dir = only_run(tmp_path / "runs")
@@ -103,8 +144,14 @@ class TestCraftedRecords:
 
 
 class TestListingSkipsABadFolder:
-    @pytest.mark.parametrize("bad", ['{"record_format": 2, "run": []}', '{"record_format": 2, "run": {"status":'
-                                     ' "complete"}, "item": 3}', "nonsense"])
+    @pytest.mark.parametrize(
+        "bad",
+        [
+            '{"record_format": 2, "run": []}',
+            '{"record_format": 2, "run": {"status": "complete"}, "item": 3}',
+            "nonsense",
+        ],
+    )
     def test_the_other_runs_are_listed_and_the_bad_one_named(self, tmp_path, bad, capsys):
         assert cli(*run_args(tmp_path, serial="GOOD-1")) == 0
         assert cli(*run_args(tmp_path, serial="GOOD-2")) == 0
@@ -132,8 +179,13 @@ class TestListingSkipsABadFolder:
 
 def _context() -> RunContext:
     lab = load_lab(STEPS / "lab.yaml").lab.model_dump(mode="json")
-    return RunContext(lab=lab, customer={"name": "C", "address": []}, item={"serial": "CLK-1"},
-                      operator="tester", simulated=True)
+    return RunContext(
+        lab=lab,
+        customer={"name": "C", "address": []},
+        item={"serial": "CLK-1"},
+        operator="tester",
+        simulated=True,
+    )
 
 
 class JumpingClock(VirtualClock):
@@ -156,9 +208,17 @@ class TestDates:
         2026-11-30 19:00): every document keeps a time no earlier than the one before, the jump is
         journaled, and the issue date is not before the calibration date."""
         start = dt.datetime(2026, 12, 1, 0, 0, 20, tzinfo=dt.timezone.utc)
-        finished = execute(procedure=load_procedure(PROCEDURE), bench=load_bench(BENCH), context=_context(),
-                           readings=ScriptedReadings(READINGS), console=QuietConsole(), runs_dir=tmp_path / "runs",
-                           reports_dir=tmp_path / "reports", simulate=True, clock=JumpingClock(start, after=8))
+        finished = execute(
+            procedure=load_procedure(PROCEDURE),
+            bench=load_bench(BENCH),
+            context=_context(),
+            readings=ScriptedReadings(READINGS),
+            console=QuietConsole(),
+            runs_dir=tmp_path / "runs",
+            reports_dir=tmp_path / "reports",
+            simulate=True,
+            clock=JumpingClock(start, after=8),
+        )
         times = [d["time"] for d in documents(finished.run_dir)]
         assert times == sorted(times)
         jumps = [d for d in documents(finished.run_dir) if d.get("clock_went_back")]
@@ -175,12 +235,22 @@ class TestDates:
         midnight (the output in standby), cannot resume on the same bench file, and resumes on
         one naming the renewed calibration; the record says so."""
         bench_path = tmp_path / "bench.yaml"
-        bench_path.write_text(BENCH.read_text().replace("calibration-due: 2099-12-31", "calibration-due: 2026-12-01"))
+        bench_path.write_text(
+            BENCH.read_text().replace("calibration-due: 2099-12-31", "calibration-due: 2026-12-01")
+        )
         clock = VirtualClock(dt.datetime(2026, 12, 1, 23, 59, 50, tzinfo=dt.timezone.utc), tick=2)
         with pytest.raises(BenchError) as caught:
-            execute(procedure=load_procedure(PROCEDURE), bench=load_bench(bench_path), context=_context(),
-                    readings=ScriptedReadings(READINGS), console=QuietConsole(), runs_dir=tmp_path / "runs",
-                    reports_dir=tmp_path / "reports", simulate=True, clock=clock)
+            execute(
+                procedure=load_procedure(PROCEDURE),
+                bench=load_bench(bench_path),
+                context=_context(),
+                readings=ScriptedReadings(READINGS),
+                console=QuietConsole(),
+                runs_dir=tmp_path / "runs",
+                reports_dir=tmp_path / "reports",
+                simulate=True,
+                clock=clock,
+            )
         assert "fell due for calibration on 2026-12-01" in str(caught.value)
         run_dir = caught.value.run_dir
         docs = documents(run_dir)
@@ -188,16 +258,35 @@ class TestDates:
         measured = sum(d["kind"] == "observation" for d in docs)
         assert 0 < measured < 5
         with pytest.raises(Exception, match="overdue|due for calibration"):
-            resume(run_dir=run_dir, procedure_path=None, bench_path=None, readings=ScriptedReadings(READINGS),
-                   console=QuietConsole(), reports_dir=tmp_path / "reports", clock=clock)
+            resume(
+                run_dir=run_dir,
+                procedure_path=None,
+                bench_path=None,
+                readings=ScriptedReadings(READINGS),
+                console=QuietConsole(),
+                reports_dir=tmp_path / "reports",
+                clock=clock,
+            )
         renewed = tmp_path / "renewed.yaml"
-        renewed.write_text(bench_path.read_text().replace("calibration-due: 2026-12-01", "calibration-due: 2027-12-01")
-                           .replace("certificate: TH-CC-2026-0117", "certificate: TH-CC-2026-0999"))
-        finished = resume(run_dir=run_dir, procedure_path=None, bench_path=renewed,
-                          readings=ScriptedReadings(READINGS), console=QuietConsole(),
-                          reports_dir=tmp_path / "reports", clock=clock)
+        renewed.write_text(
+            bench_path.read_text()
+            .replace("calibration-due: 2026-12-01", "calibration-due: 2027-12-01")
+            .replace("certificate: TH-CC-2026-0117", "certificate: TH-CC-2026-0999")
+        )
+        finished = resume(
+            run_dir=run_dir,
+            procedure_path=None,
+            bench_path=renewed,
+            readings=ScriptedReadings(READINGS),
+            console=QuietConsole(),
+            reports_dir=tmp_path / "reports",
+            clock=clock,
+        )
         assert finished.record["run"]["status"] == "complete"
-        assert any("renewed" in n["text"] and "TH-CC-2026-0999" in n["text"] for n in finished.record["notes"])
+        assert any(
+            "renewed" in n["text"] and "TH-CC-2026-0999" in n["text"]
+            for n in finished.record["notes"]
+        )
         assert problems(run_dir) == []
 
     def test_a_bench_changed_in_more_than_the_standard_s_calibration_is_refused(self, tmp_path):

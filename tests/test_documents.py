@@ -13,10 +13,14 @@ from pydantic import ValidationError
 from verirun.record.documents import journal_schema, validate_document
 
 STORED = Path(__file__).resolve().parent / "data" / "stored-runs"
-LINES = [(f"{path.parent.name}:{number}", json.loads(line))
-         for path in sorted(STORED.glob("*/journal.jsonl"))
-         for number, line in enumerate(path.read_text(encoding="utf-8").splitlines(), start=1)]
-SHIPPED = json.loads((files("verirun") / "schema" / "journal.schema.json").read_text(encoding="utf-8"))
+LINES = [
+    (f"{path.parent.name}:{number}", json.loads(line))
+    for path in sorted(STORED.glob("*/journal.jsonl"))
+    for number, line in enumerate(path.read_text(encoding="utf-8").splitlines(), start=1)
+]
+SHIPPED = json.loads(
+    (files("verirun") / "schema" / "journal.schema.json").read_text(encoding="utf-8")
+)
 
 
 def _observation() -> dict:
@@ -43,7 +47,14 @@ class TestShippedSchema:
     def test_stored_runs_hold_every_kind(self):
         """The stored journals hold a document of every kind, so each model is tried on real data."""
         assert {doc["kind"] for _, doc in LINES} == {
-            "start", "resume", "observation", "skip", "note", "correction", "stop"}
+            "start",
+            "resume",
+            "observation",
+            "skip",
+            "note",
+            "correction",
+            "stop",
+        }
 
 
 class TestValidateDocument:
@@ -98,8 +109,14 @@ class TestOptionalInputs:
 class TestCertificateNumber:
     def _number(self) -> dict:
         after = next(doc for _, doc in LINES if doc["kind"] == "stop")
-        return {"kind": "certificate-number", "seq": after["seq"] + 1, "prev": "0" * 64,
-                "time": after["time"], "number": "LAB-2026-00001", "register_url": "/srv/lab/register.db"}
+        return {
+            "kind": "certificate-number",
+            "seq": after["seq"] + 1,
+            "prev": "0" * 64,
+            "time": after["time"],
+            "number": "LAB-2026-00001",
+            "register_url": "/srv/lab/register.db",
+        }
 
     def test_is_a_document_of_the_schema_and_frozen(self):
         doc = self._number()

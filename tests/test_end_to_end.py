@@ -17,13 +17,13 @@ from verirun.bench.sim import SIM_RESOURCE, sim_library
 from verirun.certificate.render import write_certificate
 from verirun.cli import main
 from verirun.clock import VirtualClock
+from verirun.conduct import execute
 from verirun.console import QuietConsole
 from verirun.engine import RunContext
 from verirun.lab import load_lab
 from verirun.procedure.load import load_procedure
 from verirun.readings import ScriptedReadings
 from verirun.record.journal import load_record, read_journal
-from verirun.conduct import execute
 
 # Expected verdicts of the scripted readings (tests/data/qm40-readings.csv), each worked by hand:
 # linear ranges: limits = nominal ± percent × full scale / 100 (percent of full scale, and a
@@ -33,24 +33,24 @@ from verirun.conduct import execute
 # series ohms: deflection θ = arc × Rc/(Rc+Rx), window θ0 ± 3°, limits Rx = Rc (arc - θ)/θ
 # (derived from f = Rc/(Rc+Rx)); here arc = 90° and Rc = 16 Ω (×1) or 16 kΩ (×1k).
 EXPECTED = {
-    "dcv-6@1.2V": "pass",        # 1.25 in 1.05..1.35 (class 2.5 of 6 V = 0.15 V)
+    "dcv-6@1.2V": "pass",  # 1.25 in 1.05..1.35 (class 2.5 of 6 V = 0.15 V)
     "dcv-6@2.4V": "pass",
-    "dcv-6@3.6V": "pass",        # 3.75 exactly on the upper limit 3.6 + 0.15: included
-    "dcv-6@4.8V": "fail",        # 4.6 below 4.8 - 0.15 = 4.65
-    "dcv-6@6V": "pass",        # 6.1 in 5.85..6.15
-    "dcv-30@6V": "pass",       # 6.5 in 5.25..6.75 (class 2.5 of 30 V = 0.75 V)
+    "dcv-6@3.6V": "pass",  # 3.75 exactly on the upper limit 3.6 + 0.15: included
+    "dcv-6@4.8V": "fail",  # 4.6 below 4.8 - 0.15 = 4.65
+    "dcv-6@6V": "pass",  # 6.1 in 5.85..6.15
+    "dcv-30@6V": "pass",  # 6.5 in 5.25..6.75 (class 2.5 of 30 V = 0.75 V)
     "dcv-30@15V": "pass",
-    "dcv-30@30V": "pass",      # 30.75 exactly on the upper limit: included
-    "dca-30m@6mA": "pass",    # 6.5 mA in 5.1..6.9 mA (3 % of 30 mA = 0.9 mA)
-    "dca-30m@15mA": "pass",    # 15.8 mA (typed in amperes, 0.0158) below 15.9 mA
-    "dca-30m@30mA": "fail",     # 29 mA below 29.1 mA
-    "acv-30@6V@50Hz": "pass",   # 6 in 4.8..7.2 (4 % of 30 V = 1.2 V)
+    "dcv-30@30V": "pass",  # 30.75 exactly on the upper limit: included
+    "dca-30m@6mA": "pass",  # 6.5 mA in 5.1..6.9 mA (3 % of 30 mA = 0.9 mA)
+    "dca-30m@15mA": "pass",  # 15.8 mA (typed in amperes, 0.0158) below 15.9 mA
+    "dca-30m@30mA": "fail",  # 29 mA below 29.1 mA
+    "acv-30@6V@50Hz": "pass",  # 6 in 4.8..7.2 (4 % of 30 V = 1.2 V)
     "acv-30@15V@50Hz": "pass",  # 15.5 in 13.8..16.2
     "acv-30@30V@50Hz": "pass",
-    "ohm-x1@4ohm": "pass",       # θ0 = 90 × 16/20 = 72°; 69°..75° -> 4.8696 .. 3.2 Ω; 4.5 in
-    "ohm-x1@16ohm": "pass",      # θ0 = 45°; 42°..48° -> 18.286 .. 14 Ω; 15 in
-    "ohm-x1@64ohm": "fail",      # θ0 = 90 × 16/80 = 18°; 15°..21° -> 80 .. 52.571 Ω; 85 above 80
-    "ohm-x1k@4kohm": "pass",   # 3.2 .. 4.8696 kΩ; 4 kΩ in
+    "ohm-x1@4ohm": "pass",  # θ0 = 90 × 16/20 = 72°; 69°..75° -> 4.8696 .. 3.2 Ω; 4.5 in
+    "ohm-x1@16ohm": "pass",  # θ0 = 45°; 42°..48° -> 18.286 .. 14 Ω; 15 in
+    "ohm-x1@64ohm": "fail",  # θ0 = 90 × 16/80 = 18°; 15°..21° -> 80 .. 52.571 Ω; 85 above 80
+    "ohm-x1k@4kohm": "pass",  # 3.2 .. 4.8696 kΩ; 4 kΩ in
     "ohm-x1k@16kohm": "fail",  # 14 .. 18.286 kΩ; 18.5 kΩ above
     "ohm-x1k@500kohm": "pass",  # θ0 = 90 × 16/516 = 2.7907° < 3°: unbounded above; 1 MΩ in
 }
@@ -93,24 +93,38 @@ def run_demo(tmp_path, sim, demo_procedure_path, demo_bench_path, demo_lab_path,
     recorder = Recorder(sim)
     calibrator = Calibrator(recorder, "scpi-generic")
     lab = load_lab(demo_lab_path)
-    context = RunContext(lab=lab.lab.model_dump(mode="json"), customer={"name": "Test customer", "address": []},
-                         item={"serial": "SN-1", "asset": None, "condition": "as new"},
-                         operator="tester", simulated=True)
-    finished = execute(procedure=load_procedure(demo_procedure_path), bench=load_bench(demo_bench_path),
-                       context=context, readings=ScriptedReadings(data_dir / "qm40-readings.csv"),
-                       console=QuietConsole(), runs_dir=tmp_path / "runs", reports_dir=tmp_path / "reports",
-                       simulate=True, clock=VirtualClock(dt.datetime(2026, 12, 1, 9, 0, tzinfo=dt.timezone.utc)),
-                       uid="0123456789abcdef0123456789abcdef", calibrator=calibrator)
+    context = RunContext(
+        lab=lab.lab.model_dump(mode="json"),
+        customer={"name": "Test customer", "address": []},
+        item={"serial": "SN-1", "asset": None, "condition": "as new"},
+        operator="tester",
+        simulated=True,
+    )
+    finished = execute(
+        procedure=load_procedure(demo_procedure_path),
+        bench=load_bench(demo_bench_path),
+        context=context,
+        readings=ScriptedReadings(data_dir / "qm40-readings.csv"),
+        console=QuietConsole(),
+        runs_dir=tmp_path / "runs",
+        reports_dir=tmp_path / "reports",
+        simulate=True,
+        clock=VirtualClock(dt.datetime(2026, 12, 1, 9, 0, tzinfo=dt.timezone.utc)),
+        uid="0123456789abcdef0123456789abcdef",
+        calibrator=calibrator,
+    )
     return finished, recorder
 
 
 class TestDemoEndToEnd:
-    def test_verdicts_commands_output_off_and_certificate(self, tmp_path, sim, demo_procedure_path,
-                                                          demo_bench_path, demo_lab_path, data_dir):
+    def test_verdicts_commands_output_off_and_certificate(
+        self, tmp_path, sim, demo_procedure_path, demo_bench_path, demo_lab_path, data_dir
+    ):
         """The demo run gives the hand-worked verdicts, drives the calibrator point by point,
         leaves its output off, and `certify` reproduces the certificate byte for byte."""
-        finished, recorder = run_demo(tmp_path, sim, demo_procedure_path, demo_bench_path, demo_lab_path,
-                                      data_dir)
+        finished, recorder = run_demo(
+            tmp_path, sim, demo_procedure_path, demo_bench_path, demo_lab_path, data_dir
+        )
         record = finished.record
         verdicts = {row["key"]: row["verdict"] for row in record["points"]}
         assert verdicts == EXPECTED
@@ -123,17 +137,35 @@ class TestDemoEndToEnd:
         assert sent[0] == "*IDN?"
         sources = [c for c in sent if c.split()[0] in ("VOLT", "CURR", "RES")]
         # Values go out in full precision (Python's shortest round-trip repr of the float).
-        assert sources == ["VOLT 1.2", "VOLT 2.4", "VOLT 3.6", "VOLT 4.8", "VOLT 6.0", "VOLT 6.0",
-                           "VOLT 15.0", "VOLT 30.0", "CURR 0.006", "CURR 0.015", "CURR 0.03", "VOLT 6.0",
-                           "VOLT 15.0", "VOLT 30.0", "RES 4.0", "RES 16.0", "RES 64.0", "RES 4000.0",
-                           "RES 16000.0", "RES 500000.0"]
+        assert sources == [
+            "VOLT 1.2",
+            "VOLT 2.4",
+            "VOLT 3.6",
+            "VOLT 4.8",
+            "VOLT 6.0",
+            "VOLT 6.0",
+            "VOLT 15.0",
+            "VOLT 30.0",
+            "CURR 0.006",
+            "CURR 0.015",
+            "CURR 0.03",
+            "VOLT 6.0",
+            "VOLT 15.0",
+            "VOLT 30.0",
+            "RES 4.0",
+            "RES 16.0",
+            "RES 64.0",
+            "RES 4000.0",
+            "RES 16000.0",
+            "RES 500000.0",
+        ]
         assert sent.count("FREQ 50.0") == 3
         assert sent.count("OUTP ON") == 20
         # Between any two "output on" commands there is a standby.
         on_positions = [i for i, c in enumerate(sent) if c == "OUTP ON"]
         for a, b in zip(on_positions, on_positions[1:]):
             assert "OUTP OFF" in sent[a:b]
-        assert sent[on_positions[-1]:].count("OUTP OFF") >= 1
+        assert sent[on_positions[-1] :].count("OUTP OFF") >= 1
         # Read back from the device itself, not from the driver: the output is off.
         assert sim.query("OUTP?").strip() in ("0", "OFF")
         # Every observation was journaled, each in order, chained.
@@ -147,14 +179,20 @@ class TestDemoEndToEnd:
         assert main(["certify", str(finished.run_dir), "--reports", str(tmp_path / "again")]) == 0
         again = (tmp_path / "again" / finished.certificate.name).read_bytes()
         assert again == first
-        assert write_certificate(load_record(finished.record_path), tmp_path / "third").read_bytes() == first
+        assert (
+            write_certificate(load_record(finished.record_path), tmp_path / "third").read_bytes()
+            == first
+        )
 
-    def test_record_holds_what_the_run_used(self, tmp_path, sim, demo_procedure_path, demo_bench_path,
-                                            demo_lab_path, data_dir):
+    def test_record_holds_what_the_run_used(
+        self, tmp_path, sim, demo_procedure_path, demo_bench_path, demo_lab_path, data_dir
+    ):
         """The run record embeds the procedure text and hash, the bench identity and every window."""
         import hashlib
 
-        finished, _ = run_demo(tmp_path, sim, demo_procedure_path, demo_bench_path, demo_lab_path, data_dir)
+        finished, _ = run_demo(
+            tmp_path, sim, demo_procedure_path, demo_bench_path, demo_lab_path, data_dir
+        )
         record = json.loads(finished.record_path.read_text())
         text = demo_procedure_path.read_text(encoding="utf-8")
         assert record["procedure"]["text"] == text
@@ -180,7 +218,9 @@ class TestDemoEndToEnd:
 class TestDemoCommand:
     def test_demo_writes_a_failing_certificate(self, tmp_path, capsys):
         """`verirun demo` runs on the simulated bench and writes a certificate with a failing point."""
-        code = main(["demo", "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "reports")])
+        code = main(
+            ["demo", "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "reports")]
+        )
         assert code == 0
         certs = list((tmp_path / "reports").glob("*.html"))
         assert len(certs) == 1

@@ -58,7 +58,9 @@ PROCEDURE = textwrap.dedent("""\
 
 
 def points(procedure_text=PROCEDURE, bench_text=BENCH):
-    return plan(load_procedure_text(procedure_text, "proc.yaml"), load_bench_text(bench_text, "bench.yaml"))
+    return plan(
+        load_procedure_text(procedure_text, "proc.yaml"), load_bench_text(bench_text, "bench.yaml")
+    )
 
 
 class TestCalibratorSpecFromBench:
@@ -75,22 +77,29 @@ class TestCalibratorSpecFromBench:
         """A specification with no stated level is a rectangular distribution: u = a/sqrt 3
         (GUM 4.3.7)."""
         line = load_bench_text(BENCH, "bench.yaml").spec_for("resistance", 12.0, None)
-        assert line.spec.standard_uncertainty(output=12.0) == pytest.approx(12.0 * 1e-4 / math.sqrt(3))
+        assert line.spec.standard_uncertainty(output=12.0) == pytest.approx(
+            12.0 * 1e-4 / math.sqrt(3)
+        )
 
     def test_no_line_for_a_value_beyond_every_range(self):
         """A value above every listed range has no specification line."""
         assert load_bench_text(BENCH, "bench.yaml").spec_for("dc-voltage", 50.0, None) is None
 
-    @pytest.mark.parametrize("old, new, words", [
-        ("level: 99 %}", "level: 150 %}", "between 0 and 100"),
-        ("output: 10 ppm, floor: 2 uV", "output: 10 V, floor: 2 uV", "ppm or %"),
-        ("floor: 5 uV", "floor: 5 uA", "expected volts"),
-    ])
+    @pytest.mark.parametrize(
+        "old, new, words",
+        [
+            ("level: 99 %}", "level: 150 %}", "between 0 and 100"),
+            ("output: 10 ppm, floor: 2 uV", "output: 10 V, floor: 2 uV", "ppm or %"),
+            ("floor: 5 uV", "floor: 5 uA", "expected volts"),
+        ],
+    )
     def test_bad_lines_name_file_and_line(self, old, new, words):
         """A wrong accuracy line is reported with its file, line and field."""
         with pytest.raises(ProcedureError) as info:
             load_bench_text(BENCH.replace(old, new, 1), "bench.yaml")
-        assert any(p.startswith("bench.yaml:1") and words in p for p in info.value.problems), info.value.problems
+        assert any(p.startswith("bench.yaml:1") and words in p for p in info.value.problems), (
+            info.value.problems
+        )
 
 
 class TestBudgetOfAPoint:
@@ -108,7 +117,7 @@ class TestBudgetOfAPoint:
         df/dRx = Rc/(Rc+Rx)² (derived from f = Rc/(Rc+Rx)) and combined with the readability in
         degrees; U in ohms is U along the arc divided by the slope."""
         point = points()[1]
-        slope = 16.0 / (32.0 ** 2)  # at Rx = Rc = 16 ohm
+        slope = 16.0 / (32.0**2)  # at Rx = Rc = 16 ohm
         u_cal_f = 16.0 * 1e-4 / math.sqrt(3) * slope
         u_res_f = (0.5 / 90) / (2 * math.sqrt(3))
         assert point.budget.domain == "deflection"
@@ -166,20 +175,27 @@ class TestEvaluateUnderARule:
         u = 0.029 / 2  # U as reported (GUM 7.2.6: two significant digits) over k = 2
         y = 10.178
         result = evaluate(point, y)
-        assert result.conformance == pytest.approx(norm.cdf((10.2 - y) / u) - norm.cdf((9.8 - y) / u))
+        assert result.conformance == pytest.approx(
+            norm.cdf((10.2 - y) / u) - norm.cdf((9.8 - y) / u)
+        )
         assert result.verdict == "fail"  # 1 - pc ≈ 6.7 % > 2 %
         assert evaluate(point, 10.0).verdict == "pass"
 
-    @pytest.mark.parametrize("old, new, line, words", [
-        ("rule: guarded}", "rule: guarded, risk-target: 5 %}", 4, "only the risk rule"),
-        ("rule: guarded}", "rule: risk, guard-ratio: 2}", 4, "only the guarded and non-binary"),
-        ("rule: guarded}", "rule: sometimes}", 4, "guarded"),
-    ])
+    @pytest.mark.parametrize(
+        "old, new, line, words",
+        [
+            ("rule: guarded}", "rule: guarded, risk-target: 5 %}", 4, "only the risk rule"),
+            ("rule: guarded}", "rule: risk, guard-ratio: 2}", 4, "only the guarded and non-binary"),
+            ("rule: guarded}", "rule: sometimes}", 4, "guarded"),
+        ],
+    )
     def test_rule_parameters_are_checked(self, old, new, line, words):
         """A rule parameter that the rule does not take is reported with file and line."""
         with pytest.raises(ProcedureError) as info:
             load_procedure_text(PROCEDURE.replace(old, new), "proc.yaml")
-        assert any(p.startswith(f"proc.yaml:{line}:") and words in p for p in info.value.problems), info.value.problems
+        assert any(
+            p.startswith(f"proc.yaml:{line}:") and words in p for p in info.value.problems
+        ), info.value.problems
 
 
 class TestPreflight:
@@ -188,23 +204,43 @@ class TestPreflight:
         (ISO/IEC 17025:2017 6.4.7 and 6.4.13)."""
         pts = points()
         bench = load_bench_text(BENCH, "bench.yaml")
-        found = preflight.problems(pts, bench, load_profile("scpi-generic"), today=dt.date(2030, 1, 2))
+        found = preflight.problems(
+            pts, bench, load_profile("scpi-generic"), today=dt.date(2030, 1, 2)
+        )
         assert any("calibration-due" in p and "overdue" in p for p in found)
-        assert preflight.problems(pts, bench, load_profile("scpi-generic"), today=dt.date(2029, 12, 31)) == []
+        assert (
+            preflight.problems(
+                pts, bench, load_profile("scpi-generic"), today=dt.date(2029, 12, 31)
+            )
+            == []
+        )
 
     def test_point_without_a_specification_line_is_refused(self):
         """A point the calibrator's specification does not cover is refused before the run."""
-        text = PROCEDURE.replace("full-scale: 10 V", "full-scale: 50 V").replace("points: [10 V]", "points: [50 V]")
-        found = preflight.problems(points(text), load_bench_text(BENCH, "bench.yaml"),
-                                   load_profile("scpi-generic"), today=dt.date(2026, 1, 1))
-        assert any(p.startswith("step 1 (dcv-10 at 50 V DC)") and "no accuracy line" in p for p in found)
+        text = PROCEDURE.replace("full-scale: 10 V", "full-scale: 50 V").replace(
+            "points: [10 V]", "points: [50 V]"
+        )
+        found = preflight.problems(
+            points(text),
+            load_bench_text(BENCH, "bench.yaml"),
+            load_profile("scpi-generic"),
+            today=dt.date(2026, 1, 1),
+        )
+        assert any(
+            p.startswith("step 1 (dcv-10 at 50 V DC)") and "no accuracy line" in p for p in found
+        )
 
     def test_point_beyond_the_calibrator_is_refused(self, tmp_path):
         """A point beyond the calibrator's output limits (driver profile) is refused before the run."""
-        text = (PROCEDURE.replace("full-scale: 10 V", "full-scale: 2000 V")
-                .replace("points: [10 V]", "points: [1500 V]"))
-        found = preflight.problems(points(text), load_bench_text(BENCH, "bench.yaml"),
-                                   load_profile("scpi-generic"), today=dt.date(2026, 1, 1))
+        text = PROCEDURE.replace("full-scale: 10 V", "full-scale: 2000 V").replace(
+            "points: [10 V]", "points: [1500 V]"
+        )
+        found = preflight.problems(
+            points(text),
+            load_bench_text(BENCH, "bench.yaml"),
+            load_profile("scpi-generic"),
+            today=dt.date(2026, 1, 1),
+        )
         assert any("cannot source" in p and "1000" in p for p in found)
 
 
@@ -212,7 +248,10 @@ class TestRecordAndCertificate:
     def test_demo_record_states_rule_and_uncertainty(self, tmp_path):
         """The run record and certificate state the decision rule applied (ISO/IEC 17025:2017
         7.8.6.2) and each result's U and TUR."""
-        assert main(["demo", "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "rep")]) == 0
+        assert (
+            main(["demo", "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "rep")])
+            == 0
+        )
         record = json.loads(next((tmp_path / "runs").glob("*/record.json")).read_text())
         assert record["decision_rule"]["statement"].startswith("Simple acceptance")
         row = record["points"][0]
@@ -226,8 +265,23 @@ class TestWindowCommandWithUncertainty:
     def test_tur(self, capsys):
         """Tolerance 9.995 .. 10.005 V with U = 0.0012 V (u = 0.0006): TUR = 0.01/0.0024 = 4.17
         (ANSI/NCSL Z540.3 definition)."""
-        assert main(["window", "--full-scale", "20 V", "--percent-reading", "0.05", "--at", "10 V",
-                     "--u-applied", "0.0006", "--json"]) == 0
+        assert (
+            main(
+                [
+                    "window",
+                    "--full-scale",
+                    "20 V",
+                    "--percent-reading",
+                    "0.05",
+                    "--at",
+                    "10 V",
+                    "--u-applied",
+                    "0.0006",
+                    "--json",
+                ]
+            )
+            == 0
+        )
         out = json.loads(capsys.readouterr().out)
         assert out["U"] == pytest.approx(0.0012)
         assert out["tur"] == pytest.approx(4.1667, abs=1e-4)
@@ -237,31 +291,94 @@ class TestWindowCommandWithUncertainty:
         memory; checked against scipy.stats.norm), which fails a 2 % risk target."""
         from scipy.stats import norm
 
-        assert main(["window", "--full-scale", "20", "--percent-reading", "0.05", "--at", "10",
-                     "--u-applied", "0.0006", "--rule", "risk", "--reading", "10.004", "--json"]) == 0
+        assert (
+            main(
+                [
+                    "window",
+                    "--full-scale",
+                    "20",
+                    "--percent-reading",
+                    "0.05",
+                    "--at",
+                    "10",
+                    "--u-applied",
+                    "0.0006",
+                    "--rule",
+                    "risk",
+                    "--reading",
+                    "10.004",
+                    "--json",
+                ]
+            )
+            == 0
+        )
         out = json.loads(capsys.readouterr().out)
         expected = norm.cdf((10.005 - 10.004) / 0.0006) - norm.cdf((9.995 - 10.004) / 0.0006)
         assert out["pc"] == pytest.approx(expected) and out["pc"] == pytest.approx(0.9522, abs=1e-4)
         assert out["verdict"] == "fail"
 
-    @pytest.mark.parametrize("reading, verdict", [
-        ("9.7", "pass"), ("9.9", "conditional-pass"), ("10.1", "conditional-fail"), ("10.3", "fail"),
-    ])
+    @pytest.mark.parametrize(
+        "reading, verdict",
+        [
+            ("9.7", "pass"),
+            ("9.9", "conditional-pass"),
+            ("10.1", "conditional-fail"),
+            ("10.3", "fail"),
+        ],
+    )
     def test_non_binary_zones(self, capsys, reading, verdict):
         """ILAC-G8:09/2019 4.2.3 with TU = 10, U = 0.2, w = U: 9.7 pass, 9.9 conditional pass,
         10.1 conditional fail, 10.3 fail (lower limit far away: 0 .. 10 V at 5 V ± 5 V)."""
-        assert main(["window", "--full-scale", "10", "--percent-fs", "50", "--at", "5",
-                     "--u-applied", "0.1", "--rule", "non-binary", "--reading", reading, "--json"]) == 0
+        assert (
+            main(
+                [
+                    "window",
+                    "--full-scale",
+                    "10",
+                    "--percent-fs",
+                    "50",
+                    "--at",
+                    "5",
+                    "--u-applied",
+                    "0.1",
+                    "--rule",
+                    "non-binary",
+                    "--reading",
+                    reading,
+                    "--json",
+                ]
+            )
+            == 0
+        )
         out = json.loads(capsys.readouterr().out)
         assert (out["low"], out["high"]) == (0.0, 10.0)
         assert out["verdict"] == verdict
 
     def test_guarded_acceptance_limits(self, capsys):
         """Guarded acceptance with w = U (ILAC-G8:09/2019 4.2.2): limits move inward by U."""
-        assert main(["window", "--full-scale", "10", "--percent-fs", "2", "--at", "5",
-                     "--u-applied", "0.01", "--rule", "guarded", "--json"]) == 0
+        assert (
+            main(
+                [
+                    "window",
+                    "--full-scale",
+                    "10",
+                    "--percent-fs",
+                    "2",
+                    "--at",
+                    "5",
+                    "--u-applied",
+                    "0.01",
+                    "--rule",
+                    "guarded",
+                    "--json",
+                ]
+            )
+            == 0
+        )
         out = json.loads(capsys.readouterr().out)
-        assert out["accept_low"] == pytest.approx(4.8 + 0.02) and out["accept_high"] == pytest.approx(5.2 - 0.02)
+        assert out["accept_low"] == pytest.approx(4.8 + 0.02) and out[
+            "accept_high"
+        ] == pytest.approx(5.2 - 0.02)
 
     def test_resolution_in_degrees_on_ohms(self, capsys):
         """A 0.5 degree resolution on a 90 degree arc is u = (0.5/90)/(2 sqrt 3) of scale length
@@ -269,8 +386,27 @@ class TestWindowCommandWithUncertainty:
         (derived from f = Rc/(Rc+Rx)). U is reported along the arc, in degrees, to two
         significant digits (GUM 7.2.6); the interval in ohms is the scale law's image of
         f0 ± U, not symmetric about 16 Ω."""
-        assert main(["window", "--scale", "series-ohms", "--centre", "16", "--arc", "90", "--degrees", "3",
-                     "--at", "16", "--resolution", "0.5deg", "--json"]) == 0
+        assert (
+            main(
+                [
+                    "window",
+                    "--scale",
+                    "series-ohms",
+                    "--centre",
+                    "16",
+                    "--arc",
+                    "90",
+                    "--degrees",
+                    "3",
+                    "--at",
+                    "16",
+                    "--resolution",
+                    "0.5deg",
+                    "--json",
+                ]
+            )
+            == 0
+        )
         out = json.loads(capsys.readouterr().out)
         u_f = (0.5 / 90) / (2 * math.sqrt(3))
         assert out["U_domain"] == pytest.approx(2 * u_f)
@@ -289,16 +425,41 @@ class TestOpenEndedOhmsWindows:
         """Series ohms, Rc = 10 Ω, 9° of a 90° arc at 190 Ω: f0 = 0.05 < 0.1, so the window is
         unbounded above (derived from f = Rc/(Rc+Rx)); the tolerance is one-sided, TUR is not
         defined, and 490 Ω (f = 0.02, inside) passes under a guard band as under a risk rule."""
-        assert main(["window", "--scale", "series-ohms", "--centre", "10", "--degrees", "9", "--arc", "90",
-                     "--at", "190", "--u-applied", "160", "--rule", rule, "--reading", "490", "--json"]) == 0
+        assert (
+            main(
+                [
+                    "window",
+                    "--scale",
+                    "series-ohms",
+                    "--centre",
+                    "10",
+                    "--degrees",
+                    "9",
+                    "--arc",
+                    "90",
+                    "--at",
+                    "190",
+                    "--u-applied",
+                    "160",
+                    "--rule",
+                    rule,
+                    "--reading",
+                    "490",
+                    "--json",
+                ]
+            )
+            == 0
+        )
         out = json.loads(capsys.readouterr().out)
         assert out["high"] is None and out["tur"] is None and out["accept_high"] is None
         assert out["verdict"] == "pass"
 
 
 class TestHazardThresholds:
-    @pytest.mark.parametrize("key, value", [("hazardous-dc", "1 kV"), ("hazardous-ac-rms", "50 V"),
-                                            ("hazardous-ac-peak", "100 V")])
+    @pytest.mark.parametrize(
+        "key, value",
+        [("hazardous-dc", "1 kV"), ("hazardous-ac-rms", "50 V"), ("hazardous-ac-peak", "100 V")],
+    )
     def test_a_bench_cannot_raise_the_thresholds_past_the_standard(self, key, value):
         """A bench may lower the hazardous-live thresholds but not raise them past 70 V DC,
         33 V rms, 46.7 V peak (IEC 61010-1, the most lenient edition, from memory)."""

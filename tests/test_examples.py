@@ -22,7 +22,11 @@ class TestExampleBench:
 
     def test_only_the_simulated_demo_bench_allows_scripted_hazardous_output(self):
         """Outside the demo's simulated bench (and test fixtures), no shipped file allows it."""
-        allowing = sorted(str(p.relative_to(ROOT)) for p in ROOT.rglob("*.yaml")
-                          if ".venv" not in p.parts and "tests" not in p.parts
-                          and "scripted-hazardous: allow" in p.read_text(encoding="utf-8"))
+        allowing = sorted(
+            str(p.relative_to(ROOT))
+            for p in ROOT.rglob("*.yaml")
+            if ".venv" not in p.parts
+            and "tests" not in p.parts
+            and "scripted-hazardous: allow" in p.read_text(encoding="utf-8")
+        )
         assert allowing == ["verirun/demo/bench-sim.yaml"]

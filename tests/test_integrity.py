@@ -8,23 +8,41 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from verirun.bench.config import load_bench
 from verirun.certificate.render import safe_file_name, write_certificate
 from verirun.cli import main
-from verirun.record.verify import problems
-from verirun.bench.config import load_bench
 from verirun.evaluation import evaluate
 from verirun.procedure.load import load_procedure, load_procedure_text
 from verirun.procedure.plan import plan
-from verirun.record.journal import Journal, dumps, read_journal, verify_chain, write_record
 from verirun.record.build import Known, build_record
+from verirun.record.journal import Journal, dumps, read_journal, verify_chain, write_record
+from verirun.record.verify import problems
 
 
 @pytest.fixture
 def run_dir(tmp_path, data_dir, demo_procedure_path, demo_bench_path):
-    assert main(["run", str(demo_procedure_path), "--bench", str(demo_bench_path), "--simulate",
-                 "--readings", str(data_dir / "qm40-readings.csv"), "--serial", "SN-9",
-                 "--customer", "Test customer", "--runs", str(tmp_path / "runs"),
-                 "--reports", str(tmp_path / "reports")]) == 0
+    assert (
+        main(
+            [
+                "run",
+                str(demo_procedure_path),
+                "--bench",
+                str(demo_bench_path),
+                "--simulate",
+                "--readings",
+                str(data_dir / "qm40-readings.csv"),
+                "--serial",
+                "SN-9",
+                "--customer",
+                "Test customer",
+                "--runs",
+                str(tmp_path / "runs"),
+                "--reports",
+                str(tmp_path / "reports"),
+            ]
+        )
+        == 0
+    )
     (folder,) = (tmp_path / "runs").iterdir()
     return folder
 
@@ -45,7 +63,11 @@ class TestVerify:
         journal = run_dir / "journal.jsonl"
         lines = lines_of(journal)
         index = next(i for i, line in enumerate(lines) if '"typed":"4.6"' in line)
-        lines[index] = lines[index].replace('"typed":"4.6"', '"typed":"4.7"').replace('"reading":4.6', '"reading":4.7')
+        lines[index] = (
+            lines[index]
+            .replace('"typed":"4.6"', '"typed":"4.7"')
+            .replace('"reading":4.6', '"reading":4.7')
+        )
         journal.write_text("".join(lines), encoding="utf-8")
         found = problems(run_dir)
         assert any(f"between document {index + 1}" in p for p in found), found
@@ -60,7 +82,9 @@ class TestVerify:
         del lines[5]
         journal.write_text("".join(lines), encoding="utf-8")
         found = problems(run_dir)
-        assert any("sequence number" in p for p in found) and any("chain breaks" in p for p in found)
+        assert any("sequence number" in p for p in found) and any(
+            "chain breaks" in p for p in found
+        )
 
     def test_reordered_documents_are_reported(self, run_dir):
         """Swapping two documents is reported."""
@@ -90,11 +114,15 @@ class TestVerify:
         """record.json, written a piece at a time, is byte for byte the one-shot canonical
         encoding of the record by the standard library (json.dumps, sorted keys, compact)."""
         record = json.loads((run_dir / "record.json").read_text(encoding="utf-8"))
-        record["notes"].append({"text": "é ✓ \u2028 \"quoted\"", "point": None, "time": "x"})
+        record["notes"].append({"text": 'é ✓ \u2028 "quoted"', "point": None, "time": "x"})
         record["empty"] = []
         written = write_record(record, tmp_path / "again.json").read_bytes()
-        expected = json.dumps(record, sort_keys=True, ensure_ascii=False, allow_nan=False,
-                              separators=(",", ":")) + "\n"
+        expected = (
+            json.dumps(
+                record, sort_keys=True, ensure_ascii=False, allow_nan=False, separators=(",", ":")
+            )
+            + "\n"
+        )
         assert written == expected.encode("utf-8")
         assert (run_dir / "record.json").read_bytes().endswith(b"}\n")
 
@@ -105,9 +133,9 @@ class TestVerify:
         rebuilt = write_record(build_record(docs, "journal"), tmp_path / "rebuilt.json")
         assert rebuilt.read_bytes() == (run_dir / "record.json").read_bytes()
 
-    def test_what_the_run_knew_is_used_only_where_it_is_the_journals_own(self, run_dir,
-                                                                         demo_procedure_path,
-                                                                         demo_bench_path):
+    def test_what_the_run_knew_is_used_only_where_it_is_the_journals_own(
+        self, run_dir, demo_procedure_path, demo_bench_path
+    ):
         """Another procedure text is not taken for the journal's, and an evaluation of another
         reading than the journal's is worked out again."""
         docs = read_journal(run_dir / "journal.jsonl").documents
@@ -127,7 +155,9 @@ class TestVerify:
         """Documents appended by the journal chain to one another from a zero hash."""
         with Journal(tmp_path / "j.jsonl") as journal:
             for n in range(3):
-                journal.append({"kind": "note", "time": "2026-12-01T09:00:00Z", "point": None, "text": str(n)})
+                journal.append(
+                    {"kind": "note", "time": "2026-12-01T09:00:00Z", "point": None, "text": str(n)}
+                )
         docs = read_journal(tmp_path / "j.jsonl").documents
         assert [d["seq"] for d in docs] == [0, 1, 2]
         assert verify_chain(docs) == []
@@ -139,26 +169,49 @@ class TestAmend:
         says which one it replaces (ISO/IEC 17025:2017 7.5.2 and 7.8.8)."""
         first = json.loads((run_dir / "record.json").read_text())
         assert first["run"]["revision"] == 1
-        assert main(["amend", str(run_dir), "--point", "4", "--reading", "4.7", "--reason", "misread the scale",
-                     "--reports", str(run_dir / "certs")]) == 0
+        assert (
+            main(
+                [
+                    "amend",
+                    str(run_dir),
+                    "--point",
+                    "4",
+                    "--reading",
+                    "4.7",
+                    "--reason",
+                    "misread the scale",
+                    "--reports",
+                    str(run_dir / "certs"),
+                ]
+            )
+            == 0
+        )
         kept = json.loads((run_dir / "record.r1.json").read_text())
         assert kept == first
         second = json.loads((run_dir / "record.json").read_text())
         assert second["run"]["revision"] == 2
         row = second["points"][3]
-        assert row["typed"] == "4.7" and row["verdict"] == "pass"  # 4.7 V within 4.65 .. 4.95 V (4.8 V ± 2.5 % of 6 V)
+        assert (
+            row["typed"] == "4.7" and row["verdict"] == "pass"
+        )  # 4.7 V within 4.65 .. 4.95 V (4.8 V ± 2.5 % of 6 V)
         assert row["correction"]["previous_typed"] == "4.6"
         assert problems(run_dir) == []
         (cert,) = (run_dir / "certs").glob("*-R2.html")
         html = cert.read_text()
         assert "replaces certificate" in html and "misread the scale" in html
 
-    @pytest.mark.parametrize("args, words", [
-        (["--point", "99", "--reading", "1", "--reason", "x"], "no step 99"),
-        (["--point", "4", "--reading", "8,15", "--reason", "x"], "decimal point"),
-        (["--point", "4", "--reading", "skip broken", "--reason", "x"], "not an operator command"),
-        (["--point", "nope@1", "--reading", "1", "--reason", "x"], "no point"),
-    ])
+    @pytest.mark.parametrize(
+        "args, words",
+        [
+            (["--point", "99", "--reading", "1", "--reason", "x"], "no step 99"),
+            (["--point", "4", "--reading", "8,15", "--reason", "x"], "decimal point"),
+            (
+                ["--point", "4", "--reading", "skip broken", "--reason", "x"],
+                "not an operator command",
+            ),
+            (["--point", "nope@1", "--reading", "1", "--reason", "x"], "no point"),
+        ],
+    )
     def test_bad_corrections_are_refused(self, run_dir, capsys, args, words):
         """A correction naming no point, or with an unreadable value, is refused with the reason."""
         assert main(["amend", str(run_dir), *args]) == 1
@@ -167,33 +220,79 @@ class TestAmend:
 
 
 class TestEscapingAndFileNames:
-    def test_customer_script_is_escaped_on_the_certificate(self, tmp_path, data_dir, demo_procedure_path,
-                                                           demo_bench_path):
+    def test_customer_script_is_escaped_on_the_certificate(
+        self, tmp_path, data_dir, demo_procedure_path, demo_bench_path
+    ):
         """Text from the user reaches the certificate escaped: a <script> in a customer name is
         shown as text, never run."""
-        assert main(["run", str(demo_procedure_path), "--bench", str(demo_bench_path), "--simulate",
-                     "--readings", str(data_dir / "qm40-readings.csv"), "--serial", "<b>SN</b>",
-                     "--customer", "<script>alert('x')</script>", "--runs", str(tmp_path / "runs"),
-                     "--reports", str(tmp_path / "reports")]) == 0
+        assert (
+            main(
+                [
+                    "run",
+                    str(demo_procedure_path),
+                    "--bench",
+                    str(demo_bench_path),
+                    "--simulate",
+                    "--readings",
+                    str(data_dir / "qm40-readings.csv"),
+                    "--serial",
+                    "<b>SN</b>",
+                    "--customer",
+                    "<script>alert('x')</script>",
+                    "--runs",
+                    str(tmp_path / "runs"),
+                    "--reports",
+                    str(tmp_path / "reports"),
+                ]
+            )
+            == 0
+        )
         (cert,) = (tmp_path / "reports").glob("*.html")
         html = cert.read_text()
         assert "<script>" not in html
         assert "&lt;script&gt;alert(&#39;x&#39;)&lt;/script&gt;" in html
         assert "&lt;b&gt;SN&lt;/b&gt;" in html
 
-    @pytest.mark.parametrize("name", ["../../etc/passwd", "..", "/abs/path", "a/b\\c", "", "...", "x" * 500])
+    @pytest.mark.parametrize(
+        "name", ["../../etc/passwd", "..", "/abs/path", "a/b\\c", "", "...", "x" * 500]
+    )
     def test_file_names_from_user_data_stay_in_the_folder(self, tmp_path, name):
         """A file name made from user data has no separators or parent steps and stays short."""
         safe = safe_file_name(name)
-        assert "/" not in safe and "\\" not in safe and not safe.startswith(".") and 0 < len(safe) <= 120
+        assert (
+            "/" not in safe
+            and "\\" not in safe
+            and not safe.startswith(".")
+            and 0 < len(safe) <= 120
+        )
         assert (tmp_path / safe).resolve().parent == tmp_path.resolve()
 
-    def test_run_folder_from_a_hostile_serial_stays_in_runs(self, tmp_path, data_dir, demo_procedure_path,
-                                                            demo_bench_path):
+    def test_run_folder_from_a_hostile_serial_stays_in_runs(
+        self, tmp_path, data_dir, demo_procedure_path, demo_bench_path
+    ):
         """A serial number with path separators still makes its run folder inside runs/."""
-        assert main(["run", str(demo_procedure_path), "--bench", str(demo_bench_path), "--simulate",
-                     "--readings", str(data_dir / "qm40-readings.csv"), "--serial", "../../escape",
-                     "--customer", "C", "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "reports")]) == 0
+        assert (
+            main(
+                [
+                    "run",
+                    str(demo_procedure_path),
+                    "--bench",
+                    str(demo_bench_path),
+                    "--simulate",
+                    "--readings",
+                    str(data_dir / "qm40-readings.csv"),
+                    "--serial",
+                    "../../escape",
+                    "--customer",
+                    "C",
+                    "--runs",
+                    str(tmp_path / "runs"),
+                    "--reports",
+                    str(tmp_path / "reports"),
+                ]
+            )
+            == 0
+        )
         (folder,) = (tmp_path / "runs").iterdir()
         assert folder.parent == tmp_path / "runs" and ".." not in folder.name
         assert not (tmp_path / "escape").exists()
@@ -207,10 +306,16 @@ class TestEscapingAndFileNames:
 
 
 _json_values = st.recursive(
-    st.none() | st.booleans() | st.integers() | st.floats(allow_nan=False, allow_infinity=False)
+    st.none()
+    | st.booleans()
+    | st.integers()
+    | st.floats(allow_nan=False, allow_infinity=False)
     | st.text(),
-    lambda children: st.lists(children, max_size=4) | st.dictionaries(st.text(max_size=6), children, max_size=4),
-    max_leaves=20)
+    lambda children: (
+        st.lists(children, max_size=4) | st.dictionaries(st.text(max_size=6), children, max_size=4)
+    ),
+    max_leaves=20,
+)
 
 
 @settings(max_examples=300, deadline=None)
@@ -218,8 +323,9 @@ _json_values = st.recursive(
 def test_canonical_lines_are_the_standard_librarys_canonical_json(value):
     """Journal lines are exactly the standard library's json.dumps with sorted keys, compact
     separators and UTF-8 text kept as is (the form every chain hash is taken over)."""
-    assert dumps(value) == json.dumps(value, sort_keys=True, ensure_ascii=False, allow_nan=False,
-                                      separators=(",", ":"))
+    assert dumps(value) == json.dumps(
+        value, sort_keys=True, ensure_ascii=False, allow_nan=False, separators=(",", ":")
+    )
 
 
 def test_canonical_lines_refuse_what_json_cannot_hold():

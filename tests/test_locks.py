@@ -9,8 +9,8 @@ import time
 from pathlib import Path
 
 from runkit import BENCH, READINGS, cli, documents, only_run, readings_file, record, run_args
-from verirun.record.verify import problems
 
+from verirun.record.verify import problems
 
 #: A verirun process at a real bench whose calibrator is reached through the simulated device
 #: (see :func:`at_the_bench.calibrator_at_the_bench`).
@@ -27,8 +27,15 @@ sys.exit(code)
 
 def verirun(args: list, env: dict, *, at_the_bench: bool = False, **kw) -> subprocess.Popen:
     command = ["-c", _AT_THE_BENCH] if at_the_bench else ["-m", "verirun"]
-    return subprocess.Popen([sys.executable, *command, *[str(a) for a in args]], env=env,
-                            stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, **kw)
+    return subprocess.Popen(
+        [sys.executable, *command, *[str(a) for a in args]],
+        env=env,
+        stdin=subprocess.PIPE,
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+        **kw,
+    )
 
 
 def wait_for(predicate, proc: subprocess.Popen, timeout: float = 30.0) -> bool:
@@ -43,7 +50,9 @@ def wait_for(predicate, proc: subprocess.Popen, timeout: float = 30.0) -> bool:
 
 
 def aborted_run(tmp_path: Path) -> Path:
-    readings = readings_file(tmp_path, [("dcv-10", "2 V", "2.05"), ("dcv-10", "6 V", "abort")], "abort.csv")
+    readings = readings_file(
+        tmp_path, [("dcv-10", "2 V", "2.05"), ("dcv-10", "6 V", "abort")], "abort.csv"
+    )
     assert cli(*run_args(tmp_path, readings=readings)) == 2
     return only_run(tmp_path / "runs")
 
@@ -55,23 +64,54 @@ class TestOneWriterPerRun:
         once the first has ended the run resumes and verifies."""
         run_dir = aborted_run(tmp_path)
         env = {**os.environ}
-        first = verirun(["resume", run_dir, "--reports", tmp_path / "reports", "--temperature", "23",
-                         "--humidity", "45"], env)
+        first = verirun(
+            [
+                "resume",
+                run_dir,
+                "--reports",
+                tmp_path / "reports",
+                "--temperature",
+                "23",
+                "--humidity",
+                "45",
+            ],
+            env,
+        )
         try:
-            assert wait_for(lambda: any(d["kind"] == "resume" for d in documents(run_dir)), first), \
-                first.communicate(timeout=10)
+            assert wait_for(
+                lambda: any(d["kind"] == "resume" for d in documents(run_dir)), first
+            ), first.communicate(timeout=10)
             held = (run_dir / "journal.jsonl").read_bytes()
-            second = subprocess.run([sys.executable, "-m", "verirun", "resume", str(run_dir), "--readings",
-                                     str(READINGS), "--reports", str(tmp_path / "reports")],
-                                    env=env, capture_output=True, text=True, timeout=60)
+            second = subprocess.run(
+                [
+                    sys.executable,
+                    "-m",
+                    "verirun",
+                    "resume",
+                    str(run_dir),
+                    "--readings",
+                    str(READINGS),
+                    "--reports",
+                    str(tmp_path / "reports"),
+                ],
+                env=env,
+                capture_output=True,
+                text=True,
+                timeout=60,
+            )
             assert second.returncode == 5, second.stderr
-            assert f"run {run_dir} is in use by another verirun process (pid {first.pid})" in second.stderr
+            assert (
+                f"run {run_dir} is in use by another verirun process (pid {first.pid})"
+                in second.stderr
+            )
             assert "verirun resume" not in second.stderr  # not told to do what was just refused
             assert (run_dir / "journal.jsonl").read_bytes() == held
         finally:
             out, err = first.communicate("abort\n", timeout=60)
         assert first.returncode == 2, err
-        assert cli("resume", run_dir, "--readings", READINGS, "--reports", tmp_path / "reports") == 0
+        assert (
+            cli("resume", run_dir, "--readings", READINGS, "--reports", tmp_path / "reports") == 0
+        )
         assert record(run_dir)["run"]["status"] == "complete" and problems(run_dir) == []
         kinds = [d["kind"] for d in documents(run_dir)]
         assert kinds.count("resume") == 2 and kinds.count("stop") == 3
@@ -86,23 +126,42 @@ class TestOneVerirunPerCalibrator:
         # locks no instrument): each process reaches the calibrator through the simulated device.
         bench = BENCH
         env = {**os.environ}
-        at_bench = ["--lab", Path(__file__).parent / "data" / "lab-test.yaml", "--condition", "as new"]
+        at_bench = [
+            "--lab",
+            Path(__file__).parent / "data" / "lab-test.yaml",
+            "--condition",
+            "as new",
+        ]
         args = [*run_args(tmp_path, bench=bench, serial="FIRST"), *at_bench]
         args.remove("--simulate")
-        args[args.index("--readings"):args.index("--readings") + 2] = []
+        args[args.index("--readings") : args.index("--readings") + 2] = []
         first = verirun(args, env, at_the_bench=True)
         try:
-            assert wait_for(lambda: (tmp_path / "runs").is_dir() and any(
-                (p / "journal.jsonl").exists() and documents(p) for p in (tmp_path / "runs").iterdir()), first), \
-                first.communicate(timeout=10)
+            assert wait_for(
+                lambda: (
+                    (tmp_path / "runs").is_dir()
+                    and any(
+                        (p / "journal.jsonl").exists() and documents(p)
+                        for p in (tmp_path / "runs").iterdir()
+                    )
+                ),
+                first,
+            ), first.communicate(timeout=10)
             second_runs = tmp_path / "second-runs"
             args2 = [*run_args(tmp_path, bench=bench, serial="SECOND", runs=second_runs), *at_bench]
             args2.remove("--simulate")
-            second = subprocess.run([sys.executable, "-c", _AT_THE_BENCH, *map(str, args2)], env=env,
-                                    capture_output=True, text=True, timeout=60)
+            second = subprocess.run(
+                [sys.executable, "-c", _AT_THE_BENCH, *map(str, args2)],
+                env=env,
+                capture_output=True,
+                text=True,
+                timeout=60,
+            )
             assert second.returncode == 5, second.stderr
-            assert (f"the calibrator at 'GPIB0::4::INSTR' is in use by another verirun process"
-                    f" (pid {first.pid})") in second.stderr
+            assert (
+                f"the calibrator at 'GPIB0::4::INSTR' is in use by another verirun process"
+                f" (pid {first.pid})"
+            ) in second.stderr
             assert "verirun resume" not in second.stderr
             assert not second_runs.exists() or not list(second_runs.iterdir())
         finally:

@@ -7,20 +7,20 @@ import io
 import json
 import textwrap
 
-import pyvisa
 import pytest
+import pyvisa
 from rich.console import Console as RichConsole
 
 from verirun.bench.calibrator import Calibrator
 from verirun.bench.config import load_bench, load_bench_text
 from verirun.bench.sim import SIM_RESOURCE, sim_library
 from verirun.clock import VirtualClock
+from verirun.conduct import execute
 from verirun.console import Console
 from verirun.engine import RunContext
 from verirun.errors import RunAborted
 from verirun.procedure.load import load_procedure_text
 from verirun.record.journal import read_journal
-from verirun.conduct import execute
 
 PROCEDURE = textwrap.dedent("""\
     format: 1
@@ -70,8 +70,15 @@ class Typist:
         return self.lines.pop(0)
 
 
-def make_run(tmp_path, procedure_text, lines, demo_bench_path, demo_lab_path, bench_text=None,
-             then_close=False):
+def make_run(
+    tmp_path,
+    procedure_text,
+    lines,
+    demo_bench_path,
+    demo_lab_path,
+    bench_text=None,
+    then_close=False,
+):
     rm = pyvisa.ResourceManager(sim_library(tmp_path / "sim"))
     raw = rm.open_resource(SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=300)
     cal = Calibrator(raw, "scpi-generic")
@@ -80,36 +87,63 @@ def make_run(tmp_path, procedure_text, lines, demo_bench_path, demo_lab_path, be
     console = Console(RichConsole(file=out, width=120, highlight=False), input_func=typist)
     from verirun.lab import load_lab
 
-    context = RunContext(lab=load_lab(demo_lab_path).lab.model_dump(mode="json"), customer={"name": "C", "address": []},
-                         item={"serial": "S"}, operator="op", simulated=True)
+    context = RunContext(
+        lab=load_lab(demo_lab_path).lab.model_dump(mode="json"),
+        customer={"name": "C", "address": []},
+        item={"serial": "S"},
+        operator="op",
+        simulated=True,
+    )
     bench = load_bench_text(bench_text, "bench.yaml") if bench_text else load_bench(demo_bench_path)
 
     def go():
-        return execute(procedure=load_procedure_text(procedure_text, "proc.yaml"), bench=bench, context=context,
-                       readings=console, console=console, runs_dir=tmp_path / "runs",
-                       reports_dir=tmp_path / "reports", simulate=True,
-                       clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)), calibrator=cal)
+        return execute(
+            procedure=load_procedure_text(procedure_text, "proc.yaml"),
+            bench=bench,
+            context=context,
+            readings=console,
+            console=console,
+            runs_dir=tmp_path / "runs",
+            reports_dir=tmp_path / "reports",
+            simulate=True,
+            clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)),
+            calibrator=cal,
+        )
+
     return go, raw, out, typist
 
 
 class TestReadingPrompt:
-    def test_bad_input_re_prompts_with_the_reason_and_journals_nothing(self, tmp_path, demo_bench_path,
-                                                                       demo_lab_path):
+    def test_bad_input_re_prompts_with_the_reason_and_journals_nothing(
+        self, tmp_path, demo_bench_path, demo_lab_path
+    ):
         """Non-numeric text, a wrong unit, a decimal comma, empty input and a value beyond the
         scale are each refused with the reason and asked again; only the good reading is journaled."""
         lines = ["", "abc", "5 mA", "4,9", "12.5", "4.9", "10.1 V"]
-        go, raw, out, typist = make_run(tmp_path, PROCEDURE, ["", *lines], demo_bench_path, demo_lab_path)
+        go, raw, out, typist = make_run(
+            tmp_path, PROCEDURE, ["", *lines], demo_bench_path, demo_lab_path
+        )
         finished = go()
         text = out.getvalue()
-        for reason in ("empty", "not a number", "expected volts", "decimal point", "beyond the ends"):
+        for reason in (
+            "empty",
+            "not a number",
+            "expected volts",
+            "decimal point",
+            "beyond the ends",
+        ):
             assert reason in text
         docs = read_journal(finished.run_dir / "journal.jsonl").documents
         assert [d["typed"] for d in docs if d["kind"] == "observation"] == ["4.9", "10.1 V"]
         assert raw.query("OUTP?") in ("0", "OFF")
 
-    def test_console_shows_step_range_stimulus_and_connection(self, tmp_path, demo_bench_path, demo_lab_path):
+    def test_console_shows_step_range_stimulus_and_connection(
+        self, tmp_path, demo_bench_path, demo_lab_path
+    ):
         """Each step shows 'Step n of N', the range, the stimulus and, before the range, what to connect."""
-        go, raw, out, typist = make_run(tmp_path, PROCEDURE, ["", "5", "10"], demo_bench_path, demo_lab_path)
+        go, raw, out, typist = make_run(
+            tmp_path, PROCEDURE, ["", "5", "10"], demo_bench_path, demo_lab_path
+        )
         go()
         text = out.getvalue()
         assert "Step 1 of 2" in text and "Step 2 of 2" in text and "applied 5 V DC" in text
@@ -118,9 +152,13 @@ class TestReadingPrompt:
     def test_repeat_skip_and_note(self, tmp_path, demo_bench_path, demo_lab_path):
         """'repeat' applies the stimulus again, 'note' journals a note, 'skip' journals the reason,
         which the certificate then shows."""
-        go, raw, out, typist = make_run(tmp_path, PROCEDURE,
-                                        ["", "repeat", "note pointer sticky", "5.0", "skip lead broken"],
-                                        demo_bench_path, demo_lab_path)
+        go, raw, out, typist = make_run(
+            tmp_path,
+            PROCEDURE,
+            ["", "repeat", "note pointer sticky", "5.0", "skip lead broken"],
+            demo_bench_path,
+            demo_lab_path,
+        )
         finished = go()
         docs = read_journal(finished.run_dir / "journal.jsonl").documents
         kinds = [d["kind"] for d in docs]
@@ -132,10 +170,14 @@ class TestReadingPrompt:
         html = finished.certificate.read_text()
         assert "lead broken" in html and "pointer sticky" in html
 
-    def test_abort_leaves_output_off_and_the_run_resumable(self, tmp_path, demo_bench_path, demo_lab_path):
+    def test_abort_leaves_output_off_and_the_run_resumable(
+        self, tmp_path, demo_bench_path, demo_lab_path
+    ):
         """'abort' stops the run with the output read back off, the confirmed reading journaled,
         and a stop document saying the run was aborted."""
-        go, raw, out, typist = make_run(tmp_path, PROCEDURE, ["", "5.0", "abort"], demo_bench_path, demo_lab_path)
+        go, raw, out, typist = make_run(
+            tmp_path, PROCEDURE, ["", "5.0", "abort"], demo_bench_path, demo_lab_path
+        )
         with pytest.raises(RunAborted) as info:
             go()
         assert raw.query("OUTP?") in ("0", "OFF")
@@ -147,43 +189,69 @@ class TestReadingPrompt:
 
 
 class TestHazardousVoltage:
-    def test_operator_must_confirm_before_hazardous_output(self, tmp_path, demo_bench_path, demo_lab_path):
+    def test_operator_must_confirm_before_hazardous_output(
+        self, tmp_path, demo_bench_path, demo_lab_path
+    ):
         """At or above 60 V DC (IEC 61010-1 6.3.1) the output goes on only after the operator types
         'yes'; the confirmation is journaled."""
-        go, raw, out, typist = make_run(tmp_path, HAZARD, ["", "20", "yes", "80"], demo_bench_path, demo_lab_path)
+        go, raw, out, typist = make_run(
+            tmp_path, HAZARD, ["", "20", "yes", "80"], demo_bench_path, demo_lab_path
+        )
         finished = go()
         assert "DANGER" in out.getvalue()
         docs = read_journal(finished.run_dir / "journal.jsonl").documents
         assert any(d.get("hazardous") and "confirmed by the operator" in d["text"] for d in docs)
 
-    def test_refusing_the_confirmation_stops_with_output_off(self, tmp_path, demo_bench_path, demo_lab_path):
+    def test_refusing_the_confirmation_stops_with_output_off(
+        self, tmp_path, demo_bench_path, demo_lab_path
+    ):
         """Anything but yes, y or skip stops the run before the hazardous output goes on."""
-        go, raw, out, typist = make_run(tmp_path, HAZARD, ["", "20", "n"], demo_bench_path, demo_lab_path)
+        go, raw, out, typist = make_run(
+            tmp_path, HAZARD, ["", "20", "n"], demo_bench_path, demo_lab_path
+        )
         with pytest.raises(RunAborted, match="not confirmed"):
             go()
         assert raw.query("OUTP?") in ("0", "OFF")
         assert raw.query("VOLT?") != "80.0"  # the hazardous value was never set
 
-    def test_scripted_run_needs_the_bench_permission(self, tmp_path, demo_bench_path, demo_lab_path, data_dir):
+    def test_scripted_run_needs_the_bench_permission(
+        self, tmp_path, demo_bench_path, demo_lab_path, data_dir
+    ):
         """A scripted run refuses hazardous output unless the bench file permits it."""
         from verirun.console import QuietConsole
         from verirun.readings import ScriptedReadings
 
         readings_csv = tmp_path / "r.csv"
         readings_csv.write_text("range,at,reading\ndcv-100,20 V,20\ndcv-100,80 V,80\n")
-        bench_text = demo_bench_path.read_text().replace("scripted-hazardous: allow", "scripted-hazardous: refuse")
+        bench_text = demo_bench_path.read_text().replace(
+            "scripted-hazardous: allow", "scripted-hazardous: refuse"
+        )
         rm = pyvisa.ResourceManager(sim_library(tmp_path / "sim"))
-        raw = rm.open_resource(SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=300)
+        raw = rm.open_resource(
+            SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=300
+        )
         from verirun.lab import load_lab
 
-        context = RunContext(lab=load_lab(demo_lab_path).lab.model_dump(mode="json"), customer={"name": "C", "address": []},
-                             item={"serial": "S"}, operator="op", simulated=True)
+        context = RunContext(
+            lab=load_lab(demo_lab_path).lab.model_dump(mode="json"),
+            customer={"name": "C", "address": []},
+            item={"serial": "S"},
+            operator="op",
+            simulated=True,
+        )
         with pytest.raises(RunAborted, match="does not permit"):
-            execute(procedure=load_procedure_text(HAZARD, "p.yaml"), bench=load_bench_text(bench_text, "b.yaml"),
-                    context=context, readings=ScriptedReadings(readings_csv), console=QuietConsole(),
-                    runs_dir=tmp_path / "runs", reports_dir=tmp_path / "rep", simulate=True,
-                    clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)),
-                    calibrator=Calibrator(raw, "scpi-generic"))
+            execute(
+                procedure=load_procedure_text(HAZARD, "p.yaml"),
+                bench=load_bench_text(bench_text, "b.yaml"),
+                context=context,
+                readings=ScriptedReadings(readings_csv),
+                console=QuietConsole(),
+                runs_dir=tmp_path / "runs",
+                reports_dir=tmp_path / "rep",
+                simulate=True,
+                clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)),
+                calibrator=Calibrator(raw, "scpi-generic"),
+            )
         assert raw.query("OUTP?") in ("0", "OFF")
 
 
@@ -191,8 +259,13 @@ class TestHazardOnRepeat:
     def test_repeat_at_a_hazardous_point_asks_again(self, tmp_path, demo_bench_path, demo_lab_path):
         """'repeat' at a hazardous point puts the output in standby, so switching it on again
         needs a second confirmation, journaled like the first."""
-        go, raw, out, typist = make_run(tmp_path, HAZARD, ["", "20", "yes", "repeat", "yes", "80"],
-                                        demo_bench_path, demo_lab_path)
+        go, raw, out, typist = make_run(
+            tmp_path,
+            HAZARD,
+            ["", "20", "yes", "repeat", "yes", "80"],
+            demo_bench_path,
+            demo_lab_path,
+        )
         finished = go()
         docs = read_journal(finished.run_dir / "journal.jsonl").documents
         confirmations = [d for d in docs if d.get("hazardous")]
@@ -201,40 +274,87 @@ class TestHazardOnRepeat:
 
     def test_refusing_the_second_confirmation_stops(self, tmp_path, demo_bench_path, demo_lab_path):
         """Refusing the confirmation after a repeat stops the run with the output off."""
-        go, raw, out, typist = make_run(tmp_path, HAZARD, ["", "20", "yes", "repeat", "no"],
-                                        demo_bench_path, demo_lab_path)
+        go, raw, out, typist = make_run(
+            tmp_path, HAZARD, ["", "20", "yes", "repeat", "no"], demo_bench_path, demo_lab_path
+        )
         with pytest.raises(RunAborted, match="not confirmed"):
             go()
         assert raw.query("OUTP?") in ("0", "OFF")
 
 
 class TestClosedInput:
-    def test_end_of_input_stops_resumable_with_output_off(self, tmp_path, demo_bench_path, demo_lab_path):
+    def test_end_of_input_stops_resumable_with_output_off(
+        self, tmp_path, demo_bench_path, demo_lab_path
+    ):
         """If the console input closes (end of file) the run stops as an abort: output off,
         readings kept, resumable; not an internal error."""
-        go, raw, out, typist = make_run(tmp_path, PROCEDURE, ["", "5.0"], demo_bench_path, demo_lab_path,
-                                        then_close=True)
+        go, raw, out, typist = make_run(
+            tmp_path, PROCEDURE, ["", "5.0"], demo_bench_path, demo_lab_path, then_close=True
+        )
         with pytest.raises(RunAborted, match="input was closed") as info:
             go()
         assert raw.query("OUTP?") in ("0", "OFF")
         docs = read_journal(info.value.run_dir / "journal.jsonl").documents
-        assert [d["kind"] for d in docs].count("observation") == 1 and docs[-1]["status"] == "aborted"
+        assert [d["kind"] for d in docs].count("observation") == 1 and docs[-1][
+            "status"
+        ] == "aborted"
 
-    def test_cli_with_closed_input_exits_2_not_70(self, tmp_path, demo_procedure_path, demo_bench_path):
+    def test_cli_with_closed_input_exits_2_not_70(
+        self, tmp_path, demo_procedure_path, demo_bench_path
+    ):
         """`verirun run` at the console with stdin closed exits 2 with the resume hint, after
         checking its files, and never reports an internal error."""
         import subprocess
         import sys
 
-        cmd = [sys.executable, "-m", "verirun", "run", str(demo_procedure_path), "--bench", str(demo_bench_path),
-               "--simulate", "--serial", "EOF", "--customer", "C", "--temperature", "23", "--humidity", "40",
-               "--condition", "as new",
-               "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "rep")]
-        result = subprocess.run(cmd, stdin=subprocess.DEVNULL, capture_output=True, text=True, timeout=60)
+        cmd = [
+            sys.executable,
+            "-m",
+            "verirun",
+            "run",
+            str(demo_procedure_path),
+            "--bench",
+            str(demo_bench_path),
+            "--simulate",
+            "--serial",
+            "EOF",
+            "--customer",
+            "C",
+            "--temperature",
+            "23",
+            "--humidity",
+            "40",
+            "--condition",
+            "as new",
+            "--runs",
+            str(tmp_path / "runs"),
+            "--reports",
+            str(tmp_path / "rep"),
+        ]
+        result = subprocess.run(
+            cmd, stdin=subprocess.DEVNULL, capture_output=True, text=True, timeout=60
+        )
         assert result.returncode == 2, result.stderr
         assert "internal error" not in result.stderr and "input was closed" in result.stderr
         assert "verirun resume" in result.stderr
-        missing = [sys.executable, "-m", "verirun", "run", str(tmp_path / "nope.yaml"), "--bench",
-                   str(demo_bench_path), "--serial", "S", "--customer", "C"]
-        result = subprocess.run(missing, stdin=subprocess.DEVNULL, capture_output=True, text=True, timeout=60)
-        assert result.returncode == 1 and "no such file" in result.stderr and "temperature" not in result.stdout
+        missing = [
+            sys.executable,
+            "-m",
+            "verirun",
+            "run",
+            str(tmp_path / "nope.yaml"),
+            "--bench",
+            str(demo_bench_path),
+            "--serial",
+            "S",
+            "--customer",
+            "C",
+        ]
+        result = subprocess.run(
+            missing, stdin=subprocess.DEVNULL, capture_output=True, text=True, timeout=60
+        )
+        assert (
+            result.returncode == 1
+            and "no such file" in result.stderr
+            and "temperature" not in result.stdout
+        )

@@ -17,15 +17,15 @@ from verirun.bench.calibrator import Calibrator
 from verirun.bench.config import load_bench, load_bench_text
 from verirun.bench.sim import SIM_RESOURCE, sim_library
 from verirun.clock import VirtualClock
+from verirun.conduct import execute
 from verirun.console import Console, LineReader, QuietConsole
-from verirun.record.documents import validate_document
 from verirun.engine import RunContext
-from verirun.lab import load_lab
 from verirun.errors import RunAborted, UnitError
+from verirun.lab import load_lab
 from verirun.procedure.load import load_procedure, load_procedure_text
 from verirun.readings import MAX_ENTRY_LENGTH, OperatorSilent
+from verirun.record.documents import validate_document
 from verirun.record.journal import read_journal, verify_chain
-from verirun.conduct import execute
 from verirun.units import MAX_QUANTITY_LENGTH, parse_quantity, split_quantity
 
 EDGE = Path(__file__).resolve().parent / "data" / "edge"
@@ -60,8 +60,12 @@ class Bench:
         import pyvisa
 
         manager = pyvisa.ResourceManager(sim_library(folder / "sim"))
-        self.used, self.probe = (manager.open_resource(SIM_RESOURCE, read_termination="\n",
-                                                       write_termination="\n", timeout=200) for _ in range(2))
+        self.used, self.probe = (
+            manager.open_resource(
+                SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=200
+            )
+            for _ in range(2)
+        )
 
     def output(self) -> str:
         return self.probe.query("OUTP?")
@@ -73,15 +77,27 @@ def interactive_run(tmp_path, lines, *, procedure=None, bench=None):
     out = io.StringIO()
     typist = Typist(lines)
     console = Console(RichConsole(file=out, width=200, highlight=False), input_func=typist)
-    context = RunContext(lab=load_lab(LAB).lab.model_dump(mode="json"), customer={"name": "C", "address": []},
-                         item={"serial": "S"}, operator="op", simulated=True)
+    context = RunContext(
+        lab=load_lab(LAB).lab.model_dump(mode="json"),
+        customer={"name": "C", "address": []},
+        item={"serial": "S"},
+        operator="op",
+        simulated=True,
+    )
     error, finished = None, None
     try:
-        finished = execute(procedure=procedure or load_procedure(PROCEDURE), bench=bench or load_bench(BENCH),
-                           context=context, readings=console, console=console, runs_dir=tmp_path / "runs",
-                           reports_dir=tmp_path / "reports", simulate=True,
-                           clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)),
-                           calibrator=Calibrator(sim.used, "scpi-generic"))
+        finished = execute(
+            procedure=procedure or load_procedure(PROCEDURE),
+            bench=bench or load_bench(BENCH),
+            context=context,
+            readings=console,
+            console=console,
+            runs_dir=tmp_path / "runs",
+            reports_dir=tmp_path / "reports",
+            simulate=True,
+            clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)),
+            calibrator=Calibrator(sim.used, "scpi-generic"),
+        )
     except BaseException as exc:  # noqa: BLE001 - the test looks at what arrived
         error = exc
     run_dir = finished.run_dir if finished else getattr(error, "run_dir", None)
@@ -90,12 +106,15 @@ def interactive_run(tmp_path, lines, *, procedure=None, bench=None):
 
 
 class TestLinearParsing:
-    @pytest.mark.parametrize("hostile", [
-        "1" + " " * 1_000_000 + "x y",   # number, spaces, two words: the shape that backtracked
-        " " * 1_000_000,
-        "1" + " " * 1_000_000 + "V" + " " * 1_000_000 + "V",
-        "9" * 1_000_000 + " V x",
-    ])
+    @pytest.mark.parametrize(
+        "hostile",
+        [
+            "1" + " " * 1_000_000 + "x y",  # number, spaces, two words: the shape that backtracked
+            " " * 1_000_000,
+            "1" + " " * 1_000_000 + "V" + " " * 1_000_000 + "V",
+            "9" * 1_000_000 + " V x",
+        ],
+    )
     def test_a_megabyte_splits_at_once(self, hostile):
         """Splitting a number from its unit takes time in proportion to the text: a million
         characters of the worst shape for a backtracking pattern take well under a second
@@ -110,10 +129,20 @@ class TestLinearParsing:
             parse_quantity("1" + " " * 400_000 + "x y", "V")
         assert len(str(info.value)) < 200
 
-    @pytest.mark.parametrize("text, expected", [
-        ("4.7 kΩ", ("4.7", "kΩ")), ("  125mA ", ("125", "mA")), ("-.5e-3 V", ("-.5e-3", "V")),
-        ("10", ("10", "")), ("1 2", None), ("1 V x", None), ("V", None), ("1 .5", None), ("", None),
-    ])
+    @pytest.mark.parametrize(
+        "text, expected",
+        [
+            ("4.7 kΩ", ("4.7", "kΩ")),
+            ("  125mA ", ("125", "mA")),
+            ("-.5e-3 V", ("-.5e-3", "V")),
+            ("10", ("10", "")),
+            ("1 2", None),
+            ("1 V x", None),
+            ("V", None),
+            ("1 .5", None),
+            ("", None),
+        ],
+    )
     def test_split(self, text, expected):
         """A number, then at most one word: its unit (common practice, no source)."""
         assert split_quantity(text) == expected
@@ -126,17 +155,24 @@ class TestLongLines:
         huge = "1" + " " * 400_000 + "x y"
         started = time.perf_counter()
         error, docs, shown, typist, sim = interactive_run(
-            tmp_path, ["", huge, "2.05", "5", "9.9", "", "yes", "80"])
+            tmp_path, ["", huge, "2.05", "5", "9.9", "", "yes", "80"]
+        )
         assert error is None, error
         assert time.perf_counter() - started < 10
         assert f"too long: at most {MAX_ENTRY_LENGTH} characters" in shown
-        assert [d["typed"] for d in docs if d["kind"] == "observation"] == ["2.05", "5", "9.9", "80"]
+        assert [d["typed"] for d in docs if d["kind"] == "observation"] == [
+            "2.05",
+            "5",
+            "9.9",
+            "80",
+        ]
         assert sim.output() in ("0", "OFF")
 
     def test_a_long_note_is_refused(self, tmp_path):
         """A note longer than the limit is refused and asked again, not journaled."""
         error, docs, shown, typist, sim = interactive_run(
-            tmp_path, ["", "note " + "x" * MAX_ENTRY_LENGTH, "2.05", "5", "9.9", "", "yes", "80"])
+            tmp_path, ["", "note " + "x" * MAX_ENTRY_LENGTH, "2.05", "5", "9.9", "", "yes", "80"]
+        )
         assert error is None, error
         assert not [d for d in docs if d["kind"] == "note" and "xxx" in d["text"]]
 
@@ -164,7 +200,9 @@ class TestLineReader:
         reader.get  # the thread starts at the first get
         import threading
 
-        feeder = threading.Thread(target=lambda: (os.write(write, b" " * 3_000_000 + b"x\n4.9\n"), os.close(write)))
+        feeder = threading.Thread(
+            target=lambda: (os.write(write, b" " * 3_000_000 + b"x\n4.9\n"), os.close(write))
+        )
         feeder.start()
         assert len(reader.get(within=10)) == 1001
         assert reader.get(within=10) == "4.9"
@@ -203,9 +241,16 @@ class TestSilenceWithTheOutputOn:
         assert prompt.startswith("Press Enter to apply 2 V DC again") and state in ("0", "OFF")
         assert "nothing was typed for 300 s, so the output was put in standby" in shown
         notes = [d["text"] for d in docs if d["kind"] == "note"]
-        assert notes[:2] == ["output put in standby: no input from the operator for 300 s",
-                             "stimulus applied again at the operator's request after the standby"]
-        assert [d["typed"] for d in docs if d["kind"] == "observation"] == ["2.05", "5", "9.9", "80"]
+        assert notes[:2] == [
+            "output put in standby: no input from the operator for 300 s",
+            "stimulus applied again at the operator's request after the standby",
+        ]
+        assert [d["typed"] for d in docs if d["kind"] == "observation"] == [
+            "2.05",
+            "5",
+            "9.9",
+            "80",
+        ]
         assert verify_chain(docs) == []
         for doc in docs:  # the notes are journal documents of the published kind
             if doc["kind"] == "note":
@@ -215,7 +260,8 @@ class TestSilenceWithTheOutputOn:
         """After a silence standby at a hazardous point, switching on again needs the hazard
         confirmation again, journaled like the first."""
         error, docs, shown, typist, sim = interactive_run(
-            tmp_path, ["", "2.05", "5", "9.9", "", "yes", SILENCE, "", "yes", "80"])
+            tmp_path, ["", "2.05", "5", "9.9", "", "yes", SILENCE, "", "yes", "80"]
+        )
         assert error is None, error
         assert len([d for d in docs if d.get("hazardous")]) == 2
         assert shown.count("DANGER") == 2
@@ -236,10 +282,34 @@ class TestSilenceWithTheOutputOn:
         procedure = tmp_path / "p.yaml"
         procedure.write_text(PROCEDURE.read_text().split("  - id: dcv-100")[0])
         proc = subprocess.Popen(
-            [sys.executable, "-m", "verirun", "run", str(procedure), "--bench", str(bench), "--simulate",
-             "--serial", "SIL", "--customer", "C", "--condition", "as new", "--temperature", "23", "--humidity", "45",
-             "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "reports")],
-            stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+            [
+                sys.executable,
+                "-m",
+                "verirun",
+                "run",
+                str(procedure),
+                "--bench",
+                str(bench),
+                "--simulate",
+                "--serial",
+                "SIL",
+                "--customer",
+                "C",
+                "--condition",
+                "as new",
+                "--temperature",
+                "23",
+                "--humidity",
+                "45",
+                "--runs",
+                str(tmp_path / "runs"),
+                "--reports",
+                str(tmp_path / "reports"),
+            ],
+            stdin=subprocess.PIPE,
+            stdout=subprocess.PIPE,
+            stderr=subprocess.PIPE,
+        )
         proc.stdin.write(b"\n")  # the leads are connected
         proc.stdin.flush()
         seen = b""
@@ -261,20 +331,29 @@ class TestIdleStandbyInTheBenchFile:
         """A bench file without the key puts the output in standby after 300 s of silence."""
         assert load_bench(BENCH).idle_standby_s == 300.0
 
-    @pytest.mark.parametrize("value, message", [
-        ("0 s", "outside 1 s to 3600 s"), ("1e300 s", "outside"), ("2 V", "expected seconds"),
-    ])
+    @pytest.mark.parametrize(
+        "value, message",
+        [
+            ("0 s", "outside 1 s to 3600 s"),
+            ("1e300 s", "outside"),
+            ("2 V", "expected seconds"),
+        ],
+    )
     def test_refused_values(self, value, message):
         """Zero, an enormous time and a wrong unit are refused naming the file, line and field."""
         text = BENCH.read_text().replace("safety:\n", f"safety:\n  idle-standby: {value}\n")
         with pytest.raises(Exception) as info:
             load_bench_text(text, "b.yaml")
-        assert any(line.startswith("b.yaml:") and "safety.idle-standby" in line and message in line
-                   for line in info.value.problems)
+        assert any(
+            line.startswith("b.yaml:") and "safety.idle-standby" in line and message in line
+            for line in info.value.problems
+        )
 
 
 MARKUP_PROCEDURE = PROCEDURE.read_text().replace(
-    "connect: Red lead to V, black lead to COM.", "connect: '[/] Red lead to [bold]V[/bold], [meter damaged] black to COM.'")
+    "connect: Red lead to V, black lead to COM.",
+    "connect: '[/] Red lead to [bold]V[/bold], [meter damaged] black to COM.'",
+)
 
 
 class TestTextShownAsWritten:
@@ -282,8 +361,20 @@ class TestTextShownAsWritten:
         """Brackets in a procedure's connect text, in a refused reading, in a note and in a skip
         reason are shown as written: no crash, nothing swallowed, and the run completes."""
         error, docs, shown, typist, sim = interactive_run(
-            tmp_path, ["", "[/]", "note [meter damaged]", "2.05", "skip [/] lead broken [red]", "9.9", "", "yes", "80"],
-            procedure=load_procedure_text(MARKUP_PROCEDURE, "markup.yaml"))
+            tmp_path,
+            [
+                "",
+                "[/]",
+                "note [meter damaged]",
+                "2.05",
+                "skip [/] lead broken [red]",
+                "9.9",
+                "",
+                "yes",
+                "80",
+            ],
+            procedure=load_procedure_text(MARKUP_PROCEDURE, "markup.yaml"),
+        )
         assert error is None, error
         assert "Connect: [/] Red lead to [bold]V[/bold], [meter damaged] black to COM." in shown
         assert "'[/]' is not a number with an optional unit" in shown
@@ -310,9 +401,27 @@ class TestTextShownAsWritten:
         runs = tmp_path / "[runs]"
         procedure = tmp_path / "p.yaml"
         procedure.write_text(PROCEDURE.read_text().split("  - id: dcv-100")[0])
-        code = main(["run", str(procedure), "--bench", str(BENCH), "--readings", str(EDGE / "readings-dcv10.csv"), "--simulate",
-                     "--serial", "[/]SN-1[bold]", "--customer", "[red]C", "--lab", str(LAB),
-                     "--runs", str(runs), "--reports", str(tmp_path / "reports")])
+        code = main(
+            [
+                "run",
+                str(procedure),
+                "--bench",
+                str(BENCH),
+                "--readings",
+                str(EDGE / "readings-dcv10.csv"),
+                "--simulate",
+                "--serial",
+                "[/]SN-1[bold]",
+                "--customer",
+                "[red]C",
+                "--lab",
+                str(LAB),
+                "--runs",
+                str(runs),
+                "--reports",
+                str(tmp_path / "reports"),
+            ]
+        )
         assert code == 0, capsys.readouterr().err
         assert f"Run record:  {runs}" in capsys.readouterr().out.replace("\n", "")
         assert main(["runs", "--runs", str(runs)]) == 0

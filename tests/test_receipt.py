@@ -20,9 +20,23 @@ DATA = Path(__file__).resolve().parent / "data"
 
 
 def run_args(tmp: Path, *extra: str) -> list[str]:
-    return ["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(DATA / "bench-kestrel.yaml"),
-            "--readings", str(DATA / "qm40-procedure-readings.csv"), "--serial", "S", "--customer", "C",
-            "--runs", str(tmp / "runs"), "--reports", str(tmp / "rep"), *extra]
+    return [
+        "run",
+        str(DATA / "qm40-procedure.yaml"),
+        "--bench",
+        str(DATA / "bench-kestrel.yaml"),
+        "--readings",
+        str(DATA / "qm40-procedure-readings.csv"),
+        "--serial",
+        "S",
+        "--customer",
+        "C",
+        "--runs",
+        str(tmp / "runs"),
+        "--reports",
+        str(tmp / "rep"),
+        *extra,
+    ]
 
 
 class TestCheckReceived:
@@ -102,8 +116,20 @@ class TestRunAtARealBench:
     def test_a_receipt_in_the_future_is_refused(self, at_the_bench, tmp_path, capsys):
         """A receipt date after today (the calibration date) is refused; no run is written."""
         tomorrow = (dt.datetime.now(dt.timezone.utc).date() + dt.timedelta(days=1)).isoformat()
-        assert main(run_args(tmp_path, "--lab", str(DATA / "lab-test.yaml"), "--condition", "as new",
-                             "--received", tomorrow)) == 1
+        assert (
+            main(
+                run_args(
+                    tmp_path,
+                    "--lab",
+                    str(DATA / "lab-test.yaml"),
+                    "--condition",
+                    "as new",
+                    "--received",
+                    tomorrow,
+                )
+            )
+            == 1
+        )
         assert f"--received: {tomorrow} is after the date of calibration" in capsys.readouterr().err
         assert not (tmp_path / "runs").exists()
 
@@ -111,11 +137,25 @@ class TestRunAtARealBench:
         """With the lab, the condition and a receipt date, the run is made as given."""
         from verirun.record.journal import load_record
 
-        assert main(run_args(tmp_path, "--lab", str(DATA / "lab-test.yaml"), "--condition", "as new",
-                             "--received", "2025-01-10")) == 0
+        assert (
+            main(
+                run_args(
+                    tmp_path,
+                    "--lab",
+                    str(DATA / "lab-test.yaml"),
+                    "--condition",
+                    "as new",
+                    "--received",
+                    "2025-01-10",
+                )
+            )
+            == 0
+        )
         (run,) = (tmp_path / "runs").iterdir()
         record = load_record(run)
-        assert record["item"]["condition"] == "as new" and record["item"]["received"] == "2025-01-10"
+        assert (
+            record["item"]["condition"] == "as new" and record["item"]["received"] == "2025-01-10"
+        )
         assert record["lab"]["name"] == "Kestrel Fen Metrology" and not record["bench"]["simulated"]
 
 
@@ -125,11 +165,17 @@ def test_input_closed_at_the_condition_question_exits_2_and_writes_no_run(tmp_pa
     import subprocess
     import sys
 
-    cmd = [sys.executable, "-m", "verirun", *run_args(tmp_path, "--simulate", "--temperature", "23",
-                                                      "--humidity", "40")]
+    cmd = [
+        sys.executable,
+        "-m",
+        "verirun",
+        *run_args(tmp_path, "--simulate", "--temperature", "23", "--humidity", "40"),
+    ]
     cmd.remove("--readings")
     cmd.remove(str(DATA / "qm40-procedure-readings.csv"))
-    result = subprocess.run(cmd, stdin=subprocess.DEVNULL, capture_output=True, text=True, timeout=60)
+    result = subprocess.run(
+        cmd, stdin=subprocess.DEVNULL, capture_output=True, text=True, timeout=60
+    )
     assert result.returncode == 2, result.stderr
     assert "internal error" not in result.stderr and "Traceback" not in result.stderr
     assert "Condition of the item on receipt" in result.stdout
@@ -143,7 +189,11 @@ def test_a_lab_prefix_that_could_be_a_dry_runs_is_refused(tmp_path):
     from verirun.lab import load_lab
 
     lab = tmp_path / "lab.yaml"
-    lab.write_text((DATA / "lab-test.yaml").read_text().replace("certificate-prefix: KFM", "certificate-prefix: dryrun-7"))
+    lab.write_text(
+        (DATA / "lab-test.yaml")
+        .read_text()
+        .replace("certificate-prefix: KFM", "certificate-prefix: dryrun-7")
+    )
     with pytest.raises(ProcedureError, match=r"lab.yaml:9: .*certificate-prefix.*DRYRUN begins"):
         load_lab(lab)
 
@@ -154,7 +204,13 @@ def test_a_person_listed_twice_is_refused(tmp_path):
     from verirun.lab import load_lab
 
     lab = tmp_path / "lab.yaml"
-    lab.write_text((DATA / "lab-test.yaml").read_text().replace(
-        "    - {name: J. Ilesanmi,", "    - {name: A.  Thorneycroft, role: Technical Manager}\n    - {name: J. Ilesanmi,"))
+    lab.write_text(
+        (DATA / "lab-test.yaml")
+        .read_text()
+        .replace(
+            "    - {name: J. Ilesanmi,",
+            "    - {name: A.  Thorneycroft, role: Technical Manager}\n    - {name: J. Ilesanmi,",
+        )
+    )
     with pytest.raises(ProcedureError, match="A. Thorneycroft listed more than once"):
         load_lab(lab)

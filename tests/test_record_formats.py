@@ -33,7 +33,12 @@ class TestEarlierFormat:
     def test_an_edited_verdict_shows(self, tmp_path):
         """Changing a verdict in a format-1 record is found, whatever version reads it."""
         run = _copy(tmp_path)
-        _edit(run, lambda r: r["points"][0].update(verdict="fail" if r["points"][0]["verdict"] == "pass" else "pass"))
+        _edit(
+            run,
+            lambda r: r["points"][0].update(
+                verdict="fail" if r["points"][0]["verdict"] == "pass" else "pass"
+            ),
+        )
         (problem,) = problems(run)
         assert "differs from what its journal records" in problem and "points" in problem
 
@@ -55,16 +60,45 @@ class TestCurrentFormat:
         data = Path(__file__).resolve().parent / "data"
         readings = tmp_path / "r.csv"
         with open(readings, "w", newline="") as fh:
-            csv.writer(fh).writerows([["range", "at", "reading"], ["dcv-20", "2 V", "2"], ["dcv-20", "5 V", "5"],
-                                      ["dcv-20", "10 V", "10"], ["dcv-20", "15 V", "15"], ["dcv-20", "19 V", "19"],
-                                      ["dcv-2", "-1.9 V", "skip not today"], ["dcv-2", "-1 V", "skip not today"],
-                                      ["dcv-2", "190 mV", "skip not today"], ["dcv-2", "1 V", "skip not today"],
-                                      ["dcv-2", "1.9 V", "skip not today"],
-                                      *[["ohm-s", f"{r} ohm", str(r)] for r in (1, 5, 10, 30, 90)],
-                                      *[["ohm-p", f"{r} ohm", str(r)] for r in (5, 25, 50, 100, 400)]])
-        assert main(["run", str(data / "matrix-procedure.yaml"), "--bench", str(data / "matrix-bench.yaml"),
-                     "--simulate", "--readings", str(readings), "--serial", "F-1", "--customer", "C",
-                     "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "rep")]) == 0
+            csv.writer(fh).writerows(
+                [
+                    ["range", "at", "reading"],
+                    ["dcv-20", "2 V", "2"],
+                    ["dcv-20", "5 V", "5"],
+                    ["dcv-20", "10 V", "10"],
+                    ["dcv-20", "15 V", "15"],
+                    ["dcv-20", "19 V", "19"],
+                    ["dcv-2", "-1.9 V", "skip not today"],
+                    ["dcv-2", "-1 V", "skip not today"],
+                    ["dcv-2", "190 mV", "skip not today"],
+                    ["dcv-2", "1 V", "skip not today"],
+                    ["dcv-2", "1.9 V", "skip not today"],
+                    *[["ohm-s", f"{r} ohm", str(r)] for r in (1, 5, 10, 30, 90)],
+                    *[["ohm-p", f"{r} ohm", str(r)] for r in (5, 25, 50, 100, 400)],
+                ]
+            )
+        assert (
+            main(
+                [
+                    "run",
+                    str(data / "matrix-procedure.yaml"),
+                    "--bench",
+                    str(data / "matrix-bench.yaml"),
+                    "--simulate",
+                    "--readings",
+                    str(readings),
+                    "--serial",
+                    "F-1",
+                    "--customer",
+                    "C",
+                    "--runs",
+                    str(tmp_path / "runs"),
+                    "--reports",
+                    str(tmp_path / "rep"),
+                ]
+            )
+            == 0
+        )
         (run,) = (tmp_path / "runs").iterdir()
         assert problems(run) == []
         _edit(run, lambda r: r["points"][0].update(U_spec=r["points"][0]["U_spec"] * 2))

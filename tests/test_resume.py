@@ -11,8 +11,8 @@ import time
 import pytest
 
 from verirun.cli import main
-from verirun.record.verify import problems
 from verirun.record.journal import read_journal
+from verirun.record.verify import problems
 
 ROOT_ARGS = None
 
@@ -22,9 +22,24 @@ def run_cli(*args):
 
 
 def demo_run(tmp_path, demo_procedure_path, demo_bench_path, readings, extra=()):
-    return run_cli("run", demo_procedure_path, "--bench", demo_bench_path, "--simulate", "--readings", readings,
-                   "--serial", "SN-7", "--customer", "Test customer", "--runs", tmp_path / "runs",
-                   "--reports", tmp_path / "reports", *extra)
+    return run_cli(
+        "run",
+        demo_procedure_path,
+        "--bench",
+        demo_bench_path,
+        "--simulate",
+        "--readings",
+        readings,
+        "--serial",
+        "SN-7",
+        "--customer",
+        "Test customer",
+        "--runs",
+        tmp_path / "runs",
+        "--reports",
+        tmp_path / "reports",
+        *extra,
+    )
 
 
 def abort_at(data_dir, tmp_path, line_text, replacement):
@@ -36,8 +51,9 @@ def abort_at(data_dir, tmp_path, line_text, replacement):
 
 
 class TestAbortAndResume:
-    def test_abort_then_resume_completes_with_every_observation(self, tmp_path, data_dir, demo_procedure_path,
-                                                                demo_bench_path, capsys):
+    def test_abort_then_resume_completes_with_every_observation(
+        self, tmp_path, data_dir, demo_procedure_path, demo_bench_path, capsys
+    ):
         """An operator abort stops the run with its observations kept; resume finishes the rest and
         the record then verifies and holds all 20 points once each."""
         readings = abort_at(data_dir, tmp_path, "dcv-30,15 V,15\n", "dcv-30,15 V,abort\n")
@@ -50,18 +66,28 @@ class TestAbortAndResume:
         assert before[-1]["kind"] == "stop" and before[-1]["status"] == "aborted"
         assert not list((tmp_path / "reports").glob("*.html"))  # no certificate for an aborted run
 
-        assert run_cli("resume", run_dir, "--readings", data_dir / "qm40-readings.csv",
-                       "--reports", tmp_path / "reports") == 0
+        assert (
+            run_cli(
+                "resume",
+                run_dir,
+                "--readings",
+                data_dir / "qm40-readings.csv",
+                "--reports",
+                tmp_path / "reports",
+            )
+            == 0
+        )
         after = read_journal(run_dir / "journal.jsonl").documents
-        assert after[:len(before)] == before  # nothing rewritten
+        assert after[: len(before)] == before  # nothing rewritten
         record = json.loads((run_dir / "record.json").read_text())
         assert record["run"]["status"] == "complete"
         assert [r["verdict"] != "not-measured" for r in record["points"]] == [True] * 20
         assert problems(run_dir) == []
         assert len(list((tmp_path / "reports").glob("*.html"))) == 1
 
-    def test_resume_refuses_a_changed_procedure(self, tmp_path, data_dir, demo_procedure_path, demo_bench_path,
-                                                capsys):
+    def test_resume_refuses_a_changed_procedure(
+        self, tmp_path, data_dir, demo_procedure_path, demo_bench_path, capsys
+    ):
         """Resume checks the procedure is the one the run started with, by SHA-256."""
         readings = abort_at(data_dir, tmp_path, "dcv-6,4.8 V,4.6\n", "dcv-6,4.8 V,abort\n")
         demo_run(tmp_path, demo_procedure_path, demo_bench_path, readings)
@@ -69,20 +95,38 @@ class TestAbortAndResume:
         changed = tmp_path / "changed.yaml"
         changed.write_text(demo_procedure_path.read_text().replace("revision: C", "revision: D"))
         capsys.readouterr()
-        assert run_cli("resume", run_dir, "--procedure", changed, "--readings", data_dir / "qm40-readings.csv") == 1
+        assert (
+            run_cli(
+                "resume",
+                run_dir,
+                "--procedure",
+                changed,
+                "--readings",
+                data_dir / "qm40-readings.csv",
+            )
+            == 1
+        )
         assert "not the one the run started with" in capsys.readouterr().err
 
-    def test_resume_refuses_another_item(self, tmp_path, data_dir, demo_procedure_path, demo_bench_path, capsys):
+    def test_resume_refuses_another_item(
+        self, tmp_path, data_dir, demo_procedure_path, demo_bench_path, capsys
+    ):
         """Resume refuses when the item serial given is not the run's."""
         readings = abort_at(data_dir, tmp_path, "dcv-6,4.8 V,4.6\n", "dcv-6,4.8 V,abort\n")
         demo_run(tmp_path, demo_procedure_path, demo_bench_path, readings)
         (run_dir,) = (tmp_path / "runs").iterdir()
         capsys.readouterr()
-        assert run_cli("resume", run_dir, "--serial", "OTHER", "--readings", data_dir / "qm40-readings.csv") == 1
+        assert (
+            run_cli(
+                "resume", run_dir, "--serial", "OTHER", "--readings", data_dir / "qm40-readings.csv"
+            )
+            == 1
+        )
         assert "not 'OTHER'" in capsys.readouterr().err
 
-    def test_nothing_to_resume_on_a_complete_run(self, tmp_path, data_dir, demo_procedure_path, demo_bench_path,
-                                                 capsys):
+    def test_nothing_to_resume_on_a_complete_run(
+        self, tmp_path, data_dir, demo_procedure_path, demo_bench_path, capsys
+    ):
         """A complete run is not resumed; the message says so."""
         demo_run(tmp_path, demo_procedure_path, demo_bench_path, data_dir / "qm40-readings.csv")
         (run_dir,) = (tmp_path / "runs").iterdir()
@@ -90,8 +134,9 @@ class TestAbortAndResume:
         assert run_cli("resume", run_dir, "--readings", data_dir / "qm40-readings.csv") == 1
         assert "nothing to resume" in capsys.readouterr().err
 
-    def test_torn_last_line_is_recovered_and_reported(self, tmp_path, data_dir, demo_procedure_path,
-                                                      demo_bench_path, capsys):
+    def test_torn_last_line_is_recovered_and_reported(
+        self, tmp_path, data_dir, demo_procedure_path, demo_bench_path, capsys
+    ):
         """A journal whose last line was cut mid-write is resumed: the torn line is dropped and
         reported, every whole line is kept, and the finished journal verifies."""
         readings = abort_at(data_dir, tmp_path, "dcv-6,4.8 V,4.6\n", "dcv-6,4.8 V,abort\n")
@@ -104,11 +149,20 @@ class TestAbortAndResume:
         assert read_journal(journal).torn_line is not None
         assert any("cut off" in p for p in problems(run_dir))
         capsys.readouterr()
-        assert run_cli("resume", run_dir, "--readings", data_dir / "qm40-readings.csv",
-                       "--reports", tmp_path / "reports") == 0
+        assert (
+            run_cli(
+                "resume",
+                run_dir,
+                "--readings",
+                data_dir / "qm40-readings.csv",
+                "--reports",
+                tmp_path / "reports",
+            )
+            == 0
+        )
         assert "cut off" in capsys.readouterr().out
         docs = read_journal(journal).documents
-        assert docs[:len(whole)] == whole
+        assert docs[: len(whole)] == whole
         assert problems(run_dir) == []
         record = json.loads((run_dir / "record.json").read_text())
         # In the run's internal log, not among the notes the customer reads.
@@ -117,8 +171,9 @@ class TestAbortAndResume:
         resumed = next(d for d in docs if d["kind"] == "resume")
         assert resumed["recovered_text"] == '{"kind":"observation","point":"dcv-6@4.8","typed":"4.'
 
-    def test_resume_uses_the_journal_copy_when_the_file_was_revised(self, tmp_path, data_dir,
-                                                                   demo_procedure_path, demo_bench_path):
+    def test_resume_uses_the_journal_copy_when_the_file_was_revised(
+        self, tmp_path, data_dir, demo_procedure_path, demo_bench_path
+    ):
         """With no procedure named, resume uses the copy the journal holds, so revising the file
         the run started from does not strand the run."""
         procedure = tmp_path / "procedure.yaml"
@@ -127,8 +182,17 @@ class TestAbortAndResume:
         demo_run(tmp_path, procedure, demo_bench_path, readings)
         (run_dir,) = (tmp_path / "runs").iterdir()
         procedure.write_text(procedure.read_text().replace("revision: C", "revision: D"))
-        assert run_cli("resume", run_dir, "--readings", data_dir / "qm40-readings.csv",
-                       "--reports", tmp_path / "reports") == 0
+        assert (
+            run_cli(
+                "resume",
+                run_dir,
+                "--readings",
+                data_dir / "qm40-readings.csv",
+                "--reports",
+                tmp_path / "reports",
+            )
+            == 0
+        )
         record = json.loads((run_dir / "record.json").read_text())
         assert record["procedure"]["revision"] == "C" and record["run"]["status"] == "complete"
 
@@ -144,7 +208,11 @@ def _wait_for_observations(tmp_path, count: int, proc, timeout: float = 30.0):
     """Poll the run's journal until it holds ``count`` observations (or the process ends)."""
     deadline = time.monotonic() + timeout
     while time.monotonic() < deadline and proc.poll() is None:
-        found = list((tmp_path / "runs").glob("*/journal.jsonl")) if (tmp_path / "runs").exists() else []
+        found = (
+            list((tmp_path / "runs").glob("*/journal.jsonl"))
+            if (tmp_path / "runs").exists()
+            else []
+        )
         text = found[0].read_text(errors="replace") if found else ""
         if '"kind":"start"' in text and text.count('"kind":"observation"') >= count:
             return found[0]
@@ -155,17 +223,45 @@ def _wait_for_observations(tmp_path, count: int, proc, timeout: float = 30.0):
 class TestKilledMidRun:
     # Kill once the journal holds N observations, then a little later, so the kill lands at
     # different places: between points, while a point settles, while a line is written.
-    @pytest.mark.parametrize("observed, extra_delay", [
-        (0, 0.0), (1, 0.013), (3, 0.027), (6, 0.0), (9, 0.013), (12, 0.027), (15, 0.0), (18, 0.013),
-    ])
-    def test_sigkill_loses_no_confirmed_observation(self, tmp_path, data_dir, demo_procedure_path,
-                                                    demo_bench_path, observed, extra_delay):
+    @pytest.mark.parametrize(
+        "observed, extra_delay",
+        [
+            (0, 0.0),
+            (1, 0.013),
+            (3, 0.027),
+            (6, 0.0),
+            (9, 0.013),
+            (12, 0.027),
+            (15, 0.0),
+            (18, 0.013),
+        ],
+    )
+    def test_sigkill_loses_no_confirmed_observation(
+        self, tmp_path, data_dir, demo_procedure_path, demo_bench_path, observed, extra_delay
+    ):
         """A verirun process killed with SIGKILL at any moment keeps every observation it had
         journaled; resume finishes the run and the record verifies with all 20 points."""
         bench = _kill_bench(tmp_path, demo_bench_path)
-        cmd = [sys.executable, "-m", "verirun", "run", str(demo_procedure_path), "--bench", str(bench),
-               "--simulate", "--readings", str(data_dir / "qm40-readings.csv"), "--serial", "KILL",
-               "--customer", "C", "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "reports")]
+        cmd = [
+            sys.executable,
+            "-m",
+            "verirun",
+            "run",
+            str(demo_procedure_path),
+            "--bench",
+            str(bench),
+            "--simulate",
+            "--readings",
+            str(data_dir / "qm40-readings.csv"),
+            "--serial",
+            "KILL",
+            "--customer",
+            "C",
+            "--runs",
+            str(tmp_path / "runs"),
+            "--reports",
+            str(tmp_path / "reports"),
+        ]
         proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
         journal = _wait_for_observations(tmp_path, observed, proc)
         time.sleep(extra_delay)
@@ -178,10 +274,23 @@ class TestKilledMidRun:
         assert before[0]["kind"] == "start"
         assert sum(d["kind"] == "observation" for d in before) >= observed
         assert before[-1]["kind"] != "stop"  # SIGKILL gives no chance to write one
-        assert main(["resume", str(run_dir), "--bench", str(bench), "--readings", str(data_dir / "qm40-readings.csv"),
-                     "--reports", str(tmp_path / "reports")]) == 0
+        assert (
+            main(
+                [
+                    "resume",
+                    str(run_dir),
+                    "--bench",
+                    str(bench),
+                    "--readings",
+                    str(data_dir / "qm40-readings.csv"),
+                    "--reports",
+                    str(tmp_path / "reports"),
+                ]
+            )
+            == 0
+        )
         after = read_journal(run_dir / "journal.jsonl").documents
-        assert after[:len(before)] == before
+        assert after[: len(before)] == before
         observed_points = [d["point"] for d in after if d["kind"] == "observation"]
         assert len(observed_points) == len(set(observed_points)) == 20
         assert problems(run_dir) == []
@@ -189,19 +298,41 @@ class TestKilledMidRun:
 
 class TestSigterm:
     @pytest.mark.parametrize("signum", [signal.SIGTERM, signal.SIGHUP])
-    def test_signal_puts_output_in_standby_and_stops_resumable(self, tmp_path, data_dir, demo_procedure_path,
-                                                               demo_bench_path, signum):
+    def test_signal_puts_output_in_standby_and_stops_resumable(
+        self, tmp_path, data_dir, demo_procedure_path, demo_bench_path, signum
+    ):
         """SIGTERM, or SIGHUP when the terminal goes away, ends a run as an interruption: exit
         code 2, a stop document naming the signal, and the run left resumable."""
         bench = _kill_bench(tmp_path, demo_bench_path)
-        cmd = [sys.executable, "-m", "verirun", "run", str(demo_procedure_path), "--bench", str(bench),
-               "--simulate", "--readings", str(data_dir / "qm40-readings.csv"), "--serial", "TERM",
-               "--customer", "C", "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "reports")]
+        cmd = [
+            sys.executable,
+            "-m",
+            "verirun",
+            "run",
+            str(demo_procedure_path),
+            "--bench",
+            str(bench),
+            "--simulate",
+            "--readings",
+            str(data_dir / "qm40-readings.csv"),
+            "--serial",
+            "TERM",
+            "--customer",
+            "C",
+            "--runs",
+            str(tmp_path / "runs"),
+            "--reports",
+            str(tmp_path / "reports"),
+        ]
         proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
         deadline = time.monotonic() + 20
         journal = None
         while time.monotonic() < deadline:  # wait until the run has begun journaling
-            found = list((tmp_path / "runs").glob("*/journal.jsonl")) if (tmp_path / "runs").exists() else []
+            found = (
+                list((tmp_path / "runs").glob("*/journal.jsonl"))
+                if (tmp_path / "runs").exists()
+                else []
+            )
             if found and found[0].read_text().count("observation") >= 2:
                 journal = found[0]
                 break

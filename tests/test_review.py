@@ -25,8 +25,12 @@ TODAY = dt.date(2026, 12, 1)
 def over_limit_bench(tmp_path) -> Path:
     """The test bench with the resistance output limited to 50 mA up to 110 Ω."""
     path = tmp_path / "bench.yaml"
-    path.write_text((DATA / "bench-test.yaml").read_text(encoding="utf-8").replace(
-        "{up-to: 110 ohm, max: 150 mA}", "{up-to: 110 ohm, max: 50 mA}"), encoding="utf-8")
+    path.write_text(
+        (DATA / "bench-test.yaml")
+        .read_text(encoding="utf-8")
+        .replace("{up-to: 110 ohm, max: 150 mA}", "{up-to: 110 ohm, max: 50 mA}"),
+        encoding="utf-8",
+    )
     return path
 
 
@@ -35,7 +39,9 @@ class TestTestCurrent:
         """I = E / (Rc + Rx) with E = 1.5 V, Rc = 12 Ω (Ohm's law for the series ohmmeter circuit;
         the trade's check value: 125 mA with the leads shorted): 100 mA at 3 Ω, 62.5 mA at 12 Ω,
         25 mA at 48 Ω."""
-        points = [p for p in plan(load_procedure(DATA / "bench-meter.yaml")) if p.range.id == "ohm-x1"]
+        points = [
+            p for p in plan(load_procedure(DATA / "bench-meter.yaml")) if p.range.id == "ohm-x1"
+        ]
         assert [test_current(p) for p in points] == pytest.approx([0.1, 0.0625, 0.025])
 
     def test_no_battery_no_current(self):
@@ -49,7 +55,9 @@ class TestPointerPosition:
         """On a 100° series-ohms scale of centre 12 Ω the pointer stands at 100 × Rc / (Rc + Rx)
         degrees from the left (infinity) end: 80° at 3 Ω, 50° at 12 Ω, 20° at 48 Ω (the series
         law f = Rc / (Rc + Rx)); ± 2.5° of arc around each."""
-        points = [p for p in plan(load_procedure(DATA / "bench-meter.yaml")) if p.range.id == "ohm-x1"]
+        points = [
+            p for p in plan(load_procedure(DATA / "bench-meter.yaml")) if p.range.id == "ohm-x1"
+        ]
         where = [pointer(p) for p in points]
         assert [w.degrees for w in where] == pytest.approx([80.0, 50.0, 20.0])
         assert where[1].window_degrees == pytest.approx((47.5, 52.5))
@@ -61,7 +69,12 @@ class TestReview:
         """With the resistance output limited to 50 mA, the 3 Ω (100 mA) and 12 Ω (62.5 mA)
         points are problems that stop a run; 48 Ω (25 mA) is not."""
         bench = load_bench(over_limit_bench(tmp_path))
-        found = review(load_procedure(DATA / "bench-meter.yaml"), bench, load_profile("scpi-generic"), today=TODAY)
+        found = review(
+            load_procedure(DATA / "bench-meter.yaml"),
+            bench,
+            load_profile("scpi-generic"),
+            today=TODAY,
+        )
         assert len(found.problems) == 2
         assert "step 7 (ohm-x1 at 3 Ω): the ohmmeter drives 100 mA" in found.problems[0]
         assert "at most 50 mA" in found.problems[0] and "step 8" in found.problems[1]
@@ -70,21 +83,49 @@ class TestReview:
 
     def test_run_refuses_it_too(self, tmp_path):
         """The same check is part of the run's preflight, so `verirun run` stops before any output."""
-        code = cli.main(["run", str(DATA / "bench-meter.yaml"), "--bench", str(over_limit_bench(tmp_path)),
-                         "--simulate", "--readings", str(DATA / "bench-meter-readings.csv"), "--serial", "S",
-                         "--customer", "C", "--temperature", "23", "--humidity", "40"])
+        code = cli.main(
+            [
+                "run",
+                str(DATA / "bench-meter.yaml"),
+                "--bench",
+                str(over_limit_bench(tmp_path)),
+                "--simulate",
+                "--readings",
+                str(DATA / "bench-meter-readings.csv"),
+                "--serial",
+                "S",
+                "--customer",
+                "C",
+                "--temperature",
+                "23",
+                "--humidity",
+                "40",
+            ]
+        )
         assert code == cli.EXIT_ERROR and not Path("runs").exists()
 
     def test_hazard_and_low_tur_are_warned(self):
         """The 80 V point is hazardous (at or above 60 V DC, IEC 61010-1 as the bench sets it) and
         its permission is named; a range whose tolerance is only twice the calibrator's U is
         flagged below 4 : 1 (ANSI/NCSL Z540.3 TUR = tolerance span / 2U)."""
-        text = (DATA / "bench-meter.yaml").read_text(encoding="utf-8").replace(
-            "accuracy: {percent-of-full-scale: 2.5}", "accuracy: {percent-of-full-scale: 0.05}").replace(
-            "resolution: 0.25 mA", "resolution: 0.001 mA")
-        found = review(load_procedure_text(text, "p.yaml"), load_bench(DATA / "bench-test.yaml"),
-                       load_profile("scpi-generic"), today=TODAY)
-        assert any("hazardous-live" in w and "step 4" in w and "scripted-hazardous: allow" in w for w in found.warnings)
+        text = (
+            (DATA / "bench-meter.yaml")
+            .read_text(encoding="utf-8")
+            .replace(
+                "accuracy: {percent-of-full-scale: 2.5}", "accuracy: {percent-of-full-scale: 0.05}"
+            )
+            .replace("resolution: 0.25 mA", "resolution: 0.001 mA")
+        )
+        found = review(
+            load_procedure_text(text, "p.yaml"),
+            load_bench(DATA / "bench-test.yaml"),
+            load_profile("scpi-generic"),
+            today=TODAY,
+        )
+        assert any(
+            "hazardous-live" in w and "step 4" in w and "scripted-hazardous: allow" in w
+            for w in found.warnings
+        )
         low = [r for r in found.rows if r.tur_low]
         # At 50 mA on the 220 mA line: ± (120 ppm × 50 mA + 20 ppm × 220 mA + 1 µA) = 11.4 µA at
         # 99 % (k = 2.576), u = 4.426 µA; readability 1 µA / √12 = 0.289 µA (GUM F.2.2.1);
@@ -97,13 +138,18 @@ class TestReview:
     def test_html_page_is_deterministic_escaped_and_complete(self, tmp_path):
         """The page lists every step, names both files by SHA-256, leaves sign-off boxes, escapes
         hostile text and is the same bytes when rendered twice."""
-        text = (DATA / "bench-meter.yaml").read_text(encoding="utf-8").replace(
-            "read-on: black DC scale, 0-10", "read-on: <script>alert(1)</script>")
+        text = (
+            (DATA / "bench-meter.yaml")
+            .read_text(encoding="utf-8")
+            .replace("read-on: black DC scale, 0-10", "read-on: <script>alert(1)</script>")
+        )
         procedure = load_procedure_text(text, "p.yaml")
         bench = load_bench(DATA / "bench-test.yaml")
         found = review(procedure, bench, load_profile("scpi-generic"), today=TODAY)
         page = render_html(found)
-        assert page == render_html(review(procedure, bench, load_profile("scpi-generic"), today=TODAY))
+        assert page == render_html(
+            review(procedure, bench, load_profile("scpi-generic"), today=TODAY)
+        )
         soup = BeautifulSoup(page, "html.parser")
         assert soup.find("script") is None and "<script>alert(1)</script>" in soup.get_text()
         assert len(soup.select("table.plan tbody tr")) == len(plan(procedure))
@@ -112,8 +158,16 @@ class TestReview:
 
     def test_demo_review_command(self, tmp_path, demo_procedure_path, demo_bench_path, capsys):
         """`verirun review` of the demo prints a row per step and writes the page in --reports."""
-        code = cli.main(["review", str(demo_procedure_path), "--bench", str(demo_bench_path),
-                         "--reports", str(tmp_path / "rep")])
+        code = cli.main(
+            [
+                "review",
+                str(demo_procedure_path),
+                "--bench",
+                str(demo_bench_path),
+                "--reports",
+                str(tmp_path / "rep"),
+            ]
+        )
         out = capsys.readouterr().out
         assert code == cli.EXIT_OK
         pages = list((tmp_path / "rep").glob("review-*.html"))
@@ -125,20 +179,34 @@ class TestReview:
 
 
 class TestCheckCommand:
-    def test_every_kind_of_file_recognised(self, tmp_path, demo_procedure_path, demo_bench_path,
-                                           demo_lab_path, capsys):
+    def test_every_kind_of_file_recognised(
+        self, tmp_path, demo_procedure_path, demo_bench_path, demo_lab_path, capsys
+    ):
         """Procedure, bench, driver profile, lab, virtual meter and readings each say what they are."""
         from verirun.conduct import demo_files
 
         with demo_files() as demo:
             meter = demo["meter"]
         profile = Path(cli.__file__).parent / "bench" / "profiles" / "scpi-generic.yaml"
-        code = cli.main(["check", str(DATA / "bench-meter.yaml"), str(DATA / "bench-test.yaml"), str(profile),
-                         str(demo_lab_path), str(DATA / "bench-meter-readings.csv")])
+        code = cli.main(
+            [
+                "check",
+                str(DATA / "bench-meter.yaml"),
+                str(DATA / "bench-test.yaml"),
+                str(profile),
+                str(demo_lab_path),
+                str(DATA / "bench-meter-readings.csv"),
+            ]
+        )
         out = capsys.readouterr().out
         assert code == cli.EXIT_OK, out
-        for words in ("ok: procedure TB-VP-001", "ok: bench file", "ok: driver profile scpi-generic",
-                      "ok: lab profile", "ok: readings for every point of TB-VP-001"):
+        for words in (
+            "ok: procedure TB-VP-001",
+            "ok: bench file",
+            "ok: driver profile scpi-generic",
+            "ok: lab profile",
+            "ok: readings for every point of TB-VP-001",
+        ):
             assert words in out
         code = cli.main(["check", str(demo_procedure_path), str(meter)])
         assert code == cli.EXIT_OK and "ok: virtual meter" in capsys.readouterr().out
@@ -154,7 +222,9 @@ class TestCheckCommand:
         assert f"{odd}:1: not a file verirun reads" in out
         assert "give the procedure file too" in out
 
-    def test_bench_runs_the_preflight_without_opening_the_instrument(self, tmp_path, capsys, monkeypatch):
+    def test_bench_runs_the_preflight_without_opening_the_instrument(
+        self, tmp_path, capsys, monkeypatch
+    ):
         """With --bench, a test current over the limit is reported and nothing opens a VISA library."""
         import pyvisa
 
@@ -162,7 +232,9 @@ class TestCheckCommand:
             raise AssertionError("a VISA resource manager was opened")
 
         monkeypatch.setattr(pyvisa, "ResourceManager", no_visa)
-        code = cli.main(["check", str(DATA / "bench-meter.yaml"), "--bench", str(over_limit_bench(tmp_path))])
+        code = cli.main(
+            ["check", str(DATA / "bench-meter.yaml"), "--bench", str(over_limit_bench(tmp_path))]
+        )
         out = capsys.readouterr().out
         assert code == cli.EXIT_ERROR
         assert "step 7 (ohm-x1 at 3 Ω): the ohmmeter drives 100 mA" in out
@@ -170,23 +242,46 @@ class TestCheckCommand:
 
     def test_bench_file_limits_validated(self):
         """A resistance-current limit in the wrong unit is reported at its line and key."""
-        text = (DATA / "bench-test.yaml").read_text(encoding="utf-8").replace("max: 1 mA}", "max: 1 mV}")
+        text = (
+            (DATA / "bench-test.yaml")
+            .read_text(encoding="utf-8")
+            .replace("max: 1 mA}", "max: 1 mV}")
+        )
         with pytest.raises(Exception) as info:
             load_bench_text(text, "b.yaml")
-        assert "calibrator.resistance-current" in str(info.value) and "expected amperes" in str(info.value)
+        assert "calibrator.resistance-current" in str(info.value) and "expected amperes" in str(
+            info.value
+        )
 
 
 class TestHostileText:
     def test_markup_in_a_procedure_is_printed_literally_in_the_review_table(self, tmp_path, capsys):
         """A procedure id and read-on text holding rich markup are printed as written, not
         interpreted, in the terminal table and on the page."""
-        text = (DATA / "bench-meter.yaml").read_text(encoding="utf-8").replace(
-            "read-on: green ohms scale, multiply by 1", "read-on: \"[red]x[/red] [link=http://x]y\"").replace(
-            "id: TB-VP-001", "id: \"[bold]TB[/bold]\"")
+        text = (
+            (DATA / "bench-meter.yaml")
+            .read_text(encoding="utf-8")
+            .replace(
+                "read-on: green ohms scale, multiply by 1",
+                'read-on: "[red]x[/red] [link=http://x]y"',
+            )
+            .replace("id: TB-VP-001", 'id: "[bold]TB[/bold]"')
+        )
         path = tmp_path / "p.yaml"
         path.write_text(text, encoding="utf-8")
-        assert cli.main(["review", str(path), "--bench", str(DATA / "bench-test.yaml"),
-                         "--reports", str(tmp_path / "rep")]) == 0
+        assert (
+            cli.main(
+                [
+                    "review",
+                    str(path),
+                    "--bench",
+                    str(DATA / "bench-test.yaml"),
+                    "--reports",
+                    str(tmp_path / "rep"),
+                ]
+            )
+            == 0
+        )
         out = capsys.readouterr().out
         page = next((tmp_path / "rep").glob("*.html")).read_text(encoding="utf-8")
         assert "[red]x[/red] [link=http://x]y" in page
@@ -199,8 +294,12 @@ class TestBenchOnePass:
         problems from one `verirun check`."""
         import tempfile
 
-        text = (DATA / "bench-test.yaml").read_text(encoding="utf-8").replace(
-            "settle: 0 s", "settle: 0 s\nsettel: 1 s").replace("range: 22 mA,", "range: 22 mV,")
+        text = (
+            (DATA / "bench-test.yaml")
+            .read_text(encoding="utf-8")
+            .replace("settle: 0 s", "settle: 0 s\nsettel: 1 s")
+            .replace("range: 22 mA,", "range: 22 mV,")
+        )
         with tempfile.TemporaryDirectory() as folder:
             path = Path(folder) / "bench.yaml"
             path.write_text(text, encoding="utf-8")

@@ -56,10 +56,18 @@ class TestZeroOhmEnd:
         """At the infinity end the window is unbounded above and has no TUR (common practice,
         no source)."""
         law = scales.SeriesOhms(centre=10.0)
-        win = tolerance.window(tolerance.DegreesOfArc(degrees=9.0), 190.0, tolerance.RangeContext(law=law, arc=90.0))
-        bud = uncertainty.budget(terms=[uncertainty.readability_term(division=0.5, unit="degrees", arc=90.0)],
-                                 nominal=190.0, law=law, domain="deflection")
-        judged = decision.judge(decision.SimpleAcceptance(), window=win, law=law, budget=bud, reading=190.0)
+        win = tolerance.window(
+            tolerance.DegreesOfArc(degrees=9.0), 190.0, tolerance.RangeContext(law=law, arc=90.0)
+        )
+        bud = uncertainty.budget(
+            terms=[uncertainty.readability_term(division=0.5, unit="degrees", arc=90.0)],
+            nominal=190.0,
+            law=law,
+            domain="deflection",
+        )
+        judged = decision.judge(
+            decision.SimpleAcceptance(), window=win, law=law, budget=bud, reading=190.0
+        )
         assert not win.bounded and judged.tur is None
 
 
@@ -69,21 +77,47 @@ class TestReadabilityOnAnOhmsScale:
         its divisions are not evenly spaced in ohms, so it is refused at its line (common
         practice, no source)."""
         with pytest.raises(ProcedureError) as info:
-            load_procedure_text(OHMS.replace("resolution: 0.5 deg", "resolution: 0.2 ohm"), "edge.yaml")
+            load_procedure_text(
+                OHMS.replace("resolution: 0.5 deg", "resolution: 0.2 ohm"), "edge.yaml"
+            )
         (problem,) = info.value.problems
-        assert problem.startswith("edge.yaml:11") and "along the arc" in problem and "resolution" in problem
+        assert (
+            problem.startswith("edge.yaml:11")
+            and "along the arc" in problem
+            and "resolution" in problem
+        )
 
     def test_percent_of_length_is_accepted(self):
         """0.5 % of scale length gives u = 0.005 / (2√3) along the arc (GUM F.2.2.1)."""
-        (point, _) = plan(load_procedure_text(OHMS.replace("resolution: 0.5 deg", "resolution: 0.5 %"), "e.yaml"))
+        (point, _) = plan(
+            load_procedure_text(OHMS.replace("resolution: 0.5 deg", "resolution: 0.5 %"), "e.yaml")
+        )
         (term,) = point.budget.terms
         assert term.domain == "deflection"
         assert term.standard_uncertainty == pytest.approx(0.005 / (2 * math.sqrt(3)))
 
     def test_window_command_refuses_ohms_resolution(self, capsys):
         """``verirun window`` refuses a resolution in ohms on an ohms scale, naming the option."""
-        assert main(["window", "--scale", "series-ohms", "--centre", "10", "--arc", "90", "--degrees", "2",
-                     "--at", "10", "--resolution", "0.2ohm"]) == 1
+        assert (
+            main(
+                [
+                    "window",
+                    "--scale",
+                    "series-ohms",
+                    "--centre",
+                    "10",
+                    "--arc",
+                    "90",
+                    "--degrees",
+                    "2",
+                    "--at",
+                    "10",
+                    "--resolution",
+                    "0.2ohm",
+                ]
+            )
+            == 1
+        )
         assert "--resolution" in capsys.readouterr().err
 
 
@@ -139,22 +173,31 @@ class TestNegativeReadings:
 
     def test_lower_end_key(self):
         """``lower-end`` sets the left stop: a zero-centre meter of -5 V to 5 V."""
-        text = BIPOLAR.replace("    points: [10 V]\n", "    lower-end: -5 V\n    points: [-4 V, 4 V]\n")
-        text = text.replace("full-scale: 20 V\n    accuracy: {percent-of-full-scale: 1}",
-                            "full-scale: 5 V\n    accuracy: {percent-of-full-scale: 1}")
+        text = BIPOLAR.replace(
+            "    points: [10 V]\n", "    lower-end: -5 V\n    points: [-4 V, 4 V]\n"
+        )
+        text = text.replace(
+            "full-scale: 20 V\n    accuracy: {percent-of-full-scale: 1}",
+            "full-scale: 5 V\n    accuracy: {percent-of-full-scale: 1}",
+        )
         points = plan(load_procedure_text(text, "pol.yaml"))
         assert points[2].range.law.low == -5.0 and points[2].window.low == pytest.approx(-4.05)
 
-    @pytest.mark.parametrize(("old", "new", "words"), [
-        ("points: [10 V]\n", "points: [-10 V]\n    lower-end: 0 V\n", "below the lower end"),
-        ("points: [10 V]\n", "lower-end: 30 V\n    points: [10 V]\n", "below the full-scale"),
-    ])
+    @pytest.mark.parametrize(
+        ("old", "new", "words"),
+        [
+            ("points: [10 V]\n", "points: [-10 V]\n    lower-end: 0 V\n", "below the lower end"),
+            ("points: [10 V]\n", "lower-end: 30 V\n    points: [10 V]\n", "below the full-scale"),
+        ],
+    )
     def test_points_below_the_lower_end_are_problems_at_their_line(self, old, new, words):
         """A point below the scale's lower end, or a lower end above full scale, is reported
         with its file and line."""
         with pytest.raises(ProcedureError) as info:
             load_procedure_text(BIPOLAR.replace(old, new), "pol.yaml")
-        assert any(p.startswith("pol.yaml:") and words in p for p in info.value.problems), info.value.problems
+        assert any(p.startswith("pol.yaml:") and words in p for p in info.value.problems), (
+            info.value.problems
+        )
 
     def test_replay_and_amend_take_negative_readings(self, tmp_path):
         """A replay file gives a negative reading, the run records it, and amend corrects it to
@@ -163,23 +206,64 @@ class TestNegativeReadings:
         proc.write_text(BIPOLAR)
         readings = tmp_path / "r.csv"
         with open(readings, "w", newline="") as fh:
-            csv.writer(fh).writerows([["range", "at", "reading"], ["dcv-20", "-10 V", "-10.004"],
-                                      ["dcv-20", "10 V", "10.001"], ["dcv-pos", "10 V", "10.1"]])
+            csv.writer(fh).writerows(
+                [
+                    ["range", "at", "reading"],
+                    ["dcv-20", "-10 V", "-10.004"],
+                    ["dcv-20", "10 V", "10.001"],
+                    ["dcv-pos", "10 V", "10.1"],
+                ]
+            )
         points = plan(load_procedure_text(BIPOLAR, str(proc)))
         assert ScriptedReadings(readings).take(points[0]).value == pytest.approx(-10.004)
-        assert main(["run", str(proc), "--bench", str(DATA / "matrix-bench.yaml"), "--simulate",
-                     "--readings", str(readings), "--serial", "P-1", "--customer", "C",
-                     "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "reports")]) == 0
+        assert (
+            main(
+                [
+                    "run",
+                    str(proc),
+                    "--bench",
+                    str(DATA / "matrix-bench.yaml"),
+                    "--simulate",
+                    "--readings",
+                    str(readings),
+                    "--serial",
+                    "P-1",
+                    "--customer",
+                    "C",
+                    "--runs",
+                    str(tmp_path / "runs"),
+                    "--reports",
+                    str(tmp_path / "reports"),
+                ]
+            )
+            == 0
+        )
         (run,) = (tmp_path / "runs").iterdir()
         record = json.loads((run / "record.json").read_text())
         assert record["points"][0]["reading"] == pytest.approx(-10.004)
         assert record["points"][0]["verdict"] == "pass"
-        assert main(["amend", str(run), "--point", "1", "--reading", "-10.02", "--reason", "misread",
-                     "--reports", str(tmp_path / "reports")]) == 0
+        assert (
+            main(
+                [
+                    "amend",
+                    str(run),
+                    "--point",
+                    "1",
+                    "--reading",
+                    "-10.02",
+                    "--reason",
+                    "misread",
+                    "--reports",
+                    str(tmp_path / "reports"),
+                ]
+            )
+            == 0
+        )
         record = json.loads((run / "record.json").read_text())
         assert record["points"][0]["reading"] == pytest.approx(-10.02)
         assert record["points"][0]["verdict"] == "fail"  # beyond -10 ∓ 12 mV
         from verirun.record.amend import amend
+
         with pytest.raises(RecordError, match="beyond the ends"):
             amend(run, point="3", reading="-10", reason="sign", operator="t")
 
@@ -202,10 +286,15 @@ class TestFrozenValues:
         be changed after they are made."""
         (point, _) = plan(load_procedure_text(OHMS, "edge.yaml"))
         result = evaluate(point, 0.5)
-        judged = decision.judge(point.rule, window=point.window, law=point.range.law, budget=point.budget,
-                                reading=0.5)
-        for value, name in ((result, "verdict"), (judged, "verdict"), (judged.outcome, "verdict"),
-                            (judged.outcome.acceptance, "low"),
-                            (tolerance.deviation(point.window, 0.5, point.range.law), "error")):
+        judged = decision.judge(
+            point.rule, window=point.window, law=point.range.law, budget=point.budget, reading=0.5
+        )
+        for value, name in (
+            (result, "verdict"),
+            (judged, "verdict"),
+            (judged.outcome, "verdict"),
+            (judged.outcome.acceptance, "low"),
+            (tolerance.deviation(point.window, 0.5, point.range.law), "error"),
+        ):
             with pytest.raises(dataclasses.FrozenInstanceError):
                 setattr(value, name, "pass")

@@ -18,10 +18,30 @@ READINGS = (DATA / "bench-meter-readings.csv").read_text(encoding="utf-8")
 def scripted_run(tmp_path, readings_text, *extra, serial="Item-7", runs="runs", reports="rep1"):
     path = tmp_path / f"r{len(list(tmp_path.glob('r*.csv')))}.csv"
     path.write_text(readings_text, encoding="utf-8")
-    return cli.main(["run", str(DATA / "bench-meter.yaml"), "--bench", str(DATA / "bench-test.yaml"), "--simulate",
-                     "--readings", str(path), "--serial", serial, "--customer", "Tern Hollow Water",
-                     "--temperature", "23", "--humidity", "40", "--runs", str(tmp_path / runs),
-                     "--reports", str(tmp_path / reports), *extra])
+    return cli.main(
+        [
+            "run",
+            str(DATA / "bench-meter.yaml"),
+            "--bench",
+            str(DATA / "bench-test.yaml"),
+            "--simulate",
+            "--readings",
+            str(path),
+            "--serial",
+            serial,
+            "--customer",
+            "Tern Hollow Water",
+            "--temperature",
+            "23",
+            "--humidity",
+            "40",
+            "--runs",
+            str(tmp_path / runs),
+            "--reports",
+            str(tmp_path / reports),
+            *extra,
+        ]
+    )
 
 
 class TestRunsListing:
@@ -30,13 +50,18 @@ class TestRunsListing:
         and an as-left run names its as-found run and the other way round."""
         assert scripted_run(tmp_path, READINGS) == 0
         (found,) = (tmp_path / "runs").iterdir()
-        assert scripted_run(tmp_path, READINGS, "--as-left-of", str(found), "--adjustment", "zero set") == 0
+        assert (
+            scripted_run(tmp_path, READINGS, "--as-left-of", str(found), "--adjustment", "zero set")
+            == 0
+        )
         capsys.readouterr()
         assert cli.main(["runs", "--runs", str(tmp_path / "runs"), "--json"]) == 0
         rows = json.loads(capsys.readouterr().out)
         assert len(rows) == 2
         first, second = sorted(rows, key=lambda r: r["run"] != found.name)
-        assert first["certificate"] and first["certificate"] in {p.stem for p in (tmp_path / "rep1").iterdir()}
+        assert first["certificate"] and first["certificate"] in {
+            p.stem for p in (tmp_path / "rep1").iterdir()
+        }
         assert first["customer"] == "Tern Hollow Water" and first["simulated"] is True
         assert first["record_revision"] == 1
         assert first["as_left_run"] == second["run"] and second["as_found_run"] == first["run"]
@@ -45,7 +70,9 @@ class TestRunsListing:
         """`--item item-7` finds the runs of Item-7."""
         assert scripted_run(tmp_path, READINGS) == 0
         capsys.readouterr()
-        assert cli.main(["runs", "--runs", str(tmp_path / "runs"), "--item", "ITEM-7", "--json"]) == 0
+        assert (
+            cli.main(["runs", "--runs", str(tmp_path / "runs"), "--item", "ITEM-7", "--json"]) == 0
+        )
         assert [r["item"] for r in json.loads(capsys.readouterr().out)] == ["Item-7"]
 
     def test_table_without_a_terminal_never_cuts_the_run(self, tmp_path, capsys):
@@ -63,8 +90,11 @@ class TestRunsListing:
 
         assert scripted_run(tmp_path, READINGS, serial="A-VERY-LONG-SERIAL-NUMBER-0123456789") == 0
         (run,) = (tmp_path / "runs").iterdir()
-        term = Terminal([sys.executable, "-m", "verirun", "runs", "--runs", str(tmp_path / "runs")], cwd=tmp_path,
-                        columns=60)
+        term = Terminal(
+            [sys.executable, "-m", "verirun", "runs", "--runs", str(tmp_path / "runs")],
+            cwd=tmp_path,
+            columns=60,
+        )
         try:
             shown = term.expect("revision 1", timeout=30)
         finally:
@@ -78,14 +108,41 @@ class TestNothingWrapsForScripts:
         deep = tmp_path / ("a-rather-long-folder-name-" * 4) / "runs"
         csv = tmp_path / "r.csv"
         csv.write_text(READINGS, encoding="utf-8")
-        result = subprocess.run([sys.executable, "-m", "verirun", "run", str(DATA / "bench-meter.yaml"), "--bench",
-                                 str(DATA / "bench-test.yaml"), "--simulate", "--readings", str(csv), "--serial",
-                                 "S", "--customer", "C", "--temperature", "23", "--humidity", "40", "--runs",
-                                 str(deep), "--reports", str(tmp_path / "rep")],
-                                capture_output=True, text=True, timeout=120, stdin=subprocess.DEVNULL)
+        result = subprocess.run(
+            [
+                sys.executable,
+                "-m",
+                "verirun",
+                "run",
+                str(DATA / "bench-meter.yaml"),
+                "--bench",
+                str(DATA / "bench-test.yaml"),
+                "--simulate",
+                "--readings",
+                str(csv),
+                "--serial",
+                "S",
+                "--customer",
+                "C",
+                "--temperature",
+                "23",
+                "--humidity",
+                "40",
+                "--runs",
+                str(deep),
+                "--reports",
+                str(tmp_path / "rep"),
+            ],
+            capture_output=True,
+            text=True,
+            timeout=120,
+            stdin=subprocess.DEVNULL,
+        )
         assert result.returncode == 0, result.stderr
         (run,) = deep.iterdir()
-        assert any(str(run / "record.json") in line for line in result.stdout.splitlines()), result.stdout
+        assert any(str(run / "record.json") in line for line in result.stdout.splitlines()), (
+            result.stdout
+        )
 
 
 class TestResume:
@@ -98,7 +155,18 @@ class TestResume:
         capsys.readouterr()
         csv = tmp_path / "all.csv"
         csv.write_text(READINGS, encoding="utf-8")
-        code = cli.main(["resume", str(run), "--readings", str(csv), "--temperature", "24.5", "--humidity", "45"])
+        code = cli.main(
+            [
+                "resume",
+                str(run),
+                "--readings",
+                str(csv),
+                "--temperature",
+                "24.5",
+                "--humidity",
+                "45",
+            ]
+        )
         out = capsys.readouterr().out
         assert code == 0
         assert f"Continuing run {run}" in out
@@ -108,7 +176,9 @@ class TestResume:
         assert len(list((tmp_path / "rep1").glob("*.html"))) == 1
         assert not Path("reports").exists()
         record = json.loads((run / "record.json").read_text(encoding="utf-8"))
-        assert any("conditions then 24.5 °C, 45 % relative humidity" in n["text"] for n in record["notes"])
+        assert any(
+            "conditions then 24.5 °C, 45 % relative humidity" in n["text"] for n in record["notes"]
+        )
 
 
 @pytest.mark.skipif(sys.platform == "win32", reason="needs a POSIX pseudo-terminal")
@@ -139,7 +209,10 @@ class TestResumeAtTheTerminal:
             code = term.close()
         assert code == 0
         assert "Continuing run" in shown and "3 of 9 points" in shown and "dry run" in shown
-        docs = [json.loads(line) for line in (run / "journal.jsonl").read_text(encoding="utf-8").splitlines()]
+        docs = [
+            json.loads(line)
+            for line in (run / "journal.jsonl").read_text(encoding="utf-8").splitlines()
+        ]
         (resumed,) = [d for d in docs if d["kind"] == "resume"]
         assert resumed["environment"] == {"temperature_c": 24.5, "humidity_pct": 45.0}
         assert docs[0]["reports"] == str(tmp_path / "rep1")

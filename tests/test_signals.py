@@ -22,23 +22,23 @@ from pathlib import Path
 
 import pytest
 
-from verirun.record import journal as record_mod
 from verirun import conduct as session_mod
 from verirun.bench.calibrator import Calibrator
 from verirun.bench.config import load_bench
 from verirun.bench.safety import output_guard
 from verirun.bench.sim import SIM_RESOURCE, sim_library
 from verirun.clock import VirtualClock
+from verirun.conduct import _sigterm_as_interrupt, execute
 from verirun.console import QuietConsole
 from verirun.engine import RunContext
-from verirun.lab import load_lab
 from verirun.errors import SafetyError
-from verirun.record.verify import verified_record
 from verirun.interrupts import deferred_signals
+from verirun.lab import load_lab
 from verirun.procedure.load import load_procedure
 from verirun.readings import ScriptedReadings
+from verirun.record import journal as record_mod
 from verirun.record.journal import Journal, read_journal, verify_chain
-from verirun.conduct import _sigterm_as_interrupt, execute
+from verirun.record.verify import verified_record
 
 EDGE = Path(__file__).resolve().parent / "data" / "edge"
 PROCEDURE, BENCH, READINGS = EDGE / "dcv-small.yaml", EDGE / "bench.yaml", EDGE / "readings.csv"
@@ -46,7 +46,9 @@ LAB = EDGE / "lab.yaml"
 #: The standby and its read-back in the scpi-generic profile: off, the error check, the state query.
 MAKE_SAFE = ["OUTP OFF", "SYST:ERR?", "OUTP?"]
 
-pytestmark = pytest.mark.skipif(not hasattr(signal, "pthread_kill"), reason="needs POSIX threads and signals")
+pytestmark = pytest.mark.skipif(
+    not hasattr(signal, "pthread_kill"), reason="needs POSIX threads and signals"
+)
 
 
 class Worker:
@@ -114,8 +116,12 @@ def device(tmp_path):
     import pyvisa
 
     manager = pyvisa.ResourceManager(sim_library(tmp_path / "sim"))
-    opened = [manager.open_resource(SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=200)
-              for _ in range(2)]
+    opened = [
+        manager.open_resource(
+            SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=200
+        )
+        for _ in range(2)
+    ]
     yield opened
     for resource in opened:
         resource.close()
@@ -260,7 +266,7 @@ class TestSignalDuringStandby:
                     spy.fire_at = _signals(count)
         assert spy.fire_at == {}  # every signal was sent
         assert spy.sent[-3:] == MAKE_SAFE
-        assert "OUTP ON" not in spy.sent[spy.sent.index("OUTP OFF"):]
+        assert "OUTP ON" not in spy.sent[spy.sent.index("OUTP OFF") :]
         assert probe.query("OUTP?") in ("0", "OFF")
 
     @pytest.mark.parametrize("count", [1, 2, 3])
@@ -310,7 +316,9 @@ class TestSignalAtJournalFsync:
         next sequence number and the chain verifies."""
         journal = Journal(tmp_path / "journal.jsonl")
         journal.append(_note(0))
-        monkeypatch.setattr(record_mod.os, "fsync", _SignalsAtFsync(worker, record_mod.os.fsync, {1: count}))
+        monkeypatch.setattr(
+            record_mod.os, "fsync", _SignalsAtFsync(worker, record_mod.os.fsync, {1: count})
+        )
         with _sigterm_as_interrupt():
             with pytest.raises(KeyboardInterrupt):
                 journal.append(_note(1))
@@ -322,9 +330,13 @@ class TestSignalAtJournalFsync:
 
 
 def _context() -> RunContext:
-    return RunContext(lab=load_lab(LAB).lab.model_dump(mode="json"), customer={"name": "C", "address": []},
-                      item={"serial": "EDGE-1", "asset": None, "condition": "as new"},
-                      operator="tester", simulated=True)
+    return RunContext(
+        lab=load_lab(LAB).lab.model_dump(mode="json"),
+        customer={"name": "C", "address": []},
+        item={"serial": "EDGE-1", "asset": None, "condition": "as new"},
+        operator="tester",
+        simulated=True,
+    )
 
 
 class _RunOnSpy:
@@ -337,11 +349,19 @@ class _RunOnSpy:
     def run(self):
         with _sigterm_as_interrupt():  # as the CLI's process has, around the whole call
             try:
-                execute(procedure=load_procedure(PROCEDURE), bench=load_bench(BENCH), context=_context(),
-                        readings=ScriptedReadings(READINGS), console=QuietConsole(),
-                        runs_dir=self.tmp_path / "runs", reports_dir=self.tmp_path / "reports",
-                        simulate=True, clock=VirtualClock(dt.datetime(2026, 12, 1, 9, tzinfo=dt.timezone.utc)),
-                        uid="e" * 32, calibrator=Calibrator(self.spy, "scpi-generic"))
+                execute(
+                    procedure=load_procedure(PROCEDURE),
+                    bench=load_bench(BENCH),
+                    context=_context(),
+                    readings=ScriptedReadings(READINGS),
+                    console=QuietConsole(),
+                    runs_dir=self.tmp_path / "runs",
+                    reports_dir=self.tmp_path / "reports",
+                    simulate=True,
+                    clock=VirtualClock(dt.datetime(2026, 12, 1, 9, tzinfo=dt.timezone.utc)),
+                    uid="e" * 32,
+                    calibrator=Calibrator(self.spy, "scpi-generic"),
+                )
             except BaseException as exc:  # noqa: BLE001 - the test looks at what arrived
                 return exc
         return None
@@ -360,12 +380,16 @@ class _RunOnSpy:
 
 class TestSignalsInARun:
     @pytest.mark.parametrize("count", [1, 2, 3])
-    def test_at_the_fsync_of_the_last_observation(self, tmp_path, worker, device, monkeypatch, count):
+    def test_at_the_fsync_of_the_last_observation(
+        self, tmp_path, worker, device, monkeypatch, count
+    ):
         """Signals at the fsync of the last reading: the reading is kept once, the stop follows
         it in the chain, the record is written from a verifying journal, the output reads off."""
         run = _RunOnSpy(tmp_path, worker, device)
         # fsyncs: start, three observations, the hazardous-output note, the fourth observation (6).
-        monkeypatch.setattr(record_mod.os, "fsync", _SignalsAtFsync(worker, record_mod.os.fsync, {6: count}))
+        monkeypatch.setattr(
+            record_mod.os, "fsync", _SignalsAtFsync(worker, record_mod.os.fsync, {6: count})
+        )
         run_dir, docs = run.checks(run.run())
         observed = [d["point"] for d in docs if d["kind"] == "observation"]
         assert len(observed) == len(set(observed)) == 4
@@ -402,11 +426,19 @@ class TestSignalsInARun:
 
         with _sigterm_as_interrupt():
             try:
-                execute(procedure=load_procedure(PROCEDURE), bench=load_bench(BENCH), context=_context(),
-                        readings=ScriptedReadings(READINGS), console=Console(),
-                        runs_dir=tmp_path / "runs", reports_dir=tmp_path / "reports", simulate=True,
-                        clock=VirtualClock(dt.datetime(2026, 12, 1, 9, tzinfo=dt.timezone.utc)),
-                        uid="f" * 32, calibrator=Calibrator(run.spy, "scpi-generic"))
+                execute(
+                    procedure=load_procedure(PROCEDURE),
+                    bench=load_bench(BENCH),
+                    context=_context(),
+                    readings=ScriptedReadings(READINGS),
+                    console=Console(),
+                    runs_dir=tmp_path / "runs",
+                    reports_dir=tmp_path / "reports",
+                    simulate=True,
+                    clock=VirtualClock(dt.datetime(2026, 12, 1, 9, tzinfo=dt.timezone.utc)),
+                    uid="f" * 32,
+                    calibrator=Calibrator(run.spy, "scpi-generic"),
+                )
                 error = None
             except BaseException as exc:  # noqa: BLE001
                 error = exc
@@ -415,7 +447,7 @@ class TestSignalsInARun:
         assert verified_record(run_dir)["points"]
 
 
-CHILD = textwrap.dedent('''
+CHILD = textwrap.dedent("""
     import json, os, signal, sys, threading
     from pathlib import Path
     from verirun import cli
@@ -468,26 +500,50 @@ CHILD = textwrap.dedent('''
     # What the calibrator last answered to the output-state query, before the process ended.
     output = [reply for command, reply in replies if command == "OUTP?"][-1]
     out.write_text(json.dumps({"code": code, "sent": sent, "output": output, "run": str(run_dir)}))
-''')
+""")
 
 
 class TestRealSignalsInAProcess:
-    @pytest.mark.parametrize("where, count", [
-        ("standby", 2), ("standby", 3),  # standby after the hazardous point's reading
-        ("fsync-3", 1), ("fsync-6", 2),  # at the fsync of the second and of the last reading
-        ("close", 1), ("close", 2),      # while the record is written
-    ])
+    @pytest.mark.parametrize(
+        "where, count",
+        [
+            ("standby", 2),
+            ("standby", 3),  # standby after the hazardous point's reading
+            ("fsync-3", 1),
+            ("fsync-6", 2),  # at the fsync of the second and of the last reading
+            ("close", 1),
+            ("close", 2),  # while the record is written
+        ],
+    )
     def test_sigterm_to_a_verirun_process(self, tmp_path, where, count):
         """Real SIGTERMs to a verirun process with a second thread, at standby, at a journal
         fsync and while the record is written: exit 2 (stopped), the calibrator's last
         commands are the standby and its read-back and the device reads off, the journal
         verifies with each reading once, and the record is written."""
         out = tmp_path / "out.json"
-        args = ["run", str(PROCEDURE), "--bench", str(BENCH), "--readings", str(READINGS), "--simulate",
-                "--serial", "EDGE-2", "--customer", "C", "--runs", str(tmp_path / "runs"),
-                "--reports", str(tmp_path / "reports")]
-        proc = subprocess.run([sys.executable, "-c", CHILD, where, str(count), str(out), *args],
-                              capture_output=True, text=True, timeout=60)
+        args = [
+            "run",
+            str(PROCEDURE),
+            "--bench",
+            str(BENCH),
+            "--readings",
+            str(READINGS),
+            "--simulate",
+            "--serial",
+            "EDGE-2",
+            "--customer",
+            "C",
+            "--runs",
+            str(tmp_path / "runs"),
+            "--reports",
+            str(tmp_path / "reports"),
+        ]
+        proc = subprocess.run(
+            [sys.executable, "-c", CHILD, where, str(count), str(out), *args],
+            capture_output=True,
+            text=True,
+            timeout=60,
+        )
         assert proc.returncode == 0, proc.stderr
         found = json.loads(out.read_text())
         assert found["code"] == 2, proc.stderr
@@ -509,10 +565,34 @@ class TestRealSignalsInAProcess:
         import time
 
         proc = subprocess.Popen(
-            [sys.executable, "-m", "verirun", "run", str(PROCEDURE), "--bench", str(BENCH), "--simulate",
-             "--serial", "PROMPT", "--customer", "C", "--condition", "as new", "--temperature", "23", "--humidity", "40",
-             "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "reports")],
-            stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+            [
+                sys.executable,
+                "-m",
+                "verirun",
+                "run",
+                str(PROCEDURE),
+                "--bench",
+                str(BENCH),
+                "--simulate",
+                "--serial",
+                "PROMPT",
+                "--customer",
+                "C",
+                "--condition",
+                "as new",
+                "--temperature",
+                "23",
+                "--humidity",
+                "40",
+                "--runs",
+                str(tmp_path / "runs"),
+                "--reports",
+                str(tmp_path / "reports"),
+            ],
+            stdin=subprocess.PIPE,
+            stdout=subprocess.PIPE,
+            stderr=subprocess.PIPE,
+        )
         proc.stdin.write(b"\n")  # the leads are connected
         proc.stdin.flush()
         seen, deadline = b"", time.monotonic() + 30
@@ -557,11 +637,23 @@ class TestSignalAfterSilence:
         console = Console(RichConsole(file=io.StringIO(), width=200), input_func=typist)
         with _sigterm_as_interrupt():
             with pytest.raises(KeyboardInterrupt) as info:
-                execute(procedure=load_procedure(PROCEDURE), bench=load_bench(BENCH), context=_context(),
-                        readings=console, console=console, runs_dir=tmp_path / "runs",
-                        reports_dir=tmp_path / "reports", simulate=True,
-                        clock=VirtualClock(dt.datetime(2026, 12, 1, 9, tzinfo=dt.timezone.utc)),
-                        uid="d" * 32, calibrator=Calibrator(spy, "scpi-generic"))
+                execute(
+                    procedure=load_procedure(PROCEDURE),
+                    bench=load_bench(BENCH),
+                    context=_context(),
+                    readings=console,
+                    console=console,
+                    runs_dir=tmp_path / "runs",
+                    reports_dir=tmp_path / "reports",
+                    simulate=True,
+                    clock=VirtualClock(dt.datetime(2026, 12, 1, 9, tzinfo=dt.timezone.utc)),
+                    uid="d" * 32,
+                    calibrator=Calibrator(spy, "scpi-generic"),
+                )
         assert spy.sent[-3:] == MAKE_SAFE and probe.query("OUTP?") in ("0", "OFF")
         docs = read_journal(info.value.run_dir / "journal.jsonl").documents
-        assert verify_chain(docs) == [] and docs[-1]["kind"] == "stop" and docs[-1]["status"] == "aborted"
+        assert (
+            verify_chain(docs) == []
+            and docs[-1]["kind"] == "stop"
+            and docs[-1]["status"] == "aborted"
+        )

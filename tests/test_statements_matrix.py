@@ -20,17 +20,21 @@ from pathlib import Path
 import pytest
 from bs4 import BeautifulSoup
 
+from verirun.bench.config import load_bench
 from verirun.cli import main
 from verirun.evaluation import evaluate
 from verirun.metrology.exact import as_written
 from verirun.procedure.load import load_procedure_text
 from verirun.procedure.plan import plan
-from verirun.bench.config import load_bench
 
 DATA = Path(__file__).resolve().parent / "data"
 RULES = ["simple", "guarded", "non-binary", "risk"]
-LABELS = {"PASS": "pass", "CONDITIONAL PASS": "conditional-pass",
-          "CONDITIONAL FAIL": "conditional-fail", "FAIL": "fail"}
+LABELS = {
+    "PASS": "pass",
+    "CONDITIONAL PASS": "conditional-pass",
+    "CONDITIONAL FAIL": "conditional-fail",
+    "FAIL": "fail",
+}
 
 
 def _text(q: Fraction, digits: int = 6) -> str:
@@ -52,8 +56,13 @@ def _readings_for(points, rule: str, offset: int) -> list[tuple[str, str, str]]:
             candidates += list(base.exact_acceptance)
         if base.outer:
             candidates += list(base.outer)
-        candidates = [c for c in candidates if isinstance(c, Fraction) and c > 0 or
-                      (isinstance(c, Fraction) and point.range.law.name == "linear")]
+        candidates = [
+            c
+            for c in candidates
+            if isinstance(c, Fraction)
+            and c > 0
+            or (isinstance(c, Fraction) and point.range.law.name == "linear")
+        ]
         choice = candidates[(point.index + offset) % len(candidates)]
         kind = (point.index + offset) // len(candidates) % 3
         q = Fraction(_text(choice))
@@ -82,9 +91,28 @@ def matrix(tmp_path_factory):
             writer = csv.writer(fh)
             writer.writerow(["range", "at", "reading"])
             writer.writerows(_readings_for(points, rule, i * 3))
-        assert main(["run", str(proc), "--bench", str(DATA / "matrix-bench.yaml"), "--simulate",
-                     "--readings", str(readings), "--serial", f"M-{rule}", "--customer", "C",
-                     "--runs", str(tmp / "runs"), "--reports", str(tmp / "reports")]) == 0
+        assert (
+            main(
+                [
+                    "run",
+                    str(proc),
+                    "--bench",
+                    str(DATA / "matrix-bench.yaml"),
+                    "--simulate",
+                    "--readings",
+                    str(readings),
+                    "--serial",
+                    f"M-{rule}",
+                    "--customer",
+                    "C",
+                    "--runs",
+                    str(tmp / "runs"),
+                    "--reports",
+                    str(tmp / "reports"),
+                ]
+            )
+            == 0
+        )
         (run,) = (tmp / "runs").iterdir()
         record = json.loads((run / "record.json").read_text())
         (cert,) = (tmp / "reports").glob("*.html")
@@ -139,9 +167,16 @@ def _rows(soup: BeautifulSoup, rule: str) -> list[dict]:
         for tr in table.select("tbody tr"):
             cells = [td.get_text(" ", strip=True) for td in tr.find_all("td")]
             named = dict(zip(heads, cells))
-            row = {"key": tr["data-key"], "reading": named["Reading"], "low": named["Lower limit"],
-                   "high": named["Upper limit"], "verdict": LABELS[named["Verdict"].split(" (")[0]],
-                   "U": named["U (k = 2)"], "error": named["Error"], "tur": named["TUR"]}
+            row = {
+                "key": tr["data-key"],
+                "reading": named["Reading"],
+                "low": named["Lower limit"],
+                "high": named["Upper limit"],
+                "verdict": LABELS[named["Verdict"].split(" (")[0]],
+                "U": named["U (k = 2)"],
+                "error": named["Error"],
+                "tur": named["TUR"],
+            }
             if rule != "simple":
                 row["acceptance"] = named["Acceptance limits"]
             if rule == "non-binary":
@@ -169,7 +204,9 @@ class TestCertificateMatrix:
             assert row["verdict"] == stored["verdict"]
             typed = Fraction(stored["typed"].split()[0])
             shown, _ = _number(row["reading"])
-            assert shown * 1 == typed or Decimal(row["reading"].split()[0]) == Decimal(stored["typed"]), row
+            assert shown * 1 == typed or Decimal(row["reading"].split()[0]) == Decimal(
+                stored["typed"]
+            ), row
             assert "+0 " not in row["error"] and "-0 " not in row["error"]
 
     def test_statement_counts_are_the_rows(self, matrix, rule):
@@ -182,13 +219,18 @@ class TestCertificateMatrix:
         for row in record["points"]:
             counts[row["verdict"]] += 1
             if row["verdict"] in ("fail", "conditional-fail"):
-                inside = as_written(row["low"]) <= as_written(row["reading"]) <= (
-                    float("inf") if row["high"] is None else as_written(row["high"]))
+                inside = (
+                    as_written(row["low"])
+                    <= as_written(row["reading"])
+                    <= (float("inf") if row["high"] is None else as_written(row["high"]))
+                )
                 guard += inside
                 outside += not inside
         overall = soup.select_one("#overall").get_text(" ", strip=True)
-        expected = (f"{counts['pass']} pass, {counts['conditional-pass']} conditional pass,"
-                    f" {counts['conditional-fail']} conditional fail, {counts['fail']} fail")
+        expected = (
+            f"{counts['pass']} pass, {counts['conditional-pass']} conditional pass,"
+            f" {counts['conditional-fail']} conditional fail, {counts['fail']} fail"
+        )
         assert expected in overall
         for key, count in counts.items():
             assert record["summary"][key] == count
@@ -202,7 +244,9 @@ class TestCertificateMatrix:
         if counts["conditional-fail"]:
             assert "A conditional fail means" in overall
         if rule == "non-binary":
-            assert counts["conditional-pass"] + counts["conditional-fail"] > 0  # the matrix reaches them
+            assert (
+                counts["conditional-pass"] + counts["conditional-fail"] > 0
+            )  # the matrix reaches them
 
     def test_window_json_agrees_with_the_certificate(self, matrix, rule, capsys):
         """``verirun window --json`` with the point's own terms prints every number as the
@@ -210,19 +254,56 @@ class TestCertificateMatrix:
         record, soup, points = matrix[rule]
         printed = {row["key"]: row for row in _rows(soup, rule)}
         by_key = {row["key"]: row for row in record["points"]}
-        args_of = {"dcv-20": ["--full-scale", "20V", "--percent-fs", "1", "--resolution", "0.05V"],
-                   "ohm-s": ["--scale", "series-ohms", "--centre", "10", "--arc", "90", "--degrees", "2",
-                             "--resolution", "0.5deg"],
-                   "ohm-p": ["--scale", "shunt-ohms", "--centre", "50", "--arc", "90",
-                             "--percent-length", "2", "--resolution", "0.5%"]}
+        args_of = {
+            "dcv-20": ["--full-scale", "20V", "--percent-fs", "1", "--resolution", "0.05V"],
+            "ohm-s": [
+                "--scale",
+                "series-ohms",
+                "--centre",
+                "10",
+                "--arc",
+                "90",
+                "--degrees",
+                "2",
+                "--resolution",
+                "0.5deg",
+            ],
+            "ohm-p": [
+                "--scale",
+                "shunt-ohms",
+                "--centre",
+                "50",
+                "--arc",
+                "90",
+                "--percent-length",
+                "2",
+                "--resolution",
+                "0.5%",
+            ],
+        }
         for point in points:
             if point.range.id not in args_of:
                 continue
             row = by_key[point.key]
             (calibrator,) = [t for t in row["budget"] if t["name"].startswith("applied value")]
-            assert main(["window", *args_of[point.range.id], "--at", repr(point.nominal),
-                         "--u-applied", repr(calibrator["u"]), "--rule", rule,
-                         "--reading", row["typed"], "--json"]) == 0
+            assert (
+                main(
+                    [
+                        "window",
+                        *args_of[point.range.id],
+                        "--at",
+                        repr(point.nominal),
+                        "--u-applied",
+                        repr(calibrator["u"]),
+                        "--rule",
+                        rule,
+                        "--reading",
+                        row["typed"],
+                        "--json",
+                    ]
+                )
+                == 0
+            )
             out = json.loads(capsys.readouterr().out)
             texts, cells = out["text"], printed[point.key]
             assert texts["reading"] == cells["reading"]
@@ -235,8 +316,11 @@ class TestCertificateMatrix:
             else:
                 assert cells["U"] == texts["U_spec"]
             if rule != "simple":
-                accept = (f"{texts['accept_low']} to {texts['accept_high']}" if texts["accept_low"]
-                          else "none")
+                accept = (
+                    f"{texts['accept_low']} to {texts['accept_high']}"
+                    if texts["accept_low"]
+                    else "none"
+                )
                 assert accept == cells["acceptance"]
             if rule == "non-binary":
                 assert f"{texts['outer_low']} to {texts['outer_high']}" == cells["outer"]
@@ -266,18 +350,32 @@ def _site(kind: str, nominal: str, spec: str, u: float, rule: str) -> Site:
         statement = tolerance.DegreesOfArc(degrees=float(spec))
         unit, domain, at = "Ω", "deflection", abs(float(nominal)) + 0.1
     win = tolerance.window(statement, at, ctx)
-    term = uncertainty.Term(name="u", standard_uncertainty=u if domain == "value" else u / 90.0,
-                            domain=domain, distribution="normal")
+    term = uncertainty.Term(
+        name="u",
+        standard_uncertainty=u if domain == "value" else u / 90.0,
+        domain=domain,
+        distribution="normal",
+    )
     bud = uncertainty.budget(terms=[term], nominal=at, law=law, domain=domain)
     return Site(window=win, law=law, unit=unit, budget=bud, rule=decision.rule_from_name(rule))
 
 
 @settings(max_examples=400, deadline=None)
-@given(kind=st.sampled_from(["linear", "series", "shunt"]), rule=st.sampled_from(RULES),
-       nominal=st.decimals(min_value=-19, max_value=19, places=3, allow_nan=False, allow_infinity=False),
-       spec=st.sampled_from(["0.05", "0.5", "1", "2.5"]), u=st.floats(1e-4, 0.5),
-       where=st.integers(0, 5), nudge=st.sampled_from([-1, 0, 1]), places=st.integers(0, 6))
-def test_printed_numbers_never_contradict_the_verdict(kind, rule, nominal, spec, u, where, nudge, places):
+@given(
+    kind=st.sampled_from(["linear", "series", "shunt"]),
+    rule=st.sampled_from(RULES),
+    nominal=st.decimals(
+        min_value=-19, max_value=19, places=3, allow_nan=False, allow_infinity=False
+    ),
+    spec=st.sampled_from(["0.05", "0.5", "1", "2.5"]),
+    u=st.floats(1e-4, 0.5),
+    where=st.integers(0, 5),
+    nudge=st.sampled_from([-1, 0, 1]),
+    places=st.integers(0, 6),
+)
+def test_printed_numbers_never_contradict_the_verdict(
+    kind, rule, nominal, spec, u, where, nudge, places
+):
     """For generated points, rules and readings on, just inside and just beyond every boundary,
     the reading shown compared with the limits shown gives the verdict shown, under one prefix."""
     site = _site(kind, str(nominal), spec, u, rule)
@@ -292,12 +390,21 @@ def test_printed_numbers_never_contradict_the_verdict(kind, rule, nominal, spec,
         return
     result = evaluate(site, float(typed))
     texts = shown(site, result, typed)
-    cells = {"reading": texts["reading"], "low": texts["low"], "high": texts["high"],
-             "acceptance": (f"{texts['accept_low']} to {texts['accept_high']}"
-                            if texts["accept_low"] is not None else "none"),
-             "outer": f"{texts['outer_low']} to {texts['outer_high']}" if texts["outer_low"] else ""}
+    cells = {
+        "reading": texts["reading"],
+        "low": texts["low"],
+        "high": texts["high"],
+        "acceptance": (
+            f"{texts['accept_low']} to {texts['accept_high']}"
+            if texts["accept_low"] is not None
+            else "none"
+        ),
+        "outer": f"{texts['outer_low']} to {texts['outer_high']}" if texts["outer_low"] else "",
+    }
     assert _printed_verdict(rule, cells) == result.verdict, (cells, result.verdict)
-    assert texts["reading"].split()[0] == typed.lstrip("+") or Decimal(texts["reading"].split()[0]) == Decimal(typed)
+    assert texts["reading"].split()[0] == typed.lstrip("+") or Decimal(
+        texts["reading"].split()[0]
+    ) == Decimal(typed)
 
 
 def test_conditional_results_look_different_on_the_certificate(matrix):

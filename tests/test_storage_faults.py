@@ -10,10 +10,19 @@ import subprocess
 from pathlib import Path
 
 import pytest
+from runkit import (
+    READINGS,
+    cli,
+    documents,
+    only_run,
+    procedure_with,
+    readings_file,
+    record,
+    run_args,
+)
 
-from runkit import READINGS, cli, documents, only_run, procedure_with, readings_file, record, run_args
-from verirun.record.verify import problems
 from verirun.record.journal import read_journal, verify_chain
+from verirun.record.verify import problems
 
 
 def output_state(run_dir: Path) -> str:
@@ -34,8 +43,16 @@ def no_temporaries(*folders: Path) -> bool:
     return not [p for folder in folders if folder.exists() for p in folder.rglob("*.tmp")]
 
 
-def check_fault_then_resume(tmp_path: Path, code: int, err: str, runs: Path, reports: Path, fix,
-                            readings: Path = READINGS, steps: int = 5) -> str:
+def check_fault_then_resume(
+    tmp_path: Path,
+    code: int,
+    err: str,
+    runs: Path,
+    reports: Path,
+    fix,
+    readings: Path = READINGS,
+    steps: int = 5,
+) -> str:
     """After a run ended by a storage fault: exit 3 and a clear message, or a finished run; the
     journal whole, no temporaries, the output off; then, once ``fix()``-ed, resume finishes it.
     Returns where the fault landed, for the matrix's report."""
@@ -69,8 +86,10 @@ def small_disk(tmp_path):
     """A 256 KiB tmpfs mounted for the test (needs root; skipped otherwise)."""
     mount = tmp_path / "disk"
     mount.mkdir()
-    done = subprocess.run(["mount", "-t", "tmpfs", "-o", "size=256k,mode=0755", "tmpfs", str(mount)],
-                          capture_output=True)
+    done = subprocess.run(
+        ["mount", "-t", "tmpfs", "-o", "size=256k,mode=0755", "tmpfs", str(mount)],
+        capture_output=True,
+    )
     if done.returncode != 0:
         pytest.skip("cannot mount a small file system here (needs root)")
     try:
@@ -94,10 +113,15 @@ class TestDiskFullOnASmallFileSystem:
     # at each moment: before the start, mid-run (the journal's third page), while closing the
     # record, at the certificate.
     @pytest.mark.parametrize("leave_kib", [0, 4, 8, 12, 16, 20, 24, 28, 32, 40, 48, 56, 64, 80])
-    def test_disk_full_is_a_bench_fault_and_the_run_resumes(self, tmp_path, small_disk, leave_kib, capsys):
+    def test_disk_full_is_a_bench_fault_and_the_run_resumes(
+        self, tmp_path, small_disk, leave_kib, capsys
+    ):
         procedure = procedure_with(tmp_path, "2 V, 4 V, 6 V, 8 V, 10 V, 8 V, 6 V, 4 V, 2 V")
-        readings = readings_file(tmp_path, [("dcv-10", f"{v} V", f"{v}.05") for v in (2, 4, 6, 8, 10, 8, 6, 4, 2)]
-                                 + [("dca-50u", "10 uA", "10 uA"), ("dca-50u", "50 uA", "50 uA")])
+        readings = readings_file(
+            tmp_path,
+            [("dcv-10", f"{v} V", f"{v}.05") for v in (2, 4, 6, 8, 10, 8, 6, 4, 2)]
+            + [("dca-50u", "10 uA", "10 uA"), ("dca-50u", "50 uA", "50 uA")],
+        )
         runs, reports = small_disk / "runs", small_disk / "reports"
         runs.mkdir(), reports.mkdir()
         filler = fill(small_disk, leave_kib * 1024)
@@ -105,15 +129,18 @@ class TestDiskFullOnASmallFileSystem:
         err = capsys.readouterr().err
         if code:
             assert "no space left on the device" in err and "free space" in err
-        check_fault_then_resume(tmp_path, code, err, runs, reports, fix=filler.unlink, readings=readings,
-                                steps=11)
+        check_fault_then_resume(
+            tmp_path, code, err, runs, reports, fix=filler.unlink, readings=readings, steps=11
+        )
 
 
 class TestDiskFullSimulated:
     """Where no small file system can be mounted the same faults are made by os.write refusing
     after a number of bytes (ENOSPC, as a full disk) or os.fsync failing (EIO, a failing device)."""
 
-    @pytest.mark.parametrize("budget", [0, 1, 2000, 6500, 7000, 7600, 8200, 9000, 12000, 20000, 30000])
+    @pytest.mark.parametrize(
+        "budget", [0, 1, 2000, 6500, 7000, 7600, 8200, 9000, 12000, 20000, 30000]
+    )
     def test_write_refused_after_a_number_of_bytes(self, tmp_path, monkeypatch, budget, capsys):
         real_write = os.write
         state = {"left": budget, "on": True}
@@ -128,7 +155,7 @@ class TestDiskFullSimulated:
                 return real_write(fd, data)
             if state["left"] <= 0:
                 raise OSError(errno.ENOSPC, "No space left on device")
-            part = bytes(data[:state["left"]])
+            part = bytes(data[: state["left"]])
             state["left"] -= len(part)
             return real_write(fd, part)
 
@@ -201,8 +228,17 @@ class TestReadOnlyAndInTheWay:
         run_dir = only_run(tmp_path / "runs")
         assert record(run_dir)["run"]["status"] == "complete"
         (tmp_path / "reports").unlink()
-        assert cli("resume", run_dir, "--readings", readings_file(tmp_path, []),
-                   "--reports", tmp_path / "reports") == 0
+        assert (
+            cli(
+                "resume",
+                run_dir,
+                "--readings",
+                readings_file(tmp_path, []),
+                "--reports",
+                tmp_path / "reports",
+            )
+            == 0
+        )
         assert len(list((tmp_path / "reports").glob("*.html"))) == 1
         assert sum(d["kind"] == "observation" for d in documents(run_dir)) == 5
 
@@ -234,13 +270,21 @@ class TestSymlinksAreNotFollowed:
         from verirun.certificate.render import certificate_path
 
         start = documents(run_dir)[0]
-        target = certificate_path({"lab": start["lab"], "bench": start["bench"], "run": {"started": start["time"], "uid": start["uid"]}},
-                                  tmp_path / "reports")
+        target = certificate_path(
+            {
+                "lab": start["lab"],
+                "bench": start["bench"],
+                "run": {"started": start["time"], "uid": start["uid"]},
+            },
+            tmp_path / "reports",
+        )
         target.parent.mkdir(exist_ok=True)
         outside = tmp_path / "elsewhere.html"
         outside.write_text("keep me")
         target.symlink_to(outside)
-        assert cli("resume", run_dir, "--readings", READINGS, "--reports", tmp_path / "reports") == 3
+        assert (
+            cli("resume", run_dir, "--readings", READINGS, "--reports", tmp_path / "reports") == 3
+        )
         assert outside.read_text() == "keep me"
         assert record(run_dir)["run"]["status"] == "complete"
 

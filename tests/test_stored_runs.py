@@ -15,11 +15,16 @@ from pathlib import Path
 
 import pytest
 
-from verirun.certificate.render import DRY_RUN_PREFIX, TEMPLATE_VERSION, certificate_path, render_html
+from verirun.certificate.render import (
+    DRY_RUN_PREFIX,
+    TEMPLATE_VERSION,
+    certificate_path,
+    render_html,
+)
 from verirun.cli import main
-from verirun.record.verify import verified_record
-from verirun.record.journal import read_journal
 from verirun.record.build import build_record
+from verirun.record.journal import read_journal
+from verirun.record.verify import verified_record
 
 STORED = Path(__file__).resolve().parent / "data" / "stored-runs"
 RUNS = sorted(path for path in STORED.iterdir() if (path / "journal.jsonl").is_file())
@@ -28,15 +33,24 @@ STORED_TEMPLATE_VERSION = "1"
 
 def _steps(record: dict) -> list[tuple]:
     """What a step measured and how it was judged, as the record gives it."""
-    return [(row["index"], row["range"], row["nominal"], row["typed"], row["reading"], row["verdict"])
-            for row in record["points"]]
+    return [
+        (row["index"], row["range"], row["nominal"], row["typed"], row["reading"], row["verdict"])
+        for row in record["points"]
+    ]
 
 
 def test_every_kind_of_stored_run_is_present():
     """The stored set covers every rule, a resume, an amendment, an as-left run and a skip with a note."""
     assert [path.name for path in RUNS] == [
-        "format1-amended", "format1-asleft", "format1-guarded", "format1-non-binary",
-        "format1-resumed", "format1-risk", "format1-simple", "format1-skipped"]
+        "format1-amended",
+        "format1-asleft",
+        "format1-guarded",
+        "format1-non-binary",
+        "format1-resumed",
+        "format1-risk",
+        "format1-simple",
+        "format1-skipped",
+    ]
 
 
 @pytest.mark.parametrize("run", RUNS, ids=lambda path: path.name)
@@ -85,7 +99,9 @@ def _verdicts(html: str) -> dict:
         for row in table.select("tr[data-key]"):
             if table["data-pass"] == "as-found-and-as-left":
                 for name in ("as-found", "as-left"):
-                    out[(name, row["data-key"])] = row.select_one(f'td[data-verdict="{name}"]').get_text().split()[0]
+                    out[(name, row["data-key"])] = (
+                        row.select_one(f'td[data-verdict="{name}"]').get_text().split()[0]
+                    )
             else:
                 name = "single" if table["data-pass"] == "single" else table["data-pass"]
                 out[(name, row["data-key"])] = row.select("td")[-1].get_text().split()[0]

@@ -14,18 +14,33 @@ from verirun.units import format_quantity, parse_quantity, parse_value
 
 UREG = pint.UnitRegistry()
 PINT_NAMES = {"V": "volt", "A": "ampere", "Ω": "ohm", "Hz": "hertz"}
-PINT_PREFIXES = {"p": "pico", "n": "nano", "u": "micro", "m": "milli", "": "", "k": "kilo", "M": "mega",
-                 "G": "giga"}
+PINT_PREFIXES = {
+    "p": "pico",
+    "n": "nano",
+    "u": "micro",
+    "m": "milli",
+    "": "",
+    "k": "kilo",
+    "M": "mega",
+    "G": "giga",
+}
 
 
 class TestParseQuantity:
     @settings(max_examples=200, deadline=None)
-    @given(mantissa=st.floats(min_value=-1e6, max_value=1e6, allow_nan=False, allow_infinity=False),
-           prefix=st.sampled_from(sorted(PINT_PREFIXES)), unit=st.sampled_from(sorted(PINT_NAMES)))
+    @given(
+        mantissa=st.floats(min_value=-1e6, max_value=1e6, allow_nan=False, allow_infinity=False),
+        prefix=st.sampled_from(sorted(PINT_PREFIXES)),
+        unit=st.sampled_from(sorted(PINT_NAMES)),
+    )
     def test_agrees_with_pint(self, mantissa, prefix, unit):
         """Any number with an SI prefix and unit parses to the same base-unit value as pint gives."""
         text = f"{mantissa!r} {prefix}{unit}"
-        expected = UREG.Quantity(mantissa, PINT_PREFIXES[prefix] + PINT_NAMES[unit]).to_base_units().magnitude
+        expected = (
+            UREG.Quantity(mantissa, PINT_PREFIXES[prefix] + PINT_NAMES[unit])
+            .to_base_units()
+            .magnitude
+        )
         value, dimension = parse_quantity(text)
         assert dimension == unit
         assert math.isclose(value, expected, rel_tol=1e-12, abs_tol=1e-300)
@@ -48,10 +63,18 @@ class TestParseQuantity:
         """A number without a unit is taken in the unit expected."""
         assert parse_quantity("125", "A") == (125.0, "A")
 
-    @pytest.mark.parametrize("text, reason", [
-        ("5,2", "decimal point"), ("abc", "not a number"), ("", "empty"), ("5 mA", "expected volts"),
-        ("1 kdeg", "unknown unit"), ("nan", "not a number"), ("1e999", "finite"),
-    ])
+    @pytest.mark.parametrize(
+        "text, reason",
+        [
+            ("5,2", "decimal point"),
+            ("abc", "not a number"),
+            ("", "empty"),
+            ("5 mA", "expected volts"),
+            ("1 kdeg", "unknown unit"),
+            ("nan", "not a number"),
+            ("1e999", "finite"),
+        ],
+    )
     def test_refuses_with_reason(self, text, reason):
         """Bad text is refused with the reason in plain words."""
         with pytest.raises(UnitError, match=reason):
@@ -90,5 +113,9 @@ class TestFunctionsTable:
         from verirun.functions import FUNCTIONS
 
         assert {n: (f.unit, f.alternating) for n, f in FUNCTIONS.items()} == {
-            "dc-voltage": ("V", False), "dc-current": ("A", False), "ac-voltage": ("V", True),
-            "ac-current": ("A", True), "resistance": ("Ω", False)}
+            "dc-voltage": ("V", False),
+            "dc-current": ("A", False),
+            "ac-voltage": ("V", True),
+            "ac-current": ("A", True),
+            "resistance": ("Ω", False),
+        }

@@ -62,7 +62,9 @@ PROCEDURE = textwrap.dedent("""\
 RANGES = {r.id: r for r in load_procedure_text(PROCEDURE, "proc.yaml").ranges}
 # A procedure must state each range's readability; a range without one is made here directly,
 # for the writing of a value when none is known.
-RANGES["v-none"] = dataclasses.replace(RANGES["v-deg"], id="v-none", resolution=None, resolution_domain=None)
+RANGES["v-none"] = dataclasses.replace(
+    RANGES["v-deg"], id="v-none", resolution=None, resolution_domain=None
+)
 
 
 def at_degrees(theta: float, centre: float, arc: float = 90.0) -> float:
@@ -143,26 +145,26 @@ class TestReadOffALinearScale:
 # acv-30: 0.975 x + 0.3 V to 0.25 V; ohms: θ = 90 Rc'/(Rc' + Rx) with Rc' = 16.4 Ω or 18.5 kΩ,
 # read on the nearest 0.5° mark of the scale marked for 16 Ω or 16 kΩ.
 DEMO_READINGS = [
-    "1.2 V",     # 1.1944 V = 23.9 steps of 0.05 V -> 24
-    "2.4 V",     # 2.4088 V -> 48.2 -> 48
-    "3.6 V",     # 3.6232 V -> 72.5 (72.464) -> 72
-    "4.85 V",    # 4.8376 V -> 96.8 -> 97
-    "6.05 V",    # 6.052 V -> 121.0 -> 121
-    "6 V",       # 6.09 V = 24.4 steps of 0.25 V -> 24
-    "15.25 V",   # 15.225 V -> 60.9 -> 61
-    "30.5 V",    # 30.45 V -> 121.8 -> 122
-    "6 mA",      # 5.91 mA -> 23.6 -> 24 steps of 0.25 mA
+    "1.2 V",  # 1.1944 V = 23.9 steps of 0.05 V -> 24
+    "2.4 V",  # 2.4088 V -> 48.2 -> 48
+    "3.6 V",  # 3.6232 V -> 72.5 (72.464) -> 72
+    "4.85 V",  # 4.8376 V -> 96.8 -> 97
+    "6.05 V",  # 6.052 V -> 121.0 -> 121
+    "6 V",  # 6.09 V = 24.4 steps of 0.25 V -> 24
+    "15.25 V",  # 15.225 V -> 60.9 -> 61
+    "30.5 V",  # 30.45 V -> 121.8 -> 122
+    "6 mA",  # 5.91 mA -> 23.6 -> 24 steps of 0.25 mA
     "14.75 mA",  # 14.775 mA -> 59.1 -> 59
-    "29.5 mA",   # 29.55 mA -> 118.2 -> 118
-    "6.25 V",    # 6.15 V -> 24.6 -> 25
-    "15 V",      # 14.925 V -> 59.7 -> 60
-    "29.5 V",    # 29.55 V -> 118.2 -> 118
-    "3.9 Ω",     # θ = 90 × 16.4/20.4 = 72.35° -> 72.5°; cell 3.794..3.931 Ω; 3.8 and 3.9 in, 3.9 nearer
-    "15.6 Ω",    # θ = 45.56° -> 45.5°; cell 15.475..15.823 Ω
-    "62 Ω",      # θ = 90 × 16.4/80.4 = 18.36° -> 18.5°; cell 60.8..62.9 Ω; 62 nearer than 61
-    "3.5 kΩ",    # θ = 90 × 18.5/22.5 = 74° exactly; cell 3.394..3.525 kΩ; 3.5 nearer than 3.4
-    "13.7 kΩ",   # θ = 90 × 18.5/34.5 = 48.26° -> 48.5°; cell 13.54..13.84 kΩ; 13.7 nearer
-    "500 kΩ",    # θ = 90 × 18.5/518.5 = 3.21° -> 3°; cell 427.1..507.6 kΩ
+    "29.5 mA",  # 29.55 mA -> 118.2 -> 118
+    "6.25 V",  # 6.15 V -> 24.6 -> 25
+    "15 V",  # 14.925 V -> 59.7 -> 60
+    "29.5 V",  # 29.55 V -> 118.2 -> 118
+    "3.9 Ω",  # θ = 90 × 16.4/20.4 = 72.35° -> 72.5°; cell 3.794..3.931 Ω; 3.8 and 3.9 in, 3.9 nearer
+    "15.6 Ω",  # θ = 45.56° -> 45.5°; cell 15.475..15.823 Ω
+    "62 Ω",  # θ = 90 × 16.4/80.4 = 18.36° -> 18.5°; cell 60.8..62.9 Ω; 62 nearer than 61
+    "3.5 kΩ",  # θ = 90 × 18.5/22.5 = 74° exactly; cell 3.394..3.525 kΩ; 3.5 nearer than 3.4
+    "13.7 kΩ",  # θ = 90 × 18.5/34.5 = 48.26° -> 48.5°; cell 13.54..13.84 kΩ; 13.7 nearer
+    "500 kΩ",  # θ = 90 × 18.5/518.5 = 3.21° -> 3°; cell 427.1..507.6 kΩ
 ]
 
 
@@ -187,8 +189,12 @@ class TestTheDemoMeter:
     def test_pointer_on_the_infinity_mark_is_an_error(self, tmp_path, demo_procedure_path):
         """A modelled pointer that ends on the ∞ mark is a clear error, not a reading."""
         path = tmp_path / "meter.yaml"
-        path.write_text("format: 1\nmeter: m\nranges:\n  ohm-x1: {centre: 0.01 ohm}\n", encoding="utf-8")
+        path.write_text(
+            "format: 1\nmeter: m\nranges:\n  ohm-x1: {centre: 0.01 ohm}\n", encoding="utf-8"
+        )
         meter = VirtualMeter(path)
-        point = next(p for p in plan(load_procedure(demo_procedure_path)) if p.key == "ohm-x1@64ohm")
+        point = next(
+            p for p in plan(load_procedure(demo_procedure_path)) if p.key == "ohm-x1@64ohm"
+        )
         with pytest.raises(ProcedureError, match="sits at infinity"):
             meter.take(point)

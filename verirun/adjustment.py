@@ -16,8 +16,9 @@ from verirun.errors import RecordError
 from verirun.record.journal import JOURNAL_NAME, Journal
 
 
-def check_as_found(record: dict, *, run: Path, customer: dict, others: list[Path],
-                   simulated: bool | None = None) -> None:
+def check_as_found(
+    record: dict, *, run: Path, customer: dict, others: list[Path], simulated: bool | None = None
+) -> None:
     """Refuse an as-left run for an as-found run of another customer, or one that has an
     as-left run already (looked for beside it and in ``others``, folders of run folders), or
     (given ``simulated``, the as-left run's) one a dry run where the other is not.
@@ -29,15 +30,21 @@ def check_as_found(record: dict, *, run: Path, customer: dict, others: list[Path
     """
     theirs = (record["customer"].get("name") or "").strip()
     if theirs != (customer.get("name") or "").strip():
-        raise RecordError(f"{run}: the as-found run is for customer {theirs!r}, not {customer.get('name')!r};"
-                          " an as-left run is of the same item for the same customer")
+        raise RecordError(
+            f"{run}: the as-found run is for customer {theirs!r}, not {customer.get('name')!r};"
+            " an as-left run is of the same item for the same customer"
+        )
     if simulated is not None and bool(record["bench"].get("simulated")) != simulated:
-        raise RecordError(f"{run}: the as-found run was {'a dry run' if record['bench'].get('simulated') else 'at a real bench'};"
-                          " the as-left run must be made the same way, or the certificate would mix a dry run with a calibration")
+        raise RecordError(
+            f"{run}: the as-found run was {'a dry run' if record['bench'].get('simulated') else 'at a real bench'};"
+            " the as-left run must be made the same way, or the certificate would mix a dry run with a calibration"
+        )
     already = as_left_runs(record["run"]["uid"], [Path(run).resolve().parent, *others])
     if already:
-        raise RecordError(f"{run}: the as-found run has an as-left run already ({already[0]}); one"
-                          " as-left run follows each as-found run (amend that one if it needs correcting)")
+        raise RecordError(
+            f"{run}: the as-found run has an as-left run already ({already[0]}); one"
+            " as-left run follows each as-found run (amend that one if it needs correcting)"
+        )
 
 
 def as_left_runs(uid: str, folders: list[Path]) -> list[Path]:
@@ -60,24 +67,37 @@ def as_left_runs(uid: str, folders: list[Path]) -> list[Path]:
     return found
 
 
-def revise_as_left(found_run: Path, *, reason: str, operator: str, clock=None,
-                   others: list[Path] = ()) -> list[tuple[Path, dict]]:
+def revise_as_left(
+    found_run: Path, *, reason: str, operator: str, clock=None, others: list[Path] = ()
+) -> list[tuple[Path, dict]]:
     """After the as-found run at ``found_run`` was amended, give its as-left run (if any) the
     new as-found results; return each as-left folder with its new record."""
     from verirun.certificate.render import certificate_number
-    from verirun.record.verify import verified_record
     from verirun.conduct import close_run
+    from verirun.record.verify import verified_record
 
     clock = clock or SystemClock()
     found = verified_record(found_run)
     out = []
     for left in as_left_runs(found["run"]["uid"], [Path(found_run).resolve().parent, *others]):
         previous = verified_record(left).get("as_found") or {}
-        as_found = {"run": found["run"]["uid"], "certificate": certificate_number(found),
-                    "date": found["run"]["started"][:10], "adjustment": previous.get("adjustment", ""),
-                    "points": found["points"], "summary": found["summary"]}
+        as_found = {
+            "run": found["run"]["uid"],
+            "certificate": certificate_number(found),
+            "date": found["run"]["started"][:10],
+            "adjustment": previous.get("adjustment", ""),
+            "points": found["points"],
+            "summary": found["summary"],
+        }
         with Journal(left / JOURNAL_NAME) as journal:
-            journal.append({"kind": "as-found", "time": iso(clock.now()), "as_found": as_found,
-                            "reason": reason, "operator": operator})
+            journal.append(
+                {
+                    "kind": "as-found",
+                    "time": iso(clock.now()),
+                    "as_found": as_found,
+                    "reason": reason,
+                    "operator": operator,
+                }
+            )
         out.append((left, close_run(left)))
     return out

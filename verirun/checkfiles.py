@@ -17,9 +17,12 @@ from verirun.errors import ProcedureError
 
 #: Top-level keys that tell each kind of YAML file apart (any one is enough), tried in order; a
 #: file missing some of its keys is still recognised, so its loader can say which are missing.
-_SIGNS = (("procedure", ("procedure", "decision")), ("bench file", ("bench", "calibrator", "safety")),
-          ("driver profile", ("commands", "functions", "output-state", "error-queue")),
-          ("lab profile", ("lab",)))
+_SIGNS = (
+    ("procedure", ("procedure", "decision")),
+    ("bench file", ("bench", "calibrator", "safety")),
+    ("driver profile", ("commands", "functions", "output-state", "error-queue")),
+    ("lab profile", ("lab",)),
+)
 
 
 @dataclass
@@ -52,22 +55,29 @@ def kind_of(path: Path) -> str:
     if "ranges" in data or "meter" in data:
         # A procedure lists its ranges; a virtual meter maps range ids to their models.
         return "virtual meter" if isinstance(data.get("ranges"), dict) else "procedure"
-    raise ProcedureError(f"{path}:1: not a file verirun reads: a procedure has 'procedure' and 'ranges',"
-                         " a bench file 'bench' and 'calibrator', a driver profile 'commands' and 'functions',"
-                         " a lab profile 'lab', a virtual meter 'meter' and 'ranges' (each with 'format');"
-                         " a readings file ends in .csv")
+    raise ProcedureError(
+        f"{path}:1: not a file verirun reads: a procedure has 'procedure' and 'ranges',"
+        " a bench file 'bench' and 'calibrator', a driver profile 'commands' and 'functions',"
+        " a lab profile 'lab', a virtual meter 'meter' and 'ranges' (each with 'format');"
+        " a readings file ends in .csv"
+    )
 
 
 def rest_warnings(points) -> list[str]:
     """A warning for each point whose tolerance holds the pointer's rest position on an ohms
     scale: a meter whose circuit is open (the pointer never moves) would pass there."""
-    return [f"range {point.range.id}, step {point.index + 1} at {point.stimulus_text()}: the tolerance"
-            f" ({point.accuracy_text}) holds the pointer's rest position, so a meter whose circuit is"
-            " open would pass; choose a point further up the arc"
-            for point in points if point.window.admits_rest]
+    return [
+        f"range {point.range.id}, step {point.index + 1} at {point.stimulus_text()}: the tolerance"
+        f" ({point.accuracy_text}) holds the pointer's rest position, so a meter whose circuit is"
+        " open would pass; choose a point further up the arc"
+        for point in points
+        if point.window.admits_rest
+    ]
 
 
-def check(paths: list[Path], *, bench_path: Path | None = None, today: dt.date | None = None) -> Report:
+def check(
+    paths: list[Path], *, bench_path: Path | None = None, today: dt.date | None = None
+) -> Report:
     """Check every file of ``paths`` (and, with ``bench_path``, each procedure's preflight on it)."""
     from verirun.bench.config import load_bench
     from verirun.bench.profile import load_profile
@@ -99,14 +109,18 @@ def check(paths: list[Path], *, bench_path: Path | None = None, today: dt.date |
                 points = plan(procedure)
                 procedures.append(procedure)
                 report.lines.extend(f"{path}: warning: {text}" for text in rest_warnings(points))
-                report.lines.append(f"{path}: ok: procedure {procedure.id} revision {procedure.revision},"
-                                    f" {len(procedure.ranges)} ranges, {sum(len(r.points) for r in procedure.ranges)}"
-                                    " points")
+                report.lines.append(
+                    f"{path}: ok: procedure {procedure.id} revision {procedure.revision},"
+                    f" {len(procedure.ranges)} ranges, {sum(len(r.points) for r in procedure.ranges)}"
+                    " points"
+                )
             elif kind == "bench file":
                 loaded = load_bench(path)
                 load_profile(loaded.file.calibrator.profile)
-                report.lines.append(f"{path}: ok: bench file {loaded.file.bench.id}, calibrator"
-                                    f" {loaded.file.calibrator.asset}, profile {loaded.file.calibrator.profile}")
+                report.lines.append(
+                    f"{path}: ok: bench file {loaded.file.bench.id}, calibrator"
+                    f" {loaded.file.calibrator.asset}, profile {loaded.file.calibrator.profile}"
+                )
             elif kind == "driver profile":
                 loaded = load_profile(path)
                 report.lines.append(f"{path}: ok: driver profile {loaded.name}")
@@ -126,8 +140,10 @@ def check(paths: list[Path], *, bench_path: Path | None = None, today: dt.date |
             report.problems([f"{procedure.source}: {text}" for text in found.problems])
             report.lines.extend(f"{procedure.source}: warning: {text}" for text in found.warnings)
             if not found.problems:
-                report.lines.append(f"{procedure.source}: ok on bench {bench.file.bench.id}: every point"
-                                    " within the calibrator's limits and covered by its specification")
+                report.lines.append(
+                    f"{procedure.source}: ok on bench {bench.file.bench.id}: every point"
+                    " within the calibrator's limits and covered by its specification"
+                )
     return report
 
 
@@ -142,10 +158,15 @@ def _check_source(path: Path, kind: str, procedures, bench, report: Report, *, g
         report.problems(exc.problems)
         return
     if not procedures:
-        report.problems([f"{path}:1: not checked against a procedure: the procedure given has problems"
-                         " (above); check again once it loads" if given else
-                         f"{path}:1: a {kind} file is checked against its procedure: give the procedure"
-                         " file too (verirun check PROCEDURE FILE)"])
+        report.problems(
+            [
+                f"{path}:1: not checked against a procedure: the procedure given has problems"
+                " (above); check again once it loads"
+                if given
+                else f"{path}:1: a {kind} file is checked against its procedure: give the procedure"
+                " file too (verirun check PROCEDURE FILE)"
+            ]
+        )
         return
     for procedure in procedures:
         found = source.check(plan(procedure, bench))

@@ -15,115 +15,253 @@ from pathlib import Path
 
 from verirun import __version__
 
-EXIT_OK, EXIT_ERROR, EXIT_ABORTED, EXIT_BENCH, EXIT_UNSAFE, EXIT_BUSY, EXIT_BUG = 0, 1, 2, 3, 4, 5, 70
+EXIT_OK, EXIT_ERROR, EXIT_ABORTED, EXIT_BENCH, EXIT_UNSAFE, EXIT_BUSY, EXIT_BUG = (
+    0,
+    1,
+    2,
+    3,
+    4,
+    5,
+    70,
+)
 
 
 def _parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="verirun",
         description="Verify electrical meters against a programmable calibrator, from a"
-                    " declarative procedure to an HTML certificate.")
+        " declarative procedure to an HTML certificate.",
+    )
     parser.add_argument("--version", action="version", version=f"verirun {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
 
-    demo = sub.add_parser("demo", help="run the demo procedure on the simulated bench, with a virtual meter")
+    demo = sub.add_parser(
+        "demo", help="run the demo procedure on the simulated bench, with a virtual meter"
+    )
     _output_options(demo)
 
-    run = sub.add_parser("run", help="run a procedure on a bench (real, or simulated with --simulate)")
+    run = sub.add_parser(
+        "run", help="run a procedure on a bench (real, or simulated with --simulate)"
+    )
     run.add_argument("procedure", type=Path, help="the procedure file (YAML)")
     run.add_argument("--bench", type=Path, required=True, help="the bench file (YAML)")
-    run.add_argument("--lab", type=Path, help="the lab profile (YAML); needed at a real bench (the demo lab serves"
-                                              " only dry runs on the simulated calibrator)")
-    run.add_argument("--simulate", action="store_true",
-                     help="drive the simulated calibrator instead of the bench's instrument (a dry run)")
+    run.add_argument(
+        "--lab",
+        type=Path,
+        help="the lab profile (YAML); needed at a real bench (the demo lab serves"
+        " only dry runs on the simulated calibrator)",
+    )
+    run.add_argument(
+        "--simulate",
+        action="store_true",
+        help="drive the simulated calibrator instead of the bench's instrument (a dry run)",
+    )
     _reading_options(run)
     run.add_argument("--serial", required=True, help="serial number of the item under test")
     run.add_argument("--asset", help="the customer's asset number of the item")
-    run.add_argument("--condition", help="condition of the item on receipt, in your words (asked at the console"
-                                         " if not given; needed at a real bench)")
-    run.add_argument("--received", help="date the item was received (YYYY-MM-DD, not after the calibration;"
-                                        " not recorded if not given)")
-    run.add_argument("--temperature", help="laboratory temperature at the start, in °C (asked at the console if not given)")
-    run.add_argument("--humidity", help="relative humidity at the start, in %% (asked at the console if not given)")
-    run.add_argument("--as-left-of", type=Path, metavar="RUN",
-                     help="this run is the as-left pass after an adjustment; RUN is the as-found run")
+    run.add_argument(
+        "--condition",
+        help="condition of the item on receipt, in your words (asked at the console"
+        " if not given; needed at a real bench)",
+    )
+    run.add_argument(
+        "--received",
+        help="date the item was received (YYYY-MM-DD, not after the calibration;"
+        " not recorded if not given)",
+    )
+    run.add_argument(
+        "--temperature",
+        help="laboratory temperature at the start, in °C (asked at the console if not given)",
+    )
+    run.add_argument(
+        "--humidity",
+        help="relative humidity at the start, in %% (asked at the console if not given)",
+    )
+    run.add_argument(
+        "--as-left-of",
+        type=Path,
+        metavar="RUN",
+        help="this run is the as-left pass after an adjustment; RUN is the as-found run",
+    )
     run.add_argument("--adjustment", default="", help="with --as-left-of: what was adjusted")
     run.add_argument("--customer", required=True, help="customer's name")
-    run.add_argument("--customer-address", action="append", default=[], help="a line of the customer's address")
-    run.add_argument("--operator", default=os.environ.get("USER", "operator"), help="who runs the verification")
+    run.add_argument(
+        "--customer-address", action="append", default=[], help="a line of the customer's address"
+    )
+    run.add_argument(
+        "--operator", default=os.environ.get("USER", "operator"), help="who runs the verification"
+    )
     _output_options(run)
 
-    check = sub.add_parser("check", help="check procedure, bench, driver-profile, lab, virtual-meter and"
-                                         " readings files; every problem of every file in one pass")
-    check.add_argument("files", type=Path, nargs="+",
-                       help="files to check (YAML, recognised by their keys; readings files end in .csv)")
-    check.add_argument("--bench", type=Path, help="also check each procedure on this bench, without opening the"
-                                                  " instrument (coverage, limits, hazards, test currents, TUR)")
+    check = sub.add_parser(
+        "check",
+        help="check procedure, bench, driver-profile, lab, virtual-meter and"
+        " readings files; every problem of every file in one pass",
+    )
+    check.add_argument(
+        "files",
+        type=Path,
+        nargs="+",
+        help="files to check (YAML, recognised by their keys; readings files end in .csv)",
+    )
+    check.add_argument(
+        "--bench",
+        type=Path,
+        help="also check each procedure on this bench, without opening the"
+        " instrument (coverage, limits, hazards, test currents, TUR)",
+    )
 
-    review = sub.add_parser("review", help="print the plan of a procedure on a bench and write it as an HTML"
-                                           " page for sign-off before the first real run")
+    review = sub.add_parser(
+        "review",
+        help="print the plan of a procedure on a bench and write it as an HTML"
+        " page for sign-off before the first real run",
+    )
     review.add_argument("procedure", type=Path, help="the procedure file (YAML)")
     review.add_argument("--bench", type=Path, required=True, help="the bench file (YAML)")
-    review.add_argument("--reports", type=Path, default=Path("reports"), help="folder for the review page")
+    review.add_argument(
+        "--reports", type=Path, default=Path("reports"), help="folder for the review page"
+    )
 
     window = sub.add_parser("window", help="compute the allowable window of one accuracy statement")
-    window.add_argument("--scale", choices=["linear", "series-ohms", "shunt-ohms"], default="linear")
-    window.add_argument("--full-scale", help="full-scale value of a linear scale (e.g. 10, 10V, 50mA)")
+    window.add_argument(
+        "--scale", choices=["linear", "series-ohms", "shunt-ohms"], default="linear"
+    )
+    window.add_argument(
+        "--full-scale", help="full-scale value of a linear scale (e.g. 10, 10V, 50mA)"
+    )
     window.add_argument("--centre", help="centre-scale value of an ohms scale (e.g. 16, 16kohm)")
     window.add_argument("--arc", help="arc span of the scale in degrees (e.g. 100)")
     spec = window.add_mutually_exclusive_group(required=True)
     spec.add_argument("--percent-fs", type=float, metavar="PCT", help="± percent of full scale")
     spec.add_argument("--degrees", type=float, metavar="DEG", help="± degrees of arc")
-    spec.add_argument("--percent-length", type=float, metavar="PCT", help="± percent of scale length")
+    spec.add_argument(
+        "--percent-length", type=float, metavar="PCT", help="± percent of scale length"
+    )
     spec.add_argument("--percent-reading", type=float, metavar="PCT", help="± percent of reading")
     window.add_argument("--at", required=True, help="the nominal value (e.g. 5, 5V, 16ohm)")
-    window.add_argument("--u-applied", help="standard uncertainty of the applied value (e.g. 0.0004, 40uV)")
-    window.add_argument("--resolution", help="the reading resolution (e.g. 0.05V; 0.5deg along the arc)")
-    window.add_argument("--rule", choices=["simple", "guarded", "non-binary", "risk"], default="simple",
-                        help="decision rule (guarded: w = U; risk: false-accept risk at most 2 %%)")
+    window.add_argument(
+        "--u-applied", help="standard uncertainty of the applied value (e.g. 0.0004, 40uV)"
+    )
+    window.add_argument(
+        "--resolution", help="the reading resolution (e.g. 0.05V; 0.5deg along the arc)"
+    )
+    window.add_argument(
+        "--rule",
+        choices=["simple", "guarded", "non-binary", "risk"],
+        default="simple",
+        help="decision rule (guarded: w = U; risk: false-accept risk at most 2 %%)",
+    )
     window.add_argument("--reading", help="a reading to decide on (e.g. 5.07, 5.07V)")
-    window.add_argument("--monte-carlo", action="store_true",
-                        help="validate the uncertainty by Monte Carlo (JCGM 101) and print both results")
-    window.add_argument("--seed", type=int, default=1, help="seed of the Monte Carlo trials (default 1)")
+    window.add_argument(
+        "--monte-carlo",
+        action="store_true",
+        help="validate the uncertainty by Monte Carlo (JCGM 101) and print both results",
+    )
+    window.add_argument(
+        "--seed", type=int, default=1, help="seed of the Monte Carlo trials (default 1)"
+    )
     window.add_argument("--json", action="store_true", help="print a JSON object")
 
-    resume = sub.add_parser("resume", help="continue a stopped or interrupted run where it left off")
+    resume = sub.add_parser(
+        "resume", help="continue a stopped or interrupted run where it left off"
+    )
     resume.add_argument("run", type=Path, help="the run folder")
-    resume.add_argument("--procedure", type=Path, help="the procedure file (default: the one the run started from)")
-    resume.add_argument("--bench", type=Path, help="the bench file (default: the one the run started from)")
+    resume.add_argument(
+        "--procedure", type=Path, help="the procedure file (default: the one the run started from)"
+    )
+    resume.add_argument(
+        "--bench", type=Path, help="the bench file (default: the one the run started from)"
+    )
     _reading_options(resume)
     resume.add_argument("--serial", help="serial number of the item (checked against the run's)")
-    resume.add_argument("--reports", type=Path, help="folder for certificates (default: the one the run started with)")
-    resume.add_argument("--temperature", help="laboratory temperature now, in °C (asked at the console if not given)")
-    resume.add_argument("--humidity", help="relative humidity now, in %% (asked at the console if not given)")
+    resume.add_argument(
+        "--reports",
+        type=Path,
+        help="folder for certificates (default: the one the run started with)",
+    )
+    resume.add_argument(
+        "--temperature",
+        help="laboratory temperature now, in °C (asked at the console if not given)",
+    )
+    resume.add_argument(
+        "--humidity", help="relative humidity now, in %% (asked at the console if not given)"
+    )
 
-    amend = sub.add_parser("amend", help="correct one reading of a stored run, as a new revision that keeps the old")
+    amend = sub.add_parser(
+        "amend", help="correct one reading of a stored run, as a new revision that keeps the old"
+    )
     amend.add_argument("run", type=Path, help="the run folder")
-    amend.add_argument("--point", required=True, help="the step to correct: its number (7, step 7) or its label (dca-50u@10uA)")
-    amend.add_argument("--reading", required=True, help="the reading as it should have been recorded")
+    amend.add_argument(
+        "--point",
+        required=True,
+        help="the step to correct: its number (7, step 7) or its label (dca-50u@10uA)",
+    )
+    amend.add_argument(
+        "--reading", required=True, help="the reading as it should have been recorded"
+    )
     amend.add_argument("--reason", required=True, help="why (printed on the certificate)")
-    amend.add_argument("--operator", default=os.environ.get("USER", "operator"), help="who makes the correction")
-    amend.add_argument("--reports", type=Path, help="folder for certificates (default: the one the run started with)")
+    amend.add_argument(
+        "--operator", default=os.environ.get("USER", "operator"), help="who makes the correction"
+    )
+    amend.add_argument(
+        "--reports",
+        type=Path,
+        help="folder for certificates (default: the one the run started with)",
+    )
 
-    issue = sub.add_parser("issue", help="issue a run's certificate after review: records who authorised it, when and in which role")
+    issue = sub.add_parser(
+        "issue",
+        help="issue a run's certificate after review: records who authorised it, when and in which role",
+    )
     issue.add_argument("run", type=Path, help="the run folder")
-    issue.add_argument("--by", required=True, help="who issues it, by name as the lab profile lists them")
-    issue.add_argument("--lab", type=Path, help="the lab profile whose people may issue (default: the lab the run was made under)")
-    issue.add_argument("--reports", type=Path, help="folder for certificates (default: the one the run started with,"
-                                                   " where its draft is)")
-    issue.add_argument("--pdf", action="store_true", help="write a PDF beside the HTML certificate (needs WeasyPrint)")
+    issue.add_argument(
+        "--by", required=True, help="who issues it, by name as the lab profile lists them"
+    )
+    issue.add_argument(
+        "--lab",
+        type=Path,
+        help="the lab profile whose people may issue (default: the lab the run was made under)",
+    )
+    issue.add_argument(
+        "--reports",
+        type=Path,
+        help="folder for certificates (default: the one the run started with, where its draft is)",
+    )
+    issue.add_argument(
+        "--pdf",
+        action="store_true",
+        help="write a PDF beside the HTML certificate (needs WeasyPrint)",
+    )
 
-    verify = sub.add_parser("verify", help="check that stored runs are as recorded (journal chain and record)")
+    verify = sub.add_parser(
+        "verify", help="check that stored runs are as recorded (journal chain and record)"
+    )
     verify.add_argument("runs", type=Path, nargs="+", help="run folders")
-    verify.add_argument("--reports", type=Path, default=Path("reports"),
-                        help="folder of certificates, checked against the runs' journals (if it exists)")
+    verify.add_argument(
+        "--reports",
+        type=Path,
+        default=Path("reports"),
+        help="folder of certificates, checked against the runs' journals (if it exists)",
+    )
 
     certify = sub.add_parser("certify", help="render certificates again from stored run records")
-    certify.add_argument("runs", type=Path, nargs="+",
-                         help="run folders, record.json files, or folders of run folders")
-    certify.add_argument("--reports", type=Path, default=Path("reports"), help="folder for certificates")
-    certify.add_argument("--pdf", action="store_true", help="write a PDF beside each HTML certificate (needs WeasyPrint)")
-    certify.add_argument("--workers", type=int, help="processes to render with (default: one per core)")
+    certify.add_argument(
+        "runs",
+        type=Path,
+        nargs="+",
+        help="run folders, record.json files, or folders of run folders",
+    )
+    certify.add_argument(
+        "--reports", type=Path, default=Path("reports"), help="folder for certificates"
+    )
+    certify.add_argument(
+        "--pdf",
+        action="store_true",
+        help="write a PDF beside each HTML certificate (needs WeasyPrint)",
+    )
+    certify.add_argument(
+        "--workers", type=int, help="processes to render with (default: one per core)"
+    )
 
     runs = sub.add_parser("runs", help="list stored runs")
     runs.add_argument("--runs", type=Path, default=Path("runs"), help="folder of run folders")
@@ -138,11 +276,18 @@ def _parser() -> argparse.ArgumentParser:
 
 
 def _reading_options(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--show-window", action="store_true",
-                        help="show each point's allowed window at the prompt (off: knowing it can bias a reading)")
+    parser.add_argument(
+        "--show-window",
+        action="store_true",
+        help="show each point's allowed window at the prompt (off: knowing it can bias a reading)",
+    )
     source = parser.add_mutually_exclusive_group()
-    source.add_argument("--readings", type=Path, help="take readings from a CSV file (range, at, reading)")
-    source.add_argument("--virtual-meter", type=Path, help="take readings from a virtual meter file")
+    source.add_argument(
+        "--readings", type=Path, help="take readings from a CSV file (range, at, reading)"
+    )
+    source.add_argument(
+        "--virtual-meter", type=Path, help="take readings from a virtual meter file"
+    )
 
 
 def _reading_source(args):
@@ -168,8 +313,12 @@ def _consoles(readings):
 
 
 def _output_options(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--runs", type=Path, default=Path("runs"), help="folder for run journals and records")
-    parser.add_argument("--reports", type=Path, default=Path("reports"), help="folder for certificates")
+    parser.add_argument(
+        "--runs", type=Path, default=Path("runs"), help="folder for run journals and records"
+    )
+    parser.add_argument(
+        "--reports", type=Path, default=Path("reports"), help="folder for certificates"
+    )
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -249,9 +398,15 @@ def _resume_hint(exc: BaseException) -> None:
         return
     if not docs or docs[0].get("kind") != "start":
         return
-    fix = "once that is fixed, " if type(exc).__name__ == "StorageError" or isinstance(exc, OSError) else ""
+    fix = (
+        "once that is fixed, "
+        if type(exc).__name__ == "StorageError" or isinstance(exc, OSError)
+        else ""
+    )
     with deferred_signals():  # said while the run stops, like _err
-        _err(f"every confirmed reading is kept in {run_dir}; {fix}continue with: verirun resume {run_dir}")
+        _err(
+            f"every confirmed reading is kept in {run_dir}; {fix}continue with: verirun resume {run_dir}"
+        )
 
 
 def _cmd_check(args) -> int:
@@ -277,7 +432,9 @@ def _cmd_review(args) -> int:
 
     procedure = load_procedure(args.procedure)
     bench = load_bench(args.bench)
-    found = review(procedure, bench, load_profile(bench.file.calibrator.profile), today=dt.date.today())
+    found = review(
+        procedure, bench, load_profile(bench.file.calibrator.profile), today=dt.date.today()
+    )
     rich = _rich(wide=True)
     table = Table(title=Text(f"{found.procedure} on bench {found.bench}"))
     for _, title in COLUMNS:
@@ -294,7 +451,9 @@ def _cmd_review(args) -> int:
     from verirun import storage
 
     storage.make_folder(args.reports)
-    out = args.reports / safe_file_name(f"review-{procedure.id}-{procedure.revision}-{bench.file.bench.id}.html")
+    out = args.reports / safe_file_name(
+        f"review-{procedure.id}-{procedure.revision}-{bench.file.bench.id}.html"
+    )
     storage.write_atomic(out, [render_html(found)])  # whole, and never through a link
     rich.print(f"Review page: {out}", markup=False)
     return EXIT_ERROR if found.problems else EXIT_OK
@@ -326,8 +485,10 @@ def _cmd_window(args) -> int:
     at, unit = quantity("at", args.at, "Ω" if ohms else None)
     if ohms:
         if args.centre is None:
-            raise UnitError(f"--centre: required for a {args.scale} scale: give the value marked at the"
-                            " middle of the scale, e.g. --centre 12ohm")
+            raise UnitError(
+                f"--centre: required for a {args.scale} scale: give the value marked at the"
+                " middle of the scale, e.g. --centre 12ohm"
+            )
         centre, _ = quantity("centre", args.centre, "Ω")
         if centre <= 0:
             raise UnitError("--centre: must be more than zero")
@@ -335,8 +496,10 @@ def _cmd_window(args) -> int:
         full_scale = None
     else:
         if args.full_scale is None:
-            raise UnitError("--full-scale: required for a linear scale: give the value at the right end"
-                            " of the scale, e.g. --full-scale 10V")
+            raise UnitError(
+                "--full-scale: required for a linear scale: give the value at the right end"
+                " of the scale, e.g. --full-scale 10V"
+            )
         full_scale, fs_unit = quantity("full-scale", args.full_scale, unit or None)
         unit = unit or fs_unit
         if full_scale <= 0:
@@ -352,12 +515,20 @@ def _cmd_window(args) -> int:
             statement = tolerance.PercentOfLength(percent=args.percent_length)
         else:
             statement = tolerance.ValueStatement(reading=args.percent_reading)
-        win = tolerance.window(statement, at, tolerance.RangeContext(law=law, arc=arc, full_scale=full_scale))
+        win = tolerance.window(
+            statement, at, tolerance.RangeContext(law=law, arc=arc, full_scale=full_scale)
+        )
         terms = []
         if args.u_applied is not None:
             u_applied = quantity("u-applied", args.u_applied, unit or None)[0]
-            terms.append(uncertainty.Term(name="applied value", standard_uncertainty=u_applied,
-                                          domain="value", distribution="normal"))
+            terms.append(
+                uncertainty.Term(
+                    name="applied value",
+                    standard_uncertainty=u_applied,
+                    domain="value",
+                    distribution="normal",
+                )
+            )
         if args.resolution is not None:
             terms.append(_window_resolution(args.resolution, unit, arc, ohms, quantity))
         budget = uncertainty.budget(terms=terms, nominal=at, law=law, domain=win.domain)
@@ -366,12 +537,17 @@ def _cmd_window(args) -> int:
         reading = quantity("reading", typed, unit or None)[0] if typed is not None else None
         site = Site(window=win, law=law, unit=unit, budget=budget, rule=rule)
         result = evaluate(site, reading if reading is not None else at)
-        validation = (budget.validate(law, per_unit=float(win.per_unit), seed=args.seed)
-                      if args.monte_carlo and budget.combined > 0 else None)
+        validation = (
+            budget.validate(law, per_unit=float(win.per_unit), seed=args.seed)
+            if args.monte_carlo and budget.combined > 0
+            else None
+        )
     except ValueError as exc:
         raise UnitError(str(exc)) from None
     if args.monte_carlo and validation is None:
-        raise UnitError("--monte-carlo: give --u-applied or --resolution: there is no uncertainty to validate")
+        raise UnitError(
+            "--monte-carlo: give --u-applied or --resolution: there is no uncertainty to validate"
+        )
     texts = shown(site, result, typed)
     out = _window_document(win, unit, budget, rule, result, texts, reading, validation)
     if args.json:
@@ -393,15 +569,19 @@ def _window_resolution(text: str, unit: str, arc, ohms: bool, quantity):
     if text.endswith(("deg", "°")):
         if not arc:
             raise UnitError("--resolution: a resolution in degrees needs --arc")
-        return uncertainty.readability_term(division=quantity("resolution", text, "deg")[0],
-                                            unit="degrees", arc=arc)
+        return uncertainty.readability_term(
+            division=quantity("resolution", text, "deg")[0], unit="degrees", arc=arc
+        )
     if text.endswith("%"):
-        return uncertainty.readability_term(division=quantity("resolution", text, "%")[0] / 100.0,
-                                            unit="length")
+        return uncertainty.readability_term(
+            division=quantity("resolution", text, "%")[0] / 100.0, unit="length"
+        )
     if ohms:
-        raise UnitError("--resolution: on an ohms scale give the resolution along the arc, in degrees"
-                        " (0.5deg) or percent of scale length (0.5%): its divisions are not evenly"
-                        " spaced in ohms")
+        raise UnitError(
+            "--resolution: on an ohms scale give the resolution along the arc, in degrees"
+            " (0.5deg) or percent of scale length (0.5%): its divisions are not evenly"
+            " spaced in ohms"
+        )
     return uncertainty.readability_term(division=quantity("resolution", text, unit or None)[0])
 
 
@@ -410,18 +590,26 @@ def _window_document(win, unit, budget, rule, result, texts, reading, validation
     from verirun.record.journal import json_number
 
     accept = result.acceptance
-    out = {"nominal": win.nominal, "low": json_number(win.low), "high": json_number(win.high),
-           "unit": unit,
-           "domain": win.domain, "half_width": win.half_width,
-           "U": result.expanded if result.expanded > 0 else 0.0,
-           "U_unit": result.error_unit, "U_domain": budget.expanded, "k": budget.k,
-           "U_linear_value": json_number(budget.expanded_value),
-           "tur": json_number(result.tur), "rule": rule.name,
-           "accept_low": json_number(accept[0]) if accept else None,
-           "accept_high": json_number(accept[1]) if accept else None,
-           "interval_low": json_number(result.interval[0]) if result.interval else None,
-           "interval_high": json_number(result.interval[1]) if result.interval else None,
-           "text": dict(texts)}
+    out = {
+        "nominal": win.nominal,
+        "low": json_number(win.low),
+        "high": json_number(win.high),
+        "unit": unit,
+        "domain": win.domain,
+        "half_width": win.half_width,
+        "U": result.expanded if result.expanded > 0 else 0.0,
+        "U_unit": result.error_unit,
+        "U_domain": budget.expanded,
+        "k": budget.k,
+        "U_linear_value": json_number(budget.expanded_value),
+        "tur": json_number(result.tur),
+        "rule": rule.name,
+        "accept_low": json_number(accept[0]) if accept else None,
+        "accept_high": json_number(accept[1]) if accept else None,
+        "interval_low": json_number(result.interval[0]) if result.interval else None,
+        "interval_high": json_number(result.interval[1]) if result.interval else None,
+        "text": dict(texts),
+    }
     if reading is not None:
         out["reading"] = reading
         out["verdict"] = result.verdict
@@ -433,14 +621,32 @@ def _window_document(win, unit, budget, rule, result, texts, reading, validation
 
 def _validation_document(v) -> dict:
     def comparison(c):
-        return None if c is None else {
-            "gum_low": c.gum_low, "gum_high": c.gum_high, "mc_low": _finite_or_none(c.mc_low),
-            "mc_high": _finite_or_none(c.mc_high), "d_low": _finite_or_none(c.d_low),
-            "d_high": _finite_or_none(c.d_high), "tolerance": c.tolerance, "validated": c.validated}
+        return (
+            None
+            if c is None
+            else {
+                "gum_low": c.gum_low,
+                "gum_high": c.gum_high,
+                "mc_low": _finite_or_none(c.mc_low),
+                "mc_high": _finite_or_none(c.mc_high),
+                "d_low": _finite_or_none(c.d_low),
+                "d_high": _finite_or_none(c.d_high),
+                "tolerance": c.tolerance,
+                "validated": c.validated,
+            }
+        )
 
-    return {"seed": v.seed, "trials": v.trials, "batches": v.batches, "converged": v.converged,
-            "probability": v.probability, "ndig": v.ndig, "u": v.mc_u,
-            "along": comparison(v.along), "in_value": comparison(v.in_value)}
+    return {
+        "seed": v.seed,
+        "trials": v.trials,
+        "batches": v.batches,
+        "converged": v.converged,
+        "probability": v.probability,
+        "ndig": v.ndig,
+        "u": v.mc_u,
+        "along": comparison(v.along),
+        "in_value": comparison(v.in_value),
+    }
 
 
 def _finite_or_none(x: float) -> float | None:
@@ -453,23 +659,36 @@ def _window_lines(win, rule, result, texts, reading, terms, validation) -> list[
     """The words of ``verirun window``."""
     from verirun.metrology.summary import label
 
-    lines = [f"at {texts['nominal']}: {texts['low']} to {texts['high']}"
-             + (" (unbounded above)" if not win.bounded else "")]
+    lines = [
+        f"at {texts['nominal']}: {texts['low']} to {texts['high']}"
+        + (" (unbounded above)" if not win.bounded else "")
+    ]
     if terms:
         tur_text = f"{result.tur:.2f}" if result.tur is not None else "none (unbounded)"
         lines.append(f"U (k = {result.k:g}) = {texts['U_spec']}; TUR {tur_text}")
         if win.domain == "deflection" and texts["interval"]:
-            lines.append(f"interval in {texts['unit']} ({'reading' if reading is not None else 'nominal'}"
-                         f" ± U along the arc, through the scale law): {texts['interval']}")
+            lines.append(
+                f"interval in {texts['unit']} ({'reading' if reading is not None else 'nominal'}"
+                f" ± U along the arc, through the scale law): {texts['interval']}"
+            )
     if rule.name != "simple":
-        lines.append("acceptance: " + (f"{texts['accept_low']} to {texts['accept_high']}"
-                                       if texts["accept_low"] is not None
-                                       else "none (the uncertainty leaves no acceptance zone)"))
+        lines.append(
+            "acceptance: "
+            + (
+                f"{texts['accept_low']} to {texts['accept_high']}"
+                if texts["accept_low"] is not None
+                else "none (the uncertainty leaves no acceptance zone)"
+            )
+        )
     if texts.get("outer_low") is not None:
-        lines.append(f"conditional fail down to {texts['outer_low']} and up to {texts['outer_high']}")
+        lines.append(
+            f"conditional fail down to {texts['outer_low']} and up to {texts['outer_high']}"
+        )
     if reading is not None:
-        lines.append(f"reading {texts['reading']}: {label(result.verdict)}"
-                     f" (conformance probability {result.conformance:.4f})")
+        lines.append(
+            f"reading {texts['reading']}: {label(result.verdict)}"
+            f" (conformance probability {result.conformance:.4f})"
+        )
     if validation is not None:
         lines += _validation_lines(validation, win, texts)
     return lines
@@ -482,45 +701,68 @@ def _validation_lines(v, win, texts) -> list[str]:
 
         def q(x: float) -> str:
             return f"{num(x)}{unit}" if unit == "°" else f"{num(x)} {unit}"
-        return (f"GUM {q(c.gum_low)} to {q(c.gum_high)}; Monte Carlo {q(c.mc_low)} to"
-                f" {q(c.mc_high)}; d_low {num(c.d_low)}, d_high {num(c.d_high)},"
-                f" tolerance {c.tolerance:.2g}: {'VALIDATED' if c.validated else 'NOT VALIDATED'}")
+
+        return (
+            f"GUM {q(c.gum_low)} to {q(c.gum_high)}; Monte Carlo {q(c.mc_low)} to"
+            f" {q(c.mc_high)}; d_low {num(c.d_low)}, d_high {num(c.d_high)},"
+            f" tolerance {c.tolerance:.2g}: {'VALIDATED' if c.validated else 'NOT VALIDATED'}"
+        )
 
     unit = "°" if win.unit == "deg" else (win.unit or texts["unit"])
-    lines = [f"Monte Carlo (JCGM 101:2008 7.9, 8.2): {v.trials} trials in {v.batches} batches"
-             f"{'' if v.converged else ' (did not reach its tolerance)'}, seed {v.seed},"
-             f" coverage probability {100 * v.probability:.2f} %",
-             f"  in the tolerance's domain: {interval(v.along, unit)}"]
+    lines = [
+        f"Monte Carlo (JCGM 101:2008 7.9, 8.2): {v.trials} trials in {v.batches} batches"
+        f"{'' if v.converged else ' (did not reach its tolerance)'}, seed {v.seed},"
+        f" coverage probability {100 * v.probability:.2f} %",
+        f"  in the tolerance's domain: {interval(v.along, unit)}",
+    ]
     if v.in_value is not None:
         base = texts["unit"][-1:] if texts["unit"].endswith("Ω") else texts["unit"]
         lines.append(f"  linear U carried into {base} at the nominal: {interval(v.in_value, base)}")
-        lines.append("  the linear result in the range's unit is " + ("validated" if v.in_value.validated else
-                     "NOT validated: use the interval along the arc mapped through the scale law"))
+        lines.append(
+            "  the linear result in the range's unit is "
+            + (
+                "validated"
+                if v.in_value.validated
+                else "NOT validated: use the interval along the arc mapped through the scale law"
+            )
+        )
     return lines
 
 
 def _cmd_amend(args) -> int:
     from verirun.adjustment import revise_as_left
-    from verirun.record.amend import amend
     from verirun.certificate.render import write_certificate
     from verirun.issue import earlier_revisions, earlier_states, state_of
+    from verirun.record.amend import amend
 
-    record = amend(args.run, point=args.point, reading=args.reading, reason=args.reason, operator=args.operator)
+    record = amend(
+        args.run, point=args.point, reading=args.reading, reason=args.reason, operator=args.operator
+    )
     from verirun.register.closing import waiting
 
     reports = args.reports or _reports_of(args.run)
     out = write_certificate(record, reports)
     earlier, replaced = earlier_revisions(args.run)[-1]
-    kept = write_certificate(earlier, reports, replaced_by=replaced,
-                             earlier=earlier_states(args.run, earlier, replaced_by=replaced))
-    print(f"{args.run}: revision {record['run']['revision']} ({state_of(record)}); certificate {out}")
+    kept = write_certificate(
+        earlier,
+        reports,
+        replaced_by=replaced,
+        earlier=earlier_states(args.run, earlier, replaced_by=replaced),
+    )
+    print(
+        f"{args.run}: revision {record['run']['revision']} ({state_of(record)}); certificate {out}"
+    )
     print(f"  the certificate it replaces stays readable, marked as replaced: {kept}")
     for folder, left in revise_as_left(args.run, reason=args.reason, operator=args.operator):
         combined = write_certificate(left, args.reports or _reports_of(folder))
-        print(f"{folder}: the as-left run's combined certificate takes the corrected as-found results:"
-              f" revision {left['run']['revision']} ({state_of(left)}); certificate {combined}")
+        print(
+            f"{folder}: the as-left run's combined certificate takes the corrected as-found results:"
+            f" revision {left['run']['revision']} ({state_of(left)}); certificate {combined}"
+        )
     if waiting(args.run):
-        _err("the register could not take this revision; it waits in the run's outbox for 'verirun register sync'")
+        _err(
+            "the register could not take this revision; it waits in the run's outbox for 'verirun register sync'"
+        )
     return EXIT_OK
 
 
@@ -535,13 +777,19 @@ def _cmd_issue(args) -> int:
 
         lab = load_lab(args.lab).lab.model_dump(mode="json")
     record = issue(args.run, by=args.by, lab=lab)
-    record, _ = after_close(Path(args.run), record, warn=_err)  # the issued record to the register too
-    out = write_certificate(record, args.reports or _reports_of(args.run), earlier=earlier_states(args.run, record))
+    record, _ = after_close(
+        Path(args.run), record, warn=_err
+    )  # the issued record to the register too
+    out = write_certificate(
+        record, args.reports or _reports_of(args.run), earlier=earlier_states(args.run, record)
+    )
     print(f"{args.run}: {state_of(record)}; certificate {out}")
     if args.pdf:
         print(f"  and {write_pdf(out.read_text(encoding='utf-8'), out.with_suffix('.pdf'))}")
     if waiting(args.run):
-        _err("the register could not take the issued record; it waits in the run's outbox for 'verirun register sync'")
+        _err(
+            "the register could not take the issued record; it waits in the run's outbox for 'verirun register sync'"
+        )
     return EXIT_OK
 
 
@@ -572,22 +820,33 @@ def _cmd_resume(args) -> int:
     rich.print(f"Certificate folder: {reports}", markup=False)
     environment = None
     to_measure = held.kept < held.points  # else the run is only closed: nothing to ask
-    if args.temperature is not None or args.humidity is not None or (readings.interactive and to_measure):
+    if (
+        args.temperature is not None
+        or args.humidity is not None
+        or (readings.interactive and to_measure)
+    ):
         # The conditions now, not as they were when the run stopped.
         environment = _environment(args.temperature, args.humidity, readings)
         if not readings.interactive:
             environment = {**held.environment, **environment}
-    finished = resume(run_dir=args.run, procedure_path=args.procedure, bench_path=args.bench,
-                      readings=readings, console=console, reports_dir=reports, serial=args.serial,
-                      environment=environment)
+    finished = resume(
+        run_dir=args.run,
+        procedure_path=args.procedure,
+        bench_path=args.bench,
+        readings=readings,
+        console=console,
+        reports_dir=reports,
+        serial=args.serial,
+        environment=environment,
+    )
     _summary(rich, finished)
     return EXIT_OK
 
 
 def _reports_of(run: Path) -> Path:
     """The certificate folder the run at ``run`` started with (``reports`` for older runs)."""
-    from verirun.record.verify import run_folder
     from verirun.record.journal import JOURNAL_NAME, read_journal
+    from verirun.record.verify import run_folder
 
     docs = read_journal(run_folder(run) / JOURNAL_NAME).documents
     return Path((docs[0].get("reports") if docs else None) or "reports")
@@ -611,17 +870,28 @@ def _summary(rich, finished) -> None:
     if finished.certificate is not None:
         rich.print(Text(f"Certificate: {finished.certificate} ({state_of(finished.record)})"))
         if not finished.record["bench"].get("simulated"):
-            rich.print(Text(f"Review the draft, then issue it: verirun issue {finished.run_dir} --by NAME"))
+            rich.print(
+                Text(f"Review the draft, then issue it: verirun issue {finished.run_dir} --by NAME")
+            )
     from verirun.console import verdict_text
     from verirun.metrology.summary import summarise
 
     record = finished.record
     counted = summarise(record_judged(record), record["decision_rule"]["rule"])
-    rich.print(Text.assemble("Overall: ", verdict_text(counted.overall), f" ({counted.counts_text()},"
-                             f" {counted.skipped} skipped of {counted.points} points)"))
+    rich.print(
+        Text.assemble(
+            "Overall: ",
+            verdict_text(counted.overall),
+            f" ({counted.counts_text()}, {counted.skipped} skipped of {counted.points} points)",
+        )
+    )
     if counted.guard_band_rejections:
-        rich.print(Text(f"Rejected by the guard band alone (within tolerance):"
-                        f" {', '.join(counted.guard_band_rejections)}"))
+        rich.print(
+            Text(
+                f"Rejected by the guard band alone (within tolerance):"
+                f" {', '.join(counted.guard_band_rejections)}"
+            )
+        )
 
 
 def _cmd_certify(args) -> int:
@@ -629,7 +899,6 @@ def _cmd_certify(args) -> int:
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
     from verirun.certificate.batch import certify_many, find_runs
-
     from verirun.register.closing import withheld
 
     runs = find_runs(args.runs)
@@ -649,14 +918,21 @@ def _cmd_certify(args) -> int:
     columns = (TextColumn("certifying"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn())
     with Progress(*columns, console=rich, transient=True, disable=len(runs) < 2) as progress:
         task = progress.add_task("certify", total=len(runs))
-        outcomes = certify_many(runs, args.reports, pdf=args.pdf, workers=args.workers,
-                                progress=lambda _: progress.advance(task))
+        outcomes = certify_many(
+            runs,
+            args.reports,
+            pdf=args.pdf,
+            workers=args.workers,
+            progress=lambda _: progress.advance(task),
+        )
     failed = [o for o in outcomes if o.error]
     for outcome in outcomes:
         if outcome.certificate:
             extra = f" and {outcome.pdf}" if outcome.pdf else ""
-            print(f"{outcome.run}: certificate {outcome.certificate}{extra} ({outcome.state})"
-                  + (f" ({outcome.note})" if outcome.note else ""))
+            print(
+                f"{outcome.run}: certificate {outcome.certificate}{extra} ({outcome.state})"
+                + (f" ({outcome.note})" if outcome.note else "")
+            )
             for earlier in outcome.replaced:
                 print(f"  and {earlier}, the revision it replaces, marked as replaced")
     for outcome in failed:
@@ -671,8 +947,12 @@ def _cmd_runs(args) -> int:
     from verirun.register.commands import runs_source
 
     source, where = runs_source(args.runs)  # the register, when one is named
-    rows = (source or list_runs)(args.runs, item=args.item, since=_date(args.since, "--since"),
-                                 until=_date(args.until, "--until"))
+    rows = (source or list_runs)(
+        args.runs,
+        item=args.item,
+        since=_date(args.since, "--since"),
+        until=_date(args.until, "--until"),
+    )
     for row in rows:
         if row.get("status") == "unreadable":
             _err(f"skipped {row['path']}: {row['problem']}")
@@ -686,16 +966,41 @@ def _cmd_runs(args) -> int:
     table = Table(title=Text(f"Runs in {where}") if rows else None)
     # The run folder is what other commands take: never cut, however narrow the terminal.
     table.add_column("run", no_wrap=True, min_width=max((len(r["run"]) for r in rows), default=3))
-    for name in ("item", "procedure", "date", "verdict", "status", "certificate", "customer", "bench",
-                 "rev", "as-found / as-left"):
+    for name in (
+        "item",
+        "procedure",
+        "date",
+        "verdict",
+        "status",
+        "certificate",
+        "customer",
+        "bench",
+        "rev",
+        "as-found / as-left",
+    ):
         table.add_column(name, overflow="fold")
     for row in rows:
-        link = (f"as-left of {row['as_found_run']}" if row.get("as_found_run")
-                else f"as-found; as-left {row['as_left_run']}" if row.get("as_left_run") else "")
+        link = (
+            f"as-left of {row['as_found_run']}"
+            if row.get("as_found_run")
+            else f"as-found; as-left {row['as_left_run']}"
+            if row.get("as_left_run")
+            else ""
+        )
         bench = "" if row.get("simulated") is None else "simulated" if row["simulated"] else "real"
-        cells = (row["run"], row["item"] or "", f"{row['procedure']} rev {row['revision']}", row["date"],
-                 row["verdict"], row["status"], _certificate_cell(row), row.get("customer") or "",
-                 bench, str(row.get("record_revision") or ""), link)
+        cells = (
+            row["run"],
+            row["item"] or "",
+            f"{row['procedure']} rev {row['revision']}",
+            row["date"],
+            row["verdict"],
+            row["status"],
+            _certificate_cell(row),
+            row.get("customer") or "",
+            bench,
+            str(row.get("record_revision") or ""),
+            link,
+        )
         table.add_row(*(Text(cell) for cell in cells))  # stored text is never read as markup
     console = _rich(wide=True)
     # Width the table needs with no cell folded: each column's widest cell, a space either side
@@ -707,17 +1012,35 @@ def _cmd_runs(args) -> int:
         # Narrower than the table: one block per run, the run folder on a line of its own
         # (the terminal may fold a long one, but nothing is cut off).
         for row in rows:
-            bench = "" if row.get("simulated") is None else "simulated" if row["simulated"] else "real"
-            link = (f"as-left of {row['as_found_run']}" if row.get("as_found_run")
-                    else f"as-found; as-left {row['as_left_run']}" if row.get("as_left_run") else "")
-            fields = [row["item"] or "", f"{row['procedure']} rev {row['revision']}", row["date"], row["verdict"],
-                      row["status"], _certificate_cell(row), row.get("customer") or "", bench,
-                      f"revision {row.get('record_revision') or ''}", link]
+            bench = (
+                "" if row.get("simulated") is None else "simulated" if row["simulated"] else "real"
+            )
+            link = (
+                f"as-left of {row['as_found_run']}"
+                if row.get("as_found_run")
+                else f"as-found; as-left {row['as_left_run']}"
+                if row.get("as_left_run")
+                else ""
+            )
+            fields = [
+                row["item"] or "",
+                f"{row['procedure']} rev {row['revision']}",
+                row["date"],
+                row["verdict"],
+                row["status"],
+                _certificate_cell(row),
+                row.get("customer") or "",
+                bench,
+                f"revision {row.get('record_revision') or ''}",
+                link,
+            ]
             console.print(row["run"], markup=False, soft_wrap=True)
             console.print("  " + " · ".join(f for f in fields if f), markup=False, soft_wrap=True)
     else:
-        console.print(f"no runs in {where}" + (" match" if args.item or args.since or args.until else ""),
-                      markup=False)
+        console.print(
+            f"no runs in {where}" + (" match" if args.item or args.since or args.until else ""),
+            markup=False,
+        )
     return EXIT_OK
 
 
@@ -761,18 +1084,31 @@ def _environment(temperature: str | None, humidity: str | None, readings) -> dic
     return env
 
 
-def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, context_item,
-         customer, operator, environment=None, as_left_of=None, adjustment="", condition=None,
-         demo_lab=False) -> int:
+def _run(
+    args,
+    *,
+    procedure_path,
+    bench_path,
+    lab_path,
+    readings,
+    simulate,
+    context_item,
+    customer,
+    operator,
+    environment=None,
+    as_left_of=None,
+    adjustment="",
+    condition=None,
+    demo_lab=False,
+) -> int:
+    from verirun.bench.sim import is_simulator
+    from verirun.conduct import execute
     from verirun.console import Console
     from verirun.engine import RunContext
-    from verirun.register.standards import load_bench
+    from verirun.errors import VerirunError
     from verirun.lab import load_lab
     from verirun.procedure.load import load_procedure
-    from verirun.conduct import execute
-
-    from verirun.bench.sim import is_simulator
-    from verirun.errors import VerirunError
+    from verirun.register.standards import load_bench
 
     procedure = load_procedure(procedure_path)
     bench = load_bench(bench_path)
@@ -780,8 +1116,10 @@ def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, cont
     # A bench whose VISA library is the simulator is a dry run, however it was started.
     simulate = simulate or is_simulator(bench.file.calibrator.visa_library)
     if demo_lab and not simulate:
-        raise VerirunError("a run at a real bench needs the lab's profile (--lab FILE): the demo lab serves"
-                         " only the demo and dry runs on the simulated calibrator (--simulate)")
+        raise VerirunError(
+            "a run at a real bench needs the lab's profile (--lab FILE): the demo lab serves"
+            " only the demo and dry runs on the simulated calibrator (--simulate)"
+        )
     if callable(condition):
         context_item = {**context_item, "condition": condition(simulate)}
     if callable(environment):
@@ -791,41 +1129,80 @@ def _run(args, *, procedure_path, bench_path, lab_path, readings, simulate, cont
     if as_left_of is not None:
         from verirun.conduct import as_found_of
 
-        as_found = as_found_of(as_left_of, serial=context_item["serial"], procedure=procedure, adjustment=adjustment,
-                               customer=customer, others=[args.runs], simulated=simulate)
-    context = RunContext(lab=lab.lab.model_dump(mode="json"), customer=customer, item=context_item,
-                         operator=operator, simulated=simulate, environment=environment or {},
-                         as_found=as_found)
+        as_found = as_found_of(
+            as_left_of,
+            serial=context_item["serial"],
+            procedure=procedure,
+            adjustment=adjustment,
+            customer=customer,
+            others=[args.runs],
+            simulated=simulate,
+        )
+    context = RunContext(
+        lab=lab.lab.model_dump(mode="json"),
+        customer=customer,
+        item=context_item,
+        operator=operator,
+        simulated=simulate,
+        environment=environment or {},
+        as_found=as_found,
+    )
     if simulate:
         rich.print("[bold]Dry run on the simulated calibrator[/] (no real instrument is driven).")
     if not readings.interactive:
         Console(rich).cautions()
-    finished = execute(procedure=procedure, bench=bench, context=context, readings=readings,
-                       console=console, runs_dir=args.runs, reports_dir=args.reports, simulate=simulate)
+    finished = execute(
+        procedure=procedure,
+        bench=bench,
+        context=context,
+        readings=readings,
+        console=console,
+        runs_dir=args.runs,
+        reports_dir=args.reports,
+        simulate=simulate,
+    )
     _summary(rich, finished)
     return EXIT_OK
 
 
 def _cmd_demo(args) -> int:
-    from verirun.readings import VirtualMeter
     from verirun.conduct import demo_files
+    from verirun.readings import VirtualMeter
 
     with demo_files() as demo:
-        return _run(args, procedure_path=demo["procedure"], bench_path=demo["bench"], lab_path=demo["lab"],
-                    readings=VirtualMeter(demo["meter"]), simulate=True,
-                    context_item={"serial": "QM40-118273", "asset": "AWB-E-0457", "received": _today(),
-                                  "condition": "Case scuffed; no damage affecting use. Battery 1.5 V fitted."},
-                    customer={"name": "Ashgrove Water Board", "address": ["Pumping Station 3", "Ashgrove AG2 7LP"]},
-                    operator="demo technician", environment={"temperature_c": 23.1, "humidity_pct": 41.0})
+        return _run(
+            args,
+            procedure_path=demo["procedure"],
+            bench_path=demo["bench"],
+            lab_path=demo["lab"],
+            readings=VirtualMeter(demo["meter"]),
+            simulate=True,
+            context_item={
+                "serial": "QM40-118273",
+                "asset": "AWB-E-0457",
+                "received": _today(),
+                "condition": "Case scuffed; no damage affecting use. Battery 1.5 V fitted.",
+            },
+            customer={
+                "name": "Ashgrove Water Board",
+                "address": ["Pumping Station 3", "Ashgrove AG2 7LP"],
+            },
+            operator="demo technician",
+            environment={"temperature_c": 23.1, "humidity_pct": 41.0},
+        )
 
 
 def _cmd_run(args) -> int:
-    from verirun.receipt import ask_condition, check_received
     from verirun.conduct import demo_files
+    from verirun.receipt import ask_condition, check_received
 
     readings = _reading_source(args)
-    item = {"serial": args.serial, "asset": args.asset, "condition": None,
-            "received": check_received(_date(args.received, "--received"))}
+    item = {
+        "serial": args.serial,
+        "asset": args.asset,
+        "condition": None,
+        "received": check_received(_date(args.received, "--received")),
+    }
     # Asked for (when not given) once the files have loaded and it is known whether the run is
     # at a real bench, which needs it.
     condition = lambda simulated: ask_condition(args.condition, readings, needed=not simulated)  # noqa: E731
@@ -834,18 +1211,52 @@ def _cmd_run(args) -> int:
     customer = {"name": args.customer, "address": args.customer_address}
     if args.lab is None:
         with demo_files() as demo:
-            return _run(args, procedure_path=args.procedure, bench_path=args.bench, lab_path=demo["lab"],
-                        readings=readings, simulate=args.simulate, context_item=item, customer=customer,
-                        operator=args.operator, environment=environment, as_left_of=args.as_left_of,
-                        adjustment=args.adjustment, condition=condition, demo_lab=True)
-    return _run(args, procedure_path=args.procedure, bench_path=args.bench, lab_path=args.lab,
-                readings=readings, simulate=args.simulate, context_item=item, customer=customer,
-                operator=args.operator, environment=environment, as_left_of=args.as_left_of,
-                adjustment=args.adjustment, condition=condition)
+            return _run(
+                args,
+                procedure_path=args.procedure,
+                bench_path=args.bench,
+                lab_path=demo["lab"],
+                readings=readings,
+                simulate=args.simulate,
+                context_item=item,
+                customer=customer,
+                operator=args.operator,
+                environment=environment,
+                as_left_of=args.as_left_of,
+                adjustment=args.adjustment,
+                condition=condition,
+                demo_lab=True,
+            )
+    return _run(
+        args,
+        procedure_path=args.procedure,
+        bench_path=args.bench,
+        lab_path=args.lab,
+        readings=readings,
+        simulate=args.simulate,
+        context_item=item,
+        customer=customer,
+        operator=args.operator,
+        environment=environment,
+        as_left_of=args.as_left_of,
+        adjustment=args.adjustment,
+        condition=condition,
+    )
 
 
-_COMMANDS = {"issue": _cmd_issue, "check": _cmd_check, "review": _cmd_review, "window": _cmd_window, "certify": _cmd_certify, "demo": _cmd_demo,
-             "run": _cmd_run, "resume": _cmd_resume, "verify": _cmd_verify, "amend": _cmd_amend, "runs": _cmd_runs}
+_COMMANDS = {
+    "issue": _cmd_issue,
+    "check": _cmd_check,
+    "review": _cmd_review,
+    "window": _cmd_window,
+    "certify": _cmd_certify,
+    "demo": _cmd_demo,
+    "run": _cmd_run,
+    "resume": _cmd_resume,
+    "verify": _cmd_verify,
+    "amend": _cmd_amend,
+    "runs": _cmd_runs,
+}
 
 from verirun.register.commands import COMMANDS as _REGISTER_COMMANDS  # noqa: E402  (the register's own)
 

@@ -20,17 +20,24 @@ from pathlib import Path
 from verirun import preflight, storage
 from verirun.bench.config import Bench, load_bench_text
 from verirun.bench.profile import load_profile
-from verirun.procedure.plan import plan
 from verirun.certificate.render import write_certificate
 from verirun.clock import SystemClock
 from verirun.engine import Engine, Outcome, RunContext
 from verirun.errors import ProcedureError, RecordError, VerirunError
 from verirun.interrupts import deferred_signals
-from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.locks import RUN_LOCK_NAME, calibrator_lock, run_lock
-from verirun.record.journal import JOURNAL_NAME, RECORD_NAME, Journal, load_record, read_journal, write_record
-from verirun.register.closing import after_close
+from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
+from verirun.procedure.plan import plan
 from verirun.record.build import Known, build_record
+from verirun.record.journal import (
+    JOURNAL_NAME,
+    RECORD_NAME,
+    Journal,
+    load_record,
+    read_journal,
+    write_record,
+)
+from verirun.register.closing import after_close
 
 
 @dataclass
@@ -60,9 +67,11 @@ _STALE_S = 60.0
 
 def never_started_text(folder: Path) -> str:
     """What to tell the operator of a folder that :func:`never_started`."""
-    return (f"{folder}: this run never started (the process ended before its start was journaled):"
-            " nothing was measured and there is nothing to resume or verify; the next run in"
-            f" {folder.parent} removes the folder, or remove it by hand")
+    return (
+        f"{folder}: this run never started (the process ended before its start was journaled):"
+        " nothing was measured and there is nothing to resume or verify; the next run in"
+        f" {folder.parent} removes the folder, or remove it by hand"
+    )
 
 
 def never_started(folder: Path) -> bool:
@@ -106,6 +115,7 @@ def _remove_never_started(runs_dir: Path, now: float) -> None:
 def _sigterm_as_interrupt():
     """Turn SIGTERM, SIGHUP (the terminal went away) and SIGQUIT into KeyboardInterrupt for the
     run, so that every guard puts the output in standby before the process ends."""
+
     def handler(signum, frame):
         raise KeyboardInterrupt(f"terminated ({signal.Signals(signum).name})")
 
@@ -163,9 +173,20 @@ def _calibrator_address(bench: Bench, *, simulate: bool, workdir: Path) -> tuple
     return cal.visa_library, cal.resource
 
 
-def execute(*, procedure: Procedure, bench: Bench, context: RunContext, readings, console,
-            runs_dir: Path, reports_dir: Path, simulate: bool, clock=None, uid: str | None = None,
-            calibrator=None) -> Finished:
+def execute(
+    *,
+    procedure: Procedure,
+    bench: Bench,
+    context: RunContext,
+    readings,
+    console,
+    runs_dir: Path,
+    reports_dir: Path,
+    simulate: bool,
+    clock=None,
+    uid: str | None = None,
+    calibrator=None,
+) -> Finished:
     """Run ``procedure`` on ``bench`` end to end and render its certificate.
 
     The journal is written in a new folder under ``runs_dir``; when the run ends (however it
@@ -177,7 +198,11 @@ def execute(*, procedure: Procedure, bench: Bench, context: RunContext, readings
     uid = uid or uuid_mod.uuid4().hex
     if context.reports is None:
         context = dataclasses.replace(context, reports=str(Path(reports_dir).resolve()))
-    profile = calibrator.profile if calibrator is not None else load_profile(bench.file.calibrator.profile)
+    profile = (
+        calibrator.profile
+        if calibrator is not None
+        else load_profile(bench.file.calibrator.profile)
+    )
     points = plan(procedure, bench)
     check_readings(readings, points)
     preflight.check(points, bench, profile, today=clock.now().date())
@@ -188,9 +213,21 @@ def execute(*, procedure: Procedure, bench: Bench, context: RunContext, readings
     storage.make_folder(run_dir, exist_ok=False)
     try:
         with run_lock(run_dir):
-            return _drive(run_dir=run_dir, procedure=procedure, bench=bench, context=context,
-                          readings=readings, console=console, reports_dir=reports_dir, simulate=simulate,
-                          clock=clock, uid=uid, calibrator=calibrator, profile=profile, points=points)
+            return _drive(
+                run_dir=run_dir,
+                procedure=procedure,
+                bench=bench,
+                context=context,
+                readings=readings,
+                console=console,
+                reports_dir=reports_dir,
+                simulate=simulate,
+                clock=clock,
+                uid=uid,
+                calibrator=calibrator,
+                profile=profile,
+                points=points,
+            )
     except BaseException as exc:
         if not _has_start(run_dir):
             # Nothing was journaled: the folder holds no run, and no resume could continue it.
@@ -207,10 +244,26 @@ def _has_start(run_dir: Path) -> bool:
     return bool(docs) and docs[0].get("kind") == "start"
 
 
-def _drive(*, run_dir: Path, procedure, bench, context, readings, console, reports_dir, simulate,
-           clock, uid, calibrator, profile, points, resume: dict | None = None,
-           done: frozenset[int] = frozenset(), not_before: str | None = None,
-           renewed: dict | None = None) -> Finished:
+def _drive(
+    *,
+    run_dir: Path,
+    procedure,
+    bench,
+    context,
+    readings,
+    console,
+    reports_dir,
+    simulate,
+    clock,
+    uid,
+    calibrator,
+    profile,
+    points,
+    resume: dict | None = None,
+    done: frozenset[int] = frozenset(),
+    not_before: str | None = None,
+    renewed: dict | None = None,
+) -> Finished:
     """Open the bench, run the engine on ``run_dir``'s journal, and close the run however it ends.
 
     Whatever ends the run, the journal is closed into the run record; the certificate is
@@ -228,29 +281,53 @@ def _drive(*, run_dir: Path, procedure, bench, context, readings, console, repor
         try:
             with contextlib.ExitStack() as held:
                 if own_calibrator:
-                    if not simulate:  # one verirun per instrument (a simulated one is the run's own)
+                    if (
+                        not simulate
+                    ):  # one verirun per instrument (a simulated one is the run's own)
                         held.enter_context(calibrator_lock(bench.file.calibrator.resource))
-                    calibrator = open_calibrator(bench, simulate=simulate, workdir=run_dir, profile=profile)
+                    calibrator = open_calibrator(
+                        bench, simulate=simulate, workdir=run_dir, profile=profile
+                    )
                     held.callback(calibrator.close)
-                engine = Engine(procedure=procedure, bench=bench, calibrator=calibrator,
-                                readings=readings, console=console, journal=journal, clock=clock,
-                                results=known.results)
-                outcome = engine.run(context, uid=uid, resume=resume, done=done, points=points,
-                                     not_before=not_before, renewed=renewed)
+                engine = Engine(
+                    procedure=procedure,
+                    bench=bench,
+                    calibrator=calibrator,
+                    readings=readings,
+                    console=console,
+                    journal=journal,
+                    clock=clock,
+                    results=known.results,
+                )
+                outcome = engine.run(
+                    context,
+                    uid=uid,
+                    resume=resume,
+                    done=done,
+                    points=points,
+                    not_before=not_before,
+                    renewed=renewed,
+                )
         except BaseException as exc:
             exc.run_dir = run_dir  # type: ignore[attr-defined]
             with deferred_signals():  # a signal now is dropped: the run is ending already
                 journal.close()
                 try:
-                    after_close(run_dir, close_run(run_dir, known=known), known=known, warn=console.warn)
-                except Exception:  # the journal is the truth; a record that cannot be built now can be later
+                    after_close(
+                        run_dir, close_run(run_dir, known=known), known=known, warn=console.warn
+                    )
+                except (
+                    Exception
+                ):  # the journal is the truth; a record that cannot be built now can be later
                     pass
             raise
         journal.close()
         return _finish(run_dir, reports_dir, known=known, outcome=outcome, console=console)
 
 
-def _finish(run_dir: Path, reports_dir: Path, *, known: Known | None, outcome=None, console=None) -> Finished:
+def _finish(
+    run_dir: Path, reports_dir: Path, *, known: Known | None, outcome=None, console=None
+) -> Finished:
     """Close the journal into the record, number and store it in the lab register (if one is
     named), and render a complete run's certificate (once it may be issued).
 
@@ -260,15 +337,21 @@ def _finish(run_dir: Path, reports_dir: Path, *, known: Known | None, outcome=No
         with _sigterm_as_interrupt():
             with deferred_signals():
                 record = close_run(run_dir, known=known)
-            record, issuable = after_close(run_dir, record, known=known,
-                                           warn=console.warn if console is not None else None)
+            record, issuable = after_close(
+                run_dir, record, known=known, warn=console.warn if console is not None else None
+            )
             complete = record is not None and record["run"]["status"] == "complete" and issuable
             certificate = write_certificate(record, reports_dir) if complete else None
     except BaseException as exc:
         exc.run_dir = run_dir  # type: ignore[attr-defined]
         raise
-    return Finished(outcome=outcome, run_dir=run_dir, record_path=run_dir / RECORD_NAME,
-                    certificate=certificate, record=record)
+    return Finished(
+        outcome=outcome,
+        run_dir=run_dir,
+        record_path=run_dir / RECORD_NAME,
+        certificate=certificate,
+        record=record,
+    )
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -287,10 +370,16 @@ class Resumable:
 
     def text(self) -> str:
         """The run in words: ``"Continuing run ... (uid ...): ... 6 of 20 readings kept, a dry run"``."""
-        how = "a dry run on the simulated calibrator" if self.simulated else "a run on the real calibrator"
-        return (f"Continuing run {self.run_dir} (uid {self.uid}) of item {self.serial}, procedure"
-                f" {self.procedure}: {self.kept} of {self.points} points have a confirmed entry and are kept,"
-                f" {self.points - self.kept} to go; {how}")
+        how = (
+            "a dry run on the simulated calibrator"
+            if self.simulated
+            else "a run on the real calibrator"
+        )
+        return (
+            f"Continuing run {self.run_dir} (uid {self.uid}) of item {self.serial}, procedure"
+            f" {self.procedure}: {self.kept} of {self.points} points have a confirmed entry and are kept,"
+            f" {self.points - self.kept} to go; {how}"
+        )
 
 
 def resumable(run_dir: Path) -> Resumable:
@@ -309,23 +398,41 @@ def resumable(run_dir: Path) -> Resumable:
         raise RecordError(f"{run_dir}: the journal has no start document; nothing to resume")
     start = docs[0]
     try:
-        points = len(plan(load_procedure_text(start["procedure"]["text"], start["procedure"]["source"])))
+        points = len(
+            plan(load_procedure_text(start["procedure"]["text"], start["procedure"]["source"]))
+        )
     except VerirunError:
         points = 0
     environment = start.get("environment", {})
     for doc in docs:
         if doc["kind"] == "resume" and doc.get("environment"):
             environment = doc["environment"]
-    return Resumable(run_dir=run_dir, uid=start["uid"], serial=start["item"].get("serial"),
-                     procedure=f"{start['procedure']['id']} revision {start['procedure']['revision']}",
-                     kept=len(confirmed_steps(docs)), points=points,
-                     simulated=bool(start["bench"].get("simulated")),
-                     reports=Path(start["reports"]) if start.get("reports") else None, environment=environment)
+    return Resumable(
+        run_dir=run_dir,
+        uid=start["uid"],
+        serial=start["item"].get("serial"),
+        procedure=f"{start['procedure']['id']} revision {start['procedure']['revision']}",
+        kept=len(confirmed_steps(docs)),
+        points=points,
+        simulated=bool(start["bench"].get("simulated")),
+        reports=Path(start["reports"]) if start.get("reports") else None,
+        environment=environment,
+    )
 
 
-def resume(*, run_dir: Path, procedure_path: Path | None, bench_path: Path | None, readings, console,
-           reports_dir: Path | None = None, serial: str | None = None, clock=None, calibrator=None,
-           environment: dict | None = None) -> Finished:
+def resume(
+    *,
+    run_dir: Path,
+    procedure_path: Path | None,
+    bench_path: Path | None,
+    readings,
+    console,
+    reports_dir: Path | None = None,
+    serial: str | None = None,
+    clock=None,
+    calibrator=None,
+    environment: dict | None = None,
+) -> Finished:
     """Continue a stopped or crashed run at its first step without a confirmed entry.
 
     The procedure and bench files (by default the ones the run started from, else the copies
@@ -346,13 +453,33 @@ def resume(*, run_dir: Path, procedure_path: Path | None, bench_path: Path | Non
     if not (run_dir / JOURNAL_NAME).is_file():
         raise RecordError(f"{run_dir}: no run journal here; nothing to resume")
     with run_lock(run_dir):
-        return _resume_locked(run_dir=run_dir, procedure_path=procedure_path, bench_path=bench_path,
-                              readings=readings, console=console, reports_dir=reports_dir, serial=serial,
-                              clock=clock, calibrator=calibrator, environment=environment)
+        return _resume_locked(
+            run_dir=run_dir,
+            procedure_path=procedure_path,
+            bench_path=bench_path,
+            readings=readings,
+            console=console,
+            reports_dir=reports_dir,
+            serial=serial,
+            clock=clock,
+            calibrator=calibrator,
+            environment=environment,
+        )
 
 
-def _resume_locked(*, run_dir, procedure_path, bench_path, readings, console, reports_dir, serial, clock,
-                   calibrator, environment) -> Finished:
+def _resume_locked(
+    *,
+    run_dir,
+    procedure_path,
+    bench_path,
+    readings,
+    console,
+    reports_dir,
+    serial,
+    clock,
+    calibrator,
+    environment,
+) -> Finished:
     from verirun.record.verify import reach_problems
 
     journal_path = run_dir / JOURNAL_NAME
@@ -363,16 +490,24 @@ def _resume_locked(*, run_dir, procedure_path, bench_path, readings, console, re
     try:
         record = build_record(docs, str(journal_path))
     except RecordError as exc:
-        raise RecordError(f"the journal does not verify, so the run cannot be resumed:\n{exc}") from None
+        raise RecordError(
+            f"the journal does not verify, so the run cannot be resumed:\n{exc}"
+        ) from None
     cut = reach_problems(run_dir, docs)
     if cut:
-        raise RecordError("the run cannot be resumed: its journal no longer reaches what was recorded"
-                          " from it:\n" + "\n".join(cut))
+        raise RecordError(
+            "the run cannot be resumed: its journal no longer reaches what was recorded"
+            " from it:\n" + "\n".join(cut)
+        )
     start = docs[0]
-    procedure = _same_file(procedure_path, start["procedure"], "procedure", load_procedure, load_procedure_text)
+    procedure = _same_file(
+        procedure_path, start["procedure"], "procedure", load_procedure, load_procedure_text
+    )
     bench, renewed = _resume_bench(bench_path, start["bench"])
     if serial is not None and serial != start["item"].get("serial"):
-        raise RecordError(f"{run_dir}: this run is for item {start['item'].get('serial')!r}, not {serial!r}")
+        raise RecordError(
+            f"{run_dir}: this run is for item {start['item'].get('serial')!r}, not {serial!r}"
+        )
     points = plan(procedure, bench)
     if reports_dir is None:  # where the run started putting its certificate
         reports_dir = Path(start.get("reports") or "reports")
@@ -381,23 +516,54 @@ def _resume_locked(*, run_dir, procedure_path, bench_path, readings, console, re
     done = frozenset(row["index"] for row in record["points"] if row["verdict"] != "not-measured")
     pending = [p for p in points if p.index not in done]
     if read.torn_line is not None:
-        console.warn(f"the last line of the journal was cut off by the interruption and is dropped"
-                     f" ({len(read.torn_line)} characters); every whole line before it is kept")
+        console.warn(
+            f"the last line of the journal was cut off by the interruption and is dropped"
+            f" ({len(read.torn_line)} characters); every whole line before it is kept"
+        )
     if not pending:
-        return _close_without_bench(run_dir, reports_dir, clock=clock, console=console,
-                                    known=Known(procedure=procedure, bench=bench, points=points))
+        return _close_without_bench(
+            run_dir,
+            reports_dir,
+            clock=clock,
+            console=console,
+            known=Known(procedure=procedure, bench=bench, points=points),
+        )
     simulate = bool(start["bench"].get("simulated"))
-    profile = calibrator.profile if calibrator is not None else load_profile(bench.file.calibrator.profile)
+    profile = (
+        calibrator.profile
+        if calibrator is not None
+        else load_profile(bench.file.calibrator.profile)
+    )
     check_readings(readings, pending, points)
     preflight.check(pending, bench, profile, today=clock.now().date())
-    context = RunContext(lab=start["lab"], customer=start["customer"], item=start["item"],
-                         operator=start["operator"], simulated=simulate,
-                         environment=environment if environment is not None else start.get("environment", {}),
-                         reports=start.get("reports"))
-    return _drive(run_dir=run_dir, procedure=procedure, bench=bench, context=context, readings=readings,
-                  console=console, reports_dir=reports_dir, simulate=simulate, clock=clock,
-                  uid=start["uid"], calibrator=calibrator, profile=profile, points=points,
-                  resume=start, done=done, not_before=latest_time(docs), renewed=renewed)
+    context = RunContext(
+        lab=start["lab"],
+        customer=start["customer"],
+        item=start["item"],
+        operator=start["operator"],
+        simulated=simulate,
+        environment=environment if environment is not None else start.get("environment", {}),
+        reports=start.get("reports"),
+    )
+    return _drive(
+        run_dir=run_dir,
+        procedure=procedure,
+        bench=bench,
+        context=context,
+        readings=readings,
+        console=console,
+        reports_dir=reports_dir,
+        simulate=simulate,
+        clock=clock,
+        uid=start["uid"],
+        calibrator=calibrator,
+        profile=profile,
+        points=points,
+        resume=start,
+        done=done,
+        not_before=latest_time(docs),
+        renewed=renewed,
+    )
 
 
 def confirmed_steps(docs: list[dict]) -> frozenset[int]:
@@ -417,19 +583,31 @@ def latest_time(documents: list[dict]) -> str | None:
     return max(times) if times else None
 
 
-def _close_without_bench(run_dir: Path, reports_dir: Path, *, clock, console, known: Known) -> Finished:
+def _close_without_bench(
+    run_dir: Path, reports_dir: Path, *, clock, console, known: Known
+) -> Finished:
     """Close a run whose every step has a confirmed entry but whose journal has no complete
     stop (it was killed after its last reading): a resume with nothing to measure, and the stop."""
     from verirun.clock import iso
 
     journal = Journal(run_dir / JOURNAL_NAME)
     try:
-        now = max(iso(clock.now()), latest_time(read_journal(run_dir / JOURNAL_NAME).documents) or "")
-        journal.append({"kind": "resume", "time": now, "identity": None, "pending": 0,
-                        "recovered_torn_line": journal.recovered is not None,
-                        "recovered_text": journal.recovered})
-        journal.append({"kind": "stop", "time": now, "status": "complete", "reason": None,
-                        "counts": {}})
+        now = max(
+            iso(clock.now()), latest_time(read_journal(run_dir / JOURNAL_NAME).documents) or ""
+        )
+        journal.append(
+            {
+                "kind": "resume",
+                "time": now,
+                "identity": None,
+                "pending": 0,
+                "recovered_torn_line": journal.recovered is not None,
+                "recovered_text": journal.recovered,
+            }
+        )
+        journal.append(
+            {"kind": "stop", "time": now, "status": "complete", "reason": None, "counts": {}}
+        )
     except BaseException as exc:
         exc.run_dir = run_dir  # type: ignore[attr-defined]
         raise
@@ -449,10 +627,14 @@ def _finish_closed(run_dir: Path, reports_dir: Path, record: dict, console) -> F
         stored = None
     complete = record["run"]["status"] == "complete"
     if stored == record and not (complete and not certificate_path(record, reports_dir).exists()):
-        raise RecordError(f"{run_dir}: the run is closed ({record['run']['status']}) and its record is"
-                          " written; nothing to resume (use 'verirun certify' for its certificate)")
+        raise RecordError(
+            f"{run_dir}: the run is closed ({record['run']['status']}) and its record is"
+            " written; nothing to resume (use 'verirun certify' for its certificate)"
+        )
     if stored != record:
-        console.say("the run was closed but its record was not written: written now from the journal")
+        console.say(
+            "the run was closed but its record was not written: written now from the journal"
+        )
     return _finish(run_dir, reports_dir, known=None, console=console)
 
 
@@ -475,11 +657,18 @@ def _resume_bench(path: Path | None, stored: dict) -> tuple[Bench, dict | None]:
         return loaded, None
     before = load_bench_text(stored["text"], stored["source"])
     if _without_renewal(before) != _without_renewal(loaded):
-        _same_file(path, stored, "bench file", load_with_standard, load_bench_text)  # raises, saying why
+        _same_file(
+            path, stored, "bench file", load_with_standard, load_bench_text
+        )  # raises, saying why
     cal = loaded.file.calibrator
-    return loaded, {"certificate": cal.certificate, "calibration_due": cal.calibration_due.isoformat(),
-                    "traceability": cal.traceability, "bench_sha256": loaded.sha256,
-                    "bench_source": loaded.source, "bench_text": loaded.text}
+    return loaded, {
+        "certificate": cal.certificate,
+        "calibration_due": cal.calibration_due.isoformat(),
+        "traceability": cal.traceability,
+        "bench_sha256": loaded.sha256,
+        "bench_source": loaded.source,
+        "bench_text": loaded.text,
+    }
 
 
 def _without_renewal(bench: Bench) -> dict:
@@ -495,9 +684,11 @@ def _same_file(path: Path | None, stored: dict, kind: str, load_path, load_text)
         return load_text(stored["text"], stored["source"])
     loaded = load_path(path)
     if loaded.sha256 != stored["sha256"]:
-        raise RecordError(f"{path}: this {kind} is not the one the run started with (its SHA-256 is"
-                          f" {loaded.sha256[:12]}..., the run's is {stored['sha256'][:12]}...); resume needs"
-                          f" the same {kind}")
+        raise RecordError(
+            f"{path}: this {kind} is not the one the run started with (its SHA-256 is"
+            f" {loaded.sha256[:12]}..., the run's is {stored['sha256'][:12]}...); resume needs"
+            f" the same {kind}"
+        )
     return loaded
 
 
@@ -513,8 +704,16 @@ def close_run(run_dir: Path, *, known: Known | None = None) -> dict | None:
     return record
 
 
-def as_found_of(run: Path, *, serial: str, procedure: Procedure, adjustment: str,
-                customer: dict | None = None, others: list[Path] = (), simulated: bool | None = None) -> dict:
+def as_found_of(
+    run: Path,
+    *,
+    serial: str,
+    procedure: Procedure,
+    adjustment: str,
+    customer: dict | None = None,
+    others: list[Path] = (),
+    simulated: bool | None = None,
+) -> dict:
     """The as-found results an as-left run carries, from the verified earlier run ``run``.
 
     Raises
@@ -529,27 +728,40 @@ def as_found_of(run: Path, *, serial: str, procedure: Procedure, adjustment: str
     if record["run"]["status"] != "complete":
         raise RecordError(f"{run}: the as-found run is {record['run']['status']}, not complete")
     if record["item"].get("serial") != serial:
-        raise RecordError(f"{run}: the as-found run is of item {record['item'].get('serial')!r}, not {serial!r}")
+        raise RecordError(
+            f"{run}: the as-found run is of item {record['item'].get('serial')!r}, not {serial!r}"
+        )
     if record["procedure"]["id"] != procedure.id:
-        raise RecordError(f"{run}: the as-found run followed procedure {record['procedure']['id']},"
-                          f" not {procedure.id}")
+        raise RecordError(
+            f"{run}: the as-found run followed procedure {record['procedure']['id']},"
+            f" not {procedure.id}"
+        )
     if not adjustment.strip():
         raise RecordError("say what was adjusted (--adjustment); it is printed on the certificate")
     if customer is not None:
         from verirun.adjustment import check_as_found
 
-        check_as_found(record, run=Path(run), customer=customer, others=list(others), simulated=simulated)
-    return {"run": record["run"]["uid"], "certificate": certificate_number(record),
-            "date": record["run"]["started"][:10], "adjustment": adjustment.strip(),
-            "points": record["points"], "summary": record["summary"]}
+        check_as_found(
+            record, run=Path(run), customer=customer, others=list(others), simulated=simulated
+        )
+    return {
+        "run": record["run"]["uid"],
+        "certificate": certificate_number(record),
+        "date": record["run"]["started"][:10],
+        "adjustment": adjustment.strip(),
+        "points": record["points"],
+        "summary": record["summary"],
+    }
 
 
 @contextlib.contextmanager
 def demo_files():
     """Paths of the demo's procedure, bench, lab profile and virtual meter (packaged)."""
     root = files("verirun.demo")
-    with as_file(root / "qm40-analog-multimeter.yaml") as procedure, \
-            as_file(root / "bench-sim.yaml") as bench, as_file(root / "lab.yaml") as lab, \
-            as_file(root / "virtual-meter.yaml") as meter:
+    with (
+        as_file(root / "qm40-analog-multimeter.yaml") as procedure,
+        as_file(root / "bench-sim.yaml") as bench,
+        as_file(root / "lab.yaml") as lab,
+        as_file(root / "virtual-meter.yaml") as meter,
+    ):
         yield {"procedure": procedure, "bench": bench, "lab": lab, "meter": meter}
-

@@ -16,8 +16,16 @@ from rich.text import Text
 from verirun.errors import RunAborted, UnitError
 from verirun.metrology.summary import label
 from verirun.pointer import pointer, shows_pointer
-from verirun.readings import (COMMANDS, GROSS_TOLERANCES, MAX_ENTRY_LENGTH, Entry, OperatorSilent, parse_entry,
-                              reading_unit, tolerances_off)
+from verirun.readings import (
+    COMMANDS,
+    GROSS_TOLERANCES,
+    MAX_ENTRY_LENGTH,
+    Entry,
+    OperatorSilent,
+    parse_entry,
+    reading_unit,
+    tolerances_off,
+)
 from verirun.units import format_quantity
 
 if TYPE_CHECKING:
@@ -36,8 +44,15 @@ CAUTIONS = (
 
 
 #: The colour of each statement on the console: conditional results stand apart from both ends.
-VERDICT_COLOURS = {"pass": "green", "conditional-pass": "yellow", "conditional-fail": "dark_orange",
-                   "fail": "red", "skipped": "dim", "not-measured": "dim", "none": "dim"}
+VERDICT_COLOURS = {
+    "pass": "green",
+    "conditional-pass": "yellow",
+    "conditional-fail": "dark_orange",
+    "fail": "red",
+    "skipped": "dim",
+    "not-measured": "dim",
+    "none": "dim",
+}
 
 
 def verdict_text(verdict: str) -> Text:
@@ -63,8 +78,11 @@ def result_text(point: "TestPoint", entry: Entry, result: "Result") -> tuple[str
     texts = shown(point, result, entry.typed)
     line = f"reading {texts['reading']}  limits {texts['low']} to {texts['high']}"
     if point.rule.name != "simple":
-        line += ("  acceptance " + (f"{texts['accept_low']} to {texts['accept_high']}"
-                                    if texts["accept_low"] is not None else "none"))
+        line += "  acceptance " + (
+            f"{texts['accept_low']} to {texts['accept_high']}"
+            if texts["accept_low"] is not None
+            else "none"
+        )
     if texts["outer_low"] is not None:
         line += f"  fail beyond {texts['outer_low']} and {texts['outer_high']}"
     return line, label(result.verdict)
@@ -77,7 +95,9 @@ def _warning(text: str) -> Text:
 
 
 def _danger(text: str, *, emphasis: bool = True) -> Text:
-    return Text.assemble((" DANGER ", "bold white on red"), " ", (text, "bold") if emphasis else text)
+    return Text.assemble(
+        (" DANGER ", "bold white on red"), " ", (text, "bold") if emphasis else text
+    )
 
 
 class LineReader:
@@ -139,14 +159,14 @@ class LineReader:
             while chunk:
                 head, newline, chunk = chunk.partition(b"\n")
                 if size < self._limit * 4:  # UTF-8 takes at most four bytes a character
-                    kept.append(head[:self._limit * 4 - size])
+                    kept.append(head[: self._limit * 4 - size])
                     size += len(kept[-1])
                 if newline:
                     self._lines.put(self._text(kept))
                     kept, size = [], 0
 
     def _text(self, parts: list[bytes]) -> str:
-        return b"".join(parts).decode("utf-8", errors="replace").rstrip("\r")[:self._limit]
+        return b"".join(parts).decode("utf-8", errors="replace").rstrip("\r")[: self._limit]
 
 
 class Console:
@@ -193,7 +213,9 @@ class Console:
         from rich.panel import Panel
 
         # Wrapped inside its box even where other output is not (soft_wrap would cut it off).
-        self.rich.print(Panel(Text("\n\n".join(CAUTIONS)), title="Safety", border_style="red"), soft_wrap=False)
+        self.rich.print(
+            Panel(Text("\n\n".join(CAUTIONS)), title="Safety", border_style="red"), soft_wrap=False
+        )
 
     def heading(self, text: str) -> None:
         """A section heading (run start, range change)."""
@@ -224,18 +246,30 @@ class Console:
             self.rich.print(shown, end="")
             return self._lines.get(within)
         except EOFError:
-            raise RunAborted("the console input was closed, so nobody can answer; the output was put"
-                             " in standby and the run can be resumed") from None
+            raise RunAborted(
+                "the console input was closed, so nobody can answer; the output was put"
+                " in standby and the run can be resumed"
+            ) from None
 
     def confirm(self, question: str, *, word: str = "yes") -> bool:
         """Ask for an explicit confirmation: ``word`` (or its first letter) counts as yes."""
-        answer = self.ask(Text.assemble(question, " Type ", (word, "bold"), " to go on, anything else to stop: "))
+        answer = self.ask(
+            Text.assemble(question, " Type ", (word, "bold"), " to go on, anything else to stop: ")
+        )
         return answer.strip().lower() in (word, word[0])
 
     def confirm_hazard(self, question: str) -> str:
         """Ask before a hazardous switch-on: ``"yes"``, ``"skip"`` (skip the point) or ``"stop"``."""
-        answer = self.ask(Text.assemble(question, " Type ", ("yes", "bold"), " (or y) to switch on, ",
-                                        ("skip", "bold"), " to skip this point, anything else to stop the run: "))
+        answer = self.ask(
+            Text.assemble(
+                question,
+                " Type ",
+                ("yes", "bold"),
+                " (or y) to switch on, ",
+                ("skip", "bold"),
+                " to skip this point, anything else to stop the run: ",
+            )
+        )
         answer = answer.strip().lower()
         return "yes" if answer in ("yes", "y") else "skip" if answer == "skip" else "stop"
 
@@ -251,34 +285,59 @@ class Console:
         if rng.connect:
             self.say(f"Connect: {rng.connect}")
         while True:
-            answer = self.ask("Press Enter when the leads and the range selector are set (or abort): ").strip()
+            answer = self.ask(
+                "Press Enter when the leads and the range selector are set (or abort): "
+            ).strip()
             if not answer:
                 return
             if answer.lower() == "abort":
-                raise RunAborted("aborted by the operator before the range was connected; the output is in"
-                                 " standby and the run can be resumed")
-            self.rich.print(Text.assemble(("  not taken: the output is in standby and nothing is applied yet,"
-                                           f" so {answer!r} is no reading", "yellow"),
-                                          "; press Enter once the leads are set, then read the step"))
+                raise RunAborted(
+                    "aborted by the operator before the range was connected; the output is in"
+                    " standby and the run can be resumed"
+                )
+            self.rich.print(
+                Text.assemble(
+                    (
+                        "  not taken: the output is in standby and nothing is applied yet,"
+                        f" so {answer!r} is no reading",
+                        "yellow",
+                    ),
+                    "; press Enter once the leads are set, then read the step",
+                )
+            )
 
     def step(self, point: "TestPoint") -> None:
         """Show the step about to be read: the stimulus, the unit and scale to read, and on an
         ohms or arc-specified scale where the pointer should stand."""
         unit, _ = reading_unit(point.range)
-        self.rich.print(Text.assemble("\n", (f"Step {point.index + 1} of {point.total}", "bold"),
-                                      f"  range {point.range.id}  applied ", (point.stimulus_text(), "bold cyan")))
-        self.say(f"  read in {unit}" + (f" on: {point.range.read_on}" if point.range.read_on else ""))
+        self.rich.print(
+            Text.assemble(
+                "\n",
+                (f"Step {point.index + 1} of {point.total}", "bold"),
+                f"  range {point.range.id}  applied ",
+                (point.stimulus_text(), "bold cyan"),
+            )
+        )
+        self.say(
+            f"  read in {unit}" + (f" on: {point.range.read_on}" if point.range.read_on else "")
+        )
         if shows_pointer(point):
             where = pointer(point)
-            self.say(f"  pointer expected at {where.text()}"
-                     + (f"; window {where.window_text()}" if self.show_window else ""))
+            self.say(
+                f"  pointer expected at {where.text()}"
+                + (f"; window {where.window_text()}" if self.show_window else "")
+            )
         if self.show_window:
             self.say(f"  window {_limits(point)}")
 
     def result(self, point: "TestPoint", entry: Entry, result: "Result") -> None:
         """Show the verdict of a reading."""
         line, _ = result_text(point, entry, result)
-        pct = f"{result.percent_of_tolerance:+.0f} % of tolerance" if result.percent_of_tolerance is not None else ""
+        pct = (
+            f"{result.percent_of_tolerance:+.0f} % of tolerance"
+            if result.percent_of_tolerance is not None
+            else ""
+        )
         self.rich.print(Text.assemble(f"  {line}  {pct}  ", verdict_text(result.verdict)))
 
     def take(self, point: "TestPoint", *, within: float | None = None) -> Entry:
@@ -296,7 +355,7 @@ class Console:
         unit, _ = reading_unit(point.range)
         prompt = ask_reading = f"  reading in {unit} (or {', '.join(COMMANDS)}): "
         gross: Entry | None = None  # a far-off reading waiting to be confirmed
-        replaced: list[str] = []    # far-off readings not kept: journaled with the one that is
+        replaced: list[str] = []  # far-off readings not kept: journaled with the one that is
         while True:
             typed = self.ask(prompt, within=within)
             if gross is not None and typed.strip().lower() in ("yes", "y"):
@@ -305,13 +364,19 @@ class Console:
             try:
                 entry = parse_entry(typed, point)
             except UnitError as exc:
-                self.rich.print(Text.assemble("  ", (str(exc), "yellow"), "; type the reading again"))
+                self.rich.print(
+                    Text.assemble("  ", (str(exc), "yellow"), "; type the reading again")
+                )
                 if gross is not None:
                     replaced.append(gross.typed)
                 gross, prompt = None, ask_reading
                 continue
             off = tolerances_off(point, entry.value) if entry.kind == "reading" else None
-            if off is None or off <= GROSS_TOLERANCES or (gross is not None and entry.value == gross.value):
+            if (
+                off is None
+                or off <= GROSS_TOLERANCES
+                or (gross is not None and entry.value == gross.value)
+            ):
                 if gross is not None and entry.value != gross.value:
                     replaced.append(gross.typed)
                 entry.replaced = tuple(replaced)
@@ -319,9 +384,12 @@ class Console:
             if gross is not None:
                 replaced.append(gross.typed)
             gross = entry
-            prompt = Text.assemble(f"  {typed.strip()!r} is {off:.1f} tolerances from the nominal"
-                                   f" {format_quantity(point.nominal, point.unit)}: type ", ("yes", "bold"),
-                                   " to keep it, or type the reading again: ")
+            prompt = Text.assemble(
+                f"  {typed.strip()!r} is {off:.1f} tolerances from the nominal"
+                f" {format_quantity(point.nominal, point.unit)}: type ",
+                ("yes", "bold"),
+                " to keep it, or type the reading again: ",
+            )
 
 
 class QuietConsole:
@@ -384,7 +452,9 @@ class QuietConsole:
     def confirm_hazard(self, question: str) -> str:
         answer = self._answers.pop(0) if self._answers else False
         self._log(f"{question} -> {answer}")
-        return "yes" if answer is True or answer == "yes" else "skip" if answer == "skip" else "stop"
+        return (
+            "yes" if answer is True or answer == "yes" else "skip" if answer == "skip" else "stop"
+        )
 
     def connect(self, point: "TestPoint") -> None:
         if self._quiet:
@@ -395,7 +465,9 @@ class QuietConsole:
 
     def step(self, point: "TestPoint") -> None:
         if not self._quiet:
-            self._log(f"Step {point.index + 1} of {point.total} {point.range.id} {point.stimulus_text()}")
+            self._log(
+                f"Step {point.index + 1} of {point.total} {point.range.id} {point.stimulus_text()}"
+            )
 
     def result(self, point: "TestPoint", entry: Entry, result: "Result") -> None:
         if self._quiet:

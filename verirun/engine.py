@@ -52,26 +52,47 @@ class Outcome:
     counts: dict[str, int]
 
 
-def start_document(*, uid: str, time: str, procedure: Procedure, bench: Bench, identity: str,
-                   context: RunContext) -> dict[str, Any]:
+def start_document(
+    *, uid: str, time: str, procedure: Procedure, bench: Bench, identity: str, context: RunContext
+) -> dict[str, Any]:
     """The first document of a run's journal: everything needed to replay and certify it."""
     cal = bench.file.calibrator
     return {
-        "kind": "start", "uid": uid, "time": time, "journal_format": JOURNAL_FORMAT,
+        "kind": "start",
+        "uid": uid,
+        "time": time,
+        "journal_format": JOURNAL_FORMAT,
         "software": {"name": "verirun", "version": __version__},
-        "procedure": {"id": procedure.id, "title": procedure.file.procedure.title,
-                      "revision": procedure.revision, "sha256": procedure.sha256,
-                      "source": procedure.source, "text": procedure.text},
-        "bench": {"id": bench.file.bench.id, "location": bench.file.bench.location,
-                  "sha256": bench.sha256, "source": bench.source, "text": bench.text,
-                  "simulated": context.simulated,
-                  "calibrator": {"description": cal.description, "asset": cal.asset,
-                                 "identity": identity, "resource": cal.resource,
-                                 "certificate": cal.certificate,
-                                 "calibration_due": cal.calibration_due.isoformat(),
-                                 "traceability": cal.traceability}},
-        "lab": context.lab, "customer": context.customer, "item": context.item,
-        "operator": context.operator, "environment": context.environment,
+        "procedure": {
+            "id": procedure.id,
+            "title": procedure.file.procedure.title,
+            "revision": procedure.revision,
+            "sha256": procedure.sha256,
+            "source": procedure.source,
+            "text": procedure.text,
+        },
+        "bench": {
+            "id": bench.file.bench.id,
+            "location": bench.file.bench.location,
+            "sha256": bench.sha256,
+            "source": bench.source,
+            "text": bench.text,
+            "simulated": context.simulated,
+            "calibrator": {
+                "description": cal.description,
+                "asset": cal.asset,
+                "identity": identity,
+                "resource": cal.resource,
+                "certificate": cal.certificate,
+                "calibration_due": cal.calibration_due.isoformat(),
+                "traceability": cal.traceability,
+            },
+        },
+        "lab": context.lab,
+        "customer": context.customer,
+        "item": context.item,
+        "operator": context.operator,
+        "environment": context.environment,
         **({"as_found": context.as_found} if context.as_found else {}),
         **({"reports": context.reports} if context.reports else {}),
     }
@@ -98,8 +119,18 @@ class Engine:
         If given, each reading's evaluation is also put here under its point's index.
     """
 
-    def __init__(self, *, procedure: Procedure, bench: Bench, calibrator, readings: ReadingSource,
-                 console, journal: Journal, clock=None, results: dict | None = None):
+    def __init__(
+        self,
+        *,
+        procedure: Procedure,
+        bench: Bench,
+        calibrator,
+        readings: ReadingSource,
+        console,
+        journal: Journal,
+        clock=None,
+        results: dict | None = None,
+    ):
         self.procedure = procedure
         self.bench = bench
         self.calibrator = calibrator
@@ -107,8 +138,11 @@ class Engine:
         self.console = console
         self.journal = journal
         self.clock = clock or SystemClock()
-        self.limits = HazardLimits(dc_volts=bench.hazardous_dc, ac_rms_volts=bench.hazardous_ac_rms,
-                                   ac_peak_volts=bench.hazardous_ac_peak)
+        self.limits = HazardLimits(
+            dc_volts=bench.hazardous_dc,
+            ac_rms_volts=bench.hazardous_ac_rms,
+            ac_peak_volts=bench.hazardous_ac_peak,
+        )
         self.counts = {"pass": 0, "fail": 0, "skipped": 0}
         #: The points given an entry in this session, with it, newest last (for undo).
         self._taken: list[tuple[TestPoint, Entry]] = []
@@ -118,9 +152,17 @@ class Engine:
         self._latest: str | None = None
         self._behind = False
 
-    def run(self, context: RunContext, *, uid: str | None = None, resume: dict | None = None,
-            done: frozenset[int] = frozenset(), points: list[TestPoint] | None = None,
-            not_before: str | None = None, renewed: dict | None = None) -> Outcome:
+    def run(
+        self,
+        context: RunContext,
+        *,
+        uid: str | None = None,
+        resume: dict | None = None,
+        done: frozenset[int] = frozenset(),
+        points: list[TestPoint] | None = None,
+        not_before: str | None = None,
+        renewed: dict | None = None,
+    ) -> Outcome:
         """Run every point of the plan not in ``done``; return how the run ended.
 
         The calibrator is identified first and checked against the bench file (and, when
@@ -149,9 +191,14 @@ class Engine:
         uid = uid or uuid_mod.uuid4().hex
         self._latest = not_before
         #: How points are labelled in this journal (a resumed run keeps the format it began in).
-        self.journal_format = resume.get("journal_format", 1) if resume is not None else JOURNAL_FORMAT
-        points = [p for p in (points if points is not None else plan(self.procedure, self.bench))
-                  if p.index not in done]
+        self.journal_format = (
+            resume.get("journal_format", 1) if resume is not None else JOURNAL_FORMAT
+        )
+        points = [
+            p
+            for p in (points if points is not None else plan(self.procedure, self.bench))
+            if p.index not in done
+        ]
         cal = self.calibrator
         status, reason = "failed", "the run did not finish"
         self._where: "str | TestPoint" = "identify the calibrator"
@@ -160,19 +207,32 @@ class Engine:
                 identity, problem = self._identify()
                 if resume is None:
                     # Written even when the identity is refused, so the journal says why it stopped.
-                    self.journal.append(start_document(uid=uid, time=self._now(),
-                                                       procedure=self.procedure, bench=self.bench,
-                                                       identity=identity, context=context))
+                    self.journal.append(
+                        start_document(
+                            uid=uid,
+                            time=self._now(),
+                            procedure=self.procedure,
+                            bench=self.bench,
+                            identity=identity,
+                            context=context,
+                        )
+                    )
                 if problem is not None:
                     raise problem
                 if resume is not None:
                     self._check_same_calibrator(identity, resume)
-                    self.journal.append({"kind": "resume", "time": self._now(),
-                                         "identity": identity, "pending": len(points),
-                                         "environment": context.environment,
-                                         "recovered_torn_line": self.journal.recovered is not None,
-                                         "recovered_text": self.journal.recovered,
-                                         **({"standard_renewed": renewed} if renewed else {})})
+                    self.journal.append(
+                        {
+                            "kind": "resume",
+                            "time": self._now(),
+                            "identity": identity,
+                            "pending": len(points),
+                            "environment": context.environment,
+                            "recovered_torn_line": self.journal.recovered is not None,
+                            "recovered_text": self.journal.recovered,
+                            **({"standard_renewed": renewed} if renewed else {}),
+                        }
+                    )
                 self._clear_stale_errors()
                 self.console.cautions()
                 for number, point in enumerate(points):
@@ -197,8 +257,15 @@ class Engine:
             if self.journal_started:
                 try:
                     with deferred_signals():
-                        self.journal.append({"kind": "stop", "time": self._now(), "status": status,
-                                             "reason": reason, "counts": dict(self.counts)})
+                        self.journal.append(
+                            {
+                                "kind": "stop",
+                                "time": self._now(),
+                                "status": status,
+                                "reason": reason,
+                                "counts": dict(self.counts),
+                            }
+                        )
                 except StorageError:
                     # The disk that refused the run refuses its stop too; without one the run is
                     # resumable, and the error that stopped it is what the operator must see.
@@ -214,10 +281,17 @@ class Engine:
         if latest is not None and text < latest:
             if not self._behind:  # journaled once, until the clock has caught up again
                 self._behind = True
-                self.journal.append({"kind": "note", "time": latest, "point": None, "clock_went_back": text,
-                                     "text": f"the computer's clock went back, to {text}, after {latest} had"
-                                             " been journaled; the times that follow are kept from going"
-                                             " backwards"})
+                self.journal.append(
+                    {
+                        "kind": "note",
+                        "time": latest,
+                        "point": None,
+                        "clock_went_back": text,
+                        "text": f"the computer's clock went back, to {text}, after {latest} had"
+                        " been journaled; the times that follow are kept from going"
+                        " backwards",
+                    }
+                )
             return latest
         self._latest, self._behind = text, False
         return text
@@ -228,10 +302,13 @@ class Engine:
         due = self.bench.file.calibrator.calibration_due
         today = self._now()[:10]
         if today > due.isoformat():
-            raise BenchError(f"the standard {self.bench.file.calibrator.asset} fell due for calibration on"
-                             f" {due.isoformat()} and today is {today}; the run cannot go on with an overdue"
-                             " standard. Name a standard in date in the bench file (calibration-due), then"
-                             " resume the run with --bench", step=self._step_name(point))
+            raise BenchError(
+                f"the standard {self.bench.file.calibrator.asset} fell due for calibration on"
+                f" {due.isoformat()} and today is {today}; the run cannot go on with an overdue"
+                " standard. Name a standard in date in the bench file (calibration-due), then"
+                " resume the run with --bench",
+                step=self._step_name(point),
+            )
 
     def _label(self, point: TestPoint) -> str:
         return point.key_in(self.journal_format)
@@ -253,18 +330,25 @@ class Engine:
             return None, exc.at_step("identify the calibrator")
         expected = self.bench.file.calibrator.identity
         if not identity.startswith(expected):
-            return identity, BenchError("the instrument is not the calibrator the bench file names:"
-                                        f" expected an identity starting {expected!r}", command=command,
-                                        answer=identity, step="identify the calibrator")
+            return identity, BenchError(
+                "the instrument is not the calibrator the bench file names:"
+                f" expected an identity starting {expected!r}",
+                command=command,
+                answer=identity,
+                step="identify the calibrator",
+            )
         return identity, None
 
     def _check_same_calibrator(self, identity: str, resume: dict) -> None:
         started_with = resume["bench"]["calibrator"]["identity"]
         if identity != started_with:
-            raise BenchError("the calibrator is not the one this run started with, so the run cannot be"
-                             f" resumed on it (started with {started_with!r})",
-                             command=self.calibrator.profile.commands.identify, answer=identity,
-                             step="identify the calibrator")
+            raise BenchError(
+                "the calibrator is not the one this run started with, so the run cannot be"
+                f" resumed on it (started with {started_with!r})",
+                command=self.calibrator.profile.commands.identify,
+                answer=identity,
+                step="identify the calibrator",
+            )
 
     def _clear_stale_errors(self) -> None:
         """Empty the error queue of what an earlier session left, so it is not blamed on this run;
@@ -276,11 +360,19 @@ class Engine:
             raise exc.at_step(self._where) from None
         if stale:
             text = "; ".join(f"{code} {message}".strip() for code, message in stale)
-            self.journal.append({"kind": "note", "time": self._now(), "point": None,
-                                 "text": f"errors left in the calibrator's queue before the run, cleared: {text}"})
+            self.journal.append(
+                {
+                    "kind": "note",
+                    "time": self._now(),
+                    "point": None,
+                    "text": f"errors left in the calibrator's queue before the run, cleared: {text}",
+                }
+            )
 
     def _step_name(self, point: TestPoint) -> str:
-        return f"step {point.index + 1} of {point.total} ({point.range.id} at {point.stimulus_text()})"
+        return (
+            f"step {point.index + 1} of {point.total} ({point.range.id} at {point.stimulus_text()})"
+        )
 
     def _point(self, point: TestPoint, *, connect: bool) -> None:
         try:
@@ -292,7 +384,9 @@ class Engine:
                 # Asked before every switch-on at a hazardous level, a repeat included: the
                 # output was in standby and hands may have been at the terminals.
                 if self._check_hazard(point) == "skip":
-                    entry = Entry(kind="skip", typed="skip", text="hazardous output declined by the operator")
+                    entry = Entry(
+                        kind="skip", typed="skip", text="hazardous output declined by the operator"
+                    )
                     self._journal_entry(point, entry)
                     break
                 with output_guard(self.calibrator):
@@ -309,9 +403,15 @@ class Engine:
                     # Journaled before anything else happens, standby included: if the output
                     # cannot be made safe the reading is still kept.
                     for typed in entry.replaced if entry is not None else ():
-                        self.journal.append({"kind": "note", "time": self._now(), "point": self._label(point),
-                                             "text": f"reading {typed!r} asked about as far from the nominal"
-                                                     f" and not kept; the operator typed {entry.typed!r}"})
+                        self.journal.append(
+                            {
+                                "kind": "note",
+                                "time": self._now(),
+                                "point": self._label(point),
+                                "text": f"reading {typed!r} asked about as far from the nominal"
+                                f" and not kept; the operator typed {entry.typed!r}",
+                            }
+                        )
                     if entry is not None and entry.kind in ("reading", "skip", "abort"):
                         self._journal_entry(point, entry)
                 if entry is None:
@@ -330,7 +430,9 @@ class Engine:
             # A fault while an earlier step was measured again (undo) is named by that step.
             raise (exc if exc.step else exc.at_step(self._step_name(point))) from None
         if entry.kind == "abort":
-            raise RunAborted(f"aborted by the operator at {self._step_name(point)}; the run can be resumed")
+            raise RunAborted(
+                f"aborted by the operator at {self._step_name(point)}; the run can be resumed"
+            )
         self._taken.append((point, entry))
         if entry.kind == "skip":
             self.counts["skipped"] += 1
@@ -348,9 +450,16 @@ class Engine:
             self.console.say("  nothing to undo: no reading has been taken yet in this session")
             return False
         last, entry = self._taken.pop()
-        self.journal.append({"kind": "withdrawal", "time": self._now(), "point": self._label(last),
-                             "index": last.index, "typed": entry.typed,
-                             "reason": "withdrawn by the operator (undo)"})
+        self.journal.append(
+            {
+                "kind": "withdrawal",
+                "time": self._now(),
+                "point": self._label(last),
+                "index": last.index,
+                "typed": entry.typed,
+                "reason": "withdrawn by the operator (undo)",
+            }
+        )
         verdict = self.results.pop(last.index).verdict if last.index in self.results else "skipped"
         self.counts[verdict] -= 1
         self.console.say(f"  the entry of {self._step_name(last)} is withdrawn; measure it again")
@@ -363,27 +472,59 @@ class Engine:
         if entry.kind == "reading":
             self.journal.append(self._observation(point, entry))
         elif entry.kind == "skip":
-            self.journal.append({"kind": "skip", "time": self._now(), "point": self._label(point),
-                                 "index": point.index, "reason": entry.text, "typed": entry.typed})
+            self.journal.append(
+                {
+                    "kind": "skip",
+                    "time": self._now(),
+                    "point": self._label(point),
+                    "index": point.index,
+                    "reason": entry.text,
+                    "typed": entry.typed,
+                }
+            )
         else:
-            self.journal.append({"kind": "note", "time": self._now(), "point": self._label(point),
-                                 "text": "operator aborted the run" + (f": {entry.text}" if entry.text else "")})
+            self.journal.append(
+                {
+                    "kind": "note",
+                    "time": self._now(),
+                    "point": self._label(point),
+                    "text": "operator aborted the run" + (f": {entry.text}" if entry.text else ""),
+                }
+            )
 
     def _after_silence(self, point: TestPoint) -> None:
         """The operator said nothing for the bench's limit and the output went to standby: say
         so, journal it, and apply the stimulus again only when the operator asks."""
         limit = f"{self.bench.idle_standby_s:g} s"
-        self.journal.append({"kind": "note", "time": iso(self.clock.now()), "point": point.key,
-                             "text": f"output put in standby: no input from the operator for {limit}"})
+        self.journal.append(
+            {
+                "kind": "note",
+                "time": iso(self.clock.now()),
+                "point": point.key,
+                "text": f"output put in standby: no input from the operator for {limit}",
+            }
+        )
         self.console.say("")
-        self.console.warn(f"nothing was typed for {limit}, so the output was put in standby (read back off)"
-                          f" at {self._step_name(point)}")
-        answer = self.console.ask(f"Press Enter to apply {point.stimulus_text()} again, or type abort to stop: ")
+        self.console.warn(
+            f"nothing was typed for {limit}, so the output was put in standby (read back off)"
+            f" at {self._step_name(point)}"
+        )
+        answer = self.console.ask(
+            f"Press Enter to apply {point.stimulus_text()} again, or type abort to stop: "
+        )
         if answer.strip().lower() == "abort":
-            raise RunAborted(f"aborted by the operator at {self._step_name(point)} after the output went"
-                             " to standby; the run can be resumed")
-        self.journal.append({"kind": "note", "time": iso(self.clock.now()), "point": point.key,
-                             "text": "stimulus applied again at the operator's request after the standby"})
+            raise RunAborted(
+                f"aborted by the operator at {self._step_name(point)} after the output went"
+                " to standby; the run can be resumed"
+            )
+        self.journal.append(
+            {
+                "kind": "note",
+                "time": iso(self.clock.now()),
+                "point": point.key,
+                "text": "stimulus applied again at the operator's request after the standby",
+            }
+        )
 
     def _take(self, point: TestPoint) -> Entry:
         """The next entry that is not a note; notes are journaled as they come.
@@ -397,39 +538,65 @@ class Engine:
                 entry = self.readings.take(point)
             if entry.kind != "note":
                 return entry
-            self.journal.append({"kind": "note", "time": self._now(), "point": self._label(point),
-                                 "text": entry.text, "by": "operator"})
+            self.journal.append(
+                {
+                    "kind": "note",
+                    "time": self._now(),
+                    "point": self._label(point),
+                    "text": entry.text,
+                    "by": "operator",
+                }
+            )
             self.console.say("  note recorded")
 
     def _observation(self, point: TestPoint, entry: Entry) -> dict:
-        return {"kind": "observation", "time": self._now(), "point": self._label(point),
-                "index": point.index, "range": point.range.id, "function": point.function,
-                "applied": {"value": point.nominal, "frequency": point.frequency},
-                "typed": entry.typed, "reading": entry.value}
+        return {
+            "kind": "observation",
+            "time": self._now(),
+            "point": self._label(point),
+            "index": point.index,
+            "range": point.range.id,
+            "function": point.function,
+            "applied": {"value": point.nominal, "frequency": point.frequency},
+            "typed": entry.typed,
+            "reading": entry.value,
+        }
 
     def _check_hazard(self, point: TestPoint) -> str | None:
         """Ask (or check the bench's permission) before a hazardous switch-on; ``"skip"`` when
         the operator chose to skip the point instead."""
         if not is_hazardous(point.function, point.nominal, self.limits):
             return None
-        text = (f"{self._step_name(point)} applies {point.stimulus_text()}, at or above the"
-                f" hazardous-live threshold of this bench. Keep clear of the terminals.")
+        text = (
+            f"{self._step_name(point)} applies {point.stimulus_text()}, at or above the"
+            f" hazardous-live threshold of this bench. Keep clear of the terminals."
+        )
         if self.readings.interactive and self.console.interactive:
             self.console.danger(text)
             answer = self.console.confirm_hazard("Switch the output on at a hazardous voltage?")
             if answer == "skip":
                 return "skip"
             if answer != "yes":
-                raise RunAborted(f"hazardous output not confirmed at {self._step_name(point)};"
-                                 " the run can be resumed")
+                raise RunAborted(
+                    f"hazardous output not confirmed at {self._step_name(point)};"
+                    " the run can be resumed"
+                )
             how = "confirmed by the operator"
         elif self.bench.file.safety.scripted_hazardous == "allow":
             self.console.danger(text + " Permitted for a scripted run by the bench file.")
             how = "permitted for a scripted run by the bench file (scripted-hazardous: allow)"
         else:
-            raise RunAborted(f"{self._step_name(point)} would apply {point.stimulus_text()}, a hazardous"
-                             " voltage, in a scripted run; the bench file does not permit it"
-                             " (safety: scripted-hazardous: allow)")
-        self.journal.append({"kind": "note", "time": self._now(), "point": self._label(point),
-                             "text": f"hazardous output {point.stimulus_text()} {how}",
-                             "hazardous": True})
+            raise RunAborted(
+                f"{self._step_name(point)} would apply {point.stimulus_text()}, a hazardous"
+                " voltage, in a scripted run; the bench file does not permit it"
+                " (safety: scripted-hazardous: allow)"
+            )
+        self.journal.append(
+            {
+                "kind": "note",
+                "time": self._now(),
+                "point": self._label(point),
+                "text": f"hazardous output {point.stimulus_text()} {how}",
+                "hazardous": True,
+            }
+        )

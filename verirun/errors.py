@@ -50,8 +50,14 @@ class BenchError(VerirunError, RuntimeError):
 
     exit_code = 3
 
-    def __init__(self, message: str, *, step: str | None = None, command: str | None = None,
-                 answer: str | None = None):
+    def __init__(
+        self,
+        message: str,
+        *,
+        step: str | None = None,
+        command: str | None = None,
+        answer: str | None = None,
+    ):
         self.message = message
         self.step = step
         self.command = command

@@ -15,8 +15,8 @@ from fractions import Fraction
 from verirun.metrology import decision, tolerance
 from verirun.metrology.exact import as_written
 from verirun.metrology.uncertainty import round_uncertainty
-from verirun.units import format_limit, format_typed, row_exponent, typed_decimal, unit_text
 from verirun.procedure.plan import TestPoint
+from verirun.units import format_limit, format_typed, row_exponent, typed_decimal, unit_text
 
 
 @dataclass(frozen=True, kw_only=True, slots=True)
@@ -79,8 +79,14 @@ class Site:
             return point
         from verirun.readings import reading_unit
 
-        return cls(window=point.window, law=point.range.law, unit=point.unit, budget=point.budget,
-                   rule=point.rule, bare_factor=reading_unit(point.range)[1])
+        return cls(
+            window=point.window,
+            law=point.range.law,
+            unit=point.unit,
+            budget=point.budget,
+            rule=point.rule,
+            bare_factor=reading_unit(point.range)[1],
+        )
 
 
 def error_unit(point: TestPoint) -> tuple[str, float]:
@@ -123,16 +129,26 @@ def evaluate(point: "TestPoint | Site", reading: float) -> Result:
     empty = zone.empty
     expanded = judged.expanded  # U as reported, exact, in the tolerance's domain
     expanded_value = float(expanded) if win.domain == "value" else site.budget.expanded_value
-    return Result(reading=reading, error=dev.error * factor, error_unit=unit,
-                  percent_of_tolerance=dev.percent_of_tolerance, verdict=judged.verdict,
-                  expanded=float(expanded * win.per_unit), expanded_value=expanded_value,
-                  k=site.budget.k, tur=judged.tur, conformance=judged.conformance,
-                  acceptance=judged.acceptance, expanded_pct=pct(float(expanded)),
-                  accept_low_pct=None if empty else pct(float(zone.low - centre)),
-                  accept_high_pct=None if empty else pct(float(zone.high - centre)),
-                  interval=coverage_interval(site, reading, expanded),
-                  exact_acceptance=judged.exact_acceptance, outer=judged.outer,
-                  within_tolerance=judged.within_tolerance)
+    return Result(
+        reading=reading,
+        error=dev.error * factor,
+        error_unit=unit,
+        percent_of_tolerance=dev.percent_of_tolerance,
+        verdict=judged.verdict,
+        expanded=float(expanded * win.per_unit),
+        expanded_value=expanded_value,
+        k=site.budget.k,
+        tur=judged.tur,
+        conformance=judged.conformance,
+        acceptance=judged.acceptance,
+        expanded_pct=pct(float(expanded)),
+        accept_low_pct=None if empty else pct(float(zone.low - centre)),
+        accept_high_pct=None if empty else pct(float(zone.high - centre)),
+        interval=coverage_interval(site, reading, expanded),
+        exact_acceptance=judged.exact_acceptance,
+        outer=judged.outer,
+        within_tolerance=judged.within_tolerance,
+    )
 
 
 def _decimal_text(value: Decimal, unit: str, *, signed: bool) -> str:
@@ -151,7 +167,9 @@ def _in_domain_unit(value: Decimal, unit: str, *, signed: bool) -> str:
     return f"{text}°" if unit == "deg" else f"{text} {unit}"
 
 
-def shown(point: "TestPoint | Site", result: Result | None = None, typed: str | None = None) -> dict:
+def shown(
+    point: "TestPoint | Site", result: Result | None = None, typed: str | None = None
+) -> dict:
     """Every number of one row as printed, under one SI prefix: the one formatter of verirun.
 
     The console's result line, ``verirun window``, the run record and the certificate print
@@ -181,14 +199,19 @@ def shown(point: "TestPoint | Site", result: Result | None = None, typed: str | 
     def limit(value, side: str) -> str:
         return format_limit(value, unit, exponent, reading=reading, side=side, places=places)
 
-    out = {"unit": unit_text(unit, exponent),
-           "nominal": format_limit(as_written(win.nominal), unit, exponent, places=0),
-           "low": limit(win.exact_low, "low"),
-           "high": limit(win.exact_high, "high")}
+    out = {
+        "unit": unit_text(unit, exponent),
+        "nominal": format_limit(as_written(win.nominal), unit, exponent, places=0),
+        "low": limit(win.exact_low, "low"),
+        "high": limit(win.exact_high, "high"),
+    }
     if result is None:
         return out
-    out["reading"] = (format_typed(typed, unit, exponent, bare_factor=site.bare_factor)
-                      if typed is not None else None)
+    out["reading"] = (
+        format_typed(typed, unit, exponent, bare_factor=site.bare_factor)
+        if typed is not None
+        else None
+    )
     accept = result.exact_acceptance
     out["accept_low"] = limit(accept[0], "low") if accept else None
     out["accept_high"] = limit(accept[1], "high") if accept else None
@@ -211,13 +234,20 @@ def shown(point: "TestPoint | Site", result: Result | None = None, typed: str | 
             out["U_spec"] = _in_domain_unit(u, win.unit, signed=False)
             out["U"] = None
         low, high = result.interval
-        out["interval"] = (f"{format_limit(as_written(low), unit, exponent, places=places)} to"
-                           f" {format_limit(as_written(high), unit, exponent, places=places)}")
+        out["interval"] = (
+            f"{format_limit(as_written(low), unit, exponent, places=places)} to"
+            f" {format_limit(as_written(high), unit, exponent, places=places)}"
+        )
     else:
-        out["error"] = (_decimal_text(_exact_decimal(exact_error * Fraction(10) ** -exponent),
-                                      unit_text(unit, exponent), signed=True)
-                        if win.domain == "value" else
-                        _in_domain_unit(Decimal(repr(round(float(exact_error), 6))), win.unit, signed=True))
+        out["error"] = (
+            _decimal_text(
+                _exact_decimal(exact_error * Fraction(10) ** -exponent),
+                unit_text(unit, exponent),
+                signed=True,
+            )
+            if win.domain == "value"
+            else _in_domain_unit(Decimal(repr(round(float(exact_error), 6))), win.unit, signed=True)
+        )
         out["U_spec"] = out["U"] = "—"
         out["interval"] = None
     return out

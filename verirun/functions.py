@@ -29,7 +29,8 @@ class MeasurementFunction:
 
 #: Every function, by its name as files write it.
 FUNCTIONS: dict[str, MeasurementFunction] = {
-    f.name: f for f in (
+    f.name: f
+    for f in (
         MeasurementFunction("dc-voltage", "V", False, "DC voltage"),
         MeasurementFunction("dc-current", "A", False, "DC current"),
         MeasurementFunction("ac-voltage", "V", True, "AC voltage"),

@@ -21,8 +21,11 @@ import sys
 import threading
 
 #: The signals a critical section defers: Ctrl-C, a kill request, a lost terminal, a quit key.
-DEFERRED = tuple(getattr(signal, name) for name in ("SIGINT", "SIGTERM", "SIGHUP", "SIGQUIT")
-                 if hasattr(signal, name))
+DEFERRED = tuple(
+    getattr(signal, name)
+    for name in ("SIGINT", "SIGTERM", "SIGHUP", "SIGQUIT")
+    if hasattr(signal, name)
+)
 
 
 class _Held:

@@ -13,11 +13,10 @@ from pathlib import Path
 
 from verirun.clock import SystemClock, iso
 from verirun.errors import RecordError
-from verirun.record.verify import run_folder, verified_record
 from verirun.lab import people_who_issue
 from verirun.locks import run_lock
 from verirun.record.journal import JOURNAL_NAME, Journal, load_record, read_journal
-
+from verirun.record.verify import run_folder, verified_record
 
 
 def issue(path: str | Path, *, by: str, lab: dict | None = None, clock=None) -> dict:
@@ -56,37 +55,57 @@ def _issue(folder: Path, *, by: str, lab: dict | None, clock) -> dict:
     record = verified_record(folder)
     number = certificate_number(record)
     if is_dry_run(record):
-        raise RecordError(f"{folder}: this is a dry run on the simulated calibrator, not a calibration;"
-                          f" its certificate {number} can never be issued")
+        raise RecordError(
+            f"{folder}: this is a dry run on the simulated calibrator, not a calibration;"
+            f" its certificate {number} can never be issued"
+        )
     if record["run"]["status"] != "complete":
-        raise RecordError(f"{folder}: the run is {record['run']['status']}, not complete; resume it before"
-                          " its certificate can be issued")
+        raise RecordError(
+            f"{folder}: the run is {record['run']['status']}, not complete; resume it before"
+            " its certificate can be issued"
+        )
     from verirun.register.closing import needs_number
     from verirun.register.config import named
 
     if named() is not None and needs_number(record):
-        raise RecordError(f"{folder}: the run waits for its certificate number from the lab register (it"
-                          " could not be reached when the run closed); send it with 'verirun register"
-                          " sync', then issue it: an issued certificate keeps its number")
+        raise RecordError(
+            f"{folder}: the run waits for its certificate number from the lab register (it"
+            " could not be reached when the run closed); send it with 'verirun register"
+            " sync', then issue it: an issued certificate keeps its number"
+        )
     revision = record["run"]["revision"]
     done = next((i for i in record.get("issues", []) if i["revision"] == revision), None)
     if done is not None:
-        raise RecordError(f"{folder}: certificate {number} was issued already, on {done['time'][:10]} by"
-                          f" {done['by']}; it is not issued twice. To correct it, amend the run"
-                          " ('verirun amend'): the new revision is then issued in its turn")
+        raise RecordError(
+            f"{folder}: certificate {number} was issued already, on {done['time'][:10]} by"
+            f" {done['by']}; it is not issued twice. To correct it, amend the run"
+            " ('verirun amend'): the new revision is then issued in its turn"
+        )
     if lab is None:
         lab = record["lab"]
-    elif (lab.get("name"), lab.get("certificate_prefix")) != (record["lab"].get("name"),
-                                                              record["lab"].get("certificate_prefix")):
-        raise RecordError(f"the lab profile is of {lab.get('name')!r}, but the run was made for"
-                          f" {record['lab'].get('name')!r}; give that lab's profile")
+    elif (lab.get("name"), lab.get("certificate_prefix")) != (
+        record["lab"].get("name"),
+        record["lab"].get("certificate_prefix"),
+    ):
+        raise RecordError(
+            f"the lab profile is of {lab.get('name')!r}, but the run was made for"
+            f" {record['lab'].get('name')!r}; give that lab's profile"
+        )
     person = find_person(lab, by)
     if clock is None:  # the check before the lock is taken
         return record
     # A full disk or a folder made read-only is a StorageError, said with what to free or fix.
     with Journal(folder / JOURNAL_NAME) as journal:
-        journal.append({"kind": "issue", "time": iso(clock.now()), "by": person["name"],
-                        "role": person["role"], "revision": revision, "certificate": number})
+        journal.append(
+            {
+                "kind": "issue",
+                "time": iso(clock.now()),
+                "by": person["name"],
+                "role": person["role"],
+                "revision": revision,
+                "certificate": number,
+            }
+        )
     return close_run(folder)
 
 
@@ -105,8 +124,10 @@ def find_person(lab: dict, name: str) -> dict:
         if " ".join(person["name"].split()) == wanted:
             return person
     listed = ", ".join(f"{p['name']} ({p['role']})" for p in people) or "nobody"
-    raise RecordError(f"{wanted!r} is not among the people the lab profile authorises to issue"
-                      f" certificates ({listed}); nothing was issued")
+    raise RecordError(
+        f"{wanted!r} is not among the people the lab profile authorises to issue"
+        f" certificates ({listed}); nothing was issued"
+    )
 
 
 def earlier_revisions(path: str | Path) -> list[tuple[dict, dict]]:
@@ -128,13 +149,23 @@ def earlier_revisions(path: str | Path) -> list[tuple[dict, dict]]:
     for position, doc in enumerate(docs):
         if doc["kind"] in ("correction", "as-found"):
             earlier = build_record(docs[:position], str(folder / JOURNAL_NAME))
-            later = build_record(docs[:position + 1], str(folder / JOURNAL_NAME))
-            out.append((earlier, {"number": certificate_number(later), "time": doc["time"],
-                                  "reason": doc["reason"]}))
+            later = build_record(docs[: position + 1], str(folder / JOURNAL_NAME))
+            out.append(
+                (
+                    earlier,
+                    {
+                        "number": certificate_number(later),
+                        "time": doc["time"],
+                        "reason": doc["reason"],
+                    },
+                )
+            )
     return out
 
 
-def earlier_states(path: str | Path, record: dict, *, replaced_by: dict | None = None) -> tuple[bytes, ...]:
+def earlier_states(
+    path: str | Path, record: dict, *, replaced_by: dict | None = None
+) -> tuple[bytes, ...]:
     """The certificates of ``record``'s number (a revision of the stored run at ``path``) that
     its certificate may take the place of: its draft, as rendered before each issue of that
     revision, and, when ``replaced_by`` marks it replaced, the certificate as it was before.
@@ -148,7 +179,9 @@ def earlier_states(path: str | Path, record: dict, *, replaced_by: dict | None =
     out = []
     if replaced_by is not None:
         out.append(render_html(record).encode("utf-8"))
-        kept = folder / f"record.r{revision}.json"  # as stored: a record of an earlier format has its own figures
+        kept = (
+            folder / f"record.r{revision}.json"
+        )  # as stored: a record of an earlier format has its own figures
         if kept.exists():
             out.append(render_html(load_record(kept)).encode("utf-8"))
     for position, doc in enumerate(docs):

@@ -32,13 +32,17 @@ class Wording(Strict):
     """Standard sentences of the lab's certificates; each has a plain default."""
 
     relate_only: StrictStr = "The results relate only to the item calibrated."
-    reproduction: StrictStr = ("This certificate shall not be reproduced except in full without the"
-                               " written approval of the laboratory.")
+    reproduction: StrictStr = (
+        "This certificate shall not be reproduced except in full without the"
+        " written approval of the laboratory."
+    )
     #: The bench's safety caution: for the people at the bench, not printed on certificates
     #: (kept so that profiles which set it still load).
-    safety: StrictStr = ("Safety: meters and calibrators used at these levels can present a shock"
-                         " hazard. Follow local electrical-safety codes, the makers' instructions and"
-                         " licensed practice.")
+    safety: StrictStr = (
+        "Safety: meters and calibrators used at these levels can present a shock"
+        " hazard. Follow local electrical-safety codes, the makers' instructions and"
+        " licensed practice."
+    )
 
 
 class LabInfo(Strict):
@@ -62,8 +66,10 @@ class LabInfo(Strict):
     @classmethod
     def _not_a_dry_run_prefix(cls, value: str) -> str:
         if value.strip().upper().startswith("DRYRUN"):
-            raise ValueError("DRYRUN begins the numbers of dry runs on the simulated calibrator;"
-                             " the lab's own numbers need another prefix")
+            raise ValueError(
+                "DRYRUN begins the numbers of dry runs on the simulated calibrator;"
+                " the lab's own numbers need another prefix"
+            )
         return value
 
     @field_validator("people_who_issue")
@@ -72,8 +78,10 @@ class LabInfo(Strict):
         names = [" ".join(p.name.split()) for p in value]
         twice = sorted({n for n in names if names.count(n) > 1})
         if twice:
-            raise ValueError(f"{', '.join(twice)} listed more than once; list each person once, with"
-                             " the role they issue in")
+            raise ValueError(
+                f"{', '.join(twice)} listed more than once; list each person once, with"
+                " the role they issue in"
+            )
         if any(not n for n in names):
             raise ValueError("a person with no name")
         return value

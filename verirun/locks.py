@@ -56,9 +56,11 @@ def hold(path: Path, what: str):
             fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
         except BlockingIOError:
             holder = _holder(fd)
-            raise BusyError(f"{what} is in use by another verirun process"
-                            + (f" (pid {holder})" if holder else "")
-                            + "; wait until it ends, or end that process, then try again") from None
+            raise BusyError(
+                f"{what} is in use by another verirun process"
+                + (f" (pid {holder})" if holder else "")
+                + "; wait until it ends, or end that process, then try again"
+            ) from None
         try:
             os.ftruncate(fd, 0)
             storage.write_all(fd, f"{os.getpid()}\n".encode())

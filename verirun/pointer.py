@@ -19,16 +19,19 @@ from verirun.units import format_quantity
 class Pointer:
     """The expected pointer position at a point, and the window in the same terms."""
 
-    fraction: float                 # of the scale length from the left end
-    degrees: float | None           # from the left end (None: the arc is not given)
-    marking: str                    # the scale mark the pointer should stand on
+    fraction: float  # of the scale length from the left end
+    degrees: float | None  # from the left end (None: the arc is not given)
+    marking: str  # the scale mark the pointer should stand on
     window_fractions: tuple[float, float]
     window_degrees: tuple[float, float] | None
 
     def text(self) -> str:
         """``"50.0° from the left end, on the 12 Ω mark"``."""
-        where = (f"{self.degrees:.1f}° from the left end" if self.degrees is not None
-                 else f"{100 * self.fraction:.1f} % of the scale length from the left end")
+        where = (
+            f"{self.degrees:.1f}° from the left end"
+            if self.degrees is not None
+            else f"{100 * self.fraction:.1f} % of the scale length from the left end"
+        )
         return f"{where}, on the {self.marking} mark"
 
     def window_text(self) -> str:
@@ -44,10 +47,13 @@ def pointer(point: TestPoint) -> Pointer:
     arc = point.range.arc
     fraction = law.fraction(point.nominal)
     ends = sorted(_clip(law.fraction(v)) for v in (point.window.low, point.window.high))
-    return Pointer(fraction=fraction, degrees=fraction * arc if arc else None,
-                   marking=format_quantity(point.nominal, point.unit),
-                   window_fractions=(ends[0], ends[1]),
-                   window_degrees=(ends[0] * arc, ends[1] * arc) if arc else None)
+    return Pointer(
+        fraction=fraction,
+        degrees=fraction * arc if arc else None,
+        marking=format_quantity(point.nominal, point.unit),
+        window_fractions=(ends[0], ends[1]),
+        window_degrees=(ends[0] * arc, ends[1] * arc) if arc else None,
+    )
 
 
 def _clip(fraction: float) -> float:

@@ -23,17 +23,21 @@ def problems(points: list[TestPoint], bench: Bench, profile, *, today: dt.date) 
     found = []
     cal = bench.file.calibrator
     if cal.calibration_due < today:
-        found.append(f"{bench.source}: calibrator.calibration-due: the standard {cal.asset} was due for"
-                     f" calibration on {cal.calibration_due.isoformat()}; a run with an overdue"
-                     " standard cannot start (recalibrate it, or use another bench)")
+        found.append(
+            f"{bench.source}: calibrator.calibration-due: the standard {cal.asset} was due for"
+            f" calibration on {cal.calibration_due.isoformat()}; a run with an overdue"
+            " standard cannot start (recalibrate it, or use another bench)"
+        )
     for point in points:
         try:
             profile.source_commands(point.function, point.nominal, point.frequency)
         except BenchError as exc:
             found.append(f"{_where(point)}: the calibrator cannot source it: {exc.message}")
         if point.standard is None:
-            found.append(f"{_where(point)}: {bench.source} gives no accuracy line of the calibrator for"
-                         f" {point.function} at this value; add one under calibrator.accuracy")
+            found.append(
+                f"{_where(point)}: {bench.source} gives no accuracy line of the calibrator for"
+                f" {point.function} at this value; add one under calibrator.accuracy"
+            )
         over = current_problem(point, bench)
         if over is not None:
             found.append(f"{_where(point)}: {over}")
@@ -60,11 +64,13 @@ def current_problem(point: TestPoint, bench: Bench) -> str | None:
     if limit is None or current <= limit * (1 + 1e-12):
         return None
     rng = point.range
-    return (f"the ohmmeter drives {format_quantity(current, 'A', 3)} (I = E / (Rc + Rx) ="
-            f" {format_quantity(rng.battery, 'V')} / ({format_quantity(rng.law.centre, 'Ω')} +"
-            f" {format_quantity(point.nominal, 'Ω')})) through the calibrator's resistance output, which"
-            f" accepts at most {format_quantity(limit, 'A', 3)} there ({bench.source}:"
-            " calibrator.resistance-current); choose another point or range")
+    return (
+        f"the ohmmeter drives {format_quantity(current, 'A', 3)} (I = E / (Rc + Rx) ="
+        f" {format_quantity(rng.battery, 'V')} / ({format_quantity(rng.law.centre, 'Ω')} +"
+        f" {format_quantity(point.nominal, 'Ω')})) through the calibrator's resistance output, which"
+        f" accepts at most {format_quantity(limit, 'A', 3)} there ({bench.source}:"
+        " calibrator.resistance-current); choose another point or range"
+    )
 
 
 def _where(point: TestPoint) -> str:

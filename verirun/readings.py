@@ -122,7 +122,9 @@ def _check_as_written(text: str, value: float, unit: str, bare_factor: float) ->
     number, _ = typed_decimal(text, unit, bare_factor=bare_factor)
     digits = len(number.normalize().as_tuple().digits) if number else 0
     if digits > MAX_DIGITS:
-        raise UnitError(f"{text.strip()!r} has {digits} significant digits; give at most {MAX_DIGITS}")
+        raise UnitError(
+            f"{text.strip()!r} has {digits} significant digits; give at most {MAX_DIGITS}"
+        )
     if number and value == 0.0:
         raise UnitError(f"{text.strip()!r} is too small a number to work with")
 
@@ -140,9 +142,11 @@ def _check_on_scale(value: float, point: TestPoint) -> None:
         margin = OVERTRAVEL * (high - low)
         if not low - margin <= value <= high + margin:
             unit, factor = reading_unit(point.range)
-            raise UnitError(f"{_in(value, factor, unit)} is beyond the ends of the scale: a reading"
-                            f" from {_in(low - margin, factor, unit)} to {_in(high + margin, factor, unit)}"
-                            " is accepted")
+            raise UnitError(
+                f"{_in(value, factor, unit)} is beyond the ends of the scale: a reading"
+                f" from {_in(low - margin, factor, unit)} to {_in(high + margin, factor, unit)}"
+                " is accepted"
+            )
     elif value < 0:
         raise UnitError("a resistance reading cannot be below zero")
 
@@ -203,12 +207,16 @@ class ScriptedReadings:
                 names = [h.strip().lower() for h in header or []]
                 missing = [c for c in COLUMNS if c not in names]
                 if missing:
-                    raise ProcedureError(f"{self.path}:1: missing column(s) {', '.join(missing)}: the first"
-                                         " line must be the header range,at,reading")
+                    raise ProcedureError(
+                        f"{self.path}:1: missing column(s) {', '.join(missing)}: the first"
+                        " line must be the header range,at,reading"
+                    )
                 unknown = [h for h in names if h not in COLUMNS]
                 if unknown:
-                    self._problems.append(f"{self.path}:1: unknown column(s) {', '.join(map(repr, unknown))};"
-                                          " the header is range,at,reading")
+                    self._problems.append(
+                        f"{self.path}:1: unknown column(s) {', '.join(map(repr, unknown))};"
+                        " the header is range,at,reading"
+                    )
                 where = {name: names.index(name) for name in COLUMNS}
                 for fields in reader:
                     line = reader.line_num
@@ -216,13 +224,24 @@ class ScriptedReadings:
                     if not any(f.strip() for f in fields):
                         continue
                     if len(fields) != len(names):
-                        hint = (" (a decimal comma? write a decimal point, 10.4, or quote the field)"
-                                if len(fields) > len(names) else "")
-                        self._problems.append(f"{self.path}:{line}: {len(fields)} fields where the header has"
-                                              f" {len(names)}{hint}; write range,at,reading")
+                        hint = (
+                            " (a decimal comma? write a decimal point, 10.4, or quote the field)"
+                            if len(fields) > len(names)
+                            else ""
+                        )
+                        self._problems.append(
+                            f"{self.path}:{line}: {len(fields)} fields where the header has"
+                            f" {len(names)}{hint}; write range,at,reading"
+                        )
                         continue
-                    self._rows.append(_Row(line=line, range=fields[where["range"]].strip(),
-                                           at=fields[where["at"]].strip(), reading=fields[where["reading"]]))
+                    self._rows.append(
+                        _Row(
+                            line=line,
+                            range=fields[where["range"]].strip(),
+                            at=fields[where["at"]].strip(),
+                            reading=fields[where["reading"]],
+                        )
+                    )
         except FileNotFoundError:
             raise ProcedureError(f"{self.path}: no such file") from None
         except (OSError, UnicodeDecodeError, csv.Error) as exc:
@@ -232,7 +251,9 @@ class ScriptedReadings:
         self._checked = False
         self._parsed: dict[int, Entry] = {}  # line -> its entry, parsed when the file was checked
 
-    def _match(self, points: list[TestPoint], problems: list[str]) -> dict[tuple[str, float], list[_Row]]:
+    def _match(
+        self, points: list[TestPoint], problems: list[str]
+    ) -> dict[tuple[str, float], list[_Row]]:
         """Assign every row to the point it names; a row that names none is a problem."""
         nominals: dict[str, list[float]] = {}
         ranges = {}
@@ -244,22 +265,34 @@ class ScriptedReadings:
         for row in self._rows:
             rng = ranges.get(row.range)
             if rng is None:
-                problems.append(f"{self.path}:{row.line}: range: the procedure has no range {row.range!r}"
-                                f" (its ranges: {', '.join(ranges)})")
+                problems.append(
+                    f"{self.path}:{row.line}: range: the procedure has no range {row.range!r}"
+                    f" (its ranges: {', '.join(ranges)})"
+                )
                 continue
             unit, factor = reading_unit(rng)
             try:
                 at = parse_quantity(row.at, rng.unit, bare_factor=factor)[0]
             except UnitError as exc:
-                problems.append(f"{self.path}:{row.line}: at: {exc}; write the point's nominal value,"
-                                f" e.g. {format_quantity(nominals[rng.id][0], rng.unit)}")
+                problems.append(
+                    f"{self.path}:{row.line}: at: {exc}; write the point's nominal value,"
+                    f" e.g. {format_quantity(nominals[rng.id][0], rng.unit)}"
+                )
                 continue
-            nominal = next((n for n in nominals[rng.id]
-                            if n == at or math.isclose(n, at, rel_tol=1e-9, abs_tol=1e-15)), None)
+            nominal = next(
+                (
+                    n
+                    for n in nominals[rng.id]
+                    if n == at or math.isclose(n, at, rel_tol=1e-9, abs_tol=1e-15)
+                ),
+                None,
+            )
             if nominal is None:
-                problems.append(f"{self.path}:{row.line}: at: range {rng.id} has no point at"
-                                f" {format_quantity(at, rng.unit)} (its points:"
-                                f" {', '.join(format_quantity(n, rng.unit) for n in nominals[rng.id])})")
+                problems.append(
+                    f"{self.path}:{row.line}: at: range {rng.id} has no point at"
+                    f" {format_quantity(at, rng.unit)} (its points:"
+                    f" {', '.join(format_quantity(n, rng.unit) for n in nominals[rng.id])})"
+                )
                 continue
             queues.setdefault((rng.id, nominal), []).append(row)
         return queues
@@ -284,8 +317,10 @@ class ScriptedReadings:
         for key in pending:
             for row in rows.get(key, []):
                 first = queues[key][0].line
-                problems.append(f"{self.path}:{row.line}: a row left over: range {key[0]} at {row.at!r} already"
-                                f" has its reading (line {first}); remove the duplicate")
+                problems.append(
+                    f"{self.path}:{row.line}: a row left over: range {key[0]} at {row.at!r} already"
+                    f" has its reading (line {first}); remove the duplicate"
+                )
         self._queues, self._checked = queues, True
         prefix = len(str(self.path)) + 1
         return sorted(problems, key=lambda text: _line_order(text[prefix:]))
@@ -302,15 +337,19 @@ class ScriptedReadings:
             self._parsed[row.line] = entry  # the run takes it as parsed here
             if entry.kind in ("reading", "skip", "abort"):
                 return entry.kind
-        problems.append(f"{self.path}:{self._last_line + 1}: no reading for step {point.index + 1}"
-                        f" ({point.range.id} at {format_quantity(point.nominal, point.unit)});"
-                        f" add a row {point.range.id},{format_quantity(point.nominal, point.unit)},READING")
+        problems.append(
+            f"{self.path}:{self._last_line + 1}: no reading for step {point.index + 1}"
+            f" ({point.range.id} at {format_quantity(point.nominal, point.unit)});"
+            f" add a row {point.range.id},{format_quantity(point.nominal, point.unit)},READING"
+        )
         return None
 
     def _entry(self, row: _Row, point: TestPoint) -> Entry:
         entry = parse_entry(row.reading, point)
         if entry.kind == "undo":
-            raise UnitError("'undo' is for the console; in a file, write the reading as it should be")
+            raise UnitError(
+                "'undo' is for the console; in a file, write the reading as it should be"
+            )
         return entry
 
     def take(self, point: TestPoint) -> Entry:
@@ -327,8 +366,10 @@ class ScriptedReadings:
             self._queues[key] = self._match([point], []).get(key, [])
         queue = self._queues.get(key, [])
         if not queue:
-            raise ProcedureError(f"{self.path}: no reading for range {point.range.id} at"
-                                 f" {format_quantity(point.nominal, point.unit)}")
+            raise ProcedureError(
+                f"{self.path}: no reading for range {point.range.id} at"
+                f" {format_quantity(point.nominal, point.unit)}"
+            )
         row = queue.pop(0)
         parsed = self._parsed.pop(row.line, None)
         if parsed is not None:
@@ -403,34 +444,61 @@ class VirtualMeter:
             loc = ("ranges", name)
             rng = ranges.get(name)
             if rng is None:
-                problems.append(located.problem(loc, f"the procedure has no range {name!r}"
-                                                f" (its ranges: {', '.join(ranges)})"))
+                problems.append(
+                    located.problem(
+                        loc,
+                        f"the procedure has no range {name!r} (its ranges: {', '.join(ranges)})",
+                    )
+                )
                 continue
             linear = isinstance(rng.law, scales.Linear)
             if linear and model.centre is not None:
-                problems.append(located.problem(loc + ("centre",), f"{name} is a linear range: give gain"
-                                                " and offset, not centre"))
-            if not linear and ("gain" in model.model_fields_set or "offset" in model.model_fields_set):
-                problems.append(located.problem(loc, f"{name} is an ohms range: give its real centre"
-                                                " (centre: 12.3 ohm), not gain or offset"))
+                problems.append(
+                    located.problem(
+                        loc + ("centre",),
+                        f"{name} is a linear range: give gain and offset, not centre",
+                    )
+                )
+            if not linear and (
+                "gain" in model.model_fields_set or "offset" in model.model_fields_set
+            ):
+                problems.append(
+                    located.problem(
+                        loc,
+                        f"{name} is an ohms range: give its real centre"
+                        " (centre: 12.3 ohm), not gain or offset",
+                    )
+                )
             if linear:
                 try:
                     parse_value(model.offset, rng.unit)
                 except UnitError as exc:
-                    problems.append(located.problem(loc + ("offset",), f"{exc}; write it in {rng.unit}"))
+                    problems.append(
+                        located.problem(loc + ("offset",), f"{exc}; write it in {rng.unit}")
+                    )
         missing = [name for name in ranges if name not in self.model.ranges]
         for name in missing:
-            problems.append(located.problem(("ranges",), f"no model for range {name!r}; add"
-                                            f" '{name}: {{gain: 1}}' for a meter without error", missing=False))
+            problems.append(
+                located.problem(
+                    ("ranges",),
+                    f"no model for range {name!r}; add"
+                    f" '{name}: {{gain: 1}}' for a meter without error",
+                    missing=False,
+                )
+            )
         if not problems:
             for point in points:
                 try:
                     self.take(point)
                 except (UnitError, ProcedureError) as exc:
-                    problems.append(located.problem(("ranges", point.range.id),
-                                                    f"step {point.index + 1} ({point.range.id} at"
-                                                    f" {point.stimulus_text()}): the meter would read what the"
-                                                    f" run refuses: {exc}"))
+                    problems.append(
+                        located.problem(
+                            ("ranges", point.range.id),
+                            f"step {point.index + 1} ({point.range.id} at"
+                            f" {point.stimulus_text()}): the meter would read what the"
+                            f" run refuses: {exc}",
+                        )
+                    )
         return problems
 
     def shown(self, point: TestPoint) -> float:

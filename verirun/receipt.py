@@ -22,8 +22,10 @@ def check_received(received: str | None, *, today: dt.date | None = None) -> str
         return None
     today = today or dt.datetime.now(dt.timezone.utc).date()
     if dt.date.fromisoformat(received) > today:
-        raise UnitError(f"--received: {received} is after the date of calibration ({today.isoformat()}, today"
-                        " in UTC) and in the future; an item is received before it is calibrated")
+        raise UnitError(
+            f"--received: {received} is after the date of calibration ({today.isoformat()}, today"
+            " in UTC) and in the future; an item is received before it is calibrated"
+        )
     return received
 
 
@@ -43,11 +45,15 @@ def ask_condition(given: str | None, console, *, needed: bool) -> str | None:
     if getattr(console, "interactive", False):
         while True:
             text = console.ask("Condition of the item on receipt (in your words): ").strip()
-            why = refusal(text) if text else "the condition on receipt is recorded on the certificate"
+            why = (
+                refusal(text) if text else "the condition on receipt is recorded on the certificate"
+            )
             if why is None:
                 return text
             console.warn(f"not taken: {why}; type it again")
     if needed:
-        raise UnitError("--condition: a run at a real bench records the condition of the item on receipt;"
-                        " give it with --condition TEXT (a scripted run cannot ask for it)")
+        raise UnitError(
+            "--condition: a run at a real bench records the condition of the item on receipt;"
+            " give it with --condition TEXT (a scripted run cannot ask for it)"
+        )
     return None

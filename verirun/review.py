@@ -69,8 +69,11 @@ def review(procedure: Procedure, bench: Bench, profile, *, today: dt.date) -> Re
     points = plan(procedure, bench)
     problems = list(preflight.problems(points, bench, profile, today=today))
     warnings: list[str] = []
-    limits = HazardLimits(dc_volts=bench.hazardous_dc, ac_rms_volts=bench.hazardous_ac_rms,
-                          ac_peak_volts=bench.hazardous_ac_peak)
+    limits = HazardLimits(
+        dc_volts=bench.hazardous_dc,
+        ac_rms_volts=bench.hazardous_ac_rms,
+        ac_peak_volts=bench.hazardous_ac_peak,
+    )
     scripted = bench.file.safety.scripted_hazardous
     rows, hazardous, flagged = [], [], []
     warned_ranges: set[str] = set()
@@ -84,35 +87,62 @@ def review(procedure: Procedure, bench: Bench, profile, *, today: dt.date) -> Re
         if danger:
             hazardous.append(point.index + 1)
         current, over = _current(point, bench, warnings, warned_ranges)
-        rows.append(Row(
-            step=point.index + 1, range=point.range.id, stimulus=point.stimulus_text(),
-            accuracy=point.accuracy_text, window=_window(point),
-            expanded=format_quantity(judged.expanded_value, point.unit, 2)
-            if math.isfinite(judged.expanded_value) else "∞",
-            tur=f"{judged.tur:.2f}" if judged.tur is not None else "none (unbounded)", tur_low=low_tur,
-            acceptance=(f"{format_quantity(judged.acceptance[0], point.unit, 5)} to"
-                        f" {format_quantity(judged.acceptance[1], point.unit, 5)}")
-            if judged.acceptance else "none",
-            calibrator_line=point.standard.text if point.standard is not None else "none",
-            hazard="yes: confirmed at each switch-on" if danger else "no",
-            test_current=current, current_over=over,
-            pointer=_pointer(point), read_on=point.range.read_on or ""))
+        rows.append(
+            Row(
+                step=point.index + 1,
+                range=point.range.id,
+                stimulus=point.stimulus_text(),
+                accuracy=point.accuracy_text,
+                window=_window(point),
+                expanded=format_quantity(judged.expanded_value, point.unit, 2)
+                if math.isfinite(judged.expanded_value)
+                else "∞",
+                tur=f"{judged.tur:.2f}" if judged.tur is not None else "none (unbounded)",
+                tur_low=low_tur,
+                acceptance=(
+                    f"{format_quantity(judged.acceptance[0], point.unit, 5)} to"
+                    f" {format_quantity(judged.acceptance[1], point.unit, 5)}"
+                )
+                if judged.acceptance
+                else "none",
+                calibrator_line=point.standard.text if point.standard is not None else "none",
+                hazard="yes: confirmed at each switch-on" if danger else "no",
+                test_current=current,
+                current_over=over,
+                pointer=_pointer(point),
+                read_on=point.range.read_on or "",
+            )
+        )
     if flagged:
-        warnings.append(f"{len(flagged)} point{'s' if len(flagged) != 1 else ''} with a TUR below"
-                        f" {TUR_FLAG:g} : 1 (flagged on the certificate): " + "; ".join(flagged))
+        warnings.append(
+            f"{len(flagged)} point{'s' if len(flagged) != 1 else ''} with a TUR below"
+            f" {TUR_FLAG:g} : 1 (flagged on the certificate): " + "; ".join(flagged)
+        )
     if hazardous:
-        warnings.append(f"{len(hazardous)} point{'s' if len(hazardous) != 1 else ''} at or above the bench's"
-                        f" hazardous-live threshold (step{'s' if len(hazardous) != 1 else ''} {', '.join(map(str, hazardous))}): the operator"
-                        " confirms before each switch-on; a scripted run needs the bench's"
-                        f" safety: scripted-hazardous: allow (this bench: {scripted})")
-    return Review(procedure=f"{procedure.id} revision {procedure.revision}", procedure_file=procedure.source,
-                  procedure_sha256=procedure.sha256, bench=bench.file.bench.id, bench_file=bench.source,
-                  bench_sha256=bench.sha256, rows=tuple(rows), problems=tuple(problems), warnings=tuple(warnings))
+        warnings.append(
+            f"{len(hazardous)} point{'s' if len(hazardous) != 1 else ''} at or above the bench's"
+            f" hazardous-live threshold (step{'s' if len(hazardous) != 1 else ''} {', '.join(map(str, hazardous))}): the operator"
+            " confirms before each switch-on; a scripted run needs the bench's"
+            f" safety: scripted-hazardous: allow (this bench: {scripted})"
+        )
+    return Review(
+        procedure=f"{procedure.id} revision {procedure.revision}",
+        procedure_file=procedure.source,
+        procedure_sha256=procedure.sha256,
+        bench=bench.file.bench.id,
+        bench_file=bench.source,
+        bench_sha256=bench.sha256,
+        rows=tuple(rows),
+        problems=tuple(problems),
+        warnings=tuple(warnings),
+    )
 
 
 def _window(point: TestPoint) -> str:
     win = point.window
-    return f"{format_quantity(win.low, point.unit, 5)} to {format_quantity(win.high, point.unit, 5)}"
+    return (
+        f"{format_quantity(win.low, point.unit, 5)} to {format_quantity(win.high, point.unit, 5)}"
+    )
 
 
 def _pointer(point: TestPoint) -> str:
@@ -130,24 +160,30 @@ def _current(point, bench, warnings, warned) -> tuple[str, bool]:
     if isinstance(rng.law, scales.ShuntOhms):
         if rng.id not in warned:
             warned.add(rng.id)
-            warnings.append(f"range {rng.id}: the test current of a shunt-ohms scale is not worked out;"
-                            " check it against the calibrator's limit by hand")
+            warnings.append(
+                f"range {rng.id}: the test current of a shunt-ohms scale is not worked out;"
+                " check it against the calibrator's limit by hand"
+            )
         return "not worked out (shunt-ohms)", False
     current = preflight.test_current(point)
     if current is None:
         if rng.id not in warned:
             warned.add(rng.id)
-            warnings.append(f"range {rng.id}: no battery: given, so the ohmmeter's test current cannot be"
-                            " checked; give the voltage of its cell (battery: 1.5 V)")
+            warnings.append(
+                f"range {rng.id}: no battery: given, so the ohmmeter's test current cannot be"
+                " checked; give the voltage of its cell (battery: 1.5 V)"
+            )
         return "unknown (no battery)", False
     limit = bench.current_limit(point.nominal)
     text = format_quantity(current, "A", 3)
     if limit is None:
         if rng.id not in warned:
             warned.add(rng.id)
-            warnings.append(f"range {rng.id}: the bench file gives no calibrator.resistance-current limit at"
-                            " these values, so the test current is not checked; add the limits of the"
-                            " calibrator's data sheet")
+            warnings.append(
+                f"range {rng.id}: the bench file gives no calibrator.resistance-current limit at"
+                " these values, so the test current is not checked; add the limits of the"
+                " calibrator's data sheet"
+            )
         return f"{text} (no limit given)", False
     if preflight.current_problem(point, bench) is not None:  # listed with the preflight's problems
         return f"{text}, over the {format_quantity(limit, 'A', 3)} limit", True
@@ -158,13 +194,26 @@ def render_html(result: Review) -> str:
     """The review as an HTML page (the same bytes for the same review)."""
     from jinja2 import Environment, PackageLoader, StrictUndefined, select_autoescape
 
-    env = Environment(loader=PackageLoader("verirun", "templates"),
-                      autoescape=select_autoescape(["html", "j2"], default=True),
-                      undefined=StrictUndefined, trim_blocks=True, lstrip_blocks=True,
-                      keep_trailing_newline=True)
+    env = Environment(
+        loader=PackageLoader("verirun", "templates"),
+        autoescape=select_autoescape(["html", "j2"], default=True),
+        undefined=StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
+        keep_trailing_newline=True,
+    )
     return env.get_template("review.html.j2").render(review=result)
 
 
-COLUMNS = (("step", "step"), ("range", "range"), ("stimulus", "applied"), ("window", "window"),
-           ("expanded", "U (k = 2)"), ("tur", "TUR"), ("acceptance", "acceptance"), ("hazard", "hazard"),
-           ("test_current", "test current"), ("pointer", "pointer"))
+COLUMNS = (
+    ("step", "step"),
+    ("range", "range"),
+    ("stimulus", "applied"),
+    ("window", "window"),
+    ("expanded", "U (k = 2)"),
+    ("tur", "TUR"),
+    ("acceptance", "acceptance"),
+    ("hazard", "hazard"),
+    ("test_current", "test current"),
+    ("pointer", "pointer"),
+)

@@ -29,15 +29,19 @@ def what_to_do(exc: OSError, path: Path | str) -> str:
     path = str(getattr(exc, "filename", None) or path)
     code = exc.errno
     if code in (errno.ENOSPC, errno.EDQUOT):
-        return (f"{path}: no space left on the device (or the disk quota is used up); free space on"
-                " that disk")
+        return (
+            f"{path}: no space left on the device (or the disk quota is used up); free space on"
+            " that disk"
+        )
     if code in (errno.EROFS,):
         return f"{path}: the file system is read-only; remount it read-write or use another folder"
     if code in (errno.EACCES, errno.EPERM):
         return f"{path}: permission denied; make the folder writable for this user"
     if code in (errno.ENOTDIR, errno.EEXIST, errno.EISDIR):
-        return (f"{path}: a file or folder is in the way (a path verirun needs is a file, or a file it"
-                " writes is a folder); move it aside")
+        return (
+            f"{path}: a file or folder is in the way (a path verirun needs is a file, or a file it"
+            " writes is a folder); move it aside"
+        )
     if code == errno.ELOOP:
         return f"{path}: is a symbolic link, which verirun does not write through; remove the link"
     return f"{path}: {exc.strerror or exc}"

@@ -20,29 +20,61 @@ from verirun.errors import UnitError
 
 #: Unit symbols accepted in text, mapped to the dimension they measure.
 UNITS: dict[str, str] = {
-    "V": "V", "v": "V", "volt": "V", "volts": "V",
-    "A": "A", "amp": "A", "amps": "A", "ampere": "A", "amperes": "A",
-    "Ω": "Ω", "ohm": "Ω", "ohms": "Ω", "Ohm": "Ω", "Ohms": "Ω", "\u2126": "Ω",
-    "Hz": "Hz", "hz": "Hz",
+    "V": "V",
+    "v": "V",
+    "volt": "V",
+    "volts": "V",
+    "A": "A",
+    "amp": "A",
+    "amps": "A",
+    "ampere": "A",
+    "amperes": "A",
+    "Ω": "Ω",
+    "ohm": "Ω",
+    "ohms": "Ω",
+    "Ohm": "Ω",
+    "Ohms": "Ω",
+    "\u2126": "Ω",
+    "Hz": "Hz",
+    "hz": "Hz",
     "s": "s",
-    "deg": "deg", "°": "deg", "degree": "deg", "degrees": "deg",
+    "deg": "deg",
+    "°": "deg",
+    "degree": "deg",
+    "degrees": "deg",
     "%": "%",
     "ppm": "ppm",
 }
 
 #: SI prefixes and their factors. ``u``, ``µ`` (micro sign) and ``μ`` (Greek mu) are all micro.
 PREFIXES: dict[str, float] = {
-    "p": 1e-12, "n": 1e-9, "u": 1e-6, "µ": 1e-6, "μ": 1e-6, "m": 1e-3,
-    "": 1.0, "k": 1e3, "M": 1e6, "G": 1e9,
+    "p": 1e-12,
+    "n": 1e-9,
+    "u": 1e-6,
+    "µ": 1e-6,
+    "μ": 1e-6,
+    "m": 1e-3,
+    "": 1.0,
+    "k": 1e3,
+    "M": 1e6,
+    "G": 1e9,
 }
 
 #: Units that take no prefix.
 _UNPREFIXED = {"deg", "%", "ppm"}
 
 #: Names of dimensions for error messages.
-DIMENSION_NAMES = {"V": "volts", "A": "amperes", "Ω": "ohms", "Hz": "hertz", "s": "seconds",
-                   "deg": "degrees of arc", "%": "percent", "ppm": "parts per million",
-                   "": "a plain number"}
+DIMENSION_NAMES = {
+    "V": "volts",
+    "A": "amperes",
+    "Ω": "ohms",
+    "Hz": "hertz",
+    "s": "seconds",
+    "deg": "degrees of arc",
+    "%": "percent",
+    "ppm": "parts per million",
+    "": "a plain number",
+}
 
 #: A number at the start of a text. Matched at one place only and with no quantifier inside
 #: another, so the match takes time in proportion to the text (a pattern spanning spaces,
@@ -61,7 +93,7 @@ def split_quantity(text: str) -> tuple[str, str] | None:
     match = _NUMBER.match(body)
     if match is None:
         return None
-    unit = body[match.end():].lstrip()
+    unit = body[match.end() :].lstrip()
     if unit and (unit[0] in ".+-" or unit[0].isdecimal() or any(ch.isspace() for ch in unit)):
         return None
     return match.group(), unit
@@ -73,15 +105,18 @@ def _split_unit(symbol: str) -> tuple[float, str]:
         return 1.0, UNITS[symbol]
     for prefix, factor in PREFIXES.items():
         if prefix and symbol.startswith(prefix):
-            rest = symbol[len(prefix):]
+            rest = symbol[len(prefix) :]
             if rest in UNITS and UNITS[rest] not in _UNPREFIXED:
                 return factor, UNITS[rest]
-    raise UnitError(f"unknown unit {symbol!r} (use V, A, Ω or ohm, Hz, deg, % with an SI prefix"
-                    " such as m, k, M)")
+    raise UnitError(
+        f"unknown unit {symbol!r} (use V, A, Ω or ohm, Hz, deg, % with an SI prefix"
+        " such as m, k, M)"
+    )
 
 
-def parse_quantity(text: str | float | int, expect: str | None = None, *,
-                   bare_factor: float = 1.0) -> tuple[float, str]:
+def parse_quantity(
+    text: str | float | int, expect: str | None = None, *, bare_factor: float = 1.0
+) -> tuple[float, str]:
     """Parse a number with an optional unit into ``(value in base units, dimension)``.
 
     Parameters
@@ -121,8 +156,10 @@ def parse_quantity(text: str | float | int, expect: str | None = None, *,
         if not isinstance(text, str):
             raise UnitError(f"expected a number with an optional unit, got {type(text).__name__}")
         if len(text) > MAX_QUANTITY_LENGTH:
-            raise UnitError(f"too long for a number with a unit ({len(text)} characters, at most"
-                            f" {MAX_QUANTITY_LENGTH})")
+            raise UnitError(
+                f"too long for a number with a unit ({len(text)} characters, at most"
+                f" {MAX_QUANTITY_LENGTH})"
+            )
         if _DECIMAL_COMMA.match(text.strip()):
             raise UnitError(f"{text.strip()!r}: use a decimal point, not a comma")
         parts = split_quantity(text)
@@ -132,7 +169,13 @@ def parse_quantity(text: str | float | int, expect: str | None = None, *,
             raise UnitError(f"{text.strip()!r} is not a number with an optional unit")
         value = float(parts[0])
         symbol = parts[1]
-        if symbol and expect and expect not in _UNPREFIXED and symbol in PREFIXES and symbol not in UNITS:
+        if (
+            symbol
+            and expect
+            and expect not in _UNPREFIXED
+            and symbol in PREFIXES
+            and symbol not in UNITS
+        ):
             value *= PREFIXES[symbol]  # a prefix alone: the expected unit is understood
             dimension = expect
         elif symbol:
@@ -144,8 +187,10 @@ def parse_quantity(text: str | float | int, expect: str | None = None, *,
     if not math.isfinite(value):
         raise UnitError(f"{text!r} is not a finite number")
     if expect is not None and dimension != expect:
-        raise UnitError(f"{str(text).strip()!r} is in {DIMENSION_NAMES.get(dimension, dimension)},"
-                        f" expected {DIMENSION_NAMES.get(expect, expect)}")
+        raise UnitError(
+            f"{str(text).strip()!r} is in {DIMENSION_NAMES.get(dimension, dimension)},"
+            f" expected {DIMENSION_NAMES.get(expect, expect)}"
+        )
     return value, dimension
 
 
@@ -154,8 +199,16 @@ def parse_value(text: str | float | int, expect: str) -> float:
     return parse_quantity(text, expect)[0]
 
 
-_ENGINEERING = [(1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "µ"),
-                (1e-9, "n"), (1e-12, "p")]
+_ENGINEERING = [
+    (1e9, "G"),
+    (1e6, "M"),
+    (1e3, "k"),
+    (1.0, ""),
+    (1e-3, "m"),
+    (1e-6, "µ"),
+    (1e-9, "n"),
+    (1e-12, "p"),
+]
 
 
 def format_quantity(value: float | None, unit: str, digits: int = 6) -> str:
@@ -210,8 +263,18 @@ def prefix_for(value: float) -> tuple[float, str]:
 # operator typed; each limit with enough digits that the reading shown, compared with the limit
 # shown, gives the verdict shown; U as rounded by the one rounding function (GUM 7.2.6).
 
-_PREFIX_EXPONENTS = {"p": -12, "n": -9, "u": -6, "µ": -6, "μ": -6, "m": -3, "": 0, "k": 3,
-                     "M": 6, "G": 9}
+_PREFIX_EXPONENTS = {
+    "p": -12,
+    "n": -9,
+    "u": -6,
+    "µ": -6,
+    "μ": -6,
+    "m": -3,
+    "": 0,
+    "k": 3,
+    "M": 6,
+    "G": 9,
+}
 _PREFIX_NAMES = {-12: "p", -9: "n", -6: "µ", -3: "m", 0: "", 3: "k", 6: "M", 9: "G"}
 
 
@@ -238,7 +301,7 @@ def typed_decimal(text: str, expect: str, *, bare_factor: float = 1.0) -> tuple[
     if symbol in _PREFIX_EXPONENTS:
         return number, _PREFIX_EXPONENTS[symbol]
     for prefix, power in _PREFIX_EXPONENTS.items():
-        if prefix and symbol.startswith(prefix) and symbol[len(prefix):] in UNITS:
+        if prefix and symbol.startswith(prefix) and symbol[len(prefix) :] in UNITS:
             return number, power
     return number, 0
 
@@ -269,7 +332,7 @@ def _scaled(value: Decimal | Fraction, exponent: int) -> Decimal | Fraction:
         return value.scaleb(-exponent)
     if exponent == 0:
         return value
-    return value / 10 ** exponent if exponent > 0 else value * 10 ** -exponent
+    return value / 10**exponent if exponent > 0 else value * 10**-exponent
 
 
 def _plain_decimal(d: Decimal) -> str:
@@ -287,7 +350,11 @@ def format_typed(text: str, unit: str, exponent: int, *, bare_factor: float = 1.
 
 
 def _decimal_of(q: Fraction, places: int) -> Decimal:
-    d = Decimal(q.numerator) / Decimal(q.denominator) if q.denominator != 1 else Decimal(q.numerator)
+    d = (
+        Decimal(q.numerator) / Decimal(q.denominator)
+        if q.denominator != 1
+        else Decimal(q.numerator)
+    )
     return d.quantize(Decimal(1).scaleb(-places), rounding=ROUND_HALF_EVEN)
 
 
@@ -305,8 +372,16 @@ def _terminating_places(q: Fraction) -> int | None:
     return places if den == 1 and places <= 20 else None
 
 
-def format_limit(limit, unit: str, exponent: int, *, reading: Fraction | None = None,
-                 side: str = "low", places: int = 0, digits: int = 5) -> str:
+def format_limit(
+    limit,
+    unit: str,
+    exponent: int,
+    *,
+    reading: Fraction | None = None,
+    side: str = "low",
+    places: int = 0,
+    digits: int = 5,
+) -> str:
     """A limit in base units, exact (a :class:`~fractions.Fraction`, or ``±inf``), under the
     row's prefix, with enough digits for the printed comparison to tell the truth.
 
@@ -338,7 +413,10 @@ def format_limit(limit, unit: str, exponent: int, *, reading: Fraction | None = 
         truth = r >= q if side == "low" else r <= q
     while True:
         shown = _decimal_of(q, wanted)
-        if truth is None or (r >= Fraction(shown) if side == "low" else r <= Fraction(shown)) == truth:
+        if (
+            truth is None
+            or (r >= Fraction(shown) if side == "low" else r <= Fraction(shown)) == truth
+        ):
             break
         wanted += 1
     return f"{_plain_decimal(shown)} {unit_text(unit, exponent)}".rstrip()

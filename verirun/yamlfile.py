@@ -101,20 +101,32 @@ class _Loader(getattr(yaml, "CSafeLoader", yaml.SafeLoader)):
             value = node.value if isinstance(node, yaml.ScalarNode) else "this value"
             why = f": {exc}" if isinstance(exc, ValueError) else ""
             raise yaml.constructor.ConstructorError(
-                None, None, f"{value!r} cannot be read as a {tag}{why}", node.start_mark) from None
+                None, None, f"{value!r} cannot be read as a {tag}{why}", node.start_mark
+            ) from None
 
 
 def _has_surrogate(text: str) -> bool:
     return any("\ud800" <= c <= "\udfff" for c in text)
 
 
-def _walk(node: yaml.Node, path: Path_, lines: dict[Path_, int], problems: list[tuple[Path_, int, str]],
-          ancestors: set[int], count: list[int]) -> None:
+def _walk(
+    node: yaml.Node,
+    path: Path_,
+    lines: dict[Path_, int],
+    problems: list[tuple[Path_, int, str]],
+    ancestors: set[int],
+    count: list[int],
+) -> None:
     count[0] += 1
     if count[0] > MAX_NODES:
         if count[0] == MAX_NODES + 1:
-            problems.append((path, node.start_mark.line + 1,
-                             f"the file holds more than {MAX_NODES} values (aliases expanding?)"))
+            problems.append(
+                (
+                    path,
+                    node.start_mark.line + 1,
+                    f"the file holds more than {MAX_NODES} values (aliases expanding?)",
+                )
+            )
         return
     lines.setdefault(path, node.start_mark.line + 1)
     if id(node) in ancestors:
@@ -122,8 +134,14 @@ def _walk(node: yaml.Node, path: Path_, lines: dict[Path_, int], problems: list[
         return
     if isinstance(node, yaml.ScalarNode):
         if _has_surrogate(node.value):
-            problems.append((path, node.start_mark.line + 1, "holds a character that is not valid text"
-                             " (a lone surrogate); write the text again"))
+            problems.append(
+                (
+                    path,
+                    node.start_mark.line + 1,
+                    "holds a character that is not valid text"
+                    " (a lone surrogate); write the text again",
+                )
+            )
         elif (why := refusal(node.value, allow=LAYOUT)) is not None:
             problems.append((path, node.start_mark.line + 1, why))
         return
@@ -134,12 +152,17 @@ def _walk(node: yaml.Node, path: Path_, lines: dict[Path_, int], problems: list[
             key = key_node.value if isinstance(key_node, yaml.ScalarNode) else str(key_node.value)
             line = key_node.start_mark.line + 1
             if key in seen:
-                problems.append((path + (key,), line,
-                                 f"duplicate key (first given on line {seen[key]})"))
+                problems.append(
+                    (path + (key,), line, f"duplicate key (first given on line {seen[key]})")
+                )
                 continue
             seen[key] = line
             lines[path + (key,)] = line
-            if isinstance(key, str) and not _has_surrogate(key) and (why := refusal(key)) is not None:
+            if (
+                isinstance(key, str)
+                and not _has_surrogate(key)
+                and (why := refusal(key)) is not None
+            ):
                 problems.append((path + (key,), line, f"the key {why}"))
             _walk(value_node, path + (key,), lines, problems, ancestors, count)
     elif isinstance(node, yaml.SequenceNode):
@@ -163,9 +186,14 @@ def load_text(text: str, source: str) -> LocatedData:
             node = loader.get_single_node()
         except yaml.reader.ReaderError as exc:
             line = text.count("\n", 0, exc.position) + 1
-            char = exc.character if isinstance(exc.character, int) else ord(str(exc.character)[:1] or "\0")
-            raise ProcedureError(f"{source}:{line}: a character YAML does not allow (U+{char:04X});"
-                                 " remove it") from None
+            char = (
+                exc.character
+                if isinstance(exc.character, int)
+                else ord(str(exc.character)[:1] or "\0")
+            )
+            raise ProcedureError(
+                f"{source}:{line}: a character YAML does not allow (U+{char:04X}); remove it"
+            ) from None
         except yaml.MarkedYAMLError as exc:
             raise ProcedureError(_marked(exc, source)) from None
         except (yaml.YAMLError, RecursionError) as exc:
@@ -175,8 +203,14 @@ def load_text(text: str, source: str) -> LocatedData:
         if node is not None:
             _walk(node, (), lines, problems, set(), [0])
         if problems:
-            raise ProcedureError([f"{source}:{line}: {format_loc(loc)}: {msg}" if format_loc(loc)
-                                  else f"{source}:{line}: {msg}" for loc, line, msg in problems])
+            raise ProcedureError(
+                [
+                    f"{source}:{line}: {format_loc(loc)}: {msg}"
+                    if format_loc(loc)
+                    else f"{source}:{line}: {msg}"
+                    for loc, line, msg in problems
+                ]
+            )
         try:
             # Built from the node tree already composed and checked: no second parse.
             data = loader.construct_document(node) if node is not None else None
@@ -215,8 +249,9 @@ def load_file(path: str | Path) -> LocatedData:
         text = raw.decode("utf-8")
     except UnicodeDecodeError as exc:
         line = raw.count(b"\n", 0, exc.start) + 1
-        raise ProcedureError(f"{path}:{line}: not UTF-8 text (byte 0x{raw[exc.start]:02x}); save the"
-                             " file as UTF-8") from None
+        raise ProcedureError(
+            f"{path}:{line}: not UTF-8 text (byte 0x{raw[exc.start]:02x}); save the file as UTF-8"
+        ) from None
     if text.startswith("\ufeff"):
         text = text[1:]
     return load_text(text, str(path))
@@ -233,7 +268,9 @@ def validate(model: type[M], located: LocatedData, *, context: dict | None = Non
     from pydantic import ValidationError
 
     if not isinstance(located.data, dict):
-        raise ProcedureError(f"{located.source}:1: expected a mapping of keys at the top of the file")
+        raise ProcedureError(
+            f"{located.source}:1: expected a mapping of keys at the top of the file"
+        )
     try:
         return model.model_validate(located.data, context=context)  # type: ignore[attr-defined]
     except ValidationError as exc:
@@ -241,13 +278,14 @@ def validate(model: type[M], located: LocatedData, *, context: dict | None = Non
         for err in exc.errors(include_url=False):
             message = err["msg"]
             if message.startswith("Value error, "):
-                message = message[len("Value error, "):]
+                message = message[len("Value error, ") :]
             if err["type"] == "extra_forbidden":
                 message = "unknown key (check its spelling)"
             elif err["type"] == "missing":
                 message = "required, but missing"
-            problems.append(located.problem(tuple(err["loc"]), message,
-                                            missing=err["type"] == "missing"))
+            problems.append(
+                located.problem(tuple(err["loc"]), message, missing=err["type"] == "missing")
+            )
         raise ProcedureError(_unique(problems)) from None
 
 
@@ -261,10 +299,21 @@ def check_format(located: LocatedData, supported: int, kind: str) -> None:
     data = located.data if isinstance(located.data, dict) else {}
     version = data.get("format")
     if version is None:
-        raise ProcedureError(located.problem(("format",), f"required: the {kind} format version"
-                                             f" (this verirun reads format {supported})"))
+        raise ProcedureError(
+            located.problem(
+                ("format",),
+                f"required: the {kind} format version (this verirun reads format {supported})",
+            )
+        )
     if not isinstance(version, int) or isinstance(version, bool) or version < 1:
-        raise ProcedureError(located.problem(("format",), f"must be a whole number, got {version!r}"))
+        raise ProcedureError(
+            located.problem(("format",), f"must be a whole number, got {version!r}")
+        )
     if version > supported:
-        raise ProcedureError(located.problem(("format",), f"this {kind} is format {version}, newer than"
-                                             f" this verirun reads (format {supported}); upgrade verirun"))
+        raise ProcedureError(
+            located.problem(
+                ("format",),
+                f"this {kind} is format {version}, newer than"
+                f" this verirun reads (format {supported}); upgrade verirun",
+            )
+        )

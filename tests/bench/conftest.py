@@ -8,8 +8,6 @@ from verirun.bench import Calibrator
 from verirun.bench.sim import SIM_RESOURCE, sim_library
 
 
-
-
 class ProtocolViolation(AssertionError):
     """The driver sent something the test did not expect."""
 
@@ -73,7 +71,9 @@ def expect():
 @pytest.fixture
 def sim(tmp_path):
     """A calibrator driver on a fresh copy of the simulated device, with 200 ms timeouts."""
-    calibrator = Calibrator.open(sim_library(tmp_path), SIM_RESOURCE, "scpi-generic", timeout_ms=200)
+    calibrator = Calibrator.open(
+        sim_library(tmp_path), SIM_RESOURCE, "scpi-generic", timeout_ms=200
+    )
     yield calibrator
     calibrator.close()
 
@@ -86,7 +86,9 @@ def custom_profile(tmp_path):
     import yaml
 
     def build(change, name="custom.yaml"):
-        data = yaml.safe_load((files("verirun.bench") / "profiles" / "scpi-generic.yaml").read_text("utf-8"))
+        data = yaml.safe_load(
+            (files("verirun.bench") / "profiles" / "scpi-generic.yaml").read_text("utf-8")
+        )
         change(data)
         path = tmp_path / name
         path.write_text(yaml.safe_dump(data, sort_keys=False), encoding="utf-8")

@@ -50,43 +50,62 @@ class TestReset:
 class TestSource:
     def test_dc_voltage_exchanges(self, expect):
         """Sourcing DC voltage selects DC, sets the level, and checks the error queue after each command."""
-        cal(expect, [("FUNC DC", None), (ERR, EMPTY), ("VOLT 5.0", None), (ERR, EMPTY)]).source("dc-voltage", 5)
+        cal(expect, [("FUNC DC", None), (ERR, EMPTY), ("VOLT 5.0", None), (ERR, EMPTY)]).source(
+            "dc-voltage", 5
+        )
 
     def test_ac_sets_frequency_before_level(self, expect):
         """Sourcing AC sends the frequency before the level, so the new level never appears at the old frequency."""
-        cal(expect, [("FUNC SIN", None), (ERR, EMPTY), ("FREQ 1000.0", None), (ERR, EMPTY),
-                     ("CURR 0.5", None), (ERR, EMPTY)]).source("ac-current", 0.5, 1000)
+        cal(
+            expect,
+            [
+                ("FUNC SIN", None),
+                (ERR, EMPTY),
+                ("FREQ 1000.0", None),
+                (ERR, EMPTY),
+                ("CURR 0.5", None),
+                (ERR, EMPTY),
+            ],
+        ).source("ac-current", 0.5, 1000)
 
     def test_resistance_has_no_select_command(self, expect):
         """Resistance is set with its own command alone."""
         cal(expect, [("RES 10000.0", None), (ERR, EMPTY)]).source("resistance", 1e4)
 
-    @pytest.mark.parametrize("value, text", [
-        (0.1 + 0.2, "0.30000000000000004"),
-        (1.23456789012345e-7, "1.23456789012345e-07"),
-        (-999.999999999999, "-999.999999999999"),
-    ])
+    @pytest.mark.parametrize(
+        "value, text",
+        [
+            (0.1 + 0.2, "0.30000000000000004"),
+            (1.23456789012345e-7, "1.23456789012345e-07"),
+            (-999.999999999999, "-999.999999999999"),
+        ],
+    )
     def test_values_are_sent_in_full_precision(self, expect, value, text):
         """The value is written so that it parses back to the very same float."""
-        cal(expect, [("FUNC DC", None), (ERR, EMPTY), (f"VOLT {text}", None), (ERR, EMPTY)]).source("dc-voltage", value)
+        cal(expect, [("FUNC DC", None), (ERR, EMPTY), (f"VOLT {text}", None), (ERR, EMPTY)]).source(
+            "dc-voltage", value
+        )
         assert float(text) == value
 
-    @pytest.mark.parametrize("function, value, frequency, words", [
-        ("dc-voltage", 1000.5, None, ["1000.5 V", "above", "1000.0 V"]),
-        ("dc-voltage", -1001, None, ["-1001.0 V", "below", "-1000.0 V"]),
-        ("ac-voltage", -1.0, 50, ["-1.0 V", "below", "0.0 V"]),
-        ("ac-voltage", 1.0, 5.0, ["frequency 5.0 Hz", "below", "10.0 Hz"]),
-        ("ac-current", 1.0, 20000.0, ["frequency 20000.0 Hz", "above", "10000.0 Hz"]),
-        ("dc-current", math.nan, None, ["finite", "nan"]),
-        ("dc-current", math.inf, None, ["finite", "inf"]),
-        ("ac-voltage", 1.0, math.nan, ["frequency", "finite", "nan"]),
-        ("ac-voltage", 1.0, None, ["needs a frequency", "10.0 Hz", "100000.0 Hz"]),
-        ("dc-voltage", 1.0, 50.0, ["takes no frequency", "50.0 Hz"]),
-        ("dc-voltage", True, None, ["must be a number", "True"]),
-        ("dc-voltage", "5", None, ["must be a number", "'5'"]),
-        ("dc-voltage", 2 ** 60 + 1, None, ["cannot be sent exactly"]),
-        ("dc-volts", 1.0, None, ["unknown function", "'dc-volts'", "dc-voltage"]),
-    ])
+    @pytest.mark.parametrize(
+        "function, value, frequency, words",
+        [
+            ("dc-voltage", 1000.5, None, ["1000.5 V", "above", "1000.0 V"]),
+            ("dc-voltage", -1001, None, ["-1001.0 V", "below", "-1000.0 V"]),
+            ("ac-voltage", -1.0, 50, ["-1.0 V", "below", "0.0 V"]),
+            ("ac-voltage", 1.0, 5.0, ["frequency 5.0 Hz", "below", "10.0 Hz"]),
+            ("ac-current", 1.0, 20000.0, ["frequency 20000.0 Hz", "above", "10000.0 Hz"]),
+            ("dc-current", math.nan, None, ["finite", "nan"]),
+            ("dc-current", math.inf, None, ["finite", "inf"]),
+            ("ac-voltage", 1.0, math.nan, ["frequency", "finite", "nan"]),
+            ("ac-voltage", 1.0, None, ["needs a frequency", "10.0 Hz", "100000.0 Hz"]),
+            ("dc-voltage", 1.0, 50.0, ["takes no frequency", "50.0 Hz"]),
+            ("dc-voltage", True, None, ["must be a number", "True"]),
+            ("dc-voltage", "5", None, ["must be a number", "'5'"]),
+            ("dc-voltage", 2**60 + 1, None, ["cannot be sent exactly"]),
+            ("dc-volts", 1.0, None, ["unknown function", "'dc-volts'", "dc-voltage"]),
+        ],
+    )
     def test_strict_validator_sends_nothing(self, expect, function, value, frequency, words):
         """A stimulus outside the profile's limits, or malformed, is refused with the value and limit named, before anything is sent."""
         with pytest.raises(BenchError) as err:
@@ -103,7 +122,16 @@ class TestSource:
 
     def test_instrument_error_names_command_and_answer(self, expect):
         """An error queued after a command stops the sequence and is reported with that command and the raw entry."""
-        driver = cal(expect, [("FUNC DC", None), (ERR, EMPTY), ("VOLT 5.0", None), (ERR, OUT_OF_RANGE), (ERR, EMPTY)])
+        driver = cal(
+            expect,
+            [
+                ("FUNC DC", None),
+                (ERR, EMPTY),
+                ("VOLT 5.0", None),
+                (ERR, OUT_OF_RANGE),
+                (ERR, EMPTY),
+            ],
+        )
         with pytest.raises(BenchError) as err:
             driver.source("dc-voltage", 5.0)
         assert err.value.command == "VOLT 5.0"
@@ -120,10 +148,16 @@ class TestSource:
     def test_simulated_state_follows_the_source(self, sim):
         """After source(), the simulated device holds the function, level and frequency that were asked for."""
         sim.source("ac-voltage", 12.5, 400.0)
-        assert (sim.resource.query("FUNC?"), sim.resource.query("VOLT?"), sim.resource.query("FREQ?")) == \
-            ("SIN", "12.5", "400.0")
+        assert (
+            sim.resource.query("FUNC?"),
+            sim.resource.query("VOLT?"),
+            sim.resource.query("FREQ?"),
+        ) == ("SIN", "12.5", "400.0")
         sim.source("dc-current", -0.001234567890123)
-        assert (sim.resource.query("FUNC?"), sim.resource.query("CURR?")) == ("DC", "-0.001234567890123")
+        assert (sim.resource.query("FUNC?"), sim.resource.query("CURR?")) == (
+            "DC",
+            "-0.001234567890123",
+        )
         sim.source("resistance", 1.9e3)
         assert sim.resource.query("RES?") == "1900.0"
 
@@ -136,7 +170,9 @@ class TestSource:
 
     def test_device_rejection_is_reported_when_profile_is_wider(self, tmp_path, custom_profile):
         """With profile limits wider than the device's, the device's own rejection surfaces as a BenchError."""
-        path = custom_profile(lambda data: data["functions"]["dc-voltage"]["level"].update(max=5000.0))
+        path = custom_profile(
+            lambda data: data["functions"]["dc-voltage"]["level"].update(max=5000.0)
+        )
         with Calibrator.open(sim_library(tmp_path), SIM_RESOURCE, path, timeout_ms=200) as driver:
             with pytest.raises(BenchError) as err:
                 driver.source("dc-voltage", 1500.0)
@@ -155,7 +191,9 @@ class TestOutput:
         """standby() sends the off command and checks the error queue."""
         cal(expect, [("OUTP OFF", None), (ERR, EMPTY)]).standby()
 
-    @pytest.mark.parametrize("reply, on", [("1", True), ("0", False), ("ON", True), ("OFF", False), ("1\n", True)])
+    @pytest.mark.parametrize(
+        "reply, on", [("1", True), ("0", False), ("ON", True), ("OFF", False), ("1\n", True)]
+    )
     def test_output_is_on_reads_back(self, expect, reply, on):
         """The output state is read from the instrument and interpreted by the profile's replies (SCPI boolean 1|0, or ON|OFF)."""
         assert cal(expect, [("OUTP?", reply)]).output_is_on() is on
@@ -178,13 +216,17 @@ class TestOutput:
 class TestErrors:
     def test_drains_until_empty(self, expect):
         """errors() reads entries until the empty code and returns them oldest first, without quotes."""
-        driver = cal(expect, [(ERR, OUT_OF_RANGE), (ERR, "-113,\"Undefined header\""), (ERR, "+0,\"No error\"")])
+        driver = cal(
+            expect, [(ERR, OUT_OF_RANGE), (ERR, '-113,"Undefined header"'), (ERR, '+0,"No error"')]
+        )
         assert driver.errors() == [(-222, "Data out of range"), (-113, "Undefined header")]
 
     def test_entries_after_an_empty_queue_are_still_read(self, expect):
         """An empty queue answered once does not hide a real entry or a malformed reply later:
         each later answer is parsed unless it is exactly an empty-queue answer already seen."""
-        driver = cal(expect, [(ERR, EMPTY), (ERR, OUT_OF_RANGE), (ERR, EMPTY), (ERR, "+0"), (ERR, "OK")])
+        driver = cal(
+            expect, [(ERR, EMPTY), (ERR, OUT_OF_RANGE), (ERR, EMPTY), (ERR, "+0"), (ERR, "OK")]
+        )
         assert driver.errors() == []
         assert driver.errors() == [(-222, "Data out of range")]
         assert driver.errors() == []  # "+0", written differently, is parsed and still empty
@@ -225,7 +267,9 @@ class TestLinkFailures:
     def test_lost_connection_becomes_bench_error(self, expect):
         """An OSError from the link is reported as a lost connection, naming the command."""
         with pytest.raises(BenchError, match="connection to the calibrator was lost") as err:
-            cal(expect, [("OUTP ON", ConnectionResetError(104, "Connection reset by peer"))]).output_on()
+            cal(
+                expect, [("OUTP ON", ConnectionResetError(104, "Connection reset by peer"))]
+            ).output_on()
         assert err.value.command == "OUTP ON"
 
     def test_simulated_timeout(self, tmp_path, custom_profile):
@@ -254,11 +298,16 @@ class TestOpen:
                 pass
 
             def open_resource(self, name, **settings):
-                raise pyvisa.errors.VisaIOError(pyvisa.constants.StatusCode.error_resource_not_found)
+                raise pyvisa.errors.VisaIOError(
+                    pyvisa.constants.StatusCode.error_resource_not_found
+                )
 
         monkeypatch.setattr(pyvisa, "ResourceManager", NoSuchResource)
-        with pytest.raises(BenchError, match="cannot open the calibrator at 'GPIB0::99::INSTR'.*"
-                                             "Insufficient location information"):
+        with pytest.raises(
+            BenchError,
+            match="cannot open the calibrator at 'GPIB0::99::INSTR'.*"
+            "Insufficient location information",
+        ):
             Calibrator.open("", "GPIB0::99::INSTR", "scpi-generic")
 
     def test_missing_library_file(self, tmp_path):
@@ -275,19 +324,29 @@ class TestOpen:
 
     def test_sets_terminations_and_timeout(self, sim):
         """The opened resource uses the profile's terminations and the timeout asked for."""
-        assert (sim.resource.read_termination, sim.resource.write_termination, sim.resource.timeout) == ("\n", "\n", 200)
+        assert (
+            sim.resource.read_termination,
+            sim.resource.write_termination,
+            sim.resource.timeout,
+        ) == ("\n", "\n", 200)
 
     def test_fresh_copies_start_from_default_state(self, tmp_path):
         """Two work folders give two independent simulated devices."""
-        with Calibrator.open(sim_library(tmp_path / "a"), SIM_RESOURCE, "scpi-generic", timeout_ms=200) as one:
+        with Calibrator.open(
+            sim_library(tmp_path / "a"), SIM_RESOURCE, "scpi-generic", timeout_ms=200
+        ) as one:
             one.source("dc-voltage", 7.0)
-        with Calibrator.open(sim_library(tmp_path / "b"), SIM_RESOURCE, "scpi-generic", timeout_ms=200) as two:
+        with Calibrator.open(
+            sim_library(tmp_path / "b"), SIM_RESOURCE, "scpi-generic", timeout_ms=200
+        ) as two:
             assert two.resource.query("VOLT?") == "0.0"
 
     def test_pyvisa_is_imported_only_when_opening(self):
         """Importing the bench does not import pyvisa, which costs start-up time."""
         code = "import sys, verirun.bench; print('pyvisa' in sys.modules)"
-        out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
+        out = subprocess.run(
+            [sys.executable, "-c", code], capture_output=True, text=True, check=True
+        ).stdout
         assert out.strip() == "False"
 
 
@@ -308,7 +367,9 @@ class TestClose:
             raise BrokenPipeError(32, "Broken pipe")
 
         fake.close = broken
-        with pytest.raises(BenchError, match="connection to the calibrator was lost: Broken pipe") as err:
+        with pytest.raises(
+            BenchError, match="connection to the calibrator was lost: Broken pipe"
+        ) as err:
             Calibrator(fake, "scpi-generic").close()
         assert err.value.command is None
 
@@ -333,13 +394,15 @@ def test_source_sequences_do_not_interleave_between_threads():
     """Two threads sourcing at once each get their whole command-and-check sequence without the other's commands inside it."""
     fake = SlowSequence()
     driver = Calibrator(fake, "scpi-generic")
-    threads = [threading.Thread(target=lambda v=v: [driver.source("dc-voltage", v) for _ in range(10)])
-               for v in (1.0, 2.0)]
+    threads = [
+        threading.Thread(target=lambda v=v: [driver.source("dc-voltage", v) for _ in range(10)])
+        for v in (1.0, 2.0)
+    ]
     for thread in threads:
         thread.start()
     for thread in threads:
         thread.join()
-    blocks = [fake.seen[i:i + 4] for i in range(0, len(fake.seen), 4)]
+    blocks = [fake.seen[i : i + 4] for i in range(0, len(fake.seen), 4)]
     assert len(blocks) == 20
     for block in blocks:
         assert block in (["FUNC DC", ERR, "VOLT 1.0", ERR], ["FUNC DC", ERR, "VOLT 2.0", ERR])

@@ -18,7 +18,9 @@ STANDBY_VERIFIED = [("OUTP OFF", None), (ERR, EMPTY), ("OUTP?", "0")]
 class TestOutputGuardProtocol:
     def test_normal_exit_sends_standby_and_reads_back(self, expect):
         """Leaving the block normally sends standby and reads the output state back."""
-        driver = Calibrator(expect([("OUTP ON", None), (ERR, EMPTY)] + STANDBY_VERIFIED), "scpi-generic")
+        driver = Calibrator(
+            expect([("OUTP ON", None), (ERR, EMPTY)] + STANDBY_VERIFIED), "scpi-generic"
+        )
         with output_guard(driver) as guarded:
             guarded.output_on()
 
@@ -32,11 +34,15 @@ class TestOutputGuardProtocol:
     def test_failed_read_back_is_a_safety_error(self, expect):
         """If the output state cannot be read back, a SafetyError tells the operator to switch off by hand."""
         lost = ConnectionResetError(104, "Connection reset by peer")
-        driver = Calibrator(expect([("OUTP OFF", None), (ERR, EMPTY), ("OUTP?", lost)]), "scpi-generic")
+        driver = Calibrator(
+            expect([("OUTP OFF", None), (ERR, EMPTY), ("OUTP?", lost)]), "scpi-generic"
+        )
         with pytest.raises(SafetyError) as err:
             with output_guard(driver):
                 pass
-        assert str(err.value).startswith("output state unknown: switch the calibrator output off by hand")
+        assert str(err.value).startswith(
+            "output state unknown: switch the calibrator output off by hand"
+        )
         assert err.value.command == "OUTP?"
         assert isinstance(err.value.__cause__, BenchError)
 
@@ -52,8 +58,10 @@ class TestOutputGuardProtocol:
 
     def test_standby_rejected_by_instrument(self, expect):
         """An error queued after the standby command is a SafetyError: the off command was not accepted."""
-        driver = Calibrator(expect([("OUTP OFF", None), (ERR, '-100,"Command error"'), (ERR, EMPTY)]),
-                            "scpi-generic")
+        driver = Calibrator(
+            expect([("OUTP OFF", None), (ERR, '-100,"Command error"'), (ERR, EMPTY)]),
+            "scpi-generic",
+        )
         with pytest.raises(SafetyError, match="output state unknown") as err:
             with output_guard(driver):
                 pass
@@ -61,7 +69,9 @@ class TestOutputGuardProtocol:
 
     def test_output_still_on_is_a_safety_error(self, expect):
         """If the output still reads on after standby, a SafetyError is raised even though every command succeeded."""
-        driver = Calibrator(expect([("OUTP OFF", None), (ERR, EMPTY), ("OUTP?", "1")]), "scpi-generic")
+        driver = Calibrator(
+            expect([("OUTP OFF", None), (ERR, EMPTY), ("OUTP?", "1")]), "scpi-generic"
+        )
         with pytest.raises(SafetyError, match="still reads on"):
             with output_guard(driver):
                 pass
@@ -120,18 +130,27 @@ class TestHazardLimits:
 
 
 class TestIsHazardous:
-    @pytest.mark.parametrize("value, hazardous", [
-        (59.999, False), (60.0, True), (-59.999, False), (-60.0, True),  # IEC 61010-1 6.3.1: 60 V DC
-    ])
+    @pytest.mark.parametrize(
+        "value, hazardous",
+        [
+            (59.999, False),
+            (60.0, True),
+            (-59.999, False),
+            (-60.0, True),  # IEC 61010-1 6.3.1: 60 V DC
+        ],
+    )
     def test_dc(self, value, hazardous):
         """DC voltage is hazardous at or above 60 V in either polarity."""
         assert is_hazardous("dc-voltage", value) is hazardous
 
-    @pytest.mark.parametrize("value, hazardous", [
-        (29.98, False),  # peak 42.398 V: under both limits
-        (29.99, True),   # peak 42.412 V > 42.4 V peak (IEC 61010-1 6.3.1), though under 30 V rms
-        (30.0, True),
-    ])
+    @pytest.mark.parametrize(
+        "value, hazardous",
+        [
+            (29.98, False),  # peak 42.398 V: under both limits
+            (29.99, True),  # peak 42.412 V > 42.4 V peak (IEC 61010-1 6.3.1), though under 30 V rms
+            (30.0, True),
+        ],
+    )
     def test_ac_checks_the_peak_too(self, value, hazardous):
         """AC voltage is hazardous when its rms or its sine peak (rms * sqrt 2) reaches the limit."""
         assert is_hazardous("ac-voltage", value) is hazardous
@@ -139,12 +158,18 @@ class TestIsHazardous:
     def test_ac_rms_limit_alone(self):
         """With a generous peak limit, the rms limit still applies."""
         limits = HazardLimits(ac_peak_volts=1000.0)
-        assert (is_hazardous("ac-voltage", 29.99, limits), is_hazardous("ac-voltage", 30.0, limits)) == (False, True)
+        assert (
+            is_hazardous("ac-voltage", 29.99, limits),
+            is_hazardous("ac-voltage", 30.0, limits),
+        ) == (False, True)
 
     def test_configurable(self):
         """Limits passed in replace the defaults."""
         limits = HazardLimits(dc_volts=25.0)
-        assert (is_hazardous("dc-voltage", 30.0), is_hazardous("dc-voltage", 25.0, limits)) == (False, True)
+        assert (is_hazardous("dc-voltage", 30.0), is_hazardous("dc-voltage", 25.0, limits)) == (
+            False,
+            True,
+        )
 
     @pytest.mark.parametrize("function", ["dc-current", "ac-current", "resistance"])
     def test_only_voltage_is_hazardous(self, function):

@@ -15,9 +15,27 @@ ROOT = Path(__file__).resolve().parents[2]
 def demo_run_dir(tmp_path_factory) -> Path:
     """One complete run of the demo procedure with scripted readings."""
     tmp = tmp_path_factory.mktemp("demo-run")
-    assert main(["run", str(ROOT / "procedures" / "qm40-analog-multimeter.yaml"),
-                 "--bench", str(ROOT / "verirun" / "demo" / "bench-sim.yaml"), "--simulate",
-                 "--readings", str(ROOT / "tests" / "data" / "qm40-readings.csv"), "--serial", "QM40-1",
-                 "--customer", "C", "--runs", str(tmp / "runs"), "--reports", str(tmp / "reports")]) == 0
+    assert (
+        main(
+            [
+                "run",
+                str(ROOT / "procedures" / "qm40-analog-multimeter.yaml"),
+                "--bench",
+                str(ROOT / "verirun" / "demo" / "bench-sim.yaml"),
+                "--simulate",
+                "--readings",
+                str(ROOT / "tests" / "data" / "qm40-readings.csv"),
+                "--serial",
+                "QM40-1",
+                "--customer",
+                "C",
+                "--runs",
+                str(tmp / "runs"),
+                "--reports",
+                str(tmp / "reports"),
+            ]
+        )
+        == 0
+    )
     (run,) = (tmp / "runs").iterdir()
     return run

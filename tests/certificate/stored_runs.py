@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from verirun.record.journal import GENESIS, dumps, line_hash, read_journal, write_record
 from verirun.record.build import build_record
+from verirun.record.journal import GENESIS, dumps, line_hash, read_journal, write_record
 
 
 def clone_run(source: Path, target: Path, *, uid: str, serial: str) -> Path:
@@ -24,5 +24,7 @@ def clone_run(source: Path, target: Path, *, uid: str, serial: str) -> Path:
         prev = line_hash(line)
         lines.append(line)
     (target / "journal.jsonl").write_text("\n".join(lines) + "\n", encoding="utf-8")
-    write_record(build_record(read_journal(target / "journal.jsonl").documents), target / "record.json")
+    write_record(
+        build_record(read_journal(target / "journal.jsonl").documents), target / "record.json"
+    )
     return target

@@ -2,24 +2,30 @@
 
 from __future__ import annotations
 
-from pathlib import Path
-
 import json
-
-from verirun.certificate.render import TEMPLATE_VERSION
-from verirun.certificate.batch import certify_many, find_runs
-from verirun.cli import main
+from pathlib import Path
 
 from stored_runs import clone_run
 
+from verirun.certificate.batch import certify_many, find_runs
+from verirun.certificate.render import TEMPLATE_VERSION
+from verirun.cli import main
+
 
 class TestCertifyFolder:
-    def test_fifty_runs_byte_identical_and_one_corrupt_reported(self, demo_run_dir, tmp_path, capsys):
+    def test_fifty_runs_byte_identical_and_one_corrupt_reported(
+        self, demo_run_dir, tmp_path, capsys
+    ):
         """A folder of 50 stored runs certifies; certifying again gives the same bytes; a
         corrupted record in the batch is reported with its reason and the other 49 are rendered."""
         folder = tmp_path / "runs"
         for n in range(50):
-            clone_run(demo_run_dir, folder / f"run-{n:02d}", uid=f"{n:02d}" + "ab" * 15, serial=f"SN-{n:02d}")
+            clone_run(
+                demo_run_dir,
+                folder / f"run-{n:02d}",
+                uid=f"{n:02d}" + "ab" * 15,
+                serial=f"SN-{n:02d}",
+            )
         assert main(["certify", str(folder), "--reports", str(tmp_path / "first")]) == 0
         assert "50 certificates rendered, 0 failed" in capsys.readouterr().out
         first = {p.name: p.read_bytes() for p in (tmp_path / "first").glob("*.html")}
@@ -34,25 +40,32 @@ class TestCertifyFolder:
         assert len(second) == 49
         assert all(first[name] == data for name, data in second.items())
 
-    def test_rendering_over_a_certificate_of_another_template_version_is_reported(self, demo_run_dir, tmp_path):
+    def test_rendering_over_a_certificate_of_another_template_version_is_reported(
+        self, demo_run_dir, tmp_path
+    ):
         """Re-rendering over a certificate made with another template version says so, and keeps
         the earlier one beside it: an issued certificate is never overwritten."""
 
         reports = tmp_path / "rep"
         (outcome,) = certify_many([demo_run_dir], reports)
         path = reports / outcome.certificate.split("/")[-1]
-        html = path.read_text().replace(f'name="verirun-template" content="{TEMPLATE_VERSION}"',
-                                        'name="verirun-template" content="0"')
+        html = path.read_text().replace(
+            f'name="verirun-template" content="{TEMPLATE_VERSION}"',
+            'name="verirun-template" content="0"',
+        )
         path.write_text(html)
         (again,) = certify_many([demo_run_dir], reports)
-        assert again.note == (f"re-rendered with certificate template {TEMPLATE_VERSION} (was 0; the earlier"
-                              " one is kept beside it)")
+        assert again.note == (
+            f"re-rendered with certificate template {TEMPLATE_VERSION} (was 0; the earlier"
+            " one is kept beside it)"
+        )
         assert path.with_name(f"{path.stem}.t0.html").read_text() == html
         (third,) = certify_many([demo_run_dir], reports)
         assert third.note is None  # same version, same bytes: nothing to report
 
-    def test_a_different_certificate_of_the_same_number_and_version_is_not_overwritten(self, demo_run_dir,
-                                                                                       tmp_path):
+    def test_a_different_certificate_of_the_same_number_and_version_is_not_overwritten(
+        self, demo_run_dir, tmp_path
+    ):
         """A certificate already issued under a number is never replaced by different bytes
         rendered with the same template: certify refuses and the issued file stays as it was."""
         reports = tmp_path / "rep"
@@ -68,7 +81,10 @@ class TestCertifyFolder:
     def test_pool_and_single_process_give_the_same_bytes(self, demo_run_dir, tmp_path):
         """Rendering on two processes gives the same certificates as rendering in one."""
         folder = tmp_path / "runs"
-        runs = [clone_run(demo_run_dir, folder / f"r{n}", uid=f"{n:02d}" + "cd" * 15, serial=f"P{n}") for n in range(20)]
+        runs = [
+            clone_run(demo_run_dir, folder / f"r{n}", uid=f"{n:02d}" + "cd" * 15, serial=f"P{n}")
+            for n in range(20)
+        ]
         one = certify_many(runs, tmp_path / "one", workers=1)
         two = certify_many(runs, tmp_path / "two", workers=2)
         assert [o.error for o in one + two] == [None] * 40
@@ -89,13 +105,15 @@ class TestRunsListing:
         folder = tmp_path / "runs"
         clone_run(demo_run_dir, folder / "a", uid="aa" * 16, serial="ITEM-A")
         clone_run(demo_run_dir, folder / "b", uid="bb" * 16, serial="ITEM-B")
-        journal = (folder / "b" / "journal.jsonl")
+        journal = folder / "b" / "journal.jsonl"
         lines = journal.read_text().splitlines()
         journal.write_text("\n".join(lines[:-1]) + "\n")  # drop the stop document: a crashed run
         assert main(["runs", "--runs", str(folder), "--json"]) == 0
         rows = json.loads(capsys.readouterr().out)
         assert [(r["item"], r["status"], r["verdict"], r["procedure"]) for r in rows] == [
-            ("ITEM-A", "complete", "fail", "TH-VP-040"), ("ITEM-B", "resumable", "fail", "TH-VP-040")]
+            ("ITEM-A", "complete", "fail", "TH-VP-040"),
+            ("ITEM-B", "resumable", "fail", "TH-VP-040"),
+        ]
         assert main(["runs", "--runs", str(folder), "--item", "ITEM-B", "--json"]) == 0
         assert [r["item"] for r in json.loads(capsys.readouterr().out)] == ["ITEM-B"]
         assert main(["runs", "--runs", str(folder), "--since", "2999-01-01", "--json"]) == 0

@@ -16,35 +16,90 @@ SVG = "{http://www.w3.org/2000/svg}"
 # Ranges and rows shaped like the demo run record's ``ranges`` and ``points`` entries.
 # The scales span a 90° arc; the ohms range has a 16 Ω centre and ± 3° of arc (HALF of the length).
 HALF = 3 / 90
-LINEAR_RANGE = {"id": "dcv-10", "function": "dc-voltage", "function_name": "DC voltage", "unit": "V",
-                "scale": "linear", "full_scale": 10.0, "centre": None, "arc": 90.0,
-                "accuracy": ["± 2 % of full scale"], "read_on": "DC scale, 0 to 10"}
-SERIES_RANGE = {"id": "ohm-x1", "function": "resistance", "function_name": "resistance", "unit": "Ω",
-                "scale": "series-ohms", "full_scale": None, "centre": 16.0, "arc": 90.0,
-                "accuracy": ["± 3° of arc"], "read_on": "ohms scale, multiply by 1"}
+LINEAR_RANGE = {
+    "id": "dcv-10",
+    "function": "dc-voltage",
+    "function_name": "DC voltage",
+    "unit": "V",
+    "scale": "linear",
+    "full_scale": 10.0,
+    "centre": None,
+    "arc": 90.0,
+    "accuracy": ["± 2 % of full scale"],
+    "read_on": "DC scale, 0 to 10",
+}
+SERIES_RANGE = {
+    "id": "ohm-x1",
+    "function": "resistance",
+    "function_name": "resistance",
+    "unit": "Ω",
+    "scale": "series-ohms",
+    "full_scale": None,
+    "centre": 16.0,
+    "arc": 90.0,
+    "accuracy": ["± 3° of arc"],
+    "read_on": "ohms scale, multiply by 1",
+}
 SHUNT_RANGE = {**SERIES_RANGE, "id": "ohm-shunt", "scale": "shunt-ohms"}
 
 
-def value_row(index: int, nominal: float, reading: float | None, pct: float | None,
-              verdict: str = "pass", **extra) -> dict:
+def value_row(
+    index: int,
+    nominal: float,
+    reading: float | None,
+    pct: float | None,
+    verdict: str = "pass",
+    **extra,
+) -> dict:
     """A value-domain point of the 10 V range (± 0.2 V, as 2 % of 10 V full scale)."""
-    row = {"index": index, "key": f"dcv-10@{nominal}", "range": "dcv-10", "unit": "V",
-           "nominal": nominal, "frequency": None, "stimulus": f"{nominal:g} V DC",
-           "low": nominal - 0.2, "high": nominal + 0.2, "domain": "value", "half_width": 0.2,
-           "accuracy": "± 2 % of full scale", "verdict": verdict, "reading": reading}
+    row = {
+        "index": index,
+        "key": f"dcv-10@{nominal}",
+        "range": "dcv-10",
+        "unit": "V",
+        "nominal": nominal,
+        "frequency": None,
+        "stimulus": f"{nominal:g} V DC",
+        "low": nominal - 0.2,
+        "high": nominal + 0.2,
+        "domain": "value",
+        "half_width": 0.2,
+        "accuracy": "± 2 % of full scale",
+        "verdict": verdict,
+        "reading": reading,
+    }
     if reading is not None:
         row.update(error=reading - nominal, error_unit="V", percent_of_tolerance=pct)
     row.update(extra)
     return row
 
 
-def arc_row(nominal: float, low: float, high: float | None, reading: float | None,
-            verdict: str = "pass", pct: float | None = None, unit: str = "Ω") -> dict:
+def arc_row(
+    nominal: float,
+    low: float,
+    high: float | None,
+    reading: float | None,
+    verdict: str = "pass",
+    pct: float | None = None,
+    unit: str = "Ω",
+) -> dict:
     """A deflection-domain point (tolerance stated along the arc)."""
-    row = {"index": 0, "key": f"pt@{nominal}", "range": "r", "unit": unit, "nominal": nominal,
-           "frequency": None, "stimulus": f"{nominal:g} {unit}", "low": low, "high": high,
-           "domain": "deflection", "half_width": HALF, "accuracy": "± 3° of arc",
-           "verdict": verdict, "reading": reading}
+    row = {
+        "index": 0,
+        "key": f"pt@{nominal}",
+        "range": "r",
+        "unit": unit,
+        "nominal": nominal,
+        "frequency": None,
+        "stimulus": f"{nominal:g} {unit}",
+        "low": low,
+        "high": high,
+        "domain": "deflection",
+        "half_width": HALF,
+        "accuracy": "± 3° of arc",
+        "verdict": verdict,
+        "reading": reading,
+    }
     if reading is not None:
         row.update(percent_of_tolerance=pct if pct is not None else 0.0, error_unit="deg")
     return row
@@ -56,8 +111,7 @@ def parse(svg: str) -> ET.Element:
 
 def find(root: ET.Element, tag: str, *classes: str) -> list[ET.Element]:
     """Elements ``tag`` whose class attribute holds every one of ``classes``."""
-    return [el for el in root.iter(SVG + tag)
-            if set(classes) <= set(el.get("class", "").split())]
+    return [el for el in root.iter(SVG + tag) if set(classes) <= set(el.get("class", "").split())]
 
 
 def group(root: ET.Element, key: str) -> ET.Element:
@@ -113,8 +167,10 @@ def pointer_angles(root: ET.Element, key: str) -> tuple[float, float]:
     """Angles of both ends of the expected pointer of point ``key``."""
     (line,) = find(group(root, key), "line", "expected")
     centre = dial_centre(root)
-    return (angle(centre, float(line.get("x1")), float(line.get("y1"))),
-            angle(centre, float(line.get("x2")), float(line.get("y2"))))
+    return (
+        angle(centre, float(line.get("x1")), float(line.get("y1"))),
+        angle(centre, float(line.get("x2")), float(line.get("y2"))),
+    )
 
 
 class TestErrorChart:
@@ -135,8 +191,10 @@ class TestErrorChart:
     def test_marker_is_the_rows_own_statement(self):
         """The chart draws the statement the row carries and never decides one of its own, so a
         marker cannot contradict the verdict column (ISO/IEC 17025:2017 7.8.6)."""
-        rows = [value_row(0, 2.0, 2.3, 150.0, verdict="fail"),
-                value_row(1, 4.0, 4.19, 95.0, verdict="fail")]  # rejected by a guard band
+        rows = [
+            value_row(0, 2.0, 2.3, 150.0, verdict="fail"),
+            value_row(1, 4.0, 4.19, 95.0, verdict="fail"),
+        ]  # rejected by a guard band
         root = parse(error_chart(LINEAR_RANGE, rows))
         assert len(find(root, "circle", "point", "fail")) == 2
         assert not find(root, "circle", "point", "pass")
@@ -145,8 +203,11 @@ class TestErrorChart:
     def test_conditional_markers_stand_apart(self, verdict):
         """A conditional statement (ILAC-G8:09/2019 4.2.3) is drawn hollow in a colour of its
         own, unlike both pass and fail."""
-        rows = [value_row(0, 2.0, 2.05, 25.0), value_row(1, 4.0, 4.19, 95.0, verdict=verdict),
-                value_row(2, 6.0, 6.1, 50.0, verdict="fail")]
+        rows = [
+            value_row(0, 2.0, 2.05, 25.0),
+            value_row(1, 4.0, 4.19, 95.0, verdict=verdict),
+            value_row(2, 6.0, 6.1, 50.0, verdict="fail"),
+        ]
         root = parse(error_chart(LINEAR_RANGE, rows))
         (marker,) = find(root, "circle", "point", verdict)
         (good,) = find(root, "circle", "point", "pass")
@@ -192,7 +253,9 @@ class TestErrorChart:
 
     def test_acceptance_limits_dashed(self):
         """Acceptance limits of a guarded rule are dashed lines at their percent of tolerance."""
-        rows = [value_row(0, 2.0, 2.05, 25.0, U_pct=30.0, accept_low_pct=-70.0, accept_high_pct=70.0)]
+        rows = [
+            value_row(0, 2.0, 2.05, 25.0, U_pct=30.0, accept_low_pct=-70.0, accept_high_pct=70.0)
+        ]
         root = parse(error_chart(LINEAR_RANGE, rows))
         top, bottom = band_extent(root)
         middle, half = (top + bottom) / 2, (bottom - top) / 2
@@ -257,8 +320,18 @@ class TestErrorChart:
 
     def test_same_input_same_bytes(self):
         """Rendering the same rows twice, or a copy of them, gives identical text."""
-        rows = [value_row(0, 2.0, 2.05, 24.99999999999991, U_pct=12.3456, accept_low_pct=-87.6,
-                          accept_high_pct=87.6), value_row(1, 4.0, None, None, verdict="skipped")]
+        rows = [
+            value_row(
+                0,
+                2.0,
+                2.05,
+                24.99999999999991,
+                U_pct=12.3456,
+                accept_low_pct=-87.6,
+                accept_high_pct=87.6,
+            ),
+            value_row(1, 4.0, None, None, verdict="skipped"),
+        ]
         first = error_chart(LINEAR_RANGE, rows)
         assert error_chart(copy.deepcopy(LINEAR_RANGE), copy.deepcopy(rows)) == first
         assert error_chart(LINEAR_RANGE, rows) == first
@@ -369,8 +442,10 @@ class TestArcChart:
 
     def test_point_without_reading_has_no_marker(self):
         """A point that was not read shows its pointer and sector but no reading marker."""
-        rows = [arc_row(16.0, *series_limits(16.0, 16.0, HALF), 15.6, pct=19.0),
-                arc_row(4.0, *series_limits(16.0, 4.0, HALF), None, "skipped")]
+        rows = [
+            arc_row(16.0, *series_limits(16.0, 16.0, HALF), 15.6, pct=19.0),
+            arc_row(4.0, *series_limits(16.0, 4.0, HALF), None, "skipped"),
+        ]
         root = parse(arc_chart(SERIES_RANGE, rows))
         unread = group(root, "pt@4.0")
         assert not find(unread, "circle", "reading")
@@ -385,7 +460,10 @@ class TestArcChart:
         assert by_x[0].text == "∞" and by_x[-1].text == "0"  # series: full deflection at 0 Ω
         assert {"1", "2", "5", "10", "20", "50", "100"} <= {t.text for t in labels}
         centre = dial_centre(root)
-        majors = [angle(centre, float(t.get("x1")), float(t.get("y1"))) for t in find(root, "line", "tick", "major")]
+        majors = [
+            angle(centre, float(t.get("x1")), float(t.get("y1")))
+            for t in find(root, "line", "tick", "major")
+        ]
         # derived from f = Rc/(Rc+Rx): 10 Ω on a 16 Ω centre scale at (16/26 - 0.5) * 90°
         assert any(a == pytest.approx((16 / 26 - 0.5) * 90, abs=0.01) for a in majors)
 
@@ -401,8 +479,10 @@ class TestArcChart:
 
     def test_same_input_same_bytes(self):
         """Rendering the same range twice gives identical text."""
-        rows = [arc_row(16.0, *series_limits(16.0, 16.0, HALF), 15.6, pct=18.987341772151893),
-                arc_row(800.0, 4.1, None, None, "not-measured")]
+        rows = [
+            arc_row(16.0, *series_limits(16.0, 16.0, HALF), 15.6, pct=18.987341772151893),
+            arc_row(800.0, 4.1, None, None, "not-measured"),
+        ]
         first = arc_chart(SERIES_RANGE, rows)
         assert arc_chart(copy.deepcopy(SERIES_RANGE), copy.deepcopy(rows)) == first
 

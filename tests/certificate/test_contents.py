@@ -25,18 +25,51 @@ def cert(tmp_path_factory):
     data = Path(__file__).resolve().parents[1] / "data"
     tmp = tmp_path_factory.mktemp("contents")
     readings = tmp / "readings.csv"
-    readings.write_text((data / "qm40-procedure-readings.csv").read_text()
-                        .replace("dcv-50,25 V,25\n", "dcv-50,25 V,skip pointer stuck at zero\n"))
+    readings.write_text(
+        (data / "qm40-procedure-readings.csv")
+        .read_text()
+        .replace("dcv-50,25 V,25\n", "dcv-50,25 V,skip pointer stuck at zero\n")
+    )
     with calibrator_at_the_bench():
-        assert main(["run", str(data / "qm40-procedure.yaml"), "--bench", str(data / "bench-kestrel.yaml"),
-                     "--lab", str(data / "lab-test.yaml"),
-                     "--readings", str(readings), "--serial", "QM40-000017", "--asset", "AST-5",
-                     "--customer", "Brightwater Pumping Co", "--customer-address", "1 Weir Lane",
-                     "--received", "2026-11-28", "--temperature", "23.4", "--humidity", "44",
-                     "--condition", "Pointer bent; readable.",
-                     "--runs", str(tmp / "runs"), "--reports", str(tmp / "reports")]) == 0
+        assert (
+            main(
+                [
+                    "run",
+                    str(data / "qm40-procedure.yaml"),
+                    "--bench",
+                    str(data / "bench-kestrel.yaml"),
+                    "--lab",
+                    str(data / "lab-test.yaml"),
+                    "--readings",
+                    str(readings),
+                    "--serial",
+                    "QM40-000017",
+                    "--asset",
+                    "AST-5",
+                    "--customer",
+                    "Brightwater Pumping Co",
+                    "--customer-address",
+                    "1 Weir Lane",
+                    "--received",
+                    "2026-11-28",
+                    "--temperature",
+                    "23.4",
+                    "--humidity",
+                    "44",
+                    "--condition",
+                    "Pointer bent; readable.",
+                    "--runs",
+                    str(tmp / "runs"),
+                    "--reports",
+                    str(tmp / "reports"),
+                ]
+            )
+            == 0
+        )
     (run,) = (tmp / "runs").iterdir()
-    assert main(["issue", str(run), "--by", "A. Thorneycroft", "--reports", str(tmp / "reports")]) == 0
+    assert (
+        main(["issue", str(run), "--by", "A. Thorneycroft", "--reports", str(tmp / "reports")]) == 0
+    )
     (path,) = (tmp / "reports").glob("*.html")
     html = path.read_text(encoding="utf-8")
     return BeautifulSoup(html, "html.parser"), html, path
@@ -73,7 +106,9 @@ class TestClause7821:
     def test_e_customer(self, cert):
         """7.8.2.1 e): the customer's name and contact information."""
         soup, _, _ = cert
-        assert "Brightwater Pumping Co" in text_of(soup, "#item") and "1 Weir Lane" in text_of(soup, "#item")
+        assert "Brightwater Pumping Co" in text_of(soup, "#item") and "1 Weir Lane" in text_of(
+            soup, "#item"
+        )
 
     def test_f_method_and_n_deviations(self, cert):
         """7.8.2.1 f) and n): the method (procedure and revision) and deviations from it, a skipped
@@ -81,7 +116,11 @@ class TestClause7821:
         soup, _, _ = cert
         assert "TH-VP-040 revision B" in text_of(soup, "#method")
         deviations = text_of(soup, "#deviations")
-        assert "skipped" in deviations and "pointer stuck at zero" in deviations and "25 V DC" in deviations
+        assert (
+            "skipped" in deviations
+            and "pointer stuck at zero" in deviations
+            and "25 V DC" in deviations
+        )
 
     def test_g_item_description_identification_condition(self, cert):
         """7.8.2.1 g): description, unambiguous identification and condition of the item."""
@@ -148,28 +187,60 @@ class TestClause784And786:
         soup, _, _ = cert
         assert "Simple acceptance (ILAC-G8:09/2019 4.2.1" in text_of(soup, "#decision-rule")
         overall = text_of(soup, "#overall")
-        assert "does NOT conform" in overall and "4 of 20 points" in overall and "1 skipped" in overall
+        assert (
+            "does NOT conform" in overall and "4 of 20 points" in overall and "1 skipped" in overall
+        )
 
     def test_as_found_and_as_left(self, cert, tmp_path):
         """7.8.4.1 d): where the item was adjusted, results as found and as left are both given."""
         from pathlib import Path
 
         root = Path(__file__).resolve().parents[2]
-        proc, bench = root / "procedures" / "qm40-analog-multimeter.yaml", root / "verirun" / "demo" / "bench-sim.yaml"
+        proc, bench = (
+            root / "procedures" / "qm40-analog-multimeter.yaml",
+            root / "verirun" / "demo" / "bench-sim.yaml",
+        )
         data = root / "tests" / "data" / "qm40-readings.csv"
-        common = ["--bench", str(bench), "--simulate", "--serial", "QM40-5", "--customer", "C",
-                  "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "rep")]
+        common = [
+            "--bench",
+            str(bench),
+            "--simulate",
+            "--serial",
+            "QM40-5",
+            "--customer",
+            "C",
+            "--runs",
+            str(tmp_path / "runs"),
+            "--reports",
+            str(tmp_path / "rep"),
+        ]
         assert main(["run", str(proc), "--readings", str(data), *common]) == 0
         (found_run,) = (tmp_path / "runs").iterdir()
         left = tmp_path / "left.csv"
         left.write_text(data.read_text().replace("dcv-6,4.8 V,4.6", "dcv-6,4.8 V,4.8"))
-        assert main(["run", str(proc), "--readings", str(left), *common, "--as-left-of", str(found_run),
-                     "--adjustment", "span trimmer reset"]) == 0
+        assert (
+            main(
+                [
+                    "run",
+                    str(proc),
+                    "--readings",
+                    str(left),
+                    *common,
+                    "--as-left-of",
+                    str(found_run),
+                    "--adjustment",
+                    "span trimmer reset",
+                ]
+            )
+            == 0
+        )
         (left_run,) = [run for run in (tmp_path / "runs").iterdir() if run != found_run]
         from verirun.certificate.render import certificate_path
         from verirun.record.journal import load_record
 
-        soup = BeautifulSoup(certificate_path(load_record(left_run), tmp_path / "rep").read_text(), "html.parser")
+        soup = BeautifulSoup(
+            certificate_path(load_record(left_run), tmp_path / "rep").read_text(), "html.parser"
+        )
         # One table per range, each point's as-found and as-left results in one row.
         tables = soup.select('table[data-pass="as-found-and-as-left"]')
         assert len(tables) == 6 and not soup.select('table[data-pass="as-found"]')
@@ -190,14 +261,42 @@ class TestClause784And786:
         from pathlib import Path
 
         root = Path(__file__).resolve().parents[2]
-        proc, bench = root / "procedures" / "qm40-analog-multimeter.yaml", root / "verirun" / "demo" / "bench-sim.yaml"
+        proc, bench = (
+            root / "procedures" / "qm40-analog-multimeter.yaml",
+            root / "verirun" / "demo" / "bench-sim.yaml",
+        )
         data = root / "tests" / "data" / "qm40-readings.csv"
-        common = ["--bench", str(bench), "--simulate", "--readings", str(data), "--customer", "C",
-                  "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "rep")]
+        common = [
+            "--bench",
+            str(bench),
+            "--simulate",
+            "--readings",
+            str(data),
+            "--customer",
+            "C",
+            "--runs",
+            str(tmp_path / "runs"),
+            "--reports",
+            str(tmp_path / "rep"),
+        ]
         assert main(["run", str(proc), "--serial", "ONE", *common]) == 0
         (found_run,) = (tmp_path / "runs").iterdir()
-        assert main(["run", str(proc), "--serial", "TWO", *common, "--as-left-of", str(found_run),
-                     "--adjustment", "x"]) == 1
+        assert (
+            main(
+                [
+                    "run",
+                    str(proc),
+                    "--serial",
+                    "TWO",
+                    *common,
+                    "--as-left-of",
+                    str(found_run),
+                    "--adjustment",
+                    "x",
+                ]
+            )
+            == 1
+        )
         assert "not 'TWO'" in capsys.readouterr().err
 
     def test_as_left_for_another_customer_or_a_second_as_left_is_refused(self, tmp_path, capsys):
@@ -206,10 +305,24 @@ class TestClause784And786:
         from pathlib import Path
 
         root = Path(__file__).resolve().parents[2]
-        proc, bench = root / "procedures" / "qm40-analog-multimeter.yaml", root / "verirun" / "demo" / "bench-sim.yaml"
+        proc, bench = (
+            root / "procedures" / "qm40-analog-multimeter.yaml",
+            root / "verirun" / "demo" / "bench-sim.yaml",
+        )
         data = root / "tests" / "data" / "qm40-readings.csv"
-        common = ["--bench", str(bench), "--simulate", "--readings", str(data), "--serial", "S1",
-                  "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "rep")]
+        common = [
+            "--bench",
+            str(bench),
+            "--simulate",
+            "--readings",
+            str(data),
+            "--serial",
+            "S1",
+            "--runs",
+            str(tmp_path / "runs"),
+            "--reports",
+            str(tmp_path / "rep"),
+        ]
         assert main(["run", str(proc), "--customer", "C", *common]) == 0
         (found_run,) = (tmp_path / "runs").iterdir()
         left = ["--as-left-of", str(found_run), "--adjustment", "zero set"]

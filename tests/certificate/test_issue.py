@@ -27,18 +27,47 @@ DATA = Path(__file__).resolve().parents[1] / "data"
 def bench_run(tmp: Path, *extra: str, readings: Path | None = None, simulate: bool = False) -> Path:
     """One run of the test procedure at the test bench (or as a dry run); its run folder."""
     before = set((tmp / "runs").iterdir()) if (tmp / "runs").exists() else set()
-    assert main(["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(DATA / "bench-kestrel.yaml"),
-                 "--lab", str(DATA / "lab-test.yaml"), *(["--simulate"] if simulate else []),
-                 "--readings", str(readings or DATA / "qm40-procedure-readings.csv"), "--serial", "QM40-77",
-                 "--customer", "Fenmouth Drainage Board", "--condition", "Case cracked at the hinge; works.",
-                 "--received", "2025-06-30", "--temperature", "23.0", "--humidity", "45",
-                 "--runs", str(tmp / "runs"), "--reports", str(tmp / "rep"), *extra]) == 0
+    assert (
+        main(
+            [
+                "run",
+                str(DATA / "qm40-procedure.yaml"),
+                "--bench",
+                str(DATA / "bench-kestrel.yaml"),
+                "--lab",
+                str(DATA / "lab-test.yaml"),
+                *(["--simulate"] if simulate else []),
+                "--readings",
+                str(readings or DATA / "qm40-procedure-readings.csv"),
+                "--serial",
+                "QM40-77",
+                "--customer",
+                "Fenmouth Drainage Board",
+                "--condition",
+                "Case cracked at the hinge; works.",
+                "--received",
+                "2025-06-30",
+                "--temperature",
+                "23.0",
+                "--humidity",
+                "45",
+                "--runs",
+                str(tmp / "runs"),
+                "--reports",
+                str(tmp / "rep"),
+                *extra,
+            ]
+        )
+        == 0
+    )
     (run,) = set((tmp / "runs").iterdir()) - before
     return run
 
 
 def soup_of(record: dict, reports: Path) -> BeautifulSoup:
-    return BeautifulSoup(certificate_path(record, reports).read_text(encoding="utf-8"), "html.parser")
+    return BeautifulSoup(
+        certificate_path(record, reports).read_text(encoding="utf-8"), "html.parser"
+    )
 
 
 def text(soup, selector) -> str:
@@ -49,8 +78,13 @@ def text(soup, selector) -> str:
 
 def files_of(*folders: Path) -> dict[str, bytes]:
     """Every file under ``folders`` with its bytes: to show that nothing was written."""
-    return {str(p): p.read_bytes() for folder in folders if folder.exists()
-            for p in sorted(folder.rglob("*")) if p.is_file()}
+    return {
+        str(p): p.read_bytes()
+        for folder in folders
+        if folder.exists()
+        for p in sorted(folder.rglob("*"))
+        if p.is_file()
+    }
 
 
 class TestDraftIssueAmendReissue:
@@ -80,11 +114,17 @@ class TestDraftIssueAmendReissue:
         assert files_of(run, reports) == before
 
         # A listed person issues it: the journal records who, in which role, when, what.
-        assert main(["issue", str(run), "--by", "A.  Thorneycroft ", "--reports", str(reports)]) == 0
+        assert (
+            main(["issue", str(run), "--by", "A.  Thorneycroft ", "--reports", str(reports)]) == 0
+        )
         issued_doc = read_journal(run / "journal.jsonl").documents[-1]
         assert {k: issued_doc[k] for k in ("kind", "by", "role", "revision", "certificate")} == {
-            "kind": "issue", "by": "A. Thorneycroft", "role": "Quality Manager", "revision": 1,
-            "certificate": number}
+            "kind": "issue",
+            "by": "A. Thorneycroft",
+            "role": "Quality Manager",
+            "revision": 1,
+            "certificate": number,
+        }
         issued = soup_of(load_record(run), reports)
         assert issued.body["data-state"] == "issued" and issued.select_one("#page-mark") is None
         assert "@top-center" not in str(issued)
@@ -103,8 +143,25 @@ class TestDraftIssueAmendReissue:
         # The amendment: a new revision, a draft until issued, naming what it replaces, what
         # changed and why; the old revision stays readable, marked as replaced.
         reason = "transcription error: 8.0 V was read, 8.25 typed"
-        assert main(["amend", str(run), "--point", "4", "--reading", "8.0", "--reason", reason,
-                     "--operator", "T. Quayle", "--reports", str(reports)]) == 0
+        assert (
+            main(
+                [
+                    "amend",
+                    str(run),
+                    "--point",
+                    "4",
+                    "--reading",
+                    "8.0",
+                    "--reason",
+                    reason,
+                    "--operator",
+                    "T. Quayle",
+                    "--reports",
+                    str(reports),
+                ]
+            )
+            == 0
+        )
         revised = load_record(run)
         r2 = certificate_path(revised, reports).stem
         assert r2 == f"{number}-R2"
@@ -122,7 +179,10 @@ class TestDraftIssueAmendReissue:
         # Re-issue: the new revision gets its own issue, by another listed person.
         assert main(["issue", str(run), "--by", "J. Ilesanmi", "--reports", str(reports)]) == 0
         reissued = load_record(run)
-        assert [(i["revision"], i["by"]) for i in reissued["issues"]] == [(1, "A. Thorneycroft"), (2, "J. Ilesanmi")]
+        assert [(i["revision"], i["by"]) for i in reissued["issues"]] == [
+            (1, "A. Thorneycroft"),
+            (2, "J. Ilesanmi"),
+        ]
         final = soup_of(reissued, reports)
         assert text(final, "#issued-by") == "J. Ilesanmi, Deputy Technical Manager"
         assert text(final, "#date-issued") == reissued["issues"][1]["time"][:10]
@@ -131,10 +191,34 @@ class TestDraftIssueAmendReissue:
     def test_an_unfinished_run_is_not_issued(self, at_the_bench, tmp_path, capsys):
         """A run stopped before its last point is refused (resume it first); nothing is written."""
         readings = tmp_path / "short.csv"
-        readings.write_text((DATA / "qm40-procedure-readings.csv").read_text().replace("dcv-10,8 V,8.25", "dcv-10,8 V,abort"))
-        assert main(["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(DATA / "bench-kestrel.yaml"),
-                     "--lab", str(DATA / "lab-test.yaml"), "--readings", str(readings), "--serial", "S",
-                     "--customer", "C", "--condition", "as new", "--runs", str(tmp_path / "runs")]) != 0
+        readings.write_text(
+            (DATA / "qm40-procedure-readings.csv")
+            .read_text()
+            .replace("dcv-10,8 V,8.25", "dcv-10,8 V,abort")
+        )
+        assert (
+            main(
+                [
+                    "run",
+                    str(DATA / "qm40-procedure.yaml"),
+                    "--bench",
+                    str(DATA / "bench-kestrel.yaml"),
+                    "--lab",
+                    str(DATA / "lab-test.yaml"),
+                    "--readings",
+                    str(readings),
+                    "--serial",
+                    "S",
+                    "--customer",
+                    "C",
+                    "--condition",
+                    "as new",
+                    "--runs",
+                    str(tmp_path / "runs"),
+                ]
+            )
+            != 0
+        )
         (run,) = (tmp_path / "runs").iterdir()
         before = files_of(run)
         assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 1
@@ -146,14 +230,33 @@ class TestDraftIssueAmendReissue:
         profile of another lab is refused."""
         run = bench_run(tmp_path)
         current = tmp_path / "lab-now.yaml"
-        current.write_text((DATA / "lab-test.yaml").read_text().replace(
-            "    - {name: J. Ilesanmi", "    - {name: K. Varga, role: Technical Manager}\n    - {name: J. Ilesanmi"))
+        current.write_text(
+            (DATA / "lab-test.yaml")
+            .read_text()
+            .replace(
+                "    - {name: J. Ilesanmi",
+                "    - {name: K. Varga, role: Technical Manager}\n    - {name: J. Ilesanmi",
+            )
+        )
         other = tmp_path / "lab-other.yaml"
         other.write_text(current.read_text().replace("Kestrel Fen Metrology", "Other Lab"))
         assert main(["issue", str(run), "--by", "K. Varga", "--lab", str(other)]) == 1
         assert "the run was made for 'Kestrel Fen Metrology'" in capsys.readouterr().err
-        assert main(["issue", str(run), "--by", "K. Varga", "--lab", str(current),
-                     "--reports", str(tmp_path / "rep")]) == 0
+        assert (
+            main(
+                [
+                    "issue",
+                    str(run),
+                    "--by",
+                    "K. Varga",
+                    "--lab",
+                    str(current),
+                    "--reports",
+                    str(tmp_path / "rep"),
+                ]
+            )
+            == 0
+        )
         assert load_record(run)["issues"][0]["role"] == "Technical Manager"
 
 
@@ -162,9 +265,15 @@ class TestDryRun:
         """Issuing a run on the simulated calibrator is refused with the reason; nothing is written."""
         run = bench_run(tmp_path, simulate=True)
         before = files_of(run, tmp_path / "rep")
-        assert main(["issue", str(run), "--by", "A. Thorneycroft", "--reports", str(tmp_path / "rep")]) == 1
+        assert (
+            main(["issue", str(run), "--by", "A. Thorneycroft", "--reports", str(tmp_path / "rep")])
+            == 1
+        )
         err = capsys.readouterr().err
-        assert "dry run on the simulated calibrator, not a calibration" in err and "can never be issued" in err
+        assert (
+            "dry run on the simulated calibrator, not a calibration" in err
+            and "can never be issued" in err
+        )
         assert files_of(run, tmp_path / "rep") == before
 
     def test_its_number_is_not_in_the_labs_sequence(self, tmp_path):
@@ -183,12 +292,39 @@ class TestDryRun:
         from verirun.bench.sim import sim_library
 
         bench = tmp_path / "bench.yaml"
-        bench.write_text((DATA / "bench-kestrel.yaml").read_text().replace(
-            "  profile: scpi-generic\n", f"  profile: scpi-generic\n  visa-library: {sim_library(tmp_path / 'dev')}\n"))
-        assert main(["run", str(DATA / "qm40-procedure.yaml"), "--bench", str(bench),
-                     "--lab", str(DATA / "lab-test.yaml"), "--readings", str(DATA / "qm40-procedure-readings.csv"),
-                     "--serial", "S", "--customer", "C", "--condition", "as new",
-                     "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "rep")]) == 0
+        bench.write_text(
+            (DATA / "bench-kestrel.yaml")
+            .read_text()
+            .replace(
+                "  profile: scpi-generic\n",
+                f"  profile: scpi-generic\n  visa-library: {sim_library(tmp_path / 'dev')}\n",
+            )
+        )
+        assert (
+            main(
+                [
+                    "run",
+                    str(DATA / "qm40-procedure.yaml"),
+                    "--bench",
+                    str(bench),
+                    "--lab",
+                    str(DATA / "lab-test.yaml"),
+                    "--readings",
+                    str(DATA / "qm40-procedure-readings.csv"),
+                    "--serial",
+                    "S",
+                    "--customer",
+                    "C",
+                    "--condition",
+                    "as new",
+                    "--runs",
+                    str(tmp_path / "runs"),
+                    "--reports",
+                    str(tmp_path / "rep"),
+                ]
+            )
+            == 0
+        )
         (run,) = (tmp_path / "runs").iterdir()
         assert load_record(run)["bench"]["simulated"] is True
         assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 1
@@ -200,8 +336,16 @@ class TestDryRun:
 
         run = bench_run(tmp_path, simulate=True)
         with Journal(run / "journal.jsonl") as journal:
-            journal.append({"kind": "issue", "time": "2026-12-02T10:00:00Z", "by": "A. Thorneycroft",
-                            "role": "Quality Manager", "revision": 1, "certificate": "KFM-1"})
+            journal.append(
+                {
+                    "kind": "issue",
+                    "time": "2026-12-02T10:00:00Z",
+                    "by": "A. Thorneycroft",
+                    "role": "Quality Manager",
+                    "revision": 1,
+                    "certificate": "KFM-1",
+                }
+            )
         assert main(["verify", str(run)]) == 1
         assert "issues a dry run on the simulated calibrator" in capsys.readouterr().out
         assert main(["certify", str(run), "--reports", str(tmp_path / "again")]) == 1
@@ -235,8 +379,23 @@ class TestTheDraftOnPaper:
         pages = PdfReader(write_pdf(render_html(load_record(run)), tmp_path / "draft.pdf")).pages
         assert len(pages) >= 3
         assert all("DRAFT FOR REVIEW: NOT ISSUED" in p.extract_text() for p in pages)
-        assert main(["issue", str(run), "--by", "A. Thorneycroft", "--reports", str(tmp_path / "rep"), "--pdf"]) == 0
-        issued = PdfReader(certificate_path(load_record(run), tmp_path / "rep").with_suffix(".pdf")).pages
+        assert (
+            main(
+                [
+                    "issue",
+                    str(run),
+                    "--by",
+                    "A. Thorneycroft",
+                    "--reports",
+                    str(tmp_path / "rep"),
+                    "--pdf",
+                ]
+            )
+            == 0
+        )
+        issued = PdfReader(
+            certificate_path(load_record(run), tmp_path / "rep").with_suffix(".pdf")
+        ).pages
         assert not any("DRAFT" in p.extract_text() for p in issued)
 
 
@@ -250,7 +409,9 @@ def test_the_issue_document_is_in_the_record_and_journal_chain(at_the_bench, tmp
     assert verify_chain(docs) == [] and docs[-1]["kind"] == "issue"
     issued = json.loads((run / "record.json").read_text())["issues"]
     assert issued[0]["by"] == "A. Thorneycroft"
-    assert dt.date.fromisoformat(issued[0]["time"][:10]) >= dt.date.fromisoformat(load_record(run)["run"]["started"][:10])
+    assert dt.date.fromisoformat(issued[0]["time"][:10]) >= dt.date.fromisoformat(
+        load_record(run)["run"]["started"][:10]
+    )
 
 
 def test_two_people_issuing_at_once_get_one_issue(at_the_bench, tmp_path, capsys):
@@ -285,12 +446,17 @@ def test_an_older_profile_s_signatory_may_issue():
     from verirun.issue import find_person
 
     lab = {"signatory": {"name": "M. Okonkwo-Hale", "title": "Quality Manager"}}
-    assert find_person(lab, "M. Okonkwo-Hale") == {"name": "M. Okonkwo-Hale", "role": "Quality Manager"}
+    assert find_person(lab, "M. Okonkwo-Hale") == {
+        "name": "M. Okonkwo-Hale",
+        "role": "Quality Manager",
+    }
     with pytest.raises(Exception, match="nobody|M. Okonkwo-Hale"):
         find_person(lab, "someone else")
 
 
-def test_a_full_disk_while_issuing_is_said_not_a_traceback(at_the_bench, tmp_path, capsys, monkeypatch):
+def test_a_full_disk_while_issuing_is_said_not_a_traceback(
+    at_the_bench, tmp_path, capsys, monkeypatch
+):
     """If the journal cannot be written (ENOSPC), issue exits 3 (a file that could not be
     written) with the reason, not as a bug."""
     import errno
@@ -312,7 +478,10 @@ def test_a_full_disk_while_issuing_is_said_not_a_traceback(at_the_bench, tmp_pat
 def test_certify_renders_the_issued_state_again(at_the_bench, tmp_path, capsys):
     """`verirun certify` of an issued run renders it issued, the same bytes as at issue, and says so."""
     run = bench_run(tmp_path)
-    assert main(["issue", str(run), "--by", "A. Thorneycroft", "--reports", str(tmp_path / "rep")]) == 0
+    assert (
+        main(["issue", str(run), "--by", "A. Thorneycroft", "--reports", str(tmp_path / "rep")])
+        == 0
+    )
     path = certificate_path(load_record(run), tmp_path / "rep")
     issued = path.read_bytes()
     capsys.readouterr()
@@ -337,9 +506,15 @@ def test_the_issued_certificate_replaces_the_draft_where_it_is(at_the_bench, tmp
     """Without --reports, issue writes into the folder the run put its draft in."""
     run = bench_run(tmp_path)
     draft = certificate_path(load_record(run), tmp_path / "rep")
-    assert BeautifulSoup(draft.read_text(encoding="utf-8"), "html.parser").body["data-state"] == "draft"
+    assert (
+        BeautifulSoup(draft.read_text(encoding="utf-8"), "html.parser").body["data-state"]
+        == "draft"
+    )
     assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 0
-    assert BeautifulSoup(draft.read_text(encoding="utf-8"), "html.parser").body["data-state"] == "issued"
+    assert (
+        BeautifulSoup(draft.read_text(encoding="utf-8"), "html.parser").body["data-state"]
+        == "issued"
+    )
     assert not Path("reports").exists()
 
 
@@ -347,11 +522,30 @@ def test_a_name_with_markup_is_printed_as_text(at_the_bench, tmp_path):
     """A person's name and role with markup in the lab profile appear on the certificate as the
     text they are, never as markup."""
     lab = tmp_path / "lab.yaml"
-    lab.write_text((DATA / "lab-test.yaml").read_text().replace(
-        "    - {name: J. Ilesanmi, role: Deputy Technical Manager}",
-        "    - {name: '<b>Eve</b>', role: '\"/><script>alert(1)</script>'}"))
+    lab.write_text(
+        (DATA / "lab-test.yaml")
+        .read_text()
+        .replace(
+            "    - {name: J. Ilesanmi, role: Deputy Technical Manager}",
+            "    - {name: '<b>Eve</b>', role: '\"/><script>alert(1)</script>'}",
+        )
+    )
     run = bench_run(tmp_path)
-    assert main(["issue", str(run), "--by", "<b>Eve</b>", "--lab", str(lab), "--reports", str(tmp_path / "rep")]) == 0
+    assert (
+        main(
+            [
+                "issue",
+                str(run),
+                "--by",
+                "<b>Eve</b>",
+                "--lab",
+                str(lab),
+                "--reports",
+                str(tmp_path / "rep"),
+            ]
+        )
+        == 0
+    )
     html = certificate_path(load_record(run), tmp_path / "rep").read_text(encoding="utf-8")
     soup = BeautifulSoup(html, "html.parser")
     assert text(soup, "#issued-by") == '<b>Eve</b>, "/><script>alert(1)</script>'
@@ -363,8 +557,23 @@ def test_certify_renders_a_replaced_revision_marked_as_replaced(at_the_bench, tm
     and as it was issued, the revision it replaces."""
     run = bench_run(tmp_path)
     assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 0
-    assert main(["amend", str(run), "--point", "4", "--reading", "8.0", "--reason", "typed wrong",
-                 "--operator", "T. Quayle"]) == 0
+    assert (
+        main(
+            [
+                "amend",
+                str(run),
+                "--point",
+                "4",
+                "--reading",
+                "8.0",
+                "--reason",
+                "typed wrong",
+                "--operator",
+                "T. Quayle",
+            ]
+        )
+        == 0
+    )
     capsys.readouterr()
     again = tmp_path / "again"
     assert main(["certify", str(run), "--reports", str(again)]) == 0
@@ -374,7 +583,9 @@ def test_certify_renders_a_replaced_revision_marked_as_replaced(at_the_bench, tm
     old = again / current.name.replace("-R2.html", ".html")
     assert sorted(again.glob("*.html")) == sorted([current, old])
     soup = BeautifulSoup(old.read_text(encoding="utf-8"), "html.parser")
-    assert current.stem in text(soup, "#replaced-by") and "typed wrong" in text(soup, "#replaced-by")
+    assert current.stem in text(soup, "#replaced-by") and "typed wrong" in text(
+        soup, "#replaced-by"
+    )
     assert text(soup, "#issued-by") == "A. Thorneycroft, Quality Manager"
     # The same bytes as amend wrote into the run's own folder.
     assert old.read_bytes() == (tmp_path / "rep" / old.name).read_bytes()
@@ -384,7 +595,25 @@ def test_amending_a_draft_says_the_draft_was_not_issued(at_the_bench, tmp_path):
     """A correction before anyone issued the run replaces a draft, and says so."""
     run = bench_run(tmp_path)
     number = certificate_path(load_record(run), tmp_path / "rep").stem
-    assert main(["amend", str(run), "--point", "4", "--reading", "8.0", "--reason", "typed wrong",
-                 "--operator", "T. Quayle"]) == 0
-    soup = BeautifulSoup(certificate_path(load_record(run), tmp_path / "rep").read_text(encoding="utf-8"), "html.parser")
+    assert (
+        main(
+            [
+                "amend",
+                str(run),
+                "--point",
+                "4",
+                "--reading",
+                "8.0",
+                "--reason",
+                "typed wrong",
+                "--operator",
+                "T. Quayle",
+            ]
+        )
+        == 0
+    )
+    soup = BeautifulSoup(
+        certificate_path(load_record(run), tmp_path / "rep").read_text(encoding="utf-8"),
+        "html.parser",
+    )
     assert f"replaces the draft {number}, which was not issued" in text(soup, "#revision-changes")

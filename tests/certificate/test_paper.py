@@ -13,16 +13,25 @@ import pytest
 from verirun.certificate.render import render_html, write_pdf
 from verirun.record.journal import load_record
 
-
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
-FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-         "--disable-background-networking", "--disable-component-update", "--disable-sync"]
+FLAGS = [
+    "--headless",
+    "--no-sandbox",
+    "--disable-gpu",
+    "--disable-quic",
+    "--no-first-run",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--disable-sync",
+]
 
 
 def need_chromium():
     if CHROMIUM is None:
         if os.environ.get("CI"):
-            pytest.fail("chromium is not installed; .ci/run installs it from the distribution's packages")
+            pytest.fail(
+                "chromium is not installed; .ci/run installs it from the distribution's packages"
+            )
         pytest.skip("chromium is not installed (apt-get install chromium)")
 
 
@@ -34,10 +43,21 @@ class TestInBrowser:
         page = tmp_path / "certificate.html"
         page.write_text(render_html(load_record(demo_run_dir)), encoding="utf-8")
         shot = tmp_path / "certificate.png"
-        result = subprocess.run([CHROMIUM, *FLAGS, f"--user-data-dir={tmp_path / 'profile'}",
-                                 "--enable-logging=stderr", "--v=0", "--window-size=1000,3000",
-                                 f"--screenshot={shot}", page.as_uri()],
-                                capture_output=True, text=True, timeout=120)
+        result = subprocess.run(
+            [
+                CHROMIUM,
+                *FLAGS,
+                f"--user-data-dir={tmp_path / 'profile'}",
+                "--enable-logging=stderr",
+                "--v=0",
+                "--window-size=1000,3000",
+                f"--screenshot={shot}",
+                page.as_uri(),
+            ],
+            capture_output=True,
+            text=True,
+            timeout=120,
+        )
         console = [line for line in result.stderr.splitlines() if ":CONSOLE" in line]
         assert console == []
         assert shot.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and shot.stat().st_size > 20_000
@@ -58,15 +78,39 @@ def hundred_point_run(demo_run_dir: Path, tmp_path: Path) -> dict:
     accuracy: {{percent-of-full-scale: 2}}
     resolution: 0.025 V
     points: [{", ".join(f"{p} V" for p in points)}]""")
-        rows += [f"dcv-{r},{p} V,{p + (0.15 if (r + i) % 17 == 0 else 0.02):.3f}" for i, p in enumerate(points)]
+        rows += [
+            f"dcv-{r},{p} V,{p + (0.15 if (r + i) % 17 == 0 else 0.02):.3f}"
+            for i, p in enumerate(points)
+        ]
     proc = tmp_path / "p100.yaml"
-    proc.write_text("format: 1\nprocedure: {id: P-100, title: Hundred points, revision: 1}\n"
-                    "meter: {kind: panel meter}\nranges:\n" + "\n".join(ranges) + "\n")
+    proc.write_text(
+        "format: 1\nprocedure: {id: P-100, title: Hundred points, revision: 1}\n"
+        "meter: {kind: panel meter}\nranges:\n" + "\n".join(ranges) + "\n"
+    )
     csv = tmp_path / "p100.csv"
     csv.write_text("\n".join(rows) + "\n")
-    assert main(["run", str(proc), "--bench", str(root / "verirun" / "demo" / "bench-sim.yaml"), "--simulate",
-                 "--readings", str(csv), "--serial", "P100", "--customer", "C", "--runs", str(tmp_path / "runs"),
-                 "--reports", str(tmp_path / "rep")]) == 0
+    assert (
+        main(
+            [
+                "run",
+                str(proc),
+                "--bench",
+                str(root / "verirun" / "demo" / "bench-sim.yaml"),
+                "--simulate",
+                "--readings",
+                str(csv),
+                "--serial",
+                "P100",
+                "--customer",
+                "C",
+                "--runs",
+                str(tmp_path / "runs"),
+                "--reports",
+                str(tmp_path / "rep"),
+            ]
+        )
+        == 0
+    )
     (run,) = (tmp_path / "runs").iterdir()
     record = load_record(run)
     assert len(record["points"]) == 100
@@ -87,8 +131,8 @@ class TestOnPaper:
         assert 3 <= pages <= 12
 
         # No row split: every table row's box lies on exactly one page.
-        body: dict[int, set[int]] = {}          # row -> pages it is drawn on
-        table_of: dict[int, int] = {}           # body row -> its table
+        body: dict[int, set[int]] = {}  # row -> pages it is drawn on
+        table_of: dict[int, int] = {}  # body row -> its table
         header_pages: dict[int, set[int]] = {}  # table -> pages its header row is drawn on
 
         def walk(box, page_number, table):
@@ -110,7 +154,9 @@ class TestOnPaper:
         assert all(len(on) == 1 for on in body.values()), "a table row is split across pages"
         # Every page that shows rows of a table shows that table's header row too (repeated).
         for row, on in body.items():
-            assert on <= header_pages[table_of[row]], "a table continues on a page without its header"
+            assert on <= header_pages[table_of[row]], (
+                "a table continues on a page without its header"
+            )
 
         pdf = write_pdf(html, tmp_path / "p100.pdf")
         reader = PdfReader(io.BytesIO(pdf.read_bytes()))
@@ -125,7 +171,9 @@ class TestOnPaper:
 
 
 class TestPaperSize:
-    @pytest.mark.parametrize("paper, size_pt", [("A4", (595.28, 841.89)), ("letter", (612.0, 792.0))])
+    @pytest.mark.parametrize(
+        "paper, size_pt", [("A4", (595.28, 841.89)), ("letter", (612.0, 792.0))]
+    )
     def test_lab_profile_chooses_a4_or_letter(self, demo_run_dir, paper, size_pt):
         """The lab profile's paper sets the printed page: A4 is 210 × 297 mm (ISO 216), Letter
         8.5 × 11 in (ANSI/ASME Y14.1), in PostScript points of 1/72 in."""
@@ -134,4 +182,7 @@ class TestPaperSize:
         record = {**record, "lab": {**record["lab"], "paper": paper}}
         page = weasyprint.HTML(string=render_html(record)).render().pages[0]
         width_pt, height_pt = page.width * 0.75, page.height * 0.75  # CSS px (1/96 in) to pt
-        assert (round(width_pt, 1), round(height_pt, 1)) == (round(size_pt[0], 1), round(size_pt[1], 1))
+        assert (round(width_pt, 1), round(height_pt, 1)) == (
+            round(size_pt[0], 1),
+            round(size_pt[1], 1),
+        )

@@ -56,9 +56,14 @@ def cell_problems(document) -> tuple[list, int]:
             lines = []
             _walk(box, lambda b: lines.append(b) if isinstance(b, boxes.LineBox) else None)
             # Text cells that may wrap: verdicts with a reason, and notes under a row.
-            if len(lines) > len(box.element.findall(".//br")) + 1 and "wraps" not in classes \
-                    and "verdict-" not in classes:
-                problems.append(f"page {number}: {_text(box.element)!r} wraps onto {len(lines)} lines")
+            if (
+                len(lines) > len(box.element.findall(".//br")) + 1
+                and "wraps" not in classes
+                and "verdict-" not in classes
+            ):
+                problems.append(
+                    f"page {number}: {_text(box.element)!r} wraps onto {len(lines)} lines"
+                )
             if box.position_x + box.margin_width() > right + 0.5:
                 problems.append(f"page {number}: {_text(box.element)!r} runs off the page")
 
@@ -75,10 +80,26 @@ def non_binary_as_left(tmp_path_factory) -> Path:
     data = Path(__file__).resolve().parents[1] / "data"
     tmp = tmp_path_factory.mktemp("wide")
     procedure = tmp / "non-binary.yaml"
-    procedure.write_text((data / "qm40-procedure.yaml").read_text().replace("  rule: simple", "  rule: non-binary"))
-    common = ["run", str(procedure), "--bench", str(data / "bench-kestrel.yaml"), "--simulate",
-              "--readings", str(data / "qm40-procedure-readings.csv"), "--serial", "S", "--customer", "C",
-              "--runs", str(tmp / "runs"), "--reports", str(tmp / "rep")]
+    procedure.write_text(
+        (data / "qm40-procedure.yaml").read_text().replace("  rule: simple", "  rule: non-binary")
+    )
+    common = [
+        "run",
+        str(procedure),
+        "--bench",
+        str(data / "bench-kestrel.yaml"),
+        "--simulate",
+        "--readings",
+        str(data / "qm40-procedure-readings.csv"),
+        "--serial",
+        "S",
+        "--customer",
+        "C",
+        "--runs",
+        str(tmp / "runs"),
+        "--reports",
+        str(tmp / "rep"),
+    ]
     assert main(common) == 0
     (found,) = (tmp / "runs").iterdir()
     assert main([*common, "--as-left-of", str(found), "--adjustment", "zero set"]) == 0
@@ -90,7 +111,11 @@ def non_binary_as_left(tmp_path_factory) -> Path:
 @pytest.mark.parametrize("run", [*RUNS, "non-binary-as-left"])
 def test_no_number_or_header_wraps_and_nothing_runs_off(run, paper, request):
     """Every number and header of every results table is on one line, inside the page."""
-    folder = request.getfixturevalue("non_binary_as_left") if run == "non-binary-as-left" else STORED / run
+    folder = (
+        request.getfixturevalue("non_binary_as_left")
+        if run == "non-binary-as-left"
+        else STORED / run
+    )
     problems, seen = cell_problems(layout(load_record(folder), paper))
     assert seen > 100 and problems == []
 
@@ -99,8 +124,10 @@ def test_the_check_finds_a_wrapped_number():
     """The check itself: a table squeezed into a narrow page does report wrapped cells."""
     record = load_record(STORED / "format1-guarded")
     head, tail = render_html(record).rsplit("</style>", 1)
-    html = (head + "table.results th, table.results td { white-space: normal; }"
-            " @page { size: 120mm 297mm; }</style>" + tail)
+    html = (
+        head + "table.results th, table.results td { white-space: normal; }"
+        " @page { size: 120mm 297mm; }</style>" + tail
+    )
     weasyprint = pytest.importorskip("weasyprint")
     problems, _ = cell_problems(weasyprint.HTML(string=html).render())
     assert any("wraps" in p for p in problems)
@@ -113,6 +140,7 @@ def test_each_chart_is_captioned_with_its_range_and_stays_with_its_table(paper):
     document = layout(record, paper)
     last_row_page, caption_page = {}, {}
     for number, page in enumerate(document.pages):
+
         def visit(box):
             element = getattr(box, "element", None)
             tag = getattr(box, "element_tag", None)
@@ -125,7 +153,9 @@ def test_each_chart_is_captioned_with_its_range_and_stays_with_its_table(paper):
     ids = [rng["id"] for rng in record["ranges"]]
     assert sorted(caption_page) == sorted(f"Range {i}" for i in ids)
     for rng in ids:
-        assert caption_page[f"Range {rng}"] == last_row_page[rng], f"the chart of {rng} left its table"
+        assert caption_page[f"Range {rng}"] == last_row_page[rng], (
+            f"the chart of {rng} left its table"
+        )
 
 
 def test_the_pdf_footer_is_in_the_body_font(tmp_path):

@@ -22,13 +22,13 @@ from verirun.bench.calibrator import Calibrator
 from verirun.bench.config import load_bench
 from verirun.bench.sim import SIM_RESOURCE, sim_library
 from verirun.clock import VirtualClock
+from verirun.conduct import demo_files, execute
 from verirun.console import QuietConsole
 from verirun.engine import RunContext
 from verirun.lab import load_lab
 from verirun.procedure.load import load_procedure
 from verirun.procedure.plan import plan
 from verirun.readings import ScriptedReadings
-from verirun.conduct import demo_files, execute
 
 #: The query that takes one entry off the error queue (the scpi-generic profile's).
 ERROR_QUERY = "SYST:ERR?"
@@ -84,19 +84,32 @@ class FaultyResource:
     inner: object
     rules: list[Rule] = field(default_factory=list)
     sent: list[str] = field(default_factory=list)
-    injected: list[tuple[int, str, str]] = field(default_factory=list)  # (position, command, action)
+    injected: list[tuple[int, str, str]] = field(
+        default_factory=list
+    )  # (position, command, action)
     _pending_answers: list[str] = field(default_factory=list)
     _broken: Callable[[], BaseException] | None = None
     closed: bool = False
 
     # --- building faults -----------------------------------------------------------------
-    def on(self, match, action: str, *, nth: int = 1, answer: str | None = None,
-           lasting: bool = False, deliver: bool = False) -> "FaultyResource":
+    def on(
+        self,
+        match,
+        action: str,
+        *,
+        nth: int = 1,
+        answer: str | None = None,
+        lasting: bool = False,
+        deliver: bool = False,
+    ) -> "FaultyResource":
         """Add a fault on the ``nth`` command matching ``match``."""
         if deliver and not (lasting and action in ("timeout", "lost")):
             raise ValueError("deliver is for a lasting timeout or lost connection")
-        self.rules.append(Rule(match=match, action=action, nth=nth, answer=answer, lasting=lasting,
-                               deliver=deliver))
+        self.rules.append(
+            Rule(
+                match=match, action=action, nth=nth, answer=answer, lasting=lasting, deliver=deliver
+            )
+        )
         return self
 
     def after(self, count: int, action: str, *, lasting: bool = False) -> "FaultyResource":
@@ -170,10 +183,12 @@ def open_bench(folder: Path) -> Bench:
     import pyvisa
 
     manager = pyvisa.ResourceManager(sim_library(folder / "sim"))
-    device = manager.open_resource(SIM_RESOURCE, read_termination="\n", write_termination="\n",
-                                   timeout=200)
-    probe = manager.open_resource(SIM_RESOURCE, read_termination="\n", write_termination="\n",
-                                  timeout=200)
+    device = manager.open_resource(
+        SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=200
+    )
+    probe = manager.open_resource(
+        SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=200
+    )
     return Bench(resource=FaultyResource(device), probe=probe)
 
 
@@ -214,9 +229,12 @@ class DemoInputs:
 def demo_inputs() -> DemoInputs:
     """The demo's procedure, bench and lab, and the scripted readings of tests/data."""
     with demo_files() as demo:
-        return DemoInputs(procedure=load_procedure(demo["procedure"]), bench=load_bench(demo["bench"]),
-                          lab=load_lab(demo["lab"]),
-                          readings_csv=Path(__file__).resolve().parent.parent / "data" / "qm40-readings.csv")
+        return DemoInputs(
+            procedure=load_procedure(demo["procedure"]),
+            bench=load_bench(demo["bench"]),
+            lab=load_lab(demo["lab"]),
+            readings_csv=Path(__file__).resolve().parent.parent / "data" / "qm40-readings.csv",
+        )
 
 
 @pytest.fixture(scope="session")
@@ -235,8 +253,9 @@ def fault_run(tmp_path_factory, demo_inputs):
     """
     opened: list[Bench] = []
 
-    def run(setup: Callable[[FaultyResource], object] | None = None,
-            readings: Callable | None = None) -> RunResult:
+    def run(
+        setup: Callable[[FaultyResource], object] | None = None, readings: Callable | None = None
+    ) -> RunResult:
         folder = tmp_path_factory.mktemp("fault-run")
         bench = open_bench(folder)
         opened.append(bench)
@@ -244,18 +263,30 @@ def fault_run(tmp_path_factory, demo_inputs):
             setup(bench.resource)
         scripted = ScriptedReadings(demo_inputs.readings_csv)
         source = readings(scripted) if readings is not None else scripted
-        context = RunContext(lab=demo_inputs.lab.lab.model_dump(mode="json"),
-                             customer={"name": "Test customer", "address": []},
-                             item={"serial": "SN-1", "asset": None, "condition": "as new"},
-                             operator="tester", simulated=True)
+        context = RunContext(
+            lab=demo_inputs.lab.lab.model_dump(mode="json"),
+            customer={"name": "Test customer", "address": []},
+            item={"serial": "SN-1", "asset": None, "condition": "as new"},
+            operator="tester",
+            simulated=True,
+        )
         calibrator = Calibrator(bench.resource, "scpi-generic")
         runs = folder / "runs"
         error = None
         try:
-            execute(procedure=demo_inputs.procedure, bench=demo_inputs.bench, context=context,
-                    readings=source, console=QuietConsole(), runs_dir=runs, reports_dir=folder / "reports",
-                    simulate=True, clock=VirtualClock(START), uid="0123456789abcdef0123456789abcdef",
-                    calibrator=calibrator)
+            execute(
+                procedure=demo_inputs.procedure,
+                bench=demo_inputs.bench,
+                context=context,
+                readings=source,
+                console=QuietConsole(),
+                runs_dir=runs,
+                reports_dir=folder / "reports",
+                simulate=True,
+                clock=VirtualClock(START),
+                uid="0123456789abcdef0123456789abcdef",
+                calibrator=calibrator,
+            )
         except BaseException as exc:  # noqa: BLE001 - the test inspects whatever arrived
             error = exc
         folders = sorted(p for p in runs.glob("*") if p.is_dir()) if runs.exists() else []

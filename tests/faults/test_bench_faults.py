@@ -20,8 +20,13 @@ from verirun.errors import BenchError, RunAborted, SafetyError, VerirunError
 #: Points the faults are injected at: first point, mid-range, first of a new range, first AC
 #: point, the last point.
 POINTS = [0, 2, 5, 11, 19]
-HEADERS = {"dc-voltage": "VOLT", "dc-current": "CURR", "ac-voltage": "VOLT", "ac-current": "CURR",
-           "resistance": "RES"}
+HEADERS = {
+    "dc-voltage": "VOLT",
+    "dc-current": "CURR",
+    "ac-voltage": "VOLT",
+    "ac-current": "CURR",
+    "resistance": "RES",
+}
 OUT_OF_RANGE = '-222,"Data out of range"'
 OFF = ("0", "OFF")
 ERROR_QUERY = "SYST:ERR?"
@@ -94,6 +99,7 @@ def assert_stop(result, status: str, *words: str) -> None:
 
 # --- a command times out once --------------------------------------------------------------
 
+
 class TestTimeoutOnSource:
     @pytest.fixture(scope="class", params=POINTS, ids=lambda k: f"point{k}")
     @classmethod
@@ -158,6 +164,7 @@ class TestTimeoutOnOutputOn:
 
 # --- the instrument reports an error after a setting ----------------------------------------
 
+
 class TestQueuedErrorAfterSetting:
     @pytest.fixture(scope="class", params=POINTS, ids=lambda k: f"point{k}")
     @classmethod
@@ -212,6 +219,7 @@ class TestStaleErrorBeforeRun:
 
 # --- the connection is lost ------------------------------------------------------------------
 
+
 class TestConnectionLostOnce:
     @pytest.fixture(scope="class", params=POINTS, ids=lambda k: f"point{k}")
     @classmethod
@@ -246,12 +254,17 @@ class TestConnectionLostOnce:
 class TestStandbyImpossible:
     """The link dies for good just after output-on at point k: standby cannot be sent."""
 
-    @pytest.fixture(scope="class", params=[("timeout", k) for k in POINTS] + [("lost", k) for k in (0, 11, 19)],
-                    ids=lambda p: f"{p[0]}-point{p[1]}")
+    @pytest.fixture(
+        scope="class",
+        params=[("timeout", k) for k in POINTS] + [("lost", k) for k in (0, 11, 19)],
+        ids=lambda p: f"{p[0]}-point{p[1]}",
+    )
     @classmethod
     def faulted(cls, request, fault_run):
         action, k = request.param
-        return k, fault_run(lambda res: res.on("OUTP ON", action, nth=k + 1, lasting=True, deliver=True))
+        return k, fault_run(
+            lambda res: res.on("OUTP ON", action, nth=k + 1, lasting=True, deliver=True)
+        )
 
     def test_safety_error_says_output_state_unknown(self, faulted):
         """When standby cannot be sent, the caller gets a SafetyError telling the operator the output state is unknown."""
@@ -324,7 +337,9 @@ class TestStandbyAtRangeChangeFails:
         k = request.param
         assert demo_plan[k].first_of_range
         # After point k-1's output-on: the step's own standby, then the range change's standby.
-        return k, fault_run(lambda res: res.on(nth_after_output_on(k - 1, "OUTP OFF", nth=2), "timeout"))
+        return k, fault_run(
+            lambda res: res.on(nth_after_output_on(k - 1, "OUTP OFF", nth=2), "timeout")
+        )
 
     def test_error_names_the_step(self, faulted, demo_plan):
         """A timeout on the range-change standby of point k gives an error naming step k and 'OUTP OFF'."""
@@ -348,6 +363,7 @@ class TestStandbyAtRangeChangeFails:
 
 
 # --- the instrument is not the one the bench file names --------------------------------------
+
 
 class TestWrongIdentity:
     OTHER = "Other Instruments,XC-9,12345,2.0"
@@ -389,6 +405,7 @@ class TestIdentifyTimesOut:
 
 
 # --- the reading source raises ----------------------------------------------------------------
+
 
 def _raising(k: int, error: BaseException):
     return lambda scripted: FaultyReadings(scripted, index=k, error=error)
@@ -485,9 +502,12 @@ class TestOperatorAbort:
 
 # --- what is left on disk --------------------------------------------------------------------
 
+
 class TestRecordAfterFault:
-    @pytest.mark.parametrize("fault, status", [("timeout-on-source", "failed"), ("queued-error", "failed"),
-                                               ("interrupt", "aborted")])
+    @pytest.mark.parametrize(
+        "fault, status",
+        [("timeout-on-source", "failed"), ("queued-error", "failed"), ("interrupt", "aborted")],
+    )
     def test_record_written_when_a_run_stops(self, fault, status, fault_run):
         """A run stopped by a fault still has its journal closed into record.json, with the stop's status."""
         import json
@@ -506,6 +526,7 @@ class TestRecordAfterFault:
 
 
 # --- the wrapper itself ----------------------------------------------------------------------
+
 
 class TestFaultyResource:
     def test_passes_exchanges_through_until_the_fault(self, bench):

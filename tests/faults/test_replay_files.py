@@ -15,28 +15,41 @@ import pytest
 from verirun.bench.calibrator import Calibrator
 from verirun.bench.config import load_bench
 from verirun.clock import VirtualClock
+from verirun.conduct import execute
 from verirun.console import QuietConsole
 from verirun.engine import RunContext
 from verirun.errors import ProcedureError
 from verirun.procedure.load import load_procedure
 from verirun.procedure.plan import plan
 from verirun.readings import ScriptedReadings, VirtualMeter
-from verirun.conduct import execute
 
 DATA = Path(__file__).resolve().parent.parent / "data"
 GOOD = (DATA / "bench-meter-readings.csv").read_text(encoding="utf-8")
-CONTEXT = RunContext(lab={"name": "Test lab"}, customer={"name": "C", "address": []},
-                     item={"serial": "S-1"}, operator="tester", simulated=True)
+CONTEXT = RunContext(
+    lab={"name": "Test lab"},
+    customer={"name": "C", "address": []},
+    item={"serial": "S-1"},
+    operator="tester",
+    simulated=True,
+)
 
 
 def refused(tmp_path, bench, readings) -> list[str]:
     """Run the test procedure with ``readings`` on the faulty bench; return the problems."""
     calibrator = Calibrator(bench.resource, "scpi-generic")
     with pytest.raises(ProcedureError) as info:
-        execute(procedure=load_procedure(DATA / "bench-meter.yaml"), bench=load_bench(DATA / "bench-test.yaml"),
-                context=CONTEXT, readings=readings, console=QuietConsole(), runs_dir=tmp_path / "runs",
-                reports_dir=tmp_path / "reports", simulate=True,
-                clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)), calibrator=calibrator)
+        execute(
+            procedure=load_procedure(DATA / "bench-meter.yaml"),
+            bench=load_bench(DATA / "bench-test.yaml"),
+            context=CONTEXT,
+            readings=readings,
+            console=QuietConsole(),
+            runs_dir=tmp_path / "runs",
+            reports_dir=tmp_path / "reports",
+            simulate=True,
+            clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)),
+            calibrator=calibrator,
+        )
     assert bench.resource.sent == [], "a command reached the calibrator"
     assert not (tmp_path / "runs").exists()
     return info.value.problems
@@ -52,30 +65,54 @@ class TestReadingsFileRefusedBeforeAnythingIsSent:
     def test_decimal_comma_row(self, tmp_path, bench):
         """`dcv-10,5,5,1` (5,1 with a decimal comma) is four fields, refused at its line, not
         replayed as 5 V."""
-        problems = refused(tmp_path, bench, csv_with(tmp_path, GOOD.replace("dcv-10,5 V,5\n", "dcv-10,5,5,1\n")))
-        assert any(p.startswith(f"{tmp_path / 'readings.csv'}:3: 4 fields") and "decimal" in p for p in problems)
+        problems = refused(
+            tmp_path, bench, csv_with(tmp_path, GOOD.replace("dcv-10,5 V,5\n", "dcv-10,5,5,1\n"))
+        )
+        assert any(
+            p.startswith(f"{tmp_path / 'readings.csv'}:3: 4 fields") and "decimal" in p
+            for p in problems
+        )
 
     def test_quoted_decimal_comma_refused_as_at_the_prompt(self, tmp_path, bench):
         """A quoted "5,1" is refused with the prompt's words: use a decimal point."""
-        problems = refused(tmp_path, bench, csv_with(tmp_path, GOOD.replace("dcv-10,5 V,5\n", 'dcv-10,5 V,"5,1"\n')))
-        assert problems == [f"{tmp_path / 'readings.csv'}:3: reading: '5,1': use a decimal point, not a comma"]
+        problems = refused(
+            tmp_path,
+            bench,
+            csv_with(tmp_path, GOOD.replace("dcv-10,5 V,5\n", 'dcv-10,5 V,"5,1"\n')),
+        )
+        assert problems == [
+            f"{tmp_path / 'readings.csv'}:3: reading: '5,1': use a decimal point, not a comma"
+        ]
 
     def test_missing_row(self, tmp_path, bench):
         """A point with no row is named by step, with the row to add."""
-        problems = refused(tmp_path, bench, csv_with(tmp_path, GOOD.replace("dca-50m,10 mA,10.25\n", "")))
+        problems = refused(
+            tmp_path, bench, csv_with(tmp_path, GOOD.replace("dca-50m,10 mA,10.25\n", ""))
+        )
         assert len(problems) == 1 and "no reading for step 5 (dca-50m at 10 mA)" in problems[0]
         assert "add a row dca-50m,10 mA,READING" in problems[0]
 
-    def test_bad_value_wrong_unit_extra_row_mistyped_range_and_duplicate_all_at_once(self, tmp_path, bench):
+    def test_bad_value_wrong_unit_extra_row_mistyped_range_and_duplicate_all_at_once(
+        self, tmp_path, bench
+    ):
         """Every kind of fault in one file is reported in one pass, in line order."""
-        text = (GOOD.replace("dcv-10,10 V,9.9", "dcv-10,10 V,abc")
-                    .replace("dca-50m,50 mA,49.5 mA", "dca-50m,50 mA,49.5 V")
-                    .replace("ohm-x1,12 ohm,12", "ohm-xl,12 ohm,12")
-                + "dcv-10,7 V,7\n" + "dcv-10,2 V,2.05\n")
+        text = (
+            GOOD.replace("dcv-10,10 V,9.9", "dcv-10,10 V,abc")
+            .replace("dca-50m,50 mA,49.5 mA", "dca-50m,50 mA,49.5 V")
+            .replace("ohm-x1,12 ohm,12", "ohm-xl,12 ohm,12")
+            + "dcv-10,7 V,7\n"
+            + "dcv-10,2 V,2.05\n"
+        )
         problems = refused(tmp_path, bench, csv_with(tmp_path, text))
         name = tmp_path / "readings.csv"
-        assert [p.split(": ", 1)[0] for p in problems] == [f"{name}:4", f"{name}:7", f"{name}:9", f"{name}:11",
-                                                           f"{name}:12", f"{name}:13"]
+        assert [p.split(": ", 1)[0] for p in problems] == [
+            f"{name}:4",
+            f"{name}:7",
+            f"{name}:9",
+            f"{name}:11",
+            f"{name}:12",
+            f"{name}:13",
+        ]
         assert "not a number" in problems[0]
         assert "in volts, expected amperes" in problems[1]
         assert "no range 'ohm-xl'" in problems[2]
@@ -85,8 +122,14 @@ class TestReadingsFileRefusedBeforeAnythingIsSent:
 
     def test_a_reading_beyond_the_scale(self, tmp_path, bench):
         """A reading the prompt would refuse (past the scale's stop) is refused beforehand."""
-        problems = refused(tmp_path, bench, csv_with(tmp_path, GOOD.replace("dcv-10,10 V,9.9", "dcv-10,10 V,12")))
-        assert len(problems) == 1 and ":4: reading:" in problems[0] and "beyond the ends" in problems[0]
+        problems = refused(
+            tmp_path, bench, csv_with(tmp_path, GOOD.replace("dcv-10,10 V,9.9", "dcv-10,10 V,12"))
+        )
+        assert (
+            len(problems) == 1
+            and ":4: reading:" in problems[0]
+            and "beyond the ends" in problems[0]
+        )
 
     def test_header_missing_a_column(self, tmp_path, bench):
         """A file whose header lacks a column says which, at line 1, before anything is sent."""
@@ -100,7 +143,9 @@ class TestReadingsFileRefusedBeforeAnythingIsSent:
 class TestReadingsFileMatching:
     def test_good_file_checks_clean(self):
         """The test readings file has a row for every point and nothing more."""
-        points = plan(load_procedure(DATA / "bench-meter.yaml"), load_bench(DATA / "bench-test.yaml"))
+        points = plan(
+            load_procedure(DATA / "bench-meter.yaml"), load_bench(DATA / "bench-test.yaml")
+        )
         assert ScriptedReadings(DATA / "bench-meter-readings.csv").check(points) == []
 
     def test_bare_numbers_in_the_unit_the_prompt_shows(self, tmp_path):
@@ -127,12 +172,21 @@ class TestVirtualMeterFile:
     def test_mistyped_range_missing_range_and_wrong_offset_unit(self, tmp_path, bench):
         """A range the procedure lacks, a range without a model, and an offset in the wrong unit
         are each reported at their line before anything is sent."""
-        meter = self.write(tmp_path, "  dcv-10: {gain: 1.01}\n  dcv-100: {offset: 0.2 A}\n"
-                                     "  dca-50m: {gain: 1}\n  ohm-xl: {centre: 12.5 ohm}\n")
+        meter = self.write(
+            tmp_path,
+            "  dcv-10: {gain: 1.01}\n  dcv-100: {offset: 0.2 A}\n"
+            "  dca-50m: {gain: 1}\n  ohm-xl: {centre: 12.5 ohm}\n",
+        )
         problems = refused(tmp_path, bench, meter)
         name = tmp_path / "meter.yaml"
-        assert f"{name}:5: ranges.dcv-100.offset: '0.2 A' is in amperes, expected volts; write it in V" in problems
-        assert any(p.startswith(f"{name}:7: ranges.ohm-xl: the procedure has no range 'ohm-xl'") for p in problems)
+        assert (
+            f"{name}:5: ranges.dcv-100.offset: '0.2 A' is in amperes, expected volts; write it in V"
+            in problems
+        )
+        assert any(
+            p.startswith(f"{name}:7: ranges.ohm-xl: the procedure has no range 'ohm-xl'")
+            for p in problems
+        )
         assert any("no model for range 'ohm-x1'" in p for p in problems)
 
 
@@ -140,8 +194,11 @@ class TestRepeatedPoints:
     def test_a_point_repeated_in_the_procedure_takes_its_rows_in_file_order(self, tmp_path):
         """Up-scale then down-scale at 5 V: two rows for dcv-10 at 5 V are taken in file order, one
         per step; a third is left over."""
-        text = (DATA / "bench-meter.yaml").read_text(encoding="utf-8").replace(
-            "points: [2 V, 5 V, 10 V]", "points: [2 V, 5 V, 10 V, 5 V]")
+        text = (
+            (DATA / "bench-meter.yaml")
+            .read_text(encoding="utf-8")
+            .replace("points: [2 V, 5 V, 10 V]", "points: [2 V, 5 V, 10 V, 5 V]")
+        )
         from verirun.procedure.load import load_procedure_text
 
         points = plan(load_procedure_text(text, "p.yaml"))

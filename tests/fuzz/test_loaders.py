@@ -47,16 +47,25 @@ from verirun.readings import VirtualMeter
 # --- settings -------------------------------------------------------------------------------
 
 _EXPLORE = int(os.environ.get("VERIRUN_FUZZ_EXAMPLES", "0") or 0)
-_COMMON = dict(deadline=None, database=None, report_multiple_bugs=False,
-               suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large,
-                                      HealthCheck.filter_too_much, HealthCheck.large_base_example])
+_COMMON = dict(
+    deadline=None,
+    database=None,
+    report_multiple_bugs=False,
+    suppress_health_check=[
+        HealthCheck.too_slow,
+        HealthCheck.data_too_large,
+        HealthCheck.filter_too_much,
+        HealthCheck.large_base_example,
+    ],
+)
 if _EXPLORE:
     FUZZ = settings(max_examples=_EXPLORE, **_COMMON)
 else:
     # The known failures are reproduced minimally in TestMinimalReproductions, so the fixed run
     # skips shrinking: it would only spend the time budget re-deriving them.
-    FUZZ = settings(max_examples=8, derandomize=True,
-                    phases=[Phase.explicit, Phase.generate], **_COMMON)
+    FUZZ = settings(
+        max_examples=8, derandomize=True, phases=[Phase.explicit, Phase.generate], **_COMMON
+    )
 FUZZ_CLI = settings(FUZZ, max_examples=_EXPLORE or 5)
 
 # --- the loaders and their good files -------------------------------------------------------
@@ -79,8 +88,16 @@ LOADERS = {
 TOP_KEYS = {
     "procedure": ["format", "procedure", "meter", "decision", "ranges"],
     "bench": ["format", "bench", "calibrator", "settle", "safety"],
-    "profile": ["format", "name", "description", "link", "commands", "output-state", "error-queue",
-                "functions"],
+    "profile": [
+        "format",
+        "name",
+        "description",
+        "link",
+        "commands",
+        "output-state",
+        "error-queue",
+        "functions",
+    ],
     "lab": ["format", "lab"],
     "virtual-meter": ["format", "meter", "ranges"],
 }
@@ -103,8 +120,11 @@ def report_counts(request):
         by_strategy[strategy] += n
     lines = ["", f"fuzz cases run: {sum(COUNTS.values())} in all"]
     for strategy, n in sorted(by_strategy.items()):
-        per_loader = ", ".join(f"{name} {COUNTS[(name, strategy)]}" for name in NAMES + ["check-cli"]
-                               if COUNTS[(name, strategy)])
+        per_loader = ", ".join(
+            f"{name} {COUNTS[(name, strategy)]}"
+            for name in NAMES + ["check-cli"]
+            if COUNTS[(name, strategy)]
+        )
         lines.append(f"  {strategy:<30} {n:>5}  ({per_loader})")
     capture = request.config.pluginmanager.get_plugin("capturemanager")
     with capture.global_and_fixture_disabled() if capture else contextlib.nullcontext():
@@ -153,22 +173,31 @@ def assert_loads_or_reports(name: str, path: Path) -> None:
 # --- (a) random YAML documents --------------------------------------------------------------
 
 SCALARS = st.one_of(
-    st.none(), st.booleans(),
+    st.none(),
+    st.booleans(),
     st.integers(),
-    st.integers(min_value=-10 ** 600, max_value=10 ** 600),
+    st.integers(min_value=-(10**600), max_value=10**600),
     st.floats(allow_nan=True, allow_infinity=True),
     st.sampled_from([math.inf, -math.inf, math.nan, 1e308, -1e308, 5e-324, 0.0, -0.0]),
     st.text(max_size=30),
-    st.sampled_from(["10 V", "-1 V", "1e400 V", "nan", "NaN V", "inf", "Ω", "2099-12-31", "ON", "off"]),
-    st.dates(), st.datetimes(),
+    st.sampled_from(
+        ["10 V", "-1 V", "1e400 V", "nan", "NaN V", "inf", "Ω", "2099-12-31", "ON", "off"]
+    ),
+    st.dates(),
+    st.datetimes(),
 )
 # Keys with line breaks or control characters are left to the unknown-key-control-char mutation,
 # which expects them to fail today; here they would only hide every other finding behind it.
-KEY_TEXT = st.text(st.characters(blacklist_categories=("Cs", "Cc", "Zl", "Zp"),
-                                 blacklist_characters="\x85"), max_size=12)
+KEY_TEXT = st.text(
+    st.characters(blacklist_categories=("Cs", "Cc", "Zl", "Zp"), blacklist_characters="\x85"),
+    max_size=12,
+)
 KEYS = st.one_of(KEY_TEXT, st.integers(), st.booleans(), st.none(), st.dates())
-VALUES = st.recursive(SCALARS, lambda inner: st.one_of(
-    st.lists(inner, max_size=4), st.dictionaries(KEYS, inner, max_size=4)), max_leaves=25)
+VALUES = st.recursive(
+    SCALARS,
+    lambda inner: st.one_of(st.lists(inner, max_size=4), st.dictionaries(KEYS, inner, max_size=4)),
+    max_leaves=25,
+)
 
 
 def random_document(name: str):
@@ -176,14 +205,17 @@ def random_document(name: str):
     return st.one_of(
         VALUES,
         st.dictionaries(st.one_of(known, KEY_TEXT), VALUES, max_size=6),
-        st.fixed_dictionaries({"format": st.sampled_from([1, 1.0, "1", 2, 0, -1, 10 ** 400, True])},
-                              optional={key: VALUES for key in TOP_KEYS[name] if key != "format"}),
+        st.fixed_dictionaries(
+            {"format": st.sampled_from([1, 1.0, "1", 2, 0, -1, 10**400, True])},
+            optional={key: VALUES for key in TOP_KEYS[name] if key != "format"},
+        ),
     )
 
 
 def dump(doc, flow, unicode) -> bytes:
-    return yaml.safe_dump(doc, allow_unicode=unicode, default_flow_style=flow,
-                          sort_keys=False).encode("utf-8")
+    return yaml.safe_dump(
+        doc, allow_unicode=unicode, default_flow_style=flow, sort_keys=False
+    ).encode("utf-8")
 
 
 class TestRandomDocuments:
@@ -209,10 +241,20 @@ def clone(node: yaml.Node) -> yaml.Node:
     if isinstance(node, yaml.ScalarNode):
         return yaml.ScalarNode(node.tag, node.value, node.start_mark, node.end_mark, node.style)
     if isinstance(node, yaml.SequenceNode):
-        return yaml.SequenceNode(node.tag, [clone(n) for n in node.value], node.start_mark,
-                                 node.end_mark, node.flow_style)
-    return yaml.MappingNode(node.tag, [(clone(k), clone(v)) for k, v in node.value], node.start_mark,
-                            node.end_mark, node.flow_style)
+        return yaml.SequenceNode(
+            node.tag,
+            [clone(n) for n in node.value],
+            node.start_mark,
+            node.end_mark,
+            node.flow_style,
+        )
+    return yaml.MappingNode(
+        node.tag,
+        [(clone(k), clone(v)) for k, v in node.value],
+        node.start_mark,
+        node.end_mark,
+        node.flow_style,
+    )
 
 
 def make_node(value) -> yaml.Node:
@@ -248,7 +290,9 @@ class Tree:
 
     @staticmethod
     def get(container, i):
-        return container.value[i][1] if isinstance(container, yaml.MappingNode) else container.value[i]
+        return (
+            container.value[i][1] if isinstance(container, yaml.MappingNode) else container.value[i]
+        )
 
     @staticmethod
     def put(container, i, node):
@@ -258,9 +302,12 @@ class Tree:
             container.value[i] = node
 
     def where(self, kind=None, numeric=False):
-        found = [s for s in self.slots
-                 if (kind is None or isinstance(self.get(s[0], s[1]), kind))
-                 and (not numeric or NUMERIC.match(self.get(s[0], s[1]).value or ""))]
+        found = [
+            s
+            for s in self.slots
+            if (kind is None or isinstance(self.get(s[0], s[1]), kind))
+            and (not numeric or NUMERIC.match(self.get(s[0], s[1]).value or ""))
+        ]
         return found
 
     def mappings(self):
@@ -279,13 +326,17 @@ def _scalar_slot(draw, tree, numeric=False):
 
 
 def m_drop_key(draw, tree):
-    container, i, path = draw(st.sampled_from([s for s in tree.slots if isinstance(s[0], yaml.MappingNode)]))
+    container, i, path = draw(
+        st.sampled_from([s for s in tree.slots if isinstance(s[0], yaml.MappingNode)])
+    )
     del container.value[i]
     return f"drop {path}"
 
 
 def m_duplicate_key(draw, tree):
-    container, i, path = draw(st.sampled_from([s for s in tree.slots if isinstance(s[0], yaml.MappingNode)]))
+    container, i, path = draw(
+        st.sampled_from([s for s in tree.slots if isinstance(s[0], yaml.MappingNode)])
+    )
     key, value = container.value[i]
     again = clone(value) if draw(st.booleans()) else make_node(draw(SCALARS))
     container.value.insert(draw(st.integers(i + 1, len(container.value))), (clone(key), again))
@@ -293,9 +344,12 @@ def m_duplicate_key(draw, tree):
 
 
 PLAIN_KEYS = st.from_regex(r"[a-z][a-z0-9_-]{0,20}", fullmatch=True)
-CONTROL_KEYS = st.builds(lambda a, c, b: a + c + b, st.text("abc", max_size=4),
-                         st.sampled_from(["\n", "\r", "\r\n", "\t", "\x1b[2J", "\x07", "\x85", "\u2028"]),
-                         st.text("xyz", max_size=4))
+CONTROL_KEYS = st.builds(
+    lambda a, c, b: a + c + b,
+    st.text("abc", max_size=4),
+    st.sampled_from(["\n", "\r", "\r\n", "\t", "\x1b[2J", "\x07", "\x85", "\u2028"]),
+    st.text("xyz", max_size=4),
+)
 
 
 def _add_key(draw, tree, keys):
@@ -316,9 +370,11 @@ def m_unknown_key_control(draw, tree):
 def m_wrong_type(draw, tree):
     container, i, path = draw(st.sampled_from(tree.slots))
     old = tree.get(container, i)
-    choices = [yaml.SequenceNode("tag:yaml.org,2002:seq", [make_node(draw(SCALARS))]),
-               yaml.MappingNode("tag:yaml.org,2002:map", [(yaml.ScalarNode(STR, "x"), make_node(1))]),
-               make_node(draw(st.sampled_from([True, False, None, 0, "text", 2.5])))]
+    choices = [
+        yaml.SequenceNode("tag:yaml.org,2002:seq", [make_node(draw(SCALARS))]),
+        yaml.MappingNode("tag:yaml.org,2002:map", [(yaml.ScalarNode(STR, "x"), make_node(1))]),
+        make_node(draw(st.sampled_from([True, False, None, 0, "text", 2.5]))),
+    ]
     new = draw(st.sampled_from([c for c in choices if type(c) is not type(old)] or choices))
     tree.put(container, i, new)
     return f"wrong type at {path}"
@@ -330,22 +386,39 @@ def _replace_scalar(values, numeric=True):
         value = draw(values)
         tree.put(container, i, make_node(value))
         return f"{path} = {str(value)[:40]!r}"
+
     return mutate
 
 
 m_nan = _replace_scalar(st.sampled_from([math.nan, "nan", "NaN V", ".nan"]))
-m_huge_float = _replace_scalar(st.sampled_from([1e308, -1e308, 1.7976931348623157e308, math.inf, -math.inf,
-                                                "1e308", "1e308 V", "1e400 V"]))
-m_minus_one = _replace_scalar(st.sampled_from([-1, -1.0, "-1", "-1 V", "-1 A", "-1 ohm", "-1 s", "-1 deg"]))
-m_huge_int = _replace_scalar(st.builds(lambda e, s: s * 10 ** e, st.integers(19, 4000), st.sampled_from([1, -1])))
-m_long_string = _replace_scalar(st.builds(lambda t, n: (t or "x") * n, st.text(min_size=1, max_size=5),
-                                          st.integers(1_000, 4_000)), numeric=False)
-m_lone_surrogate = _replace_scalar(st.sampled_from(["\ud800", "TH\udfffX", "10 \udc80V"]), numeric=False)
+m_huge_float = _replace_scalar(
+    st.sampled_from(
+        [1e308, -1e308, 1.7976931348623157e308, math.inf, -math.inf, "1e308", "1e308 V", "1e400 V"]
+    )
+)
+m_minus_one = _replace_scalar(
+    st.sampled_from([-1, -1.0, "-1", "-1 V", "-1 A", "-1 ohm", "-1 s", "-1 deg"])
+)
+m_huge_int = _replace_scalar(
+    st.builds(lambda e, s: s * 10**e, st.integers(19, 4000), st.sampled_from([1, -1]))
+)
+m_long_string = _replace_scalar(
+    st.builds(
+        lambda t, n: (t or "x") * n, st.text(min_size=1, max_size=5), st.integers(1_000, 4_000)
+    ),
+    numeric=False,
+)
+m_lone_surrogate = _replace_scalar(
+    st.sampled_from(["\ud800", "TH\udfffX", "10 \udc80V"]), numeric=False
+)
 
 
 def m_negative_span(draw, tree):
-    slots = [s for s in tree.where(yaml.ScalarNode, numeric=True)
-             if not tree.get(s[0], s[1]).value.startswith(("-", "+"))] or tree.where(yaml.ScalarNode)
+    slots = [
+        s
+        for s in tree.where(yaml.ScalarNode, numeric=True)
+        if not tree.get(s[0], s[1]).value.startswith(("-", "+"))
+    ] or tree.where(yaml.ScalarNode)
     container, i, path = draw(st.sampled_from(slots))
     node = tree.get(container, i)
     value = "-" + node.value
@@ -358,8 +431,10 @@ def m_negative_span(draw, tree):
         keys = {k.value: n for n, (k, _) in enumerate(mapping.value)}
         if {"min", "max"} <= keys.keys() and draw(st.booleans()):
             lo, hi = keys["min"], keys["max"]
-            mapping.value[lo], mapping.value[hi] = ((mapping.value[lo][0], mapping.value[hi][1]),
-                                                    (mapping.value[hi][0], mapping.value[lo][1]))
+            mapping.value[lo], mapping.value[hi] = (
+                (mapping.value[lo][0], mapping.value[hi][1]),
+                (mapping.value[hi][0], mapping.value[lo][1]),
+            )
             break
     return f"negate {path}"
 
@@ -393,7 +468,9 @@ def m_explicit_tag(draw, tree):
     container, i, path = _scalar_slot(draw, tree)
     node = tree.get(container, i)
     tag = draw(st.sampled_from(["timestamp", "bool", "int", "float", "binary"]))
-    tree.put(container, i, yaml.ScalarNode(f"tag:yaml.org,2002:{tag}", node.value, style=node.style))
+    tree.put(
+        container, i, yaml.ScalarNode(f"tag:yaml.org,2002:{tag}", node.value, style=node.style)
+    )
     return f"!!{tag} on {path}"
 
 
@@ -435,12 +512,12 @@ def mutated(name: str, kind: str):
             steps.append(MUTATIONS[kind](draw, tree))
             tree.refresh()
         return tree.text(), steps
+
     return build()
 
 
 def _cases(pairs):
-    return [pytest.param(name, kind, id=f"{name}-{kind}")
-            for name, kind in pairs]
+    return [pytest.param(name, kind, id=f"{name}-{kind}") for name, kind in pairs]
 
 
 class TestMutatedGoodFiles:
@@ -451,8 +528,12 @@ class TestMutatedGoodFiles:
         path = write_case(workdir, name, "b:unmutated", Tree(name).text())
         LOADERS[name](path)
 
-    @pytest.mark.parametrize("name, kind", _cases(
-        (name, kind) for kind in MUTATIONS for name in NAMES if name in ONLY.get(kind, {name})))
+    @pytest.mark.parametrize(
+        "name, kind",
+        _cases(
+            (name, kind) for kind in MUTATIONS for name in NAMES if name in ONLY.get(kind, {name})
+        ),
+    )
     @FUZZ
     @given(data=st.data())
     def test_mutation_loads_or_is_reported(self, name, kind, data, workdir):
@@ -464,9 +545,25 @@ class TestMutatedGoodFiles:
 # --- (c) bytes that are not good YAML text --------------------------------------------------
 
 #: Characters PyYAML's reader refuses anywhere in a stream.
-REFUSED = ["\x00", "\x01", "\x07", "\x08", "\x0b", "\x0c", "\x1b", "\x7f", "\x80", "\x9f", "\ufffe", "\uffff"]
-PRINTABLE = st.characters(blacklist_categories=("Cs", "Cc", "Co", "Cn"), blacklist_characters="\ufeff") | \
-    st.sampled_from(["\n", "\t", " ", ":", "-", "{", "}", "[", "]", "&", "*", "!", "|", ">", "'", '"', "#"])
+REFUSED = [
+    "\x00",
+    "\x01",
+    "\x07",
+    "\x08",
+    "\x0b",
+    "\x0c",
+    "\x1b",
+    "\x7f",
+    "\x80",
+    "\x9f",
+    "\ufffe",
+    "\uffff",
+]
+PRINTABLE = st.characters(
+    blacklist_categories=("Cs", "Cc", "Co", "Cn"), blacklist_characters="\ufeff"
+) | st.sampled_from(
+    ["\n", "\t", " ", ":", "-", "{", "}", "[", "]", "&", "*", "!", "|", ">", "'", '"', "#"]
+)
 
 
 def _good_bytes(name):
@@ -501,14 +598,18 @@ def not_utf8(name):
         if how == "latin-1":
             return ("# état\n" + text).encode("latin-1", errors="replace")
         at = draw(st.integers(0, len(raw)))
-        return raw[:at] + "Ω".encode("utf-8")[:1] + raw[at:]  # the first byte of a two-byte character
+        return (
+            raw[:at] + "Ω".encode("utf-8")[:1] + raw[at:]
+        )  # the first byte of a two-byte character
+
     return build()
 
 
 def control_character(name):
     text = GOOD_TEXT[name]
     return st.tuples(st.integers(0, len(text)), st.sampled_from(REFUSED)).map(
-        lambda p: (text[:p[0]] + p[1] + text[p[0]:]).encode("utf-8"))
+        lambda p: (text[: p[0]] + p[1] + text[p[0] :]).encode("utf-8")
+    )
 
 
 BYTE_STRATEGIES = {
@@ -519,8 +620,11 @@ BYTE_STRATEGIES = {
     "refused-character": control_character,
 }
 
+
 class TestBytes:
-    @pytest.mark.parametrize("name, kind", _cases((name, kind) for kind in BYTE_STRATEGIES for name in NAMES))
+    @pytest.mark.parametrize(
+        "name, kind", _cases((name, kind) for kind in BYTE_STRATEGIES for name in NAMES)
+    )
     @FUZZ
     @given(data=st.data())
     def test_bytes_load_or_are_reported(self, name, kind, data, workdir):
@@ -530,6 +634,7 @@ class TestBytes:
 
 
 # --- verirun check on mutated procedures ----------------------------------------------------
+
 
 def run_check(path: Path) -> tuple[int, str]:
     """Run ``verirun check <path>`` in-process; output goes to UTF-8 streams, as on a terminal."""
@@ -561,6 +666,7 @@ class TestCheckCommand:
 
 # --- minimal reproductions of what the strategies found --------------------------------------
 
+
 def _write(tmp_path, text, name="case.yaml") -> Path:
     path = tmp_path / name
     (path.write_bytes(text) if isinstance(text, bytes) else path.write_text(text, encoding="utf-8"))
@@ -581,14 +687,14 @@ class TestMinimalReproductions:
         """A full-scale written as a 400-digit integer is refused at its own line."""
         text = GOOD_TEXT["procedure"]
         assert "full-scale: 6 V\n" in text
-        line = text[:text.index("full-scale: 6 V")].count("\n") + 1
+        line = text[: text.index("full-scale: 6 V")].count("\n") + 1
         path = _write(tmp_path, text.replace("full-scale: 6 V", "full-scale: 1" + "0" * 400, 1))
         _one_problem(path, load_procedure, line)
 
     def test_huge_int_settle_is_reported_at_its_line(self, tmp_path):
         """A bench settle time written as a 400-digit integer is refused at its own line."""
         text = GOOD_TEXT["bench"]
-        line = text[:text.index("settle:")].count("\n") + 1
+        line = text[: text.index("settle:")].count("\n") + 1
         path = _write(tmp_path, re.sub(r"(?m)^settle: .*$", "settle: 1" + "0" * 400, text, count=1))
         _one_problem(path, load_bench, line)
 
@@ -632,7 +738,8 @@ class TestMinimalReproductions:
         """A tolerance so wide its window overflows is a file:line problem of `verirun check`, not an internal error."""
         text = GOOD_TEXT["procedure"]
         text = text.replace("full-scale: 6 V", "full-scale: 100 MV", 1).replace(
-            "accuracy: {class: 2.5}", "accuracy: {class: 1.0e+308}", 1)
+            "accuracy: {class: 2.5}", "accuracy: {class: 1.0e+308}", 1
+        )
         path = _write(tmp_path, text)
         code, output = run_check(path)
         assert code == 1 and output.startswith(f"{path}:"), (code, output)
@@ -641,8 +748,12 @@ class TestMinimalReproductions:
         """A series-ohms point of 1e308 Ω is a file:line problem of `verirun check`, not an internal error."""
         text = GOOD_TEXT["procedure"]
         assert "points: [4 ohm, 16 ohm, 64 ohm]" in text
-        path = _write(tmp_path, text.replace("points: [4 ohm, 16 ohm, 64 ohm]",
-                                             "points: [1e308 ohm, 16 ohm, 64 ohm]", 1))
+        path = _write(
+            tmp_path,
+            text.replace(
+                "points: [4 ohm, 16 ohm, 64 ohm]", "points: [1e308 ohm, 16 ohm, 64 ohm]", 1
+            ),
+        )
         code, output = run_check(path)
         assert code == 1 and output.startswith(f"{path}:"), (code, output)
 
@@ -650,7 +761,7 @@ class TestMinimalReproductions:
         """A hazardous-live threshold of 0 V is refused at load with its line, not left to fail when the run starts."""
         text = GOOD_TEXT["bench"]
         assert "hazardous-dc: 60 V" in text
-        line = text[:text.index("hazardous-dc:")].count("\n") + 1
+        line = text[: text.index("hazardous-dc:")].count("\n") + 1
         path = _write(tmp_path, text.replace("hazardous-dc: 60 V", "hazardous-dc: 0 V"))
         _one_problem(path, load_bench, line)
 
@@ -658,13 +769,15 @@ class TestMinimalReproductions:
         """A virtual meter gain of .nan is refused at load with its line."""
         text = GOOD_TEXT["virtual-meter"]
         assert "gain: 1.012" in text
-        line = text[:text.index("gain: 1.012")].count("\n") + 1
+        line = text[: text.index("gain: 1.012")].count("\n") + 1
         path = _write(tmp_path, text.replace("gain: 1.012", "gain: .nan"))
         _one_problem(path, VirtualMeter, line)
 
     def test_impossible_date_is_reported_at_its_line(self, tmp_path):
         """A calibration due date of 31 February is reported at the line it is written on."""
         text = GOOD_TEXT["bench"]
-        line = text[:text.index("calibration-due:")].count("\n") + 1
-        path = _write(tmp_path, re.sub(r"calibration-due: \S+", "calibration-due: 2099-02-31", text, count=1))
+        line = text[: text.index("calibration-due:")].count("\n") + 1
+        path = _write(
+            tmp_path, re.sub(r"calibration-due: \S+", "calibration-due: 2099-02-31", text, count=1)
+        )
         _one_problem(path, load_bench, line)

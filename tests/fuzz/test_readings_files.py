@@ -20,13 +20,48 @@ from verirun.readings import ScriptedReadings
 DATA = Path(__file__).resolve().parent.parent / "data"
 GOOD = (DATA / "bench-meter-readings.csv").read_text(encoding="utf-8")
 POINTS = plan(load_procedure(DATA / "bench-meter.yaml"))
-FUZZ = settings(max_examples=60, derandomize=True, deadline=None,
-                suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
+FUZZ = settings(
+    max_examples=60,
+    derandomize=True,
+    deadline=None,
+    suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow],
+)
 
 #: Pieces a hostile or careless file is made of.
-PIECES = st.sampled_from([",", ";", "\"", "\n", "\r\n", " ", "\t", "10,4", "1e308", "nan", "inf", "-0",
-                          "5 V", "5V", "5 mA", "[bold]", "\u202e", "\x00", "\ufeff", "dcv-10", "ohm-x1",
-                          "abort", "undo", "skip", "note", "repeat", "1.06k", "µ", "Ω", "9" * 400])
+PIECES = st.sampled_from(
+    [
+        ",",
+        ";",
+        '"',
+        "\n",
+        "\r\n",
+        " ",
+        "\t",
+        "10,4",
+        "1e308",
+        "nan",
+        "inf",
+        "-0",
+        "5 V",
+        "5V",
+        "5 mA",
+        "[bold]",
+        "\u202e",
+        "\x00",
+        "\ufeff",
+        "dcv-10",
+        "ohm-x1",
+        "abort",
+        "undo",
+        "skip",
+        "note",
+        "repeat",
+        "1.06k",
+        "µ",
+        "Ω",
+        "9" * 400,
+    ]
+)
 
 
 def outcome(tmp_path, data: bytes) -> list[str]:

@@ -91,7 +91,9 @@ class TestSimpleAcceptance:
     def test_on_the_limit_passes(self):
         """A reading exactly on a tolerance limit passes; one beyond it fails."""
         assert self.rule.decide(low=9.0, high=10.0, reading=10.0, expanded=0.2).verdict == "pass"
-        assert self.rule.decide(low=9.0, high=10.0, reading=10.0000001, expanded=0.2).verdict == "fail"
+        assert (
+            self.rule.decide(low=9.0, high=10.0, reading=10.0000001, expanded=0.2).verdict == "fail"
+        )
 
     def test_acceptance_is_the_tolerance(self):
         """The acceptance zone is the tolerance zone (w = 0)."""
@@ -112,7 +114,9 @@ class TestGuardedAcceptance:
     def test_acceptance_limits(self):
         """With w = U = 0.2 the 9 .. 10 tolerance accepts 9.2 .. 9.8."""
         zone = GuardedAcceptance().acceptance(low=9.0, high=10.0, expanded=0.2)
-        assert (zone.low, zone.high, zone.guard) == pytest.approx((9.2, 9.8, 0.2))  # ILAC-G8:09/2019 4.2.2
+        assert (zone.low, zone.high, zone.guard) == pytest.approx(
+            (9.2, 9.8, 0.2)
+        )  # ILAC-G8:09/2019 4.2.2
 
     def test_on_the_acceptance_limit_passes(self):
         """A reading exactly on an acceptance limit passes; one just beyond it fails."""
@@ -151,7 +155,9 @@ class TestGuardedAcceptance:
         assert "(ILAC-G8:09/2019 4.2.2, w = 1.5 × U)" in GuardedAcceptance(ratio=1.5).describe()
 
     @FAST
-    @given(low=st.floats(-1e3, 1e3), width=st.floats(0, 1e3), u=st.floats(0, 1e3), r=st.floats(0, 10))
+    @given(
+        low=st.floats(-1e3, 1e3), width=st.floats(0, 1e3), u=st.floats(0, 1e3), r=st.floats(0, 10)
+    )
     def test_acceptance_within_tolerance(self, low, width, u, r):
         """The guarded acceptance zone lies within the tolerance zone."""
         high = low + width
@@ -163,34 +169,51 @@ class TestGuardedAcceptance:
 class TestNonBinaryStatement:
     rule = NonBinaryStatement()
 
-    @pytest.mark.parametrize(("reading", "verdict"), [
-        (9.7, "pass"),               # ILAC-G8:09/2019 4.2.3: below AL = TU - U = 9.8
-        (9.9, "conditional-pass"),   # ILAC-G8:09/2019 4.2.3: between AL and TU
-        (10.1, "conditional-fail"),  # ILAC-G8:09/2019 4.2.3: above TU by no more than U
-        (10.3, "fail"),              # ILAC-G8:09/2019 4.2.3: above TU + U
-    ])
+    @pytest.mark.parametrize(
+        ("reading", "verdict"),
+        [
+            (9.7, "pass"),  # ILAC-G8:09/2019 4.2.3: below AL = TU - U = 9.8
+            (9.9, "conditional-pass"),  # ILAC-G8:09/2019 4.2.3: between AL and TU
+            (10.1, "conditional-fail"),  # ILAC-G8:09/2019 4.2.3: above TU by no more than U
+            (10.3, "fail"),  # ILAC-G8:09/2019 4.2.3: above TU + U
+        ],
+    )
     def test_four_zones(self, reading, verdict):
         """With TU = 10 and U = 0.2 the four zones give the four statements."""
         out = self.rule.decide(low=-math.inf, high=10.0, reading=reading, expanded=0.2)
         assert out.verdict == verdict
 
-    @pytest.mark.parametrize(("reading", "verdict"), [
-        (9.75, "pass"),               # on AL: more favourable zone (documented choice)
-        (10.0, "conditional-pass"),   # on TU: more favourable zone (documented choice)
-        (10.25, "conditional-fail"),  # on TU + w: more favourable zone (documented choice)
-    ])
+    @pytest.mark.parametrize(
+        ("reading", "verdict"),
+        [
+            (9.75, "pass"),  # on AL: more favourable zone (documented choice)
+            (10.0, "conditional-pass"),  # on TU: more favourable zone (documented choice)
+            (10.25, "conditional-fail"),  # on TU + w: more favourable zone (documented choice)
+        ],
+    )
     def test_boundaries_take_the_better_statement(self, reading, verdict):
         """A reading exactly on a boundary takes the more favourable statement."""
         # U = 0.25 is exact in binary, so the boundaries are exactly 9.75, 10 and 10.25.
-        assert self.rule.decide(low=-math.inf, high=10.0, reading=reading, expanded=0.25).verdict == verdict
+        assert (
+            self.rule.decide(low=-math.inf, high=10.0, reading=reading, expanded=0.25).verdict
+            == verdict
+        )
 
-    @pytest.mark.parametrize(("reading", "verdict"), [
-        (0.1, "pass"), (-0.9, "conditional-pass"), (-1.1, "conditional-fail"), (-1.3, "fail"),
-    ])
+    @pytest.mark.parametrize(
+        ("reading", "verdict"),
+        [
+            (0.1, "pass"),
+            (-0.9, "conditional-pass"),
+            (-1.1, "conditional-fail"),
+            (-1.3, "fail"),
+        ],
+    )
     def test_lower_side_mirrors(self, reading, verdict):
         """The lower tolerance limit has the same four zones mirrored."""
         # ILAC-G8:09/2019 4.2.3 applied to a lower limit TL = -1 with U = 0.2
-        assert self.rule.decide(low=-1.0, high=1.0, reading=reading, expanded=0.2).verdict == verdict
+        assert (
+            self.rule.decide(low=-1.0, high=1.0, reading=reading, expanded=0.2).verdict == verdict
+        )
 
     def test_describe(self):
         """The sentence names ILAC-G8 4.2.3 and w = U."""
@@ -207,7 +230,9 @@ class TestRiskAcceptance:
 
     def test_matches_guarded_at_its_own_risk(self):
         """A 2.275 % target reproduces the w = U guard band at k = 2."""
-        zone = RiskAcceptance(target=norm.sf(2.0)).acceptance(low=-math.inf, high=10.0, expanded=0.2)
+        zone = RiskAcceptance(target=norm.sf(2.0)).acceptance(
+            low=-math.inf, high=10.0, expanded=0.2
+        )
         assert zone.high == pytest.approx(9.8, rel=1e-9)  # ILAC-G8:09/2019 4.2.2, w = U, k = 2
 
     def test_two_sided_limits_carry_the_target_risk(self):
@@ -258,8 +283,12 @@ class TestRiskAcceptance:
         assert "JCGM 106:2012" in text and "at most 2 %" in text
 
     @FAST
-    @given(low=st.floats(-1e3, 1e3), width=st.floats(1e-3, 1e3), ratio=st.floats(1e-3, 10),
-           target=st.floats(1e-4, 0.4))
+    @given(
+        low=st.floats(-1e3, 1e3),
+        width=st.floats(1e-3, 1e3),
+        ratio=st.floats(1e-3, 10),
+        target=st.floats(1e-4, 0.4),
+    )
     def test_acceptance_within_tolerance(self, low, width, ratio, target):
         """The risk-based acceptance zone lies within the tolerance zone."""
         high = low + width
@@ -267,8 +296,11 @@ class TestRiskAcceptance:
         assert zone.empty or (low <= zone.low and zone.high <= high)
 
 
-@pytest.mark.parametrize("rule", [SimpleAcceptance(), GuardedAcceptance(), NonBinaryStatement(),
-                                  RiskAcceptance()], ids=lambda r: r.name)
+@pytest.mark.parametrize(
+    "rule",
+    [SimpleAcceptance(), GuardedAcceptance(), NonBinaryStatement(), RiskAcceptance()],
+    ids=lambda r: r.name,
+)
 def test_every_rule_refuses_a_standard_uncertainty_that_overflows(rule):
     """U / k is the standard uncertainty every rule works with (GUM 2.3.1, from memory: an
     uncertainty expressed as a standard deviation, so a finite number); a U and k whose quotient
@@ -278,12 +310,15 @@ def test_every_rule_refuses_a_standard_uncertainty_that_overflows(rule):
 
 
 class TestRuleFromName:
-    @pytest.mark.parametrize(("name", "params", "expected"), [
-        ("simple", {}, SimpleAcceptance()),
-        ("guarded", {"ratio": 0.5}, GuardedAcceptance(ratio=0.5)),
-        ("non-binary", {}, NonBinaryStatement()),
-        ("risk", {"target": 0.01}, RiskAcceptance(target=0.01)),
-    ])
+    @pytest.mark.parametrize(
+        ("name", "params", "expected"),
+        [
+            ("simple", {}, SimpleAcceptance()),
+            ("guarded", {"ratio": 0.5}, GuardedAcceptance(ratio=0.5)),
+            ("non-binary", {}, NonBinaryStatement()),
+            ("risk", {"target": 0.01}, RiskAcceptance(target=0.01)),
+        ],
+    )
     def test_builds_each_rule(self, name, params, expected):
         """Each name builds its rule with the parameters given."""
         assert rule_from_name(name, **params) == expected
@@ -308,7 +343,9 @@ class TestJudge:
         """On a series scale the decision is taken along the arc and the limits reported in ohms."""
         law = SeriesOhms(centre=10.0)
         win = window(DegreesOfArc(degrees=3.0), 10.0, RangeContext(law=law, arc=90.0))
-        b = budget(terms=[_term(0.5 / 90.0, "deflection")], nominal=10.0, law=law, domain="deflection")
+        b = budget(
+            terms=[_term(0.5 / 90.0, "deflection")], nominal=10.0, law=law, domain="deflection"
+        )
         d = judge(GuardedAcceptance(), window=win, law=law, budget=b, reading=11.0)
         # derived from f = Rc/(Rc+Rx): U = 1 degree, so acceptance is 2 degrees either side of f = 0.5
         f_hi, f_lo = 0.5 + 2 / 90, 0.5 - 2 / 90
@@ -329,7 +366,9 @@ class TestJudge:
         # ILAC-G8:09/2019 4.2.3: 1.763 is between AL = 1.762775 and TU = 1.764775
         assert d.verdict == "conditional-pass"
         assert d.acceptance == pytest.approx((1.747225, 1.762775))
-        assert d.conformance == pytest.approx(norm.cdf(1.775) - norm.cdf(-17.775))  # scipy, u = 1 mV
+        assert d.conformance == pytest.approx(
+            norm.cdf(1.775) - norm.cdf(-17.775)
+        )  # scipy, u = 1 mV
 
     def test_refuses_budget_in_another_domain(self):
         """A budget combined in ohms cannot judge a tolerance stated in degrees."""

@@ -35,14 +35,20 @@ MANY = settings(max_examples=700, deadline=None)
 #: How many generated ohms cases reached their assertions (some are not the case under test).
 TESTED: collections.Counter = collections.Counter()
 
-RULES = {"simple": decision.SimpleAcceptance(), "guarded": decision.GuardedAcceptance(),
-         "guarded-1.5": decision.GuardedAcceptance(ratio=1.5),
-         "non-binary": decision.NonBinaryStatement(), "risk": decision.RiskAcceptance()}
+RULES = {
+    "simple": decision.SimpleAcceptance(),
+    "guarded": decision.GuardedAcceptance(),
+    "guarded-1.5": decision.GuardedAcceptance(ratio=1.5),
+    "non-binary": decision.NonBinaryStatement(),
+    "risk": decision.RiskAcceptance(),
+}
 
 
 def decimals(low: int, high: int, places: int):
     """Decimal texts ``n / 10**p`` with ``low <= n <= high`` and ``p <= places``."""
-    return st.builds(lambda n, p: str(Decimal(n).scaleb(-p)), st.integers(low, high), st.integers(0, places))
+    return st.builds(
+        lambda n, p: str(Decimal(n).scaleb(-p)), st.integers(low, high), st.integers(0, places)
+    )
 
 
 def text(q: Fraction) -> str:
@@ -60,12 +66,18 @@ def step(q: Fraction) -> Fraction:
 
 def u_term(u_reported: str, *, domain: str = "value", per_unit: Fraction = Fraction(1)) -> Term:
     """A term whose budget, expanded with k = 2, is reported as ``u_reported``."""
-    return Term(name="u", standard_uncertainty=float(Fraction(u_reported) / per_unit / 2),
-                domain=domain, distribution="normal")
+    return Term(
+        name="u",
+        standard_uncertainty=float(Fraction(u_reported) / per_unit / 2),
+        domain=domain,
+        distribution="normal",
+    )
 
 
 def verdict(rule, win, law, bud, reading: str) -> str:
-    return decision.judge(rule, window=win, law=law, budget=bud, reading=parse_value(reading, "V")).verdict
+    return decision.judge(
+        rule, window=win, law=law, budget=bud, reading=parse_value(reading, "V")
+    ).verdict
 
 
 def linear_case(statement_kind: str, nominal: str, fs: str, spec: str, count: str):
@@ -102,8 +114,13 @@ class TestTheReportedExample:
 @pytest.mark.parametrize("kind", ["fs", "reading", "counts"])
 class TestLinearTies:
     @MANY
-    @given(nominal=decimals(-2000, 2000, 3), fs=decimals(1, 1000, 1), spec=decimals(1, 500, 3),
-           count=decimals(1, 9, 4), u=decimals(10, 99, 5))
+    @given(
+        nominal=decimals(-2000, 2000, 3),
+        fs=decimals(1, 1000, 1),
+        spec=decimals(1, 500, 3),
+        count=decimals(1, 9, 4),
+        u=decimals(10, 99, 5),
+    )
     def test_every_rule_at_both_ends(self, kind, nominal, fs, spec, count, u):
         """On each boundary of each rule's zones a reading written exactly there takes the
         favourable statement, and one a small step beyond it the other."""
@@ -127,20 +144,25 @@ class TestLinearTies:
             nb = RULES["non-binary"]
             if low + U <= high - U:
                 assert verdict(nb, win, law, bud, text(end - sign * U)) == "pass"
-                assert verdict(nb, win, law, bud, text(beyond(end - sign * U))) == "conditional-pass"
+                assert (
+                    verdict(nb, win, law, bud, text(beyond(end - sign * U))) == "conditional-pass"
+                )
             assert verdict(nb, win, law, bud, text(end)) in ("conditional-pass", "pass")
             assert verdict(nb, win, law, bud, text(beyond(end))) == "conditional-fail"
             assert verdict(nb, win, law, bud, text(end + sign * U)) == "conditional-fail"
             assert verdict(nb, win, law, bud, text(beyond(end + sign * U))) == "fail"
             # risk: the rule's acceptance limits are decimals; one written there passes
-            zone = decision.judge(RULES["risk"], window=win, law=law, budget=bud, reading=float(Fraction(nominal))).outcome.acceptance
+            zone = decision.judge(
+                RULES["risk"], window=win, law=law, budget=bud, reading=float(Fraction(nominal))
+            ).outcome.acceptance
             if not zone.empty:
                 limit = zone.low if sign < 0 else zone.high
                 assert verdict(RULES["risk"], win, law, bud, text(limit)) == "pass"
                 assert verdict(RULES["risk"], win, law, bud, text(beyond(limit))) == "fail"
                 # and the risk there is within the target (JCGM 106:2012 9.5, normal model)
-                pc = decision.conformance_probability(low=float(low), high=float(high), reading=float(limit),
-                                                      u=float(U) / 2)
+                pc = decision.conformance_probability(
+                    low=float(low), high=float(high), reading=float(limit), u=float(U) / 2
+                )
                 assert 1 - pc <= 0.02 + 1e-12
 
 
@@ -172,17 +194,31 @@ class TestOhmsTies:
             return
         bud = budget(terms=[], nominal=float(Fraction(nominal)), law=law, domain="deflection")
         r = Fraction(reading)
-        out = r + step(r) if (f(r) < f(Fraction(nominal))) == (law_name == "series") else r - step(r)
+        out = (
+            r + step(r) if (f(r) < f(Fraction(nominal))) == (law_name == "series") else r - step(r)
+        )
         for rule in RULES.values():  # with U = 0 every rule's zones meet at the tolerance limit
-            judged = lambda x: decision.judge(rule, window=win, law=law, budget=bud,  # noqa: E731
-                                              reading=float(x)).verdict
+
+            def judged(x):
+                return decision.judge(
+                    rule,
+                    window=win,
+                    law=law,
+                    budget=bud,
+                    reading=float(x),
+                ).verdict
+
             assert judged(r) == "pass", rule
             assert judged(out) == "fail", rule
         TESTED[law_name, "simple"] += 1
 
     @MANY
-    @given(centre=decimals(1, 999, 1), nominal=decimals(1, 9999, 1), reading=decimals(1, 9999, 1),
-           u=decimals(10, 99, 2))
+    @given(
+        centre=decimals(1, 999, 1),
+        nominal=decimals(1, 9999, 1),
+        reading=decimals(1, 9999, 1),
+        u=decimals(10, 99, 2),
+    )
     def test_guarded_on_the_arc(self, law_name, centre, nominal, reading, u):
         """With U reported in degrees, a reading whose deflection lies exactly on the guarded
         acceptance limit passes (ILAC-G8:09/2019 4.2.2, w = U)."""
@@ -196,8 +232,12 @@ class TestOhmsTies:
         if arc > 10**15:
             return
         assert arc == arc0
-        bud = budget(terms=[u_term(u, domain="deflection", per_unit=arc)], nominal=float(n), law=law,
-                     domain="deflection")
+        bud = budget(
+            terms=[u_term(u, domain="deflection", per_unit=arc)],
+            nominal=float(n),
+            law=law,
+            domain="deflection",
+        )
         if decision.reported_expanded(win, bud) != U_deg / arc:
             return  # the float budget rounded across a digit: not the case under test
         r = Fraction(reading)
@@ -207,8 +247,16 @@ class TestOhmsTies:
             return  # no acceptance zone, or that side of the arc ends at a stop (no limit)
         outward = (f(r) < f(n)) == (law_name == "series")  # a larger resistance on a series scale
         out = r + step(r) if outward else r - step(r)
-        judged = lambda x: decision.judge(RULES["guarded"], window=win, law=law, budget=bud,  # noqa: E731
-                                          reading=float(x)).verdict
+
+        def judged(x):
+            return decision.judge(
+                RULES["guarded"],
+                window=win,
+                law=law,
+                budget=bud,
+                reading=float(x),
+            ).verdict
+
         assert judged(r) == "pass"
         assert judged(out) == "fail"
         TESTED[law_name, "guarded"] += 1

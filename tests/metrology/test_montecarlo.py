@@ -22,14 +22,24 @@ ARC = 90.0
 def tolerance_of(u: float, ndig: int = 2) -> float:
     """JCGM 101:2008 7.2: u = c × 10^l with c an ndig-digit integer; δ = 10^l / 2."""
     c_digits = math.floor(math.log10(u)) - (ndig - 1)
-    return 0.5 * 10.0 ** c_digits
+    return 0.5 * 10.0**c_digits
 
 
 def budget_at(law, nominal: float, *, u_deg: float = 0.6, cal_rel: float = 1e-4):
-    terms = [uncertainty.Term(name="reading", standard_uncertainty=u_deg / ARC, domain="deflection",
-                              distribution="normal"),
-             uncertainty.Term(name="calibrator", standard_uncertainty=cal_rel * nominal, domain="value",
-                              distribution="normal")]
+    terms = [
+        uncertainty.Term(
+            name="reading",
+            standard_uncertainty=u_deg / ARC,
+            domain="deflection",
+            distribution="normal",
+        ),
+        uncertainty.Term(
+            name="calibrator",
+            standard_uncertainty=cal_rel * nominal,
+            domain="value",
+            distribution="normal",
+        ),
+    ]
     return uncertainty.budget(terms=terms, nominal=nominal, law=law, domain="deflection")
 
 
@@ -58,7 +68,7 @@ class TestValidationOnOhmsScales:
         z = norm.ppf((1 + p) / 2)  # = 2 for the normal indication
         assert v.along.mc_low == pytest.approx(f0_deg - z * u_deg, abs=2 * delta)
         assert v.along.mc_high == pytest.approx(f0_deg + z * u_deg, abs=2 * delta)
-        d_low = abs(f0_deg - bud.expanded * ARC - v.along.mc_low)   # JCGM 101 8.2
+        d_low = abs(f0_deg - bud.expanded * ARC - v.along.mc_low)  # JCGM 101 8.2
         d_high = abs(f0_deg + bud.expanded * ARC - v.along.mc_high)
         assert (v.along.d_low, v.along.d_high) == pytest.approx((d_low, d_high))
         assert v.along.validated == (d_low <= delta and d_high <= delta)
@@ -82,8 +92,10 @@ class TestValidationOnOhmsScales:
         law = LAWS[scale]
         bud = budget_at(law, nominal, u_deg=4.0)
         f0, u = law.fraction(nominal), bud.combined
-        a, b = (law.fraction(max(nominal - bud.expanded_value, 0.0)),
-                law.fraction(nominal + bud.expanded_value))
+        a, b = (
+            law.fraction(max(nominal - bud.expanded_value, 0.0)),
+            law.fraction(nominal + bud.expanded_value),
+        )
         lo, hi = sorted((a, b))
         coverage = norm.cdf((hi - f0) / u) - norm.cdf((lo - f0) / u)
         assert coverage < norm.cdf(2) - norm.cdf(-2) - 0.002  # it covers less than it claims
@@ -104,20 +116,28 @@ class TestAdaptiveProcedure:
         differ by 0.2 a, far more than δ, so the GUM result is not validated (JCGM 101 8.2)."""
         law = scales.Linear(high=10.0)
         a = 0.05
-        term = uncertainty.Term(name="readability", standard_uncertainty=a / math.sqrt(3), domain="value",
-                                distribution="rectangular")
+        term = uncertainty.Term(
+            name="readability",
+            standard_uncertainty=a / math.sqrt(3),
+            domain="value",
+            distribution="rectangular",
+        )
         bud = uncertainty.budget(terms=[term], nominal=5.0, law=law, domain="value")
         v = montecarlo.validate(bud, law, seed=3)
         p = norm.cdf(2.0) - norm.cdf(-2.0)
         assert v.along.mc_high - 5.0 == pytest.approx(p * a, abs=v.along.tolerance * 2)
-        assert v.along.d_high == pytest.approx((2 / math.sqrt(3) - p) * a, abs=v.along.tolerance * 2)
+        assert v.along.d_high == pytest.approx(
+            (2 / math.sqrt(3) - p) * a, abs=v.along.tolerance * 2
+        )
         assert not v.along.validated and v.in_value is None
 
     def test_no_uncertainty_is_refused(self):
         """A budget with nothing in it has nothing to validate."""
         law = scales.Linear(high=10.0)
         with pytest.raises(ValueError, match="no uncertainty"):
-            montecarlo.validate(uncertainty.budget(terms=[], nominal=5.0, law=law, domain="value"), law)
+            montecarlo.validate(
+                uncertainty.budget(terms=[], nominal=5.0, law=law, domain="value"), law
+            )
 
 
 def test_window_prints_both_results(capsys):
@@ -125,10 +145,35 @@ def test_window_prints_both_results(capsys):
     trials, and whether the linear result in ohms is validated (JCGM 101 8.2)."""
     from verirun.cli import main
 
-    assert main(["window", "--scale", "series-ohms", "--centre", "10", "--arc", "90", "--degrees", "2",
-                 "--at", "40", "--resolution", "1deg", "--u-applied", "0.04", "--monte-carlo",
-                 "--seed", "5"]) == 0
+    assert (
+        main(
+            [
+                "window",
+                "--scale",
+                "series-ohms",
+                "--centre",
+                "10",
+                "--arc",
+                "90",
+                "--degrees",
+                "2",
+                "--at",
+                "40",
+                "--resolution",
+                "1deg",
+                "--u-applied",
+                "0.04",
+                "--monte-carlo",
+                "--seed",
+                "5",
+            ]
+        )
+        == 0
+    )
     out = capsys.readouterr().out
     assert "Monte Carlo (JCGM 101:2008 7.9, 8.2)" in out and "seed 5" in out
     assert "linear result in the range's unit is NOT validated" in out
-    assert main(["window", "--full-scale", "10", "--percent-fs", "1", "--at", "5", "--monte-carlo"]) == 1
+    assert (
+        main(["window", "--full-scale", "10", "--percent-fs", "1", "--at", "5", "--monte-carlo"])
+        == 1
+    )

@@ -55,7 +55,9 @@ class TestLinear:
             Linear(low=1.0, high=1.0)
 
     @FAST
-    @given(x=st.floats(min_value=-1e3, max_value=1e3), high=st.floats(min_value=1e-3, max_value=1e4))
+    @given(
+        x=st.floats(min_value=-1e3, max_value=1e3), high=st.floats(min_value=1e-3, max_value=1e4)
+    )
     def test_round_trip(self, x, high):
         """Value to deflection and back returns the value."""
         law = Linear(high=high)
@@ -167,7 +169,9 @@ class TestSeriesPointerCurrent:
         """With Rx = Rc the pointer current is half the full-deflection current, half the arc."""
         i = series_pointer_current(EMF, RC, RC)
         assert i == pytest.approx(0.0625)  # derived: 1.5 / 24
-        assert i / series_full_scale_current(EMF, RC) == pytest.approx(SeriesOhms(centre=RC).fraction(RC))
+        assert i / series_full_scale_current(EMF, RC) == pytest.approx(
+            SeriesOhms(centre=RC).fraction(RC)
+        )
 
     @FAST
     @given(ratio=resistances)
@@ -181,7 +185,9 @@ class TestSeriesPointerCurrent:
 class TestSeriesResistanceFromCurrent:
     def test_centre_scale(self):
         """62.5 mA through the 12 ohm range means the unknown is 12 ohm."""
-        assert series_resistance_from_current(EMF, RC, 0.0625) == pytest.approx(12.0)  # 1.5/0.0625 - 12
+        assert series_resistance_from_current(EMF, RC, 0.0625) == pytest.approx(
+            12.0
+        )  # 1.5/0.0625 - 12
 
     def test_two_and_a_half_degrees_below_full(self):
         """2.5 degrees short of full deflection (121.875 mA) is 0.3077 ohm by both routes."""

@@ -14,32 +14,57 @@ def judged(*items):
 class TestSummarise:
     def test_counts_all_four_statements(self):
         """The non-binary rule's four statements (ILAC-G8:09/2019 4.2.3) are each counted."""
-        s = summarise(judged(("pass", True), ("conditional-pass", True), ("conditional-fail", False),
-                             ("fail", False), ("skipped", None), ("not-measured", None)), "non-binary")
-        assert s.counts() == {"points": 6, "pass": 1, "conditional-pass": 1, "conditional-fail": 1,
-                              "fail": 1, "skipped": 1, "not-measured": 1}
+        s = summarise(
+            judged(
+                ("pass", True),
+                ("conditional-pass", True),
+                ("conditional-fail", False),
+                ("fail", False),
+                ("skipped", None),
+                ("not-measured", None),
+            ),
+            "non-binary",
+        )
+        assert s.counts() == {
+            "points": 6,
+            "pass": 1,
+            "conditional-pass": 1,
+            "conditional-fail": 1,
+            "fail": 1,
+            "skipped": 1,
+            "not-measured": 1,
+        }
         assert s.counts_text() == "1 pass, 1 conditional pass, 1 conditional fail, 1 fail"
 
     def test_two_conditional_fails_are_a_statement(self):
         """Two conditional fails and nothing else still make a statement (ISO/IEC 17025:2017
         7.8.6.2): not "no results were measured"."""
-        s = summarise(judged(("conditional-fail", False), ("conditional-fail", False)), "non-binary")
+        s = summarise(
+            judged(("conditional-fail", False), ("conditional-fail", False)), "non-binary"
+        )
         assert s.overall == "conditional-fail"
         assert "No results were measured" not in s.statement()
         assert "0 pass, 0 conditional pass, 2 conditional fail, 0 fail" in s.statement()
         assert "A conditional fail means" in s.statement()
 
-    @pytest.mark.parametrize(("verdicts", "overall"), [
-        (["pass", "pass"], "pass"),
-        (["pass", "conditional-pass"], "conditional-pass"),
-        (["conditional-pass", "conditional-fail"], "conditional-fail"),
-        (["conditional-fail", "fail", "pass"], "fail"),
-        ([], "none"),
-    ])
+    @pytest.mark.parametrize(
+        ("verdicts", "overall"),
+        [
+            (["pass", "pass"], "pass"),
+            (["pass", "conditional-pass"], "conditional-pass"),
+            (["conditional-pass", "conditional-fail"], "conditional-fail"),
+            (["conditional-fail", "fail", "pass"], "fail"),
+            ([], "none"),
+        ],
+    )
     def test_overall_is_the_least_favourable(self, verdicts, overall):
         """The item's outcome is its least favourable statement (common practice, no source)."""
-        assert summarise(judged(*[(v, v in ("pass", "conditional-pass")) for v in verdicts]),
-                         "non-binary").overall == overall
+        assert (
+            summarise(
+                judged(*[(v, v in ("pass", "conditional-pass")) for v in verdicts]), "non-binary"
+            ).overall
+            == overall
+        )
 
     def test_guard_band_rejections_are_named(self):
         """Under a guarded rule (ILAC-G8:09/2019 4.2.2) a reading within tolerance but outside
@@ -71,8 +96,10 @@ class TestSummarise:
 
 
 class TestLabel:
-    @pytest.mark.parametrize("verdict", ["pass", "conditional-pass", "conditional-fail", "fail",
-                                         "skipped", "not-measured", "none"])
+    @pytest.mark.parametrize(
+        "verdict",
+        ["pass", "conditional-pass", "conditional-fail", "fail", "skipped", "not-measured", "none"],
+    )
     def test_never_empty(self, verdict):
         """Every verdict has a printed word (common practice, no source)."""
         assert label(verdict).strip()

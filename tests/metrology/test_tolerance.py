@@ -54,8 +54,12 @@ class TestWindowSeriesOhms:
         win = window(DegreesOfArc(degrees=2.5), 12.0, series(12.0, arc=100.0))
         # common practice, no source: 1.25 mA per degree, so the limits draw 62.5 -/+ 3.125 mA,
         # and Rx = E/I - Rc turns those currents into the window's ohms.
-        assert win.high == pytest.approx(series_resistance_from_current(1.5, 12.0, 0.0625 - 0.003125))
-        assert win.low == pytest.approx(series_resistance_from_current(1.5, 12.0, 0.0625 + 0.003125))
+        assert win.high == pytest.approx(
+            series_resistance_from_current(1.5, 12.0, 0.0625 - 0.003125)
+        )
+        assert win.low == pytest.approx(
+            series_resistance_from_current(1.5, 12.0, 0.0625 + 0.003125)
+        )
         assert win.high == pytest.approx(13.2632, abs=5e-5)  # by hand: 1.5/0.059375 - 12
         assert win.low == pytest.approx(10.8571, abs=5e-5)  # by hand: 1.5/0.065625 - 12
         assert series_pointer_current(1.5, 12.0, win.high) == pytest.approx(0.059375)
@@ -191,13 +195,16 @@ class TestWindowDigital:
 
 
 class TestStatementValidation:
-    @pytest.mark.parametrize("make", [
-        lambda: PercentOfFullScale(percent=-1.0),
-        lambda: ClassIndex(index=math.nan),
-        lambda: DegreesOfArc(degrees=math.inf),
-        lambda: PercentOfLength(percent=-0.5),
-        lambda: ValueStatement(reading=-0.5, counts=2),
-    ])
+    @pytest.mark.parametrize(
+        "make",
+        [
+            lambda: PercentOfFullScale(percent=-1.0),
+            lambda: ClassIndex(index=math.nan),
+            lambda: DegreesOfArc(degrees=math.inf),
+            lambda: PercentOfLength(percent=-0.5),
+            lambda: ValueStatement(reading=-0.5, counts=2),
+        ],
+    )
     def test_refuses_negative_or_non_finite_terms(self, make):
         """A negative or non-finite term, which would silently narrow a window, is refused."""
         with pytest.raises(ValueError, match="finite and not negative"):
@@ -235,8 +242,12 @@ class TestWindowProperties:
         assert win.low <= nominal <= win.high
 
     @FAST
-    @given(law=laws, f=st.floats(min_value=0.02, max_value=0.98),
-           d1=st.floats(min_value=0, max_value=30), d2=st.floats(min_value=0, max_value=30))
+    @given(
+        law=laws,
+        f=st.floats(min_value=0.02, max_value=0.98),
+        d1=st.floats(min_value=0, max_value=30),
+        d2=st.floats(min_value=0, max_value=30),
+    )
     def test_widens_with_the_tolerance(self, law, f, d1, d2):
         """A larger tolerance gives a window that contains the smaller one's."""
         small, large = sorted((d1, d2))
@@ -247,14 +258,21 @@ class TestWindowProperties:
         assert b.low <= a.low and a.high <= b.high
 
     @FAST
-    @given(nominal=st.floats(min_value=-1e3, max_value=1e3),
-           p1=st.floats(min_value=0, max_value=10), p2=st.floats(min_value=0, max_value=10))
+    @given(
+        nominal=st.floats(min_value=-1e3, max_value=1e3),
+        p1=st.floats(min_value=0, max_value=10),
+        p2=st.floats(min_value=0, max_value=10),
+    )
     def test_value_windows_widen_with_the_tolerance(self, nominal, p1, p2):
         """A larger percent of reading gives a window that contains the smaller one's."""
         small, large = sorted((p1, p2))
         ctx = RangeContext(law=Linear(high=1e3))
-        a = window(ValueStatement(reading=small, counts=1), nominal, RangeContext(law=ctx.law, count=1e-3))
-        b = window(ValueStatement(reading=large, counts=1), nominal, RangeContext(law=ctx.law, count=1e-3))
+        a = window(
+            ValueStatement(reading=small, counts=1), nominal, RangeContext(law=ctx.law, count=1e-3)
+        )
+        b = window(
+            ValueStatement(reading=large, counts=1), nominal, RangeContext(law=ctx.law, count=1e-3)
+        )
         assert b.low <= a.low <= nominal <= a.high <= b.high
 
 

@@ -24,7 +24,9 @@ from verirun.metrology.uncertainty import (
 class TestCoverageFactor:
     def test_common_levels(self):
         """99 % and 95 % two-sided normal coverage need k = 2.576 and 1.960."""
-        assert coverage_factor(0.99) == pytest.approx(norm.ppf(0.995), rel=1e-12)  # scipy cross-check
+        assert coverage_factor(0.99) == pytest.approx(
+            norm.ppf(0.995), rel=1e-12
+        )  # scipy cross-check
         assert coverage_factor(0.99) == pytest.approx(2.576, abs=5e-4)  # GUM table G.1
         assert coverage_factor(0.95) == pytest.approx(1.960, abs=5e-4)  # GUM table G.1
 
@@ -38,8 +40,12 @@ class TestCoverageFactor:
 class TestStandardFromLimit:
     def test_rectangular_and_triangular(self):
         """Rectangular limits divide by sqrt 3, triangular by sqrt 6."""
-        assert standard_from_limit(1.0, distribution="rectangular") == pytest.approx(0.57735027)  # GUM 4.3.7
-        assert standard_from_limit(1.0, distribution="triangular") == pytest.approx(0.40824829)  # GUM 4.3.9
+        assert standard_from_limit(1.0, distribution="rectangular") == pytest.approx(
+            0.57735027
+        )  # GUM 4.3.7
+        assert standard_from_limit(1.0, distribution="triangular") == pytest.approx(
+            0.40824829
+        )  # GUM 4.3.9
 
     def test_normal_needs_a_level(self):
         """A normal limit without its confidence level is refused."""
@@ -57,7 +63,9 @@ class TestCalibratorSpec:
 
     def test_limit_at_ten_volts(self):
         """±(10 ppm of output + 5 µV) at 10 V is ±105 µV."""
-        assert self.spec.limit(output=10.0) == pytest.approx(105e-6, rel=1e-12)  # by hand: 100 + 5 µV
+        assert self.spec.limit(output=10.0) == pytest.approx(
+            105e-6, rel=1e-12
+        )  # by hand: 100 + 5 µV
 
     def test_standard_uncertainty_at_99_percent(self):
         """At 99 % the 105 µV limit is a standard uncertainty of 40.8 µV (k = 2.576)."""
@@ -68,19 +76,25 @@ class TestCalibratorSpec:
     def test_limits_are_rectangular(self):
         """A specification stated as bare limits divides by sqrt 3."""
         spec = CalibratorSpec(output_ppm=10.0, floor=5e-6, level="limits")
-        assert spec.standard_uncertainty(output=10.0) == pytest.approx(105e-6 / math.sqrt(3))  # GUM 4.3.7
+        assert spec.standard_uncertainty(output=10.0) == pytest.approx(
+            105e-6 / math.sqrt(3)
+        )  # GUM 4.3.7
 
     def test_range_term_and_percent_form(self):
         """0.01 % of output + 0.005 % of a 20 V range at 10 V is 2 mV, as ppm or as percent."""
         spec = CalibratorSpec.from_percent(output_percent=0.01, range_percent=0.005, level=0.95)
         assert spec == CalibratorSpec(output_ppm=100.0, range_ppm=50.0, level=0.95)
-        assert spec.limit(output=10.0, range_value=20.0) == pytest.approx(2e-3)  # by hand: 1 mV + 1 mV
+        assert spec.limit(output=10.0, range_value=20.0) == pytest.approx(
+            2e-3
+        )  # by hand: 1 mV + 1 mV
 
     def test_term(self):
         """The calibrator's term is a normal value-domain contribution."""
         term = self.spec.term(output=-10.0)
         assert term.domain == "value" and term.distribution == "normal"
-        assert term.standard_uncertainty == pytest.approx(self.spec.standard_uncertainty(output=10.0))
+        assert term.standard_uncertainty == pytest.approx(
+            self.spec.standard_uncertainty(output=10.0)
+        )
 
     def test_refuses_bad_level(self):
         """A level given in percent rather than as a fraction is refused."""
@@ -107,7 +121,9 @@ class TestReadabilityTerm:
         """Half a degree on a 90 degree arc is a deflection-domain term of (0.5/90)/(2 sqrt 3)."""
         term = readability_term(division=1.0, fraction=0.5, unit="degrees", arc=90.0)
         assert term.domain == "deflection"
-        assert term.standard_uncertainty == pytest.approx((0.5 / 90.0) / math.sqrt(12))  # GUM F.2.2.1
+        assert term.standard_uncertainty == pytest.approx(
+            (0.5 / 90.0) / math.sqrt(12)
+        )  # GUM F.2.2.1
 
     def test_degrees_need_the_arc(self):
         """A resolution in degrees without the arc span is refused."""
@@ -128,14 +144,20 @@ class TestTerm:
 
 
 def _term(name: str, u: float, domain: str = "value", c: float = 1.0) -> Term:
-    return Term(name=name, standard_uncertainty=u, domain=domain, distribution="normal", sensitivity=c)
+    return Term(
+        name=name, standard_uncertainty=u, domain=domain, distribution="normal", sensitivity=c
+    )
 
 
 class TestBudget:
     def test_root_sum_square_in_value_domain(self):
         """3 mV and 4 mV combine to 5 mV and expand to 10 mV with k = 2."""
-        b = budget(terms=[_term("a", 3e-3), _term("b", 4e-3)], nominal=5.0,
-                   law=Linear(high=10.0), domain="value")
+        b = budget(
+            terms=[_term("a", 3e-3), _term("b", 4e-3)],
+            nominal=5.0,
+            law=Linear(high=10.0),
+            domain="value",
+        )
         assert isinstance(b, Budget)
         assert b.combined == pytest.approx(5e-3)  # common practice, no source: 3-4-5
         assert b.expanded == pytest.approx(10e-3)
@@ -143,7 +165,9 @@ class TestBudget:
 
     def test_sensitivity_scales_a_term(self):
         """A sensitivity of -2 doubles a term's contribution."""
-        b = budget(terms=[_term("a", 1e-3, c=-2.0)], nominal=1.0, law=Linear(high=2.0), domain="value")
+        b = budget(
+            terms=[_term("a", 1e-3, c=-2.0)], nominal=1.0, law=Linear(high=2.0), domain="value"
+        )
         assert b.contributions == pytest.approx((2e-3,))  # GUM 5.1.3: |c_i| u(x_i)
 
     def test_ohms_carried_into_arc_on_series_scale(self):
@@ -162,22 +186,32 @@ class TestBudget:
         """A degree readability term and an ohms calibrator term combine along the arc."""
         law = SeriesOhms(centre=10.0)
         read = readability_term(division=1.0, fraction=0.2, unit="degrees", arc=90.0)
-        b = budget(terms=[_term("calibrator", 0.01), read], nominal=10.0, law=law, domain="deflection")
+        b = budget(
+            terms=[_term("calibrator", 0.01), read], nominal=10.0, law=law, domain="deflection"
+        )
         expected = math.hypot(0.01 * 0.025, (0.2 / 90) / math.sqrt(12))  # by hand, GUM 5.1.2
         assert b.combined == pytest.approx(expected)
         assert b.expanded_value == pytest.approx(2 * expected / 0.025)
 
     def test_deflection_term_carried_into_value_domain(self):
         """On a 0..10 V scale 0.1 % of length is 10 mV in a value-domain budget."""
-        b = budget(terms=[_term("parallax", 1e-3, domain="deflection")], nominal=3.0,
-                   law=Linear(high=10.0), domain="value")
+        b = budget(
+            terms=[_term("parallax", 1e-3, domain="deflection")],
+            nominal=3.0,
+            law=Linear(high=10.0),
+            domain="value",
+        )
         assert b.combined == pytest.approx(0.01)  # derived from f = x / 10
 
     def test_infinity_end_of_an_ohms_scale(self):
         """At an open circuit the slope is zero: ohms terms vanish along the arc, U in ohms is infinite."""
         law = SeriesOhms(centre=10.0)
-        b = budget(terms=[_term("cal", 0.01), _term("read", 1e-3, domain="deflection")],
-                   nominal=math.inf, law=law, domain="deflection")
+        b = budget(
+            terms=[_term("cal", 0.01), _term("read", 1e-3, domain="deflection")],
+            nominal=math.inf,
+            law=law,
+            domain="deflection",
+        )
         assert b.contributions == (0.0, 1e-3)  # derived: df/dRx -> 0 as Rx -> infinity
         assert b.expanded_value == math.inf
 

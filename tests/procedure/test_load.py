@@ -68,27 +68,99 @@ class TestLoadProcedure:
         proc = load_procedure(write(tmp_path, GOOD))
         assert proc.sha256 == hashlib.sha256(GOOD.encode()).hexdigest()
 
-    @pytest.mark.parametrize("old, new, line, field, words", [
-        ("full-scale: 10 V\n", "full-scale: 10 A\n", 7, "ranges[1].full-scale", "expected volts"),
-        ("    points: [2 V, 10]", "    points: [2 V, 10, 12 V]", 11, "ranges[1].points[3]", "beyond the full-scale"),
-        ("centre: 10 ohm", "centre: -10 ohm", 15, "ranges[2].centre", "positive"),
-        ("accuracy: {degrees: 3}", "accuracy: {degrees: 3, percent-of-reading: 1}", 17, "ranges[2].accuracy", "cannot be combined"),
-        ("accuracy: {percent-of-full-scale: 2}", "accuracy: {percent-of-fullscale: 2}", 9, "ranges[1].accuracy.percent-of-fullscale", "unknown key"),
-        ("function: dc-voltage", "function: dc-volts", 6, "ranges[1].function", "dc-voltage"),
-        ("frequency: 10 kHz}]", "frequency: 30 kHz}]", 27, "ranges[3].points[2]", "no accuracy band"),
-        ("    arc: 90\n", "    arc: 400\n", 16, "ranges[2].arc", "full turn"),
-        ("  - id: ohm\n", "  - id: dcv-10\n", 12, "ranges[2].id", "duplicate range id"),
-        ("    scale: series-ohms\n", "", 12, "ranges[2].scale", "required for a resistance range: write scale: series-ohms"),
-        ("    scale: series-ohms\n", "    scale: linear\n", 15, "ranges[2].centre", "linear scale has no centre"),
-        ("    full-scale: 10 V\n    arc: 90 deg\n", "    arc: 90 deg\n", 5, "ranges[1].full-scale",
-         "required for a linear scale: write full-scale:"),
-        ("    centre: 10 ohm\n", "", 12, "ranges[2].centre", "required for a series-ohms scale: write centre:"),
-        ("    resolution: 0.5 deg\n", "", 12, "ranges[2].resolution", "required, but missing: the step the meter is read to"),
-        ("accuracy: {degrees: 3}", "accuracy: {degrees: 3 V}", 17, "ranges[2].accuracy.degrees",
-         "in degrees of arc (3 or 3 deg)"),
-        ("accuracy: {percent-of-full-scale: 2}", "accuracy: {percent-of-full-scale: 2 deg}", 9,
-         "ranges[1].accuracy.percent-of-full-scale", "in percent (2 or 2 %)"),
-    ])
+    @pytest.mark.parametrize(
+        "old, new, line, field, words",
+        [
+            (
+                "full-scale: 10 V\n",
+                "full-scale: 10 A\n",
+                7,
+                "ranges[1].full-scale",
+                "expected volts",
+            ),
+            (
+                "    points: [2 V, 10]",
+                "    points: [2 V, 10, 12 V]",
+                11,
+                "ranges[1].points[3]",
+                "beyond the full-scale",
+            ),
+            ("centre: 10 ohm", "centre: -10 ohm", 15, "ranges[2].centre", "positive"),
+            (
+                "accuracy: {degrees: 3}",
+                "accuracy: {degrees: 3, percent-of-reading: 1}",
+                17,
+                "ranges[2].accuracy",
+                "cannot be combined",
+            ),
+            (
+                "accuracy: {percent-of-full-scale: 2}",
+                "accuracy: {percent-of-fullscale: 2}",
+                9,
+                "ranges[1].accuracy.percent-of-fullscale",
+                "unknown key",
+            ),
+            ("function: dc-voltage", "function: dc-volts", 6, "ranges[1].function", "dc-voltage"),
+            (
+                "frequency: 10 kHz}]",
+                "frequency: 30 kHz}]",
+                27,
+                "ranges[3].points[2]",
+                "no accuracy band",
+            ),
+            ("    arc: 90\n", "    arc: 400\n", 16, "ranges[2].arc", "full turn"),
+            ("  - id: ohm\n", "  - id: dcv-10\n", 12, "ranges[2].id", "duplicate range id"),
+            (
+                "    scale: series-ohms\n",
+                "",
+                12,
+                "ranges[2].scale",
+                "required for a resistance range: write scale: series-ohms",
+            ),
+            (
+                "    scale: series-ohms\n",
+                "    scale: linear\n",
+                15,
+                "ranges[2].centre",
+                "linear scale has no centre",
+            ),
+            (
+                "    full-scale: 10 V\n    arc: 90 deg\n",
+                "    arc: 90 deg\n",
+                5,
+                "ranges[1].full-scale",
+                "required for a linear scale: write full-scale:",
+            ),
+            (
+                "    centre: 10 ohm\n",
+                "",
+                12,
+                "ranges[2].centre",
+                "required for a series-ohms scale: write centre:",
+            ),
+            (
+                "    resolution: 0.5 deg\n",
+                "",
+                12,
+                "ranges[2].resolution",
+                "required, but missing: the step the meter is read to",
+            ),
+            (
+                "accuracy: {degrees: 3}",
+                "accuracy: {degrees: 3 V}",
+                17,
+                "ranges[2].accuracy.degrees",
+                "in degrees of arc (3 or 3 deg)",
+            ),
+            (
+                "accuracy: {percent-of-full-scale: 2}",
+                "accuracy: {percent-of-full-scale: 2 deg}",
+                9,
+                "ranges[1].accuracy.percent-of-full-scale",
+                "in percent (2 or 2 %)",
+            ),
+        ],
+    )
     def test_each_problem_names_file_line_and_field(self, tmp_path, old, new, line, field, words):
         """A mistake is reported as file:line: field: message with the line where it is written."""
         assert old in GOOD
@@ -96,11 +168,15 @@ class TestLoadProcedure:
         with pytest.raises(ProcedureError) as info:
             load_procedure(path)
         problems = info.value.problems
-        assert any(p.startswith(f"{path}:{line}: {field}: ") and words in p for p in problems), problems
+        assert any(p.startswith(f"{path}:{line}: {field}: ") and words in p for p in problems), (
+            problems
+        )
 
     def test_every_problem_reported_at_once(self, tmp_path):
         """Several mistakes in one file are all reported, not just the first."""
-        text = GOOD.replace("full-scale: 10 V\n", "full-scale: ten\n", 1).replace("centre: 10 ohm", "centre: x")
+        text = GOOD.replace("full-scale: 10 V\n", "full-scale: ten\n", 1).replace(
+            "centre: 10 ohm", "centre: x"
+        )
         with pytest.raises(ProcedureError) as info:
             load_procedure(write(tmp_path, text))
         assert len(info.value.problems) >= 2
@@ -159,8 +235,9 @@ class TestMessagesNameWhatToWrite:
     def test_accuracy_terms_may_carry_their_units(self, tmp_path):
         """`degrees: 3 deg` and `percent-of-full-scale: 2 %` mean the same as the bare numbers
         (the README: quantities carry units)."""
-        text = GOOD.replace("{degrees: 3}", "{degrees: 3 deg}").replace("{percent-of-full-scale: 2}",
-                                                                         "{percent-of-full-scale: 2 %}")
+        text = GOOD.replace("{degrees: 3}", "{degrees: 3 deg}").replace(
+            "{percent-of-full-scale: 2}", "{percent-of-full-scale: 2 %}"
+        )
         with_units = load_procedure(write(tmp_path, text))
         bare = load_procedure(write(tmp_path, GOOD, "bare.yaml"))
         assert [r.bands for r in with_units.ranges] == [r.bands for r in bare.ranges]
@@ -172,9 +249,13 @@ class TestMessagesNameWhatToWrite:
 
     def test_structure_and_range_problems_in_one_pass(self, tmp_path):
         """An unknown key in one range and a wrong unit in another are both reported at once."""
-        text = GOOD.replace("    arc: 90 deg\n", "    arcs: 90 deg\n", 1).replace("centre: 10 ohm", "centre: 10 V")
+        text = GOOD.replace("    arc: 90 deg\n", "    arcs: 90 deg\n", 1).replace(
+            "centre: 10 ohm", "centre: 10 V"
+        )
         with pytest.raises(ProcedureError) as info:
             load_procedure(write(tmp_path, text))
         problems = info.value.problems
         assert any("ranges[1].arcs: unknown key" in p for p in problems), problems
-        assert any("ranges[2].centre: '10 V' is in volts, expected ohms" in p for p in problems), problems
+        assert any("ranges[2].centre: '10 V' is in volts, expected ohms" in p for p in problems), (
+            problems
+        )

@@ -28,8 +28,12 @@ def _pg_bin() -> Path | None:
     found = shutil.which("pg_ctl")
     if found:
         return Path(os.path.realpath(found)).parent
-    versions = sorted(glob.glob("/usr/lib/postgresql/*/bin/pg_ctl"),
-                      key=lambda p: int(Path(p).parent.parent.name) if Path(p).parent.parent.name.isdigit() else 0)
+    versions = sorted(
+        glob.glob("/usr/lib/postgresql/*/bin/pg_ctl"),
+        key=lambda p: (
+            int(Path(p).parent.parent.name) if Path(p).parent.parent.name.isdigit() else 0
+        ),
+    )
     return Path(versions[-1]).parent if versions else None
 
 
@@ -52,10 +56,15 @@ def pg_server():
     bin_dir = _pg_bin()
     if bin_dir is None:
         if os.environ.get("CI", "").lower() == "true":
-            pytest.fail("CI must run the PostgreSQL tests, but no PostgreSQL server binaries were found"
-                        " (.ci/run installs the distribution's postgresql package)")
+            pytest.fail(
+                "CI must run the PostgreSQL tests, but no PostgreSQL server binaries were found"
+                " (.ci/run installs the distribution's postgresql package)"
+            )
         pytest.skip("no PostgreSQL server binaries (pg_ctl, initdb) on this machine")
-    if os.geteuid() == 0 and subprocess.run(["id", "postgres"], capture_output=True).returncode != 0:
+    if (
+        os.geteuid() == 0
+        and subprocess.run(["id", "postgres"], capture_output=True).returncode != 0
+    ):
         subprocess.run(["useradd", "--system", "--no-create-home", "postgres"], check=True)
     root = Path(tempfile.mkdtemp(prefix="verirun-pg-"))
     data, sockets = root / "data", root / "sock"
@@ -64,12 +73,45 @@ def pg_server():
         shutil.chown(root, "postgres")
         shutil.chown(sockets, "postgres")
     port = _free_port()
-    subprocess.run(_as_server_user([str(bin_dir / "initdb"), "-D", str(data), "-U", "verirun", "--auth=trust",
-                                    "--encoding=UTF8", "--no-sync"]), check=True, capture_output=True)
-    options = (f"-p {port} -k {sockets} -c listen_addresses=127.0.0.1 -c fsync=off"
-               " -c synchronous_commit=off -c full_page_writes=off -c max_connections=60")
-    subprocess.run(_as_server_user([str(bin_dir / "pg_ctl"), "-D", str(data), "-o", options, "-w", "-t", "60",
-                                    "-l", str(root / "server.log"), "start"]), check=True, capture_output=True)
+    subprocess.run(
+        _as_server_user(
+            [
+                str(bin_dir / "initdb"),
+                "-D",
+                str(data),
+                "-U",
+                "verirun",
+                "--auth=trust",
+                "--encoding=UTF8",
+                "--no-sync",
+            ]
+        ),
+        check=True,
+        capture_output=True,
+    )
+    options = (
+        f"-p {port} -k {sockets} -c listen_addresses=127.0.0.1 -c fsync=off"
+        " -c synchronous_commit=off -c full_page_writes=off -c max_connections=60"
+    )
+    subprocess.run(
+        _as_server_user(
+            [
+                str(bin_dir / "pg_ctl"),
+                "-D",
+                str(data),
+                "-o",
+                options,
+                "-w",
+                "-t",
+                "60",
+                "-l",
+                str(root / "server.log"),
+                "start",
+            ]
+        ),
+        check=True,
+        capture_output=True,
+    )
     base = f"postgresql://verirun@127.0.0.1:{port}"
     try:
         import psycopg
@@ -85,8 +127,13 @@ def pg_server():
         from verirun.register.db import forget_open
 
         forget_open()
-        subprocess.run(_as_server_user([str(bin_dir / "pg_ctl"), "-D", str(data), "-m", "immediate", "-w",
-                                        "stop"]), check=False, capture_output=True)
+        subprocess.run(
+            _as_server_user(
+                [str(bin_dir / "pg_ctl"), "-D", str(data), "-m", "immediate", "-w", "stop"]
+            ),
+            check=False,
+            capture_output=True,
+        )
         shutil.rmtree(root, ignore_errors=True)
 
 
@@ -134,37 +181,57 @@ class _Typed:
         return parse_entry(self._typed.pop(0), point)
 
 
-def close_run(runs_dir: Path, *, serial: str = "PV3-0001", readings=("2.00", "5.00", "8.00"),
-              when: dt.datetime | None = None, bench: str = "bench.yaml", simulated: bool = False,
-              as_left_of: Path | None = None):
+def close_run(
+    runs_dir: Path,
+    *,
+    serial: str = "PV3-0001",
+    readings=("2.00", "5.00", "8.00"),
+    when: dt.datetime | None = None,
+    bench: str = "bench.yaml",
+    simulated: bool = False,
+    as_left_of: Path | None = None,
+):
     """Run the test procedure on the simulated calibrator and close it; return what it left.
 
     ``simulated=False`` records it as a calibration (the record says so; the calibrator driven
     is still the simulated one), so that it counts in an item's history and due date.
     """
     from verirun.clock import VirtualClock
+    from verirun.conduct import as_found_of, execute
     from verirun.console import QuietConsole
     from verirun.engine import RunContext
     from verirun.lab import load_lab
     from verirun.procedure.load import load_procedure
     from verirun.register.standards import load_bench
-    from verirun.conduct import execute
-
-    from verirun.conduct import as_found_of
 
     when = when or dt.datetime(2026, 3, 1, 9, 0, tzinfo=dt.timezone.utc)
     lab = load_lab(DATA / "lab.yaml")
     procedure = load_procedure(DATA / "procedure.yaml")
-    as_found = None if as_left_of is None else as_found_of(as_left_of, serial=serial, procedure=procedure,
-                                                            adjustment="span trimmed")
-    context = RunContext(lab=lab.lab.model_dump(mode="json"), customer={"name": "Test Customer", "address": []},
-                         item={"serial": serial, "asset": None, "condition": "No damage seen.", "received": None},
-                         operator="tester", simulated=simulated,
-                         environment={"temperature_c": 23.0, "humidity_pct": 40.0}, as_found=as_found)
-    return execute(procedure=procedure, bench=load_bench(DATA / bench),
-                   context=context, readings=_Typed(list(readings)), console=QuietConsole(),
-                   runs_dir=runs_dir, reports_dir=runs_dir.parent / "reports", simulate=True,
-                   clock=VirtualClock(when))
+    as_found = (
+        None
+        if as_left_of is None
+        else as_found_of(as_left_of, serial=serial, procedure=procedure, adjustment="span trimmed")
+    )
+    context = RunContext(
+        lab=lab.lab.model_dump(mode="json"),
+        customer={"name": "Test Customer", "address": []},
+        item={"serial": serial, "asset": None, "condition": "No damage seen.", "received": None},
+        operator="tester",
+        simulated=simulated,
+        environment={"temperature_c": 23.0, "humidity_pct": 40.0},
+        as_found=as_found,
+    )
+    return execute(
+        procedure=procedure,
+        bench=load_bench(DATA / bench),
+        context=context,
+        readings=_Typed(list(readings)),
+        console=QuietConsole(),
+        runs_dir=runs_dir,
+        reports_dir=runs_dir.parent / "reports",
+        simulate=True,
+        clock=VirtualClock(when),
+    )
 
 
 @pytest.fixture

@@ -5,8 +5,8 @@ from __future__ import annotations
 import uuid
 
 import pytest
-
 from at_the_bench import calibrator_at_the_bench
+
 from verirun.cli import main
 from verirun.register.db import RegisterError, url_of
 
@@ -53,15 +53,54 @@ class TestCommandLine:
         data = Path(__file__).resolve().parent.parent / "data" / "register"
         monkeypatch.delenv("VERIRUN_REGISTER", raising=False)
         name = str(tmp_path / "lab-register.db")
-        assert main(["register", "standard", "--from-bench", str(data / "bench.yaml"), "--register", name]) == 0
+        assert (
+            main(
+                [
+                    "register",
+                    "standard",
+                    "--from-bench",
+                    str(data / "bench.yaml"),
+                    "--register",
+                    name,
+                ]
+            )
+            == 0
+        )
         # A calibration at the bench (a dry run takes no number from the lab's sequence).
         with calibrator_at_the_bench():
-            assert main(["run", str(data / "procedure.yaml"), "--bench", str(data / "bench-by-asset.yaml"),
-                         "--readings", str(data / "readings.csv"), "--serial", "CLI-1", "--condition", "as new",
-                         "--customer", "Test Customer", "--lab", str(data / "lab.yaml"), "--temperature", "23",
-                         "--humidity", "40", "--register", name]) == 0
+            assert (
+                main(
+                    [
+                        "run",
+                        str(data / "procedure.yaml"),
+                        "--bench",
+                        str(data / "bench-by-asset.yaml"),
+                        "--readings",
+                        str(data / "readings.csv"),
+                        "--serial",
+                        "CLI-1",
+                        "--condition",
+                        "as new",
+                        "--customer",
+                        "Test Customer",
+                        "--lab",
+                        str(data / "lab.yaml"),
+                        "--temperature",
+                        "23",
+                        "--humidity",
+                        "40",
+                        "--register",
+                        name,
+                    ]
+                )
+                == 0
+            )
         reports = list((tmp_path / "reports").iterdir())
-        assert len(reports) == 1 and reports[0].name.startswith("RTL-") and reports[0].name.endswith("-00001.html")
+        assert (
+            len(reports) == 1
+            and reports[0].name.startswith("RTL-")
+            and reports[0].name.endswith("-00001.html")
+        )
         capsys.readouterr()
         assert main(["runs", "--json", "--register", name]) == 0
         import json
@@ -71,7 +110,8 @@ class TestCommandLine:
 
     @pytest.mark.parametrize("renewed", [False, True])
     def test_a_run_on_a_bench_naming_its_standard_by_asset_resumes_with_that_bench(
-            self, tmp_path, capsys, monkeypatch, renewed):
+        self, tmp_path, capsys, monkeypatch, renewed
+    ):
         """A run stopped part-way on a bench file that names its calibrator by asset resumes with
         `--bench` that same file: the standard is taken from the register again, so the bench is
         the one the run started with (or, after the standard's recalibration was entered, the same
@@ -82,30 +122,102 @@ class TestCommandLine:
         data = Path(__file__).resolve().parent.parent / "data" / "register"
         monkeypatch.delenv("VERIRUN_REGISTER", raising=False)
         name = str(tmp_path / "lab-register.db")
-        assert main(["register", "standard", "--from-bench", str(data / "bench.yaml"), "--register", name]) == 0
+        assert (
+            main(
+                [
+                    "register",
+                    "standard",
+                    "--from-bench",
+                    str(data / "bench.yaml"),
+                    "--register",
+                    name,
+                ]
+            )
+            == 0
+        )
         stopped = tmp_path / "stopped.csv"
-        stopped.write_text("range,at,reading\ndcv-10,2 V,2.01 V\ndcv-10,5 V,abort\n", encoding="utf-8")
+        stopped.write_text(
+            "range,at,reading\ndcv-10,2 V,2.01 V\ndcv-10,5 V,abort\n", encoding="utf-8"
+        )
         rest = tmp_path / "rest.csv"
-        rest.write_text("range,at,reading\ndcv-10,5 V,5.02 V\ndcv-10,8 V,7.98 V\n", encoding="utf-8")
+        rest.write_text(
+            "range,at,reading\ndcv-10,5 V,5.02 V\ndcv-10,8 V,7.98 V\n", encoding="utf-8"
+        )
         common = ["--lab", str(data / "lab.yaml")]
         bench = calibrator_at_the_bench()  # a calibration: the register numbers it
         bench.__enter__()
-        assert main(["run", str(data / "procedure.yaml"), "--bench", str(data / "bench-by-asset.yaml"),
-                     "--readings", str(stopped), "--serial", "RES-1", "--customer", "C", "--condition", "as new",
-                     "--temperature", "23", "--humidity", "40", "--register", name, *common]) == 2
+        assert (
+            main(
+                [
+                    "run",
+                    str(data / "procedure.yaml"),
+                    "--bench",
+                    str(data / "bench-by-asset.yaml"),
+                    "--readings",
+                    str(stopped),
+                    "--serial",
+                    "RES-1",
+                    "--customer",
+                    "C",
+                    "--condition",
+                    "as new",
+                    "--temperature",
+                    "23",
+                    "--humidity",
+                    "40",
+                    "--register",
+                    name,
+                    *common,
+                ]
+            )
+            == 2
+        )
         (run_dir,) = (tmp_path / "runs").iterdir()
         if renewed:
-            assert main(["register", "standard", "--from-bench", str(data / "bench.yaml"), "--certificate",
-                         "RT-CC-0002", "--due", "2100-06-30", "--register", name]) == 0
+            assert (
+                main(
+                    [
+                        "register",
+                        "standard",
+                        "--from-bench",
+                        str(data / "bench.yaml"),
+                        "--certificate",
+                        "RT-CC-0002",
+                        "--due",
+                        "2100-06-30",
+                        "--register",
+                        name,
+                    ]
+                )
+                == 0
+            )
         capsys.readouterr()
         try:
-            assert main(["resume", str(run_dir), "--bench", str(data / "bench-by-asset.yaml"),
-                         "--readings", str(rest), "--register", name]) == 0, capsys.readouterr().err
+            assert (
+                main(
+                    [
+                        "resume",
+                        str(run_dir),
+                        "--bench",
+                        str(data / "bench-by-asset.yaml"),
+                        "--readings",
+                        str(rest),
+                        "--register",
+                        name,
+                    ]
+                )
+                == 0
+            ), capsys.readouterr().err
         finally:
             bench.__exit__(None, None, None)
         record = json.loads((run_dir / "record.json").read_text())
         assert record["run"]["status"] == "complete"
         assert record["run"]["certificate_number"].endswith("-00001")
-        assert any("certificate RT-CC-0002, due 2100-06-30" in note["text"] for note in record["notes"]) == renewed
+        assert (
+            any(
+                "certificate RT-CC-0002, due 2100-06-30" in note["text"] for note in record["notes"]
+            )
+            == renewed
+        )
         # Without the register the asset cannot be resolved: a clear error, not a traceback.
         assert main(["resume", str(run_dir), "--bench", str(data / "bench-by-asset.yaml")]) == 1

@@ -58,23 +58,46 @@ class TestFitDrift:
 
 
 def _calibrate(closed_run, runs_dir, serial, year, readings, **kw):
-    return closed_run(runs_dir, serial=serial, readings=readings,
-                      when=dt.datetime(year, 3, 1, 9, tzinfo=UTC), **kw)
+    return closed_run(
+        runs_dir,
+        serial=serial,
+        readings=readings,
+        when=dt.datetime(year, 3, 1, 9, tzinfo=UTC),
+        **kw,
+    )
 
 
 class TestItemHistory:
     def test_only_as_found_calibrations_count_and_a_correction_by_its_latest_revision(
-            self, register, tmp_path, closed_run):
+        self, register, tmp_path, closed_run
+    ):
         """A dry run and the as-left pass after an adjustment are left out; an amended reading
         counts as corrected. The 2 V point reads 2.00, 2.02 (corrected from 2.25, a fail), 2.04 V
         over three years: +0, +10, +20 % of the ±0.2 V tolerance, +10 % a year."""
         runs_dir = tmp_path / "runs"
         _calibrate(closed_run, runs_dir, "H-1", 2021, ("2.00", "5.00", "8.00"))
         second = _calibrate(closed_run, runs_dir, "H-1", 2022, ("2.25", "5.00", "8.00"))
-        assert main(["amend", str(second.run_dir), "--point", "1", "--reading", "2.02", "--reason", "misread",
-                     "--reports", str(tmp_path / "reports")]) == 0
+        assert (
+            main(
+                [
+                    "amend",
+                    str(second.run_dir),
+                    "--point",
+                    "1",
+                    "--reading",
+                    "2.02",
+                    "--reason",
+                    "misread",
+                    "--reports",
+                    str(tmp_path / "reports"),
+                ]
+            )
+            == 0
+        )
         found = _calibrate(closed_run, runs_dir, "H-1", 2023, ("2.04", "5.00", "8.30"))
-        _calibrate(closed_run, runs_dir, "H-1", 2023, ("1.90", "5.00", "8.00"), as_left_of=found.run_dir)
+        _calibrate(
+            closed_run, runs_dir, "H-1", 2023, ("1.90", "5.00", "8.00"), as_left_of=found.run_dir
+        )
         _calibrate(closed_run, runs_dir, "H-1", 2024, ("1.50", "5.00", "8.00"), simulated=True)
         history = item_history(register, serial="H-1", today=dt.date(2024, 6, 1))
         assert history.table["uid"].nunique() == 3
@@ -82,10 +105,15 @@ class TestItemHistory:
         assert two == pytest.approx([0.0, 0.1, 0.2])
         assert history.drifts["dcv-10@2V"].slope == pytest.approx(0.1 * YEAR_DAYS / 365, rel=2e-3)
         assert history.last_in_tolerance is False  # the 2023 as-found run failed at 8 V
-        assert (history.model_calibrations, history.model_in_tolerance) == (3, 2)  # 2022 by its correction
+        assert (history.model_calibrations, history.model_in_tolerance) == (
+            3,
+            2,
+        )  # 2022 by its correction
         assert "shorten the interval" in history.staircase()
 
-    def test_exports_and_an_html_page_that_escapes_the_serial(self, register, tmp_path, closed_run, capsys):
+    def test_exports_and_an_html_page_that_escapes_the_serial(
+        self, register, tmp_path, closed_run, capsys
+    ):
         """CSV and JSON carry every result; the HTML page has one SVG plot per test point and
         a hostile serial appears as text, never as markup."""
         from bs4 import BeautifulSoup

@@ -8,5 +8,12 @@ from verirun.bench.calibrator import Calibrator
 from verirun.bench.profile import FUNCTIONS, DriverProfile, load_profile
 from verirun.bench.safety import HazardLimits, is_hazardous, output_guard
 
-__all__ = ["FUNCTIONS", "Calibrator", "DriverProfile", "HazardLimits", "is_hazardous", "load_profile",
-           "output_guard"]
+__all__ = [
+    "FUNCTIONS",
+    "Calibrator",
+    "DriverProfile",
+    "HazardLimits",
+    "is_hazardous",
+    "load_profile",
+    "output_guard",
+]

@@ -16,7 +16,6 @@ from typing import Any
 from verirun.bench.profile import DriverProfile, load_profile
 from verirun.errors import BenchError
 
-
 # SCPI error queue entry: a signed integer code, a comma, then a (usually quoted) description.
 _ERROR_ENTRY = re.compile(r"\s*([+-]?\d+)\s*(?:,\s*(.*?))?\s*$", re.DOTALL)
 
@@ -46,8 +45,14 @@ class Calibrator:
         self._empty_replies: set[str] = set()
 
     @classmethod
-    def open(cls, visa_library: str, resource_name: str, profile: DriverProfile | str | Path, *,
-             timeout_ms: int | None = None) -> "Calibrator":
+    def open(
+        cls,
+        visa_library: str,
+        resource_name: str,
+        profile: DriverProfile | str | Path,
+        *,
+        timeout_ms: int | None = None,
+    ) -> "Calibrator":
         """Open ``resource_name`` through the VISA library ``visa_library``.
 
         Parameters
@@ -70,13 +75,17 @@ class Calibrator:
         profile = profile if isinstance(profile, DriverProfile) else load_profile(profile)
         timeout = profile.link.timeout_ms if timeout_ms is None else timeout_ms
         if isinstance(timeout, bool) or not isinstance(timeout, int) or timeout <= 0:
-            raise BenchError(f"timeout_ms must be a positive whole number of milliseconds, got {timeout!r}")
+            raise BenchError(
+                f"timeout_ms must be a positive whole number of milliseconds, got {timeout!r}"
+            )
         import pyvisa  # here, not at the top: it costs ~0.1 s that commands which never open a bench skip
 
         try:
             manager = pyvisa.ResourceManager(visa_library)
         except (pyvisa.errors.Error, OSError, ValueError) as exc:
-            raise BenchError(f"cannot load the VISA library {visa_library!r}: {_first_line(exc)}") from exc
+            raise BenchError(
+                f"cannot load the VISA library {visa_library!r}: {_first_line(exc)}"
+            ) from exc
         try:
             resource = manager.open_resource(
                 resource_name,
@@ -85,7 +94,9 @@ class Calibrator:
                 timeout=timeout,
             )
         except (pyvisa.errors.Error, OSError, ValueError) as exc:
-            raise BenchError(f"cannot open the calibrator at {resource_name!r}: {_first_line(exc)}") from exc
+            raise BenchError(
+                f"cannot open the calibrator at {resource_name!r}: {_first_line(exc)}"
+            ) from exc
         calibrator = cls(resource, profile)
         # Keep the manager alive with the resource; closing it would close every resource it opened.
         calibrator._manager = manager
@@ -107,7 +118,9 @@ class Calibrator:
         with self._lock:
             answer = self._query(command).strip()
         if not answer:
-            raise BenchError("the calibrator sent an empty identity", command=command, answer=answer)
+            raise BenchError(
+                "the calibrator sent an empty identity", command=command, answer=answer
+            )
         return answer
 
     def reset(self) -> None:
@@ -168,9 +181,12 @@ class Calibrator:
             return True
         if answer in state.off_replies:
             return False
-        raise BenchError("the calibrator's reply to the output-state query is neither on"
-                         f" ({', '.join(state.on_replies)}) nor off ({', '.join(state.off_replies)})",
-                         command=state.query, answer=answer)
+        raise BenchError(
+            "the calibrator's reply to the output-state query is neither on"
+            f" ({', '.join(state.on_replies)}) nor off ({', '.join(state.off_replies)})",
+            command=state.query,
+            answer=answer,
+        )
 
     def errors(self) -> list[tuple[int, str]]:
         """Empty the instrument's error queue and return its entries, oldest first.
@@ -209,8 +225,11 @@ class Calibrator:
             entries = self._drain()
         if entries:
             found = "; ".join(f"{code} {text}" if text else str(code) for code, text, _ in entries)
-            raise BenchError(f"the calibrator reported an error after the command: {found}",
-                             command=command, answer="; ".join(raw for _, _, raw in entries))
+            raise BenchError(
+                f"the calibrator reported an error after the command: {found}",
+                command=command,
+                answer="; ".join(raw for _, _, raw in entries),
+            )
 
     def _drain(self) -> list[tuple[int, str, str]]:
         queue = self._profile.error_queue
@@ -223,16 +242,23 @@ class Calibrator:
                     return entries
                 match = _ERROR_ENTRY.fullmatch(raw)
                 if match is None:
-                    raise BenchError("the calibrator's reply to the error-queue query is not an error"
-                                     " entry (code,description)", command=queue.query, answer=raw)
+                    raise BenchError(
+                        "the calibrator's reply to the error-queue query is not an error"
+                        " entry (code,description)",
+                        command=queue.query,
+                        answer=raw,
+                    )
                 code = int(match.group(1))
                 if code == queue.empty_code:
                     if len(self._empty_replies) < 8:
                         self._empty_replies.add(raw)
                     return entries
                 entries.append((code, (match.group(2) or "").strip().strip('"'), raw))
-        raise BenchError(f"the error queue was still not empty after {queue.max_reads} reads",
-                         command=queue.query, answer="; ".join(raw for _, _, raw in entries[-3:]))
+        raise BenchError(
+            f"the error queue was still not empty after {queue.max_reads} reads",
+            command=queue.query,
+            answer="; ".join(raw for _, _, raw in entries[-3:]),
+        )
 
     # _write and _query are called with the lock held.
 
@@ -264,8 +290,10 @@ def _link_problem(exc: Exception, timeout: Any) -> str | None:
     if pyvisa is not None and isinstance(exc, pyvisa.errors.VisaIOError):
         if exc.error_code == pyvisa.constants.StatusCode.error_timeout:
             within = f" within {timeout:g} ms" if isinstance(timeout, (int, float)) else ""
-            return (f"no answer from the calibrator{within}: check that it is on, connected,"
-                    " and set to the profile's terminations")
+            return (
+                f"no answer from the calibrator{within}: check that it is on, connected,"
+                " and set to the profile's terminations"
+            )
         return f"the VISA link failed: {exc.description} ({exc.abbreviation})"
     if pyvisa is not None and isinstance(exc, pyvisa.errors.InvalidSession):
         return "the VISA session is closed"

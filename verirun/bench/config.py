@@ -13,8 +13,8 @@ from pydantic import Field, StrictStr
 
 from verirun import yamlfile
 from verirun.errors import ProcedureError, UnitError
-from verirun.metrology.uncertainty import CalibratorSpec
 from verirun.functions import FunctionName, is_alternating, unit_of
+from verirun.metrology.uncertainty import CalibratorSpec
 from verirun.procedure.model import QuantityText, Strict
 from verirun.units import in_band, parse_quantity, parse_value
 
@@ -209,8 +209,11 @@ def _resolve(located: yamlfile.LocatedData) -> Bench:
     dc = quantity(("safety", "hazardous-dc"), model.safety.hazardous_dc, "V")
     rms = quantity(("safety", "hazardous-ac-rms"), model.safety.hazardous_ac_rms, "V")
     peak = quantity(("safety", "hazardous-ac-peak"), model.safety.hazardous_ac_peak, "V")
-    accuracy = [spec for i, line in enumerate(model.calibrator.accuracy)
-                if (spec := _spec_line(located, ("calibrator", "accuracy", i), line, problems)) is not None]
+    accuracy = [
+        spec
+        for i, line in enumerate(model.calibrator.accuracy)
+        if (spec := _spec_line(located, ("calibrator", "accuracy", i), line, problems)) is not None
+    ]
     limits = []
     for i, limit in enumerate(model.calibrator.resistance_current):
         before = len(problems)
@@ -221,28 +224,58 @@ def _resolve(located: yamlfile.LocatedData) -> Bench:
     if timeout < 0.001 and not problems:
         problems.append(located.problem(("calibrator", "timeout"), "must be at least 1 ms"))
     idle = quantity(("safety", "idle-standby"), model.safety.idle_standby, "s")
-    for loc, value, low, high in ((("settle",), settle, 0.0, MAX_SETTLE_S),
-                                  (("calibrator", "timeout"), timeout, 0.0, MAX_TIMEOUT_S),
-                                  (("safety", "idle-standby"), idle, MIN_IDLE_S, MAX_IDLE_S)):
+    for loc, value, low, high in (
+        (("settle",), settle, 0.0, MAX_SETTLE_S),
+        (("calibrator", "timeout"), timeout, 0.0, MAX_TIMEOUT_S),
+        (("safety", "idle-standby"), idle, MIN_IDLE_S, MAX_IDLE_S),
+    ):
         if not low <= value <= high and not any(".".join(loc) in p for p in problems):
             problems.append(located.problem(loc, f"{value:g} s is outside {low:g} s to {high:g} s"))
     if not model.calibrator.identity.strip():
-        problems.append(located.problem(("calibrator", "identity"), "is empty, which any instrument would"
-                                        " match; give the start of the calibrator's *IDN? answer"))
-    for key, value in (("hazardous-dc", dc), ("hazardous-ac-rms", rms), ("hazardous-ac-peak", peak)):
+        problems.append(
+            located.problem(
+                ("calibrator", "identity"),
+                "is empty, which any instrument would"
+                " match; give the start of the calibrator's *IDN? answer",
+            )
+        )
+    for key, value in (
+        ("hazardous-dc", dc),
+        ("hazardous-ac-rms", rms),
+        ("hazardous-ac-peak", peak),
+    ):
         if any(f"safety.{key}" in p for p in problems):
             continue
         if value == 0:
-            problems.append(located.problem(("safety", key), "a hazardous-live threshold must be more than zero"))
+            problems.append(
+                located.problem(
+                    ("safety", key), "a hazardous-live threshold must be more than zero"
+                )
+            )
         elif value > MAX_THRESHOLDS[key]:
-            problems.append(located.problem(("safety", key), f"{value:g} V is above {MAX_THRESHOLDS[key]:g} V,"
-                                            " the highest hazardous-live level of any edition of IEC 61010-1;"
-                                            " a bench may lower the thresholds, never raise them past that"))
+            problems.append(
+                located.problem(
+                    ("safety", key),
+                    f"{value:g} V is above {MAX_THRESHOLDS[key]:g} V,"
+                    " the highest hazardous-live level of any edition of IEC 61010-1;"
+                    " a bench may lower the thresholds, never raise them past that",
+                )
+            )
     if problems:
         raise ProcedureError(problems)
-    return Bench(file=model, text=located.text, source=located.source, settle_s=settle,
-                 timeout_s=timeout, hazardous_dc=dc, hazardous_ac_rms=rms, hazardous_ac_peak=peak,
-                 accuracy=tuple(accuracy), resistance_current=tuple(sorted(limits)), idle_standby_s=idle)
+    return Bench(
+        file=model,
+        text=located.text,
+        source=located.source,
+        settle_s=settle,
+        timeout_s=timeout,
+        hazardous_dc=dc,
+        hazardous_ac_rms=rms,
+        hazardous_ac_peak=peak,
+        accuracy=tuple(accuracy),
+        resistance_current=tuple(sorted(limits)),
+        idle_standby_s=idle,
+    )
 
 
 def _quantity(located, problems: list[str], loc: tuple, text, unit: str) -> float:
@@ -269,7 +302,11 @@ def _spec_line(located, loc: tuple, line: AccuracyLine, problems: list[str]) -> 
     low = high = None
     if line.from_ is not None or line.to is not None:
         if not is_alternating(line.function) or line.from_ is None or line.to is None:
-            problems.append(located.problem(loc, "a frequency band needs both 'from' and 'to', on an AC function"))
+            problems.append(
+                located.problem(
+                    loc, "a frequency band needs both 'from' and 'to', on an AC function"
+                )
+            )
         else:
             low = _quantity(located, problems, loc + ("from",), line.from_, "Hz")
             high = _quantity(located, problems, loc + ("to",), line.to, "Hz")
@@ -278,7 +315,14 @@ def _spec_line(located, loc: tuple, line: AccuracyLine, problems: list[str]) -> 
     if len(problems) != before:
         return None
     spec = CalibratorSpec(output_ppm=output, range_ppm=of_range, floor=floor, level=level)
-    return SpecLine(function=line.function, range=rng, spec=spec, low_hz=low, high_hz=high, text=_spec_text(line))
+    return SpecLine(
+        function=line.function,
+        range=rng,
+        spec=spec,
+        low_hz=low,
+        high_hz=high,
+        text=_spec_text(line),
+    )
 
 
 def _line_problems(located) -> list[str]:
@@ -321,10 +365,14 @@ def _level(located, loc, text, problems):
     try:
         value = parse_value(text, "%")
     except UnitError as exc:
-        problems.append(located.problem(loc, f"{exc}; give a level such as 95 % or 99 %, or limits"))
+        problems.append(
+            located.problem(loc, f"{exc}; give a level such as 95 % or 99 %, or limits")
+        )
         return "limits"
     if not 0 < value < 100:
-        problems.append(located.problem(loc, f"a confidence level is between 0 and 100 %, got {text!r}"))
+        problems.append(
+            located.problem(loc, f"a confidence level is between 0 and 100 %, got {text!r}")
+        )
         return "limits"
     return value / 100.0
 

@@ -18,8 +18,8 @@ from typing import Annotated, Any
 from pydantic import AfterValidator, BaseModel, BeforeValidator, ConfigDict, Field, model_validator
 
 from verirun import yamlfile
-from verirun.functions import NAMES, unit_of
 from verirun.errors import BenchError, ProcedureError
+from verirun.functions import NAMES, unit_of
 from verirun.text import refusal
 
 #: Profile format this verirun reads; a newer file is refused rather than half-understood.
@@ -32,8 +32,10 @@ FUNCTIONS = NAMES
 def _text(value: Any) -> Any:
     # YAML reads unquoted ON, OFF, yes, no as booleans: say so instead of "not a string".
     if isinstance(value, bool):
-        raise ValueError(f"expected command text, got {value!r}: YAML reads unquoted ON, OFF, yes and no"
-                         " as true/false, so put the text in quotes")
+        raise ValueError(
+            f"expected command text, got {value!r}: YAML reads unquoted ON, OFF, yes and no"
+            " as true/false, so put the text in quotes"
+        )
     if not isinstance(value, str):
         raise ValueError(f"expected command text, got {value!r}")
     if not value.strip():
@@ -42,8 +44,10 @@ def _text(value: Any) -> Any:
     if (why := refusal(value)) is not None:
         raise ValueError(f"command text {why}")
     if value != value.strip():
-        raise ValueError(f"{value!r} starts or ends with spaces, which the link or the instrument may"
-                         " drop; write the text without them")
+        raise ValueError(
+            f"{value!r} starts or ends with spaces, which the link or the instrument may"
+            " drop; write the text without them"
+        )
     return value
 
 
@@ -55,13 +59,20 @@ def _number(value: Any) -> Any:
 
 def _template(value: str) -> str:
     try:
-        fields = [(name, spec, conv) for _, name, spec, conv in string.Formatter().parse(value)
-                  if name is not None]
+        fields = [
+            (name, spec, conv)
+            for _, name, spec, conv in string.Formatter().parse(value)
+            if name is not None
+        ]
     except ValueError as exc:
-        raise ValueError(f"not a valid command template ({exc}); write braces as {{{{ and }}}}") from None
+        raise ValueError(
+            f"not a valid command template ({exc}); write braces as {{{{ and }}}}"
+        ) from None
     if fields != [("value", "", None)]:
-        raise ValueError("must hold the placeholder {value} exactly once, with no format of its own"
-                         " (values are always sent in full precision)")
+        raise ValueError(
+            "must hold the placeholder {value} exactly once, with no format of its own"
+            " (values are always sent in full precision)"
+        )
     return value
 
 
@@ -71,7 +82,9 @@ Number = Annotated[float, BeforeValidator(_number), Field(allow_inf_nan=False)]
 
 
 class _Frozen(BaseModel):
-    model_config = ConfigDict(frozen=True, extra="forbid", alias_generator=lambda name: name.replace("_", "-"))
+    model_config = ConfigDict(
+        frozen=True, extra="forbid", alias_generator=lambda name: name.replace("_", "-")
+    )
 
 
 class Setting(_Frozen):
@@ -154,11 +167,15 @@ class OutputState(_Frozen):
         if both:
             raise ValueError(f"replies {both} are listed as meaning both on and off")
         wrong = [(reply, "off", "on") for reply in self.off_replies if _scpi_boolean(reply) is True]
-        wrong += [(reply, "on", "off") for reply in self.on_replies if _scpi_boolean(reply) is False]
+        wrong += [
+            (reply, "on", "off") for reply in self.on_replies if _scpi_boolean(reply) is False
+        ]
         if wrong:
             reply, listed, means = wrong[0]
-            raise ValueError(f"reply {reply!r} is listed as meaning {listed}, but as SCPI boolean data"
-                             f" (ON, OFF or a number) it means {means}")
+            raise ValueError(
+                f"reply {reply!r} is listed as meaning {listed}, but as SCPI boolean data"
+                f" (ON, OFF or a number) it means {means}"
+            )
         return self
 
 
@@ -214,7 +231,9 @@ class DriverProfile(_Frozen):
             raise BenchError(f"the calibrator profile {self.name!r} does not source {name}")
         return found
 
-    def source_commands(self, function: str, value: float, frequency: float | None = None) -> list[str]:
+    def source_commands(
+        self, function: str, value: float, frequency: float | None = None
+    ) -> list[str]:
         """Check a stimulus against this profile's limits and return the commands that set it.
 
         Nothing is clipped or rounded: a value outside the limits is refused, and values are
@@ -240,13 +259,17 @@ class DriverProfile(_Frozen):
         commands = list(settings.select)
         if isinstance(settings, AcFunction):
             if frequency is None:
-                raise BenchError(f"{function} needs a frequency ({settings.frequency.min!r} Hz to"
-                                 f" {settings.frequency.max!r} Hz); nothing was sent")
+                raise BenchError(
+                    f"{function} needs a frequency ({settings.frequency.min!r} Hz to"
+                    f" {settings.frequency.max!r} Hz); nothing was sent"
+                )
             hertz = _checked(f"{function} frequency", frequency, settings.frequency, "Hz")
             # Frequency before level, so the new level never appears at the previous frequency.
             commands.append(settings.frequency.command.format(value=repr(hertz)))
         elif frequency is not None:
-            raise BenchError(f"{function} takes no frequency, got {frequency!r} Hz; nothing was sent")
+            raise BenchError(
+                f"{function} takes no frequency, got {frequency!r} Hz; nothing was sent"
+            )
         commands.append(settings.level.command.format(value=repr(level)))
         return commands
 
@@ -261,14 +284,19 @@ def _checked(what: str, value: Any, setting: Setting, unit: str) -> float:
     if not math.isfinite(number):
         raise BenchError(f"{what} must be a finite number, got {number!r}; nothing was sent")
     if number != value:  # e.g. a huge int that a float cannot hold exactly
-        raise BenchError(f"{what} {value!r} cannot be sent exactly as a floating-point number;"
-                         " nothing was sent")
+        raise BenchError(
+            f"{what} {value!r} cannot be sent exactly as a floating-point number; nothing was sent"
+        )
     if number > setting.max:
-        raise BenchError(f"{what} {number!r} {unit} is above the calibrator limit {setting.max!r} {unit};"
-                         " nothing was sent")
+        raise BenchError(
+            f"{what} {number!r} {unit} is above the calibrator limit {setting.max!r} {unit};"
+            " nothing was sent"
+        )
     if number < setting.min:
-        raise BenchError(f"{what} {number!r} {unit} is below the calibrator limit {setting.min!r} {unit};"
-                         " nothing was sent")
+        raise BenchError(
+            f"{what} {number!r} {unit} is below the calibrator limit {setting.min!r} {unit};"
+            " nothing was sent"
+        )
     return number
 
 
@@ -288,11 +316,18 @@ def load_profile(name_or_path: str | Path) -> DriverProfile:
         ``file:line: field: message``.
     """
     text = str(name_or_path)
-    if isinstance(name_or_path, Path) or "/" in text or "\\" in text or text.endswith((".yaml", ".yml")):
+    if (
+        isinstance(name_or_path, Path)
+        or "/" in text
+        or "\\" in text
+        or text.endswith((".yaml", ".yml"))
+    ):
         return _load(Path(name_or_path))
     if text not in packaged_profiles():
-        raise ProcedureError(f"no packaged driver profile named {text!r} (there are:"
-                             f" {', '.join(packaged_profiles())}); give a path to a profile file instead")
+        raise ProcedureError(
+            f"no packaged driver profile named {text!r} (there are:"
+            f" {', '.join(packaged_profiles())}); give a path to a profile file instead"
+        )
     with as_file(files("verirun.bench") / "profiles" / f"{text}.yaml") as path:
         return _load(path)
 

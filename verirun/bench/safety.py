@@ -11,8 +11,8 @@ import math
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
-from verirun.functions import FUNCTIONS, NAMES
 from verirun.errors import BenchError, SafetyError
+from verirun.functions import FUNCTIONS, NAMES
 from verirun.interrupts import deferred_signals
 
 if TYPE_CHECKING:
@@ -85,11 +85,16 @@ def _standby_and_check(calibrator: "Calibrator") -> None:
     if failure is not None:
         command = failure.command if isinstance(failure, BenchError) else None
         answer = failure.answer if isinstance(failure, BenchError) else None
-        raise SafetyError(f"output state unknown: {_BY_HAND} (standby failed: {_reason(failure)})",
-                          command=command, answer=answer) from failure
+        raise SafetyError(
+            f"output state unknown: {_BY_HAND} (standby failed: {_reason(failure)})",
+            command=command,
+            answer=answer,
+        ) from failure
     if still_on:
-        raise SafetyError(f"output still reads on after standby: {_BY_HAND}",
-                          command=calibrator.profile.output_state.query)
+        raise SafetyError(
+            f"output still reads on after standby: {_BY_HAND}",
+            command=calibrator.profile.output_state.query,
+        )
 
 
 def _reason(exc: BaseException) -> str:
@@ -123,10 +128,14 @@ class HazardLimits:
     def __post_init__(self) -> None:
         for name in ("dc_volts", "ac_rms_volts", "ac_peak_volts"):
             value = getattr(self, name)
-            if isinstance(value, bool) or not isinstance(value, (int, float)) or not (
-                    math.isfinite(value) and value > 0):
-                raise ValueError(f"HazardLimits.{name} must be a positive finite number of volts,"
-                                 f" got {value!r}")
+            if (
+                isinstance(value, bool)
+                or not isinstance(value, (int, float))
+                or not (math.isfinite(value) and value > 0)
+            ):
+                raise ValueError(
+                    f"HazardLimits.{name} must be a positive finite number of volts, got {value!r}"
+                )
 
 
 def is_hazardous(function: str, value: float, limits: HazardLimits = HazardLimits()) -> bool:

@@ -47,8 +47,13 @@ def find_runs(paths: list[Path]) -> list[Path]:
         elif (path / RECORD_NAME).exists() or (path / JOURNAL_NAME).exists():
             found.append(path)
         elif path.is_dir():
-            found.extend(sorted(p for p in path.iterdir() if p.is_dir()
-                                and ((p / RECORD_NAME).exists() or (p / JOURNAL_NAME).exists())))
+            found.extend(
+                sorted(
+                    p
+                    for p in path.iterdir()
+                    if p.is_dir() and ((p / RECORD_NAME).exists() or (p / JOURNAL_NAME).exists())
+                )
+            )
         else:
             found.append(path)  # reported as missing by certify_one
     return found
@@ -57,18 +62,27 @@ def find_runs(paths: list[Path]) -> list[Path]:
 def certify_one(run: Path, reports_dir: Path, pdf: bool = False) -> Outcome:
     """Verify and render one run; any failure comes back as the outcome's ``error``."""
     from verirun import storage
-    from verirun.certificate.render import TEMPLATE_VERSION, certificate_path, keep_issued, render_html, write_pdf
+    from verirun.certificate.render import (
+        TEMPLATE_VERSION,
+        certificate_path,
+        keep_issued,
+        render_html,
+        write_pdf,
+    )
     from verirun.errors import VerirunError
-    from verirun.record.verify import verified_record
     from verirun.issue import earlier_revisions, earlier_states, state_of
+    from verirun.record.verify import verified_record
 
     try:
         if not Path(run).exists():
             return Outcome(run=str(run), error=f"{run}: no such run folder")
         record = verified_record(run)
         if record["run"]["status"] != "complete":
-            return Outcome(run=str(run), error=f"{run}: the run is {record['run']['status']}, not complete;"
-                                               " resume it before a certificate can be issued")
+            return Outcome(
+                run=str(run),
+                error=f"{run}: the run is {record['run']['status']}, not complete;"
+                " resume it before a certificate can be issued",
+            )
         html = render_html(record).encode("utf-8")
         path = certificate_path(record, reports_dir)
         storage.make_folder(path.parent)
@@ -78,18 +92,31 @@ def certify_one(run: Path, reports_dir: Path, pdf: bool = False) -> Outcome:
         if kept != "same":
             storage.write_atomic(path, [html])
             if kept == "moved":
-                note = (f"re-rendered with certificate template {TEMPLATE_VERSION} (was {was}; the earlier"
-                        " one is kept beside it)")
+                note = (
+                    f"re-rendered with certificate template {TEMPLATE_VERSION} (was {was}; the earlier"
+                    " one is kept beside it)"
+                )
         pdf_path = write_pdf(html.decode("utf-8"), path.with_suffix(".pdf")) if pdf else None
         replaced = []
         for earlier, replaced_by in earlier_revisions(run):  # each stays readable, marked replaced
             old = certificate_path(earlier, reports_dir)
             marked = render_html(earlier, replaced_by=replaced_by).encode("utf-8")
-            if keep_issued(old, marked, earlier=earlier_states(run, earlier, replaced_by=replaced_by)) != "same":
+            if (
+                keep_issued(
+                    old, marked, earlier=earlier_states(run, earlier, replaced_by=replaced_by)
+                )
+                != "same"
+            ):
                 storage.write_atomic(old, [marked])
             replaced.append(str(old))
-        return Outcome(run=str(run), certificate=str(path), pdf=str(pdf_path) if pdf_path else None, note=note,
-                       state=state_of(record), replaced=tuple(replaced))
+        return Outcome(
+            run=str(run),
+            certificate=str(path),
+            pdf=str(pdf_path) if pdf_path else None,
+            note=note,
+            state=state_of(record),
+            replaced=tuple(replaced),
+        )
     except VerirunError as exc:
         return Outcome(run=str(run), error=str(exc))
     except Exception as exc:  # one bad record never stops the batch
@@ -109,8 +136,14 @@ def _star(args):
     return certify_one(*args)
 
 
-def certify_many(runs: list[Path], reports_dir: Path, *, pdf: bool = False, workers: int | None = None,
-                 progress=None) -> list[Outcome]:
+def certify_many(
+    runs: list[Path],
+    reports_dir: Path,
+    *,
+    pdf: bool = False,
+    workers: int | None = None,
+    progress=None,
+) -> list[Outcome]:
     """Certify every run; ``progress(outcome)`` is called as each finishes. Uses every core."""
     workers = workers or min(len(runs), os.cpu_count() or 1)
     jobs = [(Path(run), Path(reports_dir), pdf) for run in runs]

@@ -38,6 +38,7 @@ COND_PASS, COND_FAIL = "#7a5c00", "#c4500a"
 COLOURS = {"pass": PASS, "conditional-pass": COND_PASS, "conditional-fail": COND_FAIL, "fail": FAIL}
 BAND_FILL, GRID = "#e6f4ea", "#d8dee4"
 
+
 def _num(value: float) -> str:
     """A coordinate as text: rounded to 0.01, no trailing zeros, never ``-0``."""
     text = f"{value:.2f}".rstrip("0").rstrip(".")
@@ -46,18 +47,25 @@ def _num(value: float) -> str:
 
 def _esc(text: object) -> str:
     """Text from the record, safe in element content and in double-quoted attributes."""
-    return (str(text).replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
-            .replace('"', "&quot;"))
+    return (
+        str(text)
+        .replace("&", "&amp;")
+        .replace("<", "&lt;")
+        .replace(">", "&gt;")
+        .replace('"', "&quot;")
+    )
 
 
 def _svg(kind: str, height: float, label: str, body: list[str]) -> str:
     """A standalone ``<svg>`` element of class ``chart kind`` holding ``body``."""
-    head = (f'<svg xmlns="http://www.w3.org/2000/svg" class="chart {kind}"'
-            f' viewBox="0 0 {_num(WIDTH)} {_num(height)}"'
-            f' width="{_num(WIDTH / UNITS_PER_MM)}mm" height="{_num(height / UNITS_PER_MM)}mm"'
-            f' role="img" aria-label="{_esc(label)}" font-family="sans-serif"'
-            f' font-size="{_num(FONT)}">'
-            f'<title>{_esc(label)}</title>')
+    head = (
+        f'<svg xmlns="http://www.w3.org/2000/svg" class="chart {kind}"'
+        f' viewBox="0 0 {_num(WIDTH)} {_num(height)}"'
+        f' width="{_num(WIDTH / UNITS_PER_MM)}mm" height="{_num(height / UNITS_PER_MM)}mm"'
+        f' role="img" aria-label="{_esc(label)}" font-family="sans-serif"'
+        f' font-size="{_num(FONT)}">'
+        f"<title>{_esc(label)}</title>"
+    )
     return head + "".join(body) + "</svg>"
 
 
@@ -138,7 +146,7 @@ _LABEL_CHARS = 24
 
 def _short(text: str) -> str:
     """An axis label no longer than :data:`_LABEL_CHARS` (the full text is in the tooltip)."""
-    return text if len(text) <= _LABEL_CHARS else text[:_LABEL_CHARS - 1] + "…"
+    return text if len(text) <= _LABEL_CHARS else text[: _LABEL_CHARS - 1] + "…"
 
 
 def _frame(rows: list[dict]) -> tuple[_Frame, float]:
@@ -148,8 +156,15 @@ def _frame(rows: list[dict]) -> tuple[_Frame, float]:
     longest = max(len(_short(str(r.get("stimulus", "")))) for r in rows) * CHAR_WIDTH
     rotate = longest > width / len(rows) - 6.0
     bottom = min(longest * 0.58 + 24.0, 120.0) if rotate else 30.0  # 0.58 = sin 35°
-    frame = _Frame(left=left, top=top, width=width, height=190.0, limit=_limit(rows),
-                   count=len(rows), rotate=rotate)
+    frame = _Frame(
+        left=left,
+        top=top,
+        width=width,
+        height=190.0,
+        limit=_limit(rows),
+        count=len(rows),
+        rotate=rotate,
+    )
     return frame, top + frame.height + bottom
 
 
@@ -157,24 +172,34 @@ def _axes(frame: _Frame) -> list[str]:
     """The plot frame, grid, tick labels, tolerance band and zero line."""
     x0, x1 = _num(frame.left), _num(frame.left + frame.width)
     step = 50.0 if frame.limit <= 200.0 else 100.0
-    parts = [f'<rect class="band" x="{x0}" y="{_num(frame.y(100.0))}" width="{_num(frame.width)}"'
-             f' height="{_num(frame.y(-100.0) - frame.y(100.0))}" fill="{BAND_FILL}"'
-             f' stroke="{PASS}" stroke-width="0.8"/>']
+    parts = [
+        f'<rect class="band" x="{x0}" y="{_num(frame.y(100.0))}" width="{_num(frame.width)}"'
+        f' height="{_num(frame.y(-100.0) - frame.y(100.0))}" fill="{BAND_FILL}"'
+        f' stroke="{PASS}" stroke-width="0.8"/>'
+    ]
     ticks = int(frame.limit // step)
     for i in range(-ticks, ticks + 1):
         pct = i * step
         y = _num(frame.y(pct))
         kind = "zero" if i == 0 else "grid"
         colour = MUTED if i == 0 else GRID
-        parts.append(f'<line class="{kind}" x1="{x0}" y1="{y}" x2="{x1}" y2="{y}"'
-                     f' stroke="{colour}" stroke-width="0.8"/>')
-        parts.append(f'<text class="tick-label" x="{_num(frame.left - 6)}" y="{_num(frame.y(pct) + 4)}"'
-                     f' text-anchor="end" fill="{MUTED}">{pct:+.0f}</text>'.replace(">+0<", ">0<"))
-    parts.append(f'<rect class="frame" x="{x0}" y="{_num(frame.top)}" width="{_num(frame.width)}"'
-                 f' height="{_num(frame.height)}" fill="none" stroke="{MUTED}" stroke-width="0.8"/>')
+        parts.append(
+            f'<line class="{kind}" x1="{x0}" y1="{y}" x2="{x1}" y2="{y}"'
+            f' stroke="{colour}" stroke-width="0.8"/>'
+        )
+        parts.append(
+            f'<text class="tick-label" x="{_num(frame.left - 6)}" y="{_num(frame.y(pct) + 4)}"'
+            f' text-anchor="end" fill="{MUTED}">{pct:+.0f}</text>'.replace(">+0<", ">0<")
+        )
+    parts.append(
+        f'<rect class="frame" x="{x0}" y="{_num(frame.top)}" width="{_num(frame.width)}"'
+        f' height="{_num(frame.height)}" fill="none" stroke="{MUTED}" stroke-width="0.8"/>'
+    )
     mid = _num(frame.top + frame.height / 2)
-    parts.append(f'<text class="axis-title" x="14" y="{mid}" text-anchor="middle"'
-                 f' transform="rotate(-90 14 {mid})" fill="{MUTED}">% of tolerance</text>')
+    parts.append(
+        f'<text class="axis-title" x="14" y="{mid}" text-anchor="middle"'
+        f' transform="rotate(-90 14 {mid})" fill="{MUTED}">% of tolerance</text>'
+    )
     return parts
 
 
@@ -183,8 +208,10 @@ def _stimulus_label(frame: _Frame, index: int, stimulus: str) -> str:
     x, y = frame.x(index), frame.bottom + 16.0
     text = _esc(_short(stimulus))
     if frame.rotate:
-        return (f'<text class="stimulus" x="{_num(x)}" y="{_num(y)}" text-anchor="end"'
-                f' transform="rotate(-35 {_num(x)} {_num(y)})" fill="{INK}">{text}</text>')
+        return (
+            f'<text class="stimulus" x="{_num(x)}" y="{_num(y)}" text-anchor="end"'
+            f' transform="rotate(-35 {_num(x)} {_num(y)})" fill="{INK}">{text}</text>'
+        )
     return f'<text class="stimulus" x="{_num(x)}" y="{_num(y)}" text-anchor="middle" fill="{INK}">{text}</text>'
 
 
@@ -196,8 +223,10 @@ def _acceptance(frame: _Frame, index: int, row: dict) -> list[str]:
     for key, side in (("accept_low_pct", "low"), ("accept_high_pct", "high")):
         if row.get(key) is not None:
             y = _num(frame.y(float(row[key])))
-            parts.append(f'<line class="acceptance {side}" x1="{x0}" y1="{y}" x2="{x1}" y2="{y}"'
-                         f' stroke="{ACCEPT}" stroke-width="1.2" stroke-dasharray="5 3"/>')
+            parts.append(
+                f'<line class="acceptance {side}" x1="{x0}" y1="{y}" x2="{x1}" y2="{y}"'
+                f' stroke="{ACCEPT}" stroke-width="1.2" stroke-dasharray="5 3"/>'
+            )
     return parts
 
 
@@ -205,11 +234,15 @@ def _uncertainty(frame: _Frame, x: float, pct: float, u_pct: float, colour: str)
     """A vertical bar from ``pct - U`` to ``pct + U`` with a cap at each end."""
     x_text = _num(x)
     y_low, y_high = frame.y(pct - u_pct), frame.y(pct + u_pct)
-    parts = [f'<line class="uncertainty" x1="{x_text}" y1="{_num(y_low)}" x2="{x_text}"'
-             f' y2="{_num(y_high)}" stroke="{colour}" stroke-width="1.2"/>']
+    parts = [
+        f'<line class="uncertainty" x1="{x_text}" y1="{_num(y_low)}" x2="{x_text}"'
+        f' y2="{_num(y_high)}" stroke="{colour}" stroke-width="1.2"/>'
+    ]
     for y in (y_low, y_high):
-        parts.append(f'<line class="uncertainty-cap" x1="{_num(x - 4)}" y1="{_num(y)}"'
-                     f' x2="{_num(x + 4)}" y2="{_num(y)}" stroke="{colour}" stroke-width="1.2"/>')
+        parts.append(
+            f'<line class="uncertainty-cap" x1="{_num(x - 4)}" y1="{_num(y)}"'
+            f' x2="{_num(x + 4)}" y2="{_num(y)}" stroke="{colour}" stroke-width="1.2"/>'
+        )
     return parts
 
 
@@ -221,10 +254,12 @@ def _clipped_marker(frame: _Frame, x: float, pct: float, state: str, tip: str) -
     colour = COLOURS[state]
     points = f"{_num(x)},{_num(edge)} {_num(x - 6)},{_num(base)} {_num(x + 6)},{_num(base)}"
     value = ("+∞" if up else "-∞") if math.isinf(pct) else f"{pct:+.0f}"
-    return [f'<polygon class="point {state} clipped" points="{points}" {_paint(state)}>'
-            f'<title>{tip}</title></polygon>',
-            f'<text class="clipped-value" x="{_num(x + 9)}" y="{_num((edge + base) / 2 + 4)}"'
-            f' fill="{colour}">{value} %</text>']
+    return [
+        f'<polygon class="point {state} clipped" points="{points}" {_paint(state)}>'
+        f"<title>{tip}</title></polygon>",
+        f'<text class="clipped-value" x="{_num(x + 9)}" y="{_num((edge + base) / 2 + 4)}"'
+        f' fill="{colour}">{value} %</text>',
+    ]
 
 
 def _measured(frame: _Frame, index: int, row: dict) -> list[str]:
@@ -240,17 +275,23 @@ def _measured(frame: _Frame, index: int, row: dict) -> list[str]:
         parts += _uncertainty(frame, x, pct, float(row["U_pct"]), colour)
     if abs(pct) > frame.limit:
         return parts + _clipped_marker(frame, x, pct, state, tip)
-    return parts + [f'<circle class="point {state}" cx="{_num(x)}" cy="{_num(frame.y(pct))}" r="4.5"'
-                    f' {_paint(state)}><title>{tip}</title></circle>']
+    return parts + [
+        f'<circle class="point {state}" cx="{_num(x)}" cy="{_num(frame.y(pct))}" r="4.5"'
+        f" {_paint(state)}><title>{tip}</title></circle>"
+    ]
 
 
 def _not_measured(frame: _Frame, index: int, row: dict) -> str:
     """A grey dash on the zero line where a point was skipped or not measured."""
     reason = row.get("skip_reason")
-    tip = _esc(f"{row.get('stimulus', '')}: {row.get('verdict', 'not measured')}"
-               + (f" ({reason})" if reason else ""))
-    return (f'<text class="no-reading" x="{_num(frame.x(index))}" y="{_num(frame.y(0.0) + 4)}"'
-            f' text-anchor="middle" fill="{GREY}">—<title>{tip}</title></text>')
+    tip = _esc(
+        f"{row.get('stimulus', '')}: {row.get('verdict', 'not measured')}"
+        + (f" ({reason})" if reason else "")
+    )
+    return (
+        f'<text class="no-reading" x="{_num(frame.x(index))}" y="{_num(frame.y(0.0) + 4)}"'
+        f' text-anchor="middle" fill="{GREY}">—<title>{tip}</title></text>'
+    )
 
 
 def _error_point(frame: _Frame, index: int, row: dict) -> str:
@@ -338,16 +379,23 @@ def _arc_path(dial: _Dial, radius: float, start: float, end: float, sweep: int) 
     """
     mid = (start + end) / 2.0
     r = _num(radius)
-    return (f" A {r} {r} 0 0 {sweep} {dial.point(radius, mid)}"
-            f" A {r} {r} 0 0 {sweep} {dial.point(radius, end)}")
+    return (
+        f" A {r} {r} 0 0 {sweep} {dial.point(radius, mid)}"
+        f" A {r} {r} 0 0 {sweep} {dial.point(radius, end)}"
+    )
 
 
 def _sector_path(dial: _Dial, start: float, end: float) -> str:
     """An annular wedge between the sector radii from ``start`` to ``end`` degrees."""
     inner, outer = _SECTOR
     start, end = min(start, end), max(start, end)
-    return (f"M {dial.point(outer, start)}" + _arc_path(dial, outer, start, end, 1)
-            + f" L {dial.point(inner, end)}" + _arc_path(dial, inner, end, start, 0) + " Z")
+    return (
+        f"M {dial.point(outer, start)}"
+        + _arc_path(dial, outer, start, end, 1)
+        + f" L {dial.point(inner, end)}"
+        + _arc_path(dial, inner, end, start, 0)
+        + " Z"
+    )
 
 
 def _fraction(law, value: float | None) -> tuple[float, bool]:
@@ -388,7 +436,7 @@ def _ohms_candidates(law) -> list[tuple[int, float, str]]:
     found = [(0, law.fraction(0.0), "0"), (0, law.fraction(math.inf), "∞")]
     for power in range(-2, 3):
         for mantissa in range(1, 10):
-            value = mantissa * decade * 10.0 ** power
+            value = mantissa * decade * 10.0**power
             fraction = law.fraction(value)
             if 0.015 <= fraction <= 0.985:
                 found.append((_RANK.get(mantissa, _MINOR), fraction, _ohms_label(value)))
@@ -419,7 +467,9 @@ def _linear_candidates(law) -> tuple[list[tuple[int, float, str]], str]:
 _TICK_GAP = 0.9  # degrees: the closest two ticks may stand
 
 
-def _space_out(dial: _Dial, candidates: list[tuple[int, float, str]]) -> list[tuple[float, str | None, bool]]:
+def _space_out(
+    dial: _Dial, candidates: list[tuple[int, float, str]]
+) -> list[tuple[float, str | None, bool]]:
     """Keep the ticks, and the labels, that fit, most important first.
 
     Returns (fraction, label or None, major) for each tick kept, from the left stop. Kept
@@ -433,10 +483,14 @@ def _space_out(dial: _Dial, candidates: list[tuple[int, float, str]]) -> list[tu
     for rank, fraction, label in sorted(candidates, key=lambda c: (c[0], c[1])):
         angle = dial.angle(fraction)
         at = bisect.bisect(kept, angle)
-        if rank and any(abs(angle - kept[i]) < _TICK_GAP for i in (at - 1, at) if 0 <= i < len(kept)):
+        if rank and any(
+            abs(angle - kept[i]) < _TICK_GAP for i in (at - 1, at) if 0 <= i < len(kept)
+        ):
             continue
         kept.insert(at, angle)
-        fits = rank < _MINOR and _label_fits(labels, angle, (len(label) * CHAR_WIDTH / 2.0 + 2.0) / per_degree)
+        fits = rank < _MINOR and _label_fits(
+            labels, angle, (len(label) * CHAR_WIDTH / 2.0 + 2.0) / per_degree
+        )
         ticks.append((fraction, label if fits else None, rank < _MINOR))
     return sorted(ticks)
 
@@ -454,8 +508,10 @@ def _label_fits(labels: list[tuple[float, float]], angle: float, half: float) ->
 def _scale(dial: _Dial, range_info: dict, law) -> tuple[list[str], str]:
     """The scale arc with its ticks and labels, and the unit the labels are in."""
     half = dial.arc / 2.0
-    parts = [f'<path class="scale" d="M {dial.point(_RADIUS, -half)}'
-             f'{_arc_path(dial, _RADIUS, -half, half, 1)}" fill="none" stroke="{INK}" stroke-width="1.5"/>']
+    parts = [
+        f'<path class="scale" d="M {dial.point(_RADIUS, -half)}'
+        f'{_arc_path(dial, _RADIUS, -half, half, 1)}" fill="none" stroke="{INK}" stroke-width="1.5"/>'
+    ]
     if range_info.get("scale") == "linear":
         candidates, prefix = _linear_candidates(law)
         unit = prefix + str(range_info.get("unit", ""))
@@ -466,12 +522,16 @@ def _scale(dial: _Dial, range_info: dict, law) -> tuple[list[str], str]:
         kind, length = ("major", 12.0) if major else ("minor", 6.0)
         x0, y0 = dial.at(_RADIUS, angle)
         x1, y1 = dial.at(_RADIUS + length, angle)
-        parts.append(f'<line class="tick {kind}" x1="{_num(x0)}" y1="{_num(y0)}" x2="{_num(x1)}"'
-                     f' y2="{_num(y1)}" stroke="{INK}" stroke-width="1"/>')
+        parts.append(
+            f'<line class="tick {kind}" x1="{_num(x0)}" y1="{_num(y0)}" x2="{_num(x1)}"'
+            f' y2="{_num(y1)}" stroke="{INK}" stroke-width="1"/>'
+        )
         if label is not None:
             x, y = dial.at(_LABEL_RADIUS, angle)
-            parts.append(f'<text class="tick-label" x="{_num(x)}" y="{_num(y + 4)}" text-anchor="middle"'
-                         f' fill="{INK}">{_esc(label)}</text>')
+            parts.append(
+                f'<text class="tick-label" x="{_num(x)}" y="{_num(y + 4)}" text-anchor="middle"'
+                f' fill="{INK}">{_esc(label)}</text>'
+            )
     return parts, unit
 
 
@@ -479,8 +539,14 @@ def _arc_tip(row: dict) -> str:
     unit = str(row.get("unit", ""))
     low = format_quantity(row.get("low"), unit)
     high = format_quantity(row.get("high"), unit)
-    read = "not read" if row.get("reading") is None else "read " + format_quantity(row["reading"], unit)
-    return _esc(f"{row.get('stimulus', '')}: allowed {low} to {high}, {read}, {row.get('verdict', '')}")
+    read = (
+        "not read"
+        if row.get("reading") is None
+        else "read " + format_quantity(row["reading"], unit)
+    )
+    return _esc(
+        f"{row.get('stimulus', '')}: allowed {low} to {high}, {read}, {row.get('verdict', '')}"
+    )
 
 
 def _arc_point(dial: _Dial, law, row: dict) -> str:
@@ -491,17 +557,21 @@ def _arc_point(dial: _Dial, law, row: dict) -> str:
     expected = dial.angle(_fraction(law, row.get("nominal"))[0])
     x0, y0 = dial.at(_POINTER[0], expected)
     x1, y1 = dial.at(_POINTER[1], expected)
-    parts = [f'<g class="test-point {_esc(state)}" data-key="{_esc(row.get("key", ""))}">'
-             f'<title>{_arc_tip(row)}</title>',
-             f'<path class="sector" d="{_sector_path(dial, start, end)}" fill="{BAND_FILL}"'
-             f' stroke="{PASS}" stroke-width="0.8"/>',
-             f'<line class="expected" x1="{_num(x0)}" y1="{_num(y0)}" x2="{_num(x1)}" y2="{_num(y1)}"'
-             f' stroke="{MUTED}" stroke-width="1" stroke-dasharray="4 2"/>']
+    parts = [
+        f'<g class="test-point {_esc(state)}" data-key="{_esc(row.get("key", ""))}">'
+        f"<title>{_arc_tip(row)}</title>",
+        f'<path class="sector" d="{_sector_path(dial, start, end)}" fill="{BAND_FILL}"'
+        f' stroke="{PASS}" stroke-width="0.8"/>',
+        f'<line class="expected" x1="{_num(x0)}" y1="{_num(y0)}" x2="{_num(x1)}" y2="{_num(y1)}"'
+        f' stroke="{MUTED}" stroke-width="1" stroke-dasharray="4 2"/>',
+    ]
     if row.get("reading") is not None:
         parts.append(_reading_marker(dial, law, row))
     x, y = dial.at(_POINT_LABEL_RADIUS, expected)
-    parts.append(f'<text class="label" x="{_num(x)}" y="{_num(y + 4)}" text-anchor="middle"'
-                 f' fill="{INK}">{_esc(row.get("stimulus", ""))}</text>')
+    parts.append(
+        f'<text class="label" x="{_num(x)}" y="{_num(y + 4)}" text-anchor="middle"'
+        f' fill="{INK}">{_esc(row.get("stimulus", ""))}</text>'
+    )
     return "".join(parts) + "</g>"
 
 
@@ -511,8 +581,7 @@ def _reading_marker(dial: _Dial, law, row: dict) -> str:
     x, y = dial.at(_MARKER_RADIUS, dial.angle(fraction))
     kind = f"reading {state} clipped" if held else f"reading {state}"
     edge = "" if state.startswith("conditional") else ' stroke="#ffffff" stroke-width="1"'
-    return (f'<circle class="{kind}" cx="{_num(x)}" cy="{_num(y)}" r="4.5"'
-            f' {_paint(state)}{edge}/>')
+    return f'<circle class="{kind}" cx="{_num(x)}" cy="{_num(y)}" r="4.5" {_paint(state)}{edge}/>'
 
 
 def _dial(arc: float) -> tuple[_Dial, float]:
@@ -558,12 +627,17 @@ def arc_chart(range_info: dict, rows: list[dict]) -> str:
     arc_rows = [row for row in rows if row.get("domain") == "deflection"]
     if not arc_rows:
         return ""
-    law = make_law(range_info["scale"], full_scale=range_info.get("full_scale"),
-                   centre=range_info.get("centre"))
+    law = make_law(
+        range_info["scale"],
+        full_scale=range_info.get("full_scale"),
+        centre=range_info.get("centre"),
+    )
     dial, height = _dial(float(range_info.get("arc") or _DEFAULT_ARC))
     body, unit = _scale(dial, range_info, law)
     body += [_arc_point(dial, law, row) for row in arc_rows]
-    body.append(f'<text class="unit" x="8" y="{_num(height - 8)}" fill="{MUTED}">'
-                f'scale in {_esc(unit)}</text>')
+    body.append(
+        f'<text class="unit" x="8" y="{_num(height - 8)}" fill="{MUTED}">'
+        f"scale in {_esc(unit)}</text>"
+    )
     label = f"Range {range_info.get('id', '')}: allowed sector and reading of each point on the scale arc"
     return _svg("arc-chart", height, label, body)

@@ -13,18 +13,39 @@ import re
 
 #: The words of the certificate that are spelt two ways; the lab profile chooses.
 SPELLING = {
-    "british": {"authorisation": "authorisation", "Authorisation": "Authorisation",
-                "authorised": "authorised", "Authorised": "Authorised", "centre": "centre"},
-    "american": {"authorisation": "authorization", "Authorisation": "Authorization",
-                 "authorised": "authorized", "Authorised": "Authorized", "centre": "center"},
+    "british": {
+        "authorisation": "authorisation",
+        "Authorisation": "Authorisation",
+        "authorised": "authorised",
+        "Authorised": "Authorised",
+        "centre": "centre",
+    },
+    "american": {
+        "authorisation": "authorization",
+        "Authorisation": "Authorization",
+        "authorised": "authorized",
+        "Authorised": "Authorized",
+        "centre": "center",
+    },
 }
 
 #: verirun's own sentences (decision rules, say) are written in British spelling; these are the
 #: words in them that American spelling writes otherwise.
-_AMERICAN = {"favourable": "favorable", "favour": "favor", "centre": "center", "centred": "centered",
-             "authorised": "authorized", "authorisation": "authorization", "behaviour": "behavior",
-             "colour": "color", "metre": "meter", "analyse": "analyze"}
-_BRITISH_WORD = re.compile(r"\b(" + "|".join(sorted(_AMERICAN, key=len, reverse=True)) + r")\b", re.IGNORECASE)
+_AMERICAN = {
+    "favourable": "favorable",
+    "favour": "favor",
+    "centre": "center",
+    "centred": "centered",
+    "authorised": "authorized",
+    "authorisation": "authorization",
+    "behaviour": "behavior",
+    "colour": "color",
+    "metre": "meter",
+    "analyse": "analyze",
+}
+_BRITISH_WORD = re.compile(
+    r"\b(" + "|".join(sorted(_AMERICAN, key=len, reverse=True)) + r")\b", re.IGNORECASE
+)
 
 
 def spelt(text: str, variant: str) -> str:
@@ -41,8 +62,12 @@ def spelt(text: str, variant: str) -> str:
 
 #: How notes of the internal run log begin, in records of journal format 1 (whose notes are
 #: not marked): the run's own lines, never an operator's note.
-_LOG_NOTES = ("hazardous output ", "operator aborted the run", "run resumed after an interruption",
-              "errors left in the calibrator's queue")
+_LOG_NOTES = (
+    "hazardous output ",
+    "operator aborted the run",
+    "run resumed after an interruption",
+    "errors left in the calibrator's queue",
+)
 _REVISION_NOTE = re.compile(r"revision (\d+): ")
 
 
@@ -51,7 +76,9 @@ def reading_context(record: dict, *, replaced_by: dict | None = None) -> dict:
     from verirun.certificate.render import is_dry_run
 
     run = record["run"]
-    issue = next((i for i in record.get("issues", []) if i["revision"] == run.get("revision", 1)), None)
+    issue = next(
+        (i for i in record.get("issues", []) if i["revision"] == run.get("revision", 1)), None
+    )
     state = "dry-run" if is_dry_run(record) else ("issued" if issue else "draft")
     notes = customer_notes(record)
     changes = [note for note in notes if _is_change(record, note)]
@@ -63,21 +90,34 @@ def reading_context(record: dict, *, replaced_by: dict | None = None) -> dict:
     known = {row["key"] for row in record["points"]}
     page_mark, watermark = _marks(state, replaced_by)
     return {
-        "state": state, "issue": issue, "replaced_by": replaced_by,
-        "replaces_issued": any(i["revision"] == run.get("revision", 1) - 1 for i in record.get("issues", [])),
-        "page_mark": page_mark, "watermark": watermark,
+        "state": state,
+        "issue": issue,
+        "replaced_by": replaced_by,
+        "replaces_issued": any(
+            i["revision"] == run.get("revision", 1) - 1 for i in record.get("issues", [])
+        ),
+        "page_mark": page_mark,
+        "watermark": watermark,
         "words": SPELLING[record["lab"].get("spelling", "british")],
         "spelling": record["lab"].get("spelling", "british"),
         "point_notes": by_point,
         "general_notes": [n for n in kept if not n.get("point") or n["point"] not in known],
         "changes": changes,
-        "environment_missing": [name for key, name in (("temperature_c", "the laboratory temperature"),
-                                                       ("humidity_pct", "the relative humidity"))
-                                if key not in record.get("environment", {})],
+        "environment_missing": [
+            name
+            for key, name in (
+                ("temperature_c", "the laboratory temperature"),
+                ("humidity_pct", "the relative humidity"),
+            )
+            if key not in record.get("environment", {})
+        ],
         "receipt_missing": not record["item"].get("condition"),
         "side_by_side": side_by_side(record) if record.get("as_found") else [],
-        "found_deviations": [row for row in record.get("as_found", {}).get("points", [])
-                             if row["verdict"] in ("skipped", "not-measured")],
+        "found_deviations": [
+            row
+            for row in record.get("as_found", {}).get("points", [])
+            if row["verdict"] in ("skipped", "not-measured")
+        ],
         "remarks": record["lab"].get("remarks", []),
     }
 
@@ -118,7 +158,16 @@ def side_by_side(record: dict) -> list[dict]:
     found = {row["key"]: {**row, "printed": printed(row)} for row in record["as_found"]["points"]}
     out = []
     for rng in record["ranges"]:
-        rows = sorted((r for r in record["points"] if r["range"] == rng["id"]), key=lambda r: r["index"])
-        out.append({**rng, "pairs": [{"found": found.get(row["key"]), "left": {**row, "printed": printed(row)}}
-                                     for row in rows]})
+        rows = sorted(
+            (r for r in record["points"] if r["range"] == rng["id"]), key=lambda r: r["index"]
+        )
+        out.append(
+            {
+                **rng,
+                "pairs": [
+                    {"found": found.get(row["key"]), "left": {**row, "printed": printed(row)}}
+                    for row in rows
+                ],
+            }
+        )
     return out

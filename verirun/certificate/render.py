@@ -32,7 +32,11 @@ def certificate_number(record: dict) -> str:
     later revision adds ``-R<n>``."""
     number = record["run"].get("certificate_number")
     if number is None:
-        prefix = DRY_RUN_PREFIX if is_dry_run(record) else record["lab"].get("certificate_prefix", "CERT")
+        prefix = (
+            DRY_RUN_PREFIX
+            if is_dry_run(record)
+            else record["lab"].get("certificate_prefix", "CERT")
+        )
         day = record["run"]["started"][:10].replace("-", "")
         number = f"{prefix}-{day}-{record['run']['uid'][:8].upper()}"
     revision = record["run"].get("revision", 1)
@@ -60,10 +64,14 @@ def _environment():
     from verirun.certificate.reading import spelt
     from verirun.units import format_quantity
 
-    env = Environment(loader=PackageLoader("verirun.certificate", "templates"),
-                      autoescape=select_autoescape(["html", "j2"], default=True),
-                      undefined=StrictUndefined, trim_blocks=True, lstrip_blocks=True,
-                      keep_trailing_newline=True)
+    env = Environment(
+        loader=PackageLoader("verirun.certificate", "templates"),
+        autoescape=select_autoescape(["html", "j2"], default=True),
+        undefined=StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
+        keep_trailing_newline=True,
+    )
     from verirun.metrology.summary import label
 
     env.filters["q"] = lambda value, unit, digits=6: format_quantity(value, unit, digits)
@@ -81,7 +89,9 @@ def css_string(text: str):
     line breaks and ``<`` written as CSS escapes)."""
     from markupsafe import Markup
 
-    escaped = "".join(f"\\{ord(c):x} " if c in '"\\<>&\n\r\f' or ord(c) < 32 else c for c in str(text))
+    escaped = "".join(
+        f"\\{ord(c):x} " if c in '"\\<>&\n\r\f' or ord(c) < 32 else c for c in str(text)
+    )
     return Markup(f'"{escaped}"')
 
 
@@ -102,14 +112,22 @@ def _generate(record: dict, *, replaced_by: dict | None = None):
     as_found = record.get("as_found")
     # No control or bidirectional-control character reaches a certificate: they are refused
     # where text comes in, and replaced here should stored data hold some.
-    return map(shown, template.generate(
-        record=record, ranges=_ranges(record["ranges"], record["points"]),
-        summary=conformity(record),
-        found_summary=conformity({**record, "points": as_found["points"]}) if as_found else None,
-        as_found_ranges=_ranges(record["ranges"], as_found["points"]) if as_found else [],
-        number=certificate_number(record), replaces=previous_number(record),
-        template_version=TEMPLATE_VERSION,
-        **reading_context(record, replaced_by=replaced_by)))
+    return map(
+        shown,
+        template.generate(
+            record=record,
+            ranges=_ranges(record["ranges"], record["points"]),
+            summary=conformity(record),
+            found_summary=conformity({**record, "points": as_found["points"]})
+            if as_found
+            else None,
+            as_found_ranges=_ranges(record["ranges"], as_found["points"]) if as_found else [],
+            number=certificate_number(record),
+            replaces=previous_number(record),
+            template_version=TEMPLATE_VERSION,
+            **reading_context(record, replaced_by=replaced_by),
+        ),
+    )
 
 
 def conformity(record: dict):
@@ -142,13 +160,24 @@ def printed(row: dict) -> dict:
     def limit(value, side: str) -> str | None:
         if value is None:
             return "∞" if side == "high" else None
-        return format_limit(as_written(value), unit, exponent, reading=reading, side=side,
-                            places=places or 0)
+        return format_limit(
+            as_written(value), unit, exponent, reading=reading, side=side, places=places or 0
+        )
 
-    texts.update(low=limit(row["low"], "low"), high=limit(row["high"], "high"),
-                 accept_low=None, accept_high=None, outer_low=None, outer_high=None, interval=None)
+    texts.update(
+        low=limit(row["low"], "low"),
+        high=limit(row["high"], "high"),
+        accept_low=None,
+        accept_high=None,
+        outer_low=None,
+        outer_high=None,
+        interval=None,
+    )
     if reading is not None and row.get("accept_low") is not None:
-        texts.update(accept_low=limit(row["accept_low"], "low"), accept_high=limit(row["accept_high"], "high"))
+        texts.update(
+            accept_low=limit(row["accept_low"], "low"),
+            accept_high=limit(row["accept_high"], "high"),
+        )
     return texts
 
 
@@ -164,8 +193,14 @@ def _ranges(ranges: list[dict], points: list[dict]) -> list[dict]:
     out = []
     for rng in ranges:
         rows = by_range.get(rng["id"], [])
-        out.append({**rng, "rows": rows, "error_svg": Markup(error_chart(rng, rows)),
-                    "arc_svg": Markup(arc_chart(rng, rows))})
+        out.append(
+            {
+                **rng,
+                "rows": rows,
+                "error_svg": Markup(error_chart(rng, rows)),
+                "arc_svg": Markup(arc_chart(rng, rows)),
+            }
+        )
     return out
 
 
@@ -187,7 +222,9 @@ def pdf_engine():
     try:
         import weasyprint
     except ImportError:
-        raise VerirunError("PDF output needs WeasyPrint: pip install 'verirun[pdf]' (or -e '.[pdf]')") from None
+        raise VerirunError(
+            "PDF output needs WeasyPrint: pip install 'verirun[pdf]' (or -e '.[pdf]')"
+        ) from None
     return weasyprint
 
 
@@ -205,8 +242,13 @@ def write_pdf(html: str, path: str | Path) -> Path:
     return storage.write_atomic(path, [pdf_engine().HTML(string=html).write_pdf()])
 
 
-def write_certificate(record: dict, reports_dir: str | Path, *, replaced_by: dict | None = None,
-                      earlier: tuple[bytes, ...] = ()) -> Path:
+def write_certificate(
+    record: dict,
+    reports_dir: str | Path,
+    *,
+    replaced_by: dict | None = None,
+    earlier: tuple[bytes, ...] = (),
+) -> Path:
     """Render ``record`` into ``reports_dir``/<certificate number>.html; return the path.
 
     ``replaced_by`` (see :func:`verirun.issue.earlier_revisions`) marks an earlier revision as
@@ -231,7 +273,9 @@ def write_certificate(record: dict, reports_dir: str | Path, *, replaced_by: dic
     if not os.path.lexists(path):
         # Streamed piece by piece: a long run's certificate is never held whole in memory.
         return storage.write_atomic(path, _generate(record, replaced_by=replaced_by))
-    html = render_html(record, replaced_by=replaced_by).encode("utf-8")  # one is there: compared whole
+    html = render_html(record, replaced_by=replaced_by).encode(
+        "utf-8"
+    )  # one is there: compared whole
     if keep_issued(path, html, earlier=earlier) == "same":
         return path
     storage.write_atomic(path, [html])
@@ -270,9 +314,11 @@ def keep_issued(path: Path, html: bytes, *, earlier: tuple[bytes, ...] = ()) -> 
     match = _VERSION_META.search(old)
     was = match.group(1).decode("ascii", "replace") if match else "unknown"
     if was == TEMPLATE_VERSION:
-        raise RecordError(f"{path}: a different certificate with this number was issued already; it is"
-                          " not overwritten (the run's record is not the one it was issued from: check"
-                          " the run with 'verirun verify')")
+        raise RecordError(
+            f"{path}: a different certificate with this number was issued already; it is"
+            " not overwritten (the run's record is not the one it was issued from: check"
+            " the run with 'verirun verify')"
+        )
     kept = path.with_name(f"{path.stem}.t{safe_file_name(was)}{path.suffix}")
     if not kept.exists():
         storage.write_new(kept, old)

@@ -45,7 +45,9 @@ def _check_zone(low: Exact, high: Exact, expanded: Exact, k: float) -> None:
     if _nan(low) or _nan(high) or low > high:
         raise ValueError(f"tolerance limits must satisfy low <= high, got {low!r}..{high!r}")
     if not (math.isfinite(expanded) and expanded >= 0):
-        raise ValueError(f"the expanded uncertainty must be finite and not negative, got {expanded!r}")
+        raise ValueError(
+            f"the expanded uncertainty must be finite and not negative, got {expanded!r}"
+        )
     if not (math.isfinite(k) and k > 0):
         raise ValueError(f"the coverage factor k must be positive and finite, got {k!r}")
     if not math.isfinite(float(expanded) / k):  # the standard uncertainty every rule works with
@@ -60,7 +62,9 @@ def _exact_args(low, high, expanded) -> tuple[Exact, Exact, Exact]:
     if any(_nan(x) for x in (low, high)):
         raise ValueError(f"tolerance limits must satisfy low <= high, got {low!r}..{high!r}")
     if _nan(expanded) or (isinstance(expanded, float) and math.isinf(expanded)):
-        raise ValueError(f"the expanded uncertainty must be finite and not negative, got {expanded!r}")
+        raise ValueError(
+            f"the expanded uncertainty must be finite and not negative, got {expanded!r}"
+        )
     return as_written(low), as_written(high), as_written(expanded)
 
 
@@ -163,9 +167,11 @@ class SimpleAcceptance:
 
     def describe(self) -> str:
         """One sentence naming the rule, for the certificate (ISO/IEC 17025 7.8.6.2)."""
-        return ("Simple acceptance (ILAC-G8:09/2019 4.2.1, w = 0): a result passes when the measured"
-                " value lies within the tolerance limits, limits included, and fails otherwise;"
-                " the measurement uncertainty does not move the acceptance limits.")
+        return (
+            "Simple acceptance (ILAC-G8:09/2019 4.2.1, w = 0): a result passes when the measured"
+            " value lies within the tolerance limits, limits included, and fails otherwise;"
+            " the measurement uncertainty does not move the acceptance limits."
+        )
 
     def acceptance(self, *, low: Exact, high: Exact, expanded: Exact, k: float = 2.0) -> Acceptance:
         """The acceptance zone: the tolerance zone itself."""
@@ -173,11 +179,18 @@ class SimpleAcceptance:
         _check_zone(low, high, expanded, k)
         return _shrunk(low, high, Fraction(0))
 
-    def decide(self, *, low: Exact, high: Exact, reading: Exact, expanded: Exact,
-               k: float = 2.0) -> Outcome:
+    def decide(
+        self, *, low: Exact, high: Exact, reading: Exact, expanded: Exact, k: float = 2.0
+    ) -> Outcome:
         """``"pass"`` or ``"fail"`` for ``reading``; on a tolerance limit it passes."""
-        return _binary(self.acceptance(low=low, high=high, expanded=expanded, k=k),
-                       low=low, high=high, reading=reading, expanded=expanded, k=k)
+        return _binary(
+            self.acceptance(low=low, high=high, expanded=expanded, k=k),
+            low=low,
+            high=high,
+            reading=reading,
+            expanded=expanded,
+            k=k,
+        )
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -193,14 +206,18 @@ class GuardedAcceptance:
 
     def __post_init__(self) -> None:
         if not (math.isfinite(self.ratio) and self.ratio >= 0):
-            raise ValueError(f"the guard-band ratio must be finite and not negative, got {self.ratio!r}")
+            raise ValueError(
+                f"the guard-band ratio must be finite and not negative, got {self.ratio!r}"
+            )
 
     def describe(self) -> str:
         """One sentence naming the rule, for the certificate (ISO/IEC 17025 7.8.6.2)."""
-        return (f"Guarded acceptance (ILAC-G8:09/2019 4.2.2, w = {self.ratio:g} × U): a result passes"
-                " when the measured value lies within the acceptance limits, each tolerance limit moved"
-                " inward by w, limits included, and fails otherwise; U is the expanded uncertainty"
-                " of measurement.")
+        return (
+            f"Guarded acceptance (ILAC-G8:09/2019 4.2.2, w = {self.ratio:g} × U): a result passes"
+            " when the measured value lies within the acceptance limits, each tolerance limit moved"
+            " inward by w, limits included, and fails otherwise; U is the expanded uncertainty"
+            " of measurement."
+        )
 
     def acceptance(self, *, low: Exact, high: Exact, expanded: Exact, k: float = 2.0) -> Acceptance:
         """The tolerance zone shrunk by ``w = ratio × U`` on each side (the ratio as written)."""
@@ -208,11 +225,18 @@ class GuardedAcceptance:
         _check_zone(low, high, expanded, k)
         return _shrunk(low, high, as_written(self.ratio) * expanded)
 
-    def decide(self, *, low: Exact, high: Exact, reading: Exact, expanded: Exact,
-               k: float = 2.0) -> Outcome:
+    def decide(
+        self, *, low: Exact, high: Exact, reading: Exact, expanded: Exact, k: float = 2.0
+    ) -> Outcome:
         """``"pass"`` or ``"fail"``; a reading on an acceptance limit passes."""
-        return _binary(self.acceptance(low=low, high=high, expanded=expanded, k=k),
-                       low=low, high=high, reading=reading, expanded=expanded, k=k)
+        return _binary(
+            self.acceptance(low=low, high=high, expanded=expanded, k=k),
+            low=low,
+            high=high,
+            reading=reading,
+            expanded=expanded,
+            k=k,
+        )
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -231,14 +255,17 @@ class NonBinaryStatement(GuardedAcceptance):
 
     def describe(self) -> str:
         """One sentence naming the rule, for the certificate (ISO/IEC 17025 7.8.6.2)."""
-        return (f"Non-binary statement with guard band (ILAC-G8:09/2019 4.2.3, w = {self.ratio:g} × U):"
-                " pass within the acceptance limits (each tolerance limit moved inward by w);"
-                " conditional pass within the tolerance limits but outside the acceptance limits;"
-                " conditional fail outside the tolerance limits by no more than w; fail beyond;"
-                " a value on a boundary takes the more favourable statement.")
+        return (
+            f"Non-binary statement with guard band (ILAC-G8:09/2019 4.2.3, w = {self.ratio:g} × U):"
+            " pass within the acceptance limits (each tolerance limit moved inward by w);"
+            " conditional pass within the tolerance limits but outside the acceptance limits;"
+            " conditional fail outside the tolerance limits by no more than w; fail beyond;"
+            " a value on a boundary takes the more favourable statement."
+        )
 
-    def decide(self, *, low: Exact, high: Exact, reading: Exact, expanded: Exact,
-               k: float = 2.0) -> Outcome:
+    def decide(
+        self, *, low: Exact, high: Exact, reading: Exact, expanded: Exact, k: float = 2.0
+    ) -> Outcome:
         """One of the four statements for ``reading``."""
         zone = self.acceptance(low=low, high=high, expanded=expanded, k=k)  # checks the numbers
         low, high, expanded = _exact_args(low, high, expanded)
@@ -274,14 +301,17 @@ class RiskAcceptance:
 
     def __post_init__(self) -> None:
         if not 0.0 < self.target < 0.5:
-            raise ValueError("the false-accept target must lie strictly between 0 and 0.5,"
-                             f" got {self.target!r}")
+            raise ValueError(
+                f"the false-accept target must lie strictly between 0 and 0.5, got {self.target!r}"
+            )
 
     def describe(self) -> str:
         """One sentence naming the rule, for the certificate (ISO/IEC 17025 7.8.6.2)."""
-        return (f"Guarded acceptance by specific risk (JCGM 106:2012, normal model; ILAC-G8:09/2019 4.2.2):"
-                f" a result passes when the probability that the measured quantity lies outside the"
-                f" tolerance limits, 1 − pc, is at most {100 * self.target:g} %, and fails otherwise.")
+        return (
+            f"Guarded acceptance by specific risk (JCGM 106:2012, normal model; ILAC-G8:09/2019 4.2.2):"
+            f" a result passes when the probability that the measured quantity lies outside the"
+            f" tolerance limits, 1 − pc, is at most {100 * self.target:g} %, and fails otherwise."
+        )
 
     def acceptance(self, *, low: Exact, high: Exact, expanded: Exact, k: float = 2.0) -> Acceptance:
         """The readings at which the specific false-accept risk is at most ``target``.
@@ -324,11 +354,18 @@ class RiskAcceptance:
             return Acceptance(low=math.inf, high=-math.inf, guard=math.inf)
         return Acceptance(low=a_low, high=a_high, guard=min(a_low - low, high - a_high))
 
-    def decide(self, *, low: Exact, high: Exact, reading: Exact, expanded: Exact,
-               k: float = 2.0) -> Outcome:
+    def decide(
+        self, *, low: Exact, high: Exact, reading: Exact, expanded: Exact, k: float = 2.0
+    ) -> Outcome:
         """``"pass"`` or ``"fail"``; a reading on an acceptance limit passes."""
-        return _binary(self.acceptance(low=low, high=high, expanded=expanded, k=k),
-                       low=low, high=high, reading=reading, expanded=expanded, k=k)
+        return _binary(
+            self.acceptance(low=low, high=high, expanded=expanded, k=k),
+            low=low,
+            high=high,
+            reading=reading,
+            expanded=expanded,
+            k=k,
+        )
 
 
 def _round_to(x: float, place: Decimal, how: str) -> Fraction:
@@ -338,8 +375,10 @@ def _round_to(x: float, place: Decimal, how: str) -> Fraction:
 
 Rule = SimpleAcceptance | GuardedAcceptance | NonBinaryStatement | RiskAcceptance
 
-_RULES: dict[str, type] = {cls.name: cls for cls in
-                           (SimpleAcceptance, GuardedAcceptance, NonBinaryStatement, RiskAcceptance)}
+_RULES: dict[str, type] = {
+    cls.name: cls
+    for cls in (SimpleAcceptance, GuardedAcceptance, NonBinaryStatement, RiskAcceptance)
+}
 
 
 def rule_from_name(name: str, **params: float) -> Rule:
@@ -358,8 +397,10 @@ def rule_from_name(name: str, **params: float) -> Rule:
         return cls(**params)
     except TypeError:
         allowed = [f for f in cls.__dataclass_fields__]
-        raise ValueError(f"decision rule {name!r} takes {', '.join(allowed) or 'no parameters'};"
-                         f" got {', '.join(sorted(params))}") from None
+        raise ValueError(
+            f"decision rule {name!r} takes {', '.join(allowed) or 'no parameters'};"
+            f" got {', '.join(sorted(params))}"
+        ) from None
 
 
 @dataclass(frozen=True, kw_only=True, slots=True)
@@ -435,8 +476,10 @@ def judge(rule: Rule, *, window: Window, law: ScaleLaw, budget: Budget, reading:
         If the budget and the window are in different domains.
     """
     if budget.domain != window.domain:
-        raise ValueError(f"the budget is in the {budget.domain} domain but the tolerance is stated in"
-                         f" the {window.domain} domain; combine the budget in the tolerance's domain")
+        raise ValueError(
+            f"the budget is in the {budget.domain} domain but the tolerance is stated in"
+            f" the {window.domain} domain; combine the budget in the tolerance's domain"
+        )
     y = as_written(reading)
     if window.domain != "value":
         y = law.exact_fraction(y)
@@ -448,10 +491,20 @@ def judge(rule: Rule, *, window: Window, law: ScaleLaw, budget: Budget, reading:
     outer = None
     if rule.name == "non-binary":
         outer = _to_value(law, window, low - zone.guard, high + zone.guard)
-    tur = _tur(*window.reachable, expanded) if window.bounded and math.isfinite(window.low) else None
-    return Decision(verdict=outcome.verdict, conformance=outcome.conformance, tur=tur,
-                    domain=window.domain, outcome=outcome,
-                    acceptance=None if exact_acceptance is None else
-                    (float(exact_acceptance[0]), float(exact_acceptance[1])),
-                    exact_acceptance=exact_acceptance, outer=outer, expanded=expanded,
-                    within_tolerance=low <= y <= high)
+    tur = (
+        _tur(*window.reachable, expanded) if window.bounded and math.isfinite(window.low) else None
+    )
+    return Decision(
+        verdict=outcome.verdict,
+        conformance=outcome.conformance,
+        tur=tur,
+        domain=window.domain,
+        outcome=outcome,
+        acceptance=None
+        if exact_acceptance is None
+        else (float(exact_acceptance[0]), float(exact_acceptance[1])),
+        exact_acceptance=exact_acceptance,
+        outer=outer,
+        expanded=expanded,
+        within_tolerance=low <= y <= high,
+    )

@@ -93,8 +93,8 @@ def _tolerance(u: float, ndig: int) -> float:
     """JCGM 101 7.2: ``u = c × 10^l`` with ``c`` an ``ndig``-digit integer; ``δ = 10^l / 2``."""
     if u <= 0 or not math.isfinite(u):
         return 0.0
-    l = math.floor(math.log10(u)) - (ndig - 1)
-    return 0.5 * 10.0 ** l
+    exponent = math.floor(math.log10(u)) - (ndig - 1)
+    return 0.5 * 10.0**exponent
 
 
 def _fraction(law: ScaleLaw, x):
@@ -120,8 +120,9 @@ def _draw(np, rng, term, size: int):
     return rng.triangular(-a, 0.0, a, size)
 
 
-def validate(budget: Budget, law: ScaleLaw, *, per_unit: float = 1.0, seed: int = 1,
-             ndig: int = 2) -> Validation:
+def validate(
+    budget: Budget, law: ScaleLaw, *, per_unit: float = 1.0, seed: int = 1, ndig: int = 2
+) -> Validation:
     """Validate the GUM result of ``budget`` by Monte Carlo (JCGM 101:2008 7.9 and 8.2).
 
     Parameters
@@ -190,22 +191,51 @@ def validate(budget: Budget, law: ScaleLaw, *, per_unit: float = 1.0, seed: int 
     q_low, q_high = (float(v) for v in np.quantile(every, [lo_q, hi_q]))
     y_gum = f0 * per_unit if deflection else x0
     big_u = budget.expanded * per_unit if deflection else budget.expanded
-    along = _compare("domain", y_gum, big_u, q_low, q_high, budget.combined * (per_unit if deflection else 1.0), ndig)
+    along = _compare(
+        "domain",
+        y_gum,
+        big_u,
+        q_low,
+        q_high,
+        budget.combined * (per_unit if deflection else 1.0),
+        ndig,
+    )
     in_value = None
     if deflection:
         slope = budget.slope
         u_value = budget.combined / slope if slope > 0 else math.inf
         a, b = _value(law, q_low / per_unit), _value(law, q_high / per_unit)
         in_value = _compare("value", x0, budget.expanded_value, min(a, b), max(a, b), u_value, ndig)
-    return Validation(seed=seed, trials=every.size, batches=len(results), converged=converged,
-                      probability=p, ndig=ndig, mc_u=mc_u, along=along, in_value=in_value)
+    return Validation(
+        seed=seed,
+        trials=every.size,
+        batches=len(results),
+        converged=converged,
+        probability=p,
+        ndig=ndig,
+        mc_u=mc_u,
+        along=along,
+        in_value=in_value,
+    )
 
 
-def _compare(unit: str, y: float, expanded: float, mc_low: float, mc_high: float, u: float,
-             ndig: int) -> Comparison:
+def _compare(
+    unit: str, y: float, expanded: float, mc_low: float, mc_high: float, u: float, ndig: int
+) -> Comparison:
     gum_low, gum_high = y - expanded, y + expanded
     d_low = abs(gum_low - mc_low) if math.isfinite(mc_low) and math.isfinite(gum_low) else math.inf
-    d_high = abs(gum_high - mc_high) if math.isfinite(mc_high) and math.isfinite(gum_high) else math.inf
-    return Comparison(unit=unit, y=y, expanded=expanded, gum_low=gum_low, gum_high=gum_high,
-                      mc_low=mc_low, mc_high=mc_high, d_low=d_low, d_high=d_high,
-                      tolerance=_tolerance(u, ndig))
+    d_high = (
+        abs(gum_high - mc_high) if math.isfinite(mc_high) and math.isfinite(gum_high) else math.inf
+    )
+    return Comparison(
+        unit=unit,
+        y=y,
+        expanded=expanded,
+        gum_low=gum_low,
+        gum_high=gum_high,
+        mc_low=mc_low,
+        mc_high=mc_high,
+        d_low=d_low,
+        d_high=d_high,
+        tolerance=_tolerance(u, ndig),
+    )

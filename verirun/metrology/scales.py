@@ -32,7 +32,9 @@ class Linear:
 
     def __post_init__(self) -> None:
         if not (math.isfinite(self.low) and math.isfinite(self.high)) or self.high == self.low:
-            raise ValueError(f"linear scale needs two different finite ends, got {self.low}..{self.high}")
+            raise ValueError(
+                f"linear scale needs two different finite ends, got {self.low}..{self.high}"
+            )
 
     name = "linear"
 
@@ -172,8 +174,9 @@ class ShuntOhms:
 ScaleLaw = Linear | SeriesOhms | ShuntOhms
 
 
-def make_law(name: str, *, full_scale: float | None = None, low: float = 0.0,
-             centre: float | None = None) -> ScaleLaw:
+def make_law(
+    name: str, *, full_scale: float | None = None, low: float = 0.0, centre: float | None = None
+) -> ScaleLaw:
     """Build a scale law from its name (``linear``, ``series-ohms``, ``shunt-ohms``).
 
     Raises
@@ -195,6 +198,7 @@ def make_law(name: str, *, full_scale: float | None = None, low: float = 0.0,
 # The circuit of a series ohmmeter: a cell of EMF E in series with the internal resistance Rc,
 # the movement and the unknown Rx. With the test leads shorted the movement carries the
 # full-deflection current E / Rc; the deflection fraction is then I / I_full = Rc / (Rc + Rx).
+
 
 def series_full_scale_current(emf: float, centre: float) -> float:
     """Pointer current at full deflection (leads shorted): ``I = E / Rc``."""

@@ -23,20 +23,30 @@ VERDICTS = ("pass", "conditional-pass", "conditional-fail", "fail")
 #: What a point of a run can show besides a statement: it was skipped or not measured.
 UNMEASURED = ("skipped", "not-measured")
 
-_LABELS = {"pass": "PASS", "conditional-pass": "CONDITIONAL PASS",
-           "conditional-fail": "CONDITIONAL FAIL", "fail": "FAIL", "skipped": "SKIPPED",
-           "not-measured": "NOT MEASURED", "none": "NO STATEMENT"}
+_LABELS = {
+    "pass": "PASS",
+    "conditional-pass": "CONDITIONAL PASS",
+    "conditional-fail": "CONDITIONAL FAIL",
+    "fail": "FAIL",
+    "skipped": "SKIPPED",
+    "not-measured": "NOT MEASURED",
+    "none": "NO STATEMENT",
+}
 
 #: What each statement means, in our own words (ILAC-G8:09/2019 4.2.3 defines the zones).
 MEANINGS = {
     "pass": "the measured value lies within the acceptance limits",
-    "conditional-pass": ("the measured value lies within the tolerance limits but closer to a limit"
-                         " than the guard band: it conforms as measured, but with its uncertainty"
-                         " the chance that the true value lies outside the tolerance is larger than"
-                         " the rule allows for a pass"),
-    "conditional-fail": ("the measured value lies outside the tolerance limits by no more than the"
-                         " guard band: it does not conform as measured, but with its uncertainty the"
-                         " true value may still lie within the tolerance"),
+    "conditional-pass": (
+        "the measured value lies within the tolerance limits but closer to a limit"
+        " than the guard band: it conforms as measured, but with its uncertainty"
+        " the chance that the true value lies outside the tolerance is larger than"
+        " the rule allows for a pass"
+    ),
+    "conditional-fail": (
+        "the measured value lies outside the tolerance limits by no more than the"
+        " guard band: it does not conform as measured, but with its uncertainty the"
+        " true value may still lie within the tolerance"
+    ),
     "fail": "the measured value lies outside the tolerance limits by more than the guard band",
 }
 
@@ -103,9 +113,15 @@ class Summary:
 
     def counts(self) -> dict[str, int]:
         """Every count by its verdict's name, and ``points``."""
-        return {"points": self.points, "pass": self.passed, "conditional-pass": self.conditional_pass,
-                "conditional-fail": self.conditional_fail, "fail": self.failed,
-                "skipped": self.skipped, "not-measured": self.not_measured}
+        return {
+            "points": self.points,
+            "pass": self.passed,
+            "conditional-pass": self.conditional_pass,
+            "conditional-fail": self.conditional_fail,
+            "fail": self.failed,
+            "skipped": self.skipped,
+            "not-measured": self.not_measured,
+        }
 
     @property
     def guard_band_rejections(self) -> tuple[str, ...]:
@@ -114,8 +130,10 @@ class Summary:
 
     def counts_text(self) -> str:
         """All four counts in words: ``"9 pass, 1 conditional pass, 0 conditional fail, 2 fail"``."""
-        return (f"{self.passed} pass, {self.conditional_pass} conditional pass,"
-                f" {self.conditional_fail} conditional fail, {self.failed} fail")
+        return (
+            f"{self.passed} pass, {self.conditional_pass} conditional pass,"
+            f" {self.conditional_fail} conditional fail, {self.failed} fail"
+        )
 
     def statement(self) -> str:
         """The statement of conformity in words (ISO/IEC 17025:2017 7.8.6.2), one paragraph."""
@@ -127,32 +145,44 @@ class Summary:
             points += f", {self.skipped} skipped"
         if self.not_measured:
             points += f", {self.not_measured} not measured"
-        head = {"pass": "the item conforms to its specification",
-                "conditional-pass": "the item conforms to its specification as measured, with"
-                                    " conditional results",
-                "conditional-fail": "the item does not conform to its specification as measured,"
-                                    " with conditional results",
-                "fail": "the item does NOT conform to its specification"}[self.overall]
-        parts = [f"Statement of conformity, under the decision rule stated above: {head}"
-                 f" ({points}; {self.counts_text()})."]
+        head = {
+            "pass": "the item conforms to its specification",
+            "conditional-pass": "the item conforms to its specification as measured, with"
+            " conditional results",
+            "conditional-fail": "the item does not conform to its specification as measured,"
+            " with conditional results",
+            "fail": "the item does NOT conform to its specification",
+        }[self.overall]
+        parts = [
+            f"Statement of conformity, under the decision rule stated above: {head}"
+            f" ({points}; {self.counts_text()})."
+        ]
         outside = sum(1 for r in self.rejections if r.cause == "outside-tolerance")
         guard = len(self.rejections) - outside
         if self.rejections:
             words = []
             if outside:
-                words.append(f"{outside} {'lies' if outside == 1 else 'lie'} outside"
-                             f" {'its' if outside == 1 else 'their'} tolerance limits")
+                words.append(
+                    f"{outside} {'lies' if outside == 1 else 'lie'} outside"
+                    f" {'its' if outside == 1 else 'their'} tolerance limits"
+                )
             if guard:
-                words.append(f"{guard} {'lies' if guard == 1 else 'lie'} within"
-                             f" {'its' if guard == 1 else 'their'} tolerance limits but outside the"
-                             " acceptance limits the guard band sets")
+                words.append(
+                    f"{guard} {'lies' if guard == 1 else 'lie'} within"
+                    f" {'its' if guard == 1 else 'their'} tolerance limits but outside the"
+                    " acceptance limits the guard band sets"
+                )
             n = len(self.rejections)
-            parts.append(f"{n} of {self.points} point{'s' if self.points != 1 else ''}"
-                         f" {'is' if n == 1 else 'are'} not accepted: {' and '.join(words)}.")
+            parts.append(
+                f"{n} of {self.points} point{'s' if self.points != 1 else ''}"
+                f" {'is' if n == 1 else 'are'} not accepted: {' and '.join(words)}."
+            )
         else:
             parts.append("No result is rejected.")
-        for verdict, count in (("conditional-pass", self.conditional_pass),
-                               ("conditional-fail", self.conditional_fail)):
+        for verdict, count in (
+            ("conditional-pass", self.conditional_pass),
+            ("conditional-fail", self.conditional_fail),
+        ):
             if count:
                 parts.append(f"A {verdict.replace('-', ' ')} means that {MEANINGS[verdict]}.")
         return " ".join(parts)
@@ -182,7 +212,9 @@ def summarise(judged: Iterable[Judged], rule: str) -> Summary:
         if point.verdict not in counts:
             raise ValueError(f"point {point.key}: unknown verdict {point.verdict!r}")
         if point.verdict.startswith("conditional") and rule != "non-binary":
-            raise ValueError(f"point {point.key}: the {rule} rule makes no {point.verdict} statement")
+            raise ValueError(
+                f"point {point.key}: the {rule} rule makes no {point.verdict} statement"
+            )
         counts[point.verdict] += 1
         if point.verdict in ("fail", "conditional-fail"):
             cause: Cause = "guard-band" if point.within_tolerance else "outside-tolerance"
@@ -191,8 +223,15 @@ def summarise(judged: Iterable[Judged], rule: str) -> Summary:
     for verdict in VERDICTS:  # the least favourable statement present
         if counts[verdict]:
             overall = verdict
-    return Summary(rule=rule, points=total, passed=counts["pass"],
-                   conditional_pass=counts["conditional-pass"],
-                   conditional_fail=counts["conditional-fail"], failed=counts["fail"],
-                   skipped=counts["skipped"], not_measured=counts["not-measured"], overall=overall,
-                   rejections=tuple(rejections))
+    return Summary(
+        rule=rule,
+        points=total,
+        passed=counts["pass"],
+        conditional_pass=counts["conditional-pass"],
+        conditional_fail=counts["conditional-fail"],
+        failed=counts["fail"],
+        skipped=counts["skipped"],
+        not_measured=counts["not-measured"],
+        overall=overall,
+        rejections=tuple(rejections),
+    )

@@ -32,8 +32,9 @@ def _check_amount(owner: object, *names: str) -> None:
     for name in names:
         amount = getattr(owner, name)
         if not (math.isfinite(amount) and amount >= 0):
-            raise ValueError(f"{type(owner).__name__}.{name} must be finite and not negative,"
-                             f" got {amount!r}")
+            raise ValueError(
+                f"{type(owner).__name__}.{name} must be finite and not negative, got {amount!r}"
+            )
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -104,8 +105,10 @@ class PercentOfFullScale(_Statement):
     def exact_half_width(self, nominal: float, ctx: RangeContext) -> tuple[Domain, Fraction]:
         fiducial = _fiducial(ctx)
         if fiducial is None:
-            raise ValueError("percent of full scale needs a linear scale; state an ohms scale's"
-                             " accuracy in degrees of arc or percent of scale length")
+            raise ValueError(
+                "percent of full scale needs a linear scale; state an ohms scale's"
+                " accuracy in degrees of arc or percent of scale length"
+            )
         return "value", as_written(self.percent) / 100 * abs(as_written(fiducial))
 
 
@@ -177,7 +180,9 @@ class ValueStatement(_Statement):
         _check_amount(self, "reading", "range", "counts", "absolute")
 
     def exact_half_width(self, nominal: float, ctx: RangeContext) -> tuple[Domain, Fraction]:
-        width = abs(as_written(nominal)) * as_written(self.reading) / 100 + as_written(self.absolute)
+        width = abs(as_written(nominal)) * as_written(self.reading) / 100 + as_written(
+            self.absolute
+        )
         if self.range:
             fiducial = _fiducial(ctx)
             if fiducial is None:
@@ -279,16 +284,30 @@ def window(statement: Statement, nominal: float, ctx: RangeContext) -> Window:
         per_unit, unit = _report_unit(statement)
         if unit == "deg":
             per_unit = as_written(ctx.arc)
-    rest = ohms and (zone[0] <= 0 if domain == "value" and isinstance(ctx.law, ShuntOhms)
-                     else domain == "deflection" and zone[0] == -math.inf)
+    rest = ohms and (
+        zone[0] <= 0
+        if domain == "value" and isinstance(ctx.law, ShuntOhms)
+        else domain == "deflection" and zone[0] == -math.inf
+    )
     try:
         float_low, float_high, float_half = float(low), float(high), float(half)
     except OverflowError:
         raise ValueError("the numbers are too large to work with") from None
     # The float limits hold the float nominal even where it is not a decimal of 15 digits.
-    return Window(nominal=nominal, low=min(float_low, nominal), high=max(float_high, nominal),
-                  domain=domain, half_width=float_half, zone=zone, exact_low=low, exact_high=high,
-                  per_unit=per_unit, unit=unit, stops=ohms, admits_rest=rest)
+    return Window(
+        nominal=nominal,
+        low=min(float_low, nominal),
+        high=max(float_high, nominal),
+        domain=domain,
+        half_width=float_half,
+        zone=zone,
+        exact_low=low,
+        exact_high=high,
+        per_unit=per_unit,
+        unit=unit,
+        stops=ohms,
+        admits_rest=rest,
+    )
 
 
 @dataclass(frozen=True, kw_only=True, slots=True)

@@ -47,8 +47,9 @@ def coverage_factor(level: float) -> float:
     return NormalDist().inv_cdf(0.5 + level / 2.0)
 
 
-def standard_from_limit(limit: float, *, distribution: Distribution,
-                        level: float | None = None) -> float:
+def standard_from_limit(
+    limit: float, *, distribution: Distribution, level: float | None = None
+) -> float:
     """Standard uncertainty from a half-width ``limit`` of a stated distribution.
 
     ``normal`` divides by the coverage factor of ``level``; ``rectangular`` by sqrt 3 and
@@ -68,7 +69,9 @@ def standard_from_limit(limit: float, *, distribution: Distribution,
         return limit / _SQRT3
     if distribution == "triangular":
         return limit / _SQRT6
-    raise ValueError(f"unknown distribution {distribution!r} (use normal, rectangular or triangular)")
+    raise ValueError(
+        f"unknown distribution {distribution!r} (use normal, rectangular or triangular)"
+    )
 
 
 @dataclass(frozen=True, kw_only=True, slots=True)
@@ -100,10 +103,13 @@ class Term:
     def __post_init__(self) -> None:
         _check_finite(f"the standard uncertainty of {self.name!r}", self.standard_uncertainty)
         if not math.isfinite(self.sensitivity):
-            raise ValueError(f"the sensitivity of {self.name!r} must be finite, got {self.sensitivity!r}")
+            raise ValueError(
+                f"the sensitivity of {self.name!r} must be finite, got {self.sensitivity!r}"
+            )
         if self.domain not in ("value", "deflection"):
-            raise ValueError(f"the domain of {self.name!r} must be 'value' or 'deflection',"
-                             f" got {self.domain!r}")
+            raise ValueError(
+                f"the domain of {self.name!r} must be 'value' or 'deflection', got {self.domain!r}"
+            )
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -134,15 +140,24 @@ class CalibratorSpec:
             coverage_factor(self.level)  # validates the level
 
     @classmethod
-    def from_percent(cls, *, output_percent: float = 0.0, range_percent: float = 0.0,
-                     floor: float = 0.0, level: float | Literal["limits"]) -> CalibratorSpec:
+    def from_percent(
+        cls,
+        *,
+        output_percent: float = 0.0,
+        range_percent: float = 0.0,
+        floor: float = 0.0,
+        level: float | Literal["limits"],
+    ) -> CalibratorSpec:
         """The same specification stated in percent (1 % = 10 000 ppm)."""
-        return cls(output_ppm=output_percent * 1e4, range_ppm=range_percent * 1e4,
-                   floor=floor, level=level)
+        return cls(
+            output_ppm=output_percent * 1e4, range_ppm=range_percent * 1e4, floor=floor, level=level
+        )
 
     def limit(self, *, output: float, range_value: float = 0.0) -> float:
         """The specification's half-width at ``output`` on a range of ``range_value``."""
-        return (abs(output) * self.output_ppm + abs(range_value) * self.range_ppm) * 1e-6 + self.floor
+        return (
+            abs(output) * self.output_ppm + abs(range_value) * self.range_ppm
+        ) * 1e-6 + self.floor
 
     def standard_uncertainty(self, *, output: float, range_value: float = 0.0) -> float:
         """Standard uncertainty of the applied value: the limit over ``k`` or over sqrt 3."""
@@ -153,9 +168,12 @@ class CalibratorSpec:
 
     def term(self, *, output: float, range_value: float = 0.0, name: str = "calibrator") -> Term:
         """The calibrator's contribution at ``output``, in the value domain."""
-        return Term(name=name, domain="value",
-                    standard_uncertainty=self.standard_uncertainty(output=output, range_value=range_value),
-                    distribution="rectangular" if self.level == "limits" else "normal")
+        return Term(
+            name=name,
+            domain="value",
+            standard_uncertainty=self.standard_uncertainty(output=output, range_value=range_value),
+            distribution="rectangular" if self.level == "limits" else "normal",
+        )
 
 
 def resolution_uncertainty(resolution: float) -> float:
@@ -168,9 +186,14 @@ def resolution_uncertainty(resolution: float) -> float:
     return resolution / (2.0 * _SQRT3)
 
 
-def readability_term(*, division: float, fraction: float = 1.0,
-                     unit: Literal["value", "degrees", "length"] = "value",
-                     arc: float | None = None, name: str = "readability") -> Term:
+def readability_term(
+    *,
+    division: float,
+    fraction: float = 1.0,
+    unit: Literal["value", "degrees", "length"] = "value",
+    arc: float | None = None,
+    name: str = "readability",
+) -> Term:
     """The resolution of a reading as a rectangular term.
 
     Parameters
@@ -199,16 +222,26 @@ def readability_term(*, division: float, fraction: float = 1.0,
     _check_finite("a fraction of a division", fraction, positive=True)
     resolution = division * fraction
     if unit == "value":
-        return Term(name=name, domain="value", distribution="rectangular",
-                    standard_uncertainty=resolution_uncertainty(resolution))
+        return Term(
+            name=name,
+            domain="value",
+            distribution="rectangular",
+            standard_uncertainty=resolution_uncertainty(resolution),
+        )
     if unit == "degrees":
         if arc is None or not (math.isfinite(arc) and arc > 0):
-            raise ValueError(f"a resolution in degrees needs the positive arc span of the scale, got {arc!r}")
+            raise ValueError(
+                f"a resolution in degrees needs the positive arc span of the scale, got {arc!r}"
+            )
         resolution /= arc
     elif unit != "length":
         raise ValueError(f"unknown resolution unit {unit!r} (use value, degrees or length)")
-    return Term(name=name, domain="deflection", distribution="rectangular",
-                standard_uncertainty=resolution_uncertainty(resolution))
+    return Term(
+        name=name,
+        domain="deflection",
+        distribution="rectangular",
+        standard_uncertainty=resolution_uncertainty(resolution),
+    )
 
 
 @dataclass(frozen=True, kw_only=True, slots=True)
@@ -249,8 +282,14 @@ def _to_domain(term: Term, domain: Domain, slope: float) -> float:
     return u / slope if slope > 0 else math.inf  # fraction of scale length → value
 
 
-def budget(*, terms: list[Term] | tuple[Term, ...], nominal: float, law: ScaleLaw,
-           domain: Domain, k: float = 2.0) -> Budget:
+def budget(
+    *,
+    terms: list[Term] | tuple[Term, ...],
+    nominal: float,
+    law: ScaleLaw,
+    domain: Domain,
+    k: float = 2.0,
+) -> Budget:
     """Combine ``terms`` at ``nominal`` in ``domain`` and expand with coverage factor ``k``.
 
     Parameters
@@ -286,9 +325,17 @@ def budget(*, terms: list[Term] | tuple[Term, ...], nominal: float, law: ScaleLa
         expanded_value = expanded
     else:
         expanded_value = expanded / slope if slope > 0 else math.inf
-    return Budget(nominal=nominal, domain=domain, terms=tuple(terms), contributions=contributions,
-                  combined=combined, k=k, expanded=expanded, expanded_value=expanded_value,
-                  slope=slope)
+    return Budget(
+        nominal=nominal,
+        domain=domain,
+        terms=tuple(terms),
+        contributions=contributions,
+        combined=combined,
+        k=k,
+        expanded=expanded,
+        expanded_value=expanded_value,
+        slope=slope,
+    )
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -306,8 +353,9 @@ class Rounded:
     uncertainty_text: str
 
 
-def round_uncertainty(uncertainty: float, *, digits: int = 2,
-                      mode: Literal["nearest", "up"] = "nearest") -> Decimal:
+def round_uncertainty(
+    uncertainty: float, *, digits: int = 2, mode: Literal["nearest", "up"] = "nearest"
+) -> Decimal:
     """An uncertainty rounded for reporting: ``digits`` significant digits, in decimal.
 
     GUM 7.2.6: quote an uncertainty to at most two significant digits. The number is rounded as
@@ -338,8 +386,9 @@ def round_uncertainty(uncertainty: float, *, digits: int = 2,
     return u_r
 
 
-def round_result(*, value: float, uncertainty: float, digits: int = 2,
-                 mode: Literal["nearest", "up"] = "nearest") -> Rounded:
+def round_result(
+    *, value: float, uncertainty: float, digits: int = 2, mode: Literal["nearest", "up"] = "nearest"
+) -> Rounded:
     """Round an uncertainty to ``digits`` significant digits and the value to the same place.
 
     GUM 7.2.6: quote an uncertainty to at most two significant digits and round the estimate
@@ -357,8 +406,13 @@ def round_result(*, value: float, uncertainty: float, digits: int = 2,
     u_r = round_uncertainty(uncertainty, digits=digits, mode=mode)
     decimals = -u_r.as_tuple().exponent
     v_r = Decimal(repr(value)).quantize(Decimal(1).scaleb(-decimals), rounding=ROUND_HALF_EVEN)
-    return Rounded(value=float(v_r), uncertainty=float(u_r), decimals=decimals,
-                   value_text=_plain(v_r), uncertainty_text=_plain(u_r))
+    return Rounded(
+        value=float(v_r),
+        uncertainty=float(u_r),
+        decimals=decimals,
+        value_text=_plain(v_r),
+        uncertainty_text=_plain(u_r),
+    )
 
 
 def _plain(d: Decimal) -> str:

@@ -14,23 +14,34 @@ from pathlib import Path
 
 from verirun import yamlfile
 from verirun.errors import ProcedureError, UnitError
-from verirun.metrology import decision, scales, tolerance, uncertainty
 from verirun.functions import is_alternating, unit_of
+from verirun.metrology import decision, scales, tolerance, uncertainty
 from verirun.procedure.model import Accuracy, ProcedureFile, Range
 from verirun.units import in_band, parse_quantity, parse_value
 
 #: The procedure format version this verirun reads.
 FORMAT = 1
 
-_ARC_FORMS = {"percent_of_full_scale": "percent-of-full-scale", "class_index": "class",
-              "degrees": "degrees", "percent_of_length": "percent-of-length"}
-_VALUE_FORMS = {"percent_of_reading": "percent-of-reading", "percent_of_range": "percent-of-range",
-                "counts": "counts", "absolute": "absolute"}
+_ARC_FORMS = {
+    "percent_of_full_scale": "percent-of-full-scale",
+    "class_index": "class",
+    "degrees": "degrees",
+    "percent_of_length": "percent-of-length",
+}
+_VALUE_FORMS = {
+    "percent_of_reading": "percent-of-reading",
+    "percent_of_range": "percent-of-range",
+    "counts": "counts",
+    "absolute": "absolute",
+}
 #: The unit each term may be written with, and how the message shows it.
 _ACCURACY_UNITS = {
-    "percent_of_full_scale": ("%", "in percent (2 or 2 %)"), "class_index": ("", "a class index (1.5)"),
-    "degrees": ("deg", "in degrees of arc (3 or 3 deg)"), "percent_of_length": ("%", "in percent (1 or 1 %)"),
-    "percent_of_reading": ("%", "in percent (0.5 or 0.5 %)"), "percent_of_range": ("%", "in percent (0.1 or 0.1 %)"),
+    "percent_of_full_scale": ("%", "in percent (2 or 2 %)"),
+    "class_index": ("", "a class index (1.5)"),
+    "degrees": ("deg", "in degrees of arc (3 or 3 deg)"),
+    "percent_of_length": ("%", "in percent (1 or 1 %)"),
+    "percent_of_reading": ("%", "in percent (0.5 or 0.5 %)"),
+    "percent_of_range": ("%", "in percent (0.1 or 0.1 %)"),
     "counts": ("", "a whole number of counts (2)"),
 }
 
@@ -72,8 +83,9 @@ class ResolvedRange:
     def context(self) -> tolerance.RangeContext:
         """What a tolerance statement needs to know about this range."""
         count = self.resolution if self.resolution_domain == "value" else None
-        return tolerance.RangeContext(law=self.law, arc=self.arc, full_scale=self.full_scale,
-                                      count=count)
+        return tolerance.RangeContext(
+            law=self.law, arc=self.arc, full_scale=self.full_scale, count=count
+        )
 
     def meter_terms(self) -> list[uncertainty.Term]:
         """The meter's own contributions to each reading's uncertainty: its readability (the
@@ -86,13 +98,21 @@ class ResolvedRange:
         terms = []
         if self.resolution:
             if self.resolution_domain == "deg":
-                terms.append(uncertainty.readability_term(division=self.resolution, unit="degrees",
-                                                          arc=self.arc, name="readability"))
+                terms.append(
+                    uncertainty.readability_term(
+                        division=self.resolution, unit="degrees", arc=self.arc, name="readability"
+                    )
+                )
             elif self.resolution_domain == "length":
-                terms.append(uncertainty.readability_term(division=self.resolution / 100.0,
-                                                          unit="length", name="readability"))
+                terms.append(
+                    uncertainty.readability_term(
+                        division=self.resolution / 100.0, unit="length", name="readability"
+                    )
+                )
             else:
-                terms.append(uncertainty.readability_term(division=self.resolution, name="readability"))
+                terms.append(
+                    uncertainty.readability_term(division=self.resolution, name="readability")
+                )
         terms.extend(self.extra_terms)
         return tuple(terms)
 
@@ -162,8 +182,11 @@ def _resolve(located: yamlfile.LocatedData) -> Procedure:
     for index, rng in enumerate(model.ranges):
         loc = ("ranges", index)
         if rng.id in seen:
-            problems.append(located.problem(loc + ("id",), f"duplicate range id {rng.id!r} (also range"
-                                            f" {seen[rng.id] + 1})"))
+            problems.append(
+                located.problem(
+                    loc + ("id",), f"duplicate range id {rng.id!r} (also range {seen[rng.id] + 1})"
+                )
+            )
         seen.setdefault(rng.id, index)
         resolved = _RangeResolver(located, loc, rng, problems).resolve()
         if resolved is not None:
@@ -171,8 +194,9 @@ def _resolve(located: yamlfile.LocatedData) -> Procedure:
     rule = _rule(located, model, problems)
     if problems:
         raise ProcedureError(problems)
-    return Procedure(file=model, ranges=tuple(ranges), rule=rule, text=located.text,
-                     source=located.source)
+    return Procedure(
+        file=model, ranges=tuple(ranges), rule=rule, text=located.text, source=located.source
+    )
 
 
 def _range_problems(located: yamlfile.LocatedData) -> list[str]:
@@ -194,21 +218,30 @@ def _range_problems(located: yamlfile.LocatedData) -> list[str]:
     return problems
 
 
-def _rule(located: yamlfile.LocatedData, model: ProcedureFile, problems: list[str]) -> decision.Rule | None:
+def _rule(
+    located: yamlfile.LocatedData, model: ProcedureFile, problems: list[str]
+) -> decision.Rule | None:
     """The decision rule the procedure states, with its parameter checked where it is written."""
     spec = model.decision
     params: dict[str, float] = {}
     if spec.guard_ratio is not None:
         if spec.rule not in ("guarded", "non-binary"):
-            problems.append(located.problem(("decision", "guard-ratio"),
-                                            f"only the guarded and non-binary rules take a guard ratio,"
-                                            f" not {spec.rule}"))
+            problems.append(
+                located.problem(
+                    ("decision", "guard-ratio"),
+                    f"only the guarded and non-binary rules take a guard ratio, not {spec.rule}",
+                )
+            )
             return None
         params["ratio"] = float(spec.guard_ratio)
     if spec.risk_target is not None:
         if spec.rule != "risk":
-            problems.append(located.problem(("decision", "risk-target"),
-                                            f"only the risk rule takes a risk target, not {spec.rule}"))
+            problems.append(
+                located.problem(
+                    ("decision", "risk-target"),
+                    f"only the risk rule takes a risk target, not {spec.rule}",
+                )
+            )
             return None
         try:
             params["target"] = parse_value(spec.risk_target, "%") / 100.0
@@ -218,7 +251,9 @@ def _rule(located: yamlfile.LocatedData, model: ProcedureFile, problems: list[st
     try:
         return decision.rule_from_name(spec.rule, **params)
     except ValueError as exc:
-        key = "guard-ratio" if "ratio" in params else "risk-target" if "target" in params else "rule"
+        key = (
+            "guard-ratio" if "ratio" in params else "risk-target" if "target" in params else "rule"
+        )
         problems.append(located.problem(("decision", key), str(exc)))
         return None
 
@@ -235,8 +270,9 @@ class _RangeResolver:
         self.problems.append(self.located.problem(self.loc + field, message, missing=missing))
         self.ok = False
 
-    def quantity(self, field: tuple, text, unit: str, *, positive: bool = False,
-                 allow_zero: bool = True) -> float | None:
+    def quantity(
+        self, field: tuple, text, unit: str, *, positive: bool = False, allow_zero: bool = True
+    ) -> float | None:
         if text is None:
             return None
         try:
@@ -245,15 +281,18 @@ class _RangeResolver:
             self.fail(field, str(exc))
             return None
         if positive and (value < 0 or (value == 0 and not allow_zero)):
-            self.fail(field, f"must be {'positive' if not allow_zero else 'zero or more'}, got {text!r}")
+            self.fail(
+                field, f"must be {'positive' if not allow_zero else 'zero or more'}, got {text!r}"
+            )
             return None
         return value
 
     def resolve(self) -> ResolvedRange | None:
         rng = self.rng
         ac = is_alternating(rng.function)
-        full_scale = self.quantity(("full-scale",), rng.full_scale, self.unit, positive=True,
-                                   allow_zero=False)
+        full_scale = self.quantity(
+            ("full-scale",), rng.full_scale, self.unit, positive=True, allow_zero=False
+        )
         centre = self.quantity(("centre",), rng.centre, "Ω", positive=True, allow_zero=False)
         battery = self.quantity(("battery",), rng.battery, "V", positive=True, allow_zero=False)
         arc = self.quantity(("arc",), rng.arc, "deg", positive=True, allow_zero=False)
@@ -262,7 +301,9 @@ class _RangeResolver:
         lower = self._lower_end(full_scale)
         law = self._law(full_scale, centre, lower)
         resolution, resolution_domain = self._resolution()
-        range_freq = self.quantity(("frequency",), rng.frequency, "Hz", positive=True, allow_zero=False)
+        range_freq = self.quantity(
+            ("frequency",), rng.frequency, "Hz", positive=True, allow_zero=False
+        )
         if range_freq is not None and not ac:
             self.fail(("frequency",), f"a {rng.function} range takes no frequency")
         bands = self._bands(ac)
@@ -272,11 +313,22 @@ class _RangeResolver:
         extra = self._extra_terms(arc)
         if not self.ok:
             return None
-        resolved = ResolvedRange(extra_terms=tuple(extra), id=rng.id, function=rng.function, unit=self.unit, law=law, arc=arc,
-                             full_scale=full_scale, resolution=resolution,
-                             resolution_domain=resolution_domain, bands=tuple(bands),
-                             read_on=rng.read_on, connect=rng.connect, points=tuple(points),
-                             battery=battery)
+        resolved = ResolvedRange(
+            extra_terms=tuple(extra),
+            id=rng.id,
+            function=rng.function,
+            unit=self.unit,
+            law=law,
+            arc=arc,
+            full_scale=full_scale,
+            resolution=resolution,
+            resolution_domain=resolution_domain,
+            bands=tuple(bands),
+            read_on=rng.read_on,
+            connect=rng.connect,
+            points=tuple(points),
+            battery=battery,
+        )
         self._check_arithmetic(resolved)
         return resolved if self.ok else None
 
@@ -286,8 +338,9 @@ class _RangeResolver:
         for i, (nominal, freq) in enumerate(rng.points):
             try:
                 win = tolerance.window(rng.band_at(freq).statement, nominal, rng.context)
-                budget = uncertainty.budget(terms=rng.meter_terms(), nominal=nominal, law=rng.law,
-                                            domain=win.domain)
+                budget = uncertainty.budget(
+                    terms=rng.meter_terms(), nominal=nominal, law=rng.law, domain=win.domain
+                )
                 if not all(math.isfinite(x) for x in (win.low, win.half_width, budget.expanded)):
                     raise ValueError("the numbers are too large to work with")
             except (ValueError, ArithmeticError) as exc:
@@ -308,11 +361,15 @@ class _RangeResolver:
                     pass  # reported with the point
             return -full_scale if negative else 0.0
         if (rng.scale or "linear") != "linear":
-            self.fail(("lower-end",), f"a {rng.scale} scale ends at 0 Ω; lower-end is for linear scales")
+            self.fail(
+                ("lower-end",), f"a {rng.scale} scale ends at 0 Ω; lower-end is for linear scales"
+            )
             return None
         if not rng.function.startswith("dc-"):
-            self.fail(("lower-end",), f"a {rng.function} range reads magnitudes from zero; lower-end is"
-                      " for DC ranges")
+            self.fail(
+                ("lower-end",),
+                f"a {rng.function} range reads magnitudes from zero; lower-end is for DC ranges",
+            )
             return None
         lower = self.quantity(("lower-end",), rng.lower_end, self.unit)
         if lower is not None and full_scale is not None and lower >= full_scale:
@@ -325,34 +382,56 @@ class _RangeResolver:
         scale = rng.scale
         if scale is None:
             if rng.function == "resistance":
-                self.fail(("scale",), missing=True, message="required for a resistance range: write scale: series-ohms (zero"
-                          " at the right end, infinity at the left: most analog ohmmeters), shunt-ohms"
-                          " (zero at the left end) or linear (a digital meter, with full-scale)")
+                self.fail(
+                    ("scale",),
+                    missing=True,
+                    message="required for a resistance range: write scale: series-ohms (zero"
+                    " at the right end, infinity at the left: most analog ohmmeters), shunt-ohms"
+                    " (zero at the left end) or linear (a digital meter, with full-scale)",
+                )
                 return None
             scale = "linear"  # voltage and current ranges are linear unless they say otherwise
         if scale == "linear":
             if rng.centre is not None:
-                self.fail(("centre",), "a linear scale has no centre-scale value: remove centre, or write"
-                          " scale: series-ohms (or shunt-ohms) for an ohms scale")
+                self.fail(
+                    ("centre",),
+                    "a linear scale has no centre-scale value: remove centre, or write"
+                    " scale: series-ohms (or shunt-ohms) for an ohms scale",
+                )
             if full_scale is None or lower is None:
                 if rng.full_scale is None:
-                    self.fail(("full-scale",), missing=True, message="required for a linear scale: write full-scale: and the value"
-                              f" at the right end of the scale, e.g. full-scale: 10 {self.unit}")
+                    self.fail(
+                        ("full-scale",),
+                        missing=True,
+                        message="required for a linear scale: write full-scale: and the value"
+                        f" at the right end of the scale, e.g. full-scale: 10 {self.unit}",
+                    )
                 return None
             return scales.Linear(low=lower, high=full_scale)
         if rng.function != "resistance":
-            self.fail(("scale",), f"a {scale} scale is for resistance, not {rng.function}: write"
-                      " scale: linear, or leave scale out")
+            self.fail(
+                ("scale",),
+                f"a {scale} scale is for resistance, not {rng.function}: write"
+                " scale: linear, or leave scale out",
+            )
             return None
         if centre is None:
             if rng.centre is None:
-                self.fail(("centre",), missing=True, message=f"required for a {scale} scale: write centre: and the value marked"
-                          " at the middle of the scale, e.g. centre: 12 ohm")
+                self.fail(
+                    ("centre",),
+                    missing=True,
+                    message=f"required for a {scale} scale: write centre: and the value marked"
+                    " at the middle of the scale, e.g. centre: 12 ohm",
+                )
             return None
         return scales.make_law(scale, centre=centre)
 
     def _unit_or_degrees(self, text) -> str:
-        return "deg" if isinstance(text, str) and text.strip().endswith(("deg", "°", "degrees")) else self.unit
+        return (
+            "deg"
+            if isinstance(text, str) and text.strip().endswith(("deg", "°", "degrees"))
+            else self.unit
+        )
 
     def _along_the_arc(self, text) -> str | None:
         """``"deg"`` or ``"%"`` when ``text`` is a step along the arc, else ``None``."""
@@ -365,26 +444,44 @@ class _RangeResolver:
         """The step the operator reads to: ``resolution``, or ``minor-division`` × ``read-to``."""
         rng = self.rng
         if rng.resolution is not None and rng.minor_division is not None:
-            self.fail(("minor-division",), "give either resolution or minor-division (with read-to), not both")
+            self.fail(
+                ("minor-division",),
+                "give either resolution or minor-division (with read-to), not both",
+            )
             return None, None
         if rng.read_to is not None and rng.minor_division is None:
-            self.fail(("read-to",), "read-to is a fraction of the minor division: give minor-division too")
+            self.fail(
+                ("read-to",), "read-to is a fraction of the minor division: give minor-division too"
+            )
             return None, None
-        key, text = ("resolution", rng.resolution) if rng.resolution is not None else ("minor-division", rng.minor_division)
+        key, text = (
+            ("resolution", rng.resolution)
+            if rng.resolution is not None
+            else ("minor-division", rng.minor_division)
+        )
         if text is None:
             # Without it the budget leaves out how well the meter can be read, and the TUR means nothing.
-            example = "0.5 deg along the arc" if rng.function == "resistance" else f"0.05 {self.unit}"
-            self.problems.append(self.located.problem(
-                self.loc + ("resolution",), "required, but missing: the step the meter is read to, e.g."
-                f" resolution: {example}, or minor-division: with read-to: (a fraction of the division)",
-                missing=True))
+            example = (
+                "0.5 deg along the arc" if rng.function == "resistance" else f"0.05 {self.unit}"
+            )
+            self.problems.append(
+                self.located.problem(
+                    self.loc + ("resolution",),
+                    "required, but missing: the step the meter is read to, e.g."
+                    f" resolution: {example}, or minor-division: with read-to: (a fraction of the division)",
+                    missing=True,
+                )
+            )
             self.ok = False
             return None, None
         along = self._along_the_arc(text)
         if rng.scale in ("series-ohms", "shunt-ohms") and along is None:
-            self.fail((key,), f"on a {rng.scale} scale give the {key} along the arc, in degrees (0.5 deg)"
-                      " or percent of scale length (0.5 %): its divisions are not evenly spaced in"
-                      f" ohms, so {text!r} cannot stand for every point")
+            self.fail(
+                (key,),
+                f"on a {rng.scale} scale give the {key} along the arc, in degrees (0.5 deg)"
+                " or percent of scale length (0.5 %): its divisions are not evenly spaced in"
+                f" ohms, so {text!r} cannot stand for every point",
+            )
             return None, None
         unit = along or self.unit
         value = self.quantity((key,), text, unit, positive=True, allow_zero=False)
@@ -392,7 +489,10 @@ class _RangeResolver:
             return None, None
         if rng.read_to is not None:
             if not (math.isfinite(rng.read_to) and 0 < rng.read_to <= 1):
-                self.fail(("read-to",), f"must be a fraction of a division, more than 0 and at most 1, got {rng.read_to!r}")
+                self.fail(
+                    ("read-to",),
+                    f"must be a fraction of a division, more than 0 and at most 1, got {rng.read_to!r}",
+                )
                 return None, None
             value *= rng.read_to
         return value, {"deg": "deg", "%": "length"}.get(unit, "value")
@@ -413,19 +513,37 @@ class _RangeResolver:
                     continue
                 level = level_pct / 100.0
             try:
-                u = uncertainty.standard_from_limit(limit, distribution=extra.distribution, level=level)
+                u = uncertainty.standard_from_limit(
+                    limit, distribution=extra.distribution, level=level
+                )
             except ValueError as exc:
-                self.fail(field + (("level",) if extra.level is not None else ("distribution",)), str(exc))
+                self.fail(
+                    field + (("level",) if extra.level is not None else ("distribution",)), str(exc)
+                )
                 continue
             if unit == "deg":
                 if not arc:
-                    self.fail(field + ("limit",), "a contribution in degrees needs the arc of the scale")
+                    self.fail(
+                        field + ("limit",), "a contribution in degrees needs the arc of the scale"
+                    )
                     continue
-                terms.append(uncertainty.Term(name=extra.name, standard_uncertainty=u / arc,
-                                              domain="deflection", distribution=extra.distribution))
+                terms.append(
+                    uncertainty.Term(
+                        name=extra.name,
+                        standard_uncertainty=u / arc,
+                        domain="deflection",
+                        distribution=extra.distribution,
+                    )
+                )
             else:
-                terms.append(uncertainty.Term(name=extra.name, standard_uncertainty=u, domain="value",
-                                              distribution=extra.distribution))
+                terms.append(
+                    uncertainty.Term(
+                        name=extra.name,
+                        standard_uncertainty=u,
+                        domain="value",
+                        distribution=extra.distribution,
+                    )
+                )
         return terms
 
     def _bands(self, ac: bool) -> list[Band]:
@@ -443,17 +561,25 @@ class _RangeResolver:
         return bands
 
     def _band(self, field: tuple, acc: Accuracy, ac: bool, listed: bool) -> Band | None:
-        given = {name: getattr(acc, name) for name in (*_ARC_FORMS, *_VALUE_FORMS)
-                 if getattr(acc, name) is not None}
+        given = {
+            name: getattr(acc, name)
+            for name in (*_ARC_FORMS, *_VALUE_FORMS)
+            if getattr(acc, name) is not None
+        }
         arc_forms = [n for n in given if n in _ARC_FORMS]
         value_forms = [n for n in given if n in _VALUE_FORMS]
         if not given:
-            self.fail(field, "give one of " + ", ".join([*_ARC_FORMS.values(), *_VALUE_FORMS.values()]))
+            self.fail(
+                field, "give one of " + ", ".join([*_ARC_FORMS.values(), *_VALUE_FORMS.values()])
+            )
             return None
         if len(arc_forms) > 1 or (arc_forms and value_forms):
             names = [_ARC_FORMS.get(n) or _VALUE_FORMS[n] for n in given]
-            self.fail(field, f"{' and '.join(names)} cannot be combined; give one of"
-                      f" {', '.join(_ARC_FORMS.values())}, or a sum of {', '.join(_VALUE_FORMS.values())}")
+            self.fail(
+                field,
+                f"{' and '.join(names)} cannot be combined; give one of"
+                f" {', '.join(_ARC_FORMS.values())}, or a sum of {', '.join(_VALUE_FORMS.values())}",
+            )
             return None
         for name in list(given):
             if name == "absolute":
@@ -483,19 +609,25 @@ class _RangeResolver:
         if arc_forms:
             name = arc_forms[0]
             value = given[name]
-            statement = {"percent_of_full_scale": lambda: tolerance.PercentOfFullScale(percent=value),
-                         "class_index": lambda: tolerance.ClassIndex(index=value),
-                         "degrees": lambda: tolerance.DegreesOfArc(degrees=value),
-                         "percent_of_length": lambda: tolerance.PercentOfLength(percent=value)}[name]()
+            statement = {
+                "percent_of_full_scale": lambda: tolerance.PercentOfFullScale(percent=value),
+                "class_index": lambda: tolerance.ClassIndex(index=value),
+                "degrees": lambda: tolerance.DegreesOfArc(degrees=value),
+                "percent_of_length": lambda: tolerance.PercentOfLength(percent=value),
+            }[name]()
         else:
             absolute = self.quantity(field + ("absolute",), acc.absolute, self.unit, positive=True)
             if acc.absolute is not None and absolute is None:
                 return None
-            statement = tolerance.ValueStatement(reading=given.get("percent_of_reading", 0.0),
-                                                 range=given.get("percent_of_range", 0.0),
-                                                 counts=given.get("counts", 0.0),
-                                                 absolute=absolute or 0.0)
-        return Band(statement=statement, low_hz=low, high_hz=high, text=describe_accuracy(acc, given))
+            statement = tolerance.ValueStatement(
+                reading=given.get("percent_of_reading", 0.0),
+                range=given.get("percent_of_range", 0.0),
+                counts=given.get("counts", 0.0),
+                absolute=absolute or 0.0,
+            )
+        return Band(
+            statement=statement, low_hz=low, high_hz=high, text=describe_accuracy(acc, given)
+        )
 
     def _accuracy_number(self, field: tuple, name: str, text) -> float | None:
         """One term of an accuracy statement: a number, or with its unit (``2 %``, ``3 deg``)."""
@@ -509,15 +641,18 @@ class _RangeResolver:
             return None
         return value
 
-    def _points(self, ac: bool, range_freq, full_scale, bands: list[Band],
-                law=None) -> list[tuple[float, float | None]]:
+    def _points(
+        self, ac: bool, range_freq, full_scale, bands: list[Band], law=None
+    ) -> list[tuple[float, float | None]]:
         points = []
         for i, item in enumerate(self.rng.points):
             field = ("points", i)
             at = item.at if hasattr(item, "at") else item
             freq_text = getattr(item, "frequency", None)
             nominal = self.quantity(field + (("at",) if hasattr(item, "at") else ()), at, self.unit)
-            freq = self.quantity(field + ("frequency",), freq_text, "Hz", positive=True, allow_zero=False)
+            freq = self.quantity(
+                field + ("frequency",), freq_text, "Hz", positive=True, allow_zero=False
+            )
             if nominal is None or (freq_text is not None and freq is None):
                 continue
             if freq_text is not None and not ac:
@@ -525,21 +660,32 @@ class _RangeResolver:
                 continue
             freq = freq if freq is not None else range_freq
             if ac and freq is None:
-                self.fail(field, "an AC point needs a frequency (give 'frequency' on the range or the point)")
+                self.fail(
+                    field,
+                    "an AC point needs a frequency (give 'frequency' on the range or the point)",
+                )
                 continue
             if self.rng.function == "resistance" and nominal < 0:
                 self.fail(field, f"a resistance cannot be negative, got {at!r}")
                 continue
             if full_scale is not None and abs(nominal) > full_scale * (1 + 1e-12):
-                self.fail(field, f"{at!r} is beyond the full-scale value of the range"
-                          f" (full-scale: {self.rng.full_scale}); a point is at most the full-scale value")
+                self.fail(
+                    field,
+                    f"{at!r} is beyond the full-scale value of the range"
+                    f" (full-scale: {self.rng.full_scale}); a point is at most the full-scale value",
+                )
                 continue
             if isinstance(law, scales.Linear) and nominal < law.low:
-                self.fail(field, f"{at!r} is below the lower end of the scale ({law.low:g} {self.unit});"
-                          " give lower-end for a zero-centre scale or a meter of either polarity")
+                self.fail(
+                    field,
+                    f"{at!r} is below the lower end of the scale ({law.low:g} {self.unit});"
+                    " give lower-end for a zero-centre scale or a meter of either polarity",
+                )
                 continue
             if ac and nominal < 0:
-                self.fail(field, f"an AC value is an rms magnitude and cannot be negative, got {at!r}")
+                self.fail(
+                    field, f"an AC value is an rms magnitude and cannot be negative, got {at!r}"
+                )
                 continue
             if bands and not any(b.covers(freq) for b in bands):
                 self.fail(field, f"no accuracy band of the range covers {freq:g} Hz")
@@ -548,8 +694,12 @@ class _RangeResolver:
         return points
 
     def _check_statements(self, law, arc, full_scale, resolution, resolution_domain, bands) -> None:
-        ctx = tolerance.RangeContext(law=law, arc=arc, full_scale=full_scale,
-                                     count=resolution if resolution_domain == "value" else None)
+        ctx = tolerance.RangeContext(
+            law=law,
+            arc=arc,
+            full_scale=full_scale,
+            count=resolution if resolution_domain == "value" else None,
+        )
         for band in bands:
             try:
                 band.statement.half_width(full_scale or 1.0, ctx)
@@ -558,18 +708,27 @@ class _RangeResolver:
 
 
 #: How each term of an accuracy statement is printed on the certificate.
-_WORDS = (("percent_of_full_scale", "{:g} % of full scale"), ("class_index", "class {:g}"),
-          ("degrees", "{:g}° of arc"), ("percent_of_length", "{:g} % of scale length"),
-          ("percent_of_reading", "{:g} % of reading"), ("percent_of_range", "{:g} % of range"),
-          ("counts", "{:g} counts"), ("absolute", "{}"))
+_WORDS = (
+    ("percent_of_full_scale", "{:g} % of full scale"),
+    ("class_index", "class {:g}"),
+    ("degrees", "{:g}° of arc"),
+    ("percent_of_length", "{:g} % of scale length"),
+    ("percent_of_reading", "{:g} % of reading"),
+    ("percent_of_range", "{:g} % of range"),
+    ("counts", "{:g} counts"),
+    ("absolute", "{}"),
+)
 
 
 def describe_accuracy(acc: Accuracy, values: dict | None = None) -> str:
     """The accuracy statement in words, as printed on the certificate; ``values`` are its terms
     as numbers (when written with a unit, ``"2 %"``), by field name."""
     values = values or {}
-    parts = [words.format(values.get(name, getattr(acc, name))) for name, words in _WORDS
-             if getattr(acc, name) is not None]
+    parts = [
+        words.format(values.get(name, getattr(acc, name)))
+        for name, words in _WORDS
+        if getattr(acc, name) is not None
+    ]
     text = "± (" + " + ".join(parts) + ")" if len(parts) > 1 else "± " + parts[0] if parts else ""
     if acc.from_ is not None:
         text += f", {acc.from_} to {acc.to}"

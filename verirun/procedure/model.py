@@ -10,7 +10,16 @@ from __future__ import annotations
 import math
 from typing import Annotated, Literal, Union
 
-from pydantic import AfterValidator, BaseModel, ConfigDict, Field, StrictFloat, StrictInt, StrictStr, field_validator
+from pydantic import (
+    AfterValidator,
+    BaseModel,
+    ConfigDict,
+    Field,
+    StrictFloat,
+    StrictInt,
+    StrictStr,
+    field_validator,
+)
 
 from verirun.functions import FunctionName
 
@@ -41,8 +50,9 @@ def _hyphens(name: str) -> str:
 class Strict(BaseModel):
     """Base of every file model: frozen, unknown keys refused, keys written with hyphens."""
 
-    model_config = ConfigDict(extra="forbid", frozen=True, alias_generator=_hyphens,
-                              populate_by_name=False)
+    model_config = ConfigDict(
+        extra="forbid", frozen=True, alias_generator=_hyphens, populate_by_name=False
+    )
 
 
 class Accuracy(Strict):

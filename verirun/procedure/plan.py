@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import functools
 from dataclasses import dataclass
-
 from typing import TYPE_CHECKING
 
 from verirun.metrology import decision, tolerance, uncertainty
@@ -26,7 +25,7 @@ class TestPoint:
 
     __test__ = False  # not a pytest test class
 
-    index: int                 # 0-based position in the plan
+    index: int  # 0-based position in the plan
     total: int
     range: ResolvedRange
     nominal: float
@@ -93,14 +92,18 @@ class TestPoint:
         return f"{rng.id} ({words_for(rng.function)}, {detail})"
 
 
-def budget_terms(rng: ResolvedRange, nominal: float, frequency: float | None,
-                 standard: "SpecLine | None") -> list[uncertainty.Term]:
+def budget_terms(
+    rng: ResolvedRange, nominal: float, frequency: float | None, standard: "SpecLine | None"
+) -> list[uncertainty.Term]:
     """The contributions to the uncertainty of a reading at ``nominal`` on ``rng``: the applied
     value's, from the calibrator's specification line ``standard``, then the meter's own."""
     terms = []
     if standard is not None:
-        terms.append(standard.spec.term(output=nominal, range_value=standard.range,
-                                        name="applied value (calibrator)"))
+        terms.append(
+            standard.spec.term(
+                output=nominal, range_value=standard.range, name="applied value (calibrator)"
+            )
+        )
     return terms + rng.meter_terms()
 
 
@@ -120,13 +123,29 @@ def plan(procedure: Procedure, bench: "Bench | None" = None) -> list[TestPoint]:
         band = rng.band_at(freq)
         win = tolerance.window(band.statement, nominal, rng.context)
         standard = bench.spec_for(rng.function, nominal, freq) if bench is not None else None
-        budget = uncertainty.budget(terms=budget_terms(rng, nominal, freq, standard), nominal=nominal,
-                                    law=rng.law, domain=win.domain)
-        points.append(TestPoint(index=index, total=len(items), range=rng, nominal=nominal,
-                                frequency=freq, window=win, accuracy_text=band.text,
-                                first_of_range=rng is not previous, budget=budget,
-                                rule=procedure.rule, standard=standard, statement=band.statement,
-                                written=written[index]))
+        budget = uncertainty.budget(
+            terms=budget_terms(rng, nominal, freq, standard),
+            nominal=nominal,
+            law=rng.law,
+            domain=win.domain,
+        )
+        points.append(
+            TestPoint(
+                index=index,
+                total=len(items),
+                range=rng,
+                nominal=nominal,
+                frequency=freq,
+                window=win,
+                accuracy_text=band.text,
+                first_of_range=rng is not previous,
+                budget=budget,
+                rule=procedure.rule,
+                standard=standard,
+                statement=band.statement,
+                written=written[index],
+            )
+        )
         previous = rng
     return points
 
@@ -144,7 +163,9 @@ def _written_points(procedure: Procedure) -> list[str | None]:
             if freq is not None:
                 freq_text = getattr(item, "frequency", None)
                 freq_text = freq_text if freq_text is not None else model.frequency
-                text += "@" + (_compact(freq_text, "Hz") if freq_text is not None else f"{freq!r}Hz")
+                text += "@" + (
+                    _compact(freq_text, "Hz") if freq_text is not None else f"{freq!r}Hz"
+                )
             out.append(text)
     return out
 

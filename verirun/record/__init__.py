@@ -1,10 +1,10 @@
 """The run record: what a run is, as stored.
 
-- :mod:`~verirun.record.journal.documents`: one strict model per journal document kind, and the schema;
-- :mod:`~verirun.record.journal.journal`: the hash-chained, fsynced journal of a run folder, and the
+- :mod:`~verirun.record.documents`: one strict model per journal document kind, and the schema;
+- :mod:`~verirun.record.journal`: the hash-chained, fsynced journal of a run folder, and the
   record file's reading and writing;
-- :mod:`~verirun.record.journal.build`: documents to record, one code path for every close;
-- :mod:`~verirun.record.journal.verify`: whether a stored run is as recorded;
-- :mod:`~verirun.record.journal.amend`: a correction as a new revision;
-- :mod:`~verirun.record.journal.listing`: the runs of a folder, summarised.
+- :mod:`~verirun.record.build`: documents to record, one code path for every close;
+- :mod:`~verirun.record.verify`: whether a stored run is as recorded;
+- :mod:`~verirun.record.amend`: a correction as a new revision;
+- :mod:`~verirun.record.listing`: the runs of a folder, summarised.
 """

@@ -12,18 +12,17 @@ import math
 from pathlib import Path
 
 from verirun import storage
-
 from verirun.bench.config import load_bench_text
 from verirun.clock import SystemClock, iso
+from verirun.conduct import close_run, latest_time
 from verirun.errors import RecordError, UnitError
-from verirun.record.verify import run_folder, verified_record
+from verirun.locks import run_lock
 from verirun.procedure.load import load_procedure_text
 from verirun.procedure.plan import TestPoint, plan
-from verirun.locks import run_lock
 from verirun.readings import parse_entry
-from verirun.conduct import close_run, latest_time
-from verirun.units import parse_value
 from verirun.record.journal import JOURNAL_NAME, RECORD_NAME, Journal, read_journal
+from verirun.record.verify import run_folder, verified_record
+from verirun.units import parse_value
 
 
 def find_point(points: list[TestPoint], which: str) -> TestPoint:
@@ -48,10 +47,14 @@ def find_point(points: list[TestPoint], which: str) -> TestPoint:
         return matches[0]
     if matches:
         steps = ", ".join(str(p.step) for p in matches)
-        raise RecordError(f"{text!r} is at steps {steps} of this run; name the step by its number"
-                          f" (--point {matches[0].step})")
-    raise RecordError(f"the run has no point {text!r}; name it by step number (1 to {len(points)}) or by"
-                      f" its label (e.g. {points[0].key!r})")
+        raise RecordError(
+            f"{text!r} is at steps {steps} of this run; name the step by its number"
+            f" (--point {matches[0].step})"
+        )
+    raise RecordError(
+        f"the run has no point {text!r}; name it by step number (1 to {len(points)}) or by"
+        f" its label (e.g. {points[0].key!r})"
+    )
 
 
 def _names(point: TestPoint, text: str) -> bool:
@@ -69,11 +72,14 @@ def _names(point: TestPoint, text: str) -> bool:
         return False
     if (frequency is None) != (point.frequency is None):
         return False
-    return (math.isclose(nominal, point.nominal, rel_tol=1e-12, abs_tol=0.0)
-            and (frequency is None or math.isclose(frequency, point.frequency, rel_tol=1e-12)))
+    return math.isclose(nominal, point.nominal, rel_tol=1e-12, abs_tol=0.0) and (
+        frequency is None or math.isclose(frequency, point.frequency, rel_tol=1e-12)
+    )
 
 
-def amend(path: str | Path, *, point: str, reading: str, reason: str, operator: str, clock=None) -> dict:
+def amend(
+    path: str | Path, *, point: str, reading: str, reason: str, operator: str, clock=None
+) -> dict:
     """Correct the reading of one point; return the new revision's run record.
 
     Raises
@@ -84,20 +90,27 @@ def amend(path: str | Path, *, point: str, reading: str, reason: str, operator: 
     clock = clock or SystemClock()
     folder = run_folder(path)
     with run_lock(folder):
-        return _amend_locked(folder, point=point, reading=reading, reason=reason, operator=operator,
-                             clock=clock)
+        return _amend_locked(
+            folder, point=point, reading=reading, reason=reason, operator=operator, clock=clock
+        )
 
 
-def _amend_locked(folder: Path, *, point: str, reading: str, reason: str, operator: str, clock) -> dict:
+def _amend_locked(
+    folder: Path, *, point: str, reading: str, reason: str, operator: str, clock
+) -> dict:
     record = verified_record(folder)
     if record["run"]["status"] != "complete":
-        raise RecordError(f"{folder}: the run is {record['run']['status']}; resume it rather than correct it")
+        raise RecordError(
+            f"{folder}: the run is {record['run']['status']}; resume it rather than correct it"
+        )
     if not reason.strip():
         raise RecordError("give the reason for the correction (it is printed on the certificate)")
     docs = read_journal(folder / JOURNAL_NAME).documents
     start = docs[0]
-    points = plan(load_procedure_text(start["procedure"]["text"], start["procedure"]["source"]),
-                  load_bench_text(start["bench"]["text"], start["bench"]["source"]))
+    points = plan(
+        load_procedure_text(start["procedure"]["text"], start["procedure"]["source"]),
+        load_bench_text(start["bench"]["text"], start["bench"]["source"]),
+    )
     target = find_point(points, point)
     try:
         entry = parse_entry(reading, target)
@@ -113,9 +126,18 @@ def _amend_locked(folder: Path, *, point: str, reading: str, reason: str, operat
     with Journal(folder / JOURNAL_NAME) as journal:
         # Never dated before what the journal already holds (a clock set back).
         now = max(iso(clock.now()), latest_time(docs) or "")
-        journal.append({"kind": "correction", "time": now, "point": target.key_in(journal_format),
-                        "index": target.index, "typed": entry.typed, "reading": entry.value,
-                        "reason": reason.strip(), "operator": operator})
+        journal.append(
+            {
+                "kind": "correction",
+                "time": now,
+                "point": target.key_in(journal_format),
+                "index": target.index,
+                "typed": entry.typed,
+                "reading": entry.value,
+                "reason": reason.strip(),
+                "operator": operator,
+            }
+        )
     from verirun.register.closing import after_close
 
     return after_close(folder, close_run(folder))[0]

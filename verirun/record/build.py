@@ -13,11 +13,11 @@ from dataclasses import dataclass, field
 from verirun.bench.config import Bench, load_bench_text
 from verirun.errors import ProcedureError, RecordError
 from verirun.evaluation import Result, evaluate, shown
+from verirun.functions import words_for
 from verirun.metrology.exact import as_written
 from verirun.metrology.summary import Judged, Summary, summarise
 from verirun.procedure.load import Procedure, load_procedure_text
 from verirun.procedure.plan import TestPoint, plan
-from verirun.functions import words_for
 from verirun.record.journal import RECORD_FORMAT, dumps, json_number, line_hash, verify_chain
 
 
@@ -35,11 +35,15 @@ class Known:
 
     def holds(self, start: dict) -> bool:
         """True when the procedure and bench are those of the journal's start document."""
-        return (self.procedure.text == start["procedure"]["text"]
-                and self.bench.text == start["bench"]["text"])
+        return (
+            self.procedure.text == start["procedure"]["text"]
+            and self.bench.text == start["bench"]["text"]
+        )
 
 
-def build_record(documents: list[dict], source: str = "journal", *, known: Known | None = None) -> dict:
+def build_record(
+    documents: list[dict], source: str = "journal", *, known: Known | None = None
+) -> dict:
     """The run record of a journal's ``documents`` (see :func:`_build`).
 
     Raises
@@ -53,7 +57,9 @@ def build_record(documents: list[dict], source: str = "journal", *, known: Known
         raise
     except (KeyError, TypeError, ValueError, AttributeError, IndexError, ArithmeticError) as exc:
         # The documents passed the checks of each one alone, yet do not fit together.
-        raise RecordError(f"{source}: not a journal verirun writes ({type(exc).__name__}: {exc})") from None
+        raise RecordError(
+            f"{source}: not a journal verirun writes ({type(exc).__name__}: {exc})"
+        ) from None
 
 
 def _build(documents: list[dict], source: str = "journal", *, known: Known | None = None) -> dict:
@@ -75,19 +81,28 @@ def _build(documents: list[dict], source: str = "journal", *, known: Known | Non
         raise RecordError("\n".join(problems))
     start = documents[0]
     if known is not None and known.holds(start):
-        procedure, bench, planned, results = known.procedure, known.bench, known.points, known.results
+        procedure, bench, planned, results = (
+            known.procedure,
+            known.bench,
+            known.points,
+            known.results,
+        )
     else:
         try:
-            procedure = load_procedure_text(start["procedure"]["text"], start["procedure"]["source"])
+            procedure = load_procedure_text(
+                start["procedure"]["text"], start["procedure"]["source"]
+            )
             bench = load_bench_text(start["bench"]["text"], start["bench"]["source"])
         except ProcedureError as exc:
-            raise RecordError(f"{source}: the procedure or bench stored in the journal does not load:"
-                              f" {exc}") from None
+            raise RecordError(
+                f"{source}: the procedure or bench stored in the journal does not load: {exc}"
+            ) from None
         planned, results = plan(procedure, bench), {}
     journal_format = start.get("journal_format", 1)
     after = _AfterTheRun(start, source)
-    entries, corrections, notes, stop, revision, number = _entries(documents, planned, journal_format, source,
-                                                                   after)
+    entries, corrections, notes, stop, revision, number = _entries(
+        documents, planned, journal_format, source, after
+    )
     rows = []
     for point in planned:
         row = _row(point, entries.get(point.index), results.get(point.index), journal_format)
@@ -100,21 +115,38 @@ def _build(documents: list[dict], source: str = "journal", *, known: Known | Non
         status = "incomplete"
     return {
         "record_format": 1 if journal_format < 2 else RECORD_FORMAT,
-        "run": {"uid": start["uid"], "started": start["time"], "ended": stop["time"] if stop else None,
-                "status": status, "reason": stop.get("reason") if stop else None,
-                "operator": start["operator"], "software": start["software"],
-                "journal_sha256_last": line_hash(dumps(documents[-1])),
-                "documents": len(documents), "revision": revision,
-                **({"certificate_number": number} if number is not None else {})},
+        "run": {
+            "uid": start["uid"],
+            "started": start["time"],
+            "ended": stop["time"] if stop else None,
+            "status": status,
+            "reason": stop.get("reason") if stop else None,
+            "operator": start["operator"],
+            "software": start["software"],
+            "journal_sha256_last": line_hash(dumps(documents[-1])),
+            "documents": len(documents),
+            "revision": revision,
+            **({"certificate_number": number} if number is not None else {}),
+        },
         "lab": start["lab"],
         "customer": {"name": None, "address": [], **start["customer"]},
-        "item": {"serial": None, "asset": None, "condition": None, "received": None, **start["item"]},
+        "item": {
+            "serial": None,
+            "asset": None,
+            "condition": None,
+            "received": None,
+            **start["item"],
+        },
         "environment": start.get("environment", {}),
         **({"as_found": after.as_found} if after.as_found else {}),
-        "procedure": start["procedure"], "bench": start["bench"],
+        "procedure": start["procedure"],
+        "bench": start["bench"],
         "meter": procedure.file.meter.model_dump(by_alias=True),
-        "decision_rule": {"rule": procedure.rule.name, "statement": procedure.rule.describe(),
-                          "parameters": procedure.file.decision.model_dump(by_alias=True, exclude_none=True)},
+        "decision_rule": {
+            "rule": procedure.rule.name,
+            "statement": procedure.rule.describe(),
+            "parameters": procedure.file.decision.model_dump(by_alias=True, exclude_none=True),
+        },
         "ranges": [_range(rng) for rng in procedure.ranges],
         "points": rows,
         "notes": notes,
@@ -133,8 +165,11 @@ def record_judged(record: dict) -> list[Judged]:
         within = row.get("within_tolerance")
         if within is None and row.get("reading") is not None:
             high = row.get("high")
-            within = as_written(row["low"]) <= as_written(row["reading"]) <= (
-                math.inf if high is None else as_written(high))
+            within = (
+                as_written(row["low"])
+                <= as_written(row["reading"])
+                <= (math.inf if high is None else as_written(high))
+            )
         out.append(Judged(key=row["key"], verdict=row["verdict"], within_tolerance=within))
     return out
 
@@ -142,11 +177,15 @@ def record_judged(record: dict) -> list[Judged]:
 def summary_document(summary: Summary) -> dict:
     """The record's summary: every count, the overall outcome, the rejections by cause and the
     statement of conformity in words, all from :func:`~verirun.metrology.summary.summarise`."""
-    return {**summary.counts(), "overall": summary.overall,
-            "rejections": [{"key": r.key, "verdict": r.verdict, "cause": r.cause}
-                           for r in summary.rejections],
-            "guard_band_rejections": list(summary.guard_band_rejections),
-            "statement": summary.statement()}
+    return {
+        **summary.counts(),
+        "overall": summary.overall,
+        "rejections": [
+            {"key": r.key, "verdict": r.verdict, "cause": r.cause} for r in summary.rejections
+        ],
+        "guard_band_rejections": list(summary.guard_band_rejections),
+        "statement": summary.statement(),
+    }
 
 
 class _AfterTheRun:
@@ -174,20 +213,38 @@ class _AfterTheRun:
         where = f"{self.source}:{doc['seq'] + 1}: {doc['kind']}"
         if doc["kind"] == "issue":
             if self.simulated:
-                raise RecordError(f"{where}: issues a dry run on the simulated calibrator, which is not a calibration")
+                raise RecordError(
+                    f"{where}: issues a dry run on the simulated calibrator, which is not a calibration"
+                )
             if doc.get("revision") != revision:
-                raise RecordError(f"{where}: issues revision {doc.get('revision')!r}, but the run is at revision {revision}")
+                raise RecordError(
+                    f"{where}: issues revision {doc.get('revision')!r}, but the run is at revision {revision}"
+                )
             if any(issue["revision"] == revision for issue in self.issues):
                 raise RecordError(f"{where}: revision {revision} was issued already")
-            self.issues.append({key: doc.get(key) for key in ("revision", "time", "by", "role", "certificate")})
+            self.issues.append(
+                {key: doc.get(key) for key in ("revision", "time", "by", "role", "certificate")}
+            )
             return revision
         revision += 1
         self.as_found = doc["as_found"]
-        self.revisions.append({"revision": revision, "time": doc["time"], "by": doc["operator"],
-                               "reason": doc["reason"], "what": "as-found results"})
-        notes.append({"time": doc["time"], "point": None,
-                      "text": f"revision {revision}: the as-found results replaced by those of certificate"
-                              f" {doc['as_found'].get('certificate')} by {doc['operator']}: {doc['reason']}"})
+        self.revisions.append(
+            {
+                "revision": revision,
+                "time": doc["time"],
+                "by": doc["operator"],
+                "reason": doc["reason"],
+                "what": "as-found results",
+            }
+        )
+        notes.append(
+            {
+                "time": doc["time"],
+                "point": None,
+                "text": f"revision {revision}: the as-found results replaced by those of certificate"
+                f" {doc['as_found'].get('certificate')} by {doc['operator']}: {doc['reason']}",
+            }
+        )
         return revision
 
     def extra(self) -> dict:
@@ -204,14 +261,27 @@ class _AfterTheRun:
 
 
 def _range(rng) -> dict:
-    return {"id": rng.id, "function": rng.function, "function_name": words_for(rng.function),
-            "unit": rng.unit, "scale": rng.law.name,
-            "full_scale": rng.full_scale, "centre": getattr(rng.law, "centre", None), "arc": rng.arc,
-            "accuracy": [b.text for b in rng.bands], "read_on": rng.read_on}
+    return {
+        "id": rng.id,
+        "function": rng.function,
+        "function_name": words_for(rng.function),
+        "unit": rng.unit,
+        "scale": rng.law.name,
+        "full_scale": rng.full_scale,
+        "centre": getattr(rng.law, "centre", None),
+        "arc": rng.arc,
+        "accuracy": [b.text for b in rng.bands],
+        "read_on": rng.read_on,
+    }
 
 
-def _entries(documents: list[dict], planned: list[TestPoint], journal_format: int, source: str,
-             after: _AfterTheRun):
+def _entries(
+    documents: list[dict],
+    planned: list[TestPoint],
+    journal_format: int,
+    source: str,
+    after: _AfterTheRun,
+):
     """Each step's confirmed entry, the corrections, notes, last stop, revision and certificate
     number (the lab register's, or None) of a journal.
 
@@ -237,78 +307,145 @@ def _entries(documents: list[dict], planned: list[TestPoint], journal_format: in
         where = f"{source}:{doc['seq'] + 1}: {kind}"
         if kind == "certificate-number":  # given by the lab register after the run closed complete
             if stop is None or stop["status"] != "complete":
-                raise RecordError(f"{where}: a certificate number for a run that is not closed complete;"
-                                  " the journal was edited")
+                raise RecordError(
+                    f"{where}: a certificate number for a run that is not closed complete;"
+                    " the journal was edited"
+                )
             if number is not None:
-                raise RecordError(f"{where}: a second certificate number (the run already has"
-                                  f" {number}); the journal was edited")
+                raise RecordError(
+                    f"{where}: a second certificate number (the run already has"
+                    f" {number}); the journal was edited"
+                )
             if after.issues:
-                raise RecordError(f"{where}: a certificate number given after the certificate was issued"
-                                  " (an issued certificate keeps its number); the journal was edited")
+                raise RecordError(
+                    f"{where}: a certificate number given after the certificate was issued"
+                    " (an issued certificate keeps its number); the journal was edited"
+                )
             number = doc["number"]
             continue
-        if stop is not None and stop["status"] == "complete" and kind not in ("correction", *_AfterTheRun.KINDS):
-            raise RecordError(f"{where}: written after the run was closed complete (only a"
-                              " correction, an issue, revised as-found results or the certificate"
-                              " number may follow); the journal was edited")
+        if (
+            stop is not None
+            and stop["status"] == "complete"
+            and kind not in ("correction", *_AfterTheRun.KINDS)
+        ):
+            raise RecordError(
+                f"{where}: written after the run was closed complete (only a"
+                " correction, an issue, revised as-found results or the certificate"
+                " number may follow); the journal was edited"
+            )
         if stop is not None and stop["status"] != "complete" and kind != "resume":
-            raise RecordError(f"{where}: written after a stop without a resume between; the journal"
-                              " was edited")
-        if kind in ("correction", *_AfterTheRun.KINDS) and (stop is None or stop["status"] != "complete"):
-            raise RecordError(f"{where}: written for a run that is not closed complete; the journal was edited")
+            raise RecordError(
+                f"{where}: written after a stop without a resume between; the journal was edited"
+            )
+        if kind in ("correction", *_AfterTheRun.KINDS) and (
+            stop is None or stop["status"] != "complete"
+        ):
+            raise RecordError(
+                f"{where}: written for a run that is not closed complete; the journal was edited"
+            )
         if kind in _AfterTheRun.KINDS:
             revision = after.take(doc, revision, notes)
             continue
         if kind in ("observation", "skip", "correction"):
             point = _step_of(doc, planned, journal_format, where)
             if kind != "correction" and point.index in entries:
-                raise RecordError(f"{where}: a second entry for step {point.step} ({point.key_in(journal_format)});"
-                                  " a step has one confirmed entry, so the journal was edited")
+                raise RecordError(
+                    f"{where}: a second entry for step {point.step} ({point.key_in(journal_format)});"
+                    " a step has one confirmed entry, so the journal was edited"
+                )
             if kind == "correction":
                 revision += 1
                 previous = entries.get(point.index)
                 label = doc["point"]
                 corrections[point.index] = {
-                    "revision": revision, "time": doc["time"], "reason": doc["reason"],
-                    "by": doc["operator"], "previous_typed": previous.get("typed") if previous else None}
-                notes.append({"time": doc["time"], "point": label,
-                              "text": f"revision {revision}: reading of {_step_label(point, label, journal_format)}"
-                                      f" corrected from {corrections[point.index]['previous_typed']!r} to"
-                                      f" {doc['typed']!r} by {doc['operator']}: {doc['reason']}"})
+                    "revision": revision,
+                    "time": doc["time"],
+                    "reason": doc["reason"],
+                    "by": doc["operator"],
+                    "previous_typed": previous.get("typed") if previous else None,
+                }
+                notes.append(
+                    {
+                        "time": doc["time"],
+                        "point": label,
+                        "text": f"revision {revision}: reading of {_step_label(point, label, journal_format)}"
+                        f" corrected from {corrections[point.index]['previous_typed']!r} to"
+                        f" {doc['typed']!r} by {doc['operator']}: {doc['reason']}",
+                    }
+                )
             entries[point.index] = doc  # a correction supersedes the entry it corrects
         elif kind == "withdrawal":
             point = _step_of(doc, planned, journal_format, where)
             withdrawn = entries.pop(point.index, None)
-            after.note(notes, {"time": doc["time"], "point": doc["point"],
-                               "text": f"entry {doc.get('typed')!r} of step {point.step} withdrawn by the"
-                                       " operator before the run went on, and measured again"
-                                       if withdrawn is not None else "a withdrawal of an entry the journal does not hold"},
-                       internal=True)
+            after.note(
+                notes,
+                {
+                    "time": doc["time"],
+                    "point": doc["point"],
+                    "text": f"entry {doc.get('typed')!r} of step {point.step} withdrawn by the"
+                    " operator before the run went on, and measured again"
+                    if withdrawn is not None
+                    else "a withdrawal of an entry the journal does not hold",
+                },
+                internal=True,
+            )
         elif kind == "note":
-            after.note(notes, {"time": doc["time"], "point": doc.get("point"), "text": doc["text"]},
-                       internal=doc.get("by") != "operator")
+            after.note(
+                notes,
+                {"time": doc["time"], "point": doc.get("point"), "text": doc["text"]},
+                internal=doc.get("by") != "operator",
+            )
         elif kind == "resume":
             stop = None
             if doc["pending"] == 0 and doc.get("identity") is None:
-                text = ("run closed after an interruption: every step already had a confirmed entry,"
-                        " so nothing was measured again")
+                text = (
+                    "run closed after an interruption: every step already had a confirmed entry,"
+                    " so nothing was measured again"
+                )
             else:
                 text = f"run resumed after an interruption with {doc['pending']} points to go"
             renewed = doc.get("standard_renewed")
             if isinstance(renewed, dict):
-                text += (f"; the standard's calibration was renewed before it resumed: certificate"
-                         f" {renewed.get('certificate')}, due {renewed.get('calibration_due')}")
-            anew = (_conditions(doc.get("environment"))
-                    if doc.get("environment") != documents[0].get("environment") else "")
-            after.note(notes, {"time": doc["time"], "point": None,
-                               "text": text + ("; a cut-off last journal line was dropped"
-                                               if doc.get("recovered_torn_line") else "") + anew},
-                       internal=True)
-            standard = (f" with the standard's calibration renewed: certificate {renewed.get('certificate')},"
-                        f" due {renewed.get('calibration_due')}" if isinstance(renewed, dict) else "")
-            if (anew or standard) and after.split:  # the measurements' conditions are the customer's to read
-                notes.append({"time": doc["time"], "point": None,
-                              "text": f"the measurements continued after a pause{standard}{anew}"})
+                text += (
+                    f"; the standard's calibration was renewed before it resumed: certificate"
+                    f" {renewed.get('certificate')}, due {renewed.get('calibration_due')}"
+                )
+            anew = (
+                _conditions(doc.get("environment"))
+                if doc.get("environment") != documents[0].get("environment")
+                else ""
+            )
+            after.note(
+                notes,
+                {
+                    "time": doc["time"],
+                    "point": None,
+                    "text": text
+                    + (
+                        "; a cut-off last journal line was dropped"
+                        if doc.get("recovered_torn_line")
+                        else ""
+                    )
+                    + anew,
+                },
+                internal=True,
+            )
+            standard = (
+                f" with the standard's calibration renewed: certificate {renewed.get('certificate')},"
+                f" due {renewed.get('calibration_due')}"
+                if isinstance(renewed, dict)
+                else ""
+            )
+            if (
+                anew or standard
+            ) and after.split:  # the measurements' conditions are the customer's to read
+                notes.append(
+                    {
+                        "time": doc["time"],
+                        "point": None,
+                        "text": f"the measurements continued after a pause{standard}{anew}",
+                    }
+                )
         elif kind == "stop":
             stop = doc
         else:
@@ -327,28 +464,56 @@ def _step_of(doc: dict, planned: list[TestPoint], journal_format: int, where: st
     if index is None and journal_format < 2:  # the first format's entries may lack it
         index = next((p.index for p in planned if p.legacy_key == doc["point"]), None)
     if index is None or not 0 <= index < len(planned):
-        raise RecordError(f"{where}: names step {'?' if index is None else index + 1} ({doc['point']!r}),"
-                          f" which the procedure does not have (it has steps 1 to {len(planned)})")
+        raise RecordError(
+            f"{where}: names step {'?' if index is None else index + 1} ({doc['point']!r}),"
+            f" which the procedure does not have (it has steps 1 to {len(planned)})"
+        )
     point = planned[index]
     if doc["point"] != point.key_in(journal_format):
-        raise RecordError(f"{where}: names point {doc['point']!r} at step {point.step}, which is"
-                          f" {point.key_in(journal_format)!r} in the procedure")
+        raise RecordError(
+            f"{where}: names point {doc['point']!r} at step {point.step}, which is"
+            f" {point.key_in(journal_format)!r} in the procedure"
+        )
     return point
 
 
 def _row(point, doc: dict | None, known: Result | None = None, journal_format: int = 2) -> dict:
     win = point.window
-    row = {"index": point.index, "key": point.key_in(journal_format), "range": point.range.id, "unit": point.unit,
-           "nominal": point.nominal, "frequency": point.frequency, "stimulus": point.stimulus_text(),
-           "low": json_number(win.low), "high": json_number(win.high), "domain": win.domain,
-           "half_width": win.half_width, "accuracy": point.accuracy_text,
-           "limits_text": "{low} to {high}".format(**shown(point)),
-           # Filled in below for a measured point; present (as None) for every row so that a
-           # certificate template never meets a missing key.
-           "reading": None, "typed": None, "time": None, "error": None, "error_unit": None,
-           "percent_of_tolerance": None, "U": None, "U_spec": None, "k": None, "tur": None,
-           "conformance": None, "accept_low": None, "accept_high": None, "U_pct": None,
-           "accept_low_pct": None, "accept_high_pct": None, "budget": [], "reported": None}
+    row = {
+        "index": point.index,
+        "key": point.key_in(journal_format),
+        "range": point.range.id,
+        "unit": point.unit,
+        "nominal": point.nominal,
+        "frequency": point.frequency,
+        "stimulus": point.stimulus_text(),
+        "low": json_number(win.low),
+        "high": json_number(win.high),
+        "domain": win.domain,
+        "half_width": win.half_width,
+        "accuracy": point.accuracy_text,
+        "limits_text": "{low} to {high}".format(**shown(point)),
+        # Filled in below for a measured point; present (as None) for every row so that a
+        # certificate template never meets a missing key.
+        "reading": None,
+        "typed": None,
+        "time": None,
+        "error": None,
+        "error_unit": None,
+        "percent_of_tolerance": None,
+        "U": None,
+        "U_spec": None,
+        "k": None,
+        "tur": None,
+        "conformance": None,
+        "accept_low": None,
+        "accept_high": None,
+        "U_pct": None,
+        "accept_low_pct": None,
+        "accept_high_pct": None,
+        "budget": [],
+        "reported": None,
+    }
     if doc is None:
         return {**row, "verdict": "not-measured"}
     if doc["kind"] not in ("observation", "correction"):
@@ -356,28 +521,48 @@ def _row(point, doc: dict | None, known: Result | None = None, journal_format: i
     # The run's own evaluation when it is of this very reading (it is the same function of the
     # same point and value); otherwise, a corrected or resumed reading, evaluated here.
     reading = doc["reading"]
-    same = (known is not None and known.reading == reading
-            and math.copysign(1.0, known.reading) == math.copysign(1.0, reading))  # -0.0 is not 0.0
+    same = (
+        known is not None
+        and known.reading == reading
+        and math.copysign(1.0, known.reading) == math.copysign(1.0, reading)
+    )  # -0.0 is not 0.0
     result = known if same else evaluate(point, reading)
     interval = result.interval
-    return {**row, "verdict": result.verdict, "within_tolerance": result.within_tolerance,
-            "interval": [json_number(interval[0]), json_number(interval[1])] if interval else None,
-            "reading": reading, "typed": doc["typed"],
-            "time": doc["time"], "error": result.error, "error_unit": result.error_unit,
-            "percent_of_tolerance": result.percent_of_tolerance,
-            "U": json_number(result.expanded_value), "U_spec": result.expanded, "k": result.k,
-            "tur": json_number(result.tur), "conformance": result.conformance,
-            "accept_low": json_number(result.acceptance[0]) if result.acceptance else None,
-            "accept_high": json_number(result.acceptance[1]) if result.acceptance else None,
-            # Acceptance limits as percent of tolerance only where the rule moves them off the
-            # tolerance limits (they are drawn on the error chart).
-            "U_pct": result.expanded_pct,
-            "accept_low_pct": result.accept_low_pct if point.rule.name != "simple" else None,
-            "accept_high_pct": result.accept_high_pct if point.rule.name != "simple" else None,
-            "budget": [{"name": t.name, "u": t.standard_uncertainty, "domain": t.domain,
-                        "distribution": t.distribution, "contribution": c}
-                       for t, c in zip(point.budget.terms, point.budget.contributions)],
-            "reported": reported(point, result, doc["typed"])}
+    return {
+        **row,
+        "verdict": result.verdict,
+        "within_tolerance": result.within_tolerance,
+        "interval": [json_number(interval[0]), json_number(interval[1])] if interval else None,
+        "reading": reading,
+        "typed": doc["typed"],
+        "time": doc["time"],
+        "error": result.error,
+        "error_unit": result.error_unit,
+        "percent_of_tolerance": result.percent_of_tolerance,
+        "U": json_number(result.expanded_value),
+        "U_spec": result.expanded,
+        "k": result.k,
+        "tur": json_number(result.tur),
+        "conformance": result.conformance,
+        "accept_low": json_number(result.acceptance[0]) if result.acceptance else None,
+        "accept_high": json_number(result.acceptance[1]) if result.acceptance else None,
+        # Acceptance limits as percent of tolerance only where the rule moves them off the
+        # tolerance limits (they are drawn on the error chart).
+        "U_pct": result.expanded_pct,
+        "accept_low_pct": result.accept_low_pct if point.rule.name != "simple" else None,
+        "accept_high_pct": result.accept_high_pct if point.rule.name != "simple" else None,
+        "budget": [
+            {
+                "name": t.name,
+                "u": t.standard_uncertainty,
+                "domain": t.domain,
+                "distribution": t.distribution,
+                "contribution": c,
+            }
+            for t, c in zip(point.budget.terms, point.budget.contributions)
+        ],
+        "reported": reported(point, result, doc["typed"]),
+    }
 
 
 def reported(point: TestPoint, result: Result, typed: str) -> dict:

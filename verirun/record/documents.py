@@ -46,8 +46,13 @@ from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, ValidationError
 JOURNAL_FORMAT = 3
 
 Sha256 = Annotated[str, Field(pattern=r"^[0-9a-f]{64}$", description="a SHA-256 digest, hex")]
-Time = Annotated[str, Field(pattern=r"^\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d(\.\d+)?Z$",
-                            description="UTC time, ISO 8601 with a Z")]
+Time = Annotated[
+    str,
+    Field(
+        pattern=r"^\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d(\.\d+)?Z$",
+        description="UTC time, ISO 8601 with a Z",
+    ),
+]
 Date = Annotated[str, Field(pattern=r"^\d{4}-\d\d-\d\d$", description="a calendar date, ISO 8601")]
 Reading = Annotated[float, Field(allow_inf_nan=False)]
 
@@ -68,6 +73,7 @@ class Chained(Part):
 
 # --- the start document and its parts ---------------------------------------------------------
 
+
 class Software(Part):
     name: str = Field(description="the program that wrote the journal")
     version: str = Field(description="its version")
@@ -85,18 +91,22 @@ class ProcedureAsRun(Part):
 class CalibratorAsRun(Part):
     description: str = Field(description="what the reference standard is")
     asset: str = Field(description="the lab's asset number of the standard")
-    identity: str | None = Field(description="what the instrument answered to *IDN?"
-                                 " (none when it did not answer)")
+    identity: str | None = Field(
+        description="what the instrument answered to *IDN? (none when it did not answer)"
+    )
     resource: str = Field(description="its VISA resource string")
     certificate: str = Field(description="the standard's own calibration certificate")
     calibration_due: Date = Field(description="when the standard's calibration is due")
-    traceability: str | None = Field(description="the traceability statement of the standard"
-                                     " (none if the bench file gives none)")
+    traceability: str | None = Field(
+        description="the traceability statement of the standard (none if the bench file gives none)"
+    )
 
 
 class BenchAsRun(Part):
     id: str = Field(description="the bench's identifier")
-    location: str | None = Field(description="where the bench is (none if the bench file names no place)")
+    location: str | None = Field(
+        description="where the bench is (none if the bench file names no place)"
+    )
     sha256: Sha256 = Field(description="SHA-256 of the bench file's text")
     source: str = Field(description="where the file was read from")
     text: str = Field(description="the whole bench file, as run")
@@ -123,16 +133,23 @@ class Person(Part):
 class LabAsRun(Part):
     name: str
     address: list[str]
-    accreditation: str | None = Field(description="the lab's accreditation (null when its profile gives none)")
+    accreditation: str | None = Field(
+        description="the lab's accreditation (null when its profile gives none)"
+    )
     certificate_prefix: str = Field(description="prefix of the lab's certificate numbers")
-    signatory: Signatory | None = Field(default=None, description="an older profile's one signatory")
+    signatory: Signatory | None = Field(
+        default=None, description="an older profile's one signatory"
+    )
     people_who_issue: list[Person] = Field(default=[], description="who may issue certificates")
     traceability: str
-    conditions: str | None = Field(description="the lab's stated environmental conditions (null when its"
-                                          " profile states none)")
+    conditions: str | None = Field(
+        description="the lab's stated environmental conditions (null when its profile states none)"
+    )
     paper: Literal["A4", "letter"] = Field(description="paper size of printed certificates")
     wording: Wording
-    spelling: Literal["british", "american"] = Field(default="british", description="the certificates' spelling")
+    spelling: Literal["british", "american"] = Field(
+        default="british", description="the certificates' spelling"
+    )
     remarks: list[str] = Field(default=[], description="remarks printed on every certificate")
 
 
@@ -144,16 +161,19 @@ class Customer(Part):
 class Item(Part):
     serial: str = Field(description="serial number of the meter under test")
     asset: str | None = Field(default=None, description="the customer's asset number, if given")
-    condition: str | None = Field(default=None,
-                                  description="condition of the item as received (none: not recorded)")
+    condition: str | None = Field(
+        default=None, description="condition of the item as received (none: not recorded)"
+    )
     received: Date | None = Field(default=None, description="date the item was received")
 
 
 class Environment(Part):
-    temperature_c: float | None = Field(default=None, allow_inf_nan=False,
-                                        description="laboratory temperature at the start, °C")
-    humidity_pct: float | None = Field(default=None, allow_inf_nan=False,
-                                       description="relative humidity at the start, %")
+    temperature_c: float | None = Field(
+        default=None, allow_inf_nan=False, description="laboratory temperature at the start, °C"
+    )
+    humidity_pct: float | None = Field(
+        default=None, allow_inf_nan=False, description="relative humidity at the start, %"
+    )
 
 
 class AsFound(Part):
@@ -173,8 +193,9 @@ class Start(Chained):
     """A run begins: everything needed to replay and certify it."""
 
     kind: Literal["start"]
-    journal_format: int | None = Field(default=None, ge=2,
-                                       description="the journal's format (absent in format 1)")
+    journal_format: int | None = Field(
+        default=None, ge=2, description="the journal's format (absent in format 1)"
+    )
     uid: str = Field(pattern=r"^[0-9a-f]{32}$", description="the run's identity")
     software: Software
     procedure: ProcedureAsRun
@@ -185,13 +206,20 @@ class Start(Chained):
     operator: str = Field(description="who ran it")
     environment: Environment
     as_found: AsFound | None = Field(default=None, description="set for an as-left run")
-    reports: str | None = Field(default=None, description="the folder the run's certificate goes to")
+    reports: str | None = Field(
+        default=None, description="the folder the run's certificate goes to"
+    )
 
 
 # --- documents written during the run ---------------------------------------------------------
 
-PointKey = Annotated[str, Field(description="the test point's label: range@nominal[@frequency], as"
-                                             " the procedure writes them (format 1: their float repr)")]
+PointKey = Annotated[
+    str,
+    Field(
+        description="the test point's label: range@nominal[@frequency], as"
+        " the procedure writes them (format 1: their float repr)"
+    ),
+]
 Step = Annotated[int, Field(ge=0, description="the step's index in the plan, from 0")]
 
 
@@ -212,14 +240,20 @@ class Resume(Chained):
     had an entry is closed without the bench."""
 
     kind: Literal["resume"]
-    identity: str | None = Field(description="the calibrator's identity, as it answered now (none"
-                                 " when the run was closed without the bench)")
+    identity: str | None = Field(
+        description="the calibrator's identity, as it answered now (none"
+        " when the run was closed without the bench)"
+    )
     pending: int = Field(ge=0, description="how many steps were still to be measured")
     recovered_torn_line: bool = Field(description="whether a torn last line was cut off")
     recovered_text: str | None = Field(description="the text of that torn line, kept")
-    environment: Environment | None = Field(default=None, description="the conditions when it was continued")
-    standard_renewed: Renewal | None = Field(default=None, description="set when the standard's"
-                                             " calibration was renewed before the resume")
+    environment: Environment | None = Field(
+        default=None, description="the conditions when it was continued"
+    )
+    standard_renewed: Renewal | None = Field(
+        default=None,
+        description="set when the standard's calibration was renewed before the resume",
+    )
 
 
 class Applied(Part):
@@ -256,13 +290,20 @@ class Note(Chained):
     kind: Literal["note"]
     point: PointKey | None
     text: str = Field(description="the remark")
-    hazardous: bool | None = Field(default=None,
-                                   description="true when it records hazardous output permitted")
-    clock_went_back: Time | None = Field(default=None, description="set when the computer's clock"
-                                         " went back: the time it then gave (the note is dated at"
-                                         " the latest time journaled before)")
-    by: Literal["operator"] | None = Field(default=None, description="set on an operator's note"
-                                           " (journal format 3): the rest is the run's internal log")
+    hazardous: bool | None = Field(
+        default=None, description="true when it records hazardous output permitted"
+    )
+    clock_went_back: Time | None = Field(
+        default=None,
+        description="set when the computer's clock"
+        " went back: the time it then gave (the note is dated at"
+        " the latest time journaled before)",
+    )
+    by: Literal["operator"] | None = Field(
+        default=None,
+        description="set on an operator's note"
+        " (journal format 3): the rest is the run's internal log",
+    )
 
 
 class Withdrawal(Chained):
@@ -325,9 +366,22 @@ class CertificateNumber(Chained):
     register_url: str = Field(description="the register that gave it (its URL without a password)")
 
 
-Document = Annotated[Union[Start, Resume, Observation, Skip, Note, Withdrawal, Correction, Stop, Issue,
-                           AsFoundRevised, CertificateNumber],
-                     Field(discriminator="kind")]
+Document = Annotated[
+    Union[
+        Start,
+        Resume,
+        Observation,
+        Skip,
+        Note,
+        Withdrawal,
+        Correction,
+        Stop,
+        Issue,
+        AsFoundRevised,
+        CertificateNumber,
+    ],
+    Field(discriminator="kind"),
+]
 
 _ADAPTER: TypeAdapter = TypeAdapter(Document)
 
@@ -356,13 +410,16 @@ def document_problem(data: Any) -> str | None:
     except ValidationError as exc:
         error = exc.errors()[0]
         where = ".".join(str(part) for part in error["loc"][1:]) or kind
-        return f"{kind}: field {where}: {error['msg']}" + (f" (got {_shown(error['input'])})"
-                                                            if error["type"] != "missing" else "")
+        return f"{kind}: field {where}: {error['msg']}" + (
+            f" (got {_shown(error['input'])})" if error["type"] != "missing" else ""
+        )
     return None
 
 
 #: Every document kind, from the models (so a new kind cannot be left out here).
-_KINDS = tuple(get_args(model.model_fields["kind"].annotation)[0] for model in get_args(get_args(Document)[0]))
+_KINDS = tuple(
+    get_args(model.model_fields["kind"].annotation)[0] for model in get_args(get_args(Document)[0])
+)
 
 
 def _shown(value: Any) -> str:
@@ -402,7 +459,11 @@ def journal_schema() -> dict:
     return _ADAPTER.json_schema()
 
 
-if __name__ == "__main__":  # python -m verirun.record.documents > verirun/schema/journal.schema.json
+if (
+    __name__ == "__main__"
+):  # python -m verirun.record.documents > verirun/schema/journal.schema.json
     import sys
 
-    sys.stdout.write(json.dumps(journal_schema(), indent=1, sort_keys=True, ensure_ascii=False) + "\n")
+    sys.stdout.write(
+        json.dumps(journal_schema(), indent=1, sort_keys=True, ensure_ascii=False) + "\n"
+    )

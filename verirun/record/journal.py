@@ -19,9 +19,9 @@ from pathlib import Path
 from typing import Any, Iterable
 
 from verirun import storage
-from verirun.record.documents import document_problem, parse_json
 from verirun.errors import RecordError
 from verirun.interrupts import deferred_signals
+from verirun.record.documents import document_problem, parse_json
 
 #: Version of the run record layout. 3: rows say whether the reading lies within tolerance and
 #: carry its coverage interval and every number as printed; U is the reported U (GUM 7.2.6);
@@ -34,7 +34,9 @@ GENESIS = "0" * 64
 
 def dumps(doc: Any) -> str:
     """Canonical JSON: sorted keys, no NaN, UTF-8 text kept as is; the same data, the same bytes."""
-    return json.dumps(doc, sort_keys=True, ensure_ascii=False, allow_nan=False, separators=(",", ":"))
+    return json.dumps(
+        doc, sort_keys=True, ensure_ascii=False, allow_nan=False, separators=(",", ":")
+    )
 
 
 def line_hash(line: str) -> str:
@@ -58,7 +60,9 @@ class Journal:
         #: The torn last line dropped when an interrupted journal was reopened, if any.
         self.recovered: str | None = None
         if self.path.is_symlink():  # never written through: see verirun.storage
-            raise storage.storage_error(OSError(errno.ELOOP, "is a symbolic link", str(self.path)), self.path)
+            raise storage.storage_error(
+                OSError(errno.ELOOP, "is a symbolic link", str(self.path)), self.path
+            )
         if self.path.exists():
             read = read_journal(self.path)
             self._repair(read)
@@ -190,16 +194,22 @@ def verify_chain(documents: Iterable[dict], source: str = "journal") -> list[str
     prev, previous_kind = GENESIS, None
     for expected_seq, doc in enumerate(documents):
         if doc.get("seq") != expected_seq:
-            problems.append(f"{source}: document {expected_seq + 1} has sequence number"
-                            f" {doc.get('seq')!r}, expected {expected_seq} (missing or reordered)")
+            problems.append(
+                f"{source}: document {expected_seq + 1} has sequence number"
+                f" {doc.get('seq')!r}, expected {expected_seq} (missing or reordered)"
+            )
         if doc.get("prev") != prev:
             if expected_seq == 0:
-                problems.append(f"{source}: document 1 ({doc.get('kind')}) does not begin a journal"
-                                " (the start is missing or was edited)")
+                problems.append(
+                    f"{source}: document 1 ({doc.get('kind')}) does not begin a journal"
+                    " (the start is missing or was edited)"
+                )
             else:
-                problems.append(f"{source}: the chain breaks between document {expected_seq}"
-                                f" ({previous_kind}) and document {expected_seq + 1} ({doc.get('kind')}):"
-                                " one was edited, or a document is missing or out of order")
+                problems.append(
+                    f"{source}: the chain breaks between document {expected_seq}"
+                    f" ({previous_kind}) and document {expected_seq + 1} ({doc.get('kind')}):"
+                    " one was edited, or a document is missing or out of order"
+                )
         prev = line_hash(dumps(doc))
         previous_kind = doc.get("kind")
     return problems
@@ -258,15 +268,22 @@ def load_record(path: str | Path) -> dict:
     try:
         record = parse_json(path.read_text(encoding="utf-8"))
     except FileNotFoundError:
-        raise RecordError(f"{path}: no run record here (is the run finished? try 'verirun resume')") from None
+        raise RecordError(
+            f"{path}: no run record here (is the run finished? try 'verirun resume')"
+        ) from None
     except (OSError, UnicodeDecodeError) as exc:
         raise RecordError(f"{path}: cannot read: {exc}") from None
     except ValueError as exc:
         raise RecordError(f"{path}: not a run record (not valid JSON: {exc})") from None
     if not isinstance(record, dict) or "record_format" not in record:
         raise RecordError(f"{path}: not a run record (no record_format)")
-    if (not isinstance(record["record_format"], int) or isinstance(record["record_format"], bool)
-            or record["record_format"] > RECORD_FORMAT):
-        raise RecordError(f"{path}: run record format {record['record_format']!r} is newer than this"
-                          f" verirun reads ({RECORD_FORMAT}); upgrade verirun")
+    if (
+        not isinstance(record["record_format"], int)
+        or isinstance(record["record_format"], bool)
+        or record["record_format"] > RECORD_FORMAT
+    ):
+        raise RecordError(
+            f"{path}: run record format {record['record_format']!r} is newer than this"
+            f" verirun reads ({RECORD_FORMAT}); upgrade verirun"
+        )
     return record

@@ -27,42 +27,85 @@ def summary(folder: Path) -> dict | None:
                     status = "resumable"
             from verirun.certificate.render import certificate_number
 
-            row = {"run": folder.name, "path": str(folder), "item": record["item"].get("serial"),
-                   "procedure": record["procedure"]["id"], "revision": record["procedure"]["revision"],
-                   "date": record["run"]["started"][:10], "verdict": record["summary"]["overall"],
-                   "status": "aborted" if status in ("failed",) else status,
-                   "uid": record["run"]["uid"], "record_revision": record["run"].get("revision", 1),
-                   "certificate": certificate_number(record) if status == "complete" else None,
-                   "customer": (record.get("customer") or {}).get("name"),
-                   "simulated": bool(record["bench"].get("simulated")),
-                   "as_found_run": (record.get("as_found") or {}).get("run"), "as_left_run": None,
-                   "certificate_state": _certificate_state(record)}
+            row = {
+                "run": folder.name,
+                "path": str(folder),
+                "item": record["item"].get("serial"),
+                "procedure": record["procedure"]["id"],
+                "revision": record["procedure"]["revision"],
+                "date": record["run"]["started"][:10],
+                "verdict": record["summary"]["overall"],
+                "status": "aborted" if status in ("failed",) else status,
+                "uid": record["run"]["uid"],
+                "record_revision": record["run"].get("revision", 1),
+                "certificate": certificate_number(record) if status == "complete" else None,
+                "customer": (record.get("customer") or {}).get("name"),
+                "simulated": bool(record["bench"].get("simulated")),
+                "as_found_run": (record.get("as_found") or {}).get("run"),
+                "as_left_run": None,
+                "certificate_state": _certificate_state(record),
+            }
         elif journal_path.exists():
             docs = read_journal(journal_path).documents
             if not docs or docs[0].get("kind") != "start":
-                raise RecordError(f"{folder}: no run was journaled here (it stopped before it started);"
-                                  " there is nothing to resume, and the folder can be removed")
+                raise RecordError(
+                    f"{folder}: no run was journaled here (it stopped before it started);"
+                    " there is nothing to resume, and the folder can be removed"
+                )
             start = docs[0]
-            row = {"run": folder.name, "path": str(folder), "item": start["item"].get("serial"),
-                   "procedure": start["procedure"]["id"], "revision": start["procedure"]["revision"],
-                   "date": start["time"][:10], "verdict": "none", "status": "resumable",
-                   "uid": start["uid"], "record_revision": 1, "certificate": None,
-                   "customer": (start.get("customer") or {}).get("name"),
-                   "simulated": bool(start["bench"].get("simulated")),
-                   "as_found_run": (start.get("as_found") or {}).get("run"), "as_left_run": None,
-                   "certificate_state": "none"}
+            row = {
+                "run": folder.name,
+                "path": str(folder),
+                "item": start["item"].get("serial"),
+                "procedure": start["procedure"]["id"],
+                "revision": start["procedure"]["revision"],
+                "date": start["time"][:10],
+                "verdict": "none",
+                "status": "resumable",
+                "uid": start["uid"],
+                "record_revision": 1,
+                "certificate": None,
+                "customer": (start.get("customer") or {}).get("name"),
+                "simulated": bool(start["bench"].get("simulated")),
+                "as_found_run": (start.get("as_found") or {}).get("run"),
+                "as_left_run": None,
+                "certificate_state": "none",
+            }
         else:
             return None
         _check_row(row)
         return row
     except RecordError as exc:
         problem = str(exc)
-    except (OSError, ValueError, KeyError, TypeError, AttributeError, IndexError, RecursionError) as exc:
+    except (
+        OSError,
+        ValueError,
+        KeyError,
+        TypeError,
+        AttributeError,
+        IndexError,
+        RecursionError,
+    ) as exc:
         problem = f"{folder}: not a run verirun wrote ({type(exc).__name__}: {exc})"
-    return {"run": folder.name, "path": str(folder), "item": None, "procedure": "?", "revision": "?",
-            "date": "?", "verdict": "?", "status": "unreadable", "uid": None, "record_revision": None,
-            "certificate": None, "customer": None, "simulated": None, "as_found_run": None,
-            "as_left_run": None, "certificate_state": None, "problem": problem}
+    return {
+        "run": folder.name,
+        "path": str(folder),
+        "item": None,
+        "procedure": "?",
+        "revision": "?",
+        "date": "?",
+        "verdict": "?",
+        "status": "unreadable",
+        "uid": None,
+        "record_revision": None,
+        "certificate": None,
+        "customer": None,
+        "simulated": None,
+        "as_found_run": None,
+        "as_left_run": None,
+        "certificate_state": None,
+        "problem": problem,
+    }
 
 
 #: The fields of a summary that may be nothing; every other one but these two is text.
@@ -95,8 +138,9 @@ def _certificate_state(record: dict) -> str:
     return "draft" if record["run"]["status"] == "complete" else "none"
 
 
-def list_runs(root: str | Path, *, item: str | None = None, since: str | None = None,
-              until: str | None = None) -> list[dict]:
+def list_runs(
+    root: str | Path, *, item: str | None = None, since: str | None = None, until: str | None = None
+) -> list[dict]:
     """Summaries of the runs under ``root``, oldest first, filtered by item serial (any case)
     and dates; an as-found run names the as-left run that followed it, and the other way round.
     A folder that cannot be read as a run is listed with status ``unreadable`` and its problem

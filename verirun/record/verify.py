@@ -14,24 +14,56 @@ import re
 from pathlib import Path
 
 from verirun.errors import RecordError
-from verirun.record.journal import JOURNAL_NAME, RECORD_FORMAT, RECORD_NAME, dumps, line_hash, load_record, read_journal, verify_chain
 from verirun.record.build import build_record
+from verirun.record.journal import (
+    JOURNAL_NAME,
+    RECORD_FORMAT,
+    RECORD_NAME,
+    dumps,
+    line_hash,
+    load_record,
+    read_journal,
+    verify_chain,
+)
 
 #: The figures of a row that verirun works out from the procedure and the reading (limits, U,
 #: error, TUR, the texts as printed). A record of an earlier format holds them as the version
 #: that wrote it worked them out; what its journal records, and every verdict, must still agree.
-DERIVED = frozenset({"low", "high", "half_width", "limits_text", "error", "error_unit",
-                     "percent_of_tolerance", "U", "U_spec", "k", "tur", "conformance", "accept_low",
-                     "accept_high", "U_pct", "accept_low_pct", "accept_high_pct", "budget", "reported",
-                     "within_tolerance", "interval"})
+DERIVED = frozenset(
+    {
+        "low",
+        "high",
+        "half_width",
+        "limits_text",
+        "error",
+        "error_unit",
+        "percent_of_tolerance",
+        "U",
+        "U_spec",
+        "k",
+        "tur",
+        "conformance",
+        "accept_low",
+        "accept_high",
+        "U_pct",
+        "accept_low_pct",
+        "accept_high_pct",
+        "budget",
+        "reported",
+        "within_tolerance",
+        "interval",
+    }
+)
 
 
 def _facts(record: dict, summary_keys) -> dict:
     """What the journal of ``record`` fixes whichever version wrote it: everything but the
     derived figures of its rows, and the summary's counts (those of ``summary_keys``)."""
-    return {**{k: v for k, v in record.items() if k not in ("record_format", "points", "summary")},
-            "points": [{k: v for k, v in row.items() if k not in DERIVED} for row in record["points"]],
-            "summary": {k: record["summary"].get(k) for k in summary_keys}}
+    return {
+        **{k: v for k, v in record.items() if k not in ("record_format", "points", "summary")},
+        "points": [{k: v for k, v in row.items() if k not in DERIVED} for row in record["points"]],
+        "summary": {k: record["summary"].get(k) for k in summary_keys},
+    }
 
 
 def comparable(stored: dict, rebuilt: dict) -> tuple[dict, dict]:
@@ -87,15 +119,19 @@ def reach_problems(folder: Path, documents: list[dict], reports: Path | None = N
             found.append(str(exc) if isinstance(exc, RecordError) else f"{path}: not a run record")
             continue
         if not reaches(documents, count, head):
-            found.append(f"{path}: was closed from {count!r} journal documents, but the journal no longer"
-                         f" reaches that point (it holds {len(documents)}): it was cut short or replaced")
+            found.append(
+                f"{path}: was closed from {count!r} journal documents, but the journal no longer"
+                f" reaches that point (it holds {len(documents)}): it was cut short or replaced"
+            )
     if reports is not None and documents and documents[0].get("kind") == "start":
         for cert in certificates_of(documents, reports, also=numbers):
             match = _JOURNAL_META.search(cert.read_bytes())
             if match and not reaches(documents, int(match.group(1)), match.group(2).decode()):
-                found.append(f"{cert}: this certificate was issued from {int(match.group(1))} journal"
-                             f" documents, but the run's journal no longer reaches that point (it holds"
-                             f" {len(documents)}): it was cut short or replaced")
+                found.append(
+                    f"{cert}: this certificate was issued from {int(match.group(1))} journal"
+                    f" documents, but the run's journal no longer reaches that point (it holds"
+                    f" {len(documents)}): it was cut short or replaced"
+                )
     return found
 
 
@@ -112,15 +148,34 @@ def certificates_of(documents: list[dict], reports: Path, also=()) -> list[Path]
         if number is not None and not isinstance(number, str):
             continue
         try:
-            stems.add(safe_file_name(certificate_number({"lab": start["lab"], "bench": start["bench"], "run": {
-                "started": start["time"], "uid": start["uid"], "revision": 1,
-                **({"certificate_number": number} if number else {})}})))
+            stems.add(
+                safe_file_name(
+                    certificate_number(
+                        {
+                            "lab": start["lab"],
+                            "bench": start["bench"],
+                            "run": {
+                                "started": start["time"],
+                                "uid": start["uid"],
+                                "revision": 1,
+                                **({"certificate_number": number} if number else {}),
+                            },
+                        }
+                    )
+                )
+            )
         except (KeyError, TypeError, AttributeError):
             continue
     if not stems or not Path(reports).is_dir():
         return []
-    return sorted({p for stem in stems for p in Path(reports).glob(f"{glob.escape(stem)}*.html")
-                   if p.is_file() and not p.is_symlink()})
+    return sorted(
+        {
+            p
+            for stem in stems
+            for p in Path(reports).glob(f"{glob.escape(stem)}*.html")
+            if p.is_file() and not p.is_symlink()
+        }
+    )
 
 
 def problems(path: str | Path, reports: str | Path | None = None) -> list[str]:
@@ -143,12 +198,16 @@ def problems(path: str | Path, reports: str | Path | None = None) -> list[str]:
         return [str(exc)]
     found = []
     if read.torn_line is not None:
-        found.append(f"{journal_path}: the last line is cut off (an interrupted write); resume the run"
-                     " to recover it")
+        found.append(
+            f"{journal_path}: the last line is cut off (an interrupted write); resume the run"
+            " to recover it"
+        )
     found.extend(verify_chain(read.documents, str(journal_path)))
     if found:
         return found
-    found.extend(reach_problems(folder, read.documents, Path(reports) if reports is not None else None))
+    found.extend(
+        reach_problems(folder, read.documents, Path(reports) if reports is not None else None)
+    )
     if found:
         return found
     try:
@@ -158,13 +217,17 @@ def problems(path: str | Path, reports: str | Path | None = None) -> list[str]:
         return [str(exc)]
     stored, rebuilt = comparable(stored, rebuilt)
     if stored != rebuilt and stored.get("run", {}).get("documents", 0) < len(read.documents):
-        found.append(f"{folder / RECORD_NAME}: is older than its journal (closed from"
-                     f" {stored['run']['documents']} of its {len(read.documents)} documents): the run was"
-                     f" interrupted before its record was written again; 'verirun resume {folder}' writes it")
+        found.append(
+            f"{folder / RECORD_NAME}: is older than its journal (closed from"
+            f" {stored['run']['documents']} of its {len(read.documents)} documents): the run was"
+            f" interrupted before its record was written again; 'verirun resume {folder}' writes it"
+        )
     elif stored != rebuilt:
         keys = sorted(k for k in set(stored) | set(rebuilt) if stored.get(k) != rebuilt.get(k))
-        found.append(f"{folder / RECORD_NAME}: the record differs from what its journal records"
-                     f" (in {', '.join(keys)}): it was edited, or written by another version")
+        found.append(
+            f"{folder / RECORD_NAME}: the record differs from what its journal records"
+            f" (in {', '.join(keys)}): it was edited, or written by another version"
+        )
     return found
 
 

@@ -25,11 +25,16 @@ NUMBER_KIND = "certificate-number"
 def needs_number(record: dict) -> bool:
     """True when ``record`` is of a complete run that has no number from a register yet (a dry
     run is never given one: its number is its own, outside the lab's sequence)."""
-    return (record["run"]["status"] == "complete" and not record["run"].get("certificate_number")
-            and not record["bench"].get("simulated"))
+    return (
+        record["run"]["status"] == "complete"
+        and not record["run"].get("certificate_number")
+        and not record["bench"].get("simulated")
+    )
 
 
-def after_close(run_dir: Path, record: dict | None, *, known=None, warn=None) -> tuple[dict | None, bool]:
+def after_close(
+    run_dir: Path, record: dict | None, *, known=None, warn=None
+) -> tuple[dict | None, bool]:
     """Number and store a just-closed run in the named register (if any); return the record
     (with its number) and whether its certificate may be issued now.
 
@@ -50,9 +55,15 @@ def after_close(run_dir: Path, record: dict | None, *, known=None, warn=None) ->
         keep(Path(run_dir), record, str(exc))
         if warn is not None:
             waiting = needs_number(record)
-            warn(f"the register could not take this run ({exc}); it is kept in {Path(run_dir) / OUTBOX_NAME}"
-                 " and sent by 'verirun register sync'"
-                 + ("; its certificate waits for the number the register gives it" if waiting else ""))
+            warn(
+                f"the register could not take this run ({exc}); it is kept in {Path(run_dir) / OUTBOX_NAME}"
+                " and sent by 'verirun register sync'"
+                + (
+                    "; its certificate waits for the number the register gives it"
+                    if waiting
+                    else ""
+                )
+            )
         return record, not needs_number(record)
     except BaseException:  # a signal or a bug part-way: the run still waits to be sent
         keep(Path(run_dir), record, "interrupted while sending it to the register")
@@ -74,8 +85,14 @@ def file_run(register, run_dir: Path, record: dict, *, known=None) -> dict:
     if needs_number(record):
         number = allocate_number(register, record)
         with Journal(run_dir / JOURNAL_NAME) as journal:
-            journal.append({"kind": NUMBER_KIND, "time": iso(SystemClock().now()), "number": number,
-                            "register_url": register.name})
+            journal.append(
+                {
+                    "kind": NUMBER_KIND,
+                    "time": iso(SystemClock().now()),
+                    "number": number,
+                    "register_url": register.name,
+                }
+            )
         from verirun.conduct import close_run
 
         record = close_run(run_dir, known=known)
@@ -91,9 +108,22 @@ def keep(run_dir: Path, record: dict, reason: str) -> Path:
     from verirun.clock import SystemClock, iso
 
     path = run_dir / OUTBOX_NAME
-    storage.write_atomic(path, [json.dumps({"uid": record["run"]["uid"], "revision": record["run"]["revision"],
-                                            "documents": record["run"]["documents"], "reason": reason,
-                                            "kept": iso(SystemClock().now())}, ensure_ascii=False) + "\n"])
+    storage.write_atomic(
+        path,
+        [
+            json.dumps(
+                {
+                    "uid": record["run"]["uid"],
+                    "revision": record["run"]["revision"],
+                    "documents": record["run"]["documents"],
+                    "reason": reason,
+                    "kept": iso(SystemClock().now()),
+                },
+                ensure_ascii=False,
+            )
+            + "\n"
+        ],
+    )
     return path
 
 
@@ -107,7 +137,9 @@ def waiting(runs_dir: Path) -> list[Path]:
     return sorted(p.parent for p in runs_dir.glob(f"*/{OUTBOX_NAME}"))
 
 
-def sync(register, runs_dir: Path, *, busy: list | None = None) -> list[tuple[Path, str | None, str | None]]:
+def sync(
+    register, runs_dir: Path, *, busy: list | None = None
+) -> list[tuple[Path, str | None, str | None]]:
     """Send every run waiting in an outbox under ``runs_dir``: (folder, certificate number, problem).
 
     Each run is sent holding its folder's writer lock (as a run, resume or amend writing it
@@ -166,5 +198,7 @@ def withheld(folder: Path) -> str | None:
         return None  # certify reports what is wrong with it
     if not needs_number(record):
         return None
-    return (f"{folder}: this run waits for its certificate number from the register (it closed while the"
-            " register was out of reach); send it with 'verirun register sync', then certify it")
+    return (
+        f"{folder}: this run waits for its certificate number from the register (it closed while the"
+        " register was out of reach); send it with 'verirun register sync', then certify it"
+    )

@@ -39,7 +39,9 @@ def url_of(name: str) -> sa.URL:
     if url.drivername in ("postgresql", "postgres"):
         url = url.set(drivername="postgresql+psycopg")
     if url.get_backend_name() not in ("sqlite", "postgresql"):
-        raise RegisterError(f"register {shown(url)}: verirun keeps its register on SQLite or PostgreSQL")
+        raise RegisterError(
+            f"register {shown(url)}: verirun keeps its register on SQLite or PostgreSQL"
+        )
     return url
 
 
@@ -149,7 +151,9 @@ def open_register(name: str) -> Register:
         return _OPEN[key]
     if url.get_backend_name() == "sqlite":
         if url.database and not Path(url.database).parent.is_dir():
-            raise RegisterUnreachable(f"register {shown(url)}: the folder {Path(url.database).parent} does not exist")
+            raise RegisterUnreachable(
+                f"register {shown(url)}: the folder {Path(url.database).parent} does not exist"
+            )
         register = Register(engine=_sqlite_engine(url), name=shown(url))
         migrate(register)
     else:
@@ -161,9 +165,11 @@ def open_register(name: str) -> Register:
         except sa.exc.OperationalError as exc:
             raise RegisterUnreachable(f"register {register.name}: {_reason(exc)}") from None
         if at != head_revision():
-            raise RegisterError(f"register {register.name}: its schema is at revision {at or 'none (empty)'},"
-                                f" this verirun needs {head_revision()}; migrate it with"
-                                f" 'verirun register migrate --register URL'")
+            raise RegisterError(
+                f"register {register.name}: its schema is at revision {at or 'none (empty)'},"
+                f" this verirun needs {head_revision()}; migrate it with"
+                f" 'verirun register migrate --register URL'"
+            )
     _OPEN[key] = register
     return register
 

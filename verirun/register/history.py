@@ -45,9 +45,15 @@ class Drift:
     reaches_tolerance: dt.date | None
 
     def as_json(self) -> dict:
-        return {"n": self.n, "intercept": self.intercept, "slope_per_year": self.slope,
-                "slope_u_per_year": self.slope_u,
-                "reaches_tolerance": self.reaches_tolerance.isoformat() if self.reaches_tolerance else None}
+        return {
+            "n": self.n,
+            "intercept": self.intercept,
+            "slope_per_year": self.slope,
+            "slope_u_per_year": self.slope_u,
+            "reaches_tolerance": self.reaches_tolerance.isoformat()
+            if self.reaches_tolerance
+            else None,
+        }
 
 
 def fit_drift(days: list[float], errors: list[float], first: dt.date) -> Drift:
@@ -62,8 +68,13 @@ def fit_drift(days: list[float], errors: list[float], first: dt.date) -> Drift:
     e = np.asarray(errors, dtype=float)
     n = len(t)
     if n < 2 or float(np.ptp(t)) == 0.0:
-        return Drift(n=n, intercept=float(e.mean()) if n else math.nan, slope=None, slope_u=None,
-                     reaches_tolerance=None)
+        return Drift(
+            n=n,
+            intercept=float(e.mean()) if n else math.nan,
+            slope=None,
+            slope_u=None,
+            reaches_tolerance=None,
+        )
     design = np.column_stack([np.ones(n), t])
     (a, b), *_ = np.linalg.lstsq(design, e, rcond=None)
     u = None
@@ -94,47 +105,87 @@ class History:
 
     @property
     def model_share(self) -> float | None:
-        return self.model_in_tolerance / self.model_calibrations if self.model_calibrations else None
+        return (
+            self.model_in_tolerance / self.model_calibrations if self.model_calibrations else None
+        )
 
     def staircase(self) -> str:
         if self.last_in_tolerance is None:
             return "no calibration yet"
-        return ("lengthen the interval (last found in tolerance)" if self.last_in_tolerance
-                else "shorten the interval (last found out of tolerance)")
+        return (
+            "lengthen the interval (last found in tolerance)"
+            if self.last_in_tolerance
+            else "shorten the interval (last found out of tolerance)"
+        )
 
     def as_json(self) -> dict:
         rows = self.table.to_dict(orient="records")
-        return {"item": self.serial, "model": self.model, "calibrations": int(self.table["uid"].nunique()),
-                "results": [{k: (None if isinstance(v, float) and math.isnan(v) else v) for k, v in r.items()}
-                            for r in rows],
-                "drift": {key: drift.as_json() for key, drift in sorted(self.drifts.items())},
-                "model_reliability": {"calibrations": self.model_calibrations, "in_tolerance": self.model_in_tolerance,
-                                      "share": self.model_share,
-                                      "method": "share of calibrations found in tolerance; interval adjusted by"
-                                                " the staircase method (ILAC-G24:2022 / OIML D 10 method 1)",
-                                      "staircase": self.staircase()}}
+        return {
+            "item": self.serial,
+            "model": self.model,
+            "calibrations": int(self.table["uid"].nunique()),
+            "results": [
+                {k: (None if isinstance(v, float) and math.isnan(v) else v) for k, v in r.items()}
+                for r in rows
+            ],
+            "drift": {key: drift.as_json() for key, drift in sorted(self.drifts.items())},
+            "model_reliability": {
+                "calibrations": self.model_calibrations,
+                "in_tolerance": self.model_in_tolerance,
+                "share": self.model_share,
+                "method": "share of calibrations found in tolerance; interval adjusted by"
+                " the staircase method (ILAC-G24:2022 / OIML D 10 method 1)",
+                "staircase": self.staircase(),
+            },
+        }
 
     def text(self) -> str:
         calibrations = int(self.table["uid"].nunique())
-        lines = [f"item {self.serial} ({self.model}): {calibrations} calibration{'s' if calibrations != 1 else ''}"]
+        lines = [
+            f"item {self.serial} ({self.model}): {calibrations} calibration{'s' if calibrations != 1 else ''}"
+        ]
         for key, drift in sorted(self.drifts.items()):
             rows = self.table[(self.table["key"] == key) & self.table["error_fraction"].notna()]
             last = rows.iloc[-1]
-            slope = ("no drift fitted (one calibration)" if drift.slope is None else
-                     f"drift {drift.slope * 100:+.1f} % of tolerance per year"
-                     + (f" (u = {drift.slope_u * 100:.1f} %)" if drift.slope_u is not None else " (no u: 2 points)"))
-            reach = f"; reaches the tolerance about {drift.reaches_tolerance}" if drift.reaches_tolerance else ""
-            lines.append(f"  {key}: last as-found {last['error_fraction'] * 100:+.1f} % of tolerance"
-                         f" ({last['date']}); {slope}{reach}")
+            slope = (
+                "no drift fitted (one calibration)"
+                if drift.slope is None
+                else f"drift {drift.slope * 100:+.1f} % of tolerance per year"
+                + (
+                    f" (u = {drift.slope_u * 100:.1f} %)"
+                    if drift.slope_u is not None
+                    else " (no u: 2 points)"
+                )
+            )
+            reach = (
+                f"; reaches the tolerance about {drift.reaches_tolerance}"
+                if drift.reaches_tolerance
+                else ""
+            )
+            lines.append(
+                f"  {key}: last as-found {last['error_fraction'] * 100:+.1f} % of tolerance"
+                f" ({last['date']}); {slope}{reach}"
+            )
         share = self.model_share
-        lines.append(f"model {self.model}: " + (f"{self.model_in_tolerance} of {self.model_calibrations} calibrations"
-                     f" found in tolerance ({share * 100:.0f} %)" if share is not None else "no calibrations")
-                     + f"; staircase: {self.staircase()}")
+        lines.append(
+            f"model {self.model}: "
+            + (
+                f"{self.model_in_tolerance} of {self.model_calibrations} calibrations"
+                f" found in tolerance ({share * 100:.0f} %)"
+                if share is not None
+                else "no calibrations"
+            )
+            + f"; staircase: {self.staircase()}"
+        )
         return "\n".join(lines)
 
 
 #: What makes a run a calibration (see the module's description).
-CALIBRATION = (runs.c.status == "complete", runs.c.simulated.is_(False), runs.c.as_found_uid.is_(None))
+CALIBRATION = (
+    runs.c.status == "complete",
+    runs.c.simulated.is_(False),
+    runs.c.as_found_uid.is_(None),
+)
 
 
 def _calibrations(*where):
@@ -148,12 +199,23 @@ def model_counts(connection, model: str) -> tuple[int, int]:
 
     One aggregate over the index that holds these columns: per run, its latest closing's
     journal length and its latest passing closing's; the run passed when the two are one."""
-    per_run = (sa.select(sa.func.max(runs.c.documents).label("latest"),
-                         sa.func.max(sa.case((runs.c.overall.in_(("pass", "conditional-pass")), runs.c.documents)))
-                         .label("passed"))
-               .where(runs.c.item_model == model, *CALIBRATION).group_by(runs.c.uid).subquery())
+    per_run = (
+        sa.select(
+            sa.func.max(runs.c.documents).label("latest"),
+            sa.func.max(
+                sa.case((runs.c.overall.in_(("pass", "conditional-pass")), runs.c.documents))
+            ).label("passed"),
+        )
+        .where(runs.c.item_model == model, *CALIBRATION)
+        .group_by(runs.c.uid)
+        .subquery()
+    )
     total, passed = connection.execute(
-        sa.select(sa.func.count(), sa.func.sum(sa.case((per_run.c.passed == per_run.c.latest, 1), else_=0)))).one()
+        sa.select(
+            sa.func.count(),
+            sa.func.sum(sa.case((per_run.c.passed == per_run.c.latest, 1), else_=0)),
+        )
+    ).one()
     return int(total), int(passed or 0)
 
 
@@ -173,27 +235,49 @@ def item_history(register, *, serial: str, model: str | None = None, today: dt.d
 
     where = [runs.c.item_serial == serial] + ([runs.c.item_model == model] if model else [])
     latest = _calibrations(*where)
-    query = (sa.select(runs.c.uid, runs.c.started, runs.c.certificate, runs.c.item_model, points.c.step,
-                       points.c.key, points.c.range_id, points.c.nominal, points.c.unit, points.c.error,
-                       points.c.error_unit, points.c.error_fraction, points.c.expanded_fraction, points.c.verdict)
-             .join(latest, sa.and_(runs.c.uid == latest.c.uid, runs.c.documents == latest.c.documents))
-             .join(points, points.c.run_id == runs.c.id)
-             .order_by(runs.c.started, points.c.step))
+    query = (
+        sa.select(
+            runs.c.uid,
+            runs.c.started,
+            runs.c.certificate,
+            runs.c.item_model,
+            points.c.step,
+            points.c.key,
+            points.c.range_id,
+            points.c.nominal,
+            points.c.unit,
+            points.c.error,
+            points.c.error_unit,
+            points.c.error_fraction,
+            points.c.expanded_fraction,
+            points.c.verdict,
+        )
+        .join(latest, sa.and_(runs.c.uid == latest.c.uid, runs.c.documents == latest.c.documents))
+        .join(points, points.c.run_id == runs.c.id)
+        .order_by(runs.c.started, points.c.step)
+    )
     with register.reading() as connection:
         table = pd.DataFrame(connection.execute(query).mappings().all())
         if table.empty:
-            raise RegisterError(f"the register has no calibration of item {serial!r}"
-                                + (f" ({model})" if model else "") + " (dry runs and as-left passes do not count)")
+            raise RegisterError(
+                f"the register has no calibration of item {serial!r}"
+                + (f" ({model})" if model else "")
+                + " (dry runs and as-left passes do not count)"
+            )
         models = sorted(table["item_model"].unique())
         if len(models) > 1:
-            raise RegisterError(f"item {serial!r} is of several models ({', '.join(models)}); name one with --model")
+            raise RegisterError(
+                f"item {serial!r} is of several models ({', '.join(models)}); name one with --model"
+            )
         model = models[0]
         calibrations, in_tolerance = model_counts(connection, model)
     table["date"] = table["started"].str.slice(0, 10)
     # A step is a test point's identity: a label that several steps of a run share (a value read
     # up-scale and down-scale) is told apart by its step, so their errors are not fitted as one.
     shared = table.groupby(["uid", "key"])["step"].transform("count") > 1
-    table.loc[shared, "key"] = table.loc[shared, "key"] + " (step " + table.loc[shared, "step"].astype(str) + ")"
+    table.loc[shared, "key"] = (
+        table.loc[shared, "key"] + " (step " + table.loc[shared, "step"].astype(str) + ")"
+    )
     measured = table[table["error_fraction"].notna()].copy()
     first = dt.date.fromisoformat(measured["date"].min()) if not measured.empty else today
     drifts = {}
@@ -202,11 +286,31 @@ def item_history(register, *, serial: str, model: str | None = None, today: dt.d
         drifts[key] = fit_drift(days, rows["error_fraction"].tolist(), first)
     last_uid = table["uid"].iloc[-1]
     last = table[table["uid"] == last_uid]
-    columns = ["date", "uid", "certificate", "step", "key", "range_id", "nominal", "unit", "error", "error_unit",
-               "error_fraction", "expanded_fraction", "verdict"]
-    return History(serial=serial, model=model, today=today, table=table[columns].reset_index(drop=True),
-                   drifts=drifts, model_calibrations=calibrations, model_in_tolerance=in_tolerance,
-                   last_in_tolerance=bool(last["verdict"].isin(IN_TOLERANCE).all()))
+    columns = [
+        "date",
+        "uid",
+        "certificate",
+        "step",
+        "key",
+        "range_id",
+        "nominal",
+        "unit",
+        "error",
+        "error_unit",
+        "error_fraction",
+        "expanded_fraction",
+        "verdict",
+    ]
+    return History(
+        serial=serial,
+        model=model,
+        today=today,
+        table=table[columns].reset_index(drop=True),
+        drifts=drifts,
+        model_calibrations=calibrations,
+        model_in_tolerance=in_tolerance,
+        last_in_tolerance=bool(last["verdict"].isin(IN_TOLERANCE).all()),
+    )
 
 
 def write_csv(history: History, path: Path) -> Path:
@@ -221,12 +325,17 @@ def _plot(history: History, key: str) -> dict:
     drift = history.drifts[key]
     dates = [dt.date.fromisoformat(d) for d in rows["date"]]
     first = min(dates)
-    end = max(dates + [drift.reaches_tolerance] if drift.reaches_tolerance and
-              drift.reaches_tolerance < first + dt.timedelta(days=int(YEAR_DAYS * 20)) else dates)
+    end = max(
+        dates + [drift.reaches_tolerance]
+        if drift.reaches_tolerance
+        and drift.reaches_tolerance < first + dt.timedelta(days=int(YEAR_DAYS * 20))
+        else dates
+    )
     span = max((end - first).days, 1)
     left, right, top, bottom = 60.0, 700.0, 20.0, 220.0
-    values = [abs(v) for v in rows["error_fraction"]] + [abs(v) + (u or 0) for v, u in
-                                                         zip(rows["error_fraction"], rows["expanded_fraction"])]
+    values = [abs(v) for v in rows["error_fraction"]] + [
+        abs(v) + (u or 0) for v, u in zip(rows["error_fraction"], rows["expanded_fraction"])
+    ]
     limit = max([1.25] + [v * 1.1 for v in values if math.isfinite(v)])
 
     def x(day: dt.date) -> float:
@@ -236,29 +345,61 @@ def _plot(history: History, key: str) -> dict:
         return round(top + (bottom - top) * (limit - value) / (2 * limit), 2)
 
     marks = []
-    for day, value, u, verdict in zip(dates, rows["error_fraction"], rows["expanded_fraction"], rows["verdict"]):
+    for day, value, u, verdict in zip(
+        dates, rows["error_fraction"], rows["expanded_fraction"], rows["verdict"]
+    ):
         u = 0.0 if u is None or (isinstance(u, float) and math.isnan(u)) else u
-        marks.append({"x": x(day), "y": y(value), "y_low": y(value - u), "y_high": y(value + u),
-                      "verdict": verdict, "label": f"{day}: {value * 100:+.1f} % of tolerance"})
+        marks.append(
+            {
+                "x": x(day),
+                "y": y(value),
+                "y_low": y(value - u),
+                "y_high": y(value + u),
+                "verdict": verdict,
+                "label": f"{day}: {value * 100:+.1f} % of tolerance",
+            }
+        )
     fit = None
     if drift.slope is not None:
+
         def fitted(day):
             return drift.intercept + drift.slope * (day - first).days / YEAR_DAYS
+
         fit = {"x1": x(first), "y1": y(fitted(first)), "x2": x(end), "y2": y(fitted(end))}
-    return {"key": key, "marks": marks, "fit": fit, "band_top": y(1.0), "band_bottom": y(-1.0), "zero": y(0.0),
-            "left": left, "right": right, "top": top, "bottom": bottom, "first": first.isoformat(),
-            "end": end.isoformat(), "limit_pct": round(limit * 100), "drift": drift}
+    return {
+        "key": key,
+        "marks": marks,
+        "fit": fit,
+        "band_top": y(1.0),
+        "band_bottom": y(-1.0),
+        "zero": y(0.0),
+        "left": left,
+        "right": right,
+        "top": top,
+        "bottom": bottom,
+        "first": first.isoformat(),
+        "end": end.isoformat(),
+        "limit_pct": round(limit * 100),
+        "drift": drift,
+    }
 
 
 def write_html(history: History, path: Path) -> Path:
     """An HTML page of the item's history: per test point a plot (inline SVG) and its drift."""
     from jinja2 import Environment, PackageLoader, StrictUndefined, select_autoescape
 
-    env = Environment(loader=PackageLoader("verirun.register", "templates"),
-                      autoescape=select_autoescape(["html", "j2"], default=True), undefined=StrictUndefined,
-                      trim_blocks=True, lstrip_blocks=True)
+    env = Environment(
+        loader=PackageLoader("verirun.register", "templates"),
+        autoescape=select_autoescape(["html", "j2"], default=True),
+        undefined=StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
+    )
     page = env.get_template("history.html.j2").render(
-        history=history, plots=[_plot(history, key) for key in sorted(history.drifts)],
-        calibrations=int(history.table["uid"].nunique()), text=history.text())
+        history=history,
+        plots=[_plot(history, key) for key in sorted(history.drifts)],
+        calibrations=int(history.table["uid"].nunique()),
+        text=history.text(),
+    )
     Path(path).write_text(page, encoding="utf-8")
     return Path(path)

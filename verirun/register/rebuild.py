@@ -13,8 +13,13 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from verirun.errors import ProcedureError, RecordError
-from verirun.record.journal import JOURNAL_NAME, RECORD_NAME, load_record, read_journal, verify_chain
-
+from verirun.record.journal import (
+    JOURNAL_NAME,
+    RECORD_NAME,
+    load_record,
+    read_journal,
+    verify_chain,
+)
 
 #: Records stored per transaction by a rebuild: one commit (and its fsync) per record would
 #: be most of a rebuild's time (benchmarks/register.py).
@@ -40,19 +45,25 @@ class _Plans:
             return None
         if key not in self._known:
             try:
-                procedure = load_procedure_text(start["procedure"]["text"], start["procedure"]["source"])
+                procedure = load_procedure_text(
+                    start["procedure"]["text"], start["procedure"]["source"]
+                )
                 bench = load_bench_text(start["bench"]["text"], start["bench"]["source"])
-                self._known[key] = Known(procedure=procedure, bench=bench, points=plan(procedure, bench))
+                self._known[key] = Known(
+                    procedure=procedure, bench=bench, points=plan(procedure, bench)
+                )
             except (ProcedureError, KeyError, TypeError):
                 self._known[key] = None
         return self._known[key]
 
 
-def verified_records(folder: Path, plans: _Plans | None = None, *, current: bool = True) -> tuple[list[dict], list[str]]:
+def verified_records(
+    folder: Path, plans: _Plans | None = None, *, current: bool = True
+) -> tuple[list[dict], list[str]]:
     """The records of ``folder`` that verify against its journal (earlier revisions first), and
     a line for every problem found."""
-    from verirun.record.verify import comparable
     from verirun.record.build import build_record
+    from verirun.record.verify import comparable
 
     plans = plans or _Plans()
     journal = folder / JOURNAL_NAME
@@ -62,7 +73,9 @@ def verified_records(folder: Path, plans: _Plans | None = None, *, current: bool
         return [], [str(exc)]
     problems = verify_chain(read.documents, str(journal))
     if read.torn_line is not None:
-        problems.append(f"{journal}: the last line is cut off (an interrupted write); resume the run to recover it")
+        problems.append(
+            f"{journal}: the last line is cut off (an interrupted write); resume the run to recover it"
+        )
     if problems or not read.documents:
         return [], problems or [f"{journal}: the journal is empty"]
     known = plans.known_for(read.documents[0]) if read.documents[0].get("kind") == "start" else None
@@ -73,7 +86,9 @@ def verified_records(folder: Path, plans: _Plans | None = None, *, current: bool
     for path in paths:
         try:
             stored = load_record(path)
-            upto = len(read.documents) if path.name == RECORD_NAME else int(stored["run"]["documents"])
+            upto = (
+                len(read.documents) if path.name == RECORD_NAME else int(stored["run"]["documents"])
+            )
             rebuilt = build_record(read.documents[:upto], str(journal), known=known)
         except (RecordError, KeyError, TypeError, ValueError) as exc:
             problems.append(f"{path}: {exc}")
@@ -84,18 +99,22 @@ def verified_records(folder: Path, plans: _Plans | None = None, *, current: bool
         mine, journal_s = comparable(stored, rebuilt)
         if mine != journal_s:
             keys = sorted(k for k in set(mine) | set(journal_s) if mine.get(k) != journal_s.get(k))
-            problems.append(f"{path}: the record differs from what its journal records (in {', '.join(keys)})")
+            problems.append(
+                f"{path}: the record differs from what its journal records (in {', '.join(keys)})"
+            )
         else:
             good.append(stored)
     return good, problems
 
 
 def _revision_of(name: str) -> int:
-    digits = name[len("record.r"):-len(".json")]
+    digits = name[len("record.r") : -len(".json")]
     return int(digits) if digits.isdigit() else 0
 
 
-def index_folder(register, folder: Path, plans: _Plans | None = None, *, current: bool = True) -> list[str]:
+def index_folder(
+    register, folder: Path, plans: _Plans | None = None, *, current: bool = True
+) -> list[str]:
     """Store every verified record of one run folder; return its problems (empty: it verifies)."""
     from verirun.register.store import store_record
 

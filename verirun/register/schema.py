@@ -16,7 +16,8 @@ metadata = sa.MetaData()
 APPEND_ONLY = ("items", "standards", "runs", "points", "records", "numbers")
 
 items = sa.Table(
-    "items", metadata,
+    "items",
+    metadata,
     sa.Column("id", sa.Integer, primary_key=True),
     sa.Column("serial", sa.String(200), nullable=False),
     sa.Column("model", sa.String(200), nullable=False),
@@ -32,7 +33,8 @@ items = sa.Table(
 )
 
 standards = sa.Table(
-    "standards", metadata,
+    "standards",
+    metadata,
     sa.Column("id", sa.Integer, primary_key=True),
     sa.Column("asset", sa.String(200), nullable=False),
     sa.Column("revision", sa.Integer, nullable=False),
@@ -47,7 +49,8 @@ standards = sa.Table(
 )
 
 runs = sa.Table(
-    "runs", metadata,
+    "runs",
+    metadata,
     sa.Column("id", sa.Integer, primary_key=True),
     sa.Column("uid", sa.String(64), nullable=False),
     sa.Column("revision", sa.Integer, nullable=False),
@@ -86,17 +89,42 @@ runs = sa.Table(
     sa.UniqueConstraint("uid", "documents", name="runs_uid_documents"),
     sa.Index("runs_item", "item_serial", "started"),
     # The calibrations of a model, in the order a history reads them, from the index alone.
-    sa.Index("runs_model", "item_model", "status", "simulated", "as_found_uid", "uid", "documents", "overall"),
+    sa.Index(
+        "runs_model",
+        "item_model",
+        "status",
+        "simulated",
+        "as_found_uid",
+        "uid",
+        "documents",
+        "overall",
+    ),
     # Every column ``verirun runs`` shows, in its order: the listing reads this index alone.
-    sa.Index("runs_listing", "started", "folder", "documents", "uid", "item_serial", "procedure_id",
-             "procedure_revision", "overall", "status", "bench_id", "certificate", "revision", "customer",
-             "simulated", "as_found_uid"),
+    sa.Index(
+        "runs_listing",
+        "started",
+        "folder",
+        "documents",
+        "uid",
+        "item_serial",
+        "procedure_id",
+        "procedure_revision",
+        "overall",
+        "status",
+        "bench_id",
+        "certificate",
+        "revision",
+        "customer",
+        "simulated",
+        "as_found_uid",
+    ),
     sa.Index("runs_item_key", "item_key", "started"),
     sa.Index("runs_as_found", "as_found_uid", "folder"),
 )
 
 points = sa.Table(
-    "points", metadata,
+    "points",
+    metadata,
     sa.Column("id", sa.Integer, primary_key=True),
     sa.Column("run_id", sa.Integer, sa.ForeignKey("runs.id"), nullable=False),
     sa.Column("step", sa.Integer, nullable=False),
@@ -116,14 +144,16 @@ points = sa.Table(
 )
 
 records = sa.Table(
-    "records", metadata,
+    "records",
+    metadata,
     sa.Column("run_id", sa.Integer, sa.ForeignKey("runs.id"), primary_key=True),
     sa.Column("sha256", sa.String(64), nullable=False),
     sa.Column("body", sa.Text, nullable=False),  # the whole run record, canonical JSON
 )
 
 numbers = sa.Table(
-    "numbers", metadata,
+    "numbers",
+    metadata,
     sa.Column("id", sa.Integer, primary_key=True),
     sa.Column("sequence", sa.String(200), nullable=False),
     sa.Column("number", sa.Integer, nullable=False),

@@ -56,23 +56,41 @@ def allocate_number(register: Register, record: dict) -> str:
     sequence, prefix = sequence_of(record)
     try:
         with register.engine.begin() as connection:
-            given = connection.execute(sa.select(numbers.c.text).where(numbers.c.run_uid == uid)).scalar()
+            given = connection.execute(
+                sa.select(numbers.c.text).where(numbers.c.run_uid == uid)
+            ).scalar()
             if given is not None:
                 return given
             if register.dialect == "postgresql":
-                connection.execute(sa.text("SELECT pg_advisory_xact_lock(:key)"), {"key": _lock_key(sequence)})
-                given = connection.execute(sa.select(numbers.c.text).where(numbers.c.run_uid == uid)).scalar()
+                connection.execute(
+                    sa.text("SELECT pg_advisory_xact_lock(:key)"), {"key": _lock_key(sequence)}
+                )
+                given = connection.execute(
+                    sa.select(numbers.c.text).where(numbers.c.run_uid == uid)
+                ).scalar()
                 if given is not None:
                     return given
-            highest = connection.execute(sa.select(sa.func.max(numbers.c.number))
-                                         .where(numbers.c.sequence == sequence)).scalar() or 0
+            highest = (
+                connection.execute(
+                    sa.select(sa.func.max(numbers.c.number)).where(numbers.c.sequence == sequence)
+                ).scalar()
+                or 0
+            )
             text = f"{prefix}{highest + 1:05d}"
-            connection.execute(numbers.insert().values(sequence=sequence, number=highest + 1, text=text,
-                                                       run_uid=uid, allocated=now_text()))
+            connection.execute(
+                numbers.insert().values(
+                    sequence=sequence,
+                    number=highest + 1,
+                    text=text,
+                    run_uid=uid,
+                    allocated=now_text(),
+                )
+            )
             return text
     except sa.exc.IntegrityError as exc:
-        raise RegisterError(f"register {register.name}: a certificate number could not be taken:"
-                            f" {_reason(exc)}") from None
+        raise RegisterError(
+            f"register {register.name}: a certificate number could not be taken: {_reason(exc)}"
+        ) from None
     except (sa.exc.OperationalError, sa.exc.InterfaceError) as exc:
         raise RegisterUnreachable(f"register {register.name}: {_reason(exc)}") from None
 
@@ -85,7 +103,6 @@ def item_key(serial: str | None) -> str | None:
 def run_row(record: dict, folder: str) -> dict:
     """The ``runs`` row of a closed record."""
     from verirun.certificate.render import certificate_number
-
     from verirun.metrology.summary import summarise
     from verirun.record.build import record_judged
 
@@ -95,21 +112,38 @@ def run_row(record: dict, folder: str) -> dict:
     summary = summarise(record_judged(record), record["decision_rule"]["rule"])
     calibrator = record["bench"].get("calibrator") or {}
     return {
-        "uid": run["uid"], "revision": run["revision"], "documents": run["documents"],
-        "journal_sha256_last": run["journal_sha256_last"], "folder": folder,
-        "item_serial": record["item"].get("serial"), "item_key": item_key(record["item"].get("serial")),
+        "uid": run["uid"],
+        "revision": run["revision"],
+        "documents": run["documents"],
+        "journal_sha256_last": run["journal_sha256_last"],
+        "folder": folder,
+        "item_serial": record["item"].get("serial"),
+        "item_key": item_key(record["item"].get("serial")),
         "item_model": record["meter"].get("model") or "",
-        "item_asset": record["item"].get("asset"), "customer": record["customer"].get("name"),
-        "procedure_id": record["procedure"]["id"], "procedure_revision": str(record["procedure"]["revision"]),
-        "bench_id": record["bench"].get("id"), "standard_asset": calibrator.get("asset"),
-        "operator": run.get("operator"), "started": run["started"], "ended": run.get("ended"),
-        "rule": record["decision_rule"]["rule"], "points": summary.points, "passed": summary.passed,
-        "conditional_pass": summary.conditional_pass, "conditional_fail": summary.conditional_fail,
-        "failed": summary.failed, "skipped": summary.skipped, "not_measured": summary.not_measured,
-        "overall": summary.overall, "status": run["status"],
+        "item_asset": record["item"].get("asset"),
+        "customer": record["customer"].get("name"),
+        "procedure_id": record["procedure"]["id"],
+        "procedure_revision": str(record["procedure"]["revision"]),
+        "bench_id": record["bench"].get("id"),
+        "standard_asset": calibrator.get("asset"),
+        "operator": run.get("operator"),
+        "started": run["started"],
+        "ended": run.get("ended"),
+        "rule": record["decision_rule"]["rule"],
+        "points": summary.points,
+        "passed": summary.passed,
+        "conditional_pass": summary.conditional_pass,
+        "conditional_fail": summary.conditional_fail,
+        "failed": summary.failed,
+        "skipped": summary.skipped,
+        "not_measured": summary.not_measured,
+        "overall": summary.overall,
+        "status": run["status"],
         "simulated": bool(record["bench"].get("simulated")),
-        "certificate": certificate_number(record), "certificate_revision": run["revision"],
-        "as_found_uid": (record.get("as_found") or {}).get("run"), "stored": now_text(),
+        "certificate": certificate_number(record),
+        "certificate_revision": run["revision"],
+        "as_found_uid": (record.get("as_found") or {}).get("run"),
+        "stored": now_text(),
     }
 
 
@@ -119,12 +153,25 @@ def _fraction(percent: float | None) -> float | None:
 
 def point_rows(run_id: int, record: dict) -> list[dict]:
     """The ``points`` rows of a closed record, one per step."""
-    return [{"run_id": run_id, "step": row["index"] + 1, "key": row["key"], "range_id": row["range"],
-             "unit": row["unit"], "nominal": row["nominal"], "frequency": row["frequency"],
-             "reading": row["reading"], "error": row["error"], "error_unit": row["error_unit"],
-             "error_fraction": _fraction(row["percent_of_tolerance"]), "expanded": row["U"],
-             "expanded_fraction": _fraction(row["U_pct"]), "verdict": row["verdict"]}
-            for row in record["points"]]
+    return [
+        {
+            "run_id": run_id,
+            "step": row["index"] + 1,
+            "key": row["key"],
+            "range_id": row["range"],
+            "unit": row["unit"],
+            "nominal": row["nominal"],
+            "frequency": row["frequency"],
+            "reading": row["reading"],
+            "error": row["error"],
+            "error_unit": row["error_unit"],
+            "error_fraction": _fraction(row["percent_of_tolerance"]),
+            "expanded": row["U"],
+            "expanded_fraction": _fraction(row["U_pct"]),
+            "verdict": row["verdict"],
+        }
+        for row in record["points"]
+    ]
 
 
 def store_record(register: Register, record: dict, folder: str, *, by: str = "verirun") -> bool:
@@ -138,15 +185,22 @@ def store_record(register: Register, record: dict, folder: str, *, by: str = "ve
     return store_records(register, [(record, folder)], by=by) == 1
 
 
-def store_records(register: Register, closed: list[tuple[dict, str]], *, by: str = "verirun") -> int:
+def store_records(
+    register: Register, closed: list[tuple[dict, str]], *, by: str = "verirun"
+) -> int:
     """Store several closed records (each with its run folder's name) in one transaction; return
     how many were not there before."""
     from verirun.record.journal import dumps
 
     # Statements made once and given their values as parameters, so each is compiled once.
-    add_run = (_insert(register, runs).on_conflict_do_nothing(index_elements=["uid", "documents"])
-               .returning(runs.c.id))
-    add_item = _insert(register, items).on_conflict_do_nothing(index_elements=["serial", "model", "revision"])
+    add_run = (
+        _insert(register, runs)
+        .on_conflict_do_nothing(index_elements=["uid", "documents"])
+        .returning(runs.c.id)
+    )
+    add_item = _insert(register, items).on_conflict_do_nothing(
+        index_elements=["serial", "model", "revision"]
+    )
     stored = 0
     try:
         with register.engine.begin() as connection:
@@ -158,14 +212,30 @@ def store_records(register: Register, closed: list[tuple[dict, str]], *, by: str
                 if record["points"]:
                     connection.execute(points.insert(), point_rows(inserted, record))
                 body = dumps(record)
-                connection.execute(records.insert(), {"run_id": inserted, "body": body,
-                                                      "sha256": hashlib.sha256(body.encode("utf-8")).hexdigest()})
+                connection.execute(
+                    records.insert(),
+                    {
+                        "run_id": inserted,
+                        "body": body,
+                        "sha256": hashlib.sha256(body.encode("utf-8")).hexdigest(),
+                    },
+                )
                 meter = record["meter"]
-                connection.execute(add_item, {
-                    "serial": record["item"].get("serial") or "", "model": meter.get("model") or "",
-                    "revision": 1, "maker": meter.get("maker"), "kind": meter.get("kind"),
-                    "customer": record["customer"].get("name"), "asset": record["item"].get("asset"),
-                    "interval_days": None, "entered": now_text(), "entered_by": by})
+                connection.execute(
+                    add_item,
+                    {
+                        "serial": record["item"].get("serial") or "",
+                        "model": meter.get("model") or "",
+                        "revision": 1,
+                        "maker": meter.get("maker"),
+                        "kind": meter.get("kind"),
+                        "customer": record["customer"].get("name"),
+                        "asset": record["item"].get("asset"),
+                        "interval_days": None,
+                        "entered": now_text(),
+                        "entered_by": by,
+                    },
+                )
     except (sa.exc.OperationalError, sa.exc.InterfaceError) as exc:
         raise RegisterUnreachable(f"register {register.name}: {_reason(exc)}") from None
     return stored
@@ -175,8 +245,13 @@ def stored_record(register: Register, uid: str, revision: int | None = None) -> 
     """The latest stored record of run ``uid`` (of ``revision``, when given), or ``None``."""
     import json
 
-    query = (sa.select(records.c.body).join(runs, runs.c.id == records.c.run_id).where(runs.c.uid == uid)
-             .order_by(runs.c.documents.desc()).limit(1))
+    query = (
+        sa.select(records.c.body)
+        .join(runs, runs.c.id == records.c.run_id)
+        .where(runs.c.uid == uid)
+        .order_by(runs.c.documents.desc())
+        .limit(1)
+    )
     if revision is not None:
         query = query.where(runs.c.revision == revision)
     with register.reading() as connection:

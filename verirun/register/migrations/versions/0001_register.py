@@ -85,11 +85,32 @@ def upgrade() -> None:
         sa.UniqueConstraint("uid", "documents", name="runs_uid_documents"),
     )
     op.create_index("runs_item", "runs", ["item_serial", "started"])
-    op.create_index("runs_model", "runs", ["item_model", "status", "simulated", "as_found_uid", "uid", "documents",
-                                           "overall"])
-    op.create_index("runs_listing", "runs", ["started", "folder", "documents", "uid", "item_serial", "procedure_id",
-                                             "procedure_revision", "overall", "status", "bench_id", "certificate",
-                                             "revision", "customer", "simulated", "as_found_uid"])
+    op.create_index(
+        "runs_model",
+        "runs",
+        ["item_model", "status", "simulated", "as_found_uid", "uid", "documents", "overall"],
+    )
+    op.create_index(
+        "runs_listing",
+        "runs",
+        [
+            "started",
+            "folder",
+            "documents",
+            "uid",
+            "item_serial",
+            "procedure_id",
+            "procedure_revision",
+            "overall",
+            "status",
+            "bench_id",
+            "certificate",
+            "revision",
+            "customer",
+            "simulated",
+            "as_found_uid",
+        ],
+    )
     op.create_index("runs_item_key", "runs", ["item_key", "started"])
     op.create_index("runs_as_found", "runs", ["as_found_uid", "folder"])
     op.create_table(
@@ -140,16 +161,22 @@ def _append_only(dialect: str) -> None:
                     TG_OP, TG_TABLE_NAME USING ERRCODE = 'insufficient_privilege';
             END $$""")
         for table in _TABLES:
-            op.execute(f"CREATE TRIGGER {table}_append_only BEFORE UPDATE OR DELETE ON {table}"
-                       " FOR EACH ROW EXECUTE FUNCTION verirun_append_only()")
-            op.execute(f"CREATE TRIGGER {table}_no_truncate BEFORE TRUNCATE ON {table}"
-                       " FOR EACH STATEMENT EXECUTE FUNCTION verirun_append_only()")
+            op.execute(
+                f"CREATE TRIGGER {table}_append_only BEFORE UPDATE OR DELETE ON {table}"
+                " FOR EACH ROW EXECUTE FUNCTION verirun_append_only()"
+            )
+            op.execute(
+                f"CREATE TRIGGER {table}_no_truncate BEFORE TRUNCATE ON {table}"
+                " FOR EACH STATEMENT EXECUTE FUNCTION verirun_append_only()"
+            )
     elif dialect == "sqlite":
         for table in _TABLES:
             for action in ("UPDATE", "DELETE"):
-                op.execute(f"CREATE TRIGGER {table}_no_{action.lower()} BEFORE {action} ON {table}"
-                           f" BEGIN SELECT RAISE(ABORT, 'the register is append-only: {action} on {table}"
-                           " refused (a correction is a new revision)'); END")
+                op.execute(
+                    f"CREATE TRIGGER {table}_no_{action.lower()} BEFORE {action} ON {table}"
+                    f" BEGIN SELECT RAISE(ABORT, 'the register is append-only: {action} on {table}"
+                    " refused (a correction is a new revision)'); END"
+                )
 
 
 def downgrade() -> None:
