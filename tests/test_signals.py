@@ -657,3 +657,32 @@ class TestSignalAfterSilence:
             and docs[-1]["kind"] == "stop"
             and docs[-1]["status"] == "aborted"
         )
+
+
+class TestAKillRequestWhoseRaiseIsLost:
+    def test_the_run_stops_before_the_output_goes_on_again(
+        self, tmp_path, worker, device, monkeypatch
+    ):
+        """A SIGTERM taken inside a callback Python runs for itself (an import's lock, a weak
+        reference's finaliser) has its KeyboardInterrupt printed and dropped there. Here the
+        handler runs in such a place, while the second point's level is set: the run must
+        still stop before the output is switched on for that point, output off, journal whole."""
+        from verirun.bench.calibrator import Calibrator as Driver
+
+        run = _RunOnSpy(tmp_path, worker, device)
+        real_source, calls = Driver.source, []
+
+        def source(self, *args, **kwargs):
+            calls.append(args)
+            if len(calls) == 2:
+                try:  # as a callback would: the handler's raise goes no further than this
+                    signal.raise_signal(signal.SIGTERM)
+                except KeyboardInterrupt:
+                    pass
+            return real_source(self, *args, **kwargs)
+
+        monkeypatch.setattr(Driver, "source", source)
+        run_dir, docs = run.checks(run.run())
+        assert sum(d["kind"] == "observation" for d in docs) == 1
+        assert run.spy.sent.count("OUTP ON") == 1  # only for the first point
+        assert docs[-1]["status"] == "aborted" and "SIGTERM" in docs[-1]["reason"]

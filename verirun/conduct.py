@@ -24,7 +24,7 @@ from verirun.certificate.render import write_certificate
 from verirun.clock import SystemClock
 from verirun.engine import Engine, Outcome, RunContext
 from verirun.errors import ProcedureError, RecordError, VerirunError
-from verirun.interrupts import deferred_signals
+from verirun.interrupts import deferred_signals, forget_kill_requests, kill_request
 from verirun.locks import RUN_LOCK_NAME, calibrator_lock, run_lock
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.procedure.plan import plan
@@ -117,8 +117,9 @@ def _sigterm_as_interrupt():
     run, so that every guard puts the output in standby before the process ends."""
 
     def handler(signum, frame):
-        raise KeyboardInterrupt(f"terminated ({signal.Signals(signum).name})")
+        raise kill_request(signum)  # noted too: a raise lost in a callback still stops the run
 
+    forget_kill_requests()
     previous = {}
     try:
         for name in ("SIGTERM", "SIGHUP", "SIGQUIT"):

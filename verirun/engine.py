@@ -17,7 +17,7 @@ from verirun.bench.safety import HazardLimits, is_hazardous, output_guard
 from verirun.clock import SystemClock, iso
 from verirun.errors import BenchError, RunAborted, StorageError, VerirunError
 from verirun.evaluation import evaluate
-from verirun.interrupts import deferred_signals
+from verirun.interrupts import deferred_signals, stop_if_asked
 from verirun.procedure.load import Procedure
 from verirun.procedure.plan import TestPoint, plan
 from verirun.readings import Entry, OperatorSilent, ReadingSource
@@ -389,8 +389,10 @@ class Engine:
                     )
                     self._journal_entry(point, entry)
                     break
+                stop_if_asked()  # a kill request whose raise was lost stops the run here
                 with output_guard(self.calibrator):
                     self.calibrator.source(point.function, point.nominal, point.frequency)
+                    stop_if_asked()
                     self.calibrator.output_on()
                     self.clock.sleep(self.bench.settle_s)
                     self.console.step(point)

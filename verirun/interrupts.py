@@ -124,3 +124,35 @@ def _restore() -> None:
     _Held.previous = {}
     if raised is not None:
         raise raised
+
+
+class _Taken:
+    """Kill requests turned into ``KeyboardInterrupt`` by a run's handlers (see
+    :func:`kill_request` and :func:`stop_if_asked`)."""
+
+    names: list[str] = []
+
+
+def kill_request(signum: int) -> KeyboardInterrupt:
+    """Note a kill request (SIGTERM, SIGHUP, SIGQUIT) and return the interruption to raise for it.
+
+    The raise can be lost: a signal whose handler runs inside a callback Python calls for itself
+    (an import's lock, a weak reference's finaliser) has its exception printed and dropped there.
+    The note stays, so the run's next :func:`stop_if_asked` stops it all the same."""
+    name = signal.Signals(signum).name
+    _Taken.names.append(name)
+    return KeyboardInterrupt(f"terminated ({name})")
+
+
+def forget_kill_requests() -> None:
+    """Forget the kill requests noted so far (a run starting, or the one they stopped ending)."""
+    _Taken.names = []
+
+
+def stop_if_asked() -> None:
+    """Raise ``KeyboardInterrupt`` if a kill request was noted and the run went on all the same
+    (its raise was lost); called before the output is switched on and before each step."""
+    if _Taken.names:
+        name = _Taken.names[0]
+        forget_kill_requests()
+        raise KeyboardInterrupt(f"terminated ({name})")
