@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import contextlib
 import dataclasses
-import re
 import shutil
 import signal
 import time
@@ -25,7 +24,7 @@ from verirun.clock import SystemClock
 from verirun.engine import Engine, Outcome, RunContext
 from verirun.errors import ProcedureError, RecordError, VerirunError
 from verirun.interrupts import deferred_signals, forget_kill_requests, kill_request
-from verirun.locks import RUN_LOCK_NAME, calibrator_lock, run_lock
+from verirun.locks import calibrator_lock, run_lock
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.procedure.plan import plan
 from verirun.record.build import Known, build_record
@@ -34,7 +33,10 @@ from verirun.record.journal import (
     RECORD_NAME,
     Journal,
     load_record,
+    never_started,
+    never_started_text,
     read_journal,
+    run_folder_name,
     write_record,
 )
 from verirun.register.closing import after_close
@@ -51,46 +53,9 @@ class Finished:
     record: dict | None
 
 
-def run_folder_name(serial: str, uid: str, started) -> str:
-    """The run's folder name: item serial, date and the start of its uid, made file-safe."""
-    slug = re.sub(r"[^A-Za-z0-9_-]+", "-", serial).strip("-")[:40] or "item"
-    return f"{started:%Y%m%d-%H%M%S}-{slug}-{uid[:8]}"
-
-
-_RUN_FOLDER = re.compile(r"\d{8}-\d{6}-[A-Za-z0-9_-]{1,40}-[0-9a-f]{8}")
-#: What a run folder holds before its start document is journaled.
-_BEFORE_START = {JOURNAL_NAME, RUN_LOCK_NAME, "simulated-calibrator"}
 #: How old a folder that never started must be before a new run removes it: a process that is
 #: only now making its own takes that folder's lock within milliseconds.
 _STALE_S = 60.0
-
-
-def never_started_text(folder: Path) -> str:
-    """What to tell the operator of a folder that :func:`never_started`."""
-    return (
-        f"{folder}: this run never started (the process ended before its start was journaled):"
-        " nothing was measured and there is nothing to resume or verify; the next run in"
-        f" {folder.parent} removes the folder, or remove it by hand"
-    )
-
-
-def never_started(folder: Path) -> bool:
-    """Whether ``folder`` was made for a run by a process that ended (killed, or signalled
-    before verirun could act) before the run's start document was journaled.
-
-    Such a folder has a run folder's name, holds nothing but what a run makes before its start
-    (the lock, the simulated calibrator's file) and a journal that is missing or holds no whole
-    line: nothing was measured in it, and no resume can continue it."""
-    folder = Path(folder)
-    if not _RUN_FOLDER.fullmatch(folder.name) or folder.is_symlink() or not folder.is_dir():
-        return False
-    try:
-        if not {entry.name for entry in folder.iterdir()} <= _BEFORE_START:
-            return False
-        journal = folder / JOURNAL_NAME
-        return not journal.exists() or b"\n" not in journal.read_bytes()
-    except OSError:
-        return False
 
 
 def _remove_never_started(runs_dir: Path, now: float) -> None:

@@ -14,6 +14,7 @@ import hashlib
 import json
 import math
 import os
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Iterable
@@ -21,6 +22,7 @@ from typing import Any, Iterable
 from verirun import storage
 from verirun.errors import RecordError
 from verirun.interrupts import deferred_signals
+from verirun.locks import RUN_LOCK_NAME
 from verirun.record.documents import document_problem, parse_json
 
 #: Version of the run record layout. 3: rows say whether the reading lies within tolerance and
@@ -42,6 +44,45 @@ def dumps(doc: Any) -> str:
 def line_hash(line: str) -> str:
     """SHA-256 of one journal line (without its newline)."""
     return hashlib.sha256(line.encode("utf-8")).hexdigest()
+
+
+def run_folder_name(serial: str, uid: str, started) -> str:
+    """The run's folder name: item serial, date and the start of its uid, made file-safe."""
+    slug = re.sub(r"[^A-Za-z0-9_-]+", "-", serial).strip("-")[:40] or "item"
+    return f"{started:%Y%m%d-%H%M%S}-{slug}-{uid[:8]}"
+
+
+_RUN_FOLDER = re.compile(r"\d{8}-\d{6}-[A-Za-z0-9_-]{1,40}-[0-9a-f]{8}")
+#: What a run folder holds before its start document is journaled.
+_BEFORE_START = {JOURNAL_NAME, RUN_LOCK_NAME, "simulated-calibrator"}
+
+
+def never_started_text(folder: Path) -> str:
+    """What to tell the operator of a folder that :func:`never_started`."""
+    return (
+        f"{folder}: this run never started (the process ended before its start was journaled):"
+        " nothing was measured and there is nothing to resume or verify; the next run in"
+        f" {folder.parent} removes the folder, or remove it by hand"
+    )
+
+
+def never_started(folder: Path) -> bool:
+    """Whether ``folder`` was made for a run by a process that ended (killed, or signalled
+    before verirun could act) before the run's start document was journaled.
+
+    Such a folder has a run folder's name, holds nothing but what a run makes before its start
+    (the lock, the simulated calibrator's file) and a journal that is missing or holds no whole
+    line: nothing was measured in it, and no resume can continue it."""
+    folder = Path(folder)
+    if not _RUN_FOLDER.fullmatch(folder.name) or folder.is_symlink() or not folder.is_dir():
+        return False
+    try:
+        if not {entry.name for entry in folder.iterdir()} <= _BEFORE_START:
+            return False
+        journal = folder / JOURNAL_NAME
+        return not journal.exists() or b"\n" not in journal.read_bytes()
+    except OSError:
+        return False
 
 
 class Journal:

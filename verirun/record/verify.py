@@ -22,6 +22,8 @@ from verirun.record.journal import (
     dumps,
     line_hash,
     load_record,
+    never_started,
+    never_started_text,
     read_journal,
     verify_chain,
 )
@@ -181,8 +183,6 @@ def certificates_of(documents: list[dict], reports: Path, also=()) -> list[Path]
 def problems(path: str | Path, reports: str | Path | None = None) -> list[str]:
     """Every integrity problem of the stored run at ``path`` (empty when it verifies); with
     ``reports``, its certificates there are checked against its journal as well."""
-    from verirun.conduct import never_started, never_started_text
-
     try:
         folder = run_folder(path)
     except RecordError as exc:
