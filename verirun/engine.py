@@ -389,10 +389,9 @@ class Engine:
                     )
                     self._journal_entry(point, entry)
                     break
-                stop_if_asked()  # a kill request whose raise was lost stops the run here
                 with output_guard(self.calibrator):
                     self.calibrator.source(point.function, point.nominal, point.frequency)
-                    stop_if_asked()
+                    stop_if_asked()  # a kill request whose raise was lost stops the run here
                     self.calibrator.output_on()
                     self.clock.sleep(self.bench.settle_s)
                     self.console.step(point)

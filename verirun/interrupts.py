@@ -151,7 +151,7 @@ def forget_kill_requests() -> None:
 
 def stop_if_asked() -> None:
     """Raise ``KeyboardInterrupt`` if a kill request was noted and the run went on all the same
-    (its raise was lost); called before the output is switched on and before each step."""
+    (its raise was lost); called just before the output is switched on."""
     if _Taken.names:
         name = _Taken.names[0]
         forget_kill_requests()
