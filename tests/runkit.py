@@ -140,3 +140,18 @@ def run_until_death(args: list, moment: str, *, last_index: int = -1, cwd: Path 
         text=True,
         timeout=120,
     )
+
+
+def read_until(proc, marker: bytes, seconds: float = 30.0) -> bytes:
+    """What ``proc`` writes to its standard output until ``marker`` appears, or ``seconds``
+    have passed (a read never waits past that: a process asking something else cannot hang
+    the test)."""
+    import os
+    import select
+    import time
+
+    seen, deadline = b"", time.monotonic() + seconds
+    while marker not in seen and time.monotonic() < deadline:
+        if select.select([proc.stdout], [], [], 1.0)[0]:
+            seen += os.read(proc.stdout.fileno(), 4096)
+    return seen

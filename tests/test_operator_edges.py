@@ -12,6 +12,7 @@ from pathlib import Path
 
 import pytest
 from rich.console import Console as RichConsole
+from runkit import read_until
 
 from verirun.bench.calibrator import Calibrator
 from verirun.bench.config import load_bench, load_bench_text
@@ -312,13 +313,7 @@ class TestSilenceWithTheOutputOn:
         )
         proc.stdin.write(b"\n")  # the leads are connected
         proc.stdin.flush()
-        seen = b""
-        deadline = time.monotonic() + 30
-        while b"Press Enter to apply" not in seen and time.monotonic() < deadline:
-            import select
-
-            if select.select([proc.stdout], [], [], 1.0)[0]:  # never waits past the deadline
-                seen += os.read(proc.stdout.fileno(), 4096)
+        read_until(proc, b"Press Enter to apply")
         out, err = proc.communicate(b"\n2.05\n5\n9.9\n", timeout=30)
         assert proc.returncode == 0, err.decode()
         journal = next((tmp_path / "runs").glob("*/journal.jsonl"))

@@ -21,6 +21,7 @@ import threading
 from pathlib import Path
 
 import pytest
+from runkit import read_until
 
 from verirun import conduct as session_mod
 from verirun.bench.calibrator import Calibrator
@@ -561,8 +562,6 @@ class TestRealSignalsInAProcess:
     def test_a_signal_while_the_operator_is_at_the_prompt(self, tmp_path, signum):
         """Ctrl-C or SIGTERM while a reading prompt waits (the console's reader thread alive):
         the run stops at once with exit 2, the output in standby, and the resume hint."""
-        import os
-        import time
 
         proc = subprocess.Popen(
             [
@@ -595,12 +594,7 @@ class TestRealSignalsInAProcess:
         )
         proc.stdin.write(b"\n")  # the leads are connected
         proc.stdin.flush()
-        seen, deadline = b"", time.monotonic() + 30
-        while b"reading in V" not in seen and time.monotonic() < deadline:
-            import select
-
-            if select.select([proc.stdout], [], [], 1.0)[0]:  # never waits past the deadline
-                seen += os.read(proc.stdout.fileno(), 4096)
+        read_until(proc, b"reading in V")
         proc.send_signal(signum)
         _, err = proc.communicate(timeout=30)
         assert proc.returncode == 2, err.decode()
