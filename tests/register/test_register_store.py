@@ -234,7 +234,7 @@ class TestOutbox:
         self, register, register_url, tmp_path, closed_run, monkeypatch, capsys
     ):
         """A run closed with the register down cannot be issued yet (its number would change
-        after issue, ISO/IEC 17025:2017 7.8.2.1 b: a unique identification); once synced it is
+        after issue; ISO/IEC 17025:2017 7.8.2.1 b asks for a unique identification, from memory); once synced it is
         issued under the register's number, and the issued record is stored whole as well."""
         self._down(register_url, tmp_path, monkeypatch)
         finished = closed_run(tmp_path / "runs")
