@@ -89,11 +89,9 @@ def make_folders(seed: Path, root: Path, n: int) -> Path:
         read_journal,
         write_record,
     )
-    from verirun.register.rebuild import _Plans
 
     docs = read_journal(seed / JOURNAL_NAME).documents
-    plans, rng = _Plans(), random.Random(7)
-    known = plans.known_for(docs[0])
+    rng = random.Random(7)
     out = root / "folders"
     out.mkdir()
     start = dt.datetime(2016, 1, 1, tzinfo=dt.timezone.utc)
@@ -114,7 +112,7 @@ def make_folders(seed: Path, root: Path, n: int) -> Path:
         folder = out / run_folder_name(serial, uid, when)
         folder.mkdir()
         (folder / JOURNAL_NAME).write_text("\n".join(lines) + "\n", encoding="utf-8")
-        write_record(build_record(fresh, known=known), folder / RECORD_NAME)
+        write_record(build_record(fresh), folder / RECORD_NAME)
     return out
 
 

@@ -8,13 +8,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from verirun.bench.config import load_bench
 from verirun.certificate.render import safe_file_name, write_certificate
 from verirun.cli import main
-from verirun.evaluation import evaluate
-from verirun.procedure.load import load_procedure, load_procedure_text
-from verirun.procedure.plan import plan
-from verirun.record.build import Known, build_record
+from verirun.record.build import build_record
 from verirun.record.journal import Journal, dumps, read_journal, verify_chain, write_record
 from verirun.record.verify import problems
 
@@ -132,24 +128,6 @@ class TestVerify:
         docs = read_journal(run_dir / "journal.jsonl").documents
         rebuilt = write_record(build_record(docs, "journal"), tmp_path / "rebuilt.json")
         assert rebuilt.read_bytes() == (run_dir / "record.json").read_bytes()
-
-    def test_what_the_run_knew_is_used_only_where_it_is_the_journals_own(
-        self, run_dir, demo_procedure_path, demo_bench_path
-    ):
-        """Another procedure text is not taken for the journal's, and an evaluation of another
-        reading than the journal's is worked out again."""
-        docs = read_journal(run_dir / "journal.jsonl").documents
-        expected = build_record(docs, "journal")
-        procedure, bench = load_procedure(demo_procedure_path), load_bench(demo_bench_path)
-        points = plan(procedure, bench)
-        wrong = {p.key: evaluate(p, p.nominal * 0.5) for p in points}  # not the journal's readings
-        known = Known(procedure=procedure, bench=bench, points=points, results=wrong)
-        assert known.holds(docs[0])
-        assert build_record(docs, "journal", known=known) == expected
-        edited = load_procedure_text(procedure.text + "\n# edited\n", "edited.yaml")
-        other = Known(procedure=edited, bench=bench, points=plan(edited, bench), results=wrong)
-        assert not other.holds(docs[0])
-        assert build_record(docs, "journal", known=other) == expected
 
     def test_chain_function_on_a_fresh_journal(self, tmp_path):
         """Documents appended by the journal chain to one another from a zero hash."""

@@ -27,7 +27,7 @@ from verirun.interrupts import deferred_signals, forget_kill_requests, kill_requ
 from verirun.locks import calibrator_lock, run_lock
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.procedure.plan import plan
-from verirun.record.build import Known, build_record
+from verirun.record.build import build_record
 from verirun.record.journal import (
     JOURNAL_NAME,
     RECORD_NAME,
@@ -239,8 +239,6 @@ def _drive(
     own_calibrator = calibrator is None
     journal = Journal(run_dir / JOURNAL_NAME)
     outcome = None
-    # What the run worked out already, for the record to use instead of working it out again.
-    known = Known(procedure=procedure, bench=bench, points=points, results={})
     # The signal handlers stay until the record is written (see _finish), and closing is a
     # critical section: a kill request while the run closes acts once the record is on disk.
     with _sigterm_as_interrupt():
@@ -263,7 +261,6 @@ def _drive(
                     console=console,
                     journal=journal,
                     clock=clock,
-                    results=known.results,
                 )
                 outcome = engine.run(
                     context,
@@ -279,21 +276,17 @@ def _drive(
             with deferred_signals():  # a signal now is dropped: the run is ending already
                 journal.close()
                 try:
-                    after_close(
-                        run_dir, close_run(run_dir, known=known), known=known, warn=console.warn
-                    )
+                    after_close(run_dir, close_run(run_dir), warn=console.warn)
                 except (
                     Exception
                 ):  # the journal is the truth; a record that cannot be built now can be later
                     pass
             raise
         journal.close()
-        return _finish(run_dir, reports_dir, known=known, outcome=outcome, console=console)
+        return _finish(run_dir, reports_dir, outcome=outcome, console=console)
 
 
-def _finish(
-    run_dir: Path, reports_dir: Path, *, known: Known | None, outcome=None, console=None
-) -> Finished:
+def _finish(run_dir: Path, reports_dir: Path, *, outcome=None, console=None) -> Finished:
     """Close the journal into the record, number and store it in the lab register (if one is
     named), and render a complete run's certificate (once it may be issued).
 
@@ -302,9 +295,9 @@ def _finish(
     try:
         with _sigterm_as_interrupt():
             with deferred_signals():
-                record = close_run(run_dir, known=known)
+                record = close_run(run_dir)
             record, issuable = after_close(
-                run_dir, record, known=known, warn=console.warn if console is not None else None
+                run_dir, record, warn=console.warn if console is not None else None
             )
             complete = record is not None and record["run"]["status"] == "complete" and issuable
             certificate = write_certificate(record, reports_dir) if complete else None
@@ -487,13 +480,7 @@ def _resume_locked(
             f" ({len(read.torn_line)} characters); every whole line before it is kept"
         )
     if not pending:
-        return _close_without_bench(
-            run_dir,
-            reports_dir,
-            clock=clock,
-            console=console,
-            known=Known(procedure=procedure, bench=bench, points=points),
-        )
+        return _close_without_bench(run_dir, reports_dir, clock=clock, console=console)
     simulate = bool(start["bench"].get("simulated"))
     profile = (
         calibrator.profile
@@ -549,9 +536,7 @@ def latest_time(documents: list[dict]) -> str | None:
     return max(times) if times else None
 
 
-def _close_without_bench(
-    run_dir: Path, reports_dir: Path, *, clock, console, known: Known
-) -> Finished:
+def _close_without_bench(run_dir: Path, reports_dir: Path, *, clock, console) -> Finished:
     """Close a run whose every step has a confirmed entry but whose journal has no complete
     stop (it was killed after its last reading): a resume with nothing to measure, and the stop."""
     from verirun.clock import iso
@@ -580,7 +565,7 @@ def _close_without_bench(
     finally:
         journal.close()
     console.say("every step already had a confirmed entry: the run is closed without the bench")
-    return _finish(run_dir, reports_dir, known=known, console=console)
+    return _finish(run_dir, reports_dir, console=console)
 
 
 def _finish_closed(run_dir: Path, reports_dir: Path, record: dict, console) -> Finished:
@@ -601,7 +586,7 @@ def _finish_closed(run_dir: Path, reports_dir: Path, record: dict, console) -> F
         console.say(
             "the run was closed but its record was not written: written now from the journal"
         )
-    return _finish(run_dir, reports_dir, known=None, console=console)
+    return _finish(run_dir, reports_dir, console=console)
 
 
 #: What a bench file may change between the start of a run and its resumption: the standard's
@@ -658,14 +643,12 @@ def _same_file(path: Path | None, stored: dict, kind: str, load_path, load_text)
     return loaded
 
 
-def close_run(run_dir: Path, *, known: Known | None = None) -> dict | None:
-    """Build and write the run record of the journal in ``run_dir`` (``None`` if it is empty).
-
-    ``known`` is what the run that wrote the journal worked out (see :class:`Known`)."""
+def close_run(run_dir: Path) -> dict | None:
+    """Build and write the run record of the journal in ``run_dir`` (``None`` if it is empty)."""
     read = read_journal(run_dir / JOURNAL_NAME)
     if not read.documents:
         return None
-    record = build_record(read.documents, str(run_dir / JOURNAL_NAME), known=known)
+    record = build_record(read.documents, str(run_dir / JOURNAL_NAME))
     write_record(record, run_dir / RECORD_NAME)
     return record
 

@@ -115,8 +115,6 @@ class Engine:
         The journal of this run.
     clock
         Source of time and of settling waits.
-    results
-        If given, each reading's evaluation is also put here under its point's index.
     """
 
     def __init__(
@@ -129,7 +127,6 @@ class Engine:
         console,
         journal: Journal,
         clock=None,
-        results: dict | None = None,
     ):
         self.procedure = procedure
         self.bench = bench
@@ -146,7 +143,8 @@ class Engine:
         self.counts = {"pass": 0, "fail": 0, "skipped": 0}
         #: The points given an entry in this session, with it, newest last (for undo).
         self._taken: list[tuple[TestPoint, Entry]] = []
-        self.results = results if results is not None else {}
+        #: Each reading's evaluation in this session, by its point's index (for undo).
+        self.results: dict = {}
         self.journal_format = JOURNAL_FORMAT
         #: The latest time journaled: no document is dated before it (see _now).
         self._latest: str | None = None

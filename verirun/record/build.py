@@ -7,8 +7,8 @@ the same journal are the same.
 
 from __future__ import annotations
 
+import functools
 import math
-from dataclasses import dataclass, field
 
 from verirun.bench.config import Bench, load_bench_text
 from verirun.errors import ProcedureError, RecordError
@@ -21,29 +21,27 @@ from verirun.procedure.plan import TestPoint, plan
 from verirun.record.journal import RECORD_FORMAT, dumps, json_number, line_hash, verify_chain
 
 
-@dataclass(frozen=True, kw_only=True)
-class Known:
-    """What a run worked out while it wrote its journal, so that closing the journal need not
-    work it out again: the procedure and bench it ran, their plan, and the evaluation of each
-    reading by step index. The record uses them only where they are the journal's own: the same
-    procedure and bench texts, and an evaluation of the very reading the journal holds."""
+@functools.lru_cache(maxsize=16)
+def _planned(
+    procedure_text: str, procedure_source: str, bench_text: str, bench_source: str
+) -> tuple[Procedure, Bench, tuple[TestPoint, ...]]:
+    """The procedure and bench a journal's start document holds, loaded and planned.
 
-    procedure: Procedure
-    bench: Bench
-    points: list[TestPoint]
-    results: dict[int, Result] = field(default_factory=dict)
+    Kept for the last few (procedure, bench) texts: the runs of one procedure on one bench share
+    them, and loading and planning is most of the time a rebuild of many folders takes
+    (``benchmarks/register.py``). What it returns is never changed after planning.
 
-    def holds(self, start: dict) -> bool:
-        """True when the procedure and bench are those of the journal's start document."""
-        return (
-            self.procedure.text == start["procedure"]["text"]
-            and self.bench.text == start["bench"]["text"]
-        )
+    Raises
+    ------
+    ProcedureError
+        If either does not load.
+    """
+    procedure = load_procedure_text(procedure_text, procedure_source)
+    bench = load_bench_text(bench_text, bench_source)
+    return procedure, bench, tuple(plan(procedure, bench))
 
 
-def build_record(
-    documents: list[dict], source: str = "journal", *, known: Known | None = None
-) -> dict:
+def build_record(documents: list[dict], source: str = "journal") -> dict:
     """The run record of a journal's ``documents`` (see :func:`_build`).
 
     Raises
@@ -52,7 +50,7 @@ def build_record(
         If the journal is not one verirun writes, saying where.
     """
     try:
-        return _build(documents, source, known=known)
+        return _build(documents, source)
     except RecordError:
         raise
     except (KeyError, TypeError, ValueError, AttributeError, IndexError, ArithmeticError) as exc:
@@ -62,11 +60,10 @@ def build_record(
         ) from None
 
 
-def _build(documents: list[dict], source: str = "journal", *, known: Known | None = None) -> dict:
-    """The run record of a journal's ``documents``.
-
-    ``known`` (from the run that wrote the journal) saves loading, planning and evaluating again;
-    the record is the same with it or without it.
+def _build(documents: list[dict], source: str = "journal") -> dict:
+    """The run record of a journal's ``documents``: the same code path for the first closing of
+    a run, a resume, an amendment and a rebuild (every reading is evaluated here, from the
+    procedure and bench the journal holds).
 
     Raises
     ------
@@ -80,24 +77,17 @@ def _build(documents: list[dict], source: str = "journal", *, known: Known | Non
     if problems:
         raise RecordError("\n".join(problems))
     start = documents[0]
-    if known is not None and known.holds(start):
-        procedure, bench, planned, results = (
-            known.procedure,
-            known.bench,
-            known.points,
-            known.results,
+    try:
+        procedure, bench, planned = _planned(
+            start["procedure"]["text"],
+            start["procedure"]["source"],
+            start["bench"]["text"],
+            start["bench"]["source"],
         )
-    else:
-        try:
-            procedure = load_procedure_text(
-                start["procedure"]["text"], start["procedure"]["source"]
-            )
-            bench = load_bench_text(start["bench"]["text"], start["bench"]["source"])
-        except ProcedureError as exc:
-            raise RecordError(
-                f"{source}: the procedure or bench stored in the journal does not load: {exc}"
-            ) from None
-        planned, results = plan(procedure, bench), {}
+    except ProcedureError as exc:
+        raise RecordError(
+            f"{source}: the procedure or bench stored in the journal does not load: {exc}"
+        ) from None
     journal_format = start.get("journal_format", 1)
     after = _AfterTheRun(start, source)
     entries, corrections, notes, stop, revision, number = _entries(
@@ -105,7 +95,7 @@ def _build(documents: list[dict], source: str = "journal", *, known: Known | Non
     )
     rows = []
     for point in planned:
-        row = _row(point, entries.get(point.index), results.get(point.index), journal_format)
+        row = _row(point, entries.get(point.index), journal_format)
         if point.index in corrections:
             row["correction"] = corrections[point.index]
         rows.append(row)
@@ -477,7 +467,7 @@ def _step_of(doc: dict, planned: list[TestPoint], journal_format: int, where: st
     return point
 
 
-def _row(point, doc: dict | None, known: Result | None = None, journal_format: int = 2) -> dict:
+def _row(point, doc: dict | None, journal_format: int = 2) -> dict:
     win = point.window
     row = {
         "index": point.index,
@@ -518,15 +508,8 @@ def _row(point, doc: dict | None, known: Result | None = None, journal_format: i
         return {**row, "verdict": "not-measured"}
     if doc["kind"] not in ("observation", "correction"):
         return {**row, "verdict": "skipped", "time": doc["time"], "skip_reason": doc["reason"]}
-    # The run's own evaluation when it is of this very reading (it is the same function of the
-    # same point and value); otherwise, a corrected or resumed reading, evaluated here.
     reading = doc["reading"]
-    same = (
-        known is not None
-        and known.reading == reading
-        and math.copysign(1.0, known.reading) == math.copysign(1.0, reading)
-    )  # -0.0 is not 0.0
-    result = known if same else evaluate(point, reading)
+    result = evaluate(point, reading)
     interval = result.interval
     return {
         **row,

@@ -32,9 +32,7 @@ def needs_number(record: dict) -> bool:
     )
 
 
-def after_close(
-    run_dir: Path, record: dict | None, *, known=None, warn=None
-) -> tuple[dict | None, bool]:
+def after_close(run_dir: Path, record: dict | None, *, warn=None) -> tuple[dict | None, bool]:
     """Number and store a just-closed run in the named register (if any); return the record
     (with its number) and whether its certificate may be issued now.
 
@@ -50,7 +48,7 @@ def after_close(
     from verirun.register.db import RegisterError, open_register
 
     try:
-        return file_run(open_register(name), Path(run_dir), record, known=known), True
+        return file_run(open_register(name), Path(run_dir), record), True
     except RegisterError as exc:
         keep(Path(run_dir), record, str(exc))
         if warn is not None:
@@ -70,7 +68,7 @@ def after_close(
         raise
 
 
-def file_run(register, run_dir: Path, record: dict, *, known=None) -> dict:
+def file_run(register, run_dir: Path, record: dict) -> dict:
     """Give a complete run its certificate number (once) and store its record; return the record.
 
     Raises
@@ -95,7 +93,7 @@ def file_run(register, run_dir: Path, record: dict, *, known=None) -> dict:
             )
         from verirun.conduct import close_run
 
-        record = close_run(run_dir, known=known)
+        record = close_run(run_dir)
     store_record(register, record, run_dir.name)
     (run_dir / OUTBOX_NAME).unlink(missing_ok=True)
     return record

@@ -12,7 +12,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from verirun.errors import ProcedureError, RecordError
+from verirun.errors import RecordError
 from verirun.record.journal import (
     JOURNAL_NAME,
     RECORD_NAME,
@@ -26,46 +26,12 @@ from verirun.record.journal import (
 BATCH = 200
 
 
-class _Plans:
-    """Procedures and benches loaded and planned once per (procedure, bench) text: the runs of
-    one procedure on one bench share them, so a rebuild does not load and plan them per run."""
-
-    def __init__(self):
-        self._known: dict[tuple[str, str], object] = {}
-
-    def known_for(self, start: dict):
-        from verirun.bench.config import load_bench_text
-        from verirun.procedure.load import load_procedure_text
-        from verirun.procedure.plan import plan
-        from verirun.record.build import Known
-
-        try:
-            key = (start["procedure"]["sha256"], start["bench"]["sha256"])
-        except (KeyError, TypeError):
-            return None
-        if key not in self._known:
-            try:
-                procedure = load_procedure_text(
-                    start["procedure"]["text"], start["procedure"]["source"]
-                )
-                bench = load_bench_text(start["bench"]["text"], start["bench"]["source"])
-                self._known[key] = Known(
-                    procedure=procedure, bench=bench, points=plan(procedure, bench)
-                )
-            except (ProcedureError, KeyError, TypeError):
-                self._known[key] = None
-        return self._known[key]
-
-
-def verified_records(
-    folder: Path, plans: _Plans | None = None, *, current: bool = True
-) -> tuple[list[dict], list[str]]:
+def verified_records(folder: Path, *, current: bool = True) -> tuple[list[dict], list[str]]:
     """The records of ``folder`` that verify against its journal (earlier revisions first), and
     a line for every problem found."""
     from verirun.record.build import build_record
     from verirun.record.verify import comparable
 
-    plans = plans or _Plans()
     journal = folder / JOURNAL_NAME
     try:
         read = read_journal(journal)
@@ -78,7 +44,6 @@ def verified_records(
         )
     if problems or not read.documents:
         return [], problems or [f"{journal}: the journal is empty"]
-    known = plans.known_for(read.documents[0]) if read.documents[0].get("kind") == "start" else None
     paths = sorted(folder.glob("record.r*.json"), key=lambda p: _revision_of(p.name))
     if current:
         paths.append(folder / RECORD_NAME)
@@ -89,7 +54,7 @@ def verified_records(
             upto = (
                 len(read.documents) if path.name == RECORD_NAME else int(stored["run"]["documents"])
             )
-            rebuilt = build_record(read.documents[:upto], str(journal), known=known)
+            rebuilt = build_record(read.documents[:upto], str(journal))
         except (RecordError, KeyError, TypeError, ValueError) as exc:
             problems.append(f"{path}: {exc}")
             continue
@@ -112,13 +77,11 @@ def _revision_of(name: str) -> int:
     return int(digits) if digits.isdigit() else 0
 
 
-def index_folder(
-    register, folder: Path, plans: _Plans | None = None, *, current: bool = True
-) -> list[str]:
+def index_folder(register, folder: Path, *, current: bool = True) -> list[str]:
     """Store every verified record of one run folder; return its problems (empty: it verifies)."""
     from verirun.register.store import store_record
 
-    good, problems = verified_records(Path(folder), plans, current=current)
+    good, problems = verified_records(Path(folder), current=current)
     for record in good:
         store_record(register, record, Path(folder).name)
     return problems
@@ -149,13 +112,13 @@ def rebuild(register, root: Path, *, progress=None) -> Rebuilt:
     from verirun.register.closing import OUTBOX_NAME
     from verirun.register.store import store_records
 
-    plans, out, pending = _Plans(), Rebuilt(), []
+    out, pending = Rebuilt(), []
     for folder in run_folders(root):
         out.folders += 1
         if (folder / OUTBOX_NAME).exists():  # 'register sync' numbers and sends it
             out.unnumbered.append(str(folder))
             continue
-        good, problems = verified_records(folder, plans)
+        good, problems = verified_records(folder)
         pending.extend((record, folder.name) for record in good)
         if len(pending) >= BATCH:
             out.stored += store_records(register, pending)
