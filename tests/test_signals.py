@@ -193,9 +193,9 @@ class TestDeferredSignals:
                         worker.send()
 
     def test_a_signal_taken_the_moment_its_handler_is_set_is_noted(self, monkeypatch):
-        """A signal dispatched right after the noting handler is set (before the section has
-        recorded the handler it replaced) is noted and acted on at the end, with the handler
-        it had before."""
+        """Outside a run's handlers, a signal dispatched right after the noting handler is set
+        (before the section has recorded the handler it replaced) is noted and acted on at the
+        end, with the handler it had before."""
         import verirun.interrupts as interrupts
 
         real = signal.signal
@@ -206,11 +206,75 @@ class TestDeferredSignals:
                 handler(number, None)  # as the interpreter would, at the next instruction
             return previous
 
-        monkeypatch.setattr(interrupts.signal, "signal", set_then_take)
-        with _sigterm_as_interrupt():
-            with pytest.raises(KeyboardInterrupt, match="SIGTERM"):
+        def own(signum, frame):
+            raise KeyboardInterrupt("own handler: SIGTERM")
+
+        before = real(signal.SIGTERM, own)
+        try:
+            monkeypatch.setattr(interrupts.signal, "signal", set_then_take)
+            with pytest.raises(KeyboardInterrupt, match="own handler: SIGTERM"):
                 with deferred_signals():
                     pass
+        finally:
+            monkeypatch.undo()
+            real(signal.SIGTERM, before)
+
+    def test_a_signal_taken_the_moment_a_run_handler_is_set_does_what_the_run_says(
+        self, monkeypatch
+    ):
+        """A signal dispatched right after a run's handler is set acts as the run asked (its
+        action is known before the handler is in place), not as the operating system's default
+        (which would end the process with the output as it is)."""
+        import verirun.interrupts as interrupts
+
+        real = signal.signal
+
+        def set_then_take(number, handler):
+            previous = real(number, handler)
+            if number == signal.SIGTERM and handler is interrupts._gate:
+                handler(number, None)
+            return previous
+
+        monkeypatch.setattr(interrupts.signal, "signal", set_then_take)
+        with pytest.raises(KeyboardInterrupt, match="SIGTERM"):
+            with _sigterm_as_interrupt():
+                pass
+        monkeypatch.undo()
+        assert signal.getsignal(signal.SIGTERM) is not interrupts._gate
+
+    def test_inside_a_run_a_section_sets_no_handler(self, worker, monkeypatch):
+        """With the run's handlers installed, a section only counts itself in and out: no
+        handler is set or put back, and a signal within it still acts when it ends."""
+        import verirun.interrupts as interrupts
+
+        with _sigterm_as_interrupt():
+            calls = []
+            monkeypatch.setattr(
+                interrupts.signal, "signal", lambda *args: calls.append(args) or signal.SIG_DFL
+            )
+            with pytest.raises(KeyboardInterrupt, match="SIGTERM"):
+                with deferred_signals():
+                    worker.send()
+                    sum(range(10))
+                    assert calls == []
+            monkeypatch.undo()
+        assert calls == []
+
+    def test_the_handlers_a_run_replaced_are_back_after_it(self):
+        """After a run's block (and a nested one, as a run closing inside its run), every
+        signal has the handler it had before; Ctrl-C still raises KeyboardInterrupt."""
+        import verirun.interrupts as interrupts
+
+        before = {number: signal.getsignal(number) for number in interrupts.DEFERRED}
+        with _sigterm_as_interrupt():
+            with _sigterm_as_interrupt():
+                assert signal.getsignal(signal.SIGTERM) is interrupts._gate
+            assert signal.getsignal(signal.SIGTERM) is interrupts._gate
+        assert {number: signal.getsignal(number) for number in before} == before
+        with pytest.raises(KeyboardInterrupt):
+            with _sigterm_as_interrupt():
+                os.kill(os.getpid(), signal.SIGINT)
+                sum(range(10))
 
     def test_every_handler_is_restored_even_if_one_raises_as_it_comes_back(self, monkeypatch):
         """If a signal taken while the handlers are put back raises, the other handlers are

@@ -23,7 +23,7 @@ from verirun.certificate.render import write_certificate
 from verirun.clock import SystemClock
 from verirun.engine import Engine, Outcome, RunContext
 from verirun.errors import ProcedureError, RecordError, VerirunError
-from verirun.interrupts import deferred_signals, forget_kill_requests, kill_request
+from verirun.interrupts import deferred_signals, forget_kill_requests, kill_request, run_handlers
 from verirun.locks import calibrator_lock, run_lock
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.procedure.plan import plan
@@ -76,28 +76,22 @@ def _remove_never_started(runs_dir: Path, now: float) -> None:
             continue
 
 
-@contextlib.contextmanager
 def _sigterm_as_interrupt():
-    """Turn SIGTERM, SIGHUP (the terminal went away) and SIGQUIT into KeyboardInterrupt for the
-    run, so that every guard puts the output in standby before the process ends."""
+    """The run's signal handlers (:func:`verirun.interrupts.run_handlers`): SIGTERM, SIGHUP (the
+    terminal went away) and SIGQUIT become KeyboardInterrupt, as Ctrl-C is, so that every guard
+    puts the output in standby before the process ends."""
 
     def handler(signum, frame):
         raise kill_request(signum)  # noted too: a raise lost in a callback still stops the run
 
     forget_kill_requests()
-    previous = {}
-    try:
-        for name in ("SIGTERM", "SIGHUP", "SIGQUIT"):
-            number = getattr(signal, name, None)
-            if number is not None:
-                previous[number] = signal.signal(number, handler)
-    except ValueError:  # not in the main thread: signals cannot be handled here
-        pass
-    try:
-        yield
-    finally:
-        for number, old in previous.items():
-            signal.signal(number, old)
+    return run_handlers(
+        {
+            number: handler
+            for number in (getattr(signal, name, None) for name in ("SIGTERM", "SIGHUP", "SIGQUIT"))
+            if number is not None
+        }
+    )
 
 
 def check_readings(readings, points, every=None) -> None:

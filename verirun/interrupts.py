@@ -6,6 +6,11 @@ inside :class:`deferred_signals`, the interrupting signals (Ctrl-C, a kill reque
 terminal) are only noted; when the outermost section ends, the previous handlers are back and the
 first signal noted is acted on as it would have been (usually by raising ``KeyboardInterrupt``).
 
+A run installs its handlers once (:func:`run_handlers`): one per interrupting signal, which notes
+the signal while a section is open and otherwise does what the run wants of it. Sections inside
+the run then only count themselves in and out; a section outside a run (a command's closing
+words) puts the noting handler in place for its length and the previous one back after.
+
 Python runs every signal handler in the main thread, whichever thread of the process the
 operating system delivered the signal to, so this holds however many threads the process has
 (a numerical library's worker, a console reader). Holding signals back at the operating-system
@@ -15,6 +20,7 @@ still take them.
 
 from __future__ import annotations
 
+import contextlib
 import os
 import signal
 import sys
@@ -33,11 +39,57 @@ class _Held:
 
     depth = 0
     noted: list[int] = []
+    #: What each signal noted in the open section is acted on with, once it ends.
     previous: dict[int, object] = {}
+    #: While a run's handlers are installed: what each signal does outside a section.
+    gates: dict[int, object] = {}
 
 
 def _note(signum, frame) -> None:
     _Held.noted.append(signum)
+
+
+def _gate(signum, frame) -> None:
+    """The run's handler (see :func:`run_handlers`): noted inside a section, acted on outside."""
+    if _Held.depth:
+        _Held.noted.append(signum)
+    else:
+        _act(signum, _Held.gates.get(signum, signal.SIG_DFL), raising=True)
+
+
+@contextlib.contextmanager
+def run_handlers(handlers: dict):
+    """Install, for the block, the handlers of a run: each interrupting signal (:data:`DEFERRED`)
+    does what ``handlers`` says for it (a signal not named there keeps what it did before),
+    except inside a critical section, where it is noted and acted on when the section ends.
+
+    Installed once for the run, so its sections swap no handlers. Inside a block of its own
+    (a run closing while it runs) or outside the main thread it leaves everything as it is.
+    """
+    if _Held.gates or threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    installed = {}
+    try:
+        for number in DEFERRED:
+            # Both are known before the handler is in place: a signal taken the moment it is
+            # set acts as the run wants, and the handler it replaced is put back after.
+            installed[number] = signal.getsignal(number)
+            _Held.gates[number] = handlers.get(number, installed[number])
+            signal.signal(number, _gate)
+        yield
+    finally:
+        raised = None
+        for number, handler in installed.items():
+            while True:
+                try:
+                    signal.signal(number, signal.SIG_DFL if handler is None else handler)
+                    break
+                except BaseException as exc:  # from a handler just put back; finish first
+                    raised = raised or exc
+        _Held.gates = {}
+        if raised is not None:
+            raise raised
 
 
 def _act(number: int, handler, *, raising: bool) -> None:
@@ -65,10 +117,11 @@ class deferred_signals:  # noqa: N801 - used as a function: ``with deferred_sign
     handlers and no handler would run) the block runs as it is.
     """
 
-    __slots__ = ("_active",)
+    __slots__ = ("_active", "_gated")
 
     def __init__(self) -> None:
         self._active = False
+        self._gated = False
 
     def __enter__(self) -> "deferred_signals":
         if threading.current_thread() is not threading.main_thread():
@@ -78,7 +131,10 @@ class deferred_signals:  # noqa: N801 - used as a function: ``with deferred_sign
         # Counted before the handlers are set and uncounted only after they are restored, so
         # that a signal taken by the noting handler at any moment is noted, never lost.
         _Held.depth += 1
-        if _Held.depth == 1:
+        if _Held.depth == 1 and len(_Held.gates) == len(DEFERRED):  # a run's: nothing to swap
+            _Held.previous = dict(_Held.gates)
+            self._gated = True
+        elif _Held.depth == 1:
             try:
                 for number in DEFERRED:
                     _Held.previous[number] = signal.signal(number, _note)
@@ -99,11 +155,17 @@ class deferred_signals:  # noqa: N801 - used as a function: ``with deferred_sign
             _Held.depth -= 1
             return False
         previous = dict(_Held.previous)
-        try:
-            _restore()
-        finally:  # even when a signal taken as its handler came back raises: that one acts
-            noted, _Held.noted = _Held.noted, []
+        if self._gated:
+            # Uncounted first: a signal from now on acts at once, and none is noted unseen.
             _Held.depth = 0
+            noted, _Held.noted = _Held.noted, []
+            _Held.previous = {}
+        else:
+            try:
+                _restore()
+            finally:  # even when a signal taken as its handler came back raises: that one acts
+                noted, _Held.noted = _Held.noted, []
+                _Held.depth = 0
         in_flight = exc is not None or sys.exc_info()[1] is not None
         for number in noted:
             _act(number, previous.get(number), raising=not in_flight)
