@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import datetime as dt
-import functools
 import hashlib
 from dataclasses import dataclass
 from pathlib import Path
@@ -161,7 +160,7 @@ class Bench:
                 return line
         return None
 
-    @functools.cached_property
+    @property
     def _lines_by_function(self) -> dict[str, list[SpecLine]]:
         # Each function's lines, smallest range first, so the first that holds a value is its line.
         table: dict[str, list[SpecLine]] = {}

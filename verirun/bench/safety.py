@@ -37,8 +37,8 @@ class output_guard:  # noqa: N801 - used as a function: ``with output_guard(cal)
         ``__context__``; the standby failure, if any, is its ``__cause__``.
     """
 
-    # A class rather than a generator: it is entered at every step of a run, and this costs
-    # a few microseconds less each time.
+    # A class rather than a generator: its exit is handed the block's exception as it is, and
+    # decides in plain code whether that exception or a SafetyError is the one that propagates.
     __slots__ = ("calibrator",)
 
     def __init__(self, calibrator: "Calibrator"):

@@ -6,7 +6,6 @@ so a run never dies half-way on a typo.
 
 from __future__ import annotations
 
-import functools
 import hashlib
 import math
 from dataclasses import dataclass
@@ -79,7 +78,7 @@ class ResolvedRange:
     battery: float | None
     extra_terms: tuple[uncertainty.Term, ...] = ()
 
-    @functools.cached_property
+    @property
     def context(self) -> tolerance.RangeContext:
         """What a tolerance statement needs to know about this range."""
         count = self.resolution if self.resolution_domain == "value" else None
@@ -92,9 +91,8 @@ class ResolvedRange:
         resolution it is read to) and the procedure's extra terms for the range."""
         return list(self._meter_terms)
 
-    @functools.cached_property
+    @property
     def _meter_terms(self) -> tuple[uncertainty.Term, ...]:
-        # The same for every point of the range: worked out once.
         terms = []
         if self.resolution:
             if self.resolution_domain == "deg":

@@ -6,7 +6,6 @@ executes it. Every number a point carries comes from the pure metrology function
 
 from __future__ import annotations
 
-import functools
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
@@ -46,7 +45,7 @@ class TestPoint:
         """The point's identity in its run: its step number, 1-based, as the operator sees it."""
         return self.index + 1
 
-    @functools.cached_property  # asked for several times per step; worked out once
+    @property
     def key(self) -> str:
         """The point's label, ``range-id@nominal[@frequency]`` as the procedure writes them
         (``dca-50u@10uA``). Procedures may repeat a value (up-scale then down-scale), so a label
@@ -55,7 +54,7 @@ class TestPoint:
             return self.legacy_key
         return f"{self.range.id}@{self.written}"
 
-    @functools.cached_property
+    @property
     def legacy_key(self) -> str:
         """The label of records of the first format: the nominal's float repr (``dcv-10@2.0``)."""
         text = f"{self.range.id}@{self.nominal!r}"
