@@ -1,11 +1,15 @@
-"""Write the stored runs of this folder again, from the demo scenario, with the verirun installed.
+"""Write one set of the stored runs of this folder again, from the demo scenario, with the verirun
+installed.
 
-Only for when the demo scenario itself changes (its procedure, bench or scripted readings), and
-only while the journal, record and certificate template formats are those the stored runs are
-named for: the stored runs are there to catch a change of format, and writing them again with a
-verirun whose formats differ would hide exactly that.
+Each set is named for the journal format it was written in (``format1-*`` by verirun 0.1.0,
+``format3-*`` by the verirun that introduced journal format 3, record format 3 and certificate
+template 3). Write a set again only when the demo scenario itself changes (its procedure, bench
+or scripted readings), and only while the installed verirun writes the formats the set is named
+for: the stored runs are there to catch a change of format, and writing them again with a
+verirun whose formats differ would hide exactly that. The ``format1`` set can no longer be
+written (verirun writes format 3): it stays as 0.1.0 wrote it.
 
-    python tests/data/stored-runs/regenerate.py
+    python tests/data/stored-runs/regenerate.py format3
 
 Each run is made with the command line, as a user would make it, in a scratch folder; its
 journal, record(s), simulated calibrator file and certificate(s) are then copied here.
@@ -50,9 +54,12 @@ def readings(work: Path, name: str, *replacements: tuple[str, str]) -> str:
     return name
 
 
+SET = "format3"
+
+
 def keep(run: Path, name: str) -> None:
-    """Copy the run's files and its certificates to ``format1-<name>``."""
-    target = HERE / f"format1-{name}"
+    """Copy the run's files and its certificates to ``<set>-<name>``."""
+    target = HERE / f"{SET}-{name}"
     shutil.rmtree(target, ignore_errors=True)
     (target / "certificate").mkdir(parents=True)
     for file in ("journal.jsonl", "record.json", "record.r1.json"):
@@ -65,6 +72,10 @@ def keep(run: Path, name: str) -> None:
 
 
 def main() -> None:
+    from verirun.record.documents import JOURNAL_FORMAT
+
+    if sys.argv[1:] != [SET] or JOURNAL_FORMAT != 3:
+        raise SystemExit(f"usage: regenerate.py {SET} (with a verirun that writes journal format 3)")
     with tempfile.TemporaryDirectory() as scratch:
         work = Path(scratch)
         shutil.copy2(PROCEDURE, work / "qm40-analog-multimeter.yaml")
