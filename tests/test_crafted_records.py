@@ -31,6 +31,7 @@ from verirun.errors import BenchError
 from verirun.lab import load_lab
 from verirun.procedure.load import load_procedure
 from verirun.readings import ScriptedReadings
+from verirun.record.journal import never_started_text
 from verirun.record.verify import problems
 
 
@@ -173,8 +174,9 @@ class TestListingSkipsABadFolder:
         (empty / "journal.jsonl").write_text("")
         capsys.readouterr()
         assert cli("runs", "--runs", tmp_path / "runs") == 0
-        assert "no run was journaled here" in capsys.readouterr().err
+        assert never_started_text(empty) in capsys.readouterr().err  # as verify and resume say
         assert cli("resume", empty, "--readings", READINGS) == 1
+        assert never_started_text(empty) in capsys.readouterr().err
 
 
 def _context() -> RunContext:

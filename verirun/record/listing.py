@@ -5,7 +5,14 @@ from __future__ import annotations
 from pathlib import Path
 
 from verirun.errors import RecordError
-from verirun.record.journal import JOURNAL_NAME, RECORD_NAME, load_record, read_journal
+from verirun.record.journal import (
+    JOURNAL_NAME,
+    RECORD_NAME,
+    load_record,
+    never_started,
+    never_started_text,
+    read_journal,
+)
 
 
 def summary(folder: Path) -> dict | None:
@@ -48,6 +55,8 @@ def summary(folder: Path) -> dict | None:
         elif journal_path.exists():
             docs = read_journal(journal_path).documents
             if not docs or docs[0].get("kind") != "start":
+                if never_started(folder):
+                    raise RecordError(never_started_text(folder))
                 raise RecordError(
                     f"{folder}: no run was journaled here (it stopped before it started);"
                     " there is nothing to resume, and the folder can be removed"
