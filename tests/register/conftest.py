@@ -190,8 +190,10 @@ def close_run(
     bench: str = "bench.yaml",
     simulated: bool = False,
     as_left_of: Path | None = None,
+    procedure: str = "procedure.yaml",
 ):
-    """Run the test procedure on the simulated calibrator and close it; return what it left.
+    """Run the test procedure (or ``procedure`` of the test data) on the simulated calibrator
+    and close it; return what it left.
 
     ``simulated=False`` records it as a calibration (the record says so; the calibrator driven
     is still the simulated one), so that it counts in an item's history and due date.
@@ -206,7 +208,7 @@ def close_run(
 
     when = when or dt.datetime(2026, 3, 1, 9, 0, tzinfo=dt.timezone.utc)
     lab = load_lab(DATA / "lab.yaml")
-    procedure = load_procedure(DATA / "procedure.yaml")
+    procedure = load_procedure(DATA / procedure)
     as_found = (
         None
         if as_left_of is None

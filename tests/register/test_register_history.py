@@ -9,9 +9,11 @@ import json
 
 import numpy as np
 import pytest
+import sqlalchemy as sa
 from scipy import stats
 
 from verirun.cli import main
+from verirun.register.db import current_revision, head_revision
 from verirun.register.history import YEAR_DAYS, fit_drift, item_history
 
 UTC = dt.timezone.utc
@@ -144,3 +146,67 @@ class TestItemHistory:
         """No traceback: one line saying what is missing."""
         assert main(["history", "NOPE"]) == 1
         assert "no calibration of item 'NOPE'" in capsys.readouterr().err
+
+
+class TestFoundInTolerance:
+    """Found in tolerance is a question of the readings against the tolerance limits, not of the
+    verdicts: under a guard band (ILAC-G8:09/2019 4.2.2, acceptance limits moved inward by
+    w = U) a reading within the tolerance limits but within w of one is rejected, yet it was
+    found within them. Interval analysis counts calibrations found in tolerance as found (the
+    as-found condition against the tolerance: ILAC-G24:2022 / OIML D 10, 2022, method 1)."""
+
+    def test_a_rejection_for_the_guard_band_alone_was_found_in_tolerance(
+        self, register, tmp_path, closed_run
+    ):
+        """At 8 V the tolerance is ±0.2 V (2 % of 10 V) and U is 0.0058 V: 8.196 V lies within
+        the tolerance but above the acceptance limit 8.1942 V (a fail, for the guard band);
+        8.25 V lies outside the tolerance. Of four calibrations of the model, three were found
+        in tolerance, and G-2's last one was."""
+        runs_dir, guarded = tmp_path / "runs", {"procedure": "procedure-guarded.yaml"}
+        _calibrate(closed_run, runs_dir, "G-1", 2021, ("2.00", "5.00", "8.00"), **guarded)
+        banded = _calibrate(closed_run, runs_dir, "G-1", 2022, ("2.00", "5.00", "8.196"), **guarded)
+        assert banded.record["summary"]["rejections"] == [
+            {"key": "dcv-10@8V", "verdict": "fail", "cause": "guard-band"}
+        ]
+        _calibrate(closed_run, runs_dir, "G-1", 2023, ("2.00", "5.00", "8.25"), **guarded)
+        _calibrate(closed_run, runs_dir, "G-2", 2023, ("2.00", "5.00", "8.196"), **guarded)
+        history = item_history(register, serial="G-1", today=dt.date(2024, 6, 1))
+        assert (history.model_calibrations, history.model_in_tolerance) == (4, 3)
+        assert history.last_in_tolerance is False  # 8.25 V is outside the tolerance
+        assert item_history(register, serial="G-2", today=dt.date(2024, 6, 1)).last_in_tolerance
+
+    def test_rows_stored_before_the_register_counted_it_are_judged_by_their_verdicts(
+        self, tmp_path, closed_run, monkeypatch
+    ):
+        """A register made at revision 0001 with a run in it migrates to the head revision; the
+        run kept from before holds no count and is judged by its verdict, as it was."""
+        from alembic import command
+
+        from verirun.register import config
+        from verirun.register.db import _alembic_config, forget_open, open_register
+        from verirun.register.store import point_rows, run_row
+
+        monkeypatch.delenv("VERIRUN_REGISTER", raising=False)
+        config.use(None)
+        closed = _calibrate(closed_run, tmp_path / "runs", "OLD-1", 2021, ("2.00", "5.00", "8.30"))
+        url = f"sqlite:///{tmp_path / 'old.db'}"
+        engine = sa.create_engine(url)
+        with engine.begin() as connection:
+            command.upgrade(_alembic_config(connection), "0001")
+            tables = sa.MetaData()
+            tables.reflect(connection)
+            run = {**run_row(closed.record, closed.run_dir.name), "id": 1}
+            del run["outside_tolerance"]
+            connection.execute(tables.tables["runs"].insert(), [run])
+            rows = [dict(row) for row in point_rows(1, closed.record)]
+            for row in rows:
+                del row["within_tolerance"]
+            connection.execute(tables.tables["points"].insert(), rows)
+        engine.dispose()
+        forget_open()
+        register = open_register(url)  # an embedded register migrates as it is opened
+        with register.reading() as connection:
+            assert current_revision(connection) == head_revision()
+        history = item_history(register, serial="OLD-1", today=dt.date(2022, 1, 1))
+        assert history.last_in_tolerance is False  # 8.30 V failed, outside the tolerance
+        assert (history.model_calibrations, history.model_in_tolerance) == (1, 0)

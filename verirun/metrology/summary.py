@@ -128,6 +128,11 @@ class Summary:
         """The keys of points rejected within their tolerance limits, by the guard band alone."""
         return tuple(r.key for r in self.rejections if r.cause == "guard-band")
 
+    @property
+    def outside_tolerance(self) -> int:
+        """How many readings lie outside their tolerance limits (none: found in tolerance)."""
+        return sum(1 for r in self.rejections if r.cause == "outside-tolerance")
+
     def counts_text(self) -> str:
         """All four counts in words: ``"9 pass, 1 conditional pass, 0 conditional fail, 2 fail"``."""
         return (
@@ -157,7 +162,7 @@ class Summary:
             f"Statement of conformity, under the decision rule stated above: {head}"
             f" ({points}; {self.counts_text()})."
         ]
-        outside = sum(1 for r in self.rejections if r.cause == "outside-tolerance")
+        outside = self.outside_tolerance
         guard = len(self.rejections) - outside
         if self.rejections:
             words = []

@@ -193,18 +193,29 @@ def _calibrations(*where):
     return latest_closings(*where, *CALIBRATION)
 
 
+def _found_in_tolerance():
+    """The condition of a run's closing that found the item in tolerance (see model_counts)."""
+    return sa.or_(
+        runs.c.outside_tolerance == 0,
+        sa.and_(
+            runs.c.outside_tolerance.is_(None), runs.c.overall.in_(("pass", "conditional-pass"))
+        ),
+    )
+
+
 def model_counts(connection, model: str) -> tuple[int, int]:
     """How many calibrations of items of ``model`` there are, and how many were found in
     tolerance, each run counted by its latest closing.
 
     One aggregate over the index that holds these columns: per run, its latest closing's
-    journal length and its latest passing closing's; the run passed when the two are one."""
+    journal length and its latest closing found in tolerance; the run was found in tolerance
+    when the two are one. A run is found in tolerance when none of its readings lies outside its
+    tolerance limits (a reading rejected for the guard band alone lies within them); a run
+    stored before the register counted that (migration 0002) is judged by its overall verdict."""
     per_run = (
         sa.select(
             sa.func.max(runs.c.documents).label("latest"),
-            sa.func.max(
-                sa.case((runs.c.overall.in_(("pass", "conditional-pass")), runs.c.documents))
-            ).label("passed"),
+            sa.func.max(sa.case((_found_in_tolerance(), runs.c.documents))).label("passed"),
         )
         .where(runs.c.item_model == model, *CALIBRATION)
         .group_by(runs.c.uid)
@@ -219,8 +230,10 @@ def model_counts(connection, model: str) -> tuple[int, int]:
     return int(total), int(passed or 0)
 
 
-#: The verdicts of a reading within its tolerance limits (a conditional fail lies outside them).
-IN_TOLERANCE = ("pass", "conditional-pass", "skipped", "not-measured")
+#: The verdicts that say a point was not found outside its tolerance limits (a conditional fail
+#: lies outside them; a fail may lie within them under a guard band, so this is only for points
+#: stored before the register held ``within_tolerance``).
+NOT_OUTSIDE = ("pass", "conditional-pass", "skipped", "not-measured")
 
 
 def item_history(register, *, serial: str, model: str | None = None, today: dt.date) -> History:
@@ -251,6 +264,7 @@ def item_history(register, *, serial: str, model: str | None = None, today: dt.d
             points.c.error_fraction,
             points.c.expanded_fraction,
             points.c.verdict,
+            points.c.within_tolerance,
         )
         .join(latest, sa.and_(runs.c.uid == latest.c.uid, runs.c.documents == latest.c.documents))
         .join(points, points.c.run_id == runs.c.id)
@@ -309,8 +323,16 @@ def item_history(register, *, serial: str, model: str | None = None, today: dt.d
         drifts=drifts,
         model_calibrations=calibrations,
         model_in_tolerance=in_tolerance,
-        last_in_tolerance=bool(last["verdict"].isin(IN_TOLERANCE).all()),
+        last_in_tolerance=_all_within(last),
     )
+
+
+def _all_within(rows) -> bool:
+    """Whether no reading of ``rows`` (one run's points) lies outside its tolerance limits."""
+    outside = rows["within_tolerance"].eq(False)
+    unknown = rows["within_tolerance"].isna() & rows["verdict"].notna()
+    stored_before = unknown & ~rows["verdict"].isin(NOT_OUTSIDE)
+    return not bool((outside | stored_before).any())
 
 
 def write_csv(history: History, path: Path) -> Path:

@@ -78,6 +78,10 @@ runs = sa.Table(
     sa.Column("skipped", sa.Integer, nullable=False),
     sa.Column("not_measured", sa.Integer, nullable=False),
     sa.Column("overall", sa.String(20), nullable=False),
+    # How many readings lie outside their tolerance limits (a rejection for the guard band alone
+    # is not counted): none means the item was found in tolerance. Migration 0002; rows stored
+    # before it hold null, and are judged by their overall verdict.
+    sa.Column("outside_tolerance", sa.Integer),
     sa.Column("status", sa.String(20), nullable=False),
     sa.Column("simulated", sa.Boolean, nullable=False),
     sa.Column("certificate", sa.String(200), nullable=False),
@@ -98,6 +102,7 @@ runs = sa.Table(
         "uid",
         "documents",
         "overall",
+        "outside_tolerance",
     ),
     # Every column ``verirun runs`` shows, in its order: the listing reads this index alone.
     sa.Index(
@@ -140,6 +145,9 @@ points = sa.Table(
     sa.Column("expanded", sa.Float),  # U (k = 2) of the reading, in the point's unit
     sa.Column("expanded_fraction", sa.Float),  # U as a fraction of the tolerance half-width
     sa.Column("verdict", sa.String(20), nullable=False),
+    # Whether the reading lies within its tolerance limits (null: not measured, or stored before
+    # migration 0002); under a guard band a fail may lie within them.
+    sa.Column("within_tolerance", sa.Boolean),
     sa.UniqueConstraint("run_id", "step", name="points_run_step"),
 )
 

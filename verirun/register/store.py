@@ -138,6 +138,7 @@ def run_row(record: dict, folder: str) -> dict:
         "skipped": summary.skipped,
         "not_measured": summary.not_measured,
         "overall": summary.overall,
+        "outside_tolerance": summary.outside_tolerance,
         "status": run["status"],
         "simulated": bool(record["bench"].get("simulated")),
         "certificate": certificate_number(record),
@@ -153,6 +154,8 @@ def _fraction(percent: float | None) -> float | None:
 
 def point_rows(run_id: int, record: dict) -> list[dict]:
     """The ``points`` rows of a closed record, one per step."""
+    from verirun.record.build import record_judged
+
     return [
         {
             "run_id": run_id,
@@ -169,8 +172,9 @@ def point_rows(run_id: int, record: dict) -> list[dict]:
             "expanded": row["U"],
             "expanded_fraction": _fraction(row["U_pct"]),
             "verdict": row["verdict"],
+            "within_tolerance": judged.within_tolerance,
         }
-        for row in record["points"]
+        for row, judged in zip(record["points"], record_judged(record))
     ]
 
 
