@@ -411,7 +411,7 @@ def read_document(data: Any) -> BaseModel:
     if not isinstance(data, dict):
         raise ValueError("not a journal document (not a JSON object)")
     kind = data.get("kind")
-    if kind not in _KINDS:
+    if kind not in KINDS:
         raise ValueError(f"unknown document kind {kind!r}")
     try:
         return validate_document(data)
@@ -470,7 +470,7 @@ def compose(kind: str, *, time: str, **fields: Any) -> dict:
 
 
 #: Every document kind, from the models (so a new kind cannot be left out here).
-_KINDS = tuple(
+KINDS = tuple(
     get_args(model.model_fields["kind"].annotation)[0] for model in get_args(get_args(Document)[0])
 )
 

@@ -150,7 +150,8 @@ class Journal:
                 os.fsync(fh.fileno())
 
     def append(self, doc: dict) -> dict:
-        """Write ``doc`` as one line with its sequence number and chain hash; fsync; return it.
+        """Write ``doc`` (made by :func:`verirun.record.documents.compose`) as one line with its
+        sequence number and chain hash; fsync; return it.
 
         A critical section (:mod:`verirun.interrupts`): a signal arriving meanwhile acts only once
         the line is on disk and the chain has moved past it, so no two lines share a number."""
