@@ -12,7 +12,7 @@ from pathlib import Path
 
 from verirun.clock import SystemClock, iso
 from verirun.errors import RecordError
-from verirun.record.documents import compose
+from verirun.record.documents import AsFound, compose
 from verirun.record.journal import JOURNAL_NAME, Journal, read_start
 
 
@@ -77,14 +77,14 @@ def revise_as_left(
     out = []
     for left in as_left_runs(found["run"]["uid"], [Path(found_run).resolve().parent, *others]):
         previous = verified_record(left).get("as_found") or {}
-        as_found = {
-            "run": found["run"]["uid"],
-            "certificate": certificate_number(found),
-            "date": found["run"]["started"][:10],
-            "adjustment": previous.get("adjustment", ""),
-            "points": found["points"],
-            "summary": found["summary"],
-        }
+        as_found = AsFound(
+            run=found["run"]["uid"],
+            certificate=certificate_number(found),
+            date=found["run"]["started"][:10],
+            adjustment=previous.get("adjustment", ""),
+            points=found["points"],
+            summary=found["summary"],
+        )
         with Journal(left / JOURNAL_NAME) as journal:
             journal.append(
                 compose(

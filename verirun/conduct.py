@@ -29,6 +29,7 @@ from verirun.procedure.load import Procedure, load_procedure, load_procedure_tex
 from verirun.procedure.plan import plan
 from verirun.record.build import build_record
 from verirun.record.documents import (
+    AsFound,
     BenchAsRun,
     ProcedureAsRun,
     Renewal,
@@ -645,7 +646,7 @@ def as_found_of(
     customer: dict | None = None,
     others: list[Path] = (),
     simulated: bool | None = None,
-) -> dict:
+) -> AsFound:
     """The as-found results an as-left run carries, from the verified earlier run ``run``.
 
     Raises
@@ -676,14 +677,14 @@ def as_found_of(
         check_as_found(
             record, run=Path(run), customer=customer, others=list(others), simulated=simulated
         )
-    return {
-        "run": record["run"]["uid"],
-        "certificate": certificate_number(record),
-        "date": record["run"]["started"][:10],
-        "adjustment": adjustment.strip(),
-        "points": record["points"],
-        "summary": record["summary"],
-    }
+    return AsFound(
+        run=record["run"]["uid"],
+        certificate=certificate_number(record),
+        date=record["run"]["started"][:10],
+        adjustment=adjustment.strip(),
+        points=record["points"],
+        summary=record["summary"],
+    )
 
 
 @contextlib.contextmanager

@@ -24,6 +24,7 @@ from verirun.readings import Entry, OperatorSilent, ReadingSource
 from verirun.record.documents import (
     JOURNAL_FORMAT,
     Applied,
+    AsFound,
     BenchAsRun,
     CalibratorAsRun,
     ProcedureAsRun,
@@ -46,7 +47,7 @@ class RunContext:
     simulated: bool
     environment: dict = field(default_factory=dict)
     #: For an as-left pass after an adjustment: the as-found run's results (see as_found_of).
-    as_found: dict | None = None
+    as_found: AsFound | None = None
     #: The folder the run's certificate goes to (written in the start document, so that a
     #: resumed run's certificate goes there too).
     reports: str | None = None
@@ -103,7 +104,7 @@ def start_document(
         item=context.item,
         operator=context.operator,
         environment=context.environment,
-        **({"as_found": context.as_found} if context.as_found else {}),
+        **({"as_found": context.as_found} if context.as_found is not None else {}),
         **({"reports": context.reports} if context.reports else {}),
     )
 
