@@ -24,13 +24,13 @@ from verirun.bench.calibrator import Calibrator
 from verirun.bench.config import load_bench
 from verirun.bench.sim import SIM_RESOURCE, sim_library
 from verirun.clock import VirtualClock
-from verirun.conduct import confirmed_steps, execute
+from verirun.conduct import execute
 from verirun.console import Console
 from verirun.engine import RunContext
 from verirun.errors import RunAborted
 from verirun.lab import load_lab
 from verirun.procedure.load import load_procedure_text
-from verirun.record.journal import read_journal
+from verirun.record.journal import confirmed_steps, read_journal
 
 DATA = Path(__file__).resolve().parent / "data"
 
@@ -260,11 +260,18 @@ class TestUndo:
     def test_a_withdrawn_point_is_pending_on_resume(self):
         """A step whose entry was withdrawn is measured again when the run is resumed; a step is
         told by its index, so a repeat of the same value is a step of its own."""
+        from verirun.record.documents import validate_document
+
+        chained = {"seq": 0, "prev": "0" * 64, "time": "2026-01-05T10:00:00Z", "typed": "1"}
+        measured = {"kind": "observation", "range": "r", "function": "dcv", "reading": 1.0}
+        measured["applied"] = {"value": 1.0, "frequency": None}
         docs = [
-            {"kind": "observation", "point": "a", "index": 0},
-            {"kind": "observation", "point": "b", "index": 1},
-            {"kind": "observation", "point": "b", "index": 2},
-            {"kind": "withdrawal", "point": "b", "index": 2},
+            validate_document({**chained, **measured, "point": "a", "index": 0}),
+            validate_document({**chained, **measured, "point": "b", "index": 1}),
+            validate_document({**chained, **measured, "point": "b", "index": 2}),
+            validate_document(
+                {**chained, "kind": "withdrawal", "point": "b", "index": 2, "reason": "undo"}
+            ),
         ]
         assert confirmed_steps(docs) == frozenset({0, 1})
 

@@ -8,12 +8,12 @@ the combined certificate, issued in its turn.
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 from verirun.clock import SystemClock, iso
 from verirun.errors import RecordError
-from verirun.record.journal import JOURNAL_NAME, Journal
+from verirun.record.documents import AsFound, compose
+from verirun.record.journal import JOURNAL_NAME, Journal, read_start
 
 
 def check_as_found(
@@ -57,12 +57,8 @@ def as_left_runs(uid: str, folders: list[Path]) -> list[Path]:
             journal = run / JOURNAL_NAME
             if not journal.is_file():
                 continue
-            try:
-                with open(journal, encoding="utf-8") as fh:
-                    start = json.loads(fh.readline())
-            except (OSError, ValueError):
-                continue
-            if isinstance(start, dict) and (start.get("as_found") or {}).get("run") == uid:
+            start = read_start(journal)  # the first line only: a folder may hold many runs
+            if start is not None and start.as_found is not None and start.as_found.run == uid:
                 found.append(run)
     return found
 
@@ -81,23 +77,23 @@ def revise_as_left(
     out = []
     for left in as_left_runs(found["run"]["uid"], [Path(found_run).resolve().parent, *others]):
         previous = verified_record(left).get("as_found") or {}
-        as_found = {
-            "run": found["run"]["uid"],
-            "certificate": certificate_number(found),
-            "date": found["run"]["started"][:10],
-            "adjustment": previous.get("adjustment", ""),
-            "points": found["points"],
-            "summary": found["summary"],
-        }
+        as_found = AsFound(
+            run=found["run"]["uid"],
+            certificate=certificate_number(found),
+            date=found["run"]["started"][:10],
+            adjustment=previous.get("adjustment", ""),
+            points=found["points"],
+            summary=found["summary"],
+        )
         with Journal(left / JOURNAL_NAME) as journal:
             journal.append(
-                {
-                    "kind": "as-found",
-                    "time": iso(clock.now()),
-                    "as_found": as_found,
-                    "reason": reason,
-                    "operator": operator,
-                }
+                compose(
+                    "as-found",
+                    time=iso(clock.now()),
+                    as_found=as_found,
+                    reason=reason,
+                    operator=operator,
+                )
             )
         out.append((left, close_run(left)))
     return out

@@ -387,16 +387,16 @@ def _err(text: str) -> None:
 
 def _resume_hint(exc: BaseException) -> None:
     from verirun.interrupts import deferred_signals
-    from verirun.record.journal import read_journal
+    from verirun.record.journal import JOURNAL_NAME, read_journal
 
     run_dir = getattr(exc, "run_dir", None)
     if run_dir is None:
         return
     try:
-        docs = read_journal(Path(run_dir) / "journal.jsonl").documents
+        start = read_journal(Path(run_dir) / JOURNAL_NAME).start
     except Exception:  # unreadable: resume would say why; no promise is made here
         return
-    if not docs or docs[0].get("kind") != "start":
+    if start is None:
         return
     fix = (
         "once that is fixed, "
@@ -848,8 +848,8 @@ def _reports_of(run: Path) -> Path:
     from verirun.record.journal import JOURNAL_NAME, read_journal
     from verirun.record.verify import run_folder
 
-    docs = read_journal(run_folder(run) / JOURNAL_NAME).documents
-    return Path((docs[0].get("reports") if docs else None) or "reports")
+    start = read_journal(run_folder(run) / JOURNAL_NAME).start
+    return Path((start.reports if start is not None else None) or "reports")
 
 
 def _state(path) -> str:

@@ -28,10 +28,22 @@ from verirun.locks import calibrator_lock, run_lock
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.procedure.plan import plan
 from verirun.record.build import build_record
+from verirun.record.documents import (
+    AsFound,
+    BenchAsRun,
+    ProcedureAsRun,
+    Renewal,
+    Start,
+    as_journaled,
+    compose,
+)
 from verirun.record.journal import (
     JOURNAL_NAME,
     RECORD_NAME,
     Journal,
+    confirmed_steps,
+    latest_environment,
+    latest_time,
     load_record,
     never_started,
     never_started_text,
@@ -198,10 +210,10 @@ def execute(
 
 def _has_start(run_dir: Path) -> bool:
     try:
-        docs = read_journal(run_dir / JOURNAL_NAME).documents
+        read = read_journal(run_dir / JOURNAL_NAME)
     except RecordError:
         return (run_dir / JOURNAL_NAME).exists() and (run_dir / JOURNAL_NAME).stat().st_size > 0
-    return bool(docs) and docs[0].get("kind") == "start"
+    return read.start is not None
 
 
 def _drive(
@@ -219,10 +231,10 @@ def _drive(
     calibrator,
     profile,
     points,
-    resume: dict | None = None,
+    resume: Start | None = None,
     done: frozenset[int] = frozenset(),
     not_before: str | None = None,
-    renewed: dict | None = None,
+    renewed: Renewal | None = None,
 ) -> Finished:
     """Open the bench, run the engine on ``run_dir``'s journal, and close the run however it ends.
 
@@ -346,30 +358,24 @@ def resumable(run_dir: Path) -> Resumable:
     run_dir = Path(run_dir)
     if never_started(run_dir):
         raise RecordError(never_started_text(run_dir))
-    docs = read_journal(run_dir / JOURNAL_NAME).documents
-    if not docs or docs[0].get("kind") != "start":
+    read = read_journal(run_dir / JOURNAL_NAME)
+    start = read.start
+    if start is None:
         raise RecordError(f"{run_dir}: the journal has no start document; nothing to resume")
-    start = docs[0]
     try:
-        points = len(
-            plan(load_procedure_text(start["procedure"]["text"], start["procedure"]["source"]))
-        )
+        points = len(plan(load_procedure_text(start.procedure.text, start.procedure.source)))
     except VerirunError:
         points = 0
-    environment = start.get("environment", {})
-    for doc in docs:
-        if doc["kind"] == "resume" and doc.get("environment"):
-            environment = doc["environment"]
     return Resumable(
         run_dir=run_dir,
-        uid=start["uid"],
-        serial=start["item"].get("serial"),
-        procedure=f"{start['procedure']['id']} revision {start['procedure']['revision']}",
-        kept=len(confirmed_steps(docs)),
+        uid=start.uid,
+        serial=start.item.serial,
+        procedure=f"{start.procedure.id} revision {start.procedure.revision}",
+        kept=len(confirmed_steps(read.models)),
         points=points,
-        simulated=bool(start["bench"].get("simulated")),
-        reports=Path(start["reports"]) if start.get("reports") else None,
-        environment=environment,
+        simulated=start.bench.simulated,
+        reports=Path(start.reports) if start.reports else None,
+        environment=latest_environment(read.models),
     )
 
 
@@ -437,8 +443,8 @@ def _resume_locked(
 
     journal_path = run_dir / JOURNAL_NAME
     read = read_journal(journal_path)
-    docs = read.documents
-    if not docs or docs[0].get("kind") != "start":
+    docs, start = read.documents, read.start
+    if start is None:
         raise RecordError(f"{run_dir}: the journal has no start document; nothing to resume")
     try:
         record = build_record(docs, str(journal_path))
@@ -452,18 +458,15 @@ def _resume_locked(
             "the run cannot be resumed: its journal no longer reaches what was recorded"
             " from it:\n" + "\n".join(cut)
         )
-    start = docs[0]
     procedure = _same_file(
-        procedure_path, start["procedure"], "procedure", load_procedure, load_procedure_text
+        procedure_path, start.procedure, "procedure", load_procedure, load_procedure_text
     )
-    bench, renewed = _resume_bench(bench_path, start["bench"])
-    if serial is not None and serial != start["item"].get("serial"):
-        raise RecordError(
-            f"{run_dir}: this run is for item {start['item'].get('serial')!r}, not {serial!r}"
-        )
+    bench, renewed = _resume_bench(bench_path, start.bench)
+    if serial is not None and serial != start.item.serial:
+        raise RecordError(f"{run_dir}: this run is for item {start.item.serial!r}, not {serial!r}")
     points = plan(procedure, bench)
     if reports_dir is None:  # where the run started putting its certificate
-        reports_dir = Path(start.get("reports") or "reports")
+        reports_dir = Path(start.reports or "reports")
     if record["run"]["status"] in ("complete", "incomplete"):
         return _finish_closed(run_dir, reports_dir, record, console)
     done = frozenset(row["index"] for row in record["points"] if row["verdict"] != "not-measured")
@@ -475,7 +478,7 @@ def _resume_locked(
         )
     if not pending:
         return _close_without_bench(run_dir, reports_dir, clock=clock, console=console)
-    simulate = bool(start["bench"].get("simulated"))
+    simulate = start.bench.simulated
     profile = (
         calibrator.profile
         if calibrator is not None
@@ -483,14 +486,14 @@ def _resume_locked(
     )
     check_readings(readings, pending, points)
     preflight.check(pending, bench, profile, today=clock.now().date())
-    context = RunContext(
-        lab=start["lab"],
-        customer=start["customer"],
-        item=start["item"],
-        operator=start["operator"],
+    context = RunContext(  # who and what, as the run started (a resume journals no start)
+        lab=as_journaled(start.lab),
+        customer=as_journaled(start.customer),
+        item=as_journaled(start.item),
+        operator=start.operator,
         simulated=simulate,
-        environment=environment if environment is not None else start.get("environment", {}),
-        reports=start.get("reports"),
+        environment=environment if environment is not None else as_journaled(start.environment),
+        reports=start.reports,
     )
     return _drive(
         run_dir=run_dir,
@@ -502,32 +505,15 @@ def _resume_locked(
         reports_dir=reports_dir,
         simulate=simulate,
         clock=clock,
-        uid=start["uid"],
+        uid=start.uid,
         calibrator=calibrator,
         profile=profile,
         points=points,
         resume=start,
         done=done,
-        not_before=latest_time(docs),
+        not_before=latest_time(read.models),
         renewed=renewed,
     )
-
-
-def confirmed_steps(docs: list[dict]) -> frozenset[int]:
-    """Indexes of the steps with a confirmed entry: observed or skipped, and not withdrawn since."""
-    done: set[int] = set()
-    for doc in docs:
-        if doc["kind"] in ("observation", "skip"):
-            done.add(doc["index"])
-        elif doc["kind"] == "withdrawal":
-            done.discard(doc["index"])
-    return frozenset(done)
-
-
-def latest_time(documents: list[dict]) -> str | None:
-    """The latest time among ``documents`` (ISO 8601 UTC text sorts as time does)."""
-    times = [doc["time"] for doc in documents if isinstance(doc.get("time"), str)]
-    return max(times) if times else None
 
 
 def _close_without_bench(run_dir: Path, reports_dir: Path, *, clock, console) -> Finished:
@@ -537,22 +523,18 @@ def _close_without_bench(run_dir: Path, reports_dir: Path, *, clock, console) ->
 
     journal = Journal(run_dir / JOURNAL_NAME)
     try:
-        now = max(
-            iso(clock.now()), latest_time(read_journal(run_dir / JOURNAL_NAME).documents) or ""
-        )
+        now = max(iso(clock.now()), latest_time(read_journal(run_dir / JOURNAL_NAME).models) or "")
         journal.append(
-            {
-                "kind": "resume",
-                "time": now,
-                "identity": None,
-                "pending": 0,
-                "recovered_torn_line": journal.recovered is not None,
-                "recovered_text": journal.recovered,
-            }
+            compose(
+                "resume",
+                time=now,
+                identity=None,
+                pending=0,
+                recovered_torn_line=journal.recovered is not None,
+                recovered_text=journal.recovered,
+            )
         )
-        journal.append(
-            {"kind": "stop", "time": now, "status": "complete", "reason": None, "counts": {}}
-        )
+        journal.append(compose("stop", time=now, status="complete", reason=None, counts={}))
     except BaseException as exc:
         exc.run_dir = run_dir  # type: ignore[attr-defined]
         raise
@@ -588,32 +570,32 @@ def _finish_closed(run_dir: Path, reports_dir: Path, record: dict, console) -> F
 _RENEWABLE = ("calibration_due", "certificate", "traceability")
 
 
-def _resume_bench(path: Path | None, stored: dict) -> tuple[Bench, dict | None]:
+def _resume_bench(path: Path | None, stored: BenchAsRun) -> tuple[Bench, Renewal | None]:
     """The bench to resume on: the run's own, or ``path`` when it is the same file, or the same
     but for the standard's renewed calibration (then also what was renewed, for the journal)."""
     from verirun.register.standards import load_bench as load_with_standard
 
     if path is None:
-        return load_bench_text(stored["text"], stored["source"]), None
+        return load_bench_text(stored.text, stored.source), None
     # A calibrator named by asset takes its standard from the register, as when the run started;
     # the hash compared is then of the bench text with the standard written in, as journaled.
     loaded = load_with_standard(path)
-    if loaded.sha256 == stored["sha256"]:
+    if loaded.sha256 == stored.sha256:
         return loaded, None
-    before = load_bench_text(stored["text"], stored["source"])
+    before = load_bench_text(stored.text, stored.source)
     if _without_renewal(before) != _without_renewal(loaded):
         _same_file(
             path, stored, "bench file", load_with_standard, load_bench_text
         )  # raises, saying why
     cal = loaded.file.calibrator
-    return loaded, {
-        "certificate": cal.certificate,
-        "calibration_due": cal.calibration_due.isoformat(),
-        "traceability": cal.traceability,
-        "bench_sha256": loaded.sha256,
-        "bench_source": loaded.source,
-        "bench_text": loaded.text,
-    }
+    return loaded, Renewal(
+        certificate=cal.certificate,
+        calibration_due=cal.calibration_due.isoformat(),
+        traceability=cal.traceability,
+        bench_sha256=loaded.sha256,
+        bench_source=loaded.source,
+        bench_text=loaded.text,
+    )
 
 
 def _without_renewal(bench: Bench) -> dict:
@@ -622,16 +604,18 @@ def _without_renewal(bench: Bench) -> dict:
     return data
 
 
-def _same_file(path: Path | None, stored: dict, kind: str, load_path, load_text):
+def _same_file(
+    path: Path | None, stored: ProcedureAsRun | BenchAsRun, kind: str, load_path, load_text
+):
     """Load ``path`` and check it is the one the run started with; with no ``path``, the copy
     the journal holds (the file it came from may have been revised since)."""
     if path is None:
-        return load_text(stored["text"], stored["source"])
+        return load_text(stored.text, stored.source)
     loaded = load_path(path)
-    if loaded.sha256 != stored["sha256"]:
+    if loaded.sha256 != stored.sha256:
         raise RecordError(
             f"{path}: this {kind} is not the one the run started with (its SHA-256 is"
-            f" {loaded.sha256[:12]}..., the run's is {stored['sha256'][:12]}...); resume needs"
+            f" {loaded.sha256[:12]}..., the run's is {stored.sha256[:12]}...); resume needs"
             f" the same {kind}"
         )
     return loaded
@@ -656,7 +640,7 @@ def as_found_of(
     customer: dict | None = None,
     others: list[Path] = (),
     simulated: bool | None = None,
-) -> dict:
+) -> AsFound:
     """The as-found results an as-left run carries, from the verified earlier run ``run``.
 
     Raises
@@ -687,14 +671,14 @@ def as_found_of(
         check_as_found(
             record, run=Path(run), customer=customer, others=list(others), simulated=simulated
         )
-    return {
-        "run": record["run"]["uid"],
-        "certificate": certificate_number(record),
-        "date": record["run"]["started"][:10],
-        "adjustment": adjustment.strip(),
-        "points": record["points"],
-        "summary": record["summary"],
-    }
+    return AsFound(
+        run=record["run"]["uid"],
+        certificate=certificate_number(record),
+        date=record["run"]["started"][:10],
+        adjustment=adjustment.strip(),
+        points=record["points"],
+        summary=record["summary"],
+    )
 
 
 @contextlib.contextmanager

@@ -21,7 +21,18 @@ from verirun.interrupts import deferred_signals, stop_if_asked
 from verirun.procedure.load import Procedure
 from verirun.procedure.plan import TestPoint, plan
 from verirun.readings import Entry, OperatorSilent, ReadingSource
-from verirun.record.documents import JOURNAL_FORMAT
+from verirun.record.documents import (
+    JOURNAL_FORMAT,
+    Applied,
+    AsFound,
+    BenchAsRun,
+    CalibratorAsRun,
+    ProcedureAsRun,
+    Renewal,
+    Software,
+    Start,
+    compose,
+)
 from verirun.record.journal import Journal
 
 
@@ -36,7 +47,7 @@ class RunContext:
     simulated: bool
     environment: dict = field(default_factory=dict)
     #: For an as-left pass after an adjustment: the as-found run's results (see as_found_of).
-    as_found: dict | None = None
+    as_found: AsFound | None = None
     #: The folder the run's certificate goes to (written in the start document, so that a
     #: resumed run's certificate goes there too).
     reports: str | None = None
@@ -57,45 +68,45 @@ def start_document(
 ) -> dict[str, Any]:
     """The first document of a run's journal: everything needed to replay and certify it."""
     cal = bench.file.calibrator
-    return {
-        "kind": "start",
-        "uid": uid,
-        "time": time,
-        "journal_format": JOURNAL_FORMAT,
-        "software": {"name": "verirun", "version": __version__},
-        "procedure": {
-            "id": procedure.id,
-            "title": procedure.file.procedure.title,
-            "revision": procedure.revision,
-            "sha256": procedure.sha256,
-            "source": procedure.source,
-            "text": procedure.text,
-        },
-        "bench": {
-            "id": bench.file.bench.id,
-            "location": bench.file.bench.location,
-            "sha256": bench.sha256,
-            "source": bench.source,
-            "text": bench.text,
-            "simulated": context.simulated,
-            "calibrator": {
-                "description": cal.description,
-                "asset": cal.asset,
-                "identity": identity,
-                "resource": cal.resource,
-                "certificate": cal.certificate,
-                "calibration_due": cal.calibration_due.isoformat(),
-                "traceability": cal.traceability,
-            },
-        },
-        "lab": context.lab,
-        "customer": context.customer,
-        "item": context.item,
-        "operator": context.operator,
-        "environment": context.environment,
-        **({"as_found": context.as_found} if context.as_found else {}),
+    return compose(
+        "start",
+        time=time,
+        uid=uid,
+        journal_format=JOURNAL_FORMAT,
+        software=Software(name="verirun", version=__version__),
+        procedure=ProcedureAsRun(
+            id=procedure.id,
+            title=procedure.file.procedure.title,
+            revision=procedure.revision,
+            sha256=procedure.sha256,
+            source=procedure.source,
+            text=procedure.text,
+        ),
+        bench=BenchAsRun(
+            id=bench.file.bench.id,
+            location=bench.file.bench.location,
+            sha256=bench.sha256,
+            source=bench.source,
+            text=bench.text,
+            simulated=context.simulated,
+            calibrator=CalibratorAsRun(
+                description=cal.description,
+                asset=cal.asset,
+                identity=identity,
+                resource=cal.resource,
+                certificate=cal.certificate,
+                calibration_due=cal.calibration_due.isoformat(),
+                traceability=cal.traceability,
+            ),
+        ),
+        lab=context.lab,
+        customer=context.customer,
+        item=context.item,
+        operator=context.operator,
+        environment=context.environment,
+        **({"as_found": context.as_found} if context.as_found is not None else {}),
         **({"reports": context.reports} if context.reports else {}),
-    }
+    )
 
 
 class Engine:
@@ -155,11 +166,11 @@ class Engine:
         context: RunContext,
         *,
         uid: str | None = None,
-        resume: dict | None = None,
+        resume: Start | None = None,
         done: frozenset[int] = frozenset(),
         points: list[TestPoint] | None = None,
         not_before: str | None = None,
-        renewed: dict | None = None,
+        renewed: Renewal | None = None,
     ) -> Outcome:
         """Run every point of the plan not in ``done``; return how the run ended.
 
@@ -189,9 +200,7 @@ class Engine:
         uid = uid or uuid_mod.uuid4().hex
         self._latest = not_before
         #: How points are labelled in this journal (a resumed run keeps the format it began in).
-        self.journal_format = (
-            resume.get("journal_format", 1) if resume is not None else JOURNAL_FORMAT
-        )
+        self.journal_format = (resume.journal_format or 1) if resume is not None else JOURNAL_FORMAT
         points = [
             p
             for p in (points if points is not None else plan(self.procedure, self.bench))
@@ -220,16 +229,16 @@ class Engine:
                 if resume is not None:
                     self._check_same_calibrator(identity, resume)
                     self.journal.append(
-                        {
-                            "kind": "resume",
-                            "time": self._now(),
-                            "identity": identity,
-                            "pending": len(points),
-                            "environment": context.environment,
-                            "recovered_torn_line": self.journal.recovered is not None,
-                            "recovered_text": self.journal.recovered,
+                        compose(
+                            "resume",
+                            time=self._now(),
+                            identity=identity,
+                            pending=len(points),
+                            environment=context.environment,
+                            recovered_torn_line=self.journal.recovered is not None,
+                            recovered_text=self.journal.recovered,
                             **({"standard_renewed": renewed} if renewed else {}),
-                        }
+                        )
                     )
                 self._clear_stale_errors()
                 self.console.cautions()
@@ -256,13 +265,13 @@ class Engine:
                 try:
                     with deferred_signals():
                         self.journal.append(
-                            {
-                                "kind": "stop",
-                                "time": self._now(),
-                                "status": status,
-                                "reason": reason,
-                                "counts": dict(self.counts),
-                            }
+                            compose(
+                                "stop",
+                                time=self._now(),
+                                status=status,
+                                reason=reason,
+                                counts=dict(self.counts),
+                            )
                         )
                 except StorageError:
                     # The disk that refused the run refuses its stop too; without one the run is
@@ -280,15 +289,15 @@ class Engine:
             if not self._behind:  # journaled once, until the clock has caught up again
                 self._behind = True
                 self.journal.append(
-                    {
-                        "kind": "note",
-                        "time": latest,
-                        "point": None,
-                        "clock_went_back": text,
-                        "text": f"the computer's clock went back, to {text}, after {latest} had"
+                    compose(
+                        "note",
+                        time=latest,
+                        point=None,
+                        clock_went_back=text,
+                        text=f"the computer's clock went back, to {text}, after {latest} had"
                         " been journaled; the times that follow are kept from going"
                         " backwards",
-                    }
+                    )
                 )
             return latest
         self._latest, self._behind = text, False
@@ -337,8 +346,8 @@ class Engine:
             )
         return identity, None
 
-    def _check_same_calibrator(self, identity: str, resume: dict) -> None:
-        started_with = resume["bench"]["calibrator"]["identity"]
+    def _check_same_calibrator(self, identity: str, resume: Start) -> None:
+        started_with = resume.bench.calibrator.identity
         if identity != started_with:
             raise BenchError(
                 "the calibrator is not the one this run started with, so the run cannot be"
@@ -359,12 +368,12 @@ class Engine:
         if stale:
             text = "; ".join(f"{code} {message}".strip() for code, message in stale)
             self.journal.append(
-                {
-                    "kind": "note",
-                    "time": self._now(),
-                    "point": None,
-                    "text": f"errors left in the calibrator's queue before the run, cleared: {text}",
-                }
+                compose(
+                    "note",
+                    time=self._now(),
+                    point=None,
+                    text=f"errors left in the calibrator's queue before the run, cleared: {text}",
+                )
             )
 
     def _step_name(self, point: TestPoint) -> str:
@@ -403,13 +412,13 @@ class Engine:
                     # cannot be made safe the reading is still kept.
                     for typed in entry.replaced if entry is not None else ():
                         self.journal.append(
-                            {
-                                "kind": "note",
-                                "time": self._now(),
-                                "point": self._label(point),
-                                "text": f"reading {typed!r} asked about as far from the nominal"
+                            compose(
+                                "note",
+                                time=self._now(),
+                                point=self._label(point),
+                                text=f"reading {typed!r} asked about as far from the nominal"
                                 f" and not kept; the operator typed {entry.typed!r}",
-                            }
+                            )
                         )
                     if entry is not None and entry.kind in ("reading", "skip", "abort"):
                         self._journal_entry(point, entry)
@@ -450,14 +459,14 @@ class Engine:
             return False
         last, entry = self._taken.pop()
         self.journal.append(
-            {
-                "kind": "withdrawal",
-                "time": self._now(),
-                "point": self._label(last),
-                "index": last.index,
-                "typed": entry.typed,
-                "reason": "withdrawn by the operator (undo)",
-            }
+            compose(
+                "withdrawal",
+                time=self._now(),
+                point=self._label(last),
+                index=last.index,
+                typed=entry.typed,
+                reason="withdrawn by the operator (undo)",
+            )
         )
         verdict = self.results.pop(last.index).verdict if last.index in self.results else "skipped"
         self.counts[verdict] -= 1
@@ -472,23 +481,23 @@ class Engine:
             self.journal.append(self._observation(point, entry))
         elif entry.kind == "skip":
             self.journal.append(
-                {
-                    "kind": "skip",
-                    "time": self._now(),
-                    "point": self._label(point),
-                    "index": point.index,
-                    "reason": entry.text,
-                    "typed": entry.typed,
-                }
+                compose(
+                    "skip",
+                    time=self._now(),
+                    point=self._label(point),
+                    index=point.index,
+                    reason=entry.text,
+                    typed=entry.typed,
+                )
             )
         else:
             self.journal.append(
-                {
-                    "kind": "note",
-                    "time": self._now(),
-                    "point": self._label(point),
-                    "text": "operator aborted the run" + (f": {entry.text}" if entry.text else ""),
-                }
+                compose(
+                    "note",
+                    time=self._now(),
+                    point=self._label(point),
+                    text="operator aborted the run" + (f": {entry.text}" if entry.text else ""),
+                )
             )
 
     def _after_silence(self, point: TestPoint) -> None:
@@ -496,12 +505,12 @@ class Engine:
         so, journal it, and apply the stimulus again only when the operator asks."""
         limit = f"{self.bench.idle_standby_s:g} s"
         self.journal.append(
-            {
-                "kind": "note",
-                "time": iso(self.clock.now()),
-                "point": point.key,
-                "text": f"output put in standby: no input from the operator for {limit}",
-            }
+            compose(
+                "note",
+                time=iso(self.clock.now()),
+                point=point.key,
+                text=f"output put in standby: no input from the operator for {limit}",
+            )
         )
         self.console.say("")
         self.console.warn(
@@ -517,12 +526,12 @@ class Engine:
                 " to standby; the run can be resumed"
             )
         self.journal.append(
-            {
-                "kind": "note",
-                "time": iso(self.clock.now()),
-                "point": point.key,
-                "text": "stimulus applied again at the operator's request after the standby",
-            }
+            compose(
+                "note",
+                time=iso(self.clock.now()),
+                point=point.key,
+                text="stimulus applied again at the operator's request after the standby",
+            )
         )
 
     def _take(self, point: TestPoint) -> Entry:
@@ -538,28 +547,28 @@ class Engine:
             if entry.kind != "note":
                 return entry
             self.journal.append(
-                {
-                    "kind": "note",
-                    "time": self._now(),
-                    "point": self._label(point),
-                    "text": entry.text,
-                    "by": "operator",
-                }
+                compose(
+                    "note",
+                    time=self._now(),
+                    point=self._label(point),
+                    text=entry.text,
+                    by="operator",
+                )
             )
             self.console.say("  note recorded")
 
     def _observation(self, point: TestPoint, entry: Entry) -> dict:
-        return {
-            "kind": "observation",
-            "time": self._now(),
-            "point": self._label(point),
-            "index": point.index,
-            "range": point.range.id,
-            "function": point.function,
-            "applied": {"value": point.nominal, "frequency": point.frequency},
-            "typed": entry.typed,
-            "reading": entry.value,
-        }
+        return compose(
+            "observation",
+            time=self._now(),
+            point=self._label(point),
+            index=point.index,
+            range=point.range.id,
+            function=point.function,
+            applied=Applied(value=point.nominal, frequency=point.frequency),
+            typed=entry.typed,
+            reading=entry.value,
+        )
 
     def _check_hazard(self, point: TestPoint) -> str | None:
         """Ask (or check the bench's permission) before a hazardous switch-on; ``"skip"`` when
@@ -591,11 +600,11 @@ class Engine:
                 " (safety: scripted-hazardous: allow)"
             )
         self.journal.append(
-            {
-                "kind": "note",
-                "time": self._now(),
-                "point": self._label(point),
-                "text": f"hazardous output {point.stimulus_text()} {how}",
-                "hazardous": True,
-            }
+            compose(
+                "note",
+                time=self._now(),
+                point=self._label(point),
+                text=f"hazardous output {point.stimulus_text()} {how}",
+                hazardous=True,
+            )
         )

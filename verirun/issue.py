@@ -15,6 +15,7 @@ from verirun.clock import SystemClock, iso
 from verirun.errors import RecordError
 from verirun.lab import people_who_issue
 from verirun.locks import run_lock
+from verirun.record.documents import AsFoundRevised, Correction, Issue, compose
 from verirun.record.journal import JOURNAL_NAME, Journal, load_record, read_journal
 from verirun.record.verify import run_folder, verified_record
 
@@ -97,14 +98,14 @@ def _issue(folder: Path, *, by: str, lab: dict | None, clock) -> dict:
     # A full disk or a folder made read-only is a StorageError, said with what to free or fix.
     with Journal(folder / JOURNAL_NAME) as journal:
         journal.append(
-            {
-                "kind": "issue",
-                "time": iso(clock.now()),
-                "by": person["name"],
-                "role": person["role"],
-                "revision": revision,
-                "certificate": number,
-            }
+            compose(
+                "issue",
+                time=iso(clock.now()),
+                by=person["name"],
+                role=person["role"],
+                revision=revision,
+                certificate=number,
+            )
         )
     return close_run(folder)
 
@@ -141,26 +142,27 @@ def earlier_revisions(path: str | Path) -> list[tuple[dict, dict]]:
     from verirun.record.build import build_record
 
     folder = run_folder(path)
-    docs = read_journal(folder / JOURNAL_NAME).documents
-    if not any(doc["kind"] in ("correction", "as-found") for doc in docs):
+    read = read_journal(folder / JOURNAL_NAME)
+    docs = read.documents
+    if not any(isinstance(doc, _NEW_REVISION) for doc in read.models):
         return []  # one revision: nothing replaced (and nothing to verify here)
     verified_record(folder)
     out = []
-    for position, doc in enumerate(docs):
-        if doc["kind"] in ("correction", "as-found"):
+    for position, doc in enumerate(read.models):
+        if isinstance(doc, _NEW_REVISION):
             earlier = build_record(docs[:position], str(folder / JOURNAL_NAME))
             later = build_record(docs[: position + 1], str(folder / JOURNAL_NAME))
             out.append(
                 (
                     earlier,
-                    {
-                        "number": certificate_number(later),
-                        "time": doc["time"],
-                        "reason": doc["reason"],
-                    },
+                    {"number": certificate_number(later), "time": doc.time, "reason": doc.reason},
                 )
             )
     return out
+
+
+#: The documents that begin a new revision of a run's record.
+_NEW_REVISION = (Correction, AsFoundRevised)
 
 
 def earlier_states(
@@ -174,7 +176,7 @@ def earlier_states(
     from verirun.record.build import build_record
 
     folder = run_folder(path)
-    docs = read_journal(folder / JOURNAL_NAME).documents
+    read = read_journal(folder / JOURNAL_NAME)
     revision = record["run"].get("revision", 1)
     out = []
     if replaced_by is not None:
@@ -184,9 +186,9 @@ def earlier_states(
         )  # as stored: a record of an earlier format has its own figures
         if kept.exists():
             out.append(render_html(load_record(kept)).encode("utf-8"))
-    for position, doc in enumerate(docs):
-        if doc["kind"] == "issue" and doc.get("revision") == revision:
-            draft = build_record(docs[:position], str(folder / JOURNAL_NAME))
+    for position, doc in enumerate(read.models):
+        if isinstance(doc, Issue) and doc.revision == revision:
+            draft = build_record(read.documents[:position], str(folder / JOURNAL_NAME))
             out.append(render_html(draft).encode("utf-8"))
     return tuple(out)
 

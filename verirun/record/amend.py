@@ -14,13 +14,14 @@ from pathlib import Path
 from verirun import storage
 from verirun.bench.config import load_bench_text
 from verirun.clock import SystemClock, iso
-from verirun.conduct import close_run, latest_time
+from verirun.conduct import close_run
 from verirun.errors import RecordError, UnitError
 from verirun.locks import run_lock
 from verirun.procedure.load import load_procedure_text
 from verirun.procedure.plan import TestPoint, plan
 from verirun.readings import parse_entry
-from verirun.record.journal import JOURNAL_NAME, RECORD_NAME, Journal, read_journal
+from verirun.record.documents import compose
+from verirun.record.journal import JOURNAL_NAME, RECORD_NAME, Journal, latest_time, read_journal
 from verirun.record.verify import run_folder, verified_record
 from verirun.units import parse_value
 
@@ -105,11 +106,11 @@ def _amend_locked(
         )
     if not reason.strip():
         raise RecordError("give the reason for the correction (it is printed on the certificate)")
-    docs = read_journal(folder / JOURNAL_NAME).documents
-    start = docs[0]
+    read = read_journal(folder / JOURNAL_NAME)
+    start = read.start  # verified_record has read it: the journal begins with a start
     points = plan(
-        load_procedure_text(start["procedure"]["text"], start["procedure"]["source"]),
-        load_bench_text(start["bench"]["text"], start["bench"]["source"]),
+        load_procedure_text(start.procedure.text, start.procedure.source),
+        load_bench_text(start.bench.text, start.bench.source),
     )
     target = find_point(points, point)
     try:
@@ -122,21 +123,21 @@ def _amend_locked(
     kept = folder / f"record.r{revision}.json"
     if not kept.exists():
         storage.write_new(kept, (folder / RECORD_NAME).read_bytes())
-    journal_format = start.get("journal_format", 1)
+    journal_format = start.journal_format or 1
     with Journal(folder / JOURNAL_NAME) as journal:
         # Never dated before what the journal already holds (a clock set back).
-        now = max(iso(clock.now()), latest_time(docs) or "")
+        now = max(iso(clock.now()), latest_time(read.models) or "")
         journal.append(
-            {
-                "kind": "correction",
-                "time": now,
-                "point": target.key_in(journal_format),
-                "index": target.index,
-                "typed": entry.typed,
-                "reading": entry.value,
-                "reason": reason.strip(),
-                "operator": operator,
-            }
+            compose(
+                "correction",
+                time=now,
+                point=target.key_in(journal_format),
+                index=target.index,
+                typed=entry.typed,
+                reading=entry.value,
+                reason=reason.strip(),
+                operator=operator,
+            )
         )
     from verirun.register.closing import after_close
 

@@ -23,10 +23,12 @@ certificate-number
             the lab register gave the complete run its certificate number
 ========== ==================================================================================
 
-Documents are validated when they are read back (:func:`document_problem`, after the strict
-parse of :func:`parse_json`), so a damaged or crafted journal is reported by file and line
-before anything reads it; the JSON Schema of the union (:func:`journal_schema`) ships with the
-package as ``schema/journal.schema.json``.
+Documents are made here (:func:`compose`, validated against their model as they are made) and
+validated again when they are read back (:func:`read_document`, after the strict parse of
+:func:`parse_json`), so a damaged or crafted journal is reported by file and line before
+anything reads it. What is read back is these models, frozen: code outside this package reads a
+document by attribute (``start.procedure.text``), never by key. The JSON Schema of the union
+(:func:`journal_schema`) ships with the package as ``schema/journal.schema.json``.
 
 Journal formats: 3 marks an operator's note ``by: operator``, so the run's internal log (every
 other note) is kept apart from what the customer reads; 2 (``journal_format`` in the start
@@ -397,27 +399,78 @@ def validate_document(data: Any) -> BaseModel:
     return _ADAPTER.validate_python(data)
 
 
-def document_problem(data: Any) -> str | None:
-    """What is wrong with one parsed journal line, in one line (``None`` when it is a document
-    of one of the kinds described here)."""
+def read_document(data: Any) -> BaseModel:
+    """The document model of one parsed journal line, validated once.
+
+    Raises
+    ------
+    ValueError
+        Saying in one line what is wrong, when it is not a document of one of the kinds
+        described here.
+    """
     if not isinstance(data, dict):
-        return "not a journal document (not a JSON object)"
+        raise ValueError("not a journal document (not a JSON object)")
     kind = data.get("kind")
-    if kind not in _KINDS:
-        return f"unknown document kind {kind!r}"
+    if kind not in KINDS:
+        raise ValueError(f"unknown document kind {kind!r}")
     try:
-        validate_document(data)
+        return validate_document(data)
     except ValidationError as exc:
         error = exc.errors()[0]
         where = ".".join(str(part) for part in error["loc"][1:]) or kind
-        return f"{kind}: field {where}: {error['msg']}" + (
-            f" (got {_shown(error['input'])})" if error["type"] != "missing" else ""
-        )
+        raise ValueError(
+            f"{kind}: field {where}: {error['msg']}"
+            + (f" (got {_shown(error['input'])})" if error["type"] != "missing" else "")
+        ) from None
+
+
+def document_problem(data: Any) -> str | None:
+    """What is wrong with one parsed journal line, in one line (``None`` when it is a document
+    of one of the kinds described here)."""
+    try:
+        read_document(data)
+    except ValueError as exc:
+        return str(exc)
     return None
 
 
+def as_journaled(part: BaseModel) -> dict:
+    """A document, or a part of one, as the journal holds it: the fields it was made or read
+    with, and no others (an optional field left out stays out, rather than becoming null)."""
+    return part.model_dump(exclude_unset=True)
+
+
+def compose(kind: str, *, time: str, **fields: Any) -> dict:
+    """A new document of ``kind``, as :meth:`verirun.record.journal.Journal.append` takes it.
+
+    The one place documents are made: ``time`` is the caller's (from its clock), the keys are
+    the fields given and no others (an optional field not given stays absent, never null), a
+    part may be given as its model (:class:`Environment`, :class:`Renewal`...), and the whole is
+    validated against the kind's model here, as it would be when read back (the journal adds
+    ``seq`` and ``prev``).
+
+    Raises
+    ------
+    ValueError
+        If the fields do not make a document of that kind (a bug in the caller).
+    """
+    doc = {
+        "kind": kind,
+        "time": time,
+        **{
+            name: as_journaled(value) if isinstance(value, BaseModel) else value
+            for name, value in fields.items()
+        },
+    }
+    try:
+        read_document({**doc, "seq": 0, "prev": "0" * 64})
+    except ValueError as exc:
+        raise ValueError(f"not a document verirun writes: {exc}") from None
+    return doc
+
+
 #: Every document kind, from the models (so a new kind cannot be left out here).
-_KINDS = tuple(
+KINDS = tuple(
     get_args(model.model_fields["kind"].annotation)[0] for model in get_args(get_args(Document)[0])
 )
 

@@ -3,8 +3,12 @@
 The journal is append-only JSON Lines: one document per line, of the kinds
 :mod:`verirun.record.documents` defines (and validates each against as it is read back), each line
 written whole and fsynced before the run goes on, each carrying its sequence number and the
-SHA-256 of the line before it so that an edit, a gap or a reordering shows. The run record
-(built by :mod:`verirun.record.build`) is written and read here too.
+SHA-256 of the line before it so that an edit, a gap or a reordering shows. A journal is read
+back (:func:`read_journal`) both as its parsed lines, which the chain and the record are made
+from, and as the documents' frozen models, which everything outside this package reads; the few
+questions asked of a run's documents (its start, its confirmed steps, its latest time and
+conditions) are answered here. The run record (built by :mod:`verirun.record.build`) is written
+and read here too.
 """
 
 from __future__ import annotations
@@ -15,7 +19,7 @@ import json
 import math
 import os
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Iterable
 
@@ -23,7 +27,17 @@ from verirun import storage
 from verirun.errors import RecordError
 from verirun.interrupts import deferred_signals
 from verirun.locks import RUN_LOCK_NAME
-from verirun.record.documents import document_problem, parse_json
+from verirun.record.documents import (
+    Document,
+    Observation,
+    Resume,
+    Skip,
+    Start,
+    Withdrawal,
+    as_journaled,
+    parse_json,
+    read_document,
+)
 
 #: Version of the run record layout. 3: rows say whether the reading lies within tolerance and
 #: carry its coverage interval and every number as printed; U is the reported U (GUM 7.2.6);
@@ -136,7 +150,8 @@ class Journal:
                 os.fsync(fh.fileno())
 
     def append(self, doc: dict) -> dict:
-        """Write ``doc`` as one line with its sequence number and chain hash; fsync; return it.
+        """Write ``doc`` (made by :func:`verirun.record.documents.compose`) as one line with its
+        sequence number and chain hash; fsync; return it.
 
         A critical section (:mod:`verirun.interrupts`): a signal arriving meanwhile acts only once
         the line is on disk and the chain has moved past it, so no two lines share a number."""
@@ -183,22 +198,35 @@ class Journal:
         self.close()
 
 
-@dataclass
+@dataclass(frozen=True)
 class JournalRead:
-    """The documents of a journal, and whether a torn last line was dropped."""
+    """The documents of a journal, and whether a torn last line was dropped.
+
+    ``documents`` are the lines as parsed (what the chain hashes and the record is built from);
+    ``models`` the same documents as their validated, frozen models (:mod:`verirun.record.documents`),
+    for reading by attribute."""
 
     documents: list[dict]
+    models: tuple[Document, ...] = ()
     torn_line: str | None = None
-    problems: list[str] = field(default_factory=list)
+
+    @property
+    def start(self) -> Start | None:
+        """The start document, when the journal begins with one."""
+        first = self.models[0] if self.models else None
+        return first if isinstance(first, Start) else None
 
 
 def read_journal(path: str | Path) -> JournalRead:
     """Read a journal; a torn (unterminated, unparsable) last line is dropped and reported.
 
+    Every line is validated against its kind's model once, here; the models are kept.
+
     Raises
     ------
     RecordError
-        If the file is missing or a line other than the last is not a JSON document.
+        If the file is missing or a line other than the last is not a JSON document, or not
+        a document verirun writes.
     """
     path = Path(path)
     try:
@@ -216,17 +244,59 @@ def read_journal(path: str | Path) -> JournalRead:
             json.loads(lines[-1])
         except ValueError:
             torn = lines.pop()
-    docs = []
+    docs, models = [], []
     for number, line in enumerate(lines, start=1):
         try:
             doc = parse_json(line)
         except ValueError as exc:
             raise RecordError(f"{path}:{number}: not a journal document ({exc})") from None
-        problem = document_problem(doc)
-        if problem is not None:
-            raise RecordError(f"{path}:{number}: not a journal document verirun writes: {problem}")
+        try:
+            models.append(read_document(doc))
+        except ValueError as exc:
+            raise RecordError(
+                f"{path}:{number}: not a journal document verirun writes: {exc}"
+            ) from None
         docs.append(doc)
-    return JournalRead(documents=docs, torn_line=torn)
+    return JournalRead(documents=docs, models=tuple(models), torn_line=torn)
+
+
+def read_start(path: str | Path) -> Start | None:
+    """The start document of the journal at ``path``, from its first line alone (``None`` when
+    the file cannot be read or does not begin with a start document verirun writes)."""
+    try:
+        with open(path, encoding="utf-8") as fh:
+            first = read_document(parse_json(fh.readline()))
+    except (OSError, ValueError):  # UnicodeDecodeError is a ValueError too
+        return None
+    return first if isinstance(first, Start) else None
+
+
+def confirmed_steps(documents: Iterable[Document]) -> frozenset[int]:
+    """Indexes of the steps with a confirmed entry: observed or skipped, and not withdrawn since."""
+    done: set[int] = set()
+    for doc in documents:
+        if isinstance(doc, (Observation, Skip)):
+            done.add(doc.index)
+        elif isinstance(doc, Withdrawal):
+            done.discard(doc.index)
+    return frozenset(done)
+
+
+def latest_time(documents: Iterable[Document]) -> str | None:
+    """The latest time among ``documents`` (ISO 8601 UTC text sorts as time does)."""
+    return max((doc.time for doc in documents), default=None)
+
+
+def latest_environment(documents: Iterable[Document]) -> dict:
+    """The conditions last journaled, as journaled: the start's, or the latest resume's that
+    gave any (empty when none did)."""
+    environment: dict = {}
+    for doc in documents:
+        if isinstance(doc, (Start, Resume)) and doc.environment is not None:
+            given = as_journaled(doc.environment)
+            if given or isinstance(doc, Start):
+                environment = given
+    return environment
 
 
 def verify_chain(documents: Iterable[dict], source: str = "journal") -> list[str]:

@@ -14,6 +14,7 @@ import json
 from pathlib import Path
 
 from verirun.errors import RecordError
+from verirun.record.documents import compose
 from verirun.record.journal import JOURNAL_NAME, Journal
 
 #: The file in a run folder that says its latest closing is not yet in the register.
@@ -84,12 +85,12 @@ def file_run(register, run_dir: Path, record: dict) -> dict:
         number = allocate_number(register, record)
         with Journal(run_dir / JOURNAL_NAME) as journal:
             journal.append(
-                {
-                    "kind": NUMBER_KIND,
-                    "time": iso(SystemClock().now()),
-                    "number": number,
-                    "register_url": register.name,
-                }
+                compose(
+                    NUMBER_KIND,
+                    time=iso(SystemClock().now()),
+                    number=number,
+                    register_url=register.name,
+                )
             )
         from verirun.conduct import close_run
 
