@@ -27,7 +27,7 @@ from verirun.metrology.exact import as_written
 from verirun.procedure.load import load_procedure_text
 from verirun.procedure.plan import plan
 
-DATA = Path(__file__).resolve().parent / "data"
+DATA = Path(__file__).resolve().parents[1] / "data"
 RULES = ["simple", "guarded", "non-binary", "risk"]
 LABELS = {
     "PASS": "pass",

@@ -290,7 +290,12 @@ class TestStoppedBeforeTheStart:
         )
         args = run_args(tmp_path, bench=bench)
         args.remove("--simulate")
-        args += ["--lab", Path(__file__).parent / "data" / "lab-test.yaml", "--condition", "as new"]
+        args += [
+            "--lab",
+            Path(__file__).resolve().parents[1] / "data" / "lab-test.yaml",
+            "--condition",
+            "as new",
+        ]
         code = cli(*args)
         err = capsys.readouterr().err
         assert code == 3, err

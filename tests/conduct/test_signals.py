@@ -41,7 +41,7 @@ from verirun.record import journal as record_mod
 from verirun.record.journal import Journal, read_journal, verify_chain
 from verirun.record.verify import verified_record
 
-EDGE = Path(__file__).resolve().parent / "data" / "edge"
+EDGE = Path(__file__).resolve().parents[1] / "data" / "edge"
 PROCEDURE, BENCH, READINGS = EDGE / "dcv-small.yaml", EDGE / "bench.yaml", EDGE / "readings.csv"
 LAB = EDGE / "lab.yaml"
 #: The standby and its read-back in the scpi-generic profile: off, the error check, the state query.

@@ -32,7 +32,7 @@ from verirun.lab import load_lab
 from verirun.procedure.load import load_procedure_text
 from verirun.record.journal import read_journal
 
-DATA = Path(__file__).resolve().parent / "data"
+DATA = Path(__file__).resolve().parents[1] / "data"
 
 METER = textwrap.dedent("""\
     format: 1
@@ -135,7 +135,7 @@ def fits_the_journal_schema(docs):
 
     schema = json.loads(
         (
-            Path(__file__).resolve().parent.parent / "verirun" / "schema" / "journal.schema.json"
+            Path(__file__).resolve().parents[2] / "verirun" / "schema" / "journal.schema.json"
         ).read_text(encoding="utf-8")
     )
     for doc in docs:

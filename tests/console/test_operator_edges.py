@@ -29,7 +29,7 @@ from verirun.record.documents import validate_document
 from verirun.record.journal import read_journal, verify_chain
 from verirun.units import MAX_QUANTITY_LENGTH, parse_quantity, split_quantity
 
-EDGE = Path(__file__).resolve().parent / "data" / "edge"
+EDGE = Path(__file__).resolve().parents[1] / "data" / "edge"
 PROCEDURE, BENCH, READINGS = EDGE / "dcv-small.yaml", EDGE / "bench.yaml", EDGE / "readings.csv"
 LAB = EDGE / "lab.yaml"
 #: Stands for "the operator typed nothing before the time limit" in a Typist's lines.

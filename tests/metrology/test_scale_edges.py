@@ -20,7 +20,7 @@ from verirun.procedure.load import load_procedure_text
 from verirun.procedure.plan import plan
 from verirun.readings import ScriptedReadings, parse_entry
 
-DATA = Path(__file__).resolve().parent / "data"
+DATA = Path(__file__).resolve().parents[1] / "data"
 
 OHMS = textwrap.dedent("""\
     format: 1

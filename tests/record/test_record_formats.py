@@ -8,7 +8,7 @@ from pathlib import Path
 
 from verirun.record.verify import problems
 
-STORED = Path(__file__).resolve().parent / "data" / "stored-runs" / "format1-guarded"
+STORED = Path(__file__).resolve().parents[1] / "data" / "stored-runs" / "format1-guarded"
 
 
 def _copy(tmp_path: Path) -> Path:
@@ -57,7 +57,7 @@ class TestCurrentFormat:
 
         from verirun.cli import main
 
-        data = Path(__file__).resolve().parent / "data"
+        data = Path(__file__).resolve().parents[1] / "data"
         readings = tmp_path / "r.csv"
         with open(readings, "w", newline="") as fh:
             csv.writer(fh).writerows(

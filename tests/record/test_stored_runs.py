@@ -26,7 +26,7 @@ from verirun.record.build import build_record
 from verirun.record.journal import read_journal
 from verirun.record.verify import verified_record
 
-STORED = Path(__file__).resolve().parent / "data" / "stored-runs"
+STORED = Path(__file__).resolve().parents[1] / "data" / "stored-runs"
 RUNS = sorted(path for path in STORED.iterdir() if (path / "journal.jsonl").is_file())
 STORED_TEMPLATE_VERSION = "1"
 
