@@ -13,6 +13,7 @@ from runkit import (
     documents,
     only_run,
     readings_file,
+    rechained,
     record,
     run_args,
     run_until_death,
@@ -128,21 +129,15 @@ class TestKilledAtTheEnd:
         assert any(p.name.endswith("-R2.html") for p in (tmp_path / "reports").glob("*.html"))
         assert problems(run_dir, reports=tmp_path / "reports") == []
 
-    def test_resume_closes_a_run_stopped_by_a_signal_after_its_last_reading(self, tmp_path):
+    def test_resume_closes_a_run_stopped_by_a_signal_after_its_last_reading(
+        self, tmp_path, make_run
+    ):
         """SIGTERM (here its KeyboardInterrupt) just after the last reading is journaled stops the
         run as aborted with every step measured; resume closes it with nothing measured again."""
         import datetime as dt
 
-        from runkit import BENCH, PROCEDURE, STEPS
-
-        from verirun.bench.config import load_bench
         from verirun.clock import VirtualClock
-        from verirun.conduct import execute
         from verirun.console import QuietConsole
-        from verirun.engine import RunContext
-        from verirun.lab import load_lab
-        from verirun.procedure.load import load_procedure
-        from verirun.readings import ScriptedReadings
 
         class TerminatedAfterLast(QuietConsole):
             def result(self, point, entry, result):
@@ -150,23 +145,11 @@ class TestKilledAtTheEnd:
                     raise KeyboardInterrupt("terminated (SIGTERM)")
                 return super().result(point, entry, result)
 
-        context = RunContext(
-            lab=load_lab(STEPS / "lab.yaml").lab.model_dump(mode="json"),
-            customer={"name": "C", "address": []},
-            item={"serial": "TERM-1"},
-            operator="tester",
-            simulated=True,
-        )
         with pytest.raises(KeyboardInterrupt) as caught:
-            execute(
-                procedure=load_procedure(PROCEDURE),
-                bench=load_bench(BENCH),
-                context=context,
-                readings=ScriptedReadings(READINGS),
+            make_run(
                 console=TerminatedAfterLast(),
-                runs_dir=tmp_path / "runs",
-                reports_dir=tmp_path / "reports",
-                simulate=True,
+                item="TERM-1",
+                operator="tester",
                 clock=VirtualClock(dt.datetime(2026, 12, 1, 9, tzinfo=dt.timezone.utc)),
             )
         run_dir = caught.value.run_dir
@@ -261,13 +244,11 @@ class TestCutShort:
     def test_a_document_after_the_stop_does_not_verify(self, tmp_path):
         """An observation appended after the stop (with the chain rebuilt) is a verification
         failure, and the earlier reading is not replaced."""
-        from test_steps import _rechained
-
         run_dir = self._failed_run(tmp_path)
         docs = documents(run_dir)
         obs = [d for d in docs if d["kind"] == "observation"][-1]
         (run_dir / "journal.jsonl").write_text(
-            _rechained(docs + [{**obs, "typed": "50 uA", "reading": 5e-05}]), encoding="utf-8"
+            rechained(docs + [{**obs, "typed": "50 uA", "reading": 5e-05}]), encoding="utf-8"
         )
         (run_dir / "record.json").unlink()
         assert any("written after the run was closed complete" in p for p in problems(run_dir))
