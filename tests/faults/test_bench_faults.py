@@ -22,7 +22,7 @@ from verirun.errors import BenchError, RunAborted, SafetyError
 
 #: Points the faults are injected at: first point, mid-range, first of a new range, first AC
 #: point, the last point.
-POINTS = [0, 2, 5, 11, 19]
+POINTS = (0, 2, 5, 11, 19)
 HEADERS = {
     "dc-voltage": "VOLT",
     "dc-current": "CURR",
@@ -130,28 +130,12 @@ class Fault:
     stop_says: tuple[str, ...] = ()
 
 
-def _standby_impossible(action: str) -> Fault:
-    """The link dies for good just after output-on at point k: standby cannot be sent."""
-    return Fault(
-        f"standby-impossible-{action}",
-        tuple(POINTS) if action == "timeout" else (0, 11, 19),
-        SafetyError,
-        setup=lambda k: (
-            lambda res: res.on("OUTP ON", action, nth=k + 1, lasting=True, deliver=True)
-        ),
-        subclass=True,
-        says=("output state unknown", "by hand"),
-        output=("1", "ON"),
-        stop_says=("output state unknown",),
-    )
-
-
 #: The fault matrix, one row a fault. Plan indexes: see the module's docstring.
 FAULTS = [
     # a command times out once
     Fault(
         "timeout-on-source",
-        tuple(POINTS),
+        POINTS,
         BenchError,
         setup=lambda k: lambda res: res.on(is_level, "timeout", nth=k + 1),
         command=level_command,
@@ -161,7 +145,7 @@ FAULTS = [
     ),
     Fault(
         "timeout-on-output-on",
-        tuple(POINTS),
+        POINTS,
         BenchError,
         setup=lambda k: lambda res: res.on("OUTP ON", "timeout", nth=k + 1),
         command=lambda point: "OUTP ON",
@@ -170,7 +154,7 @@ FAULTS = [
     # the instrument reports an error after a setting
     Fault(
         "queued-error-after-setting",
-        tuple(POINTS),
+        POINTS,
         BenchError,
         setup=lambda k: lambda res: res.on(is_level, "queue", nth=k + 1, answer=OUT_OF_RANGE),
         command=level_command,
@@ -183,19 +167,42 @@ FAULTS = [
     # the connection is lost
     Fault(
         "connection-lost-once",
-        tuple(POINTS),
+        POINTS,
         BenchError,
         setup=lambda k: lambda res: res.on(is_level, "lost", nth=k + 1),
         command=level_command,
         says=("connection to the calibrator was lost",),
         stop_says=("connection to the calibrator was lost",),
     ),
-    _standby_impossible("timeout"),
-    _standby_impossible("lost"),
+    # the link dies for good just after output-on at point k: standby cannot be sent
+    Fault(
+        "standby-impossible-timeout",
+        POINTS,
+        SafetyError,
+        setup=lambda k: (
+            lambda res: res.on("OUTP ON", "timeout", nth=k + 1, lasting=True, deliver=True)
+        ),
+        subclass=True,
+        says=("output state unknown", "by hand"),
+        output=("1", "ON"),
+        stop_says=("output state unknown",),
+    ),
+    Fault(
+        "standby-impossible-lost",
+        (0, 11, 19),
+        SafetyError,
+        setup=lambda k: (
+            lambda res: res.on("OUTP ON", "lost", nth=k + 1, lasting=True, deliver=True)
+        ),
+        subclass=True,
+        says=("output state unknown", "by hand"),
+        output=("1", "ON"),
+        stop_says=("output state unknown",),
+    ),
     # a one-shot timeout on the standby that follows the reading at point k
     Fault(
         "standby-after-reading-fails",
-        tuple(POINTS),
+        POINTS,
         SafetyError,
         setup=lambda k: lambda res: res.on(nth_after_output_on(k, "OUTP OFF"), "timeout"),
         subclass=True,
@@ -220,7 +227,7 @@ FAULTS = [
     # the reading source raises: Ctrl-C while a reading is awaited, or a bug of its own
     Fault(
         "interrupt-at-reading",
-        tuple(POINTS),
+        POINTS,
         KeyboardInterrupt,
         raises=KeyboardInterrupt,
         names_step=False,
@@ -230,7 +237,7 @@ FAULTS = [
     ),
     Fault(
         "bug-in-reading-source",
-        tuple(POINTS),
+        POINTS,
         RuntimeError,
         raises=lambda: RuntimeError("reading source broke"),
         names_step=False,
