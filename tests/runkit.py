@@ -209,6 +209,51 @@ def rechained(docs: list[dict]) -> str:
     return "\n".join(lines) + "\n"
 
 
+def simulated_run_args(
+    folder: Path,
+    procedure: Path,
+    bench: Path,
+    readings: Path,
+    *,
+    serial: str = "S",
+    customer: str = "C",
+    reports: str = "reports",
+) -> list[str]:
+    """The words after ``verirun`` of a run of ``procedure`` on ``bench``'s simulated calibrator
+    with the scripted ``readings``; runs go into ``folder / "runs"``, certificates into
+    ``folder / reports``."""
+    return [
+        "run",
+        str(procedure),
+        "--bench",
+        str(bench),
+        "--simulate",
+        "--readings",
+        str(readings),
+        "--serial",
+        serial,
+        "--customer",
+        customer,
+        "--runs",
+        str(Path(folder) / "runs"),
+        "--reports",
+        str(Path(folder) / reports),
+    ]
+
+
+def resume_to_close(tmp_path: Path, run_dir: Path) -> int:
+    """`verirun resume` given no readings (had it anything to measure, it would stop at the
+    prompt): it can only close the run and write its certificate; the exit code."""
+    return cli(
+        "resume",
+        run_dir,
+        "--readings",
+        readings_file(tmp_path, []),
+        "--reports",
+        tmp_path / "reports",
+    )
+
+
 def only_run(runs: Path) -> Path:
     (run_dir,) = [p for p in Path(runs).iterdir() if p.is_dir()]
     return run_dir

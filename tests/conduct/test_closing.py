@@ -15,6 +15,7 @@ from runkit import (
     readings_file,
     rechained,
     record,
+    resume_to_close,
     run_args,
     run_until_death,
 )
@@ -39,17 +40,7 @@ class TestKilledAtTheEnd:
         before = documents(run_dir)
         assert sum(d["kind"] == "observation" for d in before) == 5
         # No readings are given: if resume measured anything it would stop at the prompt.
-        assert (
-            cli(
-                "resume",
-                run_dir,
-                "--readings",
-                readings_file(tmp_path, []),
-                "--reports",
-                tmp_path / "reports",
-            )
-            == 0
-        )
+        assert resume_to_close(tmp_path, run_dir) == 0
         after = documents(run_dir)
         assert after[: len(before)] == before
         assert sum(d["kind"] == "observation" for d in after) == 5
@@ -112,17 +103,7 @@ class TestKilledAtTheEnd:
         assert any(
             "is older than its journal" in p and "verirun resume" in p for p in problems(run_dir)
         )
-        assert (
-            cli(
-                "resume",
-                run_dir,
-                "--readings",
-                readings_file(tmp_path, []),
-                "--reports",
-                tmp_path / "reports",
-            )
-            == 0
-        )
+        assert resume_to_close(tmp_path, run_dir) == 0
         rec = record(run_dir)
         assert rec["run"]["revision"] == 2 and rec["summary"]["fail"] == 0
         assert (run_dir / "record.r1.json").exists()
@@ -157,17 +138,7 @@ class TestKilledAtTheEnd:
             documents(run_dir)[-1]["status"] == "aborted"
             and record(run_dir)["run"]["status"] == "aborted"
         )
-        assert (
-            cli(
-                "resume",
-                run_dir,
-                "--readings",
-                readings_file(tmp_path, []),
-                "--reports",
-                tmp_path / "reports",
-            )
-            == 0
-        )
+        assert resume_to_close(tmp_path, run_dir) == 0
         assert record(run_dir)["run"]["status"] == "complete"
         assert sum(d["kind"] == "observation" for d in documents(run_dir)) == 5
         assert problems(run_dir, reports=tmp_path / "reports") == []

@@ -9,6 +9,7 @@ import sys
 import time
 
 import pytest
+from runkit import simulated_run_args
 
 from verirun.cli import main
 from verirun.record.journal import read_journal
@@ -23,21 +24,14 @@ def run_cli(*args):
 
 def demo_run(tmp_path, demo_procedure_path, demo_bench_path, readings, extra=()):
     return run_cli(
-        "run",
-        demo_procedure_path,
-        "--bench",
-        demo_bench_path,
-        "--simulate",
-        "--readings",
-        readings,
-        "--serial",
-        "SN-7",
-        "--customer",
-        "Test customer",
-        "--runs",
-        tmp_path / "runs",
-        "--reports",
-        tmp_path / "reports",
+        *simulated_run_args(
+            tmp_path,
+            demo_procedure_path,
+            demo_bench_path,
+            readings,
+            serial="SN-7",
+            customer="Test customer",
+        ),
         *extra,
     )
 
@@ -204,6 +198,18 @@ def _kill_bench(tmp_path, demo_bench_path):
     return bench
 
 
+def _demo_command(tmp_path, procedure, bench, data_dir, serial: str) -> list[str]:
+    """`verirun run` of ``procedure`` on ``bench`` with the scripted readings of tests/data, as
+    a command for a real process: runs and reports go into ``tmp_path``."""
+    readings = data_dir / "qm40-readings.csv"
+    return [
+        sys.executable,
+        "-m",
+        "verirun",
+        *simulated_run_args(tmp_path, procedure, bench, readings, serial=serial),
+    ]
+
+
 def _wait_for_observations(tmp_path, count: int, proc, timeout: float = 30.0):
     """Poll the run's journal until it holds ``count`` observations (or the process ends)."""
     deadline = time.monotonic() + timeout
@@ -242,26 +248,7 @@ class TestKilledMidRun:
         """A verirun process killed with SIGKILL at any moment keeps every observation it had
         journaled; resume finishes the run and the record verifies with all 20 points."""
         bench = _kill_bench(tmp_path, demo_bench_path)
-        cmd = [
-            sys.executable,
-            "-m",
-            "verirun",
-            "run",
-            str(demo_procedure_path),
-            "--bench",
-            str(bench),
-            "--simulate",
-            "--readings",
-            str(data_dir / "qm40-readings.csv"),
-            "--serial",
-            "KILL",
-            "--customer",
-            "C",
-            "--runs",
-            str(tmp_path / "runs"),
-            "--reports",
-            str(tmp_path / "reports"),
-        ]
+        cmd = _demo_command(tmp_path, demo_procedure_path, bench, data_dir, "KILL")
         proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
         journal = _wait_for_observations(tmp_path, observed, proc)
         time.sleep(extra_delay)
@@ -304,26 +291,7 @@ class TestSigterm:
         """SIGTERM, or SIGHUP when the terminal goes away, ends a run as an interruption: exit
         code 2, a stop document naming the signal, and the run left resumable."""
         bench = _kill_bench(tmp_path, demo_bench_path)
-        cmd = [
-            sys.executable,
-            "-m",
-            "verirun",
-            "run",
-            str(demo_procedure_path),
-            "--bench",
-            str(bench),
-            "--simulate",
-            "--readings",
-            str(data_dir / "qm40-readings.csv"),
-            "--serial",
-            "TERM",
-            "--customer",
-            "C",
-            "--runs",
-            str(tmp_path / "runs"),
-            "--reports",
-            str(tmp_path / "reports"),
-        ]
+        cmd = _demo_command(tmp_path, demo_procedure_path, bench, data_dir, "TERM")
         proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
         deadline = time.monotonic() + 20
         journal = None

@@ -10,6 +10,7 @@ import math
 from pathlib import Path
 
 import pytest
+from runkit import simulated_run_args
 
 from verirun.cli import main
 from verirun.errors import ProcedureError, RecordError, UnitError
@@ -187,23 +188,9 @@ class TestNegativeReadings:
         assert ScriptedReadings(readings).take(points[0]).value == pytest.approx(-10.004)
         assert (
             main(
-                [
-                    "run",
-                    str(proc),
-                    "--bench",
-                    str(DATA / "matrix-bench.yaml"),
-                    "--simulate",
-                    "--readings",
-                    str(readings),
-                    "--serial",
-                    "P-1",
-                    "--customer",
-                    "C",
-                    "--runs",
-                    str(tmp_path / "runs"),
-                    "--reports",
-                    str(tmp_path / "reports"),
-                ]
+                simulated_run_args(
+                    tmp_path, proc, DATA / "matrix-bench.yaml", readings, serial="P-1"
+                )
             )
             == 0
         )

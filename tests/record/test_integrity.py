@@ -7,6 +7,7 @@ import json
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from runkit import simulated_run_args
 
 from verirun.certificate.render import safe_file_name, write_certificate
 from verirun.cli import main
@@ -19,23 +20,14 @@ from verirun.record.verify import problems
 def run_dir(tmp_path, data_dir, demo_procedure_path, demo_bench_path):
     assert (
         main(
-            [
-                "run",
-                str(demo_procedure_path),
-                "--bench",
-                str(demo_bench_path),
-                "--simulate",
-                "--readings",
-                str(data_dir / "qm40-readings.csv"),
-                "--serial",
-                "SN-9",
-                "--customer",
-                "Test customer",
-                "--runs",
-                str(tmp_path / "runs"),
-                "--reports",
-                str(tmp_path / "reports"),
-            ]
+            simulated_run_args(
+                tmp_path,
+                demo_procedure_path,
+                demo_bench_path,
+                data_dir / "qm40-readings.csv",
+                serial="SN-9",
+                customer="Test customer",
+            )
         )
         == 0
     )
@@ -205,23 +197,14 @@ class TestEscapingAndFileNames:
         shown as text, never run."""
         assert (
             main(
-                [
-                    "run",
-                    str(demo_procedure_path),
-                    "--bench",
-                    str(demo_bench_path),
-                    "--simulate",
-                    "--readings",
-                    str(data_dir / "qm40-readings.csv"),
-                    "--serial",
-                    "<b>SN</b>",
-                    "--customer",
-                    "<script>alert('x')</script>",
-                    "--runs",
-                    str(tmp_path / "runs"),
-                    "--reports",
-                    str(tmp_path / "reports"),
-                ]
+                simulated_run_args(
+                    tmp_path,
+                    demo_procedure_path,
+                    demo_bench_path,
+                    data_dir / "qm40-readings.csv",
+                    serial="<b>SN</b>",
+                    customer="<script>alert('x')</script>",
+                )
             )
             == 0
         )
@@ -251,23 +234,13 @@ class TestEscapingAndFileNames:
         """A serial number with path separators still makes its run folder inside runs/."""
         assert (
             main(
-                [
-                    "run",
-                    str(demo_procedure_path),
-                    "--bench",
-                    str(demo_bench_path),
-                    "--simulate",
-                    "--readings",
-                    str(data_dir / "qm40-readings.csv"),
-                    "--serial",
-                    "../../escape",
-                    "--customer",
-                    "C",
-                    "--runs",
-                    str(tmp_path / "runs"),
-                    "--reports",
-                    str(tmp_path / "reports"),
-                ]
+                simulated_run_args(
+                    tmp_path,
+                    demo_procedure_path,
+                    demo_bench_path,
+                    data_dir / "qm40-readings.csv",
+                    serial="../../escape",
+                )
             )
             == 0
         )
