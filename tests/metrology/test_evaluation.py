@@ -31,6 +31,16 @@ def points(procedure_text=PROCEDURE, bench_text=BENCH):
     )
 
 
+def preflight_problems(procedure_text: str) -> list[str]:
+    """What the preflight finds in the procedure on the test bench, on 2026-01-01."""
+    return preflight.problems(
+        points(procedure_text),
+        load_bench_text(BENCH, "bench.yaml"),
+        load_profile("scpi-generic"),
+        today=dt.date(2026, 1, 1),
+    )
+
+
 class TestCalibratorSpecFromBench:
     def test_ten_ppm_plus_five_microvolts_at_ten_volts(self):
         """±(10 ppm of output + 5 µV) at 10 V, 99 %: limit 105 µV, u = 105/2.576 = 40.8 µV
@@ -188,12 +198,7 @@ class TestPreflight:
         text = PROCEDURE.replace("full-scale: 10 V", "full-scale: 50 V").replace(
             "points: [10 V]", "points: [50 V]"
         )
-        found = preflight.problems(
-            points(text),
-            load_bench_text(BENCH, "bench.yaml"),
-            load_profile("scpi-generic"),
-            today=dt.date(2026, 1, 1),
-        )
+        found = preflight_problems(text)
         assert any(
             p.startswith("step 1 (dcv-10 at 50 V DC)") and "no accuracy line" in p for p in found
         )
@@ -203,12 +208,7 @@ class TestPreflight:
         text = PROCEDURE.replace("full-scale: 10 V", "full-scale: 2000 V").replace(
             "points: [10 V]", "points: [1500 V]"
         )
-        found = preflight.problems(
-            points(text),
-            load_bench_text(BENCH, "bench.yaml"),
-            load_profile("scpi-generic"),
-            today=dt.date(2026, 1, 1),
-        )
+        found = preflight_problems(text)
         assert any("cannot source" in p and "1000" in p for p in found)
 
 
