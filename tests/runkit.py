@@ -211,17 +211,17 @@ def rechained(docs: list[dict]) -> str:
 
 def simulated_run_args(
     folder: Path,
-    procedure: Path,
-    bench: Path,
-    readings: Path,
+    procedure: Path = DEMO / "qm40-analog-multimeter.yaml",
+    bench: Path = DEMO / "bench-sim.yaml",
+    readings: Path = DATA / "qm40-readings.csv",
     *,
     serial: str = "S",
     customer: str = "C",
     reports: str = "reports",
 ) -> list[str]:
     """The words after ``verirun`` of a run of ``procedure`` on ``bench``'s simulated calibrator
-    with the scripted ``readings``; runs go into ``folder / "runs"``, certificates into
-    ``folder / reports``."""
+    with the scripted ``readings`` (the demo's, unless given); runs go into ``folder / "runs"``,
+    certificates into ``folder / reports``."""
     return [
         "run",
         str(procedure),

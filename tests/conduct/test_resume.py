@@ -36,6 +36,20 @@ def demo_run(tmp_path, demo_procedure_path, demo_bench_path, readings, extra=())
     )
 
 
+def resume_demo(tmp_path, data_dir, run_dir, *extra) -> int:
+    """`verirun resume` of a demo run with the scripted readings, certificates into
+    ``tmp_path / "reports"``; the exit code."""
+    return run_cli(
+        "resume",
+        run_dir,
+        *extra,
+        "--readings",
+        data_dir / "qm40-readings.csv",
+        "--reports",
+        tmp_path / "reports",
+    )
+
+
 def abort_at(data_dir, tmp_path, line_text, replacement):
     text = (data_dir / "qm40-readings.csv").read_text()
     assert line_text in text
@@ -60,17 +74,7 @@ class TestAbortAndResume:
         assert before[-1]["kind"] == "stop" and before[-1]["status"] == "aborted"
         assert not list((tmp_path / "reports").glob("*.html"))  # no certificate for an aborted run
 
-        assert (
-            run_cli(
-                "resume",
-                run_dir,
-                "--readings",
-                data_dir / "qm40-readings.csv",
-                "--reports",
-                tmp_path / "reports",
-            )
-            == 0
-        )
+        assert resume_demo(tmp_path, data_dir, run_dir) == 0
         after = read_journal(run_dir / "journal.jsonl").documents
         assert after[: len(before)] == before  # nothing rewritten
         record = json.loads((run_dir / "record.json").read_text())
@@ -143,17 +147,7 @@ class TestAbortAndResume:
         assert read_journal(journal).torn_line is not None
         assert any("cut off" in p for p in problems(run_dir))
         capsys.readouterr()
-        assert (
-            run_cli(
-                "resume",
-                run_dir,
-                "--readings",
-                data_dir / "qm40-readings.csv",
-                "--reports",
-                tmp_path / "reports",
-            )
-            == 0
-        )
+        assert resume_demo(tmp_path, data_dir, run_dir) == 0
         assert "cut off" in capsys.readouterr().out
         docs = read_journal(journal).documents
         assert docs[: len(whole)] == whole
@@ -176,17 +170,7 @@ class TestAbortAndResume:
         demo_run(tmp_path, procedure, demo_bench_path, readings)
         (run_dir,) = (tmp_path / "runs").iterdir()
         procedure.write_text(procedure.read_text().replace("revision: C", "revision: D"))
-        assert (
-            run_cli(
-                "resume",
-                run_dir,
-                "--readings",
-                data_dir / "qm40-readings.csv",
-                "--reports",
-                tmp_path / "reports",
-            )
-            == 0
-        )
+        assert resume_demo(tmp_path, data_dir, run_dir) == 0
         record = json.loads((run_dir / "record.json").read_text())
         assert record["procedure"]["revision"] == "C" and record["run"]["status"] == "complete"
 
@@ -261,21 +245,7 @@ class TestKilledMidRun:
         assert before[0]["kind"] == "start"
         assert sum(d["kind"] == "observation" for d in before) >= observed
         assert before[-1]["kind"] != "stop"  # SIGKILL gives no chance to write one
-        assert (
-            main(
-                [
-                    "resume",
-                    str(run_dir),
-                    "--bench",
-                    str(bench),
-                    "--readings",
-                    str(data_dir / "qm40-readings.csv"),
-                    "--reports",
-                    str(tmp_path / "reports"),
-                ]
-            )
-            == 0
-        )
+        assert resume_demo(tmp_path, data_dir, run_dir, "--bench", bench) == 0
         after = read_journal(run_dir / "journal.jsonl").documents
         assert after[: len(before)] == before
         observed_points = [d["point"] for d in after if d["kind"] == "observation"]

@@ -17,14 +17,11 @@ from verirun.record.verify import problems
 
 
 @pytest.fixture
-def run_dir(tmp_path, data_dir, demo_procedure_path, demo_bench_path):
+def run_dir(tmp_path):
     assert (
         main(
             simulated_run_args(
                 tmp_path,
-                demo_procedure_path,
-                demo_bench_path,
-                data_dir / "qm40-readings.csv",
                 serial="SN-9",
                 customer="Test customer",
             )
@@ -190,18 +187,13 @@ class TestAmend:
 
 
 class TestEscapingAndFileNames:
-    def test_customer_script_is_escaped_on_the_certificate(
-        self, tmp_path, data_dir, demo_procedure_path, demo_bench_path
-    ):
+    def test_customer_script_is_escaped_on_the_certificate(self, tmp_path):
         """Text from the user reaches the certificate escaped: a <script> in a customer name is
         shown as text, never run."""
         assert (
             main(
                 simulated_run_args(
                     tmp_path,
-                    demo_procedure_path,
-                    demo_bench_path,
-                    data_dir / "qm40-readings.csv",
                     serial="<b>SN</b>",
                     customer="<script>alert('x')</script>",
                 )
@@ -228,17 +220,12 @@ class TestEscapingAndFileNames:
         )
         assert (tmp_path / safe).resolve().parent == tmp_path.resolve()
 
-    def test_run_folder_from_a_hostile_serial_stays_in_runs(
-        self, tmp_path, data_dir, demo_procedure_path, demo_bench_path
-    ):
+    def test_run_folder_from_a_hostile_serial_stays_in_runs(self, tmp_path):
         """A serial number with path separators still makes its run folder inside runs/."""
         assert (
             main(
                 simulated_run_args(
                     tmp_path,
-                    demo_procedure_path,
-                    demo_bench_path,
-                    data_dir / "qm40-readings.csv",
                     serial="../../escape",
                 )
             )
