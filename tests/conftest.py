@@ -1,4 +1,4 @@
-"""Shared fixtures: the demo files, a fresh simulated calibrator per test."""
+"""Shared fixtures: the demo files, a folder of its own per test, a way to build a run."""
 
 from __future__ import annotations
 
@@ -47,3 +47,17 @@ def at_the_bench():
 
     with calibrator_at_the_bench():
         yield
+
+
+@pytest.fixture
+def make_run(tmp_path):
+    """Build a run in the test's folder (``runs/``, ``reports/``): :func:`runkit.build_run`
+    with the same keywords, the test scenario of ``tests/data/steps`` unless they say other."""
+    from runkit import build_run
+
+    def make(**given):
+        given.setdefault("runs_dir", tmp_path / "runs")
+        given.setdefault("reports_dir", tmp_path / "reports")
+        return build_run(**given)
+
+    return make

@@ -1,9 +1,11 @@
-"""Small runs for the record tests: the test-scenario procedure and bench of ``tests/data/steps``,
-variants of them written into a test's folder, and the command line run in-process or as a
+"""Small runs for the tests: the test-scenario procedure and bench of ``tests/data/steps``,
+variants of them written into a test's folder, one way to build a run in-process
+(:func:`build_run`, the ``make_run`` fixture), and the command line run in-process or as a
 real process that can be stopped dead at a chosen moment."""
 
 from __future__ import annotations
 
+import datetime as dt
 import json
 import subprocess
 import sys
@@ -13,11 +15,129 @@ from pathlib import Path
 from verirun.cli import main
 from verirun.record.journal import read_journal
 
-STEPS = Path(__file__).resolve().parent / "data" / "steps"
+DATA = Path(__file__).resolve().parent / "data"
+DEMO = Path(__file__).resolve().parents[1] / "verirun" / "demo"
+STEPS = DATA / "steps"
 STORED = STEPS / "stored"
 PROCEDURE = STEPS / "procedure.yaml"
 BENCH = STEPS / "bench.yaml"
 READINGS = STEPS / "readings.csv"
+LAB = STEPS / "lab.yaml"
+
+#: When a test's run starts unless it says otherwise (the virtual clock's start).
+START = dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)
+
+
+def sim_resources(folder: Path, *, count: int = 1, timeout: int = 300) -> list:
+    """``count`` VISA handles on one fresh simulated calibrator (its own copy of the device
+    file, in ``folder / "sim"``): one for the driver, the others to probe the device itself."""
+    import pyvisa
+
+    from verirun.bench.sim import SIM_RESOURCE, sim_library
+
+    manager = pyvisa.ResourceManager(sim_library(folder / "sim"))
+    return [
+        manager.open_resource(
+            SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=timeout
+        )
+        for _ in range(count)
+    ]
+
+
+def demo_run() -> dict:
+    """The demo run as the tests make it, as keywords of :func:`build_run`: the demo's
+    procedure, bench and lab, the scripted readings of ``tests/data/qm40-readings.csv``, one
+    customer and item, a fixed start (2026-12-01 09:00 UTC) and run uid."""
+    from verirun.clock import VirtualClock
+
+    return dict(
+        procedure=DEMO / "qm40-analog-multimeter.yaml",
+        bench=DEMO / "bench-sim.yaml",
+        lab=DEMO / "lab.yaml",
+        readings=DATA / "qm40-readings.csv",
+        customer="Test customer",
+        item={"serial": "SN-1", "asset": None, "condition": "as new"},
+        operator="tester",
+        clock=VirtualClock(dt.datetime(2026, 12, 1, 9, 0, tzinfo=dt.timezone.utc)),
+        uid="0123456789abcdef0123456789abcdef",
+    )
+
+
+def build_run(
+    *,
+    runs_dir: Path,
+    reports_dir: Path | None = None,
+    procedure=PROCEDURE,
+    bench=BENCH,
+    readings=READINGS,
+    console=None,
+    lab=LAB,
+    customer: str = "C",
+    item: dict | str = "S",
+    operator: str = "op",
+    simulated: bool = True,
+    environment: dict | None = None,
+    as_found: dict | None = None,
+    clock=None,
+    uid: str | None = None,
+    calibrator=None,
+):
+    """One run through :func:`verirun.conduct.execute` on the simulated calibrator; returns
+    what it returns (``Finished``) and lets whatever it raises through.
+
+    ``procedure``, ``bench`` and ``lab`` are files or what was loaded from them (``lab`` also
+    the lab's own fields); ``readings`` is a CSV of scripted readings, a reading source, or
+    ``None`` for the console (what the operator types); ``console`` is a quiet one unless
+    given; ``item`` is its fields or just a serial; ``clock`` is a virtual clock at
+    :data:`START` unless given; ``calibrator`` is a driver, a VISA resource to drive with the
+    scpi-generic profile, or ``None`` for the one ``execute`` opens itself. Reports go beside
+    ``runs_dir`` unless ``reports_dir`` says otherwise.
+    """
+    from verirun.bench.calibrator import Calibrator
+    from verirun.bench.config import load_bench
+    from verirun.clock import VirtualClock
+    from verirun.conduct import execute
+    from verirun.console import QuietConsole
+    from verirun.engine import RunContext
+    from verirun.lab import load_lab
+    from verirun.procedure.load import load_procedure
+    from verirun.readings import ScriptedReadings
+
+    if isinstance(procedure, (str, Path)):
+        procedure = load_procedure(procedure)
+    if isinstance(bench, (str, Path)):
+        bench = load_bench(bench)
+    if isinstance(lab, (str, Path)):
+        lab = load_lab(lab).lab.model_dump(mode="json")
+    console = QuietConsole() if console is None else console
+    if readings is None:
+        readings = console
+    elif isinstance(readings, (str, Path)):
+        readings = ScriptedReadings(readings)
+    if calibrator is not None and not isinstance(calibrator, Calibrator):
+        calibrator = Calibrator(calibrator, "scpi-generic")
+    context = RunContext(
+        lab=lab,
+        customer={"name": customer, "address": []},
+        item={"serial": item} if isinstance(item, str) else item,
+        operator=operator,
+        simulated=simulated,
+        environment=environment or {},
+        as_found=as_found,
+    )
+    return execute(
+        procedure=procedure,
+        bench=bench,
+        context=context,
+        readings=readings,
+        console=console,
+        runs_dir=runs_dir,
+        reports_dir=reports_dir or Path(runs_dir).parent / "reports",
+        simulate=True,
+        clock=clock or VirtualClock(START),
+        uid=uid,
+        calibrator=calibrator,
+    )
 
 
 def cli(*args) -> int:
@@ -75,6 +195,63 @@ def run_args(
         "--reports",
         reports or tmp_path / "reports",
     ]
+
+
+def rechained(docs: list[dict]) -> str:
+    """The documents as a journal with a whole chain (a forger can rebuild an unkeyed chain)."""
+    from verirun.record.journal import GENESIS, dumps, line_hash
+
+    prev, lines = GENESIS, []
+    for seq, doc in enumerate(docs):
+        line = dumps({**doc, "seq": seq, "prev": prev})
+        prev = line_hash(line)
+        lines.append(line)
+    return "\n".join(lines) + "\n"
+
+
+def simulated_run_args(
+    folder: Path,
+    procedure: Path = DEMO / "qm40-analog-multimeter.yaml",
+    bench: Path = DEMO / "bench-sim.yaml",
+    readings: Path = DATA / "qm40-readings.csv",
+    *,
+    serial: str = "S",
+    customer: str = "C",
+    reports: str = "reports",
+) -> list[str]:
+    """The words after ``verirun`` of a run of ``procedure`` on ``bench``'s simulated calibrator
+    with the scripted ``readings`` (the demo's, unless given); runs go into ``folder / "runs"``,
+    certificates into ``folder / reports``."""
+    return [
+        "run",
+        str(procedure),
+        "--bench",
+        str(bench),
+        "--simulate",
+        "--readings",
+        str(readings),
+        "--serial",
+        serial,
+        "--customer",
+        customer,
+        "--runs",
+        str(Path(folder) / "runs"),
+        "--reports",
+        str(Path(folder) / reports),
+    ]
+
+
+def resume_to_close(tmp_path: Path, run_dir: Path) -> int:
+    """`verirun resume` given no readings (had it anything to measure, it would stop at the
+    prompt): it can only close the run and write its certificate; the exit code."""
+    return cli(
+        "resume",
+        run_dir,
+        "--readings",
+        readings_file(tmp_path, []),
+        "--reports",
+        tmp_path / "reports",
+    )
 
 
 def only_run(runs: Path) -> Path:

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import textwrap
+from pathlib import Path
 
 import pytest
 
@@ -10,33 +11,9 @@ from verirun.bench import FUNCTIONS, load_profile
 from verirun.bench.profile import AcFunction, packaged_profiles
 from verirun.errors import BenchError, ProcedureError
 
-GOOD = """\
-format: 1
-name: tiny
-link:
-  read-termination: "\\n"
-  write-termination: "\\n"
-  timeout-ms: 1000
-commands:
-  identify: "*IDN?"
-  reset: "*RST"
-  clear-status: "*CLS"
-  output-on: "OUTP ON"
-  output-off: "OUTP OFF"
-output-state:
-  query: "OUTP?"
-  on-replies: ["1"]
-  off-replies: ["0"]
-error-queue:
-  query: "SYST:ERR?"
-functions:
-  dc-voltage:
-    select: ["FUNC DC"]
-    level: {command: "VOLT {value}", min: -10.0, max: 10.0}
-  ac-voltage:
-    level: {command: "VOLT {value}", min: 0.0, max: 10.0}
-    frequency: {command: "FREQ {value}", min: 10.0, max: 1000.0}
-"""
+DATA = Path(__file__).resolve().parents[1] / "data"
+
+GOOD = (DATA / "tiny-profile.yaml").read_text(encoding="utf-8")
 
 
 def write(tmp_path, text, name="tiny.yaml"):

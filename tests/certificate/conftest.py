@@ -5,6 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import pytest
+from runkit import simulated_run_args
 
 from verirun.cli import main
 
@@ -17,23 +18,13 @@ def demo_run_dir(tmp_path_factory) -> Path:
     tmp = tmp_path_factory.mktemp("demo-run")
     assert (
         main(
-            [
-                "run",
-                str(ROOT / "procedures" / "qm40-analog-multimeter.yaml"),
-                "--bench",
-                str(ROOT / "verirun" / "demo" / "bench-sim.yaml"),
-                "--simulate",
-                "--readings",
-                str(ROOT / "tests" / "data" / "qm40-readings.csv"),
-                "--serial",
-                "QM40-1",
-                "--customer",
-                "C",
-                "--runs",
-                str(tmp / "runs"),
-                "--reports",
-                str(tmp / "reports"),
-            ]
+            simulated_run_args(
+                tmp,
+                ROOT / "procedures" / "qm40-analog-multimeter.yaml",
+                ROOT / "verirun" / "demo" / "bench-sim.yaml",
+                ROOT / "tests" / "data" / "qm40-readings.csv",
+                serial="QM40-1",
+            )
         )
         == 0
     )

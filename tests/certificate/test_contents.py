@@ -7,11 +7,17 @@ of a run at the (test) bench, issued by a person the (test) lab profile lists.
 from __future__ import annotations
 
 import re
+from pathlib import Path
 
 import pytest
 from bs4 import BeautifulSoup
+from runkit import simulated_run_args
 
 from verirun.cli import main
+
+DATA = Path(__file__).resolve().parents[1] / "data"
+#: The demo procedure, as the repository keeps it in procedures/.
+PROCEDURE = Path(__file__).resolve().parents[2] / "procedures" / "qm40-analog-multimeter.yaml"
 
 
 @pytest.fixture(scope="module")
@@ -193,47 +199,16 @@ class TestClause784And786:
 
     def test_as_found_and_as_left(self, cert, tmp_path):
         """7.8.4.1 d): where the item was adjusted, results as found and as left are both given."""
-        from pathlib import Path
-
-        root = Path(__file__).resolve().parents[2]
-        proc, bench = (
-            root / "procedures" / "qm40-analog-multimeter.yaml",
-            root / "verirun" / "demo" / "bench-sim.yaml",
-        )
-        data = root / "tests" / "data" / "qm40-readings.csv"
-        common = [
-            "--bench",
-            str(bench),
-            "--simulate",
-            "--serial",
-            "QM40-5",
-            "--customer",
-            "C",
-            "--runs",
-            str(tmp_path / "runs"),
-            "--reports",
-            str(tmp_path / "rep"),
-        ]
-        assert main(["run", str(proc), "--readings", str(data), *common]) == 0
+        data = DATA / "qm40-readings.csv"
+        assert main(simulated_run_args(tmp_path, PROCEDURE, serial="QM40-5", reports="rep")) == 0
         (found_run,) = (tmp_path / "runs").iterdir()
         left = tmp_path / "left.csv"
         left.write_text(data.read_text().replace("dcv-6,4.8 V,4.6", "dcv-6,4.8 V,4.8"))
-        assert (
-            main(
-                [
-                    "run",
-                    str(proc),
-                    "--readings",
-                    str(left),
-                    *common,
-                    "--as-left-of",
-                    str(found_run),
-                    "--adjustment",
-                    "span trimmer reset",
-                ]
-            )
-            == 0
+        as_left = simulated_run_args(
+            tmp_path, PROCEDURE, readings=left, serial="QM40-5", reports="rep"
         )
+        as_left += ["--as-left-of", str(found_run), "--adjustment", "span trimmer reset"]
+        assert main(as_left) == 0
         (left_run,) = [run for run in (tmp_path / "runs").iterdir() if run != found_run]
         from verirun.certificate.render import certificate_path
         from verirun.record.journal import load_record
@@ -258,78 +233,33 @@ class TestClause784And786:
 
     def test_as_left_of_another_item_is_refused(self, tmp_path, capsys):
         """An as-left run must follow an as-found run of the same item."""
-        from pathlib import Path
-
-        root = Path(__file__).resolve().parents[2]
-        proc, bench = (
-            root / "procedures" / "qm40-analog-multimeter.yaml",
-            root / "verirun" / "demo" / "bench-sim.yaml",
-        )
-        data = root / "tests" / "data" / "qm40-readings.csv"
-        common = [
-            "--bench",
-            str(bench),
-            "--simulate",
-            "--readings",
-            str(data),
-            "--customer",
-            "C",
-            "--runs",
-            str(tmp_path / "runs"),
-            "--reports",
-            str(tmp_path / "rep"),
-        ]
-        assert main(["run", str(proc), "--serial", "ONE", *common]) == 0
+        assert main(simulated_run_args(tmp_path, PROCEDURE, serial="ONE", reports="rep")) == 0
         (found_run,) = (tmp_path / "runs").iterdir()
-        assert (
-            main(
-                [
-                    "run",
-                    str(proc),
-                    "--serial",
-                    "TWO",
-                    *common,
-                    "--as-left-of",
-                    str(found_run),
-                    "--adjustment",
-                    "x",
-                ]
-            )
-            == 1
-        )
+        as_left = simulated_run_args(tmp_path, PROCEDURE, serial="TWO", reports="rep")
+        assert main([*as_left, "--as-left-of", str(found_run), "--adjustment", "x"]) == 1
         assert "not 'TWO'" in capsys.readouterr().err
 
     def test_as_left_for_another_customer_or_a_second_as_left_is_refused(self, tmp_path, capsys):
         """An as-left run is of the same item for the same customer, and one follows each
         as-found run; a refused run writes no run folder."""
-        from pathlib import Path
 
-        root = Path(__file__).resolve().parents[2]
-        proc, bench = (
-            root / "procedures" / "qm40-analog-multimeter.yaml",
-            root / "verirun" / "demo" / "bench-sim.yaml",
-        )
-        data = root / "tests" / "data" / "qm40-readings.csv"
-        common = [
-            "--bench",
-            str(bench),
-            "--simulate",
-            "--readings",
-            str(data),
-            "--serial",
-            "S1",
-            "--runs",
-            str(tmp_path / "runs"),
-            "--reports",
-            str(tmp_path / "rep"),
-        ]
-        assert main(["run", str(proc), "--customer", "C", *common]) == 0
+        def run(customer: str, *more: str) -> int:
+            return main(
+                [
+                    *simulated_run_args(
+                        tmp_path, PROCEDURE, serial="S1", customer=customer, reports="rep"
+                    ),
+                    *more,
+                ]
+            )
+
+        assert run("C") == 0
         (found_run,) = (tmp_path / "runs").iterdir()
         left = ["--as-left-of", str(found_run), "--adjustment", "zero set"]
-        assert main(["run", str(proc), "--customer", "D", *common, *left]) == 1
+        assert run("D", *left) == 1
         assert "for customer 'C', not 'D'" in capsys.readouterr().err
         assert len(list((tmp_path / "runs").iterdir())) == 1
-        assert main(["run", str(proc), "--customer", "C", *common, *left]) == 0
-        assert main(["run", str(proc), "--customer", "C", *common, *left]) == 1
+        assert run("C", *left) == 0
+        assert run("C", *left) == 1
         assert "has an as-left run already" in capsys.readouterr().err
         assert len(list((tmp_path / "runs").iterdir())) == 2

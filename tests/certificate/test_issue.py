@@ -64,6 +64,25 @@ def bench_run(tmp: Path, *extra: str, readings: Path | None = None, simulate: bo
     return run
 
 
+def amend_point_4(run: Path, reason: str = "typed wrong", *extra: str) -> int:
+    """`verirun amend`: step 4's reading corrected to 8.0 for ``reason``; the exit code."""
+    return main(
+        [
+            "amend",
+            str(run),
+            "--point",
+            "4",
+            "--reading",
+            "8.0",
+            "--reason",
+            reason,
+            "--operator",
+            "T. Quayle",
+            *extra,
+        ]
+    )
+
+
 def soup_of(record: dict, reports: Path) -> BeautifulSoup:
     return BeautifulSoup(
         certificate_path(record, reports).read_text(encoding="utf-8"), "html.parser"
@@ -143,25 +162,7 @@ class TestDraftIssueAmendReissue:
         # The amendment: a new revision, a draft until issued, naming what it replaces, what
         # changed and why; the old revision stays readable, marked as replaced.
         reason = "transcription error: 8.0 V was read, 8.25 typed"
-        assert (
-            main(
-                [
-                    "amend",
-                    str(run),
-                    "--point",
-                    "4",
-                    "--reading",
-                    "8.0",
-                    "--reason",
-                    reason,
-                    "--operator",
-                    "T. Quayle",
-                    "--reports",
-                    str(reports),
-                ]
-            )
-            == 0
-        )
+        assert amend_point_4(run, reason, "--reports", str(reports)) == 0
         revised = load_record(run)
         r2 = certificate_path(revised, reports).stem
         assert r2 == f"{number}-R2"
@@ -557,23 +558,7 @@ def test_certify_renders_a_replaced_revision_marked_as_replaced(at_the_bench, tm
     and as it was issued, the revision it replaces."""
     run = bench_run(tmp_path)
     assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 0
-    assert (
-        main(
-            [
-                "amend",
-                str(run),
-                "--point",
-                "4",
-                "--reading",
-                "8.0",
-                "--reason",
-                "typed wrong",
-                "--operator",
-                "T. Quayle",
-            ]
-        )
-        == 0
-    )
+    assert amend_point_4(run) == 0
     capsys.readouterr()
     again = tmp_path / "again"
     assert main(["certify", str(run), "--reports", str(again)]) == 0
@@ -595,23 +580,7 @@ def test_amending_a_draft_says_the_draft_was_not_issued(at_the_bench, tmp_path):
     """A correction before anyone issued the run replaces a draft, and says so."""
     run = bench_run(tmp_path)
     number = certificate_path(load_record(run), tmp_path / "rep").stem
-    assert (
-        main(
-            [
-                "amend",
-                str(run),
-                "--point",
-                "4",
-                "--reading",
-                "8.0",
-                "--reason",
-                "typed wrong",
-                "--operator",
-                "T. Quayle",
-            ]
-        )
-        == 0
-    )
+    assert amend_point_4(run) == 0
     soup = BeautifulSoup(
         certificate_path(load_record(run), tmp_path / "rep").read_text(encoding="utf-8"),
         "html.parser",

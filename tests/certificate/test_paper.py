@@ -9,6 +9,7 @@ import subprocess
 from pathlib import Path
 
 import pytest
+from runkit import simulated_run_args
 
 from verirun.certificate.render import render_html, write_pdf
 from verirun.record.journal import load_record
@@ -91,23 +92,14 @@ def hundred_point_run(demo_run_dir: Path, tmp_path: Path) -> dict:
     csv.write_text("\n".join(rows) + "\n")
     assert (
         main(
-            [
-                "run",
-                str(proc),
-                "--bench",
-                str(root / "verirun" / "demo" / "bench-sim.yaml"),
-                "--simulate",
-                "--readings",
-                str(csv),
-                "--serial",
-                "P100",
-                "--customer",
-                "C",
-                "--runs",
-                str(tmp_path / "runs"),
-                "--reports",
-                str(tmp_path / "rep"),
-            ]
+            simulated_run_args(
+                tmp_path,
+                proc,
+                root / "verirun" / "demo" / "bench-sim.yaml",
+                csv,
+                serial="P100",
+                reports="rep",
+            )
         )
         == 0
     )

@@ -10,6 +10,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import pytest
+from runkit import simulated_run_args
 
 from verirun.certificate.render import render_html, write_pdf
 from verirun.record.journal import load_record
@@ -83,23 +84,13 @@ def non_binary_as_left(tmp_path_factory) -> Path:
     procedure.write_text(
         (data / "qm40-procedure.yaml").read_text().replace("  rule: simple", "  rule: non-binary")
     )
-    common = [
-        "run",
-        str(procedure),
-        "--bench",
-        str(data / "bench-kestrel.yaml"),
-        "--simulate",
-        "--readings",
-        str(data / "qm40-procedure-readings.csv"),
-        "--serial",
-        "S",
-        "--customer",
-        "C",
-        "--runs",
-        str(tmp / "runs"),
-        "--reports",
-        str(tmp / "rep"),
-    ]
+    common = simulated_run_args(
+        tmp,
+        procedure,
+        data / "bench-kestrel.yaml",
+        data / "qm40-procedure-readings.csv",
+        reports="rep",
+    )
     assert main(common) == 0
     (found,) = (tmp / "runs").iterdir()
     assert main([*common, "--as-left-of", str(found), "--adjustment", "zero set"]) == 0

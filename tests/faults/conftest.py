@@ -9,7 +9,6 @@ recovers) or lasting (every later command fails the same way, so even standby ca
 
 from __future__ import annotations
 
-import datetime as dt
 import errno
 import json
 from dataclasses import dataclass, field
@@ -17,14 +16,10 @@ from pathlib import Path
 from typing import Callable
 
 import pytest
+from runkit import build_run, demo_run, sim_resources
 
-from verirun.bench.calibrator import Calibrator
 from verirun.bench.config import load_bench
-from verirun.bench.sim import SIM_RESOURCE, sim_library
-from verirun.clock import VirtualClock
-from verirun.conduct import demo_files, execute
-from verirun.console import QuietConsole
-from verirun.engine import RunContext
+from verirun.conduct import demo_files
 from verirun.lab import load_lab
 from verirun.procedure.load import load_procedure
 from verirun.procedure.plan import plan
@@ -32,7 +27,6 @@ from verirun.readings import ScriptedReadings
 
 #: The query that takes one entry off the error queue (the scpi-generic profile's).
 ERROR_QUERY = "SYST:ERR?"
-START = dt.datetime(2026, 12, 1, 9, 0, tzinfo=dt.timezone.utc)
 
 
 def timeout_error():
@@ -180,15 +174,7 @@ class Bench:
 
 def open_bench(folder: Path) -> Bench:
     """A simulated calibrator of its own (a fresh copy of the device file in ``folder``)."""
-    import pyvisa
-
-    manager = pyvisa.ResourceManager(sim_library(folder / "sim"))
-    device = manager.open_resource(
-        SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=200
-    )
-    probe = manager.open_resource(
-        SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=200
-    )
+    device, probe = sim_resources(folder, count=2, timeout=200)
     return Bench(resource=FaultyResource(device), probe=probe)
 
 
@@ -263,29 +249,19 @@ def fault_run(tmp_path_factory, demo_inputs):
             setup(bench.resource)
         scripted = ScriptedReadings(demo_inputs.readings_csv)
         source = readings(scripted) if readings is not None else scripted
-        context = RunContext(
-            lab=demo_inputs.lab.lab.model_dump(mode="json"),
-            customer={"name": "Test customer", "address": []},
-            item={"serial": "SN-1", "asset": None, "condition": "as new"},
-            operator="tester",
-            simulated=True,
-        )
-        calibrator = Calibrator(bench.resource, "scpi-generic")
         runs = folder / "runs"
         error = None
         try:
-            execute(
-                procedure=demo_inputs.procedure,
-                bench=demo_inputs.bench,
-                context=context,
-                readings=source,
-                console=QuietConsole(),
+            build_run(
+                **{
+                    **demo_run(),
+                    "procedure": demo_inputs.procedure,
+                    "bench": demo_inputs.bench,
+                    "lab": demo_inputs.lab.lab.model_dump(mode="json"),
+                    "readings": source,
+                },
                 runs_dir=runs,
-                reports_dir=folder / "reports",
-                simulate=True,
-                clock=VirtualClock(START),
-                uid="0123456789abcdef0123456789abcdef",
-                calibrator=calibrator,
+                calibrator=bench.resource,
             )
         except BaseException as exc:  # noqa: BLE001 - the test inspects whatever arrived
             error = exc

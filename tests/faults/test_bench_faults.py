@@ -13,13 +13,16 @@ frequency command), 14-16 ohm-x1, 17-19 ohm-x1k.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+from typing import Callable
+
 import pytest
 
-from verirun.errors import BenchError, RunAborted, SafetyError, VerirunError
+from verirun.errors import BenchError, RunAborted, SafetyError
 
 #: Points the faults are injected at: first point, mid-range, first of a new range, first AC
 #: point, the last point.
-POINTS = [0, 2, 5, 11, 19]
+POINTS = (0, 2, 5, 11, 19)
 HEADERS = {
     "dc-voltage": "VOLT",
     "dc-current": "CURR",
@@ -97,113 +100,220 @@ def assert_stop(result, status: str, *words: str) -> None:
         assert word in (stop["reason"] or ""), stop["reason"]
 
 
-# --- a command times out once --------------------------------------------------------------
+# --- the fault matrix: each fault at each moment it can strike -----------------------------
 
 
-class TestTimeoutOnSource:
-    @pytest.fixture(scope="class", params=POINTS, ids=lambda k: f"point{k}")
+@dataclass(frozen=True)
+class Fault:
+    """One row of the fault matrix: a fault, the points it strikes at, and what must follow.
+
+    The fault is ``setup(k)``, installing it on the :class:`FaultyResource` for point ``k``, or
+    ``raises()``, an error the reading source raises when asked for point ``k``'s reading.
+    """
+
+    name: str
+    moments: tuple[int, ...]
+    error: type  # what reaches the caller: that type (or, with ``subclass``, a kind of it)
+    setup: Callable[[int], Callable] | None = None
+    raises: Callable[[], BaseException] | None = None
+    subclass: bool = False
+    first_of_range: bool = False  # the moments are first points of a range (checked)
+    names_step: bool = True  # the error's text names the step
+    command: Callable[[object], str] | None = None  # the command the error names, for a point
+    answer: str | None = None  # the instrument's answer the error gives
+    says: tuple[str, ...] = ()  # words of the error's message
+    output: tuple[str, ...] = OFF  # what the device itself reports afterwards
+    on_again: bool = True  # the output may be switched on at the point of the fault
+    kept: int = 0  # readings kept at the point itself (1: taken before the fault)
+    stop: str = "failed"
+    stop_names_step: bool = False
+    stop_says: tuple[str, ...] = ()
+
+
+#: The fault matrix, one row a fault. Plan indexes: see the module's docstring.
+FAULTS = [
+    # a command times out once
+    Fault(
+        "timeout-on-source",
+        POINTS,
+        BenchError,
+        setup=lambda k: lambda res: res.on(is_level, "timeout", nth=k + 1),
+        command=level_command,
+        says=("no answer",),
+        stop_names_step=True,
+        stop_says=("no answer",),
+    ),
+    Fault(
+        "timeout-on-output-on",
+        POINTS,
+        BenchError,
+        setup=lambda k: lambda res: res.on("OUTP ON", "timeout", nth=k + 1),
+        command=lambda point: "OUTP ON",
+        stop_names_step=True,
+    ),
+    # the instrument reports an error after a setting
+    Fault(
+        "queued-error-after-setting",
+        POINTS,
+        BenchError,
+        setup=lambda k: lambda res: res.on(is_level, "queue", nth=k + 1, answer=OUT_OF_RANGE),
+        command=level_command,
+        answer=OUT_OF_RANGE,
+        says=("-222", "Data out of range"),
+        on_again=False,
+        stop_names_step=True,
+        stop_says=("Data out of range",),
+    ),
+    # the connection is lost
+    Fault(
+        "connection-lost-once",
+        POINTS,
+        BenchError,
+        setup=lambda k: lambda res: res.on(is_level, "lost", nth=k + 1),
+        command=level_command,
+        says=("connection to the calibrator was lost",),
+        stop_says=("connection to the calibrator was lost",),
+    ),
+    # the link dies for good just after output-on at point k: standby cannot be sent
+    Fault(
+        "standby-impossible-timeout",
+        POINTS,
+        SafetyError,
+        setup=lambda k: (
+            lambda res: res.on("OUTP ON", "timeout", nth=k + 1, lasting=True, deliver=True)
+        ),
+        subclass=True,
+        says=("output state unknown", "by hand"),
+        output=("1", "ON"),
+        stop_says=("output state unknown",),
+    ),
+    Fault(
+        "standby-impossible-lost",
+        (0, 11, 19),
+        SafetyError,
+        setup=lambda k: (
+            lambda res: res.on("OUTP ON", "lost", nth=k + 1, lasting=True, deliver=True)
+        ),
+        subclass=True,
+        says=("output state unknown", "by hand"),
+        output=("1", "ON"),
+        stop_says=("output state unknown",),
+    ),
+    # a one-shot timeout on the standby that follows the reading at point k
+    Fault(
+        "standby-after-reading-fails",
+        POINTS,
+        SafetyError,
+        setup=lambda k: lambda res: res.on(nth_after_output_on(k, "OUTP OFF"), "timeout"),
+        subclass=True,
+        command=lambda point: "OUTP OFF",
+        kept=1,
+        stop_says=("output state unknown",),
+    ),
+    # a one-shot timeout on the standby sent when point k starts a new range: after point
+    # k-1's output-on, the step's own standby, then the range change's standby
+    Fault(
+        "standby-at-range-change-fails",
+        (5, 8, 14),
+        BenchError,
+        setup=lambda k: (
+            lambda res: res.on(nth_after_output_on(k - 1, "OUTP OFF", nth=2), "timeout")
+        ),
+        subclass=True,
+        first_of_range=True,
+        command=lambda point: "OUTP OFF",
+        stop_says=("no answer",),
+    ),
+    # the reading source raises: Ctrl-C while a reading is awaited, or a bug of its own
+    Fault(
+        "interrupt-at-reading",
+        POINTS,
+        KeyboardInterrupt,
+        raises=KeyboardInterrupt,
+        names_step=False,
+        stop="aborted",
+        stop_names_step=True,
+        stop_says=("interrupted",),
+    ),
+    Fault(
+        "bug-in-reading-source",
+        POINTS,
+        RuntimeError,
+        raises=lambda: RuntimeError("reading source broke"),
+        names_step=False,
+        stop_names_step=True,
+        stop_says=("internal error", "RuntimeError", "reading source broke"),
+    ),
+]
+CASES = [(fault, k) for fault in FAULTS for k in fault.moments]
+
+
+class TestFaultMatrix:
+    """Every fault of :data:`FAULTS` at each of its moments: what reaches the caller, the
+    output as the device itself reports it, and the journal (one run a case)."""
+
+    @pytest.fixture(
+        scope="class", params=CASES, ids=[f"{fault.name}-point{k}" for fault, k in CASES]
+    )
     @classmethod
-    def faulted(cls, request, fault_run):
-        k = request.param
-        return k, fault_run(lambda res: res.on(is_level, "timeout", nth=k + 1))
+    def faulted(cls, request, fault_run, demo_plan):
+        fault, k = request.param
+        if fault.first_of_range:
+            assert demo_plan[k].first_of_range
+        if fault.setup is not None:
+            return fault, k, None, fault_run(fault.setup(k))
+        raised = fault.raises()
+        return fault, k, raised, fault_run(readings=_raising(k, raised))
 
-    def test_error_names_step_and_command(self, faulted, demo_plan):
-        """A timeout on the level command at point k stops the run with a BenchError naming the step and the command."""
-        k, result = faulted
-        assert_fired(result)
-        point = demo_plan[k]
-        assert result.resource.injected[0][1] == level_command(point)
-        error = result.error
-        assert type(error) is BenchError, repr(error)
-        assert step_name(point) in str(error)
-        assert error.command == level_command(point)
-        assert repr(level_command(point)) in str(error)
-        assert "no answer" in str(error)
+    def test_error_reaches_the_caller(self, faulted, demo_plan):
+        """The caller gets the row's error: the fault's own if the reading source raised it
+        (not disguised as a user error), else a verirun error naming the step, the command
+        and the instrument's answer where the row gives them."""
+        fault, k, raised, result = faulted
+        error, point = result.error, demo_plan[k]
+        if fault.setup is not None:
+            assert_fired(result)
+        if raised is not None:
+            assert error is raised, repr(error)
+        if fault.subclass:
+            assert isinstance(error, fault.error), repr(error)
+        else:
+            assert type(error) is fault.error, repr(error)
+        if fault.names_step:
+            assert step_name(point) in str(error)
+        if fault.command is not None:
+            assert error.command == fault.command(point)
+            assert repr(fault.command(point)) in str(error)
+        if fault.answer is not None:
+            assert error.answer == fault.answer and repr(fault.answer) in str(error)
+        for word in fault.says:
+            assert word in getattr(error, "message", str(error)), str(error)
 
-    def test_output_reads_off_on_the_device(self, faulted):
-        """After a timeout on the level command, the device itself reports its output off."""
-        _, result = faulted
-        assert_fired(result)
-        assert result.bench.output_reads() in OFF
+    def test_output_state_on_the_device(self, faulted):
+        """The device itself reports its output off (on, where standby could not be sent: the
+        caller's error is no false alarm); after a rejected setting, the output was never
+        switched on at that point."""
+        fault, k, _, result = faulted
+        if fault.setup is not None:
+            assert_fired(result)
+        assert result.bench.output_reads() in fault.output
+        if not fault.on_again:
+            sent = result.resource.sent
+            fault_at = result.resource.injected[0][0]
+            assert "OUTP ON" not in sent[fault_at:]
+            assert sent.count("OUTP ON") == k
 
-    def test_journal_keeps_observations_and_stop(self, faulted, demo_plan):
-        """The journal holds every observation before point k and a failed stop naming the step."""
-        k, result = faulted
-        assert_observations_before(result, demo_plan, k)
-        assert_stop(result, "failed", step_name(demo_plan[k]), "no answer")
+    def test_journal_keeps_every_observation_before_the_fault(self, faulted, demo_plan):
+        """The journal holds every observation confirmed before the fault struck."""
+        fault, k, _, result = faulted
+        assert_observations_before(result, demo_plan, k + fault.kept)
 
-
-class TestTimeoutOnOutputOn:
-    @pytest.fixture(scope="class", params=POINTS, ids=lambda k: f"point{k}")
-    @classmethod
-    def faulted(cls, request, fault_run):
-        k = request.param
-        return k, fault_run(lambda res: res.on("OUTP ON", "timeout", nth=k + 1))
-
-    def test_error_names_step_and_command(self, faulted, demo_plan):
-        """A timeout on output-on at point k gives a BenchError naming the step and 'OUTP ON'."""
-        k, result = faulted
-        assert_fired(result)
-        error = result.error
-        assert type(error) is BenchError, repr(error)
-        assert step_name(demo_plan[k]) in str(error)
-        assert error.command == "OUTP ON" and "'OUTP ON'" in str(error)
-
-    def test_output_reads_off_on_the_device(self, faulted):
-        """After a timeout on output-on, the device itself reports its output off."""
-        _, result = faulted
-        assert_fired(result)
-        assert result.bench.output_reads() in OFF
-
-    def test_journal_keeps_observations_and_stop(self, faulted, demo_plan):
-        """The journal holds every observation before point k and a failed stop naming the step."""
-        k, result = faulted
-        assert_observations_before(result, demo_plan, k)
-        assert_stop(result, "failed", step_name(demo_plan[k]))
-
-
-# --- the instrument reports an error after a setting ----------------------------------------
-
-
-class TestQueuedErrorAfterSetting:
-    @pytest.fixture(scope="class", params=POINTS, ids=lambda k: f"point{k}")
-    @classmethod
-    def faulted(cls, request, fault_run):
-        k = request.param
-        return k, fault_run(lambda res: res.on(is_level, "queue", nth=k + 1, answer=OUT_OF_RANGE))
-
-    def test_error_names_step_command_and_answer(self, faulted, demo_plan):
-        """An error queued after the level command at point k is reported with the step, the command and the answer."""
-        k, result = faulted
-        assert_fired(result)
-        point = demo_plan[k]
-        error = result.error
-        assert type(error) is BenchError, repr(error)
-        text = str(error)
-        assert step_name(point) in text
-        assert error.command == level_command(point) and repr(level_command(point)) in text
-        assert error.answer == OUT_OF_RANGE and repr(OUT_OF_RANGE) in text
-        assert "-222" in error.message and "Data out of range" in error.message
-
-    def test_output_reads_off_on_the_device(self, faulted):
-        """After the instrument rejects a setting, the device itself reports its output off."""
-        _, result = faulted
-        assert_fired(result)
-        assert result.bench.output_reads() in OFF
-
-    def test_output_was_never_switched_on_at_that_point(self, faulted):
-        """After a rejected setting at point k the driver never sends output-on for that point."""
-        k, result = faulted
-        sent = result.resource.sent
-        fault_at = result.resource.injected[0][0]
-        assert "OUTP ON" not in sent[fault_at:]
-        assert sent.count("OUTP ON") == k
-
-    def test_journal_keeps_observations_and_stop(self, faulted, demo_plan):
-        """The journal holds every observation before point k and a failed stop with the instrument's error."""
-        k, result = faulted
-        assert_observations_before(result, demo_plan, k)
-        assert_stop(result, "failed", step_name(demo_plan[k]), "Data out of range")
+    def test_journal_ends_with_a_stop_saying_why(self, faulted, demo_plan):
+        """The journal ends with a stop document of the row's status saying why (naming the
+        step, where the row says so)."""
+        fault, k, _, result = faulted
+        words = fault.stop_says + ((step_name(demo_plan[k]),) if fault.stop_names_step else ())
+        assert_stop(result, fault.stop, *words)
 
 
 class TestStaleErrorBeforeRun:
@@ -215,151 +325,6 @@ class TestStaleErrorBeforeRun:
         assert len(result.observations) == 20
         notes = [d["text"] for d in result.documents if d["kind"] == "note"]
         assert any("Data out of range" in text for text in notes), notes
-
-
-# --- the connection is lost ------------------------------------------------------------------
-
-
-class TestConnectionLostOnce:
-    @pytest.fixture(scope="class", params=POINTS, ids=lambda k: f"point{k}")
-    @classmethod
-    def faulted(cls, request, fault_run):
-        k = request.param
-        return k, fault_run(lambda res: res.on(is_level, "lost", nth=k + 1))
-
-    def test_error_names_step_and_command(self, faulted, demo_plan):
-        """A connection lost on the level command at point k gives a BenchError naming the step and the command."""
-        k, result = faulted
-        assert_fired(result)
-        point = demo_plan[k]
-        error = result.error
-        assert type(error) is BenchError, repr(error)
-        assert step_name(point) in str(error)
-        assert "connection to the calibrator was lost" in str(error)
-        assert error.command == level_command(point)
-
-    def test_output_reads_off_on_the_device(self, faulted):
-        """When the link comes back for standby, the device itself reports its output off."""
-        _, result = faulted
-        assert_fired(result)
-        assert result.bench.output_reads() in OFF
-
-    def test_journal_keeps_observations_and_stop(self, faulted, demo_plan):
-        """The journal holds every observation before point k and a failed stop naming the lost connection."""
-        k, result = faulted
-        assert_observations_before(result, demo_plan, k)
-        assert_stop(result, "failed", "connection to the calibrator was lost")
-
-
-class TestStandbyImpossible:
-    """The link dies for good just after output-on at point k: standby cannot be sent."""
-
-    @pytest.fixture(
-        scope="class",
-        params=[("timeout", k) for k in POINTS] + [("lost", k) for k in (0, 11, 19)],
-        ids=lambda p: f"{p[0]}-point{p[1]}",
-    )
-    @classmethod
-    def faulted(cls, request, fault_run):
-        action, k = request.param
-        return k, fault_run(
-            lambda res: res.on("OUTP ON", action, nth=k + 1, lasting=True, deliver=True)
-        )
-
-    def test_safety_error_says_output_state_unknown(self, faulted):
-        """When standby cannot be sent, the caller gets a SafetyError telling the operator the output state is unknown."""
-        _, result = faulted
-        assert_fired(result)
-        error = result.error
-        assert isinstance(error, SafetyError), repr(error)
-        assert "output state unknown" in str(error)
-        assert "by hand" in str(error)
-
-    def test_device_output_really_is_on(self, faulted):
-        """The SafetyError is no false alarm: the device itself still reports its output on."""
-        _, result = faulted
-        assert_fired(result)
-        assert result.bench.output_reads() not in OFF
-
-    def test_safety_error_names_the_step(self, faulted, demo_plan):
-        """The SafetyError that reaches the caller names the step at which the output was left on."""
-        k, result = faulted
-        assert step_name(demo_plan[k]) in str(result.error)
-
-    def test_journal_keeps_observations_and_stop(self, faulted, demo_plan):
-        """The journal holds every observation before point k and a failed stop saying the output state is unknown."""
-        k, result = faulted
-        assert_observations_before(result, demo_plan, k)
-        assert_stop(result, "failed", "output state unknown")
-
-
-class TestStandbyAfterReadingFails:
-    """A one-shot timeout on the standby that follows the reading at point k."""
-
-    @pytest.fixture(scope="class", params=POINTS, ids=lambda k: f"point{k}")
-    @classmethod
-    def faulted(cls, request, fault_run):
-        k = request.param
-        return k, fault_run(lambda res: res.on(nth_after_output_on(k, "OUTP OFF"), "timeout"))
-
-    def test_safety_error_names_step_and_standby(self, faulted, demo_plan):
-        """A standby that times out after the reading gives a SafetyError naming the step and 'OUTP OFF'."""
-        k, result = faulted
-        assert_fired(result)
-        error = result.error
-        assert isinstance(error, SafetyError), repr(error)
-        assert step_name(demo_plan[k]) in str(error)
-        assert error.command == "OUTP OFF"
-
-    def test_output_reads_off_on_the_device(self, faulted):
-        """The run's own guard sends standby again, and the device itself reports its output off."""
-        _, result = faulted
-        assert_fired(result)
-        assert result.bench.output_reads() in OFF
-
-    def test_reading_taken_before_the_failed_standby_is_journaled(self, faulted, demo_plan):
-        """The reading taken at point k, before its standby failed, is in the journal."""
-        k, result = faulted
-        assert_observations_before(result, demo_plan, k + 1)
-
-    def test_journal_ends_with_a_stop(self, faulted):
-        """The journal ends with a failed stop saying the output state was unknown."""
-        _, result = faulted
-        assert_stop(result, "failed", "output state unknown")
-
-
-class TestStandbyAtRangeChangeFails:
-    """A one-shot timeout on the standby sent when point k starts a new range."""
-
-    @pytest.fixture(scope="class", params=[5, 8, 14], ids=lambda k: f"point{k}")
-    @classmethod
-    def faulted(cls, request, fault_run, demo_plan):
-        k = request.param
-        assert demo_plan[k].first_of_range
-        # After point k-1's output-on: the step's own standby, then the range change's standby.
-        return k, fault_run(
-            lambda res: res.on(nth_after_output_on(k - 1, "OUTP OFF", nth=2), "timeout")
-        )
-
-    def test_error_names_the_step(self, faulted, demo_plan):
-        """A timeout on the range-change standby of point k gives an error naming step k and 'OUTP OFF'."""
-        k, result = faulted
-        assert_fired(result)
-        assert isinstance(result.error, BenchError), repr(result.error)
-        assert step_name(demo_plan[k]) in str(result.error)
-        assert result.error.command == "OUTP OFF"
-
-    def test_output_reads_off_on_the_device(self, faulted):
-        """After the range-change standby failed once, the device itself reports its output off."""
-        _, result = faulted
-        assert_fired(result)
-        assert result.bench.output_reads() in OFF
-
-    def test_journal_keeps_observations_and_stop(self, faulted, demo_plan):
-        """The journal holds every observation before point k and a failed stop."""
-        k, result = faulted
-        assert_observations_before(result, demo_plan, k)
-        assert_stop(result, "failed", "no answer")
 
 
 # --- the instrument is not the one the bench file names --------------------------------------
@@ -404,76 +369,11 @@ class TestIdentifyTimesOut:
         assert result.error.command == "*IDN?"
 
 
-# --- the reading source raises ----------------------------------------------------------------
+# --- the reading source stops the run ------------------------------------------------------
 
 
 def _raising(k: int, error: BaseException):
     return lambda scripted: FaultyReadings(scripted, index=k, error=error)
-
-
-class TestInterruptAtReading:
-    @pytest.fixture(scope="class", params=POINTS, ids=lambda k: f"point{k}")
-    @classmethod
-    def faulted(cls, request, fault_run):
-        k = request.param
-        return k, fault_run(readings=_raising(k, KeyboardInterrupt()))
-
-    def test_interrupt_reaches_the_caller(self, faulted):
-        """Ctrl-C while the reading of point k is awaited reaches the caller as KeyboardInterrupt."""
-        _, result = faulted
-        assert type(result.error) is KeyboardInterrupt, repr(result.error)
-
-    def test_output_reads_off_on_the_device(self, faulted):
-        """After Ctrl-C at a reading, the device itself reports its output off."""
-        _, result = faulted
-        assert result.bench.output_reads() in OFF
-
-    def test_journal_keeps_observations_and_an_aborted_stop(self, faulted, demo_plan):
-        """The journal holds every observation before point k and ends with an aborted stop."""
-        k, result = faulted
-        assert_observations_before(result, demo_plan, k)
-        assert_stop(result, "aborted")
-
-    def test_stop_says_it_was_interrupted(self, faulted):
-        """The stop document of a run stopped by Ctrl-C says it was interrupted."""
-        _, result = faulted
-        assert_stop(result, "aborted", "interrupted")
-
-    def test_stop_names_the_step(self, faulted, demo_plan):
-        """The stop document of an interrupted run names the step it was interrupted at."""
-        k, result = faulted
-        assert_stop(result, "aborted", step_name(demo_plan[k]))
-
-
-class TestBugInReadingSource:
-    @pytest.fixture(scope="class", params=POINTS, ids=lambda k: f"point{k}")
-    @classmethod
-    def faulted(cls, request, fault_run):
-        k = request.param
-        error = RuntimeError("reading source broke")
-        return k, error, fault_run(readings=_raising(k, error))
-
-    def test_bug_reaches_the_caller_unchanged(self, faulted):
-        """A bug in the reading source reaches the caller as itself, not disguised as a user error."""
-        _, error, result = faulted
-        assert result.error is error
-        assert not isinstance(result.error, VerirunError)
-
-    def test_output_reads_off_on_the_device(self, faulted):
-        """After a bug in the reading source, the device itself reports its output off."""
-        _, _, result = faulted
-        assert result.bench.output_reads() in OFF
-
-    def test_journal_keeps_observations_and_stop(self, faulted, demo_plan):
-        """The journal holds every observation before point k and a failed stop naming the internal error."""
-        k, _, result = faulted
-        assert_observations_before(result, demo_plan, k)
-        assert_stop(result, "failed", "internal error", "RuntimeError", "reading source broke")
-
-    def test_stop_names_the_step(self, faulted, demo_plan):
-        """The stop document of a run stopped by a bug names the step it happened at."""
-        k, _, result = faulted
-        assert_stop(result, "failed", step_name(demo_plan[k]))
 
 
 class TestOperatorAbort:

@@ -7,17 +7,13 @@ reached the calibrator, and no run folder is made.
 
 from __future__ import annotations
 
-import datetime as dt
 from pathlib import Path
 
 import pytest
+from runkit import build_run
 
 from verirun.bench.calibrator import Calibrator
 from verirun.bench.config import load_bench
-from verirun.clock import VirtualClock
-from verirun.conduct import execute
-from verirun.console import QuietConsole
-from verirun.engine import RunContext
 from verirun.errors import ProcedureError
 from verirun.procedure.load import load_procedure
 from verirun.procedure.plan import plan
@@ -25,30 +21,20 @@ from verirun.readings import ScriptedReadings, VirtualMeter
 
 DATA = Path(__file__).resolve().parent.parent / "data"
 GOOD = (DATA / "bench-meter-readings.csv").read_text(encoding="utf-8")
-CONTEXT = RunContext(
-    lab={"name": "Test lab"},
-    customer={"name": "C", "address": []},
-    item={"serial": "S-1"},
-    operator="tester",
-    simulated=True,
-)
 
 
 def refused(tmp_path, bench, readings) -> list[str]:
     """Run the test procedure with ``readings`` on the faulty bench; return the problems."""
-    calibrator = Calibrator(bench.resource, "scpi-generic")
     with pytest.raises(ProcedureError) as info:
-        execute(
-            procedure=load_procedure(DATA / "bench-meter.yaml"),
-            bench=load_bench(DATA / "bench-test.yaml"),
-            context=CONTEXT,
-            readings=readings,
-            console=QuietConsole(),
+        build_run(
             runs_dir=tmp_path / "runs",
-            reports_dir=tmp_path / "reports",
-            simulate=True,
-            clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)),
-            calibrator=calibrator,
+            procedure=DATA / "bench-meter.yaml",
+            bench=DATA / "bench-test.yaml",
+            readings=readings,
+            lab={"name": "Test lab"},
+            item="S-1",
+            operator="tester",
+            calibrator=bench.resource,
         )
     assert bench.resource.sent == [], "a command reached the calibrator"
     assert not (tmp_path / "runs").exists()

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-import textwrap
+from pathlib import Path
 
 import pytest
 
@@ -11,35 +11,9 @@ from verirun.errors import ProcedureError
 from verirun.metrology import scales, tolerance
 from verirun.procedure.load import load_procedure, load_procedure_text
 
-GOOD = textwrap.dedent("""\
-    format: 1
-    procedure: {id: T-1, title: Test procedure, revision: A}
-    meter: {kind: analog multimeter}
-    ranges:
-      - id: dcv-10
-        function: dc-voltage
-        full-scale: 10 V
-        arc: 90 deg
-        accuracy: {percent-of-full-scale: 2}
-        resolution: 0.05 V
-        points: [2 V, 10]
-      - id: ohm
-        function: resistance
-        scale: series-ohms
-        centre: 10 ohm
-        arc: 90
-        accuracy: {degrees: 3}
-        resolution: 0.5 deg
-        points: [10 ohm]
-      - id: acv
-        function: ac-voltage
-        full-scale: 10 V
-        resolution: 0.05 V
-        accuracy:
-          - {percent-of-reading: 1, from: 40 Hz, to: 1 kHz}
-          - {percent-of-reading: 2, from: 1 kHz, to: 20 kHz}
-        points: [{at: 5 V, frequency: 50 Hz}, {at: 5 V, frequency: 10 kHz}]
-    """)
+DATA = Path(__file__).resolve().parents[1] / "data"
+
+GOOD = (DATA / "valid-procedure.yaml").read_text(encoding="utf-8")
 
 
 def write(tmp_path, text, name="proc.yaml"):

@@ -198,40 +198,32 @@ def close_run(
     ``simulated=False`` records it as a calibration (the record says so; the calibrator driven
     is still the simulated one), so that it counts in an item's history and due date.
     """
+    from runkit import build_run
+
     from verirun.clock import VirtualClock
-    from verirun.conduct import as_found_of, execute
-    from verirun.console import QuietConsole
-    from verirun.engine import RunContext
-    from verirun.lab import load_lab
+    from verirun.conduct import as_found_of
     from verirun.procedure.load import load_procedure
     from verirun.register.standards import load_bench
 
     when = when or dt.datetime(2026, 3, 1, 9, 0, tzinfo=dt.timezone.utc)
-    lab = load_lab(DATA / "lab.yaml")
     procedure = load_procedure(DATA / procedure)
     as_found = (
         None
         if as_left_of is None
         else as_found_of(as_left_of, serial=serial, procedure=procedure, adjustment="span trimmed")
     )
-    context = RunContext(
-        lab=lab.lab.model_dump(mode="json"),
-        customer={"name": "Test Customer", "address": []},
+    return build_run(
+        runs_dir=runs_dir,
+        procedure=procedure,
+        bench=load_bench(DATA / bench),
+        readings=_Typed(list(readings)),
+        lab=DATA / "lab.yaml",
+        customer="Test Customer",
         item={"serial": serial, "asset": None, "condition": "No damage seen.", "received": None},
         operator="tester",
         simulated=simulated,
         environment={"temperature_c": 23.0, "humidity_pct": 40.0},
         as_found=as_found,
-    )
-    return execute(
-        procedure=procedure,
-        bench=load_bench(DATA / bench),
-        context=context,
-        readings=_Typed(list(readings)),
-        console=QuietConsole(),
-        runs_dir=runs_dir,
-        reports_dir=runs_dir.parent / "reports",
-        simulate=True,
         clock=VirtualClock(when),
     )
 

@@ -3,12 +3,59 @@
 from __future__ import annotations
 
 import uuid
+from pathlib import Path
 
 import pytest
 from at_the_bench import calibrator_at_the_bench
 
 from verirun.cli import main
 from verirun.register.db import RegisterError, url_of
+
+DATA = Path(__file__).resolve().parents[1] / "data" / "register"
+
+
+def standard_from_bench(register: str, *extra: str) -> int:
+    """`verirun register standard --from-bench`: the register tests' bench's standard entered."""
+    return main(
+        [
+            "register",
+            "standard",
+            "--from-bench",
+            str(DATA / "bench.yaml"),
+            *extra,
+            "--register",
+            register,
+        ]
+    )
+
+
+def run_by_asset(readings: Path, serial: str, customer: str, register: str) -> int:
+    """`verirun run` at the bench of the register tests' procedure, on the bench file that names
+    its standard by asset, numbered by ``register``; the exit code."""
+    return main(
+        [
+            "run",
+            str(DATA / "procedure.yaml"),
+            "--bench",
+            str(DATA / "bench-by-asset.yaml"),
+            "--readings",
+            str(readings),
+            "--serial",
+            serial,
+            "--customer",
+            customer,
+            "--condition",
+            "as new",
+            "--lab",
+            str(DATA / "lab.yaml"),
+            "--temperature",
+            "23",
+            "--humidity",
+            "40",
+            "--register",
+            register,
+        ]
+    )
 
 
 class TestNames:
@@ -48,53 +95,13 @@ class TestCommandLine:
     def test_a_run_at_the_command_line_uses_the_named_register(self, tmp_path, capsys, monkeypatch):
         """`run --register FILE` takes its standard by asset and its certificate number from an
         embedded register made on first use, and `runs --register FILE` lists it."""
-        from pathlib import Path
 
-        data = Path(__file__).resolve().parent.parent / "data" / "register"
         monkeypatch.delenv("VERIRUN_REGISTER", raising=False)
         name = str(tmp_path / "lab-register.db")
-        assert (
-            main(
-                [
-                    "register",
-                    "standard",
-                    "--from-bench",
-                    str(data / "bench.yaml"),
-                    "--register",
-                    name,
-                ]
-            )
-            == 0
-        )
+        assert standard_from_bench(name) == 0
         # A calibration at the bench (a dry run takes no number from the lab's sequence).
         with calibrator_at_the_bench():
-            assert (
-                main(
-                    [
-                        "run",
-                        str(data / "procedure.yaml"),
-                        "--bench",
-                        str(data / "bench-by-asset.yaml"),
-                        "--readings",
-                        str(data / "readings.csv"),
-                        "--serial",
-                        "CLI-1",
-                        "--condition",
-                        "as new",
-                        "--customer",
-                        "Test Customer",
-                        "--lab",
-                        str(data / "lab.yaml"),
-                        "--temperature",
-                        "23",
-                        "--humidity",
-                        "40",
-                        "--register",
-                        name,
-                    ]
-                )
-                == 0
-            )
+            assert run_by_asset(DATA / "readings.csv", "CLI-1", "Test Customer", name) == 0
         reports = list((tmp_path / "reports").iterdir())
         assert (
             len(reports) == 1
@@ -117,24 +124,10 @@ class TestCommandLine:
         the one the run started with (or, after the standard's recalibration was entered, the same
         but for its renewed calibration, noted), and the run completes with its register number."""
         import json
-        from pathlib import Path
 
-        data = Path(__file__).resolve().parent.parent / "data" / "register"
         monkeypatch.delenv("VERIRUN_REGISTER", raising=False)
         name = str(tmp_path / "lab-register.db")
-        assert (
-            main(
-                [
-                    "register",
-                    "standard",
-                    "--from-bench",
-                    str(data / "bench.yaml"),
-                    "--register",
-                    name,
-                ]
-            )
-            == 0
-        )
+        assert standard_from_bench(name) == 0
         stopped = tmp_path / "stopped.csv"
         stopped.write_text(
             "range,at,reading\ndcv-10,2 V,2.01 V\ndcv-10,5 V,abort\n", encoding="utf-8"
@@ -143,53 +136,13 @@ class TestCommandLine:
         rest.write_text(
             "range,at,reading\ndcv-10,5 V,5.02 V\ndcv-10,8 V,7.98 V\n", encoding="utf-8"
         )
-        common = ["--lab", str(data / "lab.yaml")]
         bench = calibrator_at_the_bench()  # a calibration: the register numbers it
         bench.__enter__()
-        assert (
-            main(
-                [
-                    "run",
-                    str(data / "procedure.yaml"),
-                    "--bench",
-                    str(data / "bench-by-asset.yaml"),
-                    "--readings",
-                    str(stopped),
-                    "--serial",
-                    "RES-1",
-                    "--customer",
-                    "C",
-                    "--condition",
-                    "as new",
-                    "--temperature",
-                    "23",
-                    "--humidity",
-                    "40",
-                    "--register",
-                    name,
-                    *common,
-                ]
-            )
-            == 2
-        )
+        assert run_by_asset(stopped, "RES-1", "C", name) == 2
         (run_dir,) = (tmp_path / "runs").iterdir()
         if renewed:
             assert (
-                main(
-                    [
-                        "register",
-                        "standard",
-                        "--from-bench",
-                        str(data / "bench.yaml"),
-                        "--certificate",
-                        "RT-CC-0002",
-                        "--due",
-                        "2100-06-30",
-                        "--register",
-                        name,
-                    ]
-                )
-                == 0
+                standard_from_bench(name, "--certificate", "RT-CC-0002", "--due", "2100-06-30") == 0
             )
         capsys.readouterr()
         try:
@@ -199,7 +152,7 @@ class TestCommandLine:
                         "resume",
                         str(run_dir),
                         "--bench",
-                        str(data / "bench-by-asset.yaml"),
+                        str(DATA / "bench-by-asset.yaml"),
                         "--readings",
                         str(rest),
                         "--register",
@@ -220,4 +173,4 @@ class TestCommandLine:
             == renewed
         )
         # Without the register the asset cannot be resolved: a clear error, not a traceback.
-        assert main(["resume", str(run_dir), "--bench", str(data / "bench-by-asset.yaml")]) == 1
+        assert main(["resume", str(run_dir), "--bench", str(DATA / "bench-by-asset.yaml")]) == 1

@@ -350,7 +350,7 @@ sys.exit(main(["register", "sync", "--runs", sys.argv[1]]))
 _CLOSER = r"""
 import sys, datetime as dt
 from pathlib import Path
-sys.path.insert(0, sys.argv[1])
+sys.path[:0] = [sys.argv[1], str(Path(sys.argv[1]).parent)]  # the register's conftest, runkit
 from conftest import close_run
 import time
 runs_dir, count = Path(sys.argv[2]), int(sys.argv[3])

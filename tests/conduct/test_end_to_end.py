@@ -6,23 +6,13 @@ file; the certificate is then rendered again from the stored record and compared
 
 from __future__ import annotations
 
-import datetime as dt
 import json
 
 import pytest
+from runkit import demo_run, sim_resources
 
-from verirun.bench.calibrator import Calibrator
-from verirun.bench.config import load_bench
-from verirun.bench.sim import SIM_RESOURCE, sim_library
 from verirun.certificate.render import write_certificate
 from verirun.cli import main
-from verirun.clock import VirtualClock
-from verirun.conduct import execute
-from verirun.console import QuietConsole
-from verirun.engine import RunContext
-from verirun.lab import load_lab
-from verirun.procedure.load import load_procedure
-from verirun.readings import ScriptedReadings
 from verirun.record.journal import load_record, read_journal
 
 # Expected verdicts of the scripted readings (tests/data/qm40-readings.csv), each worked by hand:
@@ -82,49 +72,22 @@ class Recorder:
 @pytest.fixture
 def sim(tmp_path):
     """A fresh simulated calibrator (its own copy of the device file) and a raw handle to it."""
-    import pyvisa
-
-    rm = pyvisa.ResourceManager(sim_library(tmp_path / "sim"))
-    raw = rm.open_resource(SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=300)
+    (raw,) = sim_resources(tmp_path)
     yield raw
 
 
-def run_demo(tmp_path, sim, demo_procedure_path, demo_bench_path, demo_lab_path, data_dir):
+def run_demo(make_run, sim):
     recorder = Recorder(sim)
-    calibrator = Calibrator(recorder, "scpi-generic")
-    lab = load_lab(demo_lab_path)
-    context = RunContext(
-        lab=lab.lab.model_dump(mode="json"),
-        customer={"name": "Test customer", "address": []},
-        item={"serial": "SN-1", "asset": None, "condition": "as new"},
-        operator="tester",
-        simulated=True,
-    )
-    finished = execute(
-        procedure=load_procedure(demo_procedure_path),
-        bench=load_bench(demo_bench_path),
-        context=context,
-        readings=ScriptedReadings(data_dir / "qm40-readings.csv"),
-        console=QuietConsole(),
-        runs_dir=tmp_path / "runs",
-        reports_dir=tmp_path / "reports",
-        simulate=True,
-        clock=VirtualClock(dt.datetime(2026, 12, 1, 9, 0, tzinfo=dt.timezone.utc)),
-        uid="0123456789abcdef0123456789abcdef",
-        calibrator=calibrator,
-    )
-    return finished, recorder
+    return make_run(**demo_run(), calibrator=recorder), recorder
 
 
 class TestDemoEndToEnd:
     def test_verdicts_commands_output_off_and_certificate(
-        self, tmp_path, sim, demo_procedure_path, demo_bench_path, demo_lab_path, data_dir
+        self, tmp_path, sim, make_run, demo_procedure_path
     ):
         """The demo run gives the hand-worked verdicts, drives the calibrator point by point,
         leaves its output off, and `certify` reproduces the certificate byte for byte."""
-        finished, recorder = run_demo(
-            tmp_path, sim, demo_procedure_path, demo_bench_path, demo_lab_path, data_dir
-        )
+        finished, recorder = run_demo(make_run, sim)
         record = finished.record
         verdicts = {row["key"]: row["verdict"] for row in record["points"]}
         assert verdicts == EXPECTED
@@ -184,15 +147,11 @@ class TestDemoEndToEnd:
             == first
         )
 
-    def test_record_holds_what_the_run_used(
-        self, tmp_path, sim, demo_procedure_path, demo_bench_path, demo_lab_path, data_dir
-    ):
+    def test_record_holds_what_the_run_used(self, tmp_path, sim, make_run, demo_procedure_path):
         """The run record embeds the procedure text and hash, the bench identity and every window."""
         import hashlib
 
-        finished, _ = run_demo(
-            tmp_path, sim, demo_procedure_path, demo_bench_path, demo_lab_path, data_dir
-        )
+        finished, _ = run_demo(make_run, sim)
         record = json.loads(finished.record_path.read_text())
         text = demo_procedure_path.read_text(encoding="utf-8")
         assert record["procedure"]["text"] == text

@@ -30,7 +30,7 @@ from verirun.record.build import build_record
 from verirun.record.journal import RECORD_FORMAT, read_journal, write_record
 from verirun.record.verify import verified_record
 
-STORED = Path(__file__).resolve().parent / "data" / "stored-runs"
+STORED = Path(__file__).resolve().parents[1] / "data" / "stored-runs"
 RUNS = sorted(path for path in STORED.iterdir() if (path / "journal.jsonl").is_file())
 #: The record format and certificate template each set was written with.
 WRITTEN_WITH = {"format1": (1, "1"), "format3": (3, "3")}

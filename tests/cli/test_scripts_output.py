@@ -11,7 +11,7 @@ import pytest
 
 from verirun import cli
 
-DATA = Path(__file__).resolve().parent / "data"
+DATA = Path(__file__).resolve().parents[1] / "data"
 READINGS = (DATA / "bench-meter-readings.csv").read_text(encoding="utf-8")
 
 

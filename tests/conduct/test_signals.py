@@ -21,27 +21,21 @@ import threading
 from pathlib import Path
 
 import pytest
-from runkit import read_until
+from runkit import build_run, read_until, sim_resources
 
 from verirun import conduct as session_mod
 from verirun.bench.calibrator import Calibrator
-from verirun.bench.config import load_bench
 from verirun.bench.safety import output_guard
-from verirun.bench.sim import SIM_RESOURCE, sim_library
 from verirun.clock import VirtualClock
-from verirun.conduct import _sigterm_as_interrupt, execute
+from verirun.conduct import _sigterm_as_interrupt
 from verirun.console import QuietConsole
-from verirun.engine import RunContext
 from verirun.errors import SafetyError
 from verirun.interrupts import deferred_signals
-from verirun.lab import load_lab
-from verirun.procedure.load import load_procedure
-from verirun.readings import ScriptedReadings
 from verirun.record import journal as record_mod
 from verirun.record.journal import Journal, read_journal, verify_chain
 from verirun.record.verify import verified_record
 
-EDGE = Path(__file__).resolve().parent / "data" / "edge"
+EDGE = Path(__file__).resolve().parents[1] / "data" / "edge"
 PROCEDURE, BENCH, READINGS = EDGE / "dcv-small.yaml", EDGE / "bench.yaml", EDGE / "readings.csv"
 LAB = EDGE / "lab.yaml"
 #: The standby and its read-back in the scpi-generic profile: off, the error check, the state query.
@@ -114,15 +108,8 @@ class Spy:
 @pytest.fixture
 def device(tmp_path):
     """A fresh simulated calibrator: the resource the driver uses, and a probe of its own."""
-    import pyvisa
 
-    manager = pyvisa.ResourceManager(sim_library(tmp_path / "sim"))
-    opened = [
-        manager.open_resource(
-            SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=200
-        )
-        for _ in range(2)
-    ]
+    opened = sim_resources(tmp_path, count=2, timeout=200)
     yield opened
     for resource in opened:
         resource.close()
@@ -394,14 +381,20 @@ class TestSignalAtJournalFsync:
         assert verify_chain(docs) == []
 
 
-def _context() -> RunContext:
-    return RunContext(
-        lab=load_lab(LAB).lab.model_dump(mode="json"),
-        customer={"name": "C", "address": []},
+def _edge_run(folder: Path, resource, **given):
+    """A whole run of the edge procedure in ``folder``, driving ``resource``."""
+    edge = dict(
+        runs_dir=folder / "runs",
+        procedure=PROCEDURE,
+        bench=BENCH,
+        readings=READINGS,
+        lab=LAB,
         item={"serial": "EDGE-1", "asset": None, "condition": "as new"},
         operator="tester",
-        simulated=True,
+        clock=VirtualClock(dt.datetime(2026, 12, 1, 9, tzinfo=dt.timezone.utc)),
+        calibrator=resource,
     )
+    return build_run(**{**edge, **given})
 
 
 class _RunOnSpy:
@@ -414,19 +407,7 @@ class _RunOnSpy:
     def run(self):
         with _sigterm_as_interrupt():  # as the CLI's process has, around the whole call
             try:
-                execute(
-                    procedure=load_procedure(PROCEDURE),
-                    bench=load_bench(BENCH),
-                    context=_context(),
-                    readings=ScriptedReadings(READINGS),
-                    console=QuietConsole(),
-                    runs_dir=self.tmp_path / "runs",
-                    reports_dir=self.tmp_path / "reports",
-                    simulate=True,
-                    clock=VirtualClock(dt.datetime(2026, 12, 1, 9, tzinfo=dt.timezone.utc)),
-                    uid="e" * 32,
-                    calibrator=Calibrator(self.spy, "scpi-generic"),
-                )
+                _edge_run(self.tmp_path, self.spy, uid="e" * 32)
             except BaseException as exc:  # noqa: BLE001 - the test looks at what arrived
                 return exc
         return None
@@ -491,19 +472,7 @@ class TestSignalsInARun:
 
         with _sigterm_as_interrupt():
             try:
-                execute(
-                    procedure=load_procedure(PROCEDURE),
-                    bench=load_bench(BENCH),
-                    context=_context(),
-                    readings=ScriptedReadings(READINGS),
-                    console=Console(),
-                    runs_dir=tmp_path / "runs",
-                    reports_dir=tmp_path / "reports",
-                    simulate=True,
-                    clock=VirtualClock(dt.datetime(2026, 12, 1, 9, tzinfo=dt.timezone.utc)),
-                    uid="f" * 32,
-                    calibrator=Calibrator(run.spy, "scpi-generic"),
-                )
+                _edge_run(tmp_path, run.spy, console=Console(), uid="f" * 32)
                 error = None
             except BaseException as exc:  # noqa: BLE001
                 error = exc
@@ -695,19 +664,7 @@ class TestSignalAfterSilence:
         console = Console(RichConsole(file=io.StringIO(), width=200), input_func=typist)
         with _sigterm_as_interrupt():
             with pytest.raises(KeyboardInterrupt) as info:
-                execute(
-                    procedure=load_procedure(PROCEDURE),
-                    bench=load_bench(BENCH),
-                    context=_context(),
-                    readings=console,
-                    console=console,
-                    runs_dir=tmp_path / "runs",
-                    reports_dir=tmp_path / "reports",
-                    simulate=True,
-                    clock=VirtualClock(dt.datetime(2026, 12, 1, 9, tzinfo=dt.timezone.utc)),
-                    uid="d" * 32,
-                    calibrator=Calibrator(spy, "scpi-generic"),
-                )
+                _edge_run(tmp_path, spy, readings=None, console=console, uid="d" * 32)
         assert spy.sent[-3:] == MAKE_SAFE and probe.query("OUTP?") in ("0", "OFF")
         docs = read_journal(info.value.run_dir / "journal.jsonl").documents
         assert (

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import datetime as dt
 import io
 import os
 import subprocess
@@ -12,24 +11,18 @@ from pathlib import Path
 
 import pytest
 from rich.console import Console as RichConsole
-from runkit import read_until
+from runkit import build_run, read_until, sim_resources
 
-from verirun.bench.calibrator import Calibrator
 from verirun.bench.config import load_bench, load_bench_text
-from verirun.bench.sim import SIM_RESOURCE, sim_library
-from verirun.clock import VirtualClock
-from verirun.conduct import execute
 from verirun.console import Console, LineReader, QuietConsole
-from verirun.engine import RunContext
 from verirun.errors import RunAborted, UnitError
-from verirun.lab import load_lab
-from verirun.procedure.load import load_procedure, load_procedure_text
+from verirun.procedure.load import load_procedure_text
 from verirun.readings import MAX_ENTRY_LENGTH, OperatorSilent
 from verirun.record.documents import validate_document
 from verirun.record.journal import read_journal, verify_chain
 from verirun.units import MAX_QUANTITY_LENGTH, parse_quantity, split_quantity
 
-EDGE = Path(__file__).resolve().parent / "data" / "edge"
+EDGE = Path(__file__).resolve().parents[1] / "data" / "edge"
 PROCEDURE, BENCH, READINGS = EDGE / "dcv-small.yaml", EDGE / "bench.yaml", EDGE / "readings.csv"
 LAB = EDGE / "lab.yaml"
 #: Stands for "the operator typed nothing before the time limit" in a Typist's lines.
@@ -58,15 +51,7 @@ class Bench:
     """A fresh simulated calibrator, with a probe of its own to read the output state."""
 
     def __init__(self, folder):
-        import pyvisa
-
-        manager = pyvisa.ResourceManager(sim_library(folder / "sim"))
-        self.used, self.probe = (
-            manager.open_resource(
-                SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=200
-            )
-            for _ in range(2)
-        )
+        self.used, self.probe = sim_resources(folder, count=2, timeout=200)
 
     def output(self) -> str:
         return self.probe.query("OUTP?")
@@ -78,26 +63,16 @@ def interactive_run(tmp_path, lines, *, procedure=None, bench=None):
     out = io.StringIO()
     typist = Typist(lines)
     console = Console(RichConsole(file=out, width=200, highlight=False), input_func=typist)
-    context = RunContext(
-        lab=load_lab(LAB).lab.model_dump(mode="json"),
-        customer={"name": "C", "address": []},
-        item={"serial": "S"},
-        operator="op",
-        simulated=True,
-    )
     error, finished = None, None
     try:
-        finished = execute(
-            procedure=procedure or load_procedure(PROCEDURE),
-            bench=bench or load_bench(BENCH),
-            context=context,
-            readings=console,
-            console=console,
+        finished = build_run(
             runs_dir=tmp_path / "runs",
-            reports_dir=tmp_path / "reports",
-            simulate=True,
-            clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)),
-            calibrator=Calibrator(sim.used, "scpi-generic"),
+            procedure=procedure or PROCEDURE,
+            bench=bench or BENCH,
+            readings=None,
+            console=console,
+            lab=LAB,
+            calibrator=sim.used,
         )
     except BaseException as exc:  # noqa: BLE001 - the test looks at what arrived
         error = exc

@@ -7,10 +7,10 @@ import csv
 import dataclasses
 import json
 import math
-import textwrap
 from pathlib import Path
 
 import pytest
+from runkit import simulated_run_args
 
 from verirun.cli import main
 from verirun.errors import ProcedureError, RecordError, UnitError
@@ -20,22 +20,9 @@ from verirun.procedure.load import load_procedure_text
 from verirun.procedure.plan import plan
 from verirun.readings import ScriptedReadings, parse_entry
 
-DATA = Path(__file__).resolve().parent / "data"
+DATA = Path(__file__).resolve().parents[1] / "data"
 
-OHMS = textwrap.dedent("""\
-    format: 1
-    procedure: {id: EDGE-1, title: Ends of the scales, revision: 1}
-    meter: {kind: analog multimeter (invented)}
-    ranges:
-      - id: ohm
-        function: resistance
-        scale: series-ohms
-        centre: 10 ohm
-        arc: 90 deg
-        accuracy: {degrees: 9}
-        resolution: 0.5 deg
-        points: [0.5 ohm, 10 ohm]
-    """)
+OHMS = (DATA / "scale-ends-procedure.yaml").read_text(encoding="utf-8")
 
 
 class TestZeroOhmEnd:
@@ -134,24 +121,7 @@ class TestMeterAtRest:
         assert out.count("warning") == 1 and f"{path}: ok" in out
 
 
-BIPOLAR = textwrap.dedent("""\
-    format: 1
-    procedure: {id: POL-1, title: Polarity, revision: 1}
-    meter: {kind: digital multimeter (invented)}
-    ranges:
-      - id: dcv-20
-        function: dc-voltage
-        full-scale: 20 V
-        accuracy: {percent-of-reading: 0.1, counts: 2}
-        resolution: 0.001 V
-        points: [-10 V, 10 V]
-      - id: dcv-pos
-        function: dc-voltage
-        full-scale: 20 V
-        accuracy: {percent-of-full-scale: 1}
-        resolution: 0.1 V
-        points: [10 V]
-    """)
+BIPOLAR = (DATA / "polarity-procedure.yaml").read_text(encoding="utf-8")
 
 
 class TestNegativeReadings:
@@ -218,23 +188,9 @@ class TestNegativeReadings:
         assert ScriptedReadings(readings).take(points[0]).value == pytest.approx(-10.004)
         assert (
             main(
-                [
-                    "run",
-                    str(proc),
-                    "--bench",
-                    str(DATA / "matrix-bench.yaml"),
-                    "--simulate",
-                    "--readings",
-                    str(readings),
-                    "--serial",
-                    "P-1",
-                    "--customer",
-                    "C",
-                    "--runs",
-                    str(tmp_path / "runs"),
-                    "--reports",
-                    str(tmp_path / "reports"),
-                ]
+                simulated_run_args(
+                    tmp_path, proc, DATA / "matrix-bench.yaml", readings, serial="P-1"
+                )
             )
             == 0
         )

@@ -9,6 +9,7 @@ import sys
 import time
 
 import pytest
+from runkit import simulated_run_args
 
 from verirun.cli import main
 from verirun.record.journal import read_journal
@@ -23,22 +24,29 @@ def run_cli(*args):
 
 def demo_run(tmp_path, demo_procedure_path, demo_bench_path, readings, extra=()):
     return run_cli(
-        "run",
-        demo_procedure_path,
-        "--bench",
-        demo_bench_path,
-        "--simulate",
+        *simulated_run_args(
+            tmp_path,
+            demo_procedure_path,
+            demo_bench_path,
+            readings,
+            serial="SN-7",
+            customer="Test customer",
+        ),
+        *extra,
+    )
+
+
+def resume_demo(tmp_path, data_dir, run_dir, *extra) -> int:
+    """`verirun resume` of a demo run with the scripted readings, certificates into
+    ``tmp_path / "reports"``; the exit code."""
+    return run_cli(
+        "resume",
+        run_dir,
+        *extra,
         "--readings",
-        readings,
-        "--serial",
-        "SN-7",
-        "--customer",
-        "Test customer",
-        "--runs",
-        tmp_path / "runs",
+        data_dir / "qm40-readings.csv",
         "--reports",
         tmp_path / "reports",
-        *extra,
     )
 
 
@@ -66,17 +74,7 @@ class TestAbortAndResume:
         assert before[-1]["kind"] == "stop" and before[-1]["status"] == "aborted"
         assert not list((tmp_path / "reports").glob("*.html"))  # no certificate for an aborted run
 
-        assert (
-            run_cli(
-                "resume",
-                run_dir,
-                "--readings",
-                data_dir / "qm40-readings.csv",
-                "--reports",
-                tmp_path / "reports",
-            )
-            == 0
-        )
+        assert resume_demo(tmp_path, data_dir, run_dir) == 0
         after = read_journal(run_dir / "journal.jsonl").documents
         assert after[: len(before)] == before  # nothing rewritten
         record = json.loads((run_dir / "record.json").read_text())
@@ -149,17 +147,7 @@ class TestAbortAndResume:
         assert read_journal(journal).torn_line is not None
         assert any("cut off" in p for p in problems(run_dir))
         capsys.readouterr()
-        assert (
-            run_cli(
-                "resume",
-                run_dir,
-                "--readings",
-                data_dir / "qm40-readings.csv",
-                "--reports",
-                tmp_path / "reports",
-            )
-            == 0
-        )
+        assert resume_demo(tmp_path, data_dir, run_dir) == 0
         assert "cut off" in capsys.readouterr().out
         docs = read_journal(journal).documents
         assert docs[: len(whole)] == whole
@@ -182,17 +170,7 @@ class TestAbortAndResume:
         demo_run(tmp_path, procedure, demo_bench_path, readings)
         (run_dir,) = (tmp_path / "runs").iterdir()
         procedure.write_text(procedure.read_text().replace("revision: C", "revision: D"))
-        assert (
-            run_cli(
-                "resume",
-                run_dir,
-                "--readings",
-                data_dir / "qm40-readings.csv",
-                "--reports",
-                tmp_path / "reports",
-            )
-            == 0
-        )
+        assert resume_demo(tmp_path, data_dir, run_dir) == 0
         record = json.loads((run_dir / "record.json").read_text())
         assert record["procedure"]["revision"] == "C" and record["run"]["status"] == "complete"
 
@@ -202,6 +180,18 @@ def _kill_bench(tmp_path, demo_bench_path):
     bench = tmp_path / "bench-slow.yaml"
     bench.write_text(demo_bench_path.read_text().replace("settle: 0 s", "settle: 0.04 s"))
     return bench
+
+
+def _demo_command(tmp_path, procedure, bench, data_dir, serial: str) -> list[str]:
+    """`verirun run` of ``procedure`` on ``bench`` with the scripted readings of tests/data, as
+    a command for a real process: runs and reports go into ``tmp_path``."""
+    readings = data_dir / "qm40-readings.csv"
+    return [
+        sys.executable,
+        "-m",
+        "verirun",
+        *simulated_run_args(tmp_path, procedure, bench, readings, serial=serial),
+    ]
 
 
 def _wait_for_observations(tmp_path, count: int, proc, timeout: float = 30.0):
@@ -242,26 +232,7 @@ class TestKilledMidRun:
         """A verirun process killed with SIGKILL at any moment keeps every observation it had
         journaled; resume finishes the run and the record verifies with all 20 points."""
         bench = _kill_bench(tmp_path, demo_bench_path)
-        cmd = [
-            sys.executable,
-            "-m",
-            "verirun",
-            "run",
-            str(demo_procedure_path),
-            "--bench",
-            str(bench),
-            "--simulate",
-            "--readings",
-            str(data_dir / "qm40-readings.csv"),
-            "--serial",
-            "KILL",
-            "--customer",
-            "C",
-            "--runs",
-            str(tmp_path / "runs"),
-            "--reports",
-            str(tmp_path / "reports"),
-        ]
+        cmd = _demo_command(tmp_path, demo_procedure_path, bench, data_dir, "KILL")
         proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
         journal = _wait_for_observations(tmp_path, observed, proc)
         time.sleep(extra_delay)
@@ -274,21 +245,7 @@ class TestKilledMidRun:
         assert before[0]["kind"] == "start"
         assert sum(d["kind"] == "observation" for d in before) >= observed
         assert before[-1]["kind"] != "stop"  # SIGKILL gives no chance to write one
-        assert (
-            main(
-                [
-                    "resume",
-                    str(run_dir),
-                    "--bench",
-                    str(bench),
-                    "--readings",
-                    str(data_dir / "qm40-readings.csv"),
-                    "--reports",
-                    str(tmp_path / "reports"),
-                ]
-            )
-            == 0
-        )
+        assert resume_demo(tmp_path, data_dir, run_dir, "--bench", bench) == 0
         after = read_journal(run_dir / "journal.jsonl").documents
         assert after[: len(before)] == before
         observed_points = [d["point"] for d in after if d["kind"] == "observation"]
@@ -304,26 +261,7 @@ class TestSigterm:
         """SIGTERM, or SIGHUP when the terminal goes away, ends a run as an interruption: exit
         code 2, a stop document naming the signal, and the run left resumable."""
         bench = _kill_bench(tmp_path, demo_bench_path)
-        cmd = [
-            sys.executable,
-            "-m",
-            "verirun",
-            "run",
-            str(demo_procedure_path),
-            "--bench",
-            str(bench),
-            "--simulate",
-            "--readings",
-            str(data_dir / "qm40-readings.csv"),
-            "--serial",
-            "TERM",
-            "--customer",
-            "C",
-            "--runs",
-            str(tmp_path / "runs"),
-            "--reports",
-            str(tmp_path / "reports"),
-        ]
+        cmd = _demo_command(tmp_path, demo_procedure_path, bench, data_dir, "TERM")
         proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
         deadline = time.monotonic() + 20
         journal = None

@@ -16,7 +16,7 @@ from verirun.procedure.load import load_procedure_text
 from verirun.readings import ScriptedReadings
 from verirun.text import BIDI_CONTROLS, LAYOUT, refusal, shown
 
-EDGE = Path(__file__).resolve().parent / "data" / "edge"
+EDGE = Path(__file__).resolve().parents[1] / "data" / "edge"
 PROCEDURE, BENCH, READINGS, LAB = (
     EDGE / name for name in ("dcv-small.yaml", "bench.yaml", "readings.csv", "lab.yaml")
 )

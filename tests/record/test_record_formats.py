@@ -6,9 +6,11 @@ import json
 import shutil
 from pathlib import Path
 
+from runkit import simulated_run_args
+
 from verirun.record.verify import problems
 
-STORED = Path(__file__).resolve().parent / "data" / "stored-runs" / "format1-guarded"
+STORED = Path(__file__).resolve().parents[1] / "data" / "stored-runs" / "format1-guarded"
 
 
 def _copy(tmp_path: Path) -> Path:
@@ -57,7 +59,7 @@ class TestCurrentFormat:
 
         from verirun.cli import main
 
-        data = Path(__file__).resolve().parent / "data"
+        data = Path(__file__).resolve().parents[1] / "data"
         readings = tmp_path / "r.csv"
         with open(readings, "w", newline="") as fh:
             csv.writer(fh).writerows(
@@ -79,23 +81,14 @@ class TestCurrentFormat:
             )
         assert (
             main(
-                [
-                    "run",
-                    str(data / "matrix-procedure.yaml"),
-                    "--bench",
-                    str(data / "matrix-bench.yaml"),
-                    "--simulate",
-                    "--readings",
-                    str(readings),
-                    "--serial",
-                    "F-1",
-                    "--customer",
-                    "C",
-                    "--runs",
-                    str(tmp_path / "runs"),
-                    "--reports",
-                    str(tmp_path / "rep"),
-                ]
+                simulated_run_args(
+                    tmp_path,
+                    data / "matrix-procedure.yaml",
+                    data / "matrix-bench.yaml",
+                    readings,
+                    serial="F-1",
+                    reports="rep",
+                )
             )
             == 0
         )

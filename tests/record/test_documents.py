@@ -12,7 +12,7 @@ from pydantic import ValidationError
 
 from verirun.record.documents import journal_schema, validate_document
 
-STORED = Path(__file__).resolve().parent / "data" / "stored-runs"
+STORED = Path(__file__).resolve().parents[1] / "data" / "stored-runs"
 LINES = [
     (f"{path.parent.name}:{number}", json.loads(line))
     for path in sorted(STORED.glob("*/journal.jsonl"))

@@ -16,7 +16,7 @@ from verirun.record.verify import problems
 #: (see :func:`at_the_bench.calibrator_at_the_bench`).
 _AT_THE_BENCH = f"""
 import sys
-sys.path.insert(0, {str(Path(__file__).parent)!r})
+sys.path.insert(0, {str(Path(__file__).resolve().parents[1])!r})
 from at_the_bench import calibrator_at_the_bench
 from verirun.cli import main
 with calibrator_at_the_bench():
@@ -128,7 +128,7 @@ class TestOneVerirunPerCalibrator:
         env = {**os.environ}
         at_bench = [
             "--lab",
-            Path(__file__).parent / "data" / "lab-test.yaml",
+            Path(__file__).resolve().parents[1] / "data" / "lab-test.yaml",
             "--condition",
             "as new",
         ]

@@ -9,8 +9,8 @@ from __future__ import annotations
 
 import dataclasses
 import math
-import textwrap
 from decimal import ROUND_FLOOR, Decimal
+from pathlib import Path
 
 import pytest
 from hypothesis import given, settings
@@ -23,41 +23,9 @@ from verirun.procedure.plan import plan
 from verirun.readings import VirtualMeter, read_off_scale
 from verirun.units import parse_value
 
-PROCEDURE = textwrap.dedent("""\
-    format: 1
-    procedure: {id: T-VM, title: Test, revision: 1}
-    meter: {kind: analog multimeter}
-    ranges:
-      - id: ohm
-        function: resistance
-        scale: series-ohms
-        centre: 16 ohm
-        arc: 90 deg
-        accuracy: {degrees: 3}
-        resolution: 0.5 deg
-        points: [16 ohm]
-      - id: ohm-k
-        function: resistance
-        scale: series-ohms
-        centre: 16 kohm
-        arc: 90 deg
-        accuracy: {degrees: 3}
-        resolution: 0.5 deg
-        points: [500 kohm]
-      - id: ma
-        function: dc-current
-        full-scale: 30 mA
-        accuracy: {percent-of-full-scale: 3}
-        resolution: 0.25 mA
-        points: [30 mA]
-      - id: v-deg
-        function: dc-voltage
-        full-scale: 10 V
-        arc: 90 deg
-        accuracy: {percent-of-full-scale: 2}
-        resolution: 1 deg
-        points: [5 V]
-    """)
+DATA = Path(__file__).resolve().parents[1] / "data"
+
+PROCEDURE = (DATA / "virtual-meter-procedure.yaml").read_text(encoding="utf-8")
 
 RANGES = {r.id: r for r in load_procedure_text(PROCEDURE, "proc.yaml").ranges}
 # A procedure must state each range's readability; a range without one is made here directly,

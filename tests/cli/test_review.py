@@ -18,7 +18,7 @@ from verirun.procedure.load import load_procedure, load_procedure_text
 from verirun.procedure.plan import plan
 from verirun.review import render_html, review
 
-DATA = Path(__file__).resolve().parent / "data"
+DATA = Path(__file__).resolve().parents[1] / "data"
 TODAY = dt.date(2026, 12, 1)
 
 

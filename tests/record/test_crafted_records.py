@@ -10,26 +10,20 @@ import json
 import pytest
 from runkit import (
     BENCH,
-    PROCEDURE,
     READINGS,
-    STEPS,
     cli,
     documents,
     only_run,
     readings_file,
+    rechained,
     record,
     run_args,
 )
-from test_steps import _rechained
 
-from verirun.bench.config import load_bench
 from verirun.clock import VirtualClock
-from verirun.conduct import execute, resume
+from verirun.conduct import resume
 from verirun.console import QuietConsole
-from verirun.engine import RunContext
 from verirun.errors import BenchError
-from verirun.lab import load_lab
-from verirun.procedure.load import load_procedure
 from verirun.readings import ScriptedReadings
 from verirun.record.journal import never_started_text
 from verirun.record.verify import problems
@@ -106,7 +100,7 @@ class TestCraftedJournals:
         run_dir = only_run(tmp_path / "runs")
         docs = documents(run_dir)
         docs[0] = {**docs[0], field: json.loads(value)}
-        (run_dir / "journal.jsonl").write_text(_rechained(docs), encoding="utf-8")
+        (run_dir / "journal.jsonl").write_text(rechained(docs), encoding="utf-8")
         capsys.readouterr()
         assert cli("verify", run_dir) == 1
         assert "journal.jsonl:1: " in capsys.readouterr().out
@@ -118,7 +112,7 @@ class TestCraftedJournals:
         run_dir = only_run(tmp_path / "runs")
         docs = documents(run_dir)
         docs = [{**d, "index": 40} if d["kind"] == "observation" else d for d in docs]
-        (run_dir / "journal.jsonl").write_text(_rechained(docs), encoding="utf-8")
+        (run_dir / "journal.jsonl").write_text(rechained(docs), encoding="utf-8")
         (run_dir / "record.json").unlink()
         assert any("which the procedure does not have" in p for p in problems(run_dir))
 
@@ -179,17 +173,6 @@ class TestListingSkipsABadFolder:
         assert never_started_text(empty) in capsys.readouterr().err
 
 
-def _context() -> RunContext:
-    lab = load_lab(STEPS / "lab.yaml").lab.model_dump(mode="json")
-    return RunContext(
-        lab=lab,
-        customer={"name": "C", "address": []},
-        item={"serial": "CLK-1"},
-        operator="tester",
-        simulated=True,
-    )
-
-
 class JumpingClock(VirtualClock):
     """A virtual clock set back by an hour after ``after`` readings of it."""
 
@@ -205,22 +188,12 @@ class JumpingClock(VirtualClock):
 
 
 class TestDates:
-    def test_a_clock_set_back_is_journaled_and_dates_never_run_backwards(self, tmp_path):
+    def test_a_clock_set_back_is_journaled_and_dates_never_run_backwards(self, make_run):
         """The clock goes back five hours mid-run across midnight (2026-12-01 00:00:30 back to
         2026-11-30 19:00): every document keeps a time no earlier than the one before, the jump is
         journaled, and the issue date is not before the calibration date."""
         start = dt.datetime(2026, 12, 1, 0, 0, 20, tzinfo=dt.timezone.utc)
-        finished = execute(
-            procedure=load_procedure(PROCEDURE),
-            bench=load_bench(BENCH),
-            context=_context(),
-            readings=ScriptedReadings(READINGS),
-            console=QuietConsole(),
-            runs_dir=tmp_path / "runs",
-            reports_dir=tmp_path / "reports",
-            simulate=True,
-            clock=JumpingClock(start, after=8),
-        )
+        finished = make_run(item="CLK-1", operator="tester", clock=JumpingClock(start, after=8))
         times = [d["time"] for d in documents(finished.run_dir)]
         assert times == sorted(times)
         jumps = [d for d in documents(finished.run_dir) if d.get("clock_went_back")]
@@ -232,7 +205,7 @@ class TestDates:
         assert not any("clock went back" in n["text"] for n in rec["notes"])
         assert problems(finished.run_dir) == []
 
-    def test_a_standard_falling_due_at_midnight_stops_the_run_resumable(self, tmp_path):
+    def test_a_standard_falling_due_at_midnight_stops_the_run_resumable(self, tmp_path, make_run):
         """A run begun at 23:59:50 with a standard due that day stops at the first point after
         midnight (the output in standby), cannot resume on the same bench file, and resumes on
         one naming the renewed calibration; the record says so."""
@@ -242,17 +215,7 @@ class TestDates:
         )
         clock = VirtualClock(dt.datetime(2026, 12, 1, 23, 59, 50, tzinfo=dt.timezone.utc), tick=2)
         with pytest.raises(BenchError) as caught:
-            execute(
-                procedure=load_procedure(PROCEDURE),
-                bench=load_bench(bench_path),
-                context=_context(),
-                readings=ScriptedReadings(READINGS),
-                console=QuietConsole(),
-                runs_dir=tmp_path / "runs",
-                reports_dir=tmp_path / "reports",
-                simulate=True,
-                clock=clock,
-            )
+            make_run(bench=bench_path, item="CLK-1", operator="tester", clock=clock)
         assert "fell due for calibration on 2026-12-01" in str(caught.value)
         run_dir = caught.value.run_dir
         docs = documents(run_dir)

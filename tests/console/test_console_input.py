@@ -6,70 +6,26 @@ In-process tests type at the console through a stand-in input function; the last
 
 from __future__ import annotations
 
-import datetime as dt
 import io
 import os
 import select
 import subprocess
 import sys
-import textwrap
 import time
 from pathlib import Path
 
 import pytest
-import pyvisa
 from rich.console import Console as RichConsole
+from runkit import build_run, sim_resources
 
-from verirun.bench.calibrator import Calibrator
-from verirun.bench.config import load_bench
-from verirun.bench.sim import SIM_RESOURCE, sim_library
-from verirun.clock import VirtualClock
-from verirun.conduct import execute
 from verirun.console import Console
-from verirun.engine import RunContext
 from verirun.errors import RunAborted
-from verirun.lab import load_lab
 from verirun.procedure.load import load_procedure_text
 from verirun.record.journal import confirmed_steps, read_journal
 
-DATA = Path(__file__).resolve().parent / "data"
+DATA = Path(__file__).resolve().parents[1] / "data"
 
-METER = textwrap.dedent("""\
-    format: 1
-    procedure: {id: CI-1, title: Console input test, revision: A}
-    meter: {kind: analog multimeter}
-    ranges:
-      - id: dcv-10
-        function: dc-voltage
-        full-scale: 10 V
-        arc: 100 deg
-        accuracy: {percent-of-full-scale: 2}
-        resolution: 0.05 V
-        read-on: black DC scale, 0-10
-        points: [5 V, 10 V]
-      - id: dca-50m
-        function: dc-current
-        full-scale: 50 mA
-        accuracy: {percent-of-full-scale: 2.5}
-        resolution: 0.25 mA
-        points: [10 mA]
-      - id: ohm-x100
-        function: resistance
-        scale: series-ohms
-        centre: 1.2 kohm
-        battery: 1.5 V
-        arc: 100 deg
-        accuracy: {degrees: 2.5}
-        resolution: 0.5 deg
-        read-on: green ohms scale, multiply by 100
-        points: [1.2 kohm]
-      - id: dcv-100
-        function: dc-voltage
-        full-scale: 100 V
-        accuracy: {percent-of-full-scale: 2}
-        resolution: 0.5 V
-        points: [80 V]
-    """)
+METER = (DATA / "console-input-procedure.yaml").read_text(encoding="utf-8")
 
 
 class Typist:
@@ -88,8 +44,7 @@ class Typist:
 
 def run_typing(tmp_path, lab_path, lines, *, show_window=False):
     """Run the console test procedure with ``lines`` typed; return what the run left."""
-    rm = pyvisa.ResourceManager(sim_library(tmp_path / "sim"))
-    raw = rm.open_resource(SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=300)
+    (raw,) = sim_resources(tmp_path)
     out = io.StringIO()
     typist = Typist(lines)
     console = Console(
@@ -97,26 +52,17 @@ def run_typing(tmp_path, lab_path, lines, *, show_window=False):
         input_func=typist,
         show_window=show_window,
     )
-    context = RunContext(
-        lab=load_lab(lab_path).lab.model_dump(mode="json"),
-        customer={"name": "C", "address": []},
-        item={"serial": "S", "asset": None, "condition": "as new", "received": None},
-        operator="op",
-        simulated=True,
-    )
     error, finished = None, None
     try:
-        finished = execute(
-            procedure=load_procedure_text(METER, "ci.yaml"),
-            bench=load_bench(DATA / "bench-test.yaml"),
-            context=context,
-            readings=console,
-            console=console,
+        finished = build_run(
             runs_dir=tmp_path / "runs",
-            reports_dir=tmp_path / "reports",
-            simulate=True,
-            clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)),
-            calibrator=Calibrator(raw, "scpi-generic"),
+            procedure=load_procedure_text(METER, "ci.yaml"),
+            bench=DATA / "bench-test.yaml",
+            readings=None,
+            console=console,
+            lab=lab_path,
+            item={"serial": "S", "asset": None, "condition": "as new", "received": None},
+            calibrator=raw,
         )
     except RunAborted as exc:
         error = exc
@@ -135,7 +81,7 @@ def fits_the_journal_schema(docs):
 
     schema = json.loads(
         (
-            Path(__file__).resolve().parent.parent / "verirun" / "schema" / "journal.schema.json"
+            Path(__file__).resolve().parents[2] / "verirun" / "schema" / "journal.schema.json"
         ).read_text(encoding="utf-8")
     )
     for doc in docs:

@@ -16,7 +16,7 @@ from verirun.cli import main
 from verirun.errors import UnitError
 from verirun.receipt import ask_condition, check_received
 
-DATA = Path(__file__).resolve().parent / "data"
+DATA = Path(__file__).resolve().parents[1] / "data"
 
 
 def run_args(tmp: Path, *extra: str) -> list[str]:

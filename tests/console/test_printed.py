@@ -228,7 +228,7 @@ class TestReadingsAsWritten:
         from verirun.procedure.plan import plan
         from verirun.readings import parse_entry
 
-        text = (Path(__file__).resolve().parent / "data" / "matrix-procedure.yaml").read_text()
+        text = (Path(__file__).resolve().parents[1] / "data" / "matrix-procedure.yaml").read_text()
         point = plan(load_procedure_text(text, "m.yaml"))[0]
         with pytest.raises(UnitError, match=words):
             parse_entry(typed, point)
@@ -242,7 +242,7 @@ def test_a_bare_number_is_shown_in_the_prompts_unit():
     from verirun.procedure.plan import plan
     from verirun.readings import parse_entry
 
-    text = (Path(__file__).resolve().parent / "data" / "matrix-procedure.yaml").read_text()
+    text = (Path(__file__).resolve().parents[1] / "data" / "matrix-procedure.yaml").read_text()
     text = text.replace(
         "ranges:\n",
         "ranges:\n  - id: dca-50m\n    function: dc-current\n    full-scale: 50 mA\n"

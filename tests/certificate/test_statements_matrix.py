@@ -19,6 +19,7 @@ from pathlib import Path
 
 import pytest
 from bs4 import BeautifulSoup
+from runkit import simulated_run_args
 
 from verirun.bench.config import load_bench
 from verirun.cli import main
@@ -27,7 +28,7 @@ from verirun.metrology.exact import as_written
 from verirun.procedure.load import load_procedure_text
 from verirun.procedure.plan import plan
 
-DATA = Path(__file__).resolve().parent / "data"
+DATA = Path(__file__).resolve().parents[1] / "data"
 RULES = ["simple", "guarded", "non-binary", "risk"]
 LABELS = {
     "PASS": "pass",
@@ -93,23 +94,9 @@ def matrix(tmp_path_factory):
             writer.writerows(_readings_for(points, rule, i * 3))
         assert (
             main(
-                [
-                    "run",
-                    str(proc),
-                    "--bench",
-                    str(DATA / "matrix-bench.yaml"),
-                    "--simulate",
-                    "--readings",
-                    str(readings),
-                    "--serial",
-                    f"M-{rule}",
-                    "--customer",
-                    "C",
-                    "--runs",
-                    str(tmp / "runs"),
-                    "--reports",
-                    str(tmp / "reports"),
-                ]
+                simulated_run_args(
+                    tmp, proc, DATA / "matrix-bench.yaml", readings, serial=f"M-{rule}"
+                )
             )
             == 0
         )

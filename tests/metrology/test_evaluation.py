@@ -5,7 +5,7 @@ from __future__ import annotations
 import datetime as dt
 import json
 import math
-import textwrap
+from pathlib import Path
 
 import pytest
 
@@ -18,48 +18,26 @@ from verirun.evaluation import evaluate
 from verirun.procedure.load import load_procedure_text
 from verirun.procedure.plan import plan
 
-BENCH = textwrap.dedent("""\
-    format: 1
-    bench: {id: B-1}
-    calibrator:
-      description: Multifunction calibrator
-      asset: STD-1
-      resource: GPIB0::4::INSTR
-      identity: Verirun Simulation
-      certificate: C-1
-      calibration-due: 2030-01-01
-      accuracy:
-        - {function: dc-voltage, range: 1.6 V, output: 10 ppm, floor: 2 uV, level: 99 %}
-        - {function: dc-voltage, range: 16 V, output: 10 ppm, floor: 5 uV, level: 99 %}
-        - {function: resistance, range: 160 ohm, output: 0.01 %, level: limits}
-    """)
+DATA = Path(__file__).resolve().parents[1] / "data"
 
-PROCEDURE = textwrap.dedent("""\
-    format: 1
-    procedure: {id: T-2, title: Test, revision: 1}
-    meter: {kind: analog multimeter}
-    decision: {rule: guarded}
-    ranges:
-      - id: dcv-10
-        function: dc-voltage
-        full-scale: 10 V
-        accuracy: {percent-of-full-scale: 2}
-        resolution: 0.05 V
-        points: [10 V]
-      - id: ohm
-        function: resistance
-        scale: series-ohms
-        centre: 16 ohm
-        arc: 90 deg
-        accuracy: {degrees: 3}
-        resolution: 0.5 deg
-        points: [16 ohm]
-    """)
+BENCH = (DATA / "evaluation-bench.yaml").read_text(encoding="utf-8")
+
+PROCEDURE = (DATA / "evaluation-procedure.yaml").read_text(encoding="utf-8")
 
 
 def points(procedure_text=PROCEDURE, bench_text=BENCH):
     return plan(
         load_procedure_text(procedure_text, "proc.yaml"), load_bench_text(bench_text, "bench.yaml")
+    )
+
+
+def preflight_problems(procedure_text: str) -> list[str]:
+    """What the preflight finds in the procedure on the test bench, on 2026-01-01."""
+    return preflight.problems(
+        points(procedure_text),
+        load_bench_text(BENCH, "bench.yaml"),
+        load_profile("scpi-generic"),
+        today=dt.date(2026, 1, 1),
     )
 
 
@@ -220,12 +198,7 @@ class TestPreflight:
         text = PROCEDURE.replace("full-scale: 10 V", "full-scale: 50 V").replace(
             "points: [10 V]", "points: [50 V]"
         )
-        found = preflight.problems(
-            points(text),
-            load_bench_text(BENCH, "bench.yaml"),
-            load_profile("scpi-generic"),
-            today=dt.date(2026, 1, 1),
-        )
+        found = preflight_problems(text)
         assert any(
             p.startswith("step 1 (dcv-10 at 50 V DC)") and "no accuracy line" in p for p in found
         )
@@ -235,12 +208,7 @@ class TestPreflight:
         text = PROCEDURE.replace("full-scale: 10 V", "full-scale: 2000 V").replace(
             "points: [10 V]", "points: [1500 V]"
         )
-        found = preflight.problems(
-            points(text),
-            load_bench_text(BENCH, "bench.yaml"),
-            load_profile("scpi-generic"),
-            today=dt.date(2026, 1, 1),
-        )
+        found = preflight_problems(text)
         assert any("cannot source" in p and "1000" in p for p in found)
 
 

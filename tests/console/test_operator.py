@@ -2,52 +2,25 @@
 
 from __future__ import annotations
 
-import datetime as dt
 import io
 import json
-import textwrap
+from pathlib import Path
 
 import pytest
-import pyvisa
 from rich.console import Console as RichConsole
+from runkit import build_run, sim_resources
 
-from verirun.bench.calibrator import Calibrator
-from verirun.bench.config import load_bench, load_bench_text
-from verirun.bench.sim import SIM_RESOURCE, sim_library
-from verirun.clock import VirtualClock
-from verirun.conduct import execute
+from verirun.bench.config import load_bench_text
 from verirun.console import Console
-from verirun.engine import RunContext
 from verirun.errors import RunAborted
 from verirun.procedure.load import load_procedure_text
 from verirun.record.journal import read_journal
 
-PROCEDURE = textwrap.dedent("""\
-    format: 1
-    procedure: {id: OP-1, title: Operator test, revision: A}
-    meter: {kind: panel meter}
-    ranges:
-      - id: dcv-10
-        function: dc-voltage
-        full-scale: 10 V
-        accuracy: {percent-of-full-scale: 2}
-        resolution: 0.05 V
-        connect: Red to V, black to COM.
-        points: [5 V, 10 V]
-    """)
+DATA = Path(__file__).resolve().parents[1] / "data"
 
-HAZARD = textwrap.dedent("""\
-    format: 1
-    procedure: {id: OP-2, title: Hazard test, revision: A}
-    meter: {kind: panel meter}
-    ranges:
-      - id: dcv-100
-        function: dc-voltage
-        full-scale: 100 V
-        accuracy: {percent-of-full-scale: 2}
-        resolution: 0.5 V
-        points: [20 V, 80 V]
-    """)
+PROCEDURE = (DATA / "operator-procedure.yaml").read_text(encoding="utf-8")
+
+HAZARD = (DATA / "hazard-procedure.yaml").read_text(encoding="utf-8")
 
 
 class Typist:
@@ -70,7 +43,7 @@ class Typist:
         return self.lines.pop(0)
 
 
-def make_run(
+def typed_run(
     tmp_path,
     procedure_text,
     lines,
@@ -79,35 +52,22 @@ def make_run(
     bench_text=None,
     then_close=False,
 ):
-    rm = pyvisa.ResourceManager(sim_library(tmp_path / "sim"))
-    raw = rm.open_resource(SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=300)
-    cal = Calibrator(raw, "scpi-generic")
+    """A run of ``procedure_text`` to start with ``go()``, its readings typed as ``lines``."""
+    (raw,) = sim_resources(tmp_path)
     out = io.StringIO()
     typist = Typist(lines, then_close=then_close)
     console = Console(RichConsole(file=out, width=120, highlight=False), input_func=typist)
-    from verirun.lab import load_lab
-
-    context = RunContext(
-        lab=load_lab(demo_lab_path).lab.model_dump(mode="json"),
-        customer={"name": "C", "address": []},
-        item={"serial": "S"},
-        operator="op",
-        simulated=True,
-    )
-    bench = load_bench_text(bench_text, "bench.yaml") if bench_text else load_bench(demo_bench_path)
+    bench = load_bench_text(bench_text, "bench.yaml") if bench_text else demo_bench_path
 
     def go():
-        return execute(
+        return build_run(
+            runs_dir=tmp_path / "runs",
             procedure=load_procedure_text(procedure_text, "proc.yaml"),
             bench=bench,
-            context=context,
-            readings=console,
+            readings=None,
             console=console,
-            runs_dir=tmp_path / "runs",
-            reports_dir=tmp_path / "reports",
-            simulate=True,
-            clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)),
-            calibrator=cal,
+            lab=demo_lab_path,
+            calibrator=raw,
         )
 
     return go, raw, out, typist
@@ -120,7 +80,7 @@ class TestReadingPrompt:
         """Non-numeric text, a wrong unit, a decimal comma, empty input and a value beyond the
         scale are each refused with the reason and asked again; only the good reading is journaled."""
         lines = ["", "abc", "5 mA", "4,9", "12.5", "4.9", "10.1 V"]
-        go, raw, out, typist = make_run(
+        go, raw, out, typist = typed_run(
             tmp_path, PROCEDURE, ["", *lines], demo_bench_path, demo_lab_path
         )
         finished = go()
@@ -141,7 +101,7 @@ class TestReadingPrompt:
         self, tmp_path, demo_bench_path, demo_lab_path
     ):
         """Each step shows 'Step n of N', the range, the stimulus and, before the range, what to connect."""
-        go, raw, out, typist = make_run(
+        go, raw, out, typist = typed_run(
             tmp_path, PROCEDURE, ["", "5", "10"], demo_bench_path, demo_lab_path
         )
         go()
@@ -152,7 +112,7 @@ class TestReadingPrompt:
     def test_repeat_skip_and_note(self, tmp_path, demo_bench_path, demo_lab_path):
         """'repeat' applies the stimulus again, 'note' journals a note, 'skip' journals the reason,
         which the certificate then shows."""
-        go, raw, out, typist = make_run(
+        go, raw, out, typist = typed_run(
             tmp_path,
             PROCEDURE,
             ["", "repeat", "note pointer sticky", "5.0", "skip lead broken"],
@@ -175,7 +135,7 @@ class TestReadingPrompt:
     ):
         """'abort' stops the run with the output read back off, the confirmed reading journaled,
         and a stop document saying the run was aborted."""
-        go, raw, out, typist = make_run(
+        go, raw, out, typist = typed_run(
             tmp_path, PROCEDURE, ["", "5.0", "abort"], demo_bench_path, demo_lab_path
         )
         with pytest.raises(RunAborted) as info:
@@ -194,7 +154,7 @@ class TestHazardousVoltage:
     ):
         """At or above 60 V DC (IEC 61010-1 6.3.1) the output goes on only after the operator types
         'yes'; the confirmation is journaled."""
-        go, raw, out, typist = make_run(
+        go, raw, out, typist = typed_run(
             tmp_path, HAZARD, ["", "20", "yes", "80"], demo_bench_path, demo_lab_path
         )
         finished = go()
@@ -206,7 +166,7 @@ class TestHazardousVoltage:
         self, tmp_path, demo_bench_path, demo_lab_path
     ):
         """Anything but yes, y or skip stops the run before the hazardous output goes on."""
-        go, raw, out, typist = make_run(
+        go, raw, out, typist = typed_run(
             tmp_path, HAZARD, ["", "20", "n"], demo_bench_path, demo_lab_path
         )
         with pytest.raises(RunAborted, match="not confirmed"):
@@ -218,39 +178,22 @@ class TestHazardousVoltage:
         self, tmp_path, demo_bench_path, demo_lab_path, data_dir
     ):
         """A scripted run refuses hazardous output unless the bench file permits it."""
-        from verirun.console import QuietConsole
-        from verirun.readings import ScriptedReadings
 
         readings_csv = tmp_path / "r.csv"
         readings_csv.write_text("range,at,reading\ndcv-100,20 V,20\ndcv-100,80 V,80\n")
         bench_text = demo_bench_path.read_text().replace(
             "scripted-hazardous: allow", "scripted-hazardous: refuse"
         )
-        rm = pyvisa.ResourceManager(sim_library(tmp_path / "sim"))
-        raw = rm.open_resource(
-            SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=300
-        )
-        from verirun.lab import load_lab
-
-        context = RunContext(
-            lab=load_lab(demo_lab_path).lab.model_dump(mode="json"),
-            customer={"name": "C", "address": []},
-            item={"serial": "S"},
-            operator="op",
-            simulated=True,
-        )
+        (raw,) = sim_resources(tmp_path)
         with pytest.raises(RunAborted, match="does not permit"):
-            execute(
-                procedure=load_procedure_text(HAZARD, "p.yaml"),
-                bench=load_bench_text(bench_text, "b.yaml"),
-                context=context,
-                readings=ScriptedReadings(readings_csv),
-                console=QuietConsole(),
+            build_run(
                 runs_dir=tmp_path / "runs",
                 reports_dir=tmp_path / "rep",
-                simulate=True,
-                clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)),
-                calibrator=Calibrator(raw, "scpi-generic"),
+                procedure=load_procedure_text(HAZARD, "p.yaml"),
+                bench=load_bench_text(bench_text, "b.yaml"),
+                readings=readings_csv,
+                lab=demo_lab_path,
+                calibrator=raw,
             )
         assert raw.query("OUTP?") in ("0", "OFF")
 
@@ -259,7 +202,7 @@ class TestHazardOnRepeat:
     def test_repeat_at_a_hazardous_point_asks_again(self, tmp_path, demo_bench_path, demo_lab_path):
         """'repeat' at a hazardous point puts the output in standby, so switching it on again
         needs a second confirmation, journaled like the first."""
-        go, raw, out, typist = make_run(
+        go, raw, out, typist = typed_run(
             tmp_path,
             HAZARD,
             ["", "20", "yes", "repeat", "yes", "80"],
@@ -274,7 +217,7 @@ class TestHazardOnRepeat:
 
     def test_refusing_the_second_confirmation_stops(self, tmp_path, demo_bench_path, demo_lab_path):
         """Refusing the confirmation after a repeat stops the run with the output off."""
-        go, raw, out, typist = make_run(
+        go, raw, out, typist = typed_run(
             tmp_path, HAZARD, ["", "20", "yes", "repeat", "no"], demo_bench_path, demo_lab_path
         )
         with pytest.raises(RunAborted, match="not confirmed"):
@@ -288,7 +231,7 @@ class TestClosedInput:
     ):
         """If the console input closes (end of file) the run stops as an abort: output off,
         readings kept, resumable; not an internal error."""
-        go, raw, out, typist = make_run(
+        go, raw, out, typist = typed_run(
             tmp_path, PROCEDURE, ["", "5.0"], demo_bench_path, demo_lab_path, then_close=True
         )
         with pytest.raises(RunAborted, match="input was closed") as info:

@@ -8,7 +8,17 @@ import shutil
 
 import pytest
 from bs4 import BeautifulSoup
-from runkit import STORED, cli, documents, only_run, procedure_with, readings_file, record, run_args
+from runkit import (
+    STORED,
+    cli,
+    documents,
+    only_run,
+    procedure_with,
+    readings_file,
+    rechained,
+    record,
+    run_args,
+)
 
 from verirun.procedure.load import load_procedure
 from verirun.procedure.plan import plan
@@ -99,24 +109,12 @@ class TestRepeatedPoints:
         docs = documents(run_dir)
         first = next(d for d in docs if d["kind"] == "observation")
         stop = docs[-1]
-        forged = _rechained(docs[:-1] + [{**first, "typed": "2.5", "reading": 2.5}, stop])
+        forged = rechained(docs[:-1] + [{**first, "typed": "2.5", "reading": 2.5}, stop])
         (run_dir / "journal.jsonl").write_text(forged, encoding="utf-8")
         (run_dir / "record.json").unlink()  # the forger removes what would give the edit away
         found = problems(run_dir)
         assert any("a second entry for step 1" in p for p in found)
         assert cli("verify", run_dir) == 1
-
-
-def _rechained(docs: list[dict]) -> str:
-    """The documents as a journal with a whole chain (a forger can rebuild an unkeyed chain)."""
-    from verirun.record.journal import GENESIS, dumps, line_hash
-
-    prev, lines = GENESIS, []
-    for seq, doc in enumerate(docs):
-        line = dumps({**doc, "seq": seq, "prev": prev})
-        prev = line_hash(line)
-        lines.append(line)
-    return "\n".join(lines) + "\n"
 
 
 class TestLabels:
@@ -240,51 +238,26 @@ class TestStoredRunsOfTheFirstFormat:
 
 
 class TestUndoOnARepeatedValue:
-    def test_undo_withdraws_the_step_not_every_step_of_that_value(self, tmp_path):
+    def test_undo_withdraws_the_step_not_every_step_of_that_value(self, tmp_path, make_run):
         """`2 V` then `2000 mV`: undo (typed at the next range's first reading) withdraws step 2
         alone; measured again it is kept beside step 1's reading, which stays."""
-        import datetime as dt
         import io
 
-        import pyvisa
         from rich.console import Console as RichConsole
-        from runkit import BENCH, STEPS
+        from runkit import sim_resources
 
-        from verirun.bench.calibrator import Calibrator
-        from verirun.bench.config import load_bench
-        from verirun.bench.sim import SIM_RESOURCE, sim_library
-        from verirun.clock import VirtualClock
-        from verirun.conduct import execute
         from verirun.console import Console
-        from verirun.engine import RunContext
-        from verirun.lab import load_lab
 
         typed = iter(["", "2.05", "2.5", "", "undo", "", "2.1", "", "10", "49.5"])
-        rm = pyvisa.ResourceManager(sim_library(tmp_path / "sim"))
-        raw = rm.open_resource(
-            SIM_RESOURCE, read_termination="\n", write_termination="\n", timeout=300
-        )
         console = Console(
             RichConsole(file=io.StringIO(), width=200), input_func=lambda prompt: next(typed)
         )
-        context = RunContext(
-            lab=load_lab(STEPS / "lab.yaml").lab.model_dump(mode="json"),
-            customer={"name": "C", "address": []},
-            item={"serial": "U-1"},
-            operator="op",
-            simulated=True,
-        )
-        finished = execute(
-            procedure=load_procedure(procedure_with(tmp_path, "2 V, 2000 mV")),
-            bench=load_bench(BENCH),
-            context=context,
-            readings=console,
+        finished = make_run(
+            procedure=procedure_with(tmp_path, "2 V, 2000 mV"),
+            readings=None,
             console=console,
-            runs_dir=tmp_path / "runs",
-            reports_dir=tmp_path / "reports",
-            simulate=True,
-            clock=VirtualClock(dt.datetime(2026, 12, 1, tzinfo=dt.timezone.utc)),
-            calibrator=Calibrator(raw, "scpi-generic"),
+            item="U-1",
+            calibrator=sim_resources(tmp_path)[0],
         )
         rows = finished.record["points"]
         assert [(r["index"], r["typed"], r["verdict"]) for r in rows[:2]] == [

@@ -13,7 +13,9 @@ from runkit import (
     documents,
     only_run,
     readings_file,
+    rechained,
     record,
+    resume_to_close,
     run_args,
     run_until_death,
 )
@@ -38,17 +40,7 @@ class TestKilledAtTheEnd:
         before = documents(run_dir)
         assert sum(d["kind"] == "observation" for d in before) == 5
         # No readings are given: if resume measured anything it would stop at the prompt.
-        assert (
-            cli(
-                "resume",
-                run_dir,
-                "--readings",
-                readings_file(tmp_path, []),
-                "--reports",
-                tmp_path / "reports",
-            )
-            == 0
-        )
+        assert resume_to_close(tmp_path, run_dir) == 0
         after = documents(run_dir)
         assert after[: len(before)] == before
         assert sum(d["kind"] == "observation" for d in after) == 5
@@ -111,38 +103,22 @@ class TestKilledAtTheEnd:
         assert any(
             "is older than its journal" in p and "verirun resume" in p for p in problems(run_dir)
         )
-        assert (
-            cli(
-                "resume",
-                run_dir,
-                "--readings",
-                readings_file(tmp_path, []),
-                "--reports",
-                tmp_path / "reports",
-            )
-            == 0
-        )
+        assert resume_to_close(tmp_path, run_dir) == 0
         rec = record(run_dir)
         assert rec["run"]["revision"] == 2 and rec["summary"]["fail"] == 0
         assert (run_dir / "record.r1.json").exists()
         assert any(p.name.endswith("-R2.html") for p in (tmp_path / "reports").glob("*.html"))
         assert problems(run_dir, reports=tmp_path / "reports") == []
 
-    def test_resume_closes_a_run_stopped_by_a_signal_after_its_last_reading(self, tmp_path):
+    def test_resume_closes_a_run_stopped_by_a_signal_after_its_last_reading(
+        self, tmp_path, make_run
+    ):
         """SIGTERM (here its KeyboardInterrupt) just after the last reading is journaled stops the
         run as aborted with every step measured; resume closes it with nothing measured again."""
         import datetime as dt
 
-        from runkit import BENCH, PROCEDURE, STEPS
-
-        from verirun.bench.config import load_bench
         from verirun.clock import VirtualClock
-        from verirun.conduct import execute
         from verirun.console import QuietConsole
-        from verirun.engine import RunContext
-        from verirun.lab import load_lab
-        from verirun.procedure.load import load_procedure
-        from verirun.readings import ScriptedReadings
 
         class TerminatedAfterLast(QuietConsole):
             def result(self, point, entry, result):
@@ -150,23 +126,11 @@ class TestKilledAtTheEnd:
                     raise KeyboardInterrupt("terminated (SIGTERM)")
                 return super().result(point, entry, result)
 
-        context = RunContext(
-            lab=load_lab(STEPS / "lab.yaml").lab.model_dump(mode="json"),
-            customer={"name": "C", "address": []},
-            item={"serial": "TERM-1"},
-            operator="tester",
-            simulated=True,
-        )
         with pytest.raises(KeyboardInterrupt) as caught:
-            execute(
-                procedure=load_procedure(PROCEDURE),
-                bench=load_bench(BENCH),
-                context=context,
-                readings=ScriptedReadings(READINGS),
+            make_run(
                 console=TerminatedAfterLast(),
-                runs_dir=tmp_path / "runs",
-                reports_dir=tmp_path / "reports",
-                simulate=True,
+                item="TERM-1",
+                operator="tester",
                 clock=VirtualClock(dt.datetime(2026, 12, 1, 9, tzinfo=dt.timezone.utc)),
             )
         run_dir = caught.value.run_dir
@@ -174,17 +138,7 @@ class TestKilledAtTheEnd:
             documents(run_dir)[-1]["status"] == "aborted"
             and record(run_dir)["run"]["status"] == "aborted"
         )
-        assert (
-            cli(
-                "resume",
-                run_dir,
-                "--readings",
-                readings_file(tmp_path, []),
-                "--reports",
-                tmp_path / "reports",
-            )
-            == 0
-        )
+        assert resume_to_close(tmp_path, run_dir) == 0
         assert record(run_dir)["run"]["status"] == "complete"
         assert sum(d["kind"] == "observation" for d in documents(run_dir)) == 5
         assert problems(run_dir, reports=tmp_path / "reports") == []
@@ -261,13 +215,11 @@ class TestCutShort:
     def test_a_document_after_the_stop_does_not_verify(self, tmp_path):
         """An observation appended after the stop (with the chain rebuilt) is a verification
         failure, and the earlier reading is not replaced."""
-        from test_steps import _rechained
-
         run_dir = self._failed_run(tmp_path)
         docs = documents(run_dir)
         obs = [d for d in docs if d["kind"] == "observation"][-1]
         (run_dir / "journal.jsonl").write_text(
-            _rechained(docs + [{**obs, "typed": "50 uA", "reading": 5e-05}]), encoding="utf-8"
+            rechained(docs + [{**obs, "typed": "50 uA", "reading": 5e-05}]), encoding="utf-8"
         )
         (run_dir / "record.json").unlink()
         assert any("written after the run was closed complete" in p for p in problems(run_dir))
@@ -290,7 +242,12 @@ class TestStoppedBeforeTheStart:
         )
         args = run_args(tmp_path, bench=bench)
         args.remove("--simulate")
-        args += ["--lab", Path(__file__).parent / "data" / "lab-test.yaml", "--condition", "as new"]
+        args += [
+            "--lab",
+            Path(__file__).resolve().parents[1] / "data" / "lab-test.yaml",
+            "--condition",
+            "as new",
+        ]
         code = cli(*args)
         err = capsys.readouterr().err
         assert code == 3, err

@@ -18,6 +18,7 @@ from runkit import (
     procedure_with,
     readings_file,
     record,
+    resume_to_close,
     run_args,
 )
 
@@ -228,17 +229,7 @@ class TestReadOnlyAndInTheWay:
         run_dir = only_run(tmp_path / "runs")
         assert record(run_dir)["run"]["status"] == "complete"
         (tmp_path / "reports").unlink()
-        assert (
-            cli(
-                "resume",
-                run_dir,
-                "--readings",
-                readings_file(tmp_path, []),
-                "--reports",
-                tmp_path / "reports",
-            )
-            == 0
-        )
+        assert resume_to_close(tmp_path, run_dir) == 0
         assert len(list((tmp_path / "reports").glob("*.html"))) == 1
         assert sum(d["kind"] == "observation" for d in documents(run_dir)) == 5
 

@@ -7,6 +7,7 @@ import json
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from runkit import simulated_run_args
 
 from verirun.certificate.render import safe_file_name, write_certificate
 from verirun.cli import main
@@ -16,26 +17,14 @@ from verirun.record.verify import problems
 
 
 @pytest.fixture
-def run_dir(tmp_path, data_dir, demo_procedure_path, demo_bench_path):
+def run_dir(tmp_path):
     assert (
         main(
-            [
-                "run",
-                str(demo_procedure_path),
-                "--bench",
-                str(demo_bench_path),
-                "--simulate",
-                "--readings",
-                str(data_dir / "qm40-readings.csv"),
-                "--serial",
-                "SN-9",
-                "--customer",
-                "Test customer",
-                "--runs",
-                str(tmp_path / "runs"),
-                "--reports",
-                str(tmp_path / "reports"),
-            ]
+            simulated_run_args(
+                tmp_path,
+                serial="SN-9",
+                customer="Test customer",
+            )
         )
         == 0
     )
@@ -198,30 +187,16 @@ class TestAmend:
 
 
 class TestEscapingAndFileNames:
-    def test_customer_script_is_escaped_on_the_certificate(
-        self, tmp_path, data_dir, demo_procedure_path, demo_bench_path
-    ):
+    def test_customer_script_is_escaped_on_the_certificate(self, tmp_path):
         """Text from the user reaches the certificate escaped: a <script> in a customer name is
         shown as text, never run."""
         assert (
             main(
-                [
-                    "run",
-                    str(demo_procedure_path),
-                    "--bench",
-                    str(demo_bench_path),
-                    "--simulate",
-                    "--readings",
-                    str(data_dir / "qm40-readings.csv"),
-                    "--serial",
-                    "<b>SN</b>",
-                    "--customer",
-                    "<script>alert('x')</script>",
-                    "--runs",
-                    str(tmp_path / "runs"),
-                    "--reports",
-                    str(tmp_path / "reports"),
-                ]
+                simulated_run_args(
+                    tmp_path,
+                    serial="<b>SN</b>",
+                    customer="<script>alert('x')</script>",
+                )
             )
             == 0
         )
@@ -245,29 +220,14 @@ class TestEscapingAndFileNames:
         )
         assert (tmp_path / safe).resolve().parent == tmp_path.resolve()
 
-    def test_run_folder_from_a_hostile_serial_stays_in_runs(
-        self, tmp_path, data_dir, demo_procedure_path, demo_bench_path
-    ):
+    def test_run_folder_from_a_hostile_serial_stays_in_runs(self, tmp_path):
         """A serial number with path separators still makes its run folder inside runs/."""
         assert (
             main(
-                [
-                    "run",
-                    str(demo_procedure_path),
-                    "--bench",
-                    str(demo_bench_path),
-                    "--simulate",
-                    "--readings",
-                    str(data_dir / "qm40-readings.csv"),
-                    "--serial",
-                    "../../escape",
-                    "--customer",
-                    "C",
-                    "--runs",
-                    str(tmp_path / "runs"),
-                    "--reports",
-                    str(tmp_path / "reports"),
-                ]
+                simulated_run_args(
+                    tmp_path,
+                    serial="../../escape",
+                )
             )
             == 0
         )
