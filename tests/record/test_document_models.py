@@ -32,7 +32,7 @@ from verirun.record.journal import (
     read_start,
 )
 
-STORED = Path(__file__).resolve().parent / "data" / "stored-runs"
+STORED = Path(__file__).resolve().parents[1] / "data" / "stored-runs"
 JOURNALS = sorted(STORED.glob("*/journal.jsonl"))
 TIME = "2026-01-05T10:00:00Z"
 SHA = "ab" * 32

@@ -17,7 +17,7 @@ import pytest
 
 from verirun.record.documents import KINDS
 
-PACKAGE = Path(__file__).resolve().parent.parent / "verirun"
+PACKAGE = Path(__file__).resolve().parents[2] / "verirun"
 RECORD = PACKAGE / "record"
 
 #: Calls and attributes whose value is a journal's parsed lines (dicts), or one of them.
