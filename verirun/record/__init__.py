@@ -1,6 +1,7 @@
 """The run record: what a run is, as stored.
 
 - :mod:`~verirun.record.documents`: one strict model per journal document kind, and the schema;
+- :mod:`~verirun.record.model`: one strict model per part of the run record, and its schema;
 - :mod:`~verirun.record.journal`: the hash-chained, fsynced journal of a run folder, and the
   record file's reading and writing;
 - :mod:`~verirun.record.build`: documents to record, one code path for every close;
