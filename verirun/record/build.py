@@ -18,6 +18,7 @@ from verirun.functions import words_for
 from verirun.metrology.summary import Judged, Summary, summarise
 from verirun.procedure.load import Procedure, load_procedure_text
 from verirun.procedure.plan import TestPoint, plan
+from verirun.record import model
 from verirun.record.journal import RECORD_FORMAT, dumps, json_number, line_hash, verify_chain
 from verirun.record.model import (
     PointResult,
@@ -192,18 +193,20 @@ def row_judged(row: PointResult) -> Judged:
     return Judged(key=row.key, verdict=row.verdict, within_tolerance=row.is_within_tolerance())
 
 
-def summary_document(summary: Summary) -> dict:
+def summary_document(summary: Summary) -> model.Summary:
     """The record's summary: every count, the overall outcome, the rejections by cause and the
     statement of conformity in words, all from :func:`~verirun.metrology.summary.summarise`."""
-    return {
-        **summary.counts(),
-        "overall": summary.overall,
-        "rejections": [
-            {"key": r.key, "verdict": r.verdict, "cause": r.cause} for r in summary.rejections
-        ],
-        "guard_band_rejections": list(summary.guard_band_rejections),
-        "statement": summary.statement(),
-    }
+    return model.Summary.model_validate(
+        {
+            **summary.counts(),
+            "overall": summary.overall,
+            "rejections": [
+                {"key": r.key, "verdict": r.verdict, "cause": r.cause} for r in summary.rejections
+            ],
+            "guard_band_rejections": list(summary.guard_band_rejections),
+            "statement": summary.statement(),
+        }
+    )
 
 
 class _AfterTheRun:
