@@ -475,10 +475,15 @@ def record_problem(data: Any) -> str | None:
     return None
 
 
+_MEMBERS = {"float", "int", "str", "bool"}
+
+
 def validation_text(exc: ValidationError) -> str:
     """The first problem of ``exc`` in one line: ``field points.3.verdict: ... (got 'x')``."""
     error = exc.errors()[0]
-    where = ".".join(str(part) for part in error["loc"]) or "record"
+    # A union's member ("float", "list[...]") is part of the error's location; not of the field's.
+    parts = [p for p in error["loc"] if p not in _MEMBERS and "[" not in str(p)]
+    where = ".".join(str(part) for part in parts) or "record"
     text = f"field {where}: {error['msg']}"
     if error["type"] != "missing":
         shown = repr(error["input"])
