@@ -9,7 +9,8 @@ import xml.etree.ElementTree as ET
 
 import pytest
 
-from verirun.certificate.charts import arc_chart, error_chart
+from verirun.certificate import charts
+from verirun.record.model import PointResult, RangeEntry
 
 SVG = "{http://www.w3.org/2000/svg}"
 
@@ -103,6 +104,34 @@ def arc_row(
     if reading is not None:
         row.update(percent_of_tolerance=pct if pct is not None else 0.0, error_unit="deg")
     return row
+
+
+#: What a record's row holds where the rows above say nothing: no figure, no budget.
+ROW_DEFAULTS = {
+    "limits_text": "",
+    "budget": [],
+    **dict.fromkeys(
+        (
+            "typed time error error_unit percent_of_tolerance U U_spec k tur conformance"
+            " accept_low accept_high U_pct accept_low_pct accept_high_pct reported"
+        ).split()
+    ),
+}
+
+
+def error_chart(range_info: dict, rows: list[dict]) -> str:
+    """The error chart of rows written as dicts, made the record's typed rows first (as the
+    certificate passes them)."""
+    return charts.error_chart(RangeEntry.model_validate(range_info), [_typed(r) for r in rows])
+
+
+def arc_chart(range_info: dict, rows: list[dict]) -> str:
+    """The arc chart of rows written as dicts, made the record's typed rows first."""
+    return charts.arc_chart(RangeEntry.model_validate(range_info), [_typed(r) for r in rows])
+
+
+def _typed(row: dict) -> PointResult:
+    return PointResult.model_validate({**ROW_DEFAULTS, **row})
 
 
 def parse(svg: str) -> ET.Element:

@@ -1,7 +1,7 @@
 """Pictures for the certificate: inline SVG drawings of one range of a run record.
 
-Two pure functions of a range (one element of ``record["ranges"]``) and its rows (that range's
-``record["points"]`` entries, in order):
+Two pure functions of a range (a :class:`~verirun.record.model.RangeEntry` of the record's
+``ranges``) and its rows (that range's :class:`~verirun.record.model.PointResult` rows, in order):
 
 - :func:`error_chart`: every measured error as a percent of its tolerance, against the shaded
   tolerance band (-100 % to +100 %), with uncertainty bars and acceptance limits when the rows
@@ -23,6 +23,7 @@ import math
 from dataclasses import dataclass
 
 from verirun.metrology.scales import make_law
+from verirun.record.model import PointResult, RangeEntry
 from verirun.units import format_quantity, prefix_for
 
 WIDTH = 720.0
@@ -69,9 +70,9 @@ def _svg(kind: str, height: float, label: str, body: list[str]) -> str:
     return head + "".join(body) + "</svg>"
 
 
-def _state(row: dict) -> str:
+def _state(row: PointResult) -> str:
     """The row's own statement: the chart never works one out for itself."""
-    verdict = row.get("verdict")
+    verdict = row.verdict
     return verdict if verdict in COLOURS else "fail"
 
 
@@ -117,26 +118,26 @@ class _Frame:
         return self.top + self.height
 
 
-def _percent(row: dict) -> float:
+def _percent(row: PointResult) -> float:
     """The row's error as percent of tolerance; a zero tolerance makes any error infinite."""
-    pct = row.get("percent_of_tolerance")
+    pct = row.percent_of_tolerance
     if pct is not None:
         return float(pct)
-    error = row.get("error") or 0.0
+    error = row.error or 0.0
     return 0.0 if error == 0 else math.copysign(math.inf, error)
 
 
-def _limit(rows: list[dict]) -> float:
+def _limit(rows: list[PointResult]) -> float:
     """Half-height of the plot in percent of tolerance: room for the data, within reason."""
     need = 100.0
     for row in rows:
-        for key in ("accept_low_pct", "accept_high_pct"):
-            if row.get(key) is not None:
-                need = max(need, abs(row[key]))
-        if row.get("reading") is not None:
+        for value in (row.accept_low_pct, row.accept_high_pct):
+            if value is not None:
+                need = max(need, abs(value))
+        if row.reading is not None:
             pct = _percent(row)
             if math.isfinite(pct):
-                need = max(need, abs(pct) + (row.get("U_pct") or 0.0))
+                need = max(need, abs(pct) + (row.U_pct or 0.0))
     # Past three times the tolerance the band would shrink to a stripe; clip and mark instead.
     return next((lim for lim in (150.0, 200.0, 300.0) if need <= 0.95 * lim), 300.0)
 
@@ -149,11 +150,11 @@ def _short(text: str) -> str:
     return text if len(text) <= _LABEL_CHARS else text[: _LABEL_CHARS - 1] + "…"
 
 
-def _frame(rows: list[dict]) -> tuple[_Frame, float]:
+def _frame(rows: list[PointResult]) -> tuple[_Frame, float]:
     """The plot frame for ``rows`` and the height of the whole chart."""
     left, right, top = 64.0, 12.0, 14.0
     width = WIDTH - left - right
-    longest = max(len(_short(str(r.get("stimulus", "")))) for r in rows) * CHAR_WIDTH
+    longest = max(len(_short(str(r.stimulus))) for r in rows) * CHAR_WIDTH
     rotate = longest > width / len(rows) - 6.0
     bottom = min(longest * 0.58 + 24.0, 120.0) if rotate else 30.0  # 0.58 = sin 35°
     frame = _Frame(
@@ -215,14 +216,14 @@ def _stimulus_label(frame: _Frame, index: int, stimulus: str) -> str:
     return f'<text class="stimulus" x="{_num(x)}" y="{_num(y)}" text-anchor="middle" fill="{INK}">{text}</text>'
 
 
-def _acceptance(frame: _Frame, index: int, row: dict) -> list[str]:
+def _acceptance(frame: _Frame, index: int, row: PointResult) -> list[str]:
     """Dashed acceptance limits across the point's slot, where the row has them."""
     half = 0.4 * frame.slot
     x0, x1 = _num(frame.x(index) - half), _num(frame.x(index) + half)
     parts = []
-    for key, side in (("accept_low_pct", "low"), ("accept_high_pct", "high")):
-        if row.get(key) is not None:
-            y = _num(frame.y(float(row[key])))
+    for value, side in ((row.accept_low_pct, "low"), (row.accept_high_pct, "high")):
+        if value is not None:
+            y = _num(frame.y(float(value)))
             parts.append(
                 f'<line class="acceptance {side}" x1="{x0}" y1="{y}" x2="{x1}" y2="{y}"'
                 f' stroke="{ACCEPT}" stroke-width="1.2" stroke-dasharray="5 3"/>'
@@ -262,17 +263,17 @@ def _clipped_marker(frame: _Frame, x: float, pct: float, state: str, tip: str) -
     ]
 
 
-def _measured(frame: _Frame, index: int, row: dict) -> list[str]:
+def _measured(frame: _Frame, index: int, row: PointResult) -> list[str]:
     """Marker, and uncertainty bar if any, of one measured point."""
     pct = _percent(row)
     state = _state(row)
     colour = COLOURS[state]
     x = frame.x(index)
     shown = "∞" if math.isinf(pct) else f"{pct:+.1f}"
-    tip = _esc(f"{row.get('stimulus', '')}: {shown} % of tolerance, {row.get('verdict', '')}")
+    tip = _esc(f"{row.stimulus}: {shown} % of tolerance, {row.verdict}")
     parts = []
-    if row.get("U_pct") is not None and abs(pct) <= frame.limit:
-        parts += _uncertainty(frame, x, pct, float(row["U_pct"]), colour)
+    if row.U_pct is not None and abs(pct) <= frame.limit:
+        parts += _uncertainty(frame, x, pct, float(row.U_pct), colour)
     if abs(pct) > frame.limit:
         return parts + _clipped_marker(frame, x, pct, state, tip)
     return parts + [
@@ -281,43 +282,40 @@ def _measured(frame: _Frame, index: int, row: dict) -> list[str]:
     ]
 
 
-def _not_measured(frame: _Frame, index: int, row: dict) -> str:
+def _not_measured(frame: _Frame, index: int, row: PointResult) -> str:
     """A grey dash on the zero line where a point was skipped or not measured."""
-    reason = row.get("skip_reason")
-    tip = _esc(
-        f"{row.get('stimulus', '')}: {row.get('verdict', 'not measured')}"
-        + (f" ({reason})" if reason else "")
-    )
+    reason = row.skip_reason
+    tip = _esc(f"{row.stimulus}: {row.verdict}" + (f" ({reason})" if reason else ""))
     return (
         f'<text class="no-reading" x="{_num(frame.x(index))}" y="{_num(frame.y(0.0) + 4)}"'
         f' text-anchor="middle" fill="{GREY}">—<title>{tip}</title></text>'
     )
 
 
-def _error_point(frame: _Frame, index: int, row: dict) -> str:
+def _error_point(frame: _Frame, index: int, row: PointResult) -> str:
     """Everything drawn for one point, grouped under its key."""
-    state = row.get("verdict", "not-measured")
-    parts = [f'<g class="test-point {_esc(state)}" data-key="{_esc(row.get("key", index))}">']
+    state = row.verdict
+    parts = [f'<g class="test-point {_esc(state)}" data-key="{_esc(row.key)}">']
     parts += _acceptance(frame, index, row)
-    if row.get("reading") is None:
+    if row.reading is None:
         parts.append(_not_measured(frame, index, row))
     else:
         parts += _measured(frame, index, row)
-    parts.append(_stimulus_label(frame, index, str(row.get("stimulus", ""))))
+    parts.append(_stimulus_label(frame, index, str(row.stimulus)))
     return "".join(parts) + "</g>"
 
 
-def error_chart(range_info: dict, rows: list[dict]) -> str:
+def error_chart(range_info: RangeEntry, rows: list[PointResult]) -> str:
     """The errors of one range as percent of tolerance, against the tolerance band.
 
     Parameters
     ----------
     range_info
-        One element of ``record["ranges"]``; only its ``id`` is read.
+        One of the record's ranges; only its ``id`` is read.
     rows
-        That range's entries of ``record["points"]``, in the order to draw them. Read:
-        ``reading``, ``percent_of_tolerance``, ``verdict``, ``stimulus``, ``key``; when present:
-        ``error`` (for a zero tolerance), ``U_pct``, ``accept_low_pct``, ``accept_high_pct``,
+        That range's rows of the record, in the order to draw them. Read: ``reading``,
+        ``percent_of_tolerance``, ``verdict``, ``stimulus``, ``key``; when not none: ``error``
+        (for a zero tolerance), ``U_pct``, ``accept_low_pct``, ``accept_high_pct``,
         ``skip_reason``.
 
     Returns
@@ -330,7 +328,7 @@ def error_chart(range_info: dict, rows: list[dict]) -> str:
     frame, height = _frame(rows)
     body = _axes(frame)
     body += [_error_point(frame, i, row) for i, row in enumerate(rows)]
-    label = f"Range {range_info.get('id', '')}: error of each point as a percent of its tolerance"
+    label = f"Range {range_info.id}: error of each point as a percent of its tolerance"
     return _svg("error-chart", height, label, body)
 
 
@@ -505,16 +503,16 @@ def _label_fits(labels: list[tuple[float, float]], angle: float, half: float) ->
     return True
 
 
-def _scale(dial: _Dial, range_info: dict, law) -> tuple[list[str], str]:
+def _scale(dial: _Dial, range_info: RangeEntry, law) -> tuple[list[str], str]:
     """The scale arc with its ticks and labels, and the unit the labels are in."""
     half = dial.arc / 2.0
     parts = [
         f'<path class="scale" d="M {dial.point(_RADIUS, -half)}'
         f'{_arc_path(dial, _RADIUS, -half, half, 1)}" fill="none" stroke="{INK}" stroke-width="1.5"/>'
     ]
-    if range_info.get("scale") == "linear":
+    if range_info.scale == "linear":
         candidates, prefix = _linear_candidates(law)
-        unit = prefix + str(range_info.get("unit", ""))
+        unit = prefix + str(range_info.unit)
     else:
         candidates, unit = _ohms_candidates(law), "Ω"
     for fraction, label, major in _space_out(dial, candidates):
@@ -535,48 +533,42 @@ def _scale(dial: _Dial, range_info: dict, law) -> tuple[list[str], str]:
     return parts, unit
 
 
-def _arc_tip(row: dict) -> str:
-    unit = str(row.get("unit", ""))
-    low = format_quantity(row.get("low"), unit)
-    high = format_quantity(row.get("high"), unit)
-    read = (
-        "not read"
-        if row.get("reading") is None
-        else "read " + format_quantity(row["reading"], unit)
-    )
-    return _esc(
-        f"{row.get('stimulus', '')}: allowed {low} to {high}, {read}, {row.get('verdict', '')}"
-    )
+def _arc_tip(row: PointResult) -> str:
+    unit = str(row.unit)
+    low = format_quantity(row.low, unit)
+    high = format_quantity(row.high, unit)
+    read = "not read" if row.reading is None else "read " + format_quantity(row.reading, unit)
+    return _esc(f"{row.stimulus}: allowed {low} to {high}, {read}, {row.verdict}")
 
 
-def _arc_point(dial: _Dial, law, row: dict) -> str:
+def _arc_point(dial: _Dial, law, row: PointResult) -> str:
     """Allowed sector, expected pointer, reading marker and label of one point."""
-    state = row.get("verdict", "not-measured")
-    start = dial.angle(_fraction(law, row.get("low"))[0])
-    end = dial.angle(_fraction(law, row.get("high"))[0])
-    expected = dial.angle(_fraction(law, row.get("nominal"))[0])
+    state = row.verdict
+    start = dial.angle(_fraction(law, row.low)[0])
+    end = dial.angle(_fraction(law, row.high)[0])
+    expected = dial.angle(_fraction(law, row.nominal)[0])
     x0, y0 = dial.at(_POINTER[0], expected)
     x1, y1 = dial.at(_POINTER[1], expected)
     parts = [
-        f'<g class="test-point {_esc(state)}" data-key="{_esc(row.get("key", ""))}">'
+        f'<g class="test-point {_esc(state)}" data-key="{_esc(row.key)}">'
         f"<title>{_arc_tip(row)}</title>",
         f'<path class="sector" d="{_sector_path(dial, start, end)}" fill="{BAND_FILL}"'
         f' stroke="{PASS}" stroke-width="0.8"/>',
         f'<line class="expected" x1="{_num(x0)}" y1="{_num(y0)}" x2="{_num(x1)}" y2="{_num(y1)}"'
         f' stroke="{MUTED}" stroke-width="1" stroke-dasharray="4 2"/>',
     ]
-    if row.get("reading") is not None:
+    if row.reading is not None:
         parts.append(_reading_marker(dial, law, row))
     x, y = dial.at(_POINT_LABEL_RADIUS, expected)
     parts.append(
         f'<text class="label" x="{_num(x)}" y="{_num(y + 4)}" text-anchor="middle"'
-        f' fill="{INK}">{_esc(row.get("stimulus", ""))}</text>'
+        f' fill="{INK}">{_esc(row.stimulus)}</text>'
     )
     return "".join(parts) + "</g>"
 
 
-def _reading_marker(dial: _Dial, law, row: dict) -> str:
-    fraction, held = _fraction(law, row["reading"])
+def _reading_marker(dial: _Dial, law, row: PointResult) -> str:
+    fraction, held = _fraction(law, row.reading)
     state = _state(row)
     x, y = dial.at(_MARKER_RADIUS, dial.angle(fraction))
     kind = f"reading {state} clipped" if held else f"reading {state}"
@@ -597,7 +589,7 @@ def _dial(arc: float) -> tuple[_Dial, float]:
     return dial, dial.cy + lowest + 26.0
 
 
-def arc_chart(range_info: dict, rows: list[dict]) -> str:
+def arc_chart(range_info: RangeEntry, rows: list[PointResult]) -> str:
     """The scale arc of one range with each point's allowed sector and reading.
 
     Only the rows whose tolerance is stated along the arc (``domain == "deflection"``) are
@@ -606,11 +598,11 @@ def arc_chart(range_info: dict, rows: list[dict]) -> str:
     Parameters
     ----------
     range_info
-        One element of ``record["ranges"]``. Read: ``id``, ``scale`` (``linear``,
+        One of the record's ranges. Read: ``id``, ``scale`` (``linear``,
         ``series-ohms`` or ``shunt-ohms``), ``arc`` (degrees; 90 when absent), ``centre`` (ohms
         scales), ``full_scale`` (linear scales), ``unit``.
     rows
-        That range's entries of ``record["points"]``. Read: ``domain``, ``nominal``, ``low``,
+        That range's rows of the record. Read: ``domain``, ``nominal``, ``low``,
         ``high`` (``None`` is the infinity end), ``reading``, ``verdict``,
         ``percent_of_tolerance``, ``stimulus``, ``unit``, ``key``.
 
@@ -624,20 +616,20 @@ def arc_chart(range_info: dict, rows: list[dict]) -> str:
     ValueError
         If the range's scale law is unknown or lacks its centre or full-scale value.
     """
-    arc_rows = [row for row in rows if row.get("domain") == "deflection"]
+    arc_rows = [row for row in rows if row.domain == "deflection"]
     if not arc_rows:
         return ""
     law = make_law(
-        range_info["scale"],
-        full_scale=range_info.get("full_scale"),
-        centre=range_info.get("centre"),
+        range_info.scale,
+        full_scale=range_info.full_scale,
+        centre=range_info.centre,
     )
-    dial, height = _dial(float(range_info.get("arc") or _DEFAULT_ARC))
+    dial, height = _dial(float(range_info.arc or _DEFAULT_ARC))
     body, unit = _scale(dial, range_info, law)
     body += [_arc_point(dial, law, row) for row in arc_rows]
     body.append(
         f'<text class="unit" x="8" y="{_num(height - 8)}" fill="{MUTED}">'
         f"scale in {_esc(unit)}</text>"
     )
-    label = f"Range {range_info.get('id', '')}: allowed sector and reading of each point on the scale arc"
+    label = f"Range {range_info.id}: allowed sector and reading of each point on the scale arc"
     return _svg("arc-chart", height, label, body)

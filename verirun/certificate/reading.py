@@ -10,6 +10,10 @@ confirmations, aborts, resumes) is the lab's record, never the customer's certif
 from __future__ import annotations
 
 import re
+from dataclasses import dataclass
+
+from verirun.certificate.render import ResultRow, is_dry_run, printed
+from verirun.record.model import NoteEntry, PointResult, RangeEntry, Record
 
 #: The words of the certificate that are spelt two ways; the lab profile chooses.
 SPELLING = {
@@ -71,54 +75,49 @@ _LOG_NOTES = (
 _REVISION_NOTE = re.compile(r"revision (\d+): ")
 
 
-def reading_context(record: dict, *, replaced_by: dict | None = None) -> dict:
+def reading_context(record: Record, *, replaced_by: dict | None = None) -> dict:
     """The template's values beyond the record itself (see the module's description)."""
-    from verirun.certificate.render import is_dry_run
-
-    run = record["run"]
-    issue = next(
-        (i for i in record.get("issues", []) if i["revision"] == run.get("revision", 1)), None
-    )
+    run = record.run
+    issues = record.issues or []
+    issue = next((i for i in issues if i.revision == run.revision), None)
     state = "dry-run" if is_dry_run(record) else ("issued" if issue else "draft")
     notes = customer_notes(record)
     changes = [note for note in notes if _is_change(record, note)]
     kept = [note for note in notes if note not in changes]
-    by_point: dict[str, list[dict]] = {}
+    by_point: dict[str, list[NoteEntry]] = {}
     for note in kept:
-        if note.get("point"):
-            by_point.setdefault(note["point"], []).append(note)
-    known = {row["key"] for row in record["points"]}
+        if note.point:
+            by_point.setdefault(note.point, []).append(note)
+    known = {row.key for row in record.points}
     page_mark, watermark = _marks(state, replaced_by)
     return {
         "state": state,
         "issue": issue,
         "replaced_by": replaced_by,
-        "replaces_issued": any(
-            i["revision"] == run.get("revision", 1) - 1 for i in record.get("issues", [])
-        ),
+        "replaces_issued": any(i.revision == run.revision - 1 for i in issues),
         "page_mark": page_mark,
         "watermark": watermark,
-        "words": SPELLING[record["lab"].get("spelling", "british")],
-        "spelling": record["lab"].get("spelling", "british"),
+        "words": SPELLING[record.lab.spelling],
+        "spelling": record.lab.spelling,
         "point_notes": by_point,
-        "general_notes": [n for n in kept if not n.get("point") or n["point"] not in known],
+        "general_notes": [n for n in kept if not n.point or n.point not in known],
         "changes": changes,
         "environment_missing": [
             name
-            for key, name in (
-                ("temperature_c", "the laboratory temperature"),
-                ("humidity_pct", "the relative humidity"),
+            for value, name in (
+                (record.environment.temperature_c, "the laboratory temperature"),
+                (record.environment.humidity_pct, "the relative humidity"),
             )
-            if key not in record.get("environment", {})
+            if value is None
         ],
-        "receipt_missing": not record["item"].get("condition"),
-        "side_by_side": side_by_side(record) if record.get("as_found") else [],
+        "receipt_missing": not record.item.condition,
+        "side_by_side": side_by_side(record) if record.as_found else [],
         "found_deviations": [
             row
-            for row in record.get("as_found", {}).get("points", [])
-            if row["verdict"] in ("skipped", "not-measured")
+            for row in (record.as_found.points if record.as_found else [])
+            if row.verdict in ("skipped", "not-measured")
         ],
-        "remarks": record["lab"].get("remarks", []),
+        "remarks": record.lab.remarks,
     }
 
 
@@ -133,41 +132,54 @@ def _marks(state: str, replaced_by: dict | None) -> tuple[str | None, str | None
     return None, None
 
 
-def customer_notes(record: dict) -> list[dict]:
+def customer_notes(record: Record) -> list[NoteEntry]:
     """The notes the customer reads: the operator's and the record's corrections, without the
-    internal run log (kept apart in records of journal format 2; recognised by its wording in
+    internal run log (kept apart in records of journal format 3; recognised by its wording in
     earlier ones)."""
-    if "run_log" in record:
-        return list(record["notes"])
-    return [note for note in record["notes"] if not note["text"].startswith(_LOG_NOTES)]
+    if record.run_log is not None:
+        return list(record.notes)
+    return [note for note in record.notes if not note.text.startswith(_LOG_NOTES)]
 
 
-def _is_change(record: dict, note: dict) -> bool:
+def _is_change(record: Record, note: NoteEntry) -> bool:
     """True for the note a correction or an as-found revision wrote (they begin "revision N: ")."""
-    if not _REVISION_NOTE.match(note["text"]):
+    if not _REVISION_NOTE.match(note.text):
         return False
-    if note.get("point") is None:
-        return any(r["time"] == note["time"] for r in record.get("as_found_revisions", []))
-    return any(row["key"] == note["point"] and "correction" in row for row in record["points"])
+    if note.point is None:
+        return any(r.time == note.time for r in record.as_found_revisions or [])
+    return any(row.key == note.point and row.correction is not None for row in record.points)
 
 
-def side_by_side(record: dict) -> list[dict]:
+@dataclass(frozen=True, slots=True)
+class Pair:
+    """One step after an adjustment: its as-found row (``None``: the as-found run lacks the
+    point) and its as-left row with its limits as printed."""
+
+    found: PointResult | None
+    left: ResultRow
+
+
+@dataclass(frozen=True, slots=True)
+class RangePairs:
+    """One range of the side-by-side results, with the pair of rows of each of its steps."""
+
+    range: RangeEntry
+    pairs: tuple[Pair, ...]
+
+
+def side_by_side(record: Record) -> list[RangePairs]:
     """Each range with its points, the as-found row and the as-left row of each step together."""
-    from verirun.certificate.render import printed
-
-    found = {row["key"]: {**row, "printed": printed(row)} for row in record["as_found"]["points"]}
+    found = {row.key: row for row in record.as_found.points}
     out = []
-    for rng in record["ranges"]:
-        rows = sorted(
-            (r for r in record["points"] if r["range"] == rng["id"]), key=lambda r: r["index"]
-        )
+    for rng in record.ranges:
+        rows = sorted((r for r in record.points if r.range == rng.id), key=lambda r: r.index)
         out.append(
-            {
-                **rng,
-                "pairs": [
-                    {"found": found.get(row["key"]), "left": {**row, "printed": printed(row)}}
+            RangePairs(
+                range=rng,
+                pairs=tuple(
+                    Pair(found=found.get(row.key), left=ResultRow(point=row, printed=printed(row)))
                     for row in rows
-                ],
-            }
+                ),
+            )
         )
     return out

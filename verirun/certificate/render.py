@@ -10,8 +10,14 @@ from __future__ import annotations
 import errno
 import os
 import re
+from dataclasses import dataclass
 from pathlib import Path
 
+from markupsafe import Markup
+from pydantic import ValidationError
+
+from verirun.errors import RecordError
+from verirun.record.model import PointResult, RangeEntry, Record, validate_record, validation_text
 from verirun.text import shown
 
 #: Version of the certificate template; recorded in every certificate it renders.
@@ -21,35 +27,53 @@ TEMPLATE_VERSION = "3"
 DRY_RUN_PREFIX = "DRYRUN"
 
 
-def is_dry_run(record: dict) -> bool:
+def is_dry_run(record: Record | dict) -> bool:
     """True for a run on the simulated calibrator: a dry run, never a calibration."""
-    return bool(record["bench"].get("simulated"))
+    if isinstance(record, dict):
+        return bool(record["bench"].get("simulated"))
+    return record.bench.simulated
 
 
-def certificate_number(record: dict) -> str:
+def certificate_number(record: Record | dict) -> str:
     """The certificate's unique number: the one the lab register gave the run, else lab prefix
     (a dry run's own prefix, outside the lab's sequence), calibration date and the run's uid; a
     later revision adds ``-R<n>``."""
-    number = record["run"].get("certificate_number")
-    if number is None:
-        prefix = (
-            DRY_RUN_PREFIX
-            if is_dry_run(record)
-            else record["lab"].get("certificate_prefix", "CERT")
+    if isinstance(record, dict):
+        run = record["run"]
+        given, revision = run.get("certificate_number"), run.get("revision", 1)
+        prefix, started, uid = (
+            record["lab"].get("certificate_prefix", "CERT"),
+            run["started"],
+            run["uid"],
         )
-        day = record["run"]["started"][:10].replace("-", "")
-        number = f"{prefix}-{day}-{record['run']['uid'][:8].upper()}"
-    revision = record["run"].get("revision", 1)
+    else:
+        run = record.run
+        given, revision = run.certificate_number, run.revision
+        prefix, started, uid = record.lab.certificate_prefix, run.started, run.uid
+    return _number(given, revision, DRY_RUN_PREFIX if is_dry_run(record) else prefix, started, uid)
+
+
+def _number(given: str | None, revision: int, prefix: str, started: str, uid: str) -> str:
+    number = (
+        given
+        if given is not None
+        else f"{prefix}-{started[:10].replace('-', '')}-{uid[:8].upper()}"
+    )
     return number if revision == 1 else f"{number}-R{revision}"
 
 
-def previous_number(record: dict) -> str | None:
+def previous_number(record: Record | dict) -> str | None:
     """The number of the certificate this one replaces (``None`` for a first issue)."""
-    revision = record["run"].get("revision", 1)
-    if revision == 1:
+    if isinstance(record, dict):
+        revision = record["run"].get("revision", 1)
+        if revision == 1:
+            return None
+        return certificate_number({**record, "run": {**record["run"], "revision": revision - 1}})
+    if record.run.revision == 1:
         return None
-    earlier = {**record, "run": {**record["run"], "revision": revision - 1}}
-    return certificate_number(earlier)
+    run = record.run
+    prefix = DRY_RUN_PREFIX if is_dry_run(record) else record.lab.certificate_prefix
+    return _number(run.certificate_number, run.revision - 1, prefix, run.started, run.uid)
 
 
 def safe_file_name(text: str) -> str:
@@ -95,33 +119,49 @@ def css_string(text: str):
     return Markup(f'"{escaped}"')
 
 
-def render_html(record: dict, *, replaced_by: dict | None = None) -> str:
+def render_html(record: Record | dict, *, replaced_by: dict | None = None) -> str:
     """The certificate of ``record`` as HTML text; ``replaced_by`` (see
     :func:`verirun.issue.earlier_revisions`) marks an earlier revision as replaced."""
     return "".join(_generate(record, replaced_by=replaced_by))
 
 
-def _generate(record: dict, *, replaced_by: dict | None = None):
+def typed(record: Record | dict) -> Record:
+    """``record`` as its model (a dict as ``record.json`` holds it is checked against it).
+
+    Raises
+    ------
+    RecordError
+        If the dict is not a run record verirun writes, naming the field.
+    """
+    if isinstance(record, Record):
+        return record
+    try:
+        return validate_record(record)
+    except ValidationError as exc:
+        raise RecordError(f"not a run record verirun writes: {validation_text(exc)}") from None
+
+
+def _generate(record: Record | dict, *, replaced_by: dict | None = None):
     """The certificate of ``record`` as a stream of text pieces (for writing without holding it)."""
     from verirun.certificate.reading import reading_context
 
     global _ENV
     if _ENV is None:
         _ENV = _environment()
+    record = typed(record)
     template = _ENV.get_template("certificate.html.j2")
-    as_found = record.get("as_found")
+    as_found = record.as_found
+    rule = record.decision_rule.rule
     # No control or bidirectional-control character reaches a certificate: they are refused
     # where text comes in, and replaced here should stored data hold some.
     return map(
         shown,
         template.generate(
             record=record,
-            ranges=_ranges(record["ranges"], record["points"]),
-            summary=conformity(record),
-            found_summary=conformity({**record, "points": as_found["points"]})
-            if as_found
-            else None,
-            as_found_ranges=_ranges(record["ranges"], as_found["points"]) if as_found else [],
+            ranges=_ranges(record.ranges, record.points),
+            summary=conformity(record.points, rule),
+            found_summary=conformity(as_found.points, rule) if as_found else None,
+            as_found_ranges=_ranges(record.ranges, as_found.points) if as_found else [],
             number=certificate_number(record),
             replaces=previous_number(record),
             template_version=TEMPLATE_VERSION,
@@ -130,32 +170,71 @@ def _generate(record: dict, *, replaced_by: dict | None = None):
     )
 
 
-def conformity(record: dict):
-    """The statement of conformity of ``record``, worked out by the one summary function from
-    its points and its decision rule (so a record of an earlier format gets today's words)."""
+def conformity(points: list[PointResult], rule: str):
+    """The statement of conformity of ``points`` under the decision rule named ``rule``, worked
+    out by the one summary function (so a record of an earlier format gets today's words)."""
     from verirun.metrology.summary import summarise
-    from verirun.record.build import record_judged
+    from verirun.record.build import row_judged
 
-    return summarise(record_judged(record), record["decision_rule"]["rule"])
+    return summarise([row_judged(row) for row in points], rule)
 
 
-def printed(row: dict) -> dict:
-    """The texts a certificate row prints: the record's own (``reported``), or for a record
+@dataclass(frozen=True, slots=True)
+class Printed:
+    """The limits of a certificate row as printed (``None``: none to print)."""
+
+    low: str | None
+    high: str | None
+    accept_low: str | None
+    accept_high: str | None
+    outer_low: str | None
+    outer_high: str | None
+    interval: str | None
+
+
+@dataclass(frozen=True, slots=True)
+class ResultRow:
+    """A row of a certificate's results table: the record's row, and its limits as printed."""
+
+    point: PointResult
+    printed: Printed
+
+
+@dataclass(frozen=True, slots=True)
+class RangeResults:
+    """One range of a certificate's results: the range, its rows and its charts."""
+
+    range: RangeEntry
+    rows: tuple[ResultRow, ...]
+    error_svg: Markup
+    arc_svg: Markup
+
+
+def printed(row: PointResult) -> Printed:
+    """The limits a certificate row prints: the record's own (``reported``), or for a record
     written before rows carried them, the same formatter applied to the row's numbers as
     written: the reading as typed, each limit with the digits the printed comparison needs."""
     from verirun.metrology.exact import as_written
     from verirun.units import format_limit, row_exponent, typed_decimal
 
-    texts = dict(row.get("reported") or {})
-    if "low" in texts:
-        return texts
-    unit = row["unit"]
+    texts = row.reported
+    if texts is not None and texts.low is not None:
+        return Printed(
+            low=texts.low,
+            high=texts.high,
+            accept_low=texts.accept_low,
+            accept_high=texts.accept_high,
+            outer_low=texts.outer_low,
+            outer_high=texts.outer_high,
+            interval=texts.interval,
+        )
+    unit = row.unit
     reading = places = None
-    if row.get("reading") is not None and row.get("typed"):
-        number, exponent = typed_decimal(row["typed"], unit)
-        reading, places = as_written(row["reading"]), max(-number.as_tuple().exponent, 0)
+    if row.reading is not None and row.typed:
+        number, exponent = typed_decimal(row.typed, unit)
+        reading, places = as_written(row.reading), max(-number.as_tuple().exponent, 0)
     else:
-        exponent = row_exponent(unit, row["nominal"], row["high"])
+        exponent = row_exponent(unit, row.nominal, row.high)
 
     def limit(value, side: str) -> str | None:
         if value is None:
@@ -164,47 +243,40 @@ def printed(row: dict) -> dict:
             as_written(value), unit, exponent, reading=reading, side=side, places=places or 0
         )
 
-    texts.update(
-        low=limit(row["low"], "low"),
-        high=limit(row["high"], "high"),
-        accept_low=None,
-        accept_high=None,
+    accepted = reading is not None and row.accept_low is not None
+    return Printed(
+        low=limit(row.low, "low"),
+        high=limit(row.high, "high"),
+        accept_low=limit(row.accept_low, "low") if accepted else None,
+        accept_high=limit(row.accept_high, "high") if accepted else None,
         outer_low=None,
         outer_high=None,
         interval=None,
     )
-    if reading is not None and row.get("accept_low") is not None:
-        texts.update(
-            accept_low=limit(row["accept_low"], "low"),
-            accept_high=limit(row["accept_high"], "high"),
-        )
-    return texts
 
 
-def _ranges(ranges: list[dict], points: list[dict]) -> list[dict]:
+def _ranges(ranges: list[RangeEntry], points: list[PointResult]) -> list[RangeResults]:
     """Each range of the record with its rows and its charts, in the procedure's order."""
-    from markupsafe import Markup
-
     from verirun.certificate.charts import arc_chart, error_chart
 
-    by_range: dict[str, list[dict]] = {}
-    for row in sorted(points, key=lambda r: r["index"]):
-        by_range.setdefault(row["range"], []).append({**row, "printed": printed(row)})
+    by_range: dict[str, list[PointResult]] = {}
+    for row in sorted(points, key=lambda r: r.index):
+        by_range.setdefault(row.range, []).append(row)
     out = []
     for rng in ranges:
-        rows = by_range.get(rng["id"], [])
+        rows = by_range.get(rng.id, [])
         out.append(
-            {
-                **rng,
-                "rows": rows,
-                "error_svg": Markup(error_chart(rng, rows)),
-                "arc_svg": Markup(arc_chart(rng, rows)),
-            }
+            RangeResults(
+                range=rng,
+                rows=tuple(ResultRow(point=row, printed=printed(row)) for row in rows),
+                error_svg=Markup(error_chart(rng, rows)),
+                arc_svg=Markup(arc_chart(rng, rows)),
+            )
         )
     return out
 
 
-def certificate_path(record: dict, reports_dir: str | Path) -> Path:
+def certificate_path(record: Record | dict, reports_dir: str | Path) -> Path:
     """Where the certificate of ``record`` is written: ``reports_dir``/<certificate number>.html."""
     return Path(reports_dir) / f"{safe_file_name(certificate_number(record))}.html"
 
@@ -243,7 +315,7 @@ def write_pdf(html: str, path: str | Path) -> Path:
 
 
 def write_certificate(
-    record: dict,
+    record: Record | dict,
     reports_dir: str | Path,
     *,
     replaced_by: dict | None = None,

@@ -8,17 +8,25 @@ the same journal are the same.
 from __future__ import annotations
 
 import functools
-import math
+
+from pydantic import ValidationError
 
 from verirun.bench.config import Bench, load_bench_text
 from verirun.errors import ProcedureError, RecordError
 from verirun.evaluation import Result, evaluate, shown
 from verirun.functions import words_for
-from verirun.metrology.exact import as_written
 from verirun.metrology.summary import Judged, Summary, summarise
 from verirun.procedure.load import Procedure, load_procedure_text
 from verirun.procedure.plan import TestPoint, plan
+from verirun.record import model
 from verirun.record.journal import RECORD_FORMAT, dumps, json_number, line_hash, verify_chain
+from verirun.record.model import (
+    PointResult,
+    Record,
+    record_document,
+    validation_text,
+    within_limits,
+)
 
 
 @functools.lru_cache(maxsize=16)
@@ -42,7 +50,20 @@ def _planned(
 
 
 def build_record(documents: list[dict], source: str = "journal") -> dict:
-    """The run record of a journal's ``documents`` (see :func:`_build`).
+    """The run record of a journal's ``documents``, as the dict ``record.json`` holds (see
+    :func:`build_record_model`).
+
+    Raises
+    ------
+    RecordError
+        If the journal is not one verirun writes, saying where.
+    """
+    return record_document(build_record_model(documents, source))
+
+
+def build_record_model(documents: list[dict], source: str = "journal") -> Record:
+    """The run record of a journal's ``documents`` (see :func:`_build`), every part checked
+    against its model (:mod:`verirun.record.model`) as it is made.
 
     Raises
     ------
@@ -53,6 +74,12 @@ def build_record(documents: list[dict], source: str = "journal") -> dict:
         return _build(documents, source)
     except RecordError:
         raise
+    except ValidationError as exc:
+        # The documents passed the checks of each one alone, yet close into no record.
+        raise RecordError(
+            f"{source}: not a journal verirun writes (its record would not fit:"
+            f" {validation_text(exc)})"
+        ) from None
     except (KeyError, TypeError, ValueError, AttributeError, IndexError, ArithmeticError) as exc:
         # The documents passed the checks of each one alone, yet do not fit together.
         raise RecordError(
@@ -60,7 +87,7 @@ def build_record(documents: list[dict], source: str = "journal") -> dict:
         ) from None
 
 
-def _build(documents: list[dict], source: str = "journal") -> dict:
+def _build(documents: list[dict], source: str = "journal") -> Record:
     """The run record of a journal's ``documents``: the same code path for the first closing of
     a run, a resume, an amendment and a rebuild (every reading is evaluated here, from the
     procedure and bench the journal holds).
@@ -93,60 +120,61 @@ def _build(documents: list[dict], source: str = "journal") -> dict:
     entries, corrections, notes, stop, revision, number = _entries(
         documents, planned, journal_format, source, after
     )
-    rows = []
-    for point in planned:
-        row = _row(point, entries.get(point.index), journal_format)
-        if point.index in corrections:
-            row["correction"] = corrections[point.index]
-        rows.append(row)
-    summary = summarise(record_judged({"points": rows}), procedure.rule.name)
+    rows = [
+        _row(point, entries.get(point.index), journal_format, corrections.get(point.index))
+        for point in planned
+    ]
+    summary = summarise([row_judged(row) for row in rows], procedure.rule.name)
     status = stop["status"] if stop else "resumable"
     if status == "complete" and summary.not_measured:
         status = "incomplete"
-    return {
-        "record_format": 1 if journal_format < 2 else RECORD_FORMAT,
-        "run": {
-            "uid": start["uid"],
-            "started": start["time"],
-            "ended": stop["time"] if stop else None,
-            "status": status,
-            "reason": stop.get("reason") if stop else None,
-            "operator": start["operator"],
-            "software": start["software"],
-            "journal_sha256_last": line_hash(dumps(documents[-1])),
-            "documents": len(documents),
-            "revision": revision,
-            **({"certificate_number": number} if number is not None else {}),
-        },
-        "lab": start["lab"],
-        "customer": {"name": None, "address": [], **start["customer"]},
-        "item": {
-            "serial": None,
-            "asset": None,
-            "condition": None,
-            "received": None,
-            **start["item"],
-        },
-        "environment": start.get("environment", {}),
-        **({"as_found": after.as_found} if after.as_found else {}),
-        "procedure": start["procedure"],
-        "bench": start["bench"],
-        "meter": procedure.file.meter.model_dump(by_alias=True),
-        "decision_rule": {
-            "rule": procedure.rule.name,
-            "statement": procedure.rule.describe(),
-            "parameters": procedure.file.decision.model_dump(by_alias=True, exclude_none=True),
-        },
-        "ranges": [_range(rng) for rng in procedure.ranges],
-        "points": rows,
-        "notes": notes,
-        "summary": summary_document(summary),
-        **after.extra(),
-    }
+    return Record.model_validate(
+        {
+            "record_format": 1 if journal_format < 2 else RECORD_FORMAT,
+            "run": {
+                "uid": start["uid"],
+                "started": start["time"],
+                "ended": stop["time"] if stop else None,
+                "status": status,
+                "reason": stop.get("reason") if stop else None,
+                "operator": start["operator"],
+                "software": start["software"],
+                "journal_sha256_last": line_hash(dumps(documents[-1])),
+                "documents": len(documents),
+                "revision": revision,
+                **({"certificate_number": number} if number is not None else {}),
+            },
+            "lab": start["lab"],
+            "customer": {"name": None, "address": [], **start["customer"]},
+            "item": {
+                "serial": None,
+                "asset": None,
+                "condition": None,
+                "received": None,
+                **start["item"],
+            },
+            "environment": start.get("environment", {}),
+            **({"as_found": after.as_found} if after.as_found else {}),
+            "procedure": start["procedure"],
+            "bench": start["bench"],
+            "meter": procedure.file.meter.model_dump(by_alias=True),
+            "decision_rule": {
+                "rule": procedure.rule.name,
+                "statement": procedure.rule.describe(),
+                "parameters": procedure.file.decision.model_dump(by_alias=True, exclude_none=True),
+            },
+            "ranges": [_range(rng) for rng in procedure.ranges],
+            "points": rows,
+            "notes": notes,
+            "summary": summary_document(summary),
+            **after.extra(),
+        }
+    )
 
 
 def record_judged(record: dict) -> list[Judged]:
-    """The points of ``record`` as :func:`~verirun.metrology.summary.summarise` takes them.
+    """The points of ``record`` (as ``record.json`` holds it) as
+    :func:`~verirun.metrology.summary.summarise` takes them.
 
     A row of a record written before rows said whether the reading lies within tolerance is
     compared with its limits here, exactly, as the numbers are written."""
@@ -154,28 +182,31 @@ def record_judged(record: dict) -> list[Judged]:
     for row in record["points"]:
         within = row.get("within_tolerance")
         if within is None and row.get("reading") is not None:
-            high = row.get("high")
-            within = (
-                as_written(row["low"])
-                <= as_written(row["reading"])
-                <= (math.inf if high is None else as_written(high))
-            )
+            within = within_limits(row["low"], row.get("high"), row["reading"])
         out.append(Judged(key=row["key"], verdict=row["verdict"], within_tolerance=within))
     return out
 
 
-def summary_document(summary: Summary) -> dict:
+def row_judged(row: PointResult) -> Judged:
+    """One typed row as :func:`~verirun.metrology.summary.summarise` takes it (see
+    :func:`record_judged`)."""
+    return Judged(key=row.key, verdict=row.verdict, within_tolerance=row.is_within_tolerance())
+
+
+def summary_document(summary: Summary) -> model.Summary:
     """The record's summary: every count, the overall outcome, the rejections by cause and the
     statement of conformity in words, all from :func:`~verirun.metrology.summary.summarise`."""
-    return {
-        **summary.counts(),
-        "overall": summary.overall,
-        "rejections": [
-            {"key": r.key, "verdict": r.verdict, "cause": r.cause} for r in summary.rejections
-        ],
-        "guard_band_rejections": list(summary.guard_band_rejections),
-        "statement": summary.statement(),
-    }
+    return model.Summary.model_validate(
+        {
+            **summary.counts(),
+            "overall": summary.overall,
+            "rejections": [
+                {"key": r.key, "verdict": r.verdict, "cause": r.cause} for r in summary.rejections
+            ],
+            "guard_band_rejections": list(summary.guard_band_rejections),
+            "statement": summary.statement(),
+        }
+    )
 
 
 class _AfterTheRun:
@@ -467,7 +498,11 @@ def _step_of(doc: dict, planned: list[TestPoint], journal_format: int, where: st
     return point
 
 
-def _row(point, doc: dict | None, journal_format: int = 2) -> dict:
+def _row(
+    point, doc: dict | None, journal_format: int = 2, correction: dict | None = None
+) -> PointResult:
+    """The record's row of ``point``, from its confirmed entry ``doc`` (none: not measured)."""
+    extra = {} if correction is None else {"correction": correction}
     win = point.window
     row = {
         "index": point.index,
@@ -505,47 +540,58 @@ def _row(point, doc: dict | None, journal_format: int = 2) -> dict:
         "reported": None,
     }
     if doc is None:
-        return {**row, "verdict": "not-measured"}
+        return PointResult.model_validate({**row, "verdict": "not-measured", **extra})
     if doc["kind"] not in ("observation", "correction"):
-        return {**row, "verdict": "skipped", "time": doc["time"], "skip_reason": doc["reason"]}
+        return PointResult.model_validate(
+            {
+                **row,
+                "verdict": "skipped",
+                "time": doc["time"],
+                "skip_reason": doc["reason"],
+                **extra,
+            }
+        )
     reading = doc["reading"]
     result = evaluate(point, reading)
     interval = result.interval
-    return {
-        **row,
-        "verdict": result.verdict,
-        "within_tolerance": result.within_tolerance,
-        "interval": [json_number(interval[0]), json_number(interval[1])] if interval else None,
-        "reading": reading,
-        "typed": doc["typed"],
-        "time": doc["time"],
-        "error": result.error,
-        "error_unit": result.error_unit,
-        "percent_of_tolerance": result.percent_of_tolerance,
-        "U": json_number(result.expanded_value),
-        "U_spec": result.expanded,
-        "k": result.k,
-        "tur": json_number(result.tur),
-        "conformance": result.conformance,
-        "accept_low": json_number(result.acceptance[0]) if result.acceptance else None,
-        "accept_high": json_number(result.acceptance[1]) if result.acceptance else None,
-        # Acceptance limits as percent of tolerance only where the rule moves them off the
-        # tolerance limits (they are drawn on the error chart).
-        "U_pct": result.expanded_pct,
-        "accept_low_pct": result.accept_low_pct if point.rule.name != "simple" else None,
-        "accept_high_pct": result.accept_high_pct if point.rule.name != "simple" else None,
-        "budget": [
-            {
-                "name": t.name,
-                "u": t.standard_uncertainty,
-                "domain": t.domain,
-                "distribution": t.distribution,
-                "contribution": c,
-            }
-            for t, c in zip(point.budget.terms, point.budget.contributions)
-        ],
-        "reported": reported(point, result, doc["typed"]),
-    }
+    return PointResult.model_validate(
+        {
+            **row,
+            "verdict": result.verdict,
+            "within_tolerance": result.within_tolerance,
+            "interval": [json_number(interval[0]), json_number(interval[1])] if interval else None,
+            "reading": reading,
+            "typed": doc["typed"],
+            "time": doc["time"],
+            "error": result.error,
+            "error_unit": result.error_unit,
+            "percent_of_tolerance": result.percent_of_tolerance,
+            "U": json_number(result.expanded_value),
+            "U_spec": result.expanded,
+            "k": result.k,
+            "tur": json_number(result.tur),
+            "conformance": result.conformance,
+            "accept_low": json_number(result.acceptance[0]) if result.acceptance else None,
+            "accept_high": json_number(result.acceptance[1]) if result.acceptance else None,
+            # Acceptance limits as percent of tolerance only where the rule moves them off the
+            # tolerance limits (they are drawn on the error chart).
+            "U_pct": result.expanded_pct,
+            "accept_low_pct": result.accept_low_pct if point.rule.name != "simple" else None,
+            "accept_high_pct": result.accept_high_pct if point.rule.name != "simple" else None,
+            "budget": [
+                {
+                    "name": t.name,
+                    "u": t.standard_uncertainty,
+                    "domain": t.domain,
+                    "distribution": t.distribution,
+                    "contribution": c,
+                }
+                for t, c in zip(point.budget.terms, point.budget.contributions)
+            ],
+            "reported": reported(point, result, doc["typed"]),
+            **extra,
+        }
+    )
 
 
 def reported(point: TestPoint, result: Result, typed: str) -> dict:

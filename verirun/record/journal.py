@@ -333,14 +333,20 @@ def json_number(value: float | None) -> float | None:
     return value
 
 
-def write_record(record: dict, path: str | Path) -> Path:
-    """Write a run record atomically (temporary file, fsync, rename; see :mod:`verirun.storage`).
+def write_record(record, path: str | Path) -> Path:
+    """Write a run record (a dict as ``record.json`` holds it, or a
+    :class:`~verirun.record.model.Record`) atomically (temporary file, fsync, rename; see
+    :mod:`verirun.storage`).
 
     Raises
     ------
     StorageError
         If it cannot be written; the previous record, if any, is kept and no temporary is left.
     """
+    if not isinstance(record, dict):
+        from verirun.record.model import record_document
+
+        record = record_document(record)
     return storage.write_atomic(path, _record_pieces(record))
 
 
@@ -366,13 +372,35 @@ def _record_pieces(record: dict):
 
 
 def load_record(path: str | Path) -> dict:
-    """Load a run record from its file or from its run folder.
+    """Load a run record from its file or from its run folder, as the dict it holds, after
+    checking it against the record's model (see :func:`load_record_model`).
 
     Raises
     ------
     RecordError
-        If it is missing, not JSON, or not a run record this verirun reads.
+        If it is missing, not JSON, or not a run record this verirun reads (naming the field).
     """
+    return _load(path)[0]
+
+
+def load_record_model(path: str | Path):
+    """Load a run record from its file or from its run folder, as a typed
+    :class:`~verirun.record.model.Record`.
+
+    Raises
+    ------
+    RecordError
+        If it is missing, not JSON, or not a run record this verirun reads (naming the field).
+    """
+    return _load(path)[1]
+
+
+def _load(path: str | Path):
+    """The record at ``path``, as parsed and as its model."""
+    from pydantic import ValidationError
+
+    from verirun.record.model import validate_record, validation_text
+
     path = Path(path)
     if path.is_dir():
         path = path / RECORD_NAME
@@ -397,4 +425,10 @@ def load_record(path: str | Path) -> dict:
             f"{path}: run record format {record['record_format']!r} is newer than this"
             f" verirun reads ({RECORD_FORMAT}); upgrade verirun"
         )
-    return record
+    try:
+        model = validate_record(record)
+    except ValidationError as exc:
+        raise RecordError(
+            f"{path}: not a run record verirun writes: {validation_text(exc)}"
+        ) from None
+    return record, model
