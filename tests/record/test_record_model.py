@@ -18,7 +18,7 @@ from verirun.errors import RecordError
 from verirun.record.journal import RECORD_FORMAT, load_record, load_record_model, write_record
 from verirun.record.model import PointResult, Record, record_schema, validate_record
 
-DATA = Path(__file__).resolve().parent / "data"
+DATA = Path(__file__).resolve().parents[1] / "data"
 STORED = sorted((DATA / "stored-runs").glob("*/record*.json"))
 SHIPPED = json.loads((files("verirun") / "schema" / "record.schema.json").read_text("utf-8"))
 
@@ -83,7 +83,7 @@ class TestShippedSchema:
 
     def test_is_package_data(self):
         """pyproject.toml ships every file of verirun/schema with the package."""
-        text = (Path(__file__).resolve().parents[1] / "pyproject.toml").read_text("utf-8")
+        text = (Path(__file__).resolve().parents[2] / "pyproject.toml").read_text("utf-8")
         assert '"schema/*.json"' in text
 
     def test_every_field_is_described(self):
