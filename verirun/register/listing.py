@@ -84,37 +84,38 @@ def list_runs(
     if until is not None:
         where.append(runs.c.started < _day_after(until))
     query = (
-        sa.select(*(runs.c[name] for name in LISTED))
+        sa.select(*(runs.c[name] for name in LISTED if name != "documents"))
         .where(*where)
         .order_by(runs.c.started, runs.c.folder, runs.c.documents)
     )
+    as_found = sa.select(runs.c.as_found_uid).where(runs.c.as_found_uid.is_not(None))
     with register.reading() as connection, _rows_without_cycles():
-        rows = connection.execute(query).all()
-        latest = []
-        for row in rows:  # row[3] is the uid
-            if latest and latest[-1][3] == row[3]:
-                latest[-1] = row
-            else:
-                latest.append(row)
-        left_of = dict(
+        # The few runs adjusted between an as-found and an as-left pass, each way round.
+        as_left_folder = dict(connection.execute(as_found.add_columns(runs.c.folder)).all())
+        as_found_folder = dict(
             connection.execute(
-                sa.select(runs.c.as_found_uid, runs.c.folder).where(
-                    runs.c.as_found_uid.is_not(None)
-                )
+                sa.select(runs.c.uid, runs.c.folder).where(runs.c.uid.in_(as_found)).distinct()
             ).all()
         )
-        found = sorted({row[14] for row in latest if row[14]})
-        folder_of = {}
-        for first in range(0, len(found), 500):
-            folder_of.update(
-                connection.execute(
-                    sa.select(runs.c.uid, runs.c.folder).where(
-                        runs.c.uid.in_(found[first : first + 500])
-                    )
-                ).all()
-            )
-        return [
-            {
+        listed: list[dict] = []
+        previous = None
+        for (
+            started,
+            folder,
+            uid,
+            serial,
+            procedure,
+            revision,
+            overall,
+            status,
+            bench,
+            certificate,
+            record_revision,
+            customer,
+            simulated,
+            found,
+        ) in connection.execute(query).all():
+            row = {
                 "run": folder,
                 "path": None,
                 "item": serial,
@@ -128,12 +129,16 @@ def list_runs(
                 "certificate": certificate if status == "complete" else None,
                 "customer": customer,
                 "simulated": bool(simulated),
-                "as_found_run": folder_of.get(as_found, as_found) if as_found else None,
-                "as_left_run": left_of.get(uid),
+                "as_found_run": as_found_folder.get(found, found) if found else None,
+                "as_left_run": as_left_folder.get(uid),
                 "bench": bench,
             }
-            for started, folder, _, uid, serial, procedure, revision, overall, status, bench, certificate, record_revision, customer, simulated, as_found in latest
-        ]
+            if uid == previous:  # a later closing of the run just listed
+                listed[-1] = row
+            else:
+                listed.append(row)
+            previous = uid
+        return listed
 
 
 def parse_within(text: str) -> int:
