@@ -10,7 +10,7 @@ import xml.etree.ElementTree as ET
 import pytest
 
 from verirun.certificate import charts
-from verirun.record.model import PointResult, RangeEntry
+from verirun.record.documents import PointResult, RangeEntry
 
 SVG = "{http://www.w3.org/2000/svg}"
 

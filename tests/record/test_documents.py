@@ -31,7 +31,7 @@ def _observation() -> dict:
 class TestShippedSchema:
     def test_is_the_schema_of_the_models(self):
         """The schema file in the package is the one the models give (regenerate it with
-        ``python -m verirun.record.documents > verirun/schema/journal.schema.json``)."""
+        ``python -m verirun.record.documents journal > verirun/schema/journal.schema.json``)."""
         assert SHIPPED == journal_schema()
 
     def test_is_a_valid_json_schema(self):

@@ -15,8 +15,8 @@ from pydantic import ValidationError
 
 from verirun.cli import main
 from verirun.errors import RecordError
+from verirun.record.documents import PointResult, Record, record_schema, validate_record
 from verirun.record.journal import RECORD_FORMAT, load_record, load_record_model, write_record
-from verirun.record.model import PointResult, Record, record_schema, validate_record
 
 DATA = Path(__file__).resolve().parents[1] / "data"
 STORED = sorted((DATA / "stored-runs").glob("*/record*.json"))
@@ -74,7 +74,7 @@ def fresh(tmp_path_factory) -> list[Path]:
 class TestShippedSchema:
     def test_is_the_schema_of_the_models(self):
         """The schema file in the package is the one the models give (regenerate it with
-        ``python -m verirun.record.model > verirun/schema/record.schema.json``)."""
+        ``python -m verirun.record.documents record > verirun/schema/record.schema.json``)."""
         assert SHIPPED == record_schema()
 
     def test_is_a_valid_json_schema(self):

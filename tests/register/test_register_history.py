@@ -153,7 +153,8 @@ class TestFoundInTolerance:
     verdicts: under a guard band (ILAC-G8:09/2019 4.2.2, acceptance limits moved inward by
     w = U) a reading within the tolerance limits but within w of one is rejected, yet it was
     found within them. Interval analysis counts calibrations found in tolerance as found (the
-    as-found condition against the tolerance: ILAC-G24:2022 / OIML D 10, 2022, method 1)."""
+    as-found condition against the tolerance: ILAC-G24:2022 / OIML D 10, method 1, from
+    memory)."""
 
     def test_a_rejection_for_the_guard_band_alone_was_found_in_tolerance(
         self, register, tmp_path, closed_run

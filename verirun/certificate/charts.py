@@ -1,7 +1,7 @@
 """Pictures for the certificate: inline SVG drawings of one range of a run record.
 
-Two pure functions of a range (a :class:`~verirun.record.model.RangeEntry` of the record's
-``ranges``) and its rows (that range's :class:`~verirun.record.model.PointResult` rows, in order):
+Two pure functions of a range (a :class:`~verirun.record.documents.RangeEntry` of the record's
+``ranges``) and its rows (that range's :class:`~verirun.record.documents.PointResult` rows, in order):
 
 - :func:`error_chart`: every measured error as a percent of its tolerance, against the shaded
   tolerance band (-100 % to +100 %), with uncertainty bars and acceptance limits when the rows
@@ -23,7 +23,7 @@ import math
 from dataclasses import dataclass
 
 from verirun.metrology.scales import make_law
-from verirun.record.model import PointResult, RangeEntry
+from verirun.record.documents import PointResult, RangeEntry
 from verirun.units import format_quantity, prefix_for
 
 WIDTH = 720.0

@@ -13,7 +13,7 @@ import re
 from dataclasses import dataclass
 
 from verirun.certificate.render import ResultRow, is_dry_run, printed
-from verirun.record.model import NoteEntry, PointResult, RangeEntry, Record
+from verirun.record.documents import NoteEntry, PointResult, RangeEntry, Record
 
 #: The words of the certificate that are spelt two ways; the lab profile chooses.
 SPELLING = {

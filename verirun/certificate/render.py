@@ -17,7 +17,13 @@ from markupsafe import Markup
 from pydantic import ValidationError
 
 from verirun.errors import RecordError
-from verirun.record.model import PointResult, RangeEntry, Record, validate_record, validation_text
+from verirun.record.documents import (
+    PointResult,
+    RangeEntry,
+    Record,
+    validate_record,
+    validation_text,
+)
 from verirun.text import shown
 
 #: Version of the certificate template; recorded in every certificate it renders.

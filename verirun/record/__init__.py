@@ -2,7 +2,7 @@
 
 - :mod:`~verirun.record.documents`: one strict model per journal document kind, the one place
   documents are composed, and the schema;
-- :mod:`~verirun.record.model`: one strict model per part of the run record, and its schema;
+- :mod:`~verirun.record.documents`: one strict model per part of the run record, and its schema;
 - :mod:`~verirun.record.journal`: the hash-chained, fsynced journal of a run folder, read back
   as typed documents (outside this package, documents are read by attribute, never by key), and
   the record file's reading and writing;

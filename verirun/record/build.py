@@ -18,15 +18,15 @@ from verirun.functions import words_for
 from verirun.metrology.summary import Judged, Summary, summarise
 from verirun.procedure.load import Procedure, load_procedure_text
 from verirun.procedure.plan import TestPoint, plan
-from verirun.record import model
-from verirun.record.journal import RECORD_FORMAT, dumps, json_number, line_hash, verify_chain
-from verirun.record.model import (
+from verirun.record import documents
+from verirun.record.documents import (
     PointResult,
     Record,
     record_document,
     validation_text,
     within_limits,
 )
+from verirun.record.journal import RECORD_FORMAT, dumps, json_number, line_hash, verify_chain
 
 
 @functools.lru_cache(maxsize=16)
@@ -63,7 +63,7 @@ def build_record(documents: list[dict], source: str = "journal") -> dict:
 
 def build_record_model(documents: list[dict], source: str = "journal") -> Record:
     """The run record of a journal's ``documents`` (see :func:`_build`), every part checked
-    against its model (:mod:`verirun.record.model`) as it is made.
+    against its model (:mod:`verirun.record.documents`) as it is made.
 
     Raises
     ------
@@ -193,10 +193,10 @@ def row_judged(row: PointResult) -> Judged:
     return Judged(key=row.key, verdict=row.verdict, within_tolerance=row.is_within_tolerance())
 
 
-def summary_document(summary: Summary) -> model.Summary:
+def summary_document(summary: Summary) -> documents.Summary:
     """The record's summary: every count, the overall outcome, the rejections by cause and the
     statement of conformity in words, all from :func:`~verirun.metrology.summary.summarise`."""
-    return model.Summary.model_validate(
+    return documents.Summary.model_validate(
         {
             **summary.counts(),
             "overall": summary.overall,

@@ -1,4 +1,5 @@
-"""Every kind of document a run's journal holds, as one strict model each.
+"""Every kind of document a run's journal holds, and the run record it closes into, as one
+strict model each: the one module a reader needs for what a run is, as stored.
 
 A journal is a sequence of small documents, one per line, each chained to the line before it
 (see :mod:`verirun.record.journal`). This module is the one place that says what each document holds
@@ -35,17 +36,59 @@ other note) is kept apart from what the customer reads; 2 (``journal_format`` in
 document) labels points by their values as the procedure writes them (``dca-50u@10uA``) and
 identifies them by step; 1 (no ``journal_format``) labelled them by the float's repr
 (``dca-50u@9.999999999999999e-06``). All are read as they are.
+
+The run record (``record.json``, built from a journal by :mod:`verirun.record.build`: the whole
+run, every point evaluated, in one document) has one model per part; the parts of the start
+document it carries as journaled (lab, customer, item, environment, procedure, bench) are the
+journal's own models:
+
+======================== ===========================================================================
+part                     what it is
+======================== ===========================================================================
+:class:`Record`          the whole record: the run, who and what, the method, every point, the summary
+:class:`RunPart`         the run: its identity, times, status, revision and the journal it closes
+:class:`MeterPart`       the kind of meter the procedure verifies
+:class:`DecisionRule`    the decision rule, in words and as the procedure states it
+:class:`RangeEntry`      one range of the meter, as the procedure describes it
+:class:`PointResult`     one row per test point: limits, reading, error, U, TUR, verdict
+:class:`Reported`        a row's numbers as printed
+:class:`BudgetTerm`      one contribution to a point's uncertainty
+:class:`CorrectionEntry` a reading corrected after the run (a new revision)
+:class:`NoteEntry`       a note for a point or for the run
+:class:`Summary`         the counts by verdict, the overall outcome and the statement of conformity
+:class:`Rejection`       one point not accepted, and why
+:class:`IssueEntry`      a revision's certificate issued, by whom
+:class:`Revision`        the as-found results of an as-left run revised
+:class:`AsFoundRun`      for an as-left run: the as-found run's results and what was adjusted
+======================== ===========================================================================
+
+Record formats (``record_format``): 3, the current one, is what journals of format 2 on close
+into: rows say whether the reading lies within tolerance (``within_tolerance``), carry the
+coverage interval (``interval``) and every number as printed (:class:`Reported`, all its keys),
+and the summary counts all four statements and names each rejection by its cause. 2 (records
+written while journals of format 2 were new) and 1 (journals of format 1) lack those; their rows
+are otherwise the same. Every field that only some formats hold is optional here, and says so;
+an absent key stays absent when a record is written again (see :func:`record_document`).
+
+Records are checked against their models when read (:func:`validate_record`, by
+:func:`verirun.record.journal.load_record`) and when built; the JSON Schema of :class:`Record`
+(:func:`record_schema`) ships with the package as ``schema/record.schema.json``.
 """
 
 from __future__ import annotations
 
 import json
+import math
 from typing import Annotated, Any, Literal, Union, get_args
 
 from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, ValidationError
 
 #: Version of the journal document layout described here (see the module's docstring).
 JOURNAL_FORMAT = 3
+#: Version of the run record layout. 3: rows say whether the reading lies within tolerance and
+#: carry its coverage interval and every number as printed; U is the reported U (GUM 7.2.6);
+#: the summary counts all four statements and names the rejections by cause.
+RECORD_FORMAT = 3
 
 Sha256 = Annotated[str, Field(pattern=r"^[0-9a-f]{64}$", description="a SHA-256 digest, hex")]
 Time = Annotated[
@@ -512,11 +555,461 @@ def journal_schema() -> dict:
     return _ADAPTER.json_schema()
 
 
-if (
-    __name__ == "__main__"
-):  # python -m verirun.record.documents > verirun/schema/journal.schema.json
+# === the run record =============================================================================
+#
+# A journal closes into a run record (record.json, built by verirun.record.build): the whole run,
+# every point evaluated, in one document. Its parts follow, one model each; the parts of the start
+# document it carries as journaled (lab, customer, item, environment, procedure, bench) are the
+# journal's own models above.
+
+
+#: A number as the record writes it: an int stays an int and a float a float (so a record reads
+#: back to the same bytes); never NaN or infinite (an unbounded limit is ``None``).
+Number = Annotated[float, Field(allow_inf_nan=False)] | int
+#: A statement a decision rule makes about one result (ILAC-G8:09/2019 4.2.3).
+Statement = Literal["pass", "conditional-pass", "conditional-fail", "fail"]
+#: What a row shows: a statement, or that the point was skipped or not measured.
+Verdict = Literal["pass", "conditional-pass", "conditional-fail", "fail", "skipped", "not-measured"]
+Domain = Literal["value", "deflection"]
+Key = Annotated[
+    str,
+    Field(
+        description="the test point's label: range@nominal[@frequency], as the procedure writes"
+        " them (record format 1: their float repr)"
+    ),
+]
+
+
+# --- the run ----------------------------------------------------------------------------------
+
+
+class RunPart(Part):
+    """The run: who ran it, when, how it ended, and the journal the record closes."""
+
+    uid: str = Field(pattern=r"^[0-9a-f]{32}$", description="the run's identity")
+    started: Time = Field(description="when the run began (its start document's time)")
+    ended: Time | None = Field(
+        description="when it last stopped (none while it can still be resumed)"
+    )
+    status: Literal["complete", "incomplete", "aborted", "failed", "resumable"] = Field(
+        description="how it ended: complete; incomplete (stopped complete with points not"
+        " measured); aborted; failed; resumable (no stop journaled: interrupted)"
+    )
+    reason: str | None = Field(description="why it stopped, naming the step (none when complete)")
+    operator: str = Field(description="who ran it")
+    software: Software = Field(description="the program that wrote the journal")
+    journal_sha256_last: Sha256 = Field(
+        description="SHA-256 of the last journal line the record was closed from"
+    )
+    documents: int = Field(ge=1, description="how many journal documents it was closed from")
+    revision: int = Field(
+        ge=1,
+        description="the record's revision: 1, and one more per correction or as-found revision",
+    )
+    certificate_number: str | None = Field(
+        default=None,
+        description="the number the lab register gave the run (absent until it gave one)",
+    )
+
+
+class MeterPart(Part):
+    """The kind of meter the procedure verifies, as its file states it."""
+
+    kind: str = Field(description="what kind of meter it is")
+    maker: str | None = Field(description="who makes it (none if the procedure does not say)")
+    model: str | None = Field(description="its model (none if the procedure does not say)")
+
+
+class RuleParameters(Part):
+    """The decision rule as the procedure file states it (keys with hyphens, as in the file)."""
+
+    rule: Literal["simple", "guarded", "non-binary", "risk"] = Field(description="the rule")
+    guard_ratio: Number | None = Field(
+        default=None,
+        alias="guard-ratio",
+        description="r in w = r U (guarded and non-binary rules; absent when not stated)",
+    )
+    risk_target: str | Number | None = Field(
+        default=None,
+        alias="risk-target",
+        description="the largest probability of false accept the risk rule allows, as written"
+        " (absent when not stated)",
+    )
+
+
+class DecisionRule(Part):
+    """The decision rule the verdicts were made under (ISO/IEC 17025:2017 7.1.3)."""
+
+    rule: Literal["simple", "guarded", "non-binary", "risk"] = Field(description="its name")
+    statement: str = Field(description="the rule in words, as the certificate prints it")
+    parameters: RuleParameters = Field(description="the rule as the procedure states it")
+
+
+class RangeEntry(Part):
+    """One range of the meter, as the procedure describes it."""
+
+    id: str = Field(description="the range's id")
+    function: str = Field(description="the measurement function (dc-voltage, resistance, ...)")
+    function_name: str = Field(description="the function in words")
+    unit: str = Field(description="the range's unit")
+    scale: Literal["linear", "series-ohms", "shunt-ohms"] = Field(
+        description="the scale law the pointer follows"
+    )
+    full_scale: Number | None = Field(description="full-scale value (linear scales; else none)")
+    centre: Number | None = Field(description="centre-scale value (ohms scales; else none)")
+    arc: Number | None = Field(description="the scale's arc in degrees (none if not stated)")
+    accuracy: list[str] = Field(description="the accuracy statements, as written")
+    read_on: str | None = Field(description="which scale of the dial the range is read on")
+
+
+# --- a row ------------------------------------------------------------------------------------
+
+
+class BudgetTerm(Part):
+    """One contribution to the uncertainty of a point (JCGM 100 5.1)."""
+
+    name: str = Field(description="what contributes (the calibrator, readability, ...)")
+    u: Number = Field(description="its standard uncertainty, in the unit of its domain")
+    domain: Domain = Field(description="the domain it is stated in: value or deflection")
+    distribution: str = Field(description="its assumed distribution (normal, rectangular, ...)")
+    contribution: Number = Field(description="its contribution to the combined uncertainty")
+
+
+class Reported(Part):
+    """A measured row's numbers as printed (see :func:`verirun.evaluation.shown`), under one SI
+    prefix. Records of formats 1 and 2 hold ``reading``, ``error``, ``U`` and ``U_spec`` only."""
+
+    reading: str | None = Field(description="the reading as typed, its digits kept")
+    error: str = Field(description="the error, rounded to U's last digit, in the error's unit")
+    U_spec: str = Field(description="U (k = 2) in the error's unit, two significant digits")
+    U: str | None = Field(
+        description="U in the range's unit where the tolerance is stated on the value, else none"
+    )
+    unit: str | None = Field(default=None, description="the row's prefixed unit (format 3)")
+    nominal: str | None = Field(default=None, description="the nominal value (format 3)")
+    low: str | None = Field(default=None, description="the lower tolerance limit (format 3)")
+    high: str | None = Field(default=None, description="the upper tolerance limit (format 3)")
+    accept_low: str | None = Field(
+        default=None,
+        description="lower acceptance limit; none when the rule leaves none (format 3)",
+    )
+    accept_high: str | None = Field(
+        default=None,
+        description="upper acceptance limit; none when the rule leaves none (format 3)",
+    )
+    outer_low: str | None = Field(
+        default=None, description="non-binary rule: the limit w below the tolerance (format 3)"
+    )
+    outer_high: str | None = Field(
+        default=None, description="non-binary rule: the limit w above the tolerance (format 3)"
+    )
+    interval: str | None = Field(
+        default=None,
+        description="the reading's coverage interval in the range's unit, as the scale law maps"
+        " it (format 3; none when U is zero)",
+    )
+
+
+class CorrectionEntry(Part):
+    """A reading corrected after the run closed: the record's next revision."""
+
+    revision: int = Field(ge=2, description="the revision the correction made")
+    time: Time = Field(description="when it was corrected")
+    reason: str = Field(description="why")
+    by: str = Field(description="who corrected it")
+    previous_typed: str | None = Field(
+        description="the entry corrected, as typed (none if the step had no reading)"
+    )
+
+
+class PointResult(Part):
+    """One test point of the plan, with its result: a row of the certificate's results table.
+
+    Every row holds every key up to ``reported`` (``None`` where there is nothing: an unmeasured
+    point has no reading); ``within_tolerance`` and ``interval`` are in measured rows of format
+    3, ``skip_reason`` in skipped rows, ``correction`` in corrected ones.
+    """
+
+    index: int = Field(ge=0, description="the step's index in the plan, from 0")
+    key: Key
+    range: str = Field(description="the range's id")
+    unit: str = Field(description="the range's unit")
+    nominal: Number = Field(description="the nominal value applied, in the range's unit")
+    frequency: Number | None = Field(description="its frequency in Hz (AC), or none")
+    stimulus: str = Field(description="what the calibrator applied, in words")
+    low: Number | None = Field(description="the lower tolerance limit (none: unbounded)")
+    high: Number | None = Field(description="the upper tolerance limit (none: unbounded)")
+    domain: Domain = Field(
+        description="where the tolerance is stated: on the value, or along the scale (deflection)"
+    )
+    half_width: Number = Field(description="the tolerance's half-width, in its domain's unit")
+    accuracy: str = Field(description="the accuracy statement that sets the tolerance")
+    limits_text: str = Field(description="the tolerance limits as printed")
+    verdict: Verdict = Field(description="the statement made, or skipped, or not-measured")
+    reading: Number | None = Field(description="the reading, SI units (none: not measured)")
+    typed: str | None = Field(description="the reading exactly as typed or replayed")
+    time: Time | None = Field(description="when it was read or skipped")
+    error: Number | None = Field(description="reading minus nominal, in the error's unit")
+    error_unit: str | None = Field(
+        description="the error's unit: the range's, or deg / % of length along the scale"
+    )
+    percent_of_tolerance: Number | None = Field(
+        description="the error as percent of the tolerance's half-width (none for a zero tolerance)"
+    )
+    U: Number | None = Field(
+        description="the expanded uncertainty (k = 2) in the range's unit (none: unbounded);"
+        " from format 3, U as reported (JCGM 100 7.2.6)"
+    )
+    U_spec: Number | None = Field(description="the expanded uncertainty in the error's unit")
+    k: Number | None = Field(description="the coverage factor")
+    tur: Number | None = Field(
+        description="test uncertainty ratio: the tolerance's span over 2U (none: U is zero)"
+    )
+    conformance: Number | None = Field(
+        description="probability that the true value lies within the tolerance"
+    )
+    accept_low: Number | None = Field(
+        description="lower acceptance limit (none: none or unbounded)"
+    )
+    accept_high: Number | None = Field(
+        description="upper acceptance limit (none: none or unbounded)"
+    )
+    U_pct: Number | None = Field(description="U as percent of the tolerance's half-width")
+    accept_low_pct: Number | None = Field(
+        description="lower acceptance limit as percent of tolerance, where the rule moves it"
+    )
+    accept_high_pct: Number | None = Field(
+        description="upper acceptance limit as percent of tolerance, where the rule moves it"
+    )
+    budget: list[BudgetTerm] = Field(description="the uncertainty budget (empty: not measured)")
+    reported: Reported | None = Field(description="the numbers as printed (none: not measured)")
+    within_tolerance: bool | None = Field(
+        default=None,
+        description="whether the reading lies within the tolerance limits, limits included"
+        " (measured rows of format 3)",
+    )
+    interval: list[Number | None] | None = Field(
+        default=None,
+        min_length=2,
+        max_length=2,
+        description="the reading's coverage interval in the range's unit, low and high (none:"
+        " unbounded) (measured rows of format 3)",
+    )
+    skip_reason: str | None = Field(
+        default=None, description="why the operator skipped the point (skipped rows only)"
+    )
+    correction: CorrectionEntry | None = Field(
+        default=None, description="the correction of its reading (corrected rows only)"
+    )
+
+    def is_within_tolerance(self) -> bool | None:
+        """Whether the reading lies within the tolerance limits (``None``: not measured); a row
+        of a format that does not say is compared with its limits, exactly, as written."""
+        if self.within_tolerance is not None or self.reading is None:
+            return self.within_tolerance
+        return within_limits(self.low, self.high, self.reading)
+
+
+def within_limits(low, high, reading) -> bool:
+    """``low <= reading <= high`` exactly as the numbers are written (``high`` None: unbounded)."""
+    from verirun.metrology.exact import as_written
+
+    return (
+        as_written(low) <= as_written(reading) <= (math.inf if high is None else as_written(high))
+    )
+
+
+class NoteEntry(Part):
+    """A note of the run: an operator's remark, a correction's or revision's account, or (in
+    ``run_log``) a line of the run's internal log."""
+
+    time: Time = Field(description="when it was written")
+    point: Key | None = Field(description="the point it is for (none: the run as a whole)")
+    text: str = Field(description="the note")
+
+
+# --- the summary ------------------------------------------------------------------------------
+
+
+class Rejection(Part):
+    """A point not accepted, and why."""
+
+    key: Key
+    verdict: Literal["fail", "conditional-fail"] = Field(description="its statement")
+    cause: Literal["outside-tolerance", "guard-band"] = Field(
+        description="outside its tolerance limits, or within them but outside the acceptance"
+        " limits the guard band sets"
+    )
+
+
+class Summary(Part):
+    """The counts by verdict, the overall outcome and the statement of conformity, from
+    :func:`verirun.metrology.summary.summarise` (keys with hyphens, as the verdicts)."""
+
+    points: int = Field(ge=0, description="how many points the procedure has")
+    passed: int = Field(ge=0, alias="pass", description="points that pass")
+    conditional_pass: int | None = Field(
+        default=None,
+        ge=0,
+        alias="conditional-pass",
+        description="points that pass conditionally (formats 1 and 2: only when there are some)",
+    )
+    conditional_fail: int | None = Field(
+        default=None,
+        ge=0,
+        alias="conditional-fail",
+        description="points that fail conditionally (formats 1 and 2: only when there are some)",
+    )
+    failed: int = Field(ge=0, alias="fail", description="points that fail")
+    skipped: int = Field(ge=0, description="points skipped")
+    not_measured: int = Field(ge=0, alias="not-measured", description="points not measured")
+    overall: Statement | Literal["none"] = Field(
+        description="the least favourable statement of any point (none: nothing measured)"
+    )
+    rejections: list[Rejection] | None = Field(
+        default=None, description="every point not accepted, in order (format 3)"
+    )
+    guard_band_rejections: list[Key] | None = Field(
+        default=None,
+        description="the keys of points rejected within their tolerance, by the guard band"
+        " alone (format 3)",
+    )
+    statement: str | None = Field(
+        default=None,
+        description="the statement of conformity in words, ISO/IEC 17025:2017 7.8.6 (format 3)",
+    )
+
+
+# --- after the run ----------------------------------------------------------------------------
+
+
+class IssueEntry(Part):
+    """A revision's certificate issued, after review."""
+
+    revision: int = Field(ge=1, description="the revision issued")
+    time: Time = Field(description="when it was issued")
+    by: str = Field(description="who issued it, as the lab profile names them")
+    role: str = Field(description="the role they issued it in")
+    certificate: str = Field(description="the number of the certificate issued")
+
+
+class Revision(Part):
+    """The as-found results of an as-left run revised: a new revision."""
+
+    revision: int = Field(ge=2, description="the revision it made")
+    time: Time = Field(description="when")
+    by: str = Field(description="who amended the as-found run")
+    reason: str = Field(description="why")
+    what: Literal["as-found results"] = Field(description="what changed")
+
+
+class AsFoundRun(AsFound):
+    """For an as-left run: the as-found run it follows, its results and what was adjusted."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
+
+    points: list[PointResult] = Field(description="the as-found record's result rows")
+    summary: Summary = Field(description="the as-found record's summary")
+
+
+# --- the whole --------------------------------------------------------------------------------
+
+
+class Record(Part):
+    """A run record: the whole run, every point evaluated, in one document (``record.json``)."""
+
+    record_format: int = Field(
+        ge=1, le=RECORD_FORMAT, description="the record's format (see the module's description)"
+    )
+    run: RunPart
+    lab: LabAsRun = Field(description="the lab, as its profile was when the run started")
+    customer: Customer = Field(description="the customer")
+    item: Item = Field(description="the item calibrated")
+    environment: Environment = Field(description="the laboratory's conditions at the start")
+    as_found: AsFoundRun | None = Field(
+        default=None, description="an as-left run's as-found results (absent for any other run)"
+    )
+    procedure: ProcedureAsRun = Field(description="the procedure as run, its whole text")
+    bench: BenchAsRun = Field(description="the bench as run, its whole text")
+    meter: MeterPart
+    decision_rule: DecisionRule
+    ranges: list[RangeEntry] = Field(description="the meter's ranges, in the procedure's order")
+    points: list[PointResult] = Field(description="one row per step of the plan, in order")
+    notes: list[NoteEntry] = Field(description="the notes the customer reads, in order")
+    summary: Summary
+    issues: list[IssueEntry] | None = Field(
+        default=None, description="each revision issued, in order (absent until one is)"
+    )
+    as_found_revisions: list[Revision] | None = Field(
+        default=None,
+        description="each revision of the as-found results (absent until there is one)",
+    )
+    run_log: list[NoteEntry] | None = Field(
+        default=None,
+        description="the run's internal log, kept apart from the notes (journals of format 3"
+        " on; absent before, when such notes are among the notes)",
+    )
+
+
+_RECORD_ADAPTER: TypeAdapter = TypeAdapter(Record)
+
+
+def validate_record(data: Any) -> Record:
+    """The :class:`Record` of ``data`` (a parsed ``record.json``).
+
+    Raises
+    ------
+    pydantic.ValidationError
+        If a field is missing, unknown or does not fit.
+    """
+    return Record.model_validate(data)
+
+
+def record_problem(data: Any) -> str | None:
+    """What is wrong with a parsed record, in one line naming the field (``None`` when it is a
+    record of a format described here)."""
+    try:
+        validate_record(data)
+    except ValidationError as exc:
+        return validation_text(exc)
+    return None
+
+
+_MEMBERS = {"float", "int", "str", "bool"}
+
+
+def validation_text(exc: ValidationError) -> str:
+    """The first problem of ``exc`` in one line: ``field points.3.verdict: ... (got 'x')``."""
+    error = exc.errors()[0]
+    # A union's member ("float", "list[...]") is part of the error's location; not of the field's.
+    parts = [p for p in error["loc"] if p not in _MEMBERS and "[" not in str(p)]
+    where = ".".join(str(part) for part in parts) or "record"
+    text = f"field {where}: {error['msg']}"
+    if error["type"] != "missing":
+        shown = repr(error["input"])
+        text += f" (got {shown if len(shown) <= 40 else shown[:37] + '...'})"
+    return text
+
+
+def record_document(record: Record) -> dict:
+    """``record`` as the dict ``record.json`` holds: keys as written (with hyphens where the
+    format has them), and no key that the record did not hold (an older format stays itself)."""
+    return record.model_dump(by_alias=True, exclude_unset=True)
+
+
+def record_schema() -> dict:
+    """The JSON Schema of a run record."""
+    return _RECORD_ADAPTER.json_schema(by_alias=True)
+
+
+if __name__ == "__main__":
+    # python -m verirun.record.documents journal > verirun/schema/journal.schema.json
+    # python -m verirun.record.documents record > verirun/schema/record.schema.json
     import sys
 
+    schemas = {"journal": journal_schema, "record": record_schema}
+    if sys.argv[1:] not in ([name] for name in schemas):
+        raise SystemExit("usage: python -m verirun.record.documents journal|record")
     sys.stdout.write(
-        json.dumps(journal_schema(), indent=1, sort_keys=True, ensure_ascii=False) + "\n"
+        json.dumps(schemas[sys.argv[1]](), indent=1, sort_keys=True, ensure_ascii=False) + "\n"
     )

@@ -28,6 +28,7 @@ from verirun.errors import RecordError
 from verirun.interrupts import deferred_signals
 from verirun.locks import RUN_LOCK_NAME
 from verirun.record.documents import (
+    RECORD_FORMAT,
     Document,
     Observation,
     Resume,
@@ -39,10 +40,6 @@ from verirun.record.documents import (
     read_document,
 )
 
-#: Version of the run record layout. 3: rows say whether the reading lies within tolerance and
-#: carry its coverage interval and every number as printed; U is the reported U (GUM 7.2.6);
-#: the summary counts all four statements and names the rejections by cause.
-RECORD_FORMAT = 3
 JOURNAL_NAME = "journal.jsonl"
 RECORD_NAME = "record.json"
 GENESIS = "0" * 64
@@ -335,7 +332,7 @@ def json_number(value: float | None) -> float | None:
 
 def write_record(record, path: str | Path) -> Path:
     """Write a run record (a dict as ``record.json`` holds it, or a
-    :class:`~verirun.record.model.Record`) atomically (temporary file, fsync, rename; see
+    :class:`~verirun.record.documents.Record`) atomically (temporary file, fsync, rename; see
     :mod:`verirun.storage`).
 
     Raises
@@ -344,7 +341,7 @@ def write_record(record, path: str | Path) -> Path:
         If it cannot be written; the previous record, if any, is kept and no temporary is left.
     """
     if not isinstance(record, dict):
-        from verirun.record.model import record_document
+        from verirun.record.documents import record_document
 
         record = record_document(record)
     return storage.write_atomic(path, _record_pieces(record))
@@ -385,7 +382,7 @@ def load_record(path: str | Path) -> dict:
 
 def load_record_model(path: str | Path):
     """Load a run record from its file or from its run folder, as a typed
-    :class:`~verirun.record.model.Record`.
+    :class:`~verirun.record.documents.Record`.
 
     Raises
     ------
@@ -399,7 +396,7 @@ def _load(path: str | Path):
     """The record at ``path``, as parsed and as its model."""
     from pydantic import ValidationError
 
-    from verirun.record.model import validate_record, validation_text
+    from verirun.record.documents import validate_record, validation_text
 
     path = Path(path)
     if path.is_dir():
