@@ -7,6 +7,7 @@ and tests; :class:`VirtualMeter` models a meter with small invented errors for t
 
 from __future__ import annotations
 
+import bisect
 import csv
 import math
 from dataclasses import dataclass
@@ -182,6 +183,32 @@ class _Row:
 COLUMNS = ("range", "at", "reading")
 
 
+class _Nominals:
+    """The nominals of one range, to find the one a replay file's ``at`` names.
+
+    A row names the first nominal, in plan order, equal to its value or within a relative 1e-9
+    of it (one value written two ways may give floats a few units of the last place apart). Kept sorted as well, so
+    that a row looks only at the few nominals near its value, not at every one of the range's.
+    """
+
+    REL, ABS = 1e-9, 1e-15
+
+    def __init__(self, in_order: list[float]):
+        self.order = {n: i for i, n in enumerate(in_order)}
+        self.sorted = sorted(in_order)
+
+    def named_by(self, at: float) -> float | None:
+        reach = max(abs(at) * 2 * self.REL, self.ABS) * 2  # wider than isclose's reach
+        lo = bisect.bisect_left(self.sorted, at - reach)
+        hi = bisect.bisect_right(self.sorted, at + reach)
+        close = [
+            n
+            for n in self.sorted[lo:hi]
+            if n == at or math.isclose(n, at, rel_tol=self.REL, abs_tol=self.ABS)
+        ]
+        return min(close, key=self.order.__getitem__) if close else None
+
+
 class ScriptedReadings:
     """Readings replayed from a CSV file with columns ``range``, ``at`` and ``reading``.
 
@@ -255,12 +282,12 @@ class ScriptedReadings:
         self, points: list[TestPoint], problems: list[str]
     ) -> dict[tuple[str, float], list[_Row]]:
         """Assign every row to the point it names; a row that names none is a problem."""
-        nominals: dict[str, list[float]] = {}
+        nominals: dict[str, dict[float, None]] = {}  # per range, its nominals in plan order
         ranges = {}
         for p in points:
             ranges.setdefault(p.range.id, p.range)
-            if p.nominal not in nominals.setdefault(p.range.id, []):
-                nominals[p.range.id].append(p.nominal)
+            nominals.setdefault(p.range.id, {})[p.nominal] = None
+        near = {rid: _Nominals(list(values)) for rid, values in nominals.items()}
         queues: dict[tuple[str, float], list[_Row]] = {}
         for row in self._rows:
             rng = ranges.get(row.range)
@@ -276,17 +303,10 @@ class ScriptedReadings:
             except UnitError as exc:
                 problems.append(
                     f"{self.path}:{row.line}: at: {exc}; write the point's nominal value,"
-                    f" e.g. {format_quantity(nominals[rng.id][0], rng.unit)}"
+                    f" e.g. {format_quantity(next(iter(nominals[rng.id])), rng.unit)}"
                 )
                 continue
-            nominal = next(
-                (
-                    n
-                    for n in nominals[rng.id]
-                    if n == at or math.isclose(n, at, rel_tol=1e-9, abs_tol=1e-15)
-                ),
-                None,
-            )
+            nominal = near[rng.id].named_by(at)
             if nominal is None:
                 problems.append(
                     f"{self.path}:{row.line}: at: range {rng.id} has no point at"

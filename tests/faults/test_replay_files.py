@@ -7,9 +7,12 @@ reached the calibrator, and no run folder is made.
 
 from __future__ import annotations
 
+import math
 from pathlib import Path
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from runkit import build_run
 
 from verirun.bench.calibrator import Calibrator
@@ -196,3 +199,49 @@ class TestRepeatedPoints:
         extra = csv_with(tmp_path, good + "dcv-10,5 V,5.2\n")
         problems = extra.check(points)
         assert len(problems) == 1 and ":12: a row left over" in problems[0]
+
+
+class TestNominalNamedByARow:
+    """A replay row names the first nominal of its range, in plan order, that equals its value
+    or lies within a relative 1e-9 of it, as ``math.isclose`` (Python's standard library)
+    decides; the look-up among a range's many nominals gives exactly what a scan of them all
+    gives."""
+
+    @staticmethod
+    def _scan(nominals: list[float], at: float) -> float | None:
+        return next(
+            (n for n in nominals if n == at or math.isclose(n, at, rel_tol=1e-9, abs_tol=1e-15)),
+            None,
+        )
+
+    def test_the_same_value_written_two_ways(self):
+        """0.3 and 3 × 0.1 (0.30000000000000004), one value written two ways: each names the first
+        listed."""
+        from verirun.readings import _Nominals
+
+        assert 3 * 0.1 != 0.3
+        assert _Nominals([3 * 0.1, 0.3]).named_by(0.3) == 3 * 0.1
+        assert _Nominals([0.3, 3 * 0.1]).named_by(3 * 0.1) == 0.3
+        assert _Nominals([0.3, 0.5]).named_by(0.4) is None
+        assert _Nominals([0.0, 1e-16]).named_by(0.0) == 0.0
+
+    @settings(max_examples=300, deadline=None)
+    @given(
+        st.lists(
+            st.floats(-1e3, 1e3, allow_nan=False, width=64).map(lambda x: round(x, 3)),
+            min_size=1,
+            max_size=30,
+            unique=True,
+        ),
+        st.integers(0, 29),
+        st.sampled_from([0.0, 1e-12, -1e-12, 5e-10, 2e-9, 1e-6]),
+    )
+    def test_the_look_up_gives_what_a_scan_gives(self, nominals, pick, nudge):
+        """Over random nominals, with near twins (3e-10 apart, both within reach of a row),
+        each row's value a nominal nudged by up to 1e-6 of it."""
+        from verirun.readings import _Nominals
+
+        twins = [n * (1 + 3e-10) for n in nominals[:3]]
+        nominals = list(dict.fromkeys(nominals + twins))
+        at = nominals[pick % len(nominals)] * (1 + nudge)
+        assert _Nominals(nominals).named_by(at) == self._scan(nominals, at)
