@@ -143,15 +143,6 @@ def report(results: list[dict]) -> bool:
         " record and certificate | whole call"
     )
     print(_gen.table(["N", "own", "instrument", "fsync", "closing", "whole"], rows))
-    if len(results) > 1:  # own = fixed + marginal * N, by least squares over the sizes
-        import numpy as np
-
-        marginal, fixed = np.polyfit([r["n"] for r in results], [r["own"] for r in results], 1)
-        print(
-            f"\nverirun's own CPU, fitted over the sizes: {fixed * 1e3:.2f} ms per run (the"
-            f" run's folder, locks, start document, plan check) + {marginal * 1e3:.3f} ms per point"
-            " (info)"
-        )
     worst = max(r["own"] / r["n"] for r in results) * 1e3
     flat = (results[-1]["own"] / results[-1]["n"]) / (results[0]["own"] / results[0]["n"])
     ok_target, ok_flat = worst <= TARGET_MS, flat <= FLAT
