@@ -79,17 +79,10 @@ def run_handlers(handlers: dict):
             signal.signal(number, _gate)
         yield
     finally:
-        raised = None
-        for number, handler in installed.items():
-            while True:
-                try:
-                    signal.signal(number, signal.SIG_DFL if handler is None else handler)
-                    break
-                except BaseException as exc:  # from a handler just put back; finish first
-                    raised = raised or exc
-        _Held.gates = {}
-        if raised is not None:
-            raise raised
+        try:
+            _put_back(installed)
+        finally:
+            _Held.gates = {}
 
 
 def _act(number: int, handler, *, raising: bool) -> None:
@@ -173,17 +166,24 @@ class deferred_signals:  # noqa: N801 - used as a function: ``with deferred_sign
 
 
 def _restore() -> None:
-    """Put back every handler the section replaced, all of them even if a signal taken
+    """Put back every handler the section replaced (see :func:`_put_back`)."""
+    try:
+        _put_back(_Held.previous)
+    finally:
+        _Held.previous = {}
+
+
+def _put_back(handlers: dict) -> None:
+    """Put back each signal's handler of ``handlers``, all of them even if a signal taken
     meanwhile raises (it is raised once they are back)."""
     raised = None
-    for number, handler in list(_Held.previous.items()):
+    for number, handler in list(handlers.items()):
         while True:
             try:
                 signal.signal(number, signal.SIG_DFL if handler is None else handler)
                 break
             except BaseException as exc:  # from a handler just put back; finish first
                 raised = raised or exc
-    _Held.previous = {}
     if raised is not None:
         raise raised
 
