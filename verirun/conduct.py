@@ -277,6 +277,7 @@ def _drive(
                     not_before=not_before,
                     renewed=renewed,
                 )
+                del engine  # what it kept of each step is in the journal: closing reads that
         except BaseException as exc:
             exc.run_dir = run_dir  # type: ignore[attr-defined]
             with deferred_signals():  # a signal now is dropped: the run is ending already
@@ -623,10 +624,11 @@ def _same_file(
 
 def close_run(run_dir: Path) -> dict | None:
     """Build and write the run record of the journal in ``run_dir`` (``None`` if it is empty)."""
-    read = read_journal(run_dir / JOURNAL_NAME)
-    if not read.documents:
+    # The parsed lines alone are kept (not their typed models): a long run's journal is large.
+    documents = read_journal(run_dir / JOURNAL_NAME).documents
+    if not documents:
         return None
-    record = build_record(read.documents, str(run_dir / JOURNAL_NAME))
+    record = build_record(documents, str(run_dir / JOURNAL_NAME))
     write_record(record, run_dir / RECORD_NAME)
     return record
 
