@@ -91,7 +91,8 @@ def build_run(
     given; ``item`` is its fields or just a serial; ``clock`` is a virtual clock at
     :data:`START` unless given; ``calibrator`` is a driver, a VISA resource to drive with the
     scpi-generic profile, or ``None`` for the one ``execute`` opens itself. Reports go beside
-    ``runs_dir`` unless ``reports_dir`` says otherwise.
+    ``runs_dir`` unless ``reports_dir`` says otherwise. ``simulated=False`` records the run as a
+    calibration (not a dry run), although the calibrator it drives is still the simulated one.
     """
     from verirun.bench.calibrator import Calibrator
     from verirun.bench.config import load_bench

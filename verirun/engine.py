@@ -409,19 +409,21 @@ class Engine:
                     except OperatorSilent:
                         entry = None
                     # Journaled before anything else happens, standby included: if the output
-                    # cannot be made safe the reading is still kept.
-                    for typed in entry.replaced if entry is not None else ():
-                        self.journal.append(
-                            compose(
-                                "note",
-                                time=self._now(),
-                                point=self._label(point),
-                                text=f"reading {typed!r} asked about as far from the nominal"
-                                f" and not kept; the operator typed {entry.typed!r}",
+                    # cannot be made safe the reading is still kept. One critical section: a
+                    # signal cannot journal the note on a replaced reading without the entry.
+                    with deferred_signals():
+                        for typed in entry.replaced if entry is not None else ():
+                            self.journal.append(
+                                compose(
+                                    "note",
+                                    time=self._now(),
+                                    point=self._label(point),
+                                    text=f"reading {typed!r} asked about as far from the nominal"
+                                    f" and not kept; the operator typed {entry.typed!r}",
+                                )
                             )
-                        )
-                    if entry is not None and entry.kind in ("reading", "skip", "abort"):
-                        self._journal_entry(point, entry)
+                        if entry is not None and entry.kind in ("reading", "skip", "abort"):
+                            self._journal_entry(point, entry)
                 if entry is None:
                     self._after_silence(point)  # the guard has put the output in standby
                     continue

@@ -187,8 +187,9 @@ class _Nominals:
     """The nominals of one range, to find the one a replay file's ``at`` names.
 
     A row names the first nominal, in plan order, equal to its value or within a relative 1e-9
-    of it (one value written two ways may give floats a few units of the last place apart). Kept sorted as well, so
-    that a row looks only at the few nominals near its value, not at every one of the range's.
+    of it (one value written two ways may give floats a few units of the last place apart).
+    Kept sorted as well, so that a row looks only at the few nominals near its value, not at
+    every one of the range's.
     """
 
     REL, ABS = 1e-9, 1e-15
@@ -198,7 +199,9 @@ class _Nominals:
         self.sorted = sorted(in_order)
 
     def named_by(self, at: float) -> float | None:
-        reach = max(abs(at) * 2 * self.REL, self.ABS) * 2  # wider than isclose's reach
+        # isclose reaches REL times the larger of the two magnitudes, or ABS: twice REL of
+        # |at| covers the larger, and twice that again is a margin; the test below decides.
+        reach = max(abs(at) * 2 * self.REL, self.ABS) * 2
         lo = bisect.bisect_left(self.sorted, at - reach)
         hi = bisect.bisect_right(self.sorted, at + reach)
         close = [

@@ -155,6 +155,34 @@ class TestGrossReading:
             i for i, d in enumerate(docs) if d["kind"] == "observation"
         )
 
+    def test_a_signal_after_the_note_still_journals_the_reading(
+        self, tmp_path, demo_lab_path, monkeypatch
+    ):
+        """A kill request taken just after the note on the replaced reading is journaled acts
+        only once the reading the operator typed instead is journaled too: the note never
+        stands without the entry it speaks of."""
+        import os
+        import signal
+
+        from verirun.record.journal import Journal
+
+        real = Journal.append
+
+        def append_then_signal(self, doc):
+            written = real(self, doc)
+            if doc.get("kind") == "note" and "asked about" in doc.get("text", ""):
+                os.kill(os.getpid(), signal.SIGTERM)
+                sum(range(10))  # as the interpreter would, at the next instructions
+            return written
+
+        monkeypatch.setattr(Journal, "append", append_then_signal)
+        with pytest.raises(KeyboardInterrupt, match="SIGTERM") as stopped:
+            run_typing(tmp_path, demo_lab_path, ["", "8", "5.1", *PLAIN[2:]])
+        docs = read_journal(stopped.value.run_dir / "journal.jsonl").documents
+        note = next(i for i, d in enumerate(docs) if d["kind"] == "note" and "asked" in d["text"])
+        assert docs[note + 1]["kind"] == "observation" and docs[note + 1]["typed"] == "5.1"
+        assert docs[-1]["kind"] == "stop" and docs[-1]["status"] == "aborted"
+
     def test_same_far_off_reading_twice_is_kept(self, tmp_path, demo_lab_path):
         """Typing the same far-off reading again confirms it."""
         docs, *_ = run_typing(tmp_path, demo_lab_path, ["", "8", "8", *PLAIN[2:]])

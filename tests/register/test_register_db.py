@@ -174,3 +174,25 @@ class TestCommandLine:
         )
         # Without the register the asset cannot be resolved: a clear error, not a traceback.
         assert main(["resume", str(run_dir), "--bench", str(DATA / "bench-by-asset.yaml")]) == 1
+
+
+def test_a_register_a_later_verirun_migrated_is_refused_in_words(tmp_path, capsys):
+    """A bench whose verirun is older than the register's schema (another bench was upgraded
+    and migrated it) is told to upgrade, not to migrate, and no traceback is printed."""
+    import sqlalchemy as sa
+
+    from verirun.register.db import RegisterError, forget_open, open_register
+
+    url = f"sqlite:///{tmp_path / 'later.db'}"
+    open_register(url)
+    forget_open()
+    engine = sa.create_engine(url)
+    with engine.begin() as connection:
+        connection.exec_driver_sql("UPDATE alembic_version SET version_num = '9999'")
+    engine.dispose()
+    with pytest.raises(RegisterError, match="revision 9999, newer than this verirun"):
+        open_register(url)
+    forget_open()
+    assert main(["runs", "--register", url]) != 0
+    err = capsys.readouterr().err
+    assert "upgrade verirun" in err and "Traceback" not in err

@@ -211,3 +211,20 @@ class TestFoundInTolerance:
         history = item_history(register, serial="OLD-1", today=dt.date(2022, 1, 1))
         assert history.last_in_tolerance is False  # 8.30 V failed, outside the tolerance
         assert (history.model_calibrations, history.model_in_tolerance) == (1, 0)
+
+    def test_a_calibration_that_measured_nothing_is_found_neither_way(
+        self, register, tmp_path, closed_run
+    ):
+        """Every step skipped (the meter came in damaged): the run closes complete with no
+        statement. It is not counted in the model's share, and the item's last calibration
+        found it neither in tolerance nor out of it."""
+        runs_dir = tmp_path / "runs"
+        _calibrate(closed_run, runs_dir, "S-1", 2021, ("2.00", "5.00", "8.00"))
+        skipped = ("skip movement seized",) * 3
+        nothing = _calibrate(closed_run, runs_dir, "S-1", 2022, skipped)
+        assert nothing.record["summary"]["overall"] == "none"
+        assert nothing.record["run"]["status"] == "complete"
+        history = item_history(register, serial="S-1", today=dt.date(2023, 1, 1))
+        assert (history.model_calibrations, history.model_in_tolerance) == (1, 1)
+        assert history.last_in_tolerance is None
+        assert history.staircase() == "no change (the last calibration measured no point)"

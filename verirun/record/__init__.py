@@ -1,8 +1,7 @@
 """The run record: what a run is, as stored.
 
-- :mod:`~verirun.record.documents`: one strict model per journal document kind, the one place
-  documents are composed, and the schema;
-- :mod:`~verirun.record.documents`: one strict model per part of the run record, and its schema;
+- :mod:`~verirun.record.documents`: one strict model per journal document kind and per part of
+  the run record, every field described; the one place documents are composed; both schemas;
 - :mod:`~verirun.record.journal`: the hash-chained, fsynced journal of a run folder, read back
   as typed documents (outside this package, documents are read by attribute, never by key), and
   the record file's reading and writing;

@@ -27,8 +27,9 @@ certificate-number
 Documents are made here (:func:`compose`, validated against their model as they are made) and
 validated again when they are read back (:func:`read_document`, after the strict parse of
 :func:`parse_json`), so a damaged or crafted journal is reported by file and line before
-anything reads it. What is read back is these models, frozen: code outside this package reads a
-document by attribute (``start.procedure.text``), never by key. The JSON Schema of the union
+anything reads it. What is read back is these models, frozen (no field can be set again; the
+lists a field holds are not copied, so nothing here changes them): code outside this package
+reads a document by attribute (``start.procedure.text``), never by key. The JSON Schema of the union
 (:func:`journal_schema`) ships with the package as ``schema/journal.schema.json``.
 
 Journal formats: 3 marks an operator's note ``by: operator``, so the run's internal log (every
@@ -176,8 +177,8 @@ class Person(Part):
 
 
 class LabAsRun(Part):
-    name: str
-    address: list[str]
+    name: str = Field(description="the lab's name, as its certificates give it")
+    address: list[str] = Field(description="lines of the lab's address")
     accreditation: str | None = Field(
         description="the lab's accreditation (null when its profile gives none)"
     )
@@ -186,7 +187,7 @@ class LabAsRun(Part):
         default=None, description="an older profile's one signatory"
     )
     people_who_issue: list[Person] = Field(default=[], description="who may issue certificates")
-    traceability: str
+    traceability: str = Field(description="the lab's statement of metrological traceability")
     conditions: str | None = Field(
         description="the lab's stated environmental conditions (null when its profile states none)"
     )
@@ -199,7 +200,7 @@ class LabAsRun(Part):
 
 
 class Customer(Part):
-    name: str
+    name: str = Field(description="the customer's name")
     address: list[str] = Field(default=[], description="lines of the customer's address")
 
 

@@ -112,13 +112,41 @@ def current_revision(connection) -> str | None:
     return MigrationContext.configure(connection).get_current_revision()
 
 
+@functools.cache
+def known_revisions() -> frozenset[str]:
+    """Every schema revision this verirun's migrations know."""
+    from alembic.script import ScriptDirectory
+
+    return frozenset(
+        s.revision for s in ScriptDirectory.from_config(_alembic_config(None)).walk_revisions()
+    )
+
+
+def _newer_than_this(name: str, at: str | None) -> RegisterError | None:
+    """The error for a register whose schema a later verirun has migrated past this one's."""
+    if at is None or at in known_revisions():
+        return None
+    return RegisterError(
+        f"register {name}: its schema is at revision {at}, newer than this verirun knows (it"
+        f" needs {head_revision()}): a later verirun migrated it; upgrade verirun on this bench"
+    )
+
+
 def migrate(register: Register) -> tuple[str | None, str]:
-    """Bring the register's schema to this verirun's revision; return (before, after)."""
+    """Bring the register's schema to this verirun's revision; return (before, after).
+
+    Raises
+    ------
+    RegisterError
+        If the register's schema is of a later verirun than this one.
+    """
     from alembic import command
 
     try:
         with register.engine.begin() as connection:
             before = current_revision(connection)
+            if (newer := _newer_than_this(register.name, before)) is not None:
+                raise newer
             if before != head_revision():
                 command.upgrade(_alembic_config(connection), "head")
     except sa.exc.OperationalError as exc:
@@ -164,6 +192,8 @@ def open_register(name: str) -> Register:
                 at = current_revision(connection)
         except sa.exc.OperationalError as exc:
             raise RegisterUnreachable(f"register {register.name}: {_reason(exc)}") from None
+        if (newer := _newer_than_this(register.name, at)) is not None:
+            raise newer
         if at != head_revision():
             raise RegisterError(
                 f"register {register.name}: its schema is at revision {at or 'none (empty)'},"

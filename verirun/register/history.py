@@ -11,7 +11,8 @@ a date. Only calibrations count: complete runs that were not dry runs and are no
 pass after an adjustment (that one's errors are not as found); a corrected run counts by its
 latest revision.
 
-For the item's model, the share of calibrations found in tolerance (every point passing) is the
+For the item's model, the share of calibrations found in tolerance (a reading taken, and none
+outside its tolerance limits) is the
 observed in-tolerance reliability that interval methods act on. The adjustment shown is the
 staircase method (method 1 of ILAC-G24:2022 / OIML D 10:2022, "automatic adjustment", from
 memory): lengthen the interval after an as-found result in tolerance, shorten it after one out
@@ -111,7 +112,7 @@ class History:
 
     def staircase(self) -> str:
         if self.last_in_tolerance is None:
-            return "no calibration yet"
+            return "no change (the last calibration measured no point)"
         return (
             "lengthen the interval (last found in tolerance)"
             if self.last_in_tolerance
@@ -196,7 +197,8 @@ def _calibrations(*where):
 def _found_in_tolerance():
     """The condition of a run's closing that found the item in tolerance (see model_counts)."""
     return sa.or_(
-        runs.c.outside_tolerance == 0,
+        # "none": every step skipped, nothing measured: not found in tolerance, nor out of it.
+        sa.and_(runs.c.outside_tolerance == 0, runs.c.overall != "none"),
         sa.and_(
             runs.c.outside_tolerance.is_(None), runs.c.overall.in_(("pass", "conditional-pass"))
         ),
@@ -211,11 +213,14 @@ def model_counts(connection, model: str) -> tuple[int, int]:
     journal length and its latest closing found in tolerance; the run was found in tolerance
     when the two are one. A run is found in tolerance when none of its readings lies outside its
     tolerance limits (a reading rejected for the guard band alone lies within them); a run
-    stored before the register counted that (migration 0002) is judged by its overall verdict."""
+    stored before the register counted that (migration 0002) is judged by its overall verdict.
+    A run whose latest closing measured nothing (every step skipped) is not counted at all: it
+    found the item neither in tolerance nor out of it."""
     per_run = (
         sa.select(
             sa.func.max(runs.c.documents).label("latest"),
             sa.func.max(sa.case((_found_in_tolerance(), runs.c.documents))).label("passed"),
+            sa.func.max(sa.case((runs.c.overall != "none", runs.c.documents))).label("measured"),
         )
         .where(runs.c.item_model == model, *CALIBRATION)
         .group_by(runs.c.uid)
@@ -225,7 +230,7 @@ def model_counts(connection, model: str) -> tuple[int, int]:
         sa.select(
             sa.func.count(),
             sa.func.sum(sa.case((per_run.c.passed == per_run.c.latest, 1), else_=0)),
-        )
+        ).where(per_run.c.measured == per_run.c.latest)
     ).one()
     return int(total), int(passed or 0)
 
@@ -265,6 +270,7 @@ def item_history(register, *, serial: str, model: str | None = None, today: dt.d
             points.c.expanded_fraction,
             points.c.verdict,
             points.c.within_tolerance,
+            points.c.reading,
         )
         .join(latest, sa.and_(runs.c.uid == latest.c.uid, runs.c.documents == latest.c.documents))
         .join(points, points.c.run_id == runs.c.id)
@@ -327,8 +333,11 @@ def item_history(register, *, serial: str, model: str | None = None, today: dt.d
     )
 
 
-def _all_within(rows) -> bool:
-    """Whether no reading of ``rows`` (one run's points) lies outside its tolerance limits."""
+def _all_within(rows) -> bool | None:
+    """Whether no reading of ``rows`` (one run's points) lies outside its tolerance limits
+    (``None`` when none of them was measured: nothing was found either way)."""
+    if rows["reading"].isna().all():
+        return None
     outside = rows["within_tolerance"].eq(False)
     unknown = rows["within_tolerance"].isna() & rows["verdict"].notna()
     stored_before = unknown & ~rows["verdict"].isin(NOT_OUTSIDE)

@@ -88,13 +88,13 @@ def list_runs(
         .where(*where)
         .order_by(runs.c.started, runs.c.folder, runs.c.documents)
     )
-    as_found = sa.select(runs.c.as_found_uid).where(runs.c.as_found_uid.is_not(None))
+    as_found_uids = sa.select(runs.c.as_found_uid).where(runs.c.as_found_uid.is_not(None))
     with register.reading() as connection, _rows_without_cycles():
         # The few runs adjusted between an as-found and an as-left pass, each way round.
-        as_left_folder = dict(connection.execute(as_found.add_columns(runs.c.folder)).all())
+        as_left_folder = dict(connection.execute(as_found_uids.add_columns(runs.c.folder)).all())
         as_found_folder = dict(
             connection.execute(
-                sa.select(runs.c.uid, runs.c.folder).where(runs.c.uid.in_(as_found)).distinct()
+                sa.select(runs.c.uid, runs.c.folder).where(runs.c.uid.in_(as_found_uids)).distinct()
             ).all()
         )
         listed: list[dict] = []
@@ -113,7 +113,7 @@ def list_runs(
             record_revision,
             customer,
             simulated,
-            found,
+            as_found_uid,
         ) in connection.execute(query).all():
             row = {
                 "run": folder,
@@ -129,7 +129,9 @@ def list_runs(
                 "certificate": certificate if status == "complete" else None,
                 "customer": customer,
                 "simulated": bool(simulated),
-                "as_found_run": as_found_folder.get(found, found) if found else None,
+                "as_found_run": (
+                    as_found_folder.get(as_found_uid, as_found_uid) if as_found_uid else None
+                ),
                 "as_left_run": as_left_folder.get(uid),
                 "bench": bench,
             }
