@@ -624,7 +624,8 @@ def _same_file(
 
 def close_run(run_dir: Path) -> dict | None:
     """Build and write the run record of the journal in ``run_dir`` (``None`` if it is empty)."""
-    # The parsed lines alone are kept (not their typed models): a long run's journal is large.
+    # Only the parsed lines are kept for the build; the typed models read_journal made while
+    # checking them are let go at once (a long run's journal is large).
     documents = read_journal(run_dir / JOURNAL_NAME).documents
     if not documents:
         return None
