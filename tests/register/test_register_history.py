@@ -173,6 +173,7 @@ class TestFoundInTolerance:
         _calibrate(closed_run, runs_dir, "G-2", 2023, ("2.00", "5.00", "8.196"), **guarded)
         history = item_history(register, serial="G-1", today=dt.date(2024, 6, 1))
         assert (history.model_calibrations, history.model_in_tolerance) == (4, 3)
+        assert history.model_judged_by_verdict == 0
         assert history.last_in_tolerance is False  # 8.25 V is outside the tolerance
         assert item_history(register, serial="G-2", today=dt.date(2024, 6, 1)).last_in_tolerance
 
@@ -211,6 +212,9 @@ class TestFoundInTolerance:
         history = item_history(register, serial="OLD-1", today=dt.date(2022, 1, 1))
         assert history.last_in_tolerance is False  # 8.30 V failed, outside the tolerance
         assert (history.model_calibrations, history.model_in_tolerance) == (1, 0)
+        assert history.model_judged_by_verdict == 1  # and the history says so
+        assert history.as_json()["model_reliability"]["judged_by_verdict"] == 1
+        assert "1 of them judged by their verdicts" in history.text()
 
     def test_a_calibration_that_measured_nothing_is_found_neither_way(
         self, register, tmp_path, closed_run

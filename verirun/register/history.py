@@ -102,6 +102,9 @@ class History:
     drifts: dict[str, Drift] = field(default_factory=dict)
     model_calibrations: int = 0
     model_in_tolerance: int = 0
+    #: Of ``model_calibrations``, those stored before the register counted readings outside
+    #: tolerance (migration 0002): judged by their overall verdict instead.
+    model_judged_by_verdict: int = 0
     last_in_tolerance: bool | None = None
 
     @property
@@ -134,6 +137,7 @@ class History:
                 "calibrations": self.model_calibrations,
                 "in_tolerance": self.model_in_tolerance,
                 "share": self.model_share,
+                "judged_by_verdict": self.model_judged_by_verdict,
                 "method": "share of calibrations found in tolerance; interval adjusted by"
                 " the staircase method (ILAC-G24:2022 / OIML D 10 method 1)",
                 "staircase": self.staircase(),
@@ -173,6 +177,12 @@ class History:
             + (
                 f"{self.model_in_tolerance} of {self.model_calibrations} calibrations"
                 f" found in tolerance ({share * 100:.0f} %)"
+                + (
+                    f", {self.model_judged_by_verdict} of them judged by their verdicts (stored"
+                    " before the register counted readings outside tolerance)"
+                    if self.model_judged_by_verdict
+                    else ""
+                )
                 if share is not None
                 else "no calibrations"
             )
@@ -205,9 +215,10 @@ def _found_in_tolerance():
     )
 
 
-def model_counts(connection, model: str) -> tuple[int, int]:
-    """How many calibrations of items of ``model`` there are, and how many were found in
-    tolerance, each run counted by its latest closing.
+def model_counts(connection, model: str) -> tuple[int, int, int]:
+    """How many calibrations of items of ``model`` there are, how many were found in
+    tolerance, and how many of them were judged by their verdicts (see below), each run
+    counted by its latest closing.
 
     One aggregate over the index that holds these columns: per run, its latest closing's
     journal length and its latest closing found in tolerance; the run was found in tolerance
@@ -221,18 +232,22 @@ def model_counts(connection, model: str) -> tuple[int, int]:
             sa.func.max(runs.c.documents).label("latest"),
             sa.func.max(sa.case((_found_in_tolerance(), runs.c.documents))).label("passed"),
             sa.func.max(sa.case((runs.c.overall != "none", runs.c.documents))).label("measured"),
+            sa.func.max(sa.case((runs.c.outside_tolerance.is_(None), runs.c.documents))).label(
+                "by_verdict"
+            ),
         )
         .where(runs.c.item_model == model, *CALIBRATION)
         .group_by(runs.c.uid)
         .subquery()
     )
-    total, passed = connection.execute(
+    total, passed, by_verdict = connection.execute(
         sa.select(
             sa.func.count(),
             sa.func.sum(sa.case((per_run.c.passed == per_run.c.latest, 1), else_=0)),
+            sa.func.sum(sa.case((per_run.c.by_verdict == per_run.c.latest, 1), else_=0)),
         ).where(per_run.c.measured == per_run.c.latest)
     ).one()
-    return int(total), int(passed or 0)
+    return int(total), int(passed or 0), int(by_verdict or 0)
 
 
 #: The verdicts that say a point was not found outside its tolerance limits (a conditional fail
@@ -290,7 +305,7 @@ def item_history(register, *, serial: str, model: str | None = None, today: dt.d
                 f"item {serial!r} is of several models ({', '.join(models)}); name one with --model"
             )
         model = models[0]
-        calibrations, in_tolerance = model_counts(connection, model)
+        calibrations, in_tolerance, by_verdict = model_counts(connection, model)
     table["date"] = table["started"].str.slice(0, 10)
     # A step is a test point's identity: a label that several steps of a run share (a value read
     # up-scale and down-scale) is told apart by its step, so their errors are not fitted as one.
@@ -329,6 +344,7 @@ def item_history(register, *, serial: str, model: str | None = None, today: dt.d
         drifts=drifts,
         model_calibrations=calibrations,
         model_in_tolerance=in_tolerance,
+        model_judged_by_verdict=by_verdict,
         last_in_tolerance=_all_within(last),
     )
 
