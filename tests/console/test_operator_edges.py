@@ -183,6 +183,11 @@ class TestLineReader:
         assert len(reader.get(within=10)) == 1001
         assert reader.get(within=10) == "4.9"
         feeder.join()
+        # The reader has seen the end of the input, so its thread reads no more: closing the
+        # descriptor before that would let the thread read whatever file is opened next under
+        # the same number (the next test's device file, read as empty).
+        with pytest.raises(EOFError):
+            reader.get(within=10)
         os.close(read)
 
 
