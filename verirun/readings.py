@@ -194,9 +194,10 @@ class _Nominals:
 
     REL, ABS = 1e-9, 1e-15
 
-    def __init__(self, in_order: list[float]):
-        self.order = {n: i for i, n in enumerate(in_order)}
-        self.sorted = sorted(in_order)
+    def __init__(self, nominals):
+        #: Each nominal once, in plan order, with its place in that order.
+        self.order = {n: i for i, n in enumerate(dict.fromkeys(nominals))}
+        self.sorted = sorted(self.order)
 
     def named_by(self, at: float) -> float | None:
         # isclose reaches REL times the larger of the two magnitudes, or ABS: twice REL of
@@ -285,12 +286,11 @@ class ScriptedReadings:
         self, points: list[TestPoint], problems: list[str]
     ) -> dict[tuple[str, float], list[_Row]]:
         """Assign every row to the point it names; a row that names none is a problem."""
-        nominals: dict[str, dict[float, None]] = {}  # per range, its nominals in plan order
-        ranges = {}
+        ranges, by_range = {}, {}
         for p in points:
             ranges.setdefault(p.range.id, p.range)
-            nominals.setdefault(p.range.id, {})[p.nominal] = None
-        near = {rid: _Nominals(list(values)) for rid, values in nominals.items()}
+            by_range.setdefault(p.range.id, []).append(p.nominal)
+        nominals = {rid: _Nominals(values) for rid, values in by_range.items()}
         queues: dict[tuple[str, float], list[_Row]] = {}
         for row in self._rows:
             rng = ranges.get(row.range)
@@ -306,15 +306,15 @@ class ScriptedReadings:
             except UnitError as exc:
                 problems.append(
                     f"{self.path}:{row.line}: at: {exc}; write the point's nominal value,"
-                    f" e.g. {format_quantity(next(iter(nominals[rng.id])), rng.unit)}"
+                    f" e.g. {format_quantity(next(iter(nominals[rng.id].order)), rng.unit)}"
                 )
                 continue
-            nominal = near[rng.id].named_by(at)
+            nominal = nominals[rng.id].named_by(at)
             if nominal is None:
                 problems.append(
                     f"{self.path}:{row.line}: at: range {rng.id} has no point at"
                     f" {format_quantity(at, rng.unit)} (its points:"
-                    f" {', '.join(format_quantity(n, rng.unit) for n in nominals[rng.id])})"
+                    f" {', '.join(format_quantity(n, rng.unit) for n in nominals[rng.id].order)})"
                 )
                 continue
             queues.setdefault((rng.id, nominal), []).append(row)
