@@ -122,11 +122,17 @@ def known_revisions() -> frozenset[str]:
     )
 
 
-def _newer_than_this(name: str, at: str | None) -> RegisterError | None:
-    """The error for a register whose schema a later verirun has migrated past this one's."""
+def _refuse_newer(name: str, at: str | None) -> None:
+    """Refuse a register whose schema a later verirun has migrated past this one's.
+
+    Raises
+    ------
+    RegisterError
+        If ``at`` is a revision this verirun's migrations do not know.
+    """
     if at is None or at in known_revisions():
-        return None
-    return RegisterError(
+        return
+    raise RegisterError(
         f"register {name}: its schema is at revision {at}, newer than this verirun knows (it"
         f" needs {head_revision()}): a later verirun migrated it; upgrade verirun on this bench"
     )
@@ -145,8 +151,7 @@ def migrate(register: Register) -> tuple[str | None, str]:
     try:
         with register.engine.begin() as connection:
             before = current_revision(connection)
-            if (newer := _newer_than_this(register.name, before)) is not None:
-                raise newer
+            _refuse_newer(register.name, before)
             if before != head_revision():
                 command.upgrade(_alembic_config(connection), "head")
     except sa.exc.OperationalError as exc:
@@ -192,8 +197,7 @@ def open_register(name: str) -> Register:
                 at = current_revision(connection)
         except sa.exc.OperationalError as exc:
             raise RegisterUnreachable(f"register {register.name}: {_reason(exc)}") from None
-        if (newer := _newer_than_this(register.name, at)) is not None:
-            raise newer
+        _refuse_newer(register.name, at)
         if at != head_revision():
             raise RegisterError(
                 f"register {register.name}: its schema is at revision {at or 'none (empty)'},"
