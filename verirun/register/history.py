@@ -205,10 +205,10 @@ def _calibrations(*where):
 
 
 def _found_in_tolerance():
-    """The condition of a run's closing that found the item in tolerance (see model_counts)."""
+    """The condition of a run's closing that found the item in tolerance (see model_counts,
+    which leaves out a run whose latest closing measured nothing)."""
     return sa.or_(
-        # "none": every step skipped, nothing measured: not found in tolerance, nor out of it.
-        sa.and_(runs.c.outside_tolerance == 0, runs.c.overall != "none"),
+        runs.c.outside_tolerance == 0,
         sa.and_(
             runs.c.outside_tolerance.is_(None), runs.c.overall.in_(("pass", "conditional-pass"))
         ),
@@ -355,8 +355,7 @@ def _all_within(rows) -> bool | None:
     if rows["reading"].isna().all():
         return None
     outside = rows["within_tolerance"].eq(False)
-    unknown = rows["within_tolerance"].isna() & rows["verdict"].notna()
-    stored_before = unknown & ~rows["verdict"].isin(NOT_OUTSIDE)
+    stored_before = rows["within_tolerance"].isna() & ~rows["verdict"].isin(NOT_OUTSIDE)
     return not bool((outside | stored_before).any())
 
 

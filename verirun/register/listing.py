@@ -98,7 +98,6 @@ def list_runs(
             ).all()
         )
         listed: list[dict] = []
-        previous = None
         for (
             started,
             folder,
@@ -135,11 +134,10 @@ def list_runs(
                 "as_left_run": as_left_folder.get(uid),
                 "bench": bench,
             }
-            if uid == previous:  # a later closing of the run just listed
+            if listed and listed[-1]["uid"] == uid:  # a later closing of the run just listed
                 listed[-1] = row
             else:
                 listed.append(row)
-            previous = uid
         return listed
 
 
