@@ -236,6 +236,12 @@ def _first_line(exc) -> str:
 
 def load_file(path: str | Path) -> LocatedData:
     """Read and parse a YAML file; a missing, unreadable or non-UTF-8 file is a :class:`ProcedureError`."""
+    return load_text(read_text(path), str(path))
+
+
+def read_text(path: str | Path) -> str:
+    """The text of a YAML file (a leading byte-order mark dropped); a missing, unreadable or
+    non-UTF-8 file is a :class:`ProcedureError`."""
     path = Path(path)
     try:
         raw = path.read_bytes()
@@ -254,7 +260,7 @@ def load_file(path: str | Path) -> LocatedData:
         ) from None
     if text.startswith("\ufeff"):
         text = text[1:]
-    return load_text(text, str(path))
+    return text
 
 
 def validate(model: type[M], located: LocatedData, *, context: dict | None = None) -> M:

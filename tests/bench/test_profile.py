@@ -77,6 +77,29 @@ class TestLoadProfile:
         with pytest.raises(ProcedureError, match="no such file"):
             load_profile(tmp_path / "absent.yaml")
 
+    def test_an_edited_file_is_read_again(self, tmp_path):
+        """A profile file changed between two runs is loaded as it now reads, and a broken edit
+        is refused, naming the file: a loaded profile is kept only for the same text."""
+        path = write(tmp_path, GOOD)
+        first = load_profile(path)
+        assert load_profile(path) is first  # the same text: the same (frozen) profile
+        write(tmp_path, GOOD.replace("name: tiny", "name: tiny-edited"))
+        assert load_profile(path).name == "tiny-edited"
+        write(tmp_path, GOOD.replace("format: 1", "format: 2"))
+        with pytest.raises(ProcedureError, match="newer than this verirun reads"):
+            load_profile(path)
+        write(tmp_path, GOOD)
+        assert load_profile(path).name == "tiny"
+
+    def test_the_same_text_elsewhere_names_its_own_file(self, tmp_path):
+        """Two files with the same broken text are each refused in their own name."""
+        broken = GOOD.replace("format: 1", "format: 2")
+        for name in ("one.yaml", "two.yaml"):
+            path = write(tmp_path, broken, name)
+            with pytest.raises(ProcedureError) as err:
+                load_profile(path)
+            assert err.value.problems[0].startswith(f"{path}:1: ")
+
     def test_frozen(self):
         """A loaded profile cannot be changed."""
         profile = load_profile("scpi-generic")
