@@ -330,8 +330,11 @@ class Console:
         if self.show_window:
             self.say(f"  window {_limits(point)}")
 
-    def result(self, point: "TestPoint", entry: Entry, result: "Result") -> None:
-        """Show the verdict of a reading."""
+    def result(self, point: "TestPoint", entry: Entry) -> None:
+        """Show a reading's evaluation: its numbers and verdict."""
+        from verirun.evaluation import evaluate
+
+        result = evaluate(point, entry.value)
         line, _ = result_text(point, entry, result)
         pct = (
             f"{result.percent_of_tolerance:+.0f} % of tolerance"
@@ -469,9 +472,12 @@ class QuietConsole:
                 f"Step {point.index + 1} of {point.total} {point.range.id} {point.stimulus_text()}"
             )
 
-    def result(self, point: "TestPoint", entry: Entry, result: "Result") -> None:
+    def result(self, point: "TestPoint", entry: Entry) -> None:
         if self._quiet:
             return
+        from verirun.evaluation import evaluate
+
+        result = evaluate(point, entry.value)
         numbers, word = result_text(point, entry, result)
         line = f"{point.index + 1:>3}/{point.total} {point.range.id:<9} {point.stimulus_text():<15} {numbers}"
         self._log(f"{line} {word}")

@@ -16,7 +16,7 @@ from verirun.bench.config import Bench
 from verirun.bench.safety import HazardLimits, is_hazardous, output_guard
 from verirun.clock import SystemClock, iso
 from verirun.errors import BenchError, RunAborted, StorageError, VerirunError
-from verirun.evaluation import evaluate
+from verirun.evaluation import verdict
 from verirun.interrupts import deferred_signals, stop_if_asked
 from verirun.procedure.load import Procedure
 from verirun.procedure.plan import TestPoint, plan
@@ -154,8 +154,8 @@ class Engine:
         self.counts = {"pass": 0, "fail": 0, "skipped": 0}
         #: The points given an entry in this session, with it, newest last (for undo).
         self._taken: list[tuple[TestPoint, Entry]] = []
-        #: Each reading's evaluation in this session, by its point's index (for undo).
-        self.results: dict = {}
+        #: Each reading's verdict in this session, by its point's index (for undo).
+        self.verdicts: dict[int, str] = {}
         self.journal_format = JOURNAL_FORMAT
         #: The latest time journaled: no document is dated before it (see _now).
         self._latest: str | None = None
@@ -448,10 +448,11 @@ class Engine:
             self.counts["skipped"] += 1
             self.console.say(f"  skipped: {entry.text}")
             return
-        result = evaluate(point, entry.value)
-        self.results[point.index] = result
-        self.counts[result.verdict] = self.counts.get(result.verdict, 0) + 1
-        self.console.result(point, entry, result)
+        # The run counts verdicts; what the console shows of a reading it evaluates itself.
+        judged = verdict(point, entry.value)
+        self.verdicts[point.index] = judged
+        self.counts[judged] = self.counts.get(judged, 0) + 1
+        self.console.result(point, entry)
 
     def _undo(self, point: TestPoint) -> bool:
         """Withdraw the last entry taken in this session (journaled) and measure its step again;
@@ -470,8 +471,7 @@ class Engine:
                 reason="withdrawn by the operator (undo)",
             )
         )
-        verdict = self.results.pop(last.index).verdict if last.index in self.results else "skipped"
-        self.counts[verdict] -= 1
+        self.counts[self.verdicts.pop(last.index, "skipped")] -= 1
         self.console.say(f"  the entry of {self._step_name(last)} is withdrawn; measure it again")
         other_range = last.range is not point.range
         self.calibrator.standby()

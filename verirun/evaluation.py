@@ -110,6 +110,15 @@ def coverage_interval(site: Site, reading: float, expanded) -> tuple[float, floa
     return float(min(a, b)), float(max(a, b))
 
 
+def verdict(point: "TestPoint | Site", reading: float) -> decision.Verdict:
+    """The verdict :func:`evaluate` gives ``reading`` at ``point``, alone (see
+    :func:`verirun.metrology.decision.verdict`)."""
+    site = Site.of(point)
+    return decision.verdict(
+        site.rule, window=site.window, law=site.law, budget=site.budget, reading=reading
+    )
+
+
 def evaluate(point: "TestPoint | Site", reading: float) -> Result:
     """Evaluate ``reading`` at ``point`` under the procedure's decision rule."""
     site = Site.of(point)

@@ -121,10 +121,10 @@ class TestKilledAtTheEnd:
         from verirun.console import QuietConsole
 
         class TerminatedAfterLast(QuietConsole):
-            def result(self, point, entry, result):
+            def result(self, point, entry):
                 if point.index == point.total - 1:
                     raise KeyboardInterrupt("terminated (SIGTERM)")
-                return super().result(point, entry, result)
+                return super().result(point, entry)
 
         with pytest.raises(KeyboardInterrupt) as caught:
             make_run(

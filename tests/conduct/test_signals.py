@@ -465,7 +465,7 @@ class TestSignalsInARun:
         run = _RunOnSpy(tmp_path, worker, device)
 
         class Console(QuietConsole):
-            def result(self, point, entry, result):
+            def result(self, point, entry):
                 if point.index + 1 == point.total:
                     worker.send()
                     sum(range(10))

@@ -204,7 +204,7 @@ class TestConsoleLines:
                 return "10 V DC"
 
         console = QuietConsole(keep=True)
-        console.result(Point, Entry(kind="reading", typed=reading, value=float(reading)), result)
+        console.result(Point, Entry(kind="reading", typed=reading, value=float(reading)))
         (line,) = console.lines
         assert line.endswith(verdict.replace("-", " ").upper())
         assert "acceptance 10.1 V to 10.1 V" not in line and "fail beyond" in line

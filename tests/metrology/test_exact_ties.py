@@ -75,9 +75,12 @@ def u_term(u_reported: str, *, domain: str = "value", per_unit: Fraction = Fract
 
 
 def verdict(rule, win, law, bud, reading: str) -> str:
-    return decision.judge(
-        rule, window=win, law=law, budget=bud, reading=parse_value(reading, "V")
-    ).verdict
+    """The verdict of ``reading``, the same from :func:`decision.judge` and from the verdict
+    alone that a run counts (:func:`decision.verdict`)."""
+    value = parse_value(reading, "V")
+    judged = decision.judge(rule, window=win, law=law, budget=bud, reading=value).verdict
+    assert decision.verdict(rule, window=win, law=law, budget=bud, reading=value) == judged
+    return judged
 
 
 def linear_case(statement_kind: str, nominal: str, fs: str, spec: str, count: str):
@@ -200,13 +203,10 @@ class TestOhmsTies:
         for rule in RULES.values():  # with U = 0 every rule's zones meet at the tolerance limit
 
             def judged(x):
-                return decision.judge(
-                    rule,
-                    window=win,
-                    law=law,
-                    budget=bud,
-                    reading=float(x),
-                ).verdict
+                given = {"window": win, "law": law, "budget": bud, "reading": float(x)}
+                found = decision.judge(rule, **given).verdict
+                assert decision.verdict(rule, **given) == found
+                return found
 
             assert judged(r) == "pass", rule
             assert judged(out) == "fail", rule
@@ -249,13 +249,10 @@ class TestOhmsTies:
         out = r + step(r) if outward else r - step(r)
 
         def judged(x):
-            return decision.judge(
-                RULES["guarded"],
-                window=win,
-                law=law,
-                budget=bud,
-                reading=float(x),
-            ).verdict
+            given = {"window": win, "law": law, "budget": bud, "reading": float(x)}
+            found = decision.judge(RULES["guarded"], **given).verdict
+            assert decision.verdict(RULES["guarded"], **given) == found
+            return found
 
         assert judged(r) == "pass"
         assert judged(out) == "fail"

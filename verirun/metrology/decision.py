@@ -451,6 +451,38 @@ def _to_value(law: ScaleLaw, window: Window, a: Exact, b: Exact) -> tuple[Exact,
     return min(x, y), max(x, y)
 
 
+def verdict(
+    rule: Rule, *, window: Window, law: ScaleLaw, budget: Budget, reading: float
+) -> Verdict:
+    """The verdict :func:`judge` gives, without the figures it reports beside it (the acceptance
+    limits carried into the value domain, the TUR): what a run counts as each reading is taken.
+
+    Raises
+    ------
+    ValueError
+        If the budget and the window are in different domains.
+    """
+    return _decided(rule, window=window, law=law, budget=budget, reading=reading)[0].verdict
+
+
+def _decided(
+    rule: Rule, *, window: Window, law: ScaleLaw, budget: Budget, reading: float
+) -> tuple[Outcome, Exact, Fraction]:
+    """The rule's outcome for ``reading`` in the tolerance's domain, with the reading and U
+    as reported carried into that domain (see :func:`judge`)."""
+    if budget.domain != window.domain:
+        raise ValueError(
+            f"the budget is in the {budget.domain} domain but the tolerance is stated in"
+            f" the {window.domain} domain; combine the budget in the tolerance's domain"
+        )
+    y = as_written(reading)
+    if window.domain != "value":
+        y = law.exact_fraction(y)
+    low, high = window.zone
+    expanded = reported_expanded(window, budget)
+    return rule.decide(low=low, high=high, reading=y, expanded=expanded, k=budget.k), y, expanded
+
+
 def judge(rule: Rule, *, window: Window, law: ScaleLaw, budget: Budget, reading: float) -> Decision:
     """Apply ``rule`` to ``reading`` against ``window`` with the uncertainty of ``budget``.
 
@@ -475,17 +507,8 @@ def judge(rule: Rule, *, window: Window, law: ScaleLaw, budget: Budget, reading:
     ValueError
         If the budget and the window are in different domains.
     """
-    if budget.domain != window.domain:
-        raise ValueError(
-            f"the budget is in the {budget.domain} domain but the tolerance is stated in"
-            f" the {window.domain} domain; combine the budget in the tolerance's domain"
-        )
-    y = as_written(reading)
-    if window.domain != "value":
-        y = law.exact_fraction(y)
+    outcome, y, expanded = _decided(rule, window=window, law=law, budget=budget, reading=reading)
     low, high = window.zone
-    expanded = reported_expanded(window, budget)
-    outcome = rule.decide(low=low, high=high, reading=y, expanded=expanded, k=budget.k)
     zone = outcome.acceptance
     exact_acceptance = None if zone.empty else _to_value(law, window, zone.low, zone.high)
     outer = None
