@@ -113,9 +113,9 @@ def coverage_interval(site: Site, reading: float, expanded) -> tuple[float, floa
 def verdict(point: "TestPoint | Site", reading: float) -> decision.Verdict:
     """The verdict :func:`evaluate` gives ``reading`` at ``point``, alone (see
     :func:`verirun.metrology.decision.verdict`)."""
-    site = Site.of(point)
+    law = point.law if isinstance(point, Site) else point.range.law
     return decision.verdict(
-        site.rule, window=site.window, law=site.law, budget=site.budget, reading=reading
+        point.rule, window=point.window, law=law, budget=point.budget, reading=reading
     )
 
 

@@ -136,6 +136,7 @@ class Bench:
     hazardous_dc: float
     hazardous_ac_rms: float
     hazardous_ac_peak: float
+    #: The calibrator's specification lines, smallest range first.
     accuracy: tuple[SpecLine, ...] = ()
     #: (up to this resistance, the most current accepted), lowest resistance first.
     resistance_current: tuple[tuple[float, float], ...] = ()
@@ -154,19 +155,12 @@ class Bench:
         return hashlib.sha256(self.text.encode("utf-8")).hexdigest()
 
     def spec_for(self, function: str, value: float, frequency: float | None) -> SpecLine | None:
-        """The specification line for applying ``value``: the smallest range that holds it."""
-        for line in self._lines_by_function.get(function, ()):
+        """The specification line for applying ``value``: the smallest range that holds it (the
+        lines are held smallest range first)."""
+        for line in self.accuracy:
             if line.covers(function, value, frequency):
                 return line
         return None
-
-    @property
-    def _lines_by_function(self) -> dict[str, list[SpecLine]]:
-        # Each function's lines, smallest range first, so the first that holds a value is its line.
-        table: dict[str, list[SpecLine]] = {}
-        for line in sorted(self.accuracy, key=lambda line: line.range):
-            table.setdefault(line.function, []).append(line)
-        return table
 
 
 def load_bench(path: str | Path) -> Bench:
@@ -271,7 +265,9 @@ def _resolve(located: yamlfile.LocatedData) -> Bench:
         hazardous_dc=dc,
         hazardous_ac_rms=rms,
         hazardous_ac_peak=peak,
-        accuracy=tuple(accuracy),
+        # Smallest range first (in file order among equal ranges): the first line that holds a
+        # value is its line. Sorted once here, not at every point planned.
+        accuracy=tuple(sorted(accuracy, key=lambda line: line.range)),
         resistance_current=tuple(sorted(limits)),
         idle_standby_s=idle,
     )

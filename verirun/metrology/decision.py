@@ -143,13 +143,31 @@ class Outcome:
     conformance: float
 
 
-def _binary(zone: "Acceptance", *, low, high, reading, expanded, k: float) -> "Outcome":
-    """A pass/fail outcome: pass within ``zone``, limits included; pc reported either way.
-    The rule has checked the limits and the uncertainty in making ``zone``."""
-    low, high, expanded = _exact_args(low, high, expanded)
-    y = as_written(reading)
-    pc = _pc(low, high, y, expanded / Fraction(k))
-    return Outcome(verdict="pass" if zone.contains(y) else "fail", acceptance=zone, conformance=pc)
+class _Statement:
+    """What every rule does once it has its acceptance zone (each rule gives ``acceptance``)."""
+
+    def statement(self, zone: Acceptance, *, low: Exact, high: Exact, reading: Exact) -> Verdict:
+        """The verdict of the exact ``reading`` with the acceptance ``zone`` of the tolerance
+        limits ``low`` .. ``high``: a binary rule passes it within the zone, limits included,
+        and fails it otherwise."""
+        return "pass" if zone.low <= reading <= zone.high else "fail"
+
+    def decide(
+        self, *, low: Exact, high: Exact, reading: Exact, expanded: Exact, k: float = 2.0
+    ) -> Outcome:
+        """The rule's statement for ``reading``, with its acceptance zone and ``pc`` (reported
+        whatever the verdict)."""
+        zone = self.acceptance(low=low, high=high, expanded=expanded, k=k)  # checks the numbers
+        low, high, expanded = _exact_args(low, high, expanded)
+        y = as_written(reading)
+        return Outcome(
+            verdict=self.statement(zone, low=low, high=high, reading=y),
+            acceptance=zone,
+            conformance=_pc(low, high, y, expanded / Fraction(k)),
+        )
+
+
+_NO_GUARD = Fraction(0)
 
 
 def _shrunk(low: Exact, high: Exact, w: Exact) -> Acceptance:
@@ -157,7 +175,7 @@ def _shrunk(low: Exact, high: Exact, w: Exact) -> Acceptance:
 
 
 @dataclass(frozen=True, kw_only=True)
-class SimpleAcceptance:
+class SimpleAcceptance(_Statement):
     """Simple acceptance, ILAC-G8:09/2019 4.2.1 (``w = 0``).
 
     A reading within the tolerance limits, limits included, passes; any other fails.
@@ -177,24 +195,11 @@ class SimpleAcceptance:
         """The acceptance zone: the tolerance zone itself."""
         low, high, expanded = _exact_args(low, high, expanded)
         _check_zone(low, high, expanded, k)
-        return _shrunk(low, high, Fraction(0))
-
-    def decide(
-        self, *, low: Exact, high: Exact, reading: Exact, expanded: Exact, k: float = 2.0
-    ) -> Outcome:
-        """``"pass"`` or ``"fail"`` for ``reading``; on a tolerance limit it passes."""
-        return _binary(
-            self.acceptance(low=low, high=high, expanded=expanded, k=k),
-            low=low,
-            high=high,
-            reading=reading,
-            expanded=expanded,
-            k=k,
-        )
+        return _shrunk(low, high, _NO_GUARD)
 
 
 @dataclass(frozen=True, kw_only=True)
-class GuardedAcceptance:
+class GuardedAcceptance(_Statement):
     """Binary statement with a guard band, ILAC-G8:09/2019 4.2.2 (``w = ratio × U``).
 
     The acceptance limits are the tolerance limits each moved inward by ``w``. A reading within
@@ -225,19 +230,6 @@ class GuardedAcceptance:
         _check_zone(low, high, expanded, k)
         return _shrunk(low, high, as_written(self.ratio) * expanded)
 
-    def decide(
-        self, *, low: Exact, high: Exact, reading: Exact, expanded: Exact, k: float = 2.0
-    ) -> Outcome:
-        """``"pass"`` or ``"fail"``; a reading on an acceptance limit passes."""
-        return _binary(
-            self.acceptance(low=low, high=high, expanded=expanded, k=k),
-            low=low,
-            high=high,
-            reading=reading,
-            expanded=expanded,
-            k=k,
-        )
-
 
 @dataclass(frozen=True, kw_only=True)
 class NonBinaryStatement(GuardedAcceptance):
@@ -263,28 +255,21 @@ class NonBinaryStatement(GuardedAcceptance):
             " a value on a boundary takes the more favourable statement."
         )
 
-    def decide(
-        self, *, low: Exact, high: Exact, reading: Exact, expanded: Exact, k: float = 2.0
-    ) -> Outcome:
-        """One of the four statements for ``reading``."""
-        zone = self.acceptance(low=low, high=high, expanded=expanded, k=k)  # checks the numbers
-        low, high, expanded = _exact_args(low, high, expanded)
-        reading = as_written(reading)
-        pc = _pc(low, high, reading, expanded / Fraction(k))
+    def statement(self, zone: Acceptance, *, low: Exact, high: Exact, reading: Exact) -> Verdict:
+        """One of the four statements for the exact ``reading``; each boundary belongs to the
+        more favourable zone."""
         w = zone.guard
-        if zone.contains(reading):
-            verdict: Verdict = "pass"
-        elif low <= reading <= high:
-            verdict = "conditional-pass"
-        elif low - w <= reading <= high + w:
-            verdict = "conditional-fail"
-        else:
-            verdict = "fail"
-        return Outcome(verdict=verdict, acceptance=zone, conformance=pc)
+        if zone.low <= reading <= zone.high:
+            return "pass"
+        if low <= reading <= high:
+            return "conditional-pass"
+        if low - w <= reading <= high + w:
+            return "conditional-fail"
+        return "fail"
 
 
 @dataclass(frozen=True, kw_only=True)
-class RiskAcceptance:
+class RiskAcceptance(_Statement):
     """Guarded acceptance sized by the specific risk of false accept (JCGM 106:2012, normal model).
 
     For a reading ``y`` with standard uncertainty ``u = U / k``, the probability that the
@@ -324,7 +309,7 @@ class RiskAcceptance:
         low, high, expanded = _exact_args(low, high, expanded)
         _check_zone(low, high, expanded, k)
         if expanded == 0 or (math.isinf(low) and math.isinf(high)):
-            return _shrunk(low, high, Fraction(0))
+            return _shrunk(low, high, _NO_GUARD)
         u = float(expanded) / k
         place = Decimal(1).scaleb(round_uncertainty(float(expanded)).as_tuple().exponent - 2)
         if math.isinf(low) or math.isinf(high):
@@ -353,19 +338,6 @@ class RiskAcceptance:
         if a_low > a_high:
             return Acceptance(low=math.inf, high=-math.inf, guard=math.inf)
         return Acceptance(low=a_low, high=a_high, guard=min(a_low - low, high - a_high))
-
-    def decide(
-        self, *, low: Exact, high: Exact, reading: Exact, expanded: Exact, k: float = 2.0
-    ) -> Outcome:
-        """``"pass"`` or ``"fail"``; a reading on an acceptance limit passes."""
-        return _binary(
-            self.acceptance(low=low, high=high, expanded=expanded, k=k),
-            low=low,
-            high=high,
-            reading=reading,
-            expanded=expanded,
-            k=k,
-        )
 
 
 def _round_to(x: float, place: Decimal, how: str) -> Fraction:
@@ -462,14 +434,16 @@ def verdict(
     ValueError
         If the budget and the window are in different domains.
     """
-    return _decided(rule, window=window, law=law, budget=budget, reading=reading)[0].verdict
+    y, expanded = _in_domain(window=window, law=law, budget=budget, reading=reading)
+    low, high = window.zone
+    zone = rule.acceptance(low=low, high=high, expanded=expanded, k=budget.k)
+    return rule.statement(zone, low=low, high=high, reading=y)
 
 
-def _decided(
-    rule: Rule, *, window: Window, law: ScaleLaw, budget: Budget, reading: float
-) -> tuple[Outcome, Exact, Fraction]:
-    """The rule's outcome for ``reading`` in the tolerance's domain, with the reading and U
-    as reported carried into that domain (see :func:`judge`)."""
+def _in_domain(
+    *, window: Window, law: ScaleLaw, budget: Budget, reading: float
+) -> tuple[Exact, Fraction]:
+    """The reading and U as reported, exact, in the domain the tolerance is stated in."""
     if budget.domain != window.domain:
         raise ValueError(
             f"the budget is in the {budget.domain} domain but the tolerance is stated in"
@@ -478,9 +452,7 @@ def _decided(
     y = as_written(reading)
     if window.domain != "value":
         y = law.exact_fraction(y)
-    low, high = window.zone
-    expanded = reported_expanded(window, budget)
-    return rule.decide(low=low, high=high, reading=y, expanded=expanded, k=budget.k), y, expanded
+    return y, reported_expanded(window, budget)
 
 
 def judge(rule: Rule, *, window: Window, law: ScaleLaw, budget: Budget, reading: float) -> Decision:
@@ -507,8 +479,9 @@ def judge(rule: Rule, *, window: Window, law: ScaleLaw, budget: Budget, reading:
     ValueError
         If the budget and the window are in different domains.
     """
-    outcome, y, expanded = _decided(rule, window=window, law=law, budget=budget, reading=reading)
+    y, expanded = _in_domain(window=window, law=law, budget=budget, reading=reading)
     low, high = window.zone
+    outcome = rule.decide(low=low, high=high, reading=y, expanded=expanded, k=budget.k)
     zone = outcome.acceptance
     exact_acceptance = None if zone.empty else _to_value(law, window, zone.low, zone.high)
     outer = None
