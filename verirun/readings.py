@@ -22,7 +22,13 @@ from verirun.procedure.load import ResolvedRange
 from verirun.procedure.model import Number, QuantityText, Strict
 from verirun.procedure.plan import TestPoint
 from verirun.text import refusal
-from verirun.units import format_quantity, parse_quantity, parse_value, prefix_for, typed_decimal
+from verirun.units import (
+    format_quantity,
+    parse_quantity,
+    parse_value,
+    prefix_for,
+    split_quantity,
+)
 
 EntryKind = Literal["reading", "repeat", "skip", "note", "abort", "undo"]
 
@@ -109,7 +115,7 @@ def parse_entry(typed: str, point: TestPoint) -> Entry:
         return Entry(kind=kind, typed=typed, text=rest or None)
     _, factor = reading_unit(point.range)
     value, _ = parse_quantity(text, point.unit, bare_factor=factor)
-    _check_as_written(text, value, point.unit, factor)
+    _check_as_written(text, value)
     _check_on_scale(value, point)
     return Entry(kind="reading", typed=typed, value=value)
 
@@ -119,8 +125,10 @@ def parse_entry(typed: str, point: TestPoint) -> Entry:
 MAX_DIGITS = 15
 
 
-def _check_as_written(text: str, value: float, unit: str, bare_factor: float) -> None:
-    number, _ = typed_decimal(text, unit, bare_factor=bare_factor)
+def _check_as_written(text: str, value: float) -> None:
+    """Refuse a reading of more digits than a float carries, or one too small to work with;
+    ``text`` has been read by :func:`parse_quantity` as ``value``."""
+    number = Decimal(split_quantity(text)[0])
     digits = len(number.normalize().as_tuple().digits) if number else 0
     if digits > MAX_DIGITS:
         raise UnitError(

@@ -264,3 +264,23 @@ def test_enough_ohms_cases_were_decided():
     if not TESTED:
         pytest.skip("run with the ohms tie tests")
     assert all(count >= 300 for count in TESTED.values()), TESTED
+
+
+class TestAsWritten:
+    @settings(max_examples=3000, deadline=None)
+    @given(value=st.floats(allow_nan=False, allow_infinity=False))
+    def test_a_float_is_read_as_its_decimal_of_15_digits(self, value):
+        """Any float is decided on as the decimal of its 15 significant digits (IEEE 754
+        DBL_DIG = 15, from memory), worked here by the fractions module from that text."""
+        from verirun.metrology.exact import as_written
+
+        assert as_written(value) == Fraction(f"{value:.15g}")
+
+    def test_examples(self):
+        """0.7 is seven tenths exactly; 800 × 1e-3 is four fifths; -0.0 is zero."""
+        from verirun.metrology.exact import as_written
+
+        assert as_written(0.7) == Fraction(7, 10)
+        assert as_written(800 * 1e-3) == Fraction(4, 5)
+        assert as_written(-0.0) == 0
+        assert as_written(1e-300) == Fraction(1, 10**300)
