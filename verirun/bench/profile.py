@@ -324,12 +324,13 @@ def load_profile(name_or_path: str | Path) -> DriverProfile:
         or text.endswith((".yaml", ".yml"))
     ):
         return _load(Path(name_or_path))
-    if text not in packaged_profiles():
+    packaged = files("verirun.bench") / "profiles" / f"{text}.yaml"
+    if not packaged.is_file():
         raise ProcedureError(
             f"no packaged driver profile named {text!r} (there are:"
             f" {', '.join(packaged_profiles())}); give a path to a profile file instead"
         )
-    with as_file(files("verirun.bench") / "profiles" / f"{text}.yaml") as path:
+    with as_file(packaged) as path:
         return _load(path)
 
 
