@@ -150,7 +150,7 @@ class _Statement:
         """The verdict of the exact ``reading`` with the acceptance ``zone`` of the tolerance
         limits ``low`` .. ``high``: a binary rule passes it within the zone, limits included,
         and fails it otherwise."""
-        return "pass" if zone.low <= reading <= zone.high else "fail"
+        return "pass" if zone.contains(reading) else "fail"
 
     def decide(
         self, *, low: Exact, high: Exact, reading: Exact, expanded: Exact, k: float = 2.0
@@ -259,7 +259,7 @@ class NonBinaryStatement(GuardedAcceptance):
         """One of the four statements for the exact ``reading``; each boundary belongs to the
         more favourable zone."""
         w = zone.guard
-        if zone.low <= reading <= zone.high:
+        if zone.contains(reading):
             return "pass"
         if low <= reading <= high:
             return "conditional-pass"
