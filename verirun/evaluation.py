@@ -1,8 +1,10 @@
 """Evaluate one reading against its test point: error, percent of tolerance and verdict.
 
 A thin join of the plan (which carries each point's window) and the pure metrology functions;
-the engine, the run record and ``verirun window`` all evaluate through here so that a verdict is
-worked out one way only.
+the engine, the console, the run record and ``verirun window`` all evaluate through here so that
+a verdict is worked out one way only. The engine counts each reading's :func:`verdict` as it is
+taken (the rule's statement alone); the console shows, and the record holds, its whole
+:func:`evaluate` (the same statement, with the error, U, TUR and limits beside it).
 """
 
 from __future__ import annotations
