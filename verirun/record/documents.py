@@ -998,6 +998,14 @@ def record_document(record: Record) -> dict:
     return record.model_dump(by_alias=True, exclude_unset=True)
 
 
+def part_document(part: Any) -> Any:
+    """A part of a record (or any value one holds) as :func:`record_document` writes it within
+    the whole: a model with keys as written and no key it did not hold; any other value as it is."""
+    if isinstance(part, BaseModel):
+        return part.model_dump(by_alias=True, exclude_unset=True)
+    return part
+
+
 def record_schema() -> dict:
     """The JSON Schema of a run record."""
     return _RECORD_ADAPTER.json_schema(by_alias=True)

@@ -341,10 +341,33 @@ def write_record(record, path: str | Path) -> Path:
         If it cannot be written; the previous record, if any, is kept and no temporary is left.
     """
     if not isinstance(record, dict):
-        from verirun.record.documents import record_document
-
-        record = record_document(record)
+        return storage.write_atomic(path, _model_pieces(record))
     return storage.write_atomic(path, _record_pieces(record))
+
+
+def _model_pieces(record):
+    """The canonical compact form of the typed ``record``, as :func:`_record_pieces` writes the
+    dict :func:`~verirun.record.documents.record_document` makes of it, but made one part (and
+    one row) at a time: the dict of a long run's whole record is never held beside its model."""
+    from verirun.record.documents import part_document
+
+    names = {
+        field.alias or name: name
+        for name, field in type(record).model_fields.items()
+        if name in record.model_fields_set
+    }
+    yield "{"
+    for number, key in enumerate(sorted(names)):
+        yield ("," if number else "") + dumps(key) + ":"
+        value = getattr(record, names[key])
+        if isinstance(value, list):
+            yield "["
+            for position, item in enumerate(value):
+                yield ("," if position else "") + dumps(part_document(item))
+            yield "]"
+        else:
+            yield dumps(part_document(value))
+    yield "}\n"
 
 
 def _record_pieces(record: dict):
