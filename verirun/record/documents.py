@@ -82,7 +82,8 @@ import json
 import math
 from typing import Annotated, Any, Literal, Union, get_args
 
-from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, ValidationError
+from pydantic import BaseModel, ConfigDict, Field, Strict, TypeAdapter, ValidationError
+from pydantic.dataclasses import dataclass
 
 #: Version of the journal document layout described here (see the module's docstring).
 JOURNAL_FORMAT = 3
@@ -567,6 +568,8 @@ def journal_schema() -> dict:
 #: A number as the record writes it: an int stays an int and a float a float (so a record reads
 #: back to the same bytes); never NaN or infinite (an unbounded limit is ``None``).
 Number = Annotated[float, Field(allow_inf_nan=False)] | int
+#: A :data:`Number` checked strictly where no strict model's configuration says so.
+StrictNumber = Annotated[float, Strict(), Field(allow_inf_nan=False)] | Annotated[int, Strict()]
 #: A statement a decision rule makes about one result (ILAC-G8:09/2019 4.2.3).
 Statement = Literal["pass", "conditional-pass", "conditional-fail", "fail"]
 #: What a row shows: a statement, or that the point was skipped or not measured.
@@ -666,14 +669,23 @@ class RangeEntry(Part):
 # --- a row ------------------------------------------------------------------------------------
 
 
-class BudgetTerm(Part):
+@dataclass(frozen=True, slots=True, config=ConfigDict(extra="forbid"))
+class BudgetTerm:
     """One contribution to the uncertainty of a point (JCGM 100 5.1)."""
 
-    name: str = Field(description="what contributes (the calibrator, readability, ...)")
-    u: Number = Field(description="its standard uncertainty, in the unit of its domain")
+    # A validated, frozen dataclass with slots rather than a model: every row holds a few, and
+    # a model keeps a set of the names of its fields given, with its own dict, in each one
+    # (about 1 KB a term). Every field is always given, so there is nothing for that set to
+    # tell; each field is strict, as a part's are.
+    name: Annotated[str, Strict()] = Field(
+        description="what contributes (the calibrator, readability, ...)"
+    )
+    u: StrictNumber = Field(description="its standard uncertainty, in the unit of its domain")
     domain: Domain = Field(description="the domain it is stated in: value or deflection")
-    distribution: str = Field(description="its assumed distribution (normal, rectangular, ...)")
-    contribution: Number = Field(description="its contribution to the combined uncertainty")
+    distribution: Annotated[str, Strict()] = Field(
+        description="its assumed distribution (normal, rectangular, ...)"
+    )
+    contribution: StrictNumber = Field(description="its contribution to the combined uncertainty")
 
 
 class Reported(Part):
