@@ -27,7 +27,7 @@ from verirun.interrupts import deferred_signals, forget_kill_requests, kill_requ
 from verirun.locks import calibrator_lock, run_lock
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.procedure.plan import plan
-from verirun.record.build import build_record, build_record_model
+from verirun.record.build import build_record, close_journal
 from verirun.record.documents import (
     AsFound,
     BenchAsRun,
@@ -640,13 +640,10 @@ def close_run(run_dir: Path) -> dict | None:
 def close_record(run_dir: Path) -> Record | None:
     """Build and write the run record of the journal in ``run_dir`` (``None`` if it is empty),
     and return it typed; ``record.json`` is written from the model, a row at a time."""
-    # Only the parsed lines are kept for the build; the typed models read_journal made while
-    # checking them are let go at once (a long run's journal is large).
-    documents = read_journal(run_dir / JOURNAL_NAME).documents
-    if not documents:
-        return None
-    record = build_record_model(documents, str(run_dir / JOURNAL_NAME))
-    write_record(record, run_dir / RECORD_NAME)
+    # The journal's lines are held by the build alone (a long run's journal is large).
+    record = close_journal(run_dir / JOURNAL_NAME)
+    if record is not None:
+        write_record(record, run_dir / RECORD_NAME)
     return record
 
 

@@ -7,6 +7,7 @@ the same journal are the same.
 
 from __future__ import annotations
 
+import contextlib
 import functools
 
 from pydantic import ValidationError
@@ -26,7 +27,14 @@ from verirun.record.documents import (
     validation_text,
     within_limits,
 )
-from verirun.record.journal import RECORD_FORMAT, dumps, json_number, line_hash, verify_chain
+from verirun.record.journal import (
+    RECORD_FORMAT,
+    dumps,
+    json_number,
+    line_hash,
+    read_journal,
+    verify_chain,
+)
 
 
 @functools.lru_cache(maxsize=16)
@@ -70,8 +78,33 @@ def build_record_model(documents: list[dict], source: str = "journal") -> Record
     RecordError
         If the journal is not one verirun writes, saying where.
     """
-    try:
+    with _not_fitting(source):
         return _build(documents, source)
+
+
+def close_journal(path) -> Record | None:
+    """The run record of the journal at ``path`` (``None`` when it holds no line), as
+    :func:`build_record_model` builds it; the journal's parsed lines are held by the build
+    alone, so each is let go once its row is made (a long run's lines are megabytes).
+
+    Raises
+    ------
+    RecordError
+        If the journal cannot be read, or is not one verirun writes, saying where.
+    """
+    source = str(path)
+    with _not_fitting(source):
+        # The list goes straight to the build: no frame here keeps it (nor the typed models
+        # that checked each line, which the build does not read).
+        return _build(read_journal(path, models=False).documents, source, empty=True)
+
+
+@contextlib.contextmanager
+def _not_fitting(source: str):
+    """Journal documents that each passed their own checks, yet do not close into a record,
+    reported as a :class:`RecordError` naming ``source``."""
+    try:
+        yield
     except RecordError:
         raise
     except ValidationError as exc:
@@ -87,10 +120,14 @@ def build_record_model(documents: list[dict], source: str = "journal") -> Record
         ) from None
 
 
-def _build(documents: list[dict], source: str = "journal") -> Record:
+def _build(documents: list[dict], source: str = "journal", *, empty: bool = False) -> Record | None:
     """The run record of a journal's ``documents``: the same code path for the first closing of
     a run, a resume, an amendment and a rebuild (every reading is evaluated here, from the
     procedure and bench the journal holds).
+
+    Once the confirmed entries are taken, the list is let go here, and each entry once its row
+    is made: when no caller holds the list (:func:`close_journal`), the documents are freed as
+    the rows take their place.
 
     Raises
     ------
@@ -98,6 +135,8 @@ def _build(documents: list[dict], source: str = "journal") -> Record:
         If the journal does not start with a start document, its chain is broken, or it names
         points its own procedure does not have.
     """
+    if not documents and empty:  # a journal with no whole line closes into no record
+        return None
     if not documents or documents[0].get("kind") != "start":
         raise RecordError(f"{source}: the journal does not begin with a start document")
     problems = verify_chain(documents, source)
@@ -120,8 +159,10 @@ def _build(documents: list[dict], source: str = "journal") -> Record:
     entries, corrections, notes, stop, revision, number = _entries(
         documents, planned, journal_format, source, after
     )
+    last_line, count = line_hash(dumps(documents[-1])), len(documents)
+    del documents
     rows = [
-        _row(point, entries.get(point.index), journal_format, corrections.get(point.index))
+        _row(point, entries.pop(point.index, None), journal_format, corrections.get(point.index))
         for point in planned
     ]
     summary = summarise([row_judged(row) for row in rows], procedure.rule.name)
@@ -139,8 +180,8 @@ def _build(documents: list[dict], source: str = "journal") -> Record:
                 "reason": stop.get("reason") if stop else None,
                 "operator": start["operator"],
                 "software": start["software"],
-                "journal_sha256_last": line_hash(dumps(documents[-1])),
-                "documents": len(documents),
+                "journal_sha256_last": last_line,
+                "documents": count,
                 "revision": revision,
                 **({"certificate_number": number} if number is not None else {}),
             },

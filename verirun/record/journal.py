@@ -214,10 +214,12 @@ class JournalRead:
         return first if isinstance(first, Start) else None
 
 
-def read_journal(path: str | Path) -> JournalRead:
+def read_journal(path: str | Path, *, models: bool = True) -> JournalRead:
     """Read a journal; a torn (unterminated, unparsable) last line is dropped and reported.
 
-    Every line is validated against its kind's model once, here; the models are kept.
+    Every line is validated against its kind's model once, here; the models are kept, unless
+    ``models`` is false (for a reader of the parsed lines alone: each model is let go once it
+    has checked its line, rather than a long run's thousands held at once).
 
     Raises
     ------
@@ -241,20 +243,22 @@ def read_journal(path: str | Path) -> JournalRead:
             json.loads(lines[-1])
         except ValueError:
             torn = lines.pop()
-    docs, models = [], []
+    docs, kept = [], []
     for number, line in enumerate(lines, start=1):
         try:
             doc = parse_json(line)
         except ValueError as exc:
             raise RecordError(f"{path}:{number}: not a journal document ({exc})") from None
         try:
-            models.append(read_document(doc))
+            model = read_document(doc)
         except ValueError as exc:
             raise RecordError(
                 f"{path}:{number}: not a journal document verirun writes: {exc}"
             ) from None
+        if models:
+            kept.append(model)
         docs.append(doc)
-    return JournalRead(documents=docs, models=tuple(models), torn_line=torn)
+    return JournalRead(documents=docs, models=tuple(kept), torn_line=torn)
 
 
 def read_start(path: str | Path) -> Start | None:
