@@ -21,6 +21,7 @@ from verirun.record.documents import (
     PointResult,
     RangeEntry,
     Record,
+    Reported,
     validate_record,
     validation_text,
 )
@@ -240,7 +241,7 @@ def printed(row: PointResult) -> Printed:
     from verirun.units import format_limit, row_exponent, typed_decimal
 
     texts = row.reported
-    if texts is not None and texts.low is not None:
+    if isinstance(texts, Reported) and texts.low is not None:
         return Printed(
             low=texts.low,
             high=texts.high,

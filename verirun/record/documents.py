@@ -52,7 +52,7 @@ part                     what it is
 :class:`DecisionRule`    the decision rule, in words and as the procedure states it
 :class:`RangeEntry`      one range of the meter, as the procedure describes it
 :class:`PointResult`     one row per test point: limits, reading, error, U, TUR, verdict
-:class:`Reported`        a row's numbers as printed
+:class:`Reported`        a row's numbers as printed (:class:`EarlierReported` in formats 1 and 2)
 :class:`BudgetTerm`      one contribution to a point's uncertainty
 :class:`CorrectionEntry` a reading corrected after the run (a new revision)
 :class:`NoteEntry`       a note for a point or for the run
@@ -688,38 +688,53 @@ class BudgetTerm:
     contribution: StrictNumber = Field(description="its contribution to the combined uncertainty")
 
 
-class Reported(Part):
-    """A measured row's numbers as printed (see :func:`verirun.evaluation.shown`), under one SI
-    prefix. Records of formats 1 and 2 hold ``reading``, ``error``, ``U`` and ``U_spec`` only."""
+#: A text as a record writes it, checked strictly where no strict model's configuration says so.
+Text = Annotated[str, Strict()]
 
-    reading: str | None = Field(description="the reading as typed, its digits kept")
-    error: str = Field(description="the error, rounded to U's last digit, in the error's unit")
-    U_spec: str = Field(description="U (k = 2) in the error's unit, two significant digits")
-    U: str | None = Field(
+
+@dataclass(frozen=True, slots=True, config=ConfigDict(extra="forbid"))
+class Reported:
+    """A measured row's numbers as printed (see :func:`verirun.evaluation.shown`), under one SI
+    prefix: every key, in records of format 3 (records of formats 1 and 2 hold
+    :class:`EarlierReported`).
+
+    A validated, frozen dataclass with slots, as :class:`BudgetTerm` is: every measured row holds
+    one, and every field is always given."""
+
+    reading: Text | None = Field(description="the reading as typed, its digits kept")
+    error: Text = Field(description="the error, rounded to U's last digit, in the error's unit")
+    U_spec: Text = Field(description="U (k = 2) in the error's unit, two significant digits")
+    U: Text | None = Field(
         description="U in the range's unit where the tolerance is stated on the value, else none"
     )
-    unit: str | None = Field(default=None, description="the row's prefixed unit (format 3)")
-    nominal: str | None = Field(default=None, description="the nominal value (format 3)")
-    low: str | None = Field(default=None, description="the lower tolerance limit (format 3)")
-    high: str | None = Field(default=None, description="the upper tolerance limit (format 3)")
-    accept_low: str | None = Field(
-        default=None,
-        description="lower acceptance limit; none when the rule leaves none (format 3)",
+    unit: Text | None = Field(description="the row's prefixed unit")
+    nominal: Text | None = Field(description="the nominal value")
+    low: Text | None = Field(description="the lower tolerance limit")
+    high: Text | None = Field(description="the upper tolerance limit")
+    accept_low: Text | None = Field(
+        description="lower acceptance limit; none when the rule leaves none"
     )
-    accept_high: str | None = Field(
-        default=None,
-        description="upper acceptance limit; none when the rule leaves none (format 3)",
+    accept_high: Text | None = Field(
+        description="upper acceptance limit; none when the rule leaves none"
     )
-    outer_low: str | None = Field(
-        default=None, description="non-binary rule: the limit w below the tolerance (format 3)"
-    )
-    outer_high: str | None = Field(
-        default=None, description="non-binary rule: the limit w above the tolerance (format 3)"
-    )
-    interval: str | None = Field(
-        default=None,
+    outer_low: Text | None = Field(description="non-binary rule: the limit w below the tolerance")
+    outer_high: Text | None = Field(description="non-binary rule: the limit w above the tolerance")
+    interval: Text | None = Field(
         description="the reading's coverage interval in the range's unit, as the scale law maps"
-        " it (format 3; none when U is zero)",
+        " it (none when U is zero)",
+    )
+
+
+@dataclass(frozen=True, slots=True, config=ConfigDict(extra="forbid"))
+class EarlierReported:
+    """A measured row's numbers as printed, in records of formats 1 and 2: the reading, the
+    error and U only (see :class:`Reported`)."""
+
+    reading: Text | None = Field(description="the reading as typed, its digits kept")
+    error: Text = Field(description="the error, rounded to U's last digit, in the error's unit")
+    U_spec: Text = Field(description="U (k = 2) in the error's unit, two significant digits")
+    U: Text | None = Field(
+        description="U in the range's unit where the tolerance is stated on the value, else none"
     )
 
 
@@ -795,7 +810,9 @@ class PointResult(Part):
         description="upper acceptance limit as percent of tolerance, where the rule moves it"
     )
     budget: list[BudgetTerm] = Field(description="the uncertainty budget (empty: not measured)")
-    reported: Reported | None = Field(description="the numbers as printed (none: not measured)")
+    reported: Reported | EarlierReported | None = Field(
+        description="the numbers as printed (none: not measured; formats 1 and 2: fewer of them)"
+    )
     within_tolerance: bool | None = Field(
         default=None,
         description="whether the reading lies within the tolerance limits, limits included"
@@ -988,7 +1005,7 @@ def record_problem(data: Any) -> str | None:
     return None
 
 
-_MEMBERS = {"float", "int", "str", "bool"}
+_MEMBERS = {"float", "int", "str", "bool", "Reported", "EarlierReported"}
 
 
 def validation_text(exc: ValidationError) -> str:
