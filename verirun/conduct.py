@@ -27,7 +27,7 @@ from verirun.interrupts import deferred_signals, forget_kill_requests, kill_requ
 from verirun.locks import calibrator_lock, run_lock
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.procedure.plan import plan
-from verirun.record.build import build_record, close_journal
+from verirun.record.build import build_record, close_journal, journaled_plan
 from verirun.record.documents import (
     AsFound,
     BenchAsRun,
@@ -177,7 +177,8 @@ def execute(
         if calibrator is not None
         else load_profile(bench.file.calibrator.profile)
     )
-    points = plan(procedure, bench)
+    # Planned from the texts the run journals, as its closing plans: one plan for both.
+    points = journaled_plan(procedure, bench)
     check_readings(readings, points)
     preflight.check(points, bench, profile, today=clock.now().date())
     storage.make_folder(runs_dir)

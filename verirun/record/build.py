@@ -57,6 +57,19 @@ def _planned(
     return procedure, bench, tuple(plan(procedure, bench))
 
 
+def journaled_plan(procedure: Procedure, bench: Bench) -> tuple[TestPoint, ...]:
+    """The plan of ``procedure`` on ``bench`` as the record's build makes it: from the texts a
+    run journals of them. A run planned so is closed with the very plan it ran (the build finds
+    it among the last few it made), held once rather than twice for a long run.
+
+    Raises
+    ------
+    ProcedureError
+        If the texts do not load (as the build would find).
+    """
+    return _planned(procedure.text, procedure.source, bench.text, bench.source)[2]
+
+
 def build_record(documents: list[dict], source: str = "journal") -> dict:
     """The run record of a journal's ``documents``, as the dict ``record.json`` holds (see
     :func:`build_record_model`).
