@@ -24,6 +24,7 @@ from verirun.record.documents import (
     PointResult,
     Record,
     record_document,
+    validate_row,
     validation_text,
     within_limits,
 )
@@ -594,9 +595,9 @@ def _row(
         "reported": None,
     }
     if doc is None:
-        return PointResult.model_validate({**row, "verdict": "not-measured", **extra})
+        return validate_row({**row, "verdict": "not-measured", **extra})
     if doc["kind"] not in ("observation", "correction"):
-        return PointResult.model_validate(
+        return validate_row(
             {
                 **row,
                 "verdict": "skipped",
@@ -608,7 +609,7 @@ def _row(
     reading = doc["reading"]
     result = evaluate(point, reading)
     interval = result.interval
-    return PointResult.model_validate(
+    return validate_row(
         {
             **row,
             "verdict": result.verdict,
