@@ -27,15 +27,17 @@ from verirun.interrupts import deferred_signals, forget_kill_requests, kill_requ
 from verirun.locks import calibrator_lock, run_lock
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.procedure.plan import plan
-from verirun.record.build import build_record
+from verirun.record.build import build_record, close_journal, journaled_plan
 from verirun.record.documents import (
     AsFound,
     BenchAsRun,
     ProcedureAsRun,
+    Record,
     Renewal,
     Start,
     as_journaled,
     compose,
+    record_document,
 )
 from verirun.record.journal import (
     JOURNAL_NAME,
@@ -175,7 +177,8 @@ def execute(
         if calibrator is not None
         else load_profile(bench.file.calibrator.profile)
     )
-    points = plan(procedure, bench)
+    # Planned from the texts the run journals, as its closing plans: one plan for both.
+    points = journaled_plan(procedure, bench)
     check_readings(readings, points)
     preflight.check(points, bench, profile, today=clock.now().date())
     storage.make_folder(runs_dir)
@@ -302,12 +305,18 @@ def _finish(run_dir: Path, reports_dir: Path, *, outcome=None, console=None) -> 
     try:
         with _sigterm_as_interrupt():
             with deferred_signals():
-                record = close_run(run_dir)
+                record = close_record(run_dir)
+            # Typed as closing built it, unless the register numbered the run (then a dict).
             record, issuable = after_close(
                 run_dir, record, warn=console.warn if console is not None else None
             )
-            complete = record is not None and record["run"]["status"] == "complete" and issuable
+            if isinstance(record, Record):
+                complete = record.run.status == "complete" and issuable
+            else:
+                complete = record is not None and record["run"]["status"] == "complete" and issuable
             certificate = write_certificate(record, reports_dir) if complete else None
+            if isinstance(record, Record):  # made once the certificate is written, not beside it
+                record = record_document(record)
     except BaseException as exc:
         exc.run_dir = run_dir  # type: ignore[attr-defined]
         raise
@@ -623,14 +632,19 @@ def _same_file(
 
 
 def close_run(run_dir: Path) -> dict | None:
-    """Build and write the run record of the journal in ``run_dir`` (``None`` if it is empty)."""
-    # Only the parsed lines are kept for the build; the typed models read_journal made while
-    # checking them are let go at once (a long run's journal is large).
-    documents = read_journal(run_dir / JOURNAL_NAME).documents
-    if not documents:
-        return None
-    record = build_record(documents, str(run_dir / JOURNAL_NAME))
-    write_record(record, run_dir / RECORD_NAME)
+    """Build and write the run record of the journal in ``run_dir`` (``None`` if it is empty),
+    and return it as the dict ``record.json`` holds (see :func:`close_record`)."""
+    record = close_record(run_dir)
+    return None if record is None else record_document(record)
+
+
+def close_record(run_dir: Path) -> Record | None:
+    """Build and write the run record of the journal in ``run_dir`` (``None`` if it is empty),
+    and return it typed; ``record.json`` is written from the model, a row at a time."""
+    # The journal's lines are held by the build alone (a long run's journal is large).
+    record = close_journal(run_dir / JOURNAL_NAME)
+    if record is not None:
+        write_record(record, run_dir / RECORD_NAME)
     return record
 
 

@@ -10,7 +10,7 @@ import xml.etree.ElementTree as ET
 import pytest
 
 from verirun.certificate import charts
-from verirun.record.documents import PointResult, RangeEntry
+from verirun.record.documents import PointResult, RangeEntry, validate_row
 
 SVG = "{http://www.w3.org/2000/svg}"
 
@@ -131,7 +131,7 @@ def arc_chart(range_info: dict, rows: list[dict]) -> str:
 
 
 def _typed(row: dict) -> PointResult:
-    return PointResult.model_validate({**ROW_DEFAULTS, **row})
+    return validate_row({**ROW_DEFAULTS, **row})
 
 
 def parse(svg: str) -> ET.Element:

@@ -284,7 +284,7 @@ def _measured(frame: _Frame, index: int, row: PointResult) -> list[str]:
 
 def _not_measured(frame: _Frame, index: int, row: PointResult) -> str:
     """A grey dash on the zero line where a point was skipped or not measured."""
-    reason = row.skip_reason
+    reason = row.reason_skipped()
     tip = _esc(f"{row.stimulus}: {row.verdict}" + (f" ({reason})" if reason else ""))
     return (
         f'<text class="no-reading" x="{_num(frame.x(index))}" y="{_num(frame.y(0.0) + 4)}"'

@@ -147,7 +147,7 @@ def _is_change(record: Record, note: NoteEntry) -> bool:
         return False
     if note.point is None:
         return any(r.time == note.time for r in record.as_found_revisions or [])
-    return any(row.key == note.point and row.correction is not None for row in record.points)
+    return any(row.key == note.point and row.corrected() is not None for row in record.points)
 
 
 @dataclass(frozen=True, slots=True)

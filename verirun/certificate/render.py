@@ -21,6 +21,7 @@ from verirun.record.documents import (
     PointResult,
     RangeEntry,
     Record,
+    Reported,
     validate_record,
     validation_text,
 )
@@ -208,12 +209,28 @@ class ResultRow:
 
 @dataclass(frozen=True, slots=True)
 class RangeResults:
-    """One range of a certificate's results: the range, its rows and its charts."""
+    """One range of a certificate's results: the range, its rows and its charts.
+
+    Each chart is drawn when the template reads it, not kept: a long run's charts are megabytes
+    of SVG, and the certificate is written as it is rendered (one range's chart held at a time,
+    not every range's at once)."""
 
     range: RangeEntry
     rows: tuple[ResultRow, ...]
-    error_svg: Markup
-    arc_svg: Markup
+
+    @property
+    def error_svg(self) -> Markup:
+        """The range's error chart (see :func:`~verirun.certificate.charts.error_chart`)."""
+        from verirun.certificate.charts import error_chart
+
+        return Markup(error_chart(self.range, [row.point for row in self.rows]))
+
+    @property
+    def arc_svg(self) -> Markup:
+        """The range's scale chart (see :func:`~verirun.certificate.charts.arc_chart`)."""
+        from verirun.certificate.charts import arc_chart
+
+        return Markup(arc_chart(self.range, [row.point for row in self.rows]))
 
 
 def printed(row: PointResult) -> Printed:
@@ -224,7 +241,7 @@ def printed(row: PointResult) -> Printed:
     from verirun.units import format_limit, row_exponent, typed_decimal
 
     texts = row.reported
-    if texts is not None and texts.low is not None:
+    if isinstance(texts, Reported) and texts.low is not None:
         return Printed(
             low=texts.low,
             high=texts.high,
@@ -262,9 +279,7 @@ def printed(row: PointResult) -> Printed:
 
 
 def _ranges(ranges: list[RangeEntry], points: list[PointResult]) -> list[RangeResults]:
-    """Each range of the record with its rows and its charts, in the procedure's order."""
-    from verirun.certificate.charts import arc_chart, error_chart
-
+    """Each range of the record with its rows (and its charts), in the procedure's order."""
     by_range: dict[str, list[PointResult]] = {}
     for row in sorted(points, key=lambda r: r.index):
         by_range.setdefault(row.range, []).append(row)
@@ -275,8 +290,6 @@ def _ranges(ranges: list[RangeEntry], points: list[PointResult]) -> list[RangeRe
             RangeResults(
                 range=rng,
                 rows=tuple(ResultRow(point=row, printed=printed(row)) for row in rows),
-                error_svg=Markup(error_chart(rng, rows)),
-                arc_svg=Markup(arc_chart(rng, rows)),
             )
         )
     return out

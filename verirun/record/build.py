@@ -7,6 +7,7 @@ the same journal are the same.
 
 from __future__ import annotations
 
+import contextlib
 import functools
 
 from pydantic import ValidationError
@@ -23,10 +24,18 @@ from verirun.record.documents import (
     PointResult,
     Record,
     record_document,
+    validate_row,
     validation_text,
     within_limits,
 )
-from verirun.record.journal import RECORD_FORMAT, dumps, json_number, line_hash, verify_chain
+from verirun.record.journal import (
+    RECORD_FORMAT,
+    dumps,
+    json_number,
+    line_hash,
+    read_journal,
+    verify_chain,
+)
 
 
 @functools.lru_cache(maxsize=16)
@@ -47,6 +56,19 @@ def _planned(
     procedure = load_procedure_text(procedure_text, procedure_source)
     bench = load_bench_text(bench_text, bench_source)
     return procedure, bench, tuple(plan(procedure, bench))
+
+
+def journaled_plan(procedure: Procedure, bench: Bench) -> tuple[TestPoint, ...]:
+    """The plan of ``procedure`` on ``bench`` as the record's build makes it: from the texts a
+    run journals of them. A run planned so is closed with the very plan it ran (the build finds
+    it among the last few it made), held once rather than twice for a long run.
+
+    Raises
+    ------
+    ProcedureError
+        If the texts do not load (as the build would find).
+    """
+    return _planned(procedure.text, procedure.source, bench.text, bench.source)[2]
 
 
 def build_record(documents: list[dict], source: str = "journal") -> dict:
@@ -70,8 +92,33 @@ def build_record_model(documents: list[dict], source: str = "journal") -> Record
     RecordError
         If the journal is not one verirun writes, saying where.
     """
-    try:
+    with _not_fitting(source):
         return _build(documents, source)
+
+
+def close_journal(path) -> Record | None:
+    """The run record of the journal at ``path`` (``None`` when it holds no line), as
+    :func:`build_record_model` builds it; the journal's parsed lines are held by the build
+    alone, so each is let go once its row is made (a long run's lines are megabytes).
+
+    Raises
+    ------
+    RecordError
+        If the journal cannot be read, or is not one verirun writes, saying where.
+    """
+    source = str(path)
+    with _not_fitting(source):
+        # The list goes straight to the build: no frame here keeps it (nor the typed models
+        # that checked each line, which the build does not read).
+        return _build(read_journal(path, models=False).documents, source, empty=True)
+
+
+@contextlib.contextmanager
+def _not_fitting(source: str):
+    """Journal documents that each passed their own checks, yet do not close into a record,
+    reported as a :class:`RecordError` naming ``source``."""
+    try:
+        yield
     except RecordError:
         raise
     except ValidationError as exc:
@@ -87,10 +134,14 @@ def build_record_model(documents: list[dict], source: str = "journal") -> Record
         ) from None
 
 
-def _build(documents: list[dict], source: str = "journal") -> Record:
+def _build(documents: list[dict], source: str = "journal", *, empty: bool = False) -> Record | None:
     """The run record of a journal's ``documents``: the same code path for the first closing of
     a run, a resume, an amendment and a rebuild (every reading is evaluated here, from the
     procedure and bench the journal holds).
+
+    Once the confirmed entries are taken, the list is let go here, and each entry once its row
+    is made: when no caller holds the list (:func:`close_journal`), the documents are freed as
+    the rows take their place.
 
     Raises
     ------
@@ -98,6 +149,8 @@ def _build(documents: list[dict], source: str = "journal") -> Record:
         If the journal does not start with a start document, its chain is broken, or it names
         points its own procedure does not have.
     """
+    if not documents and empty:  # a journal with no whole line closes into no record
+        return None
     if not documents or documents[0].get("kind") != "start":
         raise RecordError(f"{source}: the journal does not begin with a start document")
     problems = verify_chain(documents, source)
@@ -120,8 +173,10 @@ def _build(documents: list[dict], source: str = "journal") -> Record:
     entries, corrections, notes, stop, revision, number = _entries(
         documents, planned, journal_format, source, after
     )
+    last_line, count = line_hash(dumps(documents[-1])), len(documents)
+    del documents
     rows = [
-        _row(point, entries.get(point.index), journal_format, corrections.get(point.index))
+        _row(point, entries.pop(point.index, None), journal_format, corrections.get(point.index))
         for point in planned
     ]
     summary = summarise([row_judged(row) for row in rows], procedure.rule.name)
@@ -139,8 +194,8 @@ def _build(documents: list[dict], source: str = "journal") -> Record:
                 "reason": stop.get("reason") if stop else None,
                 "operator": start["operator"],
                 "software": start["software"],
-                "journal_sha256_last": line_hash(dumps(documents[-1])),
-                "documents": len(documents),
+                "journal_sha256_last": last_line,
+                "documents": count,
                 "revision": revision,
                 **({"certificate_number": number} if number is not None else {}),
             },
@@ -540,9 +595,9 @@ def _row(
         "reported": None,
     }
     if doc is None:
-        return PointResult.model_validate({**row, "verdict": "not-measured", **extra})
+        return validate_row({**row, "verdict": "not-measured", **extra})
     if doc["kind"] not in ("observation", "correction"):
-        return PointResult.model_validate(
+        return validate_row(
             {
                 **row,
                 "verdict": "skipped",
@@ -554,7 +609,7 @@ def _row(
     reading = doc["reading"]
     result = evaluate(point, reading)
     interval = result.interval
-    return PointResult.model_validate(
+    return validate_row(
         {
             **row,
             "verdict": result.verdict,

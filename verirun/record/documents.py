@@ -52,7 +52,7 @@ part                     what it is
 :class:`DecisionRule`    the decision rule, in words and as the procedure states it
 :class:`RangeEntry`      one range of the meter, as the procedure describes it
 :class:`PointResult`     one row per test point: limits, reading, error, U, TUR, verdict
-:class:`Reported`        a row's numbers as printed
+:class:`Reported`        a row's numbers as printed (:class:`EarlierReported` in formats 1 and 2)
 :class:`BudgetTerm`      one contribution to a point's uncertainty
 :class:`CorrectionEntry` a reading corrected after the run (a new revision)
 :class:`NoteEntry`       a note for a point or for the run
@@ -78,11 +78,14 @@ Records are checked against their models when read (:func:`validate_record`, by
 
 from __future__ import annotations
 
+import dataclasses
+import functools
 import json
 import math
 from typing import Annotated, Any, Literal, Union, get_args
 
-from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, ValidationError
+from pydantic import MISSING, BaseModel, ConfigDict, Field, Strict, TypeAdapter, ValidationError
+from pydantic.dataclasses import dataclass
 
 #: Version of the journal document layout described here (see the module's docstring).
 JOURNAL_FORMAT = 3
@@ -567,6 +570,8 @@ def journal_schema() -> dict:
 #: A number as the record writes it: an int stays an int and a float a float (so a record reads
 #: back to the same bytes); never NaN or infinite (an unbounded limit is ``None``).
 Number = Annotated[float, Field(allow_inf_nan=False)] | int
+#: A :data:`Number` checked strictly where no strict model's configuration says so.
+StrictNumber = Annotated[float, Strict(), Field(allow_inf_nan=False)] | Annotated[int, Strict()]
 #: A statement a decision rule makes about one result (ILAC-G8:09/2019 4.2.3).
 Statement = Literal["pass", "conditional-pass", "conditional-fail", "fail"]
 #: What a row shows: a statement, or that the point was skipped or not measured.
@@ -666,48 +671,72 @@ class RangeEntry(Part):
 # --- a row ------------------------------------------------------------------------------------
 
 
-class BudgetTerm(Part):
+@dataclass(frozen=True, slots=True, config=ConfigDict(extra="forbid"))
+class BudgetTerm:
     """One contribution to the uncertainty of a point (JCGM 100 5.1)."""
 
-    name: str = Field(description="what contributes (the calibrator, readability, ...)")
-    u: Number = Field(description="its standard uncertainty, in the unit of its domain")
+    # A validated, frozen dataclass with slots rather than a model: every row holds a few, and
+    # a model keeps a set of the names of its fields given, with its own dict, in each one
+    # (about 1 KB a term). Every field is always given, so there is nothing for that set to
+    # tell; each field is strict, as a part's are.
+    name: Annotated[str, Strict()] = Field(
+        description="what contributes (the calibrator, readability, ...)"
+    )
+    u: StrictNumber = Field(description="its standard uncertainty, in the unit of its domain")
     domain: Domain = Field(description="the domain it is stated in: value or deflection")
-    distribution: str = Field(description="its assumed distribution (normal, rectangular, ...)")
-    contribution: Number = Field(description="its contribution to the combined uncertainty")
+    distribution: Annotated[str, Strict()] = Field(
+        description="its assumed distribution (normal, rectangular, ...)"
+    )
+    contribution: StrictNumber = Field(description="its contribution to the combined uncertainty")
 
 
-class Reported(Part):
+#: A text as a record writes it, checked strictly where no strict model's configuration says so.
+Text = Annotated[str, Strict()]
+
+
+@dataclass(frozen=True, slots=True, config=ConfigDict(extra="forbid"))
+class Reported:
     """A measured row's numbers as printed (see :func:`verirun.evaluation.shown`), under one SI
-    prefix. Records of formats 1 and 2 hold ``reading``, ``error``, ``U`` and ``U_spec`` only."""
+    prefix: every key, in records of format 3 (records of formats 1 and 2 hold
+    :class:`EarlierReported`).
 
-    reading: str | None = Field(description="the reading as typed, its digits kept")
-    error: str = Field(description="the error, rounded to U's last digit, in the error's unit")
-    U_spec: str = Field(description="U (k = 2) in the error's unit, two significant digits")
-    U: str | None = Field(
+    A validated, frozen dataclass with slots, as :class:`BudgetTerm` is: every measured row holds
+    one, and every field is always given."""
+
+    reading: Text | None = Field(description="the reading as typed, its digits kept")
+    error: Text = Field(description="the error, rounded to U's last digit, in the error's unit")
+    U_spec: Text = Field(description="U (k = 2) in the error's unit, two significant digits")
+    U: Text | None = Field(
         description="U in the range's unit where the tolerance is stated on the value, else none"
     )
-    unit: str | None = Field(default=None, description="the row's prefixed unit (format 3)")
-    nominal: str | None = Field(default=None, description="the nominal value (format 3)")
-    low: str | None = Field(default=None, description="the lower tolerance limit (format 3)")
-    high: str | None = Field(default=None, description="the upper tolerance limit (format 3)")
-    accept_low: str | None = Field(
-        default=None,
-        description="lower acceptance limit; none when the rule leaves none (format 3)",
+    unit: Text | None = Field(description="the row's prefixed unit")
+    nominal: Text | None = Field(description="the nominal value")
+    low: Text | None = Field(description="the lower tolerance limit")
+    high: Text | None = Field(description="the upper tolerance limit")
+    accept_low: Text | None = Field(
+        description="lower acceptance limit; none when the rule leaves none"
     )
-    accept_high: str | None = Field(
-        default=None,
-        description="upper acceptance limit; none when the rule leaves none (format 3)",
+    accept_high: Text | None = Field(
+        description="upper acceptance limit; none when the rule leaves none"
     )
-    outer_low: str | None = Field(
-        default=None, description="non-binary rule: the limit w below the tolerance (format 3)"
-    )
-    outer_high: str | None = Field(
-        default=None, description="non-binary rule: the limit w above the tolerance (format 3)"
-    )
-    interval: str | None = Field(
-        default=None,
+    outer_low: Text | None = Field(description="non-binary rule: the limit w below the tolerance")
+    outer_high: Text | None = Field(description="non-binary rule: the limit w above the tolerance")
+    interval: Text | None = Field(
         description="the reading's coverage interval in the range's unit, as the scale law maps"
-        " it (format 3; none when U is zero)",
+        " it (none when U is zero)",
+    )
+
+
+@dataclass(frozen=True, slots=True, config=ConfigDict(extra="forbid"))
+class EarlierReported:
+    """A measured row's numbers as printed, in records of formats 1 and 2: the reading, the
+    error and U only (see :class:`Reported`)."""
+
+    reading: Text | None = Field(description="the reading as typed, its digits kept")
+    error: Text = Field(description="the error, rounded to U's last digit, in the error's unit")
+    U_spec: Text = Field(description="U (k = 2) in the error's unit, two significant digits")
+    U: Text | None = Field(
+        description="U in the range's unit where the tolerance is stated on the value, else none"
     )
 
 
@@ -723,7 +752,8 @@ class CorrectionEntry(Part):
     )
 
 
-class PointResult(Part):
+@dataclass(frozen=True, slots=True, config=ConfigDict(extra="forbid"))
+class PointResult:
     """One test point of the plan, with its result: a row of the certificate's results table.
 
     Every row holds every key up to ``reported`` (``None`` where there is nothing: an unmeasured
@@ -731,84 +761,105 @@ class PointResult(Part):
     3, ``skip_reason`` in skipped rows, ``correction`` in corrected ones.
     """
 
-    index: int = Field(ge=0, description="the step's index in the plan, from 0")
-    key: Key
-    range: str = Field(description="the range's id")
-    unit: str = Field(description="the range's unit")
-    nominal: Number = Field(description="the nominal value applied, in the range's unit")
-    frequency: Number | None = Field(description="its frequency in Hz (AC), or none")
-    stimulus: str = Field(description="what the calibrator applied, in words")
-    low: Number | None = Field(description="the lower tolerance limit (none: unbounded)")
-    high: Number | None = Field(description="the upper tolerance limit (none: unbounded)")
+    # A validated, frozen dataclass with slots, as BudgetTerm is: a record holds one row per
+    # step, and a model would keep in each a set of the names of the keys it was given (2.2 KB
+    # for a row's 34). A key a row does not hold is pydantic's MISSING (never written), not
+    # None: read those through is_within_tolerance, reason_skipped and corrected. Every field
+    # is strict, as a part's are.
+
+    index: Annotated[int, Strict()] = Field(
+        ge=0, description="the step's index in the plan, from 0"
+    )
+    key: Annotated[Key, Strict()] = Field()
+    range: Text = Field(description="the range's id")
+    unit: Text = Field(description="the range's unit")
+    nominal: StrictNumber = Field(description="the nominal value applied, in the range's unit")
+    frequency: StrictNumber | None = Field(description="its frequency in Hz (AC), or none")
+    stimulus: Text = Field(description="what the calibrator applied, in words")
+    low: StrictNumber | None = Field(description="the lower tolerance limit (none: unbounded)")
+    high: StrictNumber | None = Field(description="the upper tolerance limit (none: unbounded)")
     domain: Domain = Field(
         description="where the tolerance is stated: on the value, or along the scale (deflection)"
     )
-    half_width: Number = Field(description="the tolerance's half-width, in its domain's unit")
-    accuracy: str = Field(description="the accuracy statement that sets the tolerance")
-    limits_text: str = Field(description="the tolerance limits as printed")
+    half_width: StrictNumber = Field(description="the tolerance's half-width, in its domain's unit")
+    accuracy: Text = Field(description="the accuracy statement that sets the tolerance")
+    limits_text: Text = Field(description="the tolerance limits as printed")
     verdict: Verdict = Field(description="the statement made, or skipped, or not-measured")
-    reading: Number | None = Field(description="the reading, SI units (none: not measured)")
-    typed: str | None = Field(description="the reading exactly as typed or replayed")
-    time: Time | None = Field(description="when it was read or skipped")
-    error: Number | None = Field(description="reading minus nominal, in the error's unit")
-    error_unit: str | None = Field(
+    reading: StrictNumber | None = Field(description="the reading, SI units (none: not measured)")
+    typed: Text | None = Field(description="the reading exactly as typed or replayed")
+    time: Annotated[Time, Strict()] | None = Field(description="when it was read or skipped")
+    error: StrictNumber | None = Field(description="reading minus nominal, in the error's unit")
+    error_unit: Text | None = Field(
         description="the error's unit: the range's, or deg / % of length along the scale"
     )
-    percent_of_tolerance: Number | None = Field(
+    percent_of_tolerance: StrictNumber | None = Field(
         description="the error as percent of the tolerance's half-width (none for a zero tolerance)"
     )
-    U: Number | None = Field(
+    U: StrictNumber | None = Field(
         description="the expanded uncertainty (k = 2) in the range's unit (none: unbounded);"
         " from format 3, U as reported (JCGM 100 7.2.6)"
     )
-    U_spec: Number | None = Field(description="the expanded uncertainty in the error's unit")
-    k: Number | None = Field(description="the coverage factor")
-    tur: Number | None = Field(
+    U_spec: StrictNumber | None = Field(description="the expanded uncertainty in the error's unit")
+    k: StrictNumber | None = Field(description="the coverage factor")
+    tur: StrictNumber | None = Field(
         description="test uncertainty ratio: the tolerance's span over 2U (none: U is zero)"
     )
-    conformance: Number | None = Field(
+    conformance: StrictNumber | None = Field(
         description="probability that the true value lies within the tolerance"
     )
-    accept_low: Number | None = Field(
+    accept_low: StrictNumber | None = Field(
         description="lower acceptance limit (none: none or unbounded)"
     )
-    accept_high: Number | None = Field(
+    accept_high: StrictNumber | None = Field(
         description="upper acceptance limit (none: none or unbounded)"
     )
-    U_pct: Number | None = Field(description="U as percent of the tolerance's half-width")
-    accept_low_pct: Number | None = Field(
+    U_pct: StrictNumber | None = Field(description="U as percent of the tolerance's half-width")
+    accept_low_pct: StrictNumber | None = Field(
         description="lower acceptance limit as percent of tolerance, where the rule moves it"
     )
-    accept_high_pct: Number | None = Field(
+    accept_high_pct: StrictNumber | None = Field(
         description="upper acceptance limit as percent of tolerance, where the rule moves it"
     )
-    budget: list[BudgetTerm] = Field(description="the uncertainty budget (empty: not measured)")
-    reported: Reported | None = Field(description="the numbers as printed (none: not measured)")
-    within_tolerance: bool | None = Field(
-        default=None,
+    budget: Annotated[list[BudgetTerm], Strict()] = Field(
+        description="the uncertainty budget (empty: not measured)"
+    )
+    reported: Reported | EarlierReported | None = Field(
+        description="the numbers as printed (none: not measured; formats 1 and 2: fewer of them)"
+    )
+    within_tolerance: Annotated[bool, Strict()] | None | MISSING = Field(
+        default=MISSING,
         description="whether the reading lies within the tolerance limits, limits included"
         " (measured rows of format 3)",
     )
-    interval: list[Number | None] | None = Field(
-        default=None,
+    interval: Annotated[list[StrictNumber | None], Strict()] | None | MISSING = Field(
+        default=MISSING,
         min_length=2,
         max_length=2,
         description="the reading's coverage interval in the range's unit, low and high (none:"
         " unbounded) (measured rows of format 3)",
     )
-    skip_reason: str | None = Field(
-        default=None, description="why the operator skipped the point (skipped rows only)"
+    skip_reason: Text | None | MISSING = Field(
+        default=MISSING, description="why the operator skipped the point (skipped rows only)"
     )
-    correction: CorrectionEntry | None = Field(
-        default=None, description="the correction of its reading (corrected rows only)"
+    correction: CorrectionEntry | None | MISSING = Field(
+        default=MISSING, description="the correction of its reading (corrected rows only)"
     )
 
     def is_within_tolerance(self) -> bool | None:
         """Whether the reading lies within the tolerance limits (``None``: not measured); a row
         of a format that does not say is compared with its limits, exactly, as written."""
-        if self.within_tolerance is not None or self.reading is None:
-            return self.within_tolerance
+        given = None if self.within_tolerance is MISSING else self.within_tolerance
+        if given is not None or self.reading is None:
+            return given
         return within_limits(self.low, self.high, self.reading)
+
+    def reason_skipped(self) -> str | None:
+        """Why the operator skipped the point (``None``: not skipped, or no reason given)."""
+        return None if self.skip_reason is MISSING else self.skip_reason
+
+    def corrected(self) -> CorrectionEntry | None:
+        """The correction of the row's reading (``None``: never corrected)."""
+        return None if self.correction is MISSING else self.correction
 
 
 def within_limits(low, high, reading) -> bool:
@@ -976,7 +1027,7 @@ def record_problem(data: Any) -> str | None:
     return None
 
 
-_MEMBERS = {"float", "int", "str", "bool"}
+_MEMBERS = {"float", "int", "str", "bool", "Reported", "EarlierReported"}
 
 
 def validation_text(exc: ValidationError) -> str:
@@ -996,6 +1047,33 @@ def record_document(record: Record) -> dict:
     """``record`` as the dict ``record.json`` holds: keys as written (with hyphens where the
     format has them), and no key that the record did not hold (an older format stays itself)."""
     return record.model_dump(by_alias=True, exclude_unset=True)
+
+
+def part_document(part: Any) -> Any:
+    """A part of a record (or any value one holds) as :func:`record_document` writes it within
+    the whole: a model or dataclass with keys as written and no key it did not hold; any other
+    value as it is."""
+    if isinstance(part, BaseModel):
+        return part.model_dump(by_alias=True, exclude_unset=True)
+    if dataclasses.is_dataclass(part):
+        return _adapter(type(part)).dump_python(part, by_alias=True, exclude_unset=True)
+    return part
+
+
+@functools.cache
+def _adapter(kind: type) -> TypeAdapter:
+    return TypeAdapter(kind)
+
+
+def validate_row(data: Any) -> PointResult:
+    """The :class:`PointResult` of ``data`` (a row as ``record.json`` holds it).
+
+    Raises
+    ------
+    pydantic.ValidationError
+        If a field is missing, unknown or does not fit.
+    """
+    return _adapter(PointResult).validate_python(data)
 
 
 def record_schema() -> dict:

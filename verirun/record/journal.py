@@ -214,10 +214,12 @@ class JournalRead:
         return first if isinstance(first, Start) else None
 
 
-def read_journal(path: str | Path) -> JournalRead:
+def read_journal(path: str | Path, *, models: bool = True) -> JournalRead:
     """Read a journal; a torn (unterminated, unparsable) last line is dropped and reported.
 
-    Every line is validated against its kind's model once, here; the models are kept.
+    Every line is validated against its kind's model once, here; the models are kept, unless
+    ``models`` is false (for a reader of the parsed lines alone: each model is let go once it
+    has checked its line, rather than a long run's thousands held at once).
 
     Raises
     ------
@@ -241,20 +243,22 @@ def read_journal(path: str | Path) -> JournalRead:
             json.loads(lines[-1])
         except ValueError:
             torn = lines.pop()
-    docs, models = [], []
+    docs, kept = [], []
     for number, line in enumerate(lines, start=1):
         try:
             doc = parse_json(line)
         except ValueError as exc:
             raise RecordError(f"{path}:{number}: not a journal document ({exc})") from None
         try:
-            models.append(read_document(doc))
+            model = read_document(doc)
         except ValueError as exc:
             raise RecordError(
                 f"{path}:{number}: not a journal document verirun writes: {exc}"
             ) from None
+        if models:
+            kept.append(model)
         docs.append(doc)
-    return JournalRead(documents=docs, models=tuple(models), torn_line=torn)
+    return JournalRead(documents=docs, models=tuple(kept), torn_line=torn)
 
 
 def read_start(path: str | Path) -> Start | None:
@@ -341,10 +345,33 @@ def write_record(record, path: str | Path) -> Path:
         If it cannot be written; the previous record, if any, is kept and no temporary is left.
     """
     if not isinstance(record, dict):
-        from verirun.record.documents import record_document
-
-        record = record_document(record)
+        return storage.write_atomic(path, _model_pieces(record))
     return storage.write_atomic(path, _record_pieces(record))
+
+
+def _model_pieces(record):
+    """The canonical compact form of the typed ``record``, as :func:`_record_pieces` writes the
+    dict :func:`~verirun.record.documents.record_document` makes of it, but made one part (and
+    one row) at a time: the dict of a long run's whole record is never held beside its model."""
+    from verirun.record.documents import part_document
+
+    names = {
+        field.alias or name: name
+        for name, field in type(record).model_fields.items()
+        if name in record.model_fields_set
+    }
+    yield "{"
+    for number, key in enumerate(sorted(names)):
+        yield ("," if number else "") + dumps(key) + ":"
+        value = getattr(record, names[key])
+        if isinstance(value, list):
+            yield "["
+            for position, item in enumerate(value):
+                yield ("," if position else "") + dumps(part_document(item))
+            yield "]"
+        else:
+            yield dumps(part_document(value))
+    yield "}\n"
 
 
 def _record_pieces(record: dict):

@@ -33,19 +33,25 @@ def needs_number(record: dict) -> bool:
     )
 
 
-def after_close(run_dir: Path, record: dict | None, *, warn=None) -> tuple[dict | None, bool]:
+def after_close(run_dir: Path, record, *, warn=None) -> tuple:
     """Number and store a just-closed run in the named register (if any); return the record
     (with its number) and whether its certificate may be issued now.
 
-    With no register named, the record is returned as it is. When the register cannot be
-    reached, the run is kept in the outbox and ``warn`` is told; a run still waiting for its
-    certificate number may not be issued until it is synced.
+    ``record`` is the dict ``record.json`` holds, or its typed
+    :class:`~verirun.record.documents.Record`. With no register named, the record is returned
+    as it is; else as a dict. When the register cannot be reached, the run is kept in the outbox
+    and ``warn`` is told; a run still waiting for its certificate number may not be issued until
+    it is synced.
     """
     from verirun.register.config import named
 
     name = named()
     if name is None or record is None:
         return record, True
+    if not isinstance(record, dict):
+        from verirun.record.documents import record_document
+
+        record = record_document(record)
     from verirun.register.db import RegisterError, open_register
 
     try:
