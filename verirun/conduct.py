@@ -27,7 +27,7 @@ from verirun.interrupts import deferred_signals, forget_kill_requests, kill_requ
 from verirun.locks import calibrator_lock, run_lock
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.procedure.plan import plan
-from verirun.record.build import build_record, close_journal, journaled_plan
+from verirun.record.build import Made, build_record, close_journal
 from verirun.record.documents import (
     AsFound,
     BenchAsRun,
@@ -177,8 +177,7 @@ def execute(
         if calibrator is not None
         else load_profile(bench.file.calibrator.profile)
     )
-    # Planned from the texts the run journals, as its closing plans: one plan for both.
-    points = journaled_plan(procedure, bench)
+    points = plan(procedure, bench)
     check_readings(readings, points)
     preflight.check(points, bench, profile, today=clock.now().date())
     storage.make_folder(runs_dir)
@@ -246,6 +245,7 @@ def _drive(
     the caller can say where the resumable run lies. The caller holds the run folder's lock.
     """
     own_calibrator = calibrator is None
+    made: Made = (procedure, bench, points)  # closing uses the plan the run ran
     journal = Journal(run_dir / JOURNAL_NAME)
     outcome = None
     # The signal handlers stay until the record is written (see _finish), and closing is a
@@ -286,17 +286,19 @@ def _drive(
             with deferred_signals():  # a signal now is dropped: the run is ending already
                 journal.close()
                 try:
-                    after_close(run_dir, close_run(run_dir), warn=console.warn)
+                    after_close(run_dir, close_run(run_dir, made), warn=console.warn)
                 except (
                     Exception
                 ):  # the journal is the truth; a record that cannot be built now can be later
                     pass
             raise
         journal.close()
-        return _finish(run_dir, reports_dir, outcome=outcome, console=console)
+        return _finish(run_dir, reports_dir, outcome=outcome, console=console, made=made)
 
 
-def _finish(run_dir: Path, reports_dir: Path, *, outcome=None, console=None) -> Finished:
+def _finish(
+    run_dir: Path, reports_dir: Path, *, outcome=None, console=None, made: Made | None = None
+) -> Finished:
     """Close the journal into the record, number and store it in the lab register (if one is
     named), and render a complete run's certificate (once it may be issued).
 
@@ -305,7 +307,7 @@ def _finish(run_dir: Path, reports_dir: Path, *, outcome=None, console=None) -> 
     try:
         with _sigterm_as_interrupt():
             with deferred_signals():
-                record = close_record(run_dir)
+                record = close_record(run_dir, made)
             # Typed as closing built it, unless the register numbered the run (then a dict).
             record, issuable = after_close(
                 run_dir, record, warn=console.warn if console is not None else None
@@ -631,18 +633,20 @@ def _same_file(
     return loaded
 
 
-def close_run(run_dir: Path) -> dict | None:
+def close_run(run_dir: Path, made: Made | None = None) -> dict | None:
     """Build and write the run record of the journal in ``run_dir`` (``None`` if it is empty),
     and return it as the dict ``record.json`` holds (see :func:`close_record`)."""
-    record = close_record(run_dir)
+    record = close_record(run_dir, made)
     return None if record is None else record_document(record)
 
 
-def close_record(run_dir: Path) -> Record | None:
+def close_record(run_dir: Path, made: Made | None = None) -> Record | None:
     """Build and write the run record of the journal in ``run_dir`` (``None`` if it is empty),
-    and return it typed; ``record.json`` is written from the model, a row at a time."""
+    and return it typed; ``record.json`` is written from the model, a row at a time. ``made`` is
+    what the run that has just ended planned (its procedure, bench and plan): closing plans
+    again only what it did not."""
     # The journal's lines are held by the build alone (a long run's journal is large).
-    record = close_journal(run_dir / JOURNAL_NAME)
+    record = close_journal(run_dir / JOURNAL_NAME, made)
     if record is not None:
         write_record(record, run_dir / RECORD_NAME)
     return record

@@ -118,6 +118,32 @@ class TestVerify:
         rebuilt = write_record(build_record(docs, "journal"), tmp_path / "rebuilt.json")
         assert rebuilt.read_bytes() == (run_dir / "record.json").read_bytes()
 
+    def test_closing_uses_the_plan_the_run_made_only_for_the_texts_it_journaled(self, run_dir):
+        """Given what the run planned, the build takes that very plan when the start document
+        holds the procedure's and the bench's texts and names, and plans from the journal
+        otherwise (a resume on a renewed bench file, another file of the same text)."""
+        import dataclasses
+
+        from verirun.bench.config import load_bench_text
+        from verirun.procedure.load import load_procedure_text
+        from verirun.procedure.plan import plan
+        from verirun.record.build import _plan_of
+
+        start = read_journal(run_dir / "journal.jsonl").documents[0]
+        procedure = load_procedure_text(start["procedure"]["text"], start["procedure"]["source"])
+        bench = load_bench_text(start["bench"]["text"], start["bench"]["source"])
+        points = plan(procedure, bench)
+        got = _plan_of(start, (procedure, bench, points))
+        assert got[0] is procedure and got[1] is bench
+        assert all(a is b for a, b in zip(got[2], points, strict=True))
+        renewed = dataclasses.replace(bench, text=bench.text + "\n# renewed\n")
+        elsewhere = dataclasses.replace(procedure, source="elsewhere.yaml")
+        for made in ((procedure, renewed, points), (elsewhere, bench, points), None):
+            got = _plan_of(start, made)
+            assert got[1].text == start["bench"]["text"]
+            assert got[0].source == start["procedure"]["source"]
+            assert not any(a is b for a, b in zip(got[2], points))
+
     def test_chain_function_on_a_fresh_journal(self, tmp_path):
         """Documents appended by the journal chain to one another from a zero hash."""
         with Journal(tmp_path / "j.jsonl") as journal:

@@ -58,17 +58,28 @@ def _planned(
     return procedure, bench, tuple(plan(procedure, bench))
 
 
-def journaled_plan(procedure: Procedure, bench: Bench) -> tuple[TestPoint, ...]:
-    """The plan of ``procedure`` on ``bench`` as the record's build makes it: from the texts a
-    run journals of them. A run planned so is closed with the very plan it ran (the build finds
-    it among the last few it made), held once rather than twice for a long run.
+#: What a run that has just ended planned: its procedure, its bench and its plan.
+Made = tuple[Procedure, Bench, "list[TestPoint] | tuple[TestPoint, ...]"]
 
-    Raises
-    ------
-    ProcedureError
-        If the texts do not load (as the build would find).
+
+def _plan_of(start: dict, made: Made | None) -> tuple[Procedure, Bench, tuple[TestPoint, ...]]:
+    """The procedure, bench and plan of the journal whose start document is ``start``: those
+    the run ``made``, when the texts it journaled are theirs, else loaded and planned from the
+    texts (see :func:`_planned`).
+
+    A procedure and a bench are loaded from their text alone (a file's is its text and its
+    name), so those the run loaded from the journaled texts plan as these would: the closing of
+    a long run holds one plan, not two, and does not load and plan again what the run did.
     """
-    return _planned(procedure.text, procedure.source, bench.text, bench.source)[2]
+    procedure, bench = start["procedure"], start["bench"]
+    if made is not None and (made[0].text, made[0].source, made[1].text, made[1].source) == (
+        procedure["text"],
+        procedure["source"],
+        bench["text"],
+        bench["source"],
+    ):
+        return made[0], made[1], tuple(made[2])
+    return _planned(procedure["text"], procedure["source"], bench["text"], bench["source"])
 
 
 def build_record(documents: list[dict], source: str = "journal") -> dict:
@@ -96,10 +107,12 @@ def build_record_model(documents: list[dict], source: str = "journal") -> Record
         return _build(documents, source)
 
 
-def close_journal(path) -> Record | None:
+def close_journal(path, made: Made | None = None) -> Record | None:
     """The run record of the journal at ``path`` (``None`` when it holds no line), as
     :func:`build_record_model` builds it; the journal's parsed lines are held by the build
     alone, so each is let go once its row is made (a long run's lines are megabytes).
+
+    ``made`` is what the run that has just ended planned (see :func:`_plan_of`).
 
     Raises
     ------
@@ -110,7 +123,7 @@ def close_journal(path) -> Record | None:
     with _not_fitting(source):
         # The list goes straight to the build: no frame here keeps it (nor the typed models
         # that checked each line, which the build does not read).
-        return _build(read_journal(path, models=False).documents, source, empty=True)
+        return _build(read_journal(path, models=False).documents, source, empty=True, made=made)
 
 
 @contextlib.contextmanager
@@ -134,7 +147,9 @@ def _not_fitting(source: str):
         ) from None
 
 
-def _build(documents: list[dict], source: str = "journal", *, empty: bool = False) -> Record | None:
+def _build(
+    documents: list[dict], source: str = "journal", *, empty: bool = False, made: Made | None = None
+) -> Record | None:
     """The run record of a journal's ``documents``: the same code path for the first closing of
     a run, a resume, an amendment and a rebuild (every reading is evaluated here, from the
     procedure and bench the journal holds).
@@ -158,12 +173,7 @@ def _build(documents: list[dict], source: str = "journal", *, empty: bool = Fals
         raise RecordError("\n".join(problems))
     start = documents[0]
     try:
-        procedure, bench, planned = _planned(
-            start["procedure"]["text"],
-            start["procedure"]["source"],
-            start["bench"]["text"],
-            start["bench"]["source"],
-        )
+        procedure, bench, planned = _plan_of(start, made)
     except ProcedureError as exc:
         raise RecordError(
             f"{source}: the procedure or bench stored in the journal does not load: {exc}"
