@@ -129,7 +129,7 @@ def own_run(run: DryRun, workdir: Path) -> dict:
     )
     with contextlib.ExitStack() as stack:
         stack.enter_context(patched(os, "fsync", lambda fd: None))
-        stack.enter_context(patched(session, "close_run", closing))
+        stack.enter_context(patched(session, "close_record", closing))
         stack.enter_context(patched(session, "write_certificate", closing))
         gc.collect()
         start = time.process_time()
@@ -154,7 +154,7 @@ def one_run(run: DryRun, workdir: Path) -> dict:
         stack.enter_context(patched(Calibrator, "_query", instrument))
         stack.enter_context(patched(session, "open_calibrator", instrument))
         stack.enter_context(patched(os, "fsync", disk))
-        stack.enter_context(patched(session, "close_run", closing))
+        stack.enter_context(patched(session, "close_record", closing))
         stack.enter_context(patched(session, "write_certificate", closing))
         gc.collect()
         start = time.process_time()

@@ -71,7 +71,8 @@ class ProgressConsole:
 
 class Phases:
     """Wall time of the record and certificate phases of ``execute``, measured by wrapping the
-    two functions ``execute`` calls (the engine loop is the rest)."""
+    two functions ``execute`` calls (the engine loop is the rest): ``close_record``, which every
+    closing of a run goes through, and ``write_certificate``."""
 
     def __init__(self):
         self.record = 0.0
@@ -81,12 +82,12 @@ class Phases:
     def installed(self):
         import verirun.conduct as session
 
-        close_run, write_certificate = session.close_run, session.write_certificate
+        close_record, write_certificate = session.close_record, session.write_certificate
 
-        def timed_close_run(*args, **kwargs):
+        def timed_close_record(*args, **kwargs):
             t = time.perf_counter()
             try:
-                return close_run(*args, **kwargs)
+                return close_record(*args, **kwargs)
             finally:
                 self.record += time.perf_counter() - t
 
@@ -97,11 +98,12 @@ class Phases:
             finally:
                 self.certificate += time.perf_counter() - t
 
-        session.close_run, session.write_certificate = timed_close_run, timed_write_certificate
+        session.close_record = timed_close_record
+        session.write_certificate = timed_write_certificate
         try:
             yield self
         finally:
-            session.close_run, session.write_certificate = close_run, write_certificate
+            session.close_record, session.write_certificate = close_record, write_certificate
 
 
 class DryRun:
