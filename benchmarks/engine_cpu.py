@@ -124,15 +124,15 @@ def own_run(run: DryRun, workdir: Path) -> dict:
     from verirun.bench.profile import load_profile
 
     closing = CpuMeter()
-    calibrator = Calibrator(
-        InstantResource(_simulator_identity()), load_profile(run.bench.file.calibrator.profile)
-    )
+    resource = InstantResource(_simulator_identity())
     with contextlib.ExitStack() as stack:
         stack.enter_context(patched(os, "fsync", lambda fd: None))
         stack.enter_context(patched(session, "close_record", closing))
         stack.enter_context(patched(session, "write_certificate", closing))
         gc.collect()
         start = time.process_time()
+        # The driver and its profile are made in the time, as execute makes its own.
+        calibrator = Calibrator(resource, load_profile(run.bench.file.calibrator.profile))
         _, finished, _ = run.run(workdir, calibrator=calibrator)
         total = time.process_time() - start
     return {
