@@ -1,15 +1,19 @@
 """Small runs for the tests: the test-scenario procedure and bench of ``tests/data/steps``,
 variants of them written into a test's folder, one way to build a run in-process
-(:func:`build_run`, the ``make_run`` fixture), and the command line run in-process or as a
-real process that can be stopped dead at a chosen moment."""
+(:func:`build_run`, the ``make_run`` fixture), the command line run in-process or as a real
+process that can be stopped dead at a chosen moment or typed at on a pseudo-terminal
+(:class:`Terminal`), and the check of journal lines against the shipped schema."""
 
 from __future__ import annotations
 
 import datetime as dt
 import json
+import os
+import select
 import subprocess
 import sys
 import textwrap
+import time
 from pathlib import Path
 
 from verirun.cli import main
@@ -333,3 +337,74 @@ def read_until(proc, marker: bytes, seconds: float = 30.0) -> bytes:
         if select.select([proc.stdout], [], [], 1.0)[0]:
             seen += os.read(proc.stdout.fileno(), 4096)
     return seen
+
+
+def fits_the_journal_schema(docs):
+    """Every document fits the shipped JSON Schema of a journal line and its model."""
+    import json
+
+    import jsonschema
+
+    from verirun.record.documents import validate_document
+
+    schema = json.loads(
+        (
+            Path(__file__).resolve().parents[1] / "verirun" / "schema" / "journal.schema.json"
+        ).read_text(encoding="utf-8")
+    )
+    for doc in docs:
+        jsonschema.validate(doc, schema, cls=jsonschema.Draft202012Validator)
+        validate_document(doc)
+
+
+class Terminal:
+    """A process on a pseudo-terminal: read its output until a text shows, type a line."""
+
+    def __init__(self, args, cwd, columns=100):
+        import fcntl
+        import pty
+        import struct
+        import termios
+
+        self.master, slave = pty.openpty()
+        fcntl.ioctl(slave, termios.TIOCSWINSZ, struct.pack("HHHH", 40, columns, 0, 0))
+        env = {k: v for k, v in os.environ.items() if k not in ("COLUMNS", "LINES")}
+        env["TERM"] = "xterm"
+        self.proc = subprocess.Popen(
+            args, stdin=slave, stdout=slave, stderr=slave, cwd=cwd, env=env, close_fds=True
+        )
+        os.close(slave)
+        self.seen = ""
+
+    def expect(self, text, timeout=30.0):
+        end = time.monotonic() + timeout
+        while text not in self.seen:
+            left = end - time.monotonic()
+            if left <= 0:
+                raise AssertionError(
+                    f"{text!r} did not show; the terminal showed:\n{self.seen[-2000:]}"
+                )
+            ready, _, _ = select.select([self.master], [], [], left)
+            if ready:
+                try:
+                    chunk = os.read(self.master, 65536)
+                except OSError:
+                    chunk = b""
+                if not chunk:
+                    raise AssertionError(
+                        f"{text!r} did not show before the end:\n{self.seen[-2000:]}"
+                    )
+                self.seen += chunk.decode("utf-8", "replace")
+        index = self.seen.index(text) + len(text)
+        shown, self.seen = self.seen[:index], self.seen[index:]
+        return shown
+
+    def type(self, line):
+        os.write(self.master, (line + "\r").encode())
+
+    def close(self):
+        try:
+            self.proc.wait(timeout=30)
+        finally:
+            os.close(self.master)
+        return self.proc.returncode

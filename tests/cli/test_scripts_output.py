@@ -86,7 +86,7 @@ class TestRunsListing:
 
     def test_narrow_terminal_never_cuts_the_run(self, tmp_path):
         """In a 60-column pseudo-terminal the run folder name is still shown whole."""
-        from test_console_input import Terminal
+        from runkit import Terminal
 
         assert scripted_run(tmp_path, READINGS, serial="A-VERY-LONG-SERIAL-NUMBER-0123456789") == 0
         (run,) = (tmp_path / "runs").iterdir()
@@ -186,7 +186,7 @@ class TestResumeAtTheTerminal:
     def test_resume_at_the_console_asks_the_conditions_again(self, tmp_path):
         """Resumed at a terminal, the run says what it continues and asks the temperature and
         humidity now before the leads of the next range; the resume is journaled with them."""
-        from test_console_input import Terminal
+        from runkit import Terminal
 
         stopped = READINGS.replace("dcv-100,80 V,80.5", "dcv-100,80 V,abort")
         assert scripted_run(tmp_path, stopped) == cli.EXIT_ABORTED
@@ -216,6 +216,6 @@ class TestResumeAtTheTerminal:
         (resumed,) = [d for d in docs if d["kind"] == "resume"]
         assert resumed["environment"] == {"temperature_c": 24.5, "humidity_pct": 45.0}
         assert docs[0]["reports"] == str(tmp_path / "rep1")
-        from test_console_input import fits_the_journal_schema
+        from runkit import fits_the_journal_schema
 
         fits_the_journal_schema(docs)

@@ -8,15 +8,12 @@ from __future__ import annotations
 
 import io
 import os
-import select
-import subprocess
 import sys
-import time
 from pathlib import Path
 
 import pytest
 from rich.console import Console as RichConsole
-from runkit import build_run, sim_resources
+from runkit import Terminal, build_run, fits_the_journal_schema, sim_resources
 
 from verirun.console import Console
 from verirun.errors import RunAborted
@@ -69,24 +66,6 @@ def run_typing(tmp_path, lab_path, lines, *, show_window=False):
     run_dir = finished.run_dir if finished else error.run_dir
     docs = read_journal(run_dir / "journal.jsonl").documents
     return docs, out.getvalue(), typist, raw, finished
-
-
-def fits_the_journal_schema(docs):
-    """Every document fits the shipped JSON Schema of a journal line and its model."""
-    import json
-
-    import jsonschema
-
-    from verirun.record.documents import validate_document
-
-    schema = json.loads(
-        (
-            Path(__file__).resolve().parents[2] / "verirun" / "schema" / "journal.schema.json"
-        ).read_text(encoding="utf-8")
-    )
-    for doc in docs:
-        jsonschema.validate(doc, schema, cls=jsonschema.Draft202012Validator)
-        validate_document(doc)
 
 
 #: Typed at the prompts for a plain run, by step: connect, 5 V, 10 V, connect, 10 mA, connect,
@@ -161,7 +140,6 @@ class TestGrossReading:
         """A kill request taken just after the note on the replaced reading is journaled acts
         only once the reading the operator typed instead is journaled too: the note never
         stands without the entry it speaks of."""
-        import os
         import signal
 
         from verirun.record.journal import Journal
@@ -285,59 +263,6 @@ class TestWhatToRead:
         docs, out, *_ = run_typing(tmp_path, demo_lab_path, PLAIN, show_window=True)
         assert "window 47.5° to 52.5° from the left end" in out
         assert "window 4.8 V to 5.2 V" in out
-
-
-class Terminal:
-    """A process on a pseudo-terminal: read its output until a text shows, type a line."""
-
-    def __init__(self, args, cwd, columns=100):
-        import fcntl
-        import pty
-        import struct
-        import termios
-
-        self.master, slave = pty.openpty()
-        fcntl.ioctl(slave, termios.TIOCSWINSZ, struct.pack("HHHH", 40, columns, 0, 0))
-        env = {k: v for k, v in os.environ.items() if k not in ("COLUMNS", "LINES")}
-        env["TERM"] = "xterm"
-        self.proc = subprocess.Popen(
-            args, stdin=slave, stdout=slave, stderr=slave, cwd=cwd, env=env, close_fds=True
-        )
-        os.close(slave)
-        self.seen = ""
-
-    def expect(self, text, timeout=30.0):
-        end = time.monotonic() + timeout
-        while text not in self.seen:
-            left = end - time.monotonic()
-            if left <= 0:
-                raise AssertionError(
-                    f"{text!r} did not show; the terminal showed:\n{self.seen[-2000:]}"
-                )
-            ready, _, _ = select.select([self.master], [], [], left)
-            if ready:
-                try:
-                    chunk = os.read(self.master, 65536)
-                except OSError:
-                    chunk = b""
-                if not chunk:
-                    raise AssertionError(
-                        f"{text!r} did not show before the end:\n{self.seen[-2000:]}"
-                    )
-                self.seen += chunk.decode("utf-8", "replace")
-        index = self.seen.index(text) + len(text)
-        shown, self.seen = self.seen[:index], self.seen[index:]
-        return shown
-
-    def type(self, line):
-        os.write(self.master, (line + "\r").encode())
-
-    def close(self):
-        try:
-            self.proc.wait(timeout=30)
-        finally:
-            os.close(self.master)
-        return self.proc.returncode
 
 
 @pytest.mark.skipif(sys.platform == "win32", reason="needs a POSIX pseudo-terminal")
