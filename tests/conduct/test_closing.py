@@ -311,6 +311,22 @@ class TestKilledBeforeItStarted:
         assert recent.exists() and locked.exists() and other.exists() and unnamed.exists()
         assert (other / "notes.txt").exists()
 
+    def test_a_folder_with_a_record_stays_whatever_its_journal(self, tmp_path):
+        """A run folder holding a record is a closed run, even with its journal gone or cut to
+        nothing (a damaged folder is for verify to name, never for a run to remove)."""
+        from verirun.record.journal import never_started
+
+        for number, journal in enumerate((None, b"", b'{"kind": "sta')):
+            folder = tmp_path / "runs" / f"20261201-090000-KEPT-{number:08x}"
+            folder.mkdir(parents=True)
+            (folder / "record.json").write_text("{}\n")
+            if journal is not None:
+                (folder / "journal.jsonl").write_bytes(journal)
+            self.age(folder)
+            assert not never_started(folder)
+        assert cli(*run_args(tmp_path)) == 0
+        assert len([f for f in (tmp_path / "runs").iterdir() if "KEPT" in f.name]) == 3
+
 
 def test_close_keeps_working_from_a_copy(tmp_path):
     """A closed run's folder copied elsewhere still verifies (nothing in it depends on its path)."""
