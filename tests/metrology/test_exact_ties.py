@@ -277,7 +277,8 @@ class TestAsWritten:
         assert as_written(value) == Fraction(f"{value:.15g}")
 
     def test_examples(self):
-        """0.7 is seven tenths exactly; 800 × 1e-3 is four fifths; -0.0 is zero."""
+        """0.7 is seven tenths exactly; 800 × 1e-3 is four fifths; -0.0 is zero (worked by hand
+        from the decimals written; IEEE 754 doubles to 15 significant digits, from memory)."""
         from verirun.metrology.exact import as_written
 
         assert as_written(0.7) == Fraction(7, 10)
