@@ -167,3 +167,23 @@ class TestOneVerirunPerCalibrator:
         finally:
             first.communicate("abort\n", timeout=60)
         assert first.returncode == 2
+
+
+class TestTheLockFile:
+    """The lock file says which process holds the lock, whatever an earlier holder wrote."""
+
+    def test_it_holds_the_holders_pid_alone(self, tmp_path):
+        from verirun.locks import RUN_LOCK_NAME, run_lock
+
+        lock = tmp_path / RUN_LOCK_NAME
+        lock.write_bytes(b"4194303\nleft over by an earlier holder\n")  # longer than any pid
+        with run_lock(tmp_path):
+            assert lock.read_bytes() == f"{os.getpid()}\n".encode()
+        with run_lock(tmp_path):  # a second time: the same, nothing added
+            assert lock.read_bytes() == f"{os.getpid()}\n".encode()
+
+    def test_a_new_lock_file_holds_the_pid(self, tmp_path):
+        from verirun.locks import RUN_LOCK_NAME, run_lock
+
+        with run_lock(tmp_path):
+            assert (tmp_path / RUN_LOCK_NAME).read_bytes() == f"{os.getpid()}\n".encode()
