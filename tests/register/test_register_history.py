@@ -177,6 +177,28 @@ class TestFoundInTolerance:
         assert history.last_in_tolerance is False  # 8.25 V is outside the tolerance
         assert item_history(register, serial="G-2", today=dt.date(2024, 6, 1)).last_in_tolerance
 
+    def test_the_html_page_marks_each_of_the_four_statements_as_its_own(
+        self, register, tmp_path, closed_run
+    ):
+        """Under the non-binary rule (ILAC-G8:09/2019 4.2.3) at 8 V, tolerance 8.2 V and U 0.0058 V
+        (as above): 8.00 V passes, 8.196 V is a conditional pass (inside the tolerance, within U
+        of it), 8.203 V a conditional fail (outside, within U) and 8.30 V fails. Each mark of the
+        8 V plot is drawn as its own statement and says it, a conditional one never as a pass."""
+        from bs4 import BeautifulSoup
+
+        runs_dir, rule = tmp_path / "runs", {"procedure": "procedure-non-binary.yaml"}
+        for year, reading in ((2020, "8.00"), (2021, "8.196"), (2022, "8.203"), (2023, "8.30")):
+            _calibrate(closed_run, runs_dir, "NB-1", year, ("2.00", "5.00", reading), **rule)
+        html = tmp_path / "h.html"
+        assert main(["history", "NB-1", "--html", str(html)]) == 0
+        soup = BeautifulSoup(html.read_text(encoding="utf-8"), "html.parser")
+        (plot,) = [svg for svg in soup.find_all("svg") if "dcv-10@8V" in svg["aria-label"]]
+        marks = [(c["class"][0], c.title.get_text()) for c in plot.find_all("circle")]
+        assert [cls for cls, _ in marks] == ["pass", "conditional-pass", "conditional-fail", "fail"]
+        assert all(title.endswith(cls) for cls, title in marks)
+        style = soup.style.get_text()
+        assert ".conditional-pass {" in style and ".conditional-fail {" in style
+
     def test_rows_stored_before_the_register_counted_it_are_judged_by_their_verdicts(
         self, tmp_path, closed_run, monkeypatch
     ):

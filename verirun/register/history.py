@@ -402,7 +402,7 @@ def _plot(history: History, key: str) -> dict:
                 "y_low": y(value - u),
                 "y_high": y(value + u),
                 "verdict": verdict,
-                "label": f"{day}: {value * 100:+.1f} % of tolerance",
+                "label": f"{day}: {value * 100:+.1f} % of tolerance, {verdict}",
             }
         )
     fit = None
