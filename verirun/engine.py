@@ -18,6 +18,7 @@ from verirun.clock import SystemClock, iso
 from verirun.errors import BenchError, RunAborted, StorageError, VerirunError
 from verirun.evaluation import verdict
 from verirun.interrupts import deferred_signals, stop_if_asked
+from verirun.metrology.summary import VERDICTS
 from verirun.procedure.load import Procedure
 from verirun.procedure.plan import TestPoint, plan
 from verirun.readings import Entry, OperatorSilent, ReadingSource
@@ -151,7 +152,8 @@ class Engine:
             ac_rms_volts=bench.hazardous_ac_rms,
             ac_peak_volts=bench.hazardous_ac_peak,
         )
-        self.counts = {"pass": 0, "fail": 0, "skipped": 0}
+        #: The run so far: readings by the verdict of each of the four statements, and skips.
+        self.counts = dict.fromkeys((*VERDICTS, "skipped"), 0)
         #: The points given an entry in this session, with it, newest last (for undo).
         self._taken: list[tuple[TestPoint, Entry]] = []
         #: Each reading's verdict in this session, by its point's index (for undo).
@@ -451,7 +453,7 @@ class Engine:
         # The run counts verdicts; what the console shows of a reading it evaluates itself.
         judged = verdict(point, entry.value)
         self.verdicts[point.index] = judged
-        self.counts[judged] = self.counts.get(judged, 0) + 1
+        self.counts[judged] += 1
         self.console.result(point, entry)
 
     def _undo(self, point: TestPoint) -> bool:

@@ -104,7 +104,12 @@ def matrix(tmp_path_factory):
         record = json.loads((run / "record.json").read_text())
         (cert,) = (tmp / "reports").glob("*.html")
         out[rule] = (record, BeautifulSoup(cert.read_text(encoding="utf-8"), "html.parser"), points)
+        STOPS[rule] = json.loads((run / "journal.jsonl").read_text().splitlines()[-1])
     return out
+
+
+#: The stop document each run of the matrix journaled last.
+STOPS: dict[str, dict] = {}
 
 
 _NUMBER = re.compile(r"^(-?\d+(?:\.\d+)?|-?∞) ?(.*)$")
@@ -221,6 +226,9 @@ class TestCertificateMatrix:
         assert expected in overall
         for key, count in counts.items():
             assert record["summary"][key] == count
+        # The run's own tally, journaled as it stopped, knows the four statements too.
+        assert STOPS[rule]["kind"] == "stop"
+        assert STOPS[rule]["counts"] == {**counts, "skipped": 0}
         if guard:
             assert f"{guard} {'lies' if guard == 1 else 'lie'} within" in overall
         if outside:
