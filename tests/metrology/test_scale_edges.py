@@ -237,6 +237,30 @@ class TestFrozenValues:
         with pytest.raises(dataclasses.FrozenInstanceError):
             point.budget.terms[0].standard_uncertainty = 0.0  # type: ignore[misc]
 
+    def test_planned_values_hold_no_instance_dict(self):
+        """The point, its range, band, scale law and rule are slotted as well as frozen: no
+        ``__dict__`` through which a field could be changed behind the dataclass's back (writing
+        ``point.__dict__["nominal"]`` used to succeed)."""
+        from verirun.metrology.decision import (
+            GuardedAcceptance,
+            NonBinaryStatement,
+            RiskAcceptance,
+            SimpleAcceptance,
+        )
+
+        (point, _) = plan(load_procedure_text(OHMS, "edge.yaml"))
+        values = [point, point.range, point.range.law, point.rule, point.window, point.budget]
+        values += list(point.range.bands) + [
+            SimpleAcceptance(),
+            GuardedAcceptance(),
+            NonBinaryStatement(),
+            RiskAcceptance(),
+        ]
+        for value in values:
+            assert not hasattr(value, "__dict__"), type(value).__name__
+        with pytest.raises(AttributeError):
+            point.__dict__["nominal"] = 99.0
+
     def test_per_reading_results_are_frozen(self):
         """The result of a reading, and the decision, outcome and acceptance zone in it, cannot
         be changed after they are made."""

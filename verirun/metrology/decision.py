@@ -146,6 +146,8 @@ class Outcome:
 class _Statement:
     """What every rule does once it has its acceptance zone (each rule gives ``acceptance``)."""
 
+    __slots__ = ()
+
     def statement(self, zone: Acceptance, *, low: Exact, high: Exact, reading: Exact) -> Verdict:
         """The verdict of the exact ``reading`` with the acceptance ``zone`` of the tolerance
         limits ``low`` .. ``high``: a binary rule passes it within the zone, limits included,
@@ -174,7 +176,7 @@ def _shrunk(low: Exact, high: Exact, w: Exact) -> Acceptance:
     return Acceptance(low=low + w, high=high - w, guard=w)
 
 
-@dataclass(frozen=True, kw_only=True)
+@dataclass(frozen=True, kw_only=True, slots=True)
 class SimpleAcceptance(_Statement):
     """Simple acceptance, ILAC-G8:09/2019 4.2.1 (``w = 0``).
 
@@ -198,7 +200,7 @@ class SimpleAcceptance(_Statement):
         return _shrunk(low, high, _NO_GUARD)
 
 
-@dataclass(frozen=True, kw_only=True)
+@dataclass(frozen=True, kw_only=True, slots=True)
 class GuardedAcceptance(_Statement):
     """Binary statement with a guard band, ILAC-G8:09/2019 4.2.2 (``w = ratio × U``).
 
@@ -231,7 +233,7 @@ class GuardedAcceptance(_Statement):
         return _shrunk(low, high, as_written(self.ratio) * expanded)
 
 
-@dataclass(frozen=True, kw_only=True)
+@dataclass(frozen=True, kw_only=True, slots=True)
 class NonBinaryStatement(GuardedAcceptance):
     """Non-binary statement with a guard band, ILAC-G8:09/2019 4.2.3 (``w = ratio × U``, ratio 1).
 
@@ -268,7 +270,7 @@ class NonBinaryStatement(GuardedAcceptance):
         return "fail"
 
 
-@dataclass(frozen=True, kw_only=True)
+@dataclass(frozen=True, kw_only=True, slots=True)
 class RiskAcceptance(_Statement):
     """Guarded acceptance sized by the specific risk of false accept (JCGM 106:2012, normal model).
 

@@ -23,7 +23,7 @@ from dataclasses import dataclass
 from verirun.metrology.exact import Exact, as_written
 
 
-@dataclass(frozen=True, kw_only=True)
+@dataclass(frozen=True, kw_only=True, slots=True)
 class Linear:
     """A linear scale from ``low`` (left stop) to ``high`` (full deflection)."""
 
@@ -70,7 +70,7 @@ class Linear:
         return abs(self.high - self.low)
 
 
-@dataclass(frozen=True, kw_only=True)
+@dataclass(frozen=True, kw_only=True, slots=True)
 class SeriesOhms:
     """Series-type ohms scale with centre-scale value ``centre`` (ohms)."""
 
@@ -121,7 +121,7 @@ class SeriesOhms:
         return None
 
 
-@dataclass(frozen=True, kw_only=True)
+@dataclass(frozen=True, kw_only=True, slots=True)
 class ShuntOhms:
     """Shunt-type ohms scale with centre-scale value ``centre`` (ohms)."""
 

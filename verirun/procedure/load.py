@@ -45,7 +45,7 @@ _ACCURACY_UNITS = {
 }
 
 
-@dataclass(frozen=True, kw_only=True)
+@dataclass(frozen=True, kw_only=True, slots=True)
 class Band:
     """An accuracy statement and the frequencies it holds for (``None``: all)."""
 
@@ -59,7 +59,7 @@ class Band:
         return in_band(frequency, self.low_hz, self.high_hz)
 
 
-@dataclass(frozen=True, kw_only=True)
+@dataclass(frozen=True, kw_only=True, slots=True)
 class ResolvedRange:
     """A range with every quantity in SI floats and its scale law built."""
 

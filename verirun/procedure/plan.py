@@ -18,7 +18,7 @@ from verirun.functions import is_alternating, words_for
 from verirun.units import format_quantity
 
 
-@dataclass(frozen=True, kw_only=True)
+@dataclass(frozen=True, kw_only=True, slots=True)
 class TestPoint:
     """One step of a run: a stimulus to apply and the window the reading must fall in."""
 
