@@ -408,3 +408,24 @@ class Terminal:
         finally:
             os.close(self.master)
         return self.proc.returncode
+
+
+def undescribed_fields(schema: dict, root: str) -> list[str]:
+    """Every property of a JSON Schema (pydantic's, with ``$defs``) that does not say what it
+    means: it has no description, and neither has the part it refers to (a ``$ref``, alone or
+    beside ``null`` in an ``anyOf``), as ``Part.field``."""
+    defs = schema.get("$defs", {})
+
+    def described(field: dict) -> bool:
+        if "description" in field:
+            return True
+        refs = [field] + field.get("anyOf", []) + field.get("allOf", [])
+        named = [r["$ref"].rsplit("/", 1)[-1] for r in refs if "$ref" in r]
+        return bool(named) and all("description" in defs.get(name, {}) for name in named)
+
+    missing = []
+    for where, part in [(root, schema), *defs.items()]:
+        for name, field in part.get("properties", {}).items():
+            if not described(field):
+                missing.append(f"{where}.{name}")
+    return missing

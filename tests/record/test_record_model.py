@@ -13,6 +13,7 @@ from pathlib import Path
 import jsonschema
 import pytest
 from pydantic import MISSING, ValidationError
+from runkit import undescribed_fields
 
 from verirun.cli import main
 from verirun.errors import RecordError
@@ -20,7 +21,9 @@ from verirun.record.documents import PointResult, Record, record_schema, validat
 from verirun.record.journal import RECORD_FORMAT, load_record, load_record_model, write_record
 
 DATA = Path(__file__).resolve().parents[1] / "data"
-STORED = sorted((DATA / "stored-runs").glob("*/record*.json"))
+STORED = sorted((DATA / "stored-runs").glob("*/record*.json")) + sorted(
+    (DATA / "steps" / "stored").glob("*/record*.json")
+)
 SHIPPED = json.loads((files("verirun") / "schema" / "record.schema.json").read_text("utf-8"))
 
 
@@ -88,17 +91,9 @@ class TestShippedSchema:
         assert '"schema/*.json"' in text
 
     def test_every_field_is_described(self):
-        """Every field of every part of the record says what it means."""
-
-        def undescribed(schema: dict, where: str):
-            for name, field in schema.get("properties", {}).items():
-                if "description" not in field and "$ref" not in field:
-                    yield f"{where}.{name}"
-
-        missing = list(undescribed(SHIPPED, "Record"))
-        for name, part in SHIPPED["$defs"].items():
-            missing += list(undescribed(part, name))
-        assert missing == []
+        """Every field of every part of the record says what it means, itself or by the part it
+        refers to."""
+        assert undescribed_fields(SHIPPED, "Record") == []
 
 
 class TestStoredRecords:

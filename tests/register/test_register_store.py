@@ -299,6 +299,11 @@ class TestOutbox:
         assert main(["register", "sync", "--runs", str(tmp_path / "runs")]) == 0
         assert journal.read_text().count('"kind":"certificate-number"') == 1
         assert _count(register, numbers) == 1
+        from runkit import fits_the_journal_schema
+
+        fits_the_journal_schema(
+            [json.loads(line) for line in journal.read_text(encoding="utf-8").splitlines()]
+        )
 
     def test_two_syncs_at_once_append_each_number_once(
         self, register, register_url, tmp_path, closed_run, monkeypatch

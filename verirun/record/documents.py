@@ -124,11 +124,15 @@ class Chained(Part):
 
 
 class Software(Part):
+    """The program that wrote the journal."""
+
     name: str = Field(description="the program that wrote the journal")
     version: str = Field(description="its version")
 
 
 class ProcedureAsRun(Part):
+    """The procedure the run followed, its whole text included."""
+
     id: str = Field(description="the procedure's identifier")
     title: str = Field(description="its title")
     revision: str = Field(description="its revision")
@@ -138,6 +142,8 @@ class ProcedureAsRun(Part):
 
 
 class CalibratorAsRun(Part):
+    """The reference standard (the calibrator) the run used, and what it answered to *IDN?."""
+
     description: str = Field(description="what the reference standard is")
     asset: str = Field(description="the lab's asset number of the standard")
     identity: str | None = Field(
@@ -152,6 +158,8 @@ class CalibratorAsRun(Part):
 
 
 class BenchAsRun(Part):
+    """The bench the run was made on, its whole bench file included."""
+
     id: str = Field(description="the bench's identifier")
     location: str | None = Field(
         description="where the bench is (none if the bench file names no place)"
@@ -164,22 +172,30 @@ class BenchAsRun(Part):
 
 
 class Signatory(Part):
+    """The one signatory of an older lab profile."""
+
     name: str = Field(description="who signs the lab's certificates")
     title: str = Field(description="their title")
 
 
 class Wording(Part):
+    """The lab's standard sentences printed on its certificates."""
+
     relate_only: str = Field(description="the results relate only to the item calibrated")
     reproduction: str = Field(description="the certificate may be reproduced only in full")
     safety: str = Field(description="the lab's safety caution")
 
 
 class Person(Part):
+    """A person the lab authorises to issue certificates."""
+
     name: str = Field(description="a person the lab authorises to issue certificates")
     role: str = Field(description="the role they issue in")
 
 
 class LabAsRun(Part):
+    """The calibration laboratory, as its lab profile stood when the run began."""
+
     name: str = Field(description="the lab's name, as its certificates give it")
     address: list[str] = Field(description="lines of the lab's address")
     accreditation: str | None = Field(
@@ -203,11 +219,15 @@ class LabAsRun(Part):
 
 
 class Customer(Part):
+    """Whose meter is calibrated."""
+
     name: str = Field(description="the customer's name")
     address: list[str] = Field(default=[], description="lines of the customer's address")
 
 
 class Item(Part):
+    """The meter under test."""
+
     serial: str = Field(description="serial number of the meter under test")
     asset: str | None = Field(default=None, description="the customer's asset number, if given")
     condition: str | None = Field(
@@ -217,6 +237,8 @@ class Item(Part):
 
 
 class Environment(Part):
+    """The laboratory's conditions as the run began (each absent when not recorded)."""
+
     temperature_c: float | None = Field(
         default=None, allow_inf_nan=False, description="laboratory temperature at the start, °C"
     )
@@ -241,7 +263,7 @@ class AsFound(Part):
 class Start(Chained):
     """A run begins: everything needed to replay and certify it."""
 
-    kind: Literal["start"]
+    kind: Literal["start"] = Field(description="the kind of document: start")
     journal_format: int | None = Field(
         default=None, ge=2, description="the journal's format (absent in format 1)"
     )
@@ -288,7 +310,7 @@ class Resume(Chained):
     """A stopped run is continued; with ``pending`` 0 and no ``identity``, a run whose every step
     had an entry is closed without the bench."""
 
-    kind: Literal["resume"]
+    kind: Literal["resume"] = Field(description="the kind of document: resume")
     identity: str | None = Field(
         description="the calibrator's identity, as it answered now (none"
         " when the run was closed without the bench)"
@@ -306,6 +328,8 @@ class Resume(Chained):
 
 
 class Applied(Part):
+    """The stimulus the calibrator applied at the step."""
+
     value: Reading = Field(description="the stimulus the calibrator was set to, SI units")
     frequency: Reading | None = Field(description="its frequency in Hz (AC), or none")
 
@@ -313,7 +337,7 @@ class Applied(Part):
 class Observation(Chained):
     """A reading at a step, as it was typed (or replayed) and as it was understood."""
 
-    kind: Literal["observation"]
+    kind: Literal["observation"] = Field(description="the kind of document: observation")
     point: PointKey
     index: Step
     range: str = Field(description="the range's id")
@@ -326,7 +350,7 @@ class Observation(Chained):
 class Skip(Chained):
     """A step skipped by the operator."""
 
-    kind: Literal["skip"]
+    kind: Literal["skip"] = Field(description="the kind of document: skip")
     point: PointKey
     index: Step
     reason: str | None = Field(description="why it was skipped")
@@ -336,8 +360,8 @@ class Skip(Chained):
 class Note(Chained):
     """A remark at a step (``point``) or for the run as a whole (``point`` none)."""
 
-    kind: Literal["note"]
-    point: PointKey | None
+    kind: Literal["note"] = Field(description="the kind of document: note")
+    point: PointKey | None = Field(description="the step it is for (none: the run as a whole)")
     text: str = Field(description="the remark")
     hazardous: bool | None = Field(
         default=None, description="true when it records hazardous output permitted"
@@ -359,7 +383,7 @@ class Withdrawal(Chained):
     """The operator withdrew the last entry (``undo``) before the run went on; a later entry for
     the step replaces it, and until there is one the step counts as not measured."""
 
-    kind: Literal["withdrawal"]
+    kind: Literal["withdrawal"] = Field(description="the kind of document: withdrawal")
     point: PointKey
     index: Step
     typed: str = Field(description="what was typed for the entry withdrawn")
@@ -369,7 +393,7 @@ class Withdrawal(Chained):
 class Correction(Chained):
     """A reading of a finished run corrected, making the record's next revision."""
 
-    kind: Literal["correction"]
+    kind: Literal["correction"] = Field(description="the kind of document: correction")
     point: PointKey
     index: Step
     typed: str = Field(description="the corrected reading as typed")
@@ -381,8 +405,11 @@ class Correction(Chained):
 class Stop(Chained):
     """The run ended."""
 
-    kind: Literal["stop"]
-    status: Literal["complete", "aborted", "failed"]
+    kind: Literal["stop"] = Field(description="the kind of document: stop")
+    status: Literal["complete", "aborted", "failed"] = Field(
+        description="how the run ended: complete (every step done), aborted (by the operator or a"
+        " signal) or failed (by a fault of the bench, the disk or the program)"
+    )
     reason: str | None = Field(description="why it stopped, naming the step (none when complete)")
     counts: dict[str, int] = Field(description="results so far by verdict, and skipped steps")
 
@@ -390,7 +417,7 @@ class Stop(Chained):
 class Issue(Chained):
     """A revision's certificate issued, after review, by a person the lab profile lists."""
 
-    kind: Literal["issue"]
+    kind: Literal["issue"] = Field(description="the kind of document: issue")
     by: str = Field(description="who issued it, as the lab profile names them")
     role: str = Field(description="the role they issued it in, from the lab profile")
     revision: int = Field(ge=1, description="the revision of the record issued")
@@ -400,7 +427,7 @@ class Issue(Chained):
 class AsFoundRevised(Chained):
     """The as-found run of this (as-left) run was amended: its new results, a new revision."""
 
-    kind: Literal["as-found"]
+    kind: Literal["as-found"] = Field(description="the kind of document: as-found")
     as_found: AsFound
     reason: str = Field(description="why the as-found run was amended")
     operator: str = Field(description="who amended it")
@@ -410,7 +437,9 @@ class CertificateNumber(Chained):
     """The certificate number the lab register gave the complete run (once; written after its
     stop document, when the run is sent to the register, and before any issue)."""
 
-    kind: Literal["certificate-number"]
+    kind: Literal["certificate-number"] = Field(
+        description="the kind of document: certificate-number"
+    )
     number: str = Field(description="the certificate number, in the lab's sequence")
     register_url: str = Field(description="the register that gave it (its URL without a password)")
 
