@@ -90,7 +90,8 @@ def render_sizes(sizes, root: Path) -> list[list[str]]:
 
 
 def make_folder(count: int, root: Path) -> list[Path]:
-    """``count`` copies of one 30-point run, each with its own uid and serial; returns the folders."""
+    """``count`` copies of one 30-point run, each with its own uid and serial; returns the
+    folders."""
     from verirun.record.build import build_record
     from verirun.record.journal import (
         JOURNAL_NAME,

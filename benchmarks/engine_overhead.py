@@ -452,9 +452,12 @@ def report(results: list[dict]) -> None:
             ]
         )
     print(
-        "\nEngine overhead: the dry run up to the journal's last line (preflight, opening the simulated"
-        "\ncalibrator, the run loop, every observation journaled and fsynced) against the hand-written"
-        "\nPyVISA loop doing the same; wall time, medians; ratio = median of the per-repetition ratios"
+        "\nEngine overhead: the dry run up to the journal's last line (preflight, opening the"
+        " simulated"
+        "\ncalibrator, the run loop, every observation journaled and fsynced) against the"
+        " hand-written"
+        "\nPyVISA loop doing the same; wall time, medians; ratio = median of the per-repetition"
+        " ratios"
     )
     print(
         _gen.table(
@@ -489,9 +492,12 @@ def report(results: list[dict]) -> None:
             ]
         )
     print(
-        "\nThe rest of a verirun dry run, which the baseline does not do: closing the journal into the run"
-        "\nrecord (every point evaluated again from the journal) and rendering the certificate; us per"
-        "\npoint. whole ratio = the whole execute over the baseline (for information; the certificate's"
+        "\nThe rest of a verirun dry run, which the baseline does not do: closing the journal into"
+        " the run"
+        "\nrecord (every point evaluated again from the journal) and rendering the certificate;"
+        " us per"
+        "\npoint. whole ratio = the whole execute over the baseline (for information; the"
+        " certificate's"
         "\nown targets are in certificates.py)"
     )
     print(
@@ -523,8 +529,8 @@ def report(results: list[dict]) -> None:
             ]
         )
     print(
-        "\nCPU time of the process (whole execute) and fsync wait, us per point (the disk is shared:"
-        " fsync varies)"
+        "\nCPU time of the process (whole execute) and fsync wait, us per point"
+        " (the disk is shared: fsync varies)"
     )
     print(
         _gen.table(
@@ -559,13 +565,15 @@ def report(results: list[dict]) -> None:
     growth = per_point(big, "engine") / per_point(prev, "engine")
     growth_whole = per_point(big, "whole") / per_point(prev, "whole")
     print(
-        f"\nPer-point cost flat? verirun us/pt at N={big['n']} over N={prev['n']}: engine {growth:.2f},"
+        f"\nPer-point cost flat? verirun us/pt at N={big['n']} over N={prev['n']}:"
+        f" engine {growth:.2f},"
         f" whole {growth_whole:.2f} (target <= {FLAT_TARGET}):"
         f" {_gen.verdict(max(growth, growth_whole) <= FLAT_TARGET)}"
     )
     worst = max(results, key=lambda r: r["engine_ratio"])
     print(
-        f"Engine ratio <= {RATIO_TARGET} at every size: {_gen.verdict(worst['engine_ratio'] <= RATIO_TARGET)}"
+        f"Engine ratio <= {RATIO_TARGET} at every size:"
+        f" {_gen.verdict(worst['engine_ratio'] <= RATIO_TARGET)}"
         f" (worst {worst['engine_ratio']:.2f} at N={worst['n']})"
     )
 

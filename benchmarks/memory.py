@@ -140,7 +140,10 @@ def main(argv=None) -> int:
         workers = worker_count(count)
         if workers > 1:
             total = cert["peak_mb"] + workers * cert["workers_peak_mb"]
-            how = f"{cert['peak_mb']:.0f} MB main + {workers} x {cert['workers_peak_mb']:.0f} MB workers"
+            how = (
+                f"{cert['peak_mb']:.0f} MB main"
+                f" + {workers} x {cert['workers_peak_mb']:.0f} MB workers"
+            )
         else:
             total, how = cert["peak_mb"], "one process"
 

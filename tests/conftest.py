@@ -33,8 +33,8 @@ def data_dir() -> Path:
 
 @pytest.fixture(autouse=True)
 def _work_in_tmp(tmp_path, monkeypatch):
-    """Every test runs in its own folder, so a default `runs/` or `reports/` never lands in the repo,
-    and keeps its machine-wide locks there, so tests never meet another session's locks."""
+    """Every test runs in its own folder, so a default `runs/` or `reports/` never lands in the
+    repo, and keeps its machine-wide locks there, so tests never meet another session's locks."""
     monkeypatch.chdir(tmp_path)
     (tmp_path / ".runtime").mkdir()
     monkeypatch.setenv("XDG_RUNTIME_DIR", str(tmp_path / ".runtime"))

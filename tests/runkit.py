@@ -306,7 +306,7 @@ _DIE_AT = textwrap.dedent("""
     LAST = int(os.environ.get("VERIRUN_TEST_LAST", "-1"))
     from verirun.cli import main
     sys.exit(main(sys.argv[1:]))
-""")
+""")  # noqa: E501
 
 
 def run_until_death(args: list, moment: str, *, last_index: int = -1, cwd: Path | None = None):

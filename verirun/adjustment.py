@@ -36,8 +36,10 @@ def check_as_found(
         )
     if simulated is not None and bool(record["bench"].get("simulated")) != simulated:
         raise RecordError(
-            f"{run}: the as-found run was {'a dry run' if record['bench'].get('simulated') else 'at a real bench'};"
-            " the as-left run must be made the same way, or the certificate would mix a dry run with a calibration"
+            f"{run}: the as-found run was"
+            f" {'a dry run' if record['bench'].get('simulated') else 'at a real bench'};"
+            " the as-left run must be made the same way, or the certificate would mix a dry run"
+            " with a calibration"
         )
     already = as_left_runs(record["run"]["uid"], [Path(run).resolve().parent, *others])
     if already:

@@ -78,7 +78,8 @@ def rest_warnings(points) -> list[str]:
 def check(
     paths: list[Path], *, bench_path: Path | None = None, today: dt.date | None = None
 ) -> Report:
-    """Check every file of ``paths`` (and, with ``bench_path``, each procedure's preflight on it)."""
+    """Check every file of ``paths`` (and, with ``bench_path``, each procedure's preflight on
+    it)."""
     from verirun.bench.config import load_bench
     from verirun.bench.profile import load_profile
     from verirun.lab import load_lab
@@ -111,8 +112,8 @@ def check(
                 report.lines.extend(f"{path}: warning: {text}" for text in rest_warnings(points))
                 report.lines.append(
                     f"{path}: ok: procedure {procedure.id} revision {procedure.revision},"
-                    f" {len(procedure.ranges)} ranges, {sum(len(r.points) for r in procedure.ranges)}"
-                    " points"
+                    f" {len(procedure.ranges)} ranges,"
+                    f" {sum(len(r.points) for r in procedure.ranges)} points"
                 )
             elif kind == "bench file":
                 loaded = load_bench(path)

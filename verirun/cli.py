@@ -211,7 +211,10 @@ def _parser() -> argparse.ArgumentParser:
 
     issue = sub.add_parser(
         "issue",
-        help="issue a run's certificate after review: records who authorised it, when and in which role",
+        help=(
+            "issue a run's certificate after review: records who authorised it, when and in"
+            " which role"
+        ),
     )
     issue.add_argument("run", type=Path, help="the run folder")
     issue.add_argument(
@@ -405,7 +408,8 @@ def _resume_hint(exc: BaseException) -> None:
     )
     with deferred_signals():  # said while the run stops, like _err
         _err(
-            f"every confirmed reading is kept in {run_dir}; {fix}continue with: verirun resume {run_dir}"
+            f"every confirmed reading is kept in {run_dir};"
+            f" {fix}continue with: verirun resume {run_dir}"
         )
 
 
@@ -586,7 +590,8 @@ def _window_resolution(text: str, unit: str, arc, ohms: bool, quantity):
 
 
 def _window_document(win, unit, budget, rule, result, texts, reading, validation) -> dict:
-    """The JSON object of ``verirun window``: every number, and each as the certificate prints it."""
+    """The JSON object of ``verirun window``: every number, and each as the certificate prints
+    it."""
     from verirun.record.journal import json_number
 
     accept = result.acceptance
@@ -756,12 +761,14 @@ def _cmd_amend(args) -> int:
     for folder, left in revise_as_left(args.run, reason=args.reason, operator=args.operator):
         combined = write_certificate(left, args.reports or _reports_of(folder))
         print(
-            f"{folder}: the as-left run's combined certificate takes the corrected as-found results:"
+            f"{folder}: the as-left run's combined certificate takes the corrected as-found"
+            " results:"
             f" revision {left['run']['revision']} ({state_of(left)}); certificate {combined}"
         )
     if waiting(args.run):
         _err(
-            "the register could not take this revision; it waits in the run's outbox for 'verirun register sync'"
+            "the register could not take this revision; it waits in the run's outbox for"
+            " 'verirun register sync'"
         )
     return EXIT_OK
 
@@ -788,7 +795,8 @@ def _cmd_issue(args) -> int:
         print(f"  and {write_pdf(out.read_text(encoding='utf-8'), out.with_suffix('.pdf'))}")
     if waiting(args.run):
         _err(
-            "the register could not take the issued record; it waits in the run's outbox for 'verirun register sync'"
+            "the register could not take the issued record; it waits in the run's outbox for"
+            " 'verirun register sync'"
         )
     return EXIT_OK
 
@@ -1052,7 +1060,8 @@ def _today() -> str:
 
 
 def _certificate_cell(row: dict) -> str:
-    """A run's certificate number with its state: ``KFM-... (draft)``, ``(issued)``, ``(dry run)``."""
+    """A run's certificate number with its state: ``KFM-... (draft)``, ``(issued)``,
+    ``(dry run)``."""
     number, state = row.get("certificate") or "", row.get("certificate_state")
     return f"{number} ({state})" if number and state else number
 

@@ -12,7 +12,8 @@ _HUMIDITY = re.compile(r"^\s*(\d+(?:\.\d+)?)\s*(?:%\s*(?:RH|rh)?|RH|rh)?\s*$")
 
 
 def parse_temperature(text: str, field: str = "temperature") -> float:
-    """A laboratory temperature in °C (``"23.1"``, ``"23.1 °C"``), plausible for a lab (-10 to 50)."""
+    """A laboratory temperature in °C (``"23.1"``, ``"23.1 °C"``), plausible for a lab
+    (-10 to 50)."""
     match = _TEMPERATURE.match(text)
     if match is None:
         raise UnitError(

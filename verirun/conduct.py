@@ -346,7 +346,8 @@ class Resumable:
     environment: dict
 
     def text(self) -> str:
-        """The run in words: ``"Continuing run ... (uid ...): ... 6 of 20 readings kept, a dry run"``."""
+        """The run in words:
+        ``"Continuing run ... (uid ...): ... 6 of 20 readings kept, a dry run"``."""
         how = (
             "a dry run on the simulated calibrator"
             if self.simulated
@@ -354,8 +355,8 @@ class Resumable:
         )
         return (
             f"Continuing run {self.run_dir} (uid {self.uid}) of item {self.serial}, procedure"
-            f" {self.procedure}: {self.kept} of {self.points} points have a confirmed entry and are kept,"
-            f" {self.points - self.kept} to go; {how}"
+            f" {self.procedure}: {self.kept} of {self.points} points have a confirmed entry and are"
+            f" kept, {self.points - self.kept} to go; {how}"
         )
 
 

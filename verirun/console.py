@@ -259,7 +259,8 @@ class Console:
         return answer.strip().lower() in (word, word[0])
 
     def confirm_hazard(self, question: str) -> str:
-        """Ask before a hazardous switch-on: ``"yes"``, ``"skip"`` (skip the point) or ``"stop"``."""
+        """Ask before a hazardous switch-on: ``"yes"``, ``"skip"`` (skip the point) or
+        ``"stop"``."""
         answer = self.ask(
             Text.assemble(
                 question,
@@ -479,7 +480,10 @@ class QuietConsole:
 
         result = evaluate(point, entry.value)
         numbers, word = result_text(point, entry, result)
-        line = f"{point.index + 1:>3}/{point.total} {point.range.id:<9} {point.stimulus_text():<15} {numbers}"
+        line = (
+            f"{point.index + 1:>3}/{point.total} {point.range.id:<9}"
+            f" {point.stimulus_text():<15} {numbers}"
+        )
         self._log(f"{line} {word}")
         if self.echo is not None:
             self.echo.print(Text.assemble(f"{line} ", verdict_text(result.verdict)))

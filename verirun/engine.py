@@ -331,7 +331,8 @@ class Engine:
         return self.journal.written > 0
 
     def _identify(self) -> tuple[str | None, BenchError | None]:
-        """The calibrator's identity, and the problem with it (``None`` when it is the right one)."""
+        """The calibrator's identity, and the problem with it (``None`` when it is the right
+        one)."""
         command = self.calibrator.profile.commands.identify
         try:
             identity = self.calibrator.identify()

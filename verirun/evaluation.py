@@ -185,15 +185,15 @@ def shown(
 
     The console's result line, ``verirun window``, the run record and the certificate print
     these texts. Without ``typed`` (``verirun window`` with no reading) the result's figures
-    are shown under the prefix of the limits and ``reading`` is ``None``. The reading is shown as ``typed`` (its digits kept); each limit with enough
-    digits that the reading shown, compared with the limit shown, gives the verdict shown; U to
-    two significant digits (GUM 7.2.6) and the error rounded to the same decimal place; zero
-    never signed. Keys: ``unit`` (the row's prefixed unit), ``low``, ``high`` (tolerance
-    limits), and for a reading ``reading``, ``accept_low``, ``accept_high`` (acceptance limits,
-    ``None`` when the rule leaves none), ``outer_low``, ``outer_high`` (non-binary: ``w``
-    outside the tolerance), ``error``, ``U_spec`` (U in the error's unit), ``U`` (U in the
-    range's unit where the tolerance is stated on the value, else ``None``), ``interval`` (the
-    coverage interval in the range's unit, as the scale law maps it).
+    are shown under the prefix of the limits and ``reading`` is ``None``. The reading is shown as
+    ``typed`` (its digits kept); each limit with enough digits that the reading shown, compared with
+    the limit shown, gives the verdict shown; U to two significant digits (GUM 7.2.6) and the error
+    rounded to the same decimal place; zero never signed. Keys: ``unit`` (the row's prefixed unit),
+    ``low``, ``high`` (tolerance limits), and for a reading ``reading``, ``accept_low``,
+    ``accept_high`` (acceptance limits, ``None`` when the rule leaves none), ``outer_low``,
+    ``outer_high`` (non-binary: ``w`` outside the tolerance), ``error``, ``U_spec`` (U in the
+    error's unit), ``U`` (U in the range's unit where the tolerance is stated on the value, else
+    ``None``), ``interval`` (the coverage interval in the range's unit, as the scale law maps it).
     """
     site = Site.of(point)
     win = site.window

@@ -58,7 +58,8 @@ test_current.__test__ = False  # not a pytest test
 
 
 def current_problem(point: TestPoint, bench: Bench) -> str | None:
-    """Why the ohmmeter's test current at ``point`` is more than the calibrator accepts (or ``None``)."""
+    """Why the ohmmeter's test current at ``point`` is more than the calibrator accepts (or
+    ``None``)."""
     current = test_current(point)
     limit = bench.current_limit(point.nominal) if current is not None else None
     if limit is None or current <= limit * (1 + 1e-12):
@@ -67,8 +68,8 @@ def current_problem(point: TestPoint, bench: Bench) -> str | None:
     return (
         f"the ohmmeter drives {format_quantity(current, 'A', 3)} (I = E / (Rc + Rx) ="
         f" {format_quantity(rng.battery, 'V')} / ({format_quantity(rng.law.centre, 'Ω')} +"
-        f" {format_quantity(point.nominal, 'Ω')})) through the calibrator's resistance output, which"
-        f" accepts at most {format_quantity(limit, 'A', 3)} there ({bench.source}:"
+        f" {format_quantity(point.nominal, 'Ω')})) through the calibrator's resistance output,"
+        f" which accepts at most {format_quantity(limit, 'A', 3)} there ({bench.source}:"
         " calibrator.resistance-current); choose another point or range"
     )
 

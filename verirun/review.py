@@ -24,7 +24,8 @@ from verirun.procedure.load import Procedure
 from verirun.procedure.plan import TestPoint, plan
 from verirun.units import format_quantity
 
-#: Below this test uncertainty ratio a point is flagged (ANSI/NCSL Z540.3 and common practice: 4 : 1).
+#: Below this test uncertainty ratio a point is flagged
+#: (ANSI/NCSL Z540.3 and common practice: 4 : 1).
 TUR_FLAG = 4.0
 
 
@@ -121,7 +122,8 @@ def review(procedure: Procedure, bench: Bench, profile, *, today: dt.date) -> Re
     if hazardous:
         warnings.append(
             f"{len(hazardous)} point{'s' if len(hazardous) != 1 else ''} at or above the bench's"
-            f" hazardous-live threshold (step{'s' if len(hazardous) != 1 else ''} {', '.join(map(str, hazardous))}): the operator"
+            f" hazardous-live threshold (step{'s' if len(hazardous) != 1 else ''}"
+            f" {', '.join(map(str, hazardous))}): the operator"
             " confirms before each switch-on; a scripted run needs the bench's"
             f" safety: scripted-hazardous: allow (this bench: {scripted})"
         )

@@ -387,10 +387,10 @@ def format_limit(
 
     The limit is shown exactly, with its own digits, when its decimal ends within
     ``places + 4`` places (``places``: the decimals the reading is shown with); otherwise to
-    ``digits`` significant digits and at least ``places`` places. Then, with a ``reading``, digits are added until the
-    reading shown compared with the limit shown (``reading >= limit`` for a lower limit,
-    ``reading <= limit`` for an upper, limits included) gives the same answer as the exact
-    comparison.
+    ``digits`` significant digits and at least ``places`` places. Then, with a ``reading``, digits
+    are added until the reading shown compared with the limit shown (``reading >= limit`` for a
+    lower limit, ``reading <= limit`` for an upper, limits included) gives the same answer as the
+    exact comparison.
     """
     if isinstance(limit, float):
         if math.isinf(limit):

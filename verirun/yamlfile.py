@@ -235,7 +235,8 @@ def _first_line(exc) -> str:
 
 
 def load_file(path: str | Path) -> LocatedData:
-    """Read and parse a YAML file; a missing, unreadable or non-UTF-8 file is a :class:`ProcedureError`."""
+    """Read and parse a YAML file; a missing, unreadable or non-UTF-8 file is a
+    :class:`ProcedureError`."""
     return load_text(read_text(path), str(path))
 
 

@@ -55,7 +55,8 @@ class ExpectedProtocol:
 
 @pytest.fixture
 def expect():
-    """Build an :class:`ExpectedProtocol`; at teardown every exchange must have happened, and no other."""
+    """Build an :class:`ExpectedProtocol`; at teardown every exchange must have happened, and no
+    other."""
     made = []
 
     def build(pairs):

@@ -27,7 +27,8 @@ def cal(expect, pairs):
 
 class TestIdentify:
     def test_sends_idn_and_strips_the_reply(self, expect):
-        """identify() sends the IEEE 488.2 identity query and returns the reply without surrounding blanks."""
+        """identify() sends the IEEE 488.2 identity query and returns the reply without surrounding
+        blanks."""
         assert cal(expect, [("*IDN?", " Maker,Model,1,2 \r")]).identify() == "Maker,Model,1,2"
 
     def test_empty_identity_is_an_error(self, expect):
@@ -37,25 +38,29 @@ class TestIdentify:
         assert err.value.command == "*IDN?"
 
     def test_simulated_device(self, sim):
-        """The simulated calibrator answers with its invented identity (bench/sim/calibrator.yaml)."""
+        """The simulated calibrator answers with its invented identity
+        (bench/sim/calibrator.yaml)."""
         assert sim.identify() == "Verirun Simulation,SIM-CAL-1,0,1.0"
 
 
 class TestReset:
     def test_resets_clears_and_discards_stale_errors(self, expect):
-        """reset() sends *RST and *CLS, then empties the error queue without raising for old entries."""
+        """reset() sends *RST and *CLS, then empties the error queue without raising for old
+        entries."""
         cal(expect, [("*RST", None), ("*CLS", None), (ERR, OUT_OF_RANGE), (ERR, EMPTY)]).reset()
 
 
 class TestSource:
     def test_dc_voltage_exchanges(self, expect):
-        """Sourcing DC voltage selects DC, sets the level, and checks the error queue after each command."""
+        """Sourcing DC voltage selects DC, sets the level, and checks the error queue after each
+        command."""
         cal(expect, [("FUNC DC", None), (ERR, EMPTY), ("VOLT 5.0", None), (ERR, EMPTY)]).source(
             "dc-voltage", 5
         )
 
     def test_ac_sets_frequency_before_level(self, expect):
-        """Sourcing AC sends the frequency before the level, so the new level never appears at the old frequency."""
+        """Sourcing AC sends the frequency before the level, so the new level never appears at the
+        old frequency."""
         cal(
             expect,
             [
@@ -107,7 +112,8 @@ class TestSource:
         ],
     )
     def test_strict_validator_sends_nothing(self, expect, function, value, frequency, words):
-        """A stimulus outside the profile's limits, or malformed, is refused with the value and limit named, before anything is sent."""
+        """A stimulus outside the profile's limits, or malformed, is refused with the value and
+        limit named, before anything is sent."""
         with pytest.raises(BenchError) as err:
             cal(expect, []).source(function, value, frequency)
         for word in words:
@@ -121,7 +127,8 @@ class TestSource:
             Calibrator(expect([]), path).source("resistance", 100.0)
 
     def test_instrument_error_names_command_and_answer(self, expect):
-        """An error queued after a command stops the sequence and is reported with that command and the raw entry."""
+        """An error queued after a command stops the sequence and is reported with that command and
+        the raw entry."""
         driver = cal(
             expect,
             [
@@ -146,7 +153,8 @@ class TestSource:
         assert err.value.command == "FUNC SIN"
 
     def test_simulated_state_follows_the_source(self, sim):
-        """After source(), the simulated device holds the function, level and frequency that were asked for."""
+        """After source(), the simulated device holds the function, level and frequency that were
+        asked for."""
         sim.source("ac-voltage", 12.5, 400.0)
         assert (
             sim.resource.query("FUNC?"),
@@ -169,7 +177,8 @@ class TestSource:
         assert sim.errors() == []
 
     def test_device_rejection_is_reported_when_profile_is_wider(self, tmp_path, custom_profile):
-        """With profile limits wider than the device's, the device's own rejection surfaces as a BenchError."""
+        """With profile limits wider than the device's, the device's own rejection surfaces as a
+        BenchError."""
         path = custom_profile(
             lambda data: data["functions"]["dc-voltage"]["level"].update(max=5000.0)
         )
@@ -195,7 +204,8 @@ class TestOutput:
         "reply, on", [("1", True), ("0", False), ("ON", True), ("OFF", False), ("1\n", True)]
     )
     def test_output_is_on_reads_back(self, expect, reply, on):
-        """The output state is read from the instrument and interpreted by the profile's replies (SCPI boolean 1|0, or ON|OFF)."""
+        """The output state is read from the instrument and interpreted by the profile's replies
+        (SCPI boolean 1|0, or ON|OFF)."""
         assert cal(expect, [("OUTP?", reply)]).output_is_on() is on
 
     def test_unknown_output_reply_is_an_error(self, expect):
@@ -215,7 +225,8 @@ class TestOutput:
 
 class TestErrors:
     def test_drains_until_empty(self, expect):
-        """errors() reads entries until the empty code and returns them oldest first, without quotes."""
+        """errors() reads entries until the empty code and returns them oldest first, without
+        quotes."""
         driver = cal(
             expect, [(ERR, OUT_OF_RANGE), (ERR, '-113,"Undefined header"'), (ERR, '+0,"No error"')]
         )
@@ -235,7 +246,8 @@ class TestErrors:
         assert err.value.answer == "OK"
 
     def test_bounded_when_the_queue_never_empties(self, expect):
-        """An instrument that never reports an empty queue is an error after max_reads (20 in scpi-generic), not a hang."""
+        """An instrument that never reports an empty queue is an error after max_reads (20 in
+        scpi-generic), not a hang."""
         driver = cal(expect, [(ERR, SIM_COMMAND_ERROR)] * 20)
         with pytest.raises(BenchError, match="still not empty after 20 reads"):
             driver.errors()
@@ -247,7 +259,8 @@ class TestErrors:
         assert (err.value.command, err.value.answer) == (ERR, "OK")
 
     def test_simulated_queue_records_a_direct_out_of_range_write(self, sim):
-        """A write that bypasses the driver and breaks the device's limit is found in the device's error queue."""
+        """A write that bypasses the driver and breaks the device's limit is found in the device's
+        error queue."""
         sim.resource.write("VOLT 5000")
         assert sim.errors() == [(-100, "Command error")]
         assert sim.errors() == []
@@ -273,7 +286,8 @@ class TestLinkFailures:
         assert err.value.command == "OUTP ON"
 
     def test_simulated_timeout(self, tmp_path, custom_profile):
-        """A query the simulated device does not answer times out within the 200 ms timeout and becomes a BenchError."""
+        """A query the simulated device does not answer times out within the 200 ms timeout and
+        becomes a BenchError."""
         path = custom_profile(lambda data: data["commands"].update(identify="*IDN"))
         with Calibrator.open(sim_library(tmp_path), SIM_RESOURCE, path, timeout_ms=200) as driver:
             start = time.monotonic()
@@ -391,7 +405,8 @@ class SlowSequence:
 
 
 def test_source_sequences_do_not_interleave_between_threads():
-    """Two threads sourcing at once each get their whole command-and-check sequence without the other's commands inside it."""
+    """Two threads sourcing at once each get their whole command-and-check sequence without the
+    other's commands inside it."""
     fake = SlowSequence()
     driver = Calibrator(fake, "scpi-generic")
     threads = [

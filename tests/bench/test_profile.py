@@ -1,4 +1,5 @@
-"""Driver profiles: loading, strict validation with file:line messages, and the commands they render."""
+"""Driver profiles: loading, strict validation with file:line messages, and the commands they
+render."""
 
 from __future__ import annotations
 
@@ -38,7 +39,8 @@ class TestLoadProfile:
         assert FUNCTIONS == ("dc-voltage", "dc-current", "ac-voltage", "ac-current", "resistance")
 
     def test_packaged_uses_scpi_common_forms(self):
-        """The packaged profile speaks IEEE 488.2 common commands and SCPI OUTPut / SYSTem:ERRor (SCPI-99 vol 2, from memory)."""
+        """The packaged profile speaks IEEE 488.2 common commands and SCPI OUTPut / SYSTem:ERRor
+        (SCPI-99 vol 2, from memory)."""
         profile = load_profile("scpi-generic")
         assert (
             profile.commands.identify,
@@ -170,7 +172,8 @@ class TestMalformed:
         ],
     )
     def test_template_needs_one_plain_placeholder(self, tmp_path, template):
-        """A level command must hold {value} exactly once and format nothing itself (no silent rounding)."""
+        """A level command must hold {value} exactly once and format nothing itself (no silent
+        rounding)."""
         found = problems(
             tmp_path, GOOD.replace('"VOLT {value}", min: -10.0', f"{template}, min: -10.0")
         )
@@ -223,7 +226,8 @@ class TestMalformed:
 
 class TestSourceCommands:
     def test_renders_select_frequency_level(self, tmp_path):
-        """source_commands returns the select commands, then the frequency, then the level, values exact."""
+        """source_commands returns the select commands, then the frequency, then the level, values
+        exact."""
         profile = load_profile(write(tmp_path, GOOD))
         assert profile.source_commands("ac-voltage", 1 / 3, 50) == [
             "FREQ 50.0",

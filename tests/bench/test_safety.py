@@ -32,7 +32,8 @@ class TestOutputGuardProtocol:
                 1 / 0
 
     def test_failed_read_back_is_a_safety_error(self, expect):
-        """If the output state cannot be read back, a SafetyError tells the operator to switch off by hand."""
+        """If the output state cannot be read back, a SafetyError tells the operator to switch off
+        by hand."""
         lost = ConnectionResetError(104, "Connection reset by peer")
         driver = Calibrator(
             expect([("OUTP OFF", None), (ERR, EMPTY), ("OUTP?", lost)]), "scpi-generic"
@@ -47,7 +48,8 @@ class TestOutputGuardProtocol:
         assert isinstance(err.value.__cause__, BenchError)
 
     def test_failed_standby_keeps_the_original_exception(self, expect):
-        """When the block raised and standby then fails, the SafetyError carries the block's exception as its context."""
+        """When the block raised and standby then fails, the SafetyError carries the block's
+        exception as its context."""
         lost = ConnectionResetError(104, "Connection reset by peer")
         driver = Calibrator(expect([("OUTP OFF", lost)]), "scpi-generic")
         with pytest.raises(SafetyError) as err:
@@ -57,7 +59,8 @@ class TestOutputGuardProtocol:
         assert err.value.__cause__.command == "OUTP OFF"
 
     def test_standby_rejected_by_instrument(self, expect):
-        """An error queued after the standby command is a SafetyError: the off command was not accepted."""
+        """An error queued after the standby command is a SafetyError: the off command was not
+        accepted."""
         driver = Calibrator(
             expect([("OUTP OFF", None), (ERR, '-100,"Command error"'), (ERR, EMPTY)]),
             "scpi-generic",
@@ -68,7 +71,8 @@ class TestOutputGuardProtocol:
         assert err.value.answer == '-100,"Command error"'
 
     def test_output_still_on_is_a_safety_error(self, expect):
-        """If the output still reads on after standby, a SafetyError is raised even though every command succeeded."""
+        """If the output still reads on after standby, a SafetyError is raised even though every
+        command succeeded."""
         driver = Calibrator(
             expect([("OUTP OFF", None), (ERR, EMPTY), ("OUTP?", "1")]), "scpi-generic"
         )
@@ -97,7 +101,8 @@ class TestOutputGuardSimulated:
         assert sim.resource.query("OUTP?") == "OFF"
 
     def test_output_off_after_keyboard_interrupt(self, sim):
-        """A KeyboardInterrupt inside the block propagates, and the simulated output reads off afterwards."""
+        """A KeyboardInterrupt inside the block propagates, and the simulated output reads off
+        afterwards."""
         with pytest.raises(KeyboardInterrupt):
             with output_guard(sim):
                 sim.output_on()
@@ -113,7 +118,8 @@ class TestOutputGuardSimulated:
 
 class TestHazardLimits:
     def test_defaults(self):
-        """The defaults are the hazardous-live levels 60 V DC, 30 V rms, 42.4 V peak (IEC 61010-1 6.3.1)."""
+        """The defaults are the hazardous-live levels 60 V DC, 30 V rms, 42.4 V peak
+        (IEC 61010-1 6.3.1)."""
         assert HazardLimits() == HazardLimits(dc_volts=60.0, ac_rms_volts=30.0, ac_peak_volts=42.4)
 
     @pytest.mark.parametrize("field", ["dc_volts", "ac_rms_volts", "ac_peak_volts"])
@@ -152,7 +158,8 @@ class TestIsHazardous:
         ],
     )
     def test_ac_checks_the_peak_too(self, value, hazardous):
-        """AC voltage is hazardous when its rms or its sine peak (rms * sqrt 2) reaches the limit."""
+        """AC voltage is hazardous when its rms or its sine peak (rms * sqrt 2) reaches the
+        limit."""
         assert is_hazardous("ac-voltage", value) is hazardous
 
     def test_ac_rms_limit_alone(self):
@@ -173,7 +180,8 @@ class TestIsHazardous:
 
     @pytest.mark.parametrize("function", ["dc-current", "ac-current", "resistance"])
     def test_only_voltage_is_hazardous(self, function):
-        """Current and resistance functions are never hazardous by this rule, however large the value."""
+        """Current and resistance functions are never hazardous by this rule, however large the
+        value."""
         assert is_hazardous(function, 1e6) is False
 
     @pytest.mark.parametrize("value", [math.nan, math.inf, -math.inf])

@@ -100,8 +100,8 @@ class TestCertifyFolder:
 
 class TestRunsListing:
     def test_lists_filters_and_json(self, demo_run_dir, tmp_path, capsys):
-        """`verirun runs` lists each run's item, procedure, date, verdict and status, filters by item
-        and date, and prints JSON on request."""
+        """`verirun runs` lists each run's item, procedure, date, verdict and status, filters by
+        item and date, and prints JSON on request."""
         folder = tmp_path / "runs"
         clone_run(demo_run_dir, folder / "a", uid="aa" * 16, serial="ITEM-A")
         clone_run(demo_run_dir, folder / "b", uid="bb" * 16, serial="ITEM-B")

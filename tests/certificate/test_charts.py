@@ -313,7 +313,8 @@ class TestErrorChart:
         assert any(t.text == "+5000 %" for t in find(root, "text", "clipped-value"))
 
     def test_zero_tolerance_error_still_shown(self):
-        """A nonzero error against a zero tolerance (no percent) is shown at the edge, not hidden."""
+        """A nonzero error against a zero tolerance (no percent) is shown at the edge, not
+        hidden."""
         row = value_row(0, 2.0, 2.1, None, verdict="fail")
         root = parse(error_chart(LINEAR_RANGE, [row]))
         assert find(root, "polygon", "point", "fail", "clipped")
@@ -482,7 +483,8 @@ class TestArcChart:
         assert find(group(root, "pt@16.0"), "circle", "reading", "pass")
 
     def test_ohms_ticks(self):
-        """An ohms scale is labelled 0 and ∞ at its ends and round values where the law puts them."""
+        """An ohms scale is labelled 0 and ∞ at its ends and round values where the law puts
+        them."""
         root = parse(arc_chart(SERIES_RANGE, [arc_row(16.0, 14.0, 18.29, None, "not-measured")]))
         labels = find(root, "text", "tick-label")
         by_x = sorted(labels, key=lambda t: float(t.get("x")))

@@ -94,7 +94,8 @@ class TestClause7821:
         assert soup.find("h1").get_text(strip=True) == "Certificate of Calibration"
 
     def test_b_c_lab_name_address_and_place(self, cert):
-        """7.8.2.1 b) and c): the lab's name and address, and where the work was done, from the lab profile."""
+        """7.8.2.1 b) and c): the lab's name and address, and where the work was done, from the lab
+        profile."""
         soup, html, _ = cert
         assert "Kestrel Fen Metrology" in text_of(soup, "header.cert")
         assert "12 Sluice Row" in text_of(soup, "header.cert")
@@ -189,7 +190,8 @@ class TestClause784And786:
         assert "traceable to national measurement standards" in method
 
     def test_statement_of_conformity_and_decision_rule(self, cert):
-        """7.8.6.2: the statement of conformity says which results it covers and the decision rule."""
+        """7.8.6.2: the statement of conformity says which results it covers and the decision
+        rule."""
         soup, _, _ = cert
         assert "Simple acceptance (ILAC-G8:09/2019 4.2.1" in text_of(soup, "#decision-rule")
         overall = text_of(soup, "#overall")

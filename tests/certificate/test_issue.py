@@ -108,7 +108,8 @@ def files_of(*folders: Path) -> dict[str, bytes]:
 
 class TestDraftIssueAmendReissue:
     def test_the_whole_path(self, at_the_bench, tmp_path, capsys):
-        """run -> draft -> issue -> amend -> re-issue, each certificate read as the customer would."""
+        """run -> draft -> issue -> amend -> re-issue, each certificate read as the customer
+        would."""
         run = bench_run(tmp_path)
         reports = tmp_path / "rep"
         record = load_record(run)
@@ -263,7 +264,8 @@ class TestDraftIssueAmendReissue:
 
 class TestDryRun:
     def test_a_dry_run_is_never_issued(self, tmp_path, capsys):
-        """Issuing a run on the simulated calibrator is refused with the reason; nothing is written."""
+        """Issuing a run on the simulated calibrator is refused with the reason; nothing is
+        written."""
         run = bench_run(tmp_path, simulate=True)
         before = files_of(run, tmp_path / "rep")
         assert (
@@ -477,7 +479,8 @@ def test_a_full_disk_while_issuing_is_said_not_a_traceback(
 
 
 def test_certify_renders_the_issued_state_again(at_the_bench, tmp_path, capsys):
-    """`verirun certify` of an issued run renders it issued, the same bytes as at issue, and says so."""
+    """`verirun certify` of an issued run renders it issued, the same bytes as at issue, and says
+    so."""
     run = bench_run(tmp_path)
     assert (
         main(["issue", str(run), "--by", "A. Thorneycroft", "--reports", str(tmp_path / "rep")])
@@ -492,7 +495,8 @@ def test_certify_renders_the_issued_state_again(at_the_bench, tmp_path, capsys):
 
 
 def test_runs_lists_each_certificate_state(at_the_bench, tmp_path, capsys):
-    """`verirun runs --json` says of each run whether its certificate is a draft, issued, or a dry run."""
+    """`verirun runs --json` says of each run whether its certificate is a draft, issued, or a dry
+    run."""
     draft = bench_run(tmp_path)
     issued = bench_run(tmp_path)
     dry = bench_run(tmp_path, simulate=True)

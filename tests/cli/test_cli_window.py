@@ -37,8 +37,8 @@ class TestWindowCommand:
 
     def test_unbounded_upper_limit_is_null(self, capsys):
         """Once f - df <= 0 the series-ohms window is unbounded above: high is null
-        (derived from f = Rc/(Rc+Rx): at 1 kohm on the trade's worked 12 ohm centre, 100 degree range,
-        common practice, no source: f = 0.0119 < 0.025)."""
+        (derived from f = Rc/(Rc+Rx): at 1 kohm on the trade's worked 12 ohm centre, 100 degree
+        range, common practice, no source: f = 0.0119 < 0.025)."""
         out = window_json(
             capsys,
             "--scale",

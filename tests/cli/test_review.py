@@ -82,7 +82,8 @@ class TestReview:
         assert rows[7].current_over and rows[8].current_over and not rows[9].current_over
 
     def test_run_refuses_it_too(self, tmp_path):
-        """The same check is part of the run's preflight, so `verirun run` stops before any output."""
+        """The same check is part of the run's preflight, so `verirun run` stops before any
+        output."""
         code = cli.main(
             [
                 "run",
@@ -182,7 +183,8 @@ class TestCheckCommand:
     def test_every_kind_of_file_recognised(
         self, tmp_path, demo_procedure_path, demo_bench_path, demo_lab_path, capsys
     ):
-        """Procedure, bench, driver profile, lab, virtual meter and readings each say what they are."""
+        """Procedure, bench, driver profile, lab, virtual meter and readings each say what they
+        are."""
         from verirun.conduct import demo_files
 
         with demo_files() as demo:
@@ -225,7 +227,8 @@ class TestCheckCommand:
     def test_bench_runs_the_preflight_without_opening_the_instrument(
         self, tmp_path, capsys, monkeypatch
     ):
-        """With --bench, a test current over the limit is reported and nothing opens a VISA library."""
+        """With --bench, a test current over the limit is reported and nothing opens a VISA
+        library."""
         import pyvisa
 
         def no_visa(*args, **kwargs):

@@ -148,7 +148,8 @@ class TestDemoEndToEnd:
         )
 
     def test_record_holds_what_the_run_used(self, tmp_path, sim, make_run, demo_procedure_path):
-        """The run record embeds the procedure text and hash, the bench identity and every window."""
+        """The run record embeds the procedure text and hash, the bench identity and every
+        window."""
         import hashlib
 
         finished, _ = run_demo(make_run, sim)
@@ -176,7 +177,8 @@ class TestDemoEndToEnd:
 
 class TestDemoCommand:
     def test_demo_writes_a_failing_certificate(self, tmp_path, capsys):
-        """`verirun demo` runs on the simulated bench and writes a certificate with a failing point."""
+        """`verirun demo` runs on the simulated bench and writes a certificate with a failing
+        point."""
         code = main(
             ["demo", "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path / "reports")]
         )

@@ -102,7 +102,8 @@ class TestAskCondition:
 
 class TestRunAtARealBench:
     def test_needs_a_lab_profile(self, at_the_bench, tmp_path, capsys):
-        """Without --lab a run at a real bench is refused (the demo lab is for dry runs); no run is written."""
+        """Without --lab a run at a real bench is refused (the demo lab is for dry runs); no run is
+        written."""
         assert main(run_args(tmp_path, "--condition", "as new")) == 1
         assert "needs the lab's profile (--lab FILE)" in capsys.readouterr().err
         assert not (tmp_path / "runs").exists()

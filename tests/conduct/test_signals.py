@@ -357,7 +357,8 @@ class _SignalsAtFsync:
 
 
 def _note(n: int) -> dict:
-    """A journal document of a kind the journal holds (read back, it is checked against its model)."""
+    """A journal document of a kind the journal holds (read back, it is checked against its
+    model)."""
     return {"kind": "note", "time": "2026-12-01T09:00:00Z", "point": None, "text": str(n)}
 
 
@@ -534,7 +535,7 @@ CHILD = textwrap.dedent("""
     # What the calibrator last answered to the output-state query, before the process ended.
     output = [reply for command, reply in replies if command == "OUTP?"][-1]
     out.write_text(json.dumps({"code": code, "sent": sent, "output": output, "run": str(run_dir)}))
-""")
+""")  # noqa: E501
 
 
 class TestRealSignalsInAProcess:

@@ -259,7 +259,8 @@ class TestWhatToRead:
         assert "window 47.5° to 52.5°" not in out
 
     def test_window_shown_with_the_option(self, tmp_path, demo_lab_path):
-        """With show_window, the allowed window along the arc (± 2.5°) and in the value are shown."""
+        """With show_window, the allowed window along the arc (± 2.5°) and in the value are
+        shown."""
         docs, out, *_ = run_typing(tmp_path, demo_lab_path, PLAIN, show_window=True)
         assert "window 47.5° to 52.5° from the left end" in out
         assert "window 4.8 V to 5.2 V" in out

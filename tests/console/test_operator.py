@@ -78,7 +78,8 @@ class TestReadingPrompt:
         self, tmp_path, demo_bench_path, demo_lab_path
     ):
         """Non-numeric text, a wrong unit, a decimal comma, empty input and a value beyond the
-        scale are each refused with the reason and asked again; only the good reading is journaled."""
+        scale are each refused with the reason and asked again; only the good reading is
+        journaled."""
         lines = ["", "abc", "5 mA", "4,9", "12.5", "4.9", "10.1 V"]
         go, raw, out, typist = typed_run(
             tmp_path, PROCEDURE, ["", *lines], demo_bench_path, demo_lab_path
@@ -100,7 +101,8 @@ class TestReadingPrompt:
     def test_console_shows_step_range_stimulus_and_connection(
         self, tmp_path, demo_bench_path, demo_lab_path
     ):
-        """Each step shows 'Step n of N', the range, the stimulus and, before the range, what to connect."""
+        """Each step shows 'Step n of N', the range, the stimulus and, before the range, what to
+        connect."""
         go, raw, out, typist = typed_run(
             tmp_path, PROCEDURE, ["", "5", "10"], demo_bench_path, demo_lab_path
         )

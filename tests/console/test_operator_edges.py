@@ -1,4 +1,5 @@
-"""The operator at the edges: enormous lines, silence with the output on, text that looks like markup."""
+"""The operator at the edges: enormous lines, silence with the output on, text that looks like
+markup."""
 
 from __future__ import annotations
 
@@ -155,7 +156,8 @@ class TestLongLines:
 
 class TestLineReader:
     def test_silence_then_a_line(self):
-        """No line within the limit raises OperatorSilent; a line typed later answers the next get."""
+        """No line within the limit raises OperatorSilent; a line typed later answers the next
+        get."""
         read, write = os.pipe()
         reader = LineReader(read)
         with pytest.raises(OperatorSilent):
@@ -170,7 +172,8 @@ class TestLineReader:
         os.close(read)
 
     def test_an_enormous_line_is_cut_as_it_is_read(self):
-        """A line of 3 MB is kept only up to one character past the limit; the next line is whole."""
+        """A line of 3 MB is kept only up to one character past the limit; the next line is
+        whole."""
         read, write = os.pipe()
         reader = LineReader(read, max_length=1000)
         reader.get  # the thread starts at the first get

@@ -1,4 +1,5 @@
-"""Control and bidirectional-control characters: refused where text comes in, never on a certificate."""
+"""Control and bidirectional-control characters: refused where text comes in, never on a
+certificate."""
 
 from __future__ import annotations
 
@@ -127,7 +128,8 @@ class TestFiles:
         ],
     )
     def test_a_control_in_a_procedure_is_refused_at_its_line(self, title, code):
-        """An escaped control or bidi control in a procedure's text is refused at file:line: field."""
+        """An escaped control or bidi control in a procedure's text is refused at
+        file:line: field."""
         text = PROCEDURE.read_text().replace(
             "title: Edge test procedure, small DC voltage meter", f"title: {title}"
         )

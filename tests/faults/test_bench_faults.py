@@ -318,7 +318,8 @@ class TestFaultMatrix:
 
 class TestStaleErrorBeforeRun:
     def test_error_left_by_a_previous_session_does_not_stop_the_run(self, fault_run):
-        """An error already in the instrument's queue when the run starts is cleared and journaled, not blamed on the run's first command."""
+        """An error already in the instrument's queue when the run starts is cleared and journaled,
+        not blamed on the run's first command."""
         result = fault_run(lambda res: res.on("*IDN?", "queue", answer=OUT_OF_RANGE))
         assert_fired(result)
         assert result.error is None, repr(result.error)
@@ -339,7 +340,8 @@ class TestWrongIdentity:
         return fault_run(lambda res: res.on("*IDN?", "answer", answer=cls.OTHER))
 
     def test_error_names_step_command_and_answer(self, faulted):
-        """A wrong identity stops the run before any point with a BenchError naming the identify step, '*IDN?' and the answer."""
+        """A wrong identity stops the run before any point with a BenchError naming the identify
+        step, '*IDN?' and the answer."""
         assert_fired(faulted)
         error = faulted.error
         assert type(error) is BenchError, repr(error)
@@ -348,14 +350,16 @@ class TestWrongIdentity:
         assert repr(self.OTHER) in str(error)
 
     def test_nothing_is_sourced_and_output_reads_off(self, faulted):
-        """After a wrong identity no level or output-on command is sent and the device reports its output off."""
+        """After a wrong identity no level or output-on command is sent and the device reports its
+        output off."""
         assert_fired(faulted)
         sent = faulted.resource.sent
         assert not any(is_level(c) or c == "OUTP ON" for c in sent), sent
         assert faulted.bench.output_reads() in OFF
 
     def test_journal_says_why_the_run_stopped(self, faulted):
-        """The journal of a run refused at identification ends with a stop document giving the identity found."""
+        """The journal of a run refused at identification ends with a stop document giving the
+        identity found."""
         assert_stop(faulted, "failed", self.OTHER)
 
 
@@ -378,7 +382,8 @@ def _raising(k: int, error: BaseException):
 
 class TestOperatorAbort:
     def test_abort_typed_at_point_k_is_run_aborted(self, fault_run, demo_plan):
-        """'abort' from the reading source stops with RunAborted naming the step, output off, stop journaled."""
+        """'abort' from the reading source stops with RunAborted naming the step, output off, stop
+        journaled."""
         from verirun.readings import Entry
 
         class Aborting:
@@ -409,7 +414,8 @@ class TestRecordAfterFault:
         [("timeout-on-source", "failed"), ("queued-error", "failed"), ("interrupt", "aborted")],
     )
     def test_record_written_when_a_run_stops(self, fault, status, fault_run):
-        """A run stopped by a fault still has its journal closed into record.json, with the stop's status."""
+        """A run stopped by a fault still has its journal closed into record.json, with the stop's
+        status."""
         import json
 
         if fault == "timeout-on-source":
@@ -443,7 +449,8 @@ class TestFaultyResource:
         assert bench.output_reads() == "OFF"
 
     def test_queued_answer_replaces_the_next_error_query_once(self, bench):
-        """A queued error answers the next error-queue query once; the one after is the device's own."""
+        """A queued error answers the next error-queue query once; the one after is the device's
+        own."""
         res = bench.resource.on("VOLT 1.0", "queue", answer=OUT_OF_RANGE)
         res.write("VOLT 1.0")
         assert res.query(ERROR_QUERY) == OUT_OF_RANGE

@@ -146,7 +146,8 @@ class TestReadingsFileMatching:
         assert readings.take(point).value == pytest.approx(10.25e-3)
 
     def test_rows_for_points_already_done_are_not_problems_on_resume(self):
-        """Resuming with the file the run started with: rows of finished points are not left over."""
+        """Resuming with the file the run started with: rows of finished points are not left
+        over."""
         points = plan(load_procedure(DATA / "bench-meter.yaml"))
         readings = ScriptedReadings(DATA / "bench-meter-readings.csv")
         assert readings.check(points[4:], points) == []

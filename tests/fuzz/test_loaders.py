@@ -523,7 +523,8 @@ def _cases(pairs):
 class TestMutatedGoodFiles:
     @pytest.mark.parametrize("name", NAMES)
     def test_good_file_loads(self, name, workdir):
-        """Each packaged good file loads, and so does its node tree written back out (the mutations' baseline)."""
+        """Each packaged good file loads, and so does its node tree written back out (the mutations'
+        baseline)."""
         LOADERS[name](GOOD_FILES[name])
         path = write_case(workdir, name, "b:unmutated", Tree(name).text())
         LOADERS[name](path)
@@ -628,7 +629,8 @@ class TestBytes:
     @FUZZ
     @given(data=st.data())
     def test_bytes_load_or_are_reported(self, name, kind, data, workdir):
-        """Whatever bytes are in the file, loading succeeds or is refused with file:line problems only."""
+        """Whatever bytes are in the file, loading succeeds or is refused with file:line problems
+        only."""
         raw = data.draw(BYTE_STRATEGIES[kind](name), label="file bytes")
         assert_loads_or_reports(name, write_case(workdir, name, f"c:{kind}", raw))
 
@@ -651,7 +653,8 @@ class TestCheckCommand:
     @FUZZ_CLI
     @given(data=st.data())
     def test_check_exits_0_or_1_without_traceback(self, kind, data, workdir):
-        """`verirun check` on a mutated procedure exits 0 (ok) or 1 (file:line problems), never with a traceback."""
+        """`verirun check` on a mutated procedure exits 0 (ok) or 1 (file:line problems), never with
+        a traceback."""
         text, steps = data.draw(mutated("procedure", kind), label="mutated procedure")
         path = write_case(workdir, "check-cli", f"b:{kind}", text)
         code, output = run_check(path)
@@ -727,7 +730,8 @@ class TestMinimalReproductions:
         _one_problem(path, load_lab, 2)
 
     def test_check_with_a_lone_surrogate_in_the_id(self, tmp_path):
-        """`verirun check` on a procedure whose id holds an escaped lone surrogate exits 0 or 1, not 70."""
+        """`verirun check` on a procedure whose id holds an escaped lone surrogate exits 0 or 1,
+        not 70."""
         text = GOOD_TEXT["procedure"]
         assert "id: TH-VP-040" in text
         path = _write(tmp_path, text.replace("id: TH-VP-040", 'id: "TH-\\ud800"', 1))
@@ -735,7 +739,8 @@ class TestMinimalReproductions:
         assert code in (0, 1) and "internal error" not in output, (code, output)
 
     def test_check_reports_an_overflowing_tolerance_at_its_line(self, tmp_path):
-        """A tolerance so wide its window overflows is a file:line problem of `verirun check`, not an internal error."""
+        """A tolerance so wide its window overflows is a file:line problem of `verirun check`, not
+        an internal error."""
         text = GOOD_TEXT["procedure"]
         text = text.replace("full-scale: 6 V", "full-scale: 100 MV", 1).replace(
             "accuracy: {class: 2.5}", "accuracy: {class: 1.0e+308}", 1
@@ -745,7 +750,8 @@ class TestMinimalReproductions:
         assert code == 1 and output.startswith(f"{path}:"), (code, output)
 
     def test_check_reports_a_far_ohms_point_at_its_line(self, tmp_path):
-        """A series-ohms point of 1e308 Ω is a file:line problem of `verirun check`, not an internal error."""
+        """A series-ohms point of 1e308 Ω is a file:line problem of `verirun check`, not an internal
+        error."""
         text = GOOD_TEXT["procedure"]
         assert "points: [4 ohm, 16 ohm, 64 ohm]" in text
         path = _write(
@@ -758,7 +764,8 @@ class TestMinimalReproductions:
         assert code == 1 and output.startswith(f"{path}:"), (code, output)
 
     def test_zero_hazardous_threshold_is_refused_at_load(self, tmp_path):
-        """A hazardous-live threshold of 0 V is refused at load with its line, not left to fail when the run starts."""
+        """A hazardous-live threshold of 0 V is refused at load with its line, not left to fail when
+        the run starts."""
         text = GOOD_TEXT["bench"]
         assert "hazardous-dc: 60 V" in text
         line = text[: text.index("hazardous-dc:")].count("\n") + 1

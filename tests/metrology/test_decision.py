@@ -59,7 +59,8 @@ class TestConformanceProbability:
         assert pc == pytest.approx(0.9522, abs=5e-5)
 
     def test_on_the_limit_is_one_half(self):
-        """A reading exactly on a tolerance limit far from the other conforms with probability 1/2."""
+        """A reading exactly on a tolerance limit far from the other conforms with
+        probability 1/2."""
         pc = conformance_probability(low=9.995, high=10.005, reading=10.005, u=0.0006)
         assert pc == pytest.approx(0.5, abs=1e-12)  # from memory of JCGM 106; Φ(0) - Φ(-16.7)
 
@@ -75,7 +76,8 @@ class TestConformanceProbability:
         assert pc == pytest.approx(norm.cdf(2.0), rel=1e-12)  # scipy cross-check
 
     def test_zero_uncertainty(self):
-        """With u = 0 the reading conforms exactly when it lies within the limits, limits included."""
+        """With u = 0 the reading conforms exactly when it lies within the limits, limits
+        included."""
         assert conformance_probability(low=0.0, high=1.0, reading=1.0, u=0.0) == 1.0
         assert conformance_probability(low=0.0, high=1.0, reading=1.0000001, u=0.0) == 0.0
 
@@ -236,7 +238,8 @@ class TestRiskAcceptance:
         assert zone.high == pytest.approx(9.8, rel=1e-9)  # ILAC-G8:09/2019 4.2.2, w = U, k = 2
 
     def test_two_sided_limits_carry_the_target_risk(self):
-        """Two-sided, the probability of non-conformance at an acceptance limit equals the target."""
+        """Two-sided, the probability of non-conformance at an acceptance limit equals the
+        target."""
         low, high, u = 9.995, 10.005, 0.0006
         zone = RiskAcceptance().acceptance(low=low, high=high, expanded=2 * u)
         for y in (zone.low, zone.high):
@@ -347,7 +350,8 @@ class TestJudge:
             terms=[_term(0.5 / 90.0, "deflection")], nominal=10.0, law=law, domain="deflection"
         )
         d = judge(GuardedAcceptance(), window=win, law=law, budget=b, reading=11.0)
-        # derived from f = Rc/(Rc+Rx): U = 1 degree, so acceptance is 2 degrees either side of f = 0.5
+        # derived from f = Rc/(Rc+Rx): U = 1 degree, so acceptance is 2 degrees either side of
+        # f = 0.5
         f_hi, f_lo = 0.5 + 2 / 90, 0.5 - 2 / 90
         assert d.acceptance == pytest.approx((law.value(f_hi), law.value(f_lo)))
         assert win.low < d.acceptance[0] < d.acceptance[1] < win.high

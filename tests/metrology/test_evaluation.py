@@ -135,7 +135,8 @@ class TestEvaluateUnderARule:
 
     def test_non_binary_rule_gives_conditional_outcomes(self):
         """Non-binary statement (ILAC-G8:09/2019 4.2.3): between the acceptance and tolerance
-        limits a result is a conditional pass; within w beyond the tolerance limit a conditional fail."""
+        limits a result is a conditional pass; within w beyond the tolerance limit a conditional
+        fail."""
         pts = points(PROCEDURE.replace("rule: guarded", "rule: non-binary"))
         point = pts[0]
         u = point.budget.expanded
@@ -204,7 +205,8 @@ class TestPreflight:
         )
 
     def test_point_beyond_the_calibrator_is_refused(self, tmp_path):
-        """A point beyond the calibrator's output limits (driver profile) is refused before the run."""
+        """A point beyond the calibrator's output limits (driver profile) is refused before the
+        run."""
         text = PROCEDURE.replace("full-scale: 10 V", "full-scale: 2000 V").replace(
             "points: [10 V]", "points: [1500 V]"
         )

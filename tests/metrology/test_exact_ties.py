@@ -1,4 +1,5 @@
-"""A reading written exactly on a limit takes the favourable outcome, under every rule, at both ends.
+"""A reading written exactly on a limit takes the favourable outcome, under every rule, at both
+ends.
 
 The expected limits are worked here, independently of verirun, in :class:`fractions.Fraction`
 arithmetic on the decimal texts of the nominal, the specification and U; the readings are given
@@ -52,7 +53,8 @@ def decimals(low: int, high: int, places: int):
 
 
 def text(q: Fraction) -> str:
-    """The decimal text of a fraction whose decimal expansion ends (as an operator would type it)."""
+    """The decimal text of a fraction whose decimal expansion ends (as an operator would type
+    it)."""
     d = Decimal(q.numerator) / Decimal(q.denominator)
     assert Fraction(d) == q
     return f"{d.normalize():f}"

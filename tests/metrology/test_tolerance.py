@@ -50,7 +50,8 @@ class TestWindowSeriesOhms:
         assert win.half_width == pytest.approx(1.0 / 30.0)
 
     def test_worked_range_through_the_circuit(self):
-        """On the 1.5 V, 12 ohm, 100 degree range, 2.5 degrees is 3.125 mA either side of 62.5 mA."""
+        """On the 1.5 V, 12 ohm, 100 degree range, 2.5 degrees is 3.125 mA either side of
+        62.5 mA."""
         win = window(DegreesOfArc(degrees=2.5), 12.0, series(12.0, arc=100.0))
         # common practice, no source: 1.25 mA per degree, so the limits draw 62.5 -/+ 3.125 mA,
         # and Rx = E/I - Rc turns those currents into the window's ohms.

@@ -204,7 +204,8 @@ class TestBudget:
         assert b.combined == pytest.approx(0.01)  # derived from f = x / 10
 
     def test_infinity_end_of_an_ohms_scale(self):
-        """At an open circuit the slope is zero: ohms terms vanish along the arc, U in ohms is infinite."""
+        """At an open circuit the slope is zero: ohms terms vanish along the arc, U in ohms is
+        infinite."""
         law = SeriesOhms(centre=10.0)
         b = budget(
             terms=[_term("cal", 0.01), _term("read", 1e-3, domain="deflection")],

@@ -34,7 +34,8 @@ class TestParseQuantity:
         unit=st.sampled_from(sorted(PINT_NAMES)),
     )
     def test_agrees_with_pint(self, mantissa, prefix, unit):
-        """Any number with an SI prefix and unit parses to the same base-unit value as pint gives."""
+        """Any number with an SI prefix and unit parses to the same base-unit value as pint
+        gives."""
         text = f"{mantissa!r} {prefix}{unit}"
         expected = (
             UREG.Quantity(mantissa, PINT_PREFIXES[prefix] + PINT_NAMES[unit])
@@ -46,7 +47,8 @@ class TestParseQuantity:
         assert math.isclose(value, expected, rel_tol=1e-12, abs_tol=1e-300)
 
     def test_symbols_and_names(self):
-        """Ω, the ohm sign, 'ohm' and 'ohms', and µ, μ and u are all accepted (SI Brochure 9th ed.)."""
+        """Ω, the ohm sign, 'ohm' and 'ohms', and µ, μ and u are all accepted (SI Brochure
+        9th ed.)."""
         assert parse_value("4.7 kΩ", "Ω") == pytest.approx(4700.0)
         assert parse_value("4.7 k\u2126", "Ω") == pytest.approx(4700.0)
         assert parse_value("1.2kohm", "Ω") == pytest.approx(1200.0)

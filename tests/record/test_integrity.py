@@ -262,7 +262,8 @@ class TestEscapingAndFileNames:
         assert not (tmp_path / "escape").exists()
 
     def test_certificate_number_with_separators_stays_in_reports(self, tmp_path, run_dir):
-        """A lab prefix with path separators cannot put the certificate outside the reports folder."""
+        """A lab prefix with path separators cannot put the certificate outside the reports
+        folder."""
         record = json.loads((run_dir / "record.json").read_text())
         record["lab"]["certificate_prefix"] = "../../evil"
         path = write_certificate(record, tmp_path / "rep")

@@ -1,4 +1,5 @@
-"""A record of an earlier record format verifies on what its journal fixes, every verdict included."""
+"""A record of an earlier record format verifies on what its journal fixes, every verdict
+included."""
 
 from __future__ import annotations
 

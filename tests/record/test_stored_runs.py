@@ -84,7 +84,8 @@ class TestStoredRun:
         assert "verified" in capsys.readouterr().out
 
     def test_journal_gives_the_stored_results(self, run):
-        """Rebuilding the record from the journal gives the stored reading and verdict at every step."""
+        """Rebuilding the record from the journal gives the stored reading and verdict at every
+        step."""
         stored = json.loads((run / "record.json").read_text(encoding="utf-8"))
         rebuilt = build_record(read_journal(run / "journal.jsonl").documents)
         assert _steps(rebuilt) == _steps(stored)

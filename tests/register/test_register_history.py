@@ -51,7 +51,8 @@ class TestFitDrift:
         assert falling.reaches_tolerance == dt.date(2020, 1, 1) + dt.timedelta(days=round(3 * year))
 
     def test_one_or_two_calibrations(self):
-        """One calibration gives no slope; two give a slope with no uncertainty (no degrees of freedom)."""
+        """One calibration gives no slope; two give a slope with no uncertainty (no degrees of
+        freedom)."""
         assert fit_drift([0], [0.3], dt.date(2020, 1, 1)).slope is None
         two = fit_drift([0, 365], [0.1, 0.2], dt.date(2020, 1, 1))
         assert two.slope == pytest.approx(0.1 * YEAR_DAYS / 365) and two.slope_u is None

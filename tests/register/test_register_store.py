@@ -234,8 +234,9 @@ class TestOutbox:
         self, register, register_url, tmp_path, closed_run, monkeypatch, capsys
     ):
         """A run closed with the register down cannot be issued yet (its number would change
-        after issue; ISO/IEC 17025:2017 7.8.2.1 b asks for a unique identification, from memory); once synced it is
-        issued under the register's number, and the issued record is stored whole as well."""
+        after issue; ISO/IEC 17025:2017 7.8.2.1 b asks for a unique identification, from memory);
+        once synced it is issued under the register's number, and the issued record is stored
+        whole as well."""
         self._down(register_url, tmp_path, monkeypatch)
         finished = closed_run(tmp_path / "runs")
         before = finished.run_dir.joinpath("journal.jsonl").read_bytes()
@@ -363,7 +364,7 @@ time.sleep(max(0.0, float(sys.argv[5]) - time.time()))  # every bench starts clo
 for n in range(count):
     close_run(runs_dir, serial=f"{sys.argv[4]}-{n}")
 print("done")
-"""
+"""  # noqa: E501
 
 
 class TestConcurrency:

@@ -78,7 +78,8 @@ class Calibrator:
             raise BenchError(
                 f"timeout_ms must be a positive whole number of milliseconds, got {timeout!r}"
             )
-        import pyvisa  # here, not at the top: it costs ~0.1 s that commands which never open a bench skip
+        # here, not at the top: it costs ~0.1 s that commands which never open a bench skip
+        import pyvisa
 
         try:
             manager = pyvisa.ResourceManager(visa_library)

@@ -144,7 +144,8 @@ class Bench:
     idle_standby_s: float = 300.0
 
     def current_limit(self, resistance: float) -> float | None:
-        """The most current the resistance output accepts at ``resistance`` (``None``: not given)."""
+        """The most current the resistance output accepts at ``resistance`` (``None``: not
+        given)."""
         for up_to, most in self.resistance_current:
             if resistance <= up_to * (1 + 1e-12):
                 return most

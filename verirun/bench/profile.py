@@ -194,7 +194,8 @@ def _scpi_boolean(reply: str) -> bool | None:
 
 
 class ErrorQueue(_Frozen):
-    """The query that takes one entry off the error queue; ``empty_code`` means the queue is empty."""
+    """The query that takes one entry off the error queue; ``empty_code`` means the queue is
+    empty."""
 
     query: Text
     empty_code: int = 0

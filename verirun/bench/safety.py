@@ -142,9 +142,9 @@ def is_hazardous(function: str, value: float, limits: HazardLimits = HazardLimit
     """Tell whether sourcing ``value`` on ``function`` makes the terminals hazardous live.
 
     Only voltage functions can be; a value at or above a limit is hazardous (the operator
-    confirms before the output goes on at the threshold itself, erring on the safe side). An AC value is an rms
-    sine level and is checked both as rms and as its peak, ``rms * sqrt(2)``. A value that is
-    not a finite number is treated as hazardous, since nothing is known about it.
+    confirms before the output goes on at the threshold itself, erring on the safe side). An AC
+    value is an rms sine level and is checked both as rms and as its peak, ``rms * sqrt(2)``. A
+    value that is not a finite number is treated as hazardous, since nothing is known about it.
 
     Raises
     ------

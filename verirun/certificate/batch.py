@@ -93,8 +93,8 @@ def certify_one(run: Path, reports_dir: Path, pdf: bool = False) -> Outcome:
             storage.write_atomic(path, [html])
             if kept == "moved":
                 note = (
-                    f"re-rendered with certificate template {TEMPLATE_VERSION} (was {was}; the earlier"
-                    " one is kept beside it)"
+                    f"re-rendered with certificate template {TEMPLATE_VERSION} (was {was};"
+                    " the earlier one is kept beside it)"
                 )
         pdf_path = write_pdf(html.decode("utf-8"), path.with_suffix(".pdf")) if pdf else None
         replaced = []

@@ -1,7 +1,8 @@
 """Pictures for the certificate: inline SVG drawings of one range of a run record.
 
 Two pure functions of a range (a :class:`~verirun.record.documents.RangeEntry` of the record's
-``ranges``) and its rows (that range's :class:`~verirun.record.documents.PointResult` rows, in order):
+``ranges``) and its rows (that range's :class:`~verirun.record.documents.PointResult` rows, in
+order):
 
 - :func:`error_chart`: every measured error as a percent of its tolerance, against the shaded
   tolerance band (-100 % to +100 %), with uncertainty bars and acceptance limits when the rows
@@ -213,7 +214,10 @@ def _stimulus_label(frame: _Frame, index: int, stimulus: str) -> str:
             f'<text class="stimulus" x="{_num(x)}" y="{_num(y)}" text-anchor="end"'
             f' transform="rotate(-35 {_num(x)} {_num(y)})" fill="{INK}">{text}</text>'
         )
-    return f'<text class="stimulus" x="{_num(x)}" y="{_num(y)}" text-anchor="middle" fill="{INK}">{text}</text>'
+    return (
+        f'<text class="stimulus" x="{_num(x)}" y="{_num(y)}" text-anchor="middle"'
+        f' fill="{INK}">{text}</text>'
+    )
 
 
 def _acceptance(frame: _Frame, index: int, row: PointResult) -> list[str]:
@@ -494,7 +498,8 @@ def _space_out(
 
 
 def _label_fits(labels: list[tuple[float, float]], angle: float, half: float) -> bool:
-    """Whether a label ``half`` degrees either side of ``angle`` clears its neighbours; if so, keep it."""
+    """Whether a label ``half`` degrees either side of ``angle`` clears its neighbours; if so, keep
+    it."""
     at = bisect.bisect(labels, (angle, half))
     for i in (at - 1, at):
         if 0 <= i < len(labels) and abs(angle - labels[i][0]) < half + labels[i][1]:
@@ -508,7 +513,8 @@ def _scale(dial: _Dial, range_info: RangeEntry, law) -> tuple[list[str], str]:
     half = dial.arc / 2.0
     parts = [
         f'<path class="scale" d="M {dial.point(_RADIUS, -half)}'
-        f'{_arc_path(dial, _RADIUS, -half, half, 1)}" fill="none" stroke="{INK}" stroke-width="1.5"/>'
+        f'{_arc_path(dial, _RADIUS, -half, half, 1)}" fill="none" stroke="{INK}"'
+        ' stroke-width="1.5"/>'
     ]
     if range_info.scale == "linear":
         candidates, prefix = _linear_candidates(law)

@@ -295,7 +295,8 @@ class RiskAcceptance(_Statement):
     def describe(self) -> str:
         """One sentence naming the rule, for the certificate (ISO/IEC 17025 7.8.6.2)."""
         return (
-            f"Guarded acceptance by specific risk (JCGM 106:2012, normal model; ILAC-G8:09/2019 4.2.2):"
+            f"Guarded acceptance by specific risk (JCGM 106:2012, normal model;"
+            f" ILAC-G8:09/2019 4.2.2):"
             f" a result passes when the probability that the measured quantity lies outside the"
             f" tolerance limits, 1 − pc, is at most {100 * self.target:g} %, and fails otherwise."
         )

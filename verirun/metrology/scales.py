@@ -108,7 +108,8 @@ class SeriesOhms:
         return centre / (centre + value)
 
     def exact_value(self, fraction: Exact) -> Exact:
-        """:meth:`value` in exact rational arithmetic; ``inf`` at or below 0, ``0`` at or above 1."""
+        """:meth:`value` in exact rational arithmetic; ``inf`` at or below 0, ``0`` at or
+        above 1."""
         if fraction <= 0:
             return math.inf
         if fraction >= 1:
@@ -158,7 +159,8 @@ class ShuntOhms:
         return value / (value + as_written(self.centre))
 
     def exact_value(self, fraction: Exact) -> Exact:
-        """:meth:`value` in exact rational arithmetic; ``0`` at or below 0, ``inf`` at or above 1."""
+        """:meth:`value` in exact rational arithmetic; ``0`` at or below 0, ``inf`` at or
+        above 1."""
         if fraction <= 0:
             return 0
         if fraction >= 1:

@@ -134,7 +134,8 @@ class Summary:
         return sum(1 for r in self.rejections if r.cause == "outside-tolerance")
 
     def counts_text(self) -> str:
-        """All four counts in words: ``"9 pass, 1 conditional pass, 0 conditional fail, 2 fail"``."""
+        """All four counts in words:
+        ``"9 pass, 1 conditional pass, 0 conditional fail, 2 fail"``."""
         return (
             f"{self.passed} pass, {self.conditional_pass} conditional pass,"
             f" {self.conditional_fail} conditional fail, {self.failed} fail"

@@ -458,7 +458,8 @@ class _RangeResolver:
             else ("minor-division", rng.minor_division)
         )
         if text is None:
-            # Without it the budget leaves out how well the meter can be read, and the TUR means nothing.
+            # Without it the budget leaves out how well the meter can be read, and the TUR means
+            # nothing.
             example = (
                 "0.5 deg along the arc" if rng.function == "resistance" else f"0.05 {self.unit}"
             )
@@ -466,7 +467,8 @@ class _RangeResolver:
                 self.located.problem(
                     self.loc + ("resolution",),
                     "required, but missing: the step the meter is read to, e.g."
-                    f" resolution: {example}, or minor-division: with read-to: (a fraction of the division)",
+                    f" resolution: {example}, or minor-division: with read-to:"
+                    " (a fraction of the division)",
                     missing=True,
                 )
             )
@@ -489,7 +491,8 @@ class _RangeResolver:
             if not (math.isfinite(rng.read_to) and 0 < rng.read_to <= 1):
                 self.fail(
                     ("read-to",),
-                    f"must be a fraction of a division, more than 0 and at most 1, got {rng.read_to!r}",
+                    "must be a fraction of a division, more than 0 and at most 1,"
+                    f" got {rng.read_to!r}",
                 )
                 return None, None
             value *= rng.read_to
@@ -576,7 +579,8 @@ class _RangeResolver:
             self.fail(
                 field,
                 f"{' and '.join(names)} cannot be combined; give one of"
-                f" {', '.join(_ARC_FORMS.values())}, or a sum of {', '.join(_VALUE_FORMS.values())}",
+                f" {', '.join(_ARC_FORMS.values())},"
+                f" or a sum of {', '.join(_VALUE_FORMS.values())}",
             )
             return None
         for name in list(given):
@@ -670,7 +674,8 @@ class _RangeResolver:
                 self.fail(
                     field,
                     f"{at!r} is beyond the full-scale value of the range"
-                    f" (full-scale: {self.rng.full_scale}); a point is at most the full-scale value",
+                    f" (full-scale: {self.rng.full_scale});"
+                    " a point is at most the full-scale value",
                 )
                 continue
             if isinstance(law, scales.Linear) and nominal < law.low:

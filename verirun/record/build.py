@@ -300,11 +300,13 @@ class _AfterTheRun:
         if doc["kind"] == "issue":
             if self.simulated:
                 raise RecordError(
-                    f"{where}: issues a dry run on the simulated calibrator, which is not a calibration"
+                    f"{where}: issues a dry run on the simulated calibrator,"
+                    " which is not a calibration"
                 )
             if doc.get("revision") != revision:
                 raise RecordError(
-                    f"{where}: issues revision {doc.get('revision')!r}, but the run is at revision {revision}"
+                    f"{where}: issues revision {doc.get('revision')!r},"
+                    f" but the run is at revision {revision}"
                 )
             if any(issue["revision"] == revision for issue in self.issues):
                 raise RecordError(f"{where}: revision {revision} was issued already")
@@ -327,8 +329,9 @@ class _AfterTheRun:
             {
                 "time": doc["time"],
                 "point": None,
-                "text": f"revision {revision}: the as-found results replaced by those of certificate"
-                f" {doc['as_found'].get('certificate')} by {doc['operator']}: {doc['reason']}",
+                "text": f"revision {revision}: the as-found results replaced by those of"
+                f" certificate {doc['as_found'].get('certificate')} by {doc['operator']}:"
+                f" {doc['reason']}",
             }
         )
         return revision
@@ -436,7 +439,8 @@ def _entries(
             point = _step_of(doc, planned, journal_format, where)
             if kind != "correction" and point.index in entries:
                 raise RecordError(
-                    f"{where}: a second entry for step {point.step} ({point.key_in(journal_format)});"
+                    f"{where}: a second entry for step {point.step}"
+                    f" ({point.key_in(journal_format)});"
                     " a step has one confirmed entry, so the journal was edited"
                 )
             if kind == "correction":
@@ -454,7 +458,8 @@ def _entries(
                     {
                         "time": doc["time"],
                         "point": label,
-                        "text": f"revision {revision}: reading of {_step_label(point, label, journal_format)}"
+                        "text": f"revision {revision}: reading of"
+                        f" {_step_label(point, label, journal_format)}"
                         f" corrected from {corrections[point.index]['previous_typed']!r} to"
                         f" {doc['typed']!r} by {doc['operator']}: {doc['reason']}",
                     }
@@ -517,8 +522,8 @@ def _entries(
                 internal=True,
             )
             standard = (
-                f" with the standard's calibration renewed: certificate {renewed.get('certificate')},"
-                f" due {renewed.get('calibration_due')}"
+                " with the standard's calibration renewed: certificate"
+                f" {renewed.get('certificate')}, due {renewed.get('calibration_due')}"
                 if isinstance(renewed, dict)
                 else ""
             )

@@ -46,7 +46,8 @@ journal's own models:
 ======================== ===========================================================================
 part                     what it is
 ======================== ===========================================================================
-:class:`Record`          the whole record: the run, who and what, the method, every point, the summary
+:class:`Record`          the whole record: the run, who and what, the method, every point, the
+                         summary
 :class:`RunPart`         the run: its identity, times, status, revision and the journal it closes
 :class:`MeterPart`       the kind of meter the procedure verifies
 :class:`DecisionRule`    the decision rule, in words and as the procedure states it

@@ -134,7 +134,8 @@ class Journal:
             storage.sync_folder(self.path.parent)
 
     def _repair(self, read: "JournalRead") -> None:
-        """Make the file end at a whole line: cut a torn last line, end a whole one with a newline."""
+        """Make the file end at a whole line: cut a torn last line, end a whole one with a
+        newline."""
         raw = self.path.read_bytes()
         if not raw or raw.endswith(b"\n"):
             return
@@ -204,8 +205,8 @@ class JournalRead:
     """The documents of a journal, and whether a torn last line was dropped.
 
     ``documents`` are the lines as parsed (what the chain hashes and the record is built from);
-    ``models`` the same documents as their validated, frozen models (:mod:`verirun.record.documents`),
-    for reading by attribute."""
+    ``models`` the same documents as their validated, frozen models
+    (:mod:`verirun.record.documents`), for reading by attribute."""
 
     documents: list[dict]
     models: tuple[Document, ...] = ()

@@ -138,7 +138,8 @@ def _check_row(row: dict) -> None:
 
 
 def _certificate_state(record: dict) -> str:
-    """``dry run``, ``draft`` or ``issued`` (``issued rN`` after an amendment) for a run's record."""
+    """``dry run``, ``draft`` or ``issued`` (``issued rN`` after an amendment) for a run's
+    record."""
     if record["bench"].get("simulated"):
         return "dry run"
     revision = record["run"].get("revision", 1)

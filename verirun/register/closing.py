@@ -61,7 +61,8 @@ def after_close(run_dir: Path, record, *, warn=None) -> tuple:
         if warn is not None:
             waiting = needs_number(record)
             warn(
-                f"the register could not take this run ({exc}); it is kept in {Path(run_dir) / OUTBOX_NAME}"
+                f"the register could not take this run ({exc});"
+                f" it is kept in {Path(run_dir) / OUTBOX_NAME}"
                 " and sent by 'verirun register sync'"
                 + (
                     "; its certificate waits for the number the register gives it"
@@ -145,7 +146,8 @@ def waiting(runs_dir: Path) -> list[Path]:
 def sync(
     register, runs_dir: Path, *, busy: list | None = None
 ) -> list[tuple[Path, str | None, str | None]]:
-    """Send every run waiting in an outbox under ``runs_dir``: (folder, certificate number, problem).
+    """Send every run waiting in an outbox under ``runs_dir``: (folder, certificate number,
+    problem).
 
     Each run is sent holding its folder's writer lock (as a run, resume or amend writing it
     would), so two syncs at once, or a sync and an amend, never both append its number: a run
@@ -204,6 +206,6 @@ def withheld(folder: Path) -> str | None:
     if not needs_number(record):
         return None
     return (
-        f"{folder}: this run waits for its certificate number from the register (it closed while the"
-        " register was out of reach); send it with 'verirun register sync', then certify it"
+        f"{folder}: this run waits for its certificate number from the register (it closed while"
+        " the register was out of reach); send it with 'verirun register sync', then certify it"
     )

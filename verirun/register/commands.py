@@ -157,11 +157,13 @@ def _rebuild(args) -> int:
             f"{folder}: DOES NOT VERIFY ({len(problems)} problem{'s' if len(problems) > 1 else ''})"
         )
     print(
-        f"{out.folders} run folders read, {out.stored} records stored, {len(out.failed)} do not verify"
+        f"{out.folders} run folders read, {out.stored} records stored,"
+        f" {len(out.failed)} do not verify"
     )
     if out.unnumbered:
         print(
-            f"{len(out.unnumbered)} wait in an outbox for the register and were left to 'verirun register sync'"
+            f"{len(out.unnumbered)} wait in an outbox for the register and were left to"
+            " 'verirun register sync'"
         )
     return 1 if out.failed else 0
 
@@ -218,7 +220,8 @@ def _standard(args) -> int:
     )
     print(
         f"standard {row['asset']} revision {row['revision']}: certificate {row['certificate']},"
-        f" due {row['calibration_due'].isoformat()}, {len(json.loads(row['accuracy']))} accuracy lines"
+        f" due {row['calibration_due'].isoformat()},"
+        f" {len(json.loads(row['accuracy']))} accuracy lines"
     )
     return 0
 

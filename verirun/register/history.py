@@ -37,7 +37,8 @@ YEAR_DAYS = 365.25
 
 @dataclass(frozen=True, kw_only=True)
 class Drift:
-    """The straight line fitted through one test point's as-found errors (fractions of tolerance)."""
+    """The straight line fitted through one test point's as-found errors (fractions of
+    tolerance)."""
 
     n: int
     intercept: float  # at the first calibration
@@ -147,7 +148,8 @@ class History:
     def text(self) -> str:
         calibrations = int(self.table["uid"].nunique())
         lines = [
-            f"item {self.serial} ({self.model}): {calibrations} calibration{'s' if calibrations != 1 else ''}"
+            f"item {self.serial} ({self.model}): {calibrations}"
+            f" calibration{'s' if calibrations != 1 else ''}"
         ]
         for key, drift in sorted(self.drifts.items()):
             rows = self.table[(self.table["key"] == key) & self.table["error_fraction"].notna()]

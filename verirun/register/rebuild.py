@@ -40,7 +40,8 @@ def verified_records(folder: Path, *, current: bool = True) -> tuple[list[dict],
     problems = verify_chain(read.documents, str(journal))
     if read.torn_line is not None:
         problems.append(
-            f"{journal}: the last line is cut off (an interrupted write); resume the run to recover it"
+            f"{journal}: the last line is cut off (an interrupted write);"
+            " resume the run to recover it"
         )
     if problems or not read.documents:
         return [], problems or [f"{journal}: the journal is empty"]
@@ -89,7 +90,8 @@ def index_folder(register, folder: Path, *, current: bool = True) -> list[str]:
 
 @dataclass
 class Rebuilt:
-    """What a rebuild did: folders seen, records newly stored, and the folders that do not verify."""
+    """What a rebuild did: folders seen, records newly stored, and the folders that do not
+    verify."""
 
     folders: int = 0
     stored: int = 0

@@ -159,7 +159,7 @@ def _append_only(dialect: str) -> None:
             BEGIN
                 RAISE EXCEPTION 'the register is append-only: % on % refused (a correction is a new revision)',
                     TG_OP, TG_TABLE_NAME USING ERRCODE = 'insufficient_privilege';
-            END $$""")
+            END $$""")  # noqa: E501
         for table in _TABLES:
             op.execute(
                 f"CREATE TRIGGER {table}_append_only BEFORE UPDATE OR DELETE ON {table}"
