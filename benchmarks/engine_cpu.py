@@ -38,6 +38,10 @@ Each figure is the least of the runs at its size, as ``timeit`` advises: a slowe
 shared machine's doing (another process, a cold cache), not verirun's; the median of the whole
 run is shown beside it.
 
+The shared machine's speed changes from hour to hour (by up to twice here): the script times a
+fixed piece of pure Python before and after (``reference_ms``), and the simulator's column is a
+second witness. Figures of two runs compare only when those are alike.
+
 Usage: python benchmarks/engine_cpu.py [--quick]
 """
 
@@ -46,6 +50,7 @@ from __future__ import annotations
 import argparse
 import contextlib
 import gc
+import math
 import shutil
 import sys
 import tempfile
@@ -280,6 +285,30 @@ def report(results: list[dict]) -> bool:
     return ok
 
 
+def reference_ms(rounds: int = 7) -> float:
+    """CPU ms of a fixed piece of pure Python, the least of ``rounds``: exact fractions summed,
+    and a canonical JSON line hashed, as verirun's own work does at every point. It is the same
+    code at every run of this script, so it tells a slower hour of a shared machine from slower
+    code: compare verirun's figures only between runs whose reference is alike."""
+    import hashlib
+    import json
+    from fractions import Fraction
+
+    def work() -> None:
+        total = Fraction(0)
+        for i in range(1, 2001):
+            total += Fraction(i, 1000) / 3
+            line = json.dumps({"seq": i, "reading": float(total)}, sort_keys=True)
+            hashlib.sha256(line.encode()).hexdigest()
+
+    least = math.inf
+    for _ in range(rounds):
+        start = time.process_time()
+        work()
+        least = min(least, time.process_time() - start)
+    return least * 1e3
+
+
 def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument(
@@ -291,7 +320,13 @@ def main(argv=None) -> int:
     sim_repeats = {n: 2 for n in sizes} if args.quick else SIM_REPEATS
     root = Path(tempfile.mkdtemp(prefix="verirun-bench-cpu-"))
     try:
+        before = reference_ms()
         report(measure(sizes, repeats, sim_repeats, root))
+        after = reference_ms()
+        print(
+            f"the machine's speed: a fixed piece of pure Python took {before:.1f} ms before and"
+            f" {after:.1f} ms after (see reference_ms)"
+        )
     finally:
         shutil.rmtree(root, ignore_errors=True)
     return 0
