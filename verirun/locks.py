@@ -68,7 +68,8 @@ def hold(path: Path, what: str):
             os.pwrite(fd, pid, 0)
             os.ftruncate(fd, len(pid))
         except OSError:  # a full disk: the lock holds all the same, only the pid is not said
-            pass
+            with contextlib.suppress(OSError):
+                os.ftruncate(fd, 0)  # nor an earlier holder's, as if it were this one's
         yield
     finally:
         os.close(fd)  # releases the lock

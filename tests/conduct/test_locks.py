@@ -187,3 +187,20 @@ class TestTheLockFile:
 
         with run_lock(tmp_path):
             assert (tmp_path / RUN_LOCK_NAME).read_bytes() == f"{os.getpid()}\n".encode()
+
+    def test_a_pid_that_cannot_be_written_leaves_no_earlier_holders(self, tmp_path, monkeypatch):
+        """On a full disk the lock holds without its pid, and the file does not go on naming an
+        earlier holder (a second process would be told the wrong process holds the run)."""
+        import errno
+
+        from verirun.locks import RUN_LOCK_NAME, run_lock
+
+        lock = tmp_path / RUN_LOCK_NAME
+        lock.write_bytes(b"4194303\n")
+
+        def full(fd, data, offset):
+            raise OSError(errno.ENOSPC, "No space left on device")
+
+        monkeypatch.setattr(os, "pwrite", full)
+        with run_lock(tmp_path):
+            assert lock.read_bytes() == b""
