@@ -107,6 +107,11 @@ Date = Annotated[str, Field(pattern=r"^\d{4}-\d\d-\d\d$", description="a calenda
 Reading = Annotated[float, Field(allow_inf_nan=False)]
 
 
+def _kind() -> Any:
+    """The ``kind`` field of a document: its literal names the kind (see the table above)."""
+    return Field(description="the kind of document, as the table of kinds names it")
+
+
 class Part(BaseModel):
     """A part of a document: strict, frozen, no keys but those described."""
 
@@ -264,7 +269,7 @@ class AsFound(Part):
 class Start(Chained):
     """A run begins: everything needed to replay and certify it."""
 
-    kind: Literal["start"] = Field(description="the kind of document: start")
+    kind: Literal["start"] = _kind()
     journal_format: int | None = Field(
         default=None, ge=2, description="the journal's format (absent in format 1)"
     )
@@ -311,7 +316,7 @@ class Resume(Chained):
     """A stopped run is continued; with ``pending`` 0 and no ``identity``, a run whose every step
     had an entry is closed without the bench."""
 
-    kind: Literal["resume"] = Field(description="the kind of document: resume")
+    kind: Literal["resume"] = _kind()
     identity: str | None = Field(
         description="the calibrator's identity, as it answered now (none"
         " when the run was closed without the bench)"
@@ -338,7 +343,7 @@ class Applied(Part):
 class Observation(Chained):
     """A reading at a step, as it was typed (or replayed) and as it was understood."""
 
-    kind: Literal["observation"] = Field(description="the kind of document: observation")
+    kind: Literal["observation"] = _kind()
     point: PointKey
     index: Step
     range: str = Field(description="the range's id")
@@ -351,7 +356,7 @@ class Observation(Chained):
 class Skip(Chained):
     """A step skipped by the operator."""
 
-    kind: Literal["skip"] = Field(description="the kind of document: skip")
+    kind: Literal["skip"] = _kind()
     point: PointKey
     index: Step
     reason: str | None = Field(description="why it was skipped")
@@ -361,7 +366,7 @@ class Skip(Chained):
 class Note(Chained):
     """A remark at a step (``point``) or for the run as a whole (``point`` none)."""
 
-    kind: Literal["note"] = Field(description="the kind of document: note")
+    kind: Literal["note"] = _kind()
     point: PointKey | None = Field(description="the step it is for (none: the run as a whole)")
     text: str = Field(description="the remark")
     hazardous: bool | None = Field(
@@ -384,7 +389,7 @@ class Withdrawal(Chained):
     """The operator withdrew the last entry (``undo``) before the run went on; a later entry for
     the step replaces it, and until there is one the step counts as not measured."""
 
-    kind: Literal["withdrawal"] = Field(description="the kind of document: withdrawal")
+    kind: Literal["withdrawal"] = _kind()
     point: PointKey
     index: Step
     typed: str = Field(description="what was typed for the entry withdrawn")
@@ -394,7 +399,7 @@ class Withdrawal(Chained):
 class Correction(Chained):
     """A reading of a finished run corrected, making the record's next revision."""
 
-    kind: Literal["correction"] = Field(description="the kind of document: correction")
+    kind: Literal["correction"] = _kind()
     point: PointKey
     index: Step
     typed: str = Field(description="the corrected reading as typed")
@@ -406,7 +411,7 @@ class Correction(Chained):
 class Stop(Chained):
     """The run ended."""
 
-    kind: Literal["stop"] = Field(description="the kind of document: stop")
+    kind: Literal["stop"] = _kind()
     status: Literal["complete", "aborted", "failed"] = Field(
         description="how the run ended: complete (every step done), aborted (by the operator or a"
         " signal) or failed (by a fault of the bench, the disk or the program)"
@@ -418,7 +423,7 @@ class Stop(Chained):
 class Issue(Chained):
     """A revision's certificate issued, after review, by a person the lab profile lists."""
 
-    kind: Literal["issue"] = Field(description="the kind of document: issue")
+    kind: Literal["issue"] = _kind()
     by: str = Field(description="who issued it, as the lab profile names them")
     role: str = Field(description="the role they issued it in, from the lab profile")
     revision: int = Field(ge=1, description="the revision of the record issued")
@@ -428,7 +433,7 @@ class Issue(Chained):
 class AsFoundRevised(Chained):
     """The as-found run of this (as-left) run was amended: its new results, a new revision."""
 
-    kind: Literal["as-found"] = Field(description="the kind of document: as-found")
+    kind: Literal["as-found"] = _kind()
     as_found: AsFound
     reason: str = Field(description="why the as-found run was amended")
     operator: str = Field(description="who amended it")
@@ -438,9 +443,7 @@ class CertificateNumber(Chained):
     """The certificate number the lab register gave the complete run (once; written after its
     stop document, when the run is sent to the register, and before any issue)."""
 
-    kind: Literal["certificate-number"] = Field(
-        description="the kind of document: certificate-number"
-    )
+    kind: Literal["certificate-number"] = _kind()
     number: str = Field(description="the certificate number, in the lab's sequence")
     register_url: str = Field(description="the register that gave it (its URL without a password)")
 
