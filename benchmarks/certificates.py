@@ -92,20 +92,20 @@ def render_sizes(sizes, root: Path) -> list[list[str]]:
 def make_folder(count: int, root: Path) -> list[Path]:
     """``count`` copies of one 30-point run, each with its own uid and serial; returns the
     folders."""
-    from verirun.record.build import build_record
+    from verirun.record.build import build_record_document
     from verirun.record.journal import (
         JOURNAL_NAME,
         RECORD_NAME,
         dumps,
         line_hash,
-        load_record,
+        load_record_document,
         read_journal,
     )
 
     dry = DryRun(_gen.generate(30, root / "source"))
     _, finished, _ = dry.run(root / "source" / "run")
     docs = read_journal(finished.run_dir / JOURNAL_NAME).documents
-    record = load_record(finished.run_dir / RECORD_NAME)
+    record = load_record_document(finished.run_dir / RECORD_NAME)
     base_uid = record["run"]["uid"]
     folder = root / "stored"
     runs = []
@@ -132,8 +132,9 @@ def make_folder(count: int, root: Path) -> list[Path]:
         )
         runs.append(run)
     for run in (runs[0], runs[len(runs) // 2], runs[-1]):  # the copies must verify
-        rebuilt = build_record(read_journal(run / JOURNAL_NAME).documents, str(run / JOURNAL_NAME))
-        if rebuilt != load_record(run / RECORD_NAME):
+        journal = run / JOURNAL_NAME
+        rebuilt = build_record_document(read_journal(journal).documents, str(journal))
+        if rebuilt != load_record_document(run / RECORD_NAME):
             raise AssertionError(f"{run}: the copied record does not match its journal")
     return runs
 

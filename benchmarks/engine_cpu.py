@@ -26,7 +26,7 @@ would cost more than some steps). Runs of one point alternate with the runs of e
 same minutes. The **set-up** is the rest of the one-point run, what a run costs once whatever
 its size: the run folder, its lock, the journal file, the start document with the procedure's
 and the bench's texts, the signal handlers, the driver profile, the calibrator's identity and
-error queue. Closing (the run record, as the file and as the dict the caller gets, and the
+error queue. Closing (the run record, written and returned typed, and the
 certificate) is timed apart and shown apart.
 
 The target is at most 0.25 ms per point at every size, and flat: the 10,000-point figure
@@ -137,9 +137,9 @@ def _simulator_identity() -> str:
 
 
 def _closing(stack: contextlib.ExitStack, session, meter: CpuMeter) -> None:
-    """Time closing with ``meter``: the run record (the file and the dict the caller gets) and
+    """Time closing with ``meter``: the run record (built, written and returned typed) and
     the certificate."""
-    for name in ("close_record", "record_document", "write_certificate"):
+    for name in ("close_record", "write_certificate"):
         stack.enter_context(patched(session, name, meter))
 
 
@@ -163,7 +163,7 @@ def own_run(run: DryRun, workdir: Path) -> dict:
         calibrator = Calibrator(resource, load_profile(run.bench.file.calibrator.profile))
         _, finished, _ = run.run(workdir, calibrator=calibrator)
         total = time.process_time() - start
-    return {"points": finished.record["summary"]["points"], "own": total - closing.seconds}
+    return {"points": finished.record.summary.points, "own": total - closing.seconds}
 
 
 def one_run(run: DryRun, workdir: Path) -> dict:
@@ -185,7 +185,7 @@ def one_run(run: DryRun, workdir: Path) -> dict:
         start = time.process_time()
         _, finished, _ = run.run(workdir)
         total = time.process_time() - start
-    points = finished.record["summary"]["points"]
+    points = finished.record.summary.points
     return {
         "points": points,
         "total": total,

@@ -303,9 +303,7 @@ def check_equivalence(n: int, root: Path) -> str:
             if a != b:
                 raise AssertionError(f"command {i} differs: verirun {a}, baseline {b}")
         raise AssertionError(f"command counts differ: {len(ours.sent)} vs {len(theirs[0].sent)}")
-    theirs_verdicts = [
-        row["verdict"] for row in sorted(finished.record["points"], key=lambda r: r["index"])
-    ]
+    theirs_verdicts = [row.verdict for row in sorted(finished.record.points, key=lambda r: r.index)]
     expected = [p.expected for p in gen.points]
     if not (theirs_verdicts == verdicts == expected):
         raise AssertionError("verdicts differ between verirun, the baseline and the generator")

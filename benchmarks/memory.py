@@ -58,7 +58,7 @@ def child_dryrun(folder: Path, n: int) -> dict:
     return {
         "peak_mb": _peak_mb(),
         "seconds": time.perf_counter() - t,
-        "points": finished.record["summary"]["points"],
+        "points": finished.record.summary.points,
     }
 
 

@@ -120,6 +120,7 @@ def fill_register(register, seed: Path, n: int) -> None:
     """``n`` runs written straight into the tables from the seed's record (each stored whole)."""
     import hashlib
 
+    from verirun.record.documents import record_document
     from verirun.record.journal import dumps, load_record
     from verirun.register.schema import items, points, records, runs
     from verirun.register.store import point_rows, run_row
@@ -134,15 +135,13 @@ def fill_register(register, seed: Path, n: int) -> None:
             uid = uuid.UUID(int=rng.getrandbits(128)).hex
             stamp = (start + dt.timedelta(minutes=53 * i)).strftime("%Y-%m-%dT%H:%M:%SZ")
             serial = f"S-{i % max(n // ITEMS_PER_10, 1)}"
-            copy = {
-                **record,
-                "run": {**record["run"], "uid": uid, "started": stamp, "ended": stamp},
-                "item": {**record["item"], "serial": serial},
-            }
+            run = record.run.model_copy(update={"uid": uid, "started": stamp, "ended": stamp})
+            item = record.item.model_copy(update={"serial": serial})
+            copy = record.model_copy(update={"run": run, "item": item})
             row = run_row(copy, f"{stamp[:10]}-{serial}-{uid[:8]}")
             run_rows.append({**row, "id": i + 1})
             point_list.extend(point_rows(i + 1, copy))
-            body = dumps(copy)
+            body = dumps(record_document(copy))
             bodies.append(
                 {"run_id": i + 1, "body": body, "sha256": hashlib.sha256(body.encode()).hexdigest()}
             )

@@ -12,12 +12,13 @@ from pathlib import Path
 
 from verirun.clock import SystemClock, iso
 from verirun.errors import RecordError
-from verirun.record.documents import AsFound, compose
+from verirun.record.build import as_found_part, close_record
+from verirun.record.documents import Record, compose
 from verirun.record.journal import JOURNAL_NAME, Journal, read_start
 
 
 def check_as_found(
-    record: dict, *, run: Path, customer: dict, others: list[Path], simulated: bool | None = None
+    record: Record, *, run: Path, customer: dict, others: list[Path], simulated: bool | None = None
 ) -> None:
     """Refuse an as-left run for an as-found run of another customer, or one that has an
     as-left run already (looked for beside it and in ``others``, folders of run folders), or
@@ -28,20 +29,20 @@ def check_as_found(
     RecordError
         Naming the other customer, or the as-left run there is already.
     """
-    theirs = (record["customer"].get("name") or "").strip()
+    theirs = record.customer.name.strip()
     if theirs != (customer.get("name") or "").strip():
         raise RecordError(
             f"{run}: the as-found run is for customer {theirs!r}, not {customer.get('name')!r};"
             " an as-left run is of the same item for the same customer"
         )
-    if simulated is not None and bool(record["bench"].get("simulated")) != simulated:
+    if simulated is not None and record.bench.simulated != simulated:
         raise RecordError(
             f"{run}: the as-found run was"
-            f" {'a dry run' if record['bench'].get('simulated') else 'at a real bench'};"
+            f" {'a dry run' if record.bench.simulated else 'at a real bench'};"
             " the as-left run must be made the same way, or the certificate would mix a dry run"
             " with a calibration"
         )
-    already = as_left_runs(record["run"]["uid"], [Path(run).resolve().parent, *others])
+    already = as_left_runs(record.run.uid, [Path(run).resolve().parent, *others])
     if already:
         raise RecordError(
             f"{run}: the as-found run has an as-left run already ({already[0]}); one"
@@ -67,25 +68,18 @@ def as_left_runs(uid: str, folders: list[Path]) -> list[Path]:
 
 def revise_as_left(
     found_run: Path, *, reason: str, operator: str, clock=None, others: list[Path] = ()
-) -> list[tuple[Path, dict]]:
+) -> list[tuple[Path, Record]]:
     """After the as-found run at ``found_run`` was amended, give its as-left run (if any) the
     new as-found results; return each as-left folder with its new record."""
-    from verirun.certificate.render import certificate_number
-    from verirun.conduct import close_run
     from verirun.record.verify import verified_record
 
     clock = clock or SystemClock()
     found = verified_record(found_run)
     out = []
-    for left in as_left_runs(found["run"]["uid"], [Path(found_run).resolve().parent, *others]):
-        previous = verified_record(left).get("as_found") or {}
-        as_found = AsFound(
-            run=found["run"]["uid"],
-            certificate=certificate_number(found),
-            date=found["run"]["started"][:10],
-            adjustment=previous.get("adjustment", ""),
-            points=found["points"],
-            summary=found["summary"],
+    for left in as_left_runs(found.run.uid, [Path(found_run).resolve().parent, *others]):
+        previous = verified_record(left).as_found
+        as_found = as_found_part(
+            found, adjustment=previous.adjustment if previous is not None else ""
         )
         with Journal(left / JOURNAL_NAME) as journal:
             journal.append(
@@ -97,5 +91,5 @@ def revise_as_left(
                     operator=operator,
                 )
             )
-        out.append((left, close_run(left)))
+        out.append((left, close_record(left)))
     return out

@@ -754,16 +754,14 @@ def _cmd_amend(args) -> int:
         replaced_by=replaced,
         earlier=earlier_states(args.run, earlier, replaced_by=replaced),
     )
-    print(
-        f"{args.run}: revision {record['run']['revision']} ({state_of(record)}); certificate {out}"
-    )
+    print(f"{args.run}: revision {record.run.revision} ({state_of(record)}); certificate {out}")
     print(f"  the certificate it replaces stays readable, marked as replaced: {kept}")
     for folder, left in revise_as_left(args.run, reason=args.reason, operator=args.operator):
         combined = write_certificate(left, args.reports or _reports_of(folder))
         print(
             f"{folder}: the as-left run's combined certificate takes the corrected as-found"
             " results:"
-            f" revision {left['run']['revision']} ({state_of(left)}); certificate {combined}"
+            f" revision {left.run.revision} ({state_of(left)}); certificate {combined}"
         )
     if waiting(args.run):
         _err(
@@ -877,7 +875,7 @@ def _summary(rich, finished) -> None:
     rich.print(Text(f"\nRun record:  {finished.record_path}"))
     if finished.certificate is not None:
         rich.print(Text(f"Certificate: {finished.certificate} ({state_of(finished.record)})"))
-        if not finished.record["bench"].get("simulated"):
+        if not finished.record.bench.simulated:
             rich.print(
                 Text(f"Review the draft, then issue it: verirun issue {finished.run_dir} --by NAME")
             )
@@ -885,7 +883,7 @@ def _summary(rich, finished) -> None:
     from verirun.metrology.summary import summarise
 
     record = finished.record
-    counted = summarise(record_judged(record), record["decision_rule"]["rule"])
+    counted = summarise(record_judged(record), record.decision_rule.rule)
     rich.print(
         Text.assemble(
             "Overall: ",

@@ -27,7 +27,7 @@ from verirun.interrupts import deferred_signals, forget_kill_requests, kill_requ
 from verirun.locks import calibrator_lock, run_lock
 from verirun.procedure.load import Procedure, load_procedure, load_procedure_text
 from verirun.procedure.plan import plan
-from verirun.record.build import Made, build_record, close_journal
+from verirun.record.build import Made, as_found_part, build_record, close_record
 from verirun.record.documents import (
     AsFound,
     BenchAsRun,
@@ -37,7 +37,6 @@ from verirun.record.documents import (
     Start,
     as_journaled,
     compose,
-    record_document,
 )
 from verirun.record.journal import (
     JOURNAL_NAME,
@@ -51,7 +50,6 @@ from verirun.record.journal import (
     never_started_text,
     read_journal,
     run_folder_name,
-    write_record,
 )
 from verirun.register.closing import after_close
 
@@ -64,7 +62,7 @@ class Finished:
     run_dir: Path
     record_path: Path | None
     certificate: Path | None
-    record: dict | None
+    record: Record | None
 
 
 #: How old a folder that never started must be before a new run removes it: a process that is
@@ -286,7 +284,7 @@ def _drive(
             with deferred_signals():  # a signal now is dropped: the run is ending already
                 journal.close()
                 try:
-                    after_close(run_dir, close_run(run_dir, made), warn=console.warn)
+                    after_close(run_dir, close_record(run_dir, made), warn=console.warn)
                 except (
                     Exception
                 ):  # the journal is the truth; a record that cannot be built now can be later
@@ -308,17 +306,11 @@ def _finish(
         with _sigterm_as_interrupt():
             with deferred_signals():
                 record = close_record(run_dir, made)
-            # Typed as closing built it, unless the register numbered the run (then a dict).
             record, issuable = after_close(
                 run_dir, record, warn=console.warn if console is not None else None
             )
-            if isinstance(record, Record):
-                complete = record.run.status == "complete" and issuable
-            else:
-                complete = record is not None and record["run"]["status"] == "complete" and issuable
+            complete = record is not None and record.run.status == "complete" and issuable
             certificate = write_certificate(record, reports_dir) if complete else None
-            if isinstance(record, Record):  # made once the certificate is written, not beside it
-                record = record_document(record)
     except BaseException as exc:
         exc.run_dir = run_dir  # type: ignore[attr-defined]
         raise
@@ -480,9 +472,9 @@ def _resume_locked(
     points = plan(procedure, bench)
     if reports_dir is None:  # where the run started putting its certificate
         reports_dir = Path(start.reports or "reports")
-    if record["run"]["status"] in ("complete", "incomplete"):
+    if record.run.status in ("complete", "incomplete"):
         return _finish_closed(run_dir, reports_dir, record, console)
-    done = frozenset(row["index"] for row in record["points"] if row["verdict"] != "not-measured")
+    done = frozenset(row.index for row in record.points if row.verdict != "not-measured")
     pending = [p for p in points if p.index not in done]
     if read.torn_line is not None:
         console.warn(
@@ -557,7 +549,7 @@ def _close_without_bench(run_dir: Path, reports_dir: Path, *, clock, console) ->
     return _finish(run_dir, reports_dir, console=console)
 
 
-def _finish_closed(run_dir: Path, reports_dir: Path, record: dict, console) -> Finished:
+def _finish_closed(run_dir: Path, reports_dir: Path, record: Record, console) -> Finished:
     """A closed run: write its record and certificate again if either is missing or stale."""
     from verirun.certificate.render import certificate_path
 
@@ -565,10 +557,10 @@ def _finish_closed(run_dir: Path, reports_dir: Path, record: dict, console) -> F
         stored = load_record(run_dir / RECORD_NAME)
     except RecordError:
         stored = None
-    complete = record["run"]["status"] == "complete"
+    complete = record.run.status == "complete"
     if stored == record and not (complete and not certificate_path(record, reports_dir).exists()):
         raise RecordError(
-            f"{run_dir}: the run is closed ({record['run']['status']}) and its record is"
+            f"{run_dir}: the run is closed ({record.run.status}) and its record is"
             " written; nothing to resume (use 'verirun certify' for its certificate)"
         )
     if stored != record:
@@ -634,25 +626,6 @@ def _same_file(
     return loaded
 
 
-def close_run(run_dir: Path, made: Made | None = None) -> dict | None:
-    """Build and write the run record of the journal in ``run_dir`` (``None`` if it is empty),
-    and return it as the dict ``record.json`` holds (see :func:`close_record`)."""
-    record = close_record(run_dir, made)
-    return None if record is None else record_document(record)
-
-
-def close_record(run_dir: Path, made: Made | None = None) -> Record | None:
-    """Build and write the run record of the journal in ``run_dir`` (``None`` if it is empty),
-    and return it typed; ``record.json`` is written from the model, a row at a time. ``made`` is
-    what the run that has just ended planned (its procedure, bench and plan): closing plans
-    again only what it did not."""
-    # The journal's lines are held by the build alone (a long run's journal is large).
-    record = close_journal(run_dir / JOURNAL_NAME, made)
-    if record is not None:
-        write_record(record, run_dir / RECORD_NAME)
-    return record
-
-
 def as_found_of(
     run: Path,
     *,
@@ -670,20 +643,18 @@ def as_found_of(
     RecordError
         If the earlier run does not verify, is not complete, or is of another item or procedure.
     """
-    from verirun.certificate.render import certificate_number
     from verirun.record.verify import verified_record
 
     record = verified_record(run)
-    if record["run"]["status"] != "complete":
-        raise RecordError(f"{run}: the as-found run is {record['run']['status']}, not complete")
-    if record["item"].get("serial") != serial:
+    if record.run.status != "complete":
+        raise RecordError(f"{run}: the as-found run is {record.run.status}, not complete")
+    if record.item.serial != serial:
         raise RecordError(
-            f"{run}: the as-found run is of item {record['item'].get('serial')!r}, not {serial!r}"
+            f"{run}: the as-found run is of item {record.item.serial!r}, not {serial!r}"
         )
-    if record["procedure"]["id"] != procedure.id:
+    if record.procedure.id != procedure.id:
         raise RecordError(
-            f"{run}: the as-found run followed procedure {record['procedure']['id']},"
-            f" not {procedure.id}"
+            f"{run}: the as-found run followed procedure {record.procedure.id}, not {procedure.id}"
         )
     if not adjustment.strip():
         raise RecordError("say what was adjusted (--adjustment); it is printed on the certificate")
@@ -693,14 +664,7 @@ def as_found_of(
         check_as_found(
             record, run=Path(run), customer=customer, others=list(others), simulated=simulated
         )
-    return AsFound(
-        run=record["run"]["uid"],
-        certificate=certificate_number(record),
-        date=record["run"]["started"][:10],
-        adjustment=adjustment.strip(),
-        points=record["points"],
-        summary=record["summary"],
-    )
+    return as_found_part(record, adjustment=adjustment.strip())
 
 
 @contextlib.contextmanager

@@ -15,12 +15,21 @@ from verirun.clock import SystemClock, iso
 from verirun.errors import RecordError
 from verirun.lab import people_who_issue
 from verirun.locks import run_lock
-from verirun.record.documents import AsFoundRevised, Correction, Issue, compose
+from verirun.record.build import close_record
+from verirun.record.documents import (
+    AsFoundRevised,
+    Correction,
+    Issue,
+    IssueEntry,
+    Record,
+    as_journaled,
+    compose,
+)
 from verirun.record.journal import JOURNAL_NAME, Journal, load_record, read_journal
 from verirun.record.verify import run_folder, verified_record
 
 
-def issue(path: str | Path, *, by: str, lab: dict | None = None, clock=None) -> dict:
+def issue(path: str | Path, *, by: str, lab: dict | None = None, clock=None) -> Record:
     """Issue the current revision of the run at ``path`` in the name of ``by``; return its record.
 
     Parameters
@@ -48,10 +57,9 @@ def issue(path: str | Path, *, by: str, lab: dict | None = None, clock=None) -> 
         return _issue(folder, by=by, lab=lab, clock=clock)
 
 
-def _issue(folder: Path, *, by: str, lab: dict | None, clock) -> dict:
+def _issue(folder: Path, *, by: str, lab: dict | None, clock) -> Record:
     """Refuse, or (given a ``clock``) journal the issue and close the record again."""
     from verirun.certificate.render import certificate_number, is_dry_run
-    from verirun.conduct import close_run
 
     record = verified_record(folder)
     number = certificate_number(record)
@@ -60,9 +68,9 @@ def _issue(folder: Path, *, by: str, lab: dict | None, clock) -> dict:
             f"{folder}: this is a dry run on the simulated calibrator, not a calibration;"
             f" its certificate {number} can never be issued"
         )
-    if record["run"]["status"] != "complete":
+    if record.run.status != "complete":
         raise RecordError(
-            f"{folder}: the run is {record['run']['status']}, not complete; resume it before"
+            f"{folder}: the run is {record.run.status}, not complete; resume it before"
             " its certificate can be issued"
         )
     from verirun.register.closing import needs_number
@@ -74,23 +82,23 @@ def _issue(folder: Path, *, by: str, lab: dict | None, clock) -> dict:
             " could not be reached when the run closed); send it with 'verirun register"
             " sync', then issue it: an issued certificate keeps its number"
         )
-    revision = record["run"]["revision"]
-    done = next((i for i in record.get("issues", []) if i["revision"] == revision), None)
+    revision = record.run.revision
+    done = issued(record)
     if done is not None:
         raise RecordError(
-            f"{folder}: certificate {number} was issued already, on {done['time'][:10]} by"
-            f" {done['by']}; it is not issued twice. To correct it, amend the run"
+            f"{folder}: certificate {number} was issued already, on {done.time[:10]} by"
+            f" {done.by}; it is not issued twice. To correct it, amend the run"
             " ('verirun amend'): the new revision is then issued in its turn"
         )
     if lab is None:
-        lab = record["lab"]
+        lab = as_journaled(record.lab)
     elif (lab.get("name"), lab.get("certificate_prefix")) != (
-        record["lab"].get("name"),
-        record["lab"].get("certificate_prefix"),
+        record.lab.name,
+        record.lab.certificate_prefix,
     ):
         raise RecordError(
             f"the lab profile is of {lab.get('name')!r}, but the run was made for"
-            f" {record['lab'].get('name')!r}; give that lab's profile"
+            f" {record.lab.name!r}; give that lab's profile"
         )
     person = find_person(lab, by)
     if clock is None:  # the check before the lock is taken
@@ -107,7 +115,7 @@ def _issue(folder: Path, *, by: str, lab: dict | None, clock) -> dict:
                 certificate=number,
             )
         )
-    return close_run(folder)
+    return close_record(folder)
 
 
 def find_person(lab: dict, name: str) -> dict:
@@ -131,7 +139,7 @@ def find_person(lab: dict, name: str) -> dict:
     )
 
 
-def earlier_revisions(path: str | Path) -> list[tuple[dict, dict]]:
+def earlier_revisions(path: str | Path) -> list[tuple[Record, dict]]:
     """Each earlier revision of a stored run and what replaced it, oldest first.
 
     The record of revision N is the record of the journal up to the document that began
@@ -166,7 +174,7 @@ _NEW_REVISION = (Correction, AsFoundRevised)
 
 
 def earlier_states(
-    path: str | Path, record: dict, *, replaced_by: dict | None = None
+    path: str | Path, record: Record, *, replaced_by: dict | None = None
 ) -> tuple[bytes, ...]:
     """The certificates of ``record``'s number (a revision of the stored run at ``path``) that
     its certificate may take the place of: its draft, as rendered before each issue of that
@@ -177,7 +185,7 @@ def earlier_states(
 
     folder = run_folder(path)
     read = read_journal(folder / JOURNAL_NAME)
-    revision = record["run"].get("revision", 1)
+    revision = record.run.revision
     out = []
     if replaced_by is not None:
         out.append(render_html(record).encode("utf-8"))
@@ -193,14 +201,19 @@ def earlier_states(
     return tuple(out)
 
 
-def state_of(record: dict) -> str:
+def issued(record: Record) -> IssueEntry | None:
+    """The issue of ``record``'s current revision (``None``: not issued yet)."""
+    return next((i for i in record.issues or () if i.revision == record.run.revision), None)
+
+
+def state_of(record: Record) -> str:
     """``"dry run"``, ``"draft"`` or ``"issued <date> by <name>"`` for the current revision."""
     from verirun.certificate.render import is_dry_run
 
     if is_dry_run(record):
         return "a dry run, never issued"
-    revision = record["run"]["revision"]
-    done = next((i for i in record.get("issues", []) if i["revision"] == revision), None)
+    revision = record.run.revision
+    done = issued(record)
     if done is None:
         return f"draft of revision {revision}, not issued"
-    return f"revision {revision} issued {done['time'][:10]} by {done['by']}, {done['role']}"
+    return f"revision {revision} issued {done.time[:10]} by {done.by}, {done.role}"

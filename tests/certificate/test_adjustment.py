@@ -47,7 +47,7 @@ def test_as_found_adjust_as_left_combined_amend_issue(at_the_bench, tmp_path, ca
 
     # One table per range; each point's as-found and as-left result in one row, both verdicts.
     tables = soup.select('table[data-pass="as-found-and-as-left"]')
-    assert [t["data-range"] for t in tables] == [r["id"] for r in record["ranges"]]
+    assert [t["data-range"] for t in tables] == [r.id for r in record.ranges]
     row = soup.select_one('tr[data-key="dcv-10@8V"]')
     assert row.select_one('td[data-verdict="as-found"]').get_text() == "FAIL"
     assert row.select_one('td[data-verdict="as-left"]').get_text() == "PASS"
@@ -82,8 +82,8 @@ def test_as_found_adjust_as_left_combined_amend_issue(at_the_bench, tmp_path, ca
     )
     assert "combined certificate takes the corrected as-found results" in capsys.readouterr().out
     revised = load_record(left)
-    assert revised["run"]["revision"] == 2
-    assert revised["as_found"]["certificate"].endswith("-R2")
+    assert revised.run.revision == 2
+    assert revised.as_found.certificate.endswith("-R2")
     soup = BeautifulSoup(
         certificate_path(revised, reports).read_text(encoding="utf-8"), "html.parser"
     )

@@ -53,8 +53,8 @@ def test_the_internal_log_stays_in_the_record(tmp_path):
     record, soup = dry_run(
         tmp_path, "--temperature", "23", "--humidity", "40", "--condition", "as new"
     )
-    assert any(note["text"].startswith("hazardous output") for note in record["run_log"])
-    assert not any(note["text"].startswith("hazardous output") for note in record["notes"])
+    assert any(note.text.startswith("hazardous output") for note in record.run_log)
+    assert not any(note.text.startswith("hazardous output") for note in record.notes)
     page = soup.get_text(" ")
     assert (
         "hazardous" not in page
@@ -85,7 +85,8 @@ def test_an_operator_note_sits_beside_its_point(tmp_path):
 def test_facts_not_recorded_are_deviations_not_defaults(tmp_path):
     """A scripted dry run given no conditions and no condition on receipt says so."""
     record, soup = dry_run(tmp_path)
-    assert record["item"]["condition"] is None and record["environment"] == {}
+    assert record.item.condition is None
+    assert record.environment.temperature_c is None and record.environment.humidity_pct is None
     assert text(soup, "#condition") == "not recorded"
     deviations = text(soup, "#deviations")
     assert "The laboratory temperature was not recorded at the start of the run." in deviations
@@ -141,7 +142,7 @@ def test_verirun_s_own_sentences_follow_the_lab_s_spelling(tmp_path):
     )
     (run,) = (tmp_path / "runs").iterdir()
     record = load_record(run)
-    assert "favourable" in record["decision_rule"]["statement"]  # as the record keeps it
+    assert "favourable" in record.decision_rule.statement  # as the record keeps it
     soup = BeautifulSoup(
         certificate_path(record, tmp_path / "rep").read_text(encoding="utf-8"), "html.parser"
     )

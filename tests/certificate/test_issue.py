@@ -181,13 +181,13 @@ class TestDraftIssueAmendReissue:
         # Re-issue: the new revision gets its own issue, by another listed person.
         assert main(["issue", str(run), "--by", "J. Ilesanmi", "--reports", str(reports)]) == 0
         reissued = load_record(run)
-        assert [(i["revision"], i["by"]) for i in reissued["issues"]] == [
+        assert [(i.revision, i.by) for i in reissued.issues] == [
             (1, "A. Thorneycroft"),
             (2, "J. Ilesanmi"),
         ]
         final = soup_of(reissued, reports)
         assert text(final, "#issued-by") == "J. Ilesanmi, Deputy Technical Manager"
-        assert text(final, "#date-issued") == reissued["issues"][1]["time"][:10]
+        assert text(final, "#date-issued") == reissued.issues[1].time[:10]
         assert main(["verify", str(run)]) == 0
 
     def test_an_unfinished_run_is_not_issued(self, at_the_bench, tmp_path, capsys):
@@ -259,7 +259,7 @@ class TestDraftIssueAmendReissue:
             )
             == 0
         )
-        assert load_record(run)["issues"][0]["role"] == "Technical Manager"
+        assert load_record(run).issues[0].role == "Technical Manager"
 
 
 class TestDryRun:
@@ -329,7 +329,7 @@ class TestDryRun:
             == 0
         )
         (run,) = (tmp_path / "runs").iterdir()
-        assert load_record(run)["bench"]["simulated"] is True
+        assert load_record(run).bench.simulated is True
         assert main(["issue", str(run), "--by", "A. Thorneycroft"]) == 1
 
     def test_a_forged_issue_of_a_dry_run_does_not_verify(self, tmp_path, capsys):
@@ -413,7 +413,7 @@ def test_the_issue_document_is_in_the_record_and_journal_chain(at_the_bench, tmp
     issued = json.loads((run / "record.json").read_text())["issues"]
     assert issued[0]["by"] == "A. Thorneycroft"
     assert dt.date.fromisoformat(issued[0]["time"][:10]) >= dt.date.fromisoformat(
-        load_record(run)["run"]["started"][:10]
+        load_record(run).run.started[:10]
     )
 
 

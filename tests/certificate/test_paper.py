@@ -105,7 +105,7 @@ def hundred_point_run(demo_run_dir: Path, tmp_path: Path) -> dict:
     )
     (run,) = (tmp_path / "runs").iterdir()
     record = load_record(run)
-    assert len(record["points"]) == 100
+    assert len(record.points) == 100
     return record
 
 
@@ -171,7 +171,7 @@ class TestPaperSize:
         8.5 × 11 in (ANSI/ASME Y14.1), in PostScript points of 1/72 in."""
         weasyprint = pytest.importorskip("weasyprint")
         record = load_record(demo_run_dir)
-        record = {**record, "lab": {**record["lab"], "paper": paper}}
+        record = record.model_copy(update={"lab": record.lab.model_copy(update={"paper": paper})})
         page = weasyprint.HTML(string=render_html(record)).render().pages[0]
         width_pt, height_pt = page.width * 0.75, page.height * 0.75  # CSS px (1/96 in) to pt
         assert (round(width_pt, 1), round(height_pt, 1)) == (

@@ -13,6 +13,7 @@ import pytest
 from runkit import simulated_run_args
 
 from verirun.certificate.render import render_html, write_pdf
+from verirun.record.documents import Record
 from verirun.record.journal import load_record
 
 STORED = Path(__file__).resolve().parents[1] / "data" / "stored-runs"
@@ -31,10 +32,10 @@ def _text(element) -> str:
     return " ".join("".join(element.itertext()).split())
 
 
-def layout(record: dict, paper: str):
+def layout(record: Record, paper: str):
     """The rendered pages of ``record`` on ``paper``."""
     weasyprint = pytest.importorskip("weasyprint")
-    record = {**record, "lab": {**record["lab"], "paper": paper}}
+    record = record.model_copy(update={"lab": record.lab.model_copy(update={"paper": paper})})
     return weasyprint.HTML(string=render_html(record)).render()
 
 
@@ -141,7 +142,7 @@ def test_each_chart_is_captioned_with_its_range_and_stays_with_its_table(paper):
                 caption_page[_text(element).split(":")[0]] = number
 
         _walk(page._page_box, visit)
-    ids = [rng["id"] for rng in record["ranges"]]
+    ids = [rng.id for rng in record.ranges]
     assert sorted(caption_page) == sorted(f"Range {i}" for i in ids)
     for rng in ids:
         assert caption_page[f"Range {rng}"] == last_row_page[rng], (

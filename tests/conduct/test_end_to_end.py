@@ -89,11 +89,11 @@ class TestDemoEndToEnd:
         leaves its output off, and `certify` reproduces the certificate byte for byte."""
         finished, recorder = run_demo(make_run, sim)
         record = finished.record
-        verdicts = {row["key"]: row["verdict"] for row in record["points"]}
+        verdicts = {row.key: row.verdict for row in record.points}
         assert verdicts == EXPECTED
-        assert record["summary"]["overall"] == "fail"
-        assert record["summary"]["fail"] == 4 and record["summary"]["pass"] == 16
-        assert record["run"]["status"] == "complete"
+        assert record.summary.overall == "fail"
+        assert record.summary.failed == 4 and record.summary.passed == 16
+        assert record.run.status == "complete"
 
         # The calibrator was identified, then each point sourced and switched on, then standby.
         sent = recorder.sent

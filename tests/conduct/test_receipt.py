@@ -154,10 +154,8 @@ class TestRunAtARealBench:
         )
         (run,) = (tmp_path / "runs").iterdir()
         record = load_record(run)
-        assert (
-            record["item"]["condition"] == "as new" and record["item"]["received"] == "2025-01-10"
-        )
-        assert record["lab"]["name"] == "Kestrel Fen Metrology" and not record["bench"]["simulated"]
+        assert record.item.condition == "as new" and record.item.received == "2025-01-10"
+        assert record.lab.name == "Kestrel Fen Metrology" and not record.bench.simulated
 
 
 def test_input_closed_at_the_condition_question_exits_2_and_writes_no_run(tmp_path):

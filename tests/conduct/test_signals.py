@@ -23,7 +23,6 @@ from pathlib import Path
 import pytest
 from runkit import build_run, read_until, sim_resources
 
-from verirun import conduct as session_mod
 from verirun.bench.calibrator import Calibrator
 from verirun.bench.safety import output_guard
 from verirun.clock import VirtualClock
@@ -31,6 +30,7 @@ from verirun.conduct import _sigterm_as_interrupt
 from verirun.console import QuietConsole
 from verirun.errors import SafetyError
 from verirun.interrupts import deferred_signals
+from verirun.record import build as build_mod
 from verirun.record import journal as record_mod
 from verirun.record.journal import Journal, read_journal, verify_chain
 from verirun.record.verify import verified_record
@@ -440,14 +440,14 @@ class TestSignalsInARun:
         run_dir, docs = run.checks(run.run())
         observed = [d["point"] for d in docs if d["kind"] == "observation"]
         assert len(observed) == len(set(observed)) == 4
-        assert verified_record(run_dir)["run"]["status"] in ("complete", "aborted")
+        assert verified_record(run_dir).run.status in ("complete", "aborted")
 
     @pytest.mark.parametrize("count", [1, 2, 3])
     def test_while_the_record_is_written(self, tmp_path, worker, device, monkeypatch, count):
         """Ctrl-C while the run is closed acts only once the record is on disk: the record
         verifies and is complete, no temporary file is left, and the interrupt names the run."""
         run = _RunOnSpy(tmp_path, worker, device)
-        real = session_mod.write_record
+        real = build_mod.write_record
 
         def write_record(record, path):
             for _ in range(count):
@@ -455,9 +455,9 @@ class TestSignalsInARun:
                 sum(range(10))
             return real(record, path)
 
-        monkeypatch.setattr(session_mod, "write_record", write_record)
+        monkeypatch.setattr(build_mod, "write_record", write_record)
         run_dir, _ = run.checks(run.run())
-        assert verified_record(run_dir)["run"]["status"] == "complete"
+        assert verified_record(run_dir).run.status == "complete"
         assert not list(run_dir.glob("*.tmp"))
 
     def test_after_the_last_reading(self, tmp_path, worker, device):
@@ -479,7 +479,7 @@ class TestSignalsInARun:
                 error = exc
         run_dir, docs = run.checks(error)
         assert sum(d["kind"] == "observation" for d in docs) == 4
-        assert verified_record(run_dir)["points"]
+        assert verified_record(run_dir).points
 
 
 CHILD = textwrap.dedent("""
@@ -487,7 +487,7 @@ CHILD = textwrap.dedent("""
     from pathlib import Path
     from verirun import cli
     from verirun.record import journal as record
-    from verirun import conduct as session
+    from verirun.record import build as closing
     from verirun.bench.calibrator import Calibrator
 
     where, count, out = sys.argv[1], int(sys.argv[2]), Path(sys.argv[3])
@@ -523,12 +523,12 @@ CHILD = textwrap.dedent("""
         return real_fsync(fd)
     record.os.fsync = fsync
 
-    real_record = session.write_record
+    real_record = closing.write_record
     def write_record(doc, path):
         if where == "close":
             fire()
         return real_record(doc, path)
-    session.write_record = write_record
+    closing.write_record = write_record
 
     code = cli.main(sys.argv[4:])
     run_dir = next(Path(sys.argv[4 + sys.argv[4:].index("--runs") + 1]).glob("*"))

@@ -259,12 +259,12 @@ class TestUndoOnARepeatedValue:
             item="U-1",
             calibrator=sim_resources(tmp_path)[0],
         )
-        rows = finished.record["points"]
-        assert [(r["index"], r["typed"], r["verdict"]) for r in rows[:2]] == [
+        rows = finished.record.points
+        assert [(r.index, r.typed, r.verdict) for r in rows[:2]] == [
             (0, "2.05", "pass"),
             (1, "2.1", "pass"),
         ]
-        assert finished.record["summary"]["not-measured"] == 0
+        assert finished.record.summary.not_measured == 0
         withdrawn = [d for d in documents(finished.run_dir) if d["kind"] == "withdrawal"]
         assert [(d["index"], d["typed"]) for d in withdrawn] == [(1, "2.5")]
         assert problems(finished.run_dir) == []

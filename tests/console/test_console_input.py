@@ -183,10 +183,10 @@ class TestUndo:
         assert kinds[:4] == ["observation", "withdrawal", "observation", "observation"]
         withdrawal = next(d for d in docs if d["kind"] == "withdrawal")
         assert withdrawal["typed"] == "5.5" and withdrawal["index"] == 0
-        assert finished.record["points"][0]["typed"] == "5.05"
+        assert finished.record.points[0].typed == "5.05"
         # The withdrawal is the run's internal log, not a note for the customer.
-        assert any("'5.5' of step 1 withdrawn" in n["text"] for n in finished.record["run_log"])
-        assert not any("withdrawn" in n["text"] for n in finished.record["notes"])
+        assert any("'5.5' of step 1 withdrawn" in n.text for n in finished.record.run_log)
+        assert not any("withdrawn" in n.text for n in finished.record.notes)
         fits_the_journal_schema(docs)
 
     def test_undo_on_another_range_asks_for_the_leads_again(self, tmp_path, demo_lab_path):
@@ -241,7 +241,7 @@ class TestHazardPrompt:
         skips = [d for d in docs if d["kind"] == "skip"]
         assert len(skips) == 1 and "hazardous output declined" in skips[0]["reason"]
         fits_the_journal_schema(docs)
-        assert finished.record["run"]["status"] == "complete"
+        assert finished.record.run.status == "complete"
         assert raw.query("VOLT?") != "80.0" and raw.query("OUTP?") in ("0", "OFF")
 
 

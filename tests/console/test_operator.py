@@ -128,7 +128,7 @@ class TestReadingPrompt:
         assert any(d["kind"] == "note" and d["text"] == "pointer sticky" for d in docs)
         assert any(d["kind"] == "skip" and d["reason"] == "lead broken" for d in docs)
         record = finished.record
-        assert record["points"][1]["verdict"] == "skipped"
+        assert record.points[1].verdict == "skipped"
         html = finished.certificate.read_text()
         assert "lead broken" in html and "pointer sticky" in html
 

@@ -15,6 +15,7 @@ from verirun.errors import ProcedureError
 from verirun.lab import load_lab
 from verirun.procedure.load import load_procedure_text
 from verirun.readings import ScriptedReadings
+from verirun.record.documents import validate_record
 from verirun.text import BIDI_CONTROLS, LAYOUT, refusal, shown
 
 EDGE = Path(__file__).resolve().parents[1] / "data" / "edge"
@@ -184,7 +185,7 @@ class TestCertificate:
         record = json.loads(next((tmp_path / "runs").glob("*/record.json")).read_text())
         record["customer"]["name"] = "ACME\x1b[31m\x07 Ltd\u202e12\x9b"
         record["item"]["serial"] = "SN-\u2067 7\u2069"
-        html = render_html(record)
+        html = render_html(validate_record(record))
         assert FORBIDDEN.search(html) is None
         assert "ACME\ufffd[31m\ufffd Ltd\ufffd12\ufffd" in html and "SN-\ufffd 7\ufffd" in html
 

@@ -258,17 +258,17 @@ class TestSymlinksAreNotFollowed:
     def test_a_link_in_the_reports_folder_is_refused(self, tmp_path, capsys):
         """A certificate's name in the reports folder planted as a link: not written through."""
         run_dir = self._aborted(tmp_path)
-        from verirun.certificate.render import certificate_path
+        from verirun.certificate.render import number_for, safe_file_name
 
         start = documents(run_dir)[0]
-        target = certificate_path(
-            {
-                "lab": start["lab"],
-                "bench": start["bench"],
-                "run": {"started": start["time"], "uid": start["uid"]},
-            },
-            tmp_path / "reports",
+        number = number_for(
+            prefix=start["lab"]["certificate_prefix"],
+            simulated=start["bench"]["simulated"],
+            started=start["time"],
+            uid=start["uid"],
+            given=None,
         )
+        target = tmp_path / "reports" / f"{safe_file_name(number)}.html"
         target.parent.mkdir(exist_ok=True)
         outside = tmp_path / "elsewhere.html"
         outside.write_text("keep me")

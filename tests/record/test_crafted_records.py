@@ -199,10 +199,10 @@ class TestDates:
         jumps = [d for d in documents(finished.run_dir) if d.get("clock_went_back")]
         assert len(jumps) == 1 and jumps[0]["clock_went_back"].startswith("2026-11-30T19:")
         rec = finished.record
-        assert rec["run"]["ended"][:10] >= rec["run"]["started"][:10] == "2026-12-01"
+        assert rec.run.ended[:10] >= rec.run.started[:10] == "2026-12-01"
         # the jump is the run's internal log, not a note for the customer
-        assert any("clock went back" in n["text"] for n in rec["run_log"])
-        assert not any("clock went back" in n["text"] for n in rec["notes"])
+        assert any("clock went back" in n.text for n in rec.run_log)
+        assert not any("clock went back" in n.text for n in rec.notes)
         assert problems(finished.run_dir) == []
 
     def test_a_standard_falling_due_at_midnight_stops_the_run_resumable(self, tmp_path, make_run):
@@ -247,10 +247,9 @@ class TestDates:
             reports_dir=tmp_path / "reports",
             clock=clock,
         )
-        assert finished.record["run"]["status"] == "complete"
+        assert finished.record.run.status == "complete"
         assert any(
-            "renewed" in n["text"] and "TH-CC-2026-0999" in n["text"]
-            for n in finished.record["notes"]
+            "renewed" in n.text and "TH-CC-2026-0999" in n.text for n in finished.record.notes
         )
         assert problems(run_dir) == []
 

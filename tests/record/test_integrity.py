@@ -12,6 +12,7 @@ from runkit import simulated_run_args
 from verirun.certificate.render import safe_file_name, write_certificate
 from verirun.cli import main
 from verirun.record.build import build_record
+from verirun.record.documents import validate_record
 from verirun.record.journal import Journal, dumps, read_journal, verify_chain, write_record
 from verirun.record.verify import problems
 
@@ -266,7 +267,7 @@ class TestEscapingAndFileNames:
         folder."""
         record = json.loads((run_dir / "record.json").read_text())
         record["lab"]["certificate_prefix"] = "../../evil"
-        path = write_certificate(record, tmp_path / "rep")
+        path = write_certificate(validate_record(record), tmp_path / "rep")
         assert path.parent == tmp_path / "rep"
 
 

@@ -18,7 +18,7 @@ from runkit import undescribed_fields
 from verirun.cli import main
 from verirun.errors import RecordError
 from verirun.record.documents import PointResult, Record, record_schema, validate_record
-from verirun.record.journal import RECORD_FORMAT, load_record, load_record_model, write_record
+from verirun.record.journal import RECORD_FORMAT, load_record, write_record
 
 DATA = Path(__file__).resolve().parents[1] / "data"
 STORED = sorted((DATA / "stored-runs").glob("*/record*.json")) + sorted(
@@ -111,7 +111,7 @@ class TestStoredRecords:
         """A format-1 row has no ``within_tolerance``: it stays absent, and whether the reading
         is within tolerance is worked out from its limits (1.25 V within 1.05 V to 1.35 V)."""
         path = DATA / "stored-runs" / "format1-guarded" / "record.json"
-        row = load_record_model(path).points[0]
+        row = load_record(path).points[0]
         assert row.within_tolerance is MISSING  # absent, not null
         assert (row.low, row.reading, row.high) == (1.0499999999999998, 1.25, 1.35)
         assert row.is_within_tolerance() is True
@@ -124,13 +124,13 @@ class TestFreshRecords:
         for path in fresh:
             record = json.loads(path.read_text(encoding="utf-8"))
             _fits_schema(record)
-            model = load_record_model(path)
+            model = load_record(path)
             assert model.record_format == RECORD_FORMAT
             assert write_record(model, tmp_path / "again.json").read_bytes() == path.read_bytes()
 
     def test_hold_every_kind_of_row(self, fresh):
         """Between them the fresh records hold measured, skipped and corrected rows."""
-        rows = [row for path in fresh for row in load_record_model(path).points]
+        rows = [row for path in fresh for row in load_record(path).points]
         assert {"pass", "fail", "skipped"} <= {row.verdict for row in rows}
         assert any(row.corrected() is not None for row in rows)
         assert all(row.skip_reason == "not today" for row in rows if row.verdict == "skipped")

@@ -26,7 +26,7 @@ from verirun.certificate.render import (
     render_html,
 )
 from verirun.cli import main
-from verirun.record.build import build_record
+from verirun.record.build import build_record, build_record_document
 from verirun.record.journal import RECORD_FORMAT, read_journal, write_record
 from verirun.record.verify import verified_record
 
@@ -87,7 +87,7 @@ class TestStoredRun:
         """Rebuilding the record from the journal gives the stored reading and verdict at every
         step."""
         stored = json.loads((run / "record.json").read_text(encoding="utf-8"))
-        rebuilt = build_record(read_journal(run / "journal.jsonl").documents)
+        rebuilt = build_record_document(read_journal(run / "journal.jsonl").documents)
         assert _steps(rebuilt) == _steps(stored)
         # every count the stored summary holds is the same; later formats add counts of their own
         assert {key: rebuilt["summary"][key] for key in stored["summary"]} == stored["summary"]

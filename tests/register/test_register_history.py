@@ -167,7 +167,7 @@ class TestFoundInTolerance:
         runs_dir, guarded = tmp_path / "runs", {"procedure": "procedure-guarded.yaml"}
         _calibrate(closed_run, runs_dir, "G-1", 2021, ("2.00", "5.00", "8.00"), **guarded)
         banded = _calibrate(closed_run, runs_dir, "G-1", 2022, ("2.00", "5.00", "8.196"), **guarded)
-        assert banded.record["summary"]["rejections"] == [
+        assert [r.model_dump() for r in banded.record.summary.rejections] == [
             {"key": "dcv-10@8V", "verdict": "fail", "cause": "guard-band"}
         ]
         _calibrate(closed_run, runs_dir, "G-1", 2023, ("2.00", "5.00", "8.25"), **guarded)
@@ -249,8 +249,8 @@ class TestFoundInTolerance:
         _calibrate(closed_run, runs_dir, "S-1", 2021, ("2.00", "5.00", "8.00"))
         skipped = ("skip movement seized",) * 3
         nothing = _calibrate(closed_run, runs_dir, "S-1", 2022, skipped)
-        assert nothing.record["summary"]["overall"] == "none"
-        assert nothing.record["run"]["status"] == "complete"
+        assert nothing.record.summary.overall == "none"
+        assert nothing.record.run.status == "complete"
         history = item_history(register, serial="S-1", today=dt.date(2023, 1, 1))
         assert (history.model_calibrations, history.model_in_tolerance) == (1, 1)
         assert history.last_in_tolerance is None

@@ -12,7 +12,8 @@ import sqlalchemy as sa
 
 from verirun.cli import main
 from verirun.errors import ProcedureError
-from verirun.register.schema import runs
+from verirun.record.journal import dumps
+from verirun.register.schema import records, runs
 
 DATA = Path(__file__).resolve().parent.parent / "data" / "register"
 KEYS = (
@@ -161,15 +162,10 @@ class TestStandards:
         )
         by_asset = closed_run(tmp_path / "runs", bench="bench-by-asset.yaml")
         full = closed_run(tmp_path / "runs", bench="bench.yaml")
-        calibrator = by_asset.record["bench"]["calibrator"]
-        assert (calibrator["certificate"], calibrator["calibration_due"]) == (
-            "RT-CC-0002",
-            "2098-06-30",
-        )
-        assert [p["U"] for p in by_asset.record["points"]] == [
-            p["U"] for p in full.record["points"]
-        ]
-        assert "# from the lab register" in by_asset.record["bench"]["text"]
+        calibrator = by_asset.record.bench.calibrator
+        assert (calibrator.certificate, calibrator.calibration_due) == ("RT-CC-0002", "2098-06-30")
+        assert [p.U for p in by_asset.record.points] == [p.U for p in full.record.points]
+        assert "# from the lab register" in by_asset.record.bench.text
         assert main(["verify", str(by_asset.run_dir)]) == 0
 
     def test_an_overdue_standard_in_the_register_blocks_the_run(
@@ -301,3 +297,15 @@ class TestStoredRunsOfEarlierFormats:
                 summary["overall"],
             ), name
         assert rows["format1-non-binary"]["conditional_pass"] == 3  # its record.json, as stored
+        # The record is stored whole as its file holds it: the typed record the register reads
+        # gives back, in canonical form, the very values and number types of the file.
+        with register.reading() as connection:
+            bodies = dict(
+                connection.execute(
+                    sa.select(runs.c.folder, records.c.body)
+                    .join(records, records.c.run_id == runs.c.id)
+                    .order_by(runs.c.documents)
+                ).all()
+            )
+        for name, body in bodies.items():
+            assert body == dumps(json.loads((root / name / "record.json").read_text())), name

@@ -61,7 +61,7 @@ class TestClosing:
         later = closed_run(
             tmp_path / "runs", serial="A-3", when=dt.datetime(2027, 1, 4, tzinfo=dt.timezone.utc)
         )
-        assert [f.record["run"]["certificate_number"] for f in (first, second, later)] == [
+        assert [f.record.run.certificate_number for f in (first, second, later)] == [
             "RTL-2026-00001",
             "RTL-2026-00002",
             "RTL-2027-00001",
@@ -75,7 +75,7 @@ class TestClosing:
         assert docs[-2]["kind"] == "stop" and validate_document(docs[-1]).number == "RTL-2026-00001"
         with register.reading() as connection:
             body = connection.execute(
-                sa.select(records.c.body).join(runs).where(runs.c.uid == first.record["run"]["uid"])
+                sa.select(records.c.body).join(runs).where(runs.c.uid == first.record.run.uid)
             ).scalar()
         assert json.loads(body) == json.loads((first.run_dir / "record.json").read_text())
 
@@ -114,7 +114,7 @@ class TestClosing:
             )
             == 0
         )
-        uid = finished.record["run"]["uid"]
+        uid = finished.record.run.uid
         with register.reading() as connection:
             rows = connection.execute(
                 sa.select(runs.c.revision, runs.c.certificate)
@@ -155,13 +155,13 @@ class TestOutbox:
         self._down(register_url, tmp_path, monkeypatch)
         finished = closed_run(tmp_path / "runs")
         assert (finished.run_dir / OUTBOX_NAME).exists()
-        assert finished.certificate is None and "certificate_number" not in finished.record["run"]
+        assert finished.certificate is None and finished.record.run.certificate_number is None
         assert main(["certify", str(finished.run_dir), "--reports", str(tmp_path / "reports")]) == 1
         monkeypatch.setenv("VERIRUN_REGISTER", register_url)
         closed_run(tmp_path / "runs", serial="B-2")  # another bench's run closes meanwhile
         assert main(["register", "sync", "--runs", str(tmp_path / "runs")]) == 0
         assert not (finished.run_dir / OUTBOX_NAME).exists()
-        uid = finished.record["run"]["uid"]
+        uid = finished.record.run.uid
         assert _count(register, runs, runs.c.uid == uid) == 1
         with register.reading() as connection:
             assert (

@@ -77,10 +77,10 @@ def certify_one(run: Path, reports_dir: Path, pdf: bool = False) -> Outcome:
         if not Path(run).exists():
             return Outcome(run=str(run), error=f"{run}: no such run folder")
         record = verified_record(run)
-        if record["run"]["status"] != "complete":
+        if record.run.status != "complete":
             return Outcome(
                 run=str(run),
-                error=f"{run}: the run is {record['run']['status']}, not complete;"
+                error=f"{run}: the run is {record.run.status}, not complete;"
                 " resume it before a certificate can be issued",
             )
         html = render_html(record).encode("utf-8")

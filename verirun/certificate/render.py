@@ -14,7 +14,6 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from markupsafe import Markup
-from pydantic import ValidationError
 
 from verirun.errors import RecordError
 from verirun.record.documents import (
@@ -22,8 +21,6 @@ from verirun.record.documents import (
     RangeEntry,
     Record,
     Reported,
-    validate_record,
-    validation_text,
 )
 from verirun.text import shown
 
@@ -34,53 +31,54 @@ TEMPLATE_VERSION = "3"
 DRY_RUN_PREFIX = "DRYRUN"
 
 
-def is_dry_run(record: Record | dict) -> bool:
+def is_dry_run(record: Record) -> bool:
     """True for a run on the simulated calibrator: a dry run, never a calibration."""
-    if isinstance(record, dict):
-        return bool(record["bench"].get("simulated"))
     return record.bench.simulated
 
 
-def certificate_number(record: Record | dict) -> str:
+def certificate_number(record: Record) -> str:
     """The certificate's unique number: the one the lab register gave the run, else lab prefix
     (a dry run's own prefix, outside the lab's sequence), calibration date and the run's uid; a
     later revision adds ``-R<n>``."""
-    if isinstance(record, dict):
-        run = record["run"]
-        given, revision = run.get("certificate_number"), run.get("revision", 1)
-        prefix, started, uid = (
-            record["lab"].get("certificate_prefix", "CERT"),
-            run["started"],
-            run["uid"],
-        )
-    else:
-        run = record.run
-        given, revision = run.certificate_number, run.revision
-        prefix, started, uid = record.lab.certificate_prefix, run.started, run.uid
-    return _number(given, revision, DRY_RUN_PREFIX if is_dry_run(record) else prefix, started, uid)
+    run = record.run
+    return number_for(
+        prefix=record.lab.certificate_prefix,
+        simulated=record.bench.simulated,
+        started=run.started,
+        uid=run.uid,
+        given=run.certificate_number,
+        revision=run.revision,
+    )
 
 
-def _number(given: str | None, revision: int, prefix: str, started: str, uid: str) -> str:
+def previous_number(record: Record) -> str | None:
+    """The number of the certificate this one replaces (``None`` for a first issue)."""
+    run = record.run
+    if run.revision == 1:
+        return None
+    return number_for(
+        prefix=record.lab.certificate_prefix,
+        simulated=record.bench.simulated,
+        started=run.started,
+        uid=run.uid,
+        given=run.certificate_number,
+        revision=run.revision - 1,
+    )
+
+
+def number_for(
+    *, prefix: str, simulated: bool, started: str, uid: str, given: str | None, revision: int = 1
+) -> str:
+    """The certificate number of a run of the lab whose certificates take ``prefix``, started at
+    ``started`` (the time as written), with identity ``uid``: ``given`` (the register's number),
+    else prefix (a dry run's own), date and uid; a revision after the first adds ``-R<n>``."""
     number = (
         given
         if given is not None
-        else f"{prefix}-{started[:10].replace('-', '')}-{uid[:8].upper()}"
+        else f"{DRY_RUN_PREFIX if simulated else prefix}-{started[:10].replace('-', '')}"
+        f"-{uid[:8].upper()}"
     )
     return number if revision == 1 else f"{number}-R{revision}"
-
-
-def previous_number(record: Record | dict) -> str | None:
-    """The number of the certificate this one replaces (``None`` for a first issue)."""
-    if isinstance(record, dict):
-        revision = record["run"].get("revision", 1)
-        if revision == 1:
-            return None
-        return certificate_number({**record, "run": {**record["run"], "revision": revision - 1}})
-    if record.run.revision == 1:
-        return None
-    run = record.run
-    prefix = DRY_RUN_PREFIX if is_dry_run(record) else record.lab.certificate_prefix
-    return _number(run.certificate_number, run.revision - 1, prefix, run.started, run.uid)
 
 
 def safe_file_name(text: str) -> str:
@@ -126,36 +124,19 @@ def css_string(text: str):
     return Markup(f'"{escaped}"')
 
 
-def render_html(record: Record | dict, *, replaced_by: dict | None = None) -> str:
+def render_html(record: Record, *, replaced_by: dict | None = None) -> str:
     """The certificate of ``record`` as HTML text; ``replaced_by`` (see
     :func:`verirun.issue.earlier_revisions`) marks an earlier revision as replaced."""
     return "".join(_generate(record, replaced_by=replaced_by))
 
 
-def typed(record: Record | dict) -> Record:
-    """``record`` as its model (a dict as ``record.json`` holds it is checked against it).
-
-    Raises
-    ------
-    RecordError
-        If the dict is not a run record verirun writes, naming the field.
-    """
-    if isinstance(record, Record):
-        return record
-    try:
-        return validate_record(record)
-    except ValidationError as exc:
-        raise RecordError(f"not a run record verirun writes: {validation_text(exc)}") from None
-
-
-def _generate(record: Record | dict, *, replaced_by: dict | None = None):
+def _generate(record: Record, *, replaced_by: dict | None = None):
     """The certificate of ``record`` as a stream of text pieces (for writing without holding it)."""
     from verirun.certificate.reading import reading_context
 
     global _ENV
     if _ENV is None:
         _ENV = _environment()
-    record = typed(record)
     template = _ENV.get_template("certificate.html.j2")
     as_found = record.as_found
     rule = record.decision_rule.rule
@@ -295,7 +276,7 @@ def _ranges(ranges: list[RangeEntry], points: list[PointResult]) -> list[RangeRe
     return out
 
 
-def certificate_path(record: Record | dict, reports_dir: str | Path) -> Path:
+def certificate_path(record: Record, reports_dir: str | Path) -> Path:
     """Where the certificate of ``record`` is written: ``reports_dir``/<certificate number>.html."""
     return Path(reports_dir) / f"{safe_file_name(certificate_number(record))}.html"
 
@@ -334,7 +315,7 @@ def write_pdf(html: str, path: str | Path) -> Path:
 
 
 def write_certificate(
-    record: Record | dict,
+    record: Record,
     reports_dir: str | Path,
     *,
     replaced_by: dict | None = None,
@@ -390,7 +371,6 @@ def keep_issued(path: Path, html: bytes, *, earlier: tuple[bytes, ...] = ()) -> 
         changed under an issued number (a journal cut short and resumed, or an edit).
     """
     from verirun import storage
-    from verirun.errors import RecordError
 
     try:
         old = path.read_bytes()

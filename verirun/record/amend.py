@@ -14,13 +14,13 @@ from pathlib import Path
 from verirun import storage
 from verirun.bench.config import load_bench_text
 from verirun.clock import SystemClock, iso
-from verirun.conduct import close_run
 from verirun.errors import RecordError, UnitError
 from verirun.locks import run_lock
 from verirun.procedure.load import load_procedure_text
 from verirun.procedure.plan import TestPoint, plan
 from verirun.readings import parse_entry
-from verirun.record.documents import compose
+from verirun.record.build import close_record
+from verirun.record.documents import Record, compose
 from verirun.record.journal import JOURNAL_NAME, RECORD_NAME, Journal, latest_time, read_journal
 from verirun.record.verify import run_folder, verified_record
 from verirun.units import parse_value
@@ -80,7 +80,7 @@ def _names(point: TestPoint, text: str) -> bool:
 
 def amend(
     path: str | Path, *, point: str, reading: str, reason: str, operator: str, clock=None
-) -> dict:
+) -> Record:
     """Correct the reading of one point; return the new revision's run record.
 
     Raises
@@ -98,11 +98,11 @@ def amend(
 
 def _amend_locked(
     folder: Path, *, point: str, reading: str, reason: str, operator: str, clock
-) -> dict:
+) -> Record:
     record = verified_record(folder)
-    if record["run"]["status"] != "complete":
+    if record.run.status != "complete":
         raise RecordError(
-            f"{folder}: the run is {record['run']['status']}; resume it rather than correct it"
+            f"{folder}: the run is {record.run.status}; resume it rather than correct it"
         )
     if not reason.strip():
         raise RecordError("give the reason for the correction (it is printed on the certificate)")
@@ -119,7 +119,7 @@ def _amend_locked(
         raise RecordError(f"the corrected reading: {exc}") from None
     if entry.kind != "reading":
         raise RecordError("the corrected reading must be a value, not an operator command")
-    revision = record["run"]["revision"]
+    revision = record.run.revision
     kept = folder / f"record.r{revision}.json"
     if not kept.exists():
         storage.write_new(kept, (folder / RECORD_NAME).read_bytes())
@@ -141,4 +141,4 @@ def _amend_locked(
         )
     from verirun.register.closing import after_close
 
-    return after_close(folder, close_run(folder))[0]
+    return after_close(folder, close_record(folder))[0]

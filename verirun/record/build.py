@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import contextlib
 import functools
+from pathlib import Path
 
 from pydantic import ValidationError
 
@@ -23,18 +24,21 @@ from verirun.record import documents
 from verirun.record.documents import (
     PointResult,
     Record,
+    part_document,
     record_document,
     validate_row,
     validation_text,
-    within_limits,
 )
 from verirun.record.journal import (
+    JOURNAL_NAME,
     RECORD_FORMAT,
+    RECORD_NAME,
     dumps,
     json_number,
     line_hash,
     read_journal,
     verify_chain,
+    write_record,
 )
 
 
@@ -82,19 +86,7 @@ def _plan_of(start: dict, made: Made | None) -> tuple[Procedure, Bench, tuple[Te
     return _planned(procedure["text"], procedure["source"], bench["text"], bench["source"])
 
 
-def build_record(documents: list[dict], source: str = "journal") -> dict:
-    """The run record of a journal's ``documents``, as the dict ``record.json`` holds (see
-    :func:`build_record_model`).
-
-    Raises
-    ------
-    RecordError
-        If the journal is not one verirun writes, saying where.
-    """
-    return record_document(build_record_model(documents, source))
-
-
-def build_record_model(documents: list[dict], source: str = "journal") -> Record:
+def build_record(documents: list[dict], source: str = "journal") -> Record:
     """The run record of a journal's ``documents`` (see :func:`_build`), every part checked
     against its model (:mod:`verirun.record.documents`) as it is made.
 
@@ -107,9 +99,33 @@ def build_record_model(documents: list[dict], source: str = "journal") -> Record
         return _build(documents, source)
 
 
+def build_record_document(documents: list[dict], source: str = "journal") -> dict:
+    """The run record of a journal's ``documents`` as the dict ``record.json`` holds (see
+    :func:`build_record`): for comparing it with a stored record key by key.
+
+    Raises
+    ------
+    RecordError
+        If the journal is not one verirun writes, saying where.
+    """
+    return record_document(build_record(documents, source))
+
+
+def close_record(run_dir: Path, made: Made | None = None) -> Record | None:
+    """Build and write the run record of the journal in ``run_dir`` (``None`` if it is empty),
+    and return it; ``record.json`` is written from the model, a row at a time. ``made`` is what
+    the run that has just ended planned (its procedure, bench and plan): closing plans again only
+    what it did not."""
+    # The journal's lines are held by the build alone (a long run's journal is large).
+    record = close_journal(Path(run_dir) / JOURNAL_NAME, made)
+    if record is not None:
+        write_record(record, Path(run_dir) / RECORD_NAME)
+    return record
+
+
 def close_journal(path, made: Made | None = None) -> Record | None:
     """The run record of the journal at ``path`` (``None`` when it holds no line), as
-    :func:`build_record_model` builds it; the journal's parsed lines are held by the build
+    :func:`build_record` builds it; the journal's parsed lines are held by the build
     alone, so each is let go once its row is made (a long run's lines are megabytes).
 
     ``made`` is what the run that has just ended planned (see :func:`_plan_of`).
@@ -237,24 +253,32 @@ def _build(
     )
 
 
-def record_judged(record: dict) -> list[Judged]:
-    """The points of ``record`` (as ``record.json`` holds it) as
-    :func:`~verirun.metrology.summary.summarise` takes them.
+def as_found_part(record: Record, *, adjustment: str) -> documents.AsFound:
+    """What an as-left run's journal carries of the as-found run of ``record``: its uid,
+    certificate number and date, its result rows and summary as its record holds them, and
+    ``adjustment``, what was adjusted between the two runs."""
+    from verirun.certificate.render import certificate_number
 
-    A row of a record written before rows said whether the reading lies within tolerance is
-    compared with its limits here, exactly, as the numbers are written."""
-    out = []
-    for row in record["points"]:
-        within = row.get("within_tolerance")
-        if within is None and row.get("reading") is not None:
-            within = within_limits(row["low"], row.get("high"), row["reading"])
-        out.append(Judged(key=row["key"], verdict=row["verdict"], within_tolerance=within))
-    return out
+    return documents.AsFound(
+        run=record.run.uid,
+        certificate=certificate_number(record),
+        date=record.run.started[:10],
+        adjustment=adjustment,
+        points=[part_document(row) for row in record.points],
+        summary=part_document(record.summary),
+    )
+
+
+def record_judged(record: Record) -> list[Judged]:
+    """The points of ``record`` as :func:`~verirun.metrology.summary.summarise` takes them (see
+    :func:`row_judged`)."""
+    return [row_judged(row) for row in record.points]
 
 
 def row_judged(row: PointResult) -> Judged:
-    """One typed row as :func:`~verirun.metrology.summary.summarise` takes it (see
-    :func:`record_judged`)."""
+    """One row as :func:`~verirun.metrology.summary.summarise` takes it: a row of a record
+    written before rows said whether the reading lies within tolerance is compared with its
+    limits, exactly, as the numbers are written (see :meth:`PointResult.is_within_tolerance`)."""
     return Judged(key=row.key, verdict=row.verdict, within_tolerance=row.is_within_tolerance())
 
 

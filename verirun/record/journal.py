@@ -395,19 +395,7 @@ def _object_pieces(entries, as_written):
     yield "}\n"
 
 
-def load_record(path: str | Path) -> dict:
-    """Load a run record from its file or from its run folder, as the dict it holds, after
-    checking it against the record's model (see :func:`load_record_model`).
-
-    Raises
-    ------
-    RecordError
-        If it is missing, not JSON, or not a run record this verirun reads (naming the field).
-    """
-    return _load(path)[0]
-
-
-def load_record_model(path: str | Path):
+def load_record(path: str | Path):
     """Load a run record from its file or from its run folder, as a typed
     :class:`~verirun.record.documents.Record`.
 
@@ -416,11 +404,32 @@ def load_record_model(path: str | Path):
     RecordError
         If it is missing, not JSON, or not a run record this verirun reads (naming the field).
     """
-    return _load(path)[1]
+    return read_record_file(path)[1]
 
 
-def _load(path: str | Path):
-    """The record at ``path``, as parsed and as its model."""
+def load_record_document(path: str | Path) -> dict:
+    """Load a run record as the dict ``record.json`` holds, checked against the record's model
+    as :func:`load_record` checks it: for comparing a stored record with one built again, key
+    by key, and for tests of the file itself.
+
+    Raises
+    ------
+    RecordError
+        If it is missing, not JSON, or not a run record this verirun reads (naming the field).
+    """
+    return read_record_file(path)[0]
+
+
+def read_record_file(path: str | Path):
+    """The record at ``path`` (its file or its run folder), as the dict it holds and as its
+    :class:`~verirun.record.documents.Record`, checked once: for comparing it key by key with
+    the record its journal closes into, and using it typed once it agrees.
+
+    Raises
+    ------
+    RecordError
+        If it is missing, not JSON, or not a run record this verirun reads (naming the field).
+    """
     from pydantic import ValidationError
 
     from verirun.record.documents import validate_record, validation_text

@@ -5,6 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from verirun.errors import RecordError
+from verirun.record.documents import Record
 from verirun.record.journal import (
     JOURNAL_NAME,
     RECORD_NAME,
@@ -26,29 +27,30 @@ def summary(folder: Path) -> dict | None:
     try:
         if record_path.exists():
             record = load_record(record_path)
-            status = record["run"]["status"]
+            run = record.run
+            status = run.status
             if journal_path.exists():
                 # A record left behind by a crash is older than its journal.
                 journal_docs = read_journal(journal_path).documents
-                if len(journal_docs) != record["run"].get("documents"):
+                if len(journal_docs) != run.documents:
                     status = "resumable"
             from verirun.certificate.render import certificate_number
 
             row = {
                 "run": folder.name,
                 "path": str(folder),
-                "item": record["item"].get("serial"),
-                "procedure": record["procedure"]["id"],
-                "revision": record["procedure"]["revision"],
-                "date": record["run"]["started"][:10],
-                "verdict": record["summary"]["overall"],
+                "item": record.item.serial,
+                "procedure": record.procedure.id,
+                "revision": record.procedure.revision,
+                "date": run.started[:10],
+                "verdict": record.summary.overall,
                 "status": "aborted" if status in ("failed",) else status,
-                "uid": record["run"]["uid"],
-                "record_revision": record["run"].get("revision", 1),
+                "uid": run.uid,
+                "record_revision": run.revision,
                 "certificate": certificate_number(record) if status == "complete" else None,
-                "customer": (record.get("customer") or {}).get("name"),
-                "simulated": bool(record["bench"].get("simulated")),
-                "as_found_run": (record.get("as_found") or {}).get("run"),
+                "customer": record.customer.name,
+                "simulated": record.bench.simulated,
+                "as_found_run": record.as_found.run if record.as_found is not None else None,
                 "as_left_run": None,
                 "certificate_state": _certificate_state(record),
             }
@@ -137,15 +139,15 @@ def _check_row(row: dict) -> None:
             raise TypeError(f"{name} is {type(value).__name__}, not what a run's summary holds")
 
 
-def _certificate_state(record: dict) -> str:
+def _certificate_state(record: Record) -> str:
     """``dry run``, ``draft`` or ``issued`` (``issued rN`` after an amendment) for a run's
     record."""
-    if record["bench"].get("simulated"):
+    if record.bench.simulated:
         return "dry run"
-    revision = record["run"].get("revision", 1)
-    if any(i.get("revision") == revision for i in record.get("issues", [])):
+    revision = record.run.revision
+    if any(issued.revision == revision for issued in record.issues or ()):
         return "issued" if revision == 1 else f"issued r{revision}"
-    return "draft" if record["run"]["status"] == "complete" else "none"
+    return "draft" if record.run.status == "complete" else "none"
 
 
 def list_runs(

@@ -14,7 +14,8 @@ import re
 from pathlib import Path
 
 from verirun.errors import RecordError
-from verirun.record.build import build_record
+from verirun.record.build import build_record_document
+from verirun.record.documents import Record
 from verirun.record.journal import (
     JOURNAL_NAME,
     RECORD_FORMAT,
@@ -22,9 +23,11 @@ from verirun.record.journal import (
     dumps,
     line_hash,
     load_record,
+    load_record_document,
     never_started,
     never_started_text,
     read_journal,
+    read_record_file,
     verify_chain,
 )
 
@@ -114,12 +117,12 @@ def reach_problems(folder: Path, documents: list[dict], reports: Path | None = N
         made.append(folder / RECORD_NAME)
     for path in made:
         try:
-            run = load_record(path).get("run")
-            count, head = run.get("documents"), run.get("journal_sha256_last")
-            numbers.append(run.get("certificate_number"))
-        except (RecordError, AttributeError) as exc:
-            found.append(str(exc) if isinstance(exc, RecordError) else f"{path}: not a run record")
+            run = load_record(path).run
+        except RecordError as exc:
+            found.append(str(exc))
             continue
+        count, head = run.documents, run.journal_sha256_last
+        numbers.append(run.certificate_number)
         if not reaches(documents, count, head):
             found.append(
                 f"{path}: was closed from {count!r} journal documents, but the journal no longer"
@@ -141,7 +144,7 @@ def certificates_of(documents: list[dict], reports: Path, also=()) -> list[Path]
     """The certificates in ``reports`` numbered for the run whose journal is ``documents``: by
     its uid, by the number the lab register gave it (its certificate-number document), and by
     the numbers in ``also`` (those its records carry)."""
-    from verirun.certificate.render import certificate_number, safe_file_name
+    from verirun.certificate.render import number_for, safe_file_name
 
     start = documents[0]
     given = [doc.get("number") for doc in documents if doc.get("kind") == "certificate-number"]
@@ -152,17 +155,12 @@ def certificates_of(documents: list[dict], reports: Path, also=()) -> list[Path]
         try:
             stems.add(
                 safe_file_name(
-                    certificate_number(
-                        {
-                            "lab": start["lab"],
-                            "bench": start["bench"],
-                            "run": {
-                                "started": start["time"],
-                                "uid": start["uid"],
-                                "revision": 1,
-                                **({"certificate_number": number} if number else {}),
-                            },
-                        }
+                    number_for(
+                        prefix=start["lab"]["certificate_prefix"],
+                        simulated=start["bench"]["simulated"],
+                        started=start["time"],
+                        uid=start["uid"],
+                        given=number or None,
                     )
                 )
             )
@@ -211,8 +209,8 @@ def problems(path: str | Path, reports: str | Path | None = None) -> list[str]:
     if found:
         return found
     try:
-        rebuilt = build_record(read.documents, str(journal_path))
-        stored = load_record(folder / RECORD_NAME)
+        rebuilt = build_record_document(read.documents, str(journal_path))
+        stored = load_record_document(folder / RECORD_NAME)
     except RecordError as exc:
         return [str(exc)]
     stored, rebuilt = comparable(stored, rebuilt)
@@ -231,8 +229,8 @@ def problems(path: str | Path, reports: str | Path | None = None) -> list[str]:
     return found
 
 
-def verified_record(path: str | Path) -> dict:
-    """The run record at ``path``, after checking it against its journal.
+def verified_record(path: str | Path) -> Record:
+    """The run record at ``path``, typed, after checking it against its journal.
 
     Raises
     ------
@@ -243,3 +241,49 @@ def verified_record(path: str | Path) -> dict:
     if found:
         raise RecordError("\n".join(found))
     return load_record(run_folder(path) / RECORD_NAME)
+
+
+def verified_records(folder: Path, *, current: bool = True) -> tuple[list[Record], list[str]]:
+    """The records of ``folder`` that verify against its journal (earlier revisions first, and
+    the current one unless not ``current``), and a line for every problem found: each earlier
+    revision kept beside the record (``record.rN.json``) must be the record of the journal as it
+    stood then, as :func:`problems` checks the current one."""
+    journal = folder / JOURNAL_NAME
+    try:
+        read = read_journal(journal)
+    except RecordError as exc:
+        return [], [str(exc)]
+    found = verify_chain(read.documents, str(journal))
+    if read.torn_line is not None:
+        found.append(
+            f"{journal}: the last line is cut off (an interrupted write);"
+            " resume the run to recover it"
+        )
+    if found or not read.documents:
+        return [], found or [f"{journal}: the journal is empty"]
+    paths = sorted(folder.glob("record.r*.json"), key=lambda p: _revision_of(p.name))
+    if current:
+        paths.append(folder / RECORD_NAME)
+    good = []
+    for path in paths:
+        try:
+            stored, model = read_record_file(path)
+            upto = len(read.documents) if path.name == RECORD_NAME else model.run.documents
+            rebuilt = build_record_document(read.documents[:upto], str(journal))
+        except RecordError as exc:
+            found.append(f"{path}: {exc}")
+            continue
+        mine, journal_s = comparable(stored, rebuilt)
+        if mine != journal_s:
+            keys = sorted(k for k in set(mine) | set(journal_s) if mine.get(k) != journal_s.get(k))
+            found.append(
+                f"{path}: the record differs from what its journal records (in {', '.join(keys)})"
+            )
+        else:
+            good.append(model)
+    return good, found
+
+
+def _revision_of(name: str) -> int:
+    digits = name[len("record.r") : -len(".json")]
+    return int(digits) if digits.isdigit() else 0

@@ -14,7 +14,8 @@ import json
 from pathlib import Path
 
 from verirun.errors import RecordError
-from verirun.record.documents import compose
+from verirun.record.build import close_record
+from verirun.record.documents import Record, compose
 from verirun.record.journal import JOURNAL_NAME, Journal
 
 #: The file in a run folder that says its latest closing is not yet in the register.
@@ -23,35 +24,29 @@ OUTBOX_NAME = "register-outbox.json"
 NUMBER_KIND = "certificate-number"
 
 
-def needs_number(record: dict) -> bool:
+def needs_number(record: Record) -> bool:
     """True when ``record`` is of a complete run that has no number from a register yet (a dry
     run is never given one: its number is its own, outside the lab's sequence)."""
     return (
-        record["run"]["status"] == "complete"
-        and not record["run"].get("certificate_number")
-        and not record["bench"].get("simulated")
+        record.run.status == "complete"
+        and not record.run.certificate_number
+        and not record.bench.simulated
     )
 
 
-def after_close(run_dir: Path, record, *, warn=None) -> tuple:
+def after_close(run_dir: Path, record: Record | None, *, warn=None) -> tuple[Record | None, bool]:
     """Number and store a just-closed run in the named register (if any); return the record
     (with its number) and whether its certificate may be issued now.
 
-    ``record`` is the dict ``record.json`` holds, or its typed
-    :class:`~verirun.record.documents.Record`. With no register named, the record is returned
-    as it is; else as a dict. When the register cannot be reached, the run is kept in the outbox
-    and ``warn`` is told; a run still waiting for its certificate number may not be issued until
-    it is synced.
+    With no register named, ``record`` is returned as it is; else as the register numbered it.
+    When the register cannot be reached, the run is kept in the outbox and ``warn`` is told; a
+    run still waiting for its certificate number may not be issued until it is synced.
     """
     from verirun.register.config import named
 
     name = named()
     if name is None or record is None:
         return record, True
-    if not isinstance(record, dict):
-        from verirun.record.documents import record_document
-
-        record = record_document(record)
     from verirun.register.db import RegisterError, open_register
 
     try:
@@ -76,7 +71,7 @@ def after_close(run_dir: Path, record, *, warn=None) -> tuple:
         raise
 
 
-def file_run(register, run_dir: Path, record: dict) -> dict:
+def file_run(register, run_dir: Path, record: Record) -> Record:
     """Give a complete run its certificate number (once) and store its record; return the record.
 
     Raises
@@ -99,15 +94,13 @@ def file_run(register, run_dir: Path, record: dict) -> dict:
                     register_url=register.name,
                 )
             )
-        from verirun.conduct import close_run
-
-        record = close_run(run_dir)
+        record = close_record(run_dir)
     store_record(register, record, run_dir.name)
     (run_dir / OUTBOX_NAME).unlink(missing_ok=True)
     return record
 
 
-def keep(run_dir: Path, record: dict, reason: str) -> Path:
+def keep(run_dir: Path, record: Record, reason: str) -> Path:
     """Write the outbox file of a run whose closing the register did not take (whole: temporary,
     fsync, rename, never through a symbolic link)."""
     from verirun import storage
@@ -119,9 +112,9 @@ def keep(run_dir: Path, record: dict, reason: str) -> Path:
         [
             json.dumps(
                 {
-                    "uid": record["run"]["uid"],
-                    "revision": record["run"]["revision"],
-                    "documents": record["run"]["documents"],
+                    "uid": record.run.uid,
+                    "revision": record.run.revision,
+                    "documents": record.run.documents,
                     "reason": reason,
                     "kept": iso(SystemClock().now()),
                 },

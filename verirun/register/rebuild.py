@@ -13,69 +13,12 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from verirun.errors import RecordError
-from verirun.record.journal import (
-    JOURNAL_NAME,
-    RECORD_NAME,
-    load_record,
-    read_journal,
-    verify_chain,
-)
+from verirun.record.journal import JOURNAL_NAME
+from verirun.record.verify import verified_records
 
 #: Records stored per transaction by a rebuild: one commit (and its fsync) per record would
 #: be most of a rebuild's time (benchmarks/register.py).
 BATCH = 200
-
-
-def verified_records(folder: Path, *, current: bool = True) -> tuple[list[dict], list[str]]:
-    """The records of ``folder`` that verify against its journal (earlier revisions first), and
-    a line for every problem found."""
-    from verirun.record.build import build_record
-    from verirun.record.verify import comparable
-
-    journal = folder / JOURNAL_NAME
-    try:
-        read = read_journal(journal)
-    except RecordError as exc:
-        return [], [str(exc)]
-    problems = verify_chain(read.documents, str(journal))
-    if read.torn_line is not None:
-        problems.append(
-            f"{journal}: the last line is cut off (an interrupted write);"
-            " resume the run to recover it"
-        )
-    if problems or not read.documents:
-        return [], problems or [f"{journal}: the journal is empty"]
-    paths = sorted(folder.glob("record.r*.json"), key=lambda p: _revision_of(p.name))
-    if current:
-        paths.append(folder / RECORD_NAME)
-    good = []
-    for path in paths:
-        try:
-            stored = load_record(path)
-            upto = (
-                len(read.documents) if path.name == RECORD_NAME else int(stored["run"]["documents"])
-            )
-            rebuilt = build_record(read.documents[:upto], str(journal))
-        except (RecordError, KeyError, TypeError, ValueError) as exc:
-            problems.append(f"{path}: {exc}")
-            continue
-        if not isinstance(stored, dict) or not isinstance(stored.get("summary"), dict):
-            problems.append(f"{path}: not a run record")
-            continue
-        mine, journal_s = comparable(stored, rebuilt)
-        if mine != journal_s:
-            keys = sorted(k for k in set(mine) | set(journal_s) if mine.get(k) != journal_s.get(k))
-            problems.append(
-                f"{path}: the record differs from what its journal records (in {', '.join(keys)})"
-            )
-        else:
-            good.append(stored)
-    return good, problems
-
-
-def _revision_of(name: str) -> int:
-    digits = name[len("record.r") : -len(".json")]
-    return int(digits) if digits.isdigit() else 0
 
 
 def index_folder(register, folder: Path, *, current: bool = True) -> list[str]:

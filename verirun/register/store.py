@@ -12,6 +12,7 @@ import hashlib
 
 import sqlalchemy as sa
 
+from verirun.record.documents import Record
 from verirun.register.db import Register, RegisterError, RegisterUnreachable, _reason
 from verirun.register.schema import items, numbers, points, records, runs
 
@@ -30,11 +31,11 @@ def _insert(register: Register, table: sa.Table):
     return insert(table)
 
 
-def sequence_of(record: dict) -> tuple[str, str]:
+def sequence_of(record: Record) -> tuple[str, str]:
     """The lab's number sequence a record's certificate takes its number from, and its prefix:
     the lab's certificate prefix and the year the run started (numbers start again each year)."""
-    prefix = record["lab"].get("certificate_prefix") or "CERT"
-    year = record["run"]["started"][:4]
+    prefix = record.lab.certificate_prefix or "CERT"
+    year = record.run.started[:4]
     return f"{prefix}-{year}", f"{prefix}-{year}-"
 
 
@@ -43,7 +44,7 @@ def _lock_key(sequence: str) -> int:
     return int.from_bytes(hashlib.sha256(sequence.encode("utf-8")).digest()[:8], "big", signed=True)
 
 
-def allocate_number(register: Register, record: dict) -> str:
+def allocate_number(register: Register, record: Record) -> str:
     """The certificate number of the run of ``record``: the next in its lab's sequence, or the
     one it was given before (a run has one number, whichever bench asks, however often).
 
@@ -52,7 +53,7 @@ def allocate_number(register: Register, record: dict) -> str:
     so numbers are neither shared nor skipped when several benches close runs at once; a
     transaction that fails takes its number back with it.
     """
-    uid = record["run"]["uid"]
+    uid = record.run.uid
     sequence, prefix = sequence_of(record)
     try:
         with register.engine.begin() as connection:
@@ -100,36 +101,35 @@ def item_key(serial: str | None) -> str | None:
     return None if serial is None else serial.strip().casefold()
 
 
-def run_row(record: dict, folder: str) -> dict:
+def run_row(record: Record, folder: str) -> dict:
     """The ``runs`` row of a closed record."""
     from verirun.certificate.render import certificate_number
     from verirun.metrology.summary import summarise
     from verirun.record.build import record_judged
 
-    run = record["run"]
+    run = record.run
     # The counts of the one summary function, worked out again from the rows (a record of an
     # earlier format may store fewer counts, or none of the conditional verdicts).
-    summary = summarise(record_judged(record), record["decision_rule"]["rule"])
-    calibrator = record["bench"].get("calibrator") or {}
+    summary = summarise(record_judged(record), record.decision_rule.rule)
     return {
-        "uid": run["uid"],
-        "revision": run["revision"],
-        "documents": run["documents"],
-        "journal_sha256_last": run["journal_sha256_last"],
+        "uid": run.uid,
+        "revision": run.revision,
+        "documents": run.documents,
+        "journal_sha256_last": run.journal_sha256_last,
         "folder": folder,
-        "item_serial": record["item"].get("serial"),
-        "item_key": item_key(record["item"].get("serial")),
-        "item_model": record["meter"].get("model") or "",
-        "item_asset": record["item"].get("asset"),
-        "customer": record["customer"].get("name"),
-        "procedure_id": record["procedure"]["id"],
-        "procedure_revision": str(record["procedure"]["revision"]),
-        "bench_id": record["bench"].get("id"),
-        "standard_asset": calibrator.get("asset"),
-        "operator": run.get("operator"),
-        "started": run["started"],
-        "ended": run.get("ended"),
-        "rule": record["decision_rule"]["rule"],
+        "item_serial": record.item.serial,
+        "item_key": item_key(record.item.serial),
+        "item_model": record.meter.model or "",
+        "item_asset": record.item.asset,
+        "customer": record.customer.name,
+        "procedure_id": record.procedure.id,
+        "procedure_revision": record.procedure.revision,
+        "bench_id": record.bench.id,
+        "standard_asset": record.bench.calibrator.asset,
+        "operator": run.operator,
+        "started": run.started,
+        "ended": run.ended,
+        "rule": record.decision_rule.rule,
         "points": summary.points,
         "passed": summary.passed,
         "conditional_pass": summary.conditional_pass,
@@ -139,11 +139,11 @@ def run_row(record: dict, folder: str) -> dict:
         "not_measured": summary.not_measured,
         "overall": summary.overall,
         "outside_tolerance": summary.outside_tolerance,
-        "status": run["status"],
-        "simulated": bool(record["bench"].get("simulated")),
+        "status": run.status,
+        "simulated": record.bench.simulated,
         "certificate": certificate_number(record),
-        "certificate_revision": run["revision"],
-        "as_found_uid": (record.get("as_found") or {}).get("run"),
+        "certificate_revision": run.revision,
+        "as_found_uid": record.as_found.run if record.as_found is not None else None,
         "stored": now_text(),
     }
 
@@ -152,33 +152,31 @@ def _fraction(percent: float | None) -> float | None:
     return None if percent is None else percent / 100.0
 
 
-def point_rows(run_id: int, record: dict) -> list[dict]:
+def point_rows(run_id: int, record: Record) -> list[dict]:
     """The ``points`` rows of a closed record, one per step."""
-    from verirun.record.build import record_judged
-
     return [
         {
             "run_id": run_id,
-            "step": row["index"] + 1,
-            "key": row["key"],
-            "range_id": row["range"],
-            "unit": row["unit"],
-            "nominal": row["nominal"],
-            "frequency": row["frequency"],
-            "reading": row["reading"],
-            "error": row["error"],
-            "error_unit": row["error_unit"],
-            "error_fraction": _fraction(row["percent_of_tolerance"]),
-            "expanded": row["U"],
-            "expanded_fraction": _fraction(row["U_pct"]),
-            "verdict": row["verdict"],
-            "within_tolerance": judged.within_tolerance,
+            "step": row.index + 1,
+            "key": row.key,
+            "range_id": row.range,
+            "unit": row.unit,
+            "nominal": row.nominal,
+            "frequency": row.frequency,
+            "reading": row.reading,
+            "error": row.error,
+            "error_unit": row.error_unit,
+            "error_fraction": _fraction(row.percent_of_tolerance),
+            "expanded": row.U,
+            "expanded_fraction": _fraction(row.U_pct),
+            "verdict": row.verdict,
+            "within_tolerance": row.is_within_tolerance(),
         }
-        for row, judged in zip(record["points"], record_judged(record))
+        for row in record.points
     ]
 
 
-def store_record(register: Register, record: dict, folder: str, *, by: str = "verirun") -> bool:
+def store_record(register: Register, record: Record, folder: str, *, by: str = "verirun") -> bool:
     """Store a closed run record whole, with its points and its item; ``False`` if it was there.
 
     Raises
@@ -190,10 +188,11 @@ def store_record(register: Register, record: dict, folder: str, *, by: str = "ve
 
 
 def store_records(
-    register: Register, closed: list[tuple[dict, str]], *, by: str = "verirun"
+    register: Register, closed: list[tuple[Record, str]], *, by: str = "verirun"
 ) -> int:
     """Store several closed records (each with its run folder's name) in one transaction; return
     how many were not there before."""
+    from verirun.record.documents import record_document
     from verirun.record.journal import dumps
 
     # Statements made once and given their values as parameters, so each is compiled once.
@@ -213,9 +212,9 @@ def store_records(
                 if inserted is None:
                     continue
                 stored += 1
-                if record["points"]:
+                if record.points:
                     connection.execute(points.insert(), point_rows(inserted, record))
-                body = dumps(record)
+                body = dumps(record_document(record))
                 connection.execute(
                     records.insert(),
                     {
@@ -224,17 +223,17 @@ def store_records(
                         "sha256": hashlib.sha256(body.encode("utf-8")).hexdigest(),
                     },
                 )
-                meter = record["meter"]
+                meter = record.meter
                 connection.execute(
                     add_item,
                     {
-                        "serial": record["item"].get("serial") or "",
-                        "model": meter.get("model") or "",
+                        "serial": record.item.serial or "",
+                        "model": meter.model or "",
                         "revision": 1,
-                        "maker": meter.get("maker"),
-                        "kind": meter.get("kind"),
-                        "customer": record["customer"].get("name"),
-                        "asset": record["item"].get("asset"),
+                        "maker": meter.maker,
+                        "kind": meter.kind,
+                        "customer": record.customer.name,
+                        "asset": record.item.asset,
                         "interval_days": None,
                         "entered": now_text(),
                         "entered_by": by,
@@ -245,9 +244,9 @@ def store_records(
     return stored
 
 
-def stored_record(register: Register, uid: str, revision: int | None = None) -> dict | None:
+def stored_record(register: Register, uid: str, revision: int | None = None) -> Record | None:
     """The latest stored record of run ``uid`` (of ``revision``, when given), or ``None``."""
-    import json
+    from verirun.record.documents import parse_json, validate_record
 
     query = (
         sa.select(records.c.body)
@@ -260,4 +259,4 @@ def stored_record(register: Register, uid: str, revision: int | None = None) -> 
         query = query.where(runs.c.revision == revision)
     with register.reading() as connection:
         body = connection.execute(query).scalar()
-    return None if body is None else json.loads(body)
+    return None if body is None else validate_record(parse_json(body))
