@@ -197,7 +197,7 @@ class SimpleAcceptance(_Statement):
         """The acceptance zone: the tolerance zone itself."""
         low, high, expanded = _exact_args(low, high, expanded)
         _check_zone(low, high, expanded, k)
-        return _shrunk(low, high, _NO_GUARD)
+        return Acceptance(low=low, high=high, guard=_NO_GUARD)
 
 
 @dataclass(frozen=True, kw_only=True, slots=True)

@@ -274,12 +274,13 @@ def window(statement: Statement, nominal: float, ctx: RangeContext) -> Window:
         per_unit, unit = Fraction(1), ""
     else:
         f0 = ctx.law.exact_fraction(n)
-        zone = (f0 - half, f0 + half)
+        below, above = f0 - half, f0 + half
+        zone = (below, above)
         if ohms:
             # An ohms scale ends at 0 and at infinity: a limit at or past an end of the arc is
             # no limit at all (the pointer cannot go there), so that side of the zone is open.
-            zone = (zone[0] if zone[0] > 0 else -math.inf, zone[1] if zone[1] < 1 else math.inf)
-        a, b = ctx.law.exact_value(f0 - half), ctx.law.exact_value(f0 + half)
+            zone = (below if below > 0 else -math.inf, above if above < 1 else math.inf)
+        a, b = ctx.law.exact_value(below), ctx.law.exact_value(above)
         low, high = min(a, b, n), max(a, b, n)
         per_unit, unit = _report_unit(statement)
         if unit == "deg":

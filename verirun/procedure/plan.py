@@ -96,14 +96,19 @@ def budget_terms(
 ) -> list[uncertainty.Term]:
     """The contributions to the uncertainty of a reading at ``nominal`` on ``rng``: the applied
     value's, from the calibrator's specification line ``standard``, then the meter's own."""
-    terms = []
-    if standard is not None:
-        terms.append(
-            standard.spec.term(
-                output=nominal, range_value=standard.range, name="applied value (calibrator)"
-            )
+    return _applied_terms(nominal, standard) + rng.meter_terms()
+
+
+def _applied_terms(nominal: float, standard: "SpecLine | None") -> list[uncertainty.Term]:
+    """The applied value's contribution at ``nominal``, from the calibrator's specification line
+    ``standard`` (none without one)."""
+    if standard is None:
+        return []
+    return [
+        standard.spec.term(
+            output=nominal, range_value=standard.range, name="applied value (calibrator)"
         )
-    return terms + rng.meter_terms()
+    ]
 
 
 def plan(procedure: Procedure, bench: "Bench | None" = None) -> list[TestPoint]:
@@ -113,39 +118,41 @@ def plan(procedure: Procedure, bench: "Bench | None" = None) -> list[TestPoint]:
     procedure's extra terms): enough to check a procedure, not to sign a certificate.
     """
     written = _written_points(procedure)
-    items = [(rng, nominal, freq) for rng in procedure.ranges for nominal, freq in rng.points]
-    if len(written) != len(items):  # a procedure not made by the loader: labels from the numbers
-        written = [None] * len(items)
+    total = sum(len(rng.points) for rng in procedure.ranges)
+    if len(written) != total:  # a procedure not made by the loader: labels from the numbers
+        written = [None] * total
     points = []
-    previous = None
-    for index, (rng, nominal, freq) in enumerate(items):
-        band = rng.band_at(freq)
-        win = tolerance.window(band.statement, nominal, rng.context)
-        standard = bench.spec_for(rng.function, nominal, freq) if bench is not None else None
-        budget = uncertainty.budget(
-            terms=budget_terms(rng, nominal, freq, standard),
-            nominal=nominal,
-            law=rng.law,
-            domain=win.domain,
-        )
-        points.append(
-            TestPoint(
-                index=index,
-                total=len(items),
-                range=rng,
+    for rng in procedure.ranges:
+        # The same at every point of the range: made once for all of them.
+        context, meter_terms = rng.context, rng.meter_terms()
+        for number, (nominal, freq) in enumerate(rng.points):
+            band = rng.band_at(freq)
+            win = tolerance.window(band.statement, nominal, context)
+            standard = bench.spec_for(rng.function, nominal, freq) if bench is not None else None
+            budget = uncertainty.budget(
+                terms=_applied_terms(nominal, standard) + meter_terms,
                 nominal=nominal,
-                frequency=freq,
-                window=win,
-                accuracy_text=band.text,
-                first_of_range=rng is not previous,
-                budget=budget,
-                rule=procedure.rule,
-                standard=standard,
-                statement=band.statement,
-                written=written[index],
+                law=rng.law,
+                domain=win.domain,
             )
-        )
-        previous = rng
+            index = len(points)
+            points.append(
+                TestPoint(
+                    index=index,
+                    total=total,
+                    range=rng,
+                    nominal=nominal,
+                    frequency=freq,
+                    window=win,
+                    accuracy_text=band.text,
+                    first_of_range=number == 0,
+                    budget=budget,
+                    rule=procedure.rule,
+                    standard=standard,
+                    statement=band.statement,
+                    written=written[index],
+                )
+            )
     return points
 
 
