@@ -172,3 +172,35 @@ class TestWrongField:
         assert isinstance(row, PointResult)
         with pytest.raises(dataclasses.FrozenInstanceError):
             row.verdict = "pass"
+
+
+class TestReadersGetTheModel:
+    """Every way a module outside the record package gets a record gives the typed model: it
+    reads fields, and a key read would fail at once (a model is not a mapping)."""
+
+    @pytest.mark.parametrize(
+        "run", sorted(p.parent for p in STORED if p.name == "record.json"), ids=lambda p: p.name
+    )
+    def test_of_every_stored_format(self, run):
+        from verirun.record.build import build_record
+        from verirun.record.journal import read_journal
+        from verirun.record.verify import verified_record, verified_records
+
+        loaded, verified = load_record(run), verified_record(run)
+        built = build_record(read_journal(run / "journal.jsonl").documents)
+        (*_, current), problems = verified_records(run)
+        assert problems == []
+        for record in (loaded, verified, built, current):
+            assert isinstance(record, Record)
+            with pytest.raises(TypeError, match="not subscriptable"):
+                record["run"]
+        assert loaded == verified == current
+        assert built.run.uid == loaded.run.uid and len(built.points) == len(loaded.points)
+
+    def test_of_a_run_closed_now(self, tmp_path):
+        from verirun.record.build import close_record
+
+        assert main(["demo", "--runs", str(tmp_path / "runs"), "--reports", str(tmp_path)]) == 0
+        (run,) = (tmp_path / "runs").iterdir()
+        closed = close_record(run)
+        assert isinstance(closed, Record) and closed == load_record(run)

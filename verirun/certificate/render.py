@@ -40,29 +40,23 @@ def certificate_number(record: Record) -> str:
     """The certificate's unique number: the one the lab register gave the run, else lab prefix
     (a dry run's own prefix, outside the lab's sequence), calibration date and the run's uid; a
     later revision adds ``-R<n>``."""
-    run = record.run
-    return number_for(
-        prefix=record.lab.certificate_prefix,
-        simulated=record.bench.simulated,
-        started=run.started,
-        uid=run.uid,
-        given=run.certificate_number,
-        revision=run.revision,
-    )
+    return _numbered(record, record.run.revision)
 
 
 def previous_number(record: Record) -> str | None:
     """The number of the certificate this one replaces (``None`` for a first issue)."""
+    return None if record.run.revision == 1 else _numbered(record, record.run.revision - 1)
+
+
+def _numbered(record: Record, revision: int) -> str:
     run = record.run
-    if run.revision == 1:
-        return None
     return number_for(
         prefix=record.lab.certificate_prefix,
         simulated=record.bench.simulated,
         started=run.started,
         uid=run.uid,
         given=run.certificate_number,
-        revision=run.revision - 1,
+        revision=revision,
     )
 
 
