@@ -37,6 +37,7 @@ from verirun.record.documents import (
     Start,
     as_journaled,
     compose,
+    record_document,
 )
 from verirun.record.journal import (
     JOURNAL_NAME,
@@ -45,7 +46,7 @@ from verirun.record.journal import (
     confirmed_steps,
     latest_environment,
     latest_time,
-    load_record,
+    load_record_document,
     never_started,
     never_started_text,
     read_journal,
@@ -553,19 +554,23 @@ def _finish_closed(run_dir: Path, reports_dir: Path, record: Record, console) ->
     """A closed run: write its record and certificate again if either is missing or stale."""
     from verirun.certificate.render import certificate_path
 
+    # Compared as the file holds it: a key in the file that the journal does not give (a stray
+    # null, say) makes the record stale, though the two models would compare equal.
     try:
-        stored = load_record(run_dir / RECORD_NAME)
+        stored = load_record_document(run_dir / RECORD_NAME)
     except RecordError:
         stored = None
     complete = record.run.status == "complete"
-    if stored == record and not (complete and not certificate_path(record, reports_dir).exists()):
+    written = record_document(record)
+    if stored == written and not (complete and not certificate_path(record, reports_dir).exists()):
         raise RecordError(
             f"{run_dir}: the run is closed ({record.run.status}) and its record is"
             " written; nothing to resume (use 'verirun certify' for its certificate)"
         )
-    if stored != record:
+    if stored != written:
         console.say(
-            "the run was closed but its record was not written: written now from the journal"
+            "the run was closed but its record is missing or not the one its journal closes"
+            " into: written again from the journal"
         )
     return _finish(run_dir, reports_dir, console=console)
 

@@ -132,6 +132,33 @@ class TestAbortAndResume:
         assert run_cli("resume", run_dir, "--readings", data_dir / "qm40-readings.csv") == 1
         assert "nothing to resume" in capsys.readouterr().err
 
+    @pytest.mark.parametrize(
+        "stray",
+        [
+            lambda record: record.update(issues=None),
+            lambda record: record.update(as_found=None),
+            lambda record: record["run"].update(certificate_number=None),
+        ],
+        ids=["issues", "as_found", "certificate_number"],
+    )
+    def test_a_record_with_a_null_its_journal_does_not_give_is_written_again(
+        self, tmp_path, data_dir, demo_procedure_path, demo_bench_path, capsys, stray
+    ):
+        """A complete run's record.json holding a null its journal does not give (the models
+        of the two records compare equal; the files do not) does not verify, and resume writes
+        it again from the journal rather than saying there is nothing to resume."""
+        demo_run(tmp_path, demo_procedure_path, demo_bench_path, data_dir / "qm40-readings.csv")
+        (run_dir,) = (tmp_path / "runs").iterdir()
+        path = run_dir / "record.json"
+        record = json.loads(path.read_text(encoding="utf-8"))
+        stray(record)
+        path.write_text(json.dumps(record), encoding="utf-8")
+        assert any("differs from what its journal records" in p for p in problems(run_dir))
+        capsys.readouterr()
+        assert run_cli("resume", run_dir, "--readings", data_dir / "qm40-readings.csv") == 0
+        assert "nothing to resume" not in capsys.readouterr().err
+        assert problems(run_dir) == []
+
     def test_torn_last_line_is_recovered_and_reported(
         self, tmp_path, data_dir, demo_procedure_path, demo_bench_path, capsys
     ):

@@ -242,21 +242,3 @@ def store_records(
     except (sa.exc.OperationalError, sa.exc.InterfaceError) as exc:
         raise RegisterUnreachable(f"register {register.name}: {_reason(exc)}") from None
     return stored
-
-
-def stored_record(register: Register, uid: str, revision: int | None = None) -> Record | None:
-    """The latest stored record of run ``uid`` (of ``revision``, when given), or ``None``."""
-    from verirun.record.documents import parse_json, validate_record
-
-    query = (
-        sa.select(records.c.body)
-        .join(runs, runs.c.id == records.c.run_id)
-        .where(runs.c.uid == uid)
-        .order_by(runs.c.documents.desc())
-        .limit(1)
-    )
-    if revision is not None:
-        query = query.where(runs.c.revision == revision)
-    with register.reading() as connection:
-        body = connection.execute(query).scalar()
-    return None if body is None else validate_record(parse_json(body))
