@@ -297,15 +297,27 @@ class TestStoredRunsOfEarlierFormats:
                 summary["overall"],
             ), name
         assert rows["format1-non-binary"]["conditional_pass"] == 3  # its record.json, as stored
-        # The record is stored whole as its file holds it: the typed record the register reads
-        # gives back, in canonical form, the very values and number types of the file.
+        # Every record is stored whole as its file holds it (an amended run's earlier revision as
+        # record.rN.json): the typed record gives back, in canonical form, the very values and
+        # number types of the file.
         with register.reading() as connection:
-            bodies = dict(
-                connection.execute(
-                    sa.select(runs.c.folder, records.c.body)
-                    .join(records, records.c.run_id == runs.c.id)
-                    .order_by(runs.c.documents)
-                ).all()
+            stored_bodies = connection.execute(
+                sa.select(runs.c.folder, runs.c.revision, records.c.body).join(
+                    records, records.c.run_id == runs.c.id
+                )
+            ).all()
+        files = 0
+        for name, revision, body in stored_bodies:
+            current = json.loads((root / name / "record.json").read_text())
+            path = (
+                root
+                / name
+                / (
+                    "record.json"
+                    if current["run"]["revision"] == revision
+                    else f"record.r{revision}.json"
+                )
             )
-        for name, body in bodies.items():
-            assert body == dumps(json.loads((root / name / "record.json").read_text())), name
+            assert body == dumps(json.loads(path.read_text())), (name, revision)
+            files += 1
+        assert files == len(list(root.glob("*/record*.json")))
