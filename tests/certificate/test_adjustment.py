@@ -9,12 +9,14 @@ certificate -> amend the as-found run -> the combined certificate re-rendered as
 
 from __future__ import annotations
 
+import json
+
 from bs4 import BeautifulSoup
 from test_issue import DATA, bench_run, text
 
 from verirun.certificate.render import certificate_path
 from verirun.cli import main
-from verirun.record.journal import load_record
+from verirun.record.journal import load_record, read_journal
 
 
 def test_as_found_adjust_as_left_combined_amend_issue(at_the_bench, tmp_path, capsys):
@@ -40,6 +42,13 @@ def test_as_found_adjust_as_left_combined_amend_issue(at_the_bench, tmp_path, ca
         "span trimmer reset",
         readings=left_readings,
     )
+    # The as-left journal carries the as-found results as the as-found record's file holds
+    # them, key for key, and its start document fits the journal's typed model.
+    found_file = json.loads((found / "record.json").read_text(encoding="utf-8"))
+    start = read_journal(left / "journal.jsonl").documents[0]
+    assert start["as_found"]["points"] == found_file["points"]
+    assert start["as_found"]["summary"] == found_file["summary"]
+    assert "pass" in start["as_found"]["summary"] and "passed" not in start["as_found"]["summary"]
     record = load_record(left)
     soup = BeautifulSoup(
         certificate_path(record, reports).read_text(encoding="utf-8"), "html.parser"

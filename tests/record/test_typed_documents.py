@@ -1,11 +1,15 @@
-"""Outside the record package, journal documents are read as typed models, never by string key.
+"""Outside the record package, journal documents and run records are read as typed models,
+never by string key.
 
 The record package (``verirun/record/``) reads a journal's lines as parsed (the chain is hashed
 and the record built from them) and gives everything else the documents' frozen models
-(:attr:`verirun.record.journal.JournalRead.models`, ``.start``) and a few named questions
-(:func:`~verirun.record.journal.confirmed_steps`, :func:`~verirun.record.journal.latest_time`...).
-New documents are made by :func:`verirun.record.documents.compose`. The scan below holds the rest
-of the package to that; its self-tests feed it the string-keyed reads the package used to make.
+(:attr:`verirun.record.journal.JournalRead.models`, ``.start``), a few named questions
+(:func:`~verirun.record.journal.confirmed_steps`, :func:`~verirun.record.journal.latest_time`...)
+and the run record as its model (:func:`~verirun.record.journal.load_record`,
+:func:`~verirun.record.verify.verified_record`, :func:`~verirun.record.build.build_record`,
+:func:`~verirun.record.build.close_record`). New documents are made by
+:func:`verirun.record.documents.compose`. The scan below holds the rest of the package to that;
+its self-tests feed it the string-keyed reads the package used to make.
 """
 
 from __future__ import annotations
@@ -20,10 +24,22 @@ from verirun.record.documents import KINDS
 PACKAGE = Path(__file__).resolve().parents[2] / "verirun"
 RECORD = PACKAGE / "record"
 
-#: Calls and attributes whose value is a journal's parsed lines (dicts), or one of them.
-_SOURCES = {"read_journal", "documents", "read_start"}
-#: The names documents go by in this code base, whatever they were bound from.
-_DOCUMENT_NAMES = {"doc", "docs", "documents", "journal_docs", "start", "resume"}
+#: Calls and attributes whose value is a journal's parsed lines (dicts), or one of them, or a
+#: run record (as the file holds it, or as the model every reader outside the package gets).
+_SOURCES = {
+    "read_journal",
+    "documents",
+    "read_start",
+    "load_record",
+    "load_record_document",
+    "verified_record",
+    "verified_records",
+    "build_record",
+    "build_record_document",
+    "close_record",
+}
+#: The names documents and records go by in this code base, whatever they were bound from.
+_DOCUMENT_NAMES = {"doc", "docs", "documents", "journal_docs", "start", "resume", "record"}
 
 
 def _is_source(node: ast.AST, tainted: set[str]) -> bool:
@@ -222,22 +238,40 @@ class TestTheScan:
     def test_a_read_by_key_is_found(self, snippet):
         assert keyed_reads(snippet)
 
-    def test_records_and_typed_documents_are_not_reads_of_documents(self):
-        """A run record is read by key (it is JSON, not a journal document); typed documents
-        and the register's columns named ``documents`` are no string-keyed reads."""
+    @pytest.mark.parametrize(
+        "snippet",
+        [
+            # a record as its file holds it, read by key (the code base did, before records
+            # were typed outside the package)
+            "def f(run_dir):\n"
+            "    record = load_record(run_dir)\n"
+            "    return record['run']['status'] != 'complete'\n",
+            "def f(folder):\n"
+            "    found = verified_record(folder)\n"
+            "    return found['summary'].get('overall')\n",
+            "def f(docs):\n    return build_record(docs)['points'][0]['verdict']\n",
+            "def f(record):\n    return record['bench'].get('simulated')\n",
+        ],
+    )
+    def test_a_record_read_by_key_is_found(self, snippet):
+        assert keyed_reads(snippet)
+
+    def test_typed_documents_and_records_are_not_reads_by_key(self):
+        """Typed documents and records, and the register's columns named ``documents``, are no
+        string-keyed reads."""
         snippet = (
             "def f(run_dir, runs):\n"
             "    record = load_record(run_dir)\n"
             "    read = read_journal(run_dir / JOURNAL_NAME)\n"
             "    start = read.start\n"
             "    latest = sa.select(sa.func.max(runs.c.documents).label('latest'))\n"
-            "    rows = {'kind': 'standard', 'id': record['run']['uid']}\n"
-            "    return start.procedure.text, record['summary'].get('overall'), latest, rows\n"
+            "    rows = {'kind': 'standard', 'id': record.run.uid}\n"
+            "    return start.procedure.text, record.summary.overall, latest, rows\n"
         )
         assert keyed_reads(snippet) == []
 
 
-def test_no_module_outside_the_record_package_reads_a_document_by_key():
+def test_no_module_outside_the_record_package_reads_a_document_or_record_by_key():
     """Every module of verirun outside verirun/record/ is scanned (there are some: the scan is
     not of an empty list)."""
     modules = _outside_modules()

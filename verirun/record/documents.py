@@ -61,7 +61,7 @@ part                     what it is
 :class:`Rejection`       one point not accepted, and why
 :class:`IssueEntry`      a revision's certificate issued, by whom
 :class:`Revision`        the as-found results of an as-left run revised
-:class:`AsFoundRun`      for an as-left run: the as-found run's results and what was adjusted
+:class:`AsFound`         for an as-left run: the as-found run's results and what was adjusted
 ======================== ===========================================================================
 
 Record formats (``record_format``): 3, the current one, is what journals of format 2 on close
@@ -254,16 +254,16 @@ class Environment(Part):
 
 
 class AsFound(Part):
-    """For an as-left run: the as-found run it follows and what was adjusted."""
-
-    model_config = ConfigDict(extra="forbid", frozen=True, strict=False)
+    """For an as-left run: the as-found run it follows, its results as its record holds them
+    (the record's own models, :class:`PointResult` and :class:`Summary`, defined below) and
+    what was adjusted."""
 
     run: str = Field(description="uid of the as-found run")
     certificate: str = Field(description="the as-found run's certificate number")
     date: str = Field(description="when the as-found run was made")
     adjustment: str = Field(description="what was adjusted between the two runs")
-    points: list[dict[str, Any]] = Field(description="the as-found record's result rows")
-    summary: dict[str, Any] = Field(description="the as-found record's summary")
+    points: list[PointResult] = Field(description="the as-found record's result rows")
+    summary: Summary = Field(description="the as-found record's summary")
 
 
 class Start(Chained):
@@ -465,8 +465,6 @@ Document = Annotated[
     Field(discriminator="kind"),
 ]
 
-_ADAPTER: TypeAdapter = TypeAdapter(Document)
-
 
 def validate_document(data: Any) -> BaseModel:
     """The document model of ``data`` (a parsed journal line).
@@ -517,7 +515,7 @@ def document_problem(data: Any) -> str | None:
 def as_journaled(part: BaseModel) -> dict:
     """A document, or a part of one, as the journal holds it: the fields it was made or read
     with, and no others (an optional field left out stays out, rather than becoming null)."""
-    return part.model_dump(exclude_unset=True)
+    return part.model_dump(by_alias=True, exclude_unset=True)
 
 
 def compose(kind: str, *, time: str, **fields: Any) -> dict:
@@ -988,13 +986,10 @@ class Revision(Part):
     what: Literal["as-found results"] = Field(description="what changed")
 
 
-class AsFoundRun(AsFound):
-    """For an as-left run: the as-found run it follows, its results and what was adjusted."""
-
-    model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
-
-    points: list[PointResult] = Field(description="the as-found record's result rows")
-    summary: Summary = Field(description="the as-found record's summary")
+# The journal's documents that carry an as-found run's rows and summary, once those are defined.
+for _model in (AsFound, Start, AsFoundRevised):
+    _model.model_rebuild()
+_ADAPTER: TypeAdapter = TypeAdapter(Document)
 
 
 # --- the whole --------------------------------------------------------------------------------
@@ -1011,7 +1006,7 @@ class Record(Part):
     customer: Customer = Field(description="the customer")
     item: Item = Field(description="the item calibrated")
     environment: Environment = Field(description="the laboratory's conditions at the start")
-    as_found: AsFoundRun | None = Field(
+    as_found: AsFound | None = Field(
         default=None, description="an as-left run's as-found results (absent for any other run)"
     )
     procedure: ProcedureAsRun = Field(description="the procedure as run, its whole text")
