@@ -23,7 +23,6 @@ from verirun.record.journal import (
     dumps,
     line_hash,
     load_record,
-    load_record_document,
     never_started,
     never_started_text,
     read_journal,
@@ -181,19 +180,54 @@ def certificates_of(documents: list[dict], reports: Path, also=()) -> list[Path]
 def problems(path: str | Path, reports: str | Path | None = None) -> list[str]:
     """Every integrity problem of the stored run at ``path`` (empty when it verifies); with
     ``reports``, its certificates there are checked against its journal as well."""
+    return _checked(path, reports)[0]
+
+
+def _checked(path: str | Path, reports: str | Path | None = None):
+    """:func:`problems`, and the stored record as its model when there are none."""
     try:
         folder = run_folder(path)
     except RecordError as exc:
         if never_started(Path(path)):
-            return [never_started_text(Path(path))]
-        return [str(exc)]
+            return [never_started_text(Path(path))], None
+        return [str(exc)], None
     if never_started(folder):
-        return [never_started_text(folder)]
+        return [never_started_text(folder)], None
     journal_path = folder / JOURNAL_NAME
     try:
         read = read_journal(journal_path)
     except RecordError as exc:
-        return [str(exc)]
+        return [str(exc)], None
+    found = _journal_problems(read, journal_path)
+    if found:
+        return found, None
+    found.extend(
+        reach_problems(folder, read.documents, Path(reports) if reports is not None else None)
+    )
+    if found:
+        return found, None
+    try:
+        rebuilt = build_record_document(read.documents, str(journal_path))
+        stored, model = read_record_file(folder / RECORD_NAME)
+    except RecordError as exc:
+        return [str(exc)], None
+    keys = _differing(stored, rebuilt)
+    if keys and stored["run"]["documents"] < len(read.documents):
+        found.append(
+            f"{folder / RECORD_NAME}: is older than its journal (closed from"
+            f" {stored['run']['documents']} of its {len(read.documents)} documents): the run was"
+            f" interrupted before its record was written again; 'verirun resume {folder}' writes it"
+        )
+    elif keys:
+        found.append(
+            f"{folder / RECORD_NAME}: the record differs from what its journal records"
+            f" (in {', '.join(keys)}): it was edited, or written by another version"
+        )
+    return found, None if found else model
+
+
+def _journal_problems(read, journal_path: Path) -> list[str]:
+    """What is wrong with a journal as read: a torn last line, and every break of its chain."""
     found = []
     if read.torn_line is not None:
         found.append(
@@ -201,32 +235,14 @@ def problems(path: str | Path, reports: str | Path | None = None) -> list[str]:
             " to recover it"
         )
     found.extend(verify_chain(read.documents, str(journal_path)))
-    if found:
-        return found
-    found.extend(
-        reach_problems(folder, read.documents, Path(reports) if reports is not None else None)
-    )
-    if found:
-        return found
-    try:
-        rebuilt = build_record_document(read.documents, str(journal_path))
-        stored = load_record_document(folder / RECORD_NAME)
-    except RecordError as exc:
-        return [str(exc)]
-    stored, rebuilt = comparable(stored, rebuilt)
-    if stored != rebuilt and stored.get("run", {}).get("documents", 0) < len(read.documents):
-        found.append(
-            f"{folder / RECORD_NAME}: is older than its journal (closed from"
-            f" {stored['run']['documents']} of its {len(read.documents)} documents): the run was"
-            f" interrupted before its record was written again; 'verirun resume {folder}' writes it"
-        )
-    elif stored != rebuilt:
-        keys = sorted(k for k in set(stored) | set(rebuilt) if stored.get(k) != rebuilt.get(k))
-        found.append(
-            f"{folder / RECORD_NAME}: the record differs from what its journal records"
-            f" (in {', '.join(keys)}): it was edited, or written by another version"
-        )
     return found
+
+
+def _differing(stored: dict, rebuilt: dict) -> list[str]:
+    """The parts in which a stored record and the one its journal closes into disagree, as
+    :func:`comparable` makes them (none: the record is its journal's)."""
+    stored, rebuilt = comparable(stored, rebuilt)
+    return sorted(k for k in set(stored) | set(rebuilt) if stored.get(k) != rebuilt.get(k))
 
 
 def verified_record(path: str | Path) -> Record:
@@ -237,10 +253,10 @@ def verified_record(path: str | Path) -> Record:
     RecordError
         Listing every integrity problem found.
     """
-    found = problems(path)
+    found, record = _checked(path)
     if found:
         raise RecordError("\n".join(found))
-    return load_record(run_folder(path) / RECORD_NAME)
+    return record
 
 
 def verified_records(folder: Path, *, current: bool = True) -> tuple[list[Record], list[str]]:
@@ -253,12 +269,7 @@ def verified_records(folder: Path, *, current: bool = True) -> tuple[list[Record
         read = read_journal(journal)
     except RecordError as exc:
         return [], [str(exc)]
-    found = verify_chain(read.documents, str(journal))
-    if read.torn_line is not None:
-        found.append(
-            f"{journal}: the last line is cut off (an interrupted write);"
-            " resume the run to recover it"
-        )
+    found = _journal_problems(read, journal)
     if found or not read.documents:
         return [], found or [f"{journal}: the journal is empty"]
     paths = sorted(folder.glob("record.r*.json"), key=lambda p: _revision_of(p.name))
@@ -273,9 +284,8 @@ def verified_records(folder: Path, *, current: bool = True) -> tuple[list[Record
         except RecordError as exc:
             found.append(f"{path}: {exc}")
             continue
-        mine, journal_s = comparable(stored, rebuilt)
-        if mine != journal_s:
-            keys = sorted(k for k in set(mine) | set(journal_s) if mine.get(k) != journal_s.get(k))
+        keys = _differing(stored, rebuilt)
+        if keys:
             found.append(
                 f"{path}: the record differs from what its journal records (in {', '.join(keys)})"
             )
