@@ -91,17 +91,10 @@ class TestPoint:
         return f"{rng.id} ({words_for(rng.function)}, {detail})"
 
 
-def budget_terms(
-    rng: ResolvedRange, nominal: float, frequency: float | None, standard: "SpecLine | None"
-) -> list[uncertainty.Term]:
-    """The contributions to the uncertainty of a reading at ``nominal`` on ``rng``: the applied
-    value's, from the calibrator's specification line ``standard``, then the meter's own."""
-    return _applied_terms(nominal, standard) + rng.meter_terms()
-
-
 def _applied_terms(nominal: float, standard: "SpecLine | None") -> list[uncertainty.Term]:
-    """The applied value's contribution at ``nominal``, from the calibrator's specification line
-    ``standard`` (none without one)."""
+    """The applied value's contribution to the uncertainty of a reading at ``nominal``, from the
+    calibrator's specification line ``standard`` (none without one); the meter's own follow it
+    (``ResolvedRange.meter_terms``)."""
     if standard is None:
         return []
     return [

@@ -24,7 +24,6 @@ from verirun.record import documents
 from verirun.record.documents import (
     PointResult,
     Record,
-    part_document,
     record_document,
     validate_row,
     validation_text,
@@ -264,8 +263,8 @@ def as_found_part(record: Record, *, adjustment: str) -> documents.AsFound:
         certificate=certificate_number(record),
         date=record.run.started[:10],
         adjustment=adjustment,
-        points=[part_document(row) for row in record.points],
-        summary=part_document(record.summary),
+        points=record.points,
+        summary=record.summary,
     )
 
 
