@@ -31,6 +31,7 @@ from verirun.record.documents import (
     RECORD_FORMAT,
     Document,
     Observation,
+    Record,
     Resume,
     Skip,
     Start,
@@ -395,7 +396,7 @@ def _object_pieces(entries, as_written):
     yield "}\n"
 
 
-def load_record(path: str | Path):
+def load_record(path: str | Path) -> Record:
     """Load a run record from its file or from its run folder, as a typed
     :class:`~verirun.record.documents.Record`.
 
@@ -420,7 +421,7 @@ def load_record_document(path: str | Path) -> dict:
     return read_record_file(path)[0]
 
 
-def read_record_file(path: str | Path):
+def read_record_file(path: str | Path) -> tuple[dict, Record]:
     """The record at ``path`` (its file or its run folder), as the dict it holds and as its
     :class:`~verirun.record.documents.Record`, checked once: for comparing it key by key with
     the record its journal closes into, and using it typed once it agrees.

@@ -144,8 +144,10 @@ def _certificate_state(record: Record) -> str:
     record."""
     if record.bench.simulated:
         return "dry run"
+    from verirun.issue import issued
+
     revision = record.run.revision
-    if any(issued.revision == revision for issued in record.issues or ()):
+    if issued(record) is not None:
         return "issued" if revision == 1 else f"issued r{revision}"
     return "draft" if record.run.status == "complete" else "none"
 
