@@ -242,7 +242,13 @@ def _differing(stored: dict, rebuilt: dict) -> list[str]:
     """The parts in which a stored record and the one its journal closes into disagree, as
     :func:`comparable` makes them (none: the record is its journal's)."""
     stored, rebuilt = comparable(stored, rebuilt)
-    return sorted(k for k in set(stored) | set(rebuilt) if stored.get(k) != rebuilt.get(k))
+    # A key one holds and the other does not differs, even if its value is null.
+    return sorted(
+        k for k in set(stored) | set(rebuilt) if stored.get(k, _ABSENT) != rebuilt.get(k, _ABSENT)
+    )
+
+
+_ABSENT = object()
 
 
 def verified_record(path: str | Path) -> Record:
